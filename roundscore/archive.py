@@ -1,0 +1,850 @@
+"""The history archive: a lab's (or a provider's) scores across PT rounds, in SQLite.
+
+Two sides write to the same kind of file:
+
+* the **coordinator** stores a whole evaluated round with :func:`store_round`
+  (settings, per-measurand statistics, every lab's scores, precision);
+* a **participant** adds the files the provider sent it with :func:`add_files`
+  (the round's ``scores.csv`` or its own workbook ``labs/LAB.xlsx``).
+
+:func:`lab_history` reads one lab's series back, one row per round x measurand.
+
+Design decisions
+----------------
+* Keys are scheme + round + lab code: a lab may take part in several schemes
+  under different codes, and round identifiers repeat across schemes.
+* Every write runs in one ``BEGIN IMMEDIATE ... COMMIT`` transaction in WAL
+  mode, so a process killed part-way through an import leaves the round wholly
+  present or wholly absent (SQLite's atomic commit).
+* Imports are idempotent: the content is compared through a canonical hash of
+  the rows (rows sorted, floats written with ``repr`` so equal doubles hash
+  equally, missing numbers as null).  The same content again is reported as
+  ``"unchanged"``; different content is refused unless ``replace=True``, and
+  the replaced rows are first copied to the ``audit`` table with a UTC
+  timestamp and a reason.
+* The schema is versioned with ``PRAGMA user_version`` and a list of migration
+  functions (:data:`MIGRATIONS`); each applied migration is also logged in the
+  ``schema_version`` table.  Opening a file applies the missing migrations;
+  a file from a newer roundscore is refused rather than guessed at.
+
+References
+----------
+.. [1] SQLite, "Atomic Commit In SQLite", https://www.sqlite.org/atomiccommit.html
+.. [2] SQLite, "Write-Ahead Logging", https://www.sqlite.org/wal.html
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import hashlib
+import json
+import math
+import os
+import sqlite3
+from collections.abc import Callable, Iterable, Sequence
+from contextlib import contextmanager
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any, Iterator, Literal
+
+import pandas as pd
+
+from roundscore.errors import ArchiveError, InputError, Problem
+
+__all__ = [
+    "ARCHIVE_ENV",
+    "SCORE_COLUMNS",
+    "MIGRATIONS",
+    "SCHEMA_VERSION",
+    "StoreOutcome",
+    "archive_path",
+    "store_round",
+    "add_files",
+    "lab_history",
+    "archived_labs",
+]
+
+#: Environment variable that overrides the default archive file.
+ARCHIVE_ENV = "ROUNDSCORE_ARCHIVE"
+
+#: Columns of the pipeline's ``scores.csv`` and of the ``data`` sheet of a
+#: per-lab workbook, in their order.
+SCORE_COLUMNS: tuple[str, ...] = (
+    "lab", "measurand", "unit", "n_replicates", "result", "assigned", "u_assigned",
+    "sigma_pt", "z", "z_prime", "zeta", "en", "d", "d_percent", "signal", "note",
+    "score", "scheme", "round", "round_date",
+)
+#: Per-row fields stored in the ``scores`` table (scheme/round/date live on the round).
+_ROW_FIELDS: tuple[str, ...] = SCORE_COLUMNS[:17]
+_TEXT_FIELDS = frozenset({"lab", "measurand", "unit", "signal", "note", "score"})
+_FLOAT_FIELDS = ("result", "assigned", "u_assigned", "sigma_pt", "z", "z_prime",
+                 "zeta", "en", "d", "d_percent")
+SIGNALS = ("acceptable", "warning", "action", "not-scored")
+SCORE_NAMES = ("z", "z-prime", "zeta", "en")
+#: Column holding the value of each score name.
+SCORE_VALUE_COLUMN = {"z": "z", "z-prime": "z_prime", "zeta": "zeta", "en": "en"}
+#: Leading characters a CSV writer neutralises with a ``'`` (OWASP, "CSV Injection").
+_FORMULA_STARTS = ("=", "+", "-", "@")
+_WORKBOOK_FORMAT = 1
+
+Status = Literal["added", "unchanged", "replaced"]
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class StoreOutcome:
+    """What one import did.
+
+    Attributes
+    ----------
+    status : {"added", "unchanged", "replaced"}
+        ``"unchanged"`` means the archive already held identical content and
+        nothing was written.
+    rows : int
+        Number of score rows the import concerns.
+    message : str
+        One sentence for the user.
+    scheme, round_id : str
+        The round's keys.
+    lab : str or None
+        The lab whose rows were imported (``None`` for a whole round).
+    file : str or None
+        The file read (``None`` for :func:`store_round`).
+    """
+
+    status: Status
+    rows: int
+    message: str
+    scheme: str = ""
+    round_id: str = ""
+    lab: str | None = None
+    file: str | None = None
+
+    def to_dict(self) -> dict[str, object]:
+        return {f: getattr(self, f) for f in self.__slots__}
+
+
+# --------------------------------------------------------------------------- schema
+
+def _migration_1(conn: sqlite3.Connection) -> None:
+    """Initial layout: rounds and their score rows."""
+    conn.execute("""CREATE TABLE rounds (
+        scheme TEXT NOT NULL, round_id TEXT NOT NULL, round_date TEXT NOT NULL,
+        title TEXT NOT NULL DEFAULT '', settings TEXT NOT NULL DEFAULT '{}',
+        stored_at TEXT NOT NULL, PRIMARY KEY (scheme, round_id))""")
+    cols = ", ".join(
+        f"{c} REAL" if c in _FLOAT_FIELDS else
+        ("n_replicates INTEGER" if c == "n_replicates" else f"{c} TEXT")
+        for c in _ROW_FIELDS)
+    conn.execute(f"""CREATE TABLE scores (scheme TEXT NOT NULL, round_id TEXT NOT NULL, {cols},
+        PRIMARY KEY (scheme, round_id, lab, measurand),
+        FOREIGN KEY (scheme, round_id) REFERENCES rounds (scheme, round_id))""")
+
+
+def _migration_2(conn: sqlite3.Connection) -> None:
+    """Add the round's origin, the statistics/precision tables, the audit table and a lab index."""
+    conn.execute("ALTER TABLE rounds ADD COLUMN origin TEXT NOT NULL DEFAULT 'lab'")
+    conn.execute("""CREATE TABLE round_tables (
+        scheme TEXT NOT NULL, round_id TEXT NOT NULL, kind TEXT NOT NULL,
+        position INTEGER NOT NULL, row TEXT NOT NULL,
+        PRIMARY KEY (scheme, round_id, kind, position))""")
+    conn.execute("""CREATE TABLE audit (
+        id INTEGER PRIMARY KEY, replaced_at TEXT NOT NULL, reason TEXT NOT NULL,
+        scheme TEXT NOT NULL, round_id TEXT NOT NULL, lab TEXT, kind TEXT NOT NULL,
+        row TEXT NOT NULL)""")
+    conn.execute("CREATE INDEX scores_by_lab ON scores (lab, measurand)")
+
+
+#: Ordered schema migrations; migration ``i`` (0-based) brings a file to version ``i + 1``.
+#: Never edit a released migration: append a new one.
+MIGRATIONS: tuple[Callable[[sqlite3.Connection], None], ...] = (_migration_1, _migration_2)
+SCHEMA_VERSION = len(MIGRATIONS)
+
+
+def archive_path(path: str | os.PathLike[str] | None = None) -> Path:
+    """The archive file: ``path`` if given, else ``$ROUNDSCORE_ARCHIVE``, else the user data dir.
+
+    The default is ``platformdirs.user_data_dir("roundscore") / "archive.sqlite"``.
+    """
+    if path:
+        return Path(path)
+    if os.environ.get(ARCHIVE_ENV):
+        return Path(os.environ[ARCHIVE_ENV])
+    import platformdirs
+
+    return Path(platformdirs.user_data_dir("roundscore")) / "archive.sqlite"
+
+
+def _now() -> str:
+    return _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds")
+
+
+def _migrate(conn: sqlite3.Connection, file: Path,
+             migrations: Sequence[Callable[[sqlite3.Connection], None]] = MIGRATIONS) -> None:
+    version = conn.execute("PRAGMA user_version").fetchone()[0]
+    if version > len(migrations):
+        raise ArchiveError(
+            f"{file}: archive schema version {version} was written by a newer roundscore; "
+            f"this version reads up to {len(migrations)}")
+    if version == len(migrations):
+        return
+    with _transaction(conn):
+        version = conn.execute("PRAGMA user_version").fetchone()[0]  # re-read under the lock
+        if version == 0:
+            conn.execute("CREATE TABLE IF NOT EXISTS schema_version ("
+                         "version INTEGER PRIMARY KEY, applied_at TEXT NOT NULL, description TEXT)")
+        for number in range(version + 1, len(migrations) + 1):
+            step = migrations[number - 1]
+            step(conn)
+            doc = (step.__doc__ or "").strip().splitlines()[0] if step.__doc__ else ""
+            conn.execute("INSERT INTO schema_version VALUES (?, ?, ?)", (number, _now(), doc))
+            conn.execute(f"PRAGMA user_version = {number:d}")
+
+
+@contextmanager
+def _transaction(conn: sqlite3.Connection) -> Iterator[sqlite3.Connection]:
+    """``BEGIN IMMEDIATE`` ... ``COMMIT``; rolled back on any exception."""
+    conn.execute("BEGIN IMMEDIATE")
+    try:
+        yield conn
+    except BaseException:
+        conn.execute("ROLLBACK")
+        raise
+    conn.execute("COMMIT")
+
+
+@contextmanager
+def _connect(path: str | os.PathLike[str] | None, *, create: bool,
+             migrations: Sequence[Callable[[sqlite3.Connection], None]] = MIGRATIONS,
+             ) -> Iterator[sqlite3.Connection]:
+    file = archive_path(path)
+    if not file.exists():
+        if not create:
+            raise ArchiveError(f"no archive at {file}; add rounds first with 'roundscore history add'")
+        file.parent.mkdir(parents=True, exist_ok=True)
+    try:
+        conn = sqlite3.connect(file, timeout=30.0, isolation_level=None)
+    except sqlite3.Error as exc:
+        raise ArchiveError(f"{file}: cannot open the archive: {exc}") from None
+    try:
+        conn.execute("PRAGMA journal_mode = WAL")
+        conn.execute("PRAGMA synchronous = FULL")
+        conn.execute("PRAGMA foreign_keys = ON")
+        _migrate(conn, file, migrations)
+        yield conn
+    except sqlite3.DatabaseError as exc:
+        raise ArchiveError(f"{file}: not a usable roundscore archive ({exc})") from None
+    finally:
+        conn.close()
+
+
+# --------------------------------------------------------------------------- canonical rows
+
+def _json_default(value: object) -> object:
+    if isinstance(value, (_dt.date, _dt.datetime, pd.Timestamp)):
+        return value.isoformat()
+    if hasattr(value, "item"):  # numpy scalars
+        return _plain(value.item())
+    if isinstance(value, (set, frozenset)):
+        return sorted(value, key=repr)
+    return str(value)
+
+
+def _plain(value: object) -> object:
+    """A JSON-ready scalar: numpy scalars unwrapped, NaN/NaT/None as None."""
+    if value is None or value is pd.NaT:
+        return None
+    if hasattr(value, "item") and not isinstance(value, (str, bytes)):
+        value = value.item()
+    if isinstance(value, float) and math.isnan(value):
+        return None
+    if isinstance(value, (_dt.date, _dt.datetime, pd.Timestamp)):
+        return value.isoformat()
+    return value
+
+
+def _canonical_json(obj: object) -> str:
+    return json.dumps(obj, sort_keys=True, separators=(",", ":"), default=_json_default,
+                      allow_nan=False, ensure_ascii=False)
+
+
+def _table_rows(frame: pd.DataFrame | None) -> list[str]:
+    """Each row of a statistics/precision table as canonical JSON, in the frame's order."""
+    if frame is None:
+        return []
+    records = frame.to_dict(orient="records")
+    return [_canonical_json({str(k): _plain(v) for k, v in rec.items()}) for rec in records]
+
+
+def _digest(round_date: str, score_rows: Iterable[tuple], *, title: str | None = None,
+            settings: str | None = None, tables: Sequence[tuple[str, str]] = ()) -> str:
+    """Canonical content hash: sorted rows, floats as ``repr`` (via JSON), missing as null."""
+    body = {"round_date": round_date,
+            "scores": sorted((list(r) for r in score_rows), key=lambda r: (r[0], r[1]))}
+    if title is not None:
+        body["title"] = title
+    if settings is not None:
+        body["settings"] = settings
+    if tables:
+        body["tables"] = sorted(list(t) for t in tables)
+    return hashlib.sha256(_canonical_json(body).encode("utf-8")).hexdigest()
+
+
+# --------------------------------------------------------------------------- parsing rows
+
+def _unquote(text: str) -> str:
+    """Undo formula-injection neutralising: drop one ``'`` before ``= + - @``."""
+    if len(text) >= 2 and text[0] == "'" and text[1] in _FORMULA_STARTS:
+        return text[1:]
+    return text
+
+
+def _text(value: object) -> str:
+    """A key cell as text: stripped, un-neutralised, whole floats without ``.0``."""
+    value = _plain(value)
+    if value is None:
+        return ""
+    if isinstance(value, float) and value.is_integer():
+        value = int(value)
+    return _unquote(str(value).strip())
+
+
+def _parse_date(value: object) -> str | None:
+    if isinstance(value, _dt.datetime):
+        return value.date().isoformat()
+    if isinstance(value, _dt.date):
+        return value.isoformat()
+    try:
+        return _dt.date.fromisoformat(str(value).strip()).isoformat()
+    except ValueError:
+        return None
+
+
+def _normalise_rows(records: Sequence[dict[str, object]], *, file: str | None, sheet: str | None,
+                    first_row: int) -> tuple[list[tuple], list[Problem]]:
+    """Validate and convert score records into tuples in :data:`_ROW_FIELDS` order.
+
+    Text cells are stripped and un-neutralised; empty cells become ``None``;
+    numbers become ``float`` (``n_replicates`` an ``int``).  Every problem is
+    collected with its row (``first_row`` is the spreadsheet row of record 0).
+    """
+    rows: list[tuple] = []
+    problems: list[Problem] = []
+    seen: dict[tuple[str, str], int] = {}
+    for i, rec in enumerate(records):
+        where = dict(file=file, sheet=sheet, row=first_row + i)
+        out: list[object] = []
+        for col in _ROW_FIELDS:
+            raw = rec.get(col)
+            if isinstance(raw, str):
+                raw = _unquote(raw.strip())
+            raw = _plain(raw)
+            if raw == "" or raw is None:
+                out.append(None)
+                continue
+            if col in _TEXT_FIELDS:
+                if isinstance(raw, float) and raw.is_integer():
+                    raw = int(raw)  # a numeric lab code read from a workbook
+                out.append(str(raw))
+                continue
+            try:
+                number = float(raw)  # type: ignore[arg-type]
+            except (TypeError, ValueError):
+                problems.append(Problem(message="not a number", column=col, value=raw, **where))
+                out.append(None)
+                continue
+            if col == "n_replicates":
+                if not number.is_integer() or number < 0:
+                    problems.append(Problem(message="not a whole number of replicates",
+                                            column=col, value=raw, **where))
+                out.append(int(number) if number.is_integer() else None)
+            elif not math.isfinite(number):
+                out.append(None)
+            else:
+                out.append(number)
+        row = tuple(out)
+        lab, measurand, signal, score = row[0], row[1], row[14], row[16]
+        for col, val in (("lab", lab), ("measurand", measurand)):
+            if val is None:
+                problems.append(Problem(message="empty; a value is required", column=col, **where))
+        if signal not in SIGNALS:
+            problems.append(Problem(message=f"unknown signal; allowed: {', '.join(SIGNALS)}",
+                                    column="signal", value=signal, **where))
+        if signal != "not-scored" and score not in SCORE_NAMES:
+            problems.append(Problem(message=f"unknown score name; allowed: {', '.join(SCORE_NAMES)}",
+                                    column="score", value=score, **where))
+        key = (str(lab), str(measurand))
+        if lab is not None and measurand is not None:
+            if key in seen:
+                problems.append(Problem(
+                    message=f"duplicate lab x measurand (also on row {seen[key]})",
+                    lab=lab, measurand=measurand, **where))
+            seen[key] = first_row + i
+        rows.append(row)
+    return rows, problems
+
+
+# --------------------------------------------------------------------------- writing
+
+def _existing_lab_rows(conn: sqlite3.Connection, scheme: str, round_id: str,
+                       lab: str | None) -> list[tuple]:
+    sql = f"SELECT {', '.join(_ROW_FIELDS)} FROM scores WHERE scheme = ? AND round_id = ?"
+    args: list[object] = [scheme, round_id]
+    if lab is not None:
+        sql += " AND lab = ?"
+        args.append(lab)
+    return [tuple(r) for r in conn.execute(sql, args)]
+
+
+def _round_record(conn: sqlite3.Connection, scheme: str, round_id: str) -> dict[str, Any] | None:
+    cur = conn.execute("SELECT scheme, round_id, round_date, title, settings, stored_at, origin "
+                       "FROM rounds WHERE scheme = ? AND round_id = ?", (scheme, round_id))
+    row = cur.fetchone()
+    if row is None:
+        return None
+    return dict(zip([d[0] for d in cur.description], row))
+
+
+def _round_tables(conn: sqlite3.Connection, scheme: str, round_id: str) -> list[tuple[str, str]]:
+    return [tuple(r) for r in conn.execute(
+        "SELECT kind, row FROM round_tables WHERE scheme = ? AND round_id = ? ORDER BY kind, position",
+        (scheme, round_id))]
+
+
+def _audit(conn: sqlite3.Connection, *, scheme: str, round_id: str, lab: str | None,
+           reason: str, whole_round: bool) -> None:
+    """Copy rows about to be replaced into ``audit`` (round row, score rows, tables)."""
+    when = _now()
+    rec = _round_record(conn, scheme, round_id)
+    if rec is not None:
+        conn.execute("INSERT INTO audit (replaced_at, reason, scheme, round_id, lab, kind, row) "
+                     "VALUES (?, ?, ?, ?, ?, 'round', ?)",
+                     (when, reason, scheme, round_id, lab, _canonical_json(rec)))
+    for row in _existing_lab_rows(conn, scheme, round_id, lab):
+        conn.execute("INSERT INTO audit (replaced_at, reason, scheme, round_id, lab, kind, row) "
+                     "VALUES (?, ?, ?, ?, ?, 'score', ?)",
+                     (when, reason, scheme, round_id, row[0],
+                      _canonical_json(dict(zip(_ROW_FIELDS, row)))))
+    if whole_round:
+        for kind, row in _round_tables(conn, scheme, round_id):
+            conn.execute("INSERT INTO audit (replaced_at, reason, scheme, round_id, lab, kind, row) "
+                         "VALUES (?, ?, ?, ?, NULL, ?, ?)", (when, reason, scheme, round_id, kind, row))
+
+
+def _insert_scores(conn: sqlite3.Connection, scheme: str, round_id: str,
+                   rows: Sequence[tuple]) -> None:
+    marks = ", ".join("?" * (len(_ROW_FIELDS) + 2))
+    conn.executemany(
+        f"INSERT INTO scores (scheme, round_id, {', '.join(_ROW_FIELDS)}) VALUES ({marks})",
+        ((scheme, round_id, *r) for r in rows))
+
+
+def _check_keys(scheme: object, round_id: object, round_date: object, *,
+                file: str | None = None) -> tuple[str, str, str]:
+    problems = []
+    for name, value in (("scheme", scheme), ("round", round_id)):
+        if value is None or str(value).strip() == "":
+            problems.append(Problem(message=f"the round's {name} is empty", file=file))
+    date = _parse_date(round_date) if round_date not in (None, "") else None
+    if date is None:
+        problems.append(Problem(message="round_date is not an ISO date YYYY-MM-DD",
+                                file=file, column="round_date", value=round_date))
+    if problems:
+        raise InputError(problems, summary=f"{file or 'the round'}: the round's keys are incomplete")
+    return str(scheme).strip(), str(round_id).strip(), date  # type: ignore[return-value]
+
+
+def store_round(path: str | os.PathLike[str] | None, *, scheme: str, round_id: str,
+                round_date: str | _dt.date, title: str, settings: dict,
+                statistics: pd.DataFrame, scores: pd.DataFrame,
+                precision: pd.DataFrame | None = None, replace: bool = False,
+                reason: str = "replaced on request (replace=True)") -> StoreOutcome:
+    """Store a whole evaluated round (coordinator side).
+
+    Parameters
+    ----------
+    path : path or None
+        Archive file (``None``: :func:`archive_path` default).
+    scheme, round_id, round_date, title
+        The round's keys and description; ``round_date`` ISO ``YYYY-MM-DD``.
+    settings : dict
+        The round's settings, stored as canonical JSON (non-JSON values as text).
+    statistics, precision : pandas.DataFrame
+        Per-measurand tables, stored row by row as JSON (any columns).
+    scores : pandas.DataFrame
+        Every lab x measurand row with the ``scores.csv`` columns
+        (:data:`SCORE_COLUMNS`; ``scheme``/``round``/``round_date`` optional and,
+        when present, must agree with the keyword arguments).
+    replace : bool
+        Replace a stored round whose content differs (old rows go to ``audit``).
+    reason : str
+        Reason recorded in the audit table when replacing.
+
+    Returns
+    -------
+    StoreOutcome
+
+    Raises
+    ------
+    ArchiveError
+        The round is archived with different content and ``replace`` is false.
+    InputError
+        Missing columns or bad values in ``scores``.
+    """
+    scheme, round_id, date = _check_keys(scheme, round_id, round_date)
+    missing = [c for c in _ROW_FIELDS if c not in scores.columns]
+    if missing:
+        raise InputError.single(f"scores table: missing columns: {', '.join(missing)}")
+    problems: list[Problem] = []
+    for col, want in (("scheme", scheme), ("round", round_id), ("round_date", date)):
+        if col in scores.columns:
+            got = {(_parse_date(v) if col == "round_date" else _unquote(str(v).strip()))
+                   for v in scores[col]}
+            if got - {want}:
+                problems.append(Problem(message=f"scores table column {col!r} holds "
+                                        f"{sorted(map(str, got - {want}))}, not {want!r}"))
+    rows, row_problems = _normalise_rows(scores.to_dict(orient="records"), file="scores table",
+                                         sheet=None, first_row=1)
+    problems += row_problems
+    if problems:
+        raise InputError(problems, summary="the scores table has problems")
+    settings_json = _canonical_json(settings)
+    tables = ([("precision", r) for r in _table_rows(precision)]
+              + [("statistics", r) for r in _table_rows(statistics)])
+    title = str(title or "")
+    new_hash = _digest(date, rows, title=title, settings=settings_json, tables=tables)
+    label = f"round {round_id!r} of scheme {scheme!r}"
+    with _connect(path, create=True) as conn, _transaction(conn):
+        old = _round_record(conn, scheme, round_id)
+        status: Status = "added"
+        if old is not None:
+            old_hash = _digest(old["round_date"], _existing_lab_rows(conn, scheme, round_id, None),
+                               title=old["title"], settings=old["settings"],
+                               tables=_round_tables(conn, scheme, round_id))
+            if old_hash == new_hash:
+                return StoreOutcome(status="unchanged", rows=len(rows), scheme=scheme,
+                                    round_id=round_id,
+                                    message=f"{label} is already archived with identical "
+                                            "content; nothing changed")
+            if not replace:
+                raise ArchiveError(
+                    f"{label} is already archived (stored {old['stored_at']}) with different "
+                    "content; refused. Pass replace=True (--replace) to replace it; the old rows "
+                    "are then kept in the audit table")
+            _audit(conn, scheme=scheme, round_id=round_id, lab=None, reason=reason,
+                   whole_round=True)
+            conn.execute("DELETE FROM scores WHERE scheme = ? AND round_id = ?", (scheme, round_id))
+            conn.execute("DELETE FROM round_tables WHERE scheme = ? AND round_id = ?",
+                         (scheme, round_id))
+            conn.execute("DELETE FROM rounds WHERE scheme = ? AND round_id = ?", (scheme, round_id))
+            status = "replaced"
+        conn.execute("INSERT INTO rounds (scheme, round_id, round_date, title, settings, stored_at, "
+                     "origin) VALUES (?, ?, ?, ?, ?, ?, 'coordinator')",
+                     (scheme, round_id, date, title, settings_json, _now()))
+        _insert_scores(conn, scheme, round_id, rows)
+        conn.executemany(
+            "INSERT INTO round_tables (scheme, round_id, kind, position, row) VALUES (?, ?, ?, ?, ?)",
+            [(scheme, round_id, kind, i, r) for kind, frame in
+             (("statistics", statistics), ("precision", precision))
+             for i, r in enumerate(_table_rows(frame))])
+    verb = "replaced" if status == "replaced" else "added"
+    extra = "; the previous content is kept in the audit table" if status == "replaced" else ""
+    return StoreOutcome(status=status, rows=len(rows), scheme=scheme, round_id=round_id,
+                        message=f"{label}: {verb} {len(rows)} score rows{extra}")
+
+
+# --------------------------------------------------------------------------- lab side: files
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class _LabRows:
+    """Rows of one lab in one round, read from a file."""
+
+    scheme: str
+    round_id: str
+    round_date: str
+    lab: str
+    title: str
+    rows: tuple[tuple, ...]
+
+
+def _read_csv(file: Path) -> tuple[list[dict[str, object]], str | None, int]:
+    try:
+        frame = pd.read_csv(file, dtype=str, keep_default_na=False, encoding="utf-8-sig")
+    except (UnicodeDecodeError, pd.errors.ParserError, pd.errors.EmptyDataError) as exc:
+        raise InputError.single(f"cannot be read as a scores.csv table ({exc})",
+                                file=str(file)) from None
+    missing = [c for c in SCORE_COLUMNS if c not in frame.columns]
+    if missing:
+        raise InputError.single(f"not a roundscore scores.csv: missing columns: {', '.join(missing)}",
+                                file=str(file))
+    return frame.to_dict(orient="records"), None, 2
+
+
+def _read_workbook(file: Path) -> tuple[list[dict[str, object]], dict[str, object], int]:
+    from python_calamine import CalamineWorkbook
+
+    try:
+        book = CalamineWorkbook.from_path(str(file))
+    except Exception as exc:  # calamine raises its own error types
+        raise InputError.single(f"cannot be read as a workbook ({exc})", file=str(file)) from None
+    for name in ("data", "round"):
+        if name not in book.sheet_names:
+            raise InputError.single(f"not a roundscore lab workbook: no sheet {name!r}",
+                                    file=str(file))
+    cells = book.get_sheet_by_name("data").to_python()
+    header = [str(c).strip() for c in cells[0]] if cells else []
+    missing = [c for c in SCORE_COLUMNS if c not in header]
+    if missing:
+        raise InputError.single(f"missing columns: {', '.join(missing)}", file=str(file),
+                                sheet="data")
+    records = [dict(zip(header, r)) for r in cells[1:] if any(v not in ("", None) for v in r)]
+    meta: dict[str, object] = {}
+    for r in book.get_sheet_by_name("round").to_python()[1:]:
+        if len(r) >= 2 and str(r[0]).strip():
+            value = r[1]
+            meta[str(r[0]).strip()] = _unquote(value.strip()) if isinstance(value, str) else value
+    if str(meta.get("generator", "")).strip() != "roundscore":
+        raise InputError.single("not a roundscore lab workbook: key 'generator' is not 'roundscore'",
+                                file=str(file), sheet="round", value=meta.get("generator"))
+    try:
+        fmt = float(meta.get("format"))  # type: ignore[arg-type]
+    except (TypeError, ValueError):
+        fmt = math.nan
+    if fmt != _WORKBOOK_FORMAT:
+        raise InputError.single(f"workbook format {meta.get('format')!r} is not supported "
+                                f"(this version reads format {_WORKBOOK_FORMAT})",
+                                file=str(file), sheet="round")
+    return records, meta, 2
+
+
+def _read_lab_file(file: Path, lab: str | None) -> list[_LabRows]:
+    """Read a ``scores.csv`` or ``labs/LAB.xlsx`` into per (scheme, round, lab) groups."""
+    if not file.is_file():
+        raise InputError.single("file not found", file=str(file))
+    suffix = file.suffix.lower()
+    meta: dict[str, object] | None
+    if suffix in (".csv", ".txt"):
+        records, meta, first = _read_csv(file)
+        sheet = None
+    elif suffix in (".xlsx", ".xlsm"):
+        records, meta, first = _read_workbook(file)
+        sheet = "data"
+    else:
+        raise InputError.single("neither a roundscore scores.csv nor a lab workbook "
+                                "(.csv or .xlsx expected)", file=str(file))
+    rows, problems = _normalise_rows(records, file=str(file), sheet=sheet, first_row=first)
+    keys = []
+    for i, rec in enumerate(records):
+        scheme, round_id = _text(rec.get("scheme")), _text(rec.get("round"))
+        date = _parse_date(rec.get("round_date"))
+        if not scheme or not round_id or date is None:
+            problems.append(Problem(message="scheme, round and an ISO round_date are required",
+                                    file=str(file), sheet=sheet, row=first + i,
+                                    value=[scheme, round_id, rec.get("round_date")]))
+        keys.append((scheme, round_id, date))
+    if meta is not None:
+        held = {"scheme": {k[0] for k in keys}, "round": {k[1] for k in keys},
+                "lab": {str(r[0]) for r in rows}}
+        for key, got in held.items():
+            want = _text(meta.get(key))
+            if not want or got - {want}:
+                problems.append(Problem(message=f"sheet 'round' gives {key} {want!r} but the "
+                                        f"data sheet holds {sorted(got)}", file=str(file),
+                                        sheet="round"))
+    if problems:
+        raise InputError(problems, summary=f"{file}: the scores have problems")
+    if not rows:
+        raise InputError.single("holds no score rows", file=str(file), sheet=sheet)
+    labs = sorted({r[0] for r in rows})
+    if lab is None and len(labs) > 1:
+        shown = ", ".join(labs[:10]) + (" ..." if len(labs) > 10 else "")
+        raise InputError.single(f"holds {len(labs)} labs ({shown}); pass --lab to choose yours",
+                                file=str(file))
+    if lab is not None and lab not in labs:
+        raise InputError.single(f"has no rows for lab {lab!r} (labs in the file: "
+                                f"{', '.join(labs[:10])})", file=str(file))
+    chosen = lab if lab is not None else labs[0]
+    groups: dict[tuple[str, str, str], list[tuple]] = {}
+    for key, row in zip(keys, rows):
+        if row[0] == chosen:
+            groups.setdefault(key, []).append(row)  # type: ignore[arg-type]
+    if len({(s, r) for s, r, _ in groups}) != len(groups):
+        raise InputError.single("one round carries two different round dates", file=str(file))
+    title = str(meta.get("title") or "") if meta else ""
+    return [_LabRows(scheme=s, round_id=r, round_date=d, lab=chosen, title=title, rows=tuple(v))
+            for (s, r, d), v in sorted(groups.items())]
+
+
+def _store_lab_rows(conn: sqlite3.Connection, item: _LabRows, *, replace: bool, file: str,
+                    reason: str) -> StoreOutcome:
+    label = f"lab {item.lab!r}, round {item.round_id!r} of scheme {item.scheme!r}"
+    common = dict(rows=len(item.rows), scheme=item.scheme, round_id=item.round_id,
+                  lab=item.lab, file=file)
+    old_round = _round_record(conn, item.scheme, item.round_id)
+    old_rows = _existing_lab_rows(conn, item.scheme, item.round_id, item.lab)
+    status: Status = "added"
+    if old_round is not None and (old_rows or old_round["round_date"] != item.round_date):
+        old_hash = _digest(old_round["round_date"], old_rows)
+        if old_hash == _digest(item.round_date, item.rows):
+            return StoreOutcome(status="unchanged", message=f"{label} is already archived with "
+                                "identical content; nothing changed", **common)
+        if not replace:
+            what = ("a different round date "
+                    f"({old_round['round_date']} archived, {item.round_date} in the file)"
+                    if old_round["round_date"] != item.round_date else "different scores")
+            raise ArchiveError(f"{file}: {label} is already archived with {what}; refused. "
+                               "Use --replace to replace it (the old rows are kept in the audit "
+                               "table)")
+        _audit(conn, scheme=item.scheme, round_id=item.round_id, lab=item.lab, reason=reason,
+               whole_round=False)
+        conn.execute("DELETE FROM scores WHERE scheme = ? AND round_id = ? AND lab = ?",
+                     (item.scheme, item.round_id, item.lab))
+        conn.execute("UPDATE rounds SET round_date = ? WHERE scheme = ? AND round_id = ?",
+                     (item.round_date, item.scheme, item.round_id))
+        status = "replaced"
+    if old_round is None:
+        conn.execute("INSERT INTO rounds (scheme, round_id, round_date, title, settings, stored_at, "
+                     "origin) VALUES (?, ?, ?, ?, '{}', ?, 'lab')",
+                     (item.scheme, item.round_id, item.round_date, item.title, _now()))
+    elif item.title and not old_round["title"]:
+        conn.execute("UPDATE rounds SET title = ? WHERE scheme = ? AND round_id = ?",
+                     (item.title, item.scheme, item.round_id))
+    _insert_scores(conn, item.scheme, item.round_id, item.rows)
+    if status == "replaced":
+        msg = f"{label}: replaced {len(item.rows)} rows; the previous rows are kept in the audit table"
+    else:
+        msg = f"{label}: added {len(item.rows)} rows"
+    return StoreOutcome(status=status, message=msg, **common)
+
+
+def add_files(path: str | os.PathLike[str] | None, files: Iterable[str | os.PathLike[str]], *,
+              lab: str | None = None, replace: bool = False,
+              reason: str = "replaced on request (--replace)") -> list[StoreOutcome]:
+    """Add a lab's rows from ``scores.csv`` files or per-lab workbooks (lab side).
+
+    Each file is read completely and validated before anything is written, and
+    is then stored in one transaction (all of its rows or none).  Files are
+    processed in order; an error stops at that file, earlier files stay stored.
+
+    Parameters
+    ----------
+    path : path or None
+        Archive file.
+    files : iterable of paths
+        ``scores.csv`` (with ``lab`` when it holds several labs) or ``LAB.xlsx``.
+    lab : str, optional
+        The lab code to take from the files.
+    replace : bool
+        Replace rows archived with different content (old rows go to ``audit``).
+    reason : str
+        Reason recorded in the audit table when replacing.
+
+    Returns
+    -------
+    list of StoreOutcome
+        One per (file, scheme, round).
+
+    Raises
+    ------
+    InputError
+        A file is missing, of an unknown kind, lacks columns or has bad values.
+    ArchiveError
+        Rows already archived differ and ``replace`` is false.
+    """
+    outcomes: list[StoreOutcome] = []
+    for name in files:
+        file = Path(name)
+        items = _read_lab_file(file, lab)
+        with _connect(path, create=True) as conn, _transaction(conn):
+            for item in items:
+                outcomes.append(_store_lab_rows(conn, item, replace=replace, file=str(file),
+                                                reason=reason))
+    return outcomes
+
+
+# --------------------------------------------------------------------------- queries
+
+#: Columns of :func:`lab_history`'s frame.
+HISTORY_COLUMNS: tuple[str, ...] = (
+    "scheme", "round", "round_date", "title", "lab", "measurand", "unit", "n_replicates",
+    "result", "assigned", "u_assigned", "sigma_pt", "z", "z_prime", "zeta", "en", "d",
+    "d_percent", "signal", "note", "score", "score_value",
+)
+
+
+def _date_arg(name: str, value: str | _dt.date | None) -> str | None:
+    if value is None:
+        return None
+    date = _parse_date(value)
+    if date is None:
+        raise InputError.single(f"{name}: not an ISO date YYYY-MM-DD", value=value)
+    return date
+
+
+def lab_history(path: str | os.PathLike[str] | None, *, lab: str | Sequence[str],
+                scheme: str | None = None, measurand: str | None = None,
+                since: str | _dt.date | None = None, before_date: str | _dt.date | None = None,
+                last: int | None = None) -> pd.DataFrame:
+    """One lab's archived scores, one row per round x measurand.
+
+    Parameters
+    ----------
+    path : path or None
+        Archive file.
+    lab : str or sequence of str
+        Lab code(s); give several when the lab has different codes in different schemes.
+    scheme, measurand : str, optional
+        Keep only this scheme / measurand.
+    since : date or ISO str, optional
+        Keep rounds dated on or after this day.
+    before_date : date or ISO str, optional
+        Keep rounds dated strictly before this day (the pipeline passes the
+        current round's date to show the earlier rounds).
+    last : int, optional
+        Keep only the last ``last`` rounds of each scheme x lab x measurand series.
+
+    Returns
+    -------
+    pandas.DataFrame
+        Columns :data:`HISTORY_COLUMNS`; ``score`` is the round's chosen score
+        name and ``score_value`` its value.  Ordered by round date, then round,
+        scheme, lab and measurand.  Empty (with these columns) when nothing matches.
+    """
+    labs = [lab] if isinstance(lab, str) else list(lab)
+    if last is not None and (not isinstance(last, int) or last < 1):
+        raise InputError.single("last: must be a whole number of at least 1", value=last)
+    clauses = [f"s.lab IN ({', '.join('?' * len(labs))})"]
+    args: list[object] = list(labs)
+    for col, value in (("s.scheme", scheme), ("s.measurand", measurand)):
+        if value is not None:
+            clauses.append(f"{col} = ?")
+            args.append(value)
+    lo, hi = _date_arg("since", since), _date_arg("before_date", before_date)
+    if lo is not None:
+        clauses.append("r.round_date >= ?")
+        args.append(lo)
+    if hi is not None:
+        clauses.append("r.round_date < ?")
+        args.append(hi)
+    sql = (f"SELECT s.scheme, s.round_id AS round, r.round_date, r.title, "
+           f"{', '.join('s.' + c for c in _ROW_FIELDS)} FROM scores s JOIN rounds r "
+           f"ON r.scheme = s.scheme AND r.round_id = s.round_id WHERE {' AND '.join(clauses)} "
+           "ORDER BY r.round_date, s.round_id, s.scheme, s.lab, s.measurand")
+    with _connect(path, create=False) as conn:
+        cur = conn.execute(sql, args)
+        names = [d[0] for d in cur.description]
+        frame = pd.DataFrame(cur.fetchall(), columns=names)
+    if last is not None and len(frame):
+        frame = frame.groupby(["scheme", "lab", "measurand"], sort=False).tail(last)
+    value_col = frame["score"].map(SCORE_VALUE_COLUMN)
+    values = [frame.at[i, c] if isinstance(c, str) else math.nan
+              for i, c in zip(frame.index, value_col)]
+    frame = frame.assign(score_value=pd.Series(values, index=frame.index, dtype=float))
+    for col in _FLOAT_FIELDS:
+        frame[col] = frame[col].astype(float)
+    return frame.loc[:, list(HISTORY_COLUMNS)].reset_index(drop=True)
+
+
+def archived_labs(path: str | os.PathLike[str] | None) -> list[str]:
+    """Every lab code in the archive, sorted."""
+    with _connect(path, create=False) as conn:
+        return [r[0] for r in conn.execute("SELECT DISTINCT lab FROM scores ORDER BY lab")]
