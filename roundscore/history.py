@@ -1,0 +1,639 @@
+"""A lab's scores across rounds: trend rules, combined scores and a bias check.
+
+The rules look at a lab's series of scores for one measurand in one scheme,
+in round-date order.  They are applied to the z-like scores (z, z' and zeta),
+which share the warning limit 2 and action limit 3 of ISO 13528; a series of
+En scores is screened only for action signals, at ``|En| >= 1``, since the
+other rules assume a standard-normal scale.  Rounds without a score
+(``not-scored``) are left out, so "consecutive" means consecutive *scored*
+rounds.
+
+Rules
+-----
+1. An action signal: ``|z| >= 3`` (ISO 13528 [1]_, z-score evaluation).
+2. Two of three consecutive scores beyond 2 on the same side (zone-A rule of
+   the Western Electric handbook [2]_; ISO 13528 [1]_ discusses control charts
+   of z-scores and such run tests in its clause on combining scores over
+   rounds, from memory).  Fires at the point that completes the pattern.
+3. Nine consecutive scores on the same side of zero (Nelson [3]_, test 2;
+   the same run length as test 2 of ISO 7870-2 [4]_, which replaced
+   ISO 8258).  A score exactly 0 ends a run.
+4. Tabular two-sided CUSUM of the scores (Page [5]_) with reference value
+   ``k = 0.5`` and decision interval ``h = 4``, the values Montgomery [6]_
+   recommends for detecting a one-sigma shift (from memory: in-control ARL
+   about 168, ARL about 8.4 for a one-sigma shift).  h = 4 rather than 5 because
+   PT histories are short: a few rounds a year.  After an alarm the sums
+   restart at zero, so a persisting shift alarms again.
+
+The rules run over the whole series; a finding is reported when it fires at
+one of the last ``window`` scored rounds.  Combined scores and the bias
+check use those last ``window`` scores.
+
+This evaluation supports, and does not replace, the provider's documented
+procedures, ISO/IEC 17043 and the accreditation body's rules.
+
+References
+----------
+.. [1] ISO 13528:2022, Statistical methods for use in proficiency testing by
+   interlaboratory comparison.
+.. [2] Western Electric Co., Statistical Quality Control Handbook, 1956.
+.. [3] L. S. Nelson, "The Shewhart control chart - tests for special causes",
+   Journal of Quality Technology 16 (1984) 237-239.
+.. [4] ISO 7870-2:2013, Control charts - Part 2: Shewhart control charts.
+.. [5] E. S. Page, "Continuous inspection schemes", Biometrika 41 (1954) 100-115.
+.. [6] D. C. Montgomery, Introduction to Statistical Quality Control, Wiley
+   (chapter on the cumulative sum control chart).
+.. [7] M. Thompson, S. L. R. Ellison, R. Wood, "The International Harmonized
+   Protocol for the proficiency testing of analytical chemistry laboratories",
+   Pure Appl. Chem. 78 (2006) 145-196.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, fields
+from typing import Literal, Sequence
+
+import numpy as np
+import pandas as pd
+from scipy import stats
+
+from roundscore.errors import InputError, StatisticsError
+
+__all__ = [
+    "ACTION_LIMIT", "WARNING_LIMIT", "EN_ACTION_LIMIT", "RUN_LENGTH", "CUSUM_K", "CUSUM_H",
+    "DEFAULT_WINDOW", "COMBINED_CAUTION", "DISCLAIMER",
+    "RuleFinding", "CusumResult", "CombinedScores", "BiasCheck", "SeriesCheck", "HistoryCheck",
+    "action_signals", "two_of_three", "same_side_runs", "cusum", "combined_scores",
+    "bias_check", "check_series", "check_history",
+]
+
+#: Action limit for z, z' and zeta: ``|z| >= 3`` (ISO 13528:2022, evaluation of z-scores).
+ACTION_LIMIT = 3.0
+#: Warning limit: ``|z| > 2`` (ISO 13528:2022; Western Electric zone A starts at 2 sigma).
+WARNING_LIMIT = 2.0
+#: Action limit for En: ``|En| >= 1`` (ISO 13528:2022, En numbers).
+EN_ACTION_LIMIT = 1.0
+#: Run length of rule 3 (Nelson 1984 test 2; ISO 7870-2:2013 test 2).
+RUN_LENGTH = 9
+#: CUSUM reference value k, in units of the score's SD (Montgomery, from memory).
+CUSUM_K = 0.5
+#: CUSUM decision interval h (Montgomery recommends 4 or 5, from memory; 4 chosen).
+CUSUM_H = 4.0
+#: Default number of most recent scored rounds a finding must fall in (the score sheets show 8).
+DEFAULT_WINDOW = 8
+#: Fewest scores for the bias check (common practice: fewer give the t test almost no power).
+MIN_BIAS_N = 3
+#: Mean of |z| for a standard normal z: sqrt(2/pi) (a property of the normal distribution).
+EXPECTED_MEAN_ABS_Z = math.sqrt(2.0 / math.pi)
+#: Significance level of the bias check (common practice).
+BIAS_ALPHA = 0.05
+
+COMBINED_CAUTION = (
+    "Combined scores can hide a single bad result behind several good ones, mix different "
+    "measurands and methods, and depend on how many rounds are combined; the IUPAC harmonized "
+    "protocol (Thompson, Ellison, Wood 2006, Pure Appl. Chem. 78:145) discourages their use "
+    "for judging a laboratory. Look at the individual scores first.")
+DISCLAIMER = (
+    "This evaluation supports, and does not replace, the provider's documented procedures, "
+    "ISO/IEC 17043 and the accreditation body's rules.")
+
+Side = Literal["high", "low"]
+RuleNumber = Literal[1, 2, 3, 4]
+RULE_NAMES: dict[int, str] = {
+    1: "action signal",
+    2: "two of three beyond 2 on one side",
+    3: f"{RUN_LENGTH} in a row on one side",
+    4: "CUSUM",
+}
+RULE_SOURCES: dict[int, str] = {
+    1: "ISO 13528:2022, z-score action signal",
+    2: "Western Electric Statistical Quality Control Handbook (1956), zone A rule",
+    3: "Nelson (1984) J. Qual. Technol. 16:237, test 2; ISO 7870-2:2013 test 2",
+    4: "Page (1954) Biometrika 41:100; k = 0.5, h = 4 after Montgomery, Introduction to "
+       "Statistical Quality Control (from memory)",
+}
+
+
+def _to_plain(value: object) -> object:
+    if isinstance(value, np.ndarray):
+        return [_to_plain(v) for v in value.tolist()]
+    if isinstance(value, (list, tuple)):
+        return [_to_plain(v) for v in value]
+    if hasattr(value, "to_dict") and not isinstance(value, (pd.DataFrame, pd.Series)):
+        return value.to_dict()
+    if isinstance(value, np.generic):
+        value = value.item()
+    if isinstance(value, float) and not math.isfinite(value):
+        return None
+    return value
+
+
+class _AsDict:
+    __slots__ = ()
+
+    def to_dict(self) -> dict[str, object]:
+        """The fields as JSON-ready values (arrays as lists, non-finite numbers as None)."""
+        return {f.name: _to_plain(getattr(self, f.name)) for f in fields(self)}  # type: ignore[arg-type]
+
+
+def _series(z: Sequence[float] | np.ndarray, name: str = "z") -> np.ndarray:
+    """Scores as a 1-D float array; NaN or infinite values are refused (drop them first)."""
+    arr = np.asarray(z, dtype=float)
+    if arr.ndim != 1:
+        raise StatisticsError(f"{name}: expected a 1-D series of scores, got shape {arr.shape}")
+    if not np.all(np.isfinite(arr)):
+        bad = np.flatnonzero(~np.isfinite(arr)).tolist()
+        raise StatisticsError(f"{name}: missing or infinite scores at positions {bad}; "
+                              "leave unscored rounds out of the series")
+    return arr
+
+
+# --------------------------------------------------------------------------- rules on arrays
+
+def action_signals(z: Sequence[float] | np.ndarray, *, limit: float = ACTION_LIMIT) -> np.ndarray:
+    """Rule 1: positions where ``|z| >= limit``.
+
+    Parameters
+    ----------
+    z : array_like
+        Scores in round order.
+    limit : float
+        3 for z, z' and zeta; :data:`EN_ACTION_LIMIT` (1) for En (ISO 13528:2022).
+
+    Returns
+    -------
+    numpy.ndarray of int
+    """
+    return np.flatnonzero(np.abs(_series(z)) >= limit)
+
+
+def two_of_three(z: Sequence[float] | np.ndarray, *,
+                 limit: float = WARNING_LIMIT) -> list[tuple[int, Side]]:
+    """Rule 2: two of three consecutive scores beyond ``limit`` on the same side.
+
+    Returns each position ``i`` where ``z[i]`` is beyond the limit and at least
+    one of ``z[i-2], z[i-1]`` is beyond it on the same side (the point that
+    completes the pattern).  At the start of a series the window is shorter,
+    so two of the first two also fire.  "Beyond" is strict (``> 2``), as zone A
+    of the Western Electric handbook begins at two sigma.
+
+    References
+    ----------
+    Western Electric Co., Statistical Quality Control Handbook (1956).
+    """
+    arr = _series(z)
+    found: list[tuple[int, Side]] = []
+    for i in range(1, arr.size):
+        window = arr[max(0, i - 2):i]
+        if arr[i] > limit and np.any(window > limit):
+            found.append((i, "high"))
+        elif arr[i] < -limit and np.any(window < -limit):
+            found.append((i, "low"))
+    return found
+
+
+def same_side_runs(z: Sequence[float] | np.ndarray, *,
+                   length: int = RUN_LENGTH) -> list[tuple[int, int, Side]]:
+    """Rule 3: runs of at least ``length`` consecutive scores of the same sign.
+
+    Returns
+    -------
+    list of (start, end, side)
+        Inclusive positions of each maximal run; the rule first fires at
+        ``start + length - 1`` and keeps firing to ``end``.  A score of exactly
+        0 is on neither side and ends a run.
+
+    References
+    ----------
+    L. S. Nelson, J. Qual. Technol. 16 (1984) 237, test 2; ISO 7870-2:2013 test 2.
+    """
+    if length < 2:
+        raise StatisticsError(f"run length must be at least 2, got {length}")
+    signs = np.sign(_series(z))
+    runs: list[tuple[int, int, Side]] = []
+    start = 0
+    for i in range(1, signs.size + 1):
+        if i == signs.size or signs[i] != signs[start]:
+            if signs[start] != 0 and i - start >= length:
+                runs.append((start, i - 1, "high" if signs[start] > 0 else "low"))
+            start = i
+    return runs
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class CusumResult(_AsDict):
+    """Tabular two-sided CUSUM of a score series.
+
+    Attributes
+    ----------
+    upper, lower : numpy.ndarray
+        ``C+_i = max(0, C+_{i-1} + z_i - k)`` and ``C-_i = max(0, C-_{i-1} - z_i - k)``
+        after each point (before any restart).
+    alarms : tuple of (int, str)
+        Positions where ``C+ > h`` ("high") or ``C- > h`` ("low"); both sums
+        restart at 0 after an alarm when ``restart`` is true.
+    k, h : float
+        Reference value and decision interval, in units of the score.
+    restart : bool
+        Whether the sums restart after an alarm.
+    """
+
+    upper: np.ndarray
+    lower: np.ndarray
+    alarms: tuple[tuple[int, Side], ...]
+    k: float
+    h: float
+    restart: bool
+
+
+def cusum(z: Sequence[float] | np.ndarray, *, k: float = CUSUM_K, h: float = CUSUM_H,
+          restart: bool = True) -> CusumResult:
+    """Rule 4: tabular two-sided CUSUM (Page 1954) of scores with target 0 and SD 1.
+
+    z-scores are by construction on a scale where the target is 0 and the SD
+    is about 1 when sigma_pt matches the lab's performance; ``k`` and ``h`` are
+    therefore used as they are, without rescaling.
+
+    References
+    ----------
+    E. S. Page, Biometrika 41 (1954) 100-115; D. C. Montgomery, Introduction to
+    Statistical Quality Control (tabular CUSUM, k = 0.5, h = 4 or 5; from memory).
+    """
+    arr = _series(z)
+    if not (k >= 0 and h > 0):
+        raise StatisticsError(f"CUSUM needs k >= 0 and h > 0, got k = {k}, h = {h}")
+    upper = np.zeros(arr.size)
+    lower = np.zeros(arr.size)
+    alarms: list[tuple[int, Side]] = []
+    hi = lo = 0.0
+    for i, value in enumerate(arr):
+        hi = max(0.0, hi + value - k)
+        lo = max(0.0, lo - value - k)
+        upper[i], lower[i] = hi, lo
+        if hi > h or lo > h:
+            alarms.append((i, "high" if hi > h else "low"))
+            if restart:
+                hi = lo = 0.0
+    return CusumResult(upper=upper, lower=lower, alarms=tuple(alarms), k=k, h=h, restart=restart)
+
+
+# --------------------------------------------------------------------------- combined, bias
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class CombinedScores(_AsDict):
+    """Combined scores over a window of z-like scores.
+
+    Attributes
+    ----------
+    n : int
+        Number of scores combined.
+    rsz : float
+        Rescaled sum of z, ``sum(z) / sqrt(n)``; standard normal when the z are.
+    rsz_p_value : float
+        Two-sided normal p-value of ``rsz``.
+    ssz : float
+        Sum of squared z; chi-squared with ``n`` degrees of freedom when the z
+        are independent standard normal.
+    ssz_p_value : float
+        Upper-tail p-value ``P(chi2_n >= ssz)``.
+    ssz_critical_5, ssz_critical_1 : float
+        Upper 5 % and 1 % points of chi-squared with ``n`` degrees of freedom.
+    mean_abs_z : float
+        Mean of ``|z|``; about 0.80 (``sqrt(2/pi)``) for standard normal z.
+    caution : str
+        Why combined scores must not be used alone (:data:`COMBINED_CAUTION`).
+    """
+
+    n: int
+    rsz: float
+    rsz_p_value: float
+    ssz: float
+    ssz_p_value: float
+    ssz_critical_5: float
+    ssz_critical_1: float
+    mean_abs_z: float
+    caution: str = COMBINED_CAUTION
+
+
+def combined_scores(z: Sequence[float] | np.ndarray) -> CombinedScores:
+    """RSZ, SSZ (against chi-squared with n df) and mean |z| of a set of z-scores.
+
+    Assumes the scores are independent and, for a lab performing as sigma_pt
+    expects, standard normal; neither holds exactly (sigma_pt is a fitness for
+    purpose value, and scores of one round share the assigned value).
+
+    References
+    ----------
+    M. Thompson, S. L. R. Ellison, R. Wood, Pure Appl. Chem. 78 (2006) 145-196
+    (harmonized protocol; combined scores and their cautions).
+    """
+    arr = _series(z)
+    if arr.size == 0:
+        raise StatisticsError("combined scores need at least one score")
+    n = int(arr.size)
+    rsz = float(np.sum(arr) / math.sqrt(n))
+    ssz = float(np.sum(arr * arr))
+    chi2 = stats.chi2(n)
+    return CombinedScores(
+        n=n, rsz=rsz, rsz_p_value=float(2.0 * stats.norm.sf(abs(rsz))), ssz=ssz,
+        ssz_p_value=float(chi2.sf(ssz)), ssz_critical_5=float(chi2.isf(0.05)),
+        ssz_critical_1=float(chi2.isf(0.01)), mean_abs_z=float(np.mean(np.abs(arr))))
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class BiasCheck(_AsDict):
+    """One-sample t test of a lab's z-scores against 0.
+
+    Attributes
+    ----------
+    n, df : int
+        Number of scores and degrees of freedom ``n - 1``.
+    mean_z, sd_z : float
+        Mean and sample standard deviation of the scores.
+    t, p_value : float
+        t statistic and two-sided p-value.
+    ci_low, ci_high : float
+        Two-sided ``1 - alpha`` confidence interval of the mean z.
+    alpha : float
+        Significance level of the conclusion.
+    biased : bool
+        ``p_value < alpha``.
+    conclusion : str
+        The result in words.
+    """
+
+    n: int
+    df: int
+    mean_z: float
+    sd_z: float
+    t: float
+    p_value: float
+    ci_low: float
+    ci_high: float
+    alpha: float
+    biased: bool
+    conclusion: str
+
+
+def bias_check(z: Sequence[float] | np.ndarray, *, alpha: float = BIAS_ALPHA) -> BiasCheck:
+    """Does the lab's mean z differ from 0?  One-sample t test (scipy.stats.ttest_1samp).
+
+    Assumes independent, roughly normal scores with a common spread; a
+    persistent mean z away from 0 points to a bias of about ``mean_z``
+    times sigma_pt.
+
+    Raises
+    ------
+    StatisticsError
+        Fewer than :data:`MIN_BIAS_N` scores, or all scores equal.
+    """
+    arr = _series(z)
+    if arr.size < MIN_BIAS_N:
+        raise StatisticsError(f"the bias check needs at least {MIN_BIAS_N} scores, got {arr.size}")
+    if not 0 < alpha < 1:
+        raise StatisticsError(f"alpha must be between 0 and 1, got {alpha}")
+    mean = float(np.mean(arr))
+    sd = float(np.std(arr - mean, ddof=1))
+    if sd == 0.0:
+        raise StatisticsError("all scores are equal; the t test needs some spread")
+    res = stats.ttest_1samp(arr, 0.0)
+    ci = res.confidence_interval(1.0 - alpha)
+    p, t, df = float(res.pvalue), float(res.statistic), int(arr.size - 1)
+    biased = p < alpha
+    numbers = f"t = {t:.2f}, df = {df}, p = {p:.3g}"
+    if biased:
+        text = (f"the mean z ({mean:+.2f}) differs from 0 ({numbers}): a persistent bias of "
+                f"about {mean:+.2f} sigma_pt is likely; look for its cause")
+    else:
+        text = (f"no evidence at the {alpha:.0%} level that the mean z ({mean:+.2f}) differs "
+                f"from 0 ({numbers})")
+    return BiasCheck(n=int(arr.size), df=df, mean_z=mean, sd_z=sd, t=t, p_value=p,
+                     ci_low=float(ci.low), ci_high=float(ci.high), alpha=alpha, biased=biased,
+                     conclusion=text)
+
+
+# --------------------------------------------------------------------------- series and history
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class RuleFinding(_AsDict):
+    """A rule that fired in a series.
+
+    Attributes
+    ----------
+    rule : int
+        1 action signal, 2 two of three beyond 2, 3 run on one side, 4 CUSUM.
+    name, source : str
+        The rule's name and its published source.
+    positions : tuple of int
+        Positions in the series where the rule fires.
+    rounds, dates : tuple of str
+        The rounds and round dates at those positions.
+    side : {"high", "low"} or None
+        Direction, for rules that have one.
+    message : str
+        What fired, in words.
+    """
+
+    rule: int
+    name: str
+    source: str
+    positions: tuple[int, ...]
+    rounds: tuple[str, ...]
+    dates: tuple[str, ...]
+    side: Side | None
+    message: str
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class SeriesCheck(_AsDict):
+    """The rules, combined scores and bias check of one scheme x lab x measurand series.
+
+    Attributes
+    ----------
+    scheme, lab, measurand : str
+        The series.
+    family : {"z-like", "en"}
+        z, z' and zeta are checked together; En only for action signals.
+    rounds, dates : tuple of str
+        Scored rounds in order.
+    scores : tuple of str
+        The score name of each round.
+    values : numpy.ndarray
+        The score values.
+    window : int
+        Number of most recent rounds the findings, combined scores and bias check use.
+    findings : tuple of RuleFinding
+        Rules that fired within the window.
+    cusum : CusumResult or None
+        The CUSUM over the whole series (z-like series only).
+    combined : CombinedScores or None
+        Over the window (z-like series only).
+    bias : BiasCheck or None
+        Over the window, when there are enough scores.
+    notes : tuple of str
+        What was not computed, and why.
+    """
+
+    scheme: str
+    lab: str
+    measurand: str
+    family: Literal["z-like", "en"]
+    rounds: tuple[str, ...]
+    dates: tuple[str, ...]
+    scores: tuple[str, ...]
+    values: np.ndarray
+    window: int
+    findings: tuple[RuleFinding, ...]
+    cusum: CusumResult | None
+    combined: CombinedScores | None
+    bias: BiasCheck | None
+    notes: tuple[str, ...]
+
+    @property
+    def fired(self) -> bool:
+        """Whether any rule fired within the window."""
+        return bool(self.findings)
+
+
+def _finding(rule: int, positions: Sequence[int], side: Side | None, detail: str,
+             rounds: Sequence[str], dates: Sequence[str]) -> RuleFinding:
+    pos = tuple(int(p) for p in positions)
+    where = ", ".join(f"{rounds[p]} ({dates[p]})" for p in pos)
+    return RuleFinding(rule=rule, name=RULE_NAMES[rule], source=RULE_SOURCES[rule], positions=pos,
+                       rounds=tuple(rounds[p] for p in pos), dates=tuple(dates[p] for p in pos),
+                       side=side, message=f"rule {rule} ({RULE_NAMES[rule]}): {detail} at {where}")
+
+
+def check_series(values: Sequence[float] | np.ndarray, *, rounds: Sequence[str],
+                 dates: Sequence[str], scores: Sequence[str] | None = None,
+                 family: Literal["z-like", "en"] = "z-like", window: int | None = DEFAULT_WINDOW,
+                 scheme: str = "", lab: str = "", measurand: str = "") -> SeriesCheck:
+    """Apply rules 1-4, combined scores and the bias check to one series.
+
+    Parameters
+    ----------
+    values : array_like
+        Score values in round order, unscored rounds left out.
+    rounds, dates : sequence of str
+        Round identifiers and dates, aligned with ``values``.
+    scores : sequence of str, optional
+        Score names (default all "z").
+    family : {"z-like", "en"}
+        "en": only rule 1 at ``|En| >= 1``.
+    window : int or None
+        Report findings at the last ``window`` points; None: the whole series.
+    """
+    arr = _series(values)
+    if len(rounds) != arr.size or len(dates) != arr.size:
+        raise StatisticsError("rounds and dates must have one entry per score")
+    if family not in ("z-like", "en"):
+        raise InputError.single("family: allowed values are 'z-like', 'en'", value=family)
+    if window is not None and window < 1:
+        raise InputError.single("window: must be at least 1", value=window)
+    n = int(arr.size)
+    w = n if window is None else min(int(window), n)
+    first = n - w
+    rounds, dates = [str(r) for r in rounds], [str(d) for d in dates]
+    recent = lambda positions: [p for p in positions if p >= first]  # noqa: E731
+    found: list[RuleFinding] = []
+    notes: list[str] = []
+    limit = ACTION_LIMIT if family == "z-like" else EN_ACTION_LIMIT
+    name = "|z|" if family == "z-like" else "|En|"
+    hits = recent(action_signals(arr, limit=limit).tolist())
+    if hits:
+        found.append(_finding(1, hits, None, f"{name} >= {limit:g}", rounds, dates))
+    cus = combined = bias = None
+    if family == "en":
+        notes.append("rules 2-4, combined scores and the bias check are not applied to En "
+                     "numbers (they assume a standard-normal score)")
+    else:
+        for side in ("high", "low"):
+            pos = recent([p for p, s in two_of_three(arr) if s == side])
+            if pos:
+                found.append(_finding(2, pos, side, f"two of three {'above +' if side == 'high' else 'below -'}"
+                                      f"{WARNING_LIMIT:g}", rounds, dates))
+        for start, end, side in same_side_runs(arr):
+            pos = recent(range(start + RUN_LENGTH - 1, end + 1))
+            if pos:
+                found.append(_finding(3, pos, side, f"{end - start + 1} scores in a row "
+                                      f"{'above' if side == 'high' else 'below'} 0 from "
+                                      f"{rounds[start]}", rounds, dates))
+        cus = cusum(arr)
+        for side in ("high", "low"):
+            pos = recent([p for p, s in cus.alarms if s == side])
+            if pos:
+                found.append(_finding(4, pos, side, f"{'upper' if side == 'high' else 'lower'} "
+                                      f"CUSUM above h = {CUSUM_H:g} (k = {CUSUM_K:g})",
+                                      rounds, dates))
+        combined = combined_scores(arr[first:])
+        try:
+            bias = bias_check(arr[first:])
+        except StatisticsError as exc:
+            notes.append(f"bias check not computed: {exc}")
+    found.sort(key=lambda f: (f.rule, f.positions))
+    return SeriesCheck(scheme=scheme, lab=lab, measurand=measurand, family=family,
+                       rounds=tuple(rounds), dates=tuple(dates),
+                       scores=tuple(scores) if scores is not None else ("z",) * n, values=arr,
+                       window=w, findings=tuple(found), cusum=cus, combined=combined, bias=bias,
+                       notes=tuple(notes))
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class HistoryCheck(_AsDict):
+    """Every series checked.
+
+    Attributes
+    ----------
+    series : tuple of SeriesCheck
+        One per scheme x lab x measurand x score family, sorted.
+    window : int or None
+        The window used.
+    disclaimer : str
+        :data:`DISCLAIMER`.
+    """
+
+    series: tuple[SeriesCheck, ...]
+    window: int | None
+    disclaimer: str = DISCLAIMER
+
+    @property
+    def fired(self) -> bool:
+        """Whether any rule fired in any series."""
+        return any(s.fired for s in self.series)
+
+
+_Z_LIKE = ("z", "z-prime", "zeta")
+
+
+def check_history(history: pd.DataFrame, *, window: int | None = DEFAULT_WINDOW) -> HistoryCheck:
+    """Run :func:`check_series` over every series of an archive history frame.
+
+    Parameters
+    ----------
+    history : pandas.DataFrame
+        As returned by :func:`roundscore.archive.lab_history` (columns scheme,
+        lab, measurand, round, round_date, score, score_value, signal), ordered by date.
+    window : int or None
+        See :func:`check_series`.
+    """
+    need = ["scheme", "lab", "measurand", "round", "round_date", "score", "score_value", "signal"]
+    missing = [c for c in need if c not in history.columns]
+    if missing:
+        raise InputError.single(f"history table: missing columns: {', '.join(missing)}")
+    scored = history[(history["signal"] != "not-scored")
+                     & np.isfinite(pd.to_numeric(history["score_value"], errors="coerce"))]
+    scored = scored.assign(family=np.where(scored["score"] == "en", "en", "z-like"))
+    unknown = sorted(set(scored["score"]) - set(_Z_LIKE) - {"en"})
+    if unknown:
+        raise InputError.single(f"unknown score names {unknown}; allowed: z, z-prime, zeta, en")
+    scored = scored.sort_values(["round_date", "round"], kind="stable")
+    out = []
+    for (scheme, lab, measurand, family), part in scored.groupby(
+            ["scheme", "lab", "measurand", "family"], sort=True):
+        out.append(check_series(part["score_value"].to_numpy(float),
+                                rounds=part["round"].astype(str).tolist(),
+                                dates=part["round_date"].astype(str).tolist(),
+                                scores=part["score"].tolist(), family=family, window=window,
+                                scheme=str(scheme), lab=str(lab), measurand=str(measurand)))
+    return HistoryCheck(series=tuple(out), window=window)
