@@ -528,8 +528,8 @@ def store_round(path: str | os.PathLike[str] | None, *, scheme: str, round_id: s
             if not replace:
                 raise ArchiveError(
                     f"{label} is already archived (stored {old['stored_at']}) with different "
-                    "content; refused. Pass replace=True (--replace) to replace it; the old rows "
-                    "are then kept in the audit table")
+                    "content; pass replace=True (--replace) to replace it (the old rows are then "
+                    "kept in the audit table)")
             _audit(conn, scheme=scheme, round_id=round_id, lab=None, reason=reason,
                    whole_round=True)
             conn.execute("DELETE FROM scores WHERE scheme = ? AND round_id = ?", (scheme, round_id))
@@ -691,9 +691,8 @@ def _store_lab_rows(conn: sqlite3.Connection, item: _LabRows, *, replace: bool, 
             what = ("a different round date "
                     f"({old_round['round_date']} archived, {item.round_date} in the file)"
                     if old_round["round_date"] != item.round_date else "different scores")
-            raise ArchiveError(f"{file}: {label} is already archived with {what}; refused. "
-                               "Use --replace to replace it (the old rows are kept in the audit "
-                               "table)")
+            raise ArchiveError(f"{file}: {label} is already archived with {what}; use "
+                               "--replace to replace it (the old rows are kept in the audit table)")
         _audit(conn, scheme=item.scheme, round_id=item.round_id, lab=item.lab, reason=reason,
                whole_round=False)
         conn.execute("DELETE FROM scores WHERE scheme = ? AND round_id = ? AND lab = ?",

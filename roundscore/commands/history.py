@@ -1,0 +1,427 @@
+"""``roundscore history``: add rounds to the archive, show a lab's history, check it for trends.
+
+Subcommands
+-----------
+``history add FILE... [--lab L] [--replace] [--reason TEXT] [--archive FILE]``
+    Add ``scores.csv`` files or per-lab workbooks; one line per file and round:
+    added, unchanged (nothing changed), replaced, or refused with the reason.
+``history show --lab L [--measurand M] [--since DATE] [--scheme S] [--out DIR] [--archive FILE]``
+    A table in the terminal; with ``--out`` also ``history.xlsx`` (with a native
+    line chart of the scores) and ``history.png`` / ``history.svg``.
+``history check [--lab L] [--window N] [--json] [--archive FILE]``
+    Trend rules over every lab x measurand series (see :mod:`roundscore.history`);
+    exit code 0 when nothing fired, 1 when a rule fired.
+
+Errors are raised as :class:`roundscore.errors.RoundscoreError` subclasses; the
+command-line entry point maps them to exit code 2.
+"""
+
+from __future__ import annotations
+
+import argparse
+import datetime as _dt
+import json
+import os
+import shutil
+import sys
+import tempfile
+from pathlib import Path
+from typing import Sequence
+
+import numpy as np
+import pandas as pd
+
+from roundscore import archive, history
+from roundscore.errors import ArchiveError, InputError, RoundscoreError
+
+__all__ = ["register", "run", "run_add", "run_show", "run_check", "write_history_outputs",
+           "SIGNAL_STYLE"]
+
+#: Okabe-Ito colours (Okabe & Ito 2008, "Color Universal Design") with a marker shape
+#: and a text symbol per signal, so colour is never the only carrier of meaning.
+SIGNAL_STYLE: dict[str, dict[str, str]] = {
+    "acceptable": {"color": "#009E73", "marker": "o", "xlsx": "circle", "symbol": "o"},
+    "warning": {"color": "#E69F00", "marker": "^", "xlsx": "triangle", "symbol": "^"},
+    "action": {"color": "#D55E00", "marker": "s", "xlsx": "square", "symbol": "[]"},
+    "not-scored": {"color": "#999999", "marker": "x", "xlsx": "x", "symbol": "-"},
+}
+_LIMIT_GREY = "#555555"
+_TABLE_COLUMNS = ("round_date", "scheme", "round", "measurand", "unit", "result", "assigned",
+                  "sigma_pt", "score", "score_value", "signal", "note")
+
+
+def _positive_int(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a whole number, got {text!r}") from None
+    if value < 1:
+        raise argparse.ArgumentTypeError(f"expected at least 1, got {value}")
+    return value
+
+
+def _iso_date(text: str) -> str:
+    try:
+        return _dt.date.fromisoformat(text).isoformat()
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a date YYYY-MM-DD, got {text!r}") from None
+
+
+def register(subparsers: argparse._SubParsersAction) -> argparse.ArgumentParser:
+    """Add the ``history`` command and its ``add``, ``show`` and ``check`` subcommands."""
+    parser = subparsers.add_parser(
+        "history", help="a lab's scores across rounds: archive, show, check for trends",
+        description="Keep scores of past rounds in an archive (SQLite) and look at a lab's "
+                    "history. " + history.DISCLAIMER)
+    sub = parser.add_subparsers(dest="history_command", metavar="{add,show,check}", required=True)
+    archive_help = (f"archive file (default ${archive.ARCHIVE_ENV} or "
+                    "the user data folder's roundscore/archive.sqlite)")
+
+    add = sub.add_parser("add", help="add scores.csv files or per-lab workbooks to the archive")
+    add.add_argument("files", nargs="+", metavar="FILE", help="scores.csv or labs/LAB.xlsx")
+    add.add_argument("--lab", help="your lab code (needed when a scores.csv holds several labs)")
+    add.add_argument("--replace", action="store_true",
+                     help="replace rows archived with different content (kept in the audit table)")
+    add.add_argument("--reason", default="replaced on request (--replace)",
+                     help="reason recorded in the audit table when replacing")
+    add.add_argument("--archive", metavar="FILE", help=archive_help)
+    add.set_defaults(func=run_add)
+
+    show = sub.add_parser("show", help="a lab's scores across rounds, as a table and charts")
+    show.add_argument("--lab", required=True, help="lab code")
+    show.add_argument("--measurand", help="only this measurand")
+    show.add_argument("--since", type=_iso_date, metavar="DATE", help="rounds on or after DATE")
+    show.add_argument("--scheme", help="only this scheme")
+    show.add_argument("--out", metavar="DIR",
+                      help="also write history.xlsx, history.png and history.svg into DIR")
+    show.add_argument("--archive", metavar="FILE", help=archive_help)
+    show.set_defaults(func=run_show)
+
+    check = sub.add_parser("check", help="run the trend rules; exit 1 when one fired")
+    check.add_argument("--lab", help="only this lab (default: every lab in the archive)")
+    check.add_argument("--window", type=_positive_int, default=history.DEFAULT_WINDOW,
+                       metavar="N", help="report rules firing in the last N scored rounds of "
+                       f"each series (default {history.DEFAULT_WINDOW})")
+    check.add_argument("--json", action="store_true", help="print the results as JSON")
+    check.add_argument("--archive", metavar="FILE", help=archive_help)
+    check.set_defaults(func=run_check)
+    return parser
+
+
+def run(args: argparse.Namespace) -> int:
+    """Run the chosen ``history`` subcommand; returns its exit code."""
+    handlers = {"add": run_add, "show": run_show, "check": run_check}
+    return handlers[args.history_command](args)
+
+
+# --------------------------------------------------------------------------- add
+
+def run_add(args: argparse.Namespace) -> int:
+    """Add each file in turn; a refused file does not stop the others.
+
+    Returns 0 when every file was added, unchanged or replaced, 2 when any was refused.
+    """
+    refused = 0
+    for name in args.files:
+        try:
+            outcomes = archive.add_files(args.archive, [name], lab=args.lab, replace=args.replace,
+                                         reason=args.reason)
+        except (InputError, ArchiveError) as exc:
+            refused += 1
+            text = str(exc)
+            if text.startswith(f"{name}: "):
+                text = text[len(name) + 2:]
+            text = text.replace("\n", "\n    ")
+            print(f"{name}: refused: {text}")
+            continue
+        for outcome in outcomes:
+            print(f"{name}: {outcome.status}: {outcome.message}")
+    if refused:
+        print(f"{refused} of {len(args.files)} files refused; the others were processed")
+    return 2 if refused else 0
+
+
+# --------------------------------------------------------------------------- show
+
+def _fmt(value: object) -> str:
+    if isinstance(value, float):
+        return "" if not np.isfinite(value) else f"{value:.4g}"
+    return "" if value is None else str(value)
+
+
+def format_table(frame: pd.DataFrame) -> str:
+    """The history as a fixed-width text table; the signal column carries a symbol and a word."""
+    shown = frame.loc[:, list(_TABLE_COLUMNS)].copy()
+    shown["score_value"] = [("" if not np.isfinite(v) else f"{v:+.2f}")
+                            for v in shown["score_value"]]
+    shown["signal"] = [f"{SIGNAL_STYLE.get(s, {'symbol': '?'})['symbol']} {s}"
+                       for s in shown["signal"]]
+    header = ["date", "scheme", "round", "measurand", "unit", "result", "assigned", "sigma_pt",
+              "score", "value", "signal", "note"]
+    cells = [header] + [[_fmt(v) for v in row] for row in shown.itertuples(index=False)]
+    widths = [max(len(r[i]) for r in cells) for i in range(len(header))]
+    numeric = {5, 6, 7, 9}
+    lines = []
+    for j, row in enumerate(cells):
+        parts = [c.rjust(w) if (i in numeric and j) else c.ljust(w)
+                 for i, (c, w) in enumerate(zip(row, widths))]
+        lines.append("  ".join(parts).rstrip())
+        if j == 0:
+            lines.append("  ".join("-" * w for w in widths))
+    return "\n".join(lines)
+
+
+def run_show(args: argparse.Namespace) -> int:
+    """Print a lab's history; with ``--out`` write the workbook and charts."""
+    frame = archive.lab_history(args.archive, lab=args.lab, scheme=args.scheme,
+                                measurand=args.measurand, since=args.since)
+    if frame.empty:
+        labs = archive.archived_labs(args.archive)
+        shown = ", ".join(labs[:20]) + (" ..." if len(labs) > 20 else "")
+        raise InputError.single(f"no archived scores match lab {args.lab!r}"
+                                + (f", measurand {args.measurand!r}" if args.measurand else "")
+                                + (f", scheme {args.scheme!r}" if args.scheme else "")
+                                + (f", since {args.since}" if args.since else "")
+                                + f" (labs in the archive: {shown or 'none'})")
+    print(f"History of lab {args.lab}: {frame['round'].nunique()} rounds, "
+          f"{frame['measurand'].nunique()} measurands")
+    print(format_table(frame))
+    print("signals: o acceptable, ^ warning, [] action, - not scored")
+    print(history.DISCLAIMER)
+    if args.out:
+        written = write_history_outputs(frame, Path(args.out), lab=args.lab)
+        for path in written:
+            print(f"wrote {path}")
+    return 0
+
+
+def _series_groups(frame: pd.DataFrame) -> list[tuple[str, pd.DataFrame]]:
+    groups = []
+    for (scheme, measurand), part in frame.groupby(["scheme", "measurand"], sort=True):
+        groups.append((f"{scheme} / {measurand}", part.reset_index(drop=True)))
+    return groups
+
+
+def write_history_outputs(frame: pd.DataFrame, out: Path, *, lab: str) -> list[Path]:
+    """Write ``history.xlsx``, ``history.png`` and ``history.svg`` into ``out``.
+
+    Files are written into a temporary folder inside ``out`` and moved into
+    place when all are complete.
+    """
+    out.mkdir(parents=True, exist_ok=True)
+    temp = Path(tempfile.mkdtemp(prefix=".history-", dir=out))
+    try:
+        names = ["history.xlsx", "history.png", "history.svg"]
+        _write_workbook(frame, temp / names[0], lab=lab)
+        _write_figure(frame, [temp / names[1], temp / names[2]], lab=lab)
+        for name in names:
+            os.replace(temp / name, out / name)
+    finally:
+        shutil.rmtree(temp, ignore_errors=True)
+    return [out / n for n in names]
+
+
+def _limits_for(part: pd.DataFrame) -> tuple[float, float | None]:
+    """(action, warning) limits: 3/2 for z-like scores, 1/None for En (ISO 13528)."""
+    if len(part) and (part["score"] == "en").all():
+        return history.EN_ACTION_LIMIT, None
+    return history.ACTION_LIMIT, history.WARNING_LIMIT
+
+
+def _write_workbook(frame: pd.DataFrame, path: Path, *, lab: str) -> None:
+    import xlsxwriter
+
+    book = xlsxwriter.Workbook(str(path), {"nan_inf_to_errors": False})
+    book.set_properties({"title": f"History of lab {lab}", "created": _dt.datetime(2000, 1, 1)})
+    bold = book.add_format({"bold": True})
+    table = book.add_worksheet("history")
+    charts = book.add_worksheet("charts")
+    data = book.add_worksheet("chart_data")
+    columns = list(_TABLE_COLUMNS)
+    for j, name in enumerate(columns):
+        table.write_string(0, j, name, bold)
+    for i, row in enumerate(frame.loc[:, columns].itertuples(index=False), start=1):
+        for j, value in enumerate(row):
+            _write_cell(table, i, j, value)
+    table.write_string(len(frame) + 2, 0, history.DISCLAIMER)
+    table.freeze_panes(1, 0)
+
+    charts.write_string(0, 0, f"Scores of lab {lab} by round; lines at the warning and action "
+                              "limits. Markers: circle acceptable, triangle warning, square action.")
+    top = 0
+    for k, (label, part) in enumerate(_series_groups(frame)):
+        action, warning = _limits_for(part)
+        heads = ["round", "score", "acceptable", "warning", "action", f"+{action:g}",
+                 f"-{action:g}"] + ([f"+{warning:g}", f"-{warning:g}"] if warning else [])
+        data.write_string(top, 0, label, bold)
+        for j, head in enumerate(heads):
+            data.write_string(top + 1, j, head, bold)
+        first = top + 2
+        for i, row in enumerate(part.itertuples(index=False)):
+            r = first + i
+            data.write_string(r, 0, f"{row.round_date} {row.round}")
+            value = row.score_value
+            if np.isfinite(value):
+                data.write_number(r, 1, float(value))
+                col = {"acceptable": 2, "warning": 3, "action": 4}.get(row.signal)
+                if col is not None:
+                    data.write_number(r, col, float(value))
+            limits = [action, -action] + ([warning, -warning] if warning else [])
+            for j, lim in enumerate(limits, start=5):
+                data.write_number(r, j, lim)
+        last = first + len(part) - 1
+        chart = book.add_chart({"type": "line"})
+        cats = ["chart_data", first, 0, last, 0]
+        chart.add_series({"name": "score", "categories": cats,
+                          "values": ["chart_data", first, 1, last, 1],
+                          "line": {"color": _LIMIT_GREY, "width": 1.25},
+                          "marker": {"type": "none"}})
+        for j, signal in enumerate(("acceptable", "warning", "action"), start=2):
+            style = SIGNAL_STYLE[signal]
+            chart.add_series({"name": signal, "categories": cats,
+                              "values": ["chart_data", first, j, last, j],
+                              "line": {"none": True},
+                              "marker": {"type": style["xlsx"], "size": 7,
+                                         "fill": {"color": style["color"]},
+                                         "border": {"color": style["color"]}}})
+        for j, head in enumerate(heads[5:], start=5):
+            dash = "solid" if head.lstrip("+-") == f"{action:g}" else "dash"
+            chart.add_series({"name": head, "categories": cats,
+                              "values": ["chart_data", first, j, last, j],
+                              "line": {"color": _LIMIT_GREY, "width": 0.75, "dash_type": dash},
+                              "marker": {"type": "none"}})
+        chart.set_title({"name": f"{lab}: {label}"})
+        chart.set_y_axis({"name": "score", "min": -max(4, action + 1), "max": max(4, action + 1)})
+        chart.set_x_axis({"name": "round"})
+        chart.show_blanks_as("gap")
+        chart.set_size({"width": 720, "height": 300})
+        charts.insert_chart(2 + 16 * k, 0, chart)
+        top = last + 3
+    book.close()
+
+
+def _write_cell(sheet, row: int, col: int, value: object) -> None:
+    """Write text as text (never as a formula) and numbers as numbers."""
+    if isinstance(value, (float, int, np.floating, np.integer)) and not isinstance(value, bool):
+        if np.isfinite(value):
+            sheet.write_number(row, col, float(value))
+        else:
+            sheet.write_blank(row, col, None)
+    elif value is None:
+        sheet.write_blank(row, col, None)
+    else:
+        sheet.write_string(row, col, str(value))
+
+
+def _write_figure(frame: pd.DataFrame, paths: Sequence[Path], *, lab: str) -> None:
+    import matplotlib
+    from matplotlib.figure import Figure
+    from matplotlib.lines import Line2D
+
+    groups = _series_groups(frame)
+    with matplotlib.rc_context({"svg.hashsalt": "roundscore", "font.size": 9}):
+        fig = Figure(figsize=(8.0, 1.0 + 2.3 * len(groups)), layout="constrained")
+        axes = fig.subplots(len(groups), 1, squeeze=False)[:, 0]
+        for ax, (label, part) in zip(axes, groups):
+            dates = pd.to_datetime(part["round_date"])
+            values = part["score_value"].to_numpy(float)
+            ok = np.isfinite(values)
+            action, warning = _limits_for(part)
+            ax.plot(dates[ok], values[ok], color=_LIMIT_GREY, linewidth=1.0, zorder=1)
+            for signal, style in SIGNAL_STYLE.items():
+                pick = ok & (part["signal"] == signal).to_numpy()
+                if pick.any():
+                    ax.scatter(dates[pick], values[pick], marker=style["marker"],
+                               color=style["color"], edgecolors="black", linewidths=0.4,
+                               s=36, zorder=3)
+            for lim, dash in ((action, "-"), (warning, "--")):
+                if lim:
+                    for y in (lim, -lim):
+                        ax.axhline(y, color=_LIMIT_GREY, linestyle=dash, linewidth=0.8, zorder=0)
+            ax.axhline(0.0, color="#BBBBBB", linewidth=0.6, zorder=0)
+            top = max(action + 1.0, float(np.nanmax(np.abs(values), initial=0.0)) + 0.5)
+            ax.set_ylim(-top, top)
+            ax.set_ylabel("En" if warning is None else "score (z, z', zeta)")
+            ax.set_title(f"{lab}: {label}", loc="left")
+        handles = [Line2D([], [], linestyle="none", marker=s["marker"], color=s["color"],
+                          markeredgecolor="black", markeredgewidth=0.4, label=name)
+                   for name, s in SIGNAL_STYLE.items() if name != "not-scored"]
+        handles += [Line2D([], [], color=_LIMIT_GREY, linestyle="-", label="action limit"),
+                    Line2D([], [], color=_LIMIT_GREY, linestyle="--", label="warning limit")]
+        fig.legend(handles=handles, loc="outside lower center", ncols=5, frameon=False)
+        fig.text(0.01, 0.0, history.DISCLAIMER, fontsize=6, va="bottom", ha="left",
+                 wrap=True)
+        for path in paths:
+            meta = {"Date": None} if path.suffix == ".svg" else {"Software": None}
+            fig.savefig(path, dpi=120, metadata=meta)
+
+
+# --------------------------------------------------------------------------- check
+
+def format_check(report: history.HistoryCheck) -> str:
+    """The check results in words: what fired, combined scores and bias of those series."""
+    lines = []
+    fired = [s for s in report.series if s.fired]
+    for s in report.series:
+        if not s.fired:
+            continue
+        lines.append(f"{s.lab} / {s.scheme} / {s.measurand} ({len(s.values)} scored rounds, "
+                     f"window {s.window}):")
+        lines += [f"  {f.message}" for f in s.findings]
+        if s.combined is not None:
+            c = s.combined
+            lines.append(f"  combined over the window: RSZ = {c.rsz:+.2f}, SSZ = {c.ssz:.2f} "
+                         f"(chi-squared {c.n} df: p = {c.ssz_p_value:.3g}; 5 % point "
+                         f"{c.ssz_critical_5:.2f}, 1 % point {c.ssz_critical_1:.2f}), "
+                         f"mean |z| = {c.mean_abs_z:.2f}")
+        if s.bias is not None:
+            lines.append(f"  bias check: {s.bias.conclusion}")
+        lines += [f"  note: {n}" for n in s.notes]
+    biased = [s for s in report.series if not s.fired and s.bias is not None and s.bias.biased]
+    for s in biased:
+        lines.append(f"{s.lab} / {s.scheme} / {s.measurand}: no rule fired; bias check: "
+                     f"{s.bias.conclusion}")
+    lines.append(f"{len(fired)} of {len(report.series)} series with a rule firing in the last "
+                 f"{report.window} scored rounds.")
+    if any(s.combined is not None for s in fired):
+        lines.append("Caution: " + history.COMBINED_CAUTION)
+    lines.append(report.disclaimer)
+    return "\n".join(lines)
+
+
+def run_check(args: argparse.Namespace) -> int:
+    """Run the trend rules; 0 when nothing fired, 1 when a rule fired."""
+    labs = [args.lab] if args.lab else archive.archived_labs(args.archive)
+    if not labs:
+        raise ArchiveError(f"{archive.archive_path(args.archive)}: the archive holds no scores")
+    frame = archive.lab_history(args.archive, lab=labs)
+    if frame.empty:
+        known = archive.archived_labs(args.archive)
+        raise InputError.single(f"no archived scores for lab {args.lab!r} (labs in the archive: "
+                                f"{', '.join(known[:20]) or 'none'})")
+    report = history.check_history(frame, window=args.window)
+    if args.json:
+        body = report.to_dict()
+        body["fired"] = report.fired
+        for entry, series in zip(body["series"], report.series):
+            entry["fired"] = series.fired
+        print(json.dumps(body, indent=2, ensure_ascii=False))
+    else:
+        print(format_check(report))
+    return 1 if report.fired else 0
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Stand-alone entry (``python -m roundscore.commands.history``), mapping errors to 2."""
+    parser = argparse.ArgumentParser(prog="roundscore")
+    register(parser.add_subparsers(dest="command", required=True))
+    args = parser.parse_args(argv)
+    try:
+        return args.func(args)
+    except RoundscoreError as exc:
+        print(f"error: {exc}", file=sys.stderr)
+        return 2
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())
