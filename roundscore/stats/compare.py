@@ -39,6 +39,7 @@ from roundscore.stats.precision import AnovaTable, anova_oneway
 
 __all__ = [
     "DEFAULT_CONFIDENCE",
+    "MIN_GROUP_SIZE",
     "DISCLAIMER",
     "Method",
     "VarianceTest",
