@@ -93,37 +93,22 @@ def _check_choice(name: str, value: object, allowed: object) -> None:
         raise StatisticsError(f"{name}: found {value!r}; allowed: {shown}")
 
 
-def _positive_finite(name: str, value: object) -> float:
-    """``value`` as a float, which must be finite and > 0."""
+def _number(name: str, value: object, kind: Literal["positive", "nonnegative", "probability"]) -> float:
+    """``value`` as a finite float that is > 0, >= 0, or strictly between 0 and 1 (``kind``)."""
     try:
         x = float(value)  # type: ignore[arg-type]
     except (TypeError, ValueError):
         raise StatisticsError(f"{name} must be a number; found {value!r}") from None
-    if not math.isfinite(x) or x <= 0.0:
-        raise StatisticsError(f"{name} must be a finite number > 0; found {value!r}")
+    ok = {"positive": x > 0.0, "nonnegative": x >= 0.0, "probability": 0.0 < x < 1.0}[kind]
+    rule = {"positive": "be a finite number > 0", "nonnegative": "be a finite number >= 0"}
+    if not (math.isfinite(x) and ok):
+        what = rule.get(kind, "lie strictly between 0 and 1")
+        raise StatisticsError(f"{name} must {what}; found {value!r}")
     return x
 
 
-def _nonnegative_finite(name: str, value: object) -> float:
-    """``value`` as a float, which must be finite and >= 0."""
-    try:
-        x = float(value)  # type: ignore[arg-type]
-    except (TypeError, ValueError):
-        raise StatisticsError(f"{name} must be a number; found {value!r}") from None
-    if not math.isfinite(x) or x < 0.0:
-        raise StatisticsError(f"{name} must be a finite number >= 0; found {value!r}")
-    return x
-
-
-def _probability(name: str, value: object) -> float:
-    """``value`` as a float strictly between 0 and 1."""
-    try:
-        x = float(value)  # type: ignore[arg-type]
-    except (TypeError, ValueError):
-        raise StatisticsError(f"{name} must be a number; found {value!r}") from None
-    if not 0.0 < x < 1.0:
-        raise StatisticsError(f"{name} must lie strictly between 0 and 1; found {value!r}")
-    return x
+def _met(flag: bool) -> str:
+    return "met" if flag else "not met"
 
 
 def _finite_vector(name: str, values: ArrayLike) -> np.ndarray:
@@ -136,15 +121,11 @@ def _finite_vector(name: str, values: ArrayLike) -> np.ndarray:
         raise StatisticsError(f"{name}: expected a 1-D sequence of values; found shape {arr.shape}")
     bad = np.flatnonzero(~np.isfinite(arr))
     if bad.size:
-        shown = ", ".join(f"position {i + 1}: {arr[i]!r}" for i in bad[:5])
+        shown = ", ".join(f"position {i + 1}: {float(arr[i])!r}" for i in bad[:5])
         more = f" and {bad.size - 5} more" if bad.size > 5 else ""
         raise StatisticsError(f"{name}: {bad.size} value(s) not finite ({shown}{more})")
     return arr
 
-
-# ---------------------------------------------------------------------------
-# critical values
-# ---------------------------------------------------------------------------
 
 
 def _cochran_critical(p: int, n: int, alpha: float) -> float:
@@ -177,8 +158,8 @@ def _cochran_critical(p: int, n: int, alpha: float) -> float:
     .. [4] W. G. Cochran, Ann. Eugen. 11 (1941) 47-52.
     """
     if p < 2 or n < 2:
-        raise StatisticsError(f"Cochran's test needs at least 2 groups of at least 2 values; found p={p}, n={n}")
-    alpha = _probability("alpha", alpha)
+        raise StatisticsError(f"Cochran's test needs at least 2 groups of 2 values; found p={p}, n={n}")
+    alpha = _number("alpha", alpha, "probability")
     nu = n - 1
     f_crit = stats.f.isf(alpha / p, nu, (p - 1) * nu)
     return float(1.0 / (1.0 + (p - 1) / f_crit))
@@ -252,7 +233,7 @@ def expanded_criterion_factors(
     g = int(g)
     if not math.isfinite(float(m)) or m <= 1:
         raise StatisticsError(f"the expanded criterion needs more than 1 replicate per item; found m={m!r}")
-    alpha = _probability("alpha", alpha)
+    alpha = _number("alpha", alpha, "probability")
     if df_within is None:
         df_within = round(g * (m - 1))
     if df_within < 1:
@@ -262,10 +243,6 @@ def expanded_criterion_factors(
     f2 = float((stats.f.ppf(q, g - 1, df_within) - 1.0) / m)
     return CriterionFactors(g=g, m=m, df_within=int(df_within), alpha=alpha, f1=f1, f2=f2)
 
-
-# ---------------------------------------------------------------------------
-# homogeneity
-# ---------------------------------------------------------------------------
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -290,10 +267,8 @@ class HomogeneityResult:
         True when every item has the same number of replicates.
     n : int
         Number of values N.
-    mean : float
-        General mean: the mean of the item means.
-    s_x : float
-        Standard deviation of the item means.
+    mean, s_x : float
+        General mean (mean of the item means) and SD of the item means.
     s_w : float
         Within-item standard deviation; see ``s_w_method``.
     s_w_method : {"duplicate differences", "within-item mean square"}
@@ -309,20 +284,14 @@ class HomogeneityResult:
         One-way ANOVA mean squares (balanced: m s_x^2 and s_w^2).
     df_between, df_within : int
         Their degrees of freedom, g - 1 and N - g.
-    sigma_pt : float
-        Standard deviation for proficiency assessment used.
-    alpha : float
-        Level of the expanded criterion (quantiles at 1 - alpha).
-    criterion : float
-        c = 0.3 sigma_pt.
+    sigma_pt, alpha : float
+        sigma_pt used; level of the expanded criterion (quantiles at 1 - alpha).
+    criterion, allowed : float
+        c = 0.3 sigma_pt; the expanded allowance sqrt(F1 c^2 + F2 s_w^2).
     f1, f2 : float
         Factors of the expanded criterion (ISO 13528 Table B.1).
-    allowed : float
-        Expanded allowance sqrt(F1 c^2 + F2 s_w^2).
-    passed_simple : bool
-        s_s <= c.
-    passed_expanded : bool
-        s_s <= allowed.
+    passed_simple, passed_expanded : bool
+        s_s <= c; s_s <= allowed.
     passed : bool
         The verdict: the expanded criterion (``passed_expanded``), which
         allows for the sampling error of s_s; the simple one is kept beside it.
@@ -331,10 +300,9 @@ class HomogeneityResult:
         of the size that matters and ``precision_warning`` says so.
     precision_warning : str or None
         The warning text, or None.
-    cochran_c : float
-        Cochran's C on the within-item variances (nan when all are zero).
-    cochran_item : str or None
-        Label of the item with the largest within-item variance.
+    cochran_c, cochran_item : float, str or None
+        Cochran's C on the within-item variances and the item with the
+        largest one (nan and None when every variance is zero).
     cochran_critical_5, cochran_critical_1 : float
         Critical values at 5 % and 1 % (from the F distribution).
     cochran_signal : {"none", "straggler", "outlier", "not computed"}
@@ -385,9 +353,8 @@ def _group(items: ArrayLike, n_values: int) -> tuple[list[str], np.ndarray]:
     if labels_in.ndim != 1:
         raise StatisticsError(f"items: expected a 1-D sequence of labels; found shape {labels_in.shape}")
     if labels_in.size != n_values:
-        raise StatisticsError(
-            f"items and values differ in length: {labels_in.size} item labels, {n_values} values"
-        )
+        msg = f"items and values differ in length: {labels_in.size} labels, {n_values} values"
+        raise StatisticsError(msg)
     index: dict[str, int] = {}
     codes = np.empty(n_values, dtype=np.intp)
     for pos, label in enumerate(labels_in):
@@ -446,8 +413,7 @@ def homogeneity(
       number, F2 with N - g df and divided by n0; Cochran's test uses the most
       frequent replicate number (the smaller on a tie), as ISO 5725-2 allows
       for slight imbalance. s_x is still the plain SD of the item means.
-    - Values are centred on their median before any sum (stable for data
-      with many constant leading digits).
+    - Values are centred on their median before any sum.
     - Items flagged by Cochran's test are reported, not removed: the
       provider decides after investigating.
 
@@ -467,8 +433,8 @@ def homogeneity(
     >>> bool(res.passed)
     True
     """
-    sigma_pt = _positive_finite("sigma_pt", sigma_pt)
-    alpha = _probability("alpha", alpha)
+    sigma_pt = _number("sigma_pt", sigma_pt, "positive")
+    alpha = _number("alpha", alpha, "probability")
     y = _finite_vector("values", values)
     labels, codes = _group(items, y.size)
     g = len(labels)
@@ -479,9 +445,8 @@ def homogeneity(
     if single:
         shown = ", ".join(repr(s) for s in single[:10])
         more = f" and {len(single) - 10} more" if len(single) > 10 else ""
-        raise StatisticsError(
-            f"every item needs at least 2 replicates; {len(single)} item(s) have one: {shown}{more}"
-        )
+        msg = f"every item needs at least 2 replicates; {len(single)} item(s) have one: {shown}{more}"
+        raise StatisticsError(msg)
 
     notes: list[str] = []
     n_total = int(y.size)
@@ -497,14 +462,12 @@ def homogeneity(
 
     df_between = g - 1
     df_within = n_total - g
-    ss_within = float(np.dot(resid, resid))
-    ms_within = ss_within / df_within
+    ms_within = float(np.dot(resid, resid)) / df_within
     grand_d = float(np.dot(counts, means_d) / n_total)  # weighted (ANOVA) grand mean
     dev = means_d - grand_d
     ms_between = float(np.dot(counts, dev * dev)) / df_between
 
-    item_mean_centre = float(np.mean(means_d))
-    general_mean = shift + item_mean_centre
+    general_mean = shift + float(np.mean(means_d))
     s_x = float(np.std(means_d, ddof=1))
 
     if balanced:
@@ -519,8 +482,7 @@ def homogeneity(
         )
 
     if balanced and m == 2:
-        order = np.argsort(codes, kind="stable")
-        pairs = d[order].reshape(g, 2)  # the two centred values of each item
+        pairs = d[np.argsort(codes, kind="stable")].reshape(g, 2)  # centred pair of each item
         w = pairs[:, 1] - pairs[:, 0]
         s_w = math.sqrt(float(np.dot(w, w)) / (2 * g))
         s_w_method: WithinMethod = "duplicate differences"
@@ -545,13 +507,9 @@ def homogeneity(
     passed_simple = s_s <= criterion
     passed_expanded = s_s <= allowed
     notes.append(
-        f"simple criterion s_s <= 0.3 sigma_pt = {criterion:.4g}: "
-        f"{'met' if passed_simple else 'not met'} (s_s = {s_s:.4g})"
-    )
-    notes.append(
-        f"expanded criterion s_s <= sqrt(F1 c^2 + F2 s_w^2) = {allowed:.4g} "
-        f"(F1 = {factors.f1:.4g}, F2 = {factors.f2:.4g}): {'met' if passed_expanded else 'not met'}; "
-        "the verdict uses the expanded criterion"
+        f"simple criterion s_s <= 0.3 sigma_pt = {criterion:.4g}: {_met(passed_simple)} (s_s = {s_s:.4g}); "
+        f"expanded criterion s_s <= sqrt(F1 c^2 + F2 s_w^2) = {allowed:.4g} (F1 = {factors.f1:.4g}, "
+        f"F2 = {factors.f2:.4g}): {_met(passed_expanded)}; the verdict uses the expanded criterion"
     )
     if passed_expanded and not passed_simple:
         notes.append(
@@ -573,12 +531,8 @@ def homogeneity(
     # Cochran's test on the within-item variances.
     var_i = np.bincount(codes, weights=resid * resid, minlength=g) / (counts - 1)
     total = float(var_i.sum())
-    if balanced:
-        n_cochran = int(counts[0])
-    else:
-        freq = Counter(int(c) for c in counts)
-        top = max(freq.values())
-        n_cochran = min(c for c, k in freq.items() if k == top)
+    freq = Counter(int(c) for c in counts)
+    n_cochran = min(freq, key=lambda c: (-freq[c], c))  # most frequent; the smaller on a tie
     crit5 = _cochran_critical(g, n_cochran, COCHRAN_STRAGGLER_ALPHA)
     crit1 = _cochran_critical(g, n_cochran, COCHRAN_OUTLIER_ALPHA)
     signal: CochranSignal
@@ -586,12 +540,7 @@ def homogeneity(
         worst = int(np.argmax(var_i))
         cochran_c = float(var_i[worst] / total)
         cochran_item: str | None = labels[worst]
-        if cochran_c > crit1:
-            signal = "outlier"
-        elif cochran_c > crit5:
-            signal = "straggler"
-        else:
-            signal = "none"
+        signal = "outlier" if cochran_c > crit1 else "straggler" if cochran_c > crit5 else "none"
         if signal != "none":
             what = "discordant pair" if (balanced and m == 2) else "largest within-item variance"
             notes.append(
@@ -609,46 +558,17 @@ def homogeneity(
         notes.append(f"Cochran's critical values for {n_cochran} replicates per item (most frequent)")
 
     return HomogeneityResult(
-        item_labels=tuple(labels),
-        item_means=tuple(float(shift + v) for v in means_d),
-        replicates=tuple(int(c) for c in counts),
-        g=g,
-        m=m,
-        balanced=balanced,
-        n=n_total,
-        mean=general_mean,
-        s_x=s_x,
-        s_w=s_w,
-        s_w_method=s_w_method,
-        s_s=s_s,
-        s_s_truncated=s_s_truncated,
-        ms_between=ms_between,
-        ms_within=ms_within,
-        df_between=df_between,
-        df_within=df_within,
-        sigma_pt=sigma_pt,
-        alpha=alpha,
-        criterion=criterion,
-        f1=factors.f1,
-        f2=factors.f2,
-        allowed=allowed,
-        passed_simple=passed_simple,
-        passed_expanded=passed_expanded,
-        passed=passed_expanded,
-        precision_adequate=precision_adequate,
-        precision_warning=precision_warning,
-        cochran_c=cochran_c,
-        cochran_item=cochran_item,
-        cochran_critical_5=crit5,
-        cochran_critical_1=crit1,
-        cochran_signal=signal,
-        notes=tuple(notes),
+        item_labels=tuple(labels), item_means=tuple(float(shift + v) for v in means_d),
+        replicates=tuple(int(c) for c in counts), g=g, m=m, balanced=balanced, n=n_total,
+        mean=general_mean, s_x=s_x, s_w=s_w, s_w_method=s_w_method, s_s=s_s, s_s_truncated=s_s_truncated,
+        ms_between=ms_between, ms_within=ms_within, df_between=df_between, df_within=df_within,
+        sigma_pt=sigma_pt, alpha=alpha, criterion=criterion, f1=factors.f1, f2=factors.f2, allowed=allowed,
+        passed_simple=passed_simple, passed_expanded=passed_expanded, passed=passed_expanded,
+        precision_adequate=precision_adequate, precision_warning=precision_warning,
+        cochran_c=cochran_c, cochran_item=cochran_item, cochran_critical_5=crit5,
+        cochran_critical_1=crit1, cochran_signal=signal, notes=tuple(notes),
     )
 
-
-# ---------------------------------------------------------------------------
-# stability
-# ---------------------------------------------------------------------------
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -659,34 +579,27 @@ class StabilityResult:
     ----------
     n_first, n_second : int
         Number of values in each set.
-    mean_first, mean_second : float
+    mean_first, mean_second, difference : float
         The two means (first: e.g. before the round or reference storage;
-        second: after the round or transport conditions).
-    difference : float
+        second: after the round or transport conditions) and
         mean_first - mean_second (signed).
     u_first, u_second : float
         Standard uncertainties of the two means: as given, else SD/sqrt(n);
         nan when neither is available (a single value and no uncertainty).
     u_first_given, u_second_given : bool
         Whether each uncertainty was given by the caller.
-    sigma_pt : float
-        Standard deviation for proficiency assessment used.
-    criterion : float
-        0.3 sigma_pt, the allowance of the simple criterion.
+    sigma_pt, criterion : float
+        sigma_pt used and 0.3 sigma_pt, the allowance of the simple criterion.
     allowed_expanded : float
         0.3 sigma_pt + 2 sqrt(u_first^2 + u_second^2); nan when unknown.
-    passed_simple : bool
-        |difference| <= criterion.
-    passed_expanded : bool or None
-        |difference| <= allowed_expanded; None when the uncertainties are unknown.
-    criterion_used : {"simple", "expanded"}
-        Which criterion gives ``passed``.
-    passed : bool
-        The verdict of ``criterion_used``.
+    passed_simple, passed_expanded : bool, bool or None
+        |difference| <= criterion; |difference| <= allowed_expanded (None when
+        the uncertainties are unknown).
+    criterion_used, passed : {"simple", "expanded"}, bool
+        Which criterion gives the verdict, and the verdict.
     u_stab : float
-        |difference| / sqrt(3): the standard uncertainty from instability,
-        taking the observed difference as the half-width of a rectangular
-        distribution (ISO 13528:2015 B.6; an assumption, stated).
+        |difference| / sqrt(3): uncertainty from instability, the observed
+        difference taken as half-width of a rectangular distribution (B.6).
     notes : tuple of str
         What was assumed and decided, in words.
     """
@@ -719,7 +632,7 @@ def _mean_and_u(name: str, values: ArrayLike, u_given: float | None) -> tuple[in
     shift = float(np.median(arr))
     mean = shift + float(np.mean(arr - shift))
     if u_given is not None:
-        u = _nonnegative_finite(f"u_{name}", u_given)
+        u = _number(f"u_{name}", u_given, "nonnegative")
     elif arr.size >= 2:
         u = float(np.std(arr, ddof=1)) / math.sqrt(arr.size)
     else:
@@ -754,7 +667,8 @@ def stability(
         Which criterion gives the verdict. "auto" uses the expanded one when
         the caller gave ``u_first`` or ``u_second`` (they describe the
         measurements, e.g. run-to-run effects when the two sets were measured
-        apart), otherwise the simple one. Both verdicts are always reported.
+        apart) and both uncertainties are known, otherwise the simple one.
+        Both verdicts are always reported.
 
     Returns
     -------
@@ -769,9 +683,8 @@ def stability(
 
     Notes
     -----
-    The means are computed after centring on the median. ``u_stab`` takes the
-    observed difference as the half-width of a rectangular distribution,
-    |y1 - y2|/sqrt(3), whether or not the check passed.
+    Means are computed after centring on the median. ``u_stab`` is
+    |y1 - y2|/sqrt(3) whether or not the check passed (see StabilityResult).
 
     References
     ----------
@@ -784,7 +697,7 @@ def stability(
     ('simple', True)
     """
     _check_choice("criterion", criterion, StabilityCriterion)
-    sigma_pt = _positive_finite("sigma_pt", sigma_pt)
+    sigma_pt = _number("sigma_pt", sigma_pt, "positive")
     n1, mean1, u1 = _mean_and_u("first", first, u_first)
     n2, mean2, u2 = _mean_and_u("second", second, u_second)
     notes: list[str] = []
@@ -804,56 +717,33 @@ def stability(
         if u_known and not given:
             notes.append(f"u of the {name} mean from its SD/sqrt(n)")
 
-    if criterion == "auto":
-        used: Literal["simple", "expanded"] = (
-            "expanded" if (u_first is not None or u_second is not None) and u_known else "simple"
-        )
-    else:
-        used = criterion  # type: ignore[assignment]
+    given_any = u_first is not None or u_second is not None
+    auto_choice: Literal["simple", "expanded"] = "expanded" if given_any and u_known else "simple"
+    used = auto_choice if criterion == "auto" else criterion
     if used == "expanded" and passed_expanded is None:
         raise StatisticsError(
             "the expanded stability criterion needs the uncertainty of both means: give u_first and "
             "u_second, or at least 2 values in each set"
         )
     passed = passed_simple if used == "simple" else bool(passed_expanded)
-    notes.append(
-        f"simple criterion |y1 - y2| <= 0.3 sigma_pt = {crit:.4g}: "
-        f"{'met' if passed_simple else 'not met'} (|y1 - y2| = {abs(diff):.4g})"
-    )
+    notes.append(f"|y1 - y2| = {abs(diff):.4g}; simple criterion <= 0.3 sigma_pt = {crit:.4g}: {_met(passed_simple)}")
     if passed_expanded is not None:
         notes.append(
             f"expanded criterion |y1 - y2| <= 0.3 sigma_pt + 2 sqrt(u1^2 + u2^2) = {allowed:.4g}: "
-            f"{'met' if passed_expanded else 'not met'}"
+            f"{_met(passed_expanded)}"
         )
     notes.append(f"the verdict uses the {used} criterion")
     u_stab = abs(diff) / math.sqrt(3.0)
-    notes.append("u_stab = |y1 - y2| / sqrt(3): observed difference taken as half-width of a rectangular distribution")
+    notes.append("u_stab = |y1 - y2| / sqrt(3): the difference as half-width of a rectangular distribution")
 
     return StabilityResult(
-        n_first=n1,
-        n_second=n2,
-        mean_first=mean1,
-        mean_second=mean2,
-        difference=diff,
-        u_first=u1,
-        u_second=u2,
-        u_first_given=u_first is not None,
-        u_second_given=u_second is not None,
-        sigma_pt=sigma_pt,
-        criterion=crit,
-        allowed_expanded=allowed,
-        passed_simple=passed_simple,
-        passed_expanded=passed_expanded,
-        criterion_used=used,
-        passed=passed,
-        u_stab=u_stab,
+        n_first=n1, n_second=n2, mean_first=mean1, mean_second=mean2, difference=diff, u_first=u1,
+        u_second=u2, u_first_given=u_first is not None, u_second_given=u_second is not None,
+        sigma_pt=sigma_pt, criterion=crit, allowed_expanded=allowed, passed_simple=passed_simple,
+        passed_expanded=passed_expanded, criterion_used=used, passed=passed, u_stab=u_stab,
         notes=tuple(notes),
     )
 
-
-# ---------------------------------------------------------------------------
-# combining
-# ---------------------------------------------------------------------------
 
 
 def item_uncertainty(u_char: float, u_hom: float, u_stab: float) -> float:
@@ -883,9 +773,9 @@ def item_uncertainty(u_char: float, u_hom: float, u_stab: float) -> float:
     >>> item_uncertainty(0.3, 0.4, 0.0)
     0.5
     """
-    a = _nonnegative_finite("u_char", u_char)
-    b = _nonnegative_finite("u_hom", u_hom)
-    c = _nonnegative_finite("u_stab", u_stab)
+    a = _number("u_char", u_char, "nonnegative")
+    b = _number("u_hom", u_hom, "nonnegative")
+    c = _number("u_stab", u_stab, "nonnegative")
     return float(math.hypot(a, b, c))
 
 
@@ -915,6 +805,6 @@ def widened_sigma(sigma_pt: float, s_s: float) -> float:
     >>> widened_sigma(3.0, 4.0)
     5.0
     """
-    s = _positive_finite("sigma_pt", sigma_pt)
-    b = _nonnegative_finite("s_s", s_s)
+    s = _number("sigma_pt", sigma_pt, "positive")
+    b = _number("s_s", s_s, "nonnegative")
     return float(math.hypot(s, b))
