@@ -1,0 +1,138 @@
+"""``roundscore score``, ``demo``, ``forms`` and ``check``: the coordinator's commands for one round."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from pathlib import Path
+
+from ..evaluate import RoundEvaluation
+from ..look import CAUTION, SIGNAL_SYMBOL
+
+__all__ = ["register", "summary_text"]
+
+
+def register(sub: argparse._SubParsersAction) -> None:
+    p = sub.add_parser("score", help="evaluate a round folder and write every output",
+                       description="Read the round file and results, evaluate, and write scores, statistics, "
+                                   "the summary workbook and one score sheet per lab into --out.")
+    p.add_argument("round", help="round folder or its round.toml")
+    p.add_argument("--out", default=None, help="output folder (default: ROUND/out)")
+    p.add_argument("--archive", default=None, help="also store the round in this history archive")
+    p.add_argument("--strict", action="store_true", help="exit 1 when an item or u(x_pt) check fails")
+    p.add_argument("--jobs", type=int, default=None, help="worker processes (default: all cores)")
+    p.add_argument("--quiet", action="store_true", help="print nothing but errors")
+    p.set_defaults(func=run_score)
+
+    d = sub.add_parser("demo", help="run the whole job on the bundled demo round",
+                       description="Write the invented demo round into --out/round and score it into --out.")
+    d.add_argument("--out", default="roundscore-demo", help="output folder (default: ./roundscore-demo)")
+    d.add_argument("--jobs", type=int, default=None, help="worker processes (default: all cores)")
+    d.set_defaults(func=run_demo)
+
+    f = sub.add_parser("forms", help="write one blank submission workbook per participant",
+                       description="Write a blank submission form for every lab in the round's participants "
+                                   "file (or for --labs).")
+    f.add_argument("round", help="round folder or its round.toml")
+    f.add_argument("--out", default=None, help="folder for the forms (default: ROUND/forms)")
+    f.add_argument("--labs", nargs="*", default=None, help="lab codes (default: the participants file)")
+    f.set_defaults(func=run_forms)
+
+    c = sub.add_parser("check", help="validate a round folder without writing anything")
+    c.add_argument("round", help="round folder or its round.toml")
+    c.set_defaults(func=run_check)
+
+
+def summary_text(ev: RoundEvaluation) -> str:
+    """A short table of the round for the terminal."""
+    lines = [f"Round {ev.round.id}: {ev.round.title}"]
+    for line in ev.failed_checks:
+        lines.append(f"  CHECK FAILED: {line}")
+    head = f"  {'measurand':<14}{'p':>4}  {'assigned':>12} {'u(x_pt)':>10} {'σ_pt':>10} {'score':<8}" \
+           f"{SIGNAL_SYMBOL['acceptable']:>4}{SIGNAL_SYMBOL['warning']:>4}{SIGNAL_SYMBOL['action']:>4}" \
+           f"{SIGNAL_SYMBOL['not-scored']:>4}"
+    lines.append(head)
+    counts = ev.scores.groupby(["measurand", "signal"]).size()
+    for name, m in ev.measurands.items():
+        def n(s):
+            return int(counts.get((name, s), 0))
+        lines.append(
+            f"  {name:<14}{m.p:>4}  {m.assigned:>12.5g} {m.u_assigned:>10.3g} {m.sigma_pt:>10.4g} "
+            f"{m.settings.score:<8}{n('acceptable'):>4}{n('warning'):>4}{n('action'):>4}{n('not-scored'):>4}")
+    lines.append(f"  {SIGNAL_SYMBOL['acceptable']} acceptable  {SIGNAL_SYMBOL['warning']} warning signal  "
+                 f"{SIGNAL_SYMBOL['action']} action signal  {SIGNAL_SYMBOL['not-scored']} not scored")
+    for w in ev.warnings:
+        lines.append(f"  note: {w}")
+    return "\n".join(lines)
+
+
+def _report(ev, outputs, *, quiet=False, strict=False) -> int:
+    if not quiet:
+        print(summary_text(ev))
+        print(f"\nWrote {len(outputs.files)} files to {outputs.folder}/ "
+              f"(scores.csv, statistics.csv, round-summary.xlsx, labs/*.xlsx ...)")
+        print(f"\n{CAUTION}")
+    if strict and ev.failed_checks:
+        print("roundscore: --strict: checks failed: " + "; ".join(ev.failed_checks), file=sys.stderr)
+        return 1
+    return 0
+
+
+def run_score(args: argparse.Namespace) -> int:
+    from ..pipeline import run_round
+
+    rp = Path(args.round)
+    folder = rp if rp.is_dir() else rp.parent
+    out = Path(args.out) if args.out else folder / "out"
+    ev, outputs = run_round(rp, out, archive=args.archive, jobs=args.jobs)
+    return _report(ev, outputs, quiet=args.quiet, strict=args.strict)
+
+
+def run_demo(args: argparse.Namespace) -> int:
+    """The demo round is written to OUT/round and its outputs to OUT, all in one atomic step."""
+    from ..demo import make_demo_round
+    from ..pipeline import Outputs, atomic_folder, load_and_evaluate, write_outputs
+
+    out = Path(args.out)
+    with atomic_folder(out) as tmp:
+        make_demo_round(tmp / "round")
+        ev = load_and_evaluate(tmp / "round")
+        written = write_outputs(ev, tmp)
+    outputs = Outputs(folder=out, files=tuple(out / p.relative_to(tmp) for p in written))
+    print(f"Demo round (invented data) written to {out / 'round'}/\n")
+    return _report(ev, outputs)
+
+
+def run_forms(args: argparse.Namespace) -> int:
+    from ..io.forms import write_forms
+    from ..io.readers import read_participants
+    from ..pipeline import atomic_folder
+    from ..round import load_round
+
+    rnd = load_round(args.round)
+    if args.labs:
+        parts = read_participants(rnd)
+        labs = [(lab, parts[lab].name if lab in parts else None) for lab in args.labs]
+    else:
+        parts = read_participants(rnd)
+        if not parts:
+            from ..errors import InputError
+
+            raise InputError.single("no participants: name a participants file in round.toml "
+                                    "([round] participants = \"participants.csv\") or give --labs",
+                                    file=str(rnd.path))
+        labs = [(lab, p.name) for lab, p in parts.items()]
+    out = Path(args.out) if args.out else rnd.folder / "forms"
+    with atomic_folder(out) as tmp:
+        paths = write_forms(rnd, labs, tmp)
+    print(f"Wrote {len(paths)} blank submission forms to {out}/")
+    return 0
+
+
+def run_check(args: argparse.Namespace) -> int:
+    from ..pipeline import load_and_evaluate
+
+    ev = load_and_evaluate(args.round)
+    print(summary_text(ev))
+    print("\nThe round file and results are valid; nothing was written.")
+    return 0

@@ -1,0 +1,165 @@
+"""The bundled demo round, made by a seeded generator (invented data).
+
+Scenario (invented): *Skerrywater Proficiency Services* runs the seaweed
+scheme SKW; round SKW-2026-14 sent portions of a dried kelp meal to 31
+laboratories, who measured iodine, cadmium, total arsenic, lead, mercury and
+moisture in duplicate. The data hold a few planted features for the tools to
+find: two outlying labs, one result reported in the wrong unit (a unit slip),
+one censored result, a lab that reports arsenic in µg/g (converted), a lab
+that did not report moisture, and two method groups for iodine that differ a
+little.
+
+``python rounds/make_demo.py`` rewrites ``rounds/skw-2026-14`` from this
+module; a test checks that the committed files equal what it makes.
+"""
+
+from __future__ import annotations
+
+import csv
+from pathlib import Path
+
+import numpy as np
+
+__all__ = ["make_demo_round", "DEMO_ID", "DEMO_SEED"]
+
+DEMO_ID = "SKW-2026-14"
+DEMO_SEED = 20261014
+
+ROUND_TOML = """\
+# Demo round (invented data): dried kelp meal, six measurands, 31 laboratories.
+[round]
+id = "SKW-2026-14"
+title = "Seaweed scheme round 14: elements and moisture in dried kelp meal"
+scheme = "SKW"
+date = "2026-10-14"
+provider = "Skerrywater Proficiency Services"
+material = "Dried kelp meal, test item KM-14"
+results = "results.csv"
+participants = "participants.csv"
+replicates = 2
+
+[measurand.iodine]
+unit = "mg/kg"
+assigned = "algorithm-a"
+sigma_pt = "horwitz"
+score = "z"
+decimals = 0
+
+[measurand.cadmium]
+unit = "mg/kg"
+assigned = "algorithm-a"
+sigma_pt = 0.12
+decimals = 3
+
+[measurand.arsenic]
+label = "total arsenic"
+unit = "mg/kg"
+assigned = "algorithm-a"
+sigma_pt = { s_R = 4.1, s_r = 1.6, replicates = 2 }
+decimals = 1
+
+[measurand.lead]
+unit = "mg/kg"
+assigned = 0.512
+u_assigned = 0.012
+sigma_pt = 0.06
+score = "zeta"
+decimals = 3
+
+[measurand.mercury]
+unit = "mg/kg"
+assigned = 0.087
+u_assigned = 0.003
+sigma_pt = 0.013
+score = "en"
+decimals = 3
+
+[measurand.moisture]
+unit = "g/100 g"
+assigned = "median"
+sigma_pt = "robust-sd"
+score = "z-prime"
+decimals = 2
+"""
+
+# name: (true value, between-lab SD, within-lab SD, decimals)
+_MEASURANDS = {
+    "iodine": (2480.0, 95.0, 40.0, 0),
+    "cadmium": (0.846, 0.07, 0.025, 3),
+    "arsenic": (47.3, 3.6, 1.5, 1),
+    "lead": (0.512, 0.045, 0.018, 3),
+    "mercury": (0.087, 0.009, 0.004, 3),
+    "moisture": (9.62, 0.22, 0.08, 2),
+}
+_METHODS = {
+    "iodine": ("ICP-MS after alkaline extraction", "iodometric titration"),
+    "arsenic": ("ICP-MS", "hydride generation AAS"),
+}
+_NAMES = [
+    "Aldgrove Food Laboratory", "Brackenmoor Analytical", "Cairnloch Testing Services", "Dunmere Marine Lab",
+    "Eastholm Public Analyst", "Fennick Agri-Food Labs", "Glenvarra Chemical Services", "Harlow Bay Analysis",
+    "Inchcroft Laboratories", "Juniper Ridge Testing", "Kestrel Point Analytical", "Lowmoss Food Safety Lab",
+    "Marrowdale Environmental", "Northwick Trace Metals", "Orrin Valley Labs", "Pendle Coast Analysis",
+    "Quarrystone Scientific", "Ravensford Laboratory", "Saltcote Analytical", "Thornbury Marine Chemistry",
+    "Ulverholm Test House", "Vale of Ashby Labs", "Westerlea Analytical", "Yarrowfield Food Lab",
+    "Zennor Sound Laboratory", "Amberley Shore Testing", "Birchcliff Analytical", "Coldharbour Labs",
+    "Drumlin Chemical", "Elsdon Trace Analysis", "Fairhaven Quality Lab",
+]
+
+
+def _fmt(v: float, d: int) -> str:
+    return f"{v:.{d}f}"
+
+
+def make_demo_round(folder: str | Path, *, seed: int = DEMO_SEED) -> Path:
+    """Write the demo round (round.toml, results.csv, participants.csv) into ``folder``; returns it."""
+    folder = Path(folder)
+    folder.mkdir(parents=True, exist_ok=True)
+    rng = np.random.default_rng(seed)
+    labs = [f"K{i:02d}" for i in range(1, len(_NAMES) + 1)]
+    rows = []
+    for name, (true, s_L, s_r, d) in _MEASURANDS.items():
+        bias = rng.normal(0.0, s_L, len(labs))
+        for li, lab in enumerate(labs):
+            method = ""
+            if name in _METHODS:
+                group = li % 3 == 0  # about a third use the second method
+                method = _METHODS[name][1 if group else 0]
+                if name == "iodine" and group:
+                    bias[li] += 0.9 * s_L  # the titration group reads a little high
+            unit = "mg/kg" if name != "moisture" else "g/100 g"
+            u_txt = U_txt = k_txt = ""
+            for rep in (1, 2):
+                v = true + bias[li] + rng.normal(0.0, s_r)
+                text = _fmt(v, d)
+                if name == "iodine" and lab == "K07":
+                    text = _fmt(v + 6.5 * s_L, d)  # outlying high
+                if name == "cadmium" and lab == "K19":
+                    text = _fmt(v * 1000.0, 0)  # reported in µg/kg under mg/kg: a unit slip
+                if name == "cadmium" and lab == "K11":
+                    text = _fmt(v - 5.0 * s_L, d)  # outlying low
+                if name == "arsenic" and lab == "K04":
+                    unit = "µg/g"  # same quantity, another spelling: converted
+                if name == "mercury" and lab == "K23":
+                    text = "<0.1"  # censored: the lab's limit is above the level
+                if name == "moisture" and lab == "K30":
+                    text = ""  # not reported
+                if name == "lead" and li % 4 != 1:
+                    u_txt = _fmt(max(0.6 * s_L, 0.01), 3)
+                if name == "mercury" and li % 3 != 2:
+                    U_txt, k_txt = _fmt(max(1.6 * s_L, 0.004), 3), "2"
+                if name in ("cadmium", "lead") and lab == "K15":
+                    text = text.replace(".", ",")  # decimal comma, as some labs type it
+                rows.append([lab, name, rep, text, unit, u_txt, U_txt, k_txt, method])
+    with open(folder / "results.csv", "w", newline="", encoding="utf-8") as fh:
+        w = csv.writer(fh, lineterminator="\n")
+        w.writerow(["lab", "measurand", "replicate", "value", "unit", "u", "U", "k", "method"])
+        w.writerows(rows)
+    with open(folder / "participants.csv", "w", newline="", encoding="utf-8") as fh:
+        w = csv.writer(fh, lineterminator="\n")
+        w.writerow(["lab", "name", "contact"])
+        for lab, nm in zip(labs, _NAMES):
+            slug = nm.lower().replace(" ", "-").replace("'", "")
+            w.writerow([lab, nm, f"pt-contact@{slug}.example"])
+    (folder / "round.toml").write_text(ROUND_TOML, encoding="utf-8")
+    return folder

@@ -1,0 +1,400 @@
+"""The round's evaluation: computed once, read by every writer.
+
+``evaluate(round, table)`` takes the validated settings and results and
+returns a :class:`RoundEvaluation` holding, per measurand, the lab means,
+the robust statistics, the assigned value and its uncertainty, σ_pt, every
+lab's scores and signals, and an audit trail of every decision (what was
+left out and why). Writers never recompute a statistic.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from .errors import StatisticsError
+from .io.readers import Participant
+from .round import MeasurandSettings, Round
+from .stats import robust, scores as sc, sigma as sg
+from .table import ResultTable
+from .units import UnitError, mass_fraction
+
+__all__ = ["evaluate", "RoundEvaluation", "MeasurandResult", "SCORE_COLUMNS", "STATISTICS_COLUMNS",
+           "AUDIT_COLUMNS", "U_CHECK_FACTOR", "DEFAULT_K"]
+
+#: scores.csv columns (fixed by contract; the round columns follow so a file stands alone).
+SCORE_COLUMNS = (
+    "lab", "measurand", "unit", "n_replicates", "result", "assigned", "u_assigned", "sigma_pt",
+    "z", "z_prime", "zeta", "en", "d", "d_percent", "signal", "note",
+    "score", "scheme", "round", "round_date",
+)
+STATISTICS_COLUMNS = (
+    "measurand", "unit", "p", "assigned", "u_assigned", "sigma_pt", "robust_mean", "robust_sd",
+    "median", "made", "niqr", "iterations", "u_check_passed", "score",
+)
+AUDIT_COLUMNS = ("measurand", "lab", "step", "action", "reason")
+#: u(x_pt) is negligible when ≤ 0.3 σ_pt (ISO 13528 §9.2.1).
+U_CHECK_FACTOR = 0.3
+#: Coverage factor assumed when a lab gives U without k (common practice: k = 2 for about 95 %).
+DEFAULT_K = 2.0
+#: Column of the scores frame that holds each score name's value.
+SCORE_FIELD = {"z": "z", "z-prime": "z_prime", "zeta": "zeta", "en": "en"}
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class MeasurandResult:
+    """Everything computed for one measurand.
+
+    Attributes
+    ----------
+    settings : MeasurandSettings
+    labs : pandas.DataFrame
+        One row per lab: lab, n_replicates, mean, sd, status ("value",
+        "censored", "not-reported"), relation, limit, u, U, k, method,
+        used (in the consensus), reason (why not used).
+    p : int
+        Number of lab means used for the statistics.
+    robust : RobustEstimate or None
+        Algorithm A on the lab means used (None with fewer than 3).
+    median, made, niqr : float
+    assigned, u_assigned, sigma_pt : float
+        x_pt, u(x_pt) and σ_pt (NaN when they could not be set; see notes).
+    assigned_source, sigma_source : str
+        In words, where x_pt and σ_pt came from.
+    u_check_passed : bool or None
+        u(x_pt) ≤ 0.3 σ_pt (None when not computable).
+    notes : tuple of str
+        Things the reader of the report must know about this measurand.
+    """
+
+    settings: MeasurandSettings
+    labs: pd.DataFrame
+    p: int
+    robust: robust.RobustEstimate | None
+    median: float
+    made: float
+    niqr: float
+    assigned: float
+    u_assigned: float
+    sigma_pt: float
+    assigned_source: str
+    sigma_source: str
+    u_check_passed: bool | None
+    notes: tuple[str, ...] = ()
+
+    @property
+    def name(self) -> str:
+        return self.settings.name
+
+    @property
+    def scored(self) -> bool:
+        return bool(np.isfinite(self.assigned) and np.isfinite(self.sigma_pt) and self.sigma_pt > 0)
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class RoundEvaluation:
+    """The whole evaluation of a round; every writer reads this and nothing else.
+
+    Attributes
+    ----------
+    round : Round
+    table : ResultTable
+    participants : dict of str to Participant
+        Confidential; only a lab's own sheet shows its entry.
+    measurands : dict of str to MeasurandResult
+    scores : pandas.DataFrame
+        One row per lab × measurand, :data:`SCORE_COLUMNS` plus ``rank``
+        and ``n_scored`` (where the lab stands among all scored labs, by |score|).
+    statistics : pandas.DataFrame
+        One row per measurand, :data:`STATISTICS_COLUMNS`.
+    audit : pandas.DataFrame
+        :data:`AUDIT_COLUMNS`: every exclusion and decision with its reason.
+    extras : dict
+        Tables added by later stages (precision, screens, mandel, methods,
+        items), by name, each a DataFrame.
+    warnings : tuple of str
+    """
+
+    round: Round
+    table: ResultTable
+    participants: dict[str, Participant]
+    measurands: dict[str, MeasurandResult]
+    scores: pd.DataFrame
+    statistics: pd.DataFrame
+    audit: pd.DataFrame
+    extras: dict[str, Any] = field(default_factory=dict)
+    warnings: tuple[str, ...] = ()
+
+    @property
+    def labs(self) -> list[str]:
+        return sorted(self.scores["lab"].unique(), key=_lab_key)
+
+    def lab_scores(self, lab: str) -> pd.DataFrame:
+        return self.scores[self.scores["lab"] == lab]
+
+    @property
+    def failed_checks(self) -> list[str]:
+        """Headlines of failed checks that must head the summary and every lab sheet."""
+        out = []
+        for m in self.measurands.values():
+            if m.u_check_passed is False:
+                out.append(f"{m.name}: u(x_pt) exceeds 0.3 σ_pt")
+        items = self.extras.get("items")
+        if items is not None and len(items):
+            for _, r in items[~items["passed"].astype(bool)].iterrows():
+                out.append(f"{r['measurand']}: {r['check']} check failed")
+        return out
+
+
+def _lab_key(code: str):
+    # Natural order: L2 before L10.
+    import re
+
+    return [int(t) if t.isdigit() else t for t in re.split(r"(\d+)", str(code))]
+
+
+def _lab_table(rnd: Round, table: ResultTable, name: str, all_labs: list[str]) -> pd.DataFrame:
+    """Per-lab summary of one measurand's replicates."""
+    f = table.frame
+    f = f[f["measurand"] == name]
+    rows = []
+    groups = {lab: g for lab, g in f.groupby("lab", sort=False)}
+    for lab in all_labs:
+        g = groups.get(lab)
+        rec: dict[str, Any] = {"lab": lab, "n_replicates": 0, "mean": np.nan, "sd": np.nan,
+                               "status": "not-reported", "relation": None, "limit": np.nan,
+                               "u": np.nan, "U": np.nan, "k": np.nan, "method": None,
+                               "result_text": "", "used": False, "reason": ""}
+        if g is not None:
+            vals = g.loc[g["status"] == "value", "value"].to_numpy()
+            cens = g[g["status"] == "censored"]
+            for col in ("u", "U", "k"):
+                s = g[col].dropna()
+                rec[col] = float(s.iloc[0]) if len(s) else np.nan
+            meth = g["method"].dropna()
+            rec["method"] = str(meth.iloc[0]) if len(meth) else None
+            if len(cens):
+                rel = cens["relation"].iloc[0]
+                limits = cens["limit"].dropna()
+                lim = (limits.max() if rel == "<" else limits.min()) if len(limits) else np.nan
+                rec.update(status="censored", relation=rel, limit=float(lim), n_replicates=len(g),
+                           result_text=f"{rel}{lim:g}" if np.isfinite(lim) else f"{rel}limit not given")
+                if len(vals):
+                    rec["reason"] = "some replicates censored: the result is treated as censored"
+            elif len(vals):
+                rec.update(status="value", n_replicates=len(vals), mean=float(np.mean(vals)),
+                           sd=float(np.std(vals, ddof=1)) if len(vals) > 1 else np.nan)
+        if np.isnan(rec["u"]) and np.isfinite(rec["U"]):
+            k = rec["k"] if np.isfinite(rec["k"]) else DEFAULT_K
+            rec["u"] = rec["U"] / k
+        rows.append(rec)
+    return pd.DataFrame(rows)
+
+
+def _assign(m: MeasurandSettings, est, med, made_v, p) -> tuple[float, float, str, list[str]]:
+    notes: list[str] = []
+    if not m.is_consensus:
+        return float(m.assigned), float(m.u_assigned or 0.0), "reference value stated in the round file", notes
+    if p < 3:
+        notes.append(f"only {p} usable result(s): a consensus value needs at least 3; no scores for this measurand")
+        return np.nan, np.nan, "consensus (not computable)", notes
+    if m.assigned == "median":
+        u = robust.CONSENSUS_U_FACTOR * made_v / np.sqrt(p)
+        return med, u, f"median of {p} lab means; u = 1.25·MADe/√p", notes
+    if est.sd == 0:
+        notes.append(est.note)
+    return est.mean, est.u_mean, f"robust mean (Algorithm A) of {p} lab means; u = 1.25·s*/√p", notes
+
+
+def _sigma(m: MeasurandSettings, est, x_pt: float) -> tuple[float, str, list[str]]:
+    spec = m.sigma_pt
+    if spec.kind == "fixed":
+        return float(spec.value), spec.describe(), []
+    if spec.kind == "precision":
+        return sg.sigma_from_precision(spec.s_R, spec.s_r, spec.replicates), spec.describe(), []
+    if spec.kind == "robust-sd":
+        if est is None or not est.sd > 0:
+            return np.nan, spec.describe(), ["σ_pt from the robust SD cannot be set (too few results or zero spread)"]
+        return est.sd, spec.describe(), []
+    # Horwitz–Thompson at the assigned value.
+    try:
+        mf = mass_fraction(m.unit)
+    except UnitError as exc:
+        return np.nan, spec.describe(), [str(exc)]
+    if not x_pt > 0:
+        return np.nan, spec.describe(), ["the Horwitz function needs an assigned value > 0"]
+    return float(sg.horwitz_thompson(x_pt * mf) / mf), f"{spec.describe()} at x_pt = {x_pt:.6g} {m.unit}", []
+
+
+def _measurand(rnd: Round, labs: pd.DataFrame, m: MeasurandSettings,
+               est: robust.RobustEstimate | None, audit: list[tuple]) -> MeasurandResult:
+    labs = labs.copy()
+    for e in rnd.exclusions:
+        if e.measurand in (None, m.name):
+            hit = labs["lab"] == e.lab
+            labs.loc[hit, "reason"] = f"excluded by the coordinator: {e.reason}"
+            labs.loc[hit, "excluded"] = True
+            labs.loc[hit, "withhold"] = not e.scored
+            if hit.any():
+                audit.append((m.name, e.lab, "exclusion", "left out of the statistics", e.reason))
+    if "excluded" not in labs:
+        labs["excluded"] = False
+    if "withhold" not in labs:
+        labs["withhold"] = False
+    labs["excluded"] = labs["excluded"].fillna(False).astype(bool)
+    labs["withhold"] = labs["withhold"].fillna(False).astype(bool)
+    labs["used"] = (labs["status"] == "value") & ~labs["excluded"]
+    for _, r in labs.iterrows():
+        if r["status"] == "censored":
+            audit.append((m.name, r["lab"], "import", "left out of the statistics",
+                          f"censored result {r['result_text']}"))
+        elif r["status"] == "not-reported":
+            audit.append((m.name, r["lab"], "import", "not scored", "no result reported"))
+    used = labs.loc[labs["used"], "mean"].to_numpy()
+    p = len(used)
+    med = float(np.median(used)) if p else np.nan
+    made_v = float(robust.made(used)) if p else np.nan
+    niqr_v = float(robust.niqr(used)) if p else np.nan
+    x_pt, u_pt, a_src, notes = _assign(m, est, med, made_v, p)
+    if est is not None and est.note:
+        notes.append(f"Algorithm A: {est.note}")
+    s_pt, s_src, s_notes = _sigma(m, est, x_pt if np.isfinite(x_pt) else np.nan)
+    notes += s_notes
+    u_ok = None
+    if np.isfinite(u_pt) and np.isfinite(s_pt):
+        u_ok = bool(u_pt <= U_CHECK_FACTOR * s_pt)
+        if not u_ok:
+            msg = (f"u(x_pt) = {u_pt:.3g} exceeds 0.3 σ_pt = {U_CHECK_FACTOR * s_pt:.3g}: the uncertainty of the "
+                   "assigned value is not negligible")
+            if m.score == "z":
+                msg += "; consider z′ (score = \"z-prime\")"
+            notes.append(msg)
+            audit.append((m.name, "", "assigned value", "check failed", msg))
+    audit.append((m.name, "", "assigned value", "set", f"{a_src}: x_pt = {x_pt:.6g}, u(x_pt) = {u_pt:.3g}"))
+    audit.append((m.name, "", "sigma_pt", "set", f"{s_src}: σ_pt = {s_pt:.6g}"))
+    return MeasurandResult(
+        settings=m, labs=labs, p=p, robust=est, median=med, made=made_v, niqr=niqr_v,
+        assigned=x_pt, u_assigned=u_pt, sigma_pt=s_pt, assigned_source=a_src, sigma_source=s_src,
+        u_check_passed=u_ok, notes=tuple(notes),
+    )
+
+
+def _score_rows(rnd: Round, mr: MeasurandResult) -> pd.DataFrame:
+    m = mr.settings
+    labs = mr.labs
+    x = labs["mean"].to_numpy(float)
+    x_pt, u_pt, s_pt = mr.assigned, mr.u_assigned, mr.sigma_pt
+    U_pt = 2.0 * u_pt
+    U_lab = labs["U"].to_numpy(float)
+    U_lab = np.where(np.isnan(U_lab), DEFAULT_K * labs["u"].to_numpy(float), U_lab)
+    with np.errstate(all="ignore"):
+        z = sc.z_score(x, x_pt, s_pt)
+        zp = sc.z_prime_score(x, x_pt, s_pt, u_pt)
+        zeta = sc.zeta_score(x, x_pt, labs["u"].to_numpy(float), u_pt)
+        en = sc.en_score(x, x_pt, U_lab, U_pt)
+        d = sc.difference(x, x_pt)
+        dp = sc.percent_difference(x, x_pt)
+    chosen = {"z": z, "z-prime": zp, "zeta": zeta, "en": en}[m.score]
+    chosen = np.where(labs["withhold"].to_numpy(bool), np.nan, chosen)
+    sig = sc.signal(chosen, "en" if m.score == "en" else "z")
+    notes = labs["reason"].fillna("").astype(str).to_numpy(dtype=object)
+    slip = sc.possible_unit_slip(x, x_pt)
+    for i in range(len(labs)):
+        st = labs["status"].iat[i]
+        add = []
+        if st == "not-reported":
+            add.append("not reported")
+        elif st == "censored":
+            lim, rel = labs["limit"].iat[i], labs["relation"].iat[i]
+            if rel == "<" and np.isfinite(lim) and mr.scored and lim < x_pt - sc.Z_ACTION * s_pt:
+                sig[i] = "action"
+                add.append("false negative: the limit is below x_pt − 3σ_pt")
+            elif rel == ">" and np.isfinite(lim) and mr.scored and lim > x_pt + sc.Z_ACTION * s_pt:
+                sig[i] = "action"
+                add.append("false positive: the limit is above x_pt + 3σ_pt")
+            else:
+                add.append(f"censored result {labs['result_text'].iat[i]}: not scored")
+        elif not mr.scored:
+            add.append("not scored: the assigned value or σ_pt could not be set")
+        elif labs["withhold"].iat[i]:
+            add.append("score withheld by the coordinator")
+        elif np.isnan(chosen[i]):
+            add.append({"zeta": "no uncertainty reported: ζ needs u", "en": "no uncertainty reported: En needs U"}
+                       .get(m.score, "not scored"))
+        if sig[i] == "action" and st == "value" and slip[i]:
+            add.append("possible unit or decimal slip")
+        notes[i] = "; ".join([t for t in [notes[i], *add] if t])
+    result = np.where(labs["status"] == "censored", labs["result_text"], "")
+    out = pd.DataFrame({
+        "lab": labs["lab"], "measurand": m.name, "unit": m.unit, "n_replicates": labs["n_replicates"],
+        "result": [r if r else (x[i] if np.isfinite(x[i]) else np.nan) for i, r in enumerate(result)],
+        "assigned": x_pt, "u_assigned": u_pt, "sigma_pt": s_pt,
+        "z": z, "z_prime": zp, "zeta": zeta, "en": en, "d": d, "d_percent": dp,
+        "signal": sig, "note": notes, "score": m.score,
+        "scheme": rnd.scheme, "round": rnd.id, "round_date": rnd.date,
+    })
+    value = np.abs(chosen)
+    ok = np.isfinite(value)
+    ranks = np.full(len(value), np.nan)
+    if ok.any():
+        order = pd.Series(value[ok]).rank(method="min").to_numpy()
+        ranks[ok] = order
+    out["rank"] = ranks
+    out["n_scored"] = int(ok.sum())
+    out["method"] = labs["method"].to_numpy()
+    return out
+
+
+def evaluate(rnd: Round, table: ResultTable, participants: dict[str, Participant] | None = None,
+             ) -> RoundEvaluation:
+    """Evaluate a round: statistics, assigned values, σ_pt and scores for every measurand.
+
+    Algorithm A runs once, vectorised over all measurands.
+    """
+    participants = participants or {}
+    all_labs = sorted(set(table.frame["lab"]) | set(participants), key=_lab_key)
+    audit: list[tuple] = []
+    names = list(rnd.measurands)
+    # Lab means per measurand, for one vectorised Algorithm A call.
+    pre = {n: _lab_table(rnd, table, n, all_labs) for n in names}
+    excluded = {(e.lab, e.measurand) for e in rnd.exclusions}
+    mat = np.full((len(names), len(all_labs)), np.nan)
+    for i, n in enumerate(names):
+        lt = pre[n]
+        keep = (lt["status"] == "value") & ~lt["lab"].map(lambda L: (L, n) in excluded or (L, None) in excluded)
+        mat[i, keep.to_numpy()] = lt.loc[keep, "mean"].to_numpy()
+    estimates = robust.algorithm_a(mat) if len(names) else []
+    results = {}
+    for i, n in enumerate(names):
+        est = estimates[i] if estimates[i].n >= 3 else None
+        results[n] = _measurand(rnd, pre[n], rnd.measurands[n], est, audit)
+    frames = [_score_rows(rnd, results[n]) for n in names]
+    scores = pd.concat(frames, ignore_index=True) if frames else pd.DataFrame(columns=SCORE_COLUMNS)
+    stats_rows = []
+    for n in names:
+        r = results[n]
+        e = r.robust
+        stats_rows.append({
+            "measurand": n, "unit": r.settings.unit, "p": r.p, "assigned": r.assigned,
+            "u_assigned": r.u_assigned, "sigma_pt": r.sigma_pt,
+            "robust_mean": e.mean if e else np.nan, "robust_sd": e.sd if e else np.nan,
+            "median": r.median, "made": r.made, "niqr": r.niqr,
+            "iterations": e.iterations if e else 0, "u_check_passed": r.u_check_passed,
+            "score": r.settings.score,
+        })
+    statistics = pd.DataFrame(stats_rows, columns=list(STATISTICS_COLUMNS))
+    audit_df = pd.DataFrame(audit, columns=list(AUDIT_COLUMNS))
+    return RoundEvaluation(
+        round=rnd, table=table, participants=participants, measurands=results, scores=scores,
+        statistics=statistics, audit=audit_df, warnings=tuple(rnd.warnings) + tuple(table.warnings),
+    )
+
+
+def check_scorable(ev: RoundEvaluation) -> None:
+    """Raise when no measurand could be scored at all (nothing useful to circulate)."""
+    if ev.measurands and not any(m.scored for m in ev.measurands.values()):
+        raise StatisticsError("no measurand could be scored: " + "; ".join(
+            f"{m.name}: {' '.join(m.notes) or 'no assigned value'}" for m in ev.measurands.values()))

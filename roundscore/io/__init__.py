@@ -1,0 +1,1 @@
+"""Readers and writers at the edge of the package."""

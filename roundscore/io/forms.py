@@ -1,0 +1,206 @@
+"""Blank submission workbooks (one per participant) and reading them back.
+
+A form has two sheets:
+
+``Results``
+    A heading block (round, laboratory code, return instructions) and a
+    table with one row per measurand: unit, one cell per replicate, the
+    standard uncertainty u, or the expanded uncertainty U with its coverage
+    factor k, the method and a comment. Only those cells are unlocked; the
+    sheet is protected (without a password: protection guards against
+    slips, not against intent) and the result cells are validated.
+``form-info``
+    Key/value pairs the reader relies on: the generator, the form format,
+    round id, lab code, the row where the table starts and how many
+    replicates the form asks for.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Iterable
+
+import xlsxwriter
+
+from ..errors import Problem
+from ..round import Round
+from .xlsx import SheetRows
+
+__all__ = ["write_forms", "write_form", "records_from_form", "FORM_FORMAT", "RESULTS_SHEET", "INFO_SHEET"]
+
+FORM_FORMAT = 1
+RESULTS_SHEET = "Results"
+INFO_SHEET = "form-info"
+HEADER_ROW = 9  # 1-based row of the table header
+FIRST_ROW = HEADER_ROW + 1
+
+
+def _columns(replicates: int) -> list[str]:
+    return (
+        ["Measurand", "Unit"]
+        + [f"Result {i}" for i in range(1, replicates + 1)]
+        + ["Standard uncertainty u", "Expanded uncertainty U", "Coverage factor k", "Method", "Comment"]
+    )
+
+
+def write_form(rnd: Round, lab: str, path: Path, *, name: str | None = None,
+               deadline: str = "") -> None:
+    """Write the blank form of one participant to ``path``."""
+    reps = rnd.replicates
+    wb = xlsxwriter.Workbook(str(path), {"strings_to_formulas": False, "strings_to_urls": False})
+    wb.set_properties({"title": f"Submission form {rnd.id} {lab}", "author": rnd.provider or "roundscore",
+                       "created": _fixed_time()})
+    bold = wb.add_format({"bold": True})
+    title = wb.add_format({"bold": True, "font_size": 14})
+    head = wb.add_format({"bold": True, "bg_color": "#DDE6F0", "border": 1, "text_wrap": True, "valign": "top"})
+    locked = wb.add_format({"border": 1, "bg_color": "#F2F2F2"})
+    entry = wb.add_format({"locked": False, "border": 1, "bg_color": "#FFFFFF"})
+    note = wb.add_format({"italic": True, "font_color": "#444444"})
+    ws = wb.add_worksheet(RESULTS_SHEET)
+    ws.write(0, 0, f"{rnd.provider + ' — ' if rnd.provider else ''}proficiency test submission form", title)
+    for r, (label, value) in enumerate(
+        [("Round", rnd.id), ("Title", rnd.title), ("Material", rnd.material),
+         ("Laboratory code", lab), ("Laboratory", name or ""), ("Return by", deadline)], start=1):
+        ws.write(r, 0, label, bold)
+        ws.write_string(r, 1, str(value))
+    cols = _columns(reps)
+    for j, c in enumerate(cols):
+        ws.write(HEADER_ROW - 1, j, c, head)
+    n_first_u = 2 + reps
+    for i, m in enumerate(rnd.measurands.values()):
+        r = FIRST_ROW - 1 + i
+        ws.write_string(r, 0, m.name, locked)
+        ws.write_string(r, 1, m.unit, locked)
+        for j in range(2, len(cols)):
+            ws.write_blank(r, j, None, entry)
+        for j in range(2, 2 + reps):
+            cell = xlsxwriter.utility.xl_rowcol_to_cell(r, j)
+            ws.data_validation(r, j, r, j, {
+                "validate": "custom",
+                "value": f'=OR(ISNUMBER({cell}),LEFT({cell},1)="<",{cell}="")',
+                "error_title": "Result",
+                "error_message": "Enter a number, or <limit for a result below your limit (e.g. <0.5).",
+            })
+        ws.data_validation(r, n_first_u, r, n_first_u + 1, {
+            "validate": "decimal", "criteria": ">=", "value": 0,
+            "error_message": "Uncertainties are numbers ≥ 0, in the unit of the result."})
+        ws.data_validation(r, n_first_u + 2, r, n_first_u + 2, {
+            "validate": "decimal", "criteria": "between", "minimum": 1, "maximum": 10,
+            "error_message": "The coverage factor k is usually 2."})
+        ws.data_validation(r, n_first_u + 3, r, n_first_u + 4, {
+            "validate": "length", "criteria": "<=", "value": 200,
+            "error_message": "At most 200 characters."})
+    end = FIRST_ROW + len(rnd.measurands)
+    notes = [
+        "Enter each replicate result in the unit shown. Use <limit (e.g. <0.5) for a result below your limit "
+        "of quantification; leave a cell blank if you did not measure it.",
+        "Give either the standard uncertainty u, or the expanded uncertainty U with its coverage factor k.",
+        "Do not rename sheets or move rows: the form is read back automatically.",
+    ]
+    for i, t in enumerate(notes):
+        ws.write(end + i, 0, t, note)
+    ws.set_column(0, 0, 22)
+    ws.set_column(1, 1, 10)
+    ws.set_column(2, 1 + reps, 12)
+    ws.set_column(n_first_u, n_first_u + 2, 14)
+    ws.set_column(n_first_u + 3, n_first_u + 4, 28)
+    ws.freeze_panes(HEADER_ROW, 1)
+    ws.protect("", {"select_locked_cells": True, "select_unlocked_cells": True,
+                    "format_columns": True})
+    info = wb.add_worksheet(INFO_SHEET)
+    info.write_row(0, 0, ["key", "value"], bold)
+    pairs = [("generator", "roundscore"), ("format", FORM_FORMAT), ("round", rnd.id), ("lab", lab),
+             ("replicates", reps), ("header_row", HEADER_ROW), ("measurands", len(rnd.measurands))]
+    for r, (k, v) in enumerate(pairs, start=1):
+        info.write(r, 0, k)
+        info.write(r, 1, v)
+    info.protect("")
+    wb.close()
+
+
+def _fixed_time():
+    import datetime as dt
+
+    # A fixed creation time keeps workbooks byte-reproducible.
+    return dt.datetime(2000, 1, 1)
+
+
+def write_forms(rnd: Round, labs: Iterable[tuple[str, str | None]], folder: Path) -> list[Path]:
+    """Write one blank form per (lab code, name) into ``folder``; returns the paths."""
+    folder.mkdir(parents=True, exist_ok=True)
+    paths = []
+    for lab, name in labs:
+        p = folder / f"{rnd.id}-{_safe(lab)}.xlsx"
+        write_form(rnd, lab, p, name=name)
+        paths.append(p)
+    return paths
+
+
+def _safe(text: str) -> str:
+    return "".join(ch if ch.isalnum() or ch in "-_." else "_" for ch in text)
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class FormRead:
+    lab: str
+    records: list
+    problems: list[Problem]
+
+
+def records_from_form(rnd: Round, results: SheetRows, info: SheetRows):
+    """Long-layout records from a returned form's two sheets.
+
+    Returns ``(records, problems)``; problems name the file, sheet and row.
+    """
+    from ..table import Record
+
+    problems: list[Problem] = []
+    kv = {}
+    for r in info.rows[1:]:
+        if r and r[0] is not None:
+            kv[str(r[0]).strip()] = r[1] if len(r) > 1 else None
+    file = results.file
+    if kv.get("generator") != "roundscore":
+        return [], [Problem(message=f"not a roundscore submission form (sheet {INFO_SHEET!r} lacks generator)",
+                            file=file)]
+    round_id = str(kv.get("round", "")).strip()
+    if round_id != rnd.id:
+        problems.append(Problem(message=f"this form is for round {round_id!r}, not {rnd.id!r}",
+                                file=file, sheet=INFO_SHEET))
+    lab = kv.get("lab")
+    lab = str(int(lab)) if isinstance(lab, float) and lab.is_integer() else str(lab or "").strip()
+    if not lab:
+        problems.append(Problem(message="the form has no laboratory code", file=file, sheet=INFO_SHEET))
+    try:
+        header_row = int(kv.get("header_row", HEADER_ROW))
+        reps = int(kv.get("replicates", rnd.replicates))
+    except (TypeError, ValueError):
+        return [], problems + [Problem(message="the form-info sheet is damaged", file=file, sheet=INFO_SHEET)]
+    if problems:
+        return [], problems
+    rows = results.rows
+    cols = _columns(reps)
+    header = [str(c).strip() if c is not None else "" for c in (rows[header_row - 1] if len(rows) >= header_row else [])]
+    if header[: len(cols)] != cols:
+        return [], [Problem(message="the results table header was changed; expected: " + ", ".join(cols),
+                            file=file, sheet=results.sheet, row=header_row)]
+    records = []
+    iu = 2 + reps
+    for i in range(header_row, len(rows)):
+        r = list(rows[i]) + [None] * (len(cols) - len(rows[i]))
+        name = r[0]
+        if name is None or str(name).strip() == "":
+            break
+        if str(name).strip() not in rnd.measurands:
+            # The instructions below the table, or a measurand row a lab typed in.
+            if all(c is None for c in r[1:len(cols)]):
+                break
+        for rep in range(1, reps + 1):
+            v = r[1 + rep]
+            records.append(Record(
+                lab=lab, measurand=name, replicate=rep, value=v, unit=r[1], u=r[iu], U=r[iu + 1],
+                k=r[iu + 2], method=r[iu + 3], comment=r[iu + 4],
+                file=file, sheet=results.sheet, row=i + 1,
+            ))
+    return records, problems

@@ -1,0 +1,118 @@
+"""The whole job for one round folder: read, evaluate, write every output atomically.
+
+Outputs are written into a temporary folder beside the target and moved into
+place only when all of them are complete, so a failed or interrupted run
+leaves the previous outputs as they were.
+"""
+
+from __future__ import annotations
+
+import os
+import shutil
+import tempfile
+from contextlib import contextmanager
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Callable, Iterator
+
+from .evaluate import AUDIT_COLUMNS, SCORE_COLUMNS, STATISTICS_COLUMNS, RoundEvaluation, evaluate
+from .io.csvout import write_csv
+from .io.readers import read_participants, read_results
+from .io.workbook import lab_payload, write_lab_workbook, write_summary
+from .round import Round, load_round
+
+__all__ = ["run_round", "write_outputs", "atomic_folder", "Outputs", "load_and_evaluate"]
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class Outputs:
+    """Where a run wrote its files."""
+
+    folder: Path
+    files: tuple[Path, ...]
+
+
+@contextmanager
+def atomic_folder(target: Path) -> Iterator[Path]:
+    """Yield a temporary folder; on success it replaces ``target`` whole, on failure it is removed.
+
+    The previous ``target`` is kept until the new one is complete, then
+    renamed away and deleted, so at every moment either the old or the new
+    outputs are there in full.
+    """
+    target = Path(target)
+    target.parent.mkdir(parents=True, exist_ok=True)
+    tmp = Path(tempfile.mkdtemp(prefix=f".{target.name}.partial-", dir=target.parent))
+    try:
+        yield tmp
+    except BaseException:
+        shutil.rmtree(tmp, ignore_errors=True)
+        raise
+    old = None
+    if target.exists():
+        old = target.parent / f".{target.name}.old-{os.getpid()}"
+        if old.exists():
+            shutil.rmtree(old, ignore_errors=True)
+        os.replace(target, old)
+    os.replace(tmp, target)
+    if old is not None:
+        shutil.rmtree(old, ignore_errors=True)
+
+
+def load_and_evaluate(round_path: str | Path) -> RoundEvaluation:
+    """Read the round file, its results and participants, and evaluate it."""
+    rnd = load_round(round_path)
+    table = read_results(rnd)
+    participants = read_participants(rnd)
+    return evaluate(rnd, table, participants)
+
+
+def write_outputs(ev: RoundEvaluation, folder: Path, *, history=None,
+                  progress: Callable[[str, int, int], None] | None = None) -> list[Path]:
+    """Write every output of an evaluation into ``folder`` (which must exist)."""
+    files = []
+
+    def out(name: str) -> Path:
+        p = folder / name
+        files.append(p)
+        return p
+
+    write_csv(ev.scores, out("scores.csv"), SCORE_COLUMNS)
+    write_csv(ev.statistics, out("statistics.csv"), STATISTICS_COLUMNS)
+    write_csv(ev.audit, out("audit.csv"), AUDIT_COLUMNS)
+    for name, frame in ev.extras.items():
+        if hasattr(frame, "columns"):
+            write_csv(frame, out(f"{name}.csv"))
+    write_summary(ev, out("round-summary.xlsx"))
+    labs_dir = folder / "labs"
+    labs_dir.mkdir()
+    labs = ev.labs
+    for i, lab in enumerate(labs):
+        hist = history(lab) if history is not None else None
+        write_lab_workbook(lab_payload(ev, lab, hist), out(f"labs/{_safe(lab)}.xlsx"))
+        if progress:
+            progress("lab sheets", i + 1, len(labs))
+    return files
+
+
+def _safe(text: str) -> str:
+    return "".join(ch if ch.isalnum() or ch in "-_." else "_" for ch in text)
+
+
+def run_round(round_path: str | Path, out: str | Path, *, archive: str | Path | None = None,
+              jobs: int | None = None, progress=None) -> tuple[RoundEvaluation, Outputs]:
+    """Score a round folder and write all outputs into ``out`` atomically.
+
+    With ``archive`` (or ``[round] archive`` in the round file) the round is
+    also stored in the history archive, after the outputs are complete.
+    """
+    ev = load_and_evaluate(round_path)
+    with atomic_folder(Path(out)) as tmp:
+        written = write_outputs(ev, tmp, progress=progress)
+    final = Path(out)
+    return ev, Outputs(folder=final, files=tuple(final / p.relative_to(tmp) for p in written))
+
+
+def default_forms(rnd: Round) -> list[tuple[str, str | None]]:
+    parts = read_participants(rnd)
+    return [(lab, p.name) for lab, p in parts.items()]

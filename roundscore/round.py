@@ -1,0 +1,466 @@
+"""``round.toml`` → :class:`Round`: the round's settings, validated.
+
+The file has a ``[round]`` table and one ``[measurand.NAME]`` table per
+measurand. Every mistake is reported with the file, the key, what was found
+and what is allowed; unknown keys are reported as warnings with the nearest
+valid key, so a typo does not silently fall back to a default.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import difflib
+import glob as _glob
+import math
+import tomllib
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, Literal
+
+from .errors import Problem, RoundFileError
+
+__all__ = [
+    "Round",
+    "Exclusion",
+    "MeasurandSettings",
+    "SigmaSpec",
+    "load_round",
+    "SCORES",
+    "ASSIGNED_METHODS",
+]
+
+ScoreName = Literal["z", "z-prime", "zeta", "en"]
+SCORES: tuple[str, ...] = ("z", "z-prime", "zeta", "en")
+ASSIGNED_METHODS: tuple[str, ...] = ("algorithm-a", "median")
+SIGMA_WORDS: tuple[str, ...] = ("horwitz", "robust-sd")
+OUTLIER_ACTIONS: tuple[str, ...] = ("exclude", "keep")
+
+ROUND_KEYS: dict[str, str] = {
+    "id": "text (required): the round's identifier",
+    "title": "text",
+    "scheme": "text: the PT scheme this round belongs to",
+    "date": "a date (2026-10-14) or text in that form",
+    "provider": "text: the PT provider's name",
+    "material": "text: the test material",
+    "results": "a CSV or .xlsx file, a folder or a glob of returned forms",
+    "results_sheet": "the sheet to read in a results workbook (default: the first)",
+    "participants": "a CSV file of lab, name, contact",
+    "replicates": "whole number ≥ 1: replicates asked for on the forms (default 2)",
+    "confidence": "number between 0.5 and 0.999 for method comparisons (default 0.95)",
+    "outliers": "'exclude' or 'keep': ISO 5725-2 outliers in the precision estimates (default exclude)",
+    "stragglers": "'exclude' or 'keep': ISO 5725-2 stragglers (default keep)",
+    "archive": "an archive file to store the round in",
+    "history_rounds": "whole number: past rounds shown on each lab sheet (default 8)",
+    "youden": "list of pairs of measurand names for Youden plots",
+    "words": "'signals' (acceptable/warning/action) or 'performance' (satisfactory/questionable/unsatisfactory)",
+}
+MEASURAND_KEYS: dict[str, str] = {
+    "unit": "text (required): a unit such as mg/kg, µg/L, g/100 g, %",
+    "label": "text: a longer name shown in reports",
+    "assigned": "'algorithm-a', 'median' or a number (reference or formulation value)",
+    "u_assigned": "number ≥ 0: standard uncertainty of a numeric assigned value",
+    "sigma_pt": "a number > 0, 'horwitz', 'robust-sd', or { s_R = …, s_r = …, replicates = n }",
+    "score": "'z', 'z-prime', 'zeta' or 'en'",
+    "decimals": "whole number 0–10: decimals shown in reports",
+    "allow_negative": "true or false: whether results below zero are possible (default false)",
+    "homogeneity": "a CSV or .xlsx file of item, replicate, value",
+    "stability": "a CSV or .xlsx file of item, replicate, value, set",
+    "item_checks": "'uncertainty', 'widen-sigma', 'both' or 'report' (default 'uncertainty')",
+}
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class SigmaSpec:
+    """Where σ_pt comes from.
+
+    ``kind`` is "fixed" (``value``), "horwitz", "robust-sd" or "precision"
+    (``s_R``, ``s_r``, ``replicates`` from a precision experiment).
+    """
+
+    kind: Literal["fixed", "horwitz", "robust-sd", "precision"]
+    value: float | None = None
+    s_R: float | None = None
+    s_r: float | None = None
+    replicates: int | None = None
+
+    def describe(self) -> str:
+        if self.kind == "fixed":
+            return f"fixed value {self.value:g}"
+        if self.kind == "horwitz":
+            return "Horwitz equation with Thompson's modification"
+        if self.kind == "robust-sd":
+            return "robust SD of the participants' results (Algorithm A)"
+        return (
+            f"precision experiment: s_R = {self.s_R:g}, s_r = {self.s_r:g}, "
+            f"n = {self.replicates}"
+        )
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class MeasurandSettings:
+    """The settings of one measurand from its ``[measurand.NAME]`` table."""
+
+    name: str
+    unit: str
+    label: str
+    assigned: str | float
+    u_assigned: float | None
+    sigma_pt: SigmaSpec
+    score: str
+    decimals: int | None
+    allow_negative: bool
+    homogeneity: Path | None = None
+    stability: Path | None = None
+    item_checks: str = "uncertainty"
+
+    @property
+    def is_consensus(self) -> bool:
+        """True when the assigned value is computed from the participants' results."""
+        return isinstance(self.assigned, str)
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class Exclusion:
+    """A coordinator's decision to leave a lab's result out of the statistics (``[[exclude]]``).
+
+    ``measurand`` None means every measurand; ``scored`` False also withholds the score.
+    """
+
+    lab: str
+    measurand: str | None
+    reason: str
+    scored: bool = True
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class Round:
+    """A validated round: settings and where its files are."""
+
+    path: Path
+    folder: Path
+    id: str
+    title: str
+    scheme: str
+    date: str
+    provider: str
+    material: str
+    results: str
+    results_sheet: str | None
+    participants: Path | None
+    replicates: int
+    confidence: float
+    outliers: str
+    stragglers: str
+    archive: Path | None
+    history_rounds: int
+    youden: tuple[tuple[str, str], ...]
+    words: str
+    measurands: dict[str, MeasurandSettings]
+    exclusions: tuple[Exclusion, ...] = field(default=())
+    warnings: tuple[str, ...] = field(default=())
+
+    def result_files(self) -> list[Path]:
+        """The results file(s): one table, or every workbook in a folder or glob."""
+        return _resolve_results(self)
+
+    def settings_dict(self) -> dict[str, Any]:
+        """A plain, JSON-ready summary of the settings (for workbooks and the archive)."""
+        out: dict[str, Any] = {
+            "id": self.id, "title": self.title, "scheme": self.scheme, "date": self.date,
+            "provider": self.provider, "material": self.material,
+        }
+        for m in self.measurands.values():
+            out[f"measurand.{m.name}"] = {
+                "unit": m.unit, "assigned": m.assigned, "u_assigned": m.u_assigned,
+                "sigma_pt": m.sigma_pt.describe(), "score": m.score,
+            }
+        return out
+
+
+class _Checker:
+    """Collects every problem in the file so the user sees them all at once."""
+
+    def __init__(self, file: str) -> None:
+        self.file = file
+        self.problems: list[Problem] = []
+        self.warnings: list[str] = []
+
+    def bad(self, key: str, found: object, allowed: str) -> None:
+        self.problems.append(
+            Problem(message=f"{self.file}: key {key!r}: found {found!r}; allowed: {allowed}")
+        )
+
+    def unknown(self, table: str, keys: dict[str, Any], allowed: dict[str, str]) -> None:
+        for key in keys:
+            if key in allowed:
+                continue
+            near = difflib.get_close_matches(key, list(allowed), n=1, cutoff=0.6)
+            hint = f"; did you mean {near[0]!r}?" if near else f"; known keys: {', '.join(allowed)}"
+            self.warnings.append(f"{self.file}: unknown key {table}{key!r} is ignored{hint}")
+
+    def text(self, key: str, value: object, default: str | None = None, required=False) -> str | None:
+        if value is None:
+            if required:
+                self.problems.append(Problem(message=f"{self.file}: key {key!r} is required"))
+            return default
+        if isinstance(value, (_dt.date, _dt.datetime)) and key.endswith("date"):
+            return value.isoformat()[:10]
+        if not isinstance(value, str) or (required and not value.strip()):
+            self.bad(key, value, "text")
+            return default
+        return value.strip()
+
+    def number(self, key: str, value: object, *, low=-math.inf, positive=False) -> float | None:
+        if value is None:
+            return None
+        if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
+            self.bad(key, value, "a number" + (" > 0" if positive else ""))
+            return None
+        if (positive and value <= 0) or value < low:
+            self.bad(key, value, "a number > 0" if positive else f"a number ≥ {low:g}")
+            return None
+        return float(value)
+
+    def whole(self, key: str, value: object, default: int, low: int, high: int) -> int:
+        if value is None:
+            return default
+        if isinstance(value, bool) or not isinstance(value, int) or not low <= value <= high:
+            self.bad(key, value, f"a whole number from {low} to {high}")
+            return default
+        return value
+
+    def choice(self, key: str, value: object, allowed: tuple[str, ...], default: str) -> str:
+        if value is None:
+            return default
+        if value not in allowed:
+            self.bad(key, value, ", ".join(repr(a) for a in allowed))
+            return default
+        return str(value)
+
+
+def _sigma(c: _Checker, key: str, raw: object) -> SigmaSpec:
+    if raw is None:
+        c.problems.append(Problem(message=f"{c.file}: key {key!r} is required; allowed: {MEASURAND_KEYS['sigma_pt']}"))
+        return SigmaSpec(kind="robust-sd")
+    if isinstance(raw, str):
+        if raw in SIGMA_WORDS:
+            return SigmaSpec(kind=raw)  # type: ignore[arg-type]
+        c.bad(key, raw, MEASURAND_KEYS["sigma_pt"])
+        return SigmaSpec(kind="robust-sd")
+    if isinstance(raw, dict):
+        extra = set(raw) - {"s_R", "s_r", "replicates"}
+        missing = {"s_R", "s_r", "replicates"} - set(raw)
+        if extra or missing:
+            c.bad(key, raw, "{ s_R = number, s_r = number, replicates = whole number }")
+            return SigmaSpec(kind="robust-sd")
+        s_R = c.number(f"{key}.s_R", raw["s_R"], positive=True)
+        s_r = c.number(f"{key}.s_r", raw["s_r"], low=0.0)
+        n = c.whole(f"{key}.replicates", raw["replicates"], 1, 1, 1000)
+        if s_R is not None and s_r is not None and s_R**2 - s_r**2 * (1 - 1 / n) <= 0:
+            c.bad(key, raw, "s_R² − s_r²(1 − 1/n) > 0 (s_R must exceed s_r)")
+        return SigmaSpec(kind="precision", s_R=s_R, s_r=s_r, replicates=n)
+    value = c.number(key, raw, positive=True)
+    return SigmaSpec(kind="fixed", value=value)
+
+
+def _inside(c: _Checker, folder: Path, key: str, value: str | None) -> Path | None:
+    """A path named in the round file, resolved in the round folder; outside it is refused."""
+    if value is None:
+        return None
+    p = (folder / value).resolve()
+    try:
+        p.relative_to(folder.resolve())
+    except ValueError:
+        c.bad(key, value, "a path inside the round folder")
+        return None
+    return p
+
+
+def _measurand(c: _Checker, folder: Path, name: str, raw: object) -> MeasurandSettings | None:
+    t = f"measurand.{name}"
+    if not isinstance(raw, dict):
+        c.bad(t, raw, "a table of keys (unit, assigned, sigma_pt, ...)")
+        return None
+    c.unknown(f"[{t}] ", raw, MEASURAND_KEYS)
+    unit = c.text(f"{t}.unit", raw.get("unit"), required=True) or ""
+    assigned_raw = raw.get("assigned", "algorithm-a")
+    assigned: str | float
+    if isinstance(assigned_raw, str):
+        assigned = c.choice(f"{t}.assigned", assigned_raw, ASSIGNED_METHODS, "algorithm-a")
+    else:
+        assigned = c.number(f"{t}.assigned", assigned_raw) or 0.0
+    u_assigned = c.number(f"{t}.u_assigned", raw.get("u_assigned"), low=0.0)
+    if not isinstance(assigned, str) and "u_assigned" not in raw:
+        c.problems.append(
+            Problem(message=f"{c.file}: key '{t}.u_assigned' is required when assigned is a number "
+                    f"(found assigned = {assigned_raw!r}); allowed: a standard uncertainty ≥ 0")
+        )
+    if isinstance(assigned, str) and "u_assigned" in raw:
+        c.warnings.append(f"{c.file}: '{t}.u_assigned' is ignored: the consensus value's uncertainty is computed")
+        u_assigned = None
+    decimals_raw = raw.get("decimals")
+    decimals = None if decimals_raw is None else c.whole(f"{t}.decimals", decimals_raw, 3, 0, 10)
+    allow_negative = raw.get("allow_negative", False)
+    if not isinstance(allow_negative, bool):
+        c.bad(f"{t}.allow_negative", allow_negative, "true or false")
+        allow_negative = False
+    return MeasurandSettings(
+        name=name,
+        unit=unit,
+        label=c.text(f"{t}.label", raw.get("label"), default=name) or name,
+        assigned=assigned,
+        u_assigned=u_assigned,
+        sigma_pt=_sigma(c, f"{t}.sigma_pt", raw.get("sigma_pt")),
+        score=c.choice(f"{t}.score", raw.get("score"), SCORES, "z"),
+        decimals=decimals,
+        allow_negative=allow_negative,
+        homogeneity=_inside(c, folder, f"{t}.homogeneity", c.text(f"{t}.homogeneity", raw.get("homogeneity"))),
+        stability=_inside(c, folder, f"{t}.stability", c.text(f"{t}.stability", raw.get("stability"))),
+        item_checks=c.choice(f"{t}.item_checks", raw.get("item_checks"),
+                             ("uncertainty", "widen-sigma", "both", "report"), "uncertainty"),
+    )
+
+
+def _exclusions(c: _Checker, raw: object, measurands: dict) -> tuple[Exclusion, ...]:
+    allowed = "a list of tables: [[exclude]] lab = \"L07\", measurand = \"...\" (optional), reason = \"...\", scored = true"
+    if not isinstance(raw, list):
+        c.bad("exclude", raw, allowed)
+        return ()
+    out = []
+    for i, e in enumerate(raw, start=1):
+        key = f"exclude[{i}]"
+        if not isinstance(e, dict):
+            c.bad(key, e, allowed)
+            continue
+        c.unknown(f"[[exclude]] #{i} ", e, {"lab": "", "measurand": "", "reason": "", "scored": ""})
+        lab = e.get("lab")
+        lab = str(lab) if isinstance(lab, int) and not isinstance(lab, bool) else lab
+        lab = c.text(f"{key}.lab", lab, required=True)
+        reason = c.text(f"{key}.reason", e.get("reason"), required=True)
+        name = c.text(f"{key}.measurand", e.get("measurand"))
+        if name is not None and name not in measurands:
+            c.bad(f"{key}.measurand", name, ", ".join(measurands) or "a measurand of this round")
+        scored = e.get("scored", True)
+        if not isinstance(scored, bool):
+            c.bad(f"{key}.scored", scored, "true or false")
+            scored = True
+        if lab and reason:
+            out.append(Exclusion(lab=lab, measurand=name, reason=reason, scored=scored))
+    return tuple(out)
+
+
+def load_round(path: str | Path) -> Round:
+    """Read and validate a round file (or a folder holding ``round.toml``).
+
+    Raises
+    ------
+    RoundFileError
+        Listing every mistake found, each naming the file and key.
+    """
+    p = Path(path)
+    if p.is_dir():
+        p = p / "round.toml"
+    shown = str(p)
+    if not p.is_file():
+        raise RoundFileError.single(f"{shown}: round file not found")
+    try:
+        data = tomllib.loads(p.read_text(encoding="utf-8-sig"))
+    except tomllib.TOMLDecodeError as exc:
+        raise RoundFileError.single(f"{shown}: not valid TOML: {exc}") from None
+    except UnicodeDecodeError as exc:
+        raise RoundFileError.single(f"{shown}: not UTF-8 text: {exc}") from None
+    c = _Checker(shown)
+    folder = p.parent
+    c.unknown("", {k: v for k, v in data.items() if k not in ("round", "measurand", "exclude")},
+              {"round": "", "measurand": "", "exclude": ""})
+    r = data.get("round")
+    if not isinstance(r, dict):
+        raise RoundFileError.single(f"{shown}: a [round] table with at least id = \"...\" is required")
+    c.unknown("[round] ", r, ROUND_KEYS)
+    round_id = c.text("round.id", r.get("id"), required=True) or ""
+    date = c.text("round.date", r.get("date"), default="") or ""
+    if date:
+        try:
+            date = _dt.date.fromisoformat(date).isoformat()
+        except ValueError:
+            c.bad("round.date", date, "a date in the form 2026-10-14")
+    results = c.text("round.results", r.get("results"), default="results.csv") or "results.csv"
+    if Path(results).is_absolute() or ".." in Path(results).parts:
+        c.bad("round.results", results, "a path (or glob) inside the round folder")
+    youden_raw = r.get("youden", [])
+    youden: list[tuple[str, str]] = []
+    if not isinstance(youden_raw, list) or not all(
+        isinstance(x, list) and len(x) == 2 and all(isinstance(v, str) for v in x) for x in youden_raw
+    ):
+        c.bad("round.youden", youden_raw, 'a list of pairs, e.g. [["iodine", "bromine"]]')
+    else:
+        youden = [(a, b) for a, b in youden_raw]
+    archive_text = c.text("round.archive", r.get("archive"))
+    measurands_raw = data.get("measurand")
+    measurands: dict[str, MeasurandSettings] = {}
+    if not isinstance(measurands_raw, dict) or not measurands_raw:
+        c.problems.append(Problem(message=f"{shown}: at least one [measurand.NAME] table is required"))
+    else:
+        for name, raw in measurands_raw.items():
+            m = _measurand(c, folder, name, raw)
+            if m is not None:
+                measurands[name] = m
+    for a, b in youden:
+        for name in (a, b):
+            if name not in measurands:
+                c.bad("round.youden", name, "names of measurands in this file")
+    exclusions = _exclusions(c, data.get("exclude", []), measurands)
+    confidence = c.number("round.confidence", r.get("confidence")) or 0.95
+    if not 0.5 <= confidence <= 0.999:
+        c.bad("round.confidence", confidence, "a number between 0.5 and 0.999")
+    rnd = Round(
+        path=p,
+        folder=folder,
+        id=round_id,
+        title=c.text("round.title", r.get("title"), default=round_id) or round_id,
+        scheme=c.text("round.scheme", r.get("scheme"), default="") or "",
+        date=date,
+        provider=c.text("round.provider", r.get("provider"), default="") or "",
+        material=c.text("round.material", r.get("material"), default="") or "",
+        results=results,
+        results_sheet=c.text("round.results_sheet", r.get("results_sheet")),
+        participants=_inside(c, folder, "round.participants", c.text("round.participants", r.get("participants"))),
+        replicates=c.whole("round.replicates", r.get("replicates"), 2, 1, 20),
+        confidence=confidence,
+        outliers=c.choice("round.outliers", r.get("outliers"), OUTLIER_ACTIONS, "exclude"),
+        stragglers=c.choice("round.stragglers", r.get("stragglers"), OUTLIER_ACTIONS, "keep"),
+        archive=(folder / archive_text) if archive_text else None,
+        history_rounds=c.whole("round.history_rounds", r.get("history_rounds"), 8, 1, 100),
+        youden=tuple(youden),
+        words=c.choice("round.words", r.get("words"), ("signals", "performance"), "signals"),
+        measurands=measurands,
+        exclusions=exclusions,
+        warnings=tuple(c.warnings),
+    )
+    if c.problems:
+        raise RoundFileError(c.problems, summary=f"{shown} has mistakes")
+    return rnd
+
+
+def _resolve_results(rnd: Round) -> list[Path]:
+    folder = rnd.folder.resolve()
+    target = rnd.results
+    shown = f"{rnd.path}: key 'round.results'"
+    if any(ch in target for ch in "*?["):
+        found = sorted(Path(x) for x in _glob.glob(str(folder / target), recursive=True))
+        files = [f for f in found if f.is_file()]
+        if not files:
+            raise RoundFileError.single(f"{shown}: the pattern {target!r} matches no file in {rnd.folder}")
+        return files
+    p = folder / target
+    if p.is_dir():
+        files = sorted(
+            f for f in p.iterdir()
+            if f.suffix.lower() in (".xlsx", ".xlsm") and not f.name.startswith(("~$", "."))
+        )
+        if not files:
+            raise RoundFileError.single(f"{shown}: the folder {target!r} holds no .xlsx workbooks")
+        return files
+    if not p.is_file():
+        raise RoundFileError.single(f"{shown}: file {target!r} not found in {rnd.folder}")
+    return [p]

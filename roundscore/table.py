@@ -1,0 +1,246 @@
+"""The tidy table of results every statistic reads: one row per reported replicate.
+
+:func:`build_table` turns sheets read from the long layout (``lab, measurand,
+replicate, value`` and optional ``unit, u, U, k, method, comment``) or from
+returned submission forms into a :class:`ResultTable`, converting units to the
+measurand's unit, and collecting *every* problem before refusing the import.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from decimal import Decimal
+from typing import Iterable
+
+import numpy as np
+import pandas as pd
+
+from .cells import CellError, parse_cell
+from .errors import InputError, Problem
+from .io.xlsx import SheetRows
+from .round import Round
+from .units import UnitError, factor
+
+__all__ = ["ResultTable", "build_table", "COLUMNS", "Record", "records_from_long"]
+
+#: Columns of :attr:`ResultTable.frame`, in order.
+COLUMNS = (
+    "lab", "measurand", "replicate", "status", "value", "text", "relation", "limit",
+    "unit", "u", "U", "k", "method", "comment", "file", "sheet", "row",
+)
+REQUIRED = ("lab", "measurand", "replicate", "value")
+OPTIONAL = ("unit", "u", "U", "k", "method", "comment")
+#: Columns whose name is matched exactly (``u`` and ``U`` differ); the rest ignore case.
+_CASE_SENSITIVE = {"u", "U"}
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class Record:
+    """One result cell with its place, before validation against the round."""
+
+    lab: object
+    measurand: object
+    replicate: object
+    value: object
+    file: str
+    sheet: str | None
+    row: int
+    unit: object = None
+    u: object = None
+    U: object = None
+    k: object = None
+    method: object = None
+    comment: object = None
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class ResultTable:
+    """The participants' results, validated and in the measurands' units.
+
+    Attributes
+    ----------
+    frame : pandas.DataFrame
+        Columns :data:`COLUMNS`. ``status`` is "value", "censored" or
+        "blank" (not reported); ``value`` is NaN unless status is "value";
+        ``text`` keeps the number as typed for exact centring.
+    files : tuple of str
+        The files read.
+    warnings : tuple of str
+        Things that did not stop the import.
+    """
+
+    frame: pd.DataFrame
+    files: tuple[str, ...] = ()
+    warnings: tuple[str, ...] = field(default=())
+
+    @property
+    def labs(self) -> list[str]:
+        return sorted(self.frame["lab"].unique())
+
+
+def _text(v: object) -> str | None:
+    if v is None:
+        return None
+    if isinstance(v, float):
+        if math.isnan(v):
+            return None
+        if v.is_integer():
+            return str(int(v))
+    s = str(v).strip()
+    return s or None
+
+
+def _number(v: object, what: str, rec: Record, problems: list[Problem], *, positive=False) -> float | None:
+    try:
+        cell = parse_cell(v)
+    except CellError as exc:
+        problems.append(_problem(f"{what}: {exc}", rec, what, v))
+        return None
+    if cell.kind == "blank":
+        return None
+    if cell.kind != "value" or cell.value is None or cell.value < 0 or (positive and cell.value == 0):
+        problems.append(_problem(f"{what} must be a number {'> 0' if positive else '≥ 0'}", rec, what, v))
+        return None
+    return cell.value
+
+
+def _problem(message: str, rec: Record, column: str | None, value: object) -> Problem:
+    return Problem(
+        message=message, file=rec.file, sheet=rec.sheet, row=rec.row, column=column,
+        lab=_text(rec.lab), measurand=_text(rec.measurand), value=value,
+    )
+
+
+def records_from_long(sheet: SheetRows) -> tuple[list[Record], list[Problem]]:
+    """Records from a sheet in the long layout; the first non-empty row is the header."""
+    problems: list[Problem] = []
+    rows = sheet.rows
+    start = next((i for i, r in enumerate(rows) if any(c is not None for c in r)), None)
+    if start is None:
+        return [], [Problem(message="the file is empty", file=sheet.file, sheet=sheet.sheet)]
+    header = [_text(c) or "" for c in rows[start]]
+    index: dict[str, int] = {}
+    for j, name in enumerate(header):
+        key = name if name in _CASE_SENSITIVE else name.lower()
+        if key in REQUIRED or key in OPTIONAL:
+            if key in index:
+                problems.append(Problem(message=f"column {name!r} appears twice", file=sheet.file,
+                                        sheet=sheet.sheet, row=start + 1))
+            index[key] = j
+    missing = [c for c in REQUIRED if c not in index]
+    if missing:
+        problems.append(Problem(
+            message=f"missing column(s) {', '.join(missing)}; the header must hold "
+                    f"{', '.join(REQUIRED)} (optional: {', '.join(OPTIONAL)}); found: "
+                    f"{', '.join(h for h in header if h) or 'nothing'}",
+            file=sheet.file, sheet=sheet.sheet, row=start + 1))
+        return [], problems
+    records = []
+    for i in range(start + 1, len(rows)):
+        r = rows[i]
+        if not any(c is not None and str(c).strip() for c in r):
+            continue
+        get = {k: (r[j] if j < len(r) else None) for k, j in index.items()}
+        records.append(Record(file=sheet.file, sheet=sheet.sheet, row=i + 1, **get))
+    return records, problems
+
+
+def _decimal_scale(text: str | None, f: float) -> str | None:
+    if text is None or f == 1.0:
+        return text
+    return str(Decimal(text) * Decimal(repr(f)))
+
+
+def build_table(
+    rnd: Round,
+    records: Iterable[Record],
+    *,
+    files: Iterable[str] = (),
+    warnings: Iterable[str] = (),
+    problems: Iterable[Problem] = (),
+) -> ResultTable:
+    """Validate records against the round and build the :class:`ResultTable`.
+
+    Raises
+    ------
+    InputError
+        Listing every problem: unreadable cells, unknown measurands, duplicate
+        lab/measurand/replicate, units that cannot be converted, negative
+        results where the measurand allows none, bad uncertainties.
+    """
+    problems = list(problems)
+    out: list[tuple] = []
+    seen: dict[tuple[str, str, int], Record] = {}
+    known = rnd.measurands
+    for rec in records:
+        lab = _text(rec.lab)
+        name = _text(rec.measurand)
+        if lab is None:
+            problems.append(_problem("the lab code is empty", rec, "lab", rec.lab))
+            continue
+        if name is None:
+            problems.append(_problem("the measurand is empty", rec, "measurand", rec.measurand))
+            continue
+        m = known.get(name)
+        if m is None:
+            lower = {k.lower(): k for k in known}
+            m = known.get(lower.get(name.lower(), ""))
+        if m is None:
+            problems.append(_problem(
+                f"unknown measurand; the round has: {', '.join(known)}", rec, "measurand", rec.measurand))
+            continue
+        rep_text = _text(rec.replicate)
+        try:
+            replicate = int(rep_text) if rep_text is not None else -1
+        except ValueError:
+            replicate = -1
+        if replicate < 1:
+            problems.append(_problem("the replicate must be a whole number ≥ 1", rec, "replicate", rec.replicate))
+            continue
+        key = (lab, m.name, replicate)
+        if key in seen:
+            first = seen[key]
+            problems.append(_problem(
+                f"duplicate result for lab {lab}, {m.name}, replicate {replicate} "
+                f"(also in {first.file}" + (f" sheet {first.sheet!r}" if first.sheet else "") +
+                f" row {first.row})", rec, "replicate", rec.replicate))
+            continue
+        seen[key] = rec
+        try:
+            cell = parse_cell(rec.value)
+        except CellError as exc:
+            problems.append(_problem(str(exc), rec, "value", rec.value))
+            continue
+        unit = _text(rec.unit) or m.unit
+        f = 1.0
+        if unit != m.unit:
+            try:
+                f = factor(unit, m.unit)
+            except UnitError as exc:
+                problems.append(_problem(f"{exc} (the round reports {m.name} in {m.unit})", rec, "unit", rec.unit))
+                continue
+        value = cell.value * f if cell.value is not None else np.nan
+        limit = cell.limit * f if cell.limit is not None else np.nan
+        if cell.kind == "value" and value < 0 and not m.allow_negative:
+            problems.append(_problem(
+                f"a negative result, but {m.name} cannot be below zero "
+                "(set allow_negative = true for this measurand if it can)", rec, "value", rec.value))
+            continue
+        u = _number(rec.u, "u", rec, problems)
+        U = _number(rec.U, "U", rec, problems)
+        k = _number(rec.k, "k", rec, problems, positive=True)
+        out.append((
+            lab, m.name, replicate, cell.kind, value, _decimal_scale(cell.text, f),
+            cell.relation, limit, m.unit,
+            u * f if u is not None else np.nan, U * f if U is not None else np.nan,
+            k if k is not None else np.nan,
+            _text(rec.method), _text(rec.comment), rec.file, rec.sheet, rec.row,
+        ))
+    if problems:
+        raise InputError(problems, summary="the results cannot be imported")
+    frame = pd.DataFrame(out, columns=list(COLUMNS))
+    frame = frame.astype({"replicate": "int64", "value": "float64", "limit": "float64",
+                          "u": "float64", "U": "float64", "k": "float64", "row": "int64"})
+    frame = frame.sort_values(["measurand", "lab", "replicate"], kind="stable").reset_index(drop=True)
+    return ResultTable(frame=frame, files=tuple(files), warnings=tuple(warnings))
