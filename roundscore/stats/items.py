@@ -726,7 +726,8 @@ def stability(
             "u_second, or at least 2 values in each set"
         )
     passed = passed_simple if used == "simple" else bool(passed_expanded)
-    notes.append(f"|y1 - y2| = {abs(diff):.4g}; simple criterion <= 0.3 sigma_pt = {crit:.4g}: {_met(passed_simple)}")
+    shown = f"|y1 - y2| = {abs(diff):.4g}"
+    notes.append(f"{shown}; simple criterion |y1 - y2| <= 0.3 sigma_pt = {crit:.4g}: {_met(passed_simple)}")
     if passed_expanded is not None:
         notes.append(
             f"expanded criterion |y1 - y2| <= 0.3 sigma_pt + 2 sqrt(u1^2 + u2^2) = {allowed:.4g}: "
