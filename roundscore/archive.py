@@ -86,6 +86,9 @@ SCORE_VALUE_COLUMN = {"z": "z", "z-prime": "z_prime", "zeta": "zeta", "en": "en"
 #: Leading characters a CSV writer neutralises with a ``'`` (OWASP, "CSV Injection").
 _FORMULA_STARTS = ("=", "+", "-", "@")
 _WORKBOOK_FORMAT = 1
+#: Significant digits of score floats in the content hash: Excel's precision of 15 digits
+#: (Microsoft, "Floating-point arithmetic may give inaccurate results in Excel").
+HASH_DIGITS = 15
 
 Status = Literal["added", "unchanged", "replaced"]
 
@@ -277,9 +280,16 @@ def _table_rows(frame: pd.DataFrame | None) -> list[str]:
 
 def _digest(round_date: str, score_rows: Iterable[tuple], *, title: str | None = None,
             settings: str | None = None, tables: Sequence[tuple[str, str]] = ()) -> str:
-    """Canonical content hash: sorted rows, floats as ``repr`` (via JSON), missing as null."""
-    body = {"round_date": round_date,
-            "scores": sorted((list(r) for r in score_rows), key=lambda r: (r[0], r[1]))}
+    """Canonical content hash: sorted rows, floats as ``repr`` (via JSON), missing as null.
+
+    Score floats are first rounded to :data:`HASH_DIGITS` significant digits:
+    a workbook keeps only about 15 (xlsxwriter writes 16, Excel computes with
+    15), so the same round read from ``scores.csv`` and from ``LAB.xlsx``
+    must hash equally.  Changes beyond the 15th digit are not content changes.
+    """
+    rows = ([float(f"{v:.{HASH_DIGITS}g}") if isinstance(v, float) else v for v in r]
+            for r in score_rows)
+    body = {"round_date": round_date, "scores": sorted(rows, key=lambda r: (r[0], r[1]))}
     if title is not None:
         body["title"] = title
     if settings is not None:
@@ -360,7 +370,7 @@ def _normalise_rows(records: Sequence[dict[str, object]], *, file: str | None, s
             elif not math.isfinite(number):
                 out.append(None)
             else:
-                out.append(number)
+                out.append(number + 0.0)  # -0.0 -> 0.0: SQLite reads negative zero back as 0.0
         row = tuple(out)
         lab, measurand, signal, score = row[0], row[1], row[14], row[16]
         for col, val in (("lab", lab), ("measurand", measurand)):
