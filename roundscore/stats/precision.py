@@ -363,7 +363,7 @@ def cell_statistics(
         bad = np.flatnonzero(~np.isfinite(val))
         if bad.size:
             i = int(bad[0])
-            raise StatisticsError(f"lab {lab_arr[i]}: result {val[i]!r} is not a finite number")
+            raise StatisticsError(f"lab {lab_arr[i]}: result {float(val[i])!r} is not a finite number")
         c = centred(val)
     dev = c.deviations
     order: dict[str, list[int]] = {}

@@ -1,0 +1,296 @@
+"""Tests of roundscore.stats.precision (and roundscore.stats.exact, which it relies on)."""
+
+from __future__ import annotations
+
+import math
+import os
+import re
+import warnings
+from decimal import Decimal
+
+import numpy as np
+import pytest
+import scipy.stats
+
+from roundscore.errors import InputError, StatisticsError
+from roundscore.stats.exact import centred
+from roundscore.stats.precision import (
+    LIMIT_FACTOR,
+    algorithm_s,
+    algorithm_s_factors,
+    anova_oneway,
+    cell_statistics,
+    mandel_h_critical,
+    mandel_k_critical,
+    precision,
+)
+
+NIST_DIR = os.path.join(os.path.dirname(scipy.stats.__file__), "tests", "data", "nist_anova")
+NIST_FILES = ["SiRstv", "SmLs01", "SmLs02", "SmLs03", "SmLs04", "SmLs05", "SmLs06", "SmLs07", "SmLs08",
+              "SmLs09", "AtmWtAg"]
+# Relative tolerance reached on every certified value of every file (measured: ≤ 3.2e-15);
+# the certified values are given to 15 significant digits.
+NIST_RTOL = 1e-13
+
+
+def _parse_nist(name: str) -> tuple[dict[str, float], list[str], list[str]]:
+    """Certified values (from the file header) and the data as text, from a NIST StRD ANOVA file."""
+    lines = open(os.path.join(NIST_DIR, f"{name}.dat")).read().splitlines()
+    cert: dict[str, float] = {}
+    for line in lines:
+        if m := re.match(r"\s*Between \w+\s+(\d+)\s+(\S+)\s+(\S+)\s+(\S+)\s*$", line):
+            cert |= {"df_between": int(m[1]), "ss_between": float(m[2]), "ms_between": float(m[3]),
+                     "f": float(m[4])}
+        elif m := re.match(r"\s*Within \w+\s+(\d+)\s+(\S+)\s+(\S+)\s*$", line):
+            cert |= {"df_within": int(m[1]), "ss_within": float(m[2]), "ms_within": float(m[3])}
+        elif m := re.search(r"Certified R-Squared\s+(\S+)", line):
+            cert["r_squared"] = float(m[1])
+        elif m := re.search(r"Standard Deviation\s+(\S+)", line):
+            cert["residual_sd"] = float(m[1])
+    start = max(i for i, line in enumerate(lines) if line.startswith("Data:")) + 1
+    groups, texts = [], []
+    for line in lines[start:]:
+        parts = line.split()
+        if len(parts) == 2:
+            groups.append(parts[0])
+            texts.append(parts[1])
+    return cert, groups, texts
+
+
+# ----------------------------------------------------------------------------- exact centring
+
+
+def test_centred_text_is_exact() -> None:
+    # Values from NIST StRD SmLs07 (13 constant leading digits); expected deviations by hand.
+    c = centred(["1000000000000.4", "1000000000000.3", "1000000000000.5"], offset="first")
+    assert c.exact and c.offset == Decimal("1000000000000.4")
+    assert c.deviations.tolist() == [0.0, -0.1, 0.1]
+
+
+def test_centred_median_offset_and_floats() -> None:
+    c = centred(["3.5", "1.25", "2.0", "10"])
+    assert c.offset == Decimal("2.0")  # lower median of 1.25, 2.0, 3.5, 10
+    # Plain floats: centred in float, so the representation error of 1e12 + 0.4 stays.
+    f = centred([1000000000000.4, 1000000000000.3], offset="first")
+    assert not f.exact
+    assert f.deviations[1] != -0.1
+    # With floats="shortest_repr" the typed decimals are recovered and centring is exact.
+    s = centred([1000000000000.4, 1000000000000.3], offset="first", floats="shortest_repr")
+    assert s.exact and s.deviations.tolist() == [0.0, -0.1]
+
+
+@pytest.mark.parametrize(
+    ("texts", "message"),
+    [(["1.0", "abc"], "not a number"), (["1.0", "nan"], "not a finite number"), ([1.0, "2.0"], "mixed")],
+)
+def test_centred_rejects_bad_values(texts: list[object], message: str) -> None:
+    with pytest.raises(InputError, match=message) as err:
+        centred(texts)
+    assert err.value.problems[0].row == 2
+
+
+def test_centred_rejects_bad_choice() -> None:
+    with pytest.raises(InputError, match="offset must be one of 'median', 'first'"):
+        centred(["1"], offset="mean")  # type: ignore[arg-type]
+
+
+# ----------------------------------------------------------------------------- NIST StRD
+
+
+@pytest.mark.skipif(not os.path.isdir(NIST_DIR), reason="scipy ships no NIST StRD ANOVA files here")
+@pytest.mark.parametrize("name", NIST_FILES)
+def test_anova_matches_every_nist_certified_value(name: str) -> None:
+    # Source: NIST Statistical Reference Datasets, one-way ANOVA, certified values in each file header
+    # (copies shipped with scipy in scipy/stats/tests/data/nist_anova).
+    cert, groups, texts = _parse_nist(name)
+    assert len(cert) == 9, "every file certifies 9 values"
+    table = anova_oneway(np.zeros(len(texts)), groups, texts=texts)
+    for key, expected in cert.items():
+        got = getattr(table, key)
+        if key.startswith("df"):
+            assert got == expected, key
+        else:
+            assert got == pytest.approx(expected, rel=NIST_RTOL), key
+
+
+@pytest.mark.skipif(not os.path.isdir(NIST_DIR), reason="scipy ships no NIST StRD ANOVA files here")
+def test_nist_residual_sd_is_repeatability_sd() -> None:
+    # Source: NIST StRD SmLs09 (18009 observations, 13 constant leading digits), certified residual SD 0.1.
+    cert, groups, texts = _parse_nist("SmLs09")
+    res = precision(np.zeros(len(texts)), groups, texts=texts)
+    assert res.s_r == pytest.approx(cert["residual_sd"], rel=NIST_RTOL)
+    assert res.balanced and res.n_bar == 2001  # 9 treatments x 2001 replicates (file header)
+
+
+# ----------------------------------------------------------------------------- precision estimates
+
+
+def _balanced(seed: int, p: int = 12, n: int = 3, s_L: float = 0.4, s_r: float = 0.15) -> tuple[np.ndarray, np.ndarray]:
+    rng = np.random.default_rng(seed)
+    labs = np.repeat([f"L{i:02d}" for i in range(p)], n)
+    values = 50 + np.repeat(rng.normal(0, s_L, p), n) + rng.normal(0, s_r, p * n)
+    return values, labs
+
+
+def test_variance_components_agree_with_statsmodels_reml() -> None:
+    # Reference: statsmodels MixedLM fitted by REML; on balanced data with s_L² > 0 the REML
+    # variance components equal the ANOVA estimators (Searle, Casella, McCulloch 1992, §4.7; common practice).
+    pd = pytest.importorskip("pandas")
+    smf = pytest.importorskip("statsmodels.formula.api")
+    values, labs = _balanced(20240611)
+    res = precision(values, labs)
+    assert not res.s_L_truncated
+    frame = pd.DataFrame({"y": values, "lab": labs})
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        fit = smf.mixedlm("y ~ 1", frame, groups=frame["lab"]).fit(reml=True)
+    assert res.s_r**2 == pytest.approx(fit.scale, rel=1e-5)
+    assert res.s_L**2 == pytest.approx(float(fit.cov_re.iloc[0, 0]), rel=1e-4)
+    assert res.s_R == pytest.approx(math.sqrt(fit.scale + float(fit.cov_re.iloc[0, 0])), rel=1e-4)
+    assert res.r == pytest.approx(LIMIT_FACTOR * res.s_r) and res.R == pytest.approx(2.8 * res.s_R)
+
+
+def test_small_layout_by_hand() -> None:
+    # Hand calculation (invented data): cells A=(10.1, 10.3), B=(10.6, 10.8), C=(9.9, 10.0).
+    # Cell SDs² 0.02, 0.02, 0.005 → s_r² = 0.015; cell means 10.2, 10.7, 9.95, SD of means² = 0.145833…
+    # s_L² = 0.145833… − 0.015/2 = 0.1383333…
+    res = precision([10.1, 10.3, 10.6, 10.8, 9.9, 10.0], ["A", "A", "B", "B", "C", "C"])
+    assert res.s_r == pytest.approx(math.sqrt(0.015), rel=1e-12)
+    assert res.s_L == pytest.approx(math.sqrt(0.4375 / 3 - 0.0075), rel=1e-12)
+    assert res.general_mean == pytest.approx(61.7 / 6, rel=1e-14)
+    assert res.anova.df_between == 2 and res.anova.df_within == 3
+    assert res.cells.labs == ("A", "B", "C")
+
+
+def test_unbalanced_n_bar_and_single_result_lab() -> None:
+    # n̄ = (Σn − Σn²/Σn)/(p − 1) (ISO 5725-2 §7.4.4): n = 2, 3, 1 → (6 − 14/6)/2 = 11/6.
+    values = [5.0, 5.2, 5.9, 6.1, 6.0, 5.5]
+    res = precision(values, ["A", "A", "B", "B", "B", "C"])
+    assert res.n_bar == pytest.approx(11 / 6, rel=1e-14)
+    assert not res.balanced and res.robust_s_r is None
+    # s_r pools A (SS 0.02) and B (SS 0.02) over 1 + 2 df; lab C enters only between labs.
+    assert res.s_r == pytest.approx(math.sqrt(0.04 / 3), rel=1e-12)
+    assert math.isnan(res.cells.sds[2]) and math.isnan(res.mandel.k[2])
+
+
+def test_negative_between_lab_variance_is_truncated() -> None:
+    # Lab means identical, within-lab spread present: MS_between = 0 < MS_within, so s_L² < 0 → 0.
+    res = precision([1.0, 2.0, 2.0, 1.0, 1.5, 1.5], ["A", "A", "B", "B", "C", "C"])
+    assert res.s_L_truncated and res.s_L == 0.0
+    assert res.s_R == pytest.approx(res.s_r)
+
+
+@pytest.mark.parametrize(
+    ("values", "labs", "message"),
+    [
+        ([1.0, 2.0, 3.0], ["A", "B", "C"], "precision needs replicates"),
+        ([1.0, 2.0, 3.0], ["A", "A", "A"], "at least 2 labs"),
+        ([1.0, math.nan, 3.0, 4.0], ["A", "A", "B", "B"], "lab A: result nan"),
+        ([1.0, 2.0], ["A"], "2 values but 1 lab codes"),
+    ],
+)
+def test_precision_errors(values: list[float], labs: list[str], message: str) -> None:
+    with pytest.raises(StatisticsError, match=message):
+        precision(values, labs)
+
+
+def test_text_and_float_input_agree() -> None:
+    values, labs = _balanced(7)
+    texts = [f"{v:.6f}" for v in values]
+    a = precision([float(t) for t in texts], labs)
+    b = precision(np.zeros(len(texts)), labs, texts=texts)
+    assert a.s_r == pytest.approx(b.s_r, rel=1e-12) and a.s_L == pytest.approx(b.s_L, rel=1e-12)
+
+
+# ----------------------------------------------------------------------------- Mandel h and k
+
+
+@pytest.mark.parametrize(
+    ("p", "n", "h1", "k1"),
+    [
+        # ISO 5725-2:1994 Table 6 (from memory): 1 % indicators, p = 10: h 2.18, k (n = 2) 2.32.
+        (10, 2, 2.18, 2.32),
+    ],
+)
+def test_mandel_indicators_iso_table(p: int, n: int, h1: float, k1: float) -> None:
+    assert mandel_h_critical(p, 0.01) == pytest.approx(h1, abs=0.01)
+    assert mandel_k_critical(p, n, 0.01) == pytest.approx(k1, abs=0.01)
+
+
+def test_mandel_indicators_from_distributions() -> None:
+    # h is a rescaled t and k a rescaled F (ISO 5725-2 §7.3.1): check by simulation that the 5 %
+    # indicator for h cuts off 5 % of |h| for one lab under normality (independent check, seeded).
+    rng = np.random.default_rng(11)
+    p = 8
+    means = rng.standard_normal((200_000, p))
+    h = (means[:, 0] - means.mean(axis=1)) / means.std(axis=1, ddof=1)
+    assert np.mean(np.abs(h) > mandel_h_critical(p, 0.05)) == pytest.approx(0.05, abs=0.002)
+    sds = np.sqrt(rng.chisquare(2, (200_000, p)) / 2)
+    k = sds[:, 0] * math.sqrt(p) / np.sqrt((sds**2).sum(axis=1))
+    assert np.mean(k > mandel_k_critical(p, 3, 0.05)) == pytest.approx(0.05, abs=0.002)
+
+
+def test_mandel_h_and_k_definitions() -> None:
+    values, labs = _balanced(3, p=6, n=4)
+    res = precision(values, labs)
+    means = np.array([values[labs == c].mean() for c in res.labs])
+    sds = np.array([values[labs == c].std(ddof=1) for c in res.labs])
+    np.testing.assert_allclose(res.mandel.h, (means - means.mean()) / means.std(ddof=1), rtol=1e-9)
+    np.testing.assert_allclose(res.mandel.k, sds / np.sqrt(np.mean(sds**2)), rtol=1e-9)
+    assert res.mandel.n_for_k == 4
+
+
+# ----------------------------------------------------------------------------- Algorithm S
+
+
+@pytest.mark.parametrize(
+    ("df", "eta", "xi"),
+    [
+        # ISO 13528:2015 Table C.2 / ISO 5725-5 Table 19 (from memory): limit factor η, adjustment factor ξ.
+        (1, 1.645, 1.097),
+        (2, 1.517, 1.054),
+        (3, 1.444, 1.039),
+        (4, 1.395, 1.032),
+        (5, 1.359, 1.027),
+        (6, 1.332, 1.024),
+        (9, 1.277, 1.018),
+    ],
+)
+def test_algorithm_s_factors(df: int, eta: float, xi: float) -> None:
+    f = algorithm_s_factors(df)
+    assert f.eta == pytest.approx(eta, abs=0.0006) and f.xi == pytest.approx(xi, abs=0.0006)
+
+
+def test_algorithm_s_fixed_point_and_robustness() -> None:
+    rng = np.random.default_rng(5)
+    sds = 0.3 * np.sqrt(rng.chisquare(3, 40) / 3)
+    res = algorithm_s(sds, 3)
+    assert res.converged and res.iterations > 1
+    f = algorithm_s_factors(3)
+    again = f.xi * math.sqrt(np.mean(np.minimum(sds, f.eta * res.value) ** 2))
+    assert again == pytest.approx(res.value, rel=1e-9)  # the converged value is the fixed point
+    wild = sds.copy()
+    wild[0] = 100.0
+    assert algorithm_s(wild, 3).value < 1.2 * res.value  # one wild SD has bounded influence
+    assert algorithm_s(10 * sds, 3).value == pytest.approx(10 * res.value, rel=1e-9)  # scale equivariant
+
+
+def test_algorithm_s_unbiased_at_the_normal_model() -> None:
+    # ξ is defined so that w* estimates σ at the normal model; check with many simulated SDs (seeded).
+    rng = np.random.default_rng(17)
+    sds = 2.0 * np.sqrt(rng.chisquare(2, 200_000) / 2)
+    assert algorithm_s(sds, 2).value == pytest.approx(2.0, rel=0.005)
+
+
+def test_algorithm_s_errors() -> None:
+    with pytest.raises(StatisticsError, match="at least one standard deviation"):
+        algorithm_s([math.nan], 2)
+    with pytest.raises(StatisticsError, match="at least 1 degree of freedom"):
+        algorithm_s([1.0], 0)
+    assert algorithm_s([0.0, 0.0, 1.0], 1).value == 0.0
+
+
+def test_cell_statistics_keep_file_order() -> None:
+    cells = cell_statistics([1.0, 2.0, 3.0, 4.0], ["Z9", "A1", "Z9", "A1"])
+    assert cells.labs == ("Z9", "A1")
+    np.testing.assert_allclose(cells.means, [2.0, 3.0])
