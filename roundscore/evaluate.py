@@ -84,6 +84,7 @@ class MeasurandResult:
     sigma_source: str
     u_check_passed: bool | None
     notes: tuple[str, ...] = ()
+    item_checks: Any = None
 
     @property
     def name(self) -> str:
@@ -112,9 +113,13 @@ class RoundEvaluation:
         One row per measurand, :data:`STATISTICS_COLUMNS`.
     audit : pandas.DataFrame
         :data:`AUDIT_COLUMNS`: every exclusion and decision with its reason.
-    extras : dict
-        Tables added by later stages (precision, screens, mandel, methods,
-        items), by name, each a DataFrame.
+    extras : dict of str to DataFrame
+        Tables added by the stages (precision, screens, mandel, methods,
+        items), by name; each is also written as NAME.csv.
+    stage_notes : dict of str to tuple of str
+        Notes by measurand from the stages (e.g. "method groups differ").
+    details : dict
+        Result objects of the stages kept for figures (by stage name).
     warnings : tuple of str
     """
 
@@ -125,7 +130,9 @@ class RoundEvaluation:
     scores: pd.DataFrame
     statistics: pd.DataFrame
     audit: pd.DataFrame
-    extras: dict[str, Any] = field(default_factory=dict)
+    extras: dict[str, pd.DataFrame] = field(default_factory=dict)
+    stage_notes: dict[str, tuple[str, ...]] = field(default_factory=dict)
+    details: dict[str, Any] = field(default_factory=dict)
     warnings: tuple[str, ...] = ()
 
     @property
@@ -263,6 +270,15 @@ def _measurand(rnd: Round, labs: pd.DataFrame, m: MeasurandSettings,
         notes.append(f"Algorithm A: {est.note}")
     s_pt, s_src, s_notes = _sigma(m, est, x_pt if np.isfinite(x_pt) else np.nan)
     notes += s_notes
+    item_checks = None
+    if m.homogeneity is not None or m.stability is not None:
+        # ISO 13528 Annex B: the item checks may widen σ_pt and add u_hom, u_stab to u(x_pt).
+        from .stages.items import apply_item_checks
+
+        item_checks = apply_item_checks(rnd, m, sigma_pt=s_pt, u_char=u_pt)
+        s_pt, u_pt = item_checks.sigma_pt, item_checks.u_assigned
+        notes += list(item_checks.notes)
+        audit.extend(item_checks.audit)
     u_ok = None
     if np.isfinite(u_pt) and np.isfinite(s_pt):
         u_ok = bool(u_pt <= U_CHECK_FACTOR * s_pt)
@@ -278,7 +294,7 @@ def _measurand(rnd: Round, labs: pd.DataFrame, m: MeasurandSettings,
     return MeasurandResult(
         settings=m, labs=labs, p=p, robust=est, median=med, made=made_v, niqr=niqr_v,
         assigned=x_pt, u_assigned=u_pt, sigma_pt=s_pt, assigned_source=a_src, sigma_source=s_src,
-        u_check_passed=u_ok, notes=tuple(notes),
+        u_check_passed=u_ok, notes=tuple(notes), item_checks=item_checks,
     )
 
 
@@ -386,10 +402,20 @@ def evaluate(rnd: Round, table: ResultTable, participants: dict[str, Participant
             "score": r.settings.score,
         })
     statistics = pd.DataFrame(stats_rows, columns=list(STATISTICS_COLUMNS))
+    extras: dict[str, pd.DataFrame] = {}
+    stage_notes: dict[str, tuple[str, ...]] = {}
+    details: dict[str, Any] = {}
+    item_rows = [row for n in names if results[n].item_checks is not None for row in results[n].item_checks.rows]
+    if item_rows:
+        from .stages.items import ITEMS_COLUMNS
+
+        extras["items"] = pd.DataFrame(item_rows, columns=list(ITEMS_COLUMNS))
+    # STAGE: precision (ISO 5725-2) and method groups — adds extras, stage_notes, details and audit rows here.
     audit_df = pd.DataFrame(audit, columns=list(AUDIT_COLUMNS))
     return RoundEvaluation(
         round=rnd, table=table, participants=participants, measurands=results, scores=scores,
-        statistics=statistics, audit=audit_df, warnings=tuple(rnd.warnings) + tuple(table.warnings),
+        statistics=statistics, audit=audit_df, extras=extras, stage_notes=stage_notes, details=details,
+        warnings=tuple(rnd.warnings) + tuple(table.warnings),
     )
 
 

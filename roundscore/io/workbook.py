@@ -155,7 +155,7 @@ def write_summary(ev: RoundEvaluation, path: Path) -> None:
         rows.append({"a": m.name, "b": m.settings.unit, "c": m.p, "d": m.assigned, "e": m.u_assigned,
                      "f": m.sigma_pt, "g": m.settings.score, "h": m.assigned_source, "i": m.sigma_source,
                      "j": "n/a" if m.u_check_passed is None else ("yes" if m.u_check_passed else "NO"),
-                     "k": " ".join(m.notes + tuple(ev.extras.get("notes", {}).get(m.name, ())))})
+                     "k": " ".join(m.notes + ev.stage_notes.get(m.name, ()))})
     r = _table(ws, fm, r, pd.DataFrame(rows), list("abcdefghijk"), head) + 1
     for w in ev.warnings:
         ws.write_string(r, 0, "Note: " + w)

@@ -1,0 +1,1 @@
+"""Stages of the evaluation beyond the scores: item checks, precision and method groups."""
