@@ -17,11 +17,11 @@ Design decisions
   mode, so a process killed part-way through an import leaves the round wholly
   present or wholly absent (SQLite's atomic commit).
 * Imports are idempotent: the content is compared through a canonical hash of
-  the rows (rows sorted, floats written with ``repr`` so equal doubles hash
-  equally, missing numbers as null).  The same content again is reported as
-  ``"unchanged"``; different content is refused unless ``replace=True``, and
-  the replaced rows are first copied to the ``audit`` table with a UTC
-  timestamp and a reason.
+  the rows (rows sorted, score floats rounded to 15 significant digits, the
+  precision a workbook keeps, then written with ``repr``; missing as null).
+  The same content again is ``"unchanged"``; different content is refused
+  unless ``replace=True``, and the replaced rows are first copied to the
+  ``audit`` table with a UTC timestamp and a reason.
 * The schema is versioned with ``PRAGMA user_version`` and a list of migration
   functions (:data:`MIGRATIONS`); each applied migration is also logged in the
   ``schema_version`` table.  Opening a file applies the missing migrations;
@@ -51,18 +51,9 @@ import pandas as pd
 
 from roundscore.errors import ArchiveError, InputError, Problem
 
-__all__ = [
-    "ARCHIVE_ENV",
-    "SCORE_COLUMNS",
-    "MIGRATIONS",
-    "SCHEMA_VERSION",
-    "StoreOutcome",
-    "archive_path",
-    "store_round",
-    "add_files",
-    "lab_history",
-    "archived_labs",
-]
+__all__ = ["ARCHIVE_ENV", "SCORE_COLUMNS", "HISTORY_COLUMNS", "MIGRATIONS", "SCHEMA_VERSION",
+           "StoreOutcome", "archive_path", "store_round", "add_files", "lab_history",
+           "archived_labs"]
 
 #: Environment variable that overrides the default archive file.
 ARCHIVE_ENV = "ROUNDSCORE_ARCHIVE"
@@ -243,13 +234,11 @@ def _connect(path: str | os.PathLike[str] | None, *, create: bool,
 # --------------------------------------------------------------------------- canonical rows
 
 def _json_default(value: object) -> object:
-    if isinstance(value, (_dt.date, _dt.datetime, pd.Timestamp)):
-        return value.isoformat()
-    if hasattr(value, "item"):  # numpy scalars
-        return _plain(value.item())
+    """Non-JSON settings values: numpy scalars and dates as plain values, sets sorted, else text."""
     if isinstance(value, (set, frozenset)):
         return sorted(value, key=repr)
-    return str(value)
+    plain = _plain(value)
+    return plain if plain is not value else str(value)
 
 
 def _plain(value: object) -> object:
@@ -344,10 +333,8 @@ def _normalise_rows(records: Sequence[dict[str, object]], *, file: str | None, s
         where = dict(file=file, sheet=sheet, row=first_row + i)
         out: list[object] = []
         for col in _ROW_FIELDS:
-            raw = rec.get(col)
-            if isinstance(raw, str):
-                raw = _unquote(raw.strip())
-            raw = _plain(raw)
+            raw = _plain(rec.get(col))
+            raw = _unquote(raw.strip()) if isinstance(raw, str) else raw
             if raw == "" or raw is None:
                 out.append(None)
                 continue
@@ -383,12 +370,10 @@ def _normalise_rows(records: Sequence[dict[str, object]], *, file: str | None, s
             problems.append(Problem(message=f"unknown score name; allowed: {', '.join(SCORE_NAMES)}",
                                     column="score", value=score, **where))
         key = (str(lab), str(measurand))
-        if lab is not None and measurand is not None:
-            if key in seen:
-                problems.append(Problem(
-                    message=f"duplicate lab x measurand (also on row {seen[key]})",
-                    lab=lab, measurand=measurand, **where))
-            seen[key] = first_row + i
+        if key in seen and lab is not None and measurand is not None:
+            problems.append(Problem(message=f"duplicate lab x measurand (also on row {seen[key]})",
+                                    lab=lab, measurand=measurand, **where))
+        seen.setdefault(key, first_row + i)
         rows.append(row)
     return rows, problems
 
@@ -423,21 +408,16 @@ def _round_tables(conn: sqlite3.Connection, scheme: str, round_id: str) -> list[
 def _audit(conn: sqlite3.Connection, *, scheme: str, round_id: str, lab: str | None,
            reason: str, whole_round: bool) -> None:
     """Copy rows about to be replaced into ``audit`` (round row, score rows, tables)."""
-    when = _now()
     rec = _round_record(conn, scheme, round_id)
-    if rec is not None:
-        conn.execute("INSERT INTO audit (replaced_at, reason, scheme, round_id, lab, kind, row) "
-                     "VALUES (?, ?, ?, ?, ?, 'round', ?)",
-                     (when, reason, scheme, round_id, lab, _canonical_json(rec)))
-    for row in _existing_lab_rows(conn, scheme, round_id, lab):
-        conn.execute("INSERT INTO audit (replaced_at, reason, scheme, round_id, lab, kind, row) "
-                     "VALUES (?, ?, ?, ?, ?, 'score', ?)",
-                     (when, reason, scheme, round_id, row[0],
-                      _canonical_json(dict(zip(_ROW_FIELDS, row)))))
+    entries = [(lab, "round", _canonical_json(rec))] if rec is not None else []
+    entries += [(row[0], "score", _canonical_json(dict(zip(_ROW_FIELDS, row))))
+                for row in _existing_lab_rows(conn, scheme, round_id, lab)]
     if whole_round:
-        for kind, row in _round_tables(conn, scheme, round_id):
-            conn.execute("INSERT INTO audit (replaced_at, reason, scheme, round_id, lab, kind, row) "
-                         "VALUES (?, ?, ?, ?, NULL, ?, ?)", (when, reason, scheme, round_id, kind, row))
+        entries += [(None, kind, row) for kind, row in _round_tables(conn, scheme, round_id)]
+    when = _now()
+    conn.executemany("INSERT INTO audit (replaced_at, reason, scheme, round_id, lab, kind, row) "
+                     "VALUES (?, ?, ?, ?, ?, ?, ?)",
+                     [(when, reason, scheme, round_id, *e) for e in entries])
 
 
 def _insert_scores(conn: sqlite3.Connection, scheme: str, round_id: str,
@@ -448,19 +428,14 @@ def _insert_scores(conn: sqlite3.Connection, scheme: str, round_id: str,
         ((scheme, round_id, *r) for r in rows))
 
 
-def _check_keys(scheme: object, round_id: object, round_date: object, *,
-                file: str | None = None) -> tuple[str, str, str]:
-    problems = []
-    for name, value in (("scheme", scheme), ("round", round_id)):
-        if value is None or str(value).strip() == "":
-            problems.append(Problem(message=f"the round's {name} is empty", file=file))
-    date = _parse_date(round_date) if round_date not in (None, "") else None
-    if date is None:
-        problems.append(Problem(message="round_date is not an ISO date YYYY-MM-DD",
-                                file=file, column="round_date", value=round_date))
+def _check_keys(scheme: object, round_id: object, round_date: object) -> tuple[str, str, str]:
+    keys = (_text(scheme), _text(round_id), _parse_date(round_date))
+    problems = [Problem(message=f"{name} is empty or not a date YYYY-MM-DD", value=value)
+                for name, key, value in zip(("scheme", "round_id", "round_date"), keys,
+                                            (scheme, round_id, round_date)) if not key]
     if problems:
-        raise InputError(problems, summary=f"{file or 'the round'}: the round's keys are incomplete")
-    return str(scheme).strip(), str(round_id).strip(), date  # type: ignore[return-value]
+        raise InputError(problems, summary="the round's keys are incomplete")
+    return keys  # type: ignore[return-value]
 
 
 def store_round(path: str | os.PathLike[str] | None, *, scheme: str, round_id: str,
@@ -576,7 +551,7 @@ class _LabRows:
     rows: tuple[tuple, ...]
 
 
-def _read_csv(file: Path) -> tuple[list[dict[str, object]], str | None, int]:
+def _read_csv(file: Path) -> list[dict[str, object]]:
     try:
         frame = pd.read_csv(file, dtype=str, keep_default_na=False, encoding="utf-8-sig")
     except (UnicodeDecodeError, pd.errors.ParserError, pd.errors.EmptyDataError) as exc:
@@ -586,10 +561,10 @@ def _read_csv(file: Path) -> tuple[list[dict[str, object]], str | None, int]:
     if missing:
         raise InputError.single(f"not a roundscore scores.csv: missing columns: {', '.join(missing)}",
                                 file=str(file))
-    return frame.to_dict(orient="records"), None, 2
+    return frame.to_dict(orient="records")
 
 
-def _read_workbook(file: Path) -> tuple[list[dict[str, object]], dict[str, object], int]:
+def _read_workbook(file: Path) -> tuple[list[dict[str, object]], dict[str, object]]:
     from python_calamine import CalamineWorkbook
 
     try:
@@ -612,32 +587,25 @@ def _read_workbook(file: Path) -> tuple[list[dict[str, object]], dict[str, objec
         if len(r) >= 2 and str(r[0]).strip():
             value = r[1]
             meta[str(r[0]).strip()] = _unquote(value.strip()) if isinstance(value, str) else value
-    if str(meta.get("generator", "")).strip() != "roundscore":
+    if _text(meta.get("generator")) != "roundscore":
         raise InputError.single("not a roundscore lab workbook: key 'generator' is not 'roundscore'",
                                 file=str(file), sheet="round", value=meta.get("generator"))
-    try:
-        fmt = float(meta.get("format"))  # type: ignore[arg-type]
-    except (TypeError, ValueError):
-        fmt = math.nan
-    if fmt != _WORKBOOK_FORMAT:
+    if _text(meta.get("format")) != str(_WORKBOOK_FORMAT):
         raise InputError.single(f"workbook format {meta.get('format')!r} is not supported "
                                 f"(this version reads format {_WORKBOOK_FORMAT})",
                                 file=str(file), sheet="round")
-    return records, meta, 2
+    return records, meta
 
 
 def _read_lab_file(file: Path, lab: str | None) -> list[_LabRows]:
     """Read a ``scores.csv`` or ``labs/LAB.xlsx`` into per (scheme, round, lab) groups."""
     if not file.is_file():
         raise InputError.single("file not found", file=str(file))
-    suffix = file.suffix.lower()
-    meta: dict[str, object] | None
+    suffix, first, meta, sheet = file.suffix.lower(), 2, None, None  # row 1 is the header
     if suffix in (".csv", ".txt"):
-        records, meta, first = _read_csv(file)
-        sheet = None
+        records = _read_csv(file)
     elif suffix in (".xlsx", ".xlsm"):
-        records, meta, first = _read_workbook(file)
-        sheet = "data"
+        (records, meta), sheet = _read_workbook(file), "data"
     else:
         raise InputError.single("neither a roundscore scores.csv nor a lab workbook "
                                 "(.csv or .xlsx expected)", file=str(file))
@@ -773,11 +741,8 @@ def add_files(path: str | os.PathLike[str] | None, files: Iterable[str | os.Path
 # --------------------------------------------------------------------------- queries
 
 #: Columns of :func:`lab_history`'s frame.
-HISTORY_COLUMNS: tuple[str, ...] = (
-    "scheme", "round", "round_date", "title", "lab", "measurand", "unit", "n_replicates",
-    "result", "assigned", "u_assigned", "sigma_pt", "z", "z_prime", "zeta", "en", "d",
-    "d_percent", "signal", "note", "score", "score_value",
-)
+HISTORY_COLUMNS: tuple[str, ...] = ("scheme", "round", "round_date", "title", *_ROW_FIELDS,
+                                     "score_value")
 
 
 def _date_arg(name: str, value: str | _dt.date | None) -> str | None:
@@ -823,17 +788,12 @@ def lab_history(path: str | os.PathLike[str] | None, *, lab: str | Sequence[str]
         raise InputError.single("last: must be a whole number of at least 1", value=last)
     clauses = [f"s.lab IN ({', '.join('?' * len(labs))})"]
     args: list[object] = list(labs)
-    for col, value in (("s.scheme", scheme), ("s.measurand", measurand)):
+    for clause, value in (("s.scheme = ?", scheme), ("s.measurand = ?", measurand),
+                          ("r.round_date >= ?", _date_arg("since", since)),
+                          ("r.round_date < ?", _date_arg("before_date", before_date))):
         if value is not None:
-            clauses.append(f"{col} = ?")
+            clauses.append(clause)
             args.append(value)
-    lo, hi = _date_arg("since", since), _date_arg("before_date", before_date)
-    if lo is not None:
-        clauses.append("r.round_date >= ?")
-        args.append(lo)
-    if hi is not None:
-        clauses.append("r.round_date < ?")
-        args.append(hi)
     sql = (f"SELECT s.scheme, s.round_id AS round, r.round_date, r.title, "
            f"{', '.join('s.' + c for c in _ROW_FIELDS)} FROM scores s JOIN rounds r "
            f"ON r.scheme = s.scheme AND r.round_id = s.round_id WHERE {' AND '.join(clauses)} "
