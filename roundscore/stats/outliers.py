@@ -43,28 +43,10 @@ from roundscore.stats.exact import check_choice
 from roundscore.stats.precision import PrecisionResult, cell_statistics, precision
 
 __all__ = [
-    "STRAGGLER_LEVEL",
-    "OUTLIER_LEVEL",
-    "GRUBBS_DOUBLE_SEED",
-    "Outcome",
-    "DropChoice",
-    "Sided",
-    "CochranResult",
-    "GrubbsResult",
-    "GrubbsPair",
-    "GrubbsDoubleTable",
-    "ScreenStep",
-    "Screening",
-    "ScreenedPrecision",
-    "cochran_critical",
-    "cochran",
-    "grubbs_critical",
-    "grubbs_single",
-    "grubbs_double_table",
-    "grubbs_double_critical",
-    "grubbs_double",
-    "screen",
-    "precision_with_screening",
+    "STRAGGLER_LEVEL", "OUTLIER_LEVEL", "GRUBBS_DOUBLE_SEED", "Outcome", "DropChoice", "Sided",
+    "CochranResult", "GrubbsResult", "GrubbsPair", "GrubbsDoubleTable", "ScreenStep", "Screening",
+    "ScreenedPrecision", "cochran_critical", "cochran", "grubbs_critical", "grubbs_single",
+    "grubbs_double_table", "grubbs_double_critical", "grubbs_double", "screen", "precision_with_screening",
 ]
 
 #: Significance level marking a straggler (ISO 5725-2 §7.3.2).
