@@ -784,6 +784,8 @@ def lab_history(path: str | os.PathLike[str] | None, *, lab: str | Sequence[str]
         scheme, lab and measurand.  Empty (with these columns) when nothing matches.
     """
     labs = [lab] if isinstance(lab, str) else list(lab)
+    if not labs or not all(isinstance(x, str) and x for x in labs):
+        raise InputError.single("lab: give one or more lab codes", value=lab)
     if last is not None and (not isinstance(last, int) or last < 1):
         raise InputError.single("last: must be a whole number of at least 1", value=last)
     clauses = [f"s.lab IN ({', '.join('?' * len(labs))})"]

@@ -310,6 +310,8 @@ def test_lab_history_filters_and_last_n(tmp_path):
     assert archive.lab_history(db, lab="nobody").empty
     with pytest.raises(InputError, match="since: not an ISO date"):
         archive.lab_history(db, lab="L02", since="July")
+    with pytest.raises(InputError, match="one or more lab codes"):
+        archive.lab_history(db, lab=[])
 
 
 def test_score_value_follows_the_chosen_score(tmp_path):
