@@ -11,12 +11,13 @@ a statistic beyond its 5 % critical value but not its 1 % value marks a
 every test as a :class:`ScreenStep`; :func:`precision_with_screening` then
 computes the precision statistics without the excluded labs.  The screens
 support, and do not replace, the provider's documented procedures and a
-technical look at each flagged lab (ISO 5725-2 §7.3.2 asks for an
-explanation before any exclusion).
+technical look at each flagged lab: ISO 5725-2 §7.3.2 keeps stragglers,
+normally excludes outliers, and asks that each flagged lab be investigated
+for a technical cause.
 
 References
 ----------
-.. [1] ISO 5725-2:2019 (first edition 1994), §7.3.2 (Cochran), §7.3.4
+.. [1] ISO 5725-2:1994 (revised 2019), §7.3.2 (Cochran), §7.3.4
    (Grubbs), Tables 4 and 5.
 .. [2] Cochran, W. G. (1941). "The distribution of the largest of a set of
    estimated variances as a fraction of their total". Annals of Eugenics 11, 47-52.

@@ -12,10 +12,11 @@ it), so data with many constant leading digits lose no precision.
 
 References
 ----------
-.. [1] ISO 5725-2:2019 (first edition 1994). Accuracy (trueness and precision)
-   of measurement methods and results - Part 2: Basic method for the
-   determination of repeatability and reproducibility of a standard
-   measurement method. §7.3 (h, k), §7.4 (s_r, s_L, s_R, unbalanced n̄).
+.. [1] ISO 5725-2:1994 (section numbers of this edition; revised 2019).
+   Accuracy (trueness and precision) of measurement methods and results -
+   Part 2: Basic method for the determination of repeatability and
+   reproducibility of a standard measurement method. §7.3 (h, k), §7.4
+   (s_r, s_L, s_R, unbalanced n̄).
 .. [2] ISO 5725-6:1994, §4.1.4 (r = 2.8 s_r, R = 2.8 s_R).
 .. [3] ISO 13528:2022, Annex C (Algorithm S); ISO 5725-5:1998 §6.2.
 .. [4] Mandel, J. (1985). "A new analysis of interlaboratory test results".
