@@ -32,7 +32,9 @@ def _read_form(rnd: Round, path: Path):
         results = read_rows(path, RESULTS_SHEET)
         info = read_rows(path, INFO_SHEET)
     except InputError as exc:
-        return [], list(exc.problems), ()
+        return [], [_with_file(p, _shown(rnd, path)) for p in exc.problems], ()
+    shown = _shown(rnd, path)
+    results = SheetRows(file=shown, sheet=results.sheet, rows=results.rows, warnings=results.warnings)
     recs, problems = records_from_form(rnd, results, info)
     return recs, problems, results.warnings + info.warnings
 
@@ -56,7 +58,7 @@ def read_results(rnd: Round) -> ResultTable:
             try:
                 sheet = read_rows(f, rnd.results_sheet)
             except InputError as exc:
-                problems += exc.problems
+                problems += [_with_file(p, shown) for p in exc.problems]
                 continue
             sheet = SheetRows(file=shown, sheet=sheet.sheet, rows=sheet.rows, warnings=sheet.warnings)
             if sheet.sheet and INFO_SHEET in _sheet_names(f):
@@ -73,6 +75,12 @@ def read_results(rnd: Round) -> ResultTable:
         problems += probs
         warnings += list(warns)
     return build_table(rnd, records, files=[_shown(rnd, f) for f in files], warnings=warnings, problems=problems)
+
+
+def _with_file(problem: Problem, shown: str) -> Problem:
+    from dataclasses import replace
+
+    return replace(problem, file=shown)
 
 
 def _sheet_names(path: Path) -> list[str]:

@@ -175,7 +175,7 @@ def algorithm_a(
     --------
     >>> est = algorithm_a([10.1, 10.3, 9.8, 10.0, 10.2, 14.0])
     >>> round(est.mean, 4), est.iterations > 0
-    (10.1134, True)
+    (10.1859, True)
     """
     a = np.asarray(x, dtype=float)
     one = a.ndim == 1

@@ -1,0 +1,133 @@
+"""The evaluation (roundscore.evaluate): assigned values, σ_pt, scores, signals, notes and the audit trail.
+
+Expected values are worked by hand from the ISO 13528 formulas in each test.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from roundscore.io.readers import read_participants, read_results
+from roundscore.evaluate import evaluate
+from roundscore.round import load_round
+from roundscore.stats.robust import algorithm_a
+from roundscore.stats.sigma import horwitz_thompson
+
+
+def _ev(folder):
+    rnd = load_round(folder)
+    return evaluate(rnd, read_results(rnd), read_participants(rnd))
+
+
+def _results(values: dict[str, list], measurand="cu", extra=""):
+    lines = ["lab,measurand,replicate,value" + ("," + extra.split("=")[0] if extra else "")]
+    for lab, vals in values.items():
+        for i, v in enumerate(vals, start=1):
+            lines.append(f"{lab},{measurand},{i},{v}")
+    return "\n".join(lines) + "\n"
+
+
+LABS = {f"L{i}": [10 + 0.1 * ((i * 7) % 11 - 5), 10 + 0.1 * ((i * 5) % 11 - 5)] for i in range(1, 13)}
+
+
+def test_consensus_sigma_and_z(make_round):
+    folder = make_round('[round]\nid="E1"\n[measurand.cu]\nunit="mg/kg"\nsigma_pt=0.5\n', _results(LABS))
+    ev = _ev(folder)
+    m = ev.measurands["cu"]
+    means = np.array([np.mean(v) for v in LABS.values()])
+    est = algorithm_a(means)
+    assert m.assigned == est.mean and m.p == 12
+    assert m.u_assigned == pytest.approx(1.25 * est.sd / np.sqrt(12))  # ISO 13528 §7.7.3
+    sc = ev.scores.set_index("lab")
+    assert sc.loc["L3", "z"] == pytest.approx((np.mean(LABS["L3"]) - est.mean) / 0.5)
+    assert sc.loc["L3", "n_replicates"] == 2
+    assert set(ev.statistics.columns) >= {"robust_mean", "robust_sd", "iterations", "u_check_passed"}
+
+
+def test_horwitz_sigma_uses_unit(make_round):
+    folder = make_round('[round]\nid="E2"\n[measurand.cu]\nunit="µg/kg"\nsigma_pt="horwitz"\n',
+                        _results({k: [v[0] * 100, v[1] * 100] for k, v in LABS.items()}))
+    m = _ev(folder).measurands["cu"]
+    c = m.assigned * 1e-9  # µg/kg → mass fraction
+    assert m.sigma_pt == pytest.approx(horwitz_thompson(c) / 1e-9)
+
+
+def test_u_check_fails_and_suggests_z_prime(make_round):
+    labs = {f"L{i}": [10 + (i % 5 - 2) * 0.8] for i in range(1, 9)}
+    folder = make_round('[round]\nid="E3"\n[measurand.cu]\nunit="mg/kg"\nsigma_pt=0.3\n', _results(labs))
+    ev = _ev(folder)
+    m = ev.measurands["cu"]
+    assert m.u_check_passed is False
+    assert any("z′" in n for n in m.notes)
+    assert ev.failed_checks == ["cu: u(x_pt) exceeds 0.3 σ_pt"]
+
+
+def test_censored_false_negative_and_unit_slip(make_round):
+    labs = dict(LABS)
+    labs["L20"] = ["<2"]  # limit below x_pt − 3σ_pt = 10 − 1.5: a false negative (common practice)
+    labs["L21"] = ["<50"]  # limit above the level: just not scored
+    labs["L22"] = [10000.0, 10010.0]  # a factor 1000: unit slip
+    folder = make_round('[round]\nid="E4"\n[measurand.cu]\nunit="mg/kg"\nsigma_pt=0.5\n', _results(labs))
+    ev = _ev(folder)
+    sc = ev.scores.set_index("lab")
+    assert sc.loc["L20", "signal"] == "action" and "false negative" in sc.loc["L20", "note"]
+    assert sc.loc["L20", "result"] == "<2"
+    assert sc.loc["L21", "signal"] == "not-scored" and "censored result <50" in sc.loc["L21", "note"]
+    assert sc.loc["L22", "signal"] == "action" and "possible unit or decimal slip" in sc.loc["L22", "note"]
+    audit = ev.audit
+    assert ((audit.lab == "L21") & audit.reason.str.contains("censored")).any()
+    assert ev.measurands["cu"].p == 13  # censored results are left out of the statistics
+
+
+def test_reference_value_zeta_and_en(make_round):
+    res = ("lab,measurand,replicate,value,u,U,k\n"
+           "A,pb,1,0.55,0.02,,\nB,pb,1,0.45,,0.06,3\nC,pb,1,0.50,,0.05,\nD,pb,1,0.52,,,\n")
+    toml = ('[round]\nid="E5"\n[measurand.pb]\nunit="mg/kg"\nassigned=0.5\nu_assigned=0.01\n'
+            'sigma_pt=0.05\nscore="{score}"\n')
+    ev = _ev(make_round(toml.format(score="zeta"), res))
+    sc = ev.scores.set_index("lab")
+    assert sc.loc["A", "zeta"] == pytest.approx(0.05 / np.hypot(0.02, 0.01))
+    assert sc.loc["B", "zeta"] == pytest.approx(-0.05 / np.hypot(0.02, 0.01))  # u = U/k = 0.06/3
+    assert sc.loc["C", "zeta"] == pytest.approx(0.0)  # u = U/2 with k = 2 assumed (common practice)
+    assert sc.loc["D", "signal"] == "not-scored" and "ζ needs u" in sc.loc["D", "note"]
+    ev = _ev(make_round(toml.format(score="en"), res))
+    sc = ev.scores.set_index("lab")
+    # En with U(x_pt) = 2u(x_pt) (ISO 13528 §9.7); lab A's U = 2u (k = 2 assumed).
+    assert sc.loc["A", "en"] == pytest.approx(0.05 / np.hypot(0.04, 0.02))
+    assert sc.loc["B", "en"] == pytest.approx(-0.05 / np.hypot(0.06, 0.02))
+    assert ev.measurands["pb"].assigned_source.startswith("reference value")
+
+
+def test_exclusion_and_not_reported(make_round):
+    labs = dict(LABS)
+    labs["L30"] = [""]
+    toml = ('[round]\nid="E6"\n[measurand.cu]\nunit="mg/kg"\nsigma_pt=0.5\n'
+            '[[exclude]]\nlab="L1"\nreason="bottle broken in transit"\n')
+    ev = _ev(make_round(toml, _results(labs)))
+    m = ev.measurands["cu"]
+    assert m.p == 11  # L1 left out of the consensus, L30 gave nothing
+    sc = ev.scores.set_index("lab")
+    assert "excluded by the coordinator: bottle broken in transit" in sc.loc["L1", "note"]
+    assert np.isfinite(sc.loc["L1", "z"])  # still scored (scored = true by default)
+    assert sc.loc["L30", "signal"] == "not-scored" and "not reported" in sc.loc["L30", "note"]
+    others = [np.mean(v) for k, v in LABS.items() if k != "L1"]
+    assert m.assigned == pytest.approx(algorithm_a(others).mean)
+
+
+def test_too_few_results_not_scored_with_message(make_round):
+    ev = _ev(make_round('[round]\nid="E7"\n[measurand.cu]\nunit="mg/kg"\nsigma_pt=0.5\n',
+                        _results({"A": [1.0], "B": [1.1]})))
+    m = ev.measurands["cu"]
+    assert not m.scored and any("at least 3" in n for n in m.notes)
+    assert (ev.scores.signal == "not-scored").all()
+
+
+def test_robust_sd_sigma(make_round):
+    ev = _ev(make_round('[round]\nid="E8"\n[measurand.cu]\nunit="mg/kg"\nsigma_pt="robust-sd"\nscore="z-prime"\n',
+                        _results(LABS)))
+    m = ev.measurands["cu"]
+    assert m.sigma_pt == m.robust.sd
+    sc = ev.scores.set_index("lab")
+    x = np.mean(LABS["L2"])
+    assert sc.loc["L2", "z_prime"] == pytest.approx((x - m.assigned) / np.hypot(m.sigma_pt, m.u_assigned))

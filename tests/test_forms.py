@@ -1,0 +1,84 @@
+"""Blank submission forms (roundscore.io.forms): written, filled in as a lab would, read back.
+
+The form layout is our own design; the checks are internal (round trip, protection, validation).
+"""
+
+from __future__ import annotations
+
+import openpyxl
+import pytest
+
+from roundscore.cli import main
+from roundscore.errors import InputError
+from roundscore.io.forms import FIRST_ROW, RESULTS_SHEET, write_form
+from roundscore.io.readers import read_results
+from roundscore.round import load_round
+
+TOML = """
+[round]
+id = "F1"
+provider = "Invented PT Ltd"
+results = "returned"
+participants = "participants.csv"
+replicates = 2
+[measurand.iron]
+unit = "mg/kg"
+sigma_pt = 1.0
+[measurand.zinc]
+unit = "mg/kg"
+sigma_pt = 2.0
+"""
+
+
+def _fill(path, rows):
+    wb = openpyxl.load_workbook(path)
+    ws = wb[RESULTS_SHEET]
+    for r, values in enumerate(rows):
+        for c, v in enumerate(values):
+            if v is not None:
+                ws.cell(row=FIRST_ROW + r, column=3 + c, value=v)
+    wb.save(path)
+
+
+def test_forms_command_and_round_trip(make_round):
+    folder = make_round(TOML, participants__csv="lab,name,contact\nA1,Alpha Lab,a@x.example\nB2,Beta Lab,b@x.example\n")
+    assert main(["forms", str(folder), "--out", str(folder / "returned")]) == 0
+    forms = sorted((folder / "returned").glob("*.xlsx"))
+    assert [f.name for f in forms] == ["F1-A1.xlsx", "F1-B2.xlsx"]
+    wb = openpyxl.load_workbook(forms[0])
+    ws = wb[RESULTS_SHEET]
+    assert ws.protection.sheet  # the sheet is protected...
+    assert ws.cell(row=FIRST_ROW, column=3).protection.locked is False  # ...but the result cells are open
+    assert ws.cell(row=FIRST_ROW, column=1).value == "iron"
+    assert len(ws.data_validations.dataValidation) >= 4
+    # u, U, k, method, comment after two replicates
+    _fill(forms[0], [[12.1, 12.3, 0.4, None, None, "ICP-OES", "ok"], ["<5", None, None, 1.0, 2, None, None]])
+    _fill(forms[1], [["11,9", 12.0], [40.5, 41.5]])
+    t = read_results(load_round(folder)).frame.set_index(["lab", "measurand", "replicate"])
+    assert t.loc[("A1", "iron", 1), "value"] == 12.1 and t.loc[("A1", "iron", 1), "u"] == 0.4
+    assert t.loc[("A1", "iron", 1), "method"] == "ICP-OES"
+    assert t.loc[("A1", "zinc", 1), "status"] == "censored" and t.loc[("A1", "zinc", 1), "U"] == 1.0
+    assert t.loc[("A1", "zinc", 2), "status"] == "blank"
+    assert t.loc[("B2", "iron", 1), "value"] == 11.9
+    assert t.loc[("A1", "iron", 1), "file"] == "returned/F1-A1.xlsx"
+
+
+def test_form_of_another_round_is_refused(make_round, tmp_path):
+    folder = make_round(TOML)
+    (folder / "returned").mkdir()
+    other = load_round(make_round(TOML.replace('id = "F1"', 'id = "F9"')))
+    write_form(other, "A1", folder / "returned" / "x.xlsx")
+    _fill(folder / "returned" / "x.xlsx", [[1.0, 2.0]])
+    with pytest.raises(InputError, match="this form is for round 'F9', not 'F1'"):
+        read_results(load_round(folder))
+
+
+def test_bad_cell_in_form_names_file_sheet_row(make_round):
+    folder = make_round(TOML)
+    (folder / "returned").mkdir()
+    write_form(load_round(folder), "C3", folder / "returned" / "c.xlsx")
+    _fill(folder / "returned" / "c.xlsx", [[1.0, "twelve"]])
+    with pytest.raises(InputError) as info:
+        read_results(load_round(folder))
+    assert "returned/c.xlsx, sheet 'Results', row 10, column 'value' (lab C3, measurand iron)" in str(info.value)
+    assert "'twelve': not a number" in str(info.value)

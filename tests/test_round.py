@@ -1,0 +1,90 @@
+"""round.toml validation (roundscore.round): every mistake names the file, key, what was found and allowed."""
+
+from __future__ import annotations
+
+import pytest
+
+from roundscore.errors import RoundFileError
+from roundscore.round import load_round
+
+GOOD = """
+[round]
+id = "R1"
+date = 2026-03-01
+
+[measurand.lead]
+unit = "mg/kg"
+assigned = 0.5
+u_assigned = 0.01
+sigma_pt = { s_R = 0.06, s_r = 0.03, replicates = 2 }
+score = "zeta"
+"""
+
+
+def test_good_round(make_round):
+    rnd = load_round(make_round(GOOD))
+    m = rnd.measurands["lead"]
+    assert rnd.id == "R1" and rnd.date == "2026-03-01"
+    assert m.assigned == 0.5 and m.u_assigned == 0.01 and m.score == "zeta"
+    assert m.sigma_pt.kind == "precision" and m.sigma_pt.replicates == 2
+    assert rnd.warnings == ()
+
+
+@pytest.mark.parametrize("toml, words", [
+    ('[round]\ntitle="x"\n[measurand.a]\nunit="mg/kg"\nsigma_pt=1', ["'round.id' is required"]),
+    ('[round]\nid="R"\n[measurand.a]\nunit="mg/kg"\nsigma_pt="wild"',
+     ["measurand.a.sigma_pt", "'wild'", "horwitz"]),
+    ('[round]\nid="R"\n[measurand.a]\nunit="mg/kg"\nsigma_pt=1\nscore="t"', ["measurand.a.score", "'z-prime'"]),
+    ('[round]\nid="R"\n[measurand.a]\nunit="mg/kg"\nsigma_pt=1\nassigned=3.2',
+     ["u_assigned", "required when assigned is a number"]),
+    ('[round]\nid="R"\n[measurand.a]\nunit="mg/kg"\nsigma_pt=-2', ["a number > 0", "-2"]),
+    ('[round]\nid="R"\n[measurand.a]\nunit="mg/kg"\nsigma_pt={ s_R = 1, s_r = 2, replicates = 2 }',
+     ["s_R must exceed s_r"]),
+    ('[round]\nid="R"\nresults="../elsewhere.csv"\n[measurand.a]\nunit="mg/kg"\nsigma_pt=1',
+     ["round.results", "inside the round folder"]),
+    ('[round]\nid="R"\n', ["at least one [measurand.NAME]"]),
+    ('[round]\nid="R"\nreplicates="two"\n[measurand.a]\nunit="mg/kg"\nsigma_pt=1', ["round.replicates", "whole number"]),
+    ('[round\nid="R"', ["not valid TOML"]),
+])
+def test_mistakes_are_named(make_round, toml, words):
+    folder = make_round(toml)
+    with pytest.raises(RoundFileError) as info:
+        load_round(folder)
+    text = str(info.value)
+    assert "round.toml" in text
+    for w in words:
+        assert w in text
+
+
+def test_all_mistakes_listed_together(make_round):
+    folder = make_round('[round]\nid="R"\n[measurand.a]\nunit="mg/kg"\nsigma_pt="x"\nscore="q"\n'
+                        '[measurand.b]\nsigma_pt=1\n')
+    with pytest.raises(RoundFileError) as info:
+        load_round(folder)
+    assert len(info.value.problems) == 3  # sigma_pt, score, and b's missing unit
+
+
+def test_unknown_key_warns_with_nearest(make_round):
+    rnd = load_round(make_round('[round]\nid="R"\ntitel="x"\n[measurand.a]\nunit="mg/kg"\nsigma_pt=1\nsigmapt=2\n'))
+    text = " ".join(rnd.warnings)
+    assert "'titel'" in text and "did you mean 'title'" in text
+    assert "did you mean 'sigma_pt'" in text
+
+
+def test_exclusions(make_round):
+    rnd = load_round(make_round(GOOD + '\n[[exclude]]\nlab = "L3"\nreason = "sample thawed"\nscored = false\n'))
+    (e,) = rnd.exclusions
+    assert e.lab == "L3" and e.measurand is None and not e.scored
+    with pytest.raises(RoundFileError, match="exclude\\[1\\].reason"):
+        load_round(make_round(GOOD + '\n[[exclude]]\nlab = "L3"\n'))
+
+
+def test_missing_round_file(tmp_path):
+    with pytest.raises(RoundFileError, match="round file not found"):
+        load_round(tmp_path)
+
+
+def test_missing_results_file_named(make_round):
+    rnd = load_round(make_round(GOOD))
+    with pytest.raises(RoundFileError, match="'results.csv' not found"):
+        rnd.result_files()
