@@ -163,42 +163,54 @@ def _lab_key(code: str):
     return [int(t) if t.isdigit() else t for t in re.split(r"(\d+)", str(code))]
 
 
-def _lab_table(rnd: Round, table: ResultTable, name: str, all_labs: list[str]) -> pd.DataFrame:
-    """Per-lab summary of one measurand's replicates."""
+def _lab_tables(table: ResultTable, names: list[str], all_labs: list[str]) -> dict[str, pd.DataFrame]:
+    """Per-lab summary of each measurand's replicates, for every lab (vectorised over the whole table).
+
+    A lab's result is the mean of its numeric replicates. If any replicate is
+    censored the result is treated as censored (limit: the largest "<" limit,
+    or the smallest ">" limit), with a reason when numeric replicates were
+    also given. The lab's u, U, k and method are the first given for that
+    lab and measurand; u = U/k (k = 2 when not given) when only U is.
+    """
     f = table.frame
-    f = f[f["measurand"] == name]
-    rows = []
-    groups = {lab: g for lab, g in f.groupby("lab", sort=False)}
-    for lab in all_labs:
-        g = groups.get(lab)
-        rec: dict[str, Any] = {"lab": lab, "n_replicates": 0, "mean": np.nan, "sd": np.nan,
-                               "status": "not-reported", "relation": None, "limit": np.nan,
-                               "u": np.nan, "U": np.nan, "k": np.nan, "method": None,
-                               "result_text": "", "used": False, "reason": ""}
-        if g is not None:
-            vals = g.loc[g["status"] == "value", "value"].to_numpy()
-            cens = g[g["status"] == "censored"]
-            for col in ("u", "U", "k"):
-                s = g[col].dropna()
-                rec[col] = float(s.iloc[0]) if len(s) else np.nan
-            meth = g["method"].dropna()
-            rec["method"] = str(meth.iloc[0]) if len(meth) else None
-            if len(cens):
-                rel = cens["relation"].iloc[0]
-                limits = cens["limit"].dropna()
-                lim = (limits.max() if rel == "<" else limits.min()) if len(limits) else np.nan
-                rec.update(status="censored", relation=rel, limit=float(lim), n_replicates=len(g),
-                           result_text=f"{rel}{lim:g}" if np.isfinite(lim) else f"{rel}limit not given")
-                if len(vals):
-                    rec["reason"] = "some replicates censored: the result is treated as censored"
-            elif len(vals):
-                rec.update(status="value", n_replicates=len(vals), mean=float(np.mean(vals)),
-                           sd=float(np.std(vals, ddof=1)) if len(vals) > 1 else np.nan)
-        if np.isnan(rec["u"]) and np.isfinite(rec["U"]):
-            k = rec["k"] if np.isfinite(rec["k"]) else DEFAULT_K
-            rec["u"] = rec["U"] / k
-        rows.append(rec)
-    return pd.DataFrame(rows)
+    keys = ["measurand", "lab"]
+    idx = pd.MultiIndex.from_product([names, all_labs], names=keys)
+    vals = f[f["status"] == "value"].groupby(keys, sort=False)["value"]
+    agg = pd.DataFrame({"n_values": vals.count(), "mean": vals.mean(), "sd": vals.std(ddof=1)}).reindex(idx)
+    cens_rows = f[f["status"] == "censored"]
+    cg = cens_rows.groupby(keys, sort=False)
+    cens = pd.DataFrame({
+        "n_cens": cg.size(), "relation": cg["relation"].first(),
+        "lim_max": cg["limit"].max(), "lim_min": cg["limit"].min(),
+    }).reindex(idx)
+    firsts = f.groupby(keys, sort=False)[["u", "U", "k", "method"]].first().reindex(idx)
+    n_val = agg["n_values"].fillna(0).astype(int).to_numpy()
+    n_cens = cens["n_cens"].fillna(0).astype(int).to_numpy()
+    is_cens = n_cens > 0
+    is_val = (n_val > 0) & ~is_cens
+    rel = cens["relation"].to_numpy(dtype=object)
+    lim = np.where(rel == ">", cens["lim_min"].to_numpy(float), cens["lim_max"].to_numpy(float))
+    status = np.where(is_cens, "censored", np.where(is_val, "value", "not-reported"))
+    text = np.array([
+        (f"{r}{v:g}" if np.isfinite(v) else f"{r}limit not given") if c else ""
+        for c, r, v in zip(is_cens, rel, lim)
+    ], dtype=object)
+    u = firsts["u"].to_numpy(float)
+    U = firsts["U"].to_numpy(float)
+    k = firsts["k"].to_numpy(float)
+    u = np.where(np.isnan(u) & np.isfinite(U), U / np.where(np.isfinite(k), k, DEFAULT_K), u)
+    reason = np.where(is_cens & (n_val > 0), "some replicates censored: the result is treated as censored", "")
+    out = pd.DataFrame({
+        "measurand": idx.get_level_values(0), "lab": idx.get_level_values(1),
+        "n_replicates": np.where(is_cens, n_val + n_cens, np.where(is_val, n_val, 0)),
+        "mean": np.where(is_val, agg["mean"].to_numpy(float), np.nan),
+        "sd": np.where(is_val, agg["sd"].to_numpy(float), np.nan),
+        "status": status, "relation": np.where(is_cens, rel, None), "limit": np.where(is_cens, lim, np.nan),
+        "u": u, "U": U, "k": k, "method": firsts["method"].to_numpy(dtype=object),
+        "result_text": text, "used": False, "reason": reason,
+    })
+    return {n: g.drop(columns="measurand").reset_index(drop=True)
+            for n, g in out.groupby("measurand", sort=False)}
 
 
 def _assign(m: MeasurandSettings, est, med, made_v, p) -> tuple[float, float, str, list[str]]:
@@ -254,12 +266,11 @@ def _measurand(rnd: Round, labs: pd.DataFrame, m: MeasurandSettings,
     labs["excluded"] = labs["excluded"].fillna(False).astype(bool)
     labs["withhold"] = labs["withhold"].fillna(False).astype(bool)
     labs["used"] = (labs["status"] == "value") & ~labs["excluded"]
-    for _, r in labs.iterrows():
-        if r["status"] == "censored":
-            audit.append((m.name, r["lab"], "import", "left out of the statistics",
-                          f"censored result {r['result_text']}"))
-        elif r["status"] == "not-reported":
-            audit.append((m.name, r["lab"], "import", "not scored", "no result reported"))
+    cens = labs["status"] == "censored"
+    audit.extend((m.name, lab, "import", "left out of the statistics", f"censored result {t}")
+                 for lab, t in zip(labs.loc[cens, "lab"], labs.loc[cens, "result_text"]))
+    audit.extend((m.name, lab, "import", "not scored", "no result reported")
+                 for lab in labs.loc[labs["status"] == "not-reported", "lab"])
     used = labs.loc[labs["used"], "mean"].to_numpy()
     p = len(used)
     med = float(np.median(used)) if p else np.nan
@@ -375,7 +386,7 @@ def evaluate(rnd: Round, table: ResultTable, participants: dict[str, Participant
     audit: list[tuple] = []
     names = list(rnd.measurands)
     # Lab means per measurand, for one vectorised Algorithm A call.
-    pre = {n: _lab_table(rnd, table, n, all_labs) for n in names}
+    pre = _lab_tables(table, names, all_labs)
     excluded = {(e.lab, e.measurand) for e in rnd.exclusions}
     mat = np.full((len(names), len(all_labs)), np.nan)
     for i, n in enumerate(names):
