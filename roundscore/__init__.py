@@ -19,6 +19,13 @@ from .round import Round, load_round
 from .stats.robust import RobustEstimate, algorithm_a, made, niqr
 from .stats.scores import en_score, signal, z_prime_score, z_score, zeta_score
 from .stats.sigma import horwitz_thompson, sigma_from_precision
+from .stats.precision import algorithm_s, precision
+from .stats.outliers import cochran, grubbs_double, grubbs_single, precision_with_screening, screen
+from .stats.compare import compare_groups, compare_one, compare_two
+from .stats.exact import centred
+from .stats.items import homogeneity, stability
+from .archive import add_files, lab_history, store_round
+from .history import check_history
 
 __all__ = [
     "__version__",
@@ -28,4 +35,7 @@ __all__ = [
     "RobustEstimate", "algorithm_a", "made", "niqr",
     "z_score", "z_prime_score", "zeta_score", "en_score", "signal",
     "horwitz_thompson", "sigma_from_precision",
+    "precision", "algorithm_s", "cochran", "grubbs_single", "grubbs_double", "screen", "precision_with_screening",
+    "compare_two", "compare_one", "compare_groups", "centred", "homogeneity", "stability",
+    "store_round", "add_files", "lab_history", "check_history",
 ]
