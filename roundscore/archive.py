@@ -47,7 +47,7 @@ from collections.abc import Callable, Iterable, Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any, Iterator, Literal
+from typing import TYPE_CHECKING, Any, Iterator, Literal
 
 import pandas as pd
 
@@ -56,11 +56,15 @@ from roundscore.archive_files import (FLOAT_FIELDS as _FLOAT_FIELDS, ROW_FIELDS 
                                       normalise_rows as _normalise_rows, parse_date as _parse_date,
                                       plain as _plain, read_lab_file as _read_lab_file,
                                       text_key as _text, unquote as _unquote)
-from roundscore.errors import ArchiveError, InputError, Problem
+from roundscore.errors import ArchiveError, InputError, Problem, RoundFileError
+
+if TYPE_CHECKING:  # only for annotations: the archive does not depend on the evaluation
+    from roundscore.evaluate import RoundEvaluation
+    from roundscore.round import Round
 
 __all__ = ["ARCHIVE_ENV", "SCORE_COLUMNS", "HISTORY_COLUMNS", "MIGRATIONS", "SCHEMA_VERSION",
            "StoreOutcome", "archive_path", "store_round", "add_files", "lab_history",
-           "archived_labs"]
+           "archived_labs", "round_history", "store_evaluation", "check_round_keys"]
 
 #: Environment variable that overrides the default archive file.
 ARCHIVE_ENV = "ROUNDSCORE_ARCHIVE"
@@ -400,8 +404,8 @@ def store_round(path: str | os.PathLike[str] | None, *, scheme: str, round_id: s
             if not replace:
                 raise ArchiveError(
                     f"{label} is already archived (stored {old['stored_at']}) with different "
-                    "content; pass replace=True (--replace) to replace it (the old rows are then "
-                    "kept in the audit table)")
+                    "content; replace=True replaces it (the old rows are then kept in the audit "
+                    "table)")
             _audit(conn, scheme=scheme, round_id=round_id, lab=None, reason=reason,
                    whole_round=True)
             conn.execute("DELETE FROM scores WHERE scheme = ? AND round_id = ?", (scheme, round_id))
@@ -558,7 +562,8 @@ def lab_history(path: str | os.PathLike[str] | None, *, lab: str | Sequence[str]
     -------
     pandas.DataFrame
         Columns :data:`HISTORY_COLUMNS`; ``score`` is the round's chosen score
-        name and ``score_value`` its value.  Ordered by round date, then round,
+        name and ``score_value`` its value.  ``result`` is float, or object
+        when some results are censored (their text, e.g. ``"<0.1"``).  Ordered by round date, then round,
         scheme, lab and measurand.  Empty (with these columns) when nothing matches.
 
     Notes
@@ -600,11 +605,104 @@ def lab_history(path: str | os.PathLike[str] | None, *, lab: str | Sequence[str]
               for i, c in zip(frame.index, value_col)]
     frame = frame.assign(score_value=pd.Series(values, index=frame.index, dtype=float))
     for col in _FLOAT_FIELDS:
-        frame[col] = frame[col].astype(float)
+        if col != "result":
+            frame[col] = frame[col].astype(float)
+    frame["result"] = _result_column(frame["result"])
     return frame.loc[:, list(HISTORY_COLUMNS)].reset_index(drop=True)
+
+
+def _result_column(values: pd.Series) -> pd.Series:
+    """Results as floats; when some are censored (text such as ``"<0.1"``) an object column
+    holding floats and those texts."""
+    if all(v is None or isinstance(v, (int, float)) for v in values):
+        return values.astype(float)
+    return pd.Series([math.nan if v is None else (v if isinstance(v, str) else float(v))
+                      for v in values], index=values.index, dtype=object)
 
 
 def archived_labs(path: str | os.PathLike[str] | None) -> list[str]:
     """Every lab code in the archive, sorted."""
     with _connect(path, create=False) as conn:
         return [r[0] for r in conn.execute("SELECT DISTINCT lab FROM scores ORDER BY lab")]
+
+
+# --------------------------------------------------------------------------- the round pipeline
+
+def check_round_keys(rnd: Round) -> None:
+    """Refuse to archive a round whose file lacks the keys the archive is keyed on.
+
+    Called before any output is written, so a missing ``[round] scheme`` or
+    ``date`` is reported at once rather than after a complete run.
+
+    Raises
+    ------
+    RoundFileError
+        Naming ``round.toml`` and the missing key.
+    """
+    problems = []
+    for key, value, allowed in (("round.scheme", rnd.scheme, "the scheme's name (text)"),
+                                ("round.date", rnd.date, "a date in the form 2026-10-14"),
+                                ("round.id", rnd.id, "the round identifier (text)")):
+        if not str(value or "").strip():
+            problems.append(Problem(message=f"{rnd.path}: key {key!r} is needed to store the round "
+                                            f"in the history archive; allowed: {allowed}"))
+    if problems:
+        raise RoundFileError(problems, summary=f"{rnd.path}: the round cannot be archived")
+
+
+def round_history(path: str | os.PathLike[str], *, scheme: str, labs: Sequence[str],
+                  round_id: str, round_date: str, last: int) -> dict[str, pd.DataFrame]:
+    """The earlier rounds of every lab of a round, from one query, grouped by lab.
+
+    Parameters
+    ----------
+    path : path
+        Archive file.  When it does not exist yet there is no history: ``{}``.
+    scheme : str
+        The round's scheme (lab codes are only meaningful within a scheme).
+    labs : sequence of str
+        The round's labs.
+    round_id, round_date : str
+        The round being scored: rounds dated on or after ``round_date`` and the
+        round ``round_id`` itself are left out, so a re-scored round shows only
+        what came before it.
+    last : int
+        Most recent rounds kept per lab x measurand.
+
+    Returns
+    -------
+    dict of str to pandas.DataFrame
+        Lab code to its :data:`HISTORY_COLUMNS` frame (labs without history are absent).
+    """
+    if not labs or not Path(path).exists():
+        return {}
+    frame = lab_history(path, lab=list(labs), scheme=scheme, before_date=round_date,
+                        exclude_round=round_id, last=last)
+    return {str(lab): part.reset_index(drop=True)
+            for lab, part in frame.groupby("lab", sort=False)}
+
+
+def store_evaluation(path: str | os.PathLike[str], ev: RoundEvaluation, *, replace: bool = False,
+                     reason: str = "round re-scored and replaced on request") -> StoreOutcome:
+    """Store an evaluated round: settings, statistics, precision (when computed) and every score.
+
+    A thin layer over :func:`store_round` that takes the pieces from the
+    evaluation: ``ev.round.settings_dict()``, ``ev.statistics``,
+    ``ev.extras["precision"]`` (absent when the round has no precision stage)
+    and ``ev.scores`` (the ``scores.csv`` columns; ``rank`` and ``n_scored``
+    are not stored since they follow from the scores).
+
+    Raises
+    ------
+    RoundFileError
+        The round file lacks a scheme, date or identifier.
+    ArchiveError
+        The round is archived with different content and ``replace`` is false.
+    """
+    rnd = ev.round
+    check_round_keys(rnd)
+    precision = ev.extras.get("precision")
+    return store_round(path, scheme=rnd.scheme, round_id=rnd.id, round_date=rnd.date,
+                       title=rnd.title, settings=rnd.settings_dict(), statistics=ev.statistics,
+                       scores=ev.scores, precision=precision if isinstance(precision, pd.DataFrame)
+                       else None, replace=replace, reason=reason)

@@ -27,7 +27,7 @@ import pandas as pd
 from roundscore.errors import InputError, Problem
 
 __all__ = ["SCORE_COLUMNS", "ROW_FIELDS", "TEXT_FIELDS", "FLOAT_FIELDS", "SIGNALS", "SCORE_NAMES",
-           "SCORE_VALUE_COLUMN", "WORKBOOK_FORMAT", "LabRows", "plain", "unquote", "text_key",
+           "SCORE_VALUE_COLUMN", "WORKBOOK_FORMAT", "CENSORED_STARTS", "LabRows", "plain", "unquote", "text_key",
            "parse_date", "normalise_rows", "read_lab_file"]
 
 #: Columns of the pipeline's ``scores.csv`` and of the ``data`` sheet of a
@@ -37,6 +37,8 @@ SCORE_COLUMNS: tuple[str, ...] = (
     "sigma_pt", "z", "z_prime", "zeta", "en", "d", "d_percent", "signal", "note",
     "score", "scheme", "round", "round_date",
 )
+#: First characters of a censored ``result`` ("below" / "above" a limit), as the pipeline writes it.
+CENSORED_STARTS = ("<", ">")
 #: Per-row fields stored in the ``scores`` table (scheme/round/date live on the round).
 ROW_FIELDS: tuple[str, ...] = SCORE_COLUMNS[:17]
 TEXT_FIELDS = frozenset({"lab", "measurand", "unit", "signal", "note", "score"})
@@ -100,7 +102,10 @@ def normalise_rows(records: Sequence[dict[str, object]], *, file: str | None, sh
     """Validate and convert score records into tuples in :data:`ROW_FIELDS` order.
 
     Text cells are stripped and un-neutralised; empty cells become ``None``;
-    numbers become ``float`` (``n_replicates`` an ``int``).  Every problem is
+    numbers become ``float`` (``n_replicates`` an ``int``).  ``result`` may
+    also be a censored result, kept as its text (``"<0.1"``, ``">200"``,
+    ``"<limit not given"``, as the pipeline writes it); SQLite's REAL column
+    affinity keeps such text as text ("Datatypes In SQLite", section 3).  Every problem is
     collected with its row (``first_row`` is the spreadsheet row of record 0).
     """
     rows: list[tuple] = []
@@ -120,10 +125,15 @@ def normalise_rows(records: Sequence[dict[str, object]], *, file: str | None, sh
                     raw = int(raw)  # a numeric lab code read from a workbook
                 out.append(str(raw))
                 continue
+            if col == "result" and isinstance(raw, str) and raw[0] in CENSORED_STARTS:
+                out.append(raw)  # a censored result as the round reported it, e.g. "<0.1"
+                continue
             try:
                 number = float(raw)  # type: ignore[arg-type]
             except (TypeError, ValueError):
-                problems.append(Problem(message="not a number", column=col, value=raw, **where))
+                allowed = ("a number or a censored result such as <0.1"
+                           if col == "result" else "a number")
+                problems.append(Problem(message=f"not {allowed}", column=col, value=raw, **where))
                 out.append(None)
                 continue
             if col == "n_replicates":

@@ -100,16 +100,43 @@ def _safe(text: str) -> str:
 
 
 def run_round(round_path: str | Path, out: str | Path, *, archive: str | Path | None = None,
-              jobs: int | None = None, progress=None) -> tuple[RoundEvaluation, Outputs]:
+              jobs: int | None = None, progress=None, replace_archive: bool = False,
+              on_archive: Callable[[object], None] | None = None,
+              ) -> tuple[RoundEvaluation, Outputs]:
     """Score a round folder and write all outputs into ``out`` atomically.
 
-    With ``archive`` (or ``[round] archive`` in the round file) the round is
-    also stored in the history archive, after the outputs are complete.
+    With ``archive`` (or ``[round] archive`` in the round file; the argument
+    wins) each lab sheet shows the lab's earlier rounds of this scheme (the
+    last ``[round] history_rounds``, read in one query before writing), and
+    the round is stored in the archive after the outputs are complete.  No
+    archive file yet: no history, and the store creates it.  Storing the same
+    content again changes nothing; different content is refused unless
+    ``replace_archive``.  ``on_archive`` receives the
+    :class:`~roundscore.archive.StoreOutcome`.
     """
     ev = load_and_evaluate(round_path)
+    store = archive if archive is not None else ev.round.archive
+    history = None
+    if store is not None:
+        from . import archive as history_archive
+        from .errors import ArchiveError
+
+        history_archive.check_round_keys(ev.round)
+        history = history_archive.round_history(
+            store, scheme=ev.round.scheme, labs=ev.labs, round_id=ev.round.id,
+            round_date=ev.round.date, last=ev.round.history_rounds).get
     with atomic_folder(Path(out)) as tmp:
-        written = write_outputs(ev, tmp, progress=progress)
+        written = write_outputs(ev, tmp, history=history, progress=progress)
     final = Path(out)
+    if store is not None:
+        try:
+            outcome = history_archive.store_evaluation(store, ev, replace=replace_archive)
+        except ArchiveError as exc:
+            raise ArchiveError(
+                f"the outputs were written to {final}, but the round was not archived: {exc}; "
+                "'roundscore score --replace-archive' replaces it") from None
+        if on_archive is not None:
+            on_archive(outcome)
     return ev, Outputs(folder=final, files=tuple(final / p.relative_to(tmp) for p in written))
 
 

@@ -18,7 +18,11 @@ def register(sub: argparse._SubParsersAction) -> None:
                                    "the summary workbook and one score sheet per lab into --out.")
     p.add_argument("round", help="round folder or its round.toml")
     p.add_argument("--out", default=None, help="output folder (default: ROUND/out)")
-    p.add_argument("--archive", default=None, help="also store the round in this history archive")
+    p.add_argument("--archive", default=None, help="also store the round in this history archive "
+                   "(default: [round] archive in round.toml) and show each lab's earlier rounds")
+    p.add_argument("--replace-archive", action="store_true",
+                   help="replace the round in the archive when its stored content differs "
+                        "(the old rows are kept in the archive's audit table)")
     p.add_argument("--strict", action="store_true", help="exit 1 when an item or u(x_pt) check fails")
     p.add_argument("--jobs", type=int, default=None, help="worker processes (default: all cores)")
     p.add_argument("--quiet", action="store_true", help="print nothing but errors")
@@ -84,8 +88,13 @@ def run_score(args: argparse.Namespace) -> int:
     rp = Path(args.round)
     folder = rp if rp.is_dir() else rp.parent
     out = Path(args.out) if args.out else folder / "out"
-    ev, outputs = run_round(rp, out, archive=args.archive, jobs=args.jobs)
-    return _report(ev, outputs, quiet=args.quiet, strict=args.strict)
+    stored = []
+    ev, outputs = run_round(rp, out, archive=args.archive, jobs=args.jobs,
+                            replace_archive=args.replace_archive, on_archive=stored.append)
+    code = _report(ev, outputs, quiet=args.quiet, strict=args.strict)
+    if stored and not args.quiet:
+        print(f"\nArchive: {stored[0].status}: {stored[0].message}")
+    return code
 
 
 def run_demo(args: argparse.Namespace) -> int:
