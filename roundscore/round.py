@@ -66,6 +66,7 @@ MEASURAND_KEYS: dict[str, str] = {
     "homogeneity": "a CSV or .xlsx file of item, replicate, value",
     "stability": "a CSV or .xlsx file of item, replicate, value, set",
     "item_checks": "'uncertainty', 'widen-sigma', 'both' or 'report' (default 'uncertainty')",
+    "stability_criterion": "'auto', 'simple' or 'expanded' (default 'auto': expanded when the table gives u)",
 }
 
 
@@ -112,6 +113,7 @@ class MeasurandSettings:
     homogeneity: Path | None = None
     stability: Path | None = None
     item_checks: str = "uncertainty"
+    stability_criterion: str = "auto"
 
     @property
     def is_consensus(self) -> bool:
@@ -318,6 +320,8 @@ def _measurand(c: _Checker, folder: Path, name: str, raw: object) -> MeasurandSe
         stability=_inside(c, folder, f"{t}.stability", c.text(f"{t}.stability", raw.get("stability"))),
         item_checks=c.choice(f"{t}.item_checks", raw.get("item_checks"),
                              ("uncertainty", "widen-sigma", "both", "report"), "uncertainty"),
+        stability_criterion=c.choice(f"{t}.stability_criterion", raw.get("stability_criterion"),
+                                     ("auto", "simple", "expanded"), "auto"),
     )
 
 
