@@ -110,7 +110,7 @@ def test_store_round_idempotent_then_refused_then_replaced_with_audit(tmp_path):
     assert again.status == "unchanged"
     assert "nothing changed" in again.message
     changed = scores_frame(shift=0.25)
-    with pytest.raises(ArchiveError, match="different content.*--replace"):
+    with pytest.raises(ArchiveError, match="different content.*replace=True replaces it"):
         store(db, changed)
     assert count(db, "SELECT COUNT(*) FROM audit") == 0  # a refusal writes nothing
     done = store(db, changed, replace=True, reason="assigned value corrected")
