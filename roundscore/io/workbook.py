@@ -290,11 +290,103 @@ def write_lab_workbook(payload: dict[str, Any], path: Path) -> None:
     _print_setup(ws, rd["id"])
     hist = payload.get("history")
     if hist is not None and len(hist):
+        # History: the lab's earlier rounds of this scheme (archive rows, roundscore.archive
+        # HISTORY_COLUMNS), then a native line chart of the score per measurand over those
+        # rounds and this one, with the limits of ISO 13528 (z-like 2 and 3; En 1).
+        from ..history import ACTION_LIMIT, EN_ACTION_LIMIT, WARNING_LIMIT
+        from ..look import PALETTE
+
         hs = wb.add_worksheet("History")
-        hs.write_string(0, 0, f"Laboratory {lab}: recent rounds", fm.title)
-        cols = list(hist.columns)
-        _table(hs, fm, 2, hist, cols)
-        _widths(hs, [14] * len(cols))
+        hs.write_string(0, 0, f"Laboratory {lab}: your results in earlier rounds of scheme "
+                              f"{rd['scheme']}", fm.title)
+        hs.write_string(1, 0, f"Archived rounds dated before this round ({rd['date']}), the most "
+                              "recent per measurand; this round's scores are on the Scores sheet "
+                              "and end each line of the charts.")
+        end = _table(hs, fm, 3, hist,
+                     ["round_date", "round", "measurand", "unit", "result", "assigned", "sigma_pt",
+                      "score", "score_value", "signal", "note"],
+                     ["Date", "Round", "Measurand", "Unit", "Your result", "Assigned value", "σ_pt",
+                      "Score", "Your score", "Signal", "Note"], {"score_value": 2}, "signal",
+                     rd["words"])
+        field = {"z": "z", "z-prime": "z_prime", "zeta": "zeta", "en": "en"}
+        points = {}  # (round label, family, measurand) -> score
+        order = []
+        for r in hist.to_dict("records"):
+            key = (f"{r['round_date']} {r['round']}", "En" if r["score"] == "en" else "z")
+            if key[0] not in order:
+                order.append(key[0])
+            if r["signal"] != "not-scored" and np.isfinite(r["score_value"]):
+                points[(key[0], key[1], r["measurand"])] = float(r["score_value"])
+        this = f"{rd['date']} {rd['id']} (this round)"
+        order.append(this)
+        for r in own.to_dict("records"):
+            v = r.get(field.get(r["score"], ""), math.nan)
+            if r["signal"] != "not-scored" and isinstance(v, float) and math.isfinite(v):
+                points[(this, "En" if r["score"] == "en" else "z", r["measurand"])] = v
+        series = sorted({(f, m) for _, f, m in points}, key=lambda fm_: (fm_[0] != "z", fm_[1]))
+        limits = [("z", ACTION_LIMIT, "action"), ("z", WARNING_LIMIT, "warning"),
+                  ("En", EN_ACTION_LIMIT, "action")]
+        limits = [x for x in limits if any(f == x[0] for f, _ in series)]
+        top = end + 2
+        hs.write_string(top, 0, "Chart data: your score by round", fm.bold)
+        heads = ["Round"] + [f"{m} ({'En' if f == 'En' else 'z, z′, ζ'})" for f, m in series]
+        heads += [f"{sign}{lim:g} {word} limit ({f})" for f, lim, word in limits for sign in "+-"]
+        for j, h in enumerate(heads):
+            hs.write_string(top + 1, j, h, fm.head)
+        first, last = top + 2, top + 1 + len(order)
+        for i, label in enumerate(order):
+            hs.write_string(first + i, 0, label)
+            for j, (f, m) in enumerate(series, start=1):
+                _write(hs, first + i, j, points.get((label, f, m)), fm.decimals(2))
+            for j, (f, lim, word) in enumerate(limits):
+                hs.write_number(first + i, 1 + len(series) + 2 * j, lim)
+                hs.write_number(first + i, 2 + len(series) + 2 * j, -lim)
+        colours = [PALETTE[c] for c in ("blue", "orange", "green", "vermillion", "purple", "sky",
+                                        "black", "yellow")]
+        shapes = ["circle", "diamond", "triangle", "square", "x", "star", "plus", "dash"]
+        row = 3
+        for family, title in (("z", "z-like scores (z, z′, ζ)"), ("En", "En numbers")):
+            cols = [j for j, (f, _) in enumerate(series, start=1) if f == family]
+            if not cols:
+                continue
+            ch = wb.add_chart({"type": "line"})
+            cats = ["History", first, 0, last, 0]
+            for k, j in enumerate(cols):  # shape and colour both vary: colour is not the only cue
+                c = colours[k % len(colours)]
+                ch.add_series({"name": ["History", top + 1, j], "categories": cats,
+                               "values": ["History", first, j, last, j],
+                               "line": {"color": c, "width": 1.5},
+                               "marker": {"type": shapes[k % len(shapes)], "size": 6,
+                                          "fill": {"color": c}, "border": {"color": c}}})
+            hidden = []  # legend entries of the "-" limit lines (the "+" line names the pair)
+            n_series = len(cols)
+            for j, (f, lim, word) in enumerate(limits):
+                if f != family:
+                    continue
+                for sign in (0, 1):
+                    col = 1 + len(series) + 2 * j + sign
+                    if sign:
+                        hidden.append(n_series)
+                    n_series += 1
+                    ch.add_series({"name": f"{word} limit ±{lim:g}", "categories": cats,
+                                   "values": ["History", first, col, last, col],
+                                   "line": {"color": "#555555", "width": 0.75,
+                                            "dash_type": "solid" if word == "action" else "dash"},
+                                   "marker": {"type": "none"}})
+            values = [v for (_, f, _m), v in points.items() if f == family]
+            bound = (ACTION_LIMIT if family == "z" else EN_ACTION_LIMIT) + 1
+            if max(abs(v) for v in values) <= bound:
+                ch.set_y_axis({"min": -bound, "max": bound, "name": "score"})
+            else:
+                ch.set_y_axis({"name": "score"})
+            ch.set_title({"name": f"Laboratory {lab}: {title} by round"})
+            ch.set_legend({"position": "bottom", "delete_series": hidden})
+            ch.show_blanks_as("gap")
+            ch.set_size({"width": 640, "height": 320})
+            hs.insert_chart(row, 12, ch)
+            row += 17
+        hs.freeze_panes(4, 0)
+        _widths(hs, [24, 14, 14, 9, 11, 12, 10, 8, 10, 18, 40])
         _print_setup(hs, rd["id"])
     st = wb.add_worksheet("Round statistics")
     _table(st, fm, 0, payload["statistics"], STATISTICS_COLUMNS)
