@@ -27,11 +27,13 @@ Table layouts (CSV or workbook, first non-empty row is the header, column
 names ignore case):
 
 homogeneity
-    ``item, replicate, value`` and optionally ``unit`` and ``comment``:
-    one row per measurement, g items with m ≥ 2 replicates each.
+    ``item, replicate, value`` and optionally ``measurand``, ``unit`` and
+    ``comment``: one row per measurement, g items with m ≥ 2 replicates
+    each. With a ``measurand`` column one file can serve several
+    measurands: each reads only its own rows.
 stability
-    ``item, replicate, value, set`` and optionally ``u``, ``unit``,
-    ``comment``: ``set`` names one of exactly two groups (for example
+    ``item, replicate, value, set`` and optionally ``measurand``, ``u``,
+    ``unit``, ``comment``: ``set`` names one of exactly two groups (for example
     "before"/"after" or "reference"/"transport"); the set that appears first
     in the file is ȳ₁. ``u``, when given, is the standard uncertainty of that
     set's mean (the same number on every row of the set where it is given).
@@ -87,8 +89,8 @@ _REQUIRED: dict[str, tuple[str, ...]] = {
     "stability": ("item", "replicate", "value", "set"),
 }
 _OPTIONAL: dict[str, tuple[str, ...]] = {
-    "homogeneity": ("unit", "comment"),
-    "stability": ("u", "unit", "comment"),
+    "homogeneity": ("measurand", "unit", "comment"),
+    "stability": ("measurand", "u", "unit", "comment"),
 }
 
 #: Why a censored or blank cell cannot be used (said in every such error).
@@ -272,11 +274,14 @@ def read_item_values(rnd: Round, m: MeasurandSettings, kind: TableKind) -> ItemT
     if path is None:
         raise InputError.single(f"no {kind} table is named for measurand {m.name}", file=str(rnd.path))
     sheet = read_item_table(rnd, Path(path), what=kind)
-    return _parse(sheet, m, kind)
+    return _parse(sheet, m, kind, tuple(rnd.measurands))
 
 
-def _parse(sheet: SheetRows, m: MeasurandSettings, kind: TableKind) -> ItemTable:
+def _parse(sheet: SheetRows, m: MeasurandSettings, kind: TableKind,
+           rnd_names: tuple[str, ...] = ()) -> ItemTable:
     required, optional = _REQUIRED[kind], _OPTIONAL[kind]
+    rnd_names = rnd_names or (m.name,)
+    known = {n.lower() for n in rnd_names}
     problems: list[Problem] = []
     notes: list[str] = []
 
@@ -322,6 +327,15 @@ def _parse(sheet: SheetRows, m: MeasurandSettings, kind: TableKind) -> ItemTable
             continue
         row = i + 1
         get = {k: (r[j] if j < len(r) else None) for k, j in index.items()}
+        if "measurand" in index:
+            name = _label(get["measurand"])
+            if name is None:
+                bad("the measurand is empty", row, "measurand", get["measurand"])
+                continue
+            if name.lower() != m.name.lower():
+                if name.lower() not in known:
+                    bad(f"unknown measurand; the round has: {', '.join(rnd_names)}", row, "measurand", name)
+                continue
         item = _label(get["item"])
         if item is None:
             bad("the item label is empty", row, "item", get["item"])
@@ -406,7 +420,7 @@ def _parse(sheet: SheetRows, m: MeasurandSettings, kind: TableKind) -> ItemTable
 def _check_layout(kind, items, sets, where, set_names, bad) -> None:
     """The design problems a row-by-row check cannot see: too few items, lone replicates, sets."""
     if not items:
-        bad(f"the {kind} table holds no measurements", None)
+        bad(f"the {kind} table holds no measurements for this measurand", None)
         return
     if kind == "homogeneity":
         groups: dict[str, list[int]] = {}
