@@ -19,8 +19,9 @@ Design decisions
   mode, so a process killed part-way through an import leaves the round wholly
   present or wholly absent (SQLite's atomic commit).
 * Imports are idempotent: the content is compared through a canonical hash of
-  the rows (rows sorted, score floats rounded to 15 significant digits, the
-  precision a workbook keeps, then written with ``repr``; missing as null).
+  the rows (rows sorted, score floats rounded to 12 significant digits, the
+  precision of the pipeline's ``scores.csv``, then written with ``repr``;
+  missing as null).
   The same content again is ``"unchanged"``; different content is refused
   unless ``replace=True``, and the replaced rows are first copied to the
   ``audit`` table with a UTC timestamp and a reason.
@@ -69,9 +70,11 @@ __all__ = ["ARCHIVE_ENV", "SCORE_COLUMNS", "HISTORY_COLUMNS", "MIGRATIONS", "SCH
 #: Environment variable that overrides the default archive file.
 ARCHIVE_ENV = "ROUNDSCORE_ARCHIVE"
 
-#: Significant digits of score floats in the content hash: Excel's precision of 15 digits
-#: (Microsoft, "Floating-point arithmetic may give inaccurate results in Excel").
-HASH_DIGITS = 15
+#: Significant digits of score floats in the content hash: the precision of the pipeline's
+#: ``scores.csv`` (roundscore.io.csvout.FLOAT_FORMAT, ``{:.12g}``), the least precise file a
+#: lab receives; its workbook keeps about 15 (xlsxwriter writes 16, Excel computes with 15:
+#: Microsoft, "Floating-point arithmetic may give inaccurate results in Excel").
+HASH_DIGITS = 12
 
 Status = Literal["added", "unchanged", "replaced"]
 
@@ -251,9 +254,11 @@ def _digest(round_date: str, score_rows: Iterable[tuple], *, title: str | None =
     """Canonical content hash: sorted rows, floats as ``repr`` (via JSON), missing as null.
 
     Score floats are first rounded to :data:`HASH_DIGITS` significant digits:
-    a workbook keeps only about 15 (xlsxwriter writes 16, Excel computes with
-    15), so the same round read from ``scores.csv`` and from ``LAB.xlsx``
-    must hash equally.  Changes beyond the 15th digit are not content changes.
+    ``scores.csv`` keeps 12 (roundscore.io.csvout) and a workbook about 15
+    (xlsxwriter writes 16, Excel computes with 15), so the same round read
+    from ``scores.csv`` and from ``LAB.xlsx`` must hash equally.  Changes
+    beyond the 12th digit are not content changes; the value stored first is
+    the one kept.
     """
     rows = ([float(f"{v:.{HASH_DIGITS}g}") if isinstance(v, float) else v for v in r]
             for r in score_rows)

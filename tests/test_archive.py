@@ -126,13 +126,13 @@ def test_store_round_idempotent_then_refused_then_replaced_with_audit(tmp_path):
     assert now["nitrate"] == pytest.approx(-1.0 + 0.25)
 
 
-@pytest.mark.parametrize("change", ["14th_digit", "statistics", "settings", "title"])
+@pytest.mark.parametrize("change", ["11th_digit", "statistics", "settings", "title"])
 def test_any_content_change_is_detected(tmp_path, change):
     db = tmp_path / "a.sqlite"
     store(db, scores_frame())
     frame, kw = scores_frame(), {}
-    if change == "14th_digit":  # floats are compared to 15 significant digits
-        frame.loc[0, "result"] = frame.loc[0, "result"] * (1 + 3e-14)
+    if change == "11th_digit":  # floats are compared to 12 significant digits (HASH_DIGITS)
+        frame.loc[0, "result"] = frame.loc[0, "result"] * (1 + 3e-11)
     elif change == "statistics":
         kw["statistics"] = stats_frame(mean=10.01)
     elif change == "settings":
@@ -191,7 +191,8 @@ def test_add_refuses_then_replaces_lab_rows_with_audit(tmp_path):
 
 
 def test_one_ulp_is_not_a_change_but_is_kept_as_first_stored(tmp_path):
-    # a workbook keeps ~15-16 significant digits (common practice: Excel's 15-digit precision)
+    # scores.csv keeps 12 significant digits (roundscore.io.csvout), a workbook ~15-16
+    # (common practice: Excel's 15-digit precision); a last-bit difference is no change
     db = tmp_path / "a.sqlite"
     store(db, scores_frame())
     frame = scores_frame()
@@ -229,6 +230,23 @@ def test_workbook_and_csv_of_the_same_round_agree(tmp_path):
     hist = archive.lab_history(db, lab="L03")
     assert set(hist["title"]) == {"Invented round"}
     assert hist["n_replicates"].tolist() == [2, 2]
+
+
+def test_pipeline_csv_precision_and_workbook_agree(tmp_path):
+    # The pipeline writes scores.csv with csvout.FLOAT_FORMAT; the hash must not be finer.
+    from roundscore.io.csvout import FLOAT_FORMAT, write_csv
+
+    assert FLOAT_FORMAT == f"{{:.{archive.HASH_DIGITS}g}}"
+    frame = scores_frame()
+    frame["z"] = frame["z"] + 1.0 / 3.0  # repeating binary fractions: 12 digits lose the tail
+    frame["result"] = frame["result"] * (2.0 / 3.0)
+    csv = tmp_path / "scores.csv"
+    write_csv(frame, csv, archive.SCORE_COLUMNS)
+    assert "0.333333333333," in csv.read_text(encoding="utf-8")  # really 12 digits
+    book = write_workbook(tmp_path / "L02.xlsx", frame, lab="L02")
+    db = tmp_path / "lab.sqlite"
+    assert archive.add_files(db, [book])[0].status == "added"
+    assert archive.add_files(db, [csv], lab="L02")[0].status == "unchanged"
 
 
 @pytest.mark.parametrize("kind, expected", [
