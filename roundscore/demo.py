@@ -7,7 +7,15 @@ moisture in duplicate. The data hold a few planted features for the tools to
 find: two outlying labs, one result reported in the wrong unit (a unit slip),
 one censored result, a lab that reports arsenic in µg/g (converted), a lab
 that did not report moisture, and two method groups for iodine that differ a
-little.
+little. Before the round the provider checked ten bottles of the kelp meal
+in duplicate for iodine, cadmium and lead (``homogeneity.csv``): iodine and
+lead pass easily, cadmium is borderline (it fails the simple criterion
+s_s ≤ 0.3 σ_pt and passes the expanded one, so σ_pt is widened). Iodine's
+checks are reported only: each lab had its own bottle, so the consensus
+value's uncertainty already holds the between-bottle spread. Stability
+(``stability.csv``): iodine before and after the round, and mercury in
+bottles kept frozen against bottles kept two weeks at 40 °C (with the
+uncertainty of each mean, so the expanded criterion is used).
 
 ``python rounds/make_demo.py`` rewrites ``rounds/skw-2026-14`` from this
 module; a test checks that the committed files equal what it makes.
@@ -44,12 +52,18 @@ assigned = "algorithm-a"
 sigma_pt = "horwitz"
 score = "z"
 decimals = 0
+homogeneity = "homogeneity.csv"
+stability = "stability.csv"
+# Each lab had its own bottle, so the consensus value's u already holds the between-bottle spread.
+item_checks = "report"
 
 [measurand.cadmium]
 unit = "mg/kg"
 assigned = "algorithm-a"
 sigma_pt = 0.12
 decimals = 3
+homogeneity = "homogeneity.csv"
+item_checks = "widen-sigma"
 
 [measurand.arsenic]
 label = "total arsenic"
@@ -65,6 +79,8 @@ u_assigned = 0.012
 sigma_pt = 0.06
 score = "zeta"
 decimals = 3
+homogeneity = "homogeneity.csv"
+item_checks = "uncertainty"
 
 [measurand.mercury]
 unit = "mg/kg"
@@ -73,6 +89,8 @@ u_assigned = 0.003
 sigma_pt = 0.013
 score = "en"
 decimals = 3
+stability = "stability.csv"
+item_checks = "uncertainty"
 
 [measurand.moisture]
 unit = "g/100 g"
@@ -111,8 +129,44 @@ def _fmt(v: float, d: int) -> str:
     return f"{v:.{d}f}"
 
 
+# Item checks (invented). name: (level, between-bottle SD, within-bottle SD, decimals written).
+_HOMOGENEITY = {
+    "iodine": (2480.0, 14.0, 24.0, 0),
+    "cadmium": (0.846, 0.058, 0.020, 3),  # borderline: s_s between 0.3 sigma_pt and the expanded allowance
+    "lead": (0.512, 0.004, 0.008, 3),
+}
+_BOTTLES = [f"KM-14-{i:03d}" for i in (3, 17, 29, 41, 58, 66, 72, 85, 91, 104)]
+# name: (level, first set, second set, shift of the second set, within SD, decimals, u of each mean or None)
+_STABILITY = {
+    "iodine": (2480.0, "before", "after", -18.0, 22.0, 0, None),
+    "mercury": (0.087, "frozen", "40 °C", -0.0012, 0.0015, 4, 0.0008),
+}
+
+
+def _write_item_tables(folder: Path, seed: int) -> None:
+    """homogeneity.csv and stability.csv from their own generator (results.csv is not disturbed)."""
+    rng = np.random.default_rng([seed, 2])
+    with open(folder / "homogeneity.csv", "w", newline="", encoding="utf-8") as fh:
+        w = csv.writer(fh, lineterminator="\n")
+        w.writerow(["measurand", "item", "replicate", "value"])
+        for name, (level, s_s, s_w, d) in _HOMOGENEITY.items():
+            bottle = rng.normal(0.0, s_s, len(_BOTTLES))
+            for b, item in zip(bottle, _BOTTLES):
+                for rep in (1, 2):
+                    w.writerow([name, item, rep, _fmt(level + b + rng.normal(0.0, s_w), d)])
+    with open(folder / "stability.csv", "w", newline="", encoding="utf-8") as fh:
+        w = csv.writer(fh, lineterminator="\n")
+        w.writerow(["measurand", "item", "replicate", "value", "set", "u"])
+        for name, (level, first, second, shift, s_w, d, u) in _STABILITY.items():
+            for set_name, delta, items in ((first, 0.0, _BOTTLES[:3]), (second, shift, _BOTTLES[-3:])):
+                for item in items:
+                    for rep in (1, 2):
+                        w.writerow([name, item, rep, _fmt(level + delta + rng.normal(0.0, s_w), d), set_name,
+                                    "" if u is None else _fmt(u, d + 1)])
+
+
 def make_demo_round(folder: str | Path, *, seed: int = DEMO_SEED) -> Path:
-    """Write the demo round (round.toml, results.csv, participants.csv) into ``folder``; returns it."""
+    """Write the demo round (round.toml, results.csv, participants.csv, item tables) into ``folder``."""
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
     rng = np.random.default_rng(seed)
@@ -161,5 +215,6 @@ def make_demo_round(folder: str | Path, *, seed: int = DEMO_SEED) -> Path:
         for lab, nm in zip(labs, _NAMES):
             slug = nm.lower().replace(" ", "-").replace("'", "")
             w.writerow([lab, nm, f"pt-contact@{slug}.example"])
+    _write_item_tables(folder, seed)
     (folder / "round.toml").write_text(ROUND_TOML, encoding="utf-8")
     return folder
