@@ -9,6 +9,7 @@ documented behaviour (common practice).
 from __future__ import annotations
 
 import json
+import re
 import os
 import signal
 import sqlite3
@@ -330,6 +331,76 @@ def test_lab_history_filters_and_last_n(tmp_path):
         archive.lab_history(db, lab="L02", since="July")
     with pytest.raises(InputError, match="one or more lab codes"):
         archive.lab_history(db, lab=[])
+
+
+def test_round_history_one_query_many_labs_grouped(tmp_path):
+    db = tmp_path / "a.sqlite"
+    assert archive.round_history(db, scheme="AQ", labs=["L01"], round_id="R9",
+                                 round_date="2024-01-01", last=8) == {}  # no file yet: no history
+    assert not db.exists()
+    labs = [f"L{i:04d}" for i in range(2000)]  # more codes than SQLite's old 999 parameters
+    for k, date in enumerate(["2023-01-10", "2023-04-10", "2023-07-10"]):
+        store(db, scores_frame(round_id=f"R{k + 1}", date=date, labs=labs[:1200:7] + ["L01"],
+                               measurands=("nitrate",)))
+    store(db, scores_frame(scheme="SOIL", round_id="R2", date="2023-02-01", labs=("L01",)))
+    hist = archive.round_history(db, scheme="AQ", labs=labs + ["L01"], round_id="R3",
+                                 round_date="2023-12-01", last=8)
+    assert len(hist) == len(labs[:1200:7]) + 1  # labs without history are absent
+    assert hist["L01"]["round"].tolist() == ["R1", "R2"]  # R3 itself left out; no SOIL rows
+    assert set(hist["L01"]["scheme"]) == {"AQ"}
+    assert hist["L01"]["round_date"].tolist() == ["2023-01-10", "2023-04-10"]
+    early = archive.round_history(db, scheme="AQ", labs=["L01"], round_id="R0",
+                                  round_date="2023-04-10", last=8)
+    assert early["L01"]["round"].tolist() == ["R1"]  # strictly before the round's date
+    assert archive.lab_history(db, lab="L01", exclude_round="R1", scheme="AQ")["round"] \
+        .tolist() == ["R2", "R3"]
+
+
+@pytest.mark.parametrize("cell, stored, problem", [
+    ("<0.1", "<0.1", None),  # censored results as the pipeline writes them (evaluate.py)
+    (">200", ">200", None),
+    ("<limit not given", "<limit not given", None),
+    ("12.5", 12.5, None),
+    ("n.d.", None, "not a number or a censored result such as <0.1"),
+])
+def test_censored_results_are_kept_as_text(tmp_path, cell, stored, problem):
+    frame = scores_frame(labs=("L01",))
+    frame["result"] = frame["result"].astype(object)
+    frame.loc[0, "result"] = cell
+    csv = tmp_path / "scores.csv"
+    frame.to_csv(csv, index=False)
+    db = tmp_path / "lab.sqlite"
+    if problem:
+        with pytest.raises(InputError, match=re.escape(f"row 2, column 'result': value {cell!r}: "
+                                                       f"{problem}")):
+            archive.add_files(db, [csv])
+        return
+    archive.add_files(db, [csv])
+    hist = archive.lab_history(db, lab="L01").set_index("measurand")["result"]
+    assert hist["nitrate"] == stored
+    assert hist["lead"] == pytest.approx(frame.loc[1, "result"])
+
+
+def test_round_keys_needed_for_the_archive_name_the_round_file(tmp_path):
+    from roundscore.errors import RoundFileError
+    from roundscore.round import load_round
+
+    from .conftest import write_round
+
+    folder = write_round(tmp_path / "r", """
+        [round]
+        id = "AQ-7"
+        results = "results.csv"
+        [measurand.nitrate]
+        unit = "mg/L"
+        assigned = "algorithm-a"
+        sigma_pt = 0.5
+        """, "lab,measurand,replicate,value,unit\nW1,nitrate,1,10.0,mg/L\n")
+    with pytest.raises(RoundFileError) as err:
+        archive.check_round_keys(load_round(folder))
+    text = str(err.value)
+    assert "round.toml: key 'round.scheme' is needed to store the round" in text
+    assert "key 'round.date'" in text and "'round.id'" not in text
 
 
 def test_score_value_follows_the_chosen_score(tmp_path):
