@@ -18,7 +18,8 @@ def register(sub: argparse._SubParsersAction) -> None:
                                    "the summary workbook and one score sheet per lab into --out.")
     p.add_argument("round", help="round folder or its round.toml")
     p.add_argument("--out", default=None, help="output folder (default: ROUND/out)")
-    p.add_argument("--archive", default=None, help="also store the round in this history archive "
+    p.add_argument("--archive", default=None, metavar="FILE",
+                   help="also store the round in this history archive "
                    "(default: [round] archive in round.toml) and show each lab's earlier rounds")
     p.add_argument("--replace-archive", action="store_true",
                    help="replace the round in the archive when its stored content differs "
