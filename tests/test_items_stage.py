@@ -156,6 +156,39 @@ def test_items_csv_columns_exactly(item_round, tmp_path):
     assert frame.loc[0, "g"] == G and frame.loc[0, "m"] == 2
 
 
+def test_cochran_flags_a_single_discordant_pair(item_round):
+    # Nine pairs with w = 0.2828 (variance 0.04) and one with w = 1.2 (variance 0.72):
+    # C = 0.72 / (0.72 + 9 * 0.04) = 0.667 (design), between the ISO 5725-2 Table 4 critical values for
+    # p = 10, n = 2 of 0.602 (5 %) and 0.718 (1 %) (from memory): a straggler.
+    rows = hom_csv(0.10, 0.20).splitlines()
+    item, _, v1 = rows[9].split(",")
+    _, _, v2 = rows[10].split(",")
+    mid = (float(v1) + float(v2)) / 2
+    rows[9], rows[10] = f"{item},1,{mid - 0.6!r}", f"{item},2,{mid + 0.6!r}"
+    ev = load_and_evaluate(item_round(hom_text="\n".join(rows) + "\n"))
+    h = ev.measurands["cu"].item_checks.homogeneity
+    assert h.cochran_c == pytest.approx(0.72 / 1.08, rel=1e-9)
+    assert h.cochran_signal == "straggler" and h.cochran_item == item
+    assert f"Cochran's test flags item {item!r} as a straggler" in " ".join(ev.measurands["cu"].notes)
+
+
+def test_imprecise_check_method_is_warned(item_round):
+    # s_w = 0.6 > 0.5 sigma_pt: the test cannot see heterogeneity of the size that matters
+    # (IUPAC harmonized protocol 2006, Appendix 1; from memory).
+    ev = load_and_evaluate(item_round(hom_text=hom_csv(0.10, 0.60)))
+    assert "too imprecise for the homogeneity test to be meaningful" in " ".join(ev.measurands["cu"].notes)
+    assert "too imprecise" in ev.extras["items"].loc[0, "note"]
+
+
+def test_same_cell_rules_as_the_results_import(item_round):
+    # Semicolon-separated file with decimal commas, as a spreadsheet in many locales writes it (common practice).
+    plain = hom_csv(0.38, 0.20)
+    local = "\n".join(r.replace(",", ";").replace(".", ",") for r in plain.splitlines()) + "\n"
+    a = load_and_evaluate(item_round(hom_text=plain)).measurands["cu"].item_checks.homogeneity
+    b = load_and_evaluate(item_round(hom_text=local)).measurands["cu"].item_checks.homogeneity
+    assert b.item_labels == a.item_labels and b.s_s == pytest.approx(a.s_s, rel=1e-12)
+
+
 # ------------------------------------------------------------------------------------------ consequences
 
 @pytest.mark.parametrize("checks, add_u, widen", [
@@ -227,6 +260,16 @@ def test_stability_with_and_without_uncertainties(item_round, diff, u, used, pas
     assert row["allowed"] == pytest.approx(allowed, rel=1e-12)
     assert f"the verdict uses the {used} criterion" in row["note"]
     assert ev.measurands["cu"].item_checks.stability_sets == ("before", "after")
+
+
+def test_stability_single_item_sets_use_replicates(item_round):
+    text = "item,replicate,value,set\n" + "".join(
+        f"S1,{r},{v},{name}\n" for name, vals in (("reference", (10.0, 10.2, 9.8, 10.0)), ("transport", (9.9, 9.7)))
+        for r, v in enumerate(vals, start=1))
+    s = load_and_evaluate(item_round(stab_text=text)).measurands["cu"].item_checks.stability
+    assert (s.n_first, s.n_second) == (4, 2)
+    assert s.difference == pytest.approx(10.0 - 9.8, rel=1e-12)  # hand arithmetic
+    assert s.u_first == pytest.approx(np.std([10.0, 10.2, 9.8, 10.0], ddof=1) / 2, rel=1e-12)  # SD/sqrt(n)
 
 
 def test_stability_criterion_key_forces_expanded(item_round):
