@@ -36,6 +36,8 @@ from numpy.typing import ArrayLike
 from scipy import stats
 
 from roundscore.errors import StatisticsError
+# Cochran's critical value is shared with the ISO 5725-2 screens (one implementation).
+from roundscore.stats.outliers import cochran_critical as _cochran_critical
 
 __all__ = [
     "HOMOGENEITY_FACTOR",
@@ -125,44 +127,6 @@ def _finite_vector(name: str, values: ArrayLike) -> np.ndarray:
         more = f" and {bad.size - 5} more" if bad.size > 5 else ""
         raise StatisticsError(f"{name}: {bad.size} value(s) not finite ({shown}{more})")
     return arr
-
-
-
-def _cochran_critical(p: int, n: int, alpha: float) -> float:
-    """Upper critical value of Cochran's C for ``p`` groups of ``n`` values each.
-
-    C = s_max^2 / sum(s_i^2). With nu = n - 1, the ratio of the largest
-    variance to the mean of the others is F(nu, (p - 1) nu) distributed, so
-
-        C_crit = 1 / (1 + (p - 1) / F_{1 - alpha/p}(nu, (p - 1) nu)).
-
-    The factor 1/p (Bonferroni) is exact whenever C_crit > 1/2, because then
-    at most one group can exceed it ([4]_); that covers every usual case.
-
-    Parameters
-    ----------
-    p : int
-        Number of groups (items), at least 2.
-    n : int
-        Replicates per group, at least 2.
-    alpha : float
-        Significance level, e.g. 0.05 or 0.01.
-
-    Returns
-    -------
-    float
-        The critical value; C above it is significant at level ``alpha``.
-
-    References
-    ----------
-    .. [4] W. G. Cochran, Ann. Eugen. 11 (1941) 47-52.
-    """
-    if p < 2 or n < 2:
-        raise StatisticsError(f"Cochran's test needs at least 2 groups of 2 values; found p={p}, n={n}")
-    alpha = _number("alpha", alpha, "probability")
-    nu = n - 1
-    f_crit = stats.f.isf(alpha / p, nu, (p - 1) * nu)
-    return float(1.0 / (1.0 + (p - 1) / f_crit))
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
