@@ -10,7 +10,7 @@ left out and why). Writers never recompute a statistic.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import pandas as pd
@@ -21,6 +21,9 @@ from .round import MeasurandSettings, Round
 from .stats import robust, scores as sc, sigma as sg
 from .table import ResultTable
 from .units import UnitError, mass_fraction
+
+if TYPE_CHECKING:
+    from .stages.items import ItemOutcome
 
 __all__ = ["evaluate", "RoundEvaluation", "MeasurandResult", "SCORE_COLUMNS", "STATISTICS_COLUMNS",
            "AUDIT_COLUMNS", "U_CHECK_FACTOR", "DEFAULT_K"]
@@ -84,7 +87,7 @@ class MeasurandResult:
     sigma_source: str
     u_check_passed: bool | None
     notes: tuple[str, ...] = ()
-    item_checks: Any = None
+    item_checks: ItemOutcome | None = None
 
     @property
     def name(self) -> str:
@@ -152,7 +155,9 @@ class RoundEvaluation:
         items = self.extras.get("items")
         if items is not None and len(items):
             for _, r in items[~items["passed"].astype(bool)].iterrows():
-                out.append(f"{r['measurand']}: {r['check']} check failed")
+                not_evaluated = str(r.get("note", "")).startswith("not evaluated")
+                out.append(f"{r['measurand']}: {r['check']} check "
+                           + ("not evaluated" if not_evaluated else "failed"))
         return out
 
 

@@ -175,7 +175,12 @@ class Round:
             out[f"measurand.{m.name}"] = {
                 "unit": m.unit, "assigned": m.assigned, "u_assigned": m.u_assigned,
                 "sigma_pt": m.sigma_pt.describe(), "score": m.score,
+                "homogeneity": m.homogeneity.name if m.homogeneity else None,
+                "stability": m.stability.name if m.stability else None,
+                "item_checks": m.item_checks, "stability_criterion": m.stability_criterion,
             }
+        out["exclusions"] = [{"lab": e.lab, "measurand": e.measurand, "reason": e.reason, "scored": e.scored}
+                             for e in self.exclusions]
         return out
 
 
