@@ -403,6 +403,32 @@ def test_round_keys_needed_for_the_archive_name_the_round_file(tmp_path):
     assert "key 'round.date'" in text and "'round.id'" not in text
 
 
+def test_store_evaluation_keeps_precision_when_the_round_has_it(tmp_path):
+    from types import SimpleNamespace
+
+    frame = scores_frame()
+    rnd = SimpleNamespace(scheme="AQ", id="2024-1", date="2024-03-04", title="Invented round",
+                          path=tmp_path / "round.toml", settings_dict=lambda: {"sigma_pt": 0.5})
+    precision = pd.DataFrame({"measurand": ["nitrate", "lead"], "s_r": [0.11, 0.02],
+                              "s_R": [0.31, 0.05]})  # invented
+    ev = SimpleNamespace(round=rnd, statistics=stats_frame(),
+                         scores=frame.assign(rank=1.0, n_scored=3), extras={"precision": precision})
+    db = tmp_path / "a.sqlite"
+    assert archive.store_evaluation(db, ev).status == "added"
+    with sqlite3.connect(db) as conn:
+        rows = [json.loads(r) for (r,) in conn.execute(
+            "SELECT row FROM round_tables WHERE kind = 'precision' ORDER BY position")]
+    conn.close()
+    assert rows == precision.to_dict(orient="records")
+    assert archive.store_evaluation(db, ev).status == "unchanged"
+    changed = SimpleNamespace(**{**vars(ev), "extras": {"precision": precision.assign(s_r=0.12)}})
+    with pytest.raises(ArchiveError, match="different content"):
+        archive.store_evaluation(db, changed)
+    without = SimpleNamespace(**{**vars(ev), "extras": {}})  # no precision stage: none stored
+    assert archive.store_evaluation(db, without, replace=True).status == "replaced"
+    assert count(db, "SELECT COUNT(*) FROM round_tables WHERE kind = 'precision'") == 0
+
+
 def test_score_value_follows_the_chosen_score(tmp_path):
     frame = scores_frame(labs=("L01",), measurands=("lead",))
     frame["score"] = "zeta"
