@@ -4,6 +4,9 @@ Two sides write to the same kind of file:
 
 * the **coordinator** stores a whole evaluated round with :func:`store_round`
   (settings, per-measurand statistics, every lab's scores, precision);
+  ``roundscore score --archive`` calls :func:`round_history` (every lab's
+  earlier rounds in one query, for the lab sheets) before writing the outputs
+  and :func:`store_evaluation` after they are complete;
 * a **participant** adds the files the provider sent it with :func:`add_files`
   (the round's ``scores.csv`` or its own workbook ``labs/LAB.xlsx``).
 
