@@ -427,6 +427,10 @@ def evaluate(rnd: Round, table: ResultTable, participants: dict[str, Participant
 
         extras["items"] = pd.DataFrame(item_rows, columns=list(ITEMS_COLUMNS))
     # STAGE: precision (ISO 5725-2) and method groups — adds extras, stage_notes, details and audit rows here.
+    from .stages.precision import precision_stage
+
+    precision_stage(rnd, table, results).merge_into(extras=extras, stage_notes=stage_notes, details=details,
+                                                    audit=audit)
     audit_df = pd.DataFrame(audit, columns=list(AUDIT_COLUMNS))
     return RoundEvaluation(
         round=rnd, table=table, participants=participants, measurands=results, scores=scores,
