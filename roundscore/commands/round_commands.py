@@ -71,11 +71,13 @@ def summary_text(ev: RoundEvaluation) -> str:
     return "\n".join(lines)
 
 
-def _report(ev, outputs, *, quiet=False, strict=False) -> int:
+def _report(ev, outputs, *, quiet=False, strict=False, stored=()) -> int:
     if not quiet:
         print(summary_text(ev))
         print(f"\nWrote {len(outputs.files)} files to {outputs.folder}/ "
               f"(scores.csv, statistics.csv, round-summary.xlsx, labs/*.xlsx ...)")
+        for outcome in stored:
+            print(f"Archive: {outcome.status}: {outcome.message}")
         print(f"\n{CAUTION}")
     if strict and ev.failed_checks:
         print("roundscore: --strict: checks failed: " + "; ".join(ev.failed_checks), file=sys.stderr)
@@ -92,10 +94,7 @@ def run_score(args: argparse.Namespace) -> int:
     stored = []
     ev, outputs = run_round(rp, out, archive=args.archive, jobs=args.jobs,
                             replace_archive=args.replace_archive, on_archive=stored.append)
-    code = _report(ev, outputs, quiet=args.quiet, strict=args.strict)
-    if stored and not args.quiet:
-        print(f"\nArchive: {stored[0].status}: {stored[0].message}")
-    return code
+    return _report(ev, outputs, quiet=args.quiet, strict=args.strict, stored=stored)
 
 
 def run_demo(args: argparse.Namespace) -> int:
