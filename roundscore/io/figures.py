@@ -1,0 +1,780 @@
+"""Figures of the round report: matplotlib (headless, no pyplot), written as SVG once and marked per lab cheaply.
+
+What all labs share is drawn once per measurand: the ranked bar chart of the
+scores, the kernel density of the results, the Youden plots, Mandel's h and k
+and the homogeneity item means. Every figure keeps the affine map from data
+coordinates to SVG user units, so a lab's own version is the shared SVG with
+a small overlay group added (its bar outlined, its result marked) by string
+composition: no second matplotlib call, a few microseconds per lab.
+
+The SVG is reproducible: a fixed ``svg.hashsalt``, no date in the metadata,
+text as ``<text>`` elements (``svg.fonttype = "none"``), and every element id
+prefixed with the figure's key so many figures can sit in one HTML page.
+Colour never carries meaning alone: each signal has its Okabe–Ito colour
+(:mod:`roundscore.look`), a marker shape and its word in the legend.
+
+Figures only draw what the evaluation computed; the kernel density curve and
+the Youden ellipse are display devices (documented in their functions), not
+statistics of the evaluation.
+"""
+
+from __future__ import annotations
+
+import html
+import io
+import math
+import re
+from dataclasses import dataclass, field
+from typing import Literal, Sequence
+
+import numpy as np
+import pandas as pd
+from scipy import stats as sps
+
+from ..look import PALETTE, SIGNAL_COLOUR, SIGNAL_MARKER, SIGNAL_SYMBOL, SIGNAL_WORD
+from ..stats.precision import mandel_h_critical, mandel_k_critical
+from ..stats.scores import EN_ACTION, Z_ACTION, Z_WARNING
+
+__all__ = ["SvgFigure", "MarkKind", "z_bar_figure", "density_figure", "youden_figure", "mandel_figure",
+           "homogeneity_figure", "render_png", "RoundFigures", "round_figures", "SCORE_FIELD", "SVG_HASHSALT", "MAX_BARS", "KDE_BANDWIDTH_FACTOR",
+           "YOUDEN_LEVEL", "RANGE_SIGMAS", "mandel_limits"]
+
+#: Salt of matplotlib's SVG ids: fixed so the same round gives the same SVG bytes.
+SVG_HASHSALT = "roundscore-svg"
+#: Up to this many scored labs the ranked chart draws one bar per lab with its code; above, a ranked
+#: profile filled per signal (a 500-point-wide axis cannot show more bars anyway; common practice).
+MAX_BARS = 60
+#: Kernel bandwidth h = 0.75·σ_pt for the density of results (from memory: AMC Technical Brief 4 and
+#: ISO 13528:2015 §10.3 suggest a bandwidth of the order of σ_pt); Silverman's rule when σ_pt is not set.
+KDE_BANDWIDTH_FACTOR = 0.75
+#: Coverage of the Youden plot's ellipse (common practice: 95 %).
+YOUDEN_LEVEL = 0.95
+#: Axes show x_pt ± RANGE_SIGMAS·σ_pt at most; results outside are counted in the caption (common practice).
+RANGE_SIGMAS = 6.0
+#: Figure size in inches (SVG user units are points: 72 per inch).
+_WIDE = (7.2, 3.0)
+_SQUARE = (6.6, 4.4)
+_RC = {"svg.hashsalt": SVG_HASHSALT, "svg.fonttype": "none", "font.size": 9, "axes.titlesize": 10,
+       "axes.spines.top": False, "axes.spines.right": False, "font.family": "DejaVu Sans"}
+
+MarkKind = Literal["bar", "vline", "point", "none"]
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class SvgFigure:
+    """A figure rendered as an SVG element, with what a lab's version needs to mark it.
+
+    Attributes
+    ----------
+    key : str
+        Short unique id (``"z-iodine"``); prefixes every id inside the SVG.
+    title, caption : str
+        Plain text for the HTML ``<figcaption>`` (the caption says what is drawn).
+    svg : str
+        The ``<svg>`` element, without the XML prolog.
+    x_map, y_map : tuple of float
+        ``(a, b)`` with SVG coordinate = a·data + b, for each axis.
+    axes_box : tuple of float
+        The axes area in SVG units: (left, top, right, bottom).
+    x_limits, y_limits : tuple of float
+        The data limits of the axes.
+    kind : {"bar", "vline", "point", "none"}
+        How a lab is marked: its bar outlined, a vertical line at its result,
+        or a ring round its point.
+    marks : dict of str to tuple of float
+        Lab code → data coordinates of the thing to mark ((x, y); for "bar"
+        x is the bar's position and y its score, for "vline" y is NaN).
+    """
+
+    key: str
+    title: str
+    caption: str
+    svg: str
+    x_map: tuple[float, float]
+    y_map: tuple[float, float]
+    axes_box: tuple[float, float, float, float]
+    x_limits: tuple[float, float]
+    y_limits: tuple[float, float]
+    kind: MarkKind = "none"
+    marks: dict[str, tuple[float, float]] = field(default_factory=dict)
+
+    def to_svg(self, x: float, y: float) -> tuple[float, float]:
+        """Data coordinates → SVG user units."""
+        return self.x_map[0] * x + self.x_map[1], self.y_map[0] * y + self.y_map[1]
+
+    def for_lab(self, lab: str, label: str = "your lab") -> str:
+        """The SVG with ``lab`` marked (the shared SVG unchanged when the lab has no mark here).
+
+        The overlay is a ``<g class="lab-mark">`` appended inside the root
+        element; positions outside the axes are clamped to its edge with an
+        arrow, so an extreme result is still shown.
+        """
+        if self.kind == "none" or lab not in self.marks:
+            return self.svg
+        x, y = self.marks[lab]
+        left, top, right, bottom = self.axes_box
+        text = html.escape(f"{label} ({lab})")
+        ink = PALETTE["black"]
+        parts = []
+        if self.kind == "bar":
+            x0, y0 = self.to_svg(x - 0.5, 0.0)
+            x1, y1 = self.to_svg(x + 0.5, y)
+            y1c = min(max(y1, top), bottom)
+            ya, yb = sorted((y0, y1c))
+            parts.append(f'<rect x="{x0:.2f}" y="{ya:.2f}" width="{max(x1 - x0, 1.5):.2f}" '
+                         f'height="{max(yb - ya, 1.0):.2f}" fill="none" stroke="{ink}" stroke-width="2.2"/>')
+            tip = ya - 4 if y >= 0 else yb + 4
+            tip = min(max(tip, top + 4), bottom - 4)
+            sx = (x0 + x1) / 2
+            up = y >= 0
+            parts.append(_arrow(sx, tip, up, ink))
+            ty = tip - 12 if up else tip + 20
+            parts.append(_label(sx, min(max(ty, top + 8), bottom - 2), text, left, right))
+        elif self.kind == "vline":
+            sx, _ = self.to_svg(x, 0.0)
+            clamped = sx < left or sx > right
+            sx = min(max(sx, left), right)
+            dash = ' stroke-dasharray="4 2"' if clamped else ""
+            parts.append(f'<line x1="{sx:.2f}" y1="{top:.2f}" x2="{sx:.2f}" y2="{bottom:.2f}" stroke="{ink}" '
+                         f'stroke-width="2"{dash}/>')
+            parts.append(_arrow(sx, top + 2, False, ink))
+            out = " (outside the plotted range)" if clamped else ""
+            parts.append(_label(sx, bottom - 0.3 * (bottom - top), text + html.escape(out), left, right))
+        else:
+            sx, sy = self.to_svg(x, y)
+            sx, sy = min(max(sx, left), right), min(max(sy, top), bottom)
+            parts.append(f'<circle cx="{sx:.2f}" cy="{sy:.2f}" r="8" fill="none" stroke="{ink}" '
+                         f'stroke-width="2.2"/>')
+            parts.append(_label(sx, sy - 12, text, left, right))
+        overlay = f'<g class="lab-mark" aria-label="{text}">{"".join(parts)}</g>'
+        end = self.svg.rfind("</svg>")
+        return self.svg[:end] + overlay + self.svg[end:]
+
+
+def _arrow(x: float, y: float, pointing_down: bool, ink: str) -> str:
+    d = -7 if pointing_down else 7
+    return (f'<path d="M {x - 5:.2f} {y + d:.2f} L {x + 5:.2f} {y + d:.2f} L {x:.2f} {y:.2f} Z" '
+            f'fill="{ink}"/>')
+
+
+def _label(x: float, y: float, text: str, left: float, right: float) -> str:
+    anchor = "middle"
+    if x - left < 60:
+        anchor = "start"
+    elif right - x < 60:
+        anchor = "end"
+    return (f'<text x="{x:.2f}" y="{y:.2f}" text-anchor="{anchor}" font-family="DejaVu Sans, sans-serif" '
+            f'font-size="10" font-weight="bold" fill="#000000" stroke="#FFFFFF" stroke-width="3" '
+            f'paint-order="stroke">{text}</text>')
+
+
+# --------------------------------------------------------------------------------------------- plumbing
+
+#: Axes margins as fractions of the figure (fixed rather than tight_layout, so overlays and sizes are stable).
+_MARGINS = {"left": 0.085, "right": 0.85, "top": 0.88, "bottom": 0.16}
+
+
+def _new(size: tuple[float, float], **margins: float):
+    import matplotlib
+    from matplotlib.backends.backend_svg import FigureCanvasSVG
+    from matplotlib.figure import Figure
+
+    with matplotlib.rc_context(_RC):
+        fig = Figure(figsize=size, dpi=72)
+        FigureCanvasSVG(fig)
+        fig.subplots_adjust(**{**_MARGINS, **margins})
+        ax = fig.add_subplot()
+    return fig, ax
+
+
+_ID = re.compile(r'\bid="([^"]+)"')
+
+
+def _finish(fig, ax, *, key: str, title: str, caption: str, kind: MarkKind = "none",
+            marks: dict[str, tuple[float, float]] | None = None) -> SvgFigure:
+    """Lay out, write the SVG (deterministic), prefix its ids, and keep the data → SVG maps."""
+    import matplotlib
+
+    with matplotlib.rc_context(_RC):
+        buf = io.StringIO()
+        fig.savefig(buf, format="svg", metadata={"Date": None, "Creator": "roundscore"})
+    text = buf.getvalue()
+    text = text[text.index("<svg"):]
+    ids = set(_ID.findall(text))
+    if ids:
+        safe = re.sub(r"[^A-Za-z0-9_-]", "_", key)
+        pattern = re.compile(r'(id="|url\(#|href="#)(' + "|".join(map(re.escape, sorted(ids, key=len, reverse=True)))
+                             + r')(?=[")])')
+        text = pattern.sub(lambda m: f"{m.group(1)}{safe}-{m.group(2)}", text)
+    text = text.replace("<svg ", f'<svg role="img" aria-label="{html.escape(title)}" ', 1)
+    height = fig.get_figheight() * 72
+    t = ax.transData
+    p0, p1 = t.transform((0.0, 0.0)), t.transform((1.0, 1.0))
+    x_map = (float(p1[0] - p0[0]), float(p0[0]))
+    y_map = (float(-(p1[1] - p0[1])), float(height - p0[1]))
+    bb = ax.get_window_extent()
+    box = (float(bb.x0), float(height - bb.y1), float(bb.x1), float(height - bb.y0))
+    return SvgFigure(key=key, title=title, caption=caption, svg=text, x_map=x_map, y_map=y_map, axes_box=box,
+                     x_limits=tuple(map(float, ax.get_xlim())), y_limits=tuple(map(float, ax.get_ylim())),
+                     kind=kind, marks=dict(marks or {}))
+
+
+def render_png(svg_figure_builder, *args, **kwargs) -> bytes:
+    """PNG bytes of a figure builder's drawing (for looking at a figure outside a browser).
+
+    ``svg_figure_builder`` is one of this module's ``*_figure`` functions; it
+    is called with ``png=True`` and the same arguments.
+    """
+    return svg_figure_builder(*args, png=True, **kwargs)
+
+
+def _png(fig) -> bytes:
+    import matplotlib
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    with matplotlib.rc_context(_RC):
+        FigureCanvasAgg(fig)
+        buf = io.BytesIO()
+        fig.savefig(buf, format="png", dpi=110, metadata={"Software": None})
+    return buf.getvalue()
+
+
+def _signal_legend(ax, signals: Sequence[str], words: str, **kw) -> None:
+    from matplotlib.lines import Line2D
+
+    present = [s for s in ("acceptable", "warning", "action") if s in set(signals)]
+    handles = [Line2D([], [], linestyle="none", marker=SIGNAL_MARKER[s], markersize=6,
+                      markerfacecolor=SIGNAL_COLOUR[s], markeredgecolor="#000000", markeredgewidth=0.5,
+                      label=SIGNAL_WORD[words][s]) for s in present]
+    if handles:
+        ax.legend(handles=handles, frameon=False, fontsize=8, **kw)
+
+
+def _codes(ax, pos: np.ndarray, labels: Sequence[str], n: int, xlabel: str = "") -> None:
+    """Lab (or item) codes under the axis as plain texts, about ten times cheaper to draw than ticks.
+
+    The bottom margin and the axis label's pad grow with the longest code.
+    """
+    ax.set_xticks([])
+    tr = ax.get_xaxis_transform()
+    size = 7 if n > 30 else 8
+    for x, lab in zip(pos, labels):
+        ax.text(x, -0.02, str(lab), transform=tr, rotation=90, ha="center", va="top", fontsize=size)
+    longest = max((len(str(lab)) for lab in labels), default=0)
+    pad = 6 + 0.62 * size * longest  # points: about 0.62 em per character of DejaVu Sans
+    fig = ax.figure
+    fig.subplots_adjust(bottom=(pad + 26) / (fig.get_figheight() * 72))
+    if xlabel:
+        ax.set_xlabel(xlabel, labelpad=pad)
+
+
+def _limits(score: str) -> list[tuple[float, str, str]]:
+    if score == "en":
+        return [(EN_ACTION, "action limit", "-")]
+    return [(Z_WARNING, "warning limit", "--"), (Z_ACTION, "action limit", "-")]
+
+
+# --------------------------------------------------------------------------------------------- figures
+
+def z_bar_figure(labs: Sequence[str], values: Sequence[float], signals: Sequence[str], *, key: str,
+                 title: str, score: str = "z", words: str = "signals", png: bool = False) -> SvgFigure | bytes:
+    """Ranked bar chart of one measurand's scores with the warning and action limits.
+
+    Parameters
+    ----------
+    labs, values, signals : sequences of equal length
+        Lab codes, their official score and signal (from the evaluation);
+        labs without a finite score are left out of the chart.
+    key, title : str
+    score : str
+        The score's name ("z", "z-prime", "zeta", "en"): En shows ±1, the
+        others ±2 (warning) and ±3 (action) (ISO 13528 §9.4 and §9.7).
+    words : {"signals", "performance"}
+        The signal words of the legend.
+
+    Returns
+    -------
+    SvgFigure
+        ``kind="bar"``; marks hold each lab's rank position and score.
+
+    Notes
+    -----
+    Up to :data:`MAX_BARS` labs each bar carries the lab's code; with more,
+    the ranked scores are drawn as a profile filled per signal and only
+    warning and action signals get a marker. Scores beyond the axis are drawn
+    to its edge with their value printed.
+    """
+    v = np.asarray(values, dtype=float)
+    keep = np.isfinite(v)
+    labs_k = [lab for lab, k in zip(labs, keep) if k]
+    sig = np.asarray(signals, dtype=object)[keep]
+    v = v[keep]
+    order = np.argsort(v, kind="stable")
+    v, sig = v[order], sig[order]
+    labs_k = [labs_k[i] for i in order]
+    n = len(v)
+    lims = _limits(score)
+    top = max(lims[-1][0] + 1.0, 4.0)
+    bound = float(min(max(top, math.ceil(np.max(np.abs(v))) + 0.5 if n else top), 2 * top))
+    fig, ax = _new(_WIDE, bottom=0.2 if n <= MAX_BARS else 0.1)
+    pos = np.arange(n, dtype=float)
+    shown = np.clip(v, -bound, bound)
+    colours = [SIGNAL_COLOUR.get(s, PALETTE["grey"]) for s in sig]
+    if n <= MAX_BARS:
+        ax.bar(pos, shown, width=0.8, color=colours, edgecolor="#333333", linewidth=0.3)
+        marked = np.ones(n, dtype=bool)
+        _codes(ax, pos, labs_k, n, "laboratory (ranked by score)")
+    else:
+        for s in ("acceptable", "warning", "action", "not-scored"):
+            sel = sig == s
+            if sel.any():
+                ax.fill_between(pos, 0, np.where(sel, shown, 0.0), step="mid", color=SIGNAL_COLOUR[s],
+                                linewidth=0)
+        marked = sig != "acceptable"
+        ax.set_xlabel(f"{n} laboratories ranked by score")
+        ax.set_xticks([])
+    for s in ("acceptable", "warning", "action"):
+        sel = (sig == s) & marked
+        if sel.any():
+            tips = shown[sel] + np.where(shown[sel] >= 0, 0.04, -0.04) * bound
+            ax.plot(pos[sel], tips, linestyle="none", marker=SIGNAL_MARKER[s], markersize=5 if n <= MAX_BARS else 4,
+                    markerfacecolor=SIGNAL_COLOUR[s], markeredgecolor="#000000", markeredgewidth=0.5)
+    for i in np.flatnonzero(np.abs(v) > bound):
+        ax.annotate(f"{v[i]:.3g}", (pos[i], shown[i]), xytext=(0, 6 if v[i] > 0 else -12),
+                    textcoords="offset points", ha="center", fontsize=7)
+    for lim, word, style in lims:
+        for sign in (1, -1):
+            ax.axhline(sign * lim, color="#444444", linestyle=style, linewidth=0.8)
+        ax.text(1.0, lim, f" {word} ±{lim:g}", transform=ax.get_yaxis_transform(), va="center", fontsize=7)
+    ax.axhline(0, color="#000000", linewidth=0.6)
+    ax.set_xlim(-0.8, max(n, 1) - 0.2)
+    ax.set_ylim(-bound - 0.6, bound + 0.6)
+    ax.set_ylabel(_score_label(score))
+    ax.set_title(title, loc="left")
+    _signal_legend(ax, list(sig), words, loc="upper left", ncol=3)
+    if png:
+        return _png(fig)
+    marks = {lab: (float(p), float(z)) for lab, p, z in zip(labs_k, pos, v)}
+    caption = (f"{_score_label(score)} of {n} laboratories, ranked; lines at the "
+               + " and ".join(f"{w} ±{lim:g}" for lim, w, _ in lims)
+               + ". Colour, marker shape and the legend word show each signal.")
+    return _finish(fig, ax, key=key, title=title, caption=caption, kind="bar", marks=marks)
+
+
+def _score_label(score: str) -> str:
+    return {"z": "z-score", "z-prime": "z′-score", "zeta": "ζ-score", "en": "En number"}.get(score, score)
+
+
+def density_figure(labs: Sequence[str], values: Sequence[float], *, assigned: float, sigma_pt: float, key: str,
+                   title: str, unit: str = "", used: Sequence[bool] | None = None,
+                   png: bool = False) -> SvgFigure | bytes:
+    """Kernel density of the lab results with a rug, x_pt and x_pt ± 2σ_pt marked.
+
+    Parameters
+    ----------
+    labs, values : sequences
+        Lab codes and their results (lab means); non-finite values are skipped.
+    assigned, sigma_pt : float
+        From the evaluation (NaN: not drawn).
+    used : sequence of bool, optional
+        Which results entered the statistics; the density uses those, the
+        rug shows all (left-out results hollow).
+
+    Notes
+    -----
+    Gaussian kernels of bandwidth h = :data:`KDE_BANDWIDTH_FACTOR`·σ_pt
+    (Silverman's rule via :class:`scipy.stats.gaussian_kde` when σ_pt is
+    not set). A second mode often means a method group. The axis shows at
+    most x_pt ± :data:`RANGE_SIGMAS`·σ_pt; results outside are counted in the
+    caption. The curve is a picture of the data, not a statistic of the
+    evaluation.
+
+    References
+    ----------
+    .. [1] ISO 13528:2015, §10.3 (kernel density plots); clause from memory.
+    .. [2] AMC Technical Brief No. 4, "Representing data distributions with
+       kernel density estimates" (Royal Society of Chemistry); from memory.
+    """
+    x = np.asarray(values, dtype=float)
+    u = np.ones(len(x), dtype=bool) if used is None else np.asarray(used, dtype=bool)
+    ok = np.isfinite(x)
+    labs_k = [lab for lab, k in zip(labs, ok) if k]
+    x, u = x[ok], u[ok]
+    fig, ax = _new(_WIDE, right=0.97)
+    have_pt = bool(np.isfinite(assigned) and np.isfinite(sigma_pt) and sigma_pt > 0)
+    xu = x[u]
+    if have_pt:
+        lo, hi = assigned - RANGE_SIGMAS * sigma_pt, assigned + RANGE_SIGMAS * sigma_pt
+        if len(xu):
+            lo, hi = max(lo, min(xu.min(), assigned - 3 * sigma_pt) - 0.5 * sigma_pt), \
+                min(hi, max(xu.max(), assigned + 3 * sigma_pt) + 0.5 * sigma_pt)
+    elif len(xu):
+        span = float(np.ptp(xu)) or abs(float(xu[0])) or 1.0
+        lo, hi = float(xu.min()) - 0.3 * span, float(xu.max()) + 0.3 * span
+    else:
+        lo, hi = 0.0, 1.0
+    grid = np.linspace(lo, hi, 300)
+    outside = int(np.sum((x < lo) | (x > hi)))
+    ymax = 1.0
+    if len(xu) >= 2 and np.ptp(xu) > 0:
+        if have_pt:
+            h = KDE_BANDWIDTH_FACTOR * sigma_pt
+            dens = sps.norm.pdf((grid[:, None] - xu[None, :]) / h).sum(axis=1) / (len(xu) * h)
+        else:
+            dens = sps.gaussian_kde(xu, bw_method="silverman")(grid)
+        ax.fill_between(grid, dens, color=PALETTE["sky"], alpha=0.35, linewidth=0)
+        ax.plot(grid, dens, color=PALETTE["blue"], linewidth=1.4, label="kernel density")
+        ymax = float(dens.max()) or 1.0
+    if have_pt:
+        ax.axvspan(assigned - 2 * sigma_pt, assigned + 2 * sigma_pt, color="#000000", alpha=0.06, linewidth=0)
+        for k, style in ((-2, "--"), (2, "--")):
+            ax.axvline(assigned + k * sigma_pt, color="#444444", linestyle=style, linewidth=0.8)
+        ax.axvline(assigned, color="#000000", linewidth=1.2, label="assigned value x_pt")
+        ax.text(assigned + 2 * sigma_pt, 1.0, " +2σ_pt", transform=ax.get_xaxis_transform(), fontsize=7, va="top")
+        ax.text(assigned - 2 * sigma_pt, 1.0, "−2σ_pt ", transform=ax.get_xaxis_transform(), fontsize=7, va="top",
+                ha="right")
+    inside = (x >= lo) & (x <= hi)
+    rug = np.round(x[inside & u], 12)
+    rug_out = np.round(x[inside & ~u], 12)
+    y_rug = -0.06 * ymax
+    if len(rug):
+        # At most one tick per 0.4 pt: identical positions are drawn once (same picture, smaller file).
+        step = (hi - lo) / 1200
+        rug = np.unique(np.round(rug / step)) * step
+        ax.plot(rug, np.full(len(rug), y_rug), linestyle="none", marker="|", markersize=9, color="#000000",
+                markeredgewidth=0.8, label="results (rug)")
+    if len(rug_out):
+        ax.plot(rug_out, np.full(len(rug_out), y_rug), linestyle="none", marker="o", markersize=4,
+                markerfacecolor="none", markeredgecolor=PALETTE["vermillion"], label="left out of the statistics")
+    ax.set_xlim(lo, hi)
+    ax.set_ylim(-0.14 * ymax, 1.12 * ymax)
+    ax.set_yticks([])
+    ax.set_ylabel("density")
+    ax.set_xlabel(f"result ({unit})" if unit else "result")
+    ax.set_title(title, loc="left")
+    ax.legend(frameon=False, fontsize=8, loc="upper right")
+    if png:
+        return _png(fig)
+    caption = (f"Kernel density of {int(u.sum())} results used (bandwidth "
+               + (f"{KDE_BANDWIDTH_FACTOR:g}·σ_pt" if have_pt else "Silverman's rule")
+               + "), each result as a rug tick; the assigned value and x_pt ± 2σ_pt marked. "
+               "A second mode often means a method group.")
+    if outside:
+        caption += f" {outside} result(s) lie outside the plotted range."
+    marks = {lab: (float(v), math.nan) for lab, v in zip(labs_k, x)}
+    return _finish(fig, ax, key=key, title=title, caption=caption, kind="vline", marks=marks)
+
+
+def youden_figure(labs: Sequence[str], a: Sequence[float], b: Sequence[float], *, names: tuple[str, str],
+                  assigned: tuple[float, float], sigma_pt: tuple[float, float], key: str, title: str,
+                  signals: Sequence[str] | None = None, words: str = "signals",
+                  png: bool = False) -> SvgFigure | bytes:
+    """Youden plot: each lab's result on measurand (or item) A against B, assigned values crossed.
+
+    Parameters
+    ----------
+    labs, a, b : sequences
+        Lab codes and results on both; labs without both are left out.
+    names, assigned, sigma_pt : pairs
+        Axis names and the evaluation's x_pt and σ_pt of each.
+    signals : sequence of str, optional
+        The worse of each lab's two signals (marker colour and shape).
+
+    Notes
+    -----
+    The ellipse is centred on the two assigned values; in units of σ_pt it
+    is the :data:`YOUDEN_LEVEL` contour of a bivariate normal with unit
+    variances and the correlation of the standardised results of labs
+    within ±3σ_pt on both (a display device, assumed here; the evaluation
+    does not use it). Points along the 45° line (in σ_pt units) show
+    systematic errors common to both, points across it random error.
+
+    References
+    ----------
+    .. [1] W. J. Youden, "Graphical diagnosis of interlaboratory test
+       results", Industrial Quality Control 15 (1959) 24-28; from memory.
+    .. [2] ISO 13528:2015, §10.5 (Youden plots); clause from memory.
+    """
+    xa, xb = np.asarray(a, dtype=float), np.asarray(b, dtype=float)
+    ok = np.isfinite(xa) & np.isfinite(xb)
+    sig = np.asarray(signals if signals is not None else ["acceptable"] * len(xa), dtype=object)[ok]
+    labs_k = [lab for lab, k in zip(labs, ok) if k]
+    xa, xb = xa[ok], xb[ok]
+    fig, ax = _new(_SQUARE, left=0.11, right=0.70, bottom=0.12, top=0.92)
+    (ca, cb), (sa, sb) = assigned, sigma_pt
+    have = all(np.isfinite(v) for v in (ca, cb, sa, sb)) and sa > 0 and sb > 0
+    if have:
+        za, zb = (xa - ca) / sa, (xb - cb) / sb
+        core = (np.abs(za) <= 3) & (np.abs(zb) <= 3)
+        rho = float(np.corrcoef(za[core], zb[core])[0, 1]) if core.sum() >= 3 else 0.0
+        rho = 0.0 if not np.isfinite(rho) else max(min(rho, 0.99), -0.99)
+        r2 = float(sps.chi2.ppf(YOUDEN_LEVEL, 2))
+        t = np.linspace(0, 2 * np.pi, 181)
+        vals, vecs = np.linalg.eigh(np.array([[1.0, rho], [rho, 1.0]]))
+        pts = vecs @ (np.sqrt(vals * r2)[:, None] * np.vstack([np.cos(t), np.sin(t)]))
+        ax.plot(ca + sa * pts[0], cb + sb * pts[1], color=PALETTE["blue"], linewidth=1.1,
+                label=f"{YOUDEN_LEVEL:.0%} ellipse")
+        lim_a = (ca - RANGE_SIGMAS * sa, ca + RANGE_SIGMAS * sa)
+        lim_b = (cb - RANGE_SIGMAS * sb, cb + RANGE_SIGMAS * sb)
+        ax.plot(lim_a, (cb - RANGE_SIGMAS * sb, cb + RANGE_SIGMAS * sb), color="#888888", linewidth=0.6,
+                linestyle=":", label="45° line (σ_pt units)")
+        ax.axvline(ca, color="#000000", linewidth=0.9)
+        ax.axhline(cb, color="#000000", linewidth=0.9, label="assigned values")
+        span_a = (max(lim_a[0], min(xa.min(initial=ca), ca - 3 * sa) - 0.5 * sa),
+                  min(lim_a[1], max(xa.max(initial=ca), ca + 3 * sa) + 0.5 * sa))
+        span_b = (max(lim_b[0], min(xb.min(initial=cb), cb - 3 * sb) - 0.5 * sb),
+                  min(lim_b[1], max(xb.max(initial=cb), cb + 3 * sb) + 0.5 * sb))
+        ax.set_xlim(*span_a)
+        ax.set_ylim(*span_b)
+        cx, cy = np.clip(xa, *span_a), np.clip(xb, *span_b)
+    else:
+        cx, cy = xa, xb
+    for s in ("acceptable", "warning", "action", "not-scored"):
+        sel = sig == s
+        if sel.any():
+            ax.plot(cx[sel], cy[sel], linestyle="none", marker=SIGNAL_MARKER[s], markersize=5,
+                    markerfacecolor=SIGNAL_COLOUR[s], markeredgecolor="#000000", markeredgewidth=0.5,
+                    label=SIGNAL_WORD[words][s])
+    ax.set_xlabel(names[0])
+    ax.set_ylabel(names[1])
+    ax.set_title(title, loc="left")
+    ax.legend(frameon=False, fontsize=8, loc="upper left", bbox_to_anchor=(1.02, 1.0), borderaxespad=0)
+    if png:
+        return _png(fig)
+    caption = (f"Youden plot of {len(xa)} laboratories: {names[0]} against {names[1]}, the assigned values "
+               f"crossed, a {YOUDEN_LEVEL:.0%} ellipse. Points along the 45° line suggest a systematic error "
+               "common to both. Results beyond the axes are drawn at its edge.")
+    marks = {lab: (float(p), float(q)) for lab, p, q in zip(labs_k, xa, xb)}
+    return _finish(fig, ax, key=key, title=title, caption=caption, kind="point", marks=marks)
+
+
+def mandel_limits(p: int, n: int) -> dict[str, float]:
+    """Mandel indicator values from :mod:`roundscore.stats.precision` (ISO 5725-2 §7.3.1, Table 6).
+
+    Returns ``h_5, h_1`` for p labs and ``k_5, k_1`` for p labs of n replicates.
+    """
+    return {"h_5": mandel_h_critical(p, 0.05), "h_1": mandel_h_critical(p, 0.01),
+            "k_5": mandel_k_critical(p, n, 0.05), "k_1": mandel_k_critical(p, n, 0.01)}
+
+
+def mandel_figure(labs: Sequence[str], values: Sequence[float], *, statistic: Literal["h", "k"],
+                  critical_5: float, critical_1: float, key: str, title: str,
+                  png: bool = False) -> SvgFigure | bytes:
+    """Mandel's h or k by lab, with the 5 % (dashed) and 1 % (solid) indicator lines.
+
+    Bars beyond the 1 % line are vermillion with a square, beyond 5 % orange
+    with a triangle, others blue with a circle (shape and colour both).
+
+    References
+    ----------
+    .. [1] ISO 5725-2:1994, §7.3.1 and Figures 2-5 (h and k plots).
+    """
+    v = np.asarray(values, dtype=float)
+    pos = np.arange(len(v), dtype=float)
+    fig, ax = _new(_WIDE, bottom=0.2)
+    size = np.abs(v) if statistic == "h" else v
+    level = np.where(size > critical_1, "action", np.where(size > critical_5, "warning", "acceptable"))
+    level = np.where(np.isfinite(v), level, "not-scored")
+    colours = [{"action": PALETTE["vermillion"], "warning": PALETTE["orange"]}.get(s, PALETTE["blue"])
+               for s in level]
+    if len(v) <= MAX_BARS:
+        ax.bar(pos, np.nan_to_num(v), width=0.7, color=colours, edgecolor="#333333", linewidth=0.3)
+        _codes(ax, pos, labs, len(v), "laboratory")
+    else:  # many labs: one filled profile per level; codes only for labs beyond the 5 % line
+        for s in ("acceptable", "warning", "action"):
+            sel = level == s
+            if sel.any():
+                ax.fill_between(pos, 0, np.where(sel, np.nan_to_num(v), 0.0), step="mid", linewidth=0,
+                                color={"action": PALETTE["vermillion"], "warning": PALETTE["orange"]}
+                                .get(s, PALETTE["blue"]))
+        far = np.flatnonzero(level != "acceptable")
+        _codes(ax, pos[far], [labs[i] for i in far], len(far), f"{len(v)} laboratories")
+    for s, word in (("acceptable", "within the 5 % line"), ("warning", "beyond 5 %"), ("action", "beyond 1 %")):
+        sel = (level == s) & ((len(v) <= MAX_BARS) | (level != "acceptable"))
+        if sel.any():
+            tip = v[sel] + np.where(v[sel] >= 0, 0.12, -0.12)
+            ax.plot(pos[sel], tip, linestyle="none", marker=SIGNAL_MARKER[s], markersize=4,
+                    markerfacecolor=colours[int(np.flatnonzero(sel)[0])], markeredgecolor="#000000",
+                    markeredgewidth=0.5, label=word)
+    signs = (1, -1) if statistic == "h" else (1,)
+    for crit, style, word in ((critical_5, "--", "5 %"), (critical_1, "-", "1 %")):
+        if np.isfinite(crit):
+            for sgn in signs:
+                ax.axhline(sgn * crit, color="#444444", linestyle=style, linewidth=0.8)
+            ax.text(1.0, crit, f" {word}: {crit:.2f}", transform=ax.get_yaxis_transform(), va="center", fontsize=7)
+    ax.axhline(0, color="#000000", linewidth=0.6)
+    ax.set_xlim(-0.8, max(len(v), 1) - 0.2)
+    finite = np.abs(v[np.isfinite(v)])
+    reach = max([*finite, *(c for c in (critical_5, critical_1) if np.isfinite(c)), 1.0])
+    ax.set_ylim(-1.2 * reach if statistic == "h" else 0.0, 1.4 * reach)  # head room for the legend
+    ax.set_ylabel(f"Mandel {statistic}")
+    ax.set_title(title, loc="left")
+    ax.legend(frameon=False, fontsize=7, loc="upper left", ncol=3)
+    if png:
+        return _png(fig)
+    caption = (f"Mandel's {statistic} for {len(v)} laboratories with the 5 % (dashed) and 1 % (solid) "
+               "indicator lines of ISO 5725-2.")
+    marks = {lab: (float(p), float(x)) for lab, p, x in zip(labs, pos, v) if np.isfinite(x)}
+    return _finish(fig, ax, key=key, title=title, caption=caption, kind="bar", marks=marks)
+
+
+def homogeneity_figure(items: Sequence[str], values: Sequence[float], *, item_labels: Sequence[str],
+                       item_means: Sequence[float], general_mean: float, sigma_pt: float, key: str, title: str,
+                       unit: str = "", png: bool = False) -> SvgFigure | bytes:
+    """Homogeneity: each item's replicates (small dots) and mean (circle), the general mean ± 0.3σ_pt.
+
+    The band shows the size of 0.3σ_pt, the scale of the criterion
+    s_s ≤ 0.3σ_pt (ISO 13528:2015 §B.2, from memory); the check itself is in
+    the items table.
+    """
+    fig, ax = _new(_WIDE, right=0.97, bottom=0.2)
+    index = {lab: i for i, lab in enumerate(item_labels)}
+    xs = np.array([index.get(it, -1) for it in items], dtype=float)
+    vals = np.asarray(values, dtype=float)
+    ax.plot(xs, vals, linestyle="none", marker=".", markersize=4, color="#555555", label="replicates")
+    ax.plot(np.arange(len(item_means)), item_means, linestyle="none", marker="o", markersize=6,
+            markerfacecolor=PALETTE["blue"], markeredgecolor="#000000", markeredgewidth=0.5, label="item mean")
+    ax.axhline(general_mean, color="#000000", linewidth=1.0, label="general mean")
+    if np.isfinite(sigma_pt) and sigma_pt > 0:
+        ax.axhspan(general_mean - 0.3 * sigma_pt, general_mean + 0.3 * sigma_pt, color=PALETTE["sky"], alpha=0.3,
+                   linewidth=0, label="general mean ± 0.3σ_pt")
+    _codes(ax, np.arange(len(item_labels), dtype=float), list(item_labels), 40, "test item")
+    lo, hi = ax.get_ylim()
+    ax.set_ylim(lo, hi + 0.25 * (hi - lo))  # head room for the legend
+    ax.set_ylabel(f"value ({unit})" if unit else "value")
+    ax.set_title(title, loc="left")
+    ax.legend(frameon=False, fontsize=7, loc="upper left", ncol=4)
+    if png:
+        return _png(fig)
+    caption = (f"Homogeneity: replicates and means of {len(item_labels)} test items, the general mean and a band "
+               "of ± 0.3σ_pt for scale.")
+    return _finish(fig, ax, key=key, title=title, caption=caption)
+
+
+def signal_text(signal: str, words: str = "signals") -> str:
+    """"▲ warning signal" (symbol and word), for figure captions and tables."""
+    return f"{SIGNAL_SYMBOL.get(signal, '')} {SIGNAL_WORD[words].get(signal, signal)}".strip()
+
+
+# --------------------------------------------------------------------------------------------- the round's set
+
+#: Column of the scores frame holding each official score.
+SCORE_FIELD = {"z": "z", "z-prime": "z_prime", "zeta": "zeta", "en": "en"}
+_WORSE = {"not-scored": 0, "acceptable": 1, "warning": 2, "action": 3}
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class RoundFigures:
+    """Every shared figure of a round, drawn once (the HTML report and each lab's page compose them).
+
+    Attributes
+    ----------
+    scores, density : dict of str to SvgFigure
+        By measurand: the ranked score chart and the density of results (scored measurands only).
+    youden : tuple of SvgFigure
+        One per pair in ``[round] youden``.
+    mandel : dict of str to tuple of SvgFigure
+        By measurand: Mandel's h and k charts (when the mandel table is there).
+    items : dict of str to SvgFigure
+        By measurand: the homogeneity item means.
+    """
+
+    scores: dict[str, SvgFigure]
+    density: dict[str, SvgFigure]
+    youden: tuple[SvgFigure, ...]
+    mandel: dict[str, tuple[SvgFigure, ...]]
+    items: dict[str, SvgFigure]
+
+
+def round_figures(ev) -> RoundFigures:
+    """Draw the shared figures of a :class:`~roundscore.evaluate.RoundEvaluation` (nothing is recomputed).
+
+    Mandel indicator lines come from the mandel frame's ``attrs["critical"]``
+    (``{measurand: {"h_5", "h_1", "k_5", "k_1"}}``) or its columns
+    ``h_crit_5, h_crit_1, k_crit_5, k_crit_1`` (as the precision stage writes
+    them), otherwise from :func:`mandel_limits` with p the labs
+    having h (k) and n the measurand's mean replicate count from the
+    precision table (rounded; the round's ``replicates`` when absent).
+    """
+    words = ev.round.words
+    sc = ev.scores
+    per = {name: g for name, g in sc.groupby("measurand", sort=False)} if len(sc) else {}
+    scores, density, items = {}, {}, {}
+    for name, m in ev.measurands.items():
+        label = m.settings.label or name
+        g = per.get(name)
+        if m.scored and g is not None:
+            scores[name] = z_bar_figure(g["lab"].tolist(), g[SCORE_FIELD[m.settings.score]].to_numpy(float),
+                                        g["signal"].tolist(), key=f"z-{name}", score=m.settings.score,
+                                        title=f"{label}: {_score_label(m.settings.score)} by laboratory",
+                                        words=words)
+        labs = m.labs
+        if len(labs) and np.isfinite(labs["mean"].to_numpy(float)).any():
+            density[name] = density_figure(labs["lab"].tolist(), labs["mean"].to_numpy(float), assigned=m.assigned,
+                                           sigma_pt=m.sigma_pt, key=f"d-{name}", unit=m.settings.unit,
+                                           title=f"{label}: distribution of results",
+                                           used=labs["used"].to_numpy(bool))
+        ic = m.item_checks
+        hom = getattr(ic, "homogeneity", None)
+        table = getattr(ic, "homogeneity_table", None)
+        if hom is not None and table is not None:
+            items[name] = homogeneity_figure(list(table.items), np.asarray(table.values, float),
+                                             item_labels=list(hom.item_labels), item_means=list(hom.item_means),
+                                             general_mean=float(hom.mean), sigma_pt=float(hom.sigma_pt),
+                                             key=f"items-{name}", title=f"{label}: homogeneity of the test items",
+                                             unit=m.settings.unit)
+    youden = []
+    for a, b in ev.round.youden:
+        ma, mb = ev.measurands.get(a), ev.measurands.get(b)
+        if ma is None or mb is None:
+            continue
+        la = ma.labs.set_index("lab")
+        lb = mb.labs.set_index("lab")
+        codes = [lab for lab in la.index if lab in lb.index]
+        sig = {}
+        for name in (a, b):
+            g = per.get(name)
+            if g is not None:
+                for lab, s in zip(g["lab"], g["signal"]):
+                    sig[lab] = s if _WORSE.get(s, 0) > _WORSE.get(sig.get(lab, "not-scored"), 0) else \
+                        sig.get(lab, "not-scored")
+        youden.append(youden_figure(
+            codes, la.loc[codes, "mean"].to_numpy(float), lb.loc[codes, "mean"].to_numpy(float),
+            names=(f"{ma.settings.label or a} ({ma.settings.unit})", f"{mb.settings.label or b} ({mb.settings.unit})"),
+            assigned=(ma.assigned, mb.assigned), sigma_pt=(ma.sigma_pt, mb.sigma_pt), key=f"y-{a}-{b}",
+            title=f"Youden plot: {a} and {b}", signals=[sig.get(c, "not-scored") for c in codes], words=words))
+    return RoundFigures(scores=scores, density=density, youden=tuple(youden), mandel=_mandel_figures(ev),
+                        items=items)
+
+
+def _mandel_figures(ev) -> dict[str, tuple[SvgFigure, ...]]:
+    frame = ev.extras.get("mandel")
+    if frame is None or not len(frame) or not {"lab", "measurand", "h", "k"} <= set(frame.columns):
+        return {}
+    critical = frame.attrs.get("critical", {}) if isinstance(frame.attrs, dict) else {}
+    prec = ev.extras.get("precision")
+    out = {}
+    for name, g in frame.groupby("measurand", sort=False):
+        h, k = g["h"].to_numpy(float), g["k"].to_numpy(float)
+        lim = dict(critical.get(name, {}))
+        cols = {"h_5": "h_crit_5", "h_1": "h_crit_1", "k_5": "k_crit_5", "k_1": "k_crit_1"}
+        if not lim and set(cols.values()) <= set(g.columns):
+            lim = {key: float(pd.to_numeric(g[c], errors="coerce").dropna().iloc[0])
+                   if pd.to_numeric(g[c], errors="coerce").notna().any() else math.nan for key, c in cols.items()}
+        if not lim:
+            n = ev.round.replicates
+            if prec is not None and "n_bar" in getattr(prec, "columns", ()):
+                row = prec[prec["measurand"] == name]
+                if len(row) and np.isfinite(float(row["n_bar"].iloc[0])):
+                    n = int(round(float(row["n_bar"].iloc[0])))
+            lim_h = mandel_limits(int(np.isfinite(h).sum()), n)
+            lim_k = mandel_limits(int(np.isfinite(k).sum()), n)
+            lim = {"h_5": lim_h["h_5"], "h_1": lim_h["h_1"], "k_5": lim_k["k_5"], "k_1": lim_k["k_1"]}
+        labs = g["lab"].tolist()
+        figs = []
+        for stat, vals in (("h", h), ("k", k)):
+            figs.append(mandel_figure(labs, vals, statistic=stat, critical_5=float(lim.get(f"{stat}_5", math.nan)),
+                                      critical_1=float(lim.get(f"{stat}_1", math.nan)), key=f"mandel-{stat}-{name}",
+                                      title=f"{name}: Mandel's {stat} by laboratory"))
+        out[name] = tuple(figs)
+    return out

@@ -1,0 +1,459 @@
+"""The HTML round report and one HTML page per lab: self-contained files (SVG inline, no network, no script).
+
+``report.html`` holds the round and its settings, the item checks, each
+measurand's statistics and figures, the Youden plots, precision and
+screens, method groups, every lab's scores with signals, the audit trail
+and the cautions. Labs appear only by code in it. ``labs/LAB.html`` holds
+one lab's own results, its figures (the shared SVG with its bar or result
+marked) and, at the top, its name: names appear only in the lab's own page.
+
+A print stylesheet makes a browser print either page to PDF cleanly
+(sections start on a new page, figures and table rows are not split,
+table heads repeat).
+
+Everything shown comes from the :class:`~roundscore.evaluate.RoundEvaluation`
+and the figures of :func:`~roundscore.io.figures.round_figures`; nothing is
+recomputed. The shared parts are built once, so a lab page costs a few
+milliseconds (string joins), whatever the size of the round.
+"""
+
+from __future__ import annotations
+
+import html
+import math
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any, Callable, Iterable, Sequence
+
+import numpy as np
+import pandas as pd
+
+from ..look import CAUTION, SIGNAL_COLOUR, SIGNAL_SYMBOL, SIGNAL_WORD
+from .figures import SCORE_FIELD, RoundFigures, SvgFigure, round_figures
+
+__all__ = ["write_report", "report_html", "lab_page_html", "ReportParts", "report_parts", "lab_file_name",
+           "REPORT_NAME"]
+
+REPORT_NAME = "report.html"
+_SIGNALS = ("acceptable", "warning", "action", "not-scored")
+
+
+def _tint(hex_colour: str, keep: float = 0.3) -> str:
+    r, g, b = (int(hex_colour[i:i + 2], 16) for i in (1, 3, 5))
+    return "#{:02X}{:02X}{:02X}".format(*(int(c + (255 - c) * (1 - keep)) for c in (r, g, b)))
+
+
+_CSS = """
+:root { --ink: #1a1a1a; --muted: #555; --rule: #c8c8c8; --head: #dde6f0; }
+* { box-sizing: border-box; }
+body { font-family: "DejaVu Sans", "Segoe UI", Helvetica, Arial, sans-serif; color: var(--ink);
+       margin: 0 auto; max-width: 64rem; padding: 1rem 1.5rem 3rem; line-height: 1.4; font-size: 15px; }
+h1 { font-size: 1.55rem; margin: .2rem 0 .4rem; } h2 { font-size: 1.25rem; border-bottom: 2px solid var(--ink);
+       margin-top: 2.2rem; } h3 { font-size: 1.05rem; margin: 1.6rem 0 .4rem; }
+nav ol { columns: 2; font-size: .9rem; } a { color: #0b4f8a; }
+.caution { border-left: 5px solid #0072B2; background: #eef5fb; padding: .6rem .9rem; margin: .8rem 0; }
+.alert { border-left: 5px solid #D55E00; background: #fbeee6; padding: .6rem .9rem; margin: .8rem 0;
+         font-weight: bold; }
+.confidential { border: 2px solid var(--ink); padding: .5rem .9rem; margin: .8rem 0; }
+table { border-collapse: collapse; margin: .5rem 0 1rem; font-size: .85rem; }
+th, td { border: 1px solid var(--rule); padding: .2rem .45rem; vertical-align: top; text-align: left; }
+th { background: var(--head); } td[class^="s-"] { white-space: nowrap; } td.n { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
+.wide { display: block; overflow-x: auto; max-width: 100%; }
+dl.kv { display: grid; grid-template-columns: max-content 1fr; gap: .1rem 1rem; margin: .4rem 0; }
+dl.kv dt { font-weight: bold; } dl.kv dd { margin: 0; }
+figure { margin: .8rem 0 1.2rem; } figure svg { width: 100%; height: auto; max-width: 46rem; display: block; }
+figure.square svg { max-width: 40rem; }
+figcaption { font-size: .85rem; color: var(--muted); max-width: 46rem; }
+.legend span { margin-right: 1.2rem; white-space: nowrap; } .muted { color: var(--muted); }
+""" + "".join(
+    f".s-{s} {{ background: {_tint(c)}; }}\n" for s, c in SIGNAL_COLOUR.items()
+) + """
+@media print {
+  @page { size: A4 landscape; margin: 14mm 12mm; }
+  body { max-width: none; padding: 0; font-size: 10pt; }
+  nav { display: none; }
+  h2 { break-before: page; } h2:first-of-type { break-before: auto; }
+  figure, tr, dl.kv, .caution, .alert { break-inside: avoid; }
+  thead { display: table-header-group; }
+  .wide { overflow: visible; }
+  a { color: inherit; text-decoration: none; }
+  * { -webkit-print-color-adjust: exact; print-color-adjust: exact; }
+}
+"""
+
+
+def _e(v: Any) -> str:
+    return html.escape("" if v is None else str(v), quote=True)
+
+
+def _num(v: Any, decimals: int | None = None) -> str:
+    if v is None or isinstance(v, str):
+        return _e(v)
+    try:
+        x = float(v)
+    except (TypeError, ValueError):
+        return _e(v)
+    if not math.isfinite(x):
+        return ""
+    if decimals is None:
+        return f"{x:.6g}"
+    return f"{x:.{decimals}f}"
+
+
+def _more(d: int | None) -> int | None:
+    return None if d is None else d + 1
+
+
+def _signal_cell(signal: str, words: str, text: str = "") -> str:
+    word = SIGNAL_WORD[words].get(signal, signal)
+    sym = SIGNAL_SYMBOL.get(signal, "")
+    body = f"{sym} {text}".strip() if text else f"{sym} {_e(word)}".strip()
+    return f'<td class="s-{_e(signal)}" title="{_e(word)}">{body}</td>'
+
+
+def _table(frame: pd.DataFrame | None, columns: Sequence[str] | None = None, headers: Sequence[str] | None = None,
+           decimals: dict[str, int | None] | None = None, signal: str | None = None, words: str = "signals",
+           wide: bool = True) -> str:
+    """An HTML table of a frame's columns; numbers right-aligned with the given decimals."""
+    if frame is None or not len(frame.columns):
+        return '<p class="muted">Not available.</p>'
+    cols = [c for c in (columns or list(frame.columns)) if c in frame.columns]
+    heads = headers or cols
+    if headers is not None and columns is not None:
+        heads = [h for c, h in zip(columns, headers) if c in frame.columns]
+    decimals = decimals or {}
+    data = [frame[c].tolist() for c in cols]
+    numeric = [pd.api.types.is_numeric_dtype(frame[c]) and not pd.api.types.is_bool_dtype(frame[c]) for c in cols]
+    out = [f'<table class="{"wide" if wide else ""}"><thead><tr>',
+           "".join(f"<th>{_e(h)}</th>" for h in heads), "</tr></thead><tbody>"]
+    for i in range(len(frame)):
+        cells = []
+        for j, c in enumerate(cols):
+            v = data[j][i]
+            if c == signal and isinstance(v, str):
+                cells.append(_signal_cell(v, words))
+            elif numeric[j] or isinstance(v, (float, np.floating)):
+                cells.append(f'<td class="n">{_num(v, decimals.get(c))}</td>')
+            elif isinstance(v, (bool, np.bool_)):
+                cells.append(f"<td>{'yes' if v else 'no'}</td>")
+            else:
+                cells.append(f"<td>{_e('' if v is None or (isinstance(v, float) and math.isnan(v)) else v)}</td>")
+        out.append("<tr>" + "".join(cells) + "</tr>")
+    out.append("</tbody></table>")
+    return "".join(out)
+
+
+def _figure(svg: str, fig: SvgFigure, square: bool = False) -> str:
+    cls = ' class="square"' if square else ""
+    return (f'<figure{cls} id="fig-{_e(fig.key)}">{svg}<figcaption><strong>{_e(fig.title)}.</strong> '
+            f"{_e(fig.caption)}</figcaption></figure>")
+
+
+def _kv(pairs: Iterable[tuple[str, Any]]) -> str:
+    rows = "".join(f"<dt>{_e(k)}</dt><dd>{v if isinstance(v, _Html) else _e(v)}</dd>"
+                   for k, v in pairs if v not in (None, ""))
+    return f'<dl class="kv">{rows}</dl>'
+
+
+class _Html(str):
+    """Text that is already HTML (not escaped again)."""
+
+
+def _page(title: str, body: str) -> str:
+    return ("<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
+            "<meta name=\"viewport\" content=\"width=device-width, initial-scale=1\">"
+            "<meta name=\"generator\" content=\"roundscore\">"
+            f"<title>{_e(title)}</title><style>{_CSS}</style></head><body>{body}</body></html>\n")
+
+
+def _legend(words: str) -> str:
+    return ('<p class="legend">' + "".join(
+        f'<span class="s-{s}">{SIGNAL_SYMBOL[s]} {_e(SIGNAL_WORD[words][s])}</span>' for s in _SIGNALS) + "</p>")
+
+
+def lab_file_name(lab: str) -> str:
+    """The file name of a lab's page (same rule as its workbook's): unsafe characters become ``_``."""
+    return "".join(ch if ch.isalnum() or ch in "-_." else "_" for ch in lab) + ".html"
+
+
+# ------------------------------------------------------------------------------------------ shared parts
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class ReportParts:
+    """HTML fragments shared by the round report and every lab page, built once.
+
+    Attributes
+    ----------
+    figures : RoundFigures
+    heading : str
+        Round facts, failed checks and the caution.
+    statistics : str
+        The round's statistics table.
+    scores_by_lab : dict of str to list of dict
+        Each lab's score rows (the scores frame as records), in measurand order.
+    mandel_by_lab : dict of str to list of dict
+        Each lab's Mandel rows, when the round has them.
+    """
+
+    figures: RoundFigures
+    heading: str
+    statistics: str
+    scores_by_lab: dict[str, list[dict[str, Any]]]
+    mandel_by_lab: dict[str, list[dict[str, Any]]]
+
+
+def _round_facts(ev) -> list[tuple[str, Any]]:
+    r = ev.round
+    return [("Round", r.id), ("Title", r.title), ("Scheme", r.scheme), ("Date", r.date), ("Provider", r.provider),
+            ("Material", r.material)]
+
+
+def report_parts(ev, figures: RoundFigures | None = None) -> ReportParts:
+    """Build the shared fragments (and the figures, unless given)."""
+    figures = figures if figures is not None else round_figures(ev)
+    alerts = "".join(f'<div class="alert">Check failed: {_e(x)}</div>' for x in ev.failed_checks)
+    heading = _kv(_round_facts(ev)) + alerts + f'<div class="caution">{_e(CAUTION)}</div>'
+    stats = _table(ev.statistics, decimals={})
+    recs = ev.scores.to_dict("records") if len(ev.scores) else []
+    by_lab: dict[str, list[dict[str, Any]]] = {}
+    for rec in recs:
+        by_lab.setdefault(rec["lab"], []).append(rec)
+    mandel = ev.extras.get("mandel")
+    m_by_lab: dict[str, list[dict[str, Any]]] = {}
+    if mandel is not None and "lab" in getattr(mandel, "columns", ()):
+        for rec in mandel.to_dict("records"):
+            m_by_lab.setdefault(rec["lab"], []).append(rec)
+    return ReportParts(figures=figures, heading=heading, statistics=stats, scores_by_lab=by_lab,
+                       mandel_by_lab=m_by_lab)
+
+
+# ------------------------------------------------------------------------------------------ round report
+
+def _settings(ev) -> str:
+    r = ev.round
+    rows = []
+    for m in r.measurands.values():
+        rows.append({"measurand": m.name, "label": m.label, "unit": m.unit,
+                     "assigned": m.assigned if isinstance(m.assigned, str) else _num(m.assigned, m.decimals),
+                     "u_assigned": "" if m.u_assigned is None else _num(m.u_assigned, _more(m.decimals)),
+                     "sigma_pt": m.sigma_pt.describe(), "score": m.score,
+                     "decimals": "" if m.decimals is None else str(m.decimals),
+                     "items": ", ".join(x for x in ("homogeneity" if m.homogeneity else "",
+                                                    "stability" if m.stability else "") if x)})
+    cols = ["measurand", "label", "unit", "assigned", "u_assigned", "sigma_pt", "score", "decimals", "items"]
+    heads = ["Measurand", "Label", "Unit", "Assigned value", "u(x_pt) given", "σ_pt", "Score", "Decimals",
+             "Item checks"]
+    general = _kv([("Replicates per lab", r.replicates), ("Confidence", r.confidence),
+                   ("Outliers (ISO 5725-2 screens)", r.outliers), ("Stragglers", r.stragglers),
+                   ("Signal words", r.words),
+                   ("Youden pairs", "; ".join(f"{a} and {b}" for a, b in r.youden)),
+                   ("Laboratories", len(ev.labs))])
+    excl = ""
+    if r.exclusions:
+        excl = "<h3>Exclusions set by the coordinator</h3>" + _table(pd.DataFrame(
+            [{"lab": e.lab, "measurand": e.measurand or "all", "reason": e.reason,
+              "scored": "yes" if e.scored else "withheld"} for e in r.exclusions]))
+    return general + _table(pd.DataFrame(rows, columns=cols), cols, heads) + excl
+
+
+def _items(ev, figs: RoundFigures) -> str:
+    items = ev.extras.get("items")
+    if (items is None or not len(items)) and not figs.items:
+        return '<p class="muted">No homogeneity or stability data in this round.</p>'
+    out = ""
+    if items is not None and len(items):
+        out += _table(items, decimals={"criterion": 4, "allowed": 4})
+    for name, f in figs.items.items():
+        out += _figure(f.svg, f)
+    return out
+
+
+def _measurand_section(ev, name: str, m, figs: RoundFigures) -> str:
+    d = m.settings.decimals
+    e = m.robust
+    counts = ev.scores.loc[ev.scores["measurand"] == name, "signal"].value_counts()
+    signals = ", ".join(f"{SIGNAL_SYMBOL[s]} {SIGNAL_WORD[ev.round.words][s]}: {int(counts.get(s, 0))}"
+                        for s in _SIGNALS)
+    u_check = {None: "not computable", True: "yes", False: "NO: u(x_pt) is not negligible"}[m.u_check_passed]
+    unit = m.settings.unit
+    kv = _kv([
+        ("Unit", unit), ("Labs used (p)", m.p), ("Assigned value x_pt", f"{_num(m.assigned, d)} {unit}"),
+        ("Assigned value from", m.assigned_source), ("u(x_pt)", _num(m.u_assigned, _more(d))),
+        ("σ_pt", _num(m.sigma_pt, _more(d))), ("σ_pt from", m.sigma_source), ("u(x_pt) ≤ 0.3 σ_pt", u_check),
+        ("Robust mean, robust SD", f"{_num(e.mean, _more(d))}, {_num(e.sd, _more(d))} "
+                                   f"({e.iterations} iterations)" if e else "not computed (fewer than 3 results)"),
+        ("Median, MADe, nIQR", f"{_num(m.median, _more(d))}, {_num(m.made, _more(d))}, {_num(m.niqr, _more(d))}"),
+        ("Score", m.settings.score), ("Signals", signals),
+    ])
+    notes = list(m.notes) + list(ev.stage_notes.get(name, ()))
+    note_html = ("<ul>" + "".join(f"<li>{_e(n)}</li>" for n in notes) + "</ul>") if notes else ""
+    body = kv + note_html
+    for f in (figs.scores.get(name), figs.density.get(name)):
+        if f is not None:
+            body += _figure(f.svg, f)
+    if name not in figs.scores:
+        body += '<p class="muted">No scores for this measurand (see the notes).</p>'
+    title = m.settings.label if m.settings.label and m.settings.label != name else ""
+    return f'<h3 id="m-{_e(name)}">{_e(name)}{" (" + _e(title) + ")" if title else ""}</h3>{body}'
+
+
+def _score_matrix(ev) -> str:
+    """Labs × measurands: the official score with its signal symbol (the word in the cell's title)."""
+    words = ev.round.words
+    names = list(ev.measurands)
+    sc = ev.scores
+    if not len(sc):
+        return '<p class="muted">No scores.</p>'
+    cell: dict[tuple[str, str], str] = {}
+    for lab, meas, score, sig, z, zp, zeta, en in zip(sc["lab"], sc["measurand"], sc["score"], sc["signal"],
+                                                      sc["z"], sc["z_prime"], sc["zeta"], sc["en"]):
+        v = {"z": z, "z_prime": zp, "zeta": zeta, "en": en}[SCORE_FIELD.get(score, "z")]
+        text = _num(v, 2) if isinstance(v, float) and math.isfinite(v) else ""
+        cell[(lab, meas)] = _signal_cell(sig, words, text)
+    head = "".join(f"<th>{_e(n)}<br><span class='muted'>{_e(ev.measurands[n].settings.score)}</span></th>"
+                   for n in names)
+    rows = [f"<tr><th>{_e(lab)}</th>" + "".join(cell.get((lab, n), "<td></td>") for n in names) + "</tr>"
+            for lab in ev.labs]
+    return (_legend(words) + f'<table class="wide"><thead><tr><th>Lab</th>{head}</tr></thead><tbody>'
+            + "".join(rows) + "</tbody></table>")
+
+
+def _score_detail(ev) -> str:
+    cols = ["lab", "measurand", "result", "assigned", "sigma_pt", "score", "signal", "note"]
+    sc = ev.scores
+    noted = sc[sc["note"].fillna("").astype(str) != ""] if len(sc) else sc
+    if not len(noted):
+        return ""
+    return ("<h3>Notes on individual results</h3>"
+            + _table(noted, cols, ["Lab", "Measurand", "Result", "Assigned value", "σ_pt", "Score", "Signal", "Note"],
+                     signal="signal", words=ev.round.words))
+
+
+def report_html(ev, parts: ReportParts | None = None) -> str:
+    """The whole round report as one HTML document (labs by code only)."""
+    parts = parts if parts is not None else report_parts(ev)
+    figs = parts.figures
+    r = ev.round
+    sections: list[tuple[str, str, str]] = [
+        ("round", "The round and its settings", parts.heading + _settings(ev)),
+        ("items", "Test items: homogeneity and stability", _items(ev, figs)),
+        ("measurands", "Measurands: statistics and figures",
+         "".join(_measurand_section(ev, n, m, figs) for n, m in ev.measurands.items())),
+    ]
+    if figs.youden:
+        sections.append(("youden", "Youden plots", "".join(_figure(f.svg, f, square=True) for f in figs.youden)))
+    prec = ""
+    for key, title in (("precision", "Repeatability and reproducibility (ISO 5725-2)"),
+                       ("screens", "Outlier screens")):
+        if ev.extras.get(key) is not None:
+            prec += f"<h3>{title}</h3>" + _table(ev.extras[key], decimals={})
+    if ev.extras.get("mandel") is not None:
+        prec += "<h3>Mandel's h and k</h3>"
+        for name, fs in figs.mandel.items():
+            prec += "".join(_figure(f.svg, f) for f in fs)
+        prec += _table(ev.extras["mandel"], decimals={"h": 2, "k": 2})
+    sections.append(("precision", "Precision and screens",
+                     prec or '<p class="muted">No precision or screening results in this evaluation.</p>'))
+    methods = ev.extras.get("methods")
+    sections.append(("methods", "Method groups", _table(methods, decimals={"p_value": 4}) if methods is not None
+                     else '<p class="muted">No method-group comparison in this evaluation.</p>'))
+    sections.append(("scores", "Every laboratory's scores", _score_matrix(ev) + _score_detail(ev)))
+    sections.append(("audit", "Audit trail: exclusions and decisions",
+                     _table(ev.audit) if len(ev.audit) else '<p class="muted">Nothing was left out.</p>'))
+    cautions = [CAUTION, *ev.failed_checks, *ev.warnings,
+                "Laboratories are shown by code only; each laboratory's own page and workbook carry its name."]
+    sections.append(("cautions", "Cautions", "<ul>" + "".join(f"<li>{_e(c)}</li>" for c in cautions) + "</ul>"))
+    nav = "<nav><ol>" + "".join(f'<li><a href="#{k}">{_e(t)}</a></li>' for k, t, _ in sections) + "</ol></nav>"
+    body = (f"<header><h1>Proficiency test round {_e(r.id)}</h1><p>{_e(r.title)}</p></header>{nav}"
+            + "".join(f'<section id="{k}"><h2>{_e(t)}</h2>{b}</section>' for k, t, b in sections)
+            + f'<footer class="muted"><p>Written by roundscore from the round file {_e(r.path.name)}.</p></footer>')
+    return _page(f"Round {r.id}: report", body)
+
+
+# ------------------------------------------------------------------------------------------ lab page
+
+def lab_page_html(ev, parts: ReportParts, lab: str) -> str:
+    """One lab's confidential page: its name, its scores, the shared figures with its bar or result marked."""
+    r = ev.round
+    words = r.words
+    p = ev.participants.get(lab)
+    rows = parts.scores_by_lab.get(lab, [])
+    ident = _kv([("Laboratory code", lab), ("Laboratory", p.name if p else ""), ("Contact", p.contact if p else "")])
+    table = ['<table class="wide"><thead><tr>', "".join(f"<th>{h}</th>" for h in (
+        "Measurand", "Unit", "Your result", "Assigned value", "u(x_pt)", "σ_pt", "Score", "Your score", "Signal",
+        "Rank by |score| (1 = closest)", "Note")), "</tr></thead><tbody>"]
+    for rec in rows:
+        meas = rec["measurand"]
+        d = r.measurands[meas].decimals if meas in r.measurands else None
+        v = rec.get(SCORE_FIELD.get(rec["score"], "z"))
+        rank, n = rec.get("rank"), rec.get("n_scored")
+        standing = f"{int(rank)} of {int(n)}" if isinstance(rank, float) and math.isfinite(rank) else ""
+        res = rec["result"]
+        table.append(
+            f'<tr><td><a href="#m-{_e(meas)}">{_e(meas)}</a></td><td>{_e(rec["unit"])}</td>'
+            f'<td class="n">{_num(res, d) if not isinstance(res, str) else _e(res)}</td>'
+            f'<td class="n">{_num(rec["assigned"], d)}</td><td class="n">{_num(rec["u_assigned"], _more(d))}</td>'
+            f'<td class="n">{_num(rec["sigma_pt"], _more(d))}</td><td>{_e(rec["score"])}</td>'
+            f'<td class="n">{_num(v, 2)}</td>{_signal_cell(rec["signal"], words)}<td>{standing}</td>'
+            f'<td>{_e(rec["note"])}</td></tr>')
+    table.append("</tbody></table>")
+    figs = parts.figures
+    per = []
+    for meas in r.measurands:
+        body = ""
+        for f in (figs.scores.get(meas), figs.density.get(meas)):
+            if f is not None:
+                body += _figure(f.for_lab(lab), f)
+        if body:
+            per.append(f'<h3 id="m-{_e(meas)}">{_e(meas)}</h3>{body}')
+    you = "".join(_figure(f.for_lab(lab), f, square=True) for f in figs.youden)
+    mandel = parts.mandel_by_lab.get(lab)
+    m_html = ""
+    if mandel:
+        m_html = "<h2>Your Mandel h and k</h2>" + _table(pd.DataFrame(mandel), decimals={"h": 2, "k": 2})
+    body = (f"<header><h1>Round {_e(r.id)}: results of laboratory {_e(lab)}</h1><p>{_e(r.title)}</p></header>"
+            f'<div class="confidential"><strong>Confidential to the laboratory named here.</strong>{ident}</div>'
+            + parts.heading + "<h2>Your scores</h2>" + _legend(words) + "".join(table)
+            + ("<h2>Where you stand</h2><p>Other laboratories appear by code only.</p>" + "".join(per) if per else "")
+            + (f"<h2>Youden plots</h2>{you}" if you else "") + m_html
+            + "<h2>Round statistics</h2>" + parts.statistics
+            + f'<h2>Cautions</h2><div class="caution">{_e(CAUTION)}</div>')
+    return _page(f"Round {r.id}: laboratory {lab}", body)
+
+
+# ------------------------------------------------------------------------------------------ writing
+
+def write_report(ev, folder: Path, *, labs: Sequence[str] | None = None, parts: ReportParts | None = None,
+                 progress: Callable[[str, int, int], None] | None = None, round_report: bool = True) -> list[Path]:
+    """Write ``report.html`` and ``labs/LAB.html`` for each lab into ``folder``; return the paths written.
+
+    Parameters
+    ----------
+    labs : sequence of str, optional
+        The labs to write pages for (default: all); lets callers split the
+        pages over workers.
+    parts : ReportParts, optional
+        Shared fragments already built (:func:`report_parts`).
+    progress : callable, optional
+        ``progress("lab pages", i, n)`` after each page.
+    round_report : bool
+        Also write ``report.html`` (default True).
+    """
+    folder = Path(folder)
+    parts = parts if parts is not None else report_parts(ev)
+    written = []
+    if round_report:
+        path = folder / REPORT_NAME
+        path.write_text(report_html(ev, parts), encoding="utf-8")
+        written.append(path)
+    todo = list(ev.labs if labs is None else labs)
+    if todo:
+        (folder / "labs").mkdir(exist_ok=True)
+    for i, lab in enumerate(todo):
+        path = folder / "labs" / lab_file_name(lab)
+        path.write_text(lab_page_html(ev, parts, lab), encoding="utf-8")
+        written.append(path)
+        if progress:
+            progress("lab pages", i + 1, len(todo))
+    return written
+
