@@ -290,21 +290,27 @@ def _measurand_precision(rnd: Round, name: str, rows: pd.DataFrame | None, used:
         values = np.empty(0)
     else:
         values, labs, texts = _replicates(rows, used)
-    if values.size == 0 or len(set(labs.tolist())) < 2:
-        have = 0 if values.size == 0 else 1
-        msg = f"precision needs at least 2 labs with numeric results; {have} here"
+    present = set(labs.tolist()) if values.size else set()
+    if len(present) < 2:
+        msg = f"precision needs at least 2 labs with numeric results; {len(present)} here"
         audit.append((name, "", "precision", "not computed", msg))
         return MeasurandPrecision(notes=(msg,), **empty), row | {"note": msg}, [], [msg]
-    cells = pr.cell_statistics(values, labs, texts=texts)
-    row["labs_screened"] = cells.p
-    if not np.any(cells.n > 1):
+    row["labs_screened"] = len(present)
+    if len(present) == values.size:  # one result per lab
         audit.append((name, "", "precision", "not computed", NEEDS_REPLICATES))
-        return (MeasurandPrecision(notes=(NEEDS_REPLICATES,), **(empty | {"labs": cells.labs, "cells": cells})),
+        shown = {"labs": tuple(lab for lab in used if lab in present)}
+        return (MeasurandPrecision(notes=(NEEDS_REPLICATES,), **(empty | shown)),
                 row | {"note": NEEDS_REPLICATES}, [], [NEEDS_REPLICATES])
-    mandel = pr.mandel(cells)
-    robust, robust_labs, rnote = _algorithm_s(cells)
-    if rnote:
-        notes.append(rnote)
+    # Precision of every used lab: its cells and Mandel's h and k (before the screens), and the final
+    # result when the screens leave nobody out (the cell sums are then not computed a third time).
+    unscreened = pr.precision(values, labs, texts=texts)
+    cells, mandel = unscreened.cells, unscreened.mandel
+    if unscreened.robust_s_r is not None:
+        robust, robust_labs = unscreened.robust_s_r, cells.p
+    else:
+        robust, robust_labs, rnote = _algorithm_s(cells)
+        if rnote:
+            notes.append(rnote)
     screening = ol.screen(values, labs, texts=texts, drop=drop, double_max_p=DOUBLE_GRUBBS_MAX_LABS)
     steps = []
     for s in screening.steps:
@@ -316,10 +322,14 @@ def _measurand_precision(rnd: Round, name: str, rows: pd.DataFrame | None, used:
         audit.append((name, ", ".join(s.labs), "screen", s.outcome, _step_reason(s, rnd)))
     audit.extend((name, "", "screen", "note", n) for n in screening.notes)
     keep = ~np.isin(labs, np.array(screening.excluded, dtype=str))
-    prec = None
+    prec = None if screening.excluded else unscreened
+    left_labs = len(set(labs[keep].tolist()))
     try:
-        prec = pr.precision(values[keep], labs[keep],
-                            texts=None if texts is None else [t for t, k in zip(texts, keep) if k])
+        if left_labs < 2:
+            raise StatisticsError(f"fewer than 2 labs remain ({left_labs} of {len(present)})")
+        if prec is None:
+            prec = pr.precision(values[keep], labs[keep],
+                                texts=None if texts is None else [t for t, k in zip(texts, keep) if k])
     except StatisticsError as exc:
         left = f"after leaving out {', '.join(screening.excluded)}: " if screening.excluded else ""
         msg = f"precision not computed {left}{exc}"
