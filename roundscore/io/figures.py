@@ -31,12 +31,12 @@ import numpy as np
 import pandas as pd
 from scipy import stats as sps
 
-from ..look import PALETTE, SIGNAL_COLOUR, SIGNAL_MARKER, SIGNAL_SYMBOL, SIGNAL_WORD
+from ..look import PALETTE, SIGNAL_COLOUR, SIGNAL_MARKER, SIGNAL_WORD
 from ..stats.precision import mandel_h_critical, mandel_k_critical
 from ..stats.scores import EN_ACTION, Z_ACTION, Z_WARNING
 
 __all__ = ["SvgFigure", "MarkKind", "z_bar_figure", "density_figure", "youden_figure", "mandel_figure",
-           "homogeneity_figure", "render_png", "RoundFigures", "round_figures", "SCORE_FIELD", "SVG_HASHSALT", "MAX_BARS", "KDE_BANDWIDTH_FACTOR",
+           "homogeneity_figure", "RoundFigures", "round_figures", "SCORE_FIELD", "SVG_HASHSALT", "MAX_BARS", "KDE_BANDWIDTH_FACTOR",
            "YOUDEN_LEVEL", "RANGE_SIGMAS", "mandel_limits"]
 
 #: Salt of matplotlib's SVG ids: fixed so the same round gives the same SVG bytes.
@@ -217,15 +217,6 @@ def _finish(fig, ax, *, key: str, title: str, caption: str, kind: MarkKind = "no
     return SvgFigure(key=key, title=title, caption=caption, svg=text, x_map=x_map, y_map=y_map, axes_box=box,
                      x_limits=tuple(map(float, ax.get_xlim())), y_limits=tuple(map(float, ax.get_ylim())),
                      kind=kind, marks=dict(marks or {}))
-
-
-def render_png(svg_figure_builder, *args, **kwargs) -> bytes:
-    """PNG bytes of a figure builder's drawing (for looking at a figure outside a browser).
-
-    ``svg_figure_builder`` is one of this module's ``*_figure`` functions; it
-    is called with ``png=True`` and the same arguments.
-    """
-    return svg_figure_builder(*args, png=True, **kwargs)
 
 
 def _png(fig) -> bytes:
@@ -651,11 +642,6 @@ def homogeneity_figure(items: Sequence[str], values: Sequence[float], *, item_la
     return _finish(fig, ax, key=key, title=title, caption=caption)
 
 
-def signal_text(signal: str, words: str = "signals") -> str:
-    """"▲ warning signal" (symbol and word), for figure captions and tables."""
-    return f"{SIGNAL_SYMBOL.get(signal, '')} {SIGNAL_WORD[words].get(signal, signal)}".strip()
-
-
 # --------------------------------------------------------------------------------------------- the round's set
 
 #: Column of the scores frame holding each official score.
@@ -686,9 +672,20 @@ class RoundFigures:
     items: dict[str, SvgFigure]
 
 
-def round_figures(ev) -> RoundFigures:
+def round_figures(ev, *, jobs: int | None = 1, progress=None) -> RoundFigures:
     """Draw the shared figures of a :class:`~roundscore.evaluate.RoundEvaluation` (nothing is recomputed).
 
+    Parameters
+    ----------
+    ev : RoundEvaluation
+    jobs : int or None
+        Worker processes for the drawing (one figure costs about 0.1 s; 1 =
+        here; None = all cores). The figures do not depend on it.
+    progress : callable, optional
+        ``progress("figures", done, total)``.
+
+    Notes
+    -----
     Mandel indicator lines come from the mandel frame's ``attrs["critical"]``
     (``{measurand: {"h_5", "h_1", "k_5", "k_1"}}``) or its columns
     ``h_crit_5, h_crit_1, k_crit_5, k_crit_1`` (as the precision stage writes
@@ -696,85 +693,111 @@ def round_figures(ev) -> RoundFigures:
     having h (k) and n the measurand's mean replicate count from the
     precision table (rounded; the round's ``replicates`` when absent).
     """
+    from matplotlib.backends import backend_svg  # noqa: F401  imported before the workers fork (~0.5 s each)
+
+    from ..parallel import run_batches
+
+    tasks: list[tuple[str, ...]] = [("measurand", n) for n in ev.measurands]
+    tasks += [("youden", a, b) for a, b in ev.round.youden if a in ev.measurands and b in ev.measurands]
+    mandel = ev.extras.get("mandel")
+    if mandel is not None and len(mandel) and {"lab", "measurand", "h", "k"} <= set(mandel.columns):
+        tasks += [("mandel", n) for n in dict.fromkeys(mandel["measurand"])]
+    drawn = run_batches(_draw_batch, tasks, jobs=jobs, shared=ev, batch_size=1, progress=progress,
+                        stage="figures")
+    scores, density, items, youden, mandel_figs = {}, {}, {}, [], {}
+    for task, figs in zip(tasks, drawn):
+        if task[0] == "measurand":
+            for kind, target in (("scores", scores), ("density", density), ("items", items)):
+                if kind in figs:
+                    target[task[1]] = figs[kind]
+        elif task[0] == "youden":
+            youden.append(figs["youden"])
+        else:
+            mandel_figs[task[1]] = figs["mandel"]
+    return RoundFigures(scores=scores, density=density, youden=tuple(youden), mandel=mandel_figs, items=items)
+
+
+def _draw_batch(tasks: Sequence[tuple[str, ...]]) -> list[dict]:
+    from ..parallel import shared
+
+    ev = shared()
+    return [_draw(ev, task) for task in tasks]
+
+
+def _draw(ev, task: tuple[str, ...]) -> dict:
     words = ev.round.words
     sc = ev.scores
-    per = {name: g for name, g in sc.groupby("measurand", sort=False)} if len(sc) else {}
-    scores, density, items = {}, {}, {}
-    for name, m in ev.measurands.items():
-        label = m.settings.label or name
-        g = per.get(name)
-        if m.scored and g is not None:
-            scores[name] = z_bar_figure(g["lab"].tolist(), g[SCORE_FIELD[m.settings.score]].to_numpy(float),
-                                        g["signal"].tolist(), key=f"z-{name}", score=m.settings.score,
-                                        title=f"{label}: {_score_label(m.settings.score)} by laboratory",
-                                        words=words)
-        labs = m.labs
-        if len(labs) and np.isfinite(labs["mean"].to_numpy(float)).any():
-            density[name] = density_figure(labs["lab"].tolist(), labs["mean"].to_numpy(float), assigned=m.assigned,
-                                           sigma_pt=m.sigma_pt, key=f"d-{name}", unit=m.settings.unit,
-                                           title=f"{label}: distribution of results",
-                                           used=labs["used"].to_numpy(bool))
-        ic = m.item_checks
-        hom = getattr(ic, "homogeneity", None)
-        table = getattr(ic, "homogeneity_table", None)
-        if hom is not None and table is not None:
-            items[name] = homogeneity_figure(list(table.items), np.asarray(table.values, float),
-                                             item_labels=list(hom.item_labels), item_means=list(hom.item_means),
-                                             general_mean=float(hom.mean), sigma_pt=float(hom.sigma_pt),
-                                             key=f"items-{name}", title=f"{label}: homogeneity of the test items",
-                                             unit=m.settings.unit)
-    youden = []
-    for a, b in ev.round.youden:
-        ma, mb = ev.measurands.get(a), ev.measurands.get(b)
-        if ma is None or mb is None:
-            continue
-        la = ma.labs.set_index("lab")
-        lb = mb.labs.set_index("lab")
-        codes = [lab for lab in la.index if lab in lb.index]
-        sig = {}
-        for name in (a, b):
-            g = per.get(name)
-            if g is not None:
-                for lab, s in zip(g["lab"], g["signal"]):
-                    sig[lab] = s if _WORSE.get(s, 0) > _WORSE.get(sig.get(lab, "not-scored"), 0) else \
-                        sig.get(lab, "not-scored")
-        youden.append(youden_figure(
-            codes, la.loc[codes, "mean"].to_numpy(float), lb.loc[codes, "mean"].to_numpy(float),
-            names=(f"{ma.settings.label or a} ({ma.settings.unit})", f"{mb.settings.label or b} ({mb.settings.unit})"),
-            assigned=(ma.assigned, mb.assigned), sigma_pt=(ma.sigma_pt, mb.sigma_pt), key=f"y-{a}-{b}",
-            title=f"Youden plot: {a} and {b}", signals=[sig.get(c, "not-scored") for c in codes], words=words))
-    return RoundFigures(scores=scores, density=density, youden=tuple(youden), mandel=_mandel_figures(ev),
-                        items=items)
-
-
-def _mandel_figures(ev) -> dict[str, tuple[SvgFigure, ...]]:
-    frame = ev.extras.get("mandel")
-    if frame is None or not len(frame) or not {"lab", "measurand", "h", "k"} <= set(frame.columns):
-        return {}
-    critical = frame.attrs.get("critical", {}) if isinstance(frame.attrs, dict) else {}
-    prec = ev.extras.get("precision")
-    out = {}
-    for name, g in frame.groupby("measurand", sort=False):
-        h, k = g["h"].to_numpy(float), g["k"].to_numpy(float)
-        lim = dict(critical.get(name, {}))
-        cols = {"h_5": "h_crit_5", "h_1": "h_crit_1", "k_5": "k_crit_5", "k_1": "k_crit_1"}
-        if not lim and set(cols.values()) <= set(g.columns):
-            lim = {key: float(pd.to_numeric(g[c], errors="coerce").dropna().iloc[0])
-                   if pd.to_numeric(g[c], errors="coerce").notna().any() else math.nan for key, c in cols.items()}
-        if not lim:
-            n = ev.round.replicates
-            if prec is not None and "n_bar" in getattr(prec, "columns", ()):
-                row = prec[prec["measurand"] == name]
-                if len(row) and np.isfinite(float(row["n_bar"].iloc[0])):
-                    n = int(round(float(row["n_bar"].iloc[0])))
-            lim_h = mandel_limits(int(np.isfinite(h).sum()), n)
-            lim_k = mandel_limits(int(np.isfinite(k).sum()), n)
-            lim = {"h_5": lim_h["h_5"], "h_1": lim_h["h_1"], "k_5": lim_k["k_5"], "k_1": lim_k["k_1"]}
-        labs = g["lab"].tolist()
-        figs = []
-        for stat, vals in (("h", h), ("k", k)):
-            figs.append(mandel_figure(labs, vals, statistic=stat, critical_5=float(lim.get(f"{stat}_5", math.nan)),
-                                      critical_1=float(lim.get(f"{stat}_1", math.nan)), key=f"mandel-{stat}-{name}",
-                                      title=f"{name}: Mandel's {stat} by laboratory"))
-        out[name] = tuple(figs)
+    if task[0] == "youden":
+        return {"youden": _youden(ev, task[1], task[2])}
+    name = task[1]
+    if task[0] == "mandel":
+        return {"mandel": _mandel(ev, name)}
+    m = ev.measurands[name]
+    out: dict = {}
+    label = m.settings.label or name
+    g = sc[sc["measurand"] == name] if len(sc) else None
+    if m.scored and g is not None and len(g):
+        out["scores"] = z_bar_figure(g["lab"].tolist(), g[SCORE_FIELD[m.settings.score]].to_numpy(float),
+                                     g["signal"].tolist(), key=f"z-{name}", score=m.settings.score,
+                                     title=f"{label}: {_score_label(m.settings.score)} by laboratory", words=words)
+    labs = m.labs
+    if len(labs) and np.isfinite(labs["mean"].to_numpy(float)).any():
+        out["density"] = density_figure(labs["lab"].tolist(), labs["mean"].to_numpy(float), assigned=m.assigned,
+                                        sigma_pt=m.sigma_pt, key=f"d-{name}", unit=m.settings.unit,
+                                        title=f"{label}: distribution of results", used=labs["used"].to_numpy(bool))
+    ic = m.item_checks
+    hom = getattr(ic, "homogeneity", None)
+    table = getattr(ic, "homogeneity_table", None)
+    if hom is not None and table is not None:
+        out["items"] = homogeneity_figure(list(table.items), np.asarray(table.values, float),
+                                          item_labels=list(hom.item_labels), item_means=list(hom.item_means),
+                                          general_mean=float(hom.mean), sigma_pt=float(hom.sigma_pt),
+                                          key=f"items-{name}", title=f"{label}: homogeneity of the test items",
+                                          unit=m.settings.unit)
     return out
+
+
+def _youden(ev, a: str, b: str) -> SvgFigure:
+    ma, mb = ev.measurands[a], ev.measurands[b]
+    la, lb = ma.labs.set_index("lab"), mb.labs.set_index("lab")
+    codes = [lab for lab in la.index if lab in lb.index]
+    sig: dict[str, str] = {}
+    sc = ev.scores
+    for name in (a, b):
+        g = sc[sc["measurand"] == name]
+        for lab, s in zip(g["lab"], g["signal"]):
+            if _WORSE.get(s, 0) >= _WORSE.get(sig.get(lab, "not-scored"), 0):
+                sig[lab] = s
+    return youden_figure(
+        codes, la.loc[codes, "mean"].to_numpy(float), lb.loc[codes, "mean"].to_numpy(float),
+        names=(f"{ma.settings.label or a} ({ma.settings.unit})", f"{mb.settings.label or b} ({mb.settings.unit})"),
+        assigned=(ma.assigned, mb.assigned), sigma_pt=(ma.sigma_pt, mb.sigma_pt), key=f"y-{a}-{b}",
+        title=f"Youden plot: {a} and {b}", signals=[sig.get(c, "not-scored") for c in codes], words=ev.round.words)
+
+
+def _mandel(ev, name: str) -> tuple[SvgFigure, ...]:
+    frame = ev.extras["mandel"]
+    g = frame[frame["measurand"] == name]
+    critical = frame.attrs.get("critical", {}) if isinstance(frame.attrs, dict) else {}
+    h, k = g["h"].to_numpy(float), g["k"].to_numpy(float)
+    lim = dict(critical.get(name, {}))
+    cols = {"h_5": "h_crit_5", "h_1": "h_crit_1", "k_5": "k_crit_5", "k_1": "k_crit_1"}
+    if not lim and set(cols.values()) <= set(g.columns):
+        for key, c in cols.items():
+            vals = pd.to_numeric(g[c], errors="coerce").dropna()
+            lim[key] = float(vals.iloc[0]) if len(vals) else math.nan
+    if not lim:
+        n = ev.round.replicates
+        prec = ev.extras.get("precision")
+        if prec is not None and "n_bar" in getattr(prec, "columns", ()):
+            row = prec[prec["measurand"] == name]
+            if len(row) and np.isfinite(float(row["n_bar"].iloc[0])):
+                n = int(round(float(row["n_bar"].iloc[0])))
+        lim_h = mandel_limits(int(np.isfinite(h).sum()), n)
+        lim_k = mandel_limits(int(np.isfinite(k).sum()), n)
+        lim = {"h_5": lim_h["h_5"], "h_1": lim_h["h_1"], "k_5": lim_k["k_5"], "k_1": lim_k["k_1"]}
+    labs = g["lab"].tolist()
+    return tuple(mandel_figure(labs, vals, statistic=stat, critical_5=float(lim.get(f"{stat}_5", math.nan)),
+                               critical_1=float(lim.get(f"{stat}_1", math.nan)), key=f"mandel-{stat}-{name}",
+                               title=f"{name}: Mandel's {stat} by laboratory")
+                 for stat, vals in (("h", h), ("k", k)))

@@ -424,23 +424,29 @@ def lab_page_html(ev, parts: ReportParts, lab: str) -> str:
 # ------------------------------------------------------------------------------------------ writing
 
 def write_report(ev, folder: Path, *, labs: Sequence[str] | None = None, parts: ReportParts | None = None,
-                 progress: Callable[[str, int, int], None] | None = None, round_report: bool = True) -> list[Path]:
+                 jobs: int | None = 1, progress: Callable[[str, int, int], None] | None = None,
+                 round_report: bool = True) -> list[Path]:
     """Write ``report.html`` and ``labs/LAB.html`` for each lab into ``folder``; return the paths written.
 
     Parameters
     ----------
     labs : sequence of str, optional
-        The labs to write pages for (default: all); lets callers split the
-        pages over workers.
+        The labs to write pages for (default: all).
     parts : ReportParts, optional
         Shared fragments already built (:func:`report_parts`).
+    jobs : int or None
+        Worker processes for the figures and the lab pages (1 = here; None =
+        all cores); the files do not depend on it.
     progress : callable, optional
-        ``progress("lab pages", i, n)`` after each page.
+        ``progress(stage, done, total)`` for the stages "figures" and "lab pages".
     round_report : bool
         Also write ``report.html`` (default True).
     """
+    from ..parallel import run_batches
+
     folder = Path(folder)
-    parts = parts if parts is not None else report_parts(ev)
+    if parts is None:
+        parts = report_parts(ev, round_figures(ev, jobs=jobs, progress=progress))
     written = []
     if round_report:
         path = folder / REPORT_NAME
@@ -449,11 +455,22 @@ def write_report(ev, folder: Path, *, labs: Sequence[str] | None = None, parts: 
     todo = list(ev.labs if labs is None else labs)
     if todo:
         (folder / "labs").mkdir(exist_ok=True)
-    for i, lab in enumerate(todo):
-        path = folder / "labs" / lab_file_name(lab)
-        path.write_text(lab_page_html(ev, parts, lab), encoding="utf-8")
-        written.append(path)
-        if progress:
-            progress("lab pages", i + 1, len(todo))
+    written += run_batches(_lab_batch, todo, jobs=jobs, shared=(ev, parts, folder), progress=progress,
+                           stage="lab pages", batch_size=LAB_PAGES_PER_TASK)
     return written
 
+
+#: Lab pages per worker task (each costs a few ms; common practice: amortise the pickling of results).
+LAB_PAGES_PER_TASK = 64
+
+
+def _lab_batch(labs: Sequence[str]) -> list[Path]:
+    from ..parallel import shared
+
+    ev, parts, folder = shared()
+    out = []
+    for lab in labs:
+        path = folder / "labs" / lab_file_name(lab)
+        path.write_text(lab_page_html(ev, parts, lab), encoding="utf-8")
+        out.append(path)
+    return out
