@@ -337,3 +337,18 @@ def test_nist_smls09_through_the_pipeline(make_round, tmp_path):
     assert row["s_L"] == pytest.approx(math.sqrt((20.01 - 0.01) / 2001), rel=1e-12)  # from certified MS
     csv = pd.read_csv(tmp_path / "out" / "precision.csv", dtype=str).iloc[0]
     assert csv["s_r"] == "0.1"  # every certified digit survives the 12-digit CSV (no 0.0999999…)
+
+
+def test_double_grubbs_skipped_above_the_lab_limit(make_round):
+    from roundscore.stages.precision import DOUBLE_GRUBBS_MAX_LABS
+
+    p = DOUBLE_GRUBBS_MAX_LABS + 20
+    means = [20 + 0.01 * ((i * 37) % 101 - 50) for i in range(p)]  # evenly spread: light tails, no outlier
+    lines = ["lab,measurand,replicate,value"] + [
+        f"L{i + 1},cu,{r},{m + (0.03 if r == 1 else -0.03) * (1 + i % 3):.3f}" for i, m in enumerate(means)
+        for r in (1, 2)]
+    ev = load_and_evaluate(make_round(_toml(), "\n".join(lines) + "\n"))
+    assert not ev.extras["screens"]["test"].str.startswith("grubbs_double").any()
+    notes = ev.audit.query("step == 'screen' and action == 'note'")["reason"].tolist()
+    assert f"double Grubbs' test skipped: {p} labs, more than {DOUBLE_GRUBBS_MAX_LABS}" in " ".join(notes)
+    assert ev.extras["precision"].iloc[0]["p"] == p
