@@ -1,0 +1,344 @@
+"""Reading untrusted files in isolated worker processes, bounded in memory and time.
+
+A worker that aborts, segfaults, runs out of memory or hangs costs only the
+file it was reading, which comes back as a :class:`ReadFailure` with the
+reason; a fresh worker takes over the rest of its batch. Results come back
+in input order and do not depend on the number of workers.
+
+References
+----------
+.. [1] POSIX ``setrlimit`` (RLIMIT_AS): the address-space limit of a process.
+"""
+
+from __future__ import annotations
+
+import multiprocessing as mp
+import os
+import signal
+import time
+from dataclasses import dataclass, field
+from multiprocessing.connection import wait as _wait
+from pathlib import Path
+from typing import Callable, Sequence
+
+from ..errors import InputError, Problem
+from .safety import DEFAULT_LIMITS, MiB, ReadLimits
+
+__all__ = ["ReadFailure", "FileRows", "read_many", "resolve_read_jobs", "READER_HOOK_ENV", "BATCH_FILES"]
+
+#: Environment variable naming a ``module:function`` that replaces the file reader inside
+#: workers (tests use it to make a worker abort on one file).
+READER_HOOK_ENV = "ROUNDSCORE_TEST_READER"
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class ReadFailure:
+    """A file that could not be read, and why.
+
+    Attributes
+    ----------
+    file : str
+        The path as given.
+    reason : str
+        One line for the user.
+    problems : tuple of Problem
+        The detailed problems when the reader refused the file with an
+        :class:`~roundscore.errors.InputError` (empty for a crash or timeout).
+    """
+
+    file: str
+    reason: str
+    problems: tuple[Problem, ...] = ()
+
+    def as_problems(self) -> list[Problem]:
+        """The failure as problems for an :class:`~roundscore.errors.InputError`."""
+        return list(self.problems) or [Problem(message=self.reason, file=self.file)]
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class FileRows:
+    """The requested sheets of one file, in the order they were asked for.
+
+    Attributes
+    ----------
+    file : str
+        The path as given.
+    sheets : tuple of SheetRows
+    """
+
+    file: str
+    sheets: tuple  # tuple[SheetRows, ...]
+
+    def sheet(self, name: str | None):
+        """The :class:`~roundscore.io.xlsx.SheetRows` of sheet ``name`` (None: the first read)."""
+        if name is None:
+            return self.sheets[0]
+        for s in self.sheets:
+            if s.sheet == name:
+                return s
+        raise KeyError(name)
+
+
+Reader = Callable[[str, Sequence[str | None], ReadLimits], FileRows]
+
+
+def _default_reader(path: str, sheets: Sequence[str | None], limits: ReadLimits) -> FileRows:
+    from .xlsx import read_file_sheets
+
+    return FileRows(file=path, sheets=tuple(read_file_sheets(path, sheets, limits=limits)))
+
+
+def _hooked_reader() -> Reader:
+    spec = os.environ.get(READER_HOOK_ENV)
+    if not spec:
+        return _default_reader
+    import importlib
+
+    module, _, name = spec.partition(":")
+    return getattr(importlib.import_module(module), name)
+
+
+def _read_one(reader: Reader, path: str, sheets: Sequence[str | None], limits: ReadLimits):
+    try:
+        return reader(path, sheets, limits)
+    except InputError as exc:
+        reason = str(exc.problems[0].message) if exc.problems else str(exc)
+        return ReadFailure(file=path, reason=reason, problems=tuple(exc.problems))
+    except MemoryError:
+        return ReadFailure(file=path, reason=f"reading the file needed more than the memory limit of "
+                                             f"{limits.memory_bytes // MiB} MiB")
+    except RecursionError:
+        return ReadFailure(file=path, reason="the file is nested too deeply to read")
+    except (KeyboardInterrupt, SystemExit):
+        raise
+    except BaseException as exc:  # a reader bug or library error (pyo3 panics are BaseException): this file only
+        return ReadFailure(file=path, reason=f"the reader failed on this file ({type(exc).__name__}: {exc})")
+
+
+def _virtual_size() -> int:
+    try:
+        with open("/proc/self/statm") as fh:
+            return int(fh.read().split()[0]) * os.sysconf("SC_PAGE_SIZE")
+    except (OSError, ValueError, IndexError, AttributeError):
+        return 0
+
+
+def _limit_memory(extra: int) -> None:
+    try:
+        import resource
+    except ImportError:  # not on a POSIX system: time limits only
+        return
+    base = _virtual_size()
+    if base == 0:
+        return
+    soft, hard = resource.getrlimit(resource.RLIMIT_AS)
+    want = base + extra
+    if hard != resource.RLIM_INFINITY:
+        want = min(want, hard)
+    try:
+        resource.setrlimit(resource.RLIMIT_AS, (want, hard))
+    except (ValueError, OSError):
+        pass
+
+
+def _worker(conn, progress, limits: ReadLimits, reader: Reader | None) -> None:
+    """Worker loop: receive a batch ``[(index, path, sheets)]``, send back its results as one list.
+
+    Before each file it writes ``(index, start time)`` into the shared
+    ``progress`` array, so the parent knows which file a dead or hung worker
+    was on without a message per file.
+    """
+    signal.signal(signal.SIGINT, signal.SIG_IGN)  # the parent handles ^C and ends its workers
+    _limit_memory(limits.memory_bytes)
+    use = reader if reader is not None else _hooked_reader()
+    try:
+        while True:
+            batch = conn.recv()
+            if batch is None:
+                return
+            out = []
+            for index, path, sheets in batch:
+                progress[1] = time.monotonic()
+                progress[0] = index
+                out.append(_read_one(use, path, sheets, limits))
+            conn.send(out)
+    except (EOFError, OSError, KeyboardInterrupt):
+        return
+
+
+@dataclass(slots=True)
+class _Slot:
+    process: object
+    conn: object
+    progress: object  # shared array: index of the file being read, its start time
+    batch: list = field(default_factory=list)
+
+
+def _context():
+    methods = mp.get_all_start_methods()
+    return mp.get_context("fork" if "fork" in methods else "spawn")
+
+
+def _died(process) -> str:
+    code = process.exitcode
+    if code is not None and code < 0:
+        try:
+            name = signal.Signals(-code).name
+        except ValueError:
+            name = f"signal {-code}"
+        how = f"was stopped by {name}"
+    else:
+        how = f"exited with code {code}"
+    return (f"unreadable: the reader process {how} while reading this file (the file may be damaged, or need "
+            "more than the memory limit); the other files were read")
+
+
+def resolve_read_jobs(jobs: int | None, n_files: int) -> int:
+    """Worker count: ``None`` or 0 = the cores this process may use, never more than the files."""
+    if jobs is None or jobs == 0:
+        try:
+            jobs = len(os.sched_getaffinity(0))
+        except AttributeError:
+            jobs = os.cpu_count() or 1
+    if isinstance(jobs, bool) or not isinstance(jobs, int) or jobs < 0:
+        raise ValueError(f"jobs must be a whole number ≥ 0 (0 = all cores), got {jobs!r}")
+    return max(1, min(jobs, n_files))
+
+
+#: Most files per batch sent to a worker: a batch is one message each way, so IPC is
+#: amortised; about four batches per worker even out slow files (common practice).
+BATCH_FILES = 32
+_BATCHES_PER_WORKER = 4
+
+
+def read_many(paths: Sequence[str | Path], sheets: str | None | Sequence[str | None] = None, *,
+              jobs: int | None = None, limits: ReadLimits = DEFAULT_LIMITS,
+              _reader: Reader | None = None) -> list[FileRows | ReadFailure]:
+    """Read many untrusted files in isolated worker processes; one result per path, in input order.
+
+    Parameters
+    ----------
+    paths : sequence of path
+        The files (workbooks or CSV).
+    sheets : str, None or sequence of str or None
+        The sheet(s) to read from every file (None: the first sheet).
+    jobs : int, optional
+        Worker processes; None or 0 means every core (at most one per file).
+        Even ``jobs=1`` reads in a separate process, so a crash or hang of a
+        reader library never reaches the caller.
+    limits : ReadLimits
+        Size, memory and time bounds per file.
+    _reader : callable, optional
+        ``reader(path, sheets, limits) -> FileRows`` replacing the file
+        reader inside the workers (for tests).
+
+    Returns
+    -------
+    list of FileRows or ReadFailure
+        ``FileRows`` with the requested sheets, or ``ReadFailure`` naming the
+        file and the reason (refused, crashed, out of memory, timed out).
+
+    Notes
+    -----
+    Each worker sets ``RLIMIT_AS`` to its size at start plus
+    ``limits.memory_bytes``. A worker that dies, or spends more than
+    ``timeout_s`` on one file, is ended (by its own process handle) and
+    replaced; the file it was on fails and the rest of its batch is read
+    again by the replacement. Assumes the ``fork`` start method (Linux) for
+    speed; ``spawn`` works but needs a picklable ``_reader``.
+    """
+    wanted = [sheets] if sheets is None or isinstance(sheets, str) else list(sheets)
+    items = [(i, str(p), wanted) for i, p in enumerate(paths)]
+    if not items:
+        return []
+    results: list[FileRows | ReadFailure | None] = [None] * len(items)
+    n_workers = resolve_read_jobs(jobs, len(items))
+    size = max(1, min(BATCH_FILES, -(-len(items) // (n_workers * _BATCHES_PER_WORKER))))
+    queue = [items[i:i + size] for i in range(0, len(items), size)]
+    queue.reverse()  # pop() from the end gives the batches in order
+    ctx = _context()
+    slots: list[_Slot] = []
+
+    def start() -> None:
+        parent, child = ctx.Pipe(duplex=True)
+        progress = ctx.RawArray("d", 2)
+        proc = ctx.Process(target=_worker, args=(child, progress, limits, _reader), daemon=True)
+        proc.start()
+        child.close()
+        slot = _Slot(process=proc, conn=parent, progress=progress)
+        slots.append(slot)
+        feed(slot)
+
+    def feed(slot: _Slot) -> None:
+        if queue:
+            slot.batch = queue.pop()
+            slot.progress[0] = -1.0
+            slot.progress[1] = time.monotonic()
+            slot.conn.send(slot.batch)
+
+    def retire(slot: _Slot, reason: str) -> None:
+        # The file the worker was on fails; the others of its batch are read again.
+        current = int(slot.progress[0])
+        indices = [b[0] for b in slot.batch]
+        culprit = indices.index(current) if current in indices else 0
+        index, path, _ = slot.batch[culprit]
+        results[index] = ReadFailure(file=path, reason=reason)
+        rest = slot.batch[:culprit] + slot.batch[culprit + 1:]
+        if rest:
+            queue.append(rest)
+        slot.batch = []
+        _end(slot)
+        slots.remove(slot)
+        if queue:
+            start()
+
+    try:
+        for _ in range(n_workers):
+            start()
+        while True:
+            busy = [s for s in slots if s.batch]
+            if not busy:
+                break
+            deadline = min(s.progress[1] for s in busy) + limits.timeout_s
+            ready = _wait([s.conn for s in busy] + [s.process.sentinel for s in busy],
+                          timeout=max(0.0, deadline - time.monotonic()))
+            now = time.monotonic()
+            for slot in busy:
+                got = None
+                if slot.conn in ready:
+                    try:
+                        got = slot.conn.recv()
+                    except (EOFError, OSError):
+                        got = None
+                if got is not None:
+                    for (index, _, _), value in zip(slot.batch, got):
+                        results[index] = value
+                    slot.batch = []
+                    feed(slot)
+                elif slot.conn in ready or slot.process.sentinel in ready:
+                    slot.process.join(timeout=5.0)
+                    retire(slot, _died(slot.process))
+                elif now - slot.progress[1] >= limits.timeout_s:
+                    retire(slot, f"unreadable: reading the file took longer than the limit of "
+                                 f"{limits.timeout_s:g} s, so it was stopped; the other files were read")
+    finally:
+        for slot in list(slots):
+            _end(slot, polite=True)
+    return [r if r is not None else ReadFailure(file=items[i][1], reason="the file was not read")
+            for i, r in enumerate(results)]
+
+
+def _end(slot: _Slot, polite: bool = False) -> None:
+    proc = slot.process
+    if polite and proc.is_alive():
+        try:
+            slot.conn.send(None)
+        except (OSError, ValueError):
+            pass
+        proc.join(timeout=1.0)
+    if proc.is_alive():
+        proc.kill()  # this worker only, by its own handle
+        proc.join(timeout=5.0)
+    try:
+        slot.conn.close()
+    except OSError:
+        pass
