@@ -19,6 +19,7 @@ from .evaluate import AUDIT_COLUMNS, SCORE_COLUMNS, STATISTICS_COLUMNS, RoundEva
 from .io.csvout import write_csv
 from .io.readers import read_participants, read_results
 from .io.workbook import lab_payload, write_lab_workbook, write_summary
+from .parallel import run_batches, shared
 from .round import Round, load_round
 
 __all__ = ["run_round", "write_outputs", "atomic_folder", "Outputs", "load_and_evaluate"]
@@ -59,17 +60,35 @@ def atomic_folder(target: Path) -> Iterator[Path]:
         shutil.rmtree(old, ignore_errors=True)
 
 
-def load_and_evaluate(round_path: str | Path) -> RoundEvaluation:
-    """Read the round file, its results and participants, and evaluate it."""
+def load_and_evaluate(round_path: str | Path, *, jobs: int | None = None,
+                      progress: Callable[[str, int, int], None] | None = None) -> RoundEvaluation:
+    """Read the round file, its results and participants, and evaluate it.
+
+    ``jobs`` worker processes read the returned forms (None = all cores);
+    the table does not depend on it.
+    """
     rnd = load_round(round_path)
-    table = read_results(rnd)
+    table = read_results(rnd, jobs=jobs, progress=progress)
     participants = read_participants(rnd)
     return evaluate(rnd, table, participants)
 
 
+#: Lab sheets per task sent to a worker: fixed (not tied to the number of jobs) and small enough that the
+#: summary workbook, the largest single task, runs beside the lab sheets (common practice for pools).
+LAB_SHEETS_PER_TASK = 16
+
+
 def write_outputs(ev: RoundEvaluation, folder: Path, *, history=None,
-                  progress: Callable[[str, int, int], None] | None = None) -> list[Path]:
-    """Write every output of an evaluation into ``folder`` (which must exist)."""
+                  progress: Callable[[str, int, int], None] | None = None,
+                  jobs: int | None = None) -> list[Path]:
+    """Write every output of an evaluation into ``folder`` (which must exist).
+
+    The CSV tables, the summary workbook and the lab sheets are independent
+    files, written by ``jobs`` worker processes (None = all cores; 1 = here,
+    one after another). Every file depends only on the evaluation, so the
+    outputs are byte-identical for any ``jobs``. ``progress(stage, done,
+    total)`` is called as the lab sheets are finished.
+    """
     files = []
 
     def out(name: str) -> Path:
@@ -77,22 +96,46 @@ def write_outputs(ev: RoundEvaluation, folder: Path, *, history=None,
         files.append(p)
         return p
 
-    write_csv(ev.scores, out("scores.csv"), SCORE_COLUMNS)
-    write_csv(ev.statistics, out("statistics.csv"), STATISTICS_COLUMNS)
-    write_csv(ev.audit, out("audit.csv"), AUDIT_COLUMNS)
+    tasks: list[tuple] = [("csv", "scores", out("scores.csv"), SCORE_COLUMNS),
+                          ("csv", "statistics", out("statistics.csv"), STATISTICS_COLUMNS),
+                          ("csv", "audit", out("audit.csv"), AUDIT_COLUMNS)]
     for name, frame in ev.extras.items():
         if hasattr(frame, "columns"):
-            write_csv(frame, out(f"{name}.csv"))
-    write_summary(ev, out("round-summary.xlsx"))
+            tasks.append(("csv", name, out(f"{name}.csv"), None))
+    tasks.insert(0, ("summary", out("round-summary.xlsx")))  # the largest task first
     labs_dir = folder / "labs"
     labs_dir.mkdir()
     labs = ev.labs
-    for i, lab in enumerate(labs):
-        hist = history(lab) if history is not None else None
-        write_lab_workbook(lab_payload(ev, lab, hist), out(f"labs/{_safe(lab)}.xlsx"))
-        if progress:
-            progress("lab sheets", i + 1, len(labs))
+    lab_paths = [out(f"labs/{_safe(lab)}.xlsx") for lab in labs]
+    for i in range(0, len(labs), LAB_SHEETS_PER_TASK):
+        group = list(zip(labs[i:i + LAB_SHEETS_PER_TASK], lab_paths[i:i + LAB_SHEETS_PER_TASK]))
+        tasks.append(("labs", [(lab, p, history(lab) if history is not None else None) for lab, p in group]))
+    n_other = sum(1 for t in tasks if t[0] != "labs")
+    report = None
+    if progress:
+        def report(stage: str, done: int, total: int) -> None:
+            progress("lab sheets", min(len(labs), max(0, done - n_other) * LAB_SHEETS_PER_TASK), len(labs))
+    run_batches(_write_tasks, tasks, jobs=jobs, shared=ev, batch_size=1, progress=report, stage="outputs")
+    from .io.report import write_report  # report.html and labs/LAB.html (figures drawn once, pages composed)
+    files += write_report(ev, folder, jobs=jobs, progress=progress)
     return files
+
+
+def _write_tasks(tasks: list[tuple]) -> list[None]:
+    """Worker side of :func:`write_outputs`: write each task's file(s) from the shared evaluation."""
+    ev: RoundEvaluation = shared()
+    for task in tasks:
+        kind = task[0]
+        if kind == "summary":
+            write_summary(ev, task[1])
+        elif kind == "csv":
+            _, name, path, columns = task
+            frame = {"scores": ev.scores, "statistics": ev.statistics, "audit": ev.audit}.get(name)
+            write_csv(frame if frame is not None else ev.extras[name], path, columns)
+        else:
+            for lab, path, hist in task[1]:
+                write_lab_workbook(lab_payload(ev, lab, hist), path)
+    return [None] * len(tasks)
 
 
 def _safe(text: str) -> str:
@@ -114,7 +157,7 @@ def run_round(round_path: str | Path, out: str | Path, *, archive: str | Path | 
     ``replace_archive``.  ``on_archive`` receives the
     :class:`~roundscore.archive.StoreOutcome`.
     """
-    ev = load_and_evaluate(round_path)
+    ev = load_and_evaluate(round_path, jobs=jobs, progress=progress)
     store = archive if archive is not None else ev.round.archive
     history = None
     if store is not None:
@@ -126,7 +169,7 @@ def run_round(round_path: str | Path, out: str | Path, *, archive: str | Path | 
             store, scheme=ev.round.scheme, labs=ev.labs, round_id=ev.round.id,
             round_date=ev.round.date, last=ev.round.history_rounds).get
     with atomic_folder(Path(out)) as tmp:
-        written = write_outputs(ev, tmp, history=history, progress=progress)
+        written = write_outputs(ev, tmp, history=history, progress=progress, jobs=jobs)
     final = Path(out)
     if store is not None:
         try:

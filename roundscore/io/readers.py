@@ -39,12 +39,16 @@ def _read_form(rnd: Round, path: Path):
     return recs, problems, results.warnings + info.warnings
 
 
-def read_results(rnd: Round) -> ResultTable:
+def read_results(rnd: Round, *, jobs: int | None = None, progress=None) -> ResultTable:
     """All results of the round as one validated table.
 
     ``round.results`` names one long-layout table (CSV or workbook), or a
     folder or glob of returned submission forms. Every problem in every file
-    is collected before the import is refused.
+    is collected before the import is refused. Forms are read and checked
+    by ``jobs`` worker processes (None = all cores), in batches of
+    :data:`FORMS_PER_BATCH` fixed files, so the table and the problems
+    listed are the same for any ``jobs``; ``progress(stage, done, total)``
+    follows the files read.
     """
     files = rnd.result_files()
     records: list = []
@@ -52,6 +56,8 @@ def read_results(rnd: Round) -> ResultTable:
     warnings: list[str] = []
     single_table = len(files) == 1 and not (Path(rnd.folder / rnd.results).is_dir()
                                             or any(ch in rnd.results for ch in "*?["))
+    if not single_table:
+        return _read_forms(rnd, files, jobs=jobs, progress=progress)
     for f in files:
         shown = _shown(rnd, f)
         if single_table:
@@ -75,6 +81,125 @@ def read_results(rnd: Round) -> ResultTable:
         problems += probs
         warnings += list(warns)
     return build_table(rnd, records, files=[_shown(rnd, f) for f in files], warnings=warnings, problems=problems)
+
+
+#: Returned forms read and checked per batch: fixed, so results do not depend on the number of jobs;
+#: large enough to amortise a worker round trip, small enough to spread the work (common practice).
+FORMS_PER_BATCH = 64
+
+
+def _read_forms(rnd: Round, files: list[Path], *, jobs: int | None, progress) -> ResultTable:
+    """A folder of returned forms: batches read and validated in worker processes, then joined.
+
+    Each worker turns its batch into a validated frame with :func:`build_table`
+    (so the rows of 2000 forms never travel as Python objects); here the
+    frames are joined, a lab code returned in forms of two different batches
+    is reported as the same duplicate :func:`build_table` reports inside a
+    batch, and the rows are put in the table's order.
+    """
+    from ..parallel import run_batches
+
+    batches = [[str(f) for f in files[i:i + FORMS_PER_BATCH]] for i in range(0, len(files), FORMS_PER_BATCH)]
+    report = None
+    if progress:
+        def report(stage: str, done: int, total: int) -> None:
+            progress("read forms", min(len(files), done * FORMS_PER_BATCH), len(files))
+    parts = run_batches(_form_batch, batches, jobs=jobs, shared=rnd, batch_size=1, progress=report,
+                        stage="read forms")
+    problems: list[Problem] = []
+    warnings: list[str] = []
+    shown: list[str] = []
+    frames = []
+    for part in parts:
+        shown += part["shown"]
+        warnings += part["warnings"]
+        problems += part["problems"]
+        if part["frame"] is not None:
+            frames.append(part["frame"])
+    import pandas as pd
+
+    if frames:
+        frame = pd.concat(frames, ignore_index=True) if len(frames) > 1 else frames[0]
+        for col in frame.columns:
+            if len({str(f[col].dtype) for f in frames}) > 1:
+                # A text column all blank in one batch is inferred as object there: infer it again over
+                # all rows, as one build_table over every record would.
+                frame[col] = pd.Series(frame[col].tolist(), index=frame.index)
+    else:
+        frame = build_table(rnd, [], problems=[]).frame
+    dup = frame.duplicated(["lab", "measurand", "replicate"], keep="first").to_numpy()
+    if dup.any():
+        first = frame[~dup].set_index(["lab", "measurand", "replicate"])
+        for r in frame[dup].itertuples(index=False):
+            f = first.loc[(r.lab, r.measurand, r.replicate)]
+            problems.append(Problem(
+                message=f"duplicate result for lab {r.lab}, {r.measurand}, replicate {r.replicate} "
+                        f"(also in {f['file']}" + (f" sheet {f['sheet']!r}" if f["sheet"] else "") +
+                        f" row {f['row']})",
+                file=r.file, sheet=r.sheet, row=int(r.row), column="replicate", lab=r.lab,
+                measurand=r.measurand, value=int(r.replicate)))
+    if problems:
+        raise InputError(problems, summary="the results cannot be imported")
+    if len(frames) > 1:
+        frame = frame.sort_values(["measurand", "lab", "replicate"], kind="stable").reset_index(drop=True)
+    return ResultTable(frame=frame, files=tuple(shown), warnings=tuple(warnings))
+
+
+def _read_sheets(paths: list[str]) -> list:
+    """Both sheets of each form: through the isolated reader when it is there, else in this process."""
+    try:
+        from .safety import read_many
+    except ImportError:  # the isolated reader is optional here
+        read_many = None
+    if read_many is not None:
+        return [r.sheets if hasattr(r, "sheets") else r for r in
+                read_many(paths, [RESULTS_SHEET, INFO_SHEET], jobs=1)]
+    out = []
+    for p in paths:
+        try:
+            out.append((read_rows(p, RESULTS_SHEET), read_rows(p, INFO_SHEET)))
+        except InputError as exc:
+            out.append(exc)
+    return out
+
+
+def _form_batch(batches: list[list[str]]) -> list[dict]:
+    """Worker side of :func:`_read_forms`: read, turn into records and validate one batch of forms."""
+    from ..parallel import shared
+
+    rnd: Round = shared()
+    out = []
+    for paths in batches:
+        records: list = []
+        problems: list[Problem] = []
+        warnings: list[str] = []
+        shown_all = [_shown(rnd, Path(p)) for p in paths]
+        forms = [p for p in paths if _is_form(Path(p))]
+        read = dict(zip(forms, _read_sheets(forms)))
+        for p, shown in zip(paths, shown_all):
+            if p not in read:
+                problems.append(Problem(message="not a submission workbook (.xlsx)", file=shown))
+                continue
+            got = read[p]
+            if not isinstance(got, tuple):  # a ReadFailure or an InputError
+                probs = got.as_problems() if hasattr(got, "as_problems") else list(got.problems)
+                problems += [_with_file(q, shown) for q in probs]
+                continue
+            results, info = got
+            results = SheetRows(file=shown, sheet=results.sheet, rows=results.rows, warnings=results.warnings)
+            recs, probs = records_from_form(rnd, results, info)
+            records += recs
+            problems += probs
+            warnings += list(results.warnings + info.warnings)
+        del read
+        frame = None
+        try:
+            frame = build_table(rnd, records, problems=problems).frame
+            problems = []
+        except InputError as exc:
+            problems = list(exc.problems)
+        out.append({"frame": frame, "problems": problems, "warnings": warnings, "shown": shown_all})
+    return out
 
 
 def _with_file(problem: Problem, shown: str) -> Problem:

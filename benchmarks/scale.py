@@ -1,0 +1,480 @@
+"""Speed at scale: a large round from returned forms to every circulated file, against floors and a baseline.
+
+Run (from the repository root; takes several minutes at the default size)::
+
+    python benchmarks/scale.py                 # 2000 labs × 40 measurands × 2 replicates
+    python benchmarks/scale.py --labs 500      # another size
+    python benchmarks/scale.py --labs 12 --measurands 4 --growth 6 --core-sets 40 --core-labs 30   # tiny
+
+What it does, in one run (every measured piece runs in a fresh subprocess, so
+times and peak memory are its own):
+
+1. builds the round with the tool's own seeded generator
+   (:mod:`roundscore.bigdemo`): blank forms written by
+   ``roundscore.io.forms.write_form`` (what ``roundscore forms`` writes),
+   then filled in;
+2. runs the pipeline: read (every form, validated), evaluate, write every
+   output (CSV tables, summary workbook, one score sheet per lab, and the
+   figures and HTML report when the pipeline writes them);
+3. the **floor**: the same forms read by python-calamine in a process pool
+   doing nothing else, and the same cells and native charts of every output
+   workbook (plus the same CSV rows and the bytes of any other file)
+   written by xlsxwriter in memory in a process pool;
+4. the **baseline** (``benchmarks/baseline.py``): pandas.read_excel with
+   openpyxl per file, a per-measurand loop for Algorithm A, openpyxl for each
+   lab's sheet;
+5. the statistics core: Algorithm A vectorised over 10,000 sets of 200 lab
+   means against a loop of statsmodels' Huber estimator on the same sets;
+6. the growth exponent: the pipeline at the ``--growth`` sizes and at
+   ``--labs``, least-squares slope of log(time) on log(labs).
+
+It prints one line per stage (seconds, ratio to the floor, ratio to the
+baseline), the peak memory, and a final line
+``read/floor=… write/floor=… total/baseline=… exponent=…``.
+
+Peak memory is the largest sum, over the pipeline's process tree (main
+process and workers), of the proportional set size (PSS: shared pages
+counted once), sampled every 0.1 s from /proc; where /proc is missing,
+the main process's and largest worker's maximum resident set are summed.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import math
+import os
+import platform
+import shutil
+import subprocess
+import sys
+import tempfile
+import threading
+import time
+from pathlib import Path
+
+HERE = Path(__file__).resolve().parent
+ROOT = HERE.parent
+if str(ROOT) not in sys.path:
+    sys.path.insert(0, str(ROOT))
+
+#: Sampling period of the memory monitor (seconds).
+MEMORY_SAMPLE_S = 0.1
+#: Targets from the issue, printed beside the results (2-core machine).
+TARGETS = {"read/floor": 1.5, "write/floor": 1.5, "total/baseline": 0.1, "exponent": 1.1, "memory_gb": 1.5,
+           "core_speedup": 20.0}
+
+
+# --------------------------------------------------------------------------- parts (run in subprocesses)
+
+def part_generate(a: argparse.Namespace) -> dict:
+    from roundscore.bigdemo import make_big_round
+
+    t = time.perf_counter()
+    big = make_big_round(a.round, labs=a.labs, measurands=a.measurands, replicates=a.replicates, jobs=a.jobs)
+    return {"seconds": time.perf_counter() - t, "cells": big.cells, "forms": len(big.forms)}
+
+
+def part_pipeline(a: argparse.Namespace) -> dict:
+    from roundscore.evaluate import evaluate
+    from roundscore.io.readers import read_participants, read_results
+    from roundscore.pipeline import atomic_folder, write_outputs
+    from roundscore.round import load_round
+
+    stages: dict[str, float] = {}
+    seen: dict[str, float] = {}
+
+    def progress(stage: str, done: int, total: int) -> None:
+        seen.setdefault(stage, time.perf_counter())
+
+    t0 = time.perf_counter()
+    rnd = load_round(a.round)
+    table = read_results(rnd, jobs=a.jobs, progress=progress)
+    participants = read_participants(rnd)
+    t1 = time.perf_counter()
+    ev = evaluate(rnd, table, participants)
+    t2 = time.perf_counter()
+    del table
+    with atomic_folder(Path(a.out)) as tmp:
+        write_outputs(ev, tmp, jobs=a.jobs, progress=progress)
+    t3 = time.perf_counter()
+    stages.update(read=t1 - t0, evaluate=t2 - t1, write=t3 - t2, total=t3 - t0)
+    return {"stages": stages, "progress_stages": sorted(seen), "files": _count_files(Path(a.out)),
+            "maxrss_mb": _maxrss_mb()}
+
+
+def _count_files(folder: Path) -> dict[str, int]:
+    out: dict[str, int] = {}
+    for p in folder.rglob("*"):
+        if p.is_file():
+            out[p.suffix.lower() or "(none)"] = out.get(p.suffix.lower() or "(none)", 0) + 1
+    return out
+
+
+def _maxrss_mb() -> dict[str, float]:
+    import resource
+
+    return {"main": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024,
+            "largest_child": resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024}
+
+
+def _floor_read_batch(paths: list[str]) -> list[int]:
+    from python_calamine import CalamineWorkbook
+
+    out = []
+    for p in paths:
+        wb = CalamineWorkbook.from_path(p)
+        n = 0
+        for name in ("Results", "form-info"):
+            n += sum(len(r) for r in wb.get_sheet_by_name(name).to_python(skip_empty_area=False))
+        out.append(n)
+    return out
+
+
+def part_floor_read(a: argparse.Namespace) -> dict:
+    from roundscore.parallel import run_batches
+
+    paths = sorted(str(p) for p in (Path(a.round) / "forms").glob("*.xlsx"))
+    t = time.perf_counter()
+    cells = run_batches(_floor_read_batch, paths, jobs=a.jobs)
+    return {"seconds": time.perf_counter() - t, "cells": sum(cells)}
+
+
+def _workbook_content(path: Path) -> tuple[list, list[str]]:
+    """(sheets as (name, rows), chart types) of a written workbook, read back untimed."""
+    import re
+    import zipfile
+
+    from python_calamine import CalamineWorkbook
+
+    wb = CalamineWorkbook.from_path(str(path))
+    sheets = [(n, wb.get_sheet_by_name(n).to_python(skip_empty_area=True)) for n in wb.sheet_names]
+    charts = []
+    with zipfile.ZipFile(path) as z:
+        for name in z.namelist():
+            if re.fullmatch(r"xl/charts/chart\d+\.xml", name):
+                xml = z.read(name)
+                kind = "line" if b"<c:lineChart>" in xml else ("bar" if b'<c:barDir val="bar"/>' in xml else "column")
+                charts.append(kind)
+    return sheets, charts
+
+
+def _floor_write_batch(indices: list[int]) -> list[int]:
+    import csv
+    import io
+
+    import xlsxwriter
+
+    from roundscore.parallel import shared
+
+    content, out_dir = shared()
+    done = []
+    for i in indices:
+        rel, kind, data = content[i]
+        target = Path(out_dir) / rel
+        if kind == "xlsx":
+            sheets, charts = data
+            wb = xlsxwriter.Workbook(str(target), {"in_memory": True})
+            first = None
+            for name, rows in sheets:
+                ws = wb.add_worksheet(name)
+                first = first or (name, max(1, len(rows)))
+                for r, row in enumerate(rows):
+                    ws.write_row(r, 0, row)
+            for kind_ in charts:
+                ch = wb.add_chart({"type": kind_})
+                ch.add_series({"values": [first[0], 1, 0, first[1] - 1, 0]})
+                wb.worksheets()[0].insert_chart(0, 0, ch)
+            wb.close()
+        elif kind == "csv":
+            buf = io.StringIO()
+            csv.writer(buf, lineterminator="\n").writerows(data)
+            target.write_text(buf.getvalue(), encoding="utf-8")
+        else:
+            target.write_bytes(data)
+        done.append(1)
+    return done
+
+
+def part_floor_write(a: argparse.Namespace) -> dict:
+    import csv
+
+    from roundscore.parallel import run_batches
+
+    src = Path(a.out)
+    content = []
+    for p in sorted(src.rglob("*")):
+        if not p.is_file():
+            continue
+        rel = p.relative_to(src)
+        if p.suffix.lower() == ".xlsx":
+            content.append((rel, "xlsx", _workbook_content(p)))
+        elif p.suffix.lower() == ".csv":
+            with open(p, newline="", encoding="utf-8") as fh:
+                content.append((rel, "csv", list(csv.reader(fh))))
+        else:
+            content.append((rel, "bytes", p.read_bytes()))
+    out_dir = Path(a.floor_out)
+    if out_dir.exists():
+        shutil.rmtree(out_dir)
+    for rel in {c[0].parent for c in content}:
+        (out_dir / rel).mkdir(parents=True, exist_ok=True)
+    cells = sum(len(r) for c in content if c[1] == "xlsx" for _, rows in c[2][0] for r in rows)
+    charts = sum(len(c[2][1]) for c in content if c[1] == "xlsx")
+    order = sorted(range(len(content)), key=lambda i: -_weight(content[i]))  # largest first, as a scheduler would
+    t = time.perf_counter()
+    run_batches(_floor_write_batch, order, jobs=a.jobs, shared=(content, str(out_dir)),
+                batch_size=max(1, len(order) // (16 * a.jobs)))
+    return {"seconds": time.perf_counter() - t, "files": len(content), "cells": cells, "charts": charts}
+
+
+def _weight(item) -> int:
+    rel, kind, data = item
+    if kind == "xlsx":
+        return sum(len(r) for _, rows in data[0] for r in rows)
+    return len(data)
+
+
+def part_baseline(a: argparse.Namespace) -> dict:
+    from baseline import run_baseline
+
+    return run_baseline(a.round, a.baseline_out)
+
+
+def part_core(a: argparse.Namespace) -> dict:
+    """Algorithm A vectorised over sets vs a statsmodels Huber loop; both are Huber's Proposal 2 here.
+
+    ``algorithm_a(x, sd_factor=1/√β)`` with β = E[ψ²₁.₅(Z)] (Z standard
+    normal, ψ clipped at 1.5) solves the same two equations as
+    statsmodels' ``Huber(c=1.5)`` (Huber 1981, Proposal 2), so the two give
+    the same location and scale; Huber's default tol (1e-8) is too loose
+    to agree to 1e-9, so it gets tol=1e-12 and maxiter=2000.
+    """
+    import numpy as np
+    from scipy import stats
+    from statsmodels.robust.scale import Huber
+
+    from roundscore.stats.robust import algorithm_a
+
+    c = 1.5
+    phi, Phi = stats.norm.pdf(c), stats.norm.cdf(c)
+    beta = (2 * Phi - 1) - 2 * c * phi + 2 * c * c * (1 - Phi)  # E[ψ_c(Z)²]
+    rng = np.random.default_rng(a.seed)
+    x = rng.normal(50.0, 2.0, (a.core_sets, a.core_labs))
+    bad = rng.random(x.shape) < 0.05
+    x[bad] += rng.normal(0.0, 15.0, int(bad.sum()))  # 5 % contamination (invented)
+    t = time.perf_counter()
+    est = algorithm_a(x, sd_factor=1 / math.sqrt(beta), tol=1e-13)
+    t_vec = time.perf_counter() - t
+    huber = Huber(c=c, tol=1e-12, maxiter=2000)
+    t = time.perf_counter()
+    ref = [huber(row) for row in x]
+    t_loop = time.perf_counter() - t
+    loc = np.array([float(r[0]) for r in ref])
+    scale = np.array([float(r[1]) for r in ref])
+    mean = np.array([e.mean for e in est])
+    sd = np.array([e.sd for e in est])
+    return {"vectorised": t_vec, "loop": t_loop, "sets": a.core_sets, "labs": a.core_labs,
+            "max_loc_diff": float(np.max(np.abs(mean - loc))),
+            "max_scale_diff": float(np.max(np.abs(sd - scale))), "beta": beta}
+
+
+def part_figures(a: argparse.Namespace) -> dict:
+    """Cost of one matplotlib figure made from scratch (a lab's scores for one measurand), on a sample."""
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import io
+
+    import matplotlib.pyplot as plt
+    import numpy as np
+
+    rng = np.random.default_rng(a.seed)
+    n = a.figure_sample
+    t = time.perf_counter()
+    for i in range(n):
+        fig, ax = plt.subplots(figsize=(4, 2.5))
+        z = rng.normal(0, 1, a.labs)
+        ax.plot(np.sort(z), ".", color="#0072B2")
+        ax.axhline(z[0], color="#D55E00")
+        for lim in (-3, -2, 2, 3):
+            ax.axhline(lim, ls="--", lw=0.8, color="#555555")
+        fig.savefig(io.BytesIO(), format="svg")
+        plt.close(fig)
+    return {"per_figure": (time.perf_counter() - t) / n, "sample": n}
+
+
+PARTS = {"generate": part_generate, "pipeline": part_pipeline, "floor_read": part_floor_read,
+         "floor_write": part_floor_write, "baseline": part_baseline, "core": part_core, "figures": part_figures}
+
+
+# --------------------------------------------------------------------------- orchestration
+
+def _tree_pss_kb(root: int) -> int:
+    """Sum of PSS (kB) of ``root`` and all its descendants, from /proc."""
+    children: dict[int, list[int]] = {}
+    for d in os.listdir("/proc"):
+        if not d.isdigit():
+            continue
+        try:
+            with open(f"/proc/{d}/stat") as fh:
+                ppid = int(fh.read().rsplit(")", 1)[1].split()[1])
+        except (OSError, ValueError, IndexError):
+            continue
+        children.setdefault(ppid, []).append(int(d))
+    total, todo = 0, [root]
+    while todo:
+        pid = todo.pop()
+        todo += children.get(pid, [])
+        try:
+            with open(f"/proc/{pid}/smaps_rollup") as fh:
+                for line in fh:
+                    if line.startswith("Pss:"):
+                        total += int(line.split()[1])
+                        break
+        except OSError:
+            continue
+    return total
+
+
+def run_part(name: str, a: argparse.Namespace, **over) -> dict:
+    """Run one part in a fresh interpreter; returns its JSON result plus the peak memory of its process tree."""
+    args = dict(vars(a), **over)
+    cmd = [sys.executable, str(Path(__file__).resolve()), "--part", name, "--args", json.dumps(args, default=str)]
+    env = dict(os.environ, PYTHONPATH=os.pathsep.join([str(ROOT), str(HERE), os.environ.get("PYTHONPATH", "")]))
+    proc = subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=env)
+    peak = {"kb": 0}
+    watching = os.path.isdir("/proc") and os.path.exists(f"/proc/{os.getpid()}/smaps_rollup")
+
+    def watch():
+        while proc.poll() is None:
+            peak["kb"] = max(peak["kb"], _tree_pss_kb(proc.pid))
+            time.sleep(MEMORY_SAMPLE_S)
+
+    th = threading.Thread(target=watch, daemon=True) if watching else None
+    if th:
+        th.start()
+    out, err = proc.communicate()
+    if th:
+        th.join()
+    if proc.returncode != 0:
+        raise SystemExit(f"benchmark part {name!r} failed:\n{err.strip()}")
+    res = json.loads(out.strip().splitlines()[-1])
+    res["peak_mb"] = peak["kb"] / 1024 if watching else None
+    return res
+
+
+def _fit_exponent(sizes: list[int], times: list[float]) -> float:
+    import numpy as np
+
+    if len(sizes) < 2:
+        return float("nan")
+    slope, _ = np.polyfit(np.log(sizes), np.log(times), 1)
+    return float(slope)
+
+
+def _line(stage: str, sec: float, floor: float | None, base: float | None) -> str:
+    f = f"{sec / floor:7.2f}× floor ({floor:.2f} s)" if floor else f"{'':>7}  floor n/a     "
+    b = f"{sec / base:6.3f}× baseline ({base:.2f} s)" if base else "baseline n/a"
+    return f"{stage:<10}{sec:9.2f} s   {f}   {b}"
+
+
+def main(argv: list[str] | None = None) -> int:
+    p = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    p.add_argument("--labs", type=int, default=2000, help="labs in the round (default 2000)")
+    p.add_argument("--measurands", type=int, default=40, help="measurands (default 40)")
+    p.add_argument("--replicates", type=int, default=2, help="replicates (default 2)")
+    p.add_argument("--jobs", type=int, default=None, help="worker processes (default: all cores)")
+    p.add_argument("--growth", default="250,500,1000",
+                   help="other lab counts for the growth exponent, comma-separated ('' for none)")
+    p.add_argument("--core-sets", type=int, default=10000, help="sets for the Algorithm A comparison")
+    p.add_argument("--core-labs", type=int, default=200, help="lab means per set for the comparison")
+    p.add_argument("--figure-sample", type=int, default=20, help="matplotlib figures timed for the estimate")
+    p.add_argument("--work", default=None, help="working folder (default: a temporary one, removed)")
+    p.add_argument("--seed", type=int, default=20270301)
+    p.add_argument("--part", help=argparse.SUPPRESS)
+    p.add_argument("--args", help=argparse.SUPPRESS)
+    a = p.parse_args(argv)
+    if a.part:
+        ns = argparse.Namespace(**json.loads(a.args))
+        print(json.dumps(PARTS[a.part](ns)))
+        return 0
+    from roundscore.parallel import resolve_jobs
+
+    jobs = resolve_jobs(a.jobs)
+    growth = sorted({int(s) for s in a.growth.split(",") if s.strip()} - {a.labs})
+    work = Path(a.work) if a.work else Path(tempfile.mkdtemp(prefix="roundscore-bench-"))
+    work.mkdir(parents=True, exist_ok=True)
+    try:
+        return _run(a, jobs, growth, work)
+    finally:
+        if not a.work:
+            shutil.rmtree(work, ignore_errors=True)
+
+
+def _run(a: argparse.Namespace, jobs: int, growth: list[int], work: Path) -> int:
+    say = lambda s="": print(s, flush=True)  # noqa: E731
+    base = dict(jobs=jobs)
+    rnd, out = work / f"round-{a.labs}", work / f"out-{a.labs}"
+    say(f"roundscore benchmark: {a.labs} labs × {a.measurands} measurands × {a.replicates} replicates, "
+        f"{jobs} job(s), {os.cpu_count()} core(s), Python {platform.python_version()}")
+    gen = run_part("generate", a, round=str(rnd), **base)
+    say(f"{'generate':<10}{gen['seconds']:9.2f} s   {gen['forms']} filled-in forms, {gen['cells']} result cells "
+        "(roundscore.bigdemo; not compared)")
+    pipe = run_part("pipeline", a, round=str(rnd), out=str(out), **base)
+    st = pipe["stages"]
+    fr = run_part("floor_read", a, round=str(rnd), **base)
+    fw = run_part("floor_write", a, out=str(out), floor_out=str(work / "floor-out"), **base)
+    bl = run_part("baseline", a, round=str(rnd), baseline_out=str(work / "baseline-out"))
+    floor_total = fr["seconds"] + fw["seconds"]
+    say(_line("read", st["read"], fr["seconds"], bl["read"]))
+    say(_line("evaluate", st["evaluate"], None, bl["evaluate"]))
+    say(_line("write", st["write"], fw["seconds"], bl["write"]))
+    say(_line("total", st["total"], floor_total, bl["total"]))
+    say(f"  floor read: python-calamine, {jobs} process(es), both sheets of {gen['forms']} forms; floor write: "
+        f"xlsxwriter in memory, {jobs} process(es), {fw['files']} files, {fw['cells']} cells, {fw['charts']} "
+        "native charts (+ the same CSV rows and other files' bytes)")
+    say(f"  baseline: pandas.read_excel+openpyxl per file, a per-measurand Algorithm A loop, openpyxl per lab "
+        f"sheet ({bl['labs']} labs, all files, not sampled)")
+    say(f"  outputs: {', '.join(f'{n} {k}' for k, n in sorted(pipe['files'].items()))}; progress stages: "
+        f"{', '.join(pipe['progress_stages']) or 'none'}")
+    peak = pipe["peak_mb"]
+    rss = pipe["maxrss_mb"]
+    if peak is None:
+        peak = rss["main"] + jobs * rss["largest_child"]
+    say(f"peak memory {peak / 1024:.2f} GB (pipeline process tree, PSS sampled every {MEMORY_SAMPLE_S} s; "
+        f"max RSS main {rss['main']:.0f} MB, largest worker {rss['largest_child']:.0f} MB; "
+        f"target ≤ {TARGETS['memory_gb']} GB)")
+    core = run_part("core", a)
+    speed = core["loop"] / core["vectorised"]
+    say(f"core      algorithm_a on {core['sets']}×{core['labs']} in {core['vectorised']:.2f} s; statsmodels Huber "
+        f"loop {core['loop']:.2f} s: {speed:.1f}× faster (target ≥ {TARGETS['core_speedup']:g}×); max |Δ| "
+        f"location {core['max_loc_diff']:.1e}, scale {core['max_scale_diff']:.1e} "
+        f"(sd_factor = 1/√β, β = E[ψ²₁.₅(Z)] = {core['beta']:.6f}; Huber tol 1e-12)")
+    fig = run_part("figures", a)
+    scratch = fig["per_figure"] * a.labs * a.measurands
+    say(f"figures   one matplotlib figure from scratch {fig['per_figure'] * 1000:.0f} ms (mean of {fig['sample']}); "
+        f"a figure per lab per measurand would take ≈ {scratch:.0f} s (estimated: {a.labs}×{a.measurands}× that) "
+        f"against {st['write']:.1f} s for the whole write stage")
+    sizes, times = [a.labs], [st["total"]]
+    for n in growth:
+        r, o = work / f"round-{n}", work / f"out-{n}"
+        run_part("generate", a, round=str(r), labs=n, **base)
+        t = run_part("pipeline", a, round=str(r), out=str(o), labs=n, **base)["stages"]["total"]
+        sizes.append(n)
+        times.append(t)
+        shutil.rmtree(r, ignore_errors=True)
+        shutil.rmtree(o, ignore_errors=True)
+    order = sorted(range(len(sizes)), key=lambda i: sizes[i])
+    sizes, times = [sizes[i] for i in order], [times[i] for i in order]
+    expo = _fit_exponent(sizes, times)
+    if len(sizes) > 1:
+        say("growth    " + ", ".join(f"{n} labs {t:.2f} s" for n, t in zip(sizes, times))
+            + f": exponent {expo:.2f} (least-squares slope of log time on log labs; target ≤ {TARGETS['exponent']})")
+    say(f"read/floor={st['read'] / fr['seconds']:.2f} write/floor={st['write'] / fw['seconds']:.2f} "
+        f"total/baseline={st['total'] / bl['total']:.3f} exponent={expo:.2f}")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

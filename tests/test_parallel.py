@@ -1,0 +1,167 @@
+"""Process-pool helpers, and the jobs plumbing of reading forms and writing outputs (invented data)."""
+
+from __future__ import annotations
+
+import filecmp
+import os
+import shutil
+from pathlib import Path
+
+import pytest
+
+from roundscore import parallel
+from roundscore.bigdemo import make_big_round
+from roundscore.errors import InputError, Problem
+from roundscore.io import readers
+from roundscore.parallel import batches, resolve_jobs, run_batches
+from roundscore.pipeline import atomic_folder, load_and_evaluate, write_outputs
+from roundscore.round import load_round
+
+
+def _square(batch):
+    return [x * x for x in batch]
+
+
+def _with_shared(batch):
+    return [parallel.shared() + x for x in batch]
+
+
+def _pid(batch):
+    return [os.getpid() for _ in batch]
+
+
+def _fails(batch):
+    if 7 in batch:
+        raise InputError([Problem(message="bad cell", file="f.xlsx", row=7, value=7)], summary="refused")
+    return list(batch)
+
+
+def _wrong_length(batch):
+    return [0]
+
+
+@pytest.mark.parametrize("jobs, expected", [(1, 1), (3, 3)])
+def test_resolve_jobs_number(jobs, expected):
+    assert resolve_jobs(jobs) == expected
+
+
+@pytest.mark.parametrize("jobs", [None, 0])
+def test_resolve_jobs_all_cores(jobs):
+    assert resolve_jobs(jobs) == len(os.sched_getaffinity(0))
+
+
+@pytest.mark.parametrize("jobs", [-1, True, 1.5])
+def test_resolve_jobs_refuses(jobs):
+    with pytest.raises(ValueError, match="jobs must be a whole number"):
+        resolve_jobs(jobs)
+
+
+@pytest.mark.parametrize("n, jobs, size", [(10, 2, None), (10, 2, 3), (1, 4, None), (37, 3, None)])
+def test_batches_cover_items_in_order(n, jobs, size):
+    parts = batches(list(range(n)), jobs, size)
+    assert [x for p in parts for x in p] == list(range(n))
+    if size:
+        assert all(len(p) == size for p in parts[:-1])
+
+
+@pytest.mark.parametrize("jobs", [1, 2])
+def test_run_batches_keeps_order_and_shares(jobs):
+    items = list(range(50))
+    assert run_batches(_square, items, jobs=jobs, batch_size=3) == [x * x for x in items]
+    assert run_batches(_with_shared, items, jobs=jobs, shared=100, batch_size=4) == [100 + x for x in items]
+
+
+def test_run_batches_uses_other_processes_and_inline_for_one_job():
+    pids = set(run_batches(_pid, list(range(20)), jobs=2, batch_size=2))
+    assert os.getpid() not in pids
+    assert set(run_batches(_pid, list(range(20)), jobs=1, batch_size=2)) == {os.getpid()}
+
+
+@pytest.mark.parametrize("jobs", [1, 2])
+def test_progress_reaches_total(jobs):
+    seen = []
+    run_batches(_square, list(range(30)), jobs=jobs, batch_size=4,
+                progress=lambda stage, done, total: seen.append((stage, done, total)), stage="squares")
+    assert seen[-1] == ("squares", 30, 30)
+    assert [d for _, d, _ in seen] == sorted(d for _, d, _ in seen)
+
+
+@pytest.mark.parametrize("jobs", [1, 2])
+def test_worker_error_keeps_type_and_problems(jobs):
+    with pytest.raises(InputError) as info:
+        run_batches(_fails, list(range(20)), jobs=jobs, batch_size=2)
+    assert info.value.summary == "refused"
+    assert info.value.problems[0].message == "bad cell" and info.value.problems[0].row == 7
+
+
+@pytest.mark.parametrize("jobs", [1, 2])
+def test_batch_function_must_return_one_result_per_item(jobs):
+    with pytest.raises(TypeError, match="one result per item"):
+        run_batches(_wrong_length, list(range(8)), jobs=jobs, batch_size=2)
+
+
+def test_empty_items():
+    assert run_batches(_square, [], jobs=2) == []
+
+
+@pytest.fixture(scope="module")
+def big(tmp_path_factory) -> Path:
+    """A small generated round: 40 labs, enough for several read batches and lab-sheet tasks."""
+    folder = tmp_path_factory.mktemp("big") / "round"
+    make_big_round(folder, labs=40, measurands=5, replicates=2, jobs=2)
+    return folder
+
+
+def _write(ev, target: Path, jobs: int) -> Path:
+    with atomic_folder(target) as tmp:
+        write_outputs(ev, tmp, jobs=jobs)
+    return target
+
+
+def _same_tree(a: Path, b: Path) -> None:
+    names_a = sorted(p.relative_to(a) for p in a.rglob("*") if p.is_file())
+    names_b = sorted(p.relative_to(b) for p in b.rglob("*") if p.is_file())
+    assert names_a == names_b and names_a
+    for rel in names_a:
+        assert filecmp.cmp(a / rel, b / rel, shallow=False), f"{rel} differs"
+
+
+def test_outputs_byte_identical_for_any_jobs(big, tmp_path, monkeypatch):
+    monkeypatch.setattr(readers, "FORMS_PER_BATCH", 8)  # 5 read batches
+    ev1 = load_and_evaluate(big, jobs=1)
+    ev2 = load_and_evaluate(big, jobs=2)
+    assert ev1.table.frame.equals(ev2.table.frame)
+    _same_tree(_write(ev1, tmp_path / "one", 1), _write(ev2, tmp_path / "two", 2))
+    assert len(list((tmp_path / "two" / "labs").glob("*.xlsx"))) == 40
+
+
+def test_batched_read_equals_one_batch(big, monkeypatch):
+    rnd = load_round(big)
+    whole = readers.read_results(rnd, jobs=1)
+    monkeypatch.setattr(readers, "FORMS_PER_BATCH", 7)
+    parts = readers.read_results(rnd, jobs=2)
+    assert whole.frame.equals(parts.frame)
+    assert whole.files == parts.files and len(whole.files) == 40
+
+
+def test_write_progress_reaches_all_labs(big, tmp_path):
+    ev = load_and_evaluate(big, jobs=2)
+    seen = []
+    with atomic_folder(tmp_path / "out") as tmp:
+        write_outputs(ev, tmp, jobs=2, progress=lambda s, d, t: seen.append((s, d, t)))
+    assert ("lab sheets", 40, 40) in seen
+
+
+@pytest.mark.parametrize("jobs", [1, 2])
+def test_lab_returned_twice_across_batches_is_a_duplicate(big, tmp_path, monkeypatch, jobs):
+    folder = tmp_path / "round"
+    shutil.copytree(big, folder)
+    forms = sorted((folder / "forms").glob("*.xlsx"))
+    shutil.copy(forms[0], folder / "forms" / "zz-returned-again.xlsx")  # sorts last: another batch
+    monkeypatch.setattr(readers, "FORMS_PER_BATCH", 8)
+    with pytest.raises(InputError) as info:
+        readers.read_results(load_round(folder), jobs=jobs)
+    probs = info.value.problems
+    assert probs and all("duplicate result for lab L0001" in p.message for p in probs)
+    assert all(p.file == "forms/zz-returned-again.xlsx" for p in probs)
+    assert f"also in forms/{forms[0].name}" in probs[0].message
