@@ -15,7 +15,9 @@ blank                     not reported
 ========================  ==========================================
 
 Anything else (other text, ``inf``, ``nan``, a date typed into the cell,
-TRUE/FALSE) raises :class:`CellError`, which the table builder turns into a
+TRUE/FALSE, control characters, digits of scripts other than ASCII, text
+longer than :data:`MAX_CELL_TEXT`) raises :class:`CellError` (and nothing
+else does), which the table builder turns into a
 :class:`~roundscore.errors.Problem` with the file, sheet, row and value.
 """
 
@@ -23,10 +25,13 @@ from __future__ import annotations
 
 import datetime as _dt
 import math
+import numbers
 import re
 from dataclasses import dataclass
 from decimal import Decimal, InvalidOperation
 from typing import Literal
+
+from .errors import RoundscoreError
 
 __all__ = ["Cell", "CellError", "parse_cell", "MAX_CELL_TEXT"]
 
@@ -36,8 +41,11 @@ MAX_CELL_TEXT = 64
 CellKind = Literal["value", "censored", "blank"]
 
 
-class CellError(ValueError):
-    """A cell that is not a result; the message says what was found."""
+class CellError(ValueError, RoundscoreError):
+    """A cell that is not a result; the message says what was found.
+
+    The only exception :func:`parse_cell` raises, whatever it is given.
+    """
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -76,7 +84,11 @@ _NOT_DETECTED = {
     "nd", "n.d.", "n.d", "n/d", "notdetected", "<loq", "<lod", "<lor", "<dl", "loq", "<bg", "bdl",
     "<nwg", "<bestimmungsgrenze", "<ql",
 }
-_NUMBER = re.compile(r"^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$")
+# ASCII digits only (re.ASCII): digits of other scripts are refused rather than guessed at.
+_NUMBER = re.compile(r"^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$", re.ASCII)
+_CONTROL = re.compile(r"[\x00-\x08\x0b-\x1f\x7f-\x9f]")
+_GROUPS_COMMA = re.compile(r"[+-]?\d{1,3}(,\d{3})+", re.ASCII)
+_GROUPS_POINT = re.compile(r"[+-]?\d{1,3}(\.\d{3})+", re.ASCII)
 
 
 def _normalise_number(text: str) -> str | None:
@@ -95,12 +107,12 @@ def _normalise_number(text: str) -> str | None:
     elif has_comma:
         if mantissa.count(",") == 1:
             mantissa = mantissa.replace(",", ".")  # decimal comma
-        elif re.fullmatch(r"[+-]?\d{1,3}(,\d{3})+", mantissa):
+        elif _GROUPS_COMMA.fullmatch(mantissa):
             mantissa = mantissa.replace(",", "")  # 1,234,567
         else:
             return None
     elif mantissa.count(".") > 1:
-        if re.fullmatch(r"[+-]?\d{1,3}(\.\d{3})+", mantissa):
+        if _GROUPS_POINT.fullmatch(mantissa):
             mantissa = mantissa.replace(".", "")  # 1.234.567
         else:
             return None
@@ -109,7 +121,10 @@ def _normalise_number(text: str) -> str | None:
 
 
 def _finite(text: str, raw: object) -> float:
-    value = float(text)
+    try:
+        value = float(text)
+    except (ValueError, OverflowError):
+        raise CellError(f"not a number: {raw!r}") from None
     if not math.isfinite(value):
         raise CellError(f"not a finite number: {raw!r}")
     return value
@@ -151,8 +166,14 @@ def parse_cell(raw: object) -> Cell:
         raise CellError(f"a TRUE/FALSE cell is not a result: {raw!r}")
     if isinstance(raw, (_dt.datetime, _dt.date, _dt.time, _dt.timedelta)):
         raise CellError(f"a date or time was typed into a result cell: {raw!s}")
-    if isinstance(raw, int):
-        return Cell(kind="value", value=float(raw), text=str(raw))
+    if isinstance(raw, numbers.Integral):  # int, numpy integers
+        try:
+            value = float(raw)
+        except OverflowError:
+            raise CellError(f"a number too large to be a result: {str(raw)[:20]}...") from None
+        return Cell(kind="value", value=value, text=str(int(raw)))
+    if isinstance(raw, numbers.Real) and not isinstance(raw, float):  # numpy floats other than float64
+        raw = float(raw)
     if isinstance(raw, float):
         if not math.isfinite(raw):
             raise CellError(f"not a finite number: {raw!r}")
@@ -164,6 +185,8 @@ def parse_cell(raw: object) -> Cell:
     text = raw.strip().strip("\u00a0\u202f\u2009")
     if not text:
         return BLANK
+    if _CONTROL.search(text):
+        raise CellError(f"control characters in a result cell: {raw!r}")
     if text.lower().replace(" ", "") in _NOT_DETECTED:
         return Cell(kind="censored", relation="<", limit=None)
     if text[0] in "<>≤≥":
