@@ -419,6 +419,10 @@ def load_round(path: str | Path) -> Round:
             if name not in measurands:
                 c.bad("round.youden", name, "names of measurands in this file")
     exclusions = _exclusions(c, data.get("exclude", []), measurands)
+    if r.get("outliers") == "keep" and r.get("stragglers") == "exclude":
+        c.bad("round.stragglers", "exclude",
+              "'keep' while outliers = 'keep' (leaving out stragglers while keeping outliers contradicts "
+              "itself); or set outliers = \"exclude\" too")
     confidence = c.number("round.confidence", r.get("confidence")) or 0.95
     if not 0.5 <= confidence <= 0.999:
         c.bad("round.confidence", confidence, "a number between 0.5 and 0.999")
