@@ -61,11 +61,11 @@ def read_results(rnd: Round, *, jobs: int | None = None, progress=None) -> Resul
     for f in files:
         shown = _shown(rnd, f)
         if single_table:
-            try:
-                sheet = read_rows(f, rnd.results_sheet)
-            except InputError as exc:
-                problems += [_with_file(p, shown) for p in exc.problems]
+            got = _isolated_read(f, rnd.results_sheet)
+            if not hasattr(got, "sheets"):  # a ReadFailure: refused, crashed or timed out
+                problems += [_with_file(p, shown) for p in got.as_problems()]
                 continue
+            sheet = got.sheets[0]
             sheet = SheetRows(file=shown, sheet=sheet.sheet, rows=sheet.rows, warnings=sheet.warnings)
             if sheet.sheet and INFO_SHEET in _sheet_names(f):
                 recs, probs, warns = _read_form(rnd, f)
@@ -208,12 +208,20 @@ def _with_file(problem: Problem, shown: str) -> Problem:
     return replace(problem, file=shown)
 
 
+def _isolated_read(path: Path, sheet: str | None):
+    """One untrusted file read in a bounded worker process (io.safety.read_many)."""
+    from .safety import read_many
+
+    return read_many([path], [sheet], jobs=1)[0]
+
+
 def _sheet_names(path: Path) -> list[str]:
-    from python_calamine import CalamineWorkbook
+    # The package check names the sheets without handing the file to a compiled reader.
+    from .safety import inspect_workbook
 
     try:
-        return CalamineWorkbook.from_path(str(path)).sheet_names
-    except Exception:
+        return list(inspect_workbook(path).sheets)
+    except InputError:
         return []
 
 
