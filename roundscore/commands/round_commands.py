@@ -66,6 +66,9 @@ def summary_text(ev: RoundEvaluation) -> str:
             f"{m.settings.score:<8}{n('acceptable'):>4}{n('warning'):>4}{n('action'):>4}{n('not-scored'):>4}")
     lines.append(f"  {SIGNAL_SYMBOL['acceptable']} acceptable  {SIGNAL_SYMBOL['warning']} warning signal  "
                  f"{SIGNAL_SYMBOL['action']} action signal  {SIGNAL_SYMBOL['not-scored']} not scored")
+    for name, notes in ev.stage_notes.items():
+        for note in notes:
+            lines.append(f"  {name}: {note}")
     for w in ev.warnings:
         lines.append(f"  note: {w}")
     return "\n".join(lines)
