@@ -1,0 +1,51 @@
+"""A tiny run of benchmarks/scale.py, so the benchmark keeps working (its numbers are not checked here)."""
+
+from __future__ import annotations
+
+import math
+import re
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+SCRIPT = Path(__file__).resolve().parents[1] / "benchmarks" / "scale.py"
+FINAL = re.compile(r"^read/floor=(\S+) write/floor=(\S+) total/baseline=(\S+) exponent=(\S+)$")
+
+
+@pytest.fixture(scope="module")
+def tiny_run(tmp_path_factory) -> str:
+    work = tmp_path_factory.mktemp("bench")
+    res = subprocess.run(
+        [sys.executable, str(SCRIPT), "--labs", "8", "--measurands", "3", "--growth", "4", "--core-sets", "20",
+         "--core-labs", "15", "--figure-sample", "1", "--jobs", "2", "--work", str(work)],
+        capture_output=True, text=True, timeout=300)
+    assert res.returncode == 0, res.stderr
+    return res.stdout
+
+
+def test_final_line_has_four_ratios(tiny_run):
+    last = tiny_run.strip().splitlines()[-1]
+    m = FINAL.match(last)
+    assert m, last
+    values = [float(v) for v in m.groups()]
+    assert all(math.isfinite(v) and v > 0 for v in values[:3])
+    assert math.isfinite(values[3])
+
+
+@pytest.mark.parametrize("stage", ["generate", "read", "evaluate", "write", "total", "core", "figures", "growth"])
+def test_one_line_per_stage(tiny_run, stage):
+    assert any(line.startswith(stage) for line in tiny_run.splitlines()), tiny_run
+
+
+def test_stage_lines_give_seconds_and_ratios(tiny_run):
+    lines = {ln.split()[0]: ln for ln in tiny_run.splitlines() if ln.split()}
+    for stage in ("read", "write", "total"):
+        assert re.search(r"\d+\.\d+ s .*× floor .*× baseline", lines[stage]), lines[stage]
+    assert "peak memory" in tiny_run and "GB" in tiny_run
+
+
+def test_refuses_bad_option():
+    res = subprocess.run([sys.executable, str(SCRIPT), "--labs", "many"], capture_output=True, text=True)
+    assert res.returncode == 2 and "--labs" in res.stderr
