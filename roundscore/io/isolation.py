@@ -148,6 +148,9 @@ def _worker(conn, progress, limits: ReadLimits, reader: Reader | None) -> None:
     was on without a message per file.
     """
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # the parent handles ^C and ends its workers
+    import faulthandler
+
+    faulthandler.disable()  # a crash here is reported by the parent as a ReadFailure, not a dump
     _limit_memory(limits.memory_bytes)
     use = reader if reader is not None else _hooked_reader()
     try:
