@@ -26,7 +26,7 @@ import xlsxwriter
 from xlsxwriter.utility import xl_rowcol_to_cell
 
 from ..evaluate import SCORE_COLUMNS, STATISTICS_COLUMNS, RoundEvaluation
-from ..look import CAUTION, SIGNAL_COLOUR, signal_label
+from ..look import CAUTION, SIGNAL_COLOUR, SIGNAL_WORD, signal_label
 
 __all__ = ["write_summary", "write_lab_workbook", "LAB_FORMAT", "FIXED_TIME", "lab_payload"]
 
@@ -76,17 +76,29 @@ def _write(ws, r: int, c: int, v: Any, fmt=None) -> None:
 
 def _table(ws, fm: _Formats, top: int, frame: pd.DataFrame, columns: Iterable[str],
            headers: Iterable[str] | None = None, decimals: dict[str, int | None] | None = None,
-           signal_col: str | None = None, words: str = "signals") -> int:
+           signal_col: str | None = None, words: str = "signals",
+           row_decimals: dict[str, int | None] | None = None) -> int:
+    """Write a header row and the frame's columns; returns the row after the table.
+
+    ``decimals`` fixes a column's decimals; ``row_decimals`` maps measurand
+    → decimals, applied row by row (by the row's ``measurand``) to the value
+    columns of :data:`VALUE_COLUMNS` (with one more decimal for
+    uncertainties and σ_pt).
+    """
     cols = list(columns)
     for j, h in enumerate(headers or cols):
         ws.write_string(top, j, h, fm.head)
     data = {c: (frame[c].tolist() if c in frame else [None] * len(frame)) for c in cols}
+    meas = frame["measurand"].tolist() if row_decimals and "measurand" in frame else None
     for i in range(len(frame)):
+        d_row = row_decimals.get(meas[i]) if meas is not None else None
         for j, c in enumerate(cols):
             v = data[c][i]
             fmt = None
             if decimals and c in decimals:
                 fmt = fm.decimals(decimals[c])
+            elif meas is not None and c in VALUE_COLUMNS and d_row is not None:
+                fmt = fm.decimals(d_row + VALUE_COLUMNS[c])
             if c == signal_col and isinstance(v, str):
                 _write(ws, top + 1 + i, j, signal_label(v, words), fm.signal.get(v))
                 continue
@@ -94,15 +106,52 @@ def _table(ws, fm: _Formats, top: int, frame: pd.DataFrame, columns: Iterable[st
     return top + 1 + len(frame)
 
 
+#: Value columns shown with the measurand's decimals (+0) or one more (+1: uncertainties, σ_pt, robust SDs).
+VALUE_COLUMNS = {"result": 0, "assigned": 0, "d": 0, "robust_mean": 0, "median": 0, "u_assigned": 1,
+                 "sigma_pt": 1, "robust_sd": 1, "made": 1, "niqr": 1}
+#: Widths (characters) a fitted column may take (common practice: readable without wrapping, notes capped).
+MIN_WIDTH, MAX_WIDTH = 6, 60
+#: Rows looked at to fit a column's width (enough to see the longest codes and notes; keeps big rounds fast).
+FIT_ROWS = 500
+
+
+def _fit(frame: pd.DataFrame, columns: Iterable[str], headers: Iterable[str] | None = None,
+         decimals: dict[str, int | None] | None = None, signal_col: str | None = None) -> list[int]:
+    """Column widths that fit the header's longest word and the values (first :data:`FIT_ROWS` rows)."""
+    cols = list(columns)
+    heads = list(headers or cols)
+    out = []
+    for c, h in zip(cols, heads):
+        longest = max((len(w) for w in str(h).split()), default=0)
+        if c in frame:
+            for v in frame[c].iloc[:FIT_ROWS].tolist():
+                if isinstance(v, float):
+                    if math.isnan(v):
+                        continue
+                    d = (decimals or {}).get(c)
+                    n = len(f"{v:.{d}f}") if d is not None else len(f"{v:.6g}")
+                elif c == signal_col:
+                    n = len(str(v)) + 8
+                else:
+                    n = len(str(v))
+                longest = max(longest, n)
+        out.append(min(max(longest + 2, MIN_WIDTH), MAX_WIDTH))
+    return out
+
+
 def _widths(ws, widths: list[int]) -> None:
     for j, w in enumerate(widths):
         ws.set_column(j, j, w)
 
 
-def _print_setup(ws, round_id: str) -> None:
+def _print_setup(ws, round_id: str, header_row: int | None = None) -> None:
+    """Landscape, fit to one page wide, the round id in the page header, the table head on every page."""
     ws.set_landscape()
+    ws.set_paper(9)  # A4
     ws.fit_to_pages(1, 0)
     ws.set_header(f"&L{round_id}&RPage &P of &N")
+    if header_row is not None:
+        ws.repeat_rows(header_row)
 
 
 def _heading(ws, fm: _Formats, ev: RoundEvaluation, title: str) -> int:
@@ -156,64 +205,153 @@ def write_summary(ev: RoundEvaluation, path: Path) -> None:
                      "f": m.sigma_pt, "g": m.settings.score, "h": m.assigned_source, "i": m.sigma_source,
                      "j": "n/a" if m.u_check_passed is None else ("yes" if m.u_check_passed else "NO"),
                      "k": " ".join(m.notes + ev.stage_notes.get(m.name, ()))})
-    r = _table(ws, fm, r, pd.DataFrame(rows), list("abcdefghijk"), head) + 1
+    dec = {n: m.decimals for n, m in rnd.measurands.items()}
+    frame = pd.DataFrame(rows, columns=list("abcdefghijk"))
+    frame["measurand"] = frame["a"]
+    head_row = r
+    r = _table(ws, fm, r, frame.rename(columns={"d": "assigned", "e": "u_assigned", "f": "sigma_pt"}),
+               ["a", "b", "c", "assigned", "u_assigned", "sigma_pt", "g", "h", "i", "j", "k"], head,
+               row_decimals=dec) + 1
     for w in ev.warnings:
         ws.write_string(r, 0, "Note: " + w)
         r += 1
-    _widths(ws, [16, 10, 12, 14, 12, 12, 8, 40, 40, 16, 60])
-    ws.freeze_panes(0, 1)
-    _print_setup(ws, rnd.id)
+    _widths(ws, [max(w, 12) for w in _fit(frame, list("abcdefg"), head[:7])] + [40, 40, 16, 60])
+    ws.freeze_panes(head_row + 1, 1)
+    _print_setup(ws, rnd.id, head_row)
     # Statistics
     ws = wb.add_worksheet("Statistics")
-    _table(ws, fm, 0, ev.statistics, STATISTICS_COLUMNS)
+    _table(ws, fm, 0, ev.statistics, STATISTICS_COLUMNS, row_decimals=dec)
     ws.freeze_panes(1, 1)
-    _widths(ws, [16, 10] + [12] * 12)
-    _print_setup(ws, rnd.id)
+    _widths(ws, _fit(ev.statistics, STATISTICS_COLUMNS, decimals={c: 4 for c in STATISTICS_COLUMNS}))
+    _print_setup(ws, rnd.id, 0)
     # Scores
     ws = wb.add_worksheet("Scores")
     sc = ev.scores
-    end = _table(ws, fm, 0, sc, _SCORE_COLS, _SCORE_HEAD, _score_decimals(ev), "signal", rnd.words)
+    end = _table(ws, fm, 0, sc, _SCORE_COLS, _SCORE_HEAD, _score_decimals(ev), "signal", rnd.words, row_decimals=dec)
     ws.freeze_panes(1, 2)
     ws.autofilter(0, 0, max(end - 1, 1), len(_SCORE_COLS) - 1)
-    _widths(ws, [8, 16, 9, 10, 11, 12, 10, 10, 7, 7, 7, 7, 9, 7, 18, 50])
-    _print_setup(ws, rnd.id)
-    # Charts: one native column chart of the official score per measurand, labs by code.
+    _widths(ws, _fit(sc, _SCORE_COLS, _SCORE_HEAD, {**_score_decimals(ev), "result": 4, "assigned": 4,
+                                                     "u_assigned": 4, "sigma_pt": 4, "d": 4}, "signal"))
+    _print_setup(ws, rnd.id, 0)
+    # Charts: one native chart of the official score per measurand, labs ranked by score, with the
+    # signal as marker shape and legend word as well as colour, and the limit lines.
     ch = wb.add_worksheet("Charts")
-    row = 0
-    score_col = {"z": 8, "z-prime": 9, "zeta": 10, "en": 11}
+    cd = wb.add_worksheet("Chart data")
+    cd.write_string(0, 0, "Data of the charts: each measurand's official scores, ranked", fm.bold)
+    row, top = 0, 2
     for name, m in ev.measurands.items():
-        idx = np.flatnonzero((sc["measurand"] == name).to_numpy())
-        if not len(idx) or not m.scored:
+        g = sc[sc["measurand"] == name]
+        if not len(g) or not m.scored:
             continue
-        first, last = int(idx[0]) + 1, int(idx[-1]) + 1
-        c = wb.add_chart({"type": "column"})
-        col = score_col[m.settings.score]
-        c.add_series({"name": f"{name} {m.settings.score}",
-                      "categories": ["Scores", first, 0, last, 0],
-                      "values": ["Scores", first, col, last, col],
-                      "fill": {"color": "#0072B2"}, "gap": 50})
-        lim = 1 if m.settings.score == "en" else 2
-        c.set_title({"name": f"{name}: {m.settings.score} by lab"})
-        c.set_y_axis({"name": m.settings.score, "major_gridlines": {"visible": True},
-                      "min": -max(4, lim * 2), "max": max(4, lim * 2)})
-        c.set_legend({"none": True})
-        c.set_size({"width": 900, "height": 300})
+        vals = g[SCORE_FIELD[m.settings.score]].to_numpy(float)
+        keep = np.isfinite(vals)
+        order = np.argsort(vals[keep], kind="stable")
+        block = pd.DataFrame({"lab": g["lab"].to_numpy()[keep][order], "score": vals[keep][order],
+                              "signal": g["signal"].to_numpy()[keep][order]})
+        if not len(block):
+            continue
+        c, top = _score_chart(wb, cd, fm, top, block, f"{name} ({m.settings.score})", m.settings.score,
+                              rnd.words, f"{name}: {_SCORE_NAME[m.settings.score]} by laboratory (ranked)")
+        c.set_size({"width": 900, "height": 320})
         ch.insert_chart(row, 0, c)
-        row += 16
+        row += 17
+    cd.freeze_panes(2, 0)
+    _widths(cd, [12, 16, 10, 14, 14, 14, 10, 10, 10, 10])
+    _print_setup(ch, rnd.id)
     # Left out / audit
     ws = wb.add_worksheet("Audit")
     _table(ws, fm, 0, ev.audit, list(ev.audit.columns))
     ws.freeze_panes(1, 0)
-    _widths(ws, [16, 8, 16, 26, 90])
-    _print_setup(ws, rnd.id)
+    _widths(ws, _fit(ev.audit, list(ev.audit.columns)))
+    _print_setup(ws, rnd.id, 0)
     for name, frame in ev.extras.items():
         if isinstance(frame, pd.DataFrame) and len(frame.columns):
             ws = wb.add_worksheet(name.capitalize()[:31])
             _table(ws, fm, 0, frame, list(frame.columns))
             ws.freeze_panes(1, 0)
-            _widths(ws, [16] * len(frame.columns))
-            _print_setup(ws, rnd.id)
+            _widths(ws, _fit(frame, list(frame.columns), decimals={c: 4 for c in frame.columns}))
+            _print_setup(ws, rnd.id, 0)
     wb.close()
+
+
+SCORE_FIELD = {"z": "z", "z-prime": "z_prime", "zeta": "zeta", "en": "en"}
+_SCORE_NAME = {"z": "z-score", "z-prime": "z′-score", "zeta": "ζ-score", "en": "En number"}
+#: Workbook chart marker shapes matching roundscore.look.SIGNAL_MARKER (circle, triangle, square).
+_CHART_MARKER = {"acceptable": "circle", "warning": "triangle", "action": "square"}
+#: Up to this many bars each data point is coloured by its signal (beyond, the file grows by a point
+#: entry per bar per chart; the marker series still carry the signals).
+CHART_POINT_COLOURS = 200
+
+
+def _score_chart(wb, sheet, fm: _Formats, top: int, block: pd.DataFrame, label: str, score: str, words: str,
+                 title: str) -> tuple[Any, int]:
+    """Write one chart's data block at ``top`` on ``sheet`` and return (chart, next free row).
+
+    A column chart of the scores combined with a line chart (no lines) of one
+    marker series per signal, named by the signal word (shape and word, not
+    colour alone), and the warning / action limits (ISO 13528 §9.4: ±2, ±3;
+    En: ±1) as dashed and solid lines.
+    """
+    from ..stats.scores import EN_ACTION, Z_ACTION, Z_WARNING
+
+    limits = [(EN_ACTION, "action", "solid")] if score == "en" else \
+        [(Z_WARNING, "warning", "dash"), (Z_ACTION, "action", "solid")]
+    sname = sheet.get_name()
+    heads = ["Chart", "Lab", "Score", *(SIGNAL_WORD[words][s] for s in _CHART_MARKER)]
+    heads += [f"{sign}{lim:g} {word} limit" for lim, word, _ in limits for sign in "+-"]
+    for j, h in enumerate(heads):
+        sheet.write_string(top, j, h, fm.head)
+    first, last = top + 1, top + len(block)
+    for i, (lab, v, sig) in enumerate(zip(block["lab"], block["score"], block["signal"])):
+        r = first + i
+        sheet.write_string(r, 0, label)
+        sheet.write_string(r, 1, str(lab))
+        sheet.write_number(r, 2, float(v), fm.decimals(2))
+        for j, s in enumerate(_CHART_MARKER, start=3):
+            if sig == s:
+                sheet.write_number(r, j, float(v), fm.decimals(2))
+        for j, (lim, _, _) in enumerate(limits):
+            sheet.write_number(r, 6 + 2 * j, lim)
+            sheet.write_number(r, 7 + 2 * j, -lim)
+    cats = [sname, first, 1, last, 1]
+    col = wb.add_chart({"type": "column"})
+    series = {"name": "score", "categories": cats, "values": [sname, first, 2, last, 2],
+              "fill": {"color": "#9DB9D3"}, "border": {"color": "#555555"}, "gap": 40}
+    if len(block) <= CHART_POINT_COLOURS:
+        series["points"] = [{"fill": {"color": _tint(SIGNAL_COLOUR.get(s, SIGNAL_COLOUR["not-scored"]))},
+                             "border": {"color": "#555555"}} for s in block["signal"]]
+    col.add_series(series)
+    line = wb.add_chart({"type": "line"})
+    for j, s in enumerate(_CHART_MARKER, start=3):
+        if (block["signal"] == s).any():
+            line.add_series({"name": [sname, top, j], "categories": cats, "values": [sname, first, j, last, j],
+                             "line": {"none": True},
+                             "marker": {"type": _CHART_MARKER[s], "size": 6, "fill": {"color": SIGNAL_COLOUR[s]},
+                                        "border": {"color": "#000000"}}})
+    hidden = []
+    n_series = 1 + sum(1 for s in _CHART_MARKER if (block["signal"] == s).any())
+    for j, (lim, word, dash) in enumerate(limits):
+        for sign in (0, 1):
+            c = 6 + 2 * j + sign
+            if sign:
+                hidden.append(n_series)
+            n_series += 1
+            line.add_series({"name": f"{word} limit ±{lim:g}", "categories": cats, "values": [sname, first, c, last, c],
+                             "line": {"color": "#444444", "width": 1, "dash_type": dash}, "marker": {"type": "none"}})
+    col.combine(line)
+    bound = max(limits[-1][0] + 1, 4.0)
+    vmax = float(np.nanmax(np.abs(block["score"].to_numpy(float))))
+    if vmax <= 2 * bound:
+        col.set_y_axis({"name": _SCORE_NAME[score], "min": -max(bound, math.ceil(vmax)),
+                        "max": max(bound, math.ceil(vmax)), "major_gridlines": {"visible": True,
+                        "line": {"color": "#DDDDDD"}}})
+    else:
+        col.set_y_axis({"name": _SCORE_NAME[score]})
+    col.set_x_axis({"name": "laboratory (ranked by score)", "label_position": "low",
+                    "num_font": {"rotation": -90, "size": 8}})
+    col.set_title({"name": title, "name_font": {"size": 11}})
+    col.set_legend({"position": "bottom", "delete_series": [0, *hidden]})
+    return col, last + 2
 
 
 def lab_payload(ev: RoundEvaluation, lab: str, history: pd.DataFrame | None = None) -> dict[str, Any]:
@@ -266,8 +404,7 @@ def write_lab_workbook(payload: dict[str, Any], path: Path) -> None:
         f"{int(k)} of {int(n)}" if isinstance(k, float) and not math.isnan(k) else ""
         for k, n in zip(table["rank"], table["n_scored"])
     ]
-    table["official"] = [row[{"z": "z", "z-prime": "z_prime", "zeta": "zeta", "en": "en"}[row["score"]]]
-                         for _, row in table.iterrows()]
+    table["official"] = [rec[SCORE_FIELD[rec["score"]]] for rec in table.to_dict("records")]
     cols = ["measurand", "unit", "n_replicates", "result", "assigned", "u_assigned", "sigma_pt", "score",
             "official", "signal", "standing", "z", "z_prime", "zeta", "en", "d", "d_percent", "note"]
     head = ["Measurand", "Unit", "Replicates", "Your result", "Assigned value", "u(x_pt)", "σ_pt", "Score",
@@ -275,19 +412,34 @@ def write_lab_workbook(payload: dict[str, Any], path: Path) -> None:
     top = r
     end = _table(ws, fm, r, table, cols, head,
                  {"official": 2, "z": 2, "z_prime": 2, "zeta": 2, "en": 2, "d_percent": 1},
-                 "signal", rd["words"])
+                 "signal", rd["words"], row_decimals=payload["decimals"])
     ws.freeze_panes(top + 1, 1)
-    _widths(ws, [16, 9, 10, 11, 12, 10, 10, 8, 10, 18, 14, 7, 7, 7, 7, 9, 7, 50])
-    if len(table):
-        c = wb.add_chart({"type": "bar"})
-        c.add_series({"name": "Your scores", "categories": ["Scores", top + 1, 0, end - 1, 0],
-                      "values": ["Scores", top + 1, 8, end - 1, 8], "fill": {"color": "#0072B2"}})
-        c.set_title({"name": f"Laboratory {lab}: scores by measurand"})
-        c.set_x_axis({"min": -4, "max": 4, "major_unit": 1, "major_gridlines": {"visible": True}})
-        c.set_legend({"none": True})
-        c.set_size({"width": 620, "height": 60 + 28 * len(table)})
-        ws.insert_chart(end + 1, 0, c)
-    _print_setup(ws, rd["id"])
+    _widths(ws, [max(w, 7) for w in _fit(table, cols, head, {"official": 2, "z": 2, "z_prime": 2, "zeta": 2,
+                                                              "en": 2, "d_percent": 1, "result": 4,
+                                                              "assigned": 4, "u_assigned": 4, "sigma_pt": 4,
+                                                              "d": 4}, "signal")])
+    # Native charts of this lab's official score per measurand (z-like scores and En apart: their limits differ).
+    chart_rows = []
+    for family, members in (("z", ("z", "z-prime", "zeta")), ("en", ("en",))):
+        part = table[table["score"].isin(members) & np.isfinite(table["official"].astype(float))]
+        if len(part):
+            chart_rows.append((family, pd.DataFrame({"lab": part["measurand"].to_numpy(),
+                                                     "score": part["official"].astype(float).to_numpy(),
+                                                     "signal": part["signal"].to_numpy()})))
+    if chart_rows:
+        cd = wb.add_worksheet("Chart data")
+        cd.write_string(0, 0, f"Data of the charts: laboratory {lab}'s scores by measurand", fm.bold)
+        at, row = 2, end + 1
+        for family, block in chart_rows:
+            name = "z, z′, ζ" if family == "z" else "En"
+            c, at = _score_chart(wb, cd, fm, at, block, name, family, rd["words"],
+                                 f"Laboratory {lab}: {name} by measurand")
+            c.set_x_axis({"name": "measurand", "num_font": {"rotation": -45, "size": 8}, "label_position": "low"})
+            c.set_size({"width": 640, "height": 320})
+            ws.insert_chart(row, 0, c)
+            row += 17
+        _widths(cd, [12, 16, 10, 14, 14, 14, 10, 10, 10, 10])
+    _print_setup(ws, rd["id"], top)
     hist = payload.get("history")
     if hist is not None and len(hist):
         # History: the lab's earlier rounds of this scheme (archive rows, roundscore.archive
@@ -389,15 +541,17 @@ def write_lab_workbook(payload: dict[str, Any], path: Path) -> None:
         _widths(hs, [24, 14, 14, 9, 11, 12, 10, 8, 10, 18, 40])
         _print_setup(hs, rd["id"])
     st = wb.add_worksheet("Round statistics")
-    _table(st, fm, 0, payload["statistics"], STATISTICS_COLUMNS)
+    _table(st, fm, 0, payload["statistics"], STATISTICS_COLUMNS, row_decimals=payload["decimals"])
     st.freeze_panes(1, 1)
-    _widths(st, [16, 10] + [12] * 12)
-    _print_setup(st, rd["id"])
+    _widths(st, _fit(payload["statistics"], STATISTICS_COLUMNS, decimals={c: 4 for c in STATISTICS_COLUMNS}))
+    _print_setup(st, rd["id"], 0)
     for name, frame in payload["extras"].items():
         if len(frame):
             xs = wb.add_worksheet(name.capitalize()[:31])
             _table(xs, fm, 0, frame, list(frame.columns))
-            _widths(xs, [14] * len(frame.columns))
+            xs.freeze_panes(1, 0)
+            _widths(xs, _fit(frame, list(frame.columns), decimals={c: 4 for c in frame.columns}))
+            _print_setup(xs, rd["id"], 0)
     data = wb.add_worksheet("data")
     _table(data, fm, 0, own, SCORE_COLUMNS)
     meta = wb.add_worksheet("round")
