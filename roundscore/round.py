@@ -456,6 +456,19 @@ def load_round(path: str | Path) -> Round:
 
 
 def _resolve_results(rnd: Round) -> list[Path]:
+    files = _find_results(rnd)
+    folder = rnd.folder.resolve()
+    for f in files:  # a symbolic link may point out of the folder
+        try:
+            f.resolve().relative_to(folder)
+        except ValueError:
+            raise RoundFileError.single(
+                f"{rnd.path}: key 'round.results': {f.name} leads outside the round folder "
+                f"(a link to {f.resolve()}); results must be inside {rnd.folder}") from None
+    return files
+
+
+def _find_results(rnd: Round) -> list[Path]:
     folder = rnd.folder.resolve()
     target = rnd.results
     shown = f"{rnd.path}: key 'round.results'"
