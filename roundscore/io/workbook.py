@@ -217,6 +217,7 @@ def write_summary(ev: RoundEvaluation, path: Path) -> None:
         r += 1
     _widths(ws, [max(w, 12) for w in _fit(frame, list("abcdefg"), head[:7])] + [40, 40, 16, 60])
     ws.freeze_panes(head_row + 1, 1)
+    ws.set_row(head_row, 30)
     _print_setup(ws, rnd.id, head_row)
     # Statistics
     ws = wb.add_worksheet("Statistics")
@@ -414,10 +415,11 @@ def write_lab_workbook(payload: dict[str, Any], path: Path) -> None:
                  {"official": 2, "z": 2, "z_prime": 2, "zeta": 2, "en": 2, "d_percent": 1},
                  "signal", rd["words"], row_decimals=payload["decimals"])
     ws.freeze_panes(top + 1, 1)
-    _widths(ws, [max(w, 7) for w in _fit(table, cols, head, {"official": 2, "z": 2, "z_prime": 2, "zeta": 2,
+    ws.set_row(top, 30)  # the wrapped head
+    _widths(ws, [max(w, 16 if j == 0 else 7) for j, w in enumerate(_fit(table, cols, head, {"official": 2, "z": 2, "z_prime": 2, "zeta": 2,
                                                               "en": 2, "d_percent": 1, "result": 4,
                                                               "assigned": 4, "u_assigned": 4, "sigma_pt": 4,
-                                                              "d": 4}, "signal")])
+                                                              "d": 4}, "signal"))])
     # Native charts of this lab's official score per measurand (z-like scores and En apart: their limits differ).
     chart_rows = []
     for family, members in (("z", ("z", "z-prime", "zeta")), ("en", ("en",))):

@@ -1,0 +1,148 @@
+"""The HTML report and the lab pages, on the invented demo round (roundscore.demo) and hand-built stage tables."""
+
+from __future__ import annotations
+
+import dataclasses
+import re
+import time
+
+import pandas as pd
+import pytest
+
+from roundscore.demo import make_demo_round
+from roundscore.io import report as R
+from roundscore.io.figures import round_figures
+from roundscore.look import CAUTION
+from roundscore.pipeline import load_and_evaluate
+
+
+@pytest.fixture(scope="module")
+def demo(tmp_path_factory):
+    root = tmp_path_factory.mktemp("report-demo")
+    make_demo_round(root / "round")
+    toml = root / "round" / "round.toml"
+    # a Youden pair for this test (the demo round itself has none)
+    toml.write_text(toml.read_text().replace("replicates = 2\n", 'replicates = 2\nyouden = [["iodine", "arsenic"]]\n', 1))
+    ev = load_and_evaluate(root / "round")
+    parts = R.report_parts(ev)
+    return ev, parts
+
+
+def test_report_has_every_section_and_no_names(demo):
+    ev, parts = demo
+    page = R.report_html(ev, parts)
+    for sid in ("round", "items", "measurands", "youden", "precision", "methods", "scores", "audit", "cautions"):
+        assert f'<section id="{sid}">' in page
+    for p in ev.participants.values():
+        assert p.name not in page and p.contact not in page  # names only in a lab's own page
+    assert CAUTION.replace("'", "&#x27;") in page
+    assert page.count("<figure") >= 2 * len(ev.measurands)
+
+
+def test_report_is_self_contained_and_printable(demo):
+    ev, parts = demo
+    page = R.report_html(ev, parts)
+    without_ns = re.sub(r'xmlns(:\w+)?="http://www\.w3\.org/[^"]*"', "", page)
+    assert not re.search(r"(src|href)=\"(https?:)?//", without_ns) and "<script" not in page
+    assert "<img" not in page and "@import" not in page
+    assert "@media print" in page and "break-inside: avoid" in page and "table-header-group" in page
+
+
+def test_report_is_reproducible(demo):
+    ev, parts = demo
+    assert R.report_html(ev, parts) == R.report_html(ev, R.report_parts(ev, parts.figures))
+
+
+def test_every_lab_and_signal_in_the_score_matrix(demo):
+    ev, parts = demo
+    page = R.report_html(ev, parts)
+    matrix = page[page.index('<section id="scores">'):page.index('<section id="audit">')]
+    for lab in ev.labs:
+        assert f"<th>{lab}</th>" in matrix
+    # symbol in the cell, the word in its title (ISO 13528 words; roundscore.look)
+    assert 'title="action signal">■' in matrix and 'title="warning signal">▲' in matrix
+
+
+def test_lab_page_own_name_only_and_marked_figures(demo):
+    ev, parts = demo
+    lab = "K07"
+    page = R.lab_page_html(ev, parts, lab)
+    assert ev.participants[lab].name in page
+    assert not [p.name for code, p in ev.participants.items() if code != lab and p.name in page]
+    marks = re.findall(r'<g class="lab-mark" aria-label="([^"]+)"', page)
+    assert marks and all(m.endswith(f"({lab})") for m in marks)
+    own = ev.lab_scores(lab)
+    assert page.count("<tr><td><a href=\"#m-") == len(own)
+
+
+def test_lab_page_costs_a_few_ms(demo):
+    ev, parts = demo
+    t = time.perf_counter()
+    for lab in ev.labs:
+        R.lab_page_html(ev, parts, lab)
+    per_page = (time.perf_counter() - t) / len(ev.labs)
+    assert per_page < 0.05  # measured about 5 ms here; generous for slow CI machines
+
+
+def test_write_report_files(demo, tmp_path):
+    ev, parts = demo
+    written = R.write_report(ev, tmp_path, labs=["K01", "K02"], parts=parts)
+    assert [p.name for p in written] == ["report.html", "K01.html", "K02.html"]
+    assert (tmp_path / "labs" / "K01.html").read_text(encoding="utf-8").startswith("<!DOCTYPE html>")
+
+
+@pytest.mark.parametrize("code, name", [("K01", "K01.html"), ("lab 7/β", "lab_7_β.html"), ("../x", ".._x.html")])
+def test_lab_file_name(code, name):
+    assert R.lab_file_name(code) == name
+
+
+def _stage_tables(ev) -> dict[str, pd.DataFrame]:
+    """Hand-built stage tables in the columns the issue fixes (values invented)."""
+    labs = ev.labs[:6]
+    return {
+        "precision": pd.DataFrame([{"measurand": "iodine", "p": 30, "n_bar": 2.0, "s_r": 41.2, "s_L": 90.1,
+                                    "s_R": 99.1, "r": 115.4, "R": 277.5, "s_r_robust": 40.0, "excluded": "K07"}]),
+        "screens": pd.DataFrame([{"measurand": "iodine", "step": 1, "test": "Cochran C", "labs": "K05",
+                                  "statistic": 0.3141, "critical_5": 0.2, "critical_1": 0.25,
+                                  "outcome": "outlier"}]),
+        "mandel": pd.DataFrame({"lab": labs, "measurand": "iodine", "h": [0.1, -1.2, 2.6, 0.3, -0.9, 0.5],
+                                "k": [0.4, 1.9, 0.8, 1.1, 0.2, 1.3], "flag": ["", "", "h 1 %", "", "", ""]}),
+        "methods": pd.DataFrame([{"measurand": "iodine", "groups": "ICP-MS | titration", "test": "Welch t",
+                                  "statistic": 2.7182, "df": 27.3, "p_value": 0.0111, "difference": 61.0,
+                                  "ci_low": 15.0, "ci_high": 107.0, "significant": True}]),
+    }
+
+
+def _iodine_only(ev, **changes):
+    """The demo evaluation cut to one measurand (fewer figures to draw)."""
+    return dataclasses.replace(ev, measurands={"iodine": ev.measurands["iodine"]},
+                               scores=ev.scores[ev.scores["measurand"] == "iodine"], **changes)
+
+
+def test_stage_tables_rendered_when_present(demo):
+    ev, _ = demo
+    ev2 = _iodine_only(ev, extras=_stage_tables(ev))
+    parts = R.report_parts(ev2)
+    page = R.report_html(ev2, parts)
+    for text in ("Cochran C", "0.3141", "277.5", "ICP-MS | titration", "0.0111", "Welch t"):
+        assert text in page
+    # Mandel lines from stats.precision for p = 6, n = 2 (no critical columns in this table)
+    assert "fig-mandel-h-iodine" in page and "fig-mandel-k-iodine" in page
+    lab_page = R.lab_page_html(ev2, parts, ev.labs[2])
+    assert "Your Mandel h and k" in lab_page and "h 1 %" in lab_page
+
+
+def test_report_without_stage_tables(demo):
+    ev, parts = demo
+    ev2 = dataclasses.replace(ev, extras={}, stage_notes={}, details={})
+    page = R.report_html(ev2, R.report_parts(ev2, dataclasses.replace(parts.figures, mandel={})))
+    assert "No precision or screening results" in page and "No method-group comparison" in page
+
+
+def test_round_figures_same_with_workers(demo):
+    ev, parts = demo
+    small = _iodine_only(ev)
+    one, two = round_figures(small, jobs=1), round_figures(small, jobs=2)
+    assert [f.svg for f in two.density.values()] == [f.svg for f in one.density.values()]
+    assert two.scores["iodine"].svg == parts.figures.scores["iodine"].svg
+    assert len(parts.figures.youden) == 1 and not two.youden  # the pair needs both measurands

@@ -1,0 +1,110 @@
+"""The summary workbook and the lab sheets, read back with openpyxl and as zip parts (invented demo round)."""
+
+from __future__ import annotations
+
+import math
+import re
+import zipfile
+
+import openpyxl
+import pytest
+
+from roundscore.demo import make_demo_round
+from roundscore.evaluate import SCORE_COLUMNS
+from roundscore.io.workbook import lab_payload, write_lab_workbook, write_summary
+from roundscore.pipeline import load_and_evaluate
+
+
+@pytest.fixture(scope="module")
+def books(tmp_path_factory):
+    root = tmp_path_factory.mktemp("workbook-demo")
+    make_demo_round(root / "round")
+    ev = load_and_evaluate(root / "round")
+    write_summary(ev, root / "summary.xlsx")
+    lab = "K07"
+    write_lab_workbook(lab_payload(ev, lab), root / f"{lab}.xlsx")
+    return ev, root / "summary.xlsx", root / f"{lab}.xlsx"
+
+
+def _charts(path) -> list[str]:
+    with zipfile.ZipFile(path) as z:
+        return [z.read(n).decode() for n in sorted(z.namelist()) if re.match(r"xl/charts/chart\d+\.xml$", n)]
+
+
+def test_data_and_round_sheets_keep_their_contract(books):
+    ev, _, lab_path = books
+    wb = openpyxl.load_workbook(lab_path)
+    rows = list(wb["data"].iter_rows(values_only=True))
+    assert list(rows[0]) == list(SCORE_COLUMNS)
+    own = ev.lab_scores("K07")
+    assert len(rows) == 1 + len(own)
+    z = dict(zip(own["measurand"], own["z"]))
+    for r in rows[1:]:
+        rec = dict(zip(SCORE_COLUMNS, r))
+        if isinstance(z[rec["measurand"]], float) and math.isfinite(z[rec["measurand"]]):
+            assert rec["z"] == pytest.approx(z[rec["measurand"]], rel=1e-15)
+    meta = dict(list(wb["round"].iter_rows(values_only=True))[1:])
+    assert meta["generator"] == "roundscore" and meta["lab"] == "K07" and meta["format"] == 1
+
+
+@pytest.mark.parametrize("measurand, decimals", [("cadmium", 3), ("arsenic", 1), ("iodine", 0), ("moisture", 2)])
+def test_values_use_the_measurands_decimals(books, measurand, decimals):
+    _, summary, _ = books
+    ws = openpyxl.load_workbook(summary)["Scores"]
+    head = [c.value for c in ws[1]]
+    col_result, col_sigma, col_z = head.index("Result") + 1, head.index("σ_pt") + 1, head.index("z") + 1
+    row = next(r for r in range(2, ws.max_row + 1) if ws.cell(r, 2).value == measurand)
+    want = "0." + "0" * decimals if decimals else "0"
+    assert ws.cell(row, col_result).number_format == want
+    assert ws.cell(row, col_sigma).number_format == "0." + "0" * (decimals + 1)  # one more for σ_pt
+    assert ws.cell(row, col_z).number_format == "0.00"
+
+
+def test_frozen_heads_widths_and_print_setup(books):
+    ev, summary, lab_path = books
+    wb = openpyxl.load_workbook(summary)
+    ws = wb["Scores"]
+    assert ws.freeze_panes == "C2"
+    assert ws.print_title_rows.replace("$", "") == "1:1"
+    assert ws.page_setup.orientation == "landscape" and ws.page_setup.fitToWidth == 1
+    assert ws.sheet_properties.pageSetUpPr.fitToPage
+    assert ev.round.id in ws.oddHeader.left.text
+    widths = {ws.cell(1, j).value: ws.column_dimensions[openpyxl.utils.get_column_letter(j)].width
+              for j in range(1, ws.max_column + 1)}
+    assert widths["Note"] > widths["Unit"] >= 6 and widths["Note"] <= 62
+    lab_ws = openpyxl.load_workbook(lab_path)["Scores"]
+    head_row = next(r for r in range(1, 40) if lab_ws.cell(r, 1).value == "Measurand")
+    assert lab_ws.freeze_panes == f"B{head_row + 1}"
+
+
+def test_summary_has_a_chart_per_scored_measurand_with_signal_shapes(books):
+    ev, summary, _ = books
+    charts = _charts(summary)
+    assert len(charts) == sum(m.scored for m in ev.measurands.values())
+    joined = "".join(charts)
+    # signal marker shapes (roundscore.look: circle, triangle, square) and the limit lines
+    for shape in ("circle", "triangle", "square"):
+        assert f'<c:symbol val="{shape}"/>' in joined
+    assert "warning limit ±2" in joined and "action limit ±1" in joined
+    assert "<c:barChart>" in joined and "<c:lineChart>" in joined
+
+
+def test_lab_sheet_charts_and_names(books):
+    ev, summary, lab_path = books
+    charts = _charts(lab_path)
+    families = {s for s in ev.lab_scores("K07")["score"]}
+    assert len(charts) == (1 if families & {"z", "z-prime", "zeta"} else 0) + (1 if "en" in families else 0)
+    assert "Laboratory K07" in "".join(charts)
+    name = ev.participants["K07"].name
+    with zipfile.ZipFile(lab_path) as z:
+        assert name in z.read("xl/sharedStrings.xml").decode()
+    with zipfile.ZipFile(summary) as z:
+        text = "".join(z.read(n).decode(errors="ignore") for n in z.namelist() if n.endswith(".xml"))
+    assert not [p.name for p in ev.participants.values() if p.name in text]
+
+
+def test_summary_is_reproducible(books, tmp_path):
+    ev, summary, _ = books
+    again = tmp_path / "again.xlsx"
+    write_summary(ev, again)
+    assert again.read_bytes() == summary.read_bytes()
