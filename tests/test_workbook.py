@@ -66,7 +66,9 @@ def test_frozen_heads_widths_and_print_setup(books):
     ws = wb["Scores"]
     assert ws.freeze_panes == "C2"
     assert ws.print_title_rows.replace("$", "") == "1:1"
-    assert ws.page_setup.orientation == "landscape" and ws.page_setup.fitToWidth == 1
+    # fit to one page wide (fitToWidth 1 is the OOXML default, so it is left out), any number of pages tall
+    assert ws.page_setup.orientation == "landscape" and ws.page_setup.fitToWidth in (None, 1)
+    assert int(ws.page_setup.fitToHeight) == 0 and ws.page_setup.paperSize == 9
     assert ws.sheet_properties.pageSetUpPr.fitToPage
     assert ev.round.id in ws.oddHeader.left.text
     widths = {ws.cell(1, j).value: ws.column_dimensions[openpyxl.utils.get_column_letter(j)].width
