@@ -232,3 +232,14 @@ def test_report_prints_to_pdf(browser, demo_report, tmp_path):
     (tmp_path / "report.pdf").write_bytes(pdf)
     assert pdf[:5] == b"%PDF-" and pdf.count(b"/Type /Page\n") + pdf.count(b"/Type /Page ") + \
         pdf.count(b"/Type/Page") >= 5
+
+
+def test_the_checks_can_fail(browser, tmp_path):
+    """A page with a console error, a script error and a collapsed figure is caught (the harness is not blind)."""
+    bad = tmp_path / "bad.html"
+    bad.write_text("<!DOCTYPE html><html><body><figure id='f'><svg width='0' height='0'></svg></figure>"
+                   "<script>console.error('planted error'); undefinedFunction();</script></body></html>")
+    browser.open(bad.as_uri())
+    errors = browser.errors()
+    assert any("planted error" in e for e in errors) and any(e.startswith("exception") for e in errors)
+    assert json.loads(browser.evaluate(FIGURE_SIZES)) == [["f", 0, 0]]
