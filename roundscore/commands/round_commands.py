@@ -8,6 +8,7 @@ from pathlib import Path
 
 from ..evaluate import RoundEvaluation
 from ..look import CAUTION, SIGNAL_SYMBOL
+from ..progress import terminal_bar
 
 __all__ = ["register", "summary_text"]
 
@@ -95,8 +96,12 @@ def run_score(args: argparse.Namespace) -> int:
     folder = rp if rp.is_dir() else rp.parent
     out = Path(args.out) if args.out else folder / "out"
     stored = []
-    ev, outputs = run_round(rp, out, archive=args.archive, jobs=args.jobs,
-                            replace_archive=args.replace_archive, on_archive=stored.append)
+    bar = terminal_bar(enabled=False if args.quiet else None)
+    try:
+        ev, outputs = run_round(rp, out, archive=args.archive, jobs=args.jobs, progress=bar,
+                                replace_archive=args.replace_archive, on_archive=stored.append)
+    finally:
+        bar.close()
     return _report(ev, outputs, quiet=args.quiet, strict=args.strict, stored=stored)
 
 
@@ -106,10 +111,14 @@ def run_demo(args: argparse.Namespace) -> int:
     from ..pipeline import Outputs, atomic_folder, load_and_evaluate, write_outputs
 
     out = Path(args.out)
-    with atomic_folder(out) as tmp:
-        make_demo_round(tmp / "round")
-        ev = load_and_evaluate(tmp / "round")
-        written = write_outputs(ev, tmp)
+    bar = terminal_bar()
+    try:
+        with atomic_folder(out) as tmp:
+            make_demo_round(tmp / "round")
+            ev = load_and_evaluate(tmp / "round", jobs=args.jobs, progress=bar)
+            written = write_outputs(ev, tmp, jobs=args.jobs, progress=bar)
+    finally:
+        bar.close()
     outputs = Outputs(folder=out, files=tuple(out / p.relative_to(tmp) for p in written))
     print(f"Demo round (invented data) written to {out / 'round'}/\n")
     return _report(ev, outputs)
