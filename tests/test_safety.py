@@ -293,3 +293,21 @@ def test_readlimits_validated():
         ReadLimits(max_member_bytes=0)
     with pytest.raises(ValueError, match="timeout_s"):
         ReadLimits(timeout_s=-1)
+
+
+REGRESSIONS = sorted((Path(__file__).parent / "data" / "fuzz_regressions").glob("crash-*"))
+
+
+@pytest.mark.parametrize("path", [p for p in REGRESSIONS if not p.name.endswith(".txt")], ids=lambda p: p.name)
+def test_fuzz_regressions(path: Path):
+    # Crashers kept from fuzz/fuzz_readers.py (see tests/data/fuzz_regressions/README.md).
+    from roundscore.io.safety import FileRows, ReadFailure, read_many
+
+    try:
+        read_file_sheets(path, ["Results", "form-info"])
+    except InputError as exc:
+        assert str(path) in str(exc)
+    got = read_many([path], ["Results", "form-info"], jobs=1)[0]
+    assert isinstance(got, (FileRows, ReadFailure))
+    if isinstance(got, ReadFailure):
+        assert "reader failed" not in got.reason and "stopped by" not in got.reason

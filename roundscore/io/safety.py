@@ -274,18 +274,25 @@ def inspect_workbook(path: str | Path, limits: ReadLimits = DEFAULT_LIMITS) -> W
         raise _refuse(file, f"the file is {size // MiB} MiB, more than the limit of "
                             f"{limits.max_total_bytes / MiB:g} MiB for a whole workbook")
     scan = _Scan(file=file, limits=limits)
-    entries = None
-    if size <= _FAST_PATH_BYTES:
-        with open(path, "rb") as fh:
-            data = fh.read()
-        entries = _central_directory(data)
-    if entries is not None:
-        _check_count(scan, len(entries))
-        for entry in entries:
-            _fast_member(scan, data, *entry)
-    else:
-        _inspect_zipfile(path, scan)
-    return _assemble(file, scan.parts, scan.scans, scan.macros, scan.total)
+    try:
+        entries = None
+        if size <= _FAST_PATH_BYTES:
+            with open(path, "rb") as fh:
+                data = fh.read()
+            entries = _central_directory(data)
+        if entries is not None:
+            _check_count(scan, len(entries))
+            for entry in entries:
+                _fast_member(scan, data, *entry)
+        else:
+            _inspect_zipfile(path, scan)
+        return _assemble(file, scan.parts, scan.scans, scan.macros, scan.total)
+    except InputError:
+        raise
+    except (zipfile.BadZipFile, zipfile.LargeZipFile, NotImplementedError, RuntimeError, struct.error,
+            zlib.error, EOFError, OSError, ValueError, IndexError, KeyError, OverflowError) as exc:
+        # Whatever the zip layer trips over in damaged bytes is the same finding for the user.
+        raise _refuse(file, f"corrupt or not an .xlsx file ({type(exc).__name__}: {exc})") from None
 
 
 #: Packages up to this size are read whole and inflated in bounded calls per member
