@@ -160,6 +160,8 @@ def parse_cell(raw: object) -> Cell:
     >>> parse_cell("<0.5").kind, parse_cell("<0.5").limit
     ('censored', 0.5)
     """
+    if type(raw) is float and math.isfinite(raw):  # the usual case from a workbook: no further checks needed
+        return Cell(kind="value", value=raw, text=repr(raw))
     if raw is None:
         return BLANK
     if isinstance(raw, bool):

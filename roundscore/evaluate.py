@@ -137,17 +137,37 @@ class RoundEvaluation:
     stage_notes: dict[str, tuple[str, ...]] = field(default_factory=dict)
     details: dict[str, Any] = field(default_factory=dict)
     warnings: tuple[str, ...] = ()
+    _cache: dict[str, Any] = field(default_factory=dict, repr=False, compare=False)
 
     @property
     def labs(self) -> list[str]:
         return sorted(self.scores["lab"].unique(), key=_lab_key)
 
     def lab_scores(self, lab: str) -> pd.DataFrame:
-        return self.scores[self.scores["lab"] == lab]
+        """This lab's rows of :attr:`scores` (grouped once, then looked up)."""
+        return self.lab_rows("scores", lab)
+
+    def lab_rows(self, table: str, lab: str) -> pd.DataFrame:
+        """This lab's rows of ``scores`` or of an extras table with a ``lab`` column.
+
+        The table is split by lab on first use and the pieces are kept, so
+        writing thousands of lab sheets does not filter the whole table each time.
+        """
+        groups = self._cache.get(table)
+        frame = self.scores if table == "scores" else self.extras[table]
+        if groups is None:
+            groups = self._cache[table] = {k: g for k, g in frame.groupby("lab", sort=False)}
+        got = groups.get(lab)
+        return got if got is not None else frame.iloc[0:0]
 
     @property
     def failed_checks(self) -> list[str]:
         """Headlines of failed checks that must head the summary and every lab sheet."""
+        if "failed_checks" not in self._cache:
+            self._cache["failed_checks"] = self._failed_checks()
+        return list(self._cache["failed_checks"])
+
+    def _failed_checks(self) -> list[str]:
         out = []
         for m in self.measurands.values():
             if m.u_check_passed is False:
@@ -334,13 +354,18 @@ def _score_rows(rnd: Round, mr: MeasurandResult) -> pd.DataFrame:
     sig = sc.signal(chosen, "en" if m.score == "en" else "z")
     notes = labs["reason"].fillna("").astype(str).to_numpy(dtype=object)
     slip = sc.possible_unit_slip(x, x_pt)
+    status = labs["status"].to_numpy(dtype=object)
+    limits = labs["limit"].to_numpy(dtype=float)
+    relations = labs["relation"].to_numpy(dtype=object)
+    texts = labs["result_text"].to_numpy(dtype=object)
+    withheld = labs["withhold"].to_numpy(dtype=bool)
     for i in range(len(labs)):
-        st = labs["status"].iat[i]
+        st = status[i]
         add = []
         if st == "not-reported":
             add.append("not reported")
         elif st == "censored":
-            lim, rel = labs["limit"].iat[i], labs["relation"].iat[i]
+            lim, rel = limits[i], relations[i]
             if rel == "<" and np.isfinite(lim) and mr.scored and lim < x_pt - sc.Z_ACTION * s_pt:
                 sig[i] = "action"
                 add.append("false negative: the limit is below x_pt − 3σ_pt")
@@ -348,10 +373,10 @@ def _score_rows(rnd: Round, mr: MeasurandResult) -> pd.DataFrame:
                 sig[i] = "action"
                 add.append("false positive: the limit is above x_pt + 3σ_pt")
             else:
-                add.append(f"censored result {labs['result_text'].iat[i]}: not scored")
+                add.append(f"censored result {texts[i]}: not scored")
         elif not mr.scored:
             add.append("not scored: the assigned value or σ_pt could not be set")
-        elif labs["withhold"].iat[i]:
+        elif withheld[i]:
             add.append("score withheld by the coordinator")
         elif np.isnan(chosen[i]):
             add.append({"zeta": "no uncertainty reported: ζ needs u", "en": "no uncertainty reported: En needs U"}

@@ -32,8 +32,9 @@ __all__ = ["write_summary", "write_lab_workbook", "LAB_FORMAT", "FIXED_TIME", "l
 
 LAB_FORMAT = 1
 FIXED_TIME = dt.datetime(2000, 1, 1)
+# in_memory: assemble the package in memory instead of ~20 temporary files per workbook (about 2× faster).
 _OPTIONS = {"strings_to_formulas": False, "strings_to_urls": False, "strings_to_numbers": False,
-            "nan_inf_to_errors": True}
+            "nan_inf_to_errors": True, "in_memory": True}
 
 
 class _Formats:
@@ -368,7 +369,7 @@ def lab_payload(ev: RoundEvaluation, lab: str, history: pd.DataFrame | None = No
         "scores": own,
         "statistics": ev.statistics,
         "decimals": {n: m.decimals for n, m in rnd.measurands.items()},
-        "extras": {k: v[v["lab"] == lab] for k, v in ev.extras.items()
+        "extras": {k: ev.lab_rows(k, lab) for k, v in ev.extras.items()
                    if isinstance(v, pd.DataFrame) and "lab" in v.columns},
         "items": ev.extras.get("items"),
         "history": history,
