@@ -104,36 +104,57 @@ def niqr(x: np.ndarray, axis: int = -1) -> np.ndarray:
 def _algorithm_a_2d(
     x: np.ndarray, sd_factor: float, tol: float, maxiter: int
 ) -> tuple[np.ndarray, ...]:
-    """Vectorised Algorithm A over the rows of ``x`` (NaN = no result)."""
-    n = np.sum(~np.isnan(x), axis=1)
+    """Vectorised Algorithm A over the rows of ``x`` (NaN = no result).
+
+    The rows still iterating are kept in a compact working array that is
+    shrunk only when some rows converge; missing results are held as zeros
+    with a 0/1 mask, so each step is a few plain array passes (no NaN-aware
+    reductions, which copy their input).
+    """
+    missing = np.isnan(x)
+    any_missing = bool(missing.any())
+    n = x.shape[1] - np.sum(missing, axis=1)
     with np.errstate(all="ignore"):
-        start_mean = np.nanmedian(x, axis=1)
-        start_sd = MADE_FACTOR * np.nanmedian(np.abs(x - start_mean[:, None]), axis=1)
+        med = np.nanmedian if any_missing else np.median
+        start_mean = med(x, axis=1)
+        start_sd = MADE_FACTOR * med(np.abs(x - start_mean[:, None]), axis=1)
         from_niqr = start_sd == 0
         if from_niqr.any():
             start_sd = np.where(from_niqr, niqr(x, axis=1), start_sd)
     mean = start_mean.copy()
     sd = start_sd.copy()
     iterations = np.zeros(len(x), dtype=int)
-    active = np.flatnonzero((sd > 0) & (n >= 2))
+    rows = np.flatnonzero((sd > 0) & (n >= 2))
+    X = np.where(missing[rows], 0.0, x[rows]) if any_missing else x[rows]
+    mask = (~missing[rows]).astype(float) if any_missing else None
+    N = n[rows].astype(float)
+    m, s = mean[rows], sd[rows]
+    W = np.empty_like(X)
     for _ in range(maxiter):
-        if active.size == 0:
+        if rows.size == 0:
             break
-        xa = x[active]
-        m, s = mean[active], sd[active]
         delta = ALGORITHM_A_WINSOR * s
-        w = np.clip(xa, (m - delta)[:, None], (m + delta)[:, None])
-        new_m = np.nanmean(w, axis=1)
+        np.clip(X, (m - delta)[:, None], (m + delta)[:, None], out=W)
+        if mask is not None:
+            W *= mask
+        new_m = W.sum(axis=1) / N
         # Two-pass sum of squares about the new mean: stable for large offsets.
-        dev = w - new_m[:, None]
-        new_s = sd_factor * np.sqrt(np.nansum(dev * dev, axis=1) / (n[active] - 1))
+        np.subtract(W, new_m[:, None], out=W)
+        if mask is not None:
+            W *= mask
+        new_s = sd_factor * np.sqrt(np.einsum("ij,ij->i", W, W) / (N - 1))
         done = (np.abs(new_m - m) <= tol * s) & (np.abs(new_s - s) <= tol * s)
-        mean[active], sd[active] = new_m, new_s
-        iterations[active] += 1
-        active = active[~done & (new_s > 0)]
-    if active.size:
+        mean[rows], sd[rows] = new_m, new_s
+        iterations[rows] += 1
+        keep = ~done & (new_s > 0)
+        m, s = new_m, new_s
+        if not keep.all():
+            rows, X, N, m, s = rows[keep], X[keep], N[keep], m[keep], s[keep]
+            mask = mask[keep] if mask is not None else None
+            W = np.empty_like(X)
+    if rows.size:
         raise StatisticsError(
-            f"Algorithm A did not converge in {maxiter} iterations for {active.size} set(s) of results"
+            f"Algorithm A did not converge in {maxiter} iterations for {rows.size} set(s) of results"
         )
     return mean, sd, n, iterations, start_mean, start_sd, from_niqr
 
