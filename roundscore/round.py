@@ -18,6 +18,7 @@ from pathlib import Path
 from typing import Any, Literal
 
 from .errors import Problem, RoundFileError
+from .io.safety import DEFAULT_LIMITS, ReadLimits
 
 __all__ = [
     "Round",
@@ -53,6 +54,15 @@ ROUND_KEYS: dict[str, str] = {
     "history_rounds": "whole number: past rounds shown on each lab sheet (default 8)",
     "youden": "list of pairs of measurand names for Youden plots",
     "words": "'signals' (acceptable/warning/action) or 'performance' (satisfactory/questionable/unsatisfactory)",
+}
+#: ``[limits]``: bounds on reading untrusted files (see roundscore.io.safety.ReadLimits).
+LIMIT_KEYS: dict[str, tuple[str, float]] = {
+    "max_part_mib": ("max_member_bytes", 1 << 20),
+    "max_total_mib": ("max_total_bytes", 1 << 20),
+    "max_parts": ("max_members", 1),
+    "timeout_s": ("timeout_s", 1),
+    "memory_mib": ("memory_bytes", 1 << 20),
+    "max_text_mib": ("max_text_bytes", 1 << 20),
 }
 MEASURAND_KEYS: dict[str, str] = {
     "unit": "text (required): a unit such as mg/kg, µg/L, g/100 g, %",
@@ -159,6 +169,7 @@ class Round:
     words: str
     measurands: dict[str, MeasurandSettings]
     exclusions: tuple[Exclusion, ...] = field(default=())
+    limits: ReadLimits = DEFAULT_LIMITS
     warnings: tuple[str, ...] = field(default=())
 
     def result_files(self) -> list[Path]:
@@ -358,6 +369,27 @@ def _exclusions(c: _Checker, raw: object, measurands: dict) -> tuple[Exclusion, 
     return tuple(out)
 
 
+def _limits(c: _Checker, raw: object) -> ReadLimits:
+    """``[limits]`` → ReadLimits; sizes in MiB, the timeout in seconds."""
+    if not isinstance(raw, dict):
+        c.bad("limits", raw, "a table: [limits] max_part_mib = 64, max_total_mib = 256, ...")
+        return DEFAULT_LIMITS
+    c.unknown("[limits] ", raw, {k: "" for k in LIMIT_KEYS})
+    kw: dict[str, int | float] = {}
+    for key, value in raw.items():
+        if key not in LIMIT_KEYS:
+            continue
+        field_name, unit = LIMIT_KEYS[key]
+        v = c.number(f"limits.{key}", value, positive=True)
+        if v is not None:
+            kw[field_name] = v if field_name == "timeout_s" else int(v * unit)
+    try:
+        return ReadLimits(**kw)
+    except ValueError as exc:
+        c.bad("limits", raw, str(exc))
+        return DEFAULT_LIMITS
+
+
 def load_round(path: str | Path) -> Round:
     """Read and validate a round file (or a folder holding ``round.toml``).
 
@@ -380,8 +412,8 @@ def load_round(path: str | Path) -> Round:
         raise RoundFileError.single(f"{shown}: not UTF-8 text: {exc}") from None
     c = _Checker(shown)
     folder = p.parent
-    c.unknown("", {k: v for k, v in data.items() if k not in ("round", "measurand", "exclude")},
-              {"round": "", "measurand": "", "exclude": ""})
+    c.unknown("", {k: v for k, v in data.items() if k not in ("round", "measurand", "exclude", "limits")},
+              {"round": "", "measurand": "", "exclude": "", "limits": ""})
     r = data.get("round")
     if not isinstance(r, dict):
         raise RoundFileError.single(f"{shown}: a [round] table with at least id = \"...\" is required")
@@ -419,6 +451,7 @@ def load_round(path: str | Path) -> Round:
             if name not in measurands:
                 c.bad("round.youden", name, "names of measurands in this file")
     exclusions = _exclusions(c, data.get("exclude", []), measurands)
+    limits = _limits(c, data.get("limits", {}))
     if r.get("outliers") == "keep" and r.get("stragglers") == "exclude":
         c.bad("round.stragglers", "exclude",
               "'keep' while outliers = 'keep' (leaving out stragglers while keeping outliers contradicts "
@@ -448,6 +481,7 @@ def load_round(path: str | Path) -> Round:
         words=c.choice("round.words", r.get("words"), ("signals", "performance"), "signals"),
         measurands=measurands,
         exclusions=exclusions,
+        limits=limits,
         warnings=tuple(c.warnings),
     )
     if c.problems:

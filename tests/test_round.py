@@ -88,3 +88,20 @@ def test_missing_results_file_named(make_round):
     rnd = load_round(make_round(GOOD))
     with pytest.raises(RoundFileError, match="'results.csv' not found"):
         rnd.result_files()
+
+
+def test_limits_table_configures_the_readers(make_round):
+    # Internal behaviour: [limits] sizes in MiB reach the readers (roundscore.io.safety.ReadLimits).
+    from roundscore.errors import InputError
+    from roundscore.io.readers import read_results
+
+    rows = "lab,measurand,replicate,value\n" + "".join(f"L{i},a,1,{i}.5\n" for i in range(50))
+    folder = make_round('[round]\nid="R"\n[limits]\nmax_text_mib = 0.0005\ntimeout = 3\n'
+                        '[measurand.a]\nunit="mg/kg"\nsigma_pt=1\n', rows)
+    rnd = load_round(folder)
+    assert rnd.limits.max_text_bytes == int(0.0005 * (1 << 20))
+    assert any("did you mean 'timeout_s'" in w for w in rnd.warnings)
+    with pytest.raises(InputError, match="MiB"):
+        read_results(rnd)
+    with pytest.raises(RoundFileError, match="limits.memory_mib"):
+        load_round(make_round('[round]\nid="R"\n[limits]\nmemory_mib = -1\n[measurand.a]\nunit="mg/kg"\nsigma_pt=1\n'))

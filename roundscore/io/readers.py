@@ -28,12 +28,13 @@ def _is_form(path: Path) -> bool:
 
 
 def _read_form(rnd: Round, path: Path):
-    try:
-        results = read_rows(path, RESULTS_SHEET)
-        info = read_rows(path, INFO_SHEET)
-    except InputError as exc:
-        return [], [_with_file(p, _shown(rnd, path)) for p in exc.problems], ()
+    """One returned form given as the round's single results file (read in isolation)."""
     shown = _shown(rnd, path)
+    (got,) = _read_sheets([str(path)], rnd.limits)
+    if not isinstance(got, tuple):  # a ReadFailure or an InputError
+        probs = got.as_problems() if hasattr(got, "as_problems") else list(got.problems)
+        return [], [_with_file(p, shown) for p in probs], ()
+    results, info = got
     results = SheetRows(file=shown, sheet=results.sheet, rows=results.rows, warnings=results.warnings)
     recs, problems = records_from_form(rnd, results, info)
     return recs, problems, results.warnings + info.warnings
@@ -61,7 +62,7 @@ def read_results(rnd: Round, *, jobs: int | None = None, progress=None) -> Resul
     for f in files:
         shown = _shown(rnd, f)
         if single_table:
-            got = _isolated_read(f, rnd.results_sheet)
+            got = _isolated_read(f, rnd.results_sheet, rnd.limits)
             if not hasattr(got, "sheets"):  # a ReadFailure: refused, crashed or timed out
                 problems += [_with_file(p, shown) for p in got.as_problems()]
                 continue
@@ -145,22 +146,12 @@ def _read_forms(rnd: Round, files: list[Path], *, jobs: int | None, progress) ->
     return ResultTable(frame=frame, files=tuple(shown), warnings=tuple(warnings))
 
 
-def _read_sheets(paths: list[str]) -> list:
-    """Both sheets of each form: through the isolated reader when it is there, else in this process."""
-    try:
-        from .safety import read_many
-    except ImportError:  # the isolated reader is optional here
-        read_many = None
-    if read_many is not None:
-        return [r.sheets if hasattr(r, "sheets") else r for r in
-                read_many(paths, [RESULTS_SHEET, INFO_SHEET], jobs=1)]
-    out = []
-    for p in paths:
-        try:
-            out.append((read_rows(p, RESULTS_SHEET), read_rows(p, INFO_SHEET)))
-        except InputError as exc:
-            out.append(exc)
-    return out
+def _read_sheets(paths: list[str], limits) -> list:
+    """Both sheets of each form, each file read by the isolated reader (io.safety.read_many)."""
+    from .safety import read_many
+
+    return [r.sheets if hasattr(r, "sheets") else r for r in
+            read_many(paths, [RESULTS_SHEET, INFO_SHEET], jobs=1, limits=limits)]
 
 
 def _form_batch(batches: list[list[str]]) -> list[dict]:
@@ -175,7 +166,7 @@ def _form_batch(batches: list[list[str]]) -> list[dict]:
         warnings: list[str] = []
         shown_all = [_shown(rnd, Path(p)) for p in paths]
         forms = [p for p in paths if _is_form(Path(p))]
-        read = dict(zip(forms, _read_sheets(forms)))
+        read = dict(zip(forms, _read_sheets(forms, rnd.limits)))
         for p, shown in zip(paths, shown_all):
             if p not in read:
                 problems.append(Problem(message="not a submission workbook (.xlsx)", file=shown))
@@ -208,11 +199,11 @@ def _with_file(problem: Problem, shown: str) -> Problem:
     return replace(problem, file=shown)
 
 
-def _isolated_read(path: Path, sheet: str | None):
+def _isolated_read(path: Path, sheet: str | None, limits):
     """One untrusted file read in a bounded worker process (io.safety.read_many)."""
     from .safety import read_many
 
-    return read_many([path], [sheet], jobs=1)[0]
+    return read_many([path], [sheet], jobs=1, limits=limits)[0]
 
 
 def _sheet_names(path: Path) -> list[str]:
@@ -237,7 +228,7 @@ def read_participants(rnd: Round) -> dict[str, Participant]:
     if rnd.participants is None:
         return {}
     shown = _shown(rnd, rnd.participants)
-    sheet = read_rows(rnd.participants)
+    sheet = read_rows(rnd.participants, limits=rnd.limits)
     rows = [r for r in sheet.rows if any(c is not None for c in r)]
     if not rows:
         raise InputError.single("the participants file is empty", file=shown)
@@ -274,5 +265,5 @@ def read_item_table(rnd: Round, path: Path, *, what: str) -> SheetRows:
     """Read a homogeneity or stability table named in the round file."""
     if not path.is_file():
         raise InputError.single(f"the {what} file named in the round file was not found", file=_shown(rnd, path))
-    sheet = read_rows(path)
+    sheet = read_rows(path, limits=rnd.limits)
     return SheetRows(file=_shown(rnd, path), sheet=sheet.sheet, rows=sheet.rows, warnings=sheet.warnings)
