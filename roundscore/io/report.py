@@ -4,8 +4,17 @@
 measurand's statistics and figures, the Youden plots, precision and
 screens, method groups, every lab's scores with signals, the audit trail
 and the cautions. Labs appear only by code in it. ``labs/LAB.html`` holds
-one lab's own results, its figures (the shared SVG with its bar or result
-marked) and, at the top, its name: names appear only in the lab's own page.
+one lab's own results and, at the top, its name: names appear only in the
+lab's own page.
+
+A lab page shows where the lab stands on every measurand as a compact score
+strip (:mod:`roundscore.io.strips`: hand-written SVG, about 3 KB, the shared
+part built once per measurand and the lab's marker appended). In a small
+round (at most :data:`FULL_FIGURES_MAX_LABS` labs and
+:data:`FULL_FIGURES_MAX_MEASURANDS` measurands) the page also carries the
+round report's full figures with the lab marked; in a larger one these would
+make every page megabytes (40 figures of 80-180 KB), so the page has the
+strips only and says that the full figures are in the round report.
 
 A print stylesheet makes a browser print either page to PDF cleanly
 (sections start on a new page, figures and table rows are not split,
@@ -14,7 +23,9 @@ table heads repeat).
 Everything shown comes from the :class:`~roundscore.evaluate.RoundEvaluation`
 and the figures of :func:`~roundscore.io.figures.round_figures`; nothing is
 recomputed. The shared parts are built once, so a lab page costs a few
-milliseconds (string joins), whatever the size of the round.
+milliseconds (string joins) and, past the small-round limits, its size does
+not grow with the number of labs (measured: about 120 KB and 2 ms per page at
+2000 labs × 40 measurands).
 """
 
 from __future__ import annotations
@@ -30,11 +41,18 @@ import pandas as pd
 
 from ..look import CAUTION, SIGNAL_COLOUR, SIGNAL_SYMBOL, SIGNAL_WORD
 from .figures import SCORE_FIELD, RoundFigures, SvgFigure, round_figures
+from .strips import ScoreStrip, score_strip, strip_legend
 
 __all__ = ["write_report", "report_html", "lab_page_html", "ReportParts", "report_parts", "lab_file_name",
-           "REPORT_NAME"]
+           "REPORT_NAME", "FULL_FIGURES_MAX_LABS", "FULL_FIGURES_MAX_MEASURANDS", "full_lab_figures"]
 
 REPORT_NAME = "report.html"
+#: A lab page carries the full figures (besides its strips) only in a round of at most this many labs and
+#: measurands: there the page stays under about 1 MB (measured: 360 KB at 31 labs × 6 measurands); a
+#: 2000-lab figure is 80-180 KB, so 40 of them would make each page megabytes (common practice: keep an
+#: e-mailed page well under a few MB).
+FULL_FIGURES_MAX_LABS = 100
+FULL_FIGURES_MAX_MEASURANDS = 10
 _SIGNALS = ("acceptable", "warning", "action", "not-scored")
 
 
@@ -63,6 +81,7 @@ dl.kv { display: grid; grid-template-columns: max-content 1fr; gap: .1rem 1rem; 
 dl.kv dt { font-weight: bold; } dl.kv dd { margin: 0; }
 figure { margin: .8rem 0 1.2rem; } figure svg { width: 100%; height: auto; max-width: 46rem; display: block; }
 figure.square svg { max-width: 40rem; }
+figure.strip { margin: 0; } figure.strip svg { max-width: none; border-bottom: 1px solid var(--rule); }
 figcaption { font-size: .85rem; color: var(--muted); max-width: 46rem; }
 .legend span { margin-right: 1.2rem; white-space: nowrap; } .muted { color: var(--muted); }
 """ + "".join(
@@ -143,6 +162,31 @@ def _table(frame: pd.DataFrame | None, columns: Sequence[str] | None = None, hea
     return "".join(out)
 
 
+def _records_table(rows: Sequence[dict[str, Any]], decimals: dict[str, int | None] | None = None) -> str:
+    """An HTML table of records (the keys of the first as columns): :func:`_table` without building a frame.
+
+    For the few rows of one lab, where a DataFrame would cost more than the HTML.
+    """
+    if not rows:
+        return '<p class="muted">Not available.</p>'
+    decimals = decimals or {}
+    cols = list(rows[0])
+    out = ['<table class="wide"><thead><tr>', "".join(f"<th>{_e(c)}</th>" for c in cols), "</tr></thead><tbody>"]
+    for rec in rows:
+        cells = []
+        for c in cols:
+            v = rec.get(c)
+            if isinstance(v, (bool, np.bool_)):
+                cells.append(f"<td>{'yes' if v else 'no'}</td>")
+            elif isinstance(v, (int, float, np.integer, np.floating)):
+                cells.append(f'<td class="n">{_num(v, decimals.get(c))}</td>')
+            else:
+                cells.append(f"<td>{_e(v)}</td>")
+        out.append("<tr>" + "".join(cells) + "</tr>")
+    out.append("</tbody></table>")
+    return "".join(out)
+
+
 def _figure(svg: str, fig: SvgFigure, square: bool = False) -> str:
     cls = ' class="square"' if square else ""
     return (f'<figure{cls} id="fig-{_e(fig.key)}">{svg}<figcaption><strong>{_e(fig.title)}.</strong> '
@@ -193,6 +237,12 @@ class ReportParts:
         Each lab's score rows (the scores frame as records), in measurand order.
     mandel_by_lab : dict of str to list of dict
         Each lab's Mandel rows, when the round has them.
+    strips : dict of str to ScoreStrip
+        By measurand (every measurand, in the round's order): the shared score strip.
+    full_figures : bool
+        Whether lab pages also carry the full figures (:func:`full_lab_figures`).
+    figures_note : str
+        What a lab page says when it leaves the full figures out ("" when it carries them).
     """
 
     figures: RoundFigures
@@ -200,6 +250,28 @@ class ReportParts:
     statistics: str
     scores_by_lab: dict[str, list[dict[str, Any]]]
     mandel_by_lab: dict[str, list[dict[str, Any]]]
+    strips: dict[str, ScoreStrip]
+    full_figures: bool
+    figures_note: str
+
+
+def full_lab_figures(n_labs: int, n_measurands: int) -> bool:
+    """Whether a round is small enough for its lab pages to carry the full figures as well as the strips."""
+    return n_labs <= FULL_FIGURES_MAX_LABS and n_measurands <= FULL_FIGURES_MAX_MEASURANDS
+
+
+def _strips(ev) -> dict[str, ScoreStrip]:
+    """One shared strip per measurand from the evaluation's official scores (not recomputed)."""
+    sc = ev.scores
+    groups = {name: g for name, g in sc.groupby("measurand", sort=False)} if len(sc) else {}
+    out = {}
+    for name, m in ev.measurands.items():
+        score = m.settings.score
+        g = groups.get(name)
+        values = g[SCORE_FIELD.get(score, "z")].to_numpy(float) if g is not None and m.scored else []
+        title = m.settings.label or name
+        out[name] = score_strip(values, measurand=name, score=score, title=title, key=f"strip-{name}")
+    return out
 
 
 def _round_facts(ev) -> list[tuple[str, Any]]:
@@ -223,8 +295,16 @@ def report_parts(ev, figures: RoundFigures | None = None) -> ReportParts:
     if mandel is not None and "lab" in getattr(mandel, "columns", ()):
         for rec in mandel.to_dict("records"):
             m_by_lab.setdefault(rec["lab"], []).append(rec)
+    n_labs, n_meas = len(ev.labs), len(ev.measurands)
+    full = full_lab_figures(n_labs, n_meas)
+    note = ""
+    if not full and (figures.scores or figures.youden):
+        note = ('<p class="muted">The ranked score charts, the distributions of results'
+                + (" and the Youden plots" if figures.youden else "")
+                + f" of this round are in the round report (laboratories by code only); with {n_labs} "
+                f"laboratories and {n_meas} measurands they are left out of this page to keep it small.</p>")
     return ReportParts(figures=figures, heading=heading, statistics=stats, scores_by_lab=by_lab,
-                       mandel_by_lab=m_by_lab)
+                       mandel_by_lab=m_by_lab, strips=_strips(ev), full_figures=full, figures_note=note)
 
 
 # ------------------------------------------------------------------------------------------ round report
@@ -373,7 +453,11 @@ def report_html(ev, parts: ReportParts | None = None) -> str:
 # ------------------------------------------------------------------------------------------ lab page
 
 def lab_page_html(ev, parts: ReportParts, lab: str) -> str:
-    """One lab's confidential page: its name, its scores, the shared figures with its bar or result marked."""
+    """One lab's confidential page: its name, its scores, a strip per measurand with its score marked.
+
+    In a small round (``parts.full_figures``) the round report's figures
+    follow, with the lab's bar or result marked.
+    """
     r = ev.round
     words = r.words
     p = ev.participants.get(lab)
@@ -390,31 +474,45 @@ def lab_page_html(ev, parts: ReportParts, lab: str) -> str:
         standing = f"{int(rank)} of {int(n)}" if isinstance(rank, float) and math.isfinite(rank) else ""
         res = rec["result"]
         table.append(
-            f'<tr><td><a href="#m-{_e(meas)}">{_e(meas)}</a></td><td>{_e(rec["unit"])}</td>'
+            f'<tr><td><a href="#strip-{_e(meas)}">{_e(meas)}</a></td><td>{_e(rec["unit"])}</td>'
             f'<td class="n">{_num(res, d) if not isinstance(res, str) else _e(res)}</td>'
             f'<td class="n">{_num(rec["assigned"], d)}</td><td class="n">{_num(rec["u_assigned"], _more(d))}</td>'
             f'<td class="n">{_num(rec["sigma_pt"], _more(d))}</td><td>{_e(rec["score"])}</td>'
             f'<td class="n">{_num(v, 2)}</td>{_signal_cell(rec["signal"], words)}<td>{standing}</td>'
             f'<td>{_e(rec["note"])}</td></tr>')
     table.append("</tbody></table>")
+    own = {rec["measurand"]: rec for rec in rows}
+    strips = []
+    for meas, strip in parts.strips.items():
+        rec = own.get(meas)
+        v = rec.get(SCORE_FIELD.get(rec["score"], "z")) if rec else None
+        strips.append(f'<figure class="strip" id="strip-{_e(meas)}">'
+                      f'{strip.for_lab(lab, v, rec["signal"] if rec else None, words)}</figure>')
+    stand = ("<h2>Where you stand</h2><p>Every laboratory's score on each measurand, yours marked; other "
+             f'laboratories are not named.</p><p class="muted">{_e(strip_legend(words))}</p>' + "".join(strips))
     figs = parts.figures
-    per = []
-    for meas in r.measurands:
-        body = ""
-        for f in (figs.scores.get(meas), figs.density.get(meas)):
-            if f is not None:
-                body += _figure(f.for_lab(lab), f)
-        if body:
-            per.append(f'<h3 id="m-{_e(meas)}">{_e(meas)}</h3>{body}')
-    you = "".join(_figure(f.for_lab(lab), f, square=True) for f in figs.youden)
+    per, you = [], ""
+    if parts.full_figures:
+        for meas in r.measurands:
+            body = ""
+            for f in (figs.scores.get(meas), figs.density.get(meas)):
+                if f is not None:
+                    body += _figure(f.for_lab(lab), f)
+            if body:
+                per.append(f'<h3 id="m-{_e(meas)}">{_e(meas)}</h3>{body}')
+        you = "".join(_figure(f.for_lab(lab), f, square=True) for f in figs.youden)
+    else:
+        stand += parts.figures_note
     mandel = parts.mandel_by_lab.get(lab)
     m_html = ""
     if mandel:
-        m_html = "<h2>Your Mandel h and k</h2>" + _table(pd.DataFrame(mandel), decimals={"h": 2, "k": 2})
+        m_html = "<h2>Your Mandel h and k</h2>" + _records_table(mandel, decimals={"h": 2, "k": 2})
     body = (f"<header><h1>Round {_e(r.id)}: results of laboratory {_e(lab)}</h1><p>{_e(r.title)}</p></header>"
             f'<div class="confidential"><strong>Confidential to the laboratory named here.</strong>{ident}</div>'
             + parts.heading + "<h2>Your scores</h2>" + _legend(words) + "".join(table)
-            + ("<h2>Where you stand</h2><p>Other laboratories appear by code only.</p>" + "".join(per) if per else "")
+            + stand
+            + ("<h2>In detail</h2><p>The round report's figures with your laboratory marked; other "
+               "laboratories appear by code only.</p>" + "".join(per) if per else "")
             + (f"<h2>Youden plots</h2>{you}" if you else "") + m_html
             + "<h2>Round statistics</h2>" + parts.statistics
             + f'<h2>Cautions</h2><div class="caution">{_e(CAUTION)}</div>')
