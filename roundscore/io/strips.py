@@ -11,10 +11,10 @@ a small group (its marker, shape and colour by signal, and its text), so a
 lab page costs string joins, whatever the size of the round.
 
 Every strip uses the same axis, so the marks of one lab line up down the page
-and read as its profile across the measurands. Scores beyond the axis are
-drawn at its edge with their value written (the histogram counts them in the
-edge bins and says how many lie beyond). Nothing is recomputed: the scores
-and signals are those of the evaluation.
+and read as its profile across the measurands. The lab's own score beyond the
+axis is drawn at its edge with its value written; the distribution says how
+many lie beyond each end. Nothing is recomputed: the scores and signals are
+those of the evaluation.
 
 The SVG is plain text built from numbers rounded to 0.1 user unit, so the same
 evaluation gives the same bytes.
@@ -200,8 +200,8 @@ def score_strip(values: Sequence[float], *, measurand: str, score: str = "z", ti
     -----
     Scores are binned in :data:`STRIP_BIN` bins over ±:data:`STRIP_RANGE`
     (a bin holds scores in [lower, upper); the top edge closes the last bin);
-    scores beyond the axis are counted in the edge bins, and how many lie
-    beyond is written at each end. With at most :data:`STRIP_UNIT_BLOCKS`
+    scores beyond the axis are not binned (an edge bin holding them would
+    bend the shape): how many lie beyond is written at each end. With at most :data:`STRIP_UNIT_BLOCKS`
     labs in the fullest bin each lab is one block, otherwise the bars are
     scaled to the fullest bin. The file size does not grow with the number
     of labs (at most 32 bars).
@@ -234,9 +234,10 @@ def score_strip(values: Sequence[float], *, measurand: str, score: str = "z", ti
         parts.append(f'<path d="{d}" stroke="#444444" stroke-width="0.9"{dash}/>')
     # the distribution of every lab's score (anonymous): one vertical stroke per bin
     if n:
-        idx = np.clip(np.floor((np.clip(v, -r, r) + r) / STRIP_BIN).astype(int), 0, nbins - 1)
+        inside = v[np.abs(v) <= r]
+        idx = np.clip(np.floor((inside + r) / STRIP_BIN).astype(int), 0, nbins - 1)
         counts = np.bincount(idx, minlength=nbins)
-        top = int(counts.max())
+        top = max(int(counts.max()), 1)
         width = (_PLOT[1] - _PLOT[0]) / nbins
         room = _AXIS - _TOP - 3.0
         if top <= STRIP_UNIT_BLOCKS:  # a dot plot: the stroke dashed into one block per lab
