@@ -134,3 +134,16 @@ def test_homogeneity_figure():
 def test_png_render_for_looking():
     png = F.z_bar_figure(LABS, SCORES, SIGNALS, key="z", title="t", png=True)
     assert png[:8] == b"\x89PNG\r\n\x1a\n"
+
+
+def test_mandel_many_labs_bounded_and_extreme_lab_named():
+    rng = np.random.default_rng(5)
+    n = 2000
+    h = rng.normal(size=n)
+    h[17] = 4.5  # one invented lab far beyond the 1 % line
+    labs = [f"X{i}" for i in range(n)]
+    f = F.mandel_figure(labs, h, statistic="h", critical_5=1.96, critical_1=2.57, key="mh", title="t")
+    assert len(f.svg) < 150_000  # was about 600 KB before the envelope (2000 bars and every code beyond 5 %)
+    assert ">X17<" in f.svg and "beyond 5 %" in f.svg and "beyond 1 %" in f.svg
+    assert len(re.findall(r">X\d+<", f.svg)) <= F.MAX_BARS
+    assert "your lab (X17)" in f.for_lab("X17")

@@ -246,3 +246,14 @@ def test_large_round_lab_page_cost(large):
         R.lab_page_html(ev, parts, lab)
     per_page = (time.perf_counter() - t) / len(labs)
     assert per_page < 0.03  # measured about 1.2 ms at 40 measurands; generous for slow CI machines
+
+
+def test_long_mandel_table_lists_flagged_rows_only():
+    rows = R.MANDEL_TABLE_MAX_ROWS + 200
+    frame = pd.DataFrame({"lab": [f"L{i:04d}" for i in range(rows)], "measurand": "m00",
+                          "h": 0.1, "k": 0.9, "flag": ""})  # invented
+    frame.loc[[5, 700], "flag"] = "h beyond 1 % indicator"
+    html_ = R._mandel_table(frame)
+    assert f"2 of {rows} rows" in html_ and "mandel.csv" in html_
+    assert ">L0005<" in html_ and ">L0700<" in html_ and ">L0006<" not in html_
+    assert ">L0006<" in R._mandel_table(frame.iloc[:R.MANDEL_TABLE_MAX_ROWS])  # short: every row

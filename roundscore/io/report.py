@@ -409,6 +409,19 @@ def _score_detail(ev) -> str:
                      signal="signal", words=ev.round.words))
 
 
+#: Above this many Mandel rows (labs × measurands) the report lists only the rows beyond an indicator line;
+#: every row is in mandel.csv (common practice: a table of thousands of rows is read in a spreadsheet).
+MANDEL_TABLE_MAX_ROWS = 1000
+
+
+def _mandel_table(mandel: pd.DataFrame) -> str:
+    if len(mandel) <= MANDEL_TABLE_MAX_ROWS or "flag" not in mandel.columns:
+        return _table(mandel, decimals={"h": 2, "k": 2})
+    flagged = mandel[mandel["flag"].fillna("").astype(str) != ""]
+    return (f'<p class="muted">{len(flagged)} of {len(mandel)} rows are beyond an indicator line and listed '
+            "here; every row is in mandel.csv.</p>" + _table(flagged, decimals={"h": 2, "k": 2}))
+
+
 def report_html(ev, parts: ReportParts | None = None) -> str:
     """The whole round report as one HTML document (labs by code only)."""
     parts = parts if parts is not None else report_parts(ev)
@@ -431,7 +444,7 @@ def report_html(ev, parts: ReportParts | None = None) -> str:
         prec += "<h3>Mandel's h and k</h3>"
         for name, fs in figs.mandel.items():
             prec += "".join(_figure(f.svg, f) for f in fs)
-        prec += _table(ev.extras["mandel"], decimals={"h": 2, "k": 2})
+        prec += _mandel_table(ev.extras["mandel"])
     sections.append(("precision", "Precision and screens",
                      prec or '<p class="muted">No precision or screening results in this evaluation.</p>'))
     methods = ev.extras.get("methods")
