@@ -141,7 +141,10 @@ class RoundEvaluation:
 
     @property
     def labs(self) -> list[str]:
-        return sorted(self.scores["lab"].unique(), key=_lab_key)
+        """Every lab code in natural order (L2 before L10); sorted once, then kept."""
+        if "labs" not in self._cache:
+            self._cache["labs"] = sorted(self.scores["lab"].unique(), key=_lab_key)
+        return list(self._cache["labs"])
 
     def lab_scores(self, lab: str) -> pd.DataFrame:
         """This lab's rows of :attr:`scores` (grouped once, then looked up)."""
