@@ -241,13 +241,14 @@ def _g(x: float) -> str:
 
 def _replicates(rows: pd.DataFrame, used: list[str]) -> tuple[np.ndarray, np.ndarray, list[str] | None]:
     """The used labs' numeric replicates in lab order: values, lab codes, texts (None if any is missing)."""
-    order = {lab: i for i, lab in enumerate(used)}
-    pos = rows["lab"].map(order)
-    rows = rows[pos.notna().to_numpy()]
-    rows = rows.iloc[np.argsort(pos.dropna().to_numpy(), kind="stable")]
-    texts = rows["text"].tolist()
+    lab = rows["lab"].to_numpy(dtype=str)
+    order = {code: i for i, code in enumerate(used)}
+    pos = np.array([order.get(code, -1) for code in lab.tolist()], dtype=np.intp)
+    found = np.flatnonzero(pos >= 0)
+    pick = found[np.argsort(pos[found], kind="stable")]
+    texts = rows["text"].to_numpy(dtype=object)[pick].tolist()
     ok = all(isinstance(t, str) and t for t in texts)
-    return rows["value"].to_numpy(float), rows["lab"].to_numpy(dtype=str), texts if ok else None
+    return rows["value"].to_numpy(float)[pick], lab[pick], texts if ok else None
 
 
 def _algorithm_s(cells: pr.CellStatistics) -> tuple[pr.AlgorithmSResult | None, int, str]:
@@ -301,17 +302,19 @@ def _measurand_precision(rnd: Round, name: str, rows: pd.DataFrame | None, used:
         shown = {"labs": tuple(lab for lab in used if lab in present)}
         return (MeasurandPrecision(notes=(NEEDS_REPLICATES,), **(empty | shown)),
                 row | {"note": NEEDS_REPLICATES}, [], [NEEDS_REPLICATES])
-    # Precision of every used lab: its cells and Mandel's h and k (before the screens), and the final
-    # result when the screens leave nobody out (the cell sums are then not computed a third time).
-    unscreened = pr.precision(values, labs, texts=texts)
-    cells, mandel = unscreened.cells, unscreened.mandel
+    # The cell statistics are computed once: precision of every used lab (Mandel's h and k before the
+    # screens, and the final result when the screens leave nobody out), the screens, and the precision
+    # of the labs kept (their cells, same offset).
+    cells = pr.cell_statistics(values, labs, texts=texts)
+    unscreened = pr.precision(cells=cells)
+    mandel = unscreened.mandel
     if unscreened.robust_s_r is not None:
         robust, robust_labs = unscreened.robust_s_r, cells.p
     else:
         robust, robust_labs, rnote = _algorithm_s(cells)
         if rnote:
             notes.append(rnote)
-    screening = ol.screen(values, labs, texts=texts, drop=drop, double_max_p=DOUBLE_GRUBBS_MAX_LABS)
+    screening = ol.screen(cells=cells, drop=drop, double_max_p=DOUBLE_GRUBBS_MAX_LABS)
     steps = []
     for s in screening.steps:
         steps.append({"measurand": name, "step": s.step, "test": s.test, "labs": "; ".join(s.labs),
@@ -321,15 +324,13 @@ def _measurand_precision(rnd: Round, name: str, rows: pd.DataFrame | None, used:
                       ("kept and flagged" if s.outcome != "pass" else "")})
         audit.append((name, ", ".join(s.labs), "screen", s.outcome, _step_reason(s, rnd)))
     audit.extend((name, "", "screen", "note", n) for n in screening.notes)
-    keep = ~np.isin(labs, np.array(screening.excluded, dtype=str))
     prec = None if screening.excluded else unscreened
-    left_labs = len(set(labs[keep].tolist()))
+    left_labs = len(screening.retained)
     try:
         if left_labs < 2:
             raise StatisticsError(f"fewer than 2 labs remain ({left_labs} of {len(present)})")
         if prec is None:
-            prec = pr.precision(values[keep], labs[keep],
-                                texts=None if texts is None else [t for t, k in zip(texts, keep) if k])
+            prec = pr.precision(cells=cells.subset(screening.retained))
     except StatisticsError as exc:
         left = f"after leaving out {', '.join(screening.excluded)}: " if screening.excluded else ""
         msg = f"precision not computed {left}{exc}"

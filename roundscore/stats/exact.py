@@ -29,7 +29,7 @@ import numpy as np
 
 from roundscore.errors import InputError, StatisticsError
 
-__all__ = ["Centred", "OffsetChoice", "FloatHandling", "centred", "check_choice"]
+__all__ = ["Centred", "OffsetChoice", "FloatHandling", "centred", "check_choice", "grouped_fsum"]
 
 OffsetChoice = Literal["median", "first"]
 FloatHandling = Literal["as_float", "shortest_repr"]
@@ -39,6 +39,17 @@ FloatHandling = Literal["as_float", "shortest_repr"]
 #: realistic input (common practice: choose a precision above the longest
 #: operand so ``Decimal`` subtraction does not round).
 DECIMAL_PRECISION = 60
+
+#: :func:`grouped_fsum` sums exactly in integers when every nonzero |x| lies in
+#: [2**-SAFE_EXPONENT, 2**SAFE_EXPONENT] and the exponents span at most
+#: ``_SAFE_SPAN`` bits: then every sum is a normal float (one rounding, no
+#: overflow). Outside it falls back to :func:`math.fsum` (IEEE 754 binary64:
+#: normal numbers from 2**-1022, largest below 2**1024).
+SAFE_EXPONENT = 960
+_SAFE_SPAN = 900
+
+#: Mantissa bits of a binary64 float (IEEE 754).
+_MANTISSA_BITS = 53
 
 
 def check_choice(name: str, value: object, allowed: object) -> str:
@@ -118,6 +129,83 @@ def _to_decimal(text: object, index: int) -> Decimal:
     return value
 
 
+def _parse_all(items: list) -> list[Decimal]:
+    """``_to_decimal`` of every item; a fast path for clean strings, the careful one for any doubt."""
+    if all(type(t) is str for t in items):
+        try:
+            decimals = [Decimal(t.strip()) for t in items]
+        except (InvalidOperation, ValueError):
+            decimals = None
+        if decimals is not None and all(d.is_finite() for d in decimals):
+            return decimals
+    return [_to_decimal(t, i) for i, t in enumerate(items)]
+
+
+def grouped_fsum(x: np.ndarray, starts: np.ndarray) -> np.ndarray:
+    """Correctly rounded sum of each run of ``x`` (equal to :func:`math.fsum` of each run).
+
+    Parameters
+    ----------
+    x : numpy.ndarray of float
+        The values, each group in one contiguous run.
+    starts : numpy.ndarray of int
+        Index where each run begins (increasing, first 0, no empty run).
+
+    Returns
+    -------
+    numpy.ndarray of float
+        One sum per run, each the exact sum rounded once to the nearest float
+        (ties to even), bit for bit what ``math.fsum`` returns.
+
+    Notes
+    -----
+    When no run has more than two values the floating-point sum is already
+    correctly rounded (one addition, one rounding).  Otherwise every float is
+    written exactly as an integer times ``2**e_min`` (``e_min`` the smallest
+    exponent of the last mantissa bit among nonzero values) and the integers
+    are summed exactly; converting a Python int to float rounds correctly
+    (ties to even) and scaling by a power of two is exact for normal results.
+    Values outside the safe range (see ``SAFE_EXPONENT``), NaN or infinities
+    are summed run by run with ``math.fsum`` instead, which then also gives
+    its own errors (e.g. ``OverflowError``); so are runs whose sum is zero,
+    to keep the sign of zero that ``math.fsum`` gives.
+
+    References
+    ----------
+    .. [1] Shewchuk, J. R. (1997). "Adaptive precision floating-point
+       arithmetic and fast robust geometric predicates". Discrete &
+       Computational Geometry 18, 305-363 (the algorithm behind math.fsum).
+    .. [2] IEEE 754-2019, binary64 format and rounding to nearest, ties to even.
+    """
+    x = np.asarray(x, dtype=float)
+    starts = np.asarray(starts, dtype=np.intp)
+    if starts.size == 0:
+        return np.empty(0)
+    sizes = np.diff(np.append(starts, x.size))
+    if sizes.max() <= 2:
+        return np.add.reduceat(x, starts)
+    def by_fsum(runs: np.ndarray) -> np.ndarray:
+        return np.array([math.fsum(x[starts[j]:starts[j] + sizes[j]]) for j in runs.tolist()], dtype=float)
+
+    size = np.abs(x)
+    nonzero = size != 0
+    if not nonzero.any() or not np.all(np.isfinite(x)):
+        return by_fsum(np.arange(starts.size))  # also keeps fsum's sign of zero and its errors
+    mant, expo = np.frexp(x)
+    ints = (mant * float(2**_MANTISSA_BITS)).astype(np.int64)  # exact: |mant| < 1 has 53 bits
+    lsb = expo.astype(np.int64) - _MANTISSA_BITS  # x == ints * 2**lsb exactly
+    e_min = int(lsb[nonzero].min())
+    if (size[nonzero].min() < 2.0**-SAFE_EXPONENT or size.max() > 2.0**SAFE_EXPONENT
+            or int(lsb[nonzero].max()) - e_min > _SAFE_SPAN):
+        return by_fsum(np.arange(starts.size))
+    shift = np.where(nonzero, lsb - e_min, 0)
+    sums = np.add.reduceat(ints.astype(object) << shift.astype(object), starts)
+    out = np.ldexp(np.array([float(v) for v in sums], dtype=float), e_min)
+    zero = np.flatnonzero(out == 0)
+    if zero.size:  # an exact zero: fsum decides the sign (-0.0 only when every term is -0.0)
+        out[zero] = by_fsum(zero)
+    return out
+
 def _decimal_offset(decimals: Sequence[Decimal], offset: OffsetChoice) -> Decimal:
     if offset == "first":
         return decimals[0]
@@ -194,7 +282,7 @@ def centred(
             off = arr[0] if offset == "first" else np.sort(arr)[(arr.size - 1) // 2]
             return Centred(offset=Decimal(float(off)), deviations=arr - off, exact=False)
         items = [repr(v) for v in numbers]
-    decimals = [_to_decimal(t, i) for i, t in enumerate(items)]
+    decimals = _parse_all(items)
     with localcontext() as ctx:
         ctx.prec = DECIMAL_PRECISION
         off = _decimal_offset(decimals, offset)

@@ -41,7 +41,7 @@ from scipy import stats as sps
 
 from roundscore.errors import StatisticsError
 from roundscore.stats.exact import check_choice
-from roundscore.stats.precision import PrecisionResult, cell_statistics, precision
+from roundscore.stats.precision import CellStatistics, PrecisionResult, cells_from, precision
 
 __all__ = [
     "STRAGGLER_LEVEL", "OUTLIER_LEVEL", "GRUBBS_DOUBLE_SEED", "Outcome", "DropChoice", "Sided",
@@ -649,10 +649,11 @@ class _Recorder:
 
 
 def screen(
-    values: Sequence[float] | np.ndarray,
-    labs: Sequence[str] | np.ndarray,
+    values: Sequence[float] | np.ndarray | None = None,
+    labs: Sequence[str] | np.ndarray | None = None,
     *,
     texts: Sequence[str] | None = None,
+    cells: CellStatistics | None = None,
     cochran: bool = True,
     grubbs: bool = True,
     drop: DropChoice = "outlier",
@@ -669,12 +670,15 @@ def screen(
 
     Parameters
     ----------
-    values : array_like of float
+    values : array_like of float, optional
         Replicate results.
-    labs : array_like of str
+    labs : array_like of str, optional
         Lab code of each result.
     texts : sequence of str, optional
         Results as text, centred exactly before the sums.
+    cells : CellStatistics, optional
+        The cell statistics of these results computed before, instead of
+        ``values``, ``labs`` and ``texts`` (same screening, no second pass).
     cochran, grubbs : bool
         Which screens to run.
     drop : {"outlier", "straggler", "none"}
@@ -698,13 +702,14 @@ def screen(
     the extreme mean go to the lab that appears first.
     """
     check_choice("drop", drop, DropChoice)
-    cells = cell_statistics(values, labs, texts=texts)
+    cells = cells_from(values, labs, texts, cells)
     rec = _Recorder(drop)
     active = list(range(cells.p))
     codes = cells.labs
+    replicated = (cells.n > 1).tolist()
     if cochran:
         while True:
-            with_sd = [i for i in active if cells.n[i] > 1]
+            with_sd = [i for i in active if replicated[i]]
             if len(with_sd) < 2:
                 rec.notes.append("Cochran's test skipped: fewer than 2 labs with replicates")
                 break
@@ -795,10 +800,11 @@ def _grubbs_phase(means: np.ndarray, codes: tuple[str, ...], active: list[int], 
 
 
 def precision_with_screening(
-    values: Sequence[float] | np.ndarray,
-    labs: Sequence[str] | np.ndarray,
+    values: Sequence[float] | np.ndarray | None = None,
+    labs: Sequence[str] | np.ndarray | None = None,
     *,
     texts: Sequence[str] | None = None,
+    cells: CellStatistics | None = None,
     cochran: bool = True,
     grubbs: bool = True,
     drop: DropChoice = "outlier",
@@ -807,7 +813,7 @@ def precision_with_screening(
 
     Parameters
     ----------
-    values, labs, texts, cochran, grubbs, drop
+    values, labs, texts, cells, cochran, grubbs, drop
         As for :func:`screen`.
 
     Returns
@@ -818,14 +824,19 @@ def precision_with_screening(
     ------
     StatisticsError
         When the labs left cannot give precision estimates (names the excluded labs).
+
+    Notes
+    -----
+    The cell statistics are computed once; the precision after the screens
+    takes the retained labs' cells (:meth:`CellStatistics.subset`), which keep
+    the offset of all labs.  Against centring the retained rows afresh this
+    can change the last bit of a result (both are correctly rounded sums of
+    exactly centred data).
     """
-    screening = screen(values, labs, texts=texts, cochran=cochran, grubbs=grubbs, drop=drop)
-    lab_arr = np.asarray(labs).astype(str)
-    keep = ~np.isin(lab_arr, np.array(screening.excluded, dtype=str))
-    kept_texts = None if texts is None else [t for t, k in zip(texts, keep) if k]
-    kept_values = np.asarray(values, dtype=float)[keep]
+    cells = cells_from(values, labs, texts, cells)
+    screening = screen(cells=cells, cochran=cochran, grubbs=grubbs, drop=drop)
     try:
-        result = precision(kept_values, lab_arr[keep], texts=kept_texts)
+        result = precision(cells=cells.subset(screening.retained) if screening.excluded else cells)
     except StatisticsError as exc:
         if not screening.excluded:
             raise

@@ -6,9 +6,12 @@ reproducibility standard deviations ``s_r``, ``s_L``, ``s_R`` with their
 limits ``r`` and ``R``, Mandel's consistency statistics ``h`` and ``k`` with
 their indicator values, and Algorithm S as a robust pooled within-lab SD.
 
-All sums are taken on exactly centred data (:mod:`roundscore.stats.exact`)
-with :func:`math.fsum` and two passes (mean, then squared deviations from
-it), so data with many constant leading digits lose no precision.
+All sums are taken on exactly centred data (:mod:`roundscore.stats.exact`),
+correctly rounded (:func:`math.fsum`, or :func:`~roundscore.stats.exact.grouped_fsum`
+for all labs at once, which gives the same bits) and in two passes (mean,
+then squared deviations from it), so data with many constant leading digits
+lose no precision.  The cell statistics of a level can be computed once and
+passed on (``cells=``) to :func:`precision` and to the outlier screens.
 
 References
 ----------
@@ -34,7 +37,7 @@ import numpy as np
 from scipy import stats as sps
 
 from roundscore.errors import StatisticsError
-from roundscore.stats.exact import centred
+from roundscore.stats.exact import centred, grouped_fsum
 
 __all__ = [
     "LIMIT_FACTOR",
@@ -47,6 +50,7 @@ __all__ = [
     "AlgorithmSResult",
     "PrecisionResult",
     "cell_statistics",
+    "cells_from",
     "anova_oneway",
     "mandel_h_critical",
     "mandel_k_critical",
@@ -106,6 +110,39 @@ class CellStatistics:
     def p(self) -> int:
         """Number of labs (cells)."""
         return len(self.labs)
+
+    def subset(self, labs: Sequence[str] | np.ndarray) -> CellStatistics:
+        """The cells of the given labs, in this object's order (same offset).
+
+        Parameters
+        ----------
+        labs : sequence of str
+            Lab codes to keep; each must be one of :attr:`labs`.
+
+        Returns
+        -------
+        CellStatistics
+            Per-lab values unchanged; ``offset`` is this object's, so the
+            deviations stay exact.  Statistics of the subset may differ in the
+            last bit from those of :func:`cell_statistics` on the subset's
+            rows, which centres on the subset's own median (any common offset
+            gives correctly rounded deviations).
+
+        Raises
+        ------
+        StatisticsError
+            A lab code that has no cell here.
+        """
+        wanted = {str(lab) for lab in (labs.tolist() if isinstance(labs, np.ndarray) else labs)}
+        unknown = sorted(wanted.difference(self.labs))
+        if unknown:
+            raise StatisticsError(f"no results for lab(s) {', '.join(unknown)} in these cell statistics")
+        pick = np.array([lab in wanted for lab in self.labs], dtype=bool)
+        return CellStatistics(
+            labs=tuple(lab for lab, k in zip(self.labs, pick.tolist()) if k), n=self.n[pick],
+            means=self.means[pick], sds=self.sds[pick], offset=self.offset,
+            deviation_means=self.deviation_means[pick], ss_cells=self.ss_cells[pick],
+        )
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -323,6 +360,16 @@ def _ss(x: np.ndarray, m: float) -> float:
     return math.fsum(d * d)
 
 
+def _groups(lab_arr: np.ndarray) -> tuple[tuple[str, ...], np.ndarray, np.ndarray]:
+    """Lab codes in order of first appearance, the row order grouping them (stable), and each row's group."""
+    uniq, first, inverse = np.unique(lab_arr, return_index=True, return_inverse=True)
+    appearance = np.argsort(first, kind="stable")
+    rank = np.empty(appearance.size, dtype=np.intp)
+    rank[appearance] = np.arange(appearance.size)
+    group = rank[inverse.ravel()]
+    return tuple(uniq[appearance].tolist()), np.argsort(group, kind="stable"), group
+
+
 def cell_statistics(
     values: Sequence[float] | np.ndarray,
     labs: Sequence[str] | np.ndarray,
@@ -349,6 +396,14 @@ def cell_statistics(
     ------
     StatisticsError
         Empty input, lengths that differ, or a non-finite value (naming the lab).
+
+    Notes
+    -----
+    All labs are handled at once: the rows are grouped with a stable sort,
+    and each lab's sums are correctly rounded sums
+    (:func:`~roundscore.stats.exact.grouped_fsum`), so every number is bit for
+    bit that of a loop over labs with :func:`math.fsum`: mean ``m = Σx/n``,
+    refined ``m + Σ(x − m)/n``, then ``Σ(x − m)²`` on the centred data.
     """
     lab_arr = np.asarray(labs).astype(str)
     if texts is not None:
@@ -366,18 +421,15 @@ def cell_statistics(
             i = int(bad[0])
             raise StatisticsError(f"lab {lab_arr[i]}: result {float(val[i])!r} is not a finite number")
         c = centred(val)
-    dev = c.deviations
-    order: dict[str, list[int]] = {}
-    for i, lab in enumerate(lab_arr.tolist()):
-        order.setdefault(lab, []).append(i)
-    codes = tuple(order)
-    n = np.array([len(order[k]) for k in codes], dtype=int)
-    dmeans = np.empty(len(codes))
-    ss = np.empty(len(codes))
-    for j, code in enumerate(codes):
-        x = dev[order[code]]
-        dmeans[j] = _mean_fsum(x)
-        ss[j] = _ss(x, dmeans[j])
+    codes, order, group = _groups(lab_arr.ravel())
+    n = np.bincount(group, minlength=len(codes)).astype(int)
+    starts = np.concatenate(([0], np.cumsum(n)[:-1])).astype(np.intp)
+    x = c.deviations[order]
+    row_group = group[order]
+    dmeans = grouped_fsum(x, starts) / n
+    dmeans = dmeans + grouped_fsum(x - dmeans[row_group], starts) / n
+    d = x - dmeans[row_group]
+    ss = grouped_fsum(d * d, starts)
     with np.errstate(invalid="ignore", divide="ignore"):
         sds = np.where(n > 1, np.sqrt(ss / np.maximum(n - 1, 1)), np.nan)
     means = c.offset_float + dmeans
@@ -631,22 +683,49 @@ def algorithm_s(sds: Sequence[float] | np.ndarray, df: int) -> AlgorithmSResult:
     )
 
 
+def cells_from(
+    values: Sequence[float] | np.ndarray | None,
+    labs: Sequence[str] | np.ndarray | None,
+    texts: Sequence[str] | None,
+    cells: CellStatistics | None,
+) -> CellStatistics:
+    """The cell statistics given, or computed from the rows; exactly one of the two must be given.
+
+    Raises
+    ------
+    StatisticsError
+        Both or neither of ``cells`` and (``values``, ``labs``).
+    """
+    if cells is not None:
+        if values is not None or labs is not None or texts is not None:
+            raise StatisticsError("give either the results (values, labs, texts) or their cell statistics, not both")
+        return cells
+    if values is None or labs is None:
+        raise StatisticsError("give the results (values and labs) or their cell statistics")
+    return cell_statistics(values, labs, texts=texts)
+
+
 def precision(
-    values: Sequence[float] | np.ndarray,
-    labs: Sequence[str] | np.ndarray,
+    values: Sequence[float] | np.ndarray | None = None,
+    labs: Sequence[str] | np.ndarray | None = None,
     *,
     texts: Sequence[str] | None = None,
+    cells: CellStatistics | None = None,
 ) -> PrecisionResult:
     """Repeatability and reproducibility of one level (ISO 5725-2 §7.4).
 
     Parameters
     ----------
-    values : array_like of float
+    values : array_like of float, optional
         Replicate results, one per row.
-    labs : array_like of str
+    labs : array_like of str, optional
         Lab code of each row.
     texts : sequence of str, optional
         The results as read, for exact centring (recommended).
+    cells : CellStatistics, optional
+        Cell statistics computed before (e.g. ``cells.subset(kept)``), instead
+        of ``values``, ``labs`` and ``texts``; the result is then the same as
+        from the rows those cells were computed from.
 
     Returns
     -------
@@ -675,7 +754,7 @@ def precision(
     ----------
     .. [1] ISO 5725-2, §7.4.
     """
-    cells = cell_statistics(values, labs, texts=texts)
+    cells = cells_from(values, labs, texts, cells)
     if cells.p < 2:
         raise StatisticsError(f"precision needs at least 2 labs, got {cells.p}")
     if not np.any(cells.n > 1):
