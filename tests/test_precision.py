@@ -13,9 +13,10 @@ import pytest
 import scipy.stats
 
 from roundscore.errors import InputError, StatisticsError
-from roundscore.stats.exact import centred
+from roundscore.stats.exact import centred, grouped_fsum
 from roundscore.stats.precision import (
     LIMIT_FACTOR,
+    CellStatistics,
     algorithm_s,
     algorithm_s_factors,
     anova_oneway,
@@ -294,3 +295,126 @@ def test_cell_statistics_keep_file_order() -> None:
     cells = cell_statistics([1.0, 2.0, 3.0, 4.0], ["Z9", "A1", "Z9", "A1"])
     assert cells.labs == ("Z9", "A1")
     np.testing.assert_allclose(cells.means, [2.0, 3.0])
+
+
+# ----------------------------------------------------------------------------- all labs at once
+
+
+def _loop_cells(devs: list[float], labs: list[str]) -> dict[str, tuple[int, float, float]]:
+    """The per-lab loop the vectorised code must equal: fsum mean, one refinement, fsum of squares."""
+    rows: dict[str, list[float]] = {}
+    for d, lab in zip(devs, labs):
+        rows.setdefault(lab, []).append(d)
+    out = {}
+    for lab, xs in rows.items():
+        m = math.fsum(xs) / len(xs)
+        m += math.fsum(x - m for x in xs) / len(xs)
+        out[lab] = (len(xs), m, math.fsum((x - m) * (x - m) for x in xs))
+    return out
+
+
+def _unbalanced_texts(seed: int, p: int, counts: list[int]) -> tuple[list[str], list[str]]:
+    """Invented results with 10 constant leading digits, random replicate counts, rows in shuffled order."""
+    rng = np.random.default_rng(seed)
+    n = rng.choice(counts, p)
+    labs = np.repeat([f"L{i:03d}" for i in range(p)], n)
+    lab_effect = np.repeat(rng.normal(0, 0.5, p), n)
+    digits = np.round((lab_effect + rng.normal(0, 0.01, labs.size)) * 1e4).astype(np.int64)
+    texts = [f"{1234567890 + int(k) // 10_000}.{int(k) % 10_000:04d}" for k in digits]
+    order = rng.permutation(labs.size)
+    return [texts[i] for i in order], labs[order].tolist()
+
+
+@pytest.mark.parametrize(
+    ("seed", "p", "counts"),
+    [(1, 300, [1, 2, 3, 4, 5, 7]), (2, 40, [2, 3]), (3, 500, [1, 2]), (4, 7, [6, 9, 12])],
+)
+def test_cell_statistics_equal_a_per_lab_fsum_loop(seed: int, p: int, counts: list[int]) -> None:
+    # Reference: the loop above on deviations centred here in Decimal on the lower median (the documented
+    # offset of roundscore.stats.exact); the vectorised sums must give the same bits, not just close ones.
+    texts, labs = _unbalanced_texts(seed, p, counts)
+    decimals = [Decimal(t) for t in texts]
+    offset = sorted(decimals)[(len(decimals) - 1) // 2]
+    devs = [float(d - offset) for d in decimals]
+    ref = _loop_cells(devs, labs)
+    cells = cell_statistics(np.zeros(len(texts)), labs, texts=texts)
+    assert cells.offset == offset
+    assert cells.labs == tuple(ref)  # order of first appearance
+    assert cells.n.tolist() == [ref[lab][0] for lab in cells.labs]
+    assert cells.deviation_means.tolist() == [ref[lab][1] for lab in cells.labs]
+    assert cells.ss_cells.tolist() == [ref[lab][2] for lab in cells.labs]
+    assert cells.means.tolist() == [float(offset) + ref[lab][1] for lab in cells.labs]
+    sds = [math.sqrt(ref[lab][2] / (ref[lab][0] - 1)) if ref[lab][0] > 1 else math.nan for lab in cells.labs]
+    np.testing.assert_array_equal(cells.sds, sds)
+
+
+def test_cell_statistics_of_floats_equal_the_loop() -> None:
+    # Float input is centred in float on the lower median (documented in roundscore.stats.exact).
+    texts, labs = _unbalanced_texts(5, 200, [1, 2, 3, 4])
+    values = np.array([float(t) for t in texts])
+    offset = np.sort(values)[(values.size - 1) // 2]
+    ref = _loop_cells((values - offset).tolist(), labs)
+    cells = cell_statistics(values, labs)
+    assert cells.deviation_means.tolist() == [ref[lab][1] for lab in cells.labs]
+    assert cells.ss_cells.tolist() == [ref[lab][2] for lab in cells.labs]
+
+
+@pytest.mark.parametrize(
+    ("runs", "why"),
+    [
+        ([[1e16, 1.0, -1e16], [0.1, 0.2, 0.3, -0.6]], "naive sums give 0.0 and 5.55e-17; fsum 1.0 and 2.77e-17"),
+        ([[0.1, 0.7], [3.0], [-2.5, 2.5]], "runs of at most two: one rounding in floating point"),
+        ([[1e-300, 1.0, 1e-300], [2.0, 3.0, 4.0]], "exponents too far apart: the fsum fallback"),
+        ([[1e300, 1e300, -1e300], [1.0, 2.0, 3.0]], "above 2**960: the fsum fallback"),
+        ([[0.0, 0.0, 0.0], [-0.0, -0.0, -0.0], [0.5, -0.25, -0.25]], "exact zeros keep fsum's sign of zero"),
+        ([[float(v) for v in np.random.default_rng(9).normal(0, 1, 9) * 1e6] for _ in range(3)], "random"),
+    ],
+)
+def test_grouped_fsum_equals_math_fsum(runs: list[list[float]], why: str) -> None:
+    # Reference: math.fsum (correctly rounded, Shewchuk 1997) run by run, compared bit for bit (sign of zero too).
+    x = np.array([v for run in runs for v in run])
+    starts = np.cumsum([0] + [len(r) for r in runs[:-1]])
+    got = grouped_fsum(x, starts)
+    ref = np.array([math.fsum(r) for r in runs])
+    assert got.tolist() == ref.tolist(), why
+    assert np.signbit(got).tolist() == np.signbit(ref).tolist(), why
+
+
+def test_grouped_fsum_nonfinite_and_overflow_as_fsum() -> None:
+    # math.fsum's own results for inf and nan, and its error on an intermediate overflow (Python documentation).
+    got = grouped_fsum(np.array([1.0, math.inf, 2.0, 1.0, math.nan, 1.0]), np.array([0, 3]))
+    assert got[0] == math.inf and math.isnan(got[1])
+    with pytest.raises(OverflowError):
+        grouped_fsum(np.array([1e308, 1e308, -1e308]), np.array([0]))
+
+
+@pytest.mark.skipif(not os.path.isdir(NIST_DIR), reason="scipy ships no NIST StRD ANOVA files here")
+@pytest.mark.parametrize("name", ["SmLs07", "SiRstv"])
+def test_precision_from_subset_cells_agrees_with_fresh_centring(name: str) -> None:
+    # Source data: NIST StRD SmLs07 (13 constant leading digits) and SiRstv; leave out the first group.
+    # The subset keeps the offset of all groups, a fresh call centres on the subset's median: both are
+    # correctly rounded sums of exact deviations, so they agree to a few ulps (project bound: 1e-13).
+    _, groups, texts = _parse_nist(name)
+    cells = cell_statistics(np.zeros(len(texts)), groups, texts=texts)
+    kept = cells.labs[1:]
+    sub = precision(cells=cells.subset(list(reversed(kept))))
+    rows = [i for i, g in enumerate(groups) if g in kept]
+    fresh = precision(np.zeros(len(rows)), [groups[i] for i in rows], texts=[texts[i] for i in rows])
+    assert sub.labs == fresh.labs == kept  # subset keeps the cells' order, not the order asked
+    for key in ("s_r", "s_L", "s_R", "general_mean", "n_bar"):
+        assert getattr(sub, key) == pytest.approx(getattr(fresh, key), rel=1e-13), key
+    np.testing.assert_allclose(sub.cells.means, fresh.cells.means, rtol=1e-15)
+    np.testing.assert_allclose(sub.mandel.h, fresh.mandel.h, rtol=1e-11, atol=1e-13)
+
+
+def test_precision_takes_cells_or_rows_not_both() -> None:
+    values, labs = _balanced(7, p=5, n=2)
+    cells = cell_statistics(values, labs)
+    assert isinstance(cells, CellStatistics)
+    assert precision(cells=cells).s_r == precision(values, labs).s_r
+    with pytest.raises(StatisticsError, match="not both"):
+        precision(values, labs, cells=cells)
+    with pytest.raises(StatisticsError, match="values and labs"):
+        precision()
+    with pytest.raises(StatisticsError, match="lab\\(s\\) ZZ"):
+        cells.subset(["L00", "ZZ"])
