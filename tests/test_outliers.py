@@ -16,7 +16,7 @@ from roundscore.stats.outliers import (
     precision_with_screening,
     screen,
 )
-from roundscore.stats.precision import precision
+from roundscore.stats.precision import cell_statistics, precision
 
 # NIST/SEMATECH e-Handbook of Statistical Methods §1.3.5.17.1, Grubbs' test example
 # (Tietjen and Moore 1972 data).
@@ -246,3 +246,30 @@ def test_screening_leaving_too_few_labs_says_so() -> None:
         precision_with_screening(values, labs)
     kept = precision_with_screening(values, labs, drop="none")
     assert kept.excluded == () and kept.screening.outliers == ("B",)
+
+
+def test_screen_and_screened_precision_from_precomputed_cells() -> None:
+    # Invented layout: L03 has a range of 1.0 (others 0.1): Cochran C = 0.917 > 0.7175, the 1 % value for
+    # p = 10, n = 2; then L10's mean gives G = 2.55 > 2.387, the 1 % value for p = 9 (ISO 5725-2 Tables 4, 5).
+    values, labs = _layout(BASE9 + [5.0])
+    values[4:6] = [20.4 - 0.5, 20.4 + 0.5]  # L03 replicates
+    texts = [f"{v:.3f}" for v in values]
+    cells = cell_statistics(values, labs, texts=texts)
+    direct = screen(values, labs, texts=texts)
+    reused = screen(cells=cells)
+    assert reused.to_dict() == direct.to_dict()
+    assert set(reused.excluded) == {"L03", "L10"}
+    a = precision_with_screening(values, labs, texts=texts)
+    b = precision_with_screening(cells=cells)
+    assert a.precision.to_dict() == b.precision.to_dict() and a.screening == b.screening
+    # The kept labs' cells are the same numbers as before the screens (only the excluded ones are gone).
+    assert b.precision.labs == tuple(lab for lab in cells.labs if lab not in {"L03", "L10"})
+    pick = [cells.labs.index(lab) for lab in b.precision.labs]
+    assert b.precision.cells.means.tolist() == cells.means[pick].tolist()
+    # Against a fresh centring of the kept rows (another offset): equal to rounding (project bound 1e-13).
+    keep = ~np.isin(labs, ["L03", "L10"])
+    fresh = precision(values[keep], labs[keep], texts=[t for t, k in zip(texts, keep) if k])
+    assert b.precision.s_r == pytest.approx(fresh.s_r, rel=1e-13)
+    assert b.precision.s_L == pytest.approx(fresh.s_L, rel=1e-13)
+    with pytest.raises(StatisticsError, match="not both"):
+        screen(values, labs, cells=cells)
