@@ -352,3 +352,29 @@ def test_double_grubbs_skipped_above_the_lab_limit(make_round):
     notes = ev.audit.query("step == 'screen' and action == 'note'")["reason"].tolist()
     assert f"double Grubbs' test skipped: {p} labs, more than {DOUBLE_GRUBBS_MAX_LABS}" in " ".join(notes)
     assert ev.extras["precision"].iloc[0]["p"] == p
+
+
+def test_cell_statistics_computed_once_per_measurand(monkeypatch):
+    # The stage centres each measurand's replicate texts once and reuses the cells for the unscreened
+    # precision, the screens and the precision of the labs kept (iodine and cadmium lose a lab in the demo).
+    import roundscore.stats.precision as prm
+
+    calls: list[int] = []
+    real = prm.centred
+
+    def counting(texts, **kw):
+        items = list(texts)
+        if items and isinstance(items[0], str):  # replicate texts (method groups compare float means)
+            calls.append(len(items))
+        return real(texts, **kw)
+
+    monkeypatch.setattr(prm, "centred", counting)
+    ev = load_and_evaluate(DEMO)
+    prec = ev.extras["precision"]
+    computed = prec[prec["p"] > 0]
+    assert set(prec.loc[prec["excluded"] != "", "measurand"]) >= {"iodine", "cadmium"}
+    assert len(calls) == len(computed)
+    # The precision after the screens is the kept labs' cells: same cell means as before the screens.
+    d = ev.details["precision"]["iodine"]
+    pick = [d.cells.labs.index(lab) for lab in d.precision.labs]
+    assert "K07" not in d.precision.labs and d.precision.cells.means.tolist() == d.cells.means[pick].tolist()
