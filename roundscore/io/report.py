@@ -342,7 +342,16 @@ def _items(ev, figs: RoundFigures) -> str:
         return '<p class="muted">No homogeneity or stability data in this round.</p>'
     out = ""
     if items is not None and len(items):
-        out += _table(items, decimals={"criterion": 4, "allowed": 4})
+        # The notes are long sentences: below the table, one list per check, so the numbers stay readable.
+        out += _table(items, [c for c in items.columns if c != "note"], decimals={"criterion": 4, "allowed": 4})
+        if "note" in items.columns:
+            out += '<div class="item-notes">'
+            for _, r in items.iterrows():
+                parts = [t for t in str(r["note"] or "").split("; ") if t]
+                if parts:
+                    out += (f"<p><strong>{_e(r['measurand'])}, {_e(r['check'])}:</strong></p><ul>"
+                            + "".join(f"<li>{_e(t)}</li>" for t in parts) + "</ul>")
+            out += "</div>"
     for name, f in figs.items.items():
         out += _figure(f.svg, f)
     return out
