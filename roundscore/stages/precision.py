@@ -35,6 +35,10 @@ What enters, and what is assumed
   (said in the note).
 - The replicates are centred exactly from the text as typed (the ``text``
   column), so results with many constant leading digits keep every digit.
+  The cell statistics are computed once per measurand; the precision after
+  the screens takes the kept labs' cells, centred on the median of *all*
+  used labs (against centring the kept labs afresh this can move the last
+  bit of a result, e.g. the general mean by 1 ulp).
 - Method groups compare the lab means as floats (the evaluation's means);
   method names are grouped ignoring case and surrounding spaces, shown as
   first spelled (in lab order).  Labs with no method are left out of the
