@@ -1,4 +1,5 @@
 """A tiny run of benchmarks/scale.py, so the benchmark keeps working (its numbers are not checked here)."""
+# Source of expected values: the tool's own contract (internal behaviour); no outside reference values here.
 
 from __future__ import annotations
 

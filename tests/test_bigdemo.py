@@ -1,4 +1,5 @@
 """The seeded generator of large rounds: reproducible, filled-in forms that read back (invented data)."""
+# Source of expected values: the tool's own contract (internal behaviour); no outside reference values here.
 
 from __future__ import annotations
 

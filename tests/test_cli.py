@@ -1,5 +1,6 @@
 """The command line (roundscore.cli): the demo end to end, exit codes, errors without tracebacks,
 and participants' names kept to their own sheet. Internal behaviour; the demo data are invented."""
+# Source of expected values: the tool's own contract (internal behaviour); no outside reference values here.
 
 from __future__ import annotations
 

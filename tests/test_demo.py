@@ -1,4 +1,5 @@
 """The committed demo round equals what its seeded generator makes (internal check; invented data)."""
+# Source of expected values: the tool's own contract (internal behaviour); no outside reference values here.
 
 from __future__ import annotations
 

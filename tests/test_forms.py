@@ -2,6 +2,7 @@
 
 The form layout is our own design; the checks are internal (round trip, protection, validation).
 """
+# Source of expected values: the tool's own contract (internal behaviour); no outside reference values here.
 
 from __future__ import annotations
 

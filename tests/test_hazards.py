@@ -6,6 +6,7 @@ Each test builds its hostile files itself from a copy of the demo round
 OWASP "CSV Injection" guidance recommends (common guidance); workbooks hold
 participant text as strings, never as formulas.
 """
+# Source of expected values: the tool's own contract (internal behaviour); no outside reference values here.
 
 from __future__ import annotations
 

@@ -1,4 +1,5 @@
 """Process-pool helpers, and the jobs plumbing of reading forms and writing outputs (invented data)."""
+# Source of expected values: the tool's own contract (internal behaviour); no outside reference values here.
 
 from __future__ import annotations
 

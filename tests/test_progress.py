@@ -1,4 +1,5 @@
 """The terminal progress bar: silent off a terminal, one bar per stage on one."""
+# Source of expected values: the tool's own contract (internal behaviour); no outside reference values here.
 
 from __future__ import annotations
 

@@ -1,4 +1,5 @@
 """round.toml validation (roundscore.round): every mistake names the file, key, what was found and allowed."""
+# Source of expected values: the tool's own contract (internal behaviour); no outside reference values here.
 
 from __future__ import annotations
 

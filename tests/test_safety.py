@@ -5,6 +5,7 @@ The expectations come from the file formats: ECMA-376 (sheet, row, c, f, v,
 mergeCell; sheet ``state``), PKWARE APPNOTE.TXT (zip headers), [MS-CFB]
 (the OLE2 signature), XML 1.0 (DTDs only in the prolog).
 """
+# Source of expected values: the tool's own contract (internal behaviour); no outside reference values here.
 
 from __future__ import annotations
 

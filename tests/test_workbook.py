@@ -1,4 +1,5 @@
 """The summary workbook and the lab sheets, read back with openpyxl and as zip parts (invented demo round)."""
+# Source of expected values: the tool's own contract (internal behaviour); no outside reference values here.
 
 from __future__ import annotations
 
