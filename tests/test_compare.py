@@ -189,3 +189,18 @@ def test_command_csv_errors(tmp_path: Path) -> None:
     assert (p.file, p.column, p.row, p.value) == (str(f), "y", 3, "oops")
     with pytest.raises(InputError, match="file not found"):
         _run(["--csv", str(tmp_path / "none.csv"), "--a", "x", "--b", "y"])
+
+
+@pytest.mark.parametrize("seed", [0, 1, 2])
+def test_holm_equals_statsmodels(seed):
+    # Reference library: statsmodels.stats.multitest.multipletests(method="holm").
+    from statsmodels.stats.multitest import multipletests
+
+    from roundscore.stats.compare import holm
+
+    p = np.random.default_rng(seed).uniform(0, 0.2, 7)
+    p[2] = p[4]  # a tie
+    reject, expected, _, _ = multipletests(p, alpha=0.05, method="holm")
+    got = holm(p)
+    assert np.allclose(got, expected, rtol=0, atol=1e-15)
+    assert ((got <= 0.05) == reject).all()
