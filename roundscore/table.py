@@ -22,7 +22,7 @@ from .io.xlsx import SheetRows
 from .round import Round
 from .units import UnitError, factor
 
-__all__ = ["ResultTable", "build_table", "COLUMNS", "Record", "records_from_long"]
+__all__ = ["ResultTable", "build_table", "COLUMNS", "Record", "records_from_long", "cell_label"]
 
 #: Columns of :attr:`ResultTable.frame`, in order.
 COLUMNS = (
@@ -79,7 +79,8 @@ class ResultTable:
         return sorted(self.frame["lab"].unique())
 
 
-def _text(v: object) -> str | None:
+def cell_label(v: object) -> str | None:
+    """A cell as a label (lab code, name, unit): None when blank; whole floats (a spreadsheet's 3.0) as "3"."""
     if v is None:
         return None
     if isinstance(v, float):
@@ -108,7 +109,7 @@ def _number(v: object, what: str, rec: Record, problems: list[Problem], *, posit
 def _problem(message: str, rec: Record, column: str | None, value: object) -> Problem:
     return Problem(
         message=message, file=rec.file, sheet=rec.sheet, row=rec.row, column=column,
-        lab=_text(rec.lab), measurand=_text(rec.measurand), value=value,
+        lab=cell_label(rec.lab), measurand=cell_label(rec.measurand), value=value,
     )
 
 
@@ -119,7 +120,7 @@ def records_from_long(sheet: SheetRows) -> tuple[list[Record], list[Problem]]:
     start = next((i for i, r in enumerate(rows) if any(c is not None for c in r)), None)
     if start is None:
         return [], [Problem(message="the file is empty", file=sheet.file, sheet=sheet.sheet)]
-    header = [_text(c) or "" for c in rows[start]]
+    header = [cell_label(c) or "" for c in rows[start]]
     index: dict[str, int] = {}
     for j, name in enumerate(header):
         key = name if name in _CASE_SENSITIVE else name.lower()
@@ -174,8 +175,8 @@ def build_table(
     seen: dict[tuple[str, str, int], Record] = {}
     known = rnd.measurands
     for rec in records:
-        lab = _text(rec.lab)
-        name = _text(rec.measurand)
+        lab = cell_label(rec.lab)
+        name = cell_label(rec.measurand)
         if lab is None:
             problems.append(_problem("the lab code is empty", rec, "lab", rec.lab))
             continue
@@ -190,7 +191,7 @@ def build_table(
             problems.append(_problem(
                 f"unknown measurand; the round has: {', '.join(known)}", rec, "measurand", rec.measurand))
             continue
-        rep_text = _text(rec.replicate)
+        rep_text = cell_label(rec.replicate)
         try:
             replicate = int(rep_text) if rep_text is not None else -1
         except ValueError:
@@ -212,7 +213,7 @@ def build_table(
         except CellError as exc:
             problems.append(_problem(str(exc), rec, "value", rec.value))
             continue
-        unit = _text(rec.unit) or m.unit
+        unit = cell_label(rec.unit) or m.unit
         f = 1.0
         if unit != m.unit:
             try:
@@ -235,7 +236,7 @@ def build_table(
             cell.relation, limit, m.unit,
             u * f if u is not None else np.nan, U * f if U is not None else np.nan,
             k if k is not None else np.nan,
-            _text(rec.method), _text(rec.comment), rec.file, rec.sheet, rec.row,
+            cell_label(rec.method), cell_label(rec.comment), rec.file, rec.sheet, rec.row,
         ))
     if problems:
         raise InputError(problems, summary="the results cannot be imported")

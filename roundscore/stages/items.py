@@ -65,6 +65,7 @@ from ..io.readers import read_item_table
 from ..io.xlsx import SheetRows
 from ..round import MeasurandSettings, Round
 from ..stats import items as st
+from ..table import cell_label
 from ..units import UnitError, factor
 
 __all__ = [
@@ -213,22 +214,9 @@ class ItemOutcome:
 # ----------------------------------------------------------------------------------------- reading
 
 
-def _label(v: object) -> str | None:
-    """A cell as a label: None when blank; whole floats (a spreadsheet's 3.0) as "3"."""
-    if v is None:
-        return None
-    if isinstance(v, float):
-        if math.isnan(v):
-            return None
-        if v.is_integer():
-            return str(int(v))
-    s = str(v).strip()
-    return s or None
-
-
 def _whole(v: object) -> int | None:
     """A replicate number ≥ 1, or None."""
-    s = _label(v)
+    s = cell_label(v)
     try:
         n = int(s) if s is not None else None
     except ValueError:
@@ -290,11 +278,11 @@ def _parse(sheet: SheetRows, m: MeasurandSettings, kind: TableKind,
                                 measurand=m.name, value=value))
 
     rows = sheet.rows
-    start = next((i for i, r in enumerate(rows) if any(_label(c) for c in r)), None)
+    start = next((i for i, r in enumerate(rows) if any(cell_label(c) for c in r)), None)
     if start is None:
         bad(f"the {kind} table is empty; the header must hold {', '.join(required)}", None)
         raise InputError(problems, summary=f"the {kind} table cannot be read")
-    header = [_label(c) or "" for c in rows[start]]
+    header = [cell_label(c) or "" for c in rows[start]]
     index: dict[str, int] = {}
     ignored = []
     for j, name in enumerate(header):
@@ -323,12 +311,12 @@ def _parse(sheet: SheetRows, m: MeasurandSettings, kind: TableKind,
     seen: dict[tuple[str, str, int], int] = {}
     for i in range(start + 1, len(rows)):
         r = rows[i]
-        if not any(_label(c) for c in r):
+        if not any(cell_label(c) for c in r):
             continue
         row = i + 1
         get = {k: (r[j] if j < len(r) else None) for k, j in index.items()}
         if "measurand" in index:
-            name = _label(get["measurand"])
+            name = cell_label(get["measurand"])
             if name is None:
                 bad("the measurand is empty", row, "measurand", get["measurand"])
                 continue
@@ -336,7 +324,7 @@ def _parse(sheet: SheetRows, m: MeasurandSettings, kind: TableKind,
                 if name.lower() not in known:
                     bad(f"unknown measurand; the round has: {', '.join(rnd_names)}", row, "measurand", name)
                 continue
-        item = _label(get["item"])
+        item = cell_label(get["item"])
         if item is None:
             bad("the item label is empty", row, "item", get["item"])
             continue
@@ -346,7 +334,7 @@ def _parse(sheet: SheetRows, m: MeasurandSettings, kind: TableKind,
             continue
         set_name = ""
         if kind == "stability":
-            set_name = _label(get["set"]) or ""
+            set_name = cell_label(get["set"]) or ""
             if not set_name:
                 bad("the set is empty; name the group of this measurement (e.g. before / after)", row, "set",
                     get["set"])
@@ -369,7 +357,7 @@ def _parse(sheet: SheetRows, m: MeasurandSettings, kind: TableKind,
         if cell.kind == "blank":
             bad(_WHY_BLANK, row, "value", get["value"])
             continue
-        unit = _label(get.get("unit")) or m.unit
+        unit = cell_label(get.get("unit")) or m.unit
         f = 1.0
         if unit != m.unit:
             try:
@@ -382,7 +370,7 @@ def _parse(sheet: SheetRows, m: MeasurandSettings, kind: TableKind,
             bad(f"a negative value, but {m.name} cannot be below zero "
                 "(set allow_negative = true for this measurand if it can)", row, "value", get["value"])
             continue
-        if kind == "stability" and _label(get.get("u")) is not None:
+        if kind == "stability" and cell_label(get.get("u")) is not None:
             try:
                 uc = parse_cell(get["u"])
             except CellError as exc:
