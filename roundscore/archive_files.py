@@ -26,17 +26,15 @@ import pandas as pd
 
 from roundscore.errors import InputError, Problem
 
+# One definition of the score-row contract (evaluate.py) and of the score and signal names.
+from .evaluate import SCORE_COLUMNS, SCORE_FIELD as SCORE_VALUE_COLUMN
+from .round import SCORES as SCORE_NAMES
+from .stats.scores import SIGNALS
+
 __all__ = ["SCORE_COLUMNS", "ROW_FIELDS", "TEXT_FIELDS", "FLOAT_FIELDS", "SIGNALS", "SCORE_NAMES",
            "SCORE_VALUE_COLUMN", "WORKBOOK_FORMAT", "CENSORED_STARTS", "LabRows", "plain", "unquote", "text_key",
            "parse_date", "normalise_rows", "read_lab_file"]
 
-#: Columns of the pipeline's ``scores.csv`` and of the ``data`` sheet of a
-#: per-lab workbook, in their order.
-SCORE_COLUMNS: tuple[str, ...] = (
-    "lab", "measurand", "unit", "n_replicates", "result", "assigned", "u_assigned",
-    "sigma_pt", "z", "z_prime", "zeta", "en", "d", "d_percent", "signal", "note",
-    "score", "scheme", "round", "round_date",
-)
 #: First characters of a censored ``result`` ("below" / "above" a limit), as the pipeline writes it.
 CENSORED_STARTS = ("<", ">")
 #: Per-row fields stored in the ``scores`` table (scheme/round/date live on the round).
@@ -44,10 +42,6 @@ ROW_FIELDS: tuple[str, ...] = SCORE_COLUMNS[:17]
 TEXT_FIELDS = frozenset({"lab", "measurand", "unit", "signal", "note", "score"})
 FLOAT_FIELDS = ("result", "assigned", "u_assigned", "sigma_pt", "z", "z_prime",
                  "zeta", "en", "d", "d_percent")
-SIGNALS = ("acceptable", "warning", "action", "not-scored")
-SCORE_NAMES = ("z", "z-prime", "zeta", "en")
-#: Column holding the value of each score name.
-SCORE_VALUE_COLUMN = {"z": "z", "z-prime": "z_prime", "zeta": "zeta", "en": "en"}
 #: Leading characters a CSV writer neutralises with a ``'`` (OWASP, "CSV Injection").
 _FORMULA_STARTS = ("=", "+", "-", "@")
 WORKBOOK_FORMAT = 1
