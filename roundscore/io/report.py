@@ -130,6 +130,15 @@ def _signal_cell(signal: str, words: str, text: str = "") -> str:
     return f'<td class="s-{_e(signal)}" title="{_e(word)}">{body}</td>'
 
 
+def _cell(v: Any, decimals: int | None, numeric: bool = False) -> str:
+    """One table cell: yes/no for booleans, numbers right-aligned with ``decimals``, the rest escaped text."""
+    if isinstance(v, (bool, np.bool_)):
+        return f"<td>{'yes' if v else 'no'}</td>"
+    if numeric or isinstance(v, (int, float, np.integer, np.floating)):
+        return f'<td class="n">{_num(v, decimals)}</td>'
+    return f"<td>{_e('' if v is None else v)}</td>"
+
+
 def _table(frame: pd.DataFrame | None, columns: Sequence[str] | None = None, headers: Sequence[str] | None = None,
            decimals: dict[str, int | None] | None = None, signal: str | None = None, words: str = "signals",
            wide: bool = True) -> str:
@@ -151,12 +160,8 @@ def _table(frame: pd.DataFrame | None, columns: Sequence[str] | None = None, hea
             v = data[j][i]
             if c == signal and isinstance(v, str):
                 cells.append(_signal_cell(v, words))
-            elif numeric[j] or isinstance(v, (float, np.floating)):
-                cells.append(f'<td class="n">{_num(v, decimals.get(c))}</td>')
-            elif isinstance(v, (bool, np.bool_)):
-                cells.append(f"<td>{'yes' if v else 'no'}</td>")
             else:
-                cells.append(f"<td>{_e('' if v is None or (isinstance(v, float) and math.isnan(v)) else v)}</td>")
+                cells.append(_cell(v, decimals.get(c), numeric[j]))
         out.append("<tr>" + "".join(cells) + "</tr>")
     out.append("</tbody></table>")
     return "".join(out)
@@ -175,13 +180,7 @@ def _records_table(rows: Sequence[dict[str, Any]], decimals: dict[str, int | Non
     for rec in rows:
         cells = []
         for c in cols:
-            v = rec.get(c)
-            if isinstance(v, (bool, np.bool_)):
-                cells.append(f"<td>{'yes' if v else 'no'}</td>")
-            elif isinstance(v, (int, float, np.integer, np.floating)):
-                cells.append(f'<td class="n">{_num(v, decimals.get(c))}</td>')
-            else:
-                cells.append(f"<td>{_e(v)}</td>")
+            cells.append(_cell(rec.get(c), decimals.get(c)))
         out.append("<tr>" + "".join(cells) + "</tr>")
     out.append("</tbody></table>")
     return "".join(out)
