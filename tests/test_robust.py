@@ -100,3 +100,53 @@ def test_made_niqr_definitions():
     # Both estimate σ for normal data: 1.483 ≈ 1/Φ⁻¹(0.75), 0.7413 ≈ 1/(2Φ⁻¹(0.75)) (scipy).
     assert 1.483 == pytest.approx(1 / stats.norm.ppf(0.75), abs=5e-4)
     assert 0.7413 == pytest.approx(1 / (2 * stats.norm.ppf(0.75)), abs=5e-5)
+
+
+def _two_pass_algorithm_a(x, sd_factor=1.134, tol=1e-10):
+    """A plain one-set Algorithm A with a two-pass SD (the textbook form; ISO 13528 C.3.1)."""
+    x = np.asarray(x, dtype=float)
+    m = float(np.median(x))
+    s = 1.483 * float(np.median(np.abs(x - m)))
+    for _ in range(2000):
+        w = np.clip(x, m - 1.5 * s, m + 1.5 * s)
+        new_m = float(w.mean())
+        new_s = sd_factor * float(np.sqrt(np.sum((w - new_m) ** 2) / (len(w) - 1)))
+        done = abs(new_m - m) <= tol * s and abs(new_s - s) <= tol * s
+        m, s = new_m, new_s
+        if done:
+            return m, s
+    raise AssertionError("no convergence")
+
+
+@pytest.mark.parametrize("offset", [0.0, 1e6, 1e9])
+def test_large_offsets_keep_full_precision(offset):
+    # The vectorised iteration shifts each set by its median and sums squares in one pass
+    # (Chan, Golub & LeVeque 1983, "shifted data"); an unshifted one-pass formula would lose
+    # about log10(offset²/s²) digits here (s ≈ 0.01, so 22 digits at 1e9: all of them).
+    rng = np.random.default_rng(11)
+    base = np.concatenate([rng.normal(0.0, 0.01, 30), [0.08, -0.05]])
+    est = algorithm_a(base + offset)
+    m, s = _two_pass_algorithm_a(base + offset)
+    # The textbook iteration winsorises at bounds rounded to the spacing of doubles near the offset
+    # (1.2e-7 at 1e9), so the two agree only to a few hundred such spacings relative to s.
+    rel = max(1e-9, 300 * float(np.spacing(max(offset, 1.0))) / s)
+    assert est.sd == pytest.approx(s, rel=rel)
+    assert est.mean - offset == pytest.approx(m - offset, abs=rel * s)
+    # Translation equivariance: the same s* and x* − offset as without the offset (limited only by
+    # the spacing of doubles near the offset: 1e9 · 2.2e-16 ≈ 2e-7, relative to s ≈ 0.01).
+    ref = algorithm_a(base)
+    assert est.sd == pytest.approx(ref.sd, rel=1e-4)
+    assert est.mean - offset == pytest.approx(ref.mean, abs=1e-4 * ref.sd)
+
+
+def test_vectorised_many_sets_equals_two_pass_reference():
+    # Sets converging at different steps (the working arrays are shrunk only now and then):
+    # each set's x*, s* and step count equal the one-set textbook iteration.
+    rng = np.random.default_rng(12)
+    x = rng.normal(100.0, 3.0, (300, 25))
+    x[rng.random(x.shape) < 0.08] += 40.0
+    many = algorithm_a(x)
+    for row, est in zip(x, many):
+        m, s = _two_pass_algorithm_a(row)
+        assert est.mean == pytest.approx(m, abs=1e-9 * s)
+        assert est.sd == pytest.approx(s, rel=1e-9)

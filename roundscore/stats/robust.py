@@ -47,6 +47,9 @@ CONSENSUS_U_FACTOR = 1.25
 #: Convergence: the change of x* and of s* in one step, relative to s*.
 ALGORITHM_A_TOL = 1e-10
 ALGORITHM_A_MAXITER = 2000
+#: Share of the iterating rows that must have converged before the working arrays are shrunk (copying
+#: them every step costs more than computing a few finished rows on).
+_COMPACT_SHARE = 0.25
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -106,10 +109,16 @@ def _algorithm_a_2d(
 ) -> tuple[np.ndarray, ...]:
     """Vectorised Algorithm A over the rows of ``x`` (NaN = no result).
 
-    The rows still iterating are kept in a compact working array that is
-    shrunk only when some rows converge; missing results are held as zeros
-    with a 0/1 mask, so each step is a few plain array passes (no NaN-aware
-    reductions, which copy their input).
+    Each row is shifted by its starting median before iterating, so x* and
+    the winsorised values are small numbers near zero; the sum of squares
+    about the new mean can then be taken in one pass, Σw² − (Σw)²/p, without
+    the cancellation that formula suffers on unshifted data (the "shifted
+    data" algorithm: Chan, Golub & LeVeque 1983, Am. Stat. 37, 242). The
+    rows still iterating are kept in a compact working array, shrunk only
+    when at least :data:`_COMPACT_SHARE` of them have converged (rows that
+    converged but are not yet dropped keep being computed, never recorded);
+    missing results are held as zeros with a 0/1 mask, so each step is a
+    few plain array passes (no NaN-aware reductions, which copy their input).
     """
     missing = np.isnan(x)
     any_missing = bool(missing.any())
@@ -125,33 +134,40 @@ def _algorithm_a_2d(
     sd = start_sd.copy()
     iterations = np.zeros(len(x), dtype=int)
     rows = np.flatnonzero((sd > 0) & (n >= 2))
-    X = np.where(missing[rows], 0.0, x[rows]) if any_missing else x[rows]
-    mask = (~missing[rows]).astype(float) if any_missing else None
+    shift = start_mean[rows]
+    X = x[rows] - shift[:, None]  # a fresh array: the caller's is never changed
+    mask = None
+    if any_missing:
+        mask = (~missing[rows]).astype(float)
+        X[missing[rows]] = 0.0
     N = n[rows].astype(float)
-    m, s = mean[rows], sd[rows]
+    m, s = np.zeros(rows.size), sd[rows]  # x* − shift and s*
+    live = np.ones(rows.size, dtype=bool)  # rows of X not yet converged
     W = np.empty_like(X)
     for _ in range(maxiter):
-        if rows.size == 0:
+        if not live.any():
             break
         delta = ALGORITHM_A_WINSOR * s
-        np.clip(X, (m - delta)[:, None], (m + delta)[:, None], out=W)
+        np.minimum(X, (m + delta)[:, None], out=W)  # two ufunc passes: about twice as fast as np.clip
+        np.maximum(W, (m - delta)[:, None], out=W)
         if mask is not None:
             W *= mask
-        new_m = W.sum(axis=1) / N
-        # Two-pass sum of squares about the new mean: stable for large offsets.
-        np.subtract(W, new_m[:, None], out=W)
-        if mask is not None:
-            W *= mask
-        new_s = sd_factor * np.sqrt(np.einsum("ij,ij->i", W, W) / (N - 1))
+        total = W.sum(axis=1)
+        new_m = total / N
+        squares = np.einsum("ij,ij->i", W, W) - total * new_m
+        new_s = sd_factor * np.sqrt(np.maximum(squares, 0.0) / (N - 1))
         done = (np.abs(new_m - m) <= tol * s) & (np.abs(new_s - s) <= tol * s)
-        mean[rows], sd[rows] = new_m, new_s
-        iterations[rows] += 1
-        keep = ~done & (new_s > 0)
+        at = rows[live]
+        mean[at], sd[at] = (new_m + shift)[live], new_s[live]
+        iterations[at] += 1
+        live &= ~done & (new_s > 0)
         m, s = new_m, new_s
-        if not keep.all():
-            rows, X, N, m, s = rows[keep], X[keep], N[keep], m[keep], s[keep]
-            mask = mask[keep] if mask is not None else None
+        if np.count_nonzero(live) <= (1.0 - _COMPACT_SHARE) * live.size:
+            rows, X, N, m, s, shift = rows[live], X[live], N[live], m[live], s[live], shift[live]
+            mask = mask[live] if mask is not None else None
+            live = np.ones(rows.size, dtype=bool)
             W = np.empty_like(X)
+    rows = rows[live]
     if rows.size:
         raise StatisticsError(
             f"Algorithm A did not converge in {maxiter} iterations for {rows.size} set(s) of results"
