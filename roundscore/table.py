@@ -22,7 +22,8 @@ from .io.xlsx import SheetRows
 from .round import Round
 from .units import UnitError, factor
 
-__all__ = ["ResultTable", "build_table", "COLUMNS", "Record", "records_from_long", "cell_label"]
+__all__ = ["ResultTable", "build_table", "validate_records", "table_frame", "COLUMNS", "Record",
+           "records_from_long", "cell_label"]
 
 #: Columns of :attr:`ResultTable.frame`, in order.
 COLUMNS = (
@@ -170,13 +171,58 @@ def build_table(
         lab/measurand/replicate, units that cannot be converted, negative
         results where the measurand allows none, bad uncertainties.
     """
-    problems = list(problems)
+    rows, found = validate_records(rnd, records)
+    problems = list(problems) + found
+    if problems:
+        raise InputError(problems, summary="the results cannot be imported")
+    return ResultTable(frame=table_frame(rows), files=tuple(files), warnings=tuple(warnings))
+
+
+def table_frame(rows: list[tuple]) -> pd.DataFrame:
+    """The :attr:`ResultTable.frame` of validated rows (from :func:`validate_records`), in table order."""
+    frame = pd.DataFrame(rows, columns=list(COLUMNS))
+    frame = frame.astype({"replicate": "int64", "value": "float64", "limit": "float64",
+                          "u": "float64", "U": "float64", "k": "float64", "row": "int64"})
+    return frame.sort_values(["measurand", "lab", "replicate"], kind="stable").reset_index(drop=True)
+
+
+def _optional_number(v: object, what: str, rec: Record, problems: list[Problem], *, positive=False) -> float:
+    """An uncertainty or coverage factor cell: NaN when blank, the number, or NaN and a problem."""
+    if v is None:
+        return np.nan
+    if type(v) is float and v > 0.0 and v != math.inf:  # the usual case from a workbook
+        return v
+    got = _number(v, what, rec, problems, positive=positive)
+    return got if got is not None else np.nan
+
+
+def validate_records(rnd: Round, records: Iterable[Record]) -> tuple[list[tuple], list[Problem]]:
+    """Check records against the round: one row tuple (:data:`COLUMNS`) per valid record, and every problem.
+
+    Duplicates are found among these records only (a caller joining several
+    files' rows checks across them). Labels seen once are not looked up
+    again: a form repeats its lab code and units on every row.
+    """
+    problems: list[Problem] = []
     out: list[tuple] = []
     seen: dict[tuple[str, str, int], Record] = {}
     known = rnd.measurands
+    lower = {k.lower(): k for k in known}
+    labels: dict[tuple[type, object], str | None] = {}
+
+    def label(v: object) -> str | None:
+        key = (type(v), v)
+        try:
+            return labels[key]
+        except KeyError:
+            got = labels[key] = cell_label(v)
+            return got
+        except TypeError:  # an unhashable cell value: never from a reader, but keep the rule
+            return cell_label(v)
+
     for rec in records:
-        lab = cell_label(rec.lab)
-        name = cell_label(rec.measurand)
+        lab = label(rec.lab)
+        name = label(rec.measurand)
         if lab is None:
             problems.append(_problem("the lab code is empty", rec, "lab", rec.lab))
             continue
@@ -185,23 +231,27 @@ def build_table(
             continue
         m = known.get(name)
         if m is None:
-            lower = {k.lower(): k for k in known}
             m = known.get(lower.get(name.lower(), ""))
         if m is None:
             problems.append(_problem(
                 f"unknown measurand; the round has: {', '.join(known)}", rec, "measurand", rec.measurand))
             continue
-        rep_text = cell_label(rec.replicate)
-        try:
-            replicate = int(rep_text) if rep_text is not None else -1
-        except ValueError:
-            replicate = -1
-        if replicate < 1:
-            problems.append(_problem("the replicate must be a whole number ≥ 1", rec, "replicate", rec.replicate))
-            continue
+        rep = rec.replicate
+        if type(rep) is int and rep >= 1:
+            replicate = rep
+        else:
+            rep_text = label(rep)
+            try:
+                replicate = int(rep_text) if rep_text is not None else -1
+            except ValueError:
+                replicate = -1
+            if replicate < 1:
+                problems.append(_problem("the replicate must be a whole number ≥ 1", rec, "replicate",
+                                         rec.replicate))
+                continue
         key = (lab, m.name, replicate)
-        if key in seen:
-            first = seen[key]
+        first = seen.get(key)
+        if first is not None:
             problems.append(_problem(
                 f"duplicate result for lab {lab}, {m.name}, replicate {replicate} "
                 f"(also in {first.file}" + (f" sheet {first.sheet!r}" if first.sheet else "") +
@@ -213,7 +263,7 @@ def build_table(
         except CellError as exc:
             problems.append(_problem(str(exc), rec, "value", rec.value))
             continue
-        unit = cell_label(rec.unit) or m.unit
+        unit = label(rec.unit) or m.unit
         f = 1.0
         if unit != m.unit:
             try:
@@ -228,20 +278,12 @@ def build_table(
                 f"a negative result, but {m.name} cannot be below zero "
                 "(set allow_negative = true for this measurand if it can)", rec, "value", rec.value))
             continue
-        u = _number(rec.u, "u", rec, problems)
-        U = _number(rec.U, "U", rec, problems)
-        k = _number(rec.k, "k", rec, problems, positive=True)
+        u = _optional_number(rec.u, "u", rec, problems)
+        U = _optional_number(rec.U, "U", rec, problems)
+        k = _optional_number(rec.k, "k", rec, problems, positive=True)
         out.append((
             lab, m.name, replicate, cell.kind, value, _decimal_scale(cell.text, f),
-            cell.relation, limit, m.unit,
-            u * f if u is not None else np.nan, U * f if U is not None else np.nan,
-            k if k is not None else np.nan,
-            cell_label(rec.method), cell_label(rec.comment), rec.file, rec.sheet, rec.row,
+            cell.relation, limit, m.unit, u * f, U * f, k,
+            label(rec.method), label(rec.comment), rec.file, rec.sheet, rec.row,
         ))
-    if problems:
-        raise InputError(problems, summary="the results cannot be imported")
-    frame = pd.DataFrame(out, columns=list(COLUMNS))
-    frame = frame.astype({"replicate": "int64", "value": "float64", "limit": "float64",
-                          "u": "float64", "U": "float64", "k": "float64", "row": "int64"})
-    frame = frame.sort_values(["measurand", "lab", "replicate"], kind="stable").reset_index(drop=True)
-    return ResultTable(frame=frame, files=tuple(files), warnings=tuple(warnings))
+    return out, problems

@@ -151,3 +151,26 @@ def test_environment_hook_aborts_one_file_in_a_separate_run(files, tmp_path):
     assert out.returncode == 0, out.stderr
     assert out.stdout.split() == ["1", "8"]
     assert "Traceback" not in out.stderr
+
+
+def _then_summary(got: FileRows):
+    """Runs in the worker: a compact result instead of the rows, and where it ran."""
+    from roundscore.errors import InputError
+
+    value = got.sheets[0].rows[0][1]
+    if value == 5:
+        raise InputError.single("the post step refused this file", file=got.file)
+    return ("summary", value, os.getpid())
+
+
+@pytest.mark.parametrize("jobs", [1, 2])
+def test_then_runs_in_the_worker_and_its_refusals_are_failures(files, jobs):
+    seen = []
+    got = read_many(files, ["Results"], jobs=jobs, then=_then_summary,
+                    progress=lambda done, total: seen.append((done, total)))
+    assert [g[1] if isinstance(g, tuple) else None for g in got] == [0, 1, 2, 3, 4, None, 6, 7]
+    assert all(g[2] != os.getpid() for g in got if isinstance(g, tuple))  # not in this process
+    failed = got[5]
+    assert isinstance(failed, ReadFailure) and "post step refused" in failed.reason
+    # Progress counts files as batches come back, ending at all of them.
+    assert seen and seen[-1] == (8, 8) and [d for d, _ in seen] == sorted(d for d, _ in seen)

@@ -13,7 +13,7 @@ import pytest
 from roundscore import parallel
 from roundscore.bigdemo import make_big_round
 from roundscore.errors import InputError, Problem
-from roundscore.io import readers
+from roundscore.io import isolation, readers
 from roundscore.parallel import batches, resolve_jobs, run_batches
 from roundscore.pipeline import atomic_folder, load_and_evaluate, write_outputs
 from roundscore.round import load_round
@@ -128,7 +128,7 @@ def _same_tree(a: Path, b: Path) -> None:
 
 
 def test_outputs_byte_identical_for_any_jobs(big, tmp_path, monkeypatch):
-    monkeypatch.setattr(readers, "FORMS_PER_BATCH", 8)  # 5 read batches
+    monkeypatch.setattr(isolation, "BATCH_FILES", 8)  # several read batches per worker
     ev1 = load_and_evaluate(big, jobs=1)
     ev2 = load_and_evaluate(big, jobs=2)
     assert ev1.table.frame.equals(ev2.table.frame)
@@ -138,8 +138,11 @@ def test_outputs_byte_identical_for_any_jobs(big, tmp_path, monkeypatch):
 
 def test_batched_read_equals_one_batch(big, monkeypatch):
     rnd = load_round(big)
-    whole = readers.read_results(rnd, jobs=1)
-    monkeypatch.setattr(readers, "FORMS_PER_BATCH", 7)
+    monkeypatch.setattr(isolation, "BATCH_FILES", 10_000)
+    monkeypatch.setattr(isolation, "_BATCHES_PER_WORKER", 1)
+    whole = readers.read_results(rnd, jobs=1)  # all 40 forms in one batch
+    monkeypatch.setattr(isolation, "BATCH_FILES", 7)
+    monkeypatch.setattr(isolation, "_BATCHES_PER_WORKER", 4)
     parts = readers.read_results(rnd, jobs=2)
     assert whole.frame.equals(parts.frame)
     assert whole.files == parts.files and len(whole.files) == 40
@@ -159,7 +162,7 @@ def test_lab_returned_twice_across_batches_is_a_duplicate(big, tmp_path, monkeyp
     shutil.copytree(big, folder)
     forms = sorted((folder / "forms").glob("*.xlsx"))
     shutil.copy(forms[0], folder / "forms" / "zz-returned-again.xlsx")  # sorts last: another batch
-    monkeypatch.setattr(readers, "FORMS_PER_BATCH", 8)
+    monkeypatch.setattr(isolation, "BATCH_FILES", 8)
     with pytest.raises(InputError) as info:
         readers.read_results(load_round(folder), jobs=jobs)
     probs = info.value.problems

@@ -312,3 +312,22 @@ def test_fuzz_regressions(path: Path):
     assert isinstance(got, (FileRows, ReadFailure))
     if isinstance(got, ReadFailure):
         assert "reader failed" not in got.reason and "stopped by" not in got.reason
+
+
+def test_prefixed_and_shared_formulas_without_values_are_found(base: Path, tmp_path: Path):
+    # SpreadsheetML (ECMA-376 Part 1, §18.3.1.40 f): a shared formula's text is on the group's first
+    # cell; the other cells hold an empty <f t="shared" si="…"/>. Namespace prefixes are legal XML.
+    parts = members(base)
+    sheet = parts["xl/worksheets/sheet1.xml"]
+    start = sheet.index(b'<c r="D3"')
+    end = sheet.index(b"</c>", start) + len(b"</c>")
+    shared = (b'<c r="D3"><f t="shared" ref="D3:E3" si="0">D2*2</f></c>'
+              b'<c r="E3"><f t="shared" si="0"/></c>')
+    path = rewrite(base, tmp_path / "shared.xlsx", {"xl/worksheets/sheet1.xml": sheet[:start] + shared + sheet[end:]})
+    assert inspect_workbook(path).formulas_without_value == {"Results": ("D3", "E3")}
+    # The same cell with a prefixed element name, value missing.
+    prefixed = sheet.replace(b"<worksheet ", b'<worksheet xmlns:x="http://schemas.openxmlformats.org/'
+                                            b'spreadsheetml/2006/main" ', 1)
+    prefixed = prefixed[:start] + b'<c r="D3"><x:f>D2*2</x:f></c>' + prefixed[end:]
+    path = rewrite(base, tmp_path / "prefixed.xlsx", {"xl/worksheets/sheet1.xml": prefixed})
+    assert inspect_workbook(path).formulas_without_value == {"Results": ("D3",)}

@@ -97,9 +97,11 @@ def _hooked_reader() -> Reader:
     return getattr(importlib.import_module(module), name)
 
 
-def _read_one(reader: Reader, path: str, sheets: Sequence[str | None], limits: ReadLimits):
+def _read_one(reader: Reader, path: str, sheets: Sequence[str | None], limits: ReadLimits,
+              then: Callable[[FileRows], object] | None = None):
     try:
-        return reader(path, sheets, limits)
+        got = reader(path, sheets, limits)
+        return then(got) if then is not None else got
     except InputError as exc:
         reason = str(exc.problems[0].message) if exc.problems else str(exc)
         return ReadFailure(file=path, reason=reason, problems=tuple(exc.problems))
@@ -140,7 +142,8 @@ def _limit_memory(extra: int) -> None:
         pass
 
 
-def _worker(conn, progress, limits: ReadLimits, reader: Reader | None) -> None:
+def _worker(conn, progress, limits: ReadLimits, reader: Reader | None,
+            then: Callable[[FileRows], object] | None) -> None:
     """Worker loop: receive a batch ``[(index, path, sheets)]``, send back its results as one list.
 
     Before each file it writes ``(index, start time)`` into the shared
@@ -151,6 +154,11 @@ def _worker(conn, progress, limits: ReadLimits, reader: Reader | None) -> None:
     import faulthandler
 
     faulthandler.disable()  # a crash here is reported by the parent as a ReadFailure, not a dump
+    import gc
+
+    # The parent's objects, inherited by fork, are left out of this process's collections: a full
+    # collection walking them would copy every page they live on (copy-on-write).
+    gc.freeze()
     _limit_memory(limits.memory_bytes)
     use = reader if reader is not None else _hooked_reader()
     try:
@@ -162,7 +170,7 @@ def _worker(conn, progress, limits: ReadLimits, reader: Reader | None) -> None:
             for index, path, sheets in batch:
                 progress[1] = time.monotonic()
                 progress[0] = index
-                out.append(_read_one(use, path, sheets, limits))
+                out.append(_read_one(use, path, sheets, limits, then))
             conn.send(out)
     except (EOFError, OSError, KeyboardInterrupt):
         return
@@ -215,6 +223,8 @@ _BATCHES_PER_WORKER = 4
 
 def read_many(paths: Sequence[str | Path], sheets: str | None | Sequence[str | None] = None, *,
               jobs: int | None = None, limits: ReadLimits = DEFAULT_LIMITS,
+              then: Callable[[FileRows], object] | None = None,
+              progress: Callable[[int, int], None] | None = None,
               _reader: Reader | None = None) -> list[FileRows | ReadFailure]:
     """Read many untrusted files in isolated worker processes; one result per path, in input order.
 
@@ -230,6 +240,15 @@ def read_many(paths: Sequence[str | Path], sheets: str | None | Sequence[str | N
         reader library never reaches the caller.
     limits : ReadLimits
         Size, memory and time bounds per file.
+    then : callable, optional
+        ``then(file_rows) -> result`` run inside the worker on each file
+        read, under the same bounds; its result is returned instead of the
+        ``FileRows`` (so a caller can turn rows into a compact result where
+        they were read, instead of sending every cell back). An
+        :class:`~roundscore.errors.InputError` it raises becomes the file's
+        ``ReadFailure``. Under ``spawn`` it must be picklable.
+    progress : callable, optional
+        ``progress(files_done, files_total)``, called as batches come back.
     _reader : callable, optional
         ``reader(path, sheets, limits) -> FileRows`` replacing the file
         reader inside the workers (for tests).
@@ -263,11 +282,11 @@ def read_many(paths: Sequence[str | Path], sheets: str | None | Sequence[str | N
 
     def start() -> None:
         parent, child = ctx.Pipe(duplex=True)
-        progress = ctx.RawArray("d", 2)
-        proc = ctx.Process(target=_worker, args=(child, progress, limits, _reader), daemon=True)
+        shared_progress = ctx.RawArray("d", 2)
+        proc = ctx.Process(target=_worker, args=(child, shared_progress, limits, _reader, then), daemon=True)
         proc.start()
         child.close()
-        slot = _Slot(process=proc, conn=parent, progress=progress)
+        slot = _Slot(process=proc, conn=parent, progress=shared_progress)
         slots.append(slot)
         feed(slot)
 
@@ -294,6 +313,7 @@ def read_many(paths: Sequence[str | Path], sheets: str | None | Sequence[str | N
         if queue:
             start()
 
+    done = 0
     try:
         for _ in range(n_workers):
             start()
@@ -315,8 +335,11 @@ def read_many(paths: Sequence[str | Path], sheets: str | None | Sequence[str | N
                 if got is not None:
                     for (index, _, _), value in zip(slot.batch, got):
                         results[index] = value
+                    done += len(slot.batch)
                     slot.batch = []
                     feed(slot)
+                    if progress is not None:
+                        progress(done, len(items))
                 elif slot.conn in ready or slot.process.sentinel in ready:
                     slot.process.join(timeout=5.0)
                     retire(slot, _died(slot.process))

@@ -7,7 +7,7 @@ from pathlib import Path
 
 from ..errors import InputError, Problem
 from ..round import Round
-from ..table import ResultTable, build_table, records_from_long
+from ..table import ResultTable, build_table, records_from_long, table_frame, validate_records
 from .forms import INFO_SHEET, RESULTS_SHEET, records_from_form
 from .xlsx import SheetRows, read_rows
 
@@ -46,10 +46,9 @@ def read_results(rnd: Round, *, jobs: int | None = None, progress=None) -> Resul
     ``round.results`` names one long-layout table (CSV or workbook), or a
     folder or glob of returned submission forms. Every problem in every file
     is collected before the import is refused. Forms are read and checked
-    by ``jobs`` worker processes (None = all cores), in batches of
-    :data:`FORMS_PER_BATCH` fixed files, so the table and the problems
-    listed are the same for any ``jobs``; ``progress(stage, done, total)``
-    follows the files read.
+    by ``jobs`` isolated worker processes (None = all cores); the table and
+    the problems listed are the same for any ``jobs``; ``progress(stage,
+    done, total)`` follows the files read.
     """
     files = rnd.result_files()
     records: list = []
@@ -84,50 +83,44 @@ def read_results(rnd: Round, *, jobs: int | None = None, progress=None) -> Resul
     return build_table(rnd, records, files=[_shown(rnd, f) for f in files], warnings=warnings, problems=problems)
 
 
-#: Returned forms read and checked per batch: fixed, so results do not depend on the number of jobs;
-#: large enough to amortise a worker round trip, small enough to spread the work (common practice).
-FORMS_PER_BATCH = 64
-
-
 def _read_forms(rnd: Round, files: list[Path], *, jobs: int | None, progress) -> ResultTable:
-    """A folder of returned forms: batches read and validated in worker processes, then joined.
+    """A folder of returned forms: each read and validated in an isolated worker process, then joined.
 
-    Each worker turns its batch into a validated frame with :func:`build_table`
-    (so the rows of 2000 forms never travel as Python objects); here the
-    frames are joined, a lab code returned in forms of two different batches
-    is reported as the same duplicate :func:`build_table` reports inside a
-    batch, and the rows are put in the table's order.
+    Each worker turns a form into validated row tuples where it read it
+    (:func:`_form_rows`), so the cells of 2000 forms never travel between
+    processes. Here the rows are joined into one frame, a lab code returned
+    in two forms is reported as the duplicate :func:`build_table` reports
+    within one file, and the rows are put in the table's order. The result
+    is the same for any ``jobs``.
     """
-    from ..parallel import run_batches
+    from functools import partial
 
-    batches = [[str(f) for f in files[i:i + FORMS_PER_BATCH]] for i in range(0, len(files), FORMS_PER_BATCH)]
+    from .safety import read_many
+
     report = None
     if progress:
-        def report(stage: str, done: int, total: int) -> None:
-            progress("read forms", min(len(files), done * FORMS_PER_BATCH), len(files))
-    parts = run_batches(_form_batch, batches, jobs=jobs, shared=rnd, batch_size=1, progress=report,
-                        stage="read forms")
+        def report(done: int, total: int) -> None:
+            progress("read forms", done, total)
+    paths = [str(f) for f in files]
+    forms = [p for p in paths if _is_form(Path(p))]
+    read = dict(zip(forms, read_many(forms, [RESULTS_SHEET, INFO_SHEET], jobs=jobs, limits=rnd.limits,
+                                     then=partial(_form_rows, rnd), progress=report)))
     problems: list[Problem] = []
     warnings: list[str] = []
-    shown: list[str] = []
-    frames = []
-    for part in parts:
-        shown += part["shown"]
-        warnings += part["warnings"]
-        problems += part["problems"]
-        if part["frame"] is not None:
-            frames.append(part["frame"])
-    import pandas as pd
-
-    if frames:
-        frame = pd.concat(frames, ignore_index=True) if len(frames) > 1 else frames[0]
-        for col in frame.columns:
-            if len({str(f[col].dtype) for f in frames}) > 1:
-                # A text column all blank in one batch is inferred as object there: infer it again over
-                # all rows, as one build_table over every record would.
-                frame[col] = pd.Series(frame[col].tolist(), index=frame.index)
-    else:
-        frame = build_table(rnd, [], problems=[]).frame
+    rows: list[tuple] = []
+    shown = [_shown(rnd, Path(p)) for p in paths]
+    for p, name in zip(paths, shown):
+        got = read.get(p)
+        if got is None:
+            problems.append(Problem(message="not a submission workbook (.xlsx)", file=name))
+        elif isinstance(got, _FormRows):
+            rows += got.rows
+            problems += got.problems
+            warnings += got.warnings
+        else:  # a ReadFailure: refused, crashed, out of memory or timed out
+            problems += [_with_file(q, name) for q in got.as_problems()]
+    del read
+    frame = table_frame(rows)
     dup = frame.duplicated(["lab", "measurand", "replicate"], keep="first").to_numpy()
     if dup.any():
         first = frame[~dup].set_index(["lab", "measurand", "replicate"])
@@ -141,9 +134,16 @@ def _read_forms(rnd: Round, files: list[Path], *, jobs: int | None, progress) ->
                 measurand=r.measurand, value=int(r.replicate)))
     if problems:
         raise InputError(problems, summary="the results cannot be imported")
-    if len(frames) > 1:
-        frame = frame.sort_values(["measurand", "lab", "replicate"], kind="stable").reset_index(drop=True)
     return ResultTable(frame=frame, files=tuple(shown), warnings=tuple(warnings))
+
+
+@dataclass(frozen=True, slots=True)
+class _FormRows:
+    """One returned form, validated where it was read: its row tuples (table COLUMNS) and findings."""
+
+    rows: list
+    problems: list
+    warnings: list
 
 
 def _read_sheets(paths: list[str], limits) -> list:
@@ -154,43 +154,14 @@ def _read_sheets(paths: list[str], limits) -> list:
             read_many(paths, [RESULTS_SHEET, INFO_SHEET], jobs=1, limits=limits)]
 
 
-def _form_batch(batches: list[list[str]]) -> list[dict]:
-    """Worker side of :func:`_read_forms`: read, turn into records and validate one batch of forms."""
-    from ..parallel import shared
-
-    rnd: Round = shared()
-    out = []
-    for paths in batches:
-        records: list = []
-        problems: list[Problem] = []
-        warnings: list[str] = []
-        shown_all = [_shown(rnd, Path(p)) for p in paths]
-        forms = [p for p in paths if _is_form(Path(p))]
-        read = dict(zip(forms, _read_sheets(forms, rnd.limits)))
-        for p, shown in zip(paths, shown_all):
-            if p not in read:
-                problems.append(Problem(message="not a submission workbook (.xlsx)", file=shown))
-                continue
-            got = read[p]
-            if not isinstance(got, tuple):  # a ReadFailure or an InputError
-                probs = got.as_problems() if hasattr(got, "as_problems") else list(got.problems)
-                problems += [_with_file(q, shown) for q in probs]
-                continue
-            results, info = got
-            results = SheetRows(file=shown, sheet=results.sheet, rows=results.rows, warnings=results.warnings)
-            recs, probs = records_from_form(rnd, results, info)
-            records += recs
-            problems += probs
-            warnings += list(results.warnings + info.warnings)
-        del read
-        frame = None
-        try:
-            frame = build_table(rnd, records, problems=problems).frame
-            problems = []
-        except InputError as exc:
-            problems = list(exc.problems)
-        out.append({"frame": frame, "problems": problems, "warnings": warnings, "shown": shown_all})
-    return out
+def _form_rows(rnd: Round, got) -> _FormRows:
+    """Worker side of :func:`_read_forms`: one form's two sheets turned into validated rows."""
+    results, info = got.sheets
+    shown = _shown(rnd, Path(got.file))
+    results = SheetRows(file=shown, sheet=results.sheet, rows=results.rows, warnings=results.warnings)
+    records, problems = records_from_form(rnd, results, info)
+    rows, found = validate_records(rnd, records)
+    return _FormRows(rows=rows, problems=problems + found, warnings=list(results.warnings + info.warnings))
 
 
 def _with_file(problem: Problem, shown: str) -> Problem:
