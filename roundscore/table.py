@@ -36,9 +36,15 @@ OPTIONAL = ("unit", "u", "U", "k", "method", "comment")
 _CASE_SENSITIVE = {"u", "U"}
 
 
-@dataclass(frozen=True, slots=True, kw_only=True)
+@dataclass(slots=True, kw_only=True)
 class Record:
-    """One result cell with its place, before validation against the round."""
+    """One result cell with its place, before validation against the round.
+
+    Not frozen, unlike the results of the package: a large round builds a
+    few hundred thousand of these, and a frozen dataclass's ``__init__``
+    (one ``object.__setattr__`` per field) is about four times slower. Nothing
+    changes a record after it is made.
+    """
 
     lab: object
     measurand: object
