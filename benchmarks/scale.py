@@ -467,6 +467,8 @@ def _run(a: argparse.Namespace, jobs: int, growth: list[int], work: Path) -> int
     say(_line("evaluate", st["evaluate"], None, bl["evaluate"]))
     say(_line("write", st["write"], fw["seconds"], bl["write"]))
     say(_line("total", st["total"], floor_total, bl["total"]))
+    say(f"  the floor itself is {floor_total / bl['total']:.3f}× the baseline: no run writing these outputs with "
+        f"the floor's writer can beat that ratio (target total/baseline ≤ {TARGETS['total/baseline']:g})")
     say(f"  floor read: python-calamine, {jobs} process(es), both sheets of {gen['forms']} forms; floor write: "
         f"xlsxwriter in memory, {jobs} process(es), {fw['files']} files, {fw['cells']} cells, {fw['charts']} "
         "native charts (+ the same CSV rows and other files' bytes)")
