@@ -5,25 +5,28 @@ able to add native workbook charts). Every text cell is written as a string,
 never as a formula, whatever it starts with. The creation time is fixed so
 the same round gives the same workbook bytes.
 
-A lab's sheet holds that lab's results, scores and signals, the round's
-statistics and where the lab stands among all labs (by rank, with other labs
-shown only as anonymous codes in the shared statistics, never their names).
-Two sheets, ``data`` and ``round``, are machine-readable (the history
-commands read them back): their layout is a contract, see
-:data:`~roundscore.evaluate.SCORE_COLUMNS`.
+A lab's workbook holds that lab's results, scores and signals, beside each
+score what the lab needs to read it (assigned value, u(x_pt), σ_pt, the
+number of labs the assigned value used, the lab's Mandel h and k) and where
+the lab stands among all labs (its rank; other labs are never named).  The
+round's statistics of every measurand are not repeated in each lab's file:
+the Scores sheet says they are in the summary workbook ``round-summary.xlsx``
+circulated with it.  Two sheets, ``data`` and ``round``, are
+machine-readable (the history commands read them back): their layout is a
+contract, see :data:`~roundscore.evaluate.SCORE_COLUMNS`.
 """
 
 from __future__ import annotations
 
 import datetime as dt
 import math
+import tempfile
 from pathlib import Path
 from typing import Any, Iterable
 
 import numpy as np
 import pandas as pd
 import xlsxwriter
-from xlsxwriter.utility import xl_rowcol_to_cell
 
 from ..evaluate import SCORE_COLUMNS, STATISTICS_COLUMNS, RoundEvaluation
 from ..look import CAUTION, SIGNAL_COLOUR, SIGNAL_WORD, signal_label
@@ -65,6 +68,7 @@ def _tint(hex_colour: str) -> str:
 
 
 def _write(ws, r: int, c: int, v: Any, fmt=None) -> None:
+    """Write one value by its kind: nothing for a missing one (a blank only when it has a format)."""
     if v is None or (isinstance(v, float) and math.isnan(v)):
         ws.write_blank(r, c, None, fmt)
     elif isinstance(v, (bool, np.bool_)):
@@ -75,36 +79,86 @@ def _write(ws, r: int, c: int, v: Any, fmt=None) -> None:
         ws.write_string(r, c, str(v), fmt)
 
 
-def _table(ws, fm: _Formats, top: int, frame: pd.DataFrame, columns: Iterable[str],
+#: Up to this many rows a frame is converted to lists whole, whatever columns are wanted.
+_CONVERT_WHOLE_ROWS = 1000
+
+
+def _columns(frame, cols: list[str]) -> tuple[dict[str, list], int]:
+    """The wanted columns as Python lists (a missing column is all None) and the number of rows.
+
+    A frame is converted in one step (one object array, then its columns as
+    lists): for the small frames of a lab's sheet this costs far less than
+    building a Series per column.
+    """
+    if isinstance(frame, pd.DataFrame):
+        n = len(frame)
+        present = [c for c in dict.fromkeys(cols) if c in frame.columns]
+        # A small frame is converted whole (selecting columns would copy it first); a large one only in part.
+        part = frame if n <= _CONVERT_WHOLE_ROWS or present == list(frame.columns) else frame[present]
+        lists = dict(zip(part.columns, part.to_numpy(dtype=object).T.tolist())) if n else {}
+        lists = {c: lists.get(c, []) for c in present}
+        return {c: lists[c] if c in lists else [None] * n for c in cols}, n
+    n = len(next(iter(frame.values()))) if frame else 0
+    return {c: frame[c] if c in frame else [None] * n for c in cols}, n
+
+
+def _table(ws, fm: _Formats, top: int, frame, columns: Iterable[str],
            headers: Iterable[str] | None = None, decimals: dict[str, int | None] | None = None,
            signal_col: str | None = None, words: str = "signals",
            row_decimals: dict[str, int | None] | None = None) -> int:
-    """Write a header row and the frame's columns; returns the row after the table.
+    """Write a header row and the table's columns (a frame, or lists by column); returns the row after it.
 
     ``decimals`` fixes a column's decimals; ``row_decimals`` maps measurand
     → decimals, applied row by row (by the row's ``measurand``) to the value
     columns of :data:`VALUE_COLUMNS` (with one more decimal for
-    uncertainties and σ_pt).
+    uncertainties and σ_pt).  Missing values (None, NaN, empty text) leave
+    the cell empty.  The format of each column (or each row of a value
+    column) is looked up once, and rows are written in order (as
+    xlsxwriter's ``constant_memory`` mode needs).
     """
     cols = list(columns)
     for j, h in enumerate(headers or cols):
         ws.write_string(top, j, h, fm.head)
-    data = {c: (frame[c].tolist() if c in frame else [None] * len(frame)) for c in cols}
-    meas = frame["measurand"].tolist() if row_decimals and "measurand" in frame else None
-    for i in range(len(frame)):
-        d_row = row_decimals.get(meas[i]) if meas is not None else None
-        for j, c in enumerate(cols):
-            v = data[c][i]
-            fmt = None
-            if decimals and c in decimals:
-                fmt = fm.decimals(decimals[c])
-            elif meas is not None and c in VALUE_COLUMNS and d_row is not None:
-                fmt = fm.decimals(d_row + VALUE_COLUMNS[c])
-            if c == signal_col and isinstance(v, str):
-                _write(ws, top + 1 + i, j, signal_label(v, words), fm.signal.get(v))
-                continue
-            _write(ws, top + 1 + i, j, v, fmt)
-    return top + 1 + len(frame)
+    data, n = _columns(frame, cols)
+    by_row: dict[int, list] = {}
+    if row_decimals and "measurand" in frame:
+        row_d = [row_decimals.get(m) for m in (frame["measurand"].tolist() if isinstance(frame, pd.DataFrame)
+                                                else frame["measurand"])]
+        for extra in set(VALUE_COLUMNS.values()):
+            by_row[extra] = [None if d is None else fm.decimals(d + extra) for d in row_d]
+    specs = []  # (column index, values, format, formats by row or None, signal cells or None)
+    for j, c in enumerate(cols):
+        fmt, fmts, signals = None, None, None
+        if decimals and c in decimals:
+            fmt = fm.decimals(decimals[c])
+        elif by_row and c in VALUE_COLUMNS:
+            fmts = by_row[VALUE_COLUMNS[c]]
+        if c == signal_col:
+            signals = {s: (signal_label(s, words), fm.signal.get(s)) for s in set(data[c]) if isinstance(s, str)}
+        specs.append((j, data[c], fmt, fmts, signals))
+    number, string = ws.write_number, ws.write_string
+    for i in range(n):
+        r = top + 1 + i
+        for j, values, fmt, fmts, signals in specs:
+            v = values[i]
+            if fmts is not None:
+                fmt = fmts[i]
+            t = type(v)
+            if t is float:
+                if v == v:
+                    number(r, j, v, fmt)
+            elif t is str:
+                if signals is not None:
+                    label, sfmt = signals[v]
+                    if label:
+                        string(r, j, label, sfmt)
+                elif v:
+                    string(r, j, v, fmt)
+            elif t is int:
+                number(r, j, float(v), fmt)
+            elif v is not None and not (isinstance(v, float) and math.isnan(v)) and v is not pd.NA:
+                _write(ws, r, j, v, fmt)  # numpy scalars, booleans, other objects
+    return top + 1 + n
 
 
 #: Value columns shown with the measurand's decimals (+0) or one more (+1: uncertainties, σ_pt, robust SDs).
@@ -116,26 +170,37 @@ MIN_WIDTH, MAX_WIDTH = 6, 60
 FIT_ROWS = 500
 
 
-def _fit(frame: pd.DataFrame, columns: Iterable[str], headers: Iterable[str] | None = None,
+def _fit(frame, columns: Iterable[str], headers: Iterable[str] | None = None,
          decimals: dict[str, int | None] | None = None, signal_col: str | None = None) -> list[int]:
-    """Column widths that fit the header's longest word and the values (first :data:`FIT_ROWS` rows)."""
+    """Column widths that fit the header's longest word and the values (first :data:`FIT_ROWS` rows).
+
+    A number is measured as shown with the column's ``decimals`` (else 6
+    significant digits); with fixed decimals only the largest and the
+    smallest number need formatting (the shown length grows with the
+    magnitude on each side of zero).
+    """
     cols = list(columns)
     heads = list(headers or cols)
+    head = frame.iloc[:FIT_ROWS] if isinstance(frame, pd.DataFrame) else {c: v[:FIT_ROWS] for c, v in frame.items()}
+    data, _ = _columns(head, [c for c in cols if c in frame])
     out = []
     for c, h in zip(cols, heads):
         longest = max((len(w) for w in str(h).split()), default=0)
-        if c in frame:
-            for v in frame[c].iloc[:FIT_ROWS].tolist():
-                if isinstance(v, float):
-                    if math.isnan(v):
-                        continue
-                    d = (decimals or {}).get(c)
-                    n = len(f"{v:.{d}f}") if d is not None else len(f"{v:.6g}")
-                elif c == signal_col:
-                    n = len(str(v)) + 8
-                else:
-                    n = len(str(v))
-                longest = max(longest, n)
+        values = data.get(c, ())
+        floats = [v for v in values if isinstance(v, float)]
+        if floats:
+            d = (decimals or {}).get(c)
+            if d is not None:
+                finite = [v for v in floats if v - v == 0]
+                shown = [max(finite), min(finite)] if finite else []
+                shown += [v for v in floats if v == v and v - v != 0]  # ±inf, each shown
+                longest = max([longest] + [len(f"{v:.{d}f}") for v in shown])
+            else:
+                longest = max([longest] + [len(f"{v:.6g}") for v in floats if v == v])
+        others = [v for v in values if not isinstance(v, float)]
+        if others:
+            extra = 8 if c == signal_col else 0
+            longest = max(longest, max(len(str(v)) for v in others) + extra)
         out.append(min(max(longest + 2, MIN_WIDTH), MAX_WIDTH))
     return out
 
@@ -188,9 +253,23 @@ def _measurand_decimals(ev: RoundEvaluation, name: str) -> int | None:
 
 
 def write_summary(ev: RoundEvaluation, path: Path) -> None:
-    """The summary workbook for circulation: settings, statistics, all scores by lab code, charts, audit."""
+    """The summary workbook for circulation: settings, statistics, all scores by lab code, charts, audit.
+
+    Written in xlsxwriter's ``constant_memory`` mode: each row goes to a
+    temporary file as soon as the next row starts, instead of every cell of
+    a large round (millions) staying in memory until the end.  So every
+    sheet is written row by row, top to bottom, and the charts carry their
+    cached values themselves (see :func:`_score_chart`).  The temporary files
+    live in a folder beside ``path`` and are removed when it is written.
+    """
+    path = Path(path)
+    with tempfile.TemporaryDirectory(prefix=f".{path.name}.tmp-", dir=path.parent) as tmp:
+        _write_summary(ev, path, {**_OPTIONS, "in_memory": False, "constant_memory": True, "tmpdir": tmp})
+
+
+def _write_summary(ev: RoundEvaluation, path: Path, options: dict[str, Any]) -> None:
     rnd = ev.round
-    wb = xlsxwriter.Workbook(str(path), _OPTIONS)
+    wb = xlsxwriter.Workbook(str(path), options)
     wb.set_properties({"title": f"Round summary {rnd.id}", "created": FIXED_TIME, "author": rnd.provider or ""})
     fm = _Formats(wb)
     # Summary and settings
@@ -210,6 +289,7 @@ def write_summary(ev: RoundEvaluation, path: Path) -> None:
     frame = pd.DataFrame(rows, columns=list("abcdefghijk"))
     frame["measurand"] = frame["a"]
     head_row = r
+    ws.set_row(head_row, 30)  # before the row is written (constant_memory writes rows in order)
     r = _table(ws, fm, r, frame.rename(columns={"d": "assigned", "e": "u_assigned", "f": "sigma_pt"}),
                ["a", "b", "c", "assigned", "u_assigned", "sigma_pt", "g", "h", "i", "j", "k"], head,
                row_decimals=dec) + 1
@@ -218,7 +298,6 @@ def write_summary(ev: RoundEvaluation, path: Path) -> None:
         r += 1
     _widths(ws, [max(w, 12) for w in _fit(frame, list("abcdefg"), head[:7])] + [40, 40, 16, 60])
     ws.freeze_panes(head_row + 1, 1)
-    ws.set_row(head_row, 30)
     _print_setup(ws, rnd.id, head_row)
     # Statistics
     ws = wb.add_worksheet("Statistics")
@@ -248,12 +327,12 @@ def write_summary(ev: RoundEvaluation, path: Path) -> None:
         vals = g[SCORE_FIELD[m.settings.score]].to_numpy(float)
         keep = np.isfinite(vals)
         order = np.argsort(vals[keep], kind="stable")
-        block = pd.DataFrame({"lab": g["lab"].to_numpy()[keep][order], "score": vals[keep][order],
-                              "signal": g["signal"].to_numpy()[keep][order]})
-        if not len(block):
+        if not len(order):
             continue
-        c, top = _score_chart(wb, cd, fm, top, block, f"{name} ({m.settings.score})", m.settings.score,
-                              rnd.words, f"{name}: {_SCORE_NAME[m.settings.score]} by laboratory (ranked)")
+        c, top = _score_chart(wb, cd, fm, top, g["lab"].to_numpy()[keep][order].tolist(), vals[keep][order].tolist(),
+                              g["signal"].to_numpy()[keep][order].tolist(), f"{name} ({m.settings.score})",
+                              m.settings.score, rnd.words,
+                              f"{name}: {_SCORE_NAME[m.settings.score]} by laboratory (ranked)")
         c.set_size({"width": 900, "height": 320})
         ch.insert_chart(row, 0, c)
         row += 17
@@ -285,9 +364,11 @@ _CHART_MARKER = {"acceptable": "circle", "warning": "triangle", "action": "squar
 CHART_POINT_COLOURS = 200
 
 
-def _score_chart(wb, sheet, fm: _Formats, top: int, block: pd.DataFrame, label: str, score: str, words: str,
-                 title: str) -> tuple[Any, int]:
-    """Write one chart's data block at ``top`` on ``sheet`` and return (chart, next free row).
+def _score_chart(wb, sheet, fm: _Formats, top: int, labs: list, scores: list[float], signals: list[str],
+                 label: str, score: str, words: str, title: str) -> tuple[Any, int]:
+    """Write one chart's data block (the bars' labels, finite scores and signals) at ``top`` on ``sheet``.
+
+    Returns (chart, next free row).
 
     A column chart of the scores combined with a line chart (no lines) of one
     marker series per signal, named by the signal word (shape and word, not
@@ -303,35 +384,45 @@ def _score_chart(wb, sheet, fm: _Formats, top: int, block: pd.DataFrame, label: 
     heads += [f"{sign}{lim:g} {word} limit" for lim, word, _ in limits for sign in "+-"]
     for j, h in enumerate(heads):
         sheet.write_string(top, j, h, fm.head)
-    first, last = top + 1, top + len(block)
-    for i, (lab, v, sig) in enumerate(zip(block["lab"], block["score"], block["signal"])):
-        r = first + i
-        sheet.write_string(r, 0, label)
-        sheet.write_string(r, 1, str(lab))
-        sheet.write_number(r, 2, float(v), fm.decimals(2))
-        for j, s in enumerate(_CHART_MARKER, start=3):
-            if sig == s:
-                sheet.write_number(r, j, float(v), fm.decimals(2))
-        for j, (lim, _, _) in enumerate(limits):
-            sheet.write_number(r, 6 + 2 * j, lim)
-            sheet.write_number(r, 7 + 2 * j, -lim)
+    first, last = top + 1, top + len(scores)
+    number, string, two = sheet.write_number, sheet.write_string, fm.decimals(2)
+    marker_col = {s: j for j, s in enumerate(_CHART_MARKER, start=3)}
+    bounds = [(6 + 2 * j, lim) for j, (lim, _, _) in enumerate(limits)]
+    for r, lab, v, sig in zip(range(first, last + 1), labs, scores, signals):
+        string(r, 0, label)
+        string(r, 1, str(lab))
+        number(r, 2, v, two)
+        if sig in marker_col:
+            number(r, marker_col[sig], v, two)
+        for j, lim in bounds:
+            number(r, j, lim)
+            number(r, j + 1, -lim)
+    # The charts' cached values are given with each series (xlsxwriter's ``*_data`` series options), the
+    # same text as xlsxwriter would read back from the cells: a workbook written in constant_memory mode
+    # cannot read them back, and viewers that draw from the cache would show empty charts.
     cats = [sname, first, 1, last, 1]
+    cat_data = [str(lab) for lab in labs]
+    shown = [f"{v:.16g}" for v in scores]
     col = wb.add_chart({"type": "column"})
     series = {"name": "score", "categories": cats, "values": [sname, first, 2, last, 2],
+              "categories_data": cat_data, "values_data": shown,
               "fill": {"color": "#9DB9D3"}, "border": {"color": "#555555"}, "gap": 40}
-    if len(block) <= CHART_POINT_COLOURS:
-        series["points"] = [{"fill": {"color": _tint(SIGNAL_COLOUR.get(s, SIGNAL_COLOUR["not-scored"]))},
-                             "border": {"color": "#555555"}} for s in block["signal"]]
+    if len(scores) <= CHART_POINT_COLOURS:
+        tints = {s: _tint(SIGNAL_COLOUR.get(s, SIGNAL_COLOUR["not-scored"])) for s in set(signals)}
+        series["points"] = [{"fill": {"color": tints[s]}, "border": {"color": "#555555"}} for s in signals]
     col.add_series(series)
     line = wb.add_chart({"type": "line"})
+    present = set(signals)
     for j, s in enumerate(_CHART_MARKER, start=3):
-        if (block["signal"] == s).any():
+        if s in present:
             line.add_series({"name": [sname, top, j], "categories": cats, "values": [sname, first, j, last, j],
+                             "name_data": [heads[j]], "categories_data": cat_data,
+                             "values_data": [v if sig == s else None for v, sig in zip(shown, signals)],
                              "line": {"none": True},
                              "marker": {"type": _CHART_MARKER[s], "size": 6, "fill": {"color": SIGNAL_COLOUR[s]},
                                         "border": {"color": "#000000"}}})
     hidden = []
-    n_series = 1 + sum(1 for s in _CHART_MARKER if (block["signal"] == s).any())
+    n_series = 1 + sum(1 for s in _CHART_MARKER if s in present)
     for j, (lim, word, dash) in enumerate(limits):
         for sign in (0, 1):
             c = 6 + 2 * j + sign
@@ -339,10 +430,11 @@ def _score_chart(wb, sheet, fm: _Formats, top: int, block: pd.DataFrame, label: 
                 hidden.append(n_series)
             n_series += 1
             line.add_series({"name": f"{word} limit ±{lim:g}", "categories": cats, "values": [sname, first, c, last, c],
+                             "categories_data": cat_data, "values_data": [f"{-lim if sign else lim:.16g}"] * len(scores),
                              "line": {"color": "#444444", "width": 1, "dash_type": dash}, "marker": {"type": "none"}})
     col.combine(line)
     bound = max(limits[-1][0] + 1, 4.0)
-    vmax = float(np.nanmax(np.abs(block["score"].to_numpy(float))))
+    vmax = max(abs(v) for v in scores)
     if vmax <= 2 * bound:
         col.set_y_axis({"name": _SCORE_NAME[score], "min": -max(bound, math.ceil(vmax)),
                         "max": max(bound, math.ceil(vmax)), "major_gridlines": {"visible": True,
@@ -356,6 +448,59 @@ def _score_chart(wb, sheet, fm: _Formats, top: int, block: pd.DataFrame, label: 
     return col, last + 2
 
 
+#: The line on a lab's Scores sheet that says where the round's statistics are (not repeated in every lab file).
+SUMMARY_POINTER = ("The round's statistics for every measurand (assigned value and how it was set, robust mean "
+                   "and SD, median, MADe, nIQR, labs used) are in the summary workbook round-summary.xlsx, "
+                   "sheet Statistics, circulated with this score sheet.")
+
+
+#: Per-lab extras tables folded into a lab's Scores sheet as a few columns (when the lab has at most one row
+#: per measurand): table → ((column, header, decimals), ...) and the line that explains them.  Other tables
+#: with a ``lab`` column get a sheet of the lab's rows.
+LAB_FOLD: dict[str, tuple[tuple[tuple[str, str, int | None], ...], str]] = {
+    "mandel": ((("h", "Mandel h", 2), ("k", "Mandel k", 2), ("flag", "Mandel h, k against the indicator lines", None)),
+               "Mandel h and k (ISO 5725-2 §7.3): how your mean and your spread of replicates compare with the "
+               "labs used, before the outlier screens; beyond an indicator line (5 % or 1 %) asks for a look at "
+               "your results. The indicator values of each measurand are on sheet Mandel of round-summary.xlsx."),
+}
+
+
+def _mandel_check(h: Any, k: Any, flag: Any) -> str | None:
+    """The indicator lines passed or not: the table's flag, or "within" (None when neither h nor k exists)."""
+    if isinstance(flag, str) and flag:
+        return flag
+    have = [n for n, v in (("h", h), ("k", k)) if isinstance(v, float) and math.isfinite(v)]
+    return "within" if len(have) == 2 else (f"{have[0]} within" if have else None)
+
+
+def _fold_extras(extras: dict[str, pd.DataFrame], measurands: list[str]
+                 ) -> tuple[list[tuple[str, str, int | None, list]], list[str], dict[str, pd.DataFrame]]:
+    """Split a lab's extras rows into Scores-sheet columns (:data:`LAB_FOLD`) and tables kept as sheets.
+
+    Returns the folded columns as (key, header, decimals, values in the order
+    of ``measurands``), their explaining lines, and the tables left as sheets.
+    """
+    folded, notes, sheets = [], [], {}
+    for name, frame in extras.items():
+        spec = LAB_FOLD.get(name)
+        if not len(frame):
+            continue
+        if spec is not None and "measurand" in frame.columns:
+            columns, note = spec
+            values, _ = _columns(frame, ["measurand", *(c for c, _, _ in columns)])
+        if spec is None or "measurand" not in frame.columns or len(set(values["measurand"])) < len(frame):
+            sheets[name] = frame  # not one row per measurand: the lab's rows as a sheet of their own
+            continue
+        at = {m: i for i, m in enumerate(values["measurand"])}
+        where = [at.get(m) for m in measurands]
+        if name == "mandel":  # the flag in words, "within" when no indicator line is crossed
+            values["flag"] = [_mandel_check(h, k, f) for h, k, f in zip(values["h"], values["k"], values["flag"])]
+        for c, head, d in columns:
+            folded.append((f"{name}:{c}", head, d, [values[c][i] if i is not None else None for i in where]))
+        notes.append(note)
+    return folded, notes, sheets
+
+
 def lab_payload(ev: RoundEvaluation, lab: str, history: pd.DataFrame | None = None) -> dict[str, Any]:
     """Everything one lab's sheet shows, as plain data (cheap to send to a worker process)."""
     rnd = ev.round
@@ -367,11 +512,10 @@ def lab_payload(ev: RoundEvaluation, lab: str, history: pd.DataFrame | None = No
         "lab": lab, "name": p.name if p else "", "contact": p.contact if p else "",
         "failed_checks": ev.failed_checks,
         "scores": own,
-        "statistics": ev.statistics,
+        "p": {n: m.p for n, m in ev.measurands.items()},
         "decimals": {n: m.decimals for n, m in rnd.measurands.items()},
         "extras": {k: ev.lab_rows(k, lab) for k, v in ev.extras.items()
                    if isinstance(v, pd.DataFrame) and "lab" in v.columns},
-        "items": ev.extras.get("items"),
         "history": history,
     }
 
@@ -400,42 +544,55 @@ def write_lab_workbook(payload: dict[str, Any], path: Path) -> None:
         r += 1
     ws.merge_range(r, 0, r, 9, "CONFIDENTIAL to the laboratory named above. " + CAUTION, fm.caution)
     ws.set_row(r, 45)
+    ws.write_string(r + 1, 0, SUMMARY_POINTER)
     r += 2
-    table = own.copy()
+    table, _ = _columns(own, list(own.columns))  # the lab's rows as lists by column, converted once
+    measurands = table["measurand"]
+    table["p"] = [payload["p"].get(m) for m in measurands]
+    folded, notes, sheets = _fold_extras(payload["extras"], measurands)
+    for line in notes:
+        ws.write_string(r, 0, line)
+        r += 1
+    r += 1
+    for key, _, _, values in folded:
+        table[key] = values
     table["standing"] = [
         f"{int(k)} of {int(n)}" if isinstance(k, float) and not math.isnan(k) else ""
         for k, n in zip(table["rank"], table["n_scored"])
     ]
-    table["official"] = [rec[SCORE_FIELD[rec["score"]]] for rec in table.to_dict("records")]
-    cols = ["measurand", "unit", "n_replicates", "result", "assigned", "u_assigned", "sigma_pt", "score",
+    fields = [SCORE_FIELD.get(s) for s in table["score"]]
+    table["official"] = [table[f][i] if f else None for i, f in enumerate(fields)]
+    cols = ["measurand", "unit", "n_replicates", "result", "assigned", "u_assigned", "sigma_pt", "p", "score",
             "official", "signal", "standing", "z", "z_prime", "zeta", "en", "d", "d_percent", "note"]
-    head = ["Measurand", "Unit", "Replicates", "Your result", "Assigned value", "u(x_pt)", "σ_pt", "Score",
-            "Your score", "Signal", "Rank by |score| (1 = closest)", "z", "z′", "ζ", "En", "D", "D %", "Note"]
+    head = ["Measurand", "Unit", "Replicates", "Your result", "Assigned value", "u(x_pt)", "σ_pt",
+            "Labs used (p)", "Score", "Your score", "Signal", "Rank by |score| (1 = closest)", "z", "z′", "ζ",
+            "En", "D", "D %", "Note"]
+    cols[-1:-1] = [key for key, _, _, _ in folded]
+    head[-1:-1] = [h for _, h, _, _ in folded]
+    fixed = {"official": 2, "z": 2, "z_prime": 2, "zeta": 2, "en": 2, "d_percent": 1,
+             **{key: d for key, _, d, _ in folded if d is not None}}
     top = r
-    end = _table(ws, fm, r, table, cols, head,
-                 {"official": 2, "z": 2, "z_prime": 2, "zeta": 2, "en": 2, "d_percent": 1},
-                 "signal", rd["words"], row_decimals=payload["decimals"])
+    end = _table(ws, fm, r, table, cols, head, fixed, "signal", rd["words"], row_decimals=payload["decimals"])
     ws.freeze_panes(top + 1, 1)
     ws.set_row(top, 30)  # the wrapped head
-    _widths(ws, [max(w, 16 if j == 0 else 7) for j, w in enumerate(_fit(table, cols, head, {"official": 2, "z": 2, "z_prime": 2, "zeta": 2,
-                                                              "en": 2, "d_percent": 1, "result": 4,
-                                                              "assigned": 4, "u_assigned": 4, "sigma_pt": 4,
-                                                              "d": 4}, "signal"))])
+    widths = _fit(table, cols, head, {**fixed, "result": 4, "assigned": 4, "u_assigned": 4, "sigma_pt": 4, "d": 4},
+                  "signal")
+    _widths(ws, [max(w, 16 if j == 0 else 7) for j, w in enumerate(widths)])
     # Native charts of this lab's official score per measurand (z-like scores and En apart: their limits differ).
     chart_rows = []
     for family, members in (("z", ("z", "z-prime", "zeta")), ("en", ("en",))):
-        part = table[table["score"].isin(members) & np.isfinite(table["official"].astype(float))]
-        if len(part):
-            chart_rows.append((family, pd.DataFrame({"lab": part["measurand"].to_numpy(),
-                                                     "score": part["official"].astype(float).to_numpy(),
-                                                     "signal": part["signal"].to_numpy()})))
+        part = [i for i, (sc, v) in enumerate(zip(table["score"], table["official"]))
+                if sc in members and isinstance(v, float) and math.isfinite(v)]
+        if part:
+            chart_rows.append((family, [measurands[i] for i in part], [table["official"][i] for i in part],
+                               [table["signal"][i] for i in part]))
     if chart_rows:
         cd = wb.add_worksheet("Chart data")
         cd.write_string(0, 0, f"Data of the charts: laboratory {lab}'s scores by measurand", fm.bold)
         at, row = 2, end + 1
-        for family, block in chart_rows:
+        for family, names, values, signals in chart_rows:
             name = "z, z′, ζ" if family == "z" else "En"
-            c, at = _score_chart(wb, cd, fm, at, block, name, family, rd["words"],
+            c, at = _score_chart(wb, cd, fm, at, names, values, signals, name, family, rd["words"],
                                  f"Laboratory {lab}: {name} by measurand")
             c.set_x_axis({"name": "measurand", "num_font": {"rotation": -45, "size": 8}, "label_position": "low"})
             c.set_size({"width": 640, "height": 320})
@@ -463,7 +620,6 @@ def write_lab_workbook(payload: dict[str, Any], path: Path) -> None:
                      ["Date", "Round", "Measurand", "Unit", "Your result", "Assigned value", "σ_pt",
                       "Score", "Your score", "Signal", "Note"], {"score_value": 2}, "signal",
                      rd["words"])
-        field = {"z": "z", "z-prime": "z_prime", "zeta": "zeta", "en": "en"}
         points = {}  # (round label, family, measurand) -> score
         order = []
         for r in hist.to_dict("records"):
@@ -474,10 +630,9 @@ def write_lab_workbook(payload: dict[str, Any], path: Path) -> None:
                 points[(key[0], key[1], r["measurand"])] = float(r["score_value"])
         this = f"{rd['date']} {rd['id']} (this round)"
         order.append(this)
-        for r in own.to_dict("records"):
-            v = r.get(field.get(r["score"], ""), math.nan)
-            if r["signal"] != "not-scored" and isinstance(v, float) and math.isfinite(v):
-                points[(this, "En" if r["score"] == "en" else "z", r["measurand"])] = v
+        for sc, sig, m, v in zip(table["score"], table["signal"], measurands, table["official"]):
+            if sig != "not-scored" and isinstance(v, float) and math.isfinite(v):
+                points[(this, "En" if sc == "en" else "z", m)] = v
         series = sorted({(f, m) for _, f, m in points}, key=lambda fm_: (fm_[0] != "z", fm_[1]))
         limits = [("z", ACTION_LIMIT, "action"), ("z", WARNING_LIMIT, "warning"),
                   ("En", EN_ACTION_LIMIT, "action")]
@@ -543,12 +698,7 @@ def write_lab_workbook(payload: dict[str, Any], path: Path) -> None:
         hs.freeze_panes(4, 0)
         _widths(hs, [24, 14, 14, 9, 11, 12, 10, 8, 10, 18, 40])
         _print_setup(hs, rd["id"])
-    st = wb.add_worksheet("Round statistics")
-    _table(st, fm, 0, payload["statistics"], STATISTICS_COLUMNS, row_decimals=payload["decimals"])
-    st.freeze_panes(1, 1)
-    _widths(st, _fit(payload["statistics"], STATISTICS_COLUMNS, decimals={c: 4 for c in STATISTICS_COLUMNS}))
-    _print_setup(st, rd["id"], 0)
-    for name, frame in payload["extras"].items():
+    for name, frame in sheets.items():
         if len(frame):
             xs = wb.add_worksheet(name.capitalize()[:31])
             _table(xs, fm, 0, frame, list(frame.columns))
@@ -556,7 +706,7 @@ def write_lab_workbook(payload: dict[str, Any], path: Path) -> None:
             _widths(xs, _fit(frame, list(frame.columns), decimals={c: 4 for c in frame.columns}))
             _print_setup(xs, rd["id"], 0)
     data = wb.add_worksheet("data")
-    _table(data, fm, 0, own, SCORE_COLUMNS)
+    _table(data, fm, 0, table, SCORE_COLUMNS)
     meta = wb.add_worksheet("round")
     pairs = [("generator", "roundscore"), ("format", LAB_FORMAT), ("scheme", rd["scheme"]), ("round", rd["id"]),
              ("round_date", rd["date"]), ("lab", lab), ("title", rd["title"])]
