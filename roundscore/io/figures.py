@@ -1,11 +1,12 @@
 """Figures of the round report: matplotlib (headless, no pyplot), written as SVG once and marked per lab cheaply.
 
 What all labs share is drawn once per measurand: the ranked bar chart of the
-scores, the kernel density of the results, the Youden plots, Mandel's h and k
-and the homogeneity item means. Every figure keeps the affine map from data
-coordinates to SVG user units, so a lab's own version is the shared SVG with
-a small overlay group added (its bar outlined, its result marked) by string
-composition: no second matplotlib call, a few microseconds per lab.
+scores, the kernel density of the results, the Youden plots, Mandel's h and k,
+the homogeneity item means and the two sets of the stability check. Every
+figure keeps the affine map from data coordinates to SVG user units, so a
+lab's own version is the shared SVG with a small overlay group added (its bar
+outlined, its result marked) by string composition: no second matplotlib
+call, a few microseconds per lab.
 
 The SVG is reproducible: a fixed ``svg.hashsalt``, no date in the metadata,
 text as ``<text>`` elements (``svg.fonttype = "none"``), and every element id
@@ -35,8 +36,8 @@ from ..look import PALETTE, SIGNAL_COLOUR, SIGNAL_MARKER, SIGNAL_WORD
 from ..stats.scores import EN_ACTION, Z_ACTION, Z_WARNING
 
 __all__ = ["SvgFigure", "MarkKind", "z_bar_figure", "density_figure", "youden_figure", "mandel_figure",
-           "homogeneity_figure", "RoundFigures", "round_figures", "SCORE_FIELD", "SVG_HASHSALT", "MAX_BARS", "KDE_BANDWIDTH_FACTOR",
-           "YOUDEN_LEVEL", "RANGE_SIGMAS", "mandel_limits"]
+           "homogeneity_figure", "stability_figure", "RoundFigures", "round_figures", "SCORE_FIELD",
+           "SVG_HASHSALT", "MAX_BARS", "KDE_BANDWIDTH_FACTOR", "YOUDEN_LEVEL", "RANGE_SIGMAS", "mandel_limits"]
 
 #: Salt of matplotlib's SVG ids: fixed so the same round gives the same SVG bytes.
 SVG_HASHSALT = "roundscore-svg"
@@ -568,6 +569,8 @@ class RoundFigures:
         By measurand: Mandel's h and k charts (when the mandel table is there).
     items : dict of str to SvgFigure
         By measurand: the homogeneity item means.
+    stability : dict of str to SvgFigure
+        By measurand: the two sets of the stability check (empty by default).
     """
 
     scores: dict[str, SvgFigure]
@@ -575,6 +578,7 @@ class RoundFigures:
     youden: tuple[SvgFigure, ...]
     mandel: dict[str, tuple[SvgFigure, ...]]
     items: dict[str, SvgFigure]
+    stability: dict[str, SvgFigure] = field(default_factory=dict)
 
 
 def round_figures(ev, *, jobs: int | None = 1, progress=None) -> RoundFigures:
@@ -609,17 +613,18 @@ def round_figures(ev, *, jobs: int | None = 1, progress=None) -> RoundFigures:
         tasks += [("mandel", n) for n in dict.fromkeys(mandel["measurand"])]
     drawn = run_batches(_draw_batch, tasks, jobs=jobs, shared=ev, batch_size=1, progress=progress,
                         stage="figures")
-    scores, density, items, youden, mandel_figs = {}, {}, {}, [], {}
+    scores, density, items, stab, youden, mandel_figs = {}, {}, {}, {}, [], {}
     for task, figs in zip(tasks, drawn):
         if task[0] == "measurand":
-            for kind, target in (("scores", scores), ("density", density), ("items", items)):
+            for kind, target in (("scores", scores), ("density", density), ("items", items), ("stability", stab)):
                 if kind in figs:
                     target[task[1]] = figs[kind]
         elif task[0] == "youden":
             youden.append(figs["youden"])
         else:
             mandel_figs[task[1]] = figs["mandel"]
-    return RoundFigures(scores=scores, density=density, youden=tuple(youden), mandel=mandel_figs, items=items)
+    return RoundFigures(scores=scores, density=density, youden=tuple(youden), mandel=mandel_figs, items=items,
+                        stability=stab)
 
 
 def _draw_batch(tasks: Sequence[tuple[str, ...]]) -> list[dict]:
@@ -659,6 +664,17 @@ def _draw(ev, task: tuple[str, ...]) -> dict:
                                           general_mean=float(hom.mean), sigma_pt=float(hom.sigma_pt),
                                           key=f"items-{name}", title=f"{label}: homogeneity of the test items",
                                           unit=m.settings.unit)
+    stab = getattr(ic, "stability", None)
+    table = getattr(ic, "stability_table", None)
+    names = getattr(ic, "stability_sets", None)
+    if stab is not None and table is not None and table.sets is not None:
+        names = names or (table.set_names[0], table.set_names[1])
+        out["stability"] = stability_figure(
+            list(table.sets), np.asarray(table.values, float), items=list(table.items), set_labels=names,
+            mean_first=stab.mean_first, mean_second=stab.mean_second, u_first=stab.u_first, u_second=stab.u_second,
+            difference=stab.difference, criterion=stab.criterion, allowed_expanded=stab.allowed_expanded,
+            criterion_used=stab.criterion_used, passed=bool(stab.passed), key=f"stability-{name}",
+            title=f"{label}: stability of the test items", unit=m.settings.unit)
     return out
 
 
@@ -709,4 +725,4 @@ def _mandel(ev, name: str) -> tuple[SvgFigure, ...]:
 
 
 # The precision and item-check figures live in their own module; their names are part of this one's.
-from .figures_precision import homogeneity_figure, mandel_figure, mandel_limits  # noqa: E402
+from .figures_precision import homogeneity_figure, mandel_figure, mandel_limits, stability_figure  # noqa: E402

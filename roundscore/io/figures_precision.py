@@ -1,4 +1,4 @@
-"""Figures of the precision and item checks: Mandel's h and k by laboratory, homogeneity item means.
+"""Figures of the precision and item checks: Mandel's h and k by laboratory, homogeneity and stability.
 
 Drawn once per measurand like every shared figure (see :mod:`roundscore.io.figures`, which re-exports
 these names and holds the helpers used here).
@@ -6,6 +6,7 @@ these names and holds the helpers used here).
 
 from __future__ import annotations
 
+import textwrap
 from typing import Literal, Sequence
 
 import numpy as np
@@ -14,7 +15,7 @@ from ..look import PALETTE, SIGNAL_MARKER
 from ..stats.precision import mandel_h_critical, mandel_k_critical
 from .figures import _WIDE, MAX_BARS, PROFILE_POINTS, SvgFigure, _codes, _finish, _new, _png
 
-__all__ = ["mandel_limits", "mandel_figure", "homogeneity_figure"]
+__all__ = ["mandel_limits", "mandel_figure", "homogeneity_figure", "stability_figure", "stability_verdict"]
 
 
 def mandel_limits(p: int, n: int) -> dict[str, float]:
@@ -136,3 +137,168 @@ def homogeneity_figure(items: Sequence[str], values: Sequence[float], *, item_la
                "of ± 0.3σ_pt for scale.")
     return _finish(fig, ax, key=key, title=title, caption=caption)
 
+
+
+#: Horizontal place of each stability set on the axis, and of its mean beside its values (axis units).
+_SET_POS = (0.0, 1.0)
+_MEAN_SHIFT = 0.16
+#: Half-width of the column of a set's values, spread by item left of its mean (common practice).
+_VALUE_SPREAD = 0.12
+#: Colour and marker of the first and second stability set (not the signal colours: a set is not a signal).
+_SET_LOOK = ((PALETTE["blue"], "o"), (PALETTE["purple"], "D"))
+#: Characters per line of the stability figure's legend and verdict (they sit right of the axes).
+_LEGEND_WIDTH = 42
+
+
+def _sig(x: float, digits: int) -> int:
+    """Decimals that show ``x`` to about ``digits`` significant digits (at least 0)."""
+    return max(0, digits - 1 - int(np.floor(np.log10(abs(x))))) if np.isfinite(x) and x != 0 else digits
+
+
+def _num(x: float, decimals: int) -> str:
+    return f"{x:.{decimals}f}".replace("-", "−")
+
+
+def stability_verdict(difference: float, allowance: float, *, passed: bool, criterion_used: str,
+                      unit: str = "", criterion: float = float("nan")) -> str:
+    """The stability verdict in words: "difference −0.012 mg/kg within the allowance 0.030 (simple criterion)".
+
+    ``passed`` and the numbers are the check's own (nothing is recomputed);
+    they are shown to two significant digits of the allowance, with more
+    decimals when the two would otherwise print alike. When the expanded
+    criterion passed a difference beyond 0.3σ_pt (``criterion``), it says so.
+    """
+    d = _sig(allowance, 2)
+    while d < 12 and _num(abs(difference), d) == _num(allowance, d) and abs(difference) != allowance:
+        d += 1
+    u = f" {unit}" if unit else ""
+    text = (f"difference {_num(difference, d)}{u} {'within' if passed else 'exceeds'} the allowance "
+            f"{_num(allowance, d)} ({criterion_used} criterion")
+    if passed and criterion_used == "expanded" and np.isfinite(criterion) and abs(difference) > criterion:
+        text += f"; beyond 0.3σ_pt = {_num(criterion, d)}"
+    return text + ")"
+
+
+def stability_figure(sets: Sequence[str], values: Sequence[float], *, items: Sequence[str] | None = None,
+                     set_labels: tuple[str, str], mean_first: float, mean_second: float, u_first: float,
+                     u_second: float, difference: float, criterion: float, allowed_expanded: float,
+                     criterion_used: str, passed: bool, key: str, title: str, unit: str = "",
+                     png: bool = False) -> SvgFigure | bytes:
+    """Stability: the values of both sets, each set's mean ± 2u, the allowance round the first mean.
+
+    Parameters
+    ----------
+    sets, values : sequences of equal length
+        Set label and value of each measurement of the stability table.
+    items : sequence of str, optional
+        Item label of each measurement: a set's values are spread by item
+        (replicates of an item one above the other).
+    set_labels : (str, str)
+        The first (ȳ₁: e.g. before, reference storage) and second (ȳ₂: after,
+        transport) set, as the study names them.
+    mean_first, mean_second, u_first, u_second, difference : float
+        The check's means, their standard uncertainties (nan: no bar) and
+        ȳ₁ − ȳ₂ (:class:`~roundscore.stats.items.StabilityResult`).
+    criterion, allowed_expanded : float
+        0.3σ_pt (the band ȳ₁ ± 0.3σ_pt) and 0.3σ_pt + 2√(u₁² + u₂²)
+        (dashed lines; left out when nan).
+    criterion_used, passed
+        Which criterion gives the verdict and the verdict (written in the
+        figure and the caption by :func:`stability_verdict`).
+
+    Notes
+    -----
+    The second mean lies inside the band exactly when the simple criterion
+    |ȳ₁ − ȳ₂| ≤ 0.3σ_pt is met, inside the dashed lines when the expanded one
+    is. The means are the check's (item means averaged when a set holds two
+    or more items), so they can differ a little from the plain mean of the
+    values drawn.
+
+    References
+    ----------
+    .. [1] ISO 13528:2015, B.5 (stability criteria).
+    """
+    fig, ax = _new(_WIDE, left=0.11, right=0.56, bottom=0.16, top=0.88)
+    labels = np.asarray(sets, dtype=object)
+    vals = np.asarray(values, dtype=float)
+    its = np.asarray(items if items is not None else [""] * len(vals), dtype=object)
+    means, us = (mean_first, mean_second), (u_first, u_second)
+    first, second = (str(s) for s in set_labels)
+    have_band = bool(np.isfinite(criterion) and criterion > 0)
+    have_expanded = bool(np.isfinite(allowed_expanded))
+    if have_band:
+        band = ax.axhspan(mean_first - criterion, mean_first + criterion, color=PALETTE["sky"], alpha=0.3,
+                          linewidth=0, label=_wrap(f"{first} mean ± 0.3σ_pt (simple criterion)", _LEGEND_WIDTH))
+        band.set_gid("band")
+    if have_expanded:
+        for sgn, gid in ((1, "expanded-high"), (-1, "expanded-low")):
+            word = _wrap(f"{first} mean ± (0.3σ_pt + 2√(u₁² + u₂²)) (expanded criterion)", _LEGEND_WIDTH)
+            line = ax.axhline(mean_first + sgn * allowed_expanded, color="#444444", linestyle="--", linewidth=0.9,
+                              label=word if sgn > 0 else None)
+            line.set_gid(gid)
+    for i, (name, pos, (colour, marker)) in enumerate(zip((first, second), _SET_POS, _SET_LOOK)):
+        sel = labels == name
+        order = list(dict.fromkeys(its[sel]))
+        rank = np.array([order.index(it) for it in its[sel]], dtype=float)
+        spread = (rank + 0.5) / max(len(order), 1) * 2 * _VALUE_SPREAD - _VALUE_SPREAD
+        ax.plot(pos - _MEAN_SHIFT + spread, vals[sel], linestyle="none", marker=marker, markersize=4,
+                markerfacecolor=_pale(colour), markeredgecolor=colour, markeredgewidth=0.9,
+                label=_wrap(f"{name}: values ({int(sel.sum())})", _LEGEND_WIDTH))
+        u = us[i]
+        bar = 2 * u if np.isfinite(u) else None
+        drawn = ax.errorbar([pos + _MEAN_SHIFT], [means[i]], yerr=bar, linestyle="none", marker=marker,
+                            markersize=8, markerfacecolor=colour, markeredgecolor="#000000", markeredgewidth=0.6,
+                            ecolor="#000000", elinewidth=1.0, capsize=4,
+                            label=_wrap(f"{name}: mean" + (" ± 2u" if bar is not None else " (u unknown: no bar)"),
+                                        _LEGEND_WIDTH))
+        which = "first" if i == 0 else "second"
+        drawn.lines[0].set_gid(f"mean-{which}")
+        for bars in drawn.lines[2]:
+            bars.set_gid(f"bar-{which}")
+    ticks = [_wrap(first, 24), _wrap(second, 24)]
+    ax.set_xticks(list(_SET_POS), labels=ticks)
+    lines = max(t.count("\n") + 1 for t in ticks)
+    fig.subplots_adjust(bottom=(lines * 11 + 26) / (fig.get_figheight() * 72))  # room for wrapped set names
+    ax.set_xlim(_SET_POS[0] - 0.55, _SET_POS[1] + 0.55)
+    reach = [*vals[np.isfinite(vals)], *means]
+    reach += [m + s * 2 * u for m, u in zip(means, us) if np.isfinite(u) for s in (-1, 1)]
+    if have_band:
+        reach += [mean_first - criterion, mean_first + criterion]
+    if have_expanded:
+        reach += [mean_first - allowed_expanded, mean_first + allowed_expanded]
+    reach = [r for r in reach if np.isfinite(r)]
+    if reach:
+        lo, hi = min(reach), max(reach)
+        pad = 0.08 * (hi - lo) if hi > lo else max(abs(hi) * 0.05, 1e-9)
+        ax.set_ylim(lo - pad, hi + pad)
+    ax.set_ylabel(f"value ({unit})" if unit else "value")
+    ax.set_xlabel("stability set")
+    ax.set_title(title, loc="left")
+    allowance = criterion if criterion_used == "simple" else allowed_expanded
+    verdict = stability_verdict(difference, allowance, passed=passed, criterion_used=criterion_used, unit=unit,
+                                criterion=criterion)
+    said = f"{'Passed' if passed else 'Not passed'} ({first} − {second}): {verdict}."
+    # the verdict heads the legend: one block right of the axes, so neither covers data nor the other
+    legend = ax.legend(frameon=False, fontsize=7, loc="upper left", bbox_to_anchor=(1.03, 1.0), borderaxespad=0,
+                       title=_wrap(said, _LEGEND_WIDTH + 4), alignment="left",
+                       title_fontproperties={"size": 7.5, "weight": "bold"})
+    legend.set_gid("legend")
+    if png:
+        return _png(fig)
+    caption = (f"Stability: the values of the sets “{first}” (circles) and “{second}” (diamonds), each set's "
+               "mean with a bar of ± 2 standard uncertainties, and the allowance round the first mean: the band "
+               "± 0.3σ_pt of the simple criterion"
+               + (" and the dashed lines ± (0.3σ_pt + 2√(u₁² + u₂²)) of the expanded criterion" if have_expanded
+                  else "")
+               + f" (ISO 13528 B.5). {said}")
+    return _finish(fig, ax, key=key, title=title, caption=caption)
+
+
+def _pale(colour: str, keep: float = 0.45) -> str:
+    """``colour`` mixed with white (the face of a set's individual values)."""
+    r, g, b = (int(colour[i:i + 2], 16) for i in (1, 3, 5))
+    return "#{:02X}{:02X}{:02X}".format(*(round(c + (255 - c) * (1 - keep)) for c in (r, g, b)))
+
+
+def _wrap(text: str, width: int) -> str:
+    return "\n".join(textwrap.wrap(text, width))

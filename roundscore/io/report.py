@@ -337,7 +337,7 @@ def _settings(ev) -> str:
 
 def _items(ev, figs: RoundFigures) -> str:
     items = ev.extras.get("items")
-    if (items is None or not len(items)) and not figs.items:
+    if (items is None or not len(items)) and not figs.items and not figs.stability:
         return '<p class="muted">No homogeneity or stability data in this round.</p>'
     out = ""
     if items is not None and len(items):
@@ -351,8 +351,11 @@ def _items(ev, figs: RoundFigures) -> str:
                     out += (f"<p><strong>{_e(r['measurand'])}, {_e(r['check'])}:</strong></p><ul>"
                             + "".join(f"<li>{_e(t)}</li>" for t in parts) + "</ul>")
             out += "</div>"
-    for name, f in figs.items.items():
-        out += _figure(f.svg, f)
+    # each measurand's homogeneity figure, then its stability figure beside it (the round's measurand order)
+    for name in dict.fromkeys([*ev.measurands, *figs.items, *figs.stability]):
+        for f in (figs.items.get(name), figs.stability.get(name)):
+            if f is not None:
+                out += _figure(f.svg, f)
     return out
 
 
