@@ -11,6 +11,8 @@ import numpy as np
 import pytest
 
 from roundscore.io import figures as F
+from roundscore.io.figures_precision import stability_verdict
+from roundscore.stats.items import stability
 from roundscore.stats.precision import mandel_h_critical, mandel_k_critical
 
 LABS = [f"L{i}" for i in range(1, 13)]
@@ -147,3 +149,121 @@ def test_mandel_many_labs_bounded_and_extreme_lab_named():
     assert ">X17<" in f.svg and "beyond 5 %" in f.svg and "beyond 1 %" in f.svg
     assert len(re.findall(r">X\d+<", f.svg)) <= F.MAX_BARS
     assert "your lab (X17)" in f.for_lab("X17")
+
+
+# ------------------------------------------------------------------------------------ the stability figure
+# Invented studies; the expected means, difference and allowances are computed here from the definitions of
+# ISO 13528:2015 B.5 (ȳ₁ − ȳ₂ against 0.3σ_pt, or 0.3σ_pt + 2√(u²(ȳ₁) + u²(ȳ₂)) with u = s/√n of a set
+# unless the study gives it), independently of roundscore.stats.items.
+
+SIGMA_PT = 0.1  # invented: 0.3σ_pt = 0.030
+
+
+def _b5(first, second, u1=None, u2=None):
+    """ISO 13528 B.5 by hand: means, their u, the difference and both allowances."""
+    y1, y2 = float(np.mean(first)), float(np.mean(second))
+    u1 = float(np.std(first, ddof=1) / np.sqrt(len(first))) if u1 is None else u1
+    u2 = float(np.std(second, ddof=1) / np.sqrt(len(second))) if u2 is None else u2
+    simple = 0.3 * SIGMA_PT
+    return y1, y2, u1, u2, y1 - y2, simple, simple + 2 * np.sqrt(u1 ** 2 + u2 ** 2)
+
+
+def _stability_fig(first, second, names=("before", "after"), key="st", **kw):
+    res = stability(first, second, SIGMA_PT, **kw)
+    sets = [names[0]] * len(first) + [names[1]] * len(second)
+    fig = F.stability_figure(sets, [*first, *second], set_labels=names, mean_first=res.mean_first,
+                             mean_second=res.mean_second, u_first=res.u_first, u_second=res.u_second,
+                             difference=res.difference, criterion=res.criterion,
+                             allowed_expanded=res.allowed_expanded, criterion_used=res.criterion_used,
+                             passed=bool(res.passed), key=key, title="invented: stability", unit="mg/kg")
+    return res, fig
+
+
+def _group(svg: str, key: str, gid: str) -> str:
+    start = svg.index(f'<g id="{key}-{gid}">')
+    return svg[start:svg.index("</g>", start)]
+
+
+def _path_points(group: str) -> list[tuple[float, float]]:
+    d = re.search(r' d="([^"]+)"', group).group(1)
+    return [(float(x), float(y)) for x, y in re.findall(r"[ML] ([-\d.]+) ([-\d.]+)", d)]
+
+
+PASSING = ([5.01, 4.99, 5.00, 4.98], [5.00, 5.02, 5.01, 4.998])  # ȳ₁ − ȳ₂ = 4.995 − 5.007 = −0.012
+FAILING = ([2.51, 2.49, 2.50], [2.44, 2.45, 2.46])  # ȳ₁ − ȳ₂ = 2.50 − 2.45 = 0.050 > 0.030
+
+
+def test_stability_figure_draws_means_bars_and_band_at_their_data_coordinates():
+    y1, y2, u1, u2, diff, simple, expanded = _b5(*PASSING)
+    res, f = _stability_fig(*PASSING)
+    assert (res.mean_first, res.mean_second, res.criterion) == pytest.approx((y1, y2, simple))
+    assert f.kind == "none" and not f.marks  # no lab marks on an item figure
+    assert ">before<" in f.svg and ">after<" in f.svg  # the study's own set labels
+    left, top, right, bottom = f.axes_box
+    means = {}
+    for which, y in (("first", y1), ("second", y2)):
+        use = re.search(r'<use [^>]*x="([-\d.]+)" y="([-\d.]+)"', _group(f.svg, "st", f"mean-{which}"))
+        sx, sy = float(use.group(1)), float(use.group(2))
+        assert sy == pytest.approx(f.to_svg(0.0, y)[1], abs=0.01) and left < sx < right
+        means[which] = sx
+    assert means["first"] < means["second"]  # first set left, second right
+    for which, y, u in (("first", y1, u1), ("second", y2, u2)):  # the bars reach ± 2u
+        ys = sorted(p[1] for p in _path_points(_group(f.svg, "st", f"bar-{which}")))
+        assert ys == pytest.approx(sorted(f.to_svg(0.0, y + s * 2 * u)[1] for s in (-1, 1)), abs=0.01)
+    band = _path_points(_group(f.svg, "st", "band"))
+    assert sorted({p[1] for p in band}) == pytest.approx(sorted(f.to_svg(0.0, y1 + s * simple)[1] for s in (-1, 1)),
+                                                         abs=0.01)
+    assert sorted({p[0] for p in band}) == pytest.approx([left, right], abs=0.01)  # across the whole axes
+    for gid, sign in (("expanded-high", 1), ("expanded-low", -1)):  # the dashed expanded allowance
+        line = _path_points(_group(f.svg, "st", gid))
+        assert [p[1] for p in line] == pytest.approx([f.to_svg(0.0, y1 + sign * expanded)[1]] * 2, abs=0.01)
+    assert top <= f.to_svg(0.0, y1 + expanded)[1] and f.to_svg(0.0, y1 - expanded)[1] <= bottom
+
+
+@pytest.mark.parametrize("study, kw, expect_pass, used", [
+    (PASSING, {}, True, "simple"),
+    (FAILING, {}, False, "simple"),
+    (FAILING, {"u_first": 0.01, "u_second": 0.01}, True, "expanded"),  # 0.050 ≤ 0.030 + 2√(2·0.01²) = 0.0583
+])
+def test_stability_verdict_in_words_follows_the_check(study, kw, expect_pass, used):
+    y1, y2, u1, u2, diff, simple, expanded = _b5(*study, kw.get("u_first"), kw.get("u_second"))
+    allowance = simple if used == "simple" else expanded
+    assert bool(abs(diff) <= allowance) is expect_pass  # the hand computation itself
+    res, f = _stability_fig(*study, **kw)
+    assert bool(res.passed) is expect_pass and res.criterion_used == used
+    word = "within" if expect_pass else "exceeds"
+    d = 3  # two significant digits of the allowance (0.030; 0.058)
+    text = (f"difference {diff:.{d}f}".replace("-", "−") + f" mg/kg {word} the allowance {allowance:.{d}f} "
+            f"({used} criterion")
+    assert text in f.caption
+    assert ("Passed" if expect_pass else "Not passed") in f.svg and f"{used} criterion" in f.svg
+    assert ("exceeds" in f.caption) is not expect_pass
+    if used == "expanded":  # passed on the expanded criterion only: said so
+        assert f"beyond 0.3σ_pt = {simple:.{d}f}" in f.caption
+        assert 'id="st-expanded-high"' in f.svg  # the lines of the criterion that gave the verdict
+
+
+def test_stability_verdict_shows_enough_decimals_to_tell_difference_from_allowance():
+    # 0.0304 against 0.030: at two significant digits both print 0.030
+    assert stability_verdict(0.0304, 0.030, passed=False, criterion_used="simple") == (
+        "difference 0.0304 exceeds the allowance 0.0300 (simple criterion)")
+
+
+def test_stability_figure_without_u_has_no_bar_and_is_reproducible():
+    first, second = [0.0861, 0.0879, 0.0860], [0.0850]  # a single value: u unknown (invented)
+    res, f = _stability_fig(first, second, names=("frozen", "40 °C"), key="sx")
+    assert np.isnan(res.u_second) and np.isnan(res.allowed_expanded)
+    assert 'id="sx-bar-first"' in f.svg and 'id="sx-bar-second"' not in f.svg
+    assert 'id="sx-expanded-high"' not in f.svg and "u unknown" in f.svg
+    assert ">40 °C<" in f.svg and ">frozen<" in f.svg
+    assert _stability_fig(first, second, names=("frozen", "40 °C"), key="sx")[1].svg == f.svg  # same bytes
+    ids = re.findall(r'\bid="([^"]+)"', f.svg)
+    assert ids and all(i.startswith("sx-") for i in ids)
+
+
+def test_stability_png_render_for_looking():
+    png = F.stability_figure(["a", "b"], [1.0, 1.1], set_labels=("a", "b"), mean_first=1.0, mean_second=1.1,
+                             u_first=float("nan"), u_second=float("nan"), difference=-0.1, criterion=0.03,
+                             allowed_expanded=float("nan"), criterion_used="simple", passed=False, key="p",
+                             title="t", png=True)
+    assert png[:8] == b"\x89PNG\r\n\x1a\n"

@@ -156,6 +156,45 @@ def test_report_without_stage_tables(demo):
     assert "No precision or screening results" in page and "No method-group comparison" in page
 
 
+def test_items_section_shows_each_stability_figure_beside_its_homogeneity_figure(demo):
+    ev, parts = demo
+    page = R.report_html(ev, parts)
+    items = page[page.index('<section id="items">'):page.index('<section id="measurands">')]
+    with_study = [n for n, m in ev.measurands.items() if m.item_checks is not None
+                  and m.item_checks.stability is not None and m.item_checks.stability_table is not None]
+    assert with_study == ["iodine", "mercury"]  # the invented demo round's stability.csv
+    for name in with_study:
+        fig = parts.figures.stability[name]
+        assert f'<figure id="fig-stability-{name}">' in items and fig.svg in items
+        sets = ev.measurands[name].item_checks.stability_sets
+        assert all(f">{s}<" in fig.svg for s in sets)  # the study's own set names
+        passed = ev.measurands[name].item_checks.stability.passed
+        assert ("within the allowance" if passed else "exceeds the allowance") in fig.caption
+    # the homogeneity figure first, its measurand's stability figure right after it
+    assert items.index('id="fig-items-iodine"') < items.index('id="fig-stability-iodine"') \
+        < items.index('id="fig-items-cadmium"')
+    assert set(parts.figures.stability) == set(with_study)
+    assert "fig-stability" not in page[page.index('<section id="measurands">'):]  # only in the items section
+    lab_page = R.lab_page_html(ev, parts, "K07")
+    assert "fig-stability" not in lab_page and "fig-items" not in lab_page  # lab pages carry no item figures
+
+
+def test_round_without_stability_table_has_no_stability_figure(demo, tmp_path):
+    ev, _ = demo
+    m = ev.measurands["iodine"]
+    no_stab = dataclasses.replace(m.item_checks, stability=None, stability_table=None, stability_sets=None)
+    ev2 = _iodine_only(ev)
+    ev2 = dataclasses.replace(ev2, measurands={"iodine": dataclasses.replace(m, item_checks=no_stab)})
+    figs = round_figures(ev2)
+    assert "iodine" in figs.items and figs.stability == {}
+    page = R.report_html(ev2, R.report_parts(ev2, figs))
+    assert 'id="fig-items-iodine"' in page and "fig-stability" not in page
+    # a round with no item tables at all: the items section says so
+    plain = load_and_evaluate(_large_round(tmp_path / "plain", 6, 1))
+    page = R.report_html(plain, R.report_parts(plain))
+    assert "fig-stability" not in page and "No homogeneity or stability data in this round." in page
+
+
 def test_round_figures_same_with_workers(demo):
     ev, parts = demo
     small = _iodine_only(ev)
