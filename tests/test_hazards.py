@@ -16,7 +16,6 @@ import os
 import signal
 import subprocess
 import sys
-import time
 from pathlib import Path
 
 import openpyxl
@@ -308,15 +307,13 @@ def test_macro_workbook_values_read_and_warned(make_round, capsys):
     assert "macros present; they are never run" in out_text.out + out_text.err
 
 
-def test_time_of_a_bomb_in_a_forms_round(make_round, capsys):
+def test_a_bomb_in_a_forms_round_is_refused_by_name(make_round, capsys):
     folder, paths = _forms_round(make_round)
     import zipfile
 
     with zipfile.ZipFile(paths[6], "a", zipfile.ZIP_DEFLATED) as zf:
         zf.writestr("xl/media/huge.bin", b"\0" * (80 << 20))
-    start = time.perf_counter()
     code, err = run_cli("score", str(folder), "--out", str(folder / "out"), capsys=capsys)
-    assert time.perf_counter() - start < 60
     assert code == 2 and "decompression bomb" in err and paths[6].name in err and "64 MiB" in err
 
 

@@ -10,7 +10,6 @@ mergeCell; sheet ``state``), PKWARE APPNOTE.TXT (zip headers), [MS-CFB]
 from __future__ import annotations
 
 import struct
-import time
 import zipfile
 from pathlib import Path
 
@@ -119,12 +118,10 @@ def _bomb_sheet(size: int) -> bytes:
 
 
 @pytest.mark.parametrize("part", ["xl/worksheets/sheet1.xml", "xl/theme/theme1.xml", "xl/media/image1.bin"])
-def test_zip_bomb_refused_in_bounded_time(base: Path, tmp_path: Path, part: str):
+def test_zip_bomb_refused(base: Path, tmp_path: Path, part: str):
     bomb = rewrite(base, tmp_path / "bomb.xlsx", {part: _bomb_sheet(70 * MiB)})
     assert bomb.stat().st_size < 1 * MiB  # a small file...
-    start = time.perf_counter()
     text = refused(bomb)  # ...that would inflate to 70 MiB
-    assert time.perf_counter() - start < 10
     assert "64 MiB" in text and "decompression bomb" in text and part in text
 
 
@@ -278,15 +275,6 @@ def zlib_compress_raw(data: bytes) -> bytes:
 
     c = zlib.compressobj(9, zlib.DEFLATED, -15)
     return c.compress(data) + c.flush()
-
-
-def test_check_is_cheap_for_a_form(tmp_path: Path):
-    path = make_base(tmp_path / "small.xlsx")
-    start = time.perf_counter()
-    for _ in range(200):
-        inspect_workbook(path)
-    per_file = (time.perf_counter() - start) / 200
-    assert per_file < 0.01  # well under 10 ms per small workbook (measured ~0.2 ms)
 
 
 def test_readlimits_validated():
