@@ -137,7 +137,9 @@ class RoundEvaluation:
     stage_notes: dict[str, tuple[str, ...]] = field(default_factory=dict)
     details: dict[str, Any] = field(default_factory=dict)
     warnings: tuple[str, ...] = ()
-    _cache: dict[str, Any] = field(default_factory=dict, repr=False, compare=False)
+    # Not an __init__ argument: dataclasses.replace() then starts a fresh cache instead of sharing the
+    # original's (whose per-lab splits would belong to other tables).
+    _cache: dict[str, Any] = field(default_factory=dict, init=False, repr=False, compare=False)
 
     @property
     def labs(self) -> list[str]:

@@ -131,3 +131,16 @@ def test_robust_sd_sigma(make_round):
     sc = ev.scores.set_index("lab")
     x = np.mean(LABS["L2"])
     assert sc.loc["L2", "z_prime"] == pytest.approx((x - m.assigned) / np.hypot(m.sigma_pt, m.u_assigned))
+
+
+def test_replaced_evaluation_does_not_share_per_lab_splits(make_round):
+    # dataclasses.replace() of an evaluation (done by callers cutting a round down) must not reuse the
+    # original's per-lab split of its tables.
+    import dataclasses
+
+    folder = make_round('[round]\nid="E9"\n[measurand.cu]\nunit="mg/kg"\nsigma_pt=0.5\n', _results(LABS))
+    ev = _ev(folder)
+    assert len(ev.lab_scores("L3")) == 1  # the split is made and kept
+    cut = dataclasses.replace(ev, scores=ev.scores[ev.scores["lab"] != "L3"])
+    assert len(cut.lab_scores("L3")) == 0 and len(ev.lab_scores("L3")) == 1
+    assert cut.labs == [lab for lab in ev.labs if lab != "L3"]

@@ -232,10 +232,6 @@ class ReportParts:
         Round facts, failed checks and the caution.
     statistics : str
         The round's statistics table.
-    scores_by_lab : dict of str to list of dict
-        Each lab's score rows (the scores frame as records), in measurand order.
-    mandel_by_lab : dict of str to list of dict
-        Each lab's Mandel rows, when the round has them.
     strips : dict of str to ScoreStrip
         By measurand (every measurand, in the round's order): the shared score strip.
     full_figures : bool
@@ -247,8 +243,6 @@ class ReportParts:
     figures: RoundFigures
     heading: str
     statistics: str
-    scores_by_lab: dict[str, list[dict[str, Any]]]
-    mandel_by_lab: dict[str, list[dict[str, Any]]]
     strips: dict[str, ScoreStrip]
     full_figures: bool
     figures_note: str
@@ -285,15 +279,6 @@ def report_parts(ev, figures: RoundFigures | None = None) -> ReportParts:
     alerts = "".join(f'<div class="alert">Check failed: {_e(x)}</div>' for x in ev.failed_checks)
     heading = _kv(_round_facts(ev)) + alerts + f'<div class="caution">{_e(CAUTION)}</div>'
     stats = _table(ev.statistics, decimals={})
-    recs = ev.scores.to_dict("records") if len(ev.scores) else []
-    by_lab: dict[str, list[dict[str, Any]]] = {}
-    for rec in recs:
-        by_lab.setdefault(rec["lab"], []).append(rec)
-    mandel = ev.extras.get("mandel")
-    m_by_lab: dict[str, list[dict[str, Any]]] = {}
-    if mandel is not None and "lab" in getattr(mandel, "columns", ()):
-        for rec in mandel.to_dict("records"):
-            m_by_lab.setdefault(rec["lab"], []).append(rec)
     n_labs, n_meas = len(ev.labs), len(ev.measurands)
     full = full_lab_figures(n_labs, n_meas)
     note = ""
@@ -302,8 +287,27 @@ def report_parts(ev, figures: RoundFigures | None = None) -> ReportParts:
                 + (" and the Youden plots" if figures.youden else "")
                 + f" of this round are in the round report (laboratories by code only); with {n_labs} "
                 f"laboratories and {n_meas} measurands they are left out of this page to keep it small.</p>")
-    return ReportParts(figures=figures, heading=heading, statistics=stats, scores_by_lab=by_lab,
-                       mandel_by_lab=m_by_lab, strips=_strips(ev), full_figures=full, figures_note=note)
+    return ReportParts(figures=figures, heading=heading, statistics=stats, strips=_strips(ev), full_figures=full,
+                       figures_note=note)
+
+
+def lab_records(ev, table: str, labs: Sequence[str]) -> dict[str, list[dict[str, Any]]]:
+    """The rows of ``scores`` (or of an extras table with a lab column) of ``labs``, as records by lab.
+
+    Built for a batch of labs at a time from the evaluation's per-lab split
+    (one conversion per batch), not kept for every lab of the round: at 2000
+    labs the records of all labs took about 130 MB in each process.
+    """
+    if table != "scores":
+        frame = ev.extras.get(table)
+        if frame is None or "lab" not in getattr(frame, "columns", ()):
+            return {}
+    frames = [f for f in (ev.lab_rows(table, lab) for lab in labs) if len(f)]
+    out: dict[str, list[dict[str, Any]]] = {}
+    if frames:
+        for rec in (pd.concat(frames) if len(frames) > 1 else frames[0]).to_dict("records"):
+            out.setdefault(rec["lab"], []).append(rec)
+    return out
 
 
 # ------------------------------------------------------------------------------------------ round report
@@ -476,16 +480,20 @@ def report_html(ev, parts: ReportParts | None = None) -> str:
 
 # ------------------------------------------------------------------------------------------ lab page
 
-def lab_page_html(ev, parts: ReportParts, lab: str) -> str:
+def lab_page_html(ev, parts: ReportParts, lab: str, *, scores: list[dict[str, Any]] | None = None,
+                  mandel: list[dict[str, Any]] | None = None) -> str:
     """One lab's confidential page: its name, its scores, a strip per measurand with its score marked.
 
     In a small round (``parts.full_figures``) the round report's figures
-    follow, with the lab's bar or result marked.
+    follow, with the lab's bar or result marked. ``scores`` and ``mandel``
+    are the lab's rows as records (:func:`lab_records`; looked up when not given).
     """
     r = ev.round
     words = r.words
     p = ev.participants.get(lab)
-    rows = parts.scores_by_lab.get(lab, [])
+    rows = scores if scores is not None else lab_records(ev, "scores", [lab]).get(lab, [])
+    if mandel is None:
+        mandel = lab_records(ev, "mandel", [lab]).get(lab)
     ident = _kv([("Laboratory code", lab), ("Laboratory", p.name if p else ""), ("Contact", p.contact if p else "")])
     table = ['<table class="wide"><thead><tr>', "".join(f"<th>{h}</th>" for h in (
         "Measurand", "Unit", "Your result", "Assigned value", "u(x_pt)", "σ_pt", "Score", "Your score", "Signal",
@@ -527,7 +535,6 @@ def lab_page_html(ev, parts: ReportParts, lab: str) -> str:
         you = "".join(_figure(f.for_lab(lab), f, square=True) for f in figs.youden)
     else:
         stand += parts.figures_note
-    mandel = parts.mandel_by_lab.get(lab)
     m_html = ""
     if mandel:
         m_html = "<h2>Your Mandel h and k</h2>" + _records_table(mandel, decimals={"h": 2, "k": 2})
@@ -590,9 +597,11 @@ def _lab_batch(labs: Sequence[str]) -> list[Path]:
     from ..parallel import shared
 
     ev, parts, folder = shared()
+    scores, mandel = lab_records(ev, "scores", labs), lab_records(ev, "mandel", labs)
     out = []
     for lab in labs:
         path = folder / "labs" / lab_file_name(lab)
-        path.write_text(lab_page_html(ev, parts, lab), encoding="utf-8")
+        path.write_text(lab_page_html(ev, parts, lab, scores=scores.get(lab, []), mandel=mandel.get(lab, [])),
+                        encoding="utf-8")
         out.append(path)
     return out
