@@ -17,7 +17,8 @@ times and peak memory are its own):
    output (CSV tables, summary workbook, one score sheet per lab, and the
    figures and HTML report when the pipeline writes them);
 3. the **floor**: the same forms read by python-calamine in a process pool
-   doing nothing else, and the same cells and native charts of every output
+   doing nothing else, and the same cells and native charts (the same series over
+   the same ranges, with their point fills and markers) of every output
    workbook (plus the same CSV rows and the bytes of any other file)
    written by xlsxwriter in memory in a process pool;
 4. the **baseline** (``benchmarks/baseline.py``): pandas.read_excel with
@@ -48,6 +49,7 @@ import json
 import math
 import os
 import platform
+import re
 import shutil
 import subprocess
 import sys
@@ -148,9 +150,52 @@ def part_floor_read(a: argparse.Namespace) -> dict:
     return {"seconds": time.perf_counter() - t, "cells": sum(cells)}
 
 
-def _workbook_content(path: Path) -> tuple[list, list[str]]:
-    """(sheets as (name, rows), chart types) of a written workbook, read back untimed."""
-    import re
+_PLOT = re.compile(rb"<c:(barChart|bar3DChart|lineChart|scatterChart|areaChart)>(.*?)</c:\1>", re.S)
+_SER = re.compile(rb"<c:ser>(.*?)</c:ser>", re.S)
+_FORMULA = re.compile(rb"<c:f>(.*?)</c:f>", re.S)
+_NAME = re.compile(rb"<c:tx>(?:<c:strRef><c:f>(.*?)</c:f>|<c:v>(.*?)</c:v>)", re.S)
+_FILL = re.compile(rb"<c:dPt>.*?<a:srgbClr val=\"([0-9A-Fa-f]{6})\"", re.S)
+_SYMBOL = re.compile(rb"<c:marker>\s*<c:symbol val=\"(\w+)\"")
+
+
+def _chart_spec(xml: bytes) -> list[tuple[str, list[dict]]]:
+    """A chart's plot types and, for each, its series: name, category and value ranges, point fills, marker.
+
+    What the floor writer needs to write the same chart: the same series over
+    the same cell ranges, with as many per-point fills and the same markers
+    (the pipeline's charts carry up to eight series and a fill per bar).
+    """
+    out = []
+    for kind, body in _PLOT.findall(xml):
+        kind = kind.decode()
+        if kind == "barChart":
+            kind = "bar" if b'<c:barDir val="bar"/>' in body else "column"
+        else:
+            kind = kind.replace("Chart", "").replace("3D", "")
+        series = []
+        for ser in _SER.findall(body):
+            name = _NAME.search(ser)
+            refs = [f.decode() for f in _FORMULA.findall(ser)]
+            if name and name.group(1):
+                refs = refs[1:]  # the first <c:f> was the name's
+            spec = {"values": "=" + refs[-1]} if refs else {}
+            if len(refs) > 1:
+                spec["categories"] = "=" + refs[0]
+            if name:
+                spec["name"] = ("=" + name.group(1).decode()) if name.group(1) else name.group(2).decode()
+            fills = _FILL.findall(ser)
+            if fills:
+                spec["points"] = [{"fill": {"color": "#" + f.decode()}} for f in fills]
+            sym = _SYMBOL.search(ser)
+            if sym:
+                spec["marker"] = {"type": sym.group(1).decode()}
+            series.append(spec)
+        out.append((kind, series))
+    return out
+
+
+def _workbook_content(path: Path) -> tuple[list, list]:
+    """(sheets as (name, rows), chart specs) of a written workbook, read back untimed."""
     import zipfile
 
     from python_calamine import CalamineWorkbook
@@ -159,11 +204,9 @@ def _workbook_content(path: Path) -> tuple[list, list[str]]:
     sheets = [(n, wb.get_sheet_by_name(n).to_python(skip_empty_area=True)) for n in wb.sheet_names]
     charts = []
     with zipfile.ZipFile(path) as z:
-        for name in z.namelist():
+        for name in sorted(z.namelist()):
             if re.fullmatch(r"xl/charts/chart\d+\.xml", name):
-                xml = z.read(name)
-                kind = "line" if b"<c:lineChart>" in xml else ("bar" if b'<c:barDir val="bar"/>' in xml else "column")
-                charts.append(kind)
+                charts.append(_chart_spec(z.read(name)))
     return sheets, charts
 
 
@@ -183,16 +226,22 @@ def _floor_write_batch(indices: list[int]) -> list[int]:
         if kind == "xlsx":
             sheets, charts = data
             wb = xlsxwriter.Workbook(str(target), {"in_memory": True})
-            first = None
             for name, rows in sheets:
                 ws = wb.add_worksheet(name)
-                first = first or (name, max(1, len(rows)))
                 for r, row in enumerate(rows):
                     ws.write_row(r, 0, row)
-            for kind_ in charts:
-                ch = wb.add_chart({"type": kind_})
-                ch.add_series({"values": [first[0], 1, 0, first[1] - 1, 0]})
-                wb.worksheets()[0].insert_chart(0, 0, ch)
+            for plots in charts:
+                chart = None
+                for kind_, series in plots:
+                    part = wb.add_chart({"type": kind_})
+                    for spec in series:
+                        part.add_series(spec)
+                    if chart is None:
+                        chart = part
+                    else:
+                        chart.combine(part)
+                if chart is not None:
+                    wb.worksheets()[0].insert_chart(0, 0, chart)
             wb.close()
         elif kind == "csv":
             buf = io.StringIO()
@@ -229,11 +278,13 @@ def part_floor_write(a: argparse.Namespace) -> dict:
         (out_dir / rel).mkdir(parents=True, exist_ok=True)
     cells = sum(len(r) for c in content if c[1] == "xlsx" for _, rows in c[2][0] for r in rows)
     charts = sum(len(c[2][1]) for c in content if c[1] == "xlsx")
+    series = sum(len(ser) for c in content if c[1] == "xlsx" for plots in c[2][1] for _, ser in plots)
     order = sorted(range(len(content)), key=lambda i: -_weight(content[i]))  # largest first, as a scheduler would
     t = time.perf_counter()
     run_batches(_floor_write_batch, order, jobs=a.jobs, shared=(content, str(out_dir)),
                 batch_size=max(1, len(order) // (16 * a.jobs)))
-    return {"seconds": time.perf_counter() - t, "files": len(content), "cells": cells, "charts": charts}
+    return {"seconds": time.perf_counter() - t, "files": len(content), "cells": cells, "charts": charts,
+            "series": series}
 
 
 def _weight(item) -> int:
@@ -471,7 +522,8 @@ def _run(a: argparse.Namespace, jobs: int, growth: list[int], work: Path) -> int
         f"the floor's writer can beat that ratio (target total/baseline ≤ {TARGETS['total/baseline']:g})")
     say(f"  floor read: python-calamine, {jobs} process(es), both sheets of {gen['forms']} forms; floor write: "
         f"xlsxwriter in memory, {jobs} process(es), {fw['files']} files, {fw['cells']} cells, {fw['charts']} "
-        "native charts (+ the same CSV rows and other files' bytes)")
+        f"native charts with their {fw['series']} series over the same ranges and their point fills (+ the same CSV "
+        "rows and other files' bytes)")
     say(f"  baseline: pandas.read_excel+openpyxl per file, a per-measurand Algorithm A loop, openpyxl per lab "
         f"sheet ({bl['labs']} labs, all files, not sampled)")
     spans = pipe["progress_stages"]
