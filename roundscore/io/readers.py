@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import functools
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -188,10 +189,17 @@ def _sheet_names(path: Path) -> list[str]:
 
 
 def _shown(rnd: Round, path: Path) -> str:
+    """A file's name as messages and tables show it: relative to the round folder when inside it."""
     try:
-        return str(path.resolve().relative_to(rnd.folder.resolve()))
+        return str(path.resolve().relative_to(_resolved(rnd.folder)))
     except ValueError:
         return str(path)
+
+
+@functools.lru_cache(maxsize=64)
+def _resolved(folder: Path) -> Path:
+    # A round folder is resolved once per process, not once per file of a 2000-form round.
+    return folder.resolve()
 
 
 def read_participants(rnd: Round) -> dict[str, Participant]:
