@@ -267,3 +267,16 @@ def test_stability_png_render_for_looking():
                              allowed_expanded=float("nan"), criterion_used="simple", passed=False, key="p",
                              title="t", png=True)
     assert png[:8] == b"\x89PNG\r\n\x1a\n"
+
+
+@pytest.mark.parametrize("first", ["roundscore.io.figures", "roundscore.io.figures_precision"])
+def test_either_figures_module_imports_first(first):
+    # The precision figures use figures' helpers and figures re-exports them: no import cycle either way.
+    import subprocess
+    import sys
+
+    code = (f"import {first}; from roundscore.io.figures import mandel_figure, stability_figure, "
+            "homogeneity_figure, mandel_limits; print(mandel_figure.__module__)")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
+    assert out.returncode == 0, out.stderr
+    assert out.stdout.strip() == "roundscore.io.figures_precision"

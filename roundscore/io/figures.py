@@ -659,6 +659,8 @@ def _draw(ev, task: tuple[str, ...]) -> dict:
     hom = getattr(ic, "homogeneity", None)
     table = getattr(ic, "homogeneity_table", None)
     if hom is not None and table is not None:
+        from .figures_precision import homogeneity_figure
+
         out["items"] = homogeneity_figure(list(table.items), np.asarray(table.values, float),
                                           item_labels=list(hom.item_labels), item_means=list(hom.item_means),
                                           general_mean=float(hom.mean), sigma_pt=float(hom.sigma_pt),
@@ -669,6 +671,8 @@ def _draw(ev, task: tuple[str, ...]) -> dict:
     names = getattr(ic, "stability_sets", None)
     if stab is not None and table is not None and table.sets is not None:
         names = names or (table.set_names[0], table.set_names[1])
+        from .figures_precision import stability_figure
+
         out["stability"] = stability_figure(
             list(table.sets), np.asarray(table.values, float), items=list(table.items), set_labels=names,
             mean_first=stab.mean_first, mean_second=stab.mean_second, u_first=stab.u_first, u_second=stab.u_second,
@@ -697,6 +701,8 @@ def _youden(ev, a: str, b: str) -> SvgFigure:
 
 
 def _mandel(ev, name: str) -> tuple[SvgFigure, ...]:
+    from .figures_precision import mandel_figure, mandel_limits
+
     frame = ev.extras["mandel"]
     g = frame[frame["measurand"] == name]
     critical = frame.attrs.get("critical", {}) if isinstance(frame.attrs, dict) else {}
@@ -724,5 +730,15 @@ def _mandel(ev, name: str) -> tuple[SvgFigure, ...]:
                  for stat, vals in (("h", h), ("k", k)))
 
 
-# The precision and item-check figures live in their own module; their names are part of this one's.
-from .figures_precision import homogeneity_figure, mandel_figure, mandel_limits, stability_figure  # noqa: E402
+#: The precision and item-check figures live in :mod:`.figures_precision` (which uses this module's
+#: helpers); their names are part of this one's, looked up on first use so either module can be
+#: imported first.
+_ELSEWHERE = ("homogeneity_figure", "mandel_figure", "mandel_limits", "stability_figure")
+
+
+def __getattr__(name: str):
+    if name in _ELSEWHERE:
+        from . import figures_precision
+
+        return getattr(figures_precision, name)
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
