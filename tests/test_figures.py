@@ -280,3 +280,52 @@ def test_either_figures_module_imports_first(first):
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
     assert out.returncode == 0, out.stderr
     assert out.stdout.strip() == "roundscore.io.figures_precision"
+
+
+def test_step_columns_fill_each_run_without_gaps():
+    # Columns centred on x reach half-way to their neighbours (as fill_between's step="mid"); a run of
+    # one colour is one polygon, and neighbouring runs meet (no gap where the colour changes).
+    from matplotlib.collections import PolyCollection
+    from matplotlib.colors import to_hex
+
+    fig, ax = F._new((4, 2))
+    F._step_columns(ax, np.array([0.0, 1.0, 2.0, 3.0]), 0.0, np.array([1.0, 2.0, -1.0, 0.5]),
+                    ["#111111", "#111111", "#222222", "#222222"])
+    (pc,) = [c for c in ax.collections if isinstance(c, PolyCollection)]
+    first, second = (p.vertices for p in pc.get_paths())
+    assert [to_hex(c) for c in pc.get_facecolor()] == ["#111111", "#222222"]
+    assert first[:, 0].min() == 0.0 and first[:, 0].max() == 1.5
+    assert second[:, 0].min() == 1.5 and second[:, 0].max() == 3.0
+    assert set(first[:, 1]) == {0.0, 1.0, 2.0} and set(second[:, 1]) == {0.0, -1.0, 0.5}
+
+
+def test_mandel_envelope_colours_a_lone_lab_beyond_the_line():
+    # Above MAX_BARS labs the bars become column envelopes coloured by each column's worst lab: one lab
+    # beyond the 1 % line among hundreds within must still colour its column (ISO 5725-2 §7.3.1 h plot).
+    from matplotlib.collections import PolyCollection
+    from matplotlib.colors import to_hex
+
+    n = 1200
+    h = np.zeros(n)
+    h[::2] = 0.5
+    h[777] = 3.0  # invented
+    seen = {}
+    real_finish = F._finish
+
+    def keep(fig, ax, **kw):
+        seen["faces"] = [to_hex(c).upper() for c in ax.collections[0].get_facecolor()]
+        seen["paths"] = ax.collections[0].get_paths()
+        return real_finish(fig, ax, **kw)
+
+    import roundscore.io.figures_precision as FP
+
+    FP._finish = keep
+    try:
+        F.mandel_figure([f"L{i}" for i in range(n)], h, statistic="h", critical_5=1.96, critical_1=2.58,
+                        key="m", title="t")
+    finally:
+        FP._finish = real_finish
+    vermillion = F.PALETTE["vermillion"].upper()
+    assert seen["faces"].count(vermillion) == 1
+    run = seen["paths"][seen["faces"].index(vermillion)].vertices
+    assert run[:, 0].min() <= 777 <= run[:, 0].max() and run[:, 1].max() == 3.0

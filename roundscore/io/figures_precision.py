@@ -13,7 +13,7 @@ import numpy as np
 
 from ..look import PALETTE, SIGNAL_MARKER
 from ..stats.precision import mandel_h_critical, mandel_k_critical
-from .figures import _WIDE, MAX_BARS, PROFILE_POINTS, SvgFigure, _codes, _finish, _new, _png
+from .figures import _WIDE, MAX_BARS, PROFILE_POINTS, SvgFigure, _codes, _finish, _new, _png, _step_columns
 
 __all__ = ["mandel_limits", "mandel_figure", "homogeneity_figure", "stability_figure", "stability_verdict"]
 
@@ -66,12 +66,8 @@ def mandel_figure(labs: Sequence[str], values: Sequence[float], *, statistic: Li
         worst = np.zeros(PROFILE_POINTS, dtype=int)
         np.maximum.at(worst, col, np.array([rank[x] for x in level]))
         centre = (np.arange(PROFILE_POINTS) + 0.5) * len(v) / PROFILE_POINTS - 0.5
-        for s in ("acceptable", "warning", "action"):
-            sel = worst == rank[s]
-            if sel.any():
-                ax.fill_between(centre, lo, hi, where=sel, step="mid", linewidth=0,
-                                color={"action": PALETTE["vermillion"], "warning": PALETTE["orange"]}
-                                .get(s, PALETTE["blue"]))
+        colour = {rank["action"]: PALETTE["vermillion"], rank["warning"]: PALETTE["orange"]}
+        _step_columns(ax, centre, lo, hi, [colour.get(w, PALETTE["blue"]) for w in worst])
         # codes for the most extreme labs beyond the 1 % line only (at most MAX_BARS: they must stay legible)
         far = np.flatnonzero(level == "action")
         far = np.sort(far[np.argsort(-np.abs(v[far]), kind="stable")[:MAX_BARS]])
