@@ -173,3 +173,32 @@ def test_then_runs_in_the_worker_and_its_refusals_are_failures(files, jobs):
     assert isinstance(failed, ReadFailure) and "post step refused" in failed.reason
     # Progress counts files as batches come back, ending at all of them.
     assert seen and seen[-1] == (8, 8) and [d for d, _ in seen] == sorted(d for d, _ in seen)
+
+
+def reader_abort_participants(path, sheets, limits):
+    if Path(path).name == "participants.xlsx":
+        os.abort()
+    return FileRows(file=path, sheets=tuple(read_file_sheets(path, sheets, limits=limits)))
+
+
+def test_participants_workbook_is_read_in_isolation(make_round, monkeypatch):
+    # The coordinator's own tables (participants, homogeneity, stability) go through the same bounded
+    # reader as the returned forms: a reader crash on one is reported by name, and the program lives on.
+    from roundscore.errors import InputError
+    from roundscore.io.readers import read_participants
+    from roundscore.round import load_round
+
+    folder = make_round('[round]\nid="P1"\nparticipants = "participants.xlsx"\n[measurand.cu]\nunit="mg/kg"\n'
+                        'sigma_pt=0.5\n', "lab,measurand,replicate,value\nL1,cu,1,1.0\n")
+    wb = xlsxwriter.Workbook(str(folder / "participants.xlsx"))
+    ws = wb.add_worksheet("labs")
+    for r, row in enumerate([["lab", "name", "contact"], ["L1", "Invented Lab One", "one@example.org"]]):
+        ws.write_row(r, 0, row)
+    wb.close()
+    rnd = load_round(folder)
+    assert read_participants(rnd)["L1"].name == "Invented Lab One"
+    monkeypatch.setenv(READER_HOOK_ENV, f"{__name__}:reader_abort_participants")
+    with pytest.raises(InputError) as info:
+        read_participants(rnd)
+    p = info.value.problems[0]
+    assert p.file == "participants.xlsx" and "SIGABRT" in p.message

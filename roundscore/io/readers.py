@@ -207,7 +207,7 @@ def read_participants(rnd: Round) -> dict[str, Participant]:
     if rnd.participants is None:
         return {}
     shown = _shown(rnd, rnd.participants)
-    sheet = read_rows(rnd.participants, limits=rnd.limits)
+    sheet = _read_table(rnd, rnd.participants, shown)
     rows = [r for r in sheet.rows if any(c is not None for c in r)]
     if not rows:
         raise InputError.single("the participants file is empty", file=shown)
@@ -244,5 +244,24 @@ def read_item_table(rnd: Round, path: Path, *, what: str) -> SheetRows:
     """Read a homogeneity or stability table named in the round file."""
     if not path.is_file():
         raise InputError.single(f"the {what} file named in the round file was not found", file=_shown(rnd, path))
-    sheet = read_rows(path, limits=rnd.limits)
-    return SheetRows(file=_shown(rnd, path), sheet=sheet.sheet, rows=sheet.rows, warnings=sheet.warnings)
+    shown = _shown(rnd, path)
+    sheet = _read_table(rnd, path, shown)
+    return SheetRows(file=shown, sheet=sheet.sheet, rows=sheet.rows, warnings=sheet.warnings)
+
+
+def _read_table(rnd: Round, path: Path, shown: str) -> SheetRows:
+    """A table the coordinator names (participants, homogeneity, stability): its first sheet.
+
+    A workbook is read as the returned forms are, in a bounded worker process
+    (a crash or hang of the compiled reader costs this file only, reported
+    by name); a text file is read here, by Python's csv module.
+    """
+    from .xlsx import TEXT_SUFFIXES
+
+    if Path(path).suffix.lower() in TEXT_SUFFIXES:
+        return read_rows(path, limits=rnd.limits)
+    got = _isolated_read(Path(path), None, rnd.limits)
+    if not hasattr(got, "sheets"):  # a ReadFailure: refused, crashed, out of memory or timed out
+        raise InputError([_with_file(q, shown) for q in got.as_problems()],
+                         summary=f"{shown} cannot be read")
+    return got.sheets[0]
