@@ -152,18 +152,32 @@ class RoundEvaluation:
         """This lab's rows of :attr:`scores` (grouped once, then looked up)."""
         return self.lab_rows("scores", lab)
 
+    @property
+    def lab_tables(self) -> list[str]:
+        """The tables kept by lab: ``"scores"`` and every extras table with a ``lab`` column."""
+        return ["scores"] + [k for k, v in self.extras.items()
+                             if isinstance(v, pd.DataFrame) and "lab" in v.columns]
+
     def lab_rows(self, table: str, lab: str) -> pd.DataFrame:
         """This lab's rows of ``scores`` or of an extras table with a ``lab`` column.
 
         The table is split by lab on first use and the pieces are kept, so
         writing thousands of lab sheets does not filter the whole table each time.
         """
+        got = self._lab_groups(table).get(lab)
+        return got if got is not None else (self.scores if table == "scores" else self.extras[table]).iloc[0:0]
+
+    def split_by_lab(self) -> None:
+        """Split every table of :attr:`lab_tables` now: before worker processes fork, so they inherit the pieces."""
+        for table in self.lab_tables:
+            self._lab_groups(table)
+
+    def _lab_groups(self, table: str) -> dict[str, pd.DataFrame]:
         groups = self._cache.get(table)
-        frame = self.scores if table == "scores" else self.extras[table]
         if groups is None:
+            frame = self.scores if table == "scores" else self.extras[table]
             groups = self._cache[table] = {k: g for k, g in frame.groupby("lab", sort=False)}
-        got = groups.get(lab)
-        return got if got is not None else frame.iloc[0:0]
+        return groups
 
     @property
     def failed_checks(self) -> list[str]:

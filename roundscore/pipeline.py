@@ -106,13 +106,7 @@ def write_outputs(ev: RoundEvaluation, folder: Path, *, history=None,
     labs_dir = folder / "labs"
     labs_dir.mkdir()
     labs = ev.labs
-    if labs:
-        # Split the scores (and every extras table with a lab column) by lab here, once, before the
-        # workers fork and inherit the pieces: each worker would otherwise split them again.
-        ev.lab_scores(labs[0])
-        for name, frame in ev.extras.items():
-            if hasattr(frame, "columns") and "lab" in frame.columns:
-                ev.lab_rows(name, labs[0])
+    ev.split_by_lab()  # once, here: each worker would otherwise split the tables again
     lab_paths = [out(f"labs/{_safe(lab)}.xlsx") for lab in labs]
     for i in range(0, len(labs), LAB_SHEETS_PER_TASK):
         group = list(zip(labs[i:i + LAB_SHEETS_PER_TASK], lab_paths[i:i + LAB_SHEETS_PER_TASK]))

@@ -36,6 +36,11 @@ def make_files(folder: Path, n: int) -> list[Path]:
     return paths
 
 
+def _read(path, sheets, limits) -> FileRows:
+    """The plain read every test reader below falls back to."""
+    return FileRows(file=path, sheets=tuple(read_file_sheets(path, sheets, limits=limits)))
+
+
 def _bad_name(path: str) -> bool:
     return Path(path).name == "f03.xlsx"
 
@@ -43,38 +48,38 @@ def _bad_name(path: str) -> bool:
 def reader_abort(path, sheets, limits):
     if _bad_name(path):
         os.abort()
-    return FileRows(file=path, sheets=tuple(read_file_sheets(path, sheets, limits=limits)))
+    return _read(path, sheets, limits)
 
 
 def reader_segfault(path, sheets, limits):
     if _bad_name(path):
         os.kill(os.getpid(), signal.SIGSEGV)
-    return FileRows(file=path, sheets=tuple(read_file_sheets(path, sheets, limits=limits)))
+    return _read(path, sheets, limits)
 
 
 def reader_hang(path, sheets, limits):
     if _bad_name(path):
         time.sleep(600)
-    return FileRows(file=path, sheets=tuple(read_file_sheets(path, sheets, limits=limits)))
+    return _read(path, sheets, limits)
 
 
 def reader_memory(path, sheets, limits):
     if _bad_name(path):
         hog = bytearray(4 * limits.memory_bytes)  # more than the worker may have
         hog[-1] = 1
-    return FileRows(file=path, sheets=tuple(read_file_sheets(path, sheets, limits=limits)))
+    return _read(path, sheets, limits)
 
 
 def reader_exit(path, sheets, limits):
     if _bad_name(path):
         os._exit(3)
-    return FileRows(file=path, sheets=tuple(read_file_sheets(path, sheets, limits=limits)))
+    return _read(path, sheets, limits)
 
 
 def reader_bug(path, sheets, limits):
     if _bad_name(path):
         raise KeyError("reader bug")
-    return FileRows(file=path, sheets=tuple(read_file_sheets(path, sheets, limits=limits)))
+    return _read(path, sheets, limits)
 
 
 def _values(results):
@@ -178,7 +183,7 @@ def test_then_runs_in_the_worker_and_its_refusals_are_failures(files, jobs):
 def reader_abort_participants(path, sheets, limits):
     if Path(path).name == "participants.xlsx":
         os.abort()
-    return FileRows(file=path, sheets=tuple(read_file_sheets(path, sheets, limits=limits)))
+    return _read(path, sheets, limits)
 
 
 def test_participants_workbook_is_read_in_isolation(make_round, monkeypatch):

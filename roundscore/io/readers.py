@@ -94,8 +94,6 @@ def _read_forms(rnd: Round, files: list[Path], *, jobs: int | None, progress) ->
     within one file, and the rows are put in the table's order. The result
     is the same for any ``jobs``.
     """
-    from functools import partial
-
     from .safety import read_many
 
     report = None
@@ -105,7 +103,7 @@ def _read_forms(rnd: Round, files: list[Path], *, jobs: int | None, progress) ->
     paths = [str(f) for f in files]
     forms = [p for p in paths if _is_form(Path(p))]
     read = dict(zip(forms, read_many(forms, [RESULTS_SHEET, INFO_SHEET], jobs=jobs, limits=rnd.limits,
-                                     then=partial(_form_rows, rnd), progress=report)))
+                                     then=functools.partial(_form_rows, rnd), progress=report)))
     problems: list[Problem] = []
     warnings: list[str] = []
     rows: list[tuple] = []

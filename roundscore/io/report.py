@@ -298,10 +298,8 @@ def lab_records(ev, table: str, labs: Sequence[str]) -> dict[str, list[dict[str,
     (one conversion per batch), not kept for every lab of the round: at 2000
     labs the records of all labs took about 130 MB in each process.
     """
-    if table != "scores":
-        frame = ev.extras.get(table)
-        if frame is None or "lab" not in getattr(frame, "columns", ()):
-            return {}
+    if table not in ev.lab_tables:
+        return {}
     frames = [f for f in (ev.lab_rows(table, lab) for lab in labs) if len(f)]
     out: dict[str, list[dict[str, Any]]] = {}
     if frames:

@@ -514,8 +514,7 @@ def lab_payload(ev: RoundEvaluation, lab: str, history: pd.DataFrame | None = No
         "scores": own,
         "p": {n: m.p for n, m in ev.measurands.items()},
         "decimals": {n: m.decimals for n, m in rnd.measurands.items()},
-        "extras": {k: ev.lab_rows(k, lab) for k, v in ev.extras.items()
-                   if isinstance(v, pd.DataFrame) and "lab" in v.columns},
+        "extras": {k: ev.lab_rows(k, lab) for k in ev.lab_tables if k != "scores"},
         "history": history,
     }
 
