@@ -32,7 +32,7 @@ from __future__ import annotations
 import csv
 import re
 import zipfile
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Sequence
 
@@ -40,6 +40,7 @@ import numpy as np
 
 from . import parallel
 from .io.forms import FIRST_ROW, RESULTS_SHEET, write_form
+from .io.outfolder import atomic_folder
 
 __all__ = ["make_big_round", "BigRound", "BIG_SEED", "BIG_ID", "fill_form"]
 
@@ -224,8 +225,8 @@ def make_big_round(folder: str | Path, *, labs: int = 2000, measurands: int = 40
     Parameters
     ----------
     folder : path
-        Created if missing; ``round.toml``, ``participants.csv`` and
-        ``forms/`` inside it are overwritten.
+        A new or empty folder, or one this function wrote before (replaced
+        whole, as an output folder is: :func:`roundscore.io.outfolder.atomic_folder`).
     labs, measurands, replicates : int
         The size: labs ≥ 3, 1 ≤ measurands, replicates ≥ 1.
     seed : int
@@ -241,10 +242,16 @@ def make_big_round(folder: str | Path, *, labs: int = 2000, measurands: int = 40
     if labs < 3 or measurands < 1 or replicates < 1:
         raise ValueError(f"need labs ≥ 3, measurands ≥ 1, replicates ≥ 1; got {labs}, {measurands}, {replicates}")
     folder = Path(folder)
+    with atomic_folder(folder, kind="benchmark round") as tmp:
+        big = _write_big_round(tmp, labs=labs, measurands=measurands, replicates=replicates, seed=seed,
+                               jobs=jobs, progress=progress)
+    return replace(big, folder=folder, forms=tuple(folder / p.relative_to(tmp) for p in big.forms))
+
+
+def _write_big_round(folder: Path, *, labs: int, measurands: int, replicates: int, seed: int,
+                     jobs: int | None, progress) -> BigRound:
     forms_dir = folder / "forms"
-    forms_dir.mkdir(parents=True, exist_ok=True)
-    for old in forms_dir.glob("*.xlsx"):
-        old.unlink()
+    forms_dir.mkdir()
     rng = np.random.default_rng(seed)
     names = _measurand_names(measurands)
     true = 10.0 ** rng.uniform(-1.0, 3.0, measurands)  # 0.1 to 1000 mg/kg

@@ -2,7 +2,8 @@
 
 Exit codes: 0 success, 1 a check or rule fired (``history check``, ``score
 --strict``), 2 an error in the input or the command line (a clear message,
-never a traceback).
+never a traceback), 130 interrupted (^C), 128 + N stopped by signal N
+(SIGTERM: 143), cleaned up like an error.
 """
 
 from __future__ import annotations
@@ -48,8 +49,15 @@ def main(argv: list[str] | None = None) -> int:
     if not getattr(args, "func", None):
         parser.print_help()
         return 2
+    from .processes import Terminated, signals_as_errors
+
     try:
-        return int(args.func(args) or 0)
+        with signals_as_errors():
+            return int(args.func(args) or 0)
+    except Terminated as exc:
+        print(f"roundscore: stopped by {exc}; outputs being written were removed and no earlier output "
+              "was changed", file=sys.stderr)
+        return exc.exit_code
     except RoundscoreError as exc:
         print(f"roundscore: error: {exc}", file=sys.stderr)
         return 2

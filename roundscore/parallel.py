@@ -21,7 +21,6 @@ exception pickling would lose).
 
 from __future__ import annotations
 
-import multiprocessing as mp
 import os
 import pickle
 import sys
@@ -29,6 +28,8 @@ import time
 from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 from dataclasses import dataclass
 from typing import Any, Callable, Sequence, TypeVar
+
+from .processes import context, worker_started
 
 __all__ = ["resolve_jobs", "run_batches", "shared", "batches", "Progress", "terminal_progress",
            "BATCHES_PER_JOB"]
@@ -131,10 +132,11 @@ def _picklable_args(args: tuple) -> tuple:
         return tuple(str(a) for a in args)
 
 
-def _context():
-    # fork shares `shared` with the workers for free; spawn is the safe choice where fork is missing.
-    methods = mp.get_all_start_methods()
-    return mp.get_context("fork" if "fork" in methods and sys.platform != "darwin" else "spawn")
+def _start_worker(parent_pid: int, context: Any, set_context: bool) -> None:
+    """Pool initializer: end with the parent (see :mod:`roundscore.processes`); take ``shared`` under spawn."""
+    worker_started(parent_pid)
+    if set_context:
+        _set_shared(context)
 
 
 def run_batches(
@@ -194,37 +196,48 @@ def run_batches(
             return out
         finally:
             _set_shared(previous)
-    ctx = _context()
+    ctx = context()
     results: list[Any] = [None] * len(parts)
     done_items = 0
-    if ctx.get_start_method() == "fork":
-        previous = _SHARED
+    previous = _SHARED
+    forked = ctx.get_start_method() == "fork"
+    if forked:
         _set_shared(shared)  # inherited by the forked workers
-        pool = ProcessPoolExecutor(max_workers=min(jobs, len(parts)), mp_context=ctx)
-    else:
-        previous = _SHARED
-        pool = ProcessPoolExecutor(max_workers=min(jobs, len(parts)), mp_context=ctx,
-                                   initializer=_set_shared, initargs=(shared,))
+    pool = ProcessPoolExecutor(max_workers=min(jobs, len(parts)), mp_context=ctx, initializer=_start_worker,
+                               initargs=(os.getpid(), None if forked else shared, not forked))
     try:
-        with pool:
-            pending = {pool.submit(_call, fn, part): i for i, part in enumerate(parts)}
-            while pending:
-                finished, _ = wait(pending, return_when=FIRST_COMPLETED)
-                for fut in finished:
-                    i = pending.pop(fut)
-                    res = fut.result()
-                    if isinstance(res, _Failure):
-                        for other in pending:
-                            other.cancel()
-                        raise res.rebuild()
-                    _check_length(res, parts[i])
-                    results[i] = res
-                    done_items += len(parts[i])
-                    if progress:
-                        progress(stage, done_items, n)
+        pending = {pool.submit(_call, fn, part): i for i, part in enumerate(parts)}
+        while pending:
+            finished, _ = wait(pending, return_when=FIRST_COMPLETED)
+            for fut in finished:
+                i = pending.pop(fut)
+                res = fut.result()
+                if isinstance(res, _Failure):
+                    raise res.rebuild()
+                _check_length(res, parts[i])
+                results[i] = res
+                done_items += len(parts[i])
+                if progress:
+                    progress(stage, done_items, n)
+    except BaseException:
+        _stop(pool)  # an error, ^C or SIGTERM: the workers are ended now, not after their batches
+        raise
+    else:
+        pool.shutdown(wait=True)
     finally:
         _set_shared(previous)
     return [r for part in results for r in part]
+
+
+def _stop(pool: ProcessPoolExecutor) -> None:
+    """End a pool at once: cancel what has not started and kill its workers (by their own handles)."""
+    processes = list(getattr(pool, "_processes", {}).values())  # the executor keeps no public handle list
+    pool.shutdown(wait=False, cancel_futures=True)
+    for proc in processes:
+        if proc.is_alive():
+            proc.kill()
+    for proc in processes:
+        proc.join(timeout=5.0)
 
 
 def _check_length(res: Any, part: Sequence) -> None:

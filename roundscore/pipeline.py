@@ -7,22 +7,20 @@ leaves the previous outputs as they were.
 
 from __future__ import annotations
 
-import os
-import shutil
-import tempfile
-from contextlib import contextmanager
+import itertools
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Callable, Iterator
+from typing import Callable
 
 from .evaluate import AUDIT_COLUMNS, SCORE_COLUMNS, STATISTICS_COLUMNS, RoundEvaluation, evaluate
 from .io.csvout import write_csv
+from .io.outfolder import atomic_folder, check_target
 from .io.readers import read_participants, read_results
 from .io.workbook import lab_payload, write_lab_workbook, write_summary
 from .parallel import run_batches, shared
 from .round import Round, load_round
 
-__all__ = ["run_round", "write_outputs", "atomic_folder", "Outputs", "load_and_evaluate"]
+__all__ = ["run_round", "write_outputs", "atomic_folder", "Outputs", "load_and_evaluate", "round_inputs"]
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -33,41 +31,56 @@ class Outputs:
     files: tuple[Path, ...]
 
 
-@contextmanager
-def atomic_folder(target: Path) -> Iterator[Path]:
-    """Yield a temporary folder; on success it replaces ``target`` whole, on failure it is removed.
+def round_inputs(rnd: Round, archive: str | Path | None = None, *,
+                 for_forms: bool = False) -> tuple[list[tuple[Path, str]], list[Path]]:
+    """What an output folder must not touch: (paths to protect, folders the results are read from).
 
-    The previous ``target`` is kept until the new one is complete, then
-    renamed away and deleted, so at every moment either the old or the new
-    outputs are there in full.
+    The protected paths are the round folder, its round file, every results
+    file, the participants file, the item tables and the archive (with the
+    files SQLite keeps beside it). The input folders are a folder of
+    returned forms, or the folder a results pattern reads: for a pattern in
+    the round folder itself, only a recursive one (``**``) makes the round
+    folder an input folder for outputs, any pattern does for blank forms
+    (``for_forms``: they would be read back as returned forms). With
+    ``for_forms`` results that do not exist yet are no error.
     """
-    target = Path(target)
-    target.parent.mkdir(parents=True, exist_ok=True)
-    tmp = Path(tempfile.mkdtemp(prefix=f".{target.name}.partial-", dir=target.parent))
+    from .errors import RoundFileError
+
+    protect: list[tuple[Path, str]] = [(rnd.folder, "the round folder"),
+                                       (rnd.path, "the round file")]
     try:
-        yield tmp
-    except BaseException:
-        shutil.rmtree(tmp, ignore_errors=True)
-        raise
-    old = None
-    if target.exists():
-        old = target.parent / f".{target.name}.old-{os.getpid()}"
-        if old.exists():
-            shutil.rmtree(old, ignore_errors=True)
-        os.replace(target, old)
-    os.replace(tmp, target)
-    if old is not None:
-        shutil.rmtree(old, ignore_errors=True)
+        protect += [(f, "a results file") for f in rnd.result_files()]
+    except RoundFileError:
+        if not for_forms:
+            raise
+    if rnd.participants is not None:
+        protect.append((rnd.participants, "the participants file"))
+    for m in rnd.measurands.values():
+        protect += [(p, "an item table") for p in (m.homogeneity, m.stability) if p is not None]
+    if archive is not None:
+        a = Path(archive).expanduser()
+        protect += [(a, "the archive")] + [(a.with_name(a.name + end), "the archive's journal")
+                                           for end in ("-wal", "-shm", "-journal")]
+    folders: list[Path] = []
+    target = rnd.results
+    if any(ch in target for ch in "*?["):
+        static = list(itertools.takewhile(lambda part: not any(c in part for c in "*?["), Path(target).parts))
+        base = rnd.folder.joinpath(*static)
+        if for_forms or base.resolve() != rnd.folder.resolve() or "**" in target:
+            folders.append(base)
+    elif (rnd.folder / target).is_dir():
+        folders.append(rnd.folder / target)
+    return protect, folders
 
 
-def load_and_evaluate(round_path: str | Path, *, jobs: int | None = None,
+def load_and_evaluate(round_path: str | Path | Round, *, jobs: int | None = None,
                       progress: Callable[[str, int, int], None] | None = None) -> RoundEvaluation:
-    """Read the round file, its results and participants, and evaluate it.
+    """Read the round file (or take a loaded :class:`Round`), its results and participants, and evaluate it.
 
     ``jobs`` worker processes read the returned forms (None = all cores);
     the table does not depend on it.
     """
-    rnd = load_round(round_path)
+    rnd = round_path if isinstance(round_path, Round) else load_round(round_path)
     table = read_results(rnd, jobs=jobs, progress=progress)
     participants = read_participants(rnd)
     return evaluate(rnd, table, participants)
@@ -158,8 +171,11 @@ def run_round(round_path: str | Path, out: str | Path, *, archive: str | Path | 
     ``replace_archive``.  ``on_archive`` receives the
     :class:`~roundscore.archive.StoreOutcome`.
     """
-    ev = load_and_evaluate(round_path, jobs=jobs, progress=progress)
-    store = archive if archive is not None else ev.round.archive
+    rnd = load_round(round_path)
+    store = archive if archive is not None else rnd.archive
+    protect, input_folders = round_inputs(rnd, store)
+    check_target(out, protect=protect, input_folders=input_folders)  # refused before any work is done
+    ev = load_and_evaluate(rnd, jobs=jobs, progress=progress)
     history = None
     if store is not None:
         from . import archive as history_archive
@@ -169,7 +185,7 @@ def run_round(round_path: str | Path, out: str | Path, *, archive: str | Path | 
         history = history_archive.round_history(
             store, scheme=ev.round.scheme, labs=ev.labs, round_id=ev.round.id,
             round_date=ev.round.date, last=ev.round.history_rounds).get
-    with atomic_folder(Path(out)) as tmp:
+    with atomic_folder(Path(out), kind="round outputs", protect=protect, input_folders=input_folders) as tmp:
         written = write_outputs(ev, tmp, history=history, progress=progress, jobs=jobs)
     final = Path(out)
     if store is not None:

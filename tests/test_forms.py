@@ -6,6 +6,9 @@ The form layout is our own design; the checks are internal (round trip, protecti
 
 from __future__ import annotations
 
+import hashlib
+import shutil
+
 import openpyxl
 import pytest
 
@@ -43,9 +46,13 @@ def _fill(path, rows):
 
 def test_forms_command_and_round_trip(make_round):
     folder = make_round(TOML, participants__csv="lab,name,contact\nA1,Alpha Lab,a@x.example\nB2,Beta Lab,b@x.example\n")
-    assert main(["forms", str(folder), "--out", str(folder / "returned")]) == 0
+    assert main(["forms", str(folder)]) == 0
+    blank = sorted((folder / "blank-forms").glob("*.xlsx"))
+    assert [f.name for f in blank] == ["F1-A1.xlsx", "F1-B2.xlsx"]
+    (folder / "returned").mkdir()
+    for f in blank:  # sent out, filled in, returned
+        shutil.copy(f, folder / "returned" / f.name)
     forms = sorted((folder / "returned").glob("*.xlsx"))
-    assert [f.name for f in forms] == ["F1-A1.xlsx", "F1-B2.xlsx"]
     wb = openpyxl.load_workbook(forms[0])
     ws = wb[RESULTS_SHEET]
     assert ws.protection.sheet  # the sheet is protected...
@@ -83,3 +90,47 @@ def test_bad_cell_in_form_names_file_sheet_row(make_round):
         read_results(load_round(folder))
     assert "returned/c.xlsx, sheet 'Results', row 10, column 'value' (lab C3, measurand iron)" in str(info.value)
     assert "'twelve': not a number" in str(info.value)
+
+
+def _hashes(folder):
+    return {p.name: hashlib.sha256(p.read_bytes()).hexdigest() for p in sorted(folder.iterdir())}
+
+
+def test_blank_forms_never_go_where_returned_forms_are_read(make_round, capsys):
+    folder = make_round(TOML, participants__csv="lab,name\nA1,Alpha Lab\nB2,Beta Lab\n")
+    assert main(["forms", str(folder)]) == 0
+    (folder / "returned").mkdir()
+    returned = folder / "returned" / "F1-A1.xlsx"
+    shutil.copy(folder / "blank-forms" / "F1-A1.xlsx", returned)
+    _fill(returned, [[12.1, 12.3], [40.0, 41.0]])
+    before = _hashes(folder / "returned")
+    capsys.readouterr()
+    for out in (folder / "returned", folder / "returned" / "sub"):
+        assert main(["forms", str(folder), "--labs", "A1", "--out", str(out)]) == 2
+        err = capsys.readouterr().err
+        assert "would be read as results" in err and "Traceback" not in err
+    assert _hashes(folder / "returned") == before
+    assert not (folder / "returned" / "sub").exists()
+
+
+def test_existing_forms_are_kept_unless_replace_and_then_set_aside(make_round, capsys):
+    folder = make_round(TOML, participants__csv="lab,name\nA1,Alpha Lab\nB2,Beta Lab\n")
+    assert main(["forms", str(folder)]) == 0
+    blank = folder / "blank-forms"
+    _fill(blank / "F1-A1.xlsx", [[12.1, 12.3]])  # a coordinator typed a faxed result into a form
+    filled = _hashes(blank)
+    capsys.readouterr()
+    assert main(["forms", str(folder)]) == 0
+    out = capsys.readouterr().out
+    assert "Kept 2 existing files unchanged" in out and "F1-A1.xlsx" in out
+    assert _hashes(blank) == filled
+    assert main(["forms", str(folder), "--labs", "A1", "--replace"]) == 0
+    out = capsys.readouterr().out
+    assert "kept as F1-A1.old-1.xlsx" in out
+    after = _hashes(blank)
+    assert after["F1-A1.old-1.xlsx"] == filled["F1-A1.xlsx"]  # the filled-in file, byte for byte
+    assert after["F1-B2.xlsx"] == filled["F1-B2.xlsx"]
+    assert after["F1-A1.xlsx"] != filled["F1-A1.xlsx"]  # a new blank form
+    assert main(["forms", str(folder), "--labs", "A1", "--replace"]) == 0
+    assert "F1-A1.old-2.xlsx" in _hashes(blank) and _hashes(blank)["F1-A1.old-1.xlsx"] == filled["F1-A1.xlsx"]
+    assert not [p for p in blank.iterdir() if p.name.startswith(".")]  # no temporary file left

@@ -133,6 +133,7 @@ def test_two_runs_identical_bytes_and_inputs_unchanged(small_round: Path, tmp_pa
     assert run_cli("check", str(small_round), capsys=capsys)[0] == 0
     assert hash_tree(small_round) == before  # inputs are opened read-only and never changed
     a, b = hash_tree(tmp_path / "a"), hash_tree(tmp_path / "b")
+    assert a.pop(".roundscore-output") != b.pop(".roundscore-output")  # each marker names its own folder
     assert any(k.endswith(".xlsx") for k in a) and any(k.endswith(".csv") for k in a)
     assert a == b  # every CSV and workbook byte-identical
 
@@ -245,7 +246,7 @@ def _forms_round(make_round) -> tuple[Path, list[Path]]:
             'sigma_pt = 0.01\nallow_negative = false\n')
     labs = [f"L{i:02d}" for i in range(1, 9)]
     folder = make_round(toml, participants__csv="lab,name,contact\n" + "".join(f"{lab},Lab {lab},x\n" for lab in labs))
-    paths = write_forms(load_round(folder), [(lab, None) for lab in labs], folder / "forms")
+    paths = write_forms(load_round(folder), [(lab, None) for lab in labs], folder / "forms").written
     for i, p in enumerate(paths):
         fill(p, {"lead": [0.50 + 0.01 * i, 0.51 + 0.01 * i], "cadmium": [0.10 + 0.002 * i, 0.101]})
     return folder, paths

@@ -289,7 +289,7 @@ def test_show_table_and_outputs(tmp_path, capsys):
     assert got == 0
     assert "^ warning" in out.out and "[] action" in out.out and "o acceptable" in out.out
     assert "+3.30" in out.out and "does not replace" in out.out
-    assert sorted(p.name for p in out_dir.iterdir()) == ["history.png", "history.svg",
+    assert sorted(p.name for p in out_dir.iterdir()) == [".roundscore-output", "history.png", "history.svg",
                                                          "history.xlsx"]
     with zipfile.ZipFile(out_dir / "history.xlsx") as book:
         names = book.namelist()

@@ -21,10 +21,7 @@ from __future__ import annotations
 import argparse
 import datetime as _dt
 import json
-import os
-import shutil
 import sys
-import tempfile
 from pathlib import Path
 from typing import Sequence
 
@@ -189,7 +186,8 @@ def run_show(args: argparse.Namespace) -> int:
     print("signals: o acceptable, ^ warning, [] action, - not scored")
     print(history.DISCLAIMER)
     if args.out:
-        written = write_history_outputs(frame, Path(args.out), lab=args.lab)
+        written = write_history_outputs(frame, Path(args.out), lab=args.lab,
+                                        protect=((archive.archive_path(args.archive), "the archive"),))
         for path in written:
             print(f"wrote {path}")
     return 0
@@ -202,22 +200,21 @@ def _series_groups(frame: pd.DataFrame) -> list[tuple[str, pd.DataFrame]]:
     return groups
 
 
-def write_history_outputs(frame: pd.DataFrame, out: Path, *, lab: str) -> list[Path]:
-    """Write ``history.xlsx``, ``history.png`` and ``history.svg`` into ``out``.
+def write_history_outputs(frame: pd.DataFrame, out: Path, *, lab: str,
+                          protect: tuple[tuple[Path, str], ...] = ()) -> list[Path]:
+    """Write ``history.xlsx``, ``history.png`` and ``history.svg`` as the output folder ``out``.
 
-    Files are written into a temporary folder inside ``out`` and moved into
-    place when all are complete.
+    ``out`` is a roundscore output folder (new, empty, or written by an
+    earlier ``history show --out``), replaced whole when all files are
+    complete (:func:`roundscore.io.outfolder.atomic_folder`); ``protect``
+    (the archive) may not lie inside it.
     """
-    out.mkdir(parents=True, exist_ok=True)
-    temp = Path(tempfile.mkdtemp(prefix=".history-", dir=out))
-    try:
-        names = ["history.xlsx", "history.png", "history.svg"]
+    from ..io.outfolder import atomic_folder
+
+    names = ["history.xlsx", "history.png", "history.svg"]
+    with atomic_folder(out, kind="history", protect=protect) as temp:
         _write_workbook(frame, temp / names[0], lab=lab)
         _write_figure(frame, [temp / names[1], temp / names[2]], lab=lab)
-        for name in names:
-            os.replace(temp / name, out / name)
-    finally:
-        shutil.rmtree(temp, ignore_errors=True)
     return [out / n for n in names]
 
 

@@ -38,10 +38,14 @@ def register(sub: argparse._SubParsersAction) -> None:
 
     f = sub.add_parser("forms", help="write one blank submission workbook per participant",
                        description="Write a blank submission form for every lab in the round's participants "
-                                   "file (or for --labs).")
+                                   "file (or for --labs). A file that is already there is kept, never "
+                                   "overwritten, unless --replace is given (it is then renamed NAME.old-N.xlsx).")
     f.add_argument("round", help="round folder or its round.toml")
-    f.add_argument("--out", default=None, help="folder for the forms (default: ROUND/forms)")
+    f.add_argument("--out", default=None, help="folder for the blank forms (default: ROUND/blank-forms); "
+                                               "not the folder the returned forms are read from")
     f.add_argument("--labs", nargs="*", default=None, help="lab codes (default: the participants file)")
+    f.add_argument("--replace", action="store_true",
+                   help="write a new form where one exists; the old file is kept as NAME.old-N.xlsx")
     f.set_defaults(func=run_forms)
 
     c = sub.add_parser("check", help="validate a round folder without writing anything")
@@ -113,7 +117,7 @@ def run_demo(args: argparse.Namespace) -> int:
     out = Path(args.out)
     bar = terminal_bar()
     try:
-        with atomic_folder(out) as tmp:
+        with atomic_folder(out, kind="demo") as tmp:
             make_demo_round(tmp / "round")
             ev = load_and_evaluate(tmp / "round", jobs=args.jobs, progress=bar)
             written = write_outputs(ev, tmp, jobs=args.jobs, progress=bar)
@@ -127,7 +131,6 @@ def run_demo(args: argparse.Namespace) -> int:
 def run_forms(args: argparse.Namespace) -> int:
     from ..io.forms import write_forms
     from ..io.readers import read_participants
-    from ..pipeline import atomic_folder
     from ..round import load_round
 
     rnd = load_round(args.round)
@@ -143,11 +146,41 @@ def run_forms(args: argparse.Namespace) -> int:
                                     "([round] participants = \"participants.csv\") or give --labs",
                                     file=str(rnd.path))
         labs = [(lab, p.name) for lab, p in parts.items()]
-    out = Path(args.out) if args.out else rnd.folder / "forms"
-    with atomic_folder(out) as tmp:
-        paths = write_forms(rnd, labs, tmp)
-    print(f"Wrote {len(paths)} blank submission forms to {out}/")
+    out = Path(args.out) if args.out else rnd.folder / "blank-forms"
+    _check_forms_folder(rnd, out)
+    done = write_forms(rnd, labs, out, replace=args.replace)
+    print(f"Wrote {len(done.written)} blank submission form{'s' if len(done.written) != 1 else ''} to {out}/")
+    for new, old in done.set_aside:
+        print(f"  {new.name}: the file that was there is kept as {old.name}")
+    if done.kept:
+        print(f"Kept {len(done.kept)} existing file{'s' if len(done.kept) != 1 else ''} unchanged "
+              f"(--replace writes new forms and keeps the old files under another name):")
+        for p in done.kept[:20]:
+            print(f"  {p.name}")
+        if len(done.kept) > 20:
+            print(f"  ... and {len(done.kept) - 20} more")
     return 0
+
+
+def _check_forms_folder(rnd, out: Path) -> None:
+    """Blank forms never go where the round reads its results, nor over a file."""
+    from ..io.outfolder import OutputFolderError
+    from ..pipeline import round_inputs
+
+    protect, folders = round_inputs(rnd, for_forms=True)
+    real = out.resolve()
+    if out.exists() and not out.is_dir():
+        raise OutputFolderError(f"forms folder {out} is a file, not a folder; nothing was written")
+    for folder in folders:
+        rf = folder.resolve()
+        if real == rf or rf in real.parents:
+            raise OutputFolderError(
+                f"forms folder {out} is where the round reads its returned forms ([round] results = "
+                f"{rnd.results!r}); blank forms there would be read as results. Nothing was written; "
+                "give --out another folder (the default is ROUND/blank-forms)")
+    for p, what in protect[1:]:  # an input file (a folder holding them is fine: forms never replace a file)
+        if p.resolve() == real:
+            raise OutputFolderError(f"forms folder {out} is {what}, not a folder; nothing was written")
 
 
 def run_check(args: argparse.Namespace) -> int:

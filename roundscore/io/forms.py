@@ -17,6 +17,8 @@ A form has two sheets:
 
 from __future__ import annotations
 
+import os
+import tempfile
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Iterable
@@ -27,7 +29,7 @@ from ..errors import Problem
 from ..round import Round
 from .xlsx import SheetRows
 
-__all__ = ["write_forms", "write_form", "records_from_form", "FORM_FORMAT", "RESULTS_SHEET", "INFO_SHEET"]
+__all__ = ["write_forms", "FormsWritten", "write_form", "records_from_form", "FORM_FORMAT", "RESULTS_SHEET", "INFO_SHEET"]
 
 FORM_FORMAT = 1
 RESULTS_SHEET = "Results"
@@ -126,15 +128,67 @@ def _fixed_time():
     return dt.datetime(2000, 1, 1)
 
 
-def write_forms(rnd: Round, labs: Iterable[tuple[str, str | None]], folder: Path) -> list[Path]:
-    """Write one blank form per (lab code, name) into ``folder``; returns the paths."""
+@dataclass(frozen=True, slots=True, kw_only=True)
+class FormsWritten:
+    """What :func:`write_forms` did: the forms written, the existing files kept, the old files set aside."""
+
+    written: tuple[Path, ...]
+    kept: tuple[Path, ...] = ()
+    set_aside: tuple[tuple[Path, Path], ...] = ()  # (form written, where the file it replaced now is)
+
+
+def write_forms(rnd: Round, labs: Iterable[tuple[str, str | None]], folder: Path, *,
+                replace: bool = False) -> FormsWritten:
+    """Write one blank form per (lab code, name) into ``folder``.
+
+    An existing file of the same name is never overwritten: it is kept and
+    reported, or with ``replace`` renamed to ``NAME.old-N.xlsx`` (the first
+    unused N) before the new form takes its name. Each form is written to a
+    temporary name first and renamed when complete.
+    """
     folder.mkdir(parents=True, exist_ok=True)
-    paths = []
+    written, kept, aside = [], [], []
     for lab, name in labs:
         p = folder / f"{rnd.id}-{_safe(lab)}.xlsx"
-        write_form(rnd, lab, p, name=name)
-        paths.append(p)
-    return paths
+        if p.exists() or p.is_symlink():
+            if not replace:
+                kept.append(p)
+                continue
+        fd, tmp_name = tempfile.mkstemp(prefix=f".{p.stem}.partial-", suffix=".xlsx", dir=folder)
+        os.close(fd)
+        tmp = Path(tmp_name)
+        try:
+            write_form(rnd, lab, tmp, name=name)
+            if p.exists() or p.is_symlink():
+                n = 1
+                while (backup := p.with_name(f"{p.stem}.old-{n}{p.suffix}")).exists() or backup.is_symlink():
+                    n += 1
+                os.rename(p, backup)  # the old file keeps its content under a new name
+                aside.append((p, backup))
+            _place(tmp, p)
+        except FileExistsError:  # a file of that name appeared while the form was written: it is kept
+            tmp.unlink(missing_ok=True)
+            kept.append(p)
+            continue
+        except BaseException:
+            tmp.unlink(missing_ok=True)  # our own temporary file
+            raise
+        written.append(p)
+    return FormsWritten(written=tuple(written), kept=tuple(kept), set_aside=tuple(aside))
+
+
+def _place(tmp: Path, dest: Path) -> None:
+    """Give ``tmp`` the name ``dest``, failing with FileExistsError rather than replacing a file there."""
+    try:
+        os.link(tmp, dest)  # fails if dest exists, unlike rename
+    except FileExistsError:
+        raise
+    except OSError:  # a file system without hard links
+        if dest.exists():
+            raise FileExistsError(dest) from None
+        os.rename(tmp, dest)
+        return
+    tmp.unlink()
 
 
 def _safe(text: str) -> str:

@@ -22,6 +22,7 @@ from pathlib import Path
 from typing import Callable, Sequence
 
 from ..errors import InputError, Problem
+from ..processes import context, worker_started
 from .safety import DEFAULT_LIMITS, MiB, ReadLimits
 
 __all__ = ["ReadFailure", "FileRows", "read_many", "resolve_read_jobs", "READER_HOOK_ENV", "BATCH_FILES"]
@@ -143,14 +144,14 @@ def _limit_memory(extra: int) -> None:
 
 
 def _worker(conn, progress, limits: ReadLimits, reader: Reader | None,
-            then: Callable[[FileRows], object] | None) -> None:
+            then: Callable[[FileRows], object] | None, parent_pid: int) -> None:
     """Worker loop: receive a batch ``[(index, path, sheets)]``, send back its results as one list.
 
     Before each file it writes ``(index, start time)`` into the shared
     ``progress`` array, so the parent knows which file a dead or hung worker
     was on without a message per file.
     """
-    signal.signal(signal.SIGINT, signal.SIG_IGN)  # the parent handles ^C and ends its workers
+    worker_started(parent_pid)  # ends with the parent; the parent handles ^C and SIGTERM and ends its workers
     import faulthandler
 
     faulthandler.disable()  # a crash here is reported by the parent as a ReadFailure, not a dump
@@ -182,11 +183,6 @@ class _Slot:
     conn: object
     progress: object  # shared array: index of the file being read, its start time
     batch: list = field(default_factory=list)
-
-
-def _context():
-    methods = mp.get_all_start_methods()
-    return mp.get_context("fork" if "fork" in methods else "spawn")
 
 
 def _died(process) -> str:
@@ -277,13 +273,14 @@ def read_many(paths: Sequence[str | Path], sheets: str | None | Sequence[str | N
     size = max(1, min(BATCH_FILES, -(-len(items) // (n_workers * _BATCHES_PER_WORKER))))
     queue = [items[i:i + size] for i in range(0, len(items), size)]
     queue.reverse()  # pop() from the end gives the batches in order
-    ctx = _context()
+    ctx = context()
     slots: list[_Slot] = []
 
     def start() -> None:
         parent, child = ctx.Pipe(duplex=True)
         shared_progress = ctx.RawArray("d", 2)
-        proc = ctx.Process(target=_worker, args=(child, shared_progress, limits, _reader, then), daemon=True)
+        proc = ctx.Process(target=_worker, args=(child, shared_progress, limits, _reader, then, os.getpid()),
+                           daemon=True)
         proc.start()
         child.close()
         slot = _Slot(process=proc, conn=parent, progress=shared_progress)
