@@ -15,12 +15,13 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Callable, Iterator
 
+from .errors import RoundscoreError
 from .evaluate import AUDIT_COLUMNS, SCORE_COLUMNS, STATISTICS_COLUMNS, RoundEvaluation, evaluate
 from .io.csvout import write_csv
 from .io.readers import read_participants, read_results
 from .io.workbook import lab_payload, write_lab_workbook, write_summary
 from .parallel import run_batches, shared
-from .round import Round, load_round
+from .round import Round, load_round, with_warnings
 
 __all__ = ["run_round", "write_outputs", "atomic_folder", "Outputs", "load_and_evaluate"]
 
@@ -68,9 +69,12 @@ def load_and_evaluate(round_path: str | Path, *, jobs: int | None = None,
     the table does not depend on it.
     """
     rnd = load_round(round_path)
-    table = read_results(rnd, jobs=jobs, progress=progress)
-    participants = read_participants(rnd)
-    return evaluate(rnd, table, participants)
+    try:
+        table = read_results(rnd, jobs=jobs, progress=progress)
+        participants = read_participants(rnd)
+        return evaluate(rnd, table, participants)
+    except RoundscoreError as exc:  # the round file's warnings (unknown keys...) still reach the user
+        raise with_warnings(exc, rnd.warnings)
 
 
 #: Lab sheets per task sent to a worker: fixed (not tied to the number of jobs) and small enough that the

@@ -127,6 +127,7 @@ def test_precision_unchanged_by_a_constant(cells, c):
 ROUND = """\
 [round]
 id = "UNIT-1"
+decimal = "point"
 [measurand.pb]
 unit = "{unit}"
 assigned = "algorithm-a"

@@ -25,7 +25,8 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--replace-archive", action="store_true",
                    help="replace the round in the archive when its stored content differs "
                         "(the old rows are kept in the archive's audit table)")
-    p.add_argument("--strict", action="store_true", help="exit 1 when an item or u(x_pt) check fails")
+    p.add_argument("--strict", action="store_true",
+                   help="exit 1 when an item or u(x_pt) check fails (the outputs are written either way)")
     p.add_argument("--jobs", type=int, default=None, help="worker processes (default: all cores)")
     p.add_argument("--quiet", action="store_true", help="print nothing but errors")
     p.set_defaults(func=run_score)
@@ -44,7 +45,9 @@ def register(sub: argparse._SubParsersAction) -> None:
     f.add_argument("--labs", nargs="*", default=None, help="lab codes (default: the participants file)")
     f.set_defaults(func=run_forms)
 
-    c = sub.add_parser("check", help="validate a round folder without writing anything")
+    c = sub.add_parser("check", help="validate a round folder without writing anything",
+                       description="Read and evaluate the round as score would, print the summary and write "
+                                   "nothing. Exits 1 when an item or u(x_pt) check fails, 2 on an error.")
     c.add_argument("round", help="round folder or its round.toml")
     c.set_defaults(func=run_check)
 
@@ -155,5 +158,15 @@ def run_check(args: argparse.Namespace) -> int:
 
     ev = load_and_evaluate(args.round)
     print(summary_text(ev))
+    failed = ev.failed_checks
+    if failed:
+        print(f"\nThe round file and results are valid, but {_checks(len(failed))} failed (listed above); "
+              "nothing was written.")
+        print("roundscore: check: checks failed: " + "; ".join(failed), file=sys.stderr)
+        return 1
     print("\nThe round file and results are valid; nothing was written.")
     return 0
+
+
+def _checks(n: int) -> str:
+    return "1 check" if n == 1 else f"{n} checks"

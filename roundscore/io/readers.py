@@ -9,7 +9,7 @@ from pathlib import Path
 from ..errors import InputError, Problem
 from ..round import Round
 from ..table import ResultTable, build_table, records_from_long, table_frame, validate_records
-from .forms import INFO_SHEET, RESULTS_SHEET, records_from_form
+from .forms import INFO_SHEET, RESULTS_SHEET, form_decimal, records_from_form
 from .xlsx import SheetRows, read_rows
 
 __all__ = ["read_results", "read_participants", "Participant", "read_item_table"]
@@ -28,17 +28,39 @@ def _is_form(path: Path) -> bool:
     return path.suffix.lower() in (".xlsx", ".xlsm")
 
 
+_MARK_WORDS = {"comma": "a decimal comma ('.' taken as a thousands separator only in groups of three)",
+               "point": "a decimal point (',' taken as a thousands separator only in groups of three)"}
+
+
+def round_reading(rnd: Round) -> tuple[tuple[str, str], ...]:
+    """The audit line on how the round's text cells are read, when round.toml declares the decimal mark."""
+    if rnd.decimal is None:
+        return ()
+    return (("", f"numbers typed as text read with {_MARK_WORDS[rnd.decimal]}, as round.toml declares "
+                 f"([round] decimal = \"{rnd.decimal}\"); numbers stored as numbers read as stored"),)
+
+
+def form_reading(rnd: Round, results: SheetRows, info: SheetRows, lab: str | None) -> list[tuple[str, str]]:
+    """The audit line of one form whose own decimal mark differs from the round's (none when it agrees)."""
+    declared, _ = form_decimal(results, info)
+    if declared is None or declared.mark == rnd.decimal:
+        return []
+    return [(lab or "", f"{results.file}: numbers typed as text read with {_MARK_WORDS[declared.mark]}, "
+                        f"as the form declares ({declared.source})")]
+
+
 def _read_form(rnd: Round, path: Path):
     """One returned form given as the round's single results file (read in isolation)."""
     shown = _shown(rnd, path)
     (got,) = _read_sheets([str(path)], rnd.limits)
     if not isinstance(got, tuple):  # a ReadFailure or an InputError
         probs = got.as_problems() if hasattr(got, "as_problems") else list(got.problems)
-        return [], [_with_file(p, shown) for p in probs], ()
+        return [], [_with_file(p, shown) for p in probs], (), []
     results, info = got
     results = SheetRows(file=shown, sheet=results.sheet, rows=results.rows, warnings=results.warnings)
     recs, problems = records_from_form(rnd, results, info)
-    return recs, problems, results.warnings + info.warnings
+    lab = str(recs[0].lab) if recs else None
+    return recs, problems, results.warnings + info.warnings, form_reading(rnd, results, info, lab)
 
 
 def read_results(rnd: Round, *, jobs: int | None = None, progress=None) -> ResultTable:
@@ -55,6 +77,7 @@ def read_results(rnd: Round, *, jobs: int | None = None, progress=None) -> Resul
     records: list = []
     problems: list[Problem] = []
     warnings: list[str] = []
+    readings: list[tuple[str, str]] = list(round_reading(rnd))
     single_table = len(files) == 1 and not (Path(rnd.folder / rnd.results).is_dir()
                                             or any(ch in rnd.results for ch in "*?["))
     if not single_table:
@@ -69,19 +92,22 @@ def read_results(rnd: Round, *, jobs: int | None = None, progress=None) -> Resul
             sheet = got.sheets[0]
             sheet = SheetRows(file=shown, sheet=sheet.sheet, rows=sheet.rows, warnings=sheet.warnings)
             if sheet.sheet and INFO_SHEET in _sheet_names(f):
-                recs, probs, warns = _read_form(rnd, f)
+                recs, probs, warns, notes = _read_form(rnd, f)
+                readings += notes
             else:
                 recs, probs = records_from_long(sheet)
                 warns = sheet.warnings
         elif _is_form(f):
-            recs, probs, warns = _read_form(rnd, f)
+            recs, probs, warns, notes = _read_form(rnd, f)
+            readings += notes
         else:
             probs = [Problem(message="not a submission workbook (.xlsx)", file=shown)]
             recs, warns = [], ()
         records += recs
         problems += probs
         warnings += list(warns)
-    return build_table(rnd, records, files=[_shown(rnd, f) for f in files], warnings=warnings, problems=problems)
+    return build_table(rnd, records, files=[_shown(rnd, f) for f in files], warnings=warnings, problems=problems,
+                       readings=readings)
 
 
 def _read_forms(rnd: Round, files: list[Path], *, jobs: int | None, progress) -> ResultTable:
@@ -106,34 +132,48 @@ def _read_forms(rnd: Round, files: list[Path], *, jobs: int | None, progress) ->
                                      then=functools.partial(_form_rows, rnd), progress=report)))
     problems: list[Problem] = []
     warnings: list[str] = []
+    readings: list[tuple[str, str]] = list(round_reading(rnd))
     rows: list[tuple] = []
     shown = [_shown(rnd, Path(p)) for p in paths]
     for p, name in zip(paths, shown):
         got = read.get(p)
         if got is None:
-            problems.append(Problem(message="not a submission workbook (.xlsx)", file=name))
+            problems.append(Problem(message="not a submission workbook (.xlsx)", file=name,
+                                    hint="the results folder holds returned forms (.xlsx) only"))
         elif isinstance(got, _FormRows):
             rows += got.rows
             problems += got.problems
             warnings += got.warnings
+            readings += got.readings
         else:  # a ReadFailure: refused, crashed, out of memory or timed out
             problems += [_with_file(q, name) for q in got.as_problems()]
     del read
     frame = table_frame(rows)
-    dup = frame.duplicated(["lab", "measurand", "replicate"], keep="first").to_numpy()
-    if dup.any():
-        first = frame[~dup].set_index(["lab", "measurand", "replicate"])
-        for r in frame[dup].itertuples(index=False):
-            f = first.loc[(r.lab, r.measurand, r.replicate)]
-            problems.append(Problem(
-                message=f"duplicate result for lab {r.lab}, {r.measurand}, replicate {r.replicate} "
-                        f"(also in {f['file']}" + (f" sheet {f['sheet']!r}" if f["sheet"] else "") +
-                        f" row {f['row']})",
-                file=r.file, sheet=r.sheet, row=int(r.row), column="replicate", lab=r.lab,
-                measurand=r.measurand, value=int(r.replicate)))
+    problems += _duplicate_forms(frame)
     if problems:
         raise InputError(problems, summary="the results cannot be imported")
-    return ResultTable(frame=frame, files=tuple(shown), warnings=tuple(warnings))
+    return ResultTable(frame=frame, files=tuple(shown), warnings=tuple(warnings), readings=tuple(readings))
+
+
+def _duplicate_forms(frame) -> list[Problem]:
+    """One problem per form whose results repeat those of an earlier form (the same lab code twice).
+
+    A lab's second form repeats every result of its first: that is one
+    problem, said once with both files, not one per result.
+    """
+    dup = frame.duplicated(["lab", "measurand", "replicate"], keep="first").to_numpy()
+    if not dup.any():
+        return []
+    first = frame[~dup].set_index(["lab", "measurand", "replicate"])["file"]
+    found: dict[tuple[str, str, str], int] = {}
+    for r in frame[dup].itertuples(index=False):
+        key = (r.file, r.lab, first.loc[(r.lab, r.measurand, r.replicate)])
+        found[key] = found.get(key, 0) + 1
+    return [Problem(message=f"lab {lab} already returned results in {other}: {n} result"
+                            f"{'s' if n != 1 else ''} of this form give a measurand and replicate again",
+                    file=file, lab=lab,
+                    hint="keep one form per lab: remove the extra form, or correct its laboratory code")
+            for (file, lab, other), n in found.items()]
 
 
 @dataclass(frozen=True, slots=True)
@@ -143,6 +183,7 @@ class _FormRows:
     rows: list
     problems: list
     warnings: list
+    readings: list
 
 
 def _read_sheets(paths: list[str], limits) -> list:
@@ -160,7 +201,9 @@ def _form_rows(rnd: Round, got) -> _FormRows:
     results = SheetRows(file=shown, sheet=results.sheet, rows=results.rows, warnings=results.warnings)
     records, problems = records_from_form(rnd, results, info)
     rows, found = validate_records(rnd, records)
-    return _FormRows(rows=rows, problems=problems + found, warnings=list(results.warnings + info.warnings))
+    readings = form_reading(rnd, results, info, str(records[0].lab) if records else None)
+    return _FormRows(rows=rows, problems=problems + found, warnings=list(results.warnings + info.warnings),
+                     readings=readings)
 
 
 def _with_file(problem: Problem, shown: str) -> Problem:
