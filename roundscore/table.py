@@ -16,8 +16,8 @@ from typing import Iterable
 import numpy as np
 import pandas as pd
 
-from .cells import HINT_NUMBER, CellError, parse_cell
-from .errors import InputError, Problem, cell_ref, place
+from .cells import HINT_DECLARE, HINT_NUMBER, CellError, parse_cell
+from .errors import InputError, Problem, cell_ref, is_text_file, place, sheet_cell, shown_value
 from .io.xlsx import SheetRows
 from .round import Round
 from .units import UnitError, factor
@@ -203,11 +203,65 @@ def build_table(
         results where the measurand allows none, bad uncertainties.
     """
     rows, found = validate_records(rnd, records)
-    problems = list(problems) + found
+    problems = summarise_ambiguous(list(problems) + found)
     if problems:
         raise InputError(problems, summary="the results cannot be imported")
     return ResultTable(frame=table_frame(rows), files=tuple(files), warnings=tuple(warnings),
                        readings=tuple(readings))
+
+
+#: Ambiguous numbers of one column listed one by one; more are said in one problem naming all their places.
+MAX_LISTED_AMBIGUOUS = 5
+
+
+def summarise_ambiguous(problems: list[Problem]) -> list[Problem]:
+    """Many numbers of one column that can be read two ways (a file typed with 20.310, 19.820 ...) as one problem.
+
+    Up to :data:`MAX_LISTED_AMBIGUOUS` of a column are listed as they are;
+    beyond that, one problem gives their number, the first of them and every
+    place (lines 2-241, or Results!D2:D241), where the first one was.
+    """
+    groups: dict[tuple, list[int]] = {}
+    for i, p in enumerate(problems):
+        if p.hint == HINT_DECLARE:
+            groups.setdefault((p.file, p.sheet, p.column), []).append(i)
+    replaced: dict[int, Problem | None] = {}
+    for (file, sheet, column), idx in groups.items():
+        if len(idx) <= MAX_LISTED_AMBIGUOUS:
+            continue
+        group = [problems[i] for i in idx]
+        first = group[0]
+        here = (f"line {first.row}" if is_text_file(first.file, first.sheet)
+                else place(None, first.sheet, first.row, first.cell))
+        replaced.update(dict.fromkeys(idx[1:]))
+        replaced[idx[0]] = Problem(
+            message=f"{len(group)} numbers typed as text can be read two ways, for example "
+                    f"{shown_value(first.value)} ({here}): {first.message}; all at {_places(group)}",
+            file=file, sheet=None if first.cell else sheet, column=column, hint=HINT_DECLARE)
+    if not replaced:
+        return problems
+    return [replaced.get(i, p) for i, p in enumerate(problems) if replaced.get(i, p) is not None]
+
+
+def _places(group: list[Problem], most: int = 12) -> str:
+    """Rows of one column as ranges: ``lines 2-30, 35`` or ``Results!D2:D30, D35``."""
+    rows = sorted({p.row for p in group if p.row is not None})
+    spans: list[tuple[int, int]] = []
+    for r in rows:
+        if spans and r == spans[-1][1] + 1:
+            spans[-1] = (spans[-1][0], r)
+        else:
+            spans.append((r, r))
+    first = group[0]
+    letters = (first.cell or "").rstrip("0123456789")
+    if first.cell and first.sheet:
+        parts = [f"{letters}{a}" if a == b else f"{letters}{a}:{letters}{b}" for a, b in spans[:most]]
+        parts[0] = sheet_cell(first.sheet, parts[0])
+    else:
+        parts = [str(a) if a == b else f"{a}-{b}" for a, b in spans[:most]]
+        parts[0] = ("lines " if is_text_file(first.file, first.sheet) else "rows ") + parts[0]
+    more = f" and {len(spans) - most} more" if len(spans) > most else ""
+    return ", ".join(parts) + more
 
 
 def table_frame(rows: list[tuple]) -> pd.DataFrame:

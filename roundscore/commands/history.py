@@ -148,9 +148,9 @@ def refused_summary(refused: int, total: int) -> str:
     if refused == total:
         return f"All {total} files were refused; nothing was stored from them."
     left = total - refused
-    was = "file was" if refused == 1 else "files were"
+    was = "was" if refused == 1 else "were"
     rest = "the other file is in the archive" if left == 1 else f"the other {left} are in the archive"
-    return f"{refused} of {total} {was} refused; {rest} (see each file's line above)."
+    return f"{refused} of {total} files {was} refused; {rest} (see each file's line above)."
 
 
 # --------------------------------------------------------------------------- show

@@ -3,12 +3,12 @@
 from __future__ import annotations
 
 import functools
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 
 from ..errors import InputError, Problem
 from ..round import Round
-from ..table import ResultTable, build_table, records_from_long, table_frame, validate_records
+from ..table import ResultTable, build_table, records_from_long, summarise_ambiguous, table_frame, validate_records
 from .forms import INFO_SHEET, RESULTS_SHEET, form_decimal, records_from_form
 from .xlsx import SheetRows, read_rows
 
@@ -57,7 +57,7 @@ def _read_form(rnd: Round, path: Path):
         probs = got.as_problems() if hasattr(got, "as_problems") else list(got.problems)
         return [], [_with_file(p, shown) for p in probs], (), []
     results, info = got
-    results = SheetRows(file=shown, sheet=results.sheet, rows=results.rows, warnings=results.warnings)
+    results = replace(results, file=shown)
     recs, problems = records_from_form(rnd, results, info)
     lab = str(recs[0].lab) if recs else None
     return recs, problems, results.warnings + info.warnings, form_reading(rnd, results, info, lab)
@@ -90,7 +90,7 @@ def read_results(rnd: Round, *, jobs: int | None = None, progress=None) -> Resul
                 problems += [_with_file(p, shown) for p in got.as_problems()]
                 continue
             sheet = got.sheets[0]
-            sheet = SheetRows(file=shown, sheet=sheet.sheet, rows=sheet.rows, warnings=sheet.warnings)
+            sheet = replace(sheet, file=shown)
             if sheet.sheet and INFO_SHEET in _sheet_names(f):
                 recs, probs, warns, notes = _read_form(rnd, f)
                 readings += notes
@@ -149,7 +149,7 @@ def _read_forms(rnd: Round, files: list[Path], *, jobs: int | None, progress) ->
             problems += [_with_file(q, name) for q in got.as_problems()]
     del read
     frame = table_frame(rows)
-    problems += _duplicate_forms(frame)
+    problems = summarise_ambiguous(problems + _duplicate_forms(frame))
     if problems:
         raise InputError(problems, summary="the results cannot be imported")
     return ResultTable(frame=frame, files=tuple(shown), warnings=tuple(warnings), readings=tuple(readings))
@@ -198,7 +198,7 @@ def _form_rows(rnd: Round, got) -> _FormRows:
     """Worker side of :func:`_read_forms`: one form's two sheets turned into validated rows."""
     results, info = got.sheets
     shown = _shown(rnd, Path(got.file))
-    results = SheetRows(file=shown, sheet=results.sheet, rows=results.rows, warnings=results.warnings)
+    results = replace(results, file=shown)
     records, problems = records_from_form(rnd, results, info)
     rows, found = validate_records(rnd, records)
     readings = form_reading(rnd, results, info, str(records[0].lab) if records else None)
@@ -207,8 +207,6 @@ def _form_rows(rnd: Round, got) -> _FormRows:
 
 
 def _with_file(problem: Problem, shown: str) -> Problem:
-    from dataclasses import replace
-
     return replace(problem, file=shown)
 
 
@@ -249,20 +247,22 @@ def read_participants(rnd: Round) -> dict[str, Participant]:
         return {}
     shown = _shown(rnd, rnd.participants)
     sheet = _read_table(rnd, rnd.participants, shown)
-    rows = [r for r in sheet.rows if any(c is not None for c in r)]
-    if not rows:
+    # Rows as the person numbers them in the file (blank rows skipped, not renumbered).
+    numbered = [(sheet.row_number(i), r) for i, r in enumerate(sheet.rows) if any(c is not None for c in r)]
+    if not numbered:
         raise InputError.single("the participants file is empty", file=shown)
-    header = [str(c).strip().lower() if c is not None else "" for c in rows[0]]
+    head_row, head = numbered[0]
+    header = [str(c).strip().lower() if c is not None else "" for c in head]
     if "lab" not in header:
         raise InputError.single(
             f"the participants file needs a 'lab' column (and 'name', 'contact'); found: {', '.join(header)}",
-            file=shown, row=1)
+            file=shown, sheet=sheet.sheet, row=head_row)
     il = header.index("lab")
     iname = header.index("name") if "name" in header else None
     icontact = header.index("contact") if "contact" in header else None
     out: dict[str, Participant] = {}
     problems = []
-    for i, r in enumerate(rows[1:], start=2):
+    for i, r in numbered[1:]:
         def cell(j):
             if j is None or j >= len(r) or r[j] is None:
                 return ""
@@ -270,10 +270,11 @@ def read_participants(rnd: Round) -> dict[str, Participant]:
             return str(int(v)) if isinstance(v, float) and v.is_integer() else str(v).strip()
         lab = cell(il)
         if not lab:
-            problems.append(Problem(message="the lab code is empty", file=shown, row=i))
+            problems.append(Problem(message="the lab code is empty", file=shown, sheet=sheet.sheet, row=i))
             continue
         if lab in out:
-            problems.append(Problem(message="the lab appears twice", file=shown, row=i, lab=lab))
+            problems.append(Problem(message="the lab appears twice", file=shown, sheet=sheet.sheet, row=i,
+                                    lab=lab))
             continue
         out[lab] = Participant(lab=lab, name=cell(iname), contact=cell(icontact))
     if problems:
@@ -287,7 +288,7 @@ def read_item_table(rnd: Round, path: Path, *, what: str) -> SheetRows:
         raise InputError.single(f"the {what} file named in the round file was not found", file=_shown(rnd, path))
     shown = _shown(rnd, path)
     sheet = _read_table(rnd, path, shown)
-    return SheetRows(file=shown, sheet=sheet.sheet, rows=sheet.rows, warnings=sheet.warnings)
+    return replace(sheet, file=shown)
 
 
 def _read_table(rnd: Round, path: Path, shown: str) -> SheetRows:
