@@ -4,8 +4,9 @@ Labs type results in many ways. What is accepted (and what each becomes):
 
 ========================  ==========================================
 ``8.2``, ``8,2``          a value (decimal point or decimal comma)
-``1 234.5``, ``1,234.5``  a value (thousands separators: space, no-break
-                          space, thin space, comma or point)
+``1 234.5``, ``1'234,5``  a value (thousands in groups of three: space,
+                          no-break space, thin space, apostrophe, and a
+                          comma or point as described below)
 ``1.2e-3``, ``1,2E-3``    a value (exponent notation)
 ``−0.4`` (U+2212)         a value (Unicode minus)
 ``<0.5``, ``< 0,5``       censored below 0.5 ("less than")
@@ -14,11 +15,28 @@ Labs type results in many ways. What is accepted (and what each becomes):
 blank                     not reported
 ========================  ==========================================
 
+**Numbers that read two ways.** A comma or point can be the decimal mark
+or a thousands separator. Text is refused with :class:`AmbiguousNumber`
+when both readings are numbers: one mark followed by exactly three digits
+after a first group of one to three digits not starting with 0 (``1,234``,
+``1.234``, ``12,345``), or both marks (``1.234,5``, ``1,234.5``). Text with
+one reading is read so: ``4,75``, ``0,838`` (no thousands group starts
+with 0), ``1234,567`` (four digits before the mark), ``1 234,5`` (spaces
+group the thousands, so the comma is the decimal mark), ``1,234,567`` (a
+repeated mark only groups thousands), ``1,234E3`` (a mantissa is not
+grouped). With a declared decimal mark (``decimal="comma"`` or ``"point"``,
+from ``[round] decimal`` or a form's own setting) the two-way text is read
+by it and the other mark groups thousands; text that contradicts it
+(``1.234,5`` with a point) is refused. Numbers stored as numbers are never
+ambiguous. Spaces inside the digits other than thousands groups (``0,4 2``)
+are refused: two results in one cell, or a slip.
+
 Anything else (other text, ``inf``, ``nan``, a date typed into the cell,
 TRUE/FALSE, control characters, digits of scripts other than ASCII, text
 longer than :data:`MAX_CELL_TEXT`) raises :class:`CellError` (and nothing
 else does), which the table builder turns into a
-:class:`~roundscore.errors.Problem` with the file, sheet, row and value.
+:class:`~roundscore.errors.Problem` with the file, the cell and the value;
+the error's ``hint`` says what to do.
 """
 
 from __future__ import annotations

@@ -296,3 +296,20 @@ def test_sheet_names_are_quoted_as_a_spreadsheet_writes_them():
     assert str(Problem(message="x", file="r.csv", row=3, column="value")) == "r.csv, line 3, column 'value': x"
     assert str(Problem(message="x", file="r.xlsx", sheet="Data", row=3, column="value")) == \
         "r.xlsx, sheet 'Data', row 3, column 'value': x"
+
+
+@pytest.mark.parametrize("extra, ok", [('decimal = "comma"', True), ("", False)])
+def test_item_tables_follow_the_rounds_decimal_mark(make_round, extra, ok):
+    from roundscore.stages.items import read_item_values
+
+    toml = LONG_TOML.format(extra=extra) + 'homogeneity = "hom.csv"\n'
+    hom = "item,replicate,value\n" + "".join(f"B{i},{r},\"10,{100 + 10 * i + r}\"\n"
+                                             for i in range(1, 6) for r in (1, 2))
+    folder = make_round(toml, None, hom__csv=hom)
+    rnd = load_round(folder)
+    if ok:
+        table = read_item_values(rnd, rnd.measurands["cu"], "homogeneity")
+        assert table.values[0] == pytest.approx(10.111)  # "10,111" with a decimal comma
+    else:
+        with pytest.raises(InputError, match=r"hom.csv, column 'value'.*10 numbers typed as text can be read two"):
+            read_item_values(rnd, rnd.measurands["cu"], "homogeneity")

@@ -28,16 +28,17 @@ def _is_form(path: Path) -> bool:
     return path.suffix.lower() in (".xlsx", ".xlsm")
 
 
-_MARK_WORDS = {"comma": "a decimal comma ('.' taken as a thousands separator only in groups of three)",
-               "point": "a decimal point (',' taken as a thousands separator only in groups of three)"}
+_MARK_WORDS = {"comma": "a decimal comma (1,234 is 1.234 and 1.234 is 1234)",
+               "point": "a decimal point (1,234 is 1234 and 1.234 is 1.234)"}
 
 
 def round_reading(rnd: Round) -> tuple[tuple[str, str], ...]:
     """The audit line on how the round's text cells are read, when round.toml declares the decimal mark."""
     if rnd.decimal is None:
         return ()
-    return (("", f"numbers typed as text read with {_MARK_WORDS[rnd.decimal]}, as round.toml declares "
-                 f"([round] decimal = \"{rnd.decimal}\"); numbers stored as numbers read as stored"),)
+    return (("", f"numbers typed as text that could be read two ways read with {_MARK_WORDS[rnd.decimal]}, "
+                 f"as round.toml declares ([round] decimal = \"{rnd.decimal}\"); numbers with one reading "
+                 "(4,75) and numbers stored as numbers read as they are"),)
 
 
 def form_reading(rnd: Round, results: SheetRows, info: SheetRows, lab: str | None) -> list[tuple[str, str]]:
@@ -45,8 +46,8 @@ def form_reading(rnd: Round, results: SheetRows, info: SheetRows, lab: str | Non
     declared, _ = form_decimal(results, info)
     if declared is None or declared.mark == rnd.decimal:
         return []
-    return [(lab or "", f"{results.file}: numbers typed as text read with {_MARK_WORDS[declared.mark]}, "
-                        f"as the form declares ({declared.source})")]
+    return [(lab or "", f"{results.file}: numbers typed as text that could be read two ways read with "
+                        f"{_MARK_WORDS[declared.mark]}, as the form declares ({declared.source})")]
 
 
 def _read_form(rnd: Round, path: Path):

@@ -65,7 +65,7 @@ from ..io.readers import read_item_table
 from ..io.xlsx import SheetRows
 from ..round import MeasurandSettings, Round
 from ..stats import items as st
-from ..table import cell_label
+from ..table import cell_label, summarise_ambiguous
 from ..units import UnitError, factor
 
 __all__ = [
@@ -402,7 +402,7 @@ def _parse(sheet: SheetRows, m: MeasurandSettings, kind: TableKind,
     if not problems:
         _check_layout(kind, items, sets, where, set_names, bad)
     if problems:
-        raise InputError(problems, summary=f"the {kind} table for {m.name} cannot be used")
+        raise InputError(summarise_ambiguous(problems), summary=f"the {kind} table for {m.name} cannot be used")
     return ItemTable(
         file=sheet.file, kind=kind, items=tuple(items), replicates=tuple(reps),
         values=np.asarray(values, dtype=float), sets=tuple(sets) if kind == "stability" else None,
