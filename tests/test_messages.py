@@ -144,7 +144,9 @@ def test_the_forms_decimal_mark_cell_is_written_and_checked(tmp_path):
     (folder / "round.toml").write_text(FORMS_TOML.format(extra='decimal = "point"'), encoding="utf-8")
     path = _form(folder, "E5", {})
     wb = openpyxl.load_workbook(path)
-    assert wb[RESULTS_SHEET][DECIMAL_CELL].value == "point (12.5)"  # prefilled from [round] decimal
+    assert wb[RESULTS_SHEET][DECIMAL_CELL].value == "point"  # prefilled from [round] decimal
+    lists = [d for d in wb[RESULTS_SHEET].data_validations.dataValidation if d.type == "list"]
+    assert [d.formula1 for d in lists] == ['"point,comma"'] and str(lists[0].sqref) == DECIMAL_CELL
     assert wb[RESULTS_SHEET][DECIMAL_CELL].protection.locked is False  # the lab can change it
     info = {r[0].value: r[1].value for r in wb["form-info"].iter_rows(min_row=2)}
     assert info["decimal"] == "point" and info["decimal_cell"] == DECIMAL_CELL

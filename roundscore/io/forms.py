@@ -47,8 +47,9 @@ HEADER_ROW = 9  # 1-based row of the table header
 FIRST_ROW = HEADER_ROW + 1
 #: The cell of the heading block where a lab states the decimal mark of its text cells.
 DECIMAL_CELL = "B8"
-#: The choices offered in that cell; the reader takes the first word.
-DECIMAL_CHOICES = {"point": "point (12.5)", "comma": "comma (12,5)"}
+#: The choices offered in that cell (a spreadsheet's list is comma-separated, so no examples in them);
+#: the reader takes the first word of what the cell holds.
+DECIMAL_CHOICES = {"point": "point", "comma": "comma"}
 
 
 def _columns(replicates: int) -> list[str]:
@@ -91,7 +92,8 @@ def write_form(rnd: Round, lab: str, path: Path, *, name: str | None = None,
         "input_title": "Decimal mark",
         "input_message": "Only for results typed as text (such as <0,05): is the decimal mark a point or a comma?",
         "error_message": "Choose point or comma, or leave the cell blank."})
-    ws.write(drow, dcol + 1, "only needed for numbers typed as text, such as <0,05", note)
+    ws.write(drow, dcol + 1, "point: 12.5, comma: 12,5 (only needed for numbers typed as text, such as <0,05)",
+             note)
     cols = _columns(reps)
     for j, c in enumerate(cols):
         ws.write(HEADER_ROW - 1, j, c, head)
