@@ -169,4 +169,4 @@ def test_lab_returned_twice_across_batches_is_a_duplicate(big, tmp_path, monkeyp
     # One problem for the repeated form, naming both files (not one per repeated result).
     assert len(probs) == 1 and probs[0].lab == "L0001"
     assert probs[0].file == "forms/zz-returned-again.xlsx"
-    assert f"lab L0001 already returned results in forms/{forms[0].name}" in probs[0].message
+    assert f"lab L0001 returned two forms: this one and forms/{forms[0].name}" in probs[0].message

@@ -170,8 +170,8 @@ def _duplicate_forms(frame) -> list[Problem]:
     for r in frame[dup].itertuples(index=False):
         key = (r.file, r.lab, first.loc[(r.lab, r.measurand, r.replicate)])
         found[key] = found.get(key, 0) + 1
-    return [Problem(message=f"lab {lab} already returned results in {other}: {n} result"
-                            f"{'s' if n != 1 else ''} of this form give a measurand and replicate again",
+    return [Problem(message=f"lab {lab} returned two forms: this one and {other} ({n} result"
+                            f"{'s' if n != 1 else ''} given in both)",
                     file=file, lab=lab,
                     hint="keep one form per lab: remove the extra form, or correct its laboratory code")
             for (file, lab, other), n in found.items()]
