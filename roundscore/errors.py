@@ -223,7 +223,7 @@ class RoundFileError(InputError):
 
     @classmethod
     def key(cls, file: str, key: str, found: object, allowed: str) -> "RoundFileError":
-        msg = f"{file}: key {key!r}: found {found!r}; allowed: {allowed}"
+        msg = f"{file}: key {key!r}: found {shown_value(found)}; allowed: {allowed}"
         return cls([Problem(message=msg)], summary=msg)
 
 

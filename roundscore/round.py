@@ -18,7 +18,7 @@ from pathlib import Path
 from typing import Any, Literal
 
 from .cells import DECIMAL_MARKS
-from .errors import Problem, RoundFileError
+from .errors import Problem, RoundFileError, shown_value
 from .io.safety import DEFAULT_LIMITS, ReadLimits
 
 __all__ = [
@@ -210,7 +210,7 @@ class _Checker:
 
     def bad(self, key: str, found: object, allowed: str) -> None:
         self.problems.append(
-            Problem(message=f"{self.file}: key {key!r}: found {found!r}; allowed: {allowed}")
+            Problem(message=f"{self.file}: key {key!r}: found {shown_value(found)}; allowed: {allowed}")
         )
 
     def unknown(self, table: str, keys: dict[str, Any], allowed: dict[str, str]) -> None:
