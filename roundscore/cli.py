@@ -59,6 +59,8 @@ def main(argv: list[str] | None = None) -> int:
               "was changed", file=sys.stderr)
         return exc.exit_code
     except RoundscoreError as exc:
+        for note in getattr(exc, "__notes__", ()):  # warnings found before the error (round.toml keys...)
+            print(f"roundscore: warning: {note}", file=sys.stderr)
         print(f"roundscore: error: {exc}", file=sys.stderr)
         return 2
     except KeyboardInterrupt:

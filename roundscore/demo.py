@@ -45,6 +45,9 @@ material = "Dried kelp meal, test item KM-14"
 results = "results.csv"
 participants = "participants.csv"
 replicates = 2
+# Numbers typed as text use a decimal point (1.012 is one point zero one two); one lab types decimal
+# commas (0,838), which have only one reading and are read as such.
+decimal = "point"
 
 [measurand.iodine]
 unit = "mg/kg"

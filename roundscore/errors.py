@@ -9,11 +9,19 @@ of them at once instead of fixing files one complaint at a time.
 
 from __future__ import annotations
 
+import datetime as _dt
+import re
 from dataclasses import dataclass, field
 
 __all__ = [
     "RoundscoreError",
     "Problem",
+    "place",
+    "is_text_file",
+    "cell_ref",
+    "column_letters",
+    "sheet_cell",
+    "shown_value",
     "InputError",
     "RoundFileError",
     "StatisticsError",
@@ -23,6 +31,78 @@ __all__ = [
 
 class RoundscoreError(Exception):
     """Base class of every error roundscore raises on purpose."""
+
+
+#: Files whose rows are lines of text (messages say "line 12", not "row 12"); as io.xlsx.TEXT_SUFFIXES.
+_TEXT_SUFFIXES = (".csv", ".txt", ".tsv")
+_SIMPLE_SHEET = re.compile(r"[A-Za-z_][A-Za-z0-9_.]*")
+#: Longest value shown in a message (characters, as shown); longer is cut with "...".
+MAX_SHOWN_VALUE = 60
+
+
+def column_letters(index: int) -> str:
+    """The spreadsheet letters of a 0-based column index: 0 → A, 25 → Z, 26 → AA.
+
+    >>> column_letters(0), column_letters(3), column_letters(27)
+    ('A', 'D', 'AB')
+    """
+    letters = ""
+    n = index + 1
+    while n:
+        n, r = divmod(n - 1, 26)
+        letters = chr(65 + r) + letters
+    return letters
+
+
+def cell_ref(row: int, index: int) -> str:
+    """An A1-style reference from a 1-based row and a 0-based column index (``cell_ref(11, 3)`` → ``D11``)."""
+    return f"{column_letters(index)}{row}"
+
+
+def sheet_cell(sheet: str, cell: str) -> str:
+    """``Results!D11`` as a spreadsheet writes it (a sheet name with spaces or dashes in quotes)."""
+    if _SIMPLE_SHEET.fullmatch(sheet):
+        return f"{sheet}!{cell}"
+    quoted = sheet.replace("'", "''")
+    return f"'{quoted}'!{cell}"
+
+
+def shown_value(value: object) -> str:
+    """A cell's value as the person typed or saw it: text in quotes, dates as 2027-06-01, 3.0 as 3."""
+    if isinstance(value, bool):
+        shown = "TRUE" if value else "FALSE"
+    elif isinstance(value, _dt.datetime):
+        shown = value.date().isoformat() if value.time() == _dt.time() else value.isoformat(sep=" ",
+                                                                                             timespec="minutes")
+    elif isinstance(value, (_dt.date, _dt.time)):
+        shown = value.isoformat()
+    elif isinstance(value, float) and value.is_integer() and abs(value) < 1e16:
+        shown = str(int(value))
+    elif isinstance(value, (int, float, _dt.timedelta)):
+        shown = str(value)
+    else:  # text in quotes, control characters and invisible spaces escaped
+        shown = repr(value)
+    if len(shown) > MAX_SHOWN_VALUE:
+        shown = shown[:MAX_SHOWN_VALUE - 3] + "..."
+    return shown
+
+
+def is_text_file(file: str | None, sheet: str | None) -> bool:
+    """True when a row of ``file`` is a line of text (a CSV or text file, not a workbook's sheet)."""
+    return sheet is None and file is not None and str(file).lower().endswith(_TEXT_SUFFIXES)
+
+
+def place(file: str | None, sheet: str | None = None, row: int | None = None, cell: str | None = None) -> str:
+    """Where something is, as the person looks for it: ``f.xlsx, Results!D11``, ``f.csv, line 12``."""
+    parts = [str(file)] if file else []
+    if sheet and cell:
+        parts.append(sheet_cell(sheet, cell))
+    else:
+        if sheet:
+            parts.append(f"sheet {sheet!r}")
+        if row is not None:
+            parts.append(f"{'line' if is_text_file(file, sheet) else 'row'} {row}")
+    return ", ".join(parts)
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -36,14 +116,19 @@ class Problem:
     file, sheet : str or None
         The file (as given by the user) and, for a workbook, the sheet.
     row : int or None
-        1-based row as the user sees it in a spreadsheet or text editor
-        (the header is row 1).
+        1-based row as the user sees it in a spreadsheet, or the line of a
+        text file (the header is row or line 1).
     column : str or None
-        Column name or cell reference.
+        The column's name as in the file's header (or the key it stands for).
+    cell : str or None
+        The A1-style reference of the cell in ``sheet`` (``D11``); messages then
+        name it as ``Results!D11``.
     lab, measurand : str or None
         The lab code and measurand the row belongs to, when known.
     value : object
-        The offending value as it was read.
+        The offending value as it was read; shown as typed (:func:`shown_value`).
+    hint : str or None
+        What to do about it; shown once under all the problems that share it.
     """
 
     message: str
@@ -54,18 +139,18 @@ class Problem:
     lab: str | None = None
     measurand: str | None = None
     value: object = None
+    cell: str | None = None
+    hint: str | None = None
 
     def __str__(self) -> str:
-        where = []
-        if self.file:
-            where.append(str(self.file))
-        if self.sheet:
-            where.append(f"sheet {self.sheet!r}")
-        if self.row is not None:
-            where.append(f"row {self.row}")
-        if self.column:
-            where.append(f"column {self.column!r}")
+        here = place(self.file, self.sheet, self.row, self.cell)
+        where = [here] if here else []
         who = []
+        if self.column:
+            if self.cell and self.sheet:
+                who.append(f"column {self.column!r}")
+            else:
+                where.append(f"column {self.column!r}")
         if self.lab:
             who.append(f"lab {self.lab}")
         if self.measurand:
@@ -74,25 +159,36 @@ class Problem:
         if who:
             text += (" (" + ", ".join(who) + ")") if text else ", ".join(who)
         if self.value is not None:
-            shown = repr(self.value)
-            if len(shown) > 60:
-                shown = shown[:57] + "..."
-            text += f": value {shown}"
+            text += f": value {shown_value(self.value)}"
         return f"{text}: {self.message}" if text else self.message
+
+    def _key(self) -> tuple:
+        return (self.message, self.file, self.sheet, self.row, self.column, self.cell, self.lab, self.measurand,
+                shown_value(self.value) if self.value is not None else None)
 
 
 @dataclass(eq=False)
 class InputError(ValueError, RoundscoreError):
     """One or more problems in the user's input files.
 
-    ``problems`` lists every problem found, not just the first; ``str()``
-    gives a readable multi-line message.
+    ``problems`` lists every problem found, not just the first, each once
+    (a problem found twice at the same place, such as the uncertainty of a
+    form row read once per replicate, is kept once); ``str()`` gives a
+    readable multi-line message with what to do at the end.
     """
 
     problems: list[Problem] = field(default_factory=list)
     summary: str = "the input has problems"
 
     def __post_init__(self) -> None:
+        seen: set[tuple] = set()
+        unique = []
+        for p in self.problems:
+            key = p._key()
+            if key not in seen:
+                seen.add(key)
+                unique.append(p)
+        self.problems = unique
         ValueError.__init__(self, str(self))
 
     @classmethod
@@ -100,14 +196,25 @@ class InputError(ValueError, RoundscoreError):
         """An error with a single problem; ``where`` are :class:`Problem` fields."""
         return cls([Problem(message=message, **where)], summary=message)
 
+    def hints(self) -> list[str]:
+        """What to do, each piece of advice once, in the order of the problems."""
+        return list(dict.fromkeys(p.hint for p in self.problems if p.hint))
+
     def __str__(self) -> str:
+        hints = self.hints()
         if len(self.problems) == 1:
-            return str(self.problems[0])
-        shown = self.problems[:50]
-        lines = [f"{self.summary} ({len(self.problems)} problems):"]
-        lines += [f"  - {p}" for p in shown]
-        if len(self.problems) > len(shown):
-            lines.append(f"  ... and {len(self.problems) - len(shown)} more")
+            lines = [str(self.problems[0])]
+        else:
+            shown = self.problems[:50]
+            lines = [f"{self.summary} ({len(self.problems)} problems):"]
+            lines += [f"  - {p}" for p in shown]
+            if len(self.problems) > len(shown):
+                lines.append(f"  ... and {len(self.problems) - len(shown)} more")
+        if len(hints) == 1:
+            lines.append(f"What to do: {hints[0]}.")
+        elif hints:
+            lines.append("What to do:")
+            lines += [f"  - {h}." for h in hints]
         return "\n".join(lines)
 
 
@@ -116,7 +223,7 @@ class RoundFileError(InputError):
 
     @classmethod
     def key(cls, file: str, key: str, found: object, allowed: str) -> "RoundFileError":
-        msg = f"{file}: key {key!r}: found {found!r}; allowed: {allowed}"
+        msg = f"{file}: key {key!r}: found {shown_value(found)}; allowed: {allowed}"
         return cls([Problem(message=msg)], summary=msg)
 
 

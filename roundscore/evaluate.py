@@ -432,7 +432,8 @@ def evaluate(rnd: Round, table: ResultTable, participants: dict[str, Participant
     """
     participants = participants or {}
     all_labs = sorted(set(table.frame["lab"]) | set(participants), key=_lab_key)
-    audit: list[tuple] = []
+    # How text cells were read (a declared decimal mark): one line per round or per form, from the reader.
+    audit: list[tuple] = [("", lab, "import", "decimal mark", text) for lab, text in table.readings]
     names = list(rnd.measurands)
     # Lab means per measurand, for one vectorised Algorithm A call.
     pre = _lab_tables(table, names, all_labs)

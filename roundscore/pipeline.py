@@ -12,13 +12,14 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Callable
 
+from .errors import RoundscoreError
 from .evaluate import AUDIT_COLUMNS, SCORE_COLUMNS, STATISTICS_COLUMNS, RoundEvaluation, evaluate
 from .io.csvout import write_csv
 from .io.outfolder import atomic_folder, check_target
 from .io.readers import read_participants, read_results
 from .io.workbook import lab_payload, write_lab_workbook, write_summary
 from .parallel import run_batches, shared
-from .round import Round, load_round
+from .round import Round, load_round, with_warnings
 
 __all__ = ["run_round", "write_outputs", "atomic_folder", "Outputs", "load_and_evaluate", "round_inputs"]
 
@@ -81,9 +82,12 @@ def load_and_evaluate(round_path: str | Path | Round, *, jobs: int | None = None
     the table does not depend on it.
     """
     rnd = round_path if isinstance(round_path, Round) else load_round(round_path)
-    table = read_results(rnd, jobs=jobs, progress=progress)
-    participants = read_participants(rnd)
-    return evaluate(rnd, table, participants)
+    try:
+        table = read_results(rnd, jobs=jobs, progress=progress)
+        participants = read_participants(rnd)
+        return evaluate(rnd, table, participants)
+    except RoundscoreError as exc:  # the round file's warnings (unknown keys...) still reach the user
+        raise with_warnings(exc, rnd.warnings)
 
 
 #: Lab sheets per task sent to a worker: fixed (not tied to the number of jobs) and small enough that the
@@ -173,8 +177,11 @@ def run_round(round_path: str | Path, out: str | Path, *, archive: str | Path | 
     """
     rnd = load_round(round_path)
     store = archive if archive is not None else rnd.archive
-    protect, input_folders = round_inputs(rnd, store)
-    check_target(out, protect=protect, input_folders=input_folders)  # refused before any work is done
+    try:
+        protect, input_folders = round_inputs(rnd, store)
+        check_target(out, protect=protect, input_folders=input_folders)  # refused before any work is done
+    except RoundscoreError as exc:
+        raise with_warnings(exc, rnd.warnings)
     ev = load_and_evaluate(rnd, jobs=jobs, progress=progress)
     history = None
     if store is not None:

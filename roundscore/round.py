@@ -17,7 +17,8 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Literal
 
-from .errors import Problem, RoundFileError
+from .cells import DECIMAL_MARKS
+from .errors import Problem, RoundFileError, shown_value
 from .io.safety import DEFAULT_LIMITS, ReadLimits
 
 __all__ = [
@@ -54,6 +55,8 @@ ROUND_KEYS: dict[str, str] = {
     "history_rounds": "whole number: past rounds shown on each lab sheet (default 8)",
     "youden": "list of pairs of measurand names for Youden plots",
     "words": "'signals' (acceptable/warning/action) or 'performance' (satisfactory/questionable/unsatisfactory)",
+    "decimal": "'comma' or 'point': the decimal mark of numbers typed as text in results and item tables "
+               "(default: not declared; a number whose reading depends on it, such as 1,234, is refused)",
 }
 #: ``[limits]``: bounds on reading untrusted files (see roundscore.io.safety.ReadLimits).
 LIMIT_KEYS: dict[str, tuple[str, float]] = {
@@ -168,6 +171,8 @@ class Round:
     youden: tuple[tuple[str, str], ...]
     words: str
     measurands: dict[str, MeasurandSettings]
+    #: The declared decimal mark of text cells ("comma" or "point"), or None (ambiguous text is refused).
+    decimal: str | None = None
     exclusions: tuple[Exclusion, ...] = field(default=())
     limits: ReadLimits = DEFAULT_LIMITS
     warnings: tuple[str, ...] = field(default=())
@@ -205,7 +210,7 @@ class _Checker:
 
     def bad(self, key: str, found: object, allowed: str) -> None:
         self.problems.append(
-            Problem(message=f"{self.file}: key {key!r}: found {found!r}; allowed: {allowed}")
+            Problem(message=f"{self.file}: key {key!r}: found {shown_value(found)}; allowed: {allowed}")
         )
 
     def unknown(self, table: str, keys: dict[str, Any], allowed: dict[str, str]) -> None:
@@ -456,6 +461,11 @@ def load_round(path: str | Path) -> Round:
         c.bad("round.stragglers", "exclude",
               "'keep' while outliers = 'keep' (leaving out stragglers while keeping outliers contradicts "
               "itself); or set outliers = \"exclude\" too")
+    decimal = r.get("decimal")
+    if decimal is not None and decimal not in DECIMAL_MARKS:
+        c.bad("round.decimal", decimal, " or ".join(repr(d) for d in DECIMAL_MARKS)
+              + " (leave it out to refuse numbers such as 1,234 whose reading depends on it)")
+        decimal = None
     confidence = c.number("round.confidence", r.get("confidence")) or 0.95
     if not 0.5 <= confidence <= 0.999:
         c.bad("round.confidence", confidence, "a number between 0.5 and 0.999")
@@ -480,13 +490,25 @@ def load_round(path: str | Path) -> Round:
         youden=tuple(youden),
         words=c.choice("round.words", r.get("words"), ("signals", "performance"), "signals"),
         measurands=measurands,
+        decimal=decimal,
         exclusions=exclusions,
         limits=limits,
         warnings=tuple(c.warnings),
     )
     if c.problems:
-        raise RoundFileError(c.problems, summary=f"{shown} has mistakes")
+        raise with_warnings(RoundFileError(c.problems, summary=f"{shown} has mistakes"), c.warnings)
     return rnd
+
+
+def with_warnings(exc: BaseException, warnings) -> BaseException:
+    """``exc`` with the round file's warnings attached as notes, so they are shown even when it stops the run.
+
+    The command line prints an error's notes (``exc.__notes__``) as warnings before the error itself.
+    """
+    for w in warnings:
+        if w not in getattr(exc, "__notes__", ()):
+            exc.add_note(w)
+    return exc
 
 
 def _resolve_results(rnd: Round) -> list[Path]:

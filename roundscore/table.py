@@ -16,8 +16,8 @@ from typing import Iterable
 import numpy as np
 import pandas as pd
 
-from .cells import CellError, parse_cell
-from .errors import InputError, Problem
+from .cells import HINT_DECLARE, HINT_NUMBER, CellError, parse_cell
+from .errors import InputError, Problem, cell_ref, is_text_file, place, sheet_cell, shown_value
 from .io.xlsx import SheetRows
 from .round import Round
 from .units import UnitError, factor
@@ -59,6 +59,11 @@ class Record:
     k: object = None
     method: object = None
     comment: object = None
+    #: The decimal mark declared for this record's text cells ("comma", "point"), or None for the round's.
+    decimal: str | None = None
+    #: Field name → (0-based column index, the column's header as in the file), shared by the rows of a
+    #: sheet, so that a problem names the cell (``Results!D11``) and the header the person sees.
+    cols: dict | None = None
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -75,11 +80,15 @@ class ResultTable:
         The files read.
     warnings : tuple of str
         Things that did not stop the import.
+    readings : tuple of (str, str)
+        How text cells were read, for the audit trail: (lab or "", what was
+        done), one per round or per file, never per cell.
     """
 
     frame: pd.DataFrame
     files: tuple[str, ...] = ()
     warnings: tuple[str, ...] = field(default=())
+    readings: tuple[tuple[str, str], ...] = field(default=())
 
     @property
     def labs(self) -> list[str]:
@@ -99,24 +108,38 @@ def cell_label(v: object) -> str | None:
     return s or None
 
 
-def _number(v: object, what: str, rec: Record, problems: list[Problem], *, positive=False) -> float | None:
+_WHAT = {"u": "the standard uncertainty u", "U": "the expanded uncertainty U", "k": "the coverage factor k"}
+_HINT_UNCERTAINTY = ("give u, or U with its coverage factor k, as numbers in the unit of the result (k is usually "
+                     "2), or leave them blank")
+
+
+def _number(v: object, what: str, rec: Record, problems: list[Problem], decimal: str | None,
+            *, positive=False) -> float | None:
     try:
-        cell = parse_cell(v)
+        cell = parse_cell(v, decimal=decimal)
     except CellError as exc:
-        problems.append(_problem(f"{what}: {exc}", rec, what, v))
+        hint = _HINT_UNCERTAINTY if exc.hint in (None, HINT_NUMBER) else exc.hint
+        problems.append(_problem(f"{_WHAT.get(what, what)}: {exc}", rec, what, v, hint))
         return None
     if cell.kind == "blank":
         return None
     if cell.kind != "value" or cell.value is None or cell.value < 0 or (positive and cell.value == 0):
-        problems.append(_problem(f"{what} must be a number {'> 0' if positive else '≥ 0'}", rec, what, v))
+        problems.append(_problem(f"{_WHAT.get(what, what)} must be a number {'> 0' if positive else '≥ 0'}",
+                                 rec, what, v, _HINT_UNCERTAINTY))
         return None
     return cell.value
 
 
-def _problem(message: str, rec: Record, column: str | None, value: object) -> Problem:
+def _problem(message: str, rec: Record, column: str | None, value: object, hint: str | None = None) -> Problem:
+    """A problem at a record's cell: ``Results!D11`` in a workbook, the line and header in a text file."""
+    cell = None
+    if rec.cols is not None and column in rec.cols:
+        index, column = rec.cols[column]
+        if rec.sheet is not None:
+            cell = cell_ref(rec.row, index)
     return Problem(
-        message=message, file=rec.file, sheet=rec.sheet, row=rec.row, column=column,
-        lab=cell_label(rec.lab), measurand=cell_label(rec.measurand), value=value,
+        message=message, file=rec.file, sheet=rec.sheet, row=rec.row, column=column, cell=cell,
+        lab=cell_label(rec.lab), measurand=cell_label(rec.measurand), value=value, hint=hint,
     )
 
 
@@ -145,12 +168,13 @@ def records_from_long(sheet: SheetRows) -> tuple[list[Record], list[Problem]]:
             file=sheet.file, sheet=sheet.sheet, row=start + 1))
         return [], problems
     records = []
+    cols = {k: (j, header[j]) for k, j in index.items()}
     for i in range(start + 1, len(rows)):
         r = rows[i]
         if not any(c is not None and str(c).strip() for c in r):
             continue
         get = {k: (r[j] if j < len(r) else None) for k, j in index.items()}
-        records.append(Record(file=sheet.file, sheet=sheet.sheet, row=i + 1, **get))
+        records.append(Record(file=sheet.file, sheet=sheet.sheet, row=sheet.row_number(i), cols=cols, **get))
     return records, problems
 
 
@@ -167,6 +191,7 @@ def build_table(
     files: Iterable[str] = (),
     warnings: Iterable[str] = (),
     problems: Iterable[Problem] = (),
+    readings: Iterable[tuple[str, str]] = (),
 ) -> ResultTable:
     """Validate records against the round and build the :class:`ResultTable`.
 
@@ -178,10 +203,65 @@ def build_table(
         results where the measurand allows none, bad uncertainties.
     """
     rows, found = validate_records(rnd, records)
-    problems = list(problems) + found
+    problems = summarise_ambiguous(list(problems) + found)
     if problems:
         raise InputError(problems, summary="the results cannot be imported")
-    return ResultTable(frame=table_frame(rows), files=tuple(files), warnings=tuple(warnings))
+    return ResultTable(frame=table_frame(rows), files=tuple(files), warnings=tuple(warnings),
+                       readings=tuple(readings))
+
+
+#: Ambiguous numbers of one column listed one by one; more are said in one problem naming all their places.
+MAX_LISTED_AMBIGUOUS = 5
+
+
+def summarise_ambiguous(problems: list[Problem]) -> list[Problem]:
+    """Many numbers of one column that can be read two ways (a file typed with 20.310, 19.820 ...) as one problem.
+
+    Up to :data:`MAX_LISTED_AMBIGUOUS` of a column are listed as they are;
+    beyond that, one problem gives their number, the first of them and every
+    place (lines 2-241, or Results!D2:D241), where the first one was.
+    """
+    groups: dict[tuple, list[int]] = {}
+    for i, p in enumerate(problems):
+        if p.hint == HINT_DECLARE:
+            groups.setdefault((p.file, p.sheet, p.column), []).append(i)
+    replaced: dict[int, Problem | None] = {}
+    for (file, sheet, column), idx in groups.items():
+        if len(idx) <= MAX_LISTED_AMBIGUOUS:
+            continue
+        group = [problems[i] for i in idx]
+        first = group[0]
+        here = (f"line {first.row}" if is_text_file(first.file, first.sheet)
+                else place(None, first.sheet, first.row, first.cell))
+        replaced.update(dict.fromkeys(idx[1:]))
+        replaced[idx[0]] = Problem(
+            message=f"{len(group)} numbers typed as text can be read two ways, for example "
+                    f"{shown_value(first.value)} ({here}): {first.message}; all at {_places(group)}",
+            file=file, sheet=None if first.cell else sheet, column=column, hint=HINT_DECLARE)
+    if not replaced:
+        return problems
+    return [replaced.get(i, p) for i, p in enumerate(problems) if replaced.get(i, p) is not None]
+
+
+def _places(group: list[Problem], most: int = 12) -> str:
+    """Rows of one column as ranges: ``lines 2-30, 35`` or ``Results!D2:D30, D35``."""
+    rows = sorted({p.row for p in group if p.row is not None})
+    spans: list[tuple[int, int]] = []
+    for r in rows:
+        if spans and r == spans[-1][1] + 1:
+            spans[-1] = (spans[-1][0], r)
+        else:
+            spans.append((r, r))
+    first = group[0]
+    letters = (first.cell or "").rstrip("0123456789")
+    if first.cell and first.sheet:
+        parts = [f"{letters}{a}" if a == b else f"{letters}{a}:{letters}{b}" for a, b in spans[:most]]
+        parts[0] = sheet_cell(first.sheet, parts[0])
+    else:
+        parts = [str(a) if a == b else f"{a}-{b}" for a, b in spans[:most]]
+        parts[0] = ("lines " if is_text_file(first.file, first.sheet) else "rows ") + parts[0]
+    more = f" and {len(spans) - most} more" if len(spans) > most else ""
+    return ", ".join(parts) + more
 
 
 def table_frame(rows: list[tuple]) -> pd.DataFrame:
@@ -192,14 +272,23 @@ def table_frame(rows: list[tuple]) -> pd.DataFrame:
     return frame.sort_values(["measurand", "lab", "replicate"], kind="stable").reset_index(drop=True)
 
 
-def _optional_number(v: object, what: str, rec: Record, problems: list[Problem], *, positive=False) -> float:
+def _optional_number(v: object, what: str, rec: Record, problems: list[Problem], decimal: str | None,
+                     *, positive=False) -> float:
     """An uncertainty or coverage factor cell: NaN when blank, the number, or NaN and a problem."""
     if v is None:
         return np.nan
     if type(v) is float and v > 0.0 and v != math.inf:  # the usual case from a workbook
         return v
-    got = _number(v, what, rec, problems, positive=positive)
+    got = _number(v, what, rec, problems, decimal, positive=positive)
     return got if got is not None else np.nan
+
+
+def _record_place(first: Record) -> str:
+    """Where an earlier record's result is: ``results.csv, line 3`` or ``form.xlsx, Results!C10``."""
+    cell = None
+    if first.sheet is not None and first.cols is not None and "value" in first.cols:
+        cell = cell_ref(first.row, first.cols["value"][0])
+    return place(first.file, first.sheet, first.row, cell)
 
 
 def validate_records(rnd: Round, records: Iterable[Record]) -> tuple[list[tuple], list[Problem]]:
@@ -212,6 +301,7 @@ def validate_records(rnd: Round, records: Iterable[Record]) -> tuple[list[tuple]
     problems: list[Problem] = []
     out: list[tuple] = []
     seen: dict[tuple[str, str, int], Record] = {}
+    round_decimal = rnd.decimal
     known = rnd.measurands
     lower = {k.lower(): k for k in known}
     labels: dict[tuple[type, object], str | None] = {}
@@ -240,7 +330,8 @@ def validate_records(rnd: Round, records: Iterable[Record]) -> tuple[list[tuple]
             m = known.get(lower.get(name.lower(), ""))
         if m is None:
             problems.append(_problem(
-                f"unknown measurand; the round has: {', '.join(known)}", rec, "measurand", rec.measurand))
+                f"unknown measurand; the round has: {', '.join(known)}", rec, "measurand", rec.measurand,
+                "correct the measurand's name, or add it to round.toml ([measurand.NAME])"))
             continue
         rep = rec.replicate
         if type(rep) is int and rep >= 1:
@@ -259,37 +350,51 @@ def validate_records(rnd: Round, records: Iterable[Record]) -> tuple[list[tuple]
         first = seen.get(key)
         if first is not None:
             problems.append(_problem(
-                f"duplicate result for lab {lab}, {m.name}, replicate {replicate} "
-                f"(also in {first.file}" + (f" sheet {first.sheet!r}" if first.sheet else "") +
-                f" row {first.row})", rec, "replicate", rec.replicate))
+                f"duplicate result for lab {lab}, {m.name}, replicate {replicate} (also at "
+                f"{_record_place(first)})", rec, "replicate", rec.replicate,
+                "keep one row per lab, measurand and replicate"))
             continue
         seen[key] = rec
+        decimal = rec.decimal if rec.decimal is not None else round_decimal
+        ok = True
         try:
-            cell = parse_cell(rec.value)
+            cell = parse_cell(rec.value, decimal=decimal)
         except CellError as exc:
-            problems.append(_problem(str(exc), rec, "value", rec.value))
-            continue
+            problems.append(_problem(str(exc), rec, "value", rec.value, exc.hint))
+            ok = False
         unit = label(rec.unit) or m.unit
         f = 1.0
         if unit != m.unit:
             try:
                 f = factor(unit, m.unit)
             except UnitError as exc:
-                problems.append(_problem(f"{exc} (the round reports {m.name} in {m.unit})", rec, "unit", rec.unit))
-                continue
-        value = cell.value * f if cell.value is not None else np.nan
-        limit = cell.limit * f if cell.limit is not None else np.nan
-        if cell.kind == "value" and value < 0 and not m.allow_negative:
-            problems.append(_problem(
-                f"a negative result, but {m.name} cannot be below zero "
-                "(set allow_negative = true for this measurand if it can)", rec, "value", rec.value))
+                problems.append(_problem(f"{exc} (the round reports {m.name} in {m.unit})", rec, "unit", rec.unit,
+                                         f"give {m.name} in {m.unit} or in a unit that converts to it"))
+                ok = False
+        if ok:
+            value = cell.value * f if cell.value is not None else np.nan
+            limit = cell.limit * f if cell.limit is not None else np.nan
+            if cell.kind == "value" and value < 0 and not m.allow_negative:
+                problems.append(_problem(
+                    f"a negative result, but {m.name} cannot be below zero "
+                    "(set allow_negative = true for this measurand if it can)", rec, "value", rec.value))
+                ok = False
+        # The uncertainty cells are checked even when the result is not, so that every problem is listed.
+        u = _optional_number(rec.u, "u", rec, problems, decimal)
+        U = _optional_number(rec.U, "U", rec, problems, decimal)
+        k = _optional_number(rec.k, "k", rec, problems, decimal, positive=True)
+        if not ok:
             continue
-        u = _optional_number(rec.u, "u", rec, problems)
-        U = _optional_number(rec.U, "U", rec, problems)
-        k = _optional_number(rec.k, "k", rec, problems, positive=True)
         out.append((
             lab, m.name, replicate, cell.kind, value, _decimal_scale(cell.text, f),
             cell.relation, limit, m.unit, u * f, U * f, k,
             label(rec.method), label(rec.comment), rec.file, rec.sheet, rec.row,
         ))
+    problems.sort(key=_reading_order)
     return out, problems
+
+
+def _reading_order(p: Problem) -> tuple:
+    """Problems in the order a person reads the file: by row, then by column (A … Z, AA …)."""
+    letters = (p.cell or "").rstrip("0123456789")
+    return (p.file or "", p.sheet or "", p.row or 0, len(letters), letters)

@@ -260,7 +260,7 @@ def test_pipeline_csv_precision_and_workbook_agree(tmp_path):
     ("not_csv", "missing columns"),
     ("extension", "neither a roundscore scores.csv nor a lab workbook"),
     ("missing_file", "file not found"),
-    ("bad_number", "row 3, column 'result': value 'ten': not a number"),
+    ("bad_number", "line 3, column 'result': value 'ten': not a number"),
     ("bad_date", "ISO round_date"),
 ])
 def test_files_that_are_not_ours_get_clear_messages(tmp_path, kind, expected):
@@ -371,7 +371,7 @@ def test_censored_results_are_kept_as_text(tmp_path, cell, stored, problem):
     frame.to_csv(csv, index=False)
     db = tmp_path / "lab.sqlite"
     if problem:
-        with pytest.raises(InputError, match=re.escape(f"row 2, column 'result': value {cell!r}: "
+        with pytest.raises(InputError, match=re.escape(f"line 2, column 'result': value {cell!r}: "
                                                        f"{problem}")):
             archive.add_files(db, [csv])
         return

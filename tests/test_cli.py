@@ -79,7 +79,7 @@ def test_error_is_a_message_not_a_traceback(make_round, tmp_path):
                           capture_output=True, text=True)
     assert proc.returncode == 2
     assert "Traceback" not in proc.stderr
-    assert "results.csv, row 2, column 'value' (lab A, measurand cu): value 'oops': not a number" in proc.stderr
+    assert "results.csv, line 2, column 'value' (lab A, measurand cu): value 'oops': not a number" in proc.stderr
     assert not out.exists()  # nothing written
     assert hashlib.sha256((folder / "results.csv").read_bytes()).hexdigest() == before  # input unchanged
 

@@ -88,7 +88,7 @@ def test_bad_cell_in_form_names_file_sheet_row(make_round):
     _fill(folder / "returned" / "c.xlsx", [[1.0, "twelve"]])
     with pytest.raises(InputError) as info:
         read_results(load_round(folder))
-    assert "returned/c.xlsx, sheet 'Results', row 10, column 'value' (lab C3, measurand iron)" in str(info.value)
+    assert "returned/c.xlsx, Results!D10 (column 'Result 2', lab C3, measurand iron)" in str(info.value)
     assert "'twelve': not a number" in str(info.value)
 
 

@@ -293,20 +293,20 @@ def _swap(text: str, line: int, new: str) -> str:
 
 
 @pytest.mark.parametrize("which, text, expected", [
-    ("hom", _swap(HOM_OK, 3, "KM-02,1,<0.5"), "hom.csv, row 4, column 'value' (measurand cu): value '<0.5': "
+    ("hom", _swap(HOM_OK, 3, "KM-02,1,<0.5"), "hom.csv, line 4, column 'value' (measurand cu): value '<0.5': "
                                              "a censored value cannot be used"),
-    ("hom", _swap(HOM_OK, 3, "KM-02,1,"), "row 4, column 'value' (measurand cu): a blank value"),
-    ("hom", _swap(HOM_OK, 3, "KM-02,1,ten"), "row 4, column 'value' (measurand cu): value 'ten': not a number"),
+    ("hom", _swap(HOM_OK, 3, "KM-02,1,"), "line 4, column 'value' (measurand cu): a blank value"),
+    ("hom", _swap(HOM_OK, 3, "KM-02,1,ten"), "line 4, column 'value' (measurand cu): value 'ten': not a number"),
     ("hom", _swap(HOM_OK, 3, "KM-02,1,-4"), "cu cannot be below zero"),
     ("hom", _swap(HOM_OK, 3, "KM-02,x,10"), "column 'replicate' (measurand cu): value 'x': the replicate must"),
-    ("hom", _swap(HOM_OK, 3, "KM-01,1,10"), "duplicate measurement for item 'KM-01', replicate 1 (also row 2)"),
-    ("hom", _swap(HOM_OK, 3, ",1,10"), "row 4, column 'item' (measurand cu): the item label is empty"),
+    ("hom", _swap(HOM_OK, 3, "KM-01,1,10"), "duplicate measurement for item 'KM-01', replicate 1 (also line 2)"),
+    ("hom", _swap(HOM_OK, 3, ",1,10"), "line 4, column 'item' (measurand cu): the item label is empty"),
     ("hom", "item,rep,value\nA,1,1\n", "missing column(s) replicate"),
     ("hom", "\n".join(HOM_OK.splitlines()[:-1]) + "\n", "item 'KM-10' has a single measurement"),
     ("hom", "item,replicate,value,unit\nA,1,1,mg/L\nA,2,1,mg/L\nB,1,1,mg/L\nB,2,1,mg/L\n", "cannot be converted"),
     ("stab", stab_csv(0.1) + "S1,1,10,transport\n", "exactly 2 sets"),
     ("stab", _swap(stab_csv(0.1, 0.1), 2, "S1,2,10.02,before,0.2"), "u differs within set 'before'"),
-    ("stab", _swap(stab_csv(0.1), 2, "S1,2,10.02,"), "row 3, column 'set' (measurand cu): the set is empty"),
+    ("stab", _swap(stab_csv(0.1), 2, "S1,2,10.02,"), "line 3, column 'set' (measurand cu): the set is empty"),
 ])
 def test_bad_item_tables_are_clear_errors(item_round, tmp_path, capsys, which, text, expected):
     kw = {"hom_text": text} if which == "hom" else {"stab_text": text}
@@ -325,7 +325,7 @@ def test_missing_file_and_all_problems_together(item_round):
     with pytest.raises(InputError) as exc:
         load_and_evaluate(folder)
     text = str(exc.value)
-    assert "hom.csv, row 4" in text and "stab.csv, row 14" in text  # both files, one message
+    assert "hom.csv, line 4" in text and "stab.csv, line 14" in text  # both files, one message
     (folder / "hom.csv").unlink()
     with pytest.raises(InputError, match="homogeneity file named in the round file was not found"):
         load_and_evaluate(folder)
@@ -336,7 +336,7 @@ def test_no_traceback_from_the_command(item_round, tmp_path):
     proc = subprocess.run([sys.executable, "-m", "roundscore", "score", str(folder), "--out", str(tmp_path / "x")],
                           capture_output=True, text=True)
     assert proc.returncode == 2
-    assert "Traceback" not in proc.stderr and "hom.csv, row 6, column 'value'" in proc.stderr
+    assert "Traceback" not in proc.stderr and "hom.csv, line 6, column 'value'" in proc.stderr
     assert not (tmp_path / "x").exists()
 
 

@@ -22,7 +22,7 @@ import pytest
 from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 
-from roundscore.cells import CellError, parse_cell
+from roundscore.cells import AmbiguousNumber, CellError, parse_cell
 from roundscore.evaluate import evaluate
 from roundscore.round import load_round
 from roundscore.stats.precision import precision
@@ -60,10 +60,17 @@ def test_parse_cell_raises_only_cell_error(raw):
 @FAST
 @given(st.floats(min_value=-1e6, max_value=1e6, allow_nan=False).map(lambda v: round(v, 6)))
 def test_typed_number_reads_back(v):
-    # What a spreadsheet shows for a number, typed back as text, gives the same number.
-    for text in (repr(v), f"{v:.6f}", f"{v:e}".replace("e", "E"), repr(v).replace(".", ",")):
-        cell = parse_cell(text)
-        assert cell.value == pytest.approx(float(text.replace(",", ".")), rel=1e-15, abs=0)
+    # What a spreadsheet shows for a number, typed back as text, gives the same number when the decimal
+    # mark is declared; undeclared, it gives the same number or is refused as ambiguous (1.234), never another.
+    for text, mark in ((repr(v), "point"), (f"{v:.6f}", "point"), (f"{v:e}".replace("e", "E"), "point"),
+                       (repr(v).replace(".", ","), "comma")):
+        expected = float(text.replace(",", "."))
+        assert parse_cell(text, decimal=mark).value == pytest.approx(expected, rel=1e-15, abs=0)
+        try:
+            cell = parse_cell(text)
+        except AmbiguousNumber:
+            continue
+        assert cell.value == pytest.approx(expected, rel=1e-15, abs=0)
 
 
 # Results on a 0.001 grid, as labs report them (a value like 1e-194 next to 1.0 would vanish when
@@ -127,6 +134,7 @@ def test_precision_unchanged_by_a_constant(cells, c):
 ROUND = """\
 [round]
 id = "UNIT-1"
+decimal = "point"
 [measurand.pb]
 unit = "{unit}"
 assigned = "algorithm-a"

@@ -63,11 +63,11 @@ def test_every_problem_is_listed_with_its_place(make_round):
     problems = info.value.problems
     text = str(info.value)
     assert len(problems) == 6
-    assert "results.csv, row 2, column 'value' (lab L1, measurand copper): value 'abc': not a number" in text
-    assert "duplicate result for lab L1, copper, replicate 1 (also in results.csv row 2)" in text
-    assert "row 4" in text and "unknown measurand; the round has: copper, zinc" in text
+    assert "results.csv, line 2, column 'value' (lab L1, measurand copper): value 'abc': not a number" in text
+    assert "duplicate result for lab L1, copper, replicate 1 (also at results.csv, line 2)" in text
+    assert "line 4" in text and "unknown measurand; the round has: copper, zinc" in text
     assert "'mg/L' cannot be converted to 'mg/kg'" in text
-    assert "row 6" in text and "replicate must be a whole number" in text
+    assert "line 6" in text and "replicate must be a whole number" in text
     assert "negative result" in text
 
 

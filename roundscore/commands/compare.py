@@ -11,7 +11,9 @@ Forms
 
 ``--confidence 0.99`` changes the level (default 0.95), ``--method`` forces the
 pooled-SD or Welch test, ``--json`` prints JSON instead of text.  Numbers are
-read as in result files (decimal point or comma, see :mod:`roundscore.cells`).
+read as in result files (decimal point or comma, see :mod:`roundscore.cells`); a
+number whose reading depends on the decimal mark (``1,234``) is refused unless
+``--decimal comma`` or ``--decimal point`` says which is meant.
 Bad input raises :class:`~roundscore.errors.InputError` naming the file,
 column, row and value; the command-line entry point prints it.
 """
@@ -25,7 +27,7 @@ import sys
 from pathlib import Path
 from typing import Any
 
-from roundscore.cells import CellError, parse_cell
+from roundscore.cells import DECIMAL_MARKS, AmbiguousNumber, CellError, parse_cell
 from roundscore.errors import InputError, Problem
 from roundscore.stats.compare import DEFAULT_CONFIDENCE, MIN_GROUP_SIZE, compare_one, compare_two
 
@@ -55,17 +57,24 @@ def register(subparsers: Any) -> argparse.ArgumentParser:
                         help="t test for two sets: auto (F test decides, default), pooled or welch")
     parser.add_argument("--label-a", default=None, help="name of the first set in the output")
     parser.add_argument("--label-b", default=None, help="name of the second set in the output")
+    parser.add_argument("--decimal", choices=DECIMAL_MARKS, default=None,
+                        help="the decimal mark of the values, when a value such as 1,234 could be read two ways")
     parser.add_argument("--json", action="store_true", help="print JSON instead of text")
     parser.set_defaults(func=run)
     return parser
 
 
-def _number(text: str, *, file: str | None = None, column: str | None = None, row: int | None = None) -> float | None:
+def _number(text: str, *, file: str | None = None, column: str | None = None, row: int | None = None,
+            decimal: str | None = None) -> float | None:
     """One number as a lab would type it; None for a blank; InputError otherwise."""
     try:
-        cell = parse_cell(text)
-    except CellError:
-        raise InputError.single("not a number", file=file, column=column, row=row, value=text) from None
+        cell = parse_cell(text, decimal=decimal)
+    except CellError as exc:
+        hint = None
+        if isinstance(exc, AmbiguousNumber):
+            hint = "say which decimal mark the values use: --decimal comma or --decimal point"
+        raise InputError([Problem(message=str(exc), file=file, column=column, row=row, value=text, hint=hint)],
+                         summary=str(exc)) from None
     if cell.kind == "blank":
         return None
     if cell.kind == "censored":
@@ -74,18 +83,18 @@ def _number(text: str, *, file: str | None = None, column: str | None = None, ro
     return float(cell.value)  # type: ignore[arg-type]
 
 
-def read_numbers(texts: list[str], *, column: str) -> list[float]:
+def read_numbers(texts: list[str], *, column: str, decimal: str | None = None) -> list[float]:
     """Numbers given on the command line; ``row`` in errors is the 1-based position."""
     out = []
     for i, text in enumerate(texts, start=1):
-        value = _number(text, column=column, row=i)
+        value = _number(text, column=column, row=i, decimal=decimal)
         if value is None:
             raise InputError.single("empty value", column=column, row=i, value=text)
         out.append(value)
     return out
 
 
-def read_csv_columns(path: str, columns: list[str]) -> dict[str, list[float]]:
+def read_csv_columns(path: str, columns: list[str], *, decimal: str | None = None) -> dict[str, list[float]]:
     """Numbers from named columns of a CSV file (comma, semicolon or tab separated).
 
     Blank cells are skipped.  Rows are numbered as in a spreadsheet (header = row 1).
@@ -120,7 +129,7 @@ def read_csv_columns(path: str, columns: list[str]) -> dict[str, list[float]]:
             j = header.index(col)
             cell = row[j] if j < len(row) else ""
             try:
-                value = _number(cell, file=file, column=col, row=row_no)
+                value = _number(cell, file=file, column=col, row=row_no, decimal=decimal)
             except InputError as exc:
                 problems.extend(exc.problems)
                 continue
@@ -152,9 +161,10 @@ def _enough(values: list[float], *, label: str, file: str | None) -> None:
 def run(args: argparse.Namespace) -> int:
     """Run ``roundscore compare``; returns the exit code (0)."""
     confidence = _confidence(args.confidence)
+    decimal = getattr(args, "decimal", None)
     reference = None
     if args.reference is not None:
-        reference = _number(args.reference, column="--reference")
+        reference = _number(args.reference, column="--reference", decimal=decimal)
         if reference is None:
             raise InputError.single("the reference value is empty", column="--reference", value=args.reference)
     file = None
@@ -170,7 +180,7 @@ def run(args: argparse.Namespace) -> int:
             raise InputError.single("give either --b or --reference, not both", file=args.csv)
         file = args.csv
         cols = [args.a] + ([args.b] if args.b else [])
-        data = read_csv_columns(args.csv, cols)
+        data = read_csv_columns(args.csv, cols, decimal=decimal)
         first, label_a = data[args.a], args.label_a or args.a
         second, label_b = (data[args.b], args.label_b or args.b) if args.b else (None, None)
     else:
@@ -179,11 +189,11 @@ def run(args: argparse.Namespace) -> int:
         if not args.values:
             raise InputError.single("give the values to compare (e.g. 1.2 1.3 1.25 --vs 1.4 1.5 1.45) or --csv",
                                     column="values")
-        first, label_a = read_numbers(args.values, column="values"), args.label_a or "A"
+        first, label_a = read_numbers(args.values, column="values", decimal=decimal), args.label_a or "A"
         if args.vs:
             if reference is not None:
                 raise InputError.single("give either --vs or --reference, not both", column="--vs")
-            second, label_b = read_numbers(args.vs, column="--vs"), args.label_b or "B"
+            second, label_b = read_numbers(args.vs, column="--vs", decimal=decimal), args.label_b or "B"
         elif reference is None:
             raise InputError.single("give the second set with --vs, or a --reference value", column="--vs")
         else:

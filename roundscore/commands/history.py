@@ -134,8 +134,20 @@ def run_add(args: argparse.Namespace) -> int:
         for outcome in outcomes:
             print(f"{name}: {outcome.status}: {outcome.message}")
     if refused:
-        print(f"{refused} of {len(args.files)} files refused; the others were processed")
+        print(refused_summary(refused, len(args.files)))
     return 2 if refused else 0
+
+
+def refused_summary(refused: int, total: int) -> str:
+    """What happened to the files, in plain words: "the file was refused", "2 of 5 files were refused; ..."."""
+    if total == 1:
+        return "The file was refused; nothing was stored from it."
+    if refused == total:
+        return f"All {total} files were refused; nothing was stored from them."
+    left = total - refused
+    was = "was" if refused == 1 else "were"
+    rest = "the other file is in the archive" if left == 1 else f"the other {left} are in the archive"
+    return f"{refused} of {total} files {was} refused; {rest} (see each file's line above)."
 
 
 # --------------------------------------------------------------------------- show

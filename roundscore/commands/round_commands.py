@@ -25,7 +25,8 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--replace-archive", action="store_true",
                    help="replace the round in the archive when its stored content differs "
                         "(the old rows are kept in the archive's audit table)")
-    p.add_argument("--strict", action="store_true", help="exit 1 when an item or u(x_pt) check fails")
+    p.add_argument("--strict", action="store_true",
+                   help="exit 1 when an item or u(x_pt) check fails (the outputs are written either way)")
     p.add_argument("--jobs", type=int, default=None, help="worker processes (default: all cores)")
     p.add_argument("--quiet", action="store_true", help="print nothing but errors")
     p.set_defaults(func=run_score)
@@ -48,7 +49,9 @@ def register(sub: argparse._SubParsersAction) -> None:
                    help="write a new form where one exists; the old file is kept as NAME.old-N.xlsx")
     f.set_defaults(func=run_forms)
 
-    c = sub.add_parser("check", help="validate a round folder without writing anything")
+    c = sub.add_parser("check", help="validate a round folder without writing anything",
+                       description="Read and evaluate the round as score would, print the summary and write "
+                                   "nothing. Exits 1 when an item or u(x_pt) check fails, 2 on an error.")
     c.add_argument("round", help="round folder or its round.toml")
     c.set_defaults(func=run_check)
 
@@ -146,6 +149,8 @@ def run_forms(args: argparse.Namespace) -> int:
                                     "([round] participants = \"participants.csv\") or give --labs",
                                     file=str(rnd.path))
         labs = [(lab, p.name) for lab, p in parts.items()]
+    for w in rnd.warnings:
+        print(f"note: {w}")
     out = Path(args.out) if args.out else rnd.folder / "blank-forms"
     _check_forms_folder(rnd, out)
     done = write_forms(rnd, labs, out, replace=args.replace)
@@ -188,5 +193,15 @@ def run_check(args: argparse.Namespace) -> int:
 
     ev = load_and_evaluate(args.round)
     print(summary_text(ev))
+    failed = ev.failed_checks
+    if failed:
+        print(f"\nThe round file and results are valid, but {_checks(len(failed))} failed (listed above); "
+              "nothing was written.")
+        print("roundscore: check: checks failed: " + "; ".join(failed), file=sys.stderr)
+        return 1
     print("\nThe round file and results are valid; nothing was written.")
     return 0
+
+
+def _checks(n: int) -> str:
+    return "1 check" if n == 1 else f"{n} checks"

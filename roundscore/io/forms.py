@@ -11,13 +11,22 @@ A form has two sheets:
     slips, not against intent) and the result cells are validated.
 ``form-info``
     Key/value pairs the reader relies on: the generator, the form format,
-    round id, lab code, the row where the table starts and how many
-    replicates the form asks for.
+    round id, lab code, the row where the table starts, how many
+    replicates the form asks for, the decimal mark the form was written
+    with (``[round] decimal``, or blank) and the cell where the lab can
+    state its own (``decimal_cell``).
+
+The heading block holds that choice in words ("Decimal mark": point or
+comma, a drop-down list). It only matters for numbers typed as text (a
+spreadsheet stores a typed number as a number, which is never ambiguous);
+when filled in, it decides how the form's text cells are read, ahead of
+``[round] decimal``; blank, the form-info value or the round's is used.
 """
 
 from __future__ import annotations
 
 import os
+import re
 import tempfile
 from dataclasses import dataclass
 from pathlib import Path
@@ -25,17 +34,24 @@ from typing import Iterable
 
 import xlsxwriter
 
-from ..errors import Problem
+from ..cells import DECIMAL_MARKS
+from ..errors import Problem, sheet_cell
 from ..round import Round
 from .xlsx import SheetRows
 
-__all__ = ["write_forms", "FormsWritten", "write_form", "records_from_form", "FORM_FORMAT", "RESULTS_SHEET", "INFO_SHEET"]
+__all__ = ["write_forms", "FormsWritten", "write_form", "records_from_form", "form_decimal", "FormDecimal",
+           "FORM_FORMAT", "RESULTS_SHEET", "INFO_SHEET", "DECIMAL_CELL"]
 
 FORM_FORMAT = 1
 RESULTS_SHEET = "Results"
 INFO_SHEET = "form-info"
 HEADER_ROW = 9  # 1-based row of the table header
 FIRST_ROW = HEADER_ROW + 1
+#: The cell of the heading block where a lab states the decimal mark of its text cells.
+DECIMAL_CELL = "B8"
+#: The choices offered in that cell (a spreadsheet's list is comma-separated, so no examples in them);
+#: the reader takes the first word of what the cell holds.
+DECIMAL_CHOICES = {"point": "point", "comma": "comma"}
 
 
 def _columns(replicates: int) -> list[str]:
@@ -66,6 +82,20 @@ def write_form(rnd: Round, lab: str, path: Path, *, name: str | None = None,
          ("Laboratory code", lab), ("Laboratory", name or ""), ("Return by", deadline)], start=1):
         ws.write(r, 0, label, bold)
         ws.write_string(r, 1, str(value))
+    drow, dcol = _cell_index(DECIMAL_CELL)
+    ws.write(drow, 0, "Decimal mark", bold)
+    choice = wb.add_format({"locked": False, "border": 1, "bg_color": "#FFFFFF"})
+    if rnd.decimal:
+        ws.write_string(drow, dcol, DECIMAL_CHOICES[rnd.decimal], choice)
+    else:
+        ws.write_blank(drow, dcol, None, choice)
+    ws.data_validation(drow, dcol, drow, dcol, {
+        "validate": "list", "source": list(DECIMAL_CHOICES.values()),
+        "input_title": "Decimal mark",
+        "input_message": "Only for results typed as text (such as <0,05): is the decimal mark a point or a comma?",
+        "error_message": "Choose point or comma, or leave the cell blank."})
+    ws.write(drow, dcol + 1, "point: 12.5, comma: 12,5 (only needed for numbers typed as text, such as <0,05)",
+             note)
     cols = _columns(reps)
     for j, c in enumerate(cols):
         ws.write(HEADER_ROW - 1, j, c, head)
@@ -113,7 +143,8 @@ def write_form(rnd: Round, lab: str, path: Path, *, name: str | None = None,
     info = wb.add_worksheet(INFO_SHEET)
     info.write_row(0, 0, ["key", "value"], bold)
     pairs = [("generator", "roundscore"), ("format", FORM_FORMAT), ("round", rnd.id), ("lab", lab),
-             ("replicates", reps), ("header_row", HEADER_ROW), ("measurands", len(rnd.measurands))]
+             ("replicates", reps), ("header_row", HEADER_ROW), ("measurands", len(rnd.measurands)),
+             ("decimal", rnd.decimal or ""), ("decimal_cell", DECIMAL_CELL)]
     for r, (k, v) in enumerate(pairs, start=1):
         info.write(r, 0, k)
         info.write(r, 1, v)
@@ -195,52 +226,125 @@ def _safe(text: str) -> str:
     return "".join(ch if ch.isalnum() or ch in "-_." else "_" for ch in text)
 
 
+def _cell_index(ref: str) -> tuple[int, int]:
+    """0-based (row, column) of an A1 reference such as ``B8``; ValueError when it is not one."""
+    m = re.fullmatch(r"([A-Z]{1,3})([1-9][0-9]{0,6})", ref)
+    if not m:
+        raise ValueError(ref)
+    col = 0
+    for ch in m.group(1):
+        col = col * 26 + ord(ch) - 64
+    return int(m.group(2)) - 1, col - 1
+
+
 @dataclass(frozen=True, slots=True, kw_only=True)
-class FormRead:
-    lab: str
-    records: list
-    problems: list[Problem]
+class FormDecimal:
+    """The decimal mark a returned form declares for its text cells, and where it says so."""
+
+    mark: str
+    source: str
+
+
+def _info(info: SheetRows) -> tuple[dict, dict]:
+    """form-info's key/value pairs, and the 1-based row of each key."""
+    kv, rows = {}, {}
+    for i, r in enumerate(info.rows[1:], start=2):
+        if r and r[0] is not None:
+            key = str(r[0]).strip()
+            kv[key] = r[1] if len(r) > 1 else None
+            rows.setdefault(key, i)
+    return kv, rows
+
+
+def form_decimal(results: SheetRows, info: SheetRows) -> tuple[FormDecimal | None, list[Problem]]:
+    """The decimal mark a form declares: its 'Decimal mark' cell if filled in, else its form-info value.
+
+    Returns ``(None, [])`` when the form declares none (the round's ``[round]
+    decimal`` then applies), and a problem naming the cell when the value is
+    neither point nor comma.
+    """
+    kv, where = _info(info)
+    file = results.file
+    ref = kv.get("decimal_cell")
+    if isinstance(ref, str):
+        try:
+            row, col = _cell_index(ref.strip())
+        except ValueError:
+            return None, [Problem(message="the form-info sheet is damaged (decimal_cell)", file=file,
+                                  sheet=INFO_SHEET, cell=f"B{where['decimal_cell']}", value=ref)]
+        v = results.rows[row][col] if row < len(results.rows) and col < len(results.rows[row]) else None
+        text = str(v).strip() if v is not None else ""
+        if text:
+            word = text.split()[0].lower()
+            if word in DECIMAL_MARKS:
+                return FormDecimal(mark=word, source=sheet_cell(results.sheet or RESULTS_SHEET, ref.strip())), []
+            return None, [Problem(message="the decimal mark must be point or comma, or the cell left blank",
+                                  file=file, sheet=results.sheet, row=row + 1, cell=ref.strip(),
+                                  column="Decimal mark", value=v,
+                                  hint="choose point or comma in the form's 'Decimal mark' cell")]
+    v = kv.get("decimal")
+    text = str(v).strip().lower() if v is not None else ""
+    if text:
+        if text in DECIMAL_MARKS:
+            return FormDecimal(mark=text, source=sheet_cell(INFO_SHEET, f"B{where['decimal']}")), []
+        return None, [Problem(message="the form-info sheet is damaged (decimal)", file=file, sheet=INFO_SHEET,
+                              cell=f"B{where['decimal']}", value=v)]
+    return None, []
 
 
 def records_from_form(rnd: Round, results: SheetRows, info: SheetRows):
     """Long-layout records from a returned form's two sheets.
 
-    Returns ``(records, problems)``; problems name the file, sheet and row.
+    Returns ``(records, problems)``; problems name the file and the cell
+    (``Results!D11``). Each record carries the decimal mark the form
+    declares (:func:`form_decimal`), or None for the round's.
     """
     from ..table import Record
 
     problems: list[Problem] = []
-    kv = {}
-    for r in info.rows[1:]:
-        if r and r[0] is not None:
-            kv[str(r[0]).strip()] = r[1] if len(r) > 1 else None
+    kv, where = _info(info)
     file = results.file
+
+    def info_cell(key: str) -> str | None:
+        return f"B{where[key]}" if key in where else None
+
     if kv.get("generator") != "roundscore":
         return [], [Problem(message=f"not a roundscore submission form (sheet {INFO_SHEET!r} lacks generator)",
                             file=file)]
     round_id = str(kv.get("round", "")).strip()
     if round_id != rnd.id:
         problems.append(Problem(message=f"this form is for round {round_id!r}, not {rnd.id!r}",
-                                file=file, sheet=INFO_SHEET))
+                                file=file, sheet=INFO_SHEET, cell=info_cell("round"),
+                                hint="put this round's returned forms in its results folder, and only those"))
     lab = kv.get("lab")
     lab = str(int(lab)) if isinstance(lab, float) and lab.is_integer() else str(lab or "").strip()
     if not lab:
-        problems.append(Problem(message="the form has no laboratory code", file=file, sheet=INFO_SHEET))
+        problems.append(Problem(message="the form has no laboratory code", file=file, sheet=INFO_SHEET,
+                                cell=info_cell("lab")))
     try:
         header_row = int(kv.get("header_row", HEADER_ROW))
         reps = int(kv.get("replicates", rnd.replicates))
     except (TypeError, ValueError):
         return [], problems + [Problem(message="the form-info sheet is damaged", file=file, sheet=INFO_SHEET)]
+    declared, found = form_decimal(results, info)
+    problems += found
     if problems:
         return [], problems
+    decimal = declared.mark if declared is not None else None
     rows = results.rows
     cols = _columns(reps)
     header = [str(c).strip() if c is not None else "" for c in (rows[header_row - 1] if len(rows) >= header_row else [])]
     if header[: len(cols)] != cols:
         return [], [Problem(message="the results table header was changed; expected: " + ", ".join(cols),
-                            file=file, sheet=results.sheet, row=header_row)]
+                            file=file, sheet=results.sheet, row=header_row,
+                            hint="return the form with its table as it was sent (copy the results into a "
+                                 "fresh form if needed)")]
     records = []
     iu = 2 + reps
+    fixed = {"measurand": (0, cols[0]), "unit": (1, cols[1]), "u": (iu, cols[iu]), "U": (iu + 1, cols[iu + 1]),
+             "k": (iu + 2, cols[iu + 2]), "method": (iu + 3, cols[iu + 3]), "comment": (iu + 4, cols[iu + 4])}
+    places = [dict(fixed, value=(1 + rep, cols[1 + rep]), replicate=(1 + rep, cols[1 + rep]))
+              for rep in range(1, reps + 1)]
     for i in range(header_row, len(rows)):
         r = list(rows[i]) + [None] * (len(cols) - len(rows[i]))
         name = r[0]
@@ -255,6 +359,6 @@ def records_from_form(rnd: Round, results: SheetRows, info: SheetRows):
             records.append(Record(
                 lab=lab, measurand=name, replicate=rep, value=v, unit=r[1], u=r[iu], U=r[iu + 1],
                 k=r[iu + 2], method=r[iu + 3], comment=r[iu + 4],
-                file=file, sheet=results.sheet, row=i + 1,
+                file=file, sheet=results.sheet, row=i + 1, decimal=decimal, cols=places[rep - 1],
             ))
     return records, problems

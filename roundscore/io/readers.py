@@ -3,13 +3,13 @@
 from __future__ import annotations
 
 import functools
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 
 from ..errors import InputError, Problem
 from ..round import Round
-from ..table import ResultTable, build_table, records_from_long, table_frame, validate_records
-from .forms import INFO_SHEET, RESULTS_SHEET, records_from_form
+from ..table import ResultTable, build_table, records_from_long, summarise_ambiguous, table_frame, validate_records
+from .forms import INFO_SHEET, RESULTS_SHEET, form_decimal, records_from_form
 from .xlsx import SheetRows, read_rows
 
 __all__ = ["read_results", "read_participants", "Participant", "read_item_table"]
@@ -28,17 +28,40 @@ def _is_form(path: Path) -> bool:
     return path.suffix.lower() in (".xlsx", ".xlsm")
 
 
+_MARK_WORDS = {"comma": "a decimal comma (1,234 is 1.234 and 1.234 is 1234)",
+               "point": "a decimal point (1,234 is 1234 and 1.234 is 1.234)"}
+
+
+def round_reading(rnd: Round) -> tuple[tuple[str, str], ...]:
+    """The audit line on how the round's text cells are read, when round.toml declares the decimal mark."""
+    if rnd.decimal is None:
+        return ()
+    return (("", f"numbers typed as text that could be read two ways read with {_MARK_WORDS[rnd.decimal]}, "
+                 f"as round.toml declares ([round] decimal = \"{rnd.decimal}\"); numbers with one reading "
+                 "(4,75) and numbers stored as numbers read as they are"),)
+
+
+def form_reading(rnd: Round, results: SheetRows, info: SheetRows, lab: str | None) -> list[tuple[str, str]]:
+    """The audit line of one form whose own decimal mark differs from the round's (none when it agrees)."""
+    declared, _ = form_decimal(results, info)
+    if declared is None or declared.mark == rnd.decimal:
+        return []
+    return [(lab or "", f"{results.file}: numbers typed as text that could be read two ways read with "
+                        f"{_MARK_WORDS[declared.mark]}, as the form declares ({declared.source})")]
+
+
 def _read_form(rnd: Round, path: Path):
     """One returned form given as the round's single results file (read in isolation)."""
     shown = _shown(rnd, path)
     (got,) = _read_sheets([str(path)], rnd.limits)
     if not isinstance(got, tuple):  # a ReadFailure or an InputError
         probs = got.as_problems() if hasattr(got, "as_problems") else list(got.problems)
-        return [], [_with_file(p, shown) for p in probs], ()
+        return [], [_with_file(p, shown) for p in probs], (), []
     results, info = got
-    results = SheetRows(file=shown, sheet=results.sheet, rows=results.rows, warnings=results.warnings)
+    results = replace(results, file=shown)
     recs, problems = records_from_form(rnd, results, info)
-    return recs, problems, results.warnings + info.warnings
+    lab = str(recs[0].lab) if recs else None
+    return recs, problems, results.warnings + info.warnings, form_reading(rnd, results, info, lab)
 
 
 def read_results(rnd: Round, *, jobs: int | None = None, progress=None) -> ResultTable:
@@ -55,6 +78,7 @@ def read_results(rnd: Round, *, jobs: int | None = None, progress=None) -> Resul
     records: list = []
     problems: list[Problem] = []
     warnings: list[str] = []
+    readings: list[tuple[str, str]] = list(round_reading(rnd))
     single_table = len(files) == 1 and not (Path(rnd.folder / rnd.results).is_dir()
                                             or any(ch in rnd.results for ch in "*?["))
     if not single_table:
@@ -67,21 +91,24 @@ def read_results(rnd: Round, *, jobs: int | None = None, progress=None) -> Resul
                 problems += [_with_file(p, shown) for p in got.as_problems()]
                 continue
             sheet = got.sheets[0]
-            sheet = SheetRows(file=shown, sheet=sheet.sheet, rows=sheet.rows, warnings=sheet.warnings)
+            sheet = replace(sheet, file=shown)
             if sheet.sheet and INFO_SHEET in _sheet_names(f):
-                recs, probs, warns = _read_form(rnd, f)
+                recs, probs, warns, notes = _read_form(rnd, f)
+                readings += notes
             else:
                 recs, probs = records_from_long(sheet)
                 warns = sheet.warnings
         elif _is_form(f):
-            recs, probs, warns = _read_form(rnd, f)
+            recs, probs, warns, notes = _read_form(rnd, f)
+            readings += notes
         else:
             probs = [Problem(message="not a submission workbook (.xlsx)", file=shown)]
             recs, warns = [], ()
         records += recs
         problems += probs
         warnings += list(warns)
-    return build_table(rnd, records, files=[_shown(rnd, f) for f in files], warnings=warnings, problems=problems)
+    return build_table(rnd, records, files=[_shown(rnd, f) for f in files], warnings=warnings, problems=problems,
+                       readings=readings)
 
 
 def _read_forms(rnd: Round, files: list[Path], *, jobs: int | None, progress) -> ResultTable:
@@ -106,34 +133,48 @@ def _read_forms(rnd: Round, files: list[Path], *, jobs: int | None, progress) ->
                                      then=functools.partial(_form_rows, rnd), progress=report)))
     problems: list[Problem] = []
     warnings: list[str] = []
+    readings: list[tuple[str, str]] = list(round_reading(rnd))
     rows: list[tuple] = []
     shown = [_shown(rnd, Path(p)) for p in paths]
     for p, name in zip(paths, shown):
         got = read.get(p)
         if got is None:
-            problems.append(Problem(message="not a submission workbook (.xlsx)", file=name))
+            problems.append(Problem(message="not a submission workbook (.xlsx)", file=name,
+                                    hint="the results folder holds returned forms (.xlsx) only"))
         elif isinstance(got, _FormRows):
             rows += got.rows
             problems += got.problems
             warnings += got.warnings
+            readings += got.readings
         else:  # a ReadFailure: refused, crashed, out of memory or timed out
             problems += [_with_file(q, name) for q in got.as_problems()]
     del read
     frame = table_frame(rows)
-    dup = frame.duplicated(["lab", "measurand", "replicate"], keep="first").to_numpy()
-    if dup.any():
-        first = frame[~dup].set_index(["lab", "measurand", "replicate"])
-        for r in frame[dup].itertuples(index=False):
-            f = first.loc[(r.lab, r.measurand, r.replicate)]
-            problems.append(Problem(
-                message=f"duplicate result for lab {r.lab}, {r.measurand}, replicate {r.replicate} "
-                        f"(also in {f['file']}" + (f" sheet {f['sheet']!r}" if f["sheet"] else "") +
-                        f" row {f['row']})",
-                file=r.file, sheet=r.sheet, row=int(r.row), column="replicate", lab=r.lab,
-                measurand=r.measurand, value=int(r.replicate)))
+    problems = summarise_ambiguous(problems + _duplicate_forms(frame))
     if problems:
         raise InputError(problems, summary="the results cannot be imported")
-    return ResultTable(frame=frame, files=tuple(shown), warnings=tuple(warnings))
+    return ResultTable(frame=frame, files=tuple(shown), warnings=tuple(warnings), readings=tuple(readings))
+
+
+def _duplicate_forms(frame) -> list[Problem]:
+    """One problem per form whose results repeat those of an earlier form (the same lab code twice).
+
+    A lab's second form repeats every result of its first: that is one
+    problem, said once with both files, not one per result.
+    """
+    dup = frame.duplicated(["lab", "measurand", "replicate"], keep="first").to_numpy()
+    if not dup.any():
+        return []
+    first = frame[~dup].set_index(["lab", "measurand", "replicate"])["file"]
+    found: dict[tuple[str, str, str], int] = {}
+    for r in frame[dup].itertuples(index=False):
+        key = (r.file, r.lab, first.loc[(r.lab, r.measurand, r.replicate)])
+        found[key] = found.get(key, 0) + 1
+    return [Problem(message=f"lab {lab} returned two forms: this one and {other} ({n} result"
+                            f"{'s' if n != 1 else ''} given in both)",
+                    file=file, lab=lab,
+                    hint="keep one form per lab: remove the extra form, or correct its laboratory code")
+            for (file, lab, other), n in found.items()]
 
 
 @dataclass(frozen=True, slots=True)
@@ -143,6 +184,7 @@ class _FormRows:
     rows: list
     problems: list
     warnings: list
+    readings: list
 
 
 def _read_sheets(paths: list[str], limits) -> list:
@@ -157,15 +199,15 @@ def _form_rows(rnd: Round, got) -> _FormRows:
     """Worker side of :func:`_read_forms`: one form's two sheets turned into validated rows."""
     results, info = got.sheets
     shown = _shown(rnd, Path(got.file))
-    results = SheetRows(file=shown, sheet=results.sheet, rows=results.rows, warnings=results.warnings)
+    results = replace(results, file=shown)
     records, problems = records_from_form(rnd, results, info)
     rows, found = validate_records(rnd, records)
-    return _FormRows(rows=rows, problems=problems + found, warnings=list(results.warnings + info.warnings))
+    readings = form_reading(rnd, results, info, str(records[0].lab) if records else None)
+    return _FormRows(rows=rows, problems=problems + found, warnings=list(results.warnings + info.warnings),
+                     readings=readings)
 
 
 def _with_file(problem: Problem, shown: str) -> Problem:
-    from dataclasses import replace
-
     return replace(problem, file=shown)
 
 
@@ -206,20 +248,22 @@ def read_participants(rnd: Round) -> dict[str, Participant]:
         return {}
     shown = _shown(rnd, rnd.participants)
     sheet = _read_table(rnd, rnd.participants, shown)
-    rows = [r for r in sheet.rows if any(c is not None for c in r)]
-    if not rows:
+    # Rows as the person numbers them in the file (blank rows skipped, not renumbered).
+    numbered = [(sheet.row_number(i), r) for i, r in enumerate(sheet.rows) if any(c is not None for c in r)]
+    if not numbered:
         raise InputError.single("the participants file is empty", file=shown)
-    header = [str(c).strip().lower() if c is not None else "" for c in rows[0]]
+    head_row, head = numbered[0]
+    header = [str(c).strip().lower() if c is not None else "" for c in head]
     if "lab" not in header:
         raise InputError.single(
             f"the participants file needs a 'lab' column (and 'name', 'contact'); found: {', '.join(header)}",
-            file=shown, row=1)
+            file=shown, sheet=sheet.sheet, row=head_row)
     il = header.index("lab")
     iname = header.index("name") if "name" in header else None
     icontact = header.index("contact") if "contact" in header else None
     out: dict[str, Participant] = {}
     problems = []
-    for i, r in enumerate(rows[1:], start=2):
+    for i, r in numbered[1:]:
         def cell(j):
             if j is None or j >= len(r) or r[j] is None:
                 return ""
@@ -227,10 +271,11 @@ def read_participants(rnd: Round) -> dict[str, Participant]:
             return str(int(v)) if isinstance(v, float) and v.is_integer() else str(v).strip()
         lab = cell(il)
         if not lab:
-            problems.append(Problem(message="the lab code is empty", file=shown, row=i))
+            problems.append(Problem(message="the lab code is empty", file=shown, sheet=sheet.sheet, row=i))
             continue
         if lab in out:
-            problems.append(Problem(message="the lab appears twice", file=shown, row=i, lab=lab))
+            problems.append(Problem(message="the lab appears twice", file=shown, sheet=sheet.sheet, row=i,
+                                    lab=lab))
             continue
         out[lab] = Participant(lab=lab, name=cell(iname), contact=cell(icontact))
     if problems:
@@ -244,7 +289,7 @@ def read_item_table(rnd: Round, path: Path, *, what: str) -> SheetRows:
         raise InputError.single(f"the {what} file named in the round file was not found", file=_shown(rnd, path))
     shown = _shown(rnd, path)
     sheet = _read_table(rnd, path, shown)
-    return SheetRows(file=shown, sheet=sheet.sheet, rows=sheet.rows, warnings=sheet.warnings)
+    return replace(sheet, file=shown)
 
 
 def _read_table(rnd: Round, path: Path, shown: str) -> SheetRows:

@@ -50,12 +50,20 @@ class SheetRows:
     warnings : tuple of str
         Things worth telling the user that do not stop the import
         (hidden rows or sheets, merged cells, macros...).
+    lines : tuple of int or None
+        For a text file whose quoted fields span several lines: the line on
+        which each row starts. None when row ``i`` is line ``i + 1``.
     """
 
     file: str
     sheet: str | None
     rows: list[list[object]]
     warnings: tuple[str, ...] = field(default=())
+    lines: tuple[int, ...] | None = None
+
+    def row_number(self, i: int) -> int:
+        """The row (workbook) or line (text file) where ``rows[i]`` is, as the person sees it."""
+        return self.lines[i] if self.lines is not None else i + 1
 
 
 def read_rows(path: str | Path, sheet: str | None = None, *, limits: ReadLimits = DEFAULT_LIMITS) -> SheetRows:
@@ -162,17 +170,22 @@ def read_csv_rows(path: str | Path, *, limits: ReadLimits = DEFAULT_LIMITS) -> S
     delimiter = _delimiter(text)
     old = csv.field_size_limit()
     rows: list[list[object]] = []
+    starts: list[int] = []
     reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter)
     try:
         csv.field_size_limit(MAX_TEXT_FIELD)
         for r in reader:
+            starts.append(reader.line_num)  # the line a row ends on; where it starts is found below
             rows.append([c if c != "" else None for c in r])
     except csv.Error as exc:
         raise InputError.single(f"the text table cannot be read: {exc} (an unclosed quote?)",
                                 file=file, row=reader.line_num or None) from None
     finally:
         csv.field_size_limit(old)
-    return SheetRows(file=file, sheet=None, rows=rows)
+    lines = None
+    if starts and starts[-1] != len(starts):  # a quoted field spans lines: number rows by their first line
+        lines = tuple([1] + [end + 1 for end in starts[:-1]])
+    return SheetRows(file=file, sheet=None, rows=rows, lines=lines)
 
 
 def read_workbook_rows(path: str | Path, sheet: str | None = None, *,

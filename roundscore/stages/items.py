@@ -60,12 +60,12 @@ from typing import Any, Literal, get_args
 import numpy as np
 
 from ..cells import CellError, parse_cell
-from ..errors import InputError, Problem, StatisticsError
+from ..errors import InputError, Problem, StatisticsError, cell_ref, is_text_file
 from ..io.readers import read_item_table
 from ..io.xlsx import SheetRows
 from ..round import MeasurandSettings, Round
 from ..stats import items as st
-from ..table import cell_label
+from ..table import cell_label, summarise_ambiguous
 from ..units import UnitError, factor
 
 __all__ = [
@@ -262,28 +262,34 @@ def read_item_values(rnd: Round, m: MeasurandSettings, kind: TableKind) -> ItemT
     if path is None:
         raise InputError.single(f"no {kind} table is named for measurand {m.name}", file=str(rnd.path))
     sheet = read_item_table(rnd, Path(path), what=kind)
-    return _parse(sheet, m, kind, tuple(rnd.measurands))
+    return _parse(sheet, m, kind, tuple(rnd.measurands), decimal=rnd.decimal)
 
 
 def _parse(sheet: SheetRows, m: MeasurandSettings, kind: TableKind,
-           rnd_names: tuple[str, ...] = ()) -> ItemTable:
+           rnd_names: tuple[str, ...] = (), *, decimal: str | None = None) -> ItemTable:
     required, optional = _REQUIRED[kind], _OPTIONAL[kind]
     rnd_names = rnd_names or (m.name,)
     known = {n.lower() for n in rnd_names}
     problems: list[Problem] = []
     notes: list[str] = []
 
-    def bad(message: str, row: int | None, column: str | None = None, value: object = None) -> None:
+    index: dict[str, int] = {}
+
+    def bad(message: str, row: int | None, column: str | None = None, value: object = None,
+            hint: str | None = None) -> None:
+        cell = None  # a workbook's cell is named as the person sees it: Sheet1!C4
+        if sheet.sheet is not None and row is not None and column in index:
+            cell = cell_ref(row, index[column])
         problems.append(Problem(message=message, file=sheet.file, sheet=sheet.sheet, row=row, column=column,
-                                measurand=m.name, value=value))
+                                measurand=m.name, value=value, cell=cell, hint=hint))
 
     rows = sheet.rows
+    _row_word = "line" if is_text_file(sheet.file, sheet.sheet) else "row"
     start = next((i for i, r in enumerate(rows) if any(cell_label(c) for c in r)), None)
     if start is None:
         bad(f"the {kind} table is empty; the header must hold {', '.join(required)}", None)
         raise InputError(problems, summary=f"the {kind} table cannot be read")
     header = [cell_label(c) or "" for c in rows[start]]
-    index: dict[str, int] = {}
     ignored = []
     for j, name in enumerate(header):
         key = name.lower()
@@ -313,7 +319,7 @@ def _parse(sheet: SheetRows, m: MeasurandSettings, kind: TableKind,
         r = rows[i]
         if not any(cell_label(c) for c in r):
             continue
-        row = i + 1
+        row = sheet.row_number(i)
         get = {k: (r[j] if j < len(r) else None) for k, j in index.items()}
         if "measurand" in index:
             name = cell_label(get["measurand"])
@@ -342,14 +348,14 @@ def _parse(sheet: SheetRows, m: MeasurandSettings, kind: TableKind,
         key = (set_name, item, rep)
         if key in seen:
             what = f"set {set_name!r}, " if set_name else ""
-            bad(f"duplicate measurement for {what}item {item!r}, replicate {rep} (also row {seen[key]})",
+            bad(f"duplicate measurement for {what}item {item!r}, replicate {rep} (also {_row_word} {seen[key]})",
                 row, "replicate", get["replicate"])
             continue
         seen[key] = row
         try:
-            cell = parse_cell(get["value"])
+            cell = parse_cell(get["value"], decimal=decimal)
         except CellError as exc:
-            bad(str(exc), row, "value", get["value"])
+            bad(str(exc), row, "value", get["value"], exc.hint)
             continue
         if cell.kind == "censored":
             bad(_WHY_CENSORED, row, "value", get["value"])
@@ -372,9 +378,9 @@ def _parse(sheet: SheetRows, m: MeasurandSettings, kind: TableKind,
             continue
         if kind == "stability" and cell_label(get.get("u")) is not None:
             try:
-                uc = parse_cell(get["u"])
+                uc = parse_cell(get["u"], decimal=decimal)
             except CellError as exc:
-                bad(f"u: {exc}", row, "u", get["u"])
+                bad(f"u: {exc}", row, "u", get["u"], exc.hint)
                 continue
             if uc.kind != "value" or uc.value is None or uc.value < 0:
                 bad("u must be a number ≥ 0: the standard uncertainty of the set's mean", row, "u", get["u"])
@@ -396,7 +402,7 @@ def _parse(sheet: SheetRows, m: MeasurandSettings, kind: TableKind,
     if not problems:
         _check_layout(kind, items, sets, where, set_names, bad)
     if problems:
-        raise InputError(problems, summary=f"the {kind} table for {m.name} cannot be used")
+        raise InputError(summarise_ambiguous(problems), summary=f"the {kind} table for {m.name} cannot be used")
     return ItemTable(
         file=sheet.file, kind=kind, items=tuple(items), replicates=tuple(reps),
         values=np.asarray(values, dtype=float), sets=tuple(sets) if kind == "stability" else None,
