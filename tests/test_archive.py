@@ -448,12 +448,16 @@ def test_migration_from_version_1(tmp_path):
         conn.execute("INSERT INTO scores (scheme, round_id, lab, measurand, z, signal, score) "
                      "VALUES ('AQ', 'R0', 'L01', 'lead', 2.5, 'warning', 'z')")
     assert count(db, "PRAGMA user_version") == 1
-    hist = archive.lab_history(db, lab="L01")  # opening migrates
+    before = db.read_bytes()
+    hist = archive.lab_history(db, lab="L01")  # reading an old schema works and changes nothing
     assert hist["score_value"].tolist() == [2.5]
-    assert count(db, "PRAGMA user_version") == archive.SCHEMA_VERSION == 2
-    assert count(db, "SELECT COUNT(*) FROM schema_version") == 2
-    assert count(db, "SELECT origin FROM rounds") == "lab"
-    store(db, scores_frame(round_id="R0", date="2022-05-01"), replace=True)
+    assert db.read_bytes() == before and count(db, "PRAGMA user_version") == 1
+    store(db, scores_frame(round_id="R0", date="2022-05-01"), replace=True)  # a write migrates
+    assert count(db, "PRAGMA user_version") == archive.SCHEMA_VERSION == 3
+    assert count(db, "PRAGMA application_id") == archive.APPLICATION_ID
+    assert count(db, "SELECT COUNT(*) FROM schema_version") == 3
+    old_round = json.loads(count(db, "SELECT row FROM audit WHERE kind = 'round'"))
+    assert old_round["origin"] == "lab"  # migration 2's default for rounds stored before it
     assert count(db, "SELECT COUNT(*) FROM audit WHERE kind = 'score'") == 1
 
 
@@ -466,7 +470,7 @@ def test_newer_schema_and_foreign_files_are_refused(tmp_path):
         archive.lab_history(db, lab="L01")
     junk = tmp_path / "junk.sqlite"
     junk.write_bytes(b"this is not a database at all" * 100)
-    with pytest.raises(ArchiveError, match="not a usable roundscore archive"):
+    with pytest.raises(ArchiveError, match="junk.sqlite: not a roundscore archive: not an SQLite"):
         archive.lab_history(junk, lab="L01")
     with pytest.raises(ArchiveError, match="no archive at"):
         archive.lab_history(tmp_path / "absent.sqlite", lab="L01")
