@@ -105,6 +105,9 @@ class StoreOutcome:
         The lab whose rows were imported (``None`` for a whole round).
     file : str or None
         The file read (``None`` for :func:`store_round`).
+    warnings : tuple of str
+        What the reader noticed without refusing the file (a lab sheet too old
+        to carry a digest, hidden rows...).
     """
 
     status: Status
@@ -114,6 +117,7 @@ class StoreOutcome:
     round_id: str = ""
     lab: str | None = None
     file: str | None = None
+    warnings: tuple[str, ...] = ()
 
     def to_dict(self) -> dict[str, object]:
         return {f: getattr(self, f) for f in self.__slots__}
@@ -386,7 +390,7 @@ def _store_lab_rows(conn: sqlite3.Connection, item: _LabRows, *, replace: bool, 
                     reason: str) -> StoreOutcome:
     label = f"lab {item.lab!r}, round {item.round_id!r} of scheme {item.scheme!r}"
     common = dict(rows=len(item.rows), scheme=item.scheme, round_id=item.round_id,
-                  lab=item.lab, file=file)
+                  lab=item.lab, file=file, warnings=item.warnings)
     old_round = _round_record(conn, item.scheme, item.round_id)
     old_rows = _existing_lab_rows(conn, item.scheme, item.round_id, item.lab)
     status: Status = "added"
