@@ -178,7 +178,7 @@ def row_problems(row: dict[str, object], *, file: str | None, sheet: str | None,
         if expected is None:
             bad(column, "a score without the result, assigned value or σ_pt it is computed from")
         elif not _close(got, expected, spread * per):
-            bad(column, f"does not agree with the row: {formula} = {expected:.6g}")
+            bad(column, f"does not agree with the row: {formula} = {expected:.12g}")
     for column, factor, name in (("zeta", 1.0, "u(assigned)"), ("en", _EN_K, "2 u(assigned)")):
         got = _num(row.get(column))
         if got is None:
