@@ -326,11 +326,16 @@ def read_lab_file(file: Path, lab: str | None) -> list[LabRows]:
                 problems.append(Problem(message=f"sheet 'round' gives {key} {want!r} but the "
                                         f"data sheet holds {sorted(got_keys)}", file=str(file),
                                         sheet="round"))
+    labs = sorted({r[0] for r in rows if r[0] is not None})
+    chosen = lab if lab is not None else (labs[0] if len(labs) == 1 else None)
+    for number, row in zip(numbers, rows):
+        if chosen is not None and row[0] == chosen:
+            problems += row_problems(dict(zip(ROW_FIELDS, row)), file=str(file), sheet=sheet,
+                                     row_number=number)
     if problems:
         raise InputError(problems, summary=f"{file}: the scores have problems")
     if not rows:
         raise InputError.single("holds no score rows", file=str(file), sheet=sheet)
-    labs = sorted({r[0] for r in rows})
     if lab is None and len(labs) > 1:
         shown = ", ".join(labs[:10]) + (" ..." if len(labs) > 10 else "")
         raise InputError.single(f"holds {len(labs)} labs ({shown}); pass --lab to choose yours",
@@ -338,13 +343,6 @@ def read_lab_file(file: Path, lab: str | None) -> list[LabRows]:
     if lab is not None and lab not in labs:
         raise InputError.single(f"has no rows for lab {lab!r} (labs in the file: "
                                 f"{', '.join(labs[:10])})", file=str(file))
-    chosen = lab if lab is not None else labs[0]
-    for number, row in zip(numbers, rows):
-        if row[0] == chosen:
-            problems += row_problems(dict(zip(ROW_FIELDS, row)), file=str(file), sheet=sheet,
-                                     row_number=number)
-    if problems:
-        raise InputError(problems, summary=f"{file}: rows of lab {chosen} disagree with themselves")
     groups: dict[tuple[str, str, str], list[tuple]] = {}
     for key, row in zip(keys, rows):
         if row[0] == chosen:
