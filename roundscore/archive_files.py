@@ -7,7 +7,12 @@ pure reading and validation; nothing touches the archive file.
   workbook sheet) into tuples in :data:`ROW_FIELDS` order, collecting every
   problem with its file, sheet, row, column and value.
 * :func:`read_lab_file` reads a ``scores.csv`` or a per-lab workbook into one
-  :class:`LabRows` per (scheme, round) for the chosen lab.
+  :class:`LabRows` per (scheme, round) for the chosen lab.  These files come
+  from outside: a workbook is read like a returned form (package check, then
+  a bounded worker process: :func:`roundscore.io.safety.read_many`), a CSV by
+  the bounded text reader (:func:`roundscore.io.xlsx.read_csv_rows`); every
+  row of the chosen lab is checked for consistency and a lab sheet against
+  its digests (:mod:`roundscore.archive_checks`).
 
 A CSV writer neutralises cells that start with ``= + - @`` with a leading
 ``'`` (OWASP, "CSV Injection"); the readers undo that so the stored text is
