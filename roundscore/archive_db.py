@@ -275,9 +275,35 @@ def transaction(conn: sqlite3.Connection) -> Iterator[sqlite3.Connection]:
     conn.execute("COMMIT")
 
 
-def _read_only(file: Path, timeout: float) -> sqlite3.Connection:
-    uri = file.resolve().as_uri() + "?mode=ro"
+def _read_only(file: Path, timeout: float, *, immutable: bool = False) -> sqlite3.Connection:
+    uri = file.resolve().as_uri() + ("?immutable=1" if immutable else "?mode=ro")
     return sqlite3.connect(uri, uri=True, timeout=timeout, isolation_level=None)
+
+
+def _open_to_read(file: Path, timeout: float, newest: int) -> tuple[sqlite3.Connection, str]:
+    """A read-only connection and the file's kind.
+
+    In a folder where SQLite may not create ``FILE-shm`` (a read-only share,
+    a backup medium) a WAL file cannot be opened ``mode=ro``; when no
+    ``FILE-wal`` exists, no process can be writing to it either (a writer
+    needs that file), so it is read as immutable (SQLite, "Write-Ahead
+    Logging", 8, "Read-Only Databases").
+    """
+    conn = None
+    try:
+        conn = _read_only(file, timeout)
+        return conn, _identify(conn, file, newest)
+    except sqlite3.Error as exc:
+        if conn is not None:
+            conn.close()
+        if _code(exc) not in (_READONLY, _CANTOPEN) or _companions(file)[0].exists():
+            raise
+    conn = _read_only(file, timeout, immutable=True)
+    try:
+        return conn, _identify(conn, file, newest)
+    except BaseException:
+        conn.close()
+        raise
 
 
 def _companions(file: Path) -> tuple[Path, Path]:
@@ -367,8 +393,7 @@ def open_archive(path: str | os.PathLike[str] | None, *, write: bool,
     tidy = not any(p.exists() for p in _companions(file))
     try:
         if size:
-            conn = _read_only(file, timeout)
-            kind = _identify(conn, file, len(migrations))
+            conn, kind = _open_to_read(file, timeout, len(migrations))
             if kind == "ours":
                 _integrity(conn, file)
                 if write:

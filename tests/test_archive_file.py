@@ -295,3 +295,26 @@ def test_other_round_file_paths_stay_inside_the_round_folder(tmp_path):
     (tmp_path / "people.csv").write_text("lab,name\nW1,Somewhere\n", encoding="utf-8")
     with pytest.raises(RoundFileError, match="round.participants.*a path inside the round folder"):
         load_round(folder)
+
+
+def test_an_archive_in_a_read_only_folder_can_still_be_read(tmp_path, monkeypatch):
+    # SQLite cannot open a WAL file mode=ro where it may not create FILE-shm ("Write-Ahead
+    # Logging", 8); with no FILE-wal nobody can be writing, so it is read as immutable.  (Tests
+    # may run as root, for whom folder permissions do not apply, so the refusal is simulated.)
+    db = tmp_path / "a.sqlite"
+    store(db, scores_frame())
+    real = archive_db._read_only
+    calls = []
+
+    def no_shm(file, timeout, *, immutable=False):
+        calls.append(immutable)
+        if not immutable:
+            exc = sqlite3.OperationalError("attempt to write a readonly database")
+            exc.sqlite_errorcode = 8  # SQLITE_READONLY ("Result and Error Codes")
+            raise exc
+        return real(file, timeout, immutable=True)
+
+    monkeypatch.setattr(archive_db, "_read_only", no_shm)
+    before = snapshot(tmp_path)
+    assert archive.lab_history(db, lab="L02")["lab"].tolist() == ["L02", "L02"]
+    assert calls == [False, True] and snapshot(tmp_path) == before
