@@ -67,7 +67,7 @@ from roundscore.archive_files import (FLOAT_FIELDS as _FLOAT_FIELDS, ROW_FIELDS 
 from roundscore import archive_db as _db
 from roundscore.archive_db import (APPLICATION_ID, ARCHIVE_ENV, archive_path, now as _now,
                                    transaction as _transaction)
-from roundscore.errors import ArchiveConflict, ArchiveError, InputError, Problem, RoundFileError
+from roundscore.errors import ArchiveConflict, InputError, Problem, RoundFileError
 
 if TYPE_CHECKING:  # only for annotations: the archive does not depend on the evaluation
     from roundscore.evaluate import RoundEvaluation

@@ -11,12 +11,10 @@ name the file.
 from __future__ import annotations
 
 import hashlib
-import os
 import sqlite3
 from pathlib import Path
 
 import numpy as np
-import pandas as pd
 import pytest
 
 from roundscore import archive, archive_db

@@ -11,11 +11,9 @@ leave the archive as it was (row counts before and after).
 
 from __future__ import annotations
 
-import io
 import shutil
 import subprocess
 import zipfile
-import zlib
 from pathlib import Path
 
 import openpyxl
@@ -25,7 +23,6 @@ from roundscore import archive
 from roundscore.archive_checks import canonical, row_problems
 from roundscore.archive_files import ROW_FIELDS, read_lab_file
 from roundscore.demo import make_demo_round
-from roundscore.errors import InputError
 from roundscore.io.workbook import lab_payload, write_lab_workbook
 from roundscore.pipeline import load_and_evaluate
 
@@ -160,7 +157,7 @@ def test_the_reported_edit_is_refused_with_the_row_named(sheets, tmp_path, db):
         wb["data"].cell(row=row, column=head["z"], value=0.5)
         wb["data"].cell(row=row, column=head["signal"], value="acceptable")
     edit(book, change)
-    text = refused(db, book, f"sheet 'data', row {holder['row']}", "lab K07, measurand iodine",
+    refused(db, book, f"sheet 'data', row {holder['row']}", "lab K07, measurand iodine",
                    "does not match its digest", "column 'z'", "(result − assigned) / σ_pt = 6.2459")
 
 
