@@ -30,8 +30,13 @@ Design decisions
   ``audit`` table with a UTC timestamp and a reason.
 * The schema is versioned with ``PRAGMA user_version`` and a list of migration
   functions (:data:`MIGRATIONS`); each applied migration is also logged in the
-  ``schema_version`` table.  Opening a file applies the missing migrations;
-  a file from a newer roundscore is refused rather than guessed at.
+  ``schema_version`` table.  Opening a file to write applies the missing
+  migrations; reading never does (the queries read every released schema).
+  A file from a newer roundscore is refused rather than guessed at.
+* The file is marked with ``PRAGMA application_id`` (migration 3), checked
+  with ``PRAGMA quick_check`` whenever it is opened, opened read-only by the
+  reading functions, and waited for while another process writes: see
+  :mod:`roundscore.archive_db`.
 
 References
 ----------
@@ -48,10 +53,9 @@ import math
 import os
 import sqlite3
 from collections.abc import Callable, Iterable, Sequence
-from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
-from typing import TYPE_CHECKING, Any, Iterator, Literal
+from typing import TYPE_CHECKING, Any, Literal
 
 import pandas as pd
 
@@ -60,18 +64,18 @@ from roundscore.archive_files import (FLOAT_FIELDS as _FLOAT_FIELDS, ROW_FIELDS 
                                       normalise_rows as _normalise_rows, parse_date as _parse_date,
                                       plain as _plain, read_lab_file as _read_lab_file,
                                       text_key as _text, unquote as _unquote)
-from roundscore.errors import ArchiveError, InputError, Problem, RoundFileError
+from roundscore import archive_db as _db
+from roundscore.archive_db import (APPLICATION_ID, ARCHIVE_ENV, archive_path, now as _now,
+                                   transaction as _transaction)
+from roundscore.errors import ArchiveConflict, InputError, Problem, RoundFileError
 
 if TYPE_CHECKING:  # only for annotations: the archive does not depend on the evaluation
     from roundscore.evaluate import RoundEvaluation
     from roundscore.round import Round
 
-__all__ = ["ARCHIVE_ENV", "SCORE_COLUMNS", "HISTORY_COLUMNS", "MIGRATIONS", "SCHEMA_VERSION",
+__all__ = ["ARCHIVE_ENV", "APPLICATION_ID", "SCORE_COLUMNS", "HISTORY_COLUMNS", "MIGRATIONS", "SCHEMA_VERSION",
            "StoreOutcome", "archive_path", "store_round", "add_files", "lab_history",
            "archived_labs", "round_history", "store_evaluation", "check_round_keys"]
-
-#: Environment variable that overrides the default archive file.
-ARCHIVE_ENV = "ROUNDSCORE_ARCHIVE"
 
 #: Significant digits of score floats in the content hash: the precision of the pipeline's
 #: ``scores.csv`` (roundscore.io.csvout.FLOAT_FORMAT, ``{:.12g}``), the least precise file a
@@ -101,6 +105,9 @@ class StoreOutcome:
         The lab whose rows were imported (``None`` for a whole round).
     file : str or None
         The file read (``None`` for :func:`store_round`).
+    warnings : tuple of str
+        What the reader noticed without refusing the file (a lab sheet too old
+        to carry a digest, hidden rows...).
     """
 
     status: Status
@@ -110,6 +117,7 @@ class StoreOutcome:
     round_id: str = ""
     lab: str | None = None
     file: str | None = None
+    warnings: tuple[str, ...] = ()
 
     def to_dict(self) -> dict[str, object]:
         return {f: getattr(self, f) for f in self.__slots__}
@@ -146,87 +154,26 @@ def _migration_2(conn: sqlite3.Connection) -> None:
     conn.execute("CREATE INDEX scores_by_lab ON scores (lab, measurand)")
 
 
+def _migration_3(conn: sqlite3.Connection) -> None:
+    """Mark the file as a roundscore archive (PRAGMA application_id)."""
+    conn.execute(f"PRAGMA application_id = {_db.APPLICATION_ID:d}")
+
+
 #: Ordered schema migrations; migration ``i`` (0-based) brings a file to version ``i + 1``.
 #: Never edit a released migration: append a new one.
-MIGRATIONS: tuple[Callable[[sqlite3.Connection], None], ...] = (_migration_1, _migration_2)
+MIGRATIONS: tuple[Callable[[sqlite3.Connection], None], ...] = (_migration_1, _migration_2,
+                                                                 _migration_3)
 SCHEMA_VERSION = len(MIGRATIONS)
 
 
-def archive_path(path: str | os.PathLike[str] | None = None) -> Path:
-    """The archive file: ``path`` if given, else ``$ROUNDSCORE_ARCHIVE``, else the user data dir.
-
-    The default is ``platformdirs.user_data_dir("roundscore") / "archive.sqlite"``.
-    """
-    if path:
-        return Path(path)
-    if os.environ.get(ARCHIVE_ENV):
-        return Path(os.environ[ARCHIVE_ENV])
-    import platformdirs
-
-    return Path(platformdirs.user_data_dir("roundscore")) / "archive.sqlite"
-
-
-def _now() -> str:
-    return _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds")
-
-
-def _migrate(conn: sqlite3.Connection, file: Path,
-             migrations: Sequence[Callable[[sqlite3.Connection], None]] = MIGRATIONS) -> None:
-    version = conn.execute("PRAGMA user_version").fetchone()[0]
-    if version > len(migrations):
-        raise ArchiveError(
-            f"{file}: archive schema version {version} was written by a newer roundscore; "
-            f"this version reads up to {len(migrations)}")
-    if version == len(migrations):
-        return
-    with _transaction(conn):
-        version = conn.execute("PRAGMA user_version").fetchone()[0]  # re-read under the lock
-        if version == 0:
-            conn.execute("CREATE TABLE IF NOT EXISTS schema_version ("
-                         "version INTEGER PRIMARY KEY, applied_at TEXT NOT NULL, description TEXT)")
-        for number in range(version + 1, len(migrations) + 1):
-            step = migrations[number - 1]
-            step(conn)
-            doc = (step.__doc__ or "").strip().splitlines()[0] if step.__doc__ else ""
-            conn.execute("INSERT INTO schema_version VALUES (?, ?, ?)", (number, _now(), doc))
-            conn.execute(f"PRAGMA user_version = {number:d}")
-
-
-@contextmanager
-def _transaction(conn: sqlite3.Connection) -> Iterator[sqlite3.Connection]:
-    """``BEGIN IMMEDIATE`` ... ``COMMIT``; rolled back on any exception."""
-    conn.execute("BEGIN IMMEDIATE")
-    try:
-        yield conn
-    except BaseException:
-        conn.execute("ROLLBACK")
-        raise
-    conn.execute("COMMIT")
-
-
-@contextmanager
 def _connect(path: str | os.PathLike[str] | None, *, create: bool,
-             migrations: Sequence[Callable[[sqlite3.Connection], None]] = MIGRATIONS,
-             ) -> Iterator[sqlite3.Connection]:
-    file = archive_path(path)
-    if not file.exists():
-        if not create:
-            raise ArchiveError(f"no archive at {file}; add rounds first with 'roundscore history add'")
-        file.parent.mkdir(parents=True, exist_ok=True)
-    try:
-        conn = sqlite3.connect(file, timeout=30.0, isolation_level=None)
-    except sqlite3.Error as exc:
-        raise ArchiveError(f"{file}: cannot open the archive: {exc}") from None
-    try:
-        conn.execute("PRAGMA journal_mode = WAL")
-        conn.execute("PRAGMA synchronous = FULL")
-        conn.execute("PRAGMA foreign_keys = ON")
-        _migrate(conn, file, migrations)
-        yield conn
-    except sqlite3.DatabaseError as exc:
-        raise ArchiveError(f"{file}: not a usable roundscore archive ({exc})") from None
-    finally:
-        conn.close()
+             migrations: Sequence[Callable[[sqlite3.Connection], None]] = MIGRATIONS):
+    """Open the archive to write (``create``: made when missing, migrated) or read-only.
+
+    See :func:`roundscore.archive_db.open_archive`: the file is recognised
+    and checked first, and a read yields ``None`` for an empty file.
+    """
+    return _db.open_archive(path, write=create, migrations=migrations)
 
 
 # --------------------------------------------------------------------------- canonical rows
@@ -410,7 +357,7 @@ def store_round(path: str | os.PathLike[str] | None, *, scheme: str, round_id: s
                                     message=f"{label} is already archived with identical "
                                             "content; nothing changed")
             if not replace:
-                raise ArchiveError(
+                raise ArchiveConflict(
                     f"{label} is already archived (stored {old['stored_at']}) with different "
                     "content; replace=True replaces it (the old rows are then kept in the audit "
                     "table)")
@@ -443,7 +390,7 @@ def _store_lab_rows(conn: sqlite3.Connection, item: _LabRows, *, replace: bool, 
                     reason: str) -> StoreOutcome:
     label = f"lab {item.lab!r}, round {item.round_id!r} of scheme {item.scheme!r}"
     common = dict(rows=len(item.rows), scheme=item.scheme, round_id=item.round_id,
-                  lab=item.lab, file=file)
+                  lab=item.lab, file=file, warnings=item.warnings)
     old_round = _round_record(conn, item.scheme, item.round_id)
     old_rows = _existing_lab_rows(conn, item.scheme, item.round_id, item.lab)
     status: Status = "added"
@@ -456,7 +403,7 @@ def _store_lab_rows(conn: sqlite3.Connection, item: _LabRows, *, replace: bool, 
             what = ("a different round date "
                     f"({old_round['round_date']} archived, {item.round_date} in the file)"
                     if old_round["round_date"] != item.round_date else "different scores")
-            raise ArchiveError(f"{file}: {label} is already archived with {what}; use "
+            raise ArchiveConflict(f"{file}: {label} is already archived with {what}; use "
                                "--replace to replace it (the old rows are kept in the audit table)")
         _audit(conn, scheme=item.scheme, round_id=item.round_id, lab=item.lab, reason=reason,
                whole_round=False)
@@ -602,10 +549,10 @@ def lab_history(path: str | os.PathLike[str] | None, *, lab: str | Sequence[str]
            f"{', '.join('s.' + c for c in _ROW_FIELDS)} FROM scores s JOIN rounds r "
            f"ON r.scheme = s.scheme AND r.round_id = s.round_id WHERE {' AND '.join(clauses)} "
            "ORDER BY r.round_date, s.round_id, s.scheme, s.lab, s.measurand")
+    names = ["scheme", "round", "round_date", "title", *_ROW_FIELDS]
     with _connect(path, create=False) as conn:
-        cur = conn.execute(sql, args)
-        names = [d[0] for d in cur.description]
-        frame = pd.DataFrame(cur.fetchall(), columns=names)
+        rows = conn.execute(sql, args).fetchall() if conn is not None else []  # None: empty file
+    frame = pd.DataFrame(rows, columns=names)
     if last is not None and len(frame):
         frame = frame.groupby(["scheme", "lab", "measurand"], sort=False).tail(last)
     value_col = frame["score"].map(SCORE_VALUE_COLUMN)
@@ -631,6 +578,8 @@ def _result_column(values: pd.Series) -> pd.Series:
 def archived_labs(path: str | os.PathLike[str] | None) -> list[str]:
     """Every lab code in the archive, sorted."""
     with _connect(path, create=False) as conn:
+        if conn is None:  # an empty file
+            return []
         return [r[0] for r in conn.execute("SELECT DISTINCT lab FROM scores ORDER BY lab")]
 
 
@@ -665,7 +614,8 @@ def round_history(path: str | os.PathLike[str], *, scheme: str, labs: Sequence[s
     Parameters
     ----------
     path : path
-        Archive file.  When it does not exist yet there is no history: ``{}``.
+        Archive file, opened read-only (nothing is created or migrated).
+        When it does not exist yet there is no history: ``{}``.
     scheme : str
         The round's scheme (lab codes are only meaningful within a scheme).
     labs : sequence of str
@@ -682,7 +632,7 @@ def round_history(path: str | os.PathLike[str], *, scheme: str, labs: Sequence[s
     dict of str to pandas.DataFrame
         Lab code to its :data:`HISTORY_COLUMNS` frame (labs without history are absent).
     """
-    if not labs or not Path(path).exists():
+    if not labs or not archive_path(path).exists():
         return {}
     frame = lab_history(path, lab=list(labs), scheme=scheme, before_date=round_date,
                         exclude_round=round_id, last=last)

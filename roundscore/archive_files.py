@@ -7,7 +7,12 @@ pure reading and validation; nothing touches the archive file.
   workbook sheet) into tuples in :data:`ROW_FIELDS` order, collecting every
   problem with its file, sheet, row, column and value.
 * :func:`read_lab_file` reads a ``scores.csv`` or a per-lab workbook into one
-  :class:`LabRows` per (scheme, round) for the chosen lab.
+  :class:`LabRows` per (scheme, round) for the chosen lab.  These files come
+  from outside: a workbook is read like a returned form (package check, then
+  a bounded worker process: :func:`roundscore.io.safety.read_many`), a CSV by
+  the bounded text reader (:func:`roundscore.io.xlsx.read_csv_rows`); every
+  row of the chosen lab is checked for consistency and a lab sheet against
+  its digests (:mod:`roundscore.archive_checks`).
 
 A CSV writer neutralises cells that start with ``= + - @`` with a leading
 ``'`` (OWASP, "CSV Injection"); the readers undo that so the stored text is
@@ -18,13 +23,16 @@ from __future__ import annotations
 
 import datetime as _dt
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Sequence
 
 import pandas as pd
 
 from roundscore.errors import InputError, Problem
+
+from .archive_checks import (DIGEST_KEY, EDIT_HINT, RESUBMIT_HINT, ROW_DIGEST_COLUMN, canonical,
+                             row_digest, row_problems, sheet_digest)
 
 # One definition of the score-row contract (evaluate.py) and of the score and signal names.
 from .evaluate import SCORE_COLUMNS, SCORE_FIELD as SCORE_VALUE_COLUMN
@@ -92,7 +100,8 @@ def parse_date(value: object) -> str | None:
 
 
 def normalise_rows(records: Sequence[dict[str, object]], *, file: str | None, sheet: str | None,
-                    first_row: int) -> tuple[list[tuple], list[Problem]]:
+                   first_row: int, row_numbers: Sequence[int] | None = None,
+                   ) -> tuple[list[tuple], list[Problem]]:
     """Validate and convert score records into tuples in :data:`ROW_FIELDS` order.
 
     Text cells are stripped and un-neutralised; empty cells become ``None``;
@@ -100,13 +109,16 @@ def normalise_rows(records: Sequence[dict[str, object]], *, file: str | None, sh
     also be a censored result, kept as its text (``"<0.1"``, ``">200"``,
     ``"<limit not given"``, as the pipeline writes it); SQLite's REAL column
     affinity keeps such text as text ("Datatypes In SQLite", section 3).  Every problem is
-    collected with its row (``first_row`` is the spreadsheet row of record 0).
+    collected with its row (``first_row`` is the spreadsheet row of record 0, or
+    ``row_numbers`` gives each record's row when blank rows were skipped).
     """
     rows: list[tuple] = []
     problems: list[Problem] = []
     seen: dict[tuple[str, str], int] = {}
+    numbers = list(row_numbers) if row_numbers is not None else [first_row + i
+                                                                  for i in range(len(records))]
     for i, rec in enumerate(records):
-        where = dict(file=file, sheet=sheet, row=first_row + i)
+        where = dict(file=file, sheet=sheet, row=numbers[i])
         out: list[object] = []
         for col in ROW_FIELDS:
             raw = plain(rec.get(col))
@@ -154,7 +166,7 @@ def normalise_rows(records: Sequence[dict[str, object]], *, file: str | None, sh
         if key in seen and lab is not None and measurand is not None:
             problems.append(Problem(message=f"duplicate lab x measurand (also on row {seen[key]})",
                                     lab=lab, measurand=measurand, **where))
-        seen.setdefault(key, first_row + i)
+        seen.setdefault(key, numbers[i])
         rows.append(row)
     return rows, problems
 
@@ -163,7 +175,7 @@ def normalise_rows(records: Sequence[dict[str, object]], *, file: str | None, sh
 
 @dataclass(frozen=True, slots=True, kw_only=True)
 class LabRows:
-    """Rows of one lab in one round, read from a file."""
+    """Rows of one lab in one round, read from a file, with what the reader noticed."""
 
     scheme: str
     round_id: str
@@ -171,44 +183,71 @@ class LabRows:
     lab: str
     title: str
     rows: tuple[tuple, ...]
+    warnings: tuple[str, ...] = ()
 
 
-def _read_csv(file: Path) -> list[dict[str, object]]:
-    try:
-        frame = pd.read_csv(file, dtype=str, keep_default_na=False, encoding="utf-8-sig")
-    except (UnicodeDecodeError, pd.errors.ParserError, pd.errors.EmptyDataError) as exc:
-        raise InputError.single(f"cannot be read as a scores.csv table ({exc})",
-                                file=str(file)) from None
-    missing = [c for c in SCORE_COLUMNS if c not in frame.columns]
-    if missing:
-        raise InputError.single(f"not a roundscore scores.csv: missing columns: {', '.join(missing)}",
-                                file=str(file))
-    return frame.to_dict(orient="records")
+@dataclass(frozen=True, slots=True, kw_only=True)
+class _Sheet:
+    """The records of one score file: rows by header, their spreadsheet rows, and the file's keys."""
+
+    records: list[dict[str, object]]
+    numbers: list[int]
+    sheet: str | None
+    meta: dict[str, object] | None = None
+    meta_items: tuple[tuple[object, object], ...] = ()
+    header: tuple[str, ...] = ()
+    warnings: tuple[str, ...] = ()
 
 
-def _read_workbook(file: Path) -> tuple[list[dict[str, object]], dict[str, object]]:
-    from python_calamine import CalamineWorkbook
-
-    try:
-        book = CalamineWorkbook.from_path(str(file))
-    except Exception as exc:  # calamine raises its own error types
-        raise InputError.single(f"cannot be read as a workbook ({exc})", file=str(file)) from None
-    for name in ("data", "round"):
-        if name not in book.sheet_names:
-            raise InputError.single(f"not a roundscore lab workbook: no sheet {name!r}",
-                                    file=str(file))
-    cells = book.get_sheet_by_name("data").to_python()
-    header = [str(c).strip() for c in cells[0]] if cells else []
+def _records(file: Path, rows: list[list[object]], sheet: str | None) -> _Sheet:
+    """Header row + data rows into records (blank rows skipped, their numbers kept)."""
+    header = tuple(str(c).strip() if c is not None else "" for c in rows[0]) if rows else ()
     missing = [c for c in SCORE_COLUMNS if c not in header]
     if missing:
-        raise InputError.single(f"missing columns: {', '.join(missing)}", file=str(file),
-                                sheet="data")
-    records = [dict(zip(header, r)) for r in cells[1:] if any(v not in ("", None) for v in r)]
+        what = "not a roundscore scores.csv: " if sheet is None else ""
+        raise InputError.single(f"{what}missing columns: {', '.join(missing)}", file=str(file),
+                                sheet=sheet)
+    records, numbers = [], []
+    for i, r in enumerate(rows[1:], start=2):
+        if any(v not in ("", None) for v in r):
+            records.append(dict(zip(header, r)))
+            numbers.append(i)
+    return _Sheet(records=records, numbers=numbers, sheet=sheet, header=header)
+
+
+def _read_csv(file: Path) -> _Sheet:
+    """A ``scores.csv``: read by the bounded text reader (size limit, no binary, any common encoding)."""
+    from .io.safety import DEFAULT_LIMITS
+    from .io.xlsx import read_csv_rows
+
+    got = read_csv_rows(file, limits=DEFAULT_LIMITS)
+    return _records(file, got.rows, None)
+
+
+def _read_workbook(file: Path) -> _Sheet:
+    """A lab's score sheet: its ``data`` and ``round`` sheets, read as a returned form is.
+
+    The package is checked first (zip bombs, DTDs and entities, encryption:
+    :func:`roundscore.io.safety.inspect_workbook`) and the cells are read in a
+    bounded worker process (:func:`roundscore.io.safety.read_many`), so a
+    hostile or broken file is refused by name and never takes the process down.
+    """
+    from .io.safety import DEFAULT_LIMITS, read_many
+
+    got = read_many([file], ["data", "round"], jobs=1, limits=DEFAULT_LIMITS)[0]
+    if not hasattr(got, "sheets"):  # a ReadFailure: refused, crashed, out of memory or timed out
+        problems = [replace(q, file=str(file), message=("not a roundscore lab workbook: " + q.message
+                                                          if q.message.startswith("no sheet named")
+                                                          else q.message))
+                    for q in got.as_problems()]
+        raise InputError(problems, summary=f"{file} cannot be read")
+    data, meta_sheet = got.sheets
+    sheet = _records(file, data.rows, "data")
+    items = tuple((r[0], r[1] if len(r) > 1 else None) for r in meta_sheet.rows[1:]
+                  if r and r[0] is not None and str(r[0]).strip())
     meta: dict[str, object] = {}
-    for r in book.get_sheet_by_name("round").to_python()[1:]:
-        if len(r) >= 2 and str(r[0]).strip():
-            value = r[1]
-            meta[str(r[0]).strip()] = unquote(value.strip()) if isinstance(value, str) else value
+    for key, value in items:
+        meta[str(key).strip()] = unquote(value.strip()) if isinstance(value, str) else value
     if text_key(meta.get("generator")) != "roundscore":
         raise InputError.single("not a roundscore lab workbook: key 'generator' is not 'roundscore'",
                                 file=str(file), sheet="round", value=meta.get("generator"))
@@ -216,45 +255,92 @@ def _read_workbook(file: Path) -> tuple[list[dict[str, object]], dict[str, objec
         raise InputError.single(f"workbook format {meta.get('format')!r} is not supported "
                                 f"(this version reads format {WORKBOOK_FORMAT})",
                                 file=str(file), sheet="round")
-    return records, meta
+    warnings = tuple(dict.fromkeys(data.warnings + meta_sheet.warnings))
+    return replace(sheet, meta=meta, meta_items=items, warnings=warnings)
+
+
+def _digest_findings(file: Path, got: _Sheet) -> tuple[list[Problem], list[str]]:
+    """Compare a lab sheet's digests with its cells (see :mod:`roundscore.archive_checks`)."""
+    has_column, has_key = ROW_DIGEST_COLUMN in got.header, DIGEST_KEY in (got.meta or {})
+    if not has_column and not has_key:
+        return [], ["written by a roundscore without sheet digests, so edits made to it since "
+                    "cannot be detected; each row was checked for consistency"]
+    if has_column != has_key:
+        lost = f"key {DIGEST_KEY!r}" if has_column else f"column {ROW_DIGEST_COLUMN!r}"
+        return [Problem(message=f"the sheet's digest is incomplete ({lost} is missing): the "
+                                f"sheet was edited after roundscore wrote it; {EDIT_HINT}",
+                        file=str(file), sheet="round" if has_column else "data")], []
+    problems = []
+    for rec, number in zip(got.records, got.numbers):
+        if canonical(rec.get(ROW_DIGEST_COLUMN)) != row_digest([rec.get(c) for c in SCORE_COLUMNS]):
+            problems.append(Problem(
+                message=f"this row does not match its digest: it was changed after roundscore "
+                        f"wrote the sheet; {RESUBMIT_HINT}",
+                file=str(file), sheet="data", row=number, lab=text_key(rec.get("lab")) or None,
+                measurand=text_key(rec.get("measurand")) or None))
+    if not problems:
+        whole = sheet_digest(got.meta_items, [rec.get(ROW_DIGEST_COLUMN) for rec in got.records])
+        if whole != canonical(got.meta[DIGEST_KEY]):  # type: ignore[index]
+            problems.append(Problem(
+                message="the sheet does not match its digest although every row does: rows were "
+                        "added, copied or removed in sheet 'data', or sheet 'round' was edited, "
+                        f"after roundscore wrote it; {RESUBMIT_HINT}", file=str(file), sheet="round"))
+    return problems, []
 
 
 def read_lab_file(file: Path, lab: str | None) -> list[LabRows]:
-    """Read a ``scores.csv`` or ``labs/LAB.xlsx`` into per (scheme, round, lab) groups."""
+    """Read a ``scores.csv`` or ``labs/LAB.xlsx`` into per (scheme, round, lab) groups.
+
+    Every row of the chosen lab is checked for consistency
+    (:func:`roundscore.archive_checks.row_problems`), and a lab sheet's rows
+    against its digests; any problem refuses the whole file, naming the rows.
+    """
     if not file.is_file():
         raise InputError.single("file not found", file=str(file))
-    suffix, first, meta, sheet = file.suffix.lower(), 2, None, None  # row 1 is the header
+    suffix = file.suffix.lower()
     if suffix in (".csv", ".txt"):
-        records = _read_csv(file)
+        got = _read_csv(file)
     elif suffix in (".xlsx", ".xlsm"):
-        (records, meta), sheet = _read_workbook(file), "data"
+        got = _read_workbook(file)
     else:
         raise InputError.single("neither a roundscore scores.csv nor a lab workbook "
                                 "(.csv or .xlsx expected)", file=str(file))
-    rows, problems = normalise_rows(records, file=str(file), sheet=sheet, first_row=first)
+    records, numbers, sheet, meta = got.records, got.numbers, got.sheet, got.meta
+    rows, problems = normalise_rows(records, file=str(file), sheet=sheet, first_row=2,
+                                    row_numbers=numbers)
+    warnings = [w[len(str(file)) + 2:] if w.startswith(f"{file}: ") else w for w in got.warnings]
+    if meta is not None:
+        found, notes = _digest_findings(file, got)
+        problems += found
+        warnings += notes
     keys = []
-    for i, rec in enumerate(records):
+    for number, rec in zip(numbers, records):
         scheme, round_id = text_key(rec.get("scheme")), text_key(rec.get("round"))
         date = parse_date(rec.get("round_date"))
         if not scheme or not round_id or date is None:
             problems.append(Problem(message="scheme, round and an ISO round_date are required",
-                                    file=str(file), sheet=sheet, row=first + i,
+                                    file=str(file), sheet=sheet, row=number,
                                     value=[scheme, round_id, rec.get("round_date")]))
         keys.append((scheme, round_id, date))
     if meta is not None:
         held = {"scheme": {k[0] for k in keys}, "round": {k[1] for k in keys},
                 "lab": {str(r[0]) for r in rows}}
-        for key, got in held.items():
+        for key, got_keys in held.items():
             want = text_key(meta.get(key))
-            if not want or got - {want}:
+            if not want or got_keys - {want}:
                 problems.append(Problem(message=f"sheet 'round' gives {key} {want!r} but the "
-                                        f"data sheet holds {sorted(got)}", file=str(file),
+                                        f"data sheet holds {sorted(got_keys)}", file=str(file),
                                         sheet="round"))
+    labs = sorted({r[0] for r in rows if r[0] is not None})
+    chosen = lab if lab is not None else (labs[0] if len(labs) == 1 else None)
+    for number, row in zip(numbers, rows):
+        if chosen is not None and row[0] == chosen:
+            problems += row_problems(dict(zip(ROW_FIELDS, row)), file=str(file), sheet=sheet,
+                                     row_number=number)
     if problems:
         raise InputError(problems, summary=f"{file}: the scores have problems")
     if not rows:
         raise InputError.single("holds no score rows", file=str(file), sheet=sheet)
-    labs = sorted({r[0] for r in rows})
     if lab is None and len(labs) > 1:
         shown = ", ".join(labs[:10]) + (" ..." if len(labs) > 10 else "")
         raise InputError.single(f"holds {len(labs)} labs ({shown}); pass --lab to choose yours",
@@ -262,7 +348,6 @@ def read_lab_file(file: Path, lab: str | None) -> list[LabRows]:
     if lab is not None and lab not in labs:
         raise InputError.single(f"has no rows for lab {lab!r} (labs in the file: "
                                 f"{', '.join(labs[:10])})", file=str(file))
-    chosen = lab if lab is not None else labs[0]
     groups: dict[tuple[str, str, str], list[tuple]] = {}
     for key, row in zip(keys, rows):
         if row[0] == chosen:
@@ -270,6 +355,6 @@ def read_lab_file(file: Path, lab: str | None) -> list[LabRows]:
     if len({(s, r) for s, r, _ in groups}) != len(groups):
         raise InputError.single("one round carries two different round dates", file=str(file))
     title = str(meta.get("title") or "") if meta else ""
-    return [LabRows(scheme=s, round_id=r, round_date=d, lab=chosen, title=title, rows=tuple(v))
+    return [LabRows(scheme=s, round_id=r, round_date=d, lab=chosen, title=title, rows=tuple(v),
+                    warnings=tuple(warnings))
             for (s, r, d), v in sorted(groups.items())]
-

@@ -26,6 +26,7 @@ __all__ = [
     "RoundFileError",
     "StatisticsError",
     "ArchiveError",
+    "ArchiveConflict",
 ]
 
 
@@ -233,3 +234,10 @@ class StatisticsError(ValueError, RoundscoreError):
 
 class ArchiveError(RoundscoreError):
     """The history archive cannot take or give what was asked."""
+
+
+class ArchiveConflict(ArchiveError):
+    """The archive already holds this round (or this lab's rows) with different content.
+
+    The only archive error that replacing (``--replace``, ``--replace-archive``) resolves.
+    """

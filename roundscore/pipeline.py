@@ -186,7 +186,7 @@ def run_round(round_path: str | Path, out: str | Path, *, archive: str | Path | 
     history = None
     if store is not None:
         from . import archive as history_archive
-        from .errors import ArchiveError
+        from .errors import ArchiveConflict, ArchiveError
 
         history_archive.check_round_keys(ev.round)
         history = history_archive.round_history(
@@ -198,10 +198,11 @@ def run_round(round_path: str | Path, out: str | Path, *, archive: str | Path | 
     if store is not None:
         try:
             outcome = history_archive.store_evaluation(store, ev, replace=replace_archive)
-        except ArchiveError as exc:
-            raise ArchiveError(
-                f"the outputs were written to {final}, but the round was not archived: {exc}; "
-                "'roundscore score --replace-archive' replaces it") from None
+        except ArchiveError as exc:  # only a content conflict is resolved by replacing
+            advice = ("; 'roundscore score --replace-archive' replaces it"
+                      if isinstance(exc, ArchiveConflict) else "")
+            raise type(exc)(f"the outputs were written to {final}, but the round was not "
+                            f"archived: {exc}{advice}") from None
         if on_archive is not None:
             on_archive(outcome)
     return ev, Outputs(folder=final, files=tuple(final / p.relative_to(tmp) for p in written))

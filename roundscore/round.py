@@ -51,7 +51,7 @@ ROUND_KEYS: dict[str, str] = {
     "confidence": "number between 0.5 and 0.999 for method comparisons (default 0.95)",
     "outliers": "'exclude' or 'keep': ISO 5725-2 outliers in the precision estimates (default exclude)",
     "stragglers": "'exclude' or 'keep': ISO 5725-2 stragglers (default keep)",
-    "archive": "an archive file to store the round in",
+    "archive": "an archive file to store the round in (may be outside the round folder; ~ is your home folder)",
     "history_rounds": "whole number: past rounds shown on each lab sheet (default 8)",
     "youden": "list of pairs of measurand names for Youden plots",
     "words": "'signals' (acceptable/warning/action) or 'performance' (satisfactory/questionable/unsatisfactory)",
@@ -299,6 +299,24 @@ def _inside(c: _Checker, folder: Path, key: str, value: str | None) -> Path | No
     return p
 
 
+def _archive_file(c: _Checker, folder: Path, value: str | None) -> Path | None:
+    """``[round] archive``: the one round-file path that may lie outside the round folder.
+
+    A provider keeps one archive for all its rounds, so an absolute path, a
+    path starting with ``~`` (the home folder, expanded as a shell would) or a
+    relative path leading out of the folder (``../history.sqlite``) is
+    accepted; a relative path is taken from the round folder.
+    """
+    if not value:
+        return None
+    try:
+        p = Path(value).expanduser()
+    except RuntimeError as exc:  # no home folder known, or an unknown ~user
+        c.bad("round.archive", value, f"a path whose '~' can be expanded ({exc})")
+        return None
+    return p if p.is_absolute() else folder / p
+
+
 def _measurand(c: _Checker, folder: Path, name: str, raw: object) -> MeasurandSettings | None:
     t = f"measurand.{name}"
     if not isinstance(raw, dict):
@@ -485,7 +503,7 @@ def load_round(path: str | Path) -> Round:
         confidence=confidence,
         outliers=c.choice("round.outliers", r.get("outliers"), OUTLIER_ACTIONS, "exclude"),
         stragglers=c.choice("round.stragglers", r.get("stragglers"), OUTLIER_ACTIONS, "keep"),
-        archive=(folder / archive_text) if archive_text else None,
+        archive=_archive_file(c, folder, archive_text),
         history_rounds=c.whole("round.history_rounds", r.get("history_rounds"), 8, 1, 100),
         youden=tuple(youden),
         words=c.choice("round.words", r.get("words"), ("signals", "performance"), "signals"),

@@ -32,18 +32,36 @@ REPO = Path(__file__).resolve().parents[1]
 def scores_frame(*, scheme="AQ", round_id="2024-1", date="2024-03-04",
                  labs=("L01", "L02", "L03"), measurands=("nitrate", "lead"), shift=0.0,
                  note="") -> pd.DataFrame:
-    """An invented scores table with exactly the pipeline's scores.csv columns."""
+    """An invented scores table with exactly the pipeline's scores.csv columns.
+
+    Each row is internally consistent (z = d / σ_pt, z′ = d / √(σ_pt² + u²), ζ within
+    |d| / u(x_pt)), as ``history add`` checks (ISO 13528:2022 §9).
+    """
     rows = []
     for i, lab in enumerate(labs):
         for j, m in enumerate(measurands):
             z = round(-1.0 + 0.7 * i + 0.3 * j + shift, 6)
             rows.append(dict(
                 lab=lab, measurand=m, unit="mg/L", n_replicates=2, result=10.0 + z,
-                assigned=10.0, u_assigned=0.05, sigma_pt=1.0, z=z, z_prime=z * 0.98,
+                assigned=10.0, u_assigned=0.05, sigma_pt=1.0, z=z, z_prime=z / np.hypot(1.0, 0.05),
                 zeta=z * 1.5, en=np.nan, d=z, d_percent=10.0 * z,
                 signal="acceptable" if abs(z) <= 2 else ("warning" if abs(z) < 3 else "action"),
                 note=note, score="z", scheme=scheme, round=round_id, round_date=date))
     return pd.DataFrame(rows, columns=list(archive.SCORE_COLUMNS))
+
+
+def rescore(frame: pd.DataFrame) -> pd.DataFrame:
+    """The score columns computed again from result, assigned, σ_pt and u (ISO 13528:2022 §9),
+    blank for a censored result, as the pipeline writes them."""
+    out = frame.copy()
+    x = pd.to_numeric(out["result"], errors="coerce").astype(float)
+    a, s, u = out["assigned"], out["sigma_pt"], out["u_assigned"]
+    out["d"], out["d_percent"] = x - a, 100.0 * (x - a) / a
+    out["z"], out["z_prime"] = (x - a) / s, (x - a) / np.hypot(s, u)
+    out["zeta"], out["en"] = 1.5 * (x - a) / s, np.nan
+    out["signal"] = ["not-scored" if not np.isfinite(z) else "acceptable" if abs(z) <= 2 else
+                     "warning" if abs(z) < 3 else "action" for z in out["z"]]
+    return out
 
 
 def stats_frame(measurands=("nitrate", "lead"), mean=10.0) -> pd.DataFrame:
@@ -239,8 +257,9 @@ def test_pipeline_csv_precision_and_workbook_agree(tmp_path):
 
     assert FLOAT_FORMAT == f"{{:.{archive.HASH_DIGITS}g}}"
     frame = scores_frame()
-    frame["z"] = frame["z"] + 1.0 / 3.0  # repeating binary fractions: 12 digits lose the tail
-    frame["result"] = frame["result"] * (2.0 / 3.0)
+    frame["result"] = frame["result"] * (2.0 / 3.0)  # repeating binary fractions: 12 digits
+    frame["sigma_pt"] = 1.0 / 3.0  # lose the tail
+    frame = rescore(frame)
     csv = tmp_path / "scores.csv"
     write_csv(frame, csv, archive.SCORE_COLUMNS)
     assert "0.333333333333," in csv.read_text(encoding="utf-8")  # really 12 digits
@@ -251,8 +270,8 @@ def test_pipeline_csv_precision_and_workbook_agree(tmp_path):
 
 
 @pytest.mark.parametrize("kind, expected", [
-    ("no_data_sheet", "no sheet 'data'"),
-    ("no_round_sheet", "no sheet 'round'"),
+    ("no_data_sheet", "not a roundscore lab workbook: no sheet named 'data'"),
+    ("no_round_sheet", "not a roundscore lab workbook: no sheet named 'round'"),
     ("wrong_generator", "generator"),
     ("wrong_format", "format 2"),
     ("lab_mismatch", "sheet 'round' gives lab 'L09'"),
@@ -367,6 +386,7 @@ def test_censored_results_are_kept_as_text(tmp_path, cell, stored, problem):
     frame = scores_frame(labs=("L01",))
     frame["result"] = frame["result"].astype(object)
     frame.loc[0, "result"] = cell
+    frame = rescore(frame)
     csv = tmp_path / "scores.csv"
     frame.to_csv(csv, index=False)
     db = tmp_path / "lab.sqlite"
@@ -448,12 +468,16 @@ def test_migration_from_version_1(tmp_path):
         conn.execute("INSERT INTO scores (scheme, round_id, lab, measurand, z, signal, score) "
                      "VALUES ('AQ', 'R0', 'L01', 'lead', 2.5, 'warning', 'z')")
     assert count(db, "PRAGMA user_version") == 1
-    hist = archive.lab_history(db, lab="L01")  # opening migrates
+    before = db.read_bytes()
+    hist = archive.lab_history(db, lab="L01")  # reading an old schema works and changes nothing
     assert hist["score_value"].tolist() == [2.5]
-    assert count(db, "PRAGMA user_version") == archive.SCHEMA_VERSION == 2
-    assert count(db, "SELECT COUNT(*) FROM schema_version") == 2
-    assert count(db, "SELECT origin FROM rounds") == "lab"
-    store(db, scores_frame(round_id="R0", date="2022-05-01"), replace=True)
+    assert db.read_bytes() == before and count(db, "PRAGMA user_version") == 1
+    store(db, scores_frame(round_id="R0", date="2022-05-01"), replace=True)  # a write migrates
+    assert count(db, "PRAGMA user_version") == archive.SCHEMA_VERSION == 3
+    assert count(db, "PRAGMA application_id") == archive.APPLICATION_ID
+    assert count(db, "SELECT COUNT(*) FROM schema_version") == 3
+    old_round = json.loads(count(db, "SELECT row FROM audit WHERE kind = 'round'"))
+    assert old_round["origin"] == "lab"  # migration 2's default for rounds stored before it
     assert count(db, "SELECT COUNT(*) FROM audit WHERE kind = 'score'") == 1
 
 
@@ -466,7 +490,7 @@ def test_newer_schema_and_foreign_files_are_refused(tmp_path):
         archive.lab_history(db, lab="L01")
     junk = tmp_path / "junk.sqlite"
     junk.write_bytes(b"this is not a database at all" * 100)
-    with pytest.raises(ArchiveError, match="not a usable roundscore archive"):
+    with pytest.raises(ArchiveError, match="junk.sqlite: not a roundscore archive: not an SQLite"):
         archive.lab_history(junk, lab="L01")
     with pytest.raises(ArchiveError, match="no archive at"):
         archive.lab_history(tmp_path / "absent.sqlite", lab="L01")

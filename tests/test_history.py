@@ -257,14 +257,16 @@ def test_add_reports_each_file(tmp_path, capsys):
     db = tmp_path / "lab.sqlite"
     frame = pd.DataFrame([dict(lab=lab, measurand="lead", unit="ug/L", n_replicates=1,
                                result=5.1, assigned=5.0, u_assigned=0.05, sigma_pt=0.5, z=0.2,
-                               z_prime=0.2, zeta=0.3, en="", d=0.1, d_percent=2.0,
+                               z_prime=0.2 / np.hypot(1.0, 0.1), zeta=0.3, en="", d=0.1,
+                               d_percent=2.0,
                                signal="acceptable", note="", score="z", scheme="AQ",
                                round="2024-1", round_date="2024-02-02") for lab in ("L07", "L99")],
                          columns=COLS)
     good = tmp_path / "scores.csv"
     frame.to_csv(good, index=False)
     changed = tmp_path / "reissued.csv"
-    frame.assign(z=0.4).to_csv(changed, index=False)
+    frame.assign(result=5.2, z=0.4, z_prime=0.4 / np.hypot(1.0, 0.1), d=0.2,
+                 d_percent=4.0).to_csv(changed, index=False)  # a reissue, consistent in itself
     got, out = run_cli(["history", "add", str(good), "--lab", "L07", "--archive", str(db)],
                        capsys)
     assert got == 0 and "added: lab 'L07'" in out.out

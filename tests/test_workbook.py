@@ -36,16 +36,18 @@ def test_data_and_round_sheets_keep_their_contract(books):
     ev, _, lab_path = books
     wb = openpyxl.load_workbook(lab_path)
     rows = list(wb["data"].iter_rows(values_only=True))
-    assert list(rows[0]) == list(SCORE_COLUMNS)
+    assert list(rows[0]) == [*SCORE_COLUMNS, "row_digest"]  # the digest after the contract's columns
     own = ev.lab_scores("K07")
     assert len(rows) == 1 + len(own)
     z = dict(zip(own["measurand"], own["z"]))
     for r in rows[1:]:
         rec = dict(zip(SCORE_COLUMNS, r))
         if isinstance(z[rec["measurand"]], float) and math.isfinite(z[rec["measurand"]]):
-            assert rec["z"] == pytest.approx(z[rec["measurand"]], rel=1e-15)
+            assert rec["z"] == pytest.approx(z[rec["measurand"]], rel=5e-12)  # 12 digits kept
+        assert re.fullmatch(r"[0-9a-f]{16}", r[len(SCORE_COLUMNS)])
     meta = dict(list(wb["round"].iter_rows(values_only=True))[1:])
     assert meta["generator"] == "roundscore" and meta["lab"] == "K07" and meta["format"] == 1
+    assert re.fullmatch(r"[0-9a-f]{64}", meta["digest"])
 
 
 @pytest.mark.parametrize("measurand, decimals", [("cadmium", 3), ("arsenic", 1), ("iodine", 0), ("moisture", 2)])

@@ -133,6 +133,8 @@ def run_add(args: argparse.Namespace) -> int:
             continue
         for outcome in outcomes:
             print(f"{name}: {outcome.status}: {outcome.message}")
+        for note in dict.fromkeys(w for o in outcomes for w in o.warnings):
+            print(f"{name}: warning: {note}")
     if refused:
         print(refused_summary(refused, len(args.files)))
     return 2 if refused else 0

@@ -13,7 +13,11 @@ round's statistics of every measurand are not repeated in each lab's file:
 the Scores sheet says they are in the summary workbook ``round-summary.xlsx``
 circulated with it.  Two sheets, ``data`` and ``round``, are
 machine-readable (the history commands read them back): their layout is a
-contract, see :data:`~roundscore.evaluate.SCORE_COLUMNS`.
+contract, see :data:`~roundscore.evaluate.SCORE_COLUMNS`.  The ``data`` sheet
+holds its numbers to 12 significant digits and a digest of each row (column
+``row_digest``), the ``round`` sheet a digest of the whole (key ``digest``),
+so ``history add`` refuses a row edited after it was written
+(:mod:`roundscore.archive_checks`).
 """
 
 from __future__ import annotations
@@ -28,6 +32,7 @@ import numpy as np
 import pandas as pd
 import xlsxwriter
 
+from ..archive_checks import DIGEST_KEY, ROW_DIGEST_COLUMN, row_digest, sheet_digest, sheet_value
 from ..evaluate import SCORE_COLUMNS, STATISTICS_COLUMNS, RoundEvaluation
 from ..look import CAUTION, SIGNAL_COLOUR, SIGNAL_WORD, signal_label
 
@@ -501,6 +506,19 @@ def _fold_extras(extras: dict[str, pd.DataFrame], measurands: list[str]
     return folded, notes, sheets
 
 
+def _data_rows(table: dict[str, list]) -> tuple[dict[str, list], list[str]]:
+    """The machine-readable ``data`` sheet: the score columns with numbers rounded to 12 significant
+    digits (what a spreadsheet program keeps on saving again), and each row's digest
+    (roundscore.archive_checks), so ``history add`` can tell an edited row from a re-saved file."""
+    rows = {c: [sheet_value(v) for v in table.get(c, ())] for c in SCORE_COLUMNS}
+    n = len(rows[SCORE_COLUMNS[0]])
+    for c in SCORE_COLUMNS:
+        rows[c] = rows[c] or [None] * n
+    digests = [row_digest([rows[c][i] for c in SCORE_COLUMNS]) for i in range(n)]
+    rows[ROW_DIGEST_COLUMN] = digests
+    return rows, digests
+
+
 def lab_payload(ev: RoundEvaluation, lab: str, history: pd.DataFrame | None = None) -> dict[str, Any]:
     """Everything one lab's sheet shows, as plain data (cheap to send to a worker process)."""
     rnd = ev.round
@@ -705,10 +723,12 @@ def write_lab_workbook(payload: dict[str, Any], path: Path) -> None:
             _widths(xs, _fit(frame, list(frame.columns), decimals={c: 4 for c in frame.columns}))
             _print_setup(xs, rd["id"], 0)
     data = wb.add_worksheet("data")
-    _table(data, fm, 0, table, SCORE_COLUMNS)
+    rows, digests = _data_rows(table)
+    _table(data, fm, 0, rows, [*SCORE_COLUMNS, ROW_DIGEST_COLUMN])
     meta = wb.add_worksheet("round")
     pairs = [("generator", "roundscore"), ("format", LAB_FORMAT), ("scheme", rd["scheme"]), ("round", rd["id"]),
              ("round_date", rd["date"]), ("lab", lab), ("title", rd["title"])]
+    pairs.append((DIGEST_KEY, sheet_digest(pairs, digests)))
     meta.write_row(0, 0, ["key", "value"], fm.head)
     for i, (k, v) in enumerate(pairs, start=1):
         meta.write_string(i, 0, k)

@@ -1,0 +1,234 @@
+"""Checks on score rows that come back from files: each row's internal consistency, and lab-sheet digests.
+
+A lab's score sheet (``labs/LAB.xlsx``) and a round's ``scores.csv`` travel
+through e-mail and spreadsheet programs before ``history add`` reads them
+back.  Two checks stop an edited row from being stored as genuine:
+
+* :func:`row_problems`: the numbers of one row must agree with each other,
+  as roundscore computed them (ISO 13528:2022 §9): ``d = x − x_pt``,
+  ``D% = 100 d / x_pt``, ``z = d / σ_pt``, ``z′ = d / √(σ_pt² + u²(x_pt))``;
+  ζ and En also depend on the lab's own uncertainty, which the row does not
+  carry, so only their sign and their largest possible size are checked
+  (``|ζ| ≤ |d| / u(x_pt)``, ``|En| ≤ |d| / U(x_pt)`` with ``U(x_pt) = 2 u(x_pt)``
+  as :mod:`roundscore.evaluate` computes it); and the signal must be the
+  one the limits give for the round's chosen score.
+* :func:`row_digest` and :func:`sheet_digest`: the lab sheet's ``data``
+  sheet carries a digest of each row (column :data:`ROW_DIGEST_COLUMN`) and
+  the ``round`` sheet one of the whole (key :data:`DIGEST_KEY`), so an edit
+  that keeps a row consistent is still found, and the row is named.  The
+  digests are over the cell *values as read back*, canonicalised (numbers
+  to :data:`DIGITS` significant digits, text stripped, empty cells as
+  nothing), never over file bytes: opening a sheet and saving it again in a
+  spreadsheet program changes its bytes but not these values.  The writer
+  rounds the numbers of the ``data`` sheet to :data:`DIGITS` digits, so a
+  program that keeps 15 (Excel, LibreOffice) gives back the same values.
+
+The digest catches accidental and casual edits; it is not a signature:
+anyone can compute it again.
+
+References
+----------
+.. [1] ISO 13528:2022 §9.3 (D, D%), §9.4 (z), §9.5 (z′), §9.6 (ζ), §9.7 (En).
+.. [2] Microsoft, "Floating-point arithmetic may give inaccurate results in
+   Excel" (15 significant digits kept).
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import hashlib
+import json
+import math
+from collections.abc import Iterable, Sequence
+
+import numpy as np
+
+from .errors import Problem
+from .stats.scores import SIGNALS, Z_ACTION, signal
+
+__all__ = ["DIGITS", "REL_TOL", "DIGEST_KEY", "ROW_DIGEST_COLUMN", "canonical", "sheet_value",
+           "row_digest", "sheet_digest", "row_problems", "EDIT_HINT", "RESUBMIT_HINT"]
+
+#: Significant digits kept in the ``data`` sheet and compared by the digests: the precision of
+#: ``scores.csv`` and of the archive's content hash (roundscore.archive.HASH_DIGITS).
+DIGITS = 12
+#: Relative tolerance of the consistency checks: the numbers carry 12 significant digits
+#: (a rounding error up to 5e-13 each); 1e-9 leaves room for the arithmetic (common practice).
+REL_TOL = 1e-9
+#: Key of the whole sheet's digest in the ``round`` sheet.
+DIGEST_KEY = "digest"
+#: Column of each row's digest in the ``data`` sheet (after the score columns).
+ROW_DIGEST_COLUMN = "row_digest"
+#: Hex digits of a row digest (64 bits: an accidental match is out of the question).
+_ROW_HEX = 16
+#: U(x_pt) = 2 u(x_pt) in En (roundscore.evaluate._score_rows).
+_EN_K = 2.0
+#: Scores by the round's score name, and the field holding each (roundscore.evaluate.SCORE_FIELD).
+_SCORE_FIELD = {"z": "z", "z-prime": "z_prime", "zeta": "zeta", "en": "en"}
+#: What to do about a row that was changed.
+RESUBMIT_HINT = "add the file as the provider sent it, or ask the provider for a new copy"
+#: Said with every consistency problem.
+EDIT_HINT = ("the row was changed after roundscore computed it (edited by hand?) or is damaged; "
+             + RESUBMIT_HINT)
+
+
+# --------------------------------------------------------------------------- digests
+
+def canonical(value: object) -> str | None:
+    """A cell value as the digests see it: numbers to :data:`DIGITS` digits, text stripped.
+
+    Empty cells, empty text and non-finite numbers are ``None``; ``-0`` is ``0``.
+    """
+    if value is None:
+        return None
+    if isinstance(value, (bool, np.bool_)):
+        return "TRUE" if value else "FALSE"
+    if isinstance(value, (int, float, np.integer, np.floating)):
+        number = float(value)
+        return f"{number + 0.0:.{DIGITS}g}" if math.isfinite(number) else None
+    if isinstance(value, (_dt.datetime, _dt.date)):
+        return value.isoformat()
+    text = str(value).strip()
+    return text or None
+
+
+def sheet_value(value: object) -> object:
+    """A value as the writer puts it into the ``data`` sheet: numbers rounded to :data:`DIGITS`
+    digits (non-finite ones left out), anything else unchanged."""
+    if isinstance(value, (bool, np.bool_)) or value is None:
+        return value
+    if isinstance(value, (int, float, np.integer, np.floating)):
+        number = float(value)
+        return float(f"{number:.{DIGITS}g}") + 0.0 if math.isfinite(number) else None
+    return value
+
+
+def _hash(obj: object) -> str:
+    text = json.dumps(obj, ensure_ascii=False, separators=(",", ":"))
+    return hashlib.sha256(text.encode("utf-8")).hexdigest()
+
+
+def row_digest(values: Sequence[object]) -> str:
+    """The digest of one ``data`` row: its score-column values, in column order."""
+    return _hash([canonical(v) for v in values])[:_ROW_HEX]
+
+
+def sheet_digest(meta: Iterable[tuple[object, object]], row_digests: Iterable[object]) -> str:
+    """The digest of a whole sheet: the ``round`` sheet's pairs (but the digest) and the rows'
+    digests, both sorted, so sorting the rows in a spreadsheet program is not an edit."""
+    pairs = sorted([canonical(k) or "", canonical(v)] for k, v in meta
+                   if canonical(k) != DIGEST_KEY)
+    rows = sorted(canonical(d) or "" for d in row_digests)
+    return _hash({"round": pairs, "rows": rows})
+
+
+# --------------------------------------------------------------------------- consistency
+
+def _num(value: object) -> float | None:
+    return float(value) if isinstance(value, (int, float)) and not isinstance(value, bool) else None
+
+
+def _close(got: float, want: float, scale: float) -> bool:
+    return abs(got - want) <= REL_TOL * (abs(want) + scale) + 1e-300
+
+
+def _signals(value: float, kind: str) -> set[str]:
+    """The signals a score may carry: both sides of a limit when it lies within the tolerance."""
+    probe = abs(value) * np.array([1 - REL_TOL, 1.0, 1 + REL_TOL])
+    return set(signal(probe, kind).tolist())
+
+
+def row_problems(row: dict[str, object], *, file: str | None, sheet: str | None,
+                 row_number: int | None) -> list[Problem]:
+    """Every way one score row disagrees with itself (see the module docstring).
+
+    ``row`` maps the score fields (``result``, ``assigned``, ``u_assigned``,
+    ``sigma_pt``, ``z``, ``z_prime``, ``zeta``, ``en``, ``d``, ``d_percent``,
+    ``signal``, ``note``, ``score``) to values as
+    :func:`roundscore.archive_files.normalise_rows` returns them (floats,
+    censored results as text, ``None`` when empty).
+    """
+    where = dict(file=file, sheet=sheet, row=row_number, lab=row.get("lab"),
+                 measurand=row.get("measurand"))
+    problems: list[Problem] = []
+
+    def bad(column: str, message: str) -> None:
+        problems.append(Problem(message=f"{message}: {EDIT_HINT}", column=column,
+                                value=row.get(column), **where))
+
+    result = row.get("result")
+    x, censored = _num(result), isinstance(result, str)
+    a, u, s = _num(row.get("assigned")), _num(row.get("u_assigned")), _num(row.get("sigma_pt"))
+    d = None if x is None or a is None else x - a
+    spread = 0.0 if x is None or a is None else abs(x) + abs(a)  # scale of the rounding in d
+    exact = (("d", lambda: d, 1.0, "result − assigned"),
+             ("d_percent", lambda: 100.0 * d / a if d is not None and a else None,
+              100.0 / abs(a) if a else 0.0, "100 (result − assigned) / assigned"),
+             ("z", lambda: d / s if d is not None and s and s > 0 else None,
+              1.0 / s if s and s > 0 else 0.0, "(result − assigned) / σ_pt"),
+             ("z_prime", lambda: (d / math.hypot(s, u) if d is not None and s and s > 0
+                                  and u is not None and u >= 0 else None),
+              1.0 / math.hypot(s, u) if s and s > 0 and u is not None else 0.0,
+              "(result − assigned) / √(σ_pt² + u(assigned)²)"))
+    for column, want, per, formula in exact:
+        got = _num(row.get(column))
+        if got is None:
+            continue
+        expected = want()
+        if expected is None:
+            bad(column, "a score without the result, assigned value or σ_pt it is computed from")
+        elif not _close(got, expected, spread * per):
+            bad(column, f"does not agree with the row: {formula} = {expected:.12g}")
+    for column, factor, name in (("zeta", 1.0, "u(assigned)"), ("en", _EN_K, "2 u(assigned)")):
+        got = _num(row.get(column))
+        if got is None:
+            continue
+        if d is None or u is None:
+            bad(column, "a score without the result, assigned value or u(assigned) it is "
+                        "computed from")
+            continue
+        tol = REL_TOL * (abs(got) + (spread / (factor * u) if u > 0 else 0.0)) + 1e-300
+        if got * d < 0 and abs(got) > tol:
+            bad(column, f"has the opposite sign of result − assigned = {d:.6g}")
+        elif u > 0 and abs(got) > abs(d) / (factor * u) + tol:
+            bad(column, f"is larger than |result − assigned| / {name} = "
+                        f"{abs(d) / (factor * u):.6g}, which no uncertainty of the lab allows")
+    _check_signal(row, x, a, s, censored, bad)
+    return problems
+
+
+def _check_signal(row: dict[str, object], x: float | None, a: float | None, s: float | None,
+                  censored: bool, bad) -> None:
+    """The signal against the chosen score and the limits (ISO 13528 §9.4.1, §9.7.3)."""
+    sig = row.get("signal")
+    if sig not in SIGNALS:
+        return  # reported by normalise_rows
+    field = _SCORE_FIELD.get(str(row.get("score")))
+    value = _num(row.get(field)) if field else None
+    kind = "en" if row.get("score") == "en" else "z"
+    if value is not None and x is None:
+        return  # a score without a result: reported with its column
+    if value is not None:
+        allowed = _signals(value, kind)
+        if sig == "not-scored" and "withheld" in str(row.get("note") or ""):
+            return  # the coordinator withheld the score; the score columns still hold it
+        if sig not in allowed:
+            bad("signal", f"does not agree with {field} = {value:.6g}: the limits give "
+                          f"{' or '.join(sorted(allowed))}")
+        return
+    allowed = {"not-scored"}
+    if censored and a is not None and s is not None and s > 0:
+        text = str(row.get("result"))
+        try:
+            limit = float(text[1:].strip())
+        except ValueError:
+            limit = math.nan
+        margin = REL_TOL * (abs(a) + Z_ACTION * s)
+        if text.startswith("<") and limit < a - Z_ACTION * s + margin:
+            allowed.add("action")  # a false negative (roundscore.evaluate)
+        if text.startswith(">") and limit > a + Z_ACTION * s - margin:
+            allowed.add("action")  # a false positive
+    if sig not in allowed:
+        what = "a censored result" if censored else "a row without a score"
+        bad("signal", f"{what} cannot carry the signal {sig!r}; allowed: "
+                      f"{' or '.join(sorted(allowed))}")
