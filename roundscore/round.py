@@ -18,7 +18,9 @@ from pathlib import Path
 from typing import Any, Literal
 
 from .errors import Problem, RoundFileError
-from .io.safety import DEFAULT_LIMITS, ReadLimits
+from .io.safety import DEFAULT_LIMITS, LIMIT_MAX, ReadLimits
+from .ranges import MAX_MAGNITUDE, MIN_MAGNITUDE, magnitude_problem, sigma_relative_problem
+from .units import UnitError, mass_fraction
 
 __all__ = [
     "Round",
@@ -47,7 +49,7 @@ ROUND_KEYS: dict[str, str] = {
     "results_sheet": "the sheet to read in a results workbook (default: the first)",
     "participants": "a CSV file of lab, name, contact",
     "replicates": "whole number ≥ 1: replicates asked for on the forms (default 2)",
-    "confidence": "number between 0.5 and 0.999 for method comparisons (default 0.95)",
+    "confidence": "number strictly between 0 and 1 for method comparisons (default 0.95)",
     "outliers": "'exclude' or 'keep': ISO 5725-2 outliers in the precision estimates (default exclude)",
     "stragglers": "'exclude' or 'keep': ISO 5725-2 stragglers (default keep)",
     "archive": "an archive file to store the round in",
@@ -55,15 +57,22 @@ ROUND_KEYS: dict[str, str] = {
     "youden": "list of pairs of measurand names for Youden plots",
     "words": "'signals' (acceptable/warning/action) or 'performance' (satisfactory/questionable/unsatisfactory)",
 }
-#: ``[limits]``: bounds on reading untrusted files (see roundscore.io.safety.ReadLimits).
-LIMIT_KEYS: dict[str, tuple[str, float]] = {
-    "max_part_mib": ("max_member_bytes", 1 << 20),
-    "max_total_mib": ("max_total_bytes", 1 << 20),
-    "max_parts": ("max_members", 1),
-    "timeout_s": ("timeout_s", 1),
-    "memory_mib": ("memory_bytes", 1 << 20),
-    "max_text_mib": ("max_text_bytes", 1 << 20),
+#: ``[limits]``: bounds on reading untrusted files (see roundscore.io.safety.ReadLimits):
+#: key → (ReadLimits field, the field's unit, smallest allowed value in the key's unit). The largest allowed
+#: value is ``LIMIT_MAX[field] / unit``; :func:`limit_range` gives both.
+LIMIT_KEYS: dict[str, tuple[str, int, float]] = {
+    "max_part_mib": ("max_member_bytes", 1 << 20, 0.001),  # sizes from about 1 kB
+    "max_total_mib": ("max_total_bytes", 1 << 20, 0.001),
+    "max_parts": ("max_members", 1, 1),
+    "timeout_s": ("timeout_s", 1, 1),
+    "memory_mib": ("memory_bytes", 1 << 20, 64),  # less leaves a worker too little to start a reader
+    "max_text_mib": ("max_text_bytes", 1 << 20, 0.001),
 }
+#: The smallest allowed confidence is above 0; the largest must leave (1 + c)/2 < 1 in double precision,
+#: else the critical value of a two-sided interval is infinite.
+CONFIDENCE_MAX = 1.0 - 2.0**-52
+#: Units are text a reader can see; markup and control characters are not part of any unit.
+UNIT_FORBIDDEN = frozenset('<>&;"\\`{}')
 MEASURAND_KEYS: dict[str, str] = {
     "unit": "text (required): a unit such as mg/kg, µg/L, g/100 g, %",
     "label": "text: a longer name shown in reports",
@@ -228,14 +237,26 @@ class _Checker:
             return default
         return value.strip()
 
-    def number(self, key: str, value: object, *, low=-math.inf, positive=False) -> float | None:
+    def number(self, key: str, value: object, *, low=-math.inf, positive=False, ranged=True) -> float | None:
+        """A number; ``ranged`` also requires the range of roundscore.ranges (0, or 1e-50 ≤ |v| ≤ 1e50)."""
         if value is None:
             return None
+        sign = " > 0" if positive else (f" ≥ {low:g}" if low > -math.inf else "")
+        allowed = "a number" + sign
+        if ranged:
+            allowed += (f" (from {MIN_MAGNITUDE:g} to {MAX_MAGNITUDE:g})" if positive else
+                        f" (0, or from {MIN_MAGNITUDE:g} to {MAX_MAGNITUDE:g})" if low == 0 else
+                        f" (0, or of magnitude {MIN_MAGNITUDE:g} to {MAX_MAGNITUDE:g})")
         if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
-            self.bad(key, value, "a number" + (" > 0" if positive else ""))
+            self.bad(key, value, allowed)
             return None
         if (positive and value <= 0) or value < low:
-            self.bad(key, value, "a number > 0" if positive else f"a number ≥ {low:g}")
+            self.bad(key, value, allowed)
+            return None
+        why = magnitude_problem(value) if ranged else None
+        if why is not None:
+            self.bad(key, value, f"{allowed} ({why.split(':')[0]}; numbers outside this range overflow or lose "
+                     "their digits in the computations)")
             return None
         return float(value)
 
@@ -301,6 +322,10 @@ def _measurand(c: _Checker, folder: Path, name: str, raw: object) -> MeasurandSe
         return None
     c.unknown(f"[{t}] ", raw, MEASURAND_KEYS)
     unit = c.text(f"{t}.unit", raw.get("unit"), required=True) or ""
+    if any(ch in UNIT_FORBIDDEN or not ch.isprintable() for ch in unit):
+        c.bad(f"{t}.unit", unit, "a unit such as mg/kg, µg/L, g/100 g or % (no markup such as < > & ; "
+              "and no control characters)")
+        unit = ""
     assigned_raw = raw.get("assigned", "algorithm-a")
     assigned: str | float
     if isinstance(assigned_raw, str):
@@ -322,13 +347,24 @@ def _measurand(c: _Checker, folder: Path, name: str, raw: object) -> MeasurandSe
     if not isinstance(allow_negative, bool):
         c.bad(f"{t}.allow_negative", allow_negative, "true or false")
         allow_negative = False
+    sigma = _sigma(c, f"{t}.sigma_pt", raw.get("sigma_pt"))
+    if sigma.kind == "horwitz" and unit:
+        try:
+            mass_fraction(unit)
+        except UnitError as exc:  # σ_pt could never be computed: say so now, naming the key
+            c.bad(f"{t}.unit", unit, f"a mass-fraction unit for sigma_pt = \"horwitz\" (such as mg/kg, µg/kg, "
+                  f"g/100 g or %): {exc}")
+    if sigma.kind == "fixed" and sigma.value is not None and not isinstance(assigned, str):
+        why = sigma_relative_problem(sigma.value, assigned)
+        if why is not None:
+            c.bad(f"{t}.sigma_pt", raw.get("sigma_pt"), f"σ_pt ≥ 1e-10 × |assigned|: {why}")
     return MeasurandSettings(
         name=name,
         unit=unit,
         label=c.text(f"{t}.label", raw.get("label"), default=name) or name,
         assigned=assigned,
         u_assigned=u_assigned,
-        sigma_pt=_sigma(c, f"{t}.sigma_pt", raw.get("sigma_pt")),
+        sigma_pt=sigma,
         score=c.choice(f"{t}.score", raw.get("score"), SCORES, "z"),
         decimals=decimals,
         allow_negative=allow_negative,
@@ -379,15 +415,26 @@ def _limits(c: _Checker, raw: object) -> ReadLimits:
     for key, value in raw.items():
         if key not in LIMIT_KEYS:
             continue
-        field_name, unit = LIMIT_KEYS[key]
-        v = c.number(f"limits.{key}", value, positive=True)
-        if v is not None:
-            kw[field_name] = v if field_name == "timeout_s" else int(v * unit)
+        field_name, unit, _ = LIMIT_KEYS[key]
+        low, high = limit_range(key)
+        whole = key == "max_parts"
+        allowed = f"a {'whole ' if whole else ''}number from {low:g} to {high:g}"
+        if (isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value)
+                or not low <= value <= high or (whole and not isinstance(value, int))):
+            c.bad(f"limits.{key}", value, allowed)
+            continue
+        kw[field_name] = float(value) if field_name == "timeout_s" else int(value * unit)
     try:
         return ReadLimits(**kw)
     except ValueError as exc:
         c.bad("limits", raw, str(exc))
         return DEFAULT_LIMITS
+
+
+def limit_range(key: str) -> tuple[float, float]:
+    """The allowed range of a ``[limits]`` key, in the key's own unit (MiB, parts, seconds)."""
+    field_name, unit, low = LIMIT_KEYS[key]
+    return low, LIMIT_MAX[field_name] / unit
 
 
 def load_round(path: str | Path) -> Round:
@@ -410,6 +457,10 @@ def load_round(path: str | Path) -> Round:
         raise RoundFileError.single(f"{shown}: not valid TOML: {exc}") from None
     except UnicodeDecodeError as exc:
         raise RoundFileError.single(f"{shown}: not UTF-8 text: {exc}") from None
+    except RecursionError:  # tomllib parses nested arrays and inline tables recursively
+        raise RoundFileError.single(
+            f"{shown}: not a usable round file: arrays or inline tables are nested too deeply to read "
+            "(a round file needs at most three levels)") from None
     c = _Checker(shown)
     folder = p.parent
     c.unknown("", {k: v for k, v in data.items() if k not in ("round", "measurand", "exclude", "limits")},
@@ -456,9 +507,16 @@ def load_round(path: str | Path) -> Round:
         c.bad("round.stragglers", "exclude",
               "'keep' while outliers = 'keep' (leaving out stragglers while keeping outliers contradicts "
               "itself); or set outliers = \"exclude\" too")
-    confidence = c.number("round.confidence", r.get("confidence")) or 0.95
-    if not 0.5 <= confidence <= 0.999:
-        c.bad("round.confidence", confidence, "a number between 0.5 and 0.999")
+    confidence = 0.95
+    conf_raw = r.get("confidence")
+    if conf_raw is not None:
+        if (isinstance(conf_raw, bool) or not isinstance(conf_raw, (int, float))
+                or not 0.0 < conf_raw <= CONFIDENCE_MAX):
+            near_one = isinstance(conf_raw, float) and 0.0 < conf_raw < 1.0
+            c.bad("round.confidence", conf_raw, "a number strictly between 0 and 1, such as 0.95"
+                  + (" (this one is so close to 1 that the critical value is infinite)" if near_one else ""))
+        else:
+            confidence = float(conf_raw)
     rnd = Round(
         path=p,
         folder=folder,

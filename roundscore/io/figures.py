@@ -33,6 +33,7 @@ import pandas as pd
 from scipy import stats as sps
 
 from ..look import PALETTE, SIGNAL_COLOUR, SIGNAL_MARKER, SIGNAL_WORD
+from ..ranges import SIGMA_MIN_RELATIVE
 from ..stats.scores import EN_ACTION, Z_ACTION, Z_WARNING
 
 __all__ = ["SvgFigure", "MarkKind", "z_bar_figure", "density_figure", "youden_figure", "mandel_figure",
@@ -425,7 +426,7 @@ def density_figure(labs: Sequence[str], values: Sequence[float], *, assigned: fl
     labs_k = [lab for lab, k in zip(labs, ok) if k]
     x, u = x[ok], u[ok]
     fig, ax = _new(_WIDE, right=0.97)
-    have_pt = bool(np.isfinite(assigned) and np.isfinite(sigma_pt) and sigma_pt > 0)
+    have_pt = _drawable(assigned, sigma_pt)
     xu = x[u]
     if have_pt:
         lo, hi = assigned - RANGE_SIGMAS * sigma_pt, assigned + RANGE_SIGMAS * sigma_pt
@@ -433,19 +434,28 @@ def density_figure(labs: Sequence[str], values: Sequence[float], *, assigned: fl
             lo, hi = max(lo, min(xu.min(), assigned - 3 * sigma_pt) - 0.5 * sigma_pt), \
                 min(hi, max(xu.max(), assigned + 3 * sigma_pt) + 0.5 * sigma_pt)
     elif len(xu):
-        span = float(np.ptp(xu)) or abs(float(xu[0])) or 1.0
-        lo, hi = float(xu.min()) - 0.3 * span, float(xu.max()) + 0.3 * span
+        half_span = float(xu.max()) / 2 - float(xu.min()) / 2 or abs(float(xu[0])) / 2 or 0.5  # no overflow
+        lo, hi = float(xu.min()) - 0.6 * half_span, float(xu.max()) + 0.6 * half_span
     else:
         lo, hi = 0.0, 1.0
-    grid = np.linspace(lo, hi, 300)
+    lo, hi = _span(lo, hi)
+    mid, half = lo / 2 + hi / 2, hi / 2 - lo / 2  # finite for any finite limits, unlike hi − lo
+    grid = mid + half * np.linspace(-1.0, 1.0, 300)
     outside = int(np.sum((x < lo) | (x > hi)))
     ymax = 1.0
-    if len(xu) >= 2 and np.ptp(xu) > 0:
-        if have_pt:
-            h = KDE_BANDWIDTH_FACTOR * sigma_pt
-            dens = sps.norm.pdf((grid[:, None] - xu[None, :]) / h).sum(axis=1) / (len(xu) * h)
-        else:
-            dens = sps.gaussian_kde(xu, bw_method="silverman")(grid)
+    if len(xu) >= 2 and xu.max() > xu.min():
+        # In coordinates centred on the axis and scaled by its half-width: the same curve up to the scale of
+        # the density axis (which has no ticks), and no overflow or underflow for any finite results.
+        with np.errstate(over="ignore", invalid="ignore"):  # far tails: exp(−u²/2) is 0 either way
+            gs, xs = (grid - mid) / half, (xu - mid) / half
+            xs = xs[np.isfinite(xs)]
+            if have_pt:
+                h = KDE_BANDWIDTH_FACTOR * sigma_pt / half
+                dens = sps.norm.pdf((gs[:, None] - xs[None, :]) / h).sum(axis=1) / (max(len(xs), 1) * h)
+            elif len(xs) >= 2 and np.ptp(xs) > 0:
+                dens = sps.gaussian_kde(xs, bw_method="silverman")(gs)
+            else:
+                dens = np.zeros(len(gs))
         ax.fill_between(grid, dens, color=PALETTE["sky"], alpha=0.35, linewidth=0)
         ax.plot(grid, dens, color=PALETTE["blue"], linewidth=1.4, label="kernel density")
         ymax = float(dens.max()) or 1.0
@@ -458,12 +468,11 @@ def density_figure(labs: Sequence[str], values: Sequence[float], *, assigned: fl
         ax.text(assigned - 2 * sigma_pt, 1.0, "−2σ_pt ", transform=ax.get_xaxis_transform(), fontsize=7, va="top",
                 ha="right")
     inside = (x >= lo) & (x <= hi)
-    rug = np.round(x[inside & u], 12)
-    rug_out = np.round(x[inside & ~u], 12)
+    rug, rug_out = x[inside & u], x[inside & ~u]
     y_rug = -0.06 * ymax
     if len(rug):
         # At most one tick per 0.4 pt: identical positions are drawn once (same picture, smaller file).
-        step = (hi - lo) / 1200
+        step = half / 600
         rug = np.unique(np.round(rug / step)) * step
         ax.plot(rug, np.full(len(rug), y_rug), linestyle="none", marker="|", markersize=9, color="#000000",
                 markeredgewidth=0.8, label="results (rug)")
@@ -487,6 +496,39 @@ def density_figure(labs: Sequence[str], values: Sequence[float], *, assigned: fl
         caption += f" {outside} result(s) lie outside the plotted range."
     marks = {lab: (float(v), math.nan) for lab, v in zip(labs_k, x)}
     return _finish(fig, ax, key=key, title=title, caption=caption, kind="vline", marks=marks)
+
+
+def _drawable(centre: float, sigma: float) -> bool:
+    """Whether x_pt and σ_pt can be drawn: finite, σ_pt > 0, x_pt ± RANGE_SIGMAS·σ_pt finite and wider than
+    the rounding of x_pt (roundscore.ranges keeps a round's numbers so; a library caller's may not be)."""
+    c, s = float(centre), float(sigma)
+    return bool(math.isfinite(c) and math.isfinite(s) and s > 0 and math.isfinite(abs(c) + RANGE_SIGMAS * s)
+                and s >= SIGMA_MIN_RELATIVE * abs(c))
+
+
+def _data_span(v: np.ndarray) -> tuple[float, float]:
+    """Limits around finite values with 5 % margins (the picture matplotlib's autoscaling gives, computed
+    without overflow)."""
+    if not len(v):
+        return 0.0, 1.0
+    lo, hi = float(np.min(v)), float(np.max(v))
+    pad = 0.1 * (hi / 2 - lo / 2)
+    return _span(lo - pad, hi + pad)
+
+
+def _span(lo: float, hi: float) -> tuple[float, float]:
+    """Axis limits matplotlib can draw: finite and ``lo < hi`` (a guard; the round's numbers keep them so).
+
+    The numbers of a round are limited (roundscore.ranges) so that x_pt ± k·σ_pt is finite and wider than
+    the rounding of x_pt; a span that is not (a library caller's numbers) is widened around its centre.
+    """
+    big = 1e300  # matplotlib subtracts limits and scales them to pixels: keep that finite
+    lo, hi = (min(max(float(v), -big), big) if not math.isnan(v) else 0.0 for v in (lo, hi))
+    if hi > lo and hi - lo > 1e-9 * max(abs(lo), abs(hi)):
+        return lo, hi
+    mid = lo / 2 + hi / 2
+    half = max(abs(mid) * 0.05, 1e-30)
+    return mid - half, mid + half
 
 
 def youden_figure(labs: Sequence[str], a: Sequence[float], b: Sequence[float], *, names: tuple[str, str],
@@ -526,7 +568,7 @@ def youden_figure(labs: Sequence[str], a: Sequence[float], b: Sequence[float], *
     xa, xb = xa[ok], xb[ok]
     fig, ax = _new(_SQUARE, left=0.11, right=0.70, bottom=0.12, top=0.92)
     (ca, cb), (sa, sb) = assigned, sigma_pt
-    have = all(np.isfinite(v) for v in (ca, cb, sa, sb)) and sa > 0 and sb > 0
+    have = _drawable(ca, sa) and _drawable(cb, sb)
     if have:
         za, zb = (xa - ca) / sa, (xb - cb) / sb
         core = (np.abs(za) <= 3) & (np.abs(zb) <= 3)
@@ -548,11 +590,15 @@ def youden_figure(labs: Sequence[str], a: Sequence[float], b: Sequence[float], *
                   min(lim_a[1], max(xa.max(initial=ca), ca + 3 * sa) + 0.5 * sa))
         span_b = (max(lim_b[0], min(xb.min(initial=cb), cb - 3 * sb) - 0.5 * sb),
                   min(lim_b[1], max(xb.max(initial=cb), cb + 3 * sb) + 0.5 * sb))
+        span_a, span_b = _span(*span_a), _span(*span_b)
         ax.set_xlim(*span_a)
         ax.set_ylim(*span_b)
         cx, cy = np.clip(xa, *span_a), np.clip(xb, *span_b)
     else:
-        cx, cy = xa, xb
+        span_a, span_b = _data_span(xa), _data_span(xb)
+        ax.set_xlim(*span_a)
+        ax.set_ylim(*span_b)
+        cx, cy = np.clip(xa, *span_a), np.clip(xb, *span_b)
     for s in ("acceptable", "warning", "action", "not-scored"):
         sel = sig == s
         if sel.any():

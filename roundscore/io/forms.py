@@ -172,11 +172,18 @@ def records_from_form(rnd: Round, results: SheetRows, info: SheetRows):
     lab = str(int(lab)) if isinstance(lab, float) and lab.is_integer() else str(lab or "").strip()
     if not lab:
         problems.append(Problem(message="the form has no laboratory code", file=file, sheet=INFO_SHEET))
+    from ..table import MAX_REPLICATE
+
     try:
         header_row = int(kv.get("header_row", HEADER_ROW))
         reps = int(kv.get("replicates", rnd.replicates))
-    except (TypeError, ValueError):
+    except (TypeError, ValueError, OverflowError):
         return [], problems + [Problem(message="the form-info sheet is damaged", file=file, sheet=INFO_SHEET)]
+    if not (1 <= reps <= MAX_REPLICATE and 1 <= header_row <= len(results.rows) + 1):
+        return [], problems + [Problem(
+            message=f"the form-info sheet is damaged: replicates must be 1 to {MAX_REPLICATE} and header_row "
+                    "a row of the results sheet", file=file, sheet=INFO_SHEET,
+            value=kv.get("replicates") if not 1 <= reps <= MAX_REPLICATE else kv.get("header_row"))]
     if problems:
         return [], problems
     rows = results.rows
