@@ -288,6 +288,9 @@ def _sigma(m: MeasurandSettings, est, x_pt: float) -> tuple[float, str, list[str
         return np.nan, spec.describe(), [str(exc)]
     if not x_pt > 0:
         return np.nan, spec.describe(), ["the Horwitz function needs an assigned value > 0"]
+    if x_pt * mf > 1:
+        return np.nan, spec.describe(), [f"the assigned value {x_pt:.6g} {m.unit} is a mass fraction of "
+                                         f"{x_pt * mf:.3g}, above 1 (100 %): no Horwitz σ_pt; check the unit"]
     return float(sg.horwitz_thompson(x_pt * mf) / mf), f"{spec.describe()} at x_pt = {x_pt:.6g} {m.unit}", []
 
 
