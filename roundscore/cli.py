@@ -10,6 +10,7 @@ from __future__ import annotations
 import argparse
 import importlib
 import sys
+import warnings
 from pathlib import Path
 
 from . import __version__
@@ -49,7 +50,12 @@ def main(argv: list[str] | None = None) -> int:
         parser.print_help()
         return 2
     try:
-        return int(args.func(args) or 0)
+        with warnings.catch_warnings():
+            # A belt: library warnings (numpy, scipy, pandas, matplotlib) are never shown to a user; their
+            # causes are fixed where they arise. ``python -W ...`` (sys.warnoptions) still shows them.
+            if not sys.warnoptions:
+                warnings.simplefilter("ignore")
+            return int(args.func(args) or 0)
     except RoundscoreError as exc:
         print(f"roundscore: error: {exc}", file=sys.stderr)
         return 2

@@ -25,26 +25,37 @@ The bounds are twenty orders of magnitude beyond the SI prefixes (quecto,
 resolution 3 of 2022), so no measurement in any unit is refused by them; a
 number outside them is a typing or unit mistake.
 
-A σ_pt is further limited relative to the assigned value: below
-``SIGMA_MIN_RELATIVE`` · |x_pt| the differences x − x_pt are of the order of
-the rounding of the results themselves (double precision resolves a relative
-2.2·10⁻¹⁶; 10⁻¹⁰ leaves about six significant digits for the score), so the
-score would only show rounding.
+Differences are limited relative to the numbers they are differences of
+(:data:`RELATIVE_RESOLUTION`, 10⁻¹²): double precision rounds a number to a
+relative 1.1·10⁻¹⁶, so a difference below about 10⁻¹² of the numbers' size is
+mostly rounding. Hence a σ_pt below 10⁻¹² · |x_pt| is not used (z would be
+resolved no better than about 2·10⁻⁴, and far worse just below), and a t test
+on groups whose spread is below 10⁻¹² of their values' size is not computed
+(the t statistic, 10¹⁵ and more, would measure rounding).
+
+``confidence`` levels are in the open interval (0, 1), and at most
+:data:`CONFIDENCE_MAX`, the largest double for which (1 + c)/2 is still below
+1 (so the two-sided critical value is finite).
 """
 
 from __future__ import annotations
 
 import math
 
-__all__ = ["MAX_MAGNITUDE", "MIN_MAGNITUDE", "SIGMA_MIN_RELATIVE", "MAX_SCORE", "RANGE_TEXT",
-           "magnitude_problem", "sigma_relative_problem"]
+__all__ = ["MAX_MAGNITUDE", "MIN_MAGNITUDE", "RELATIVE_RESOLUTION", "SIGMA_MIN_RELATIVE", "MAX_SCORE",
+           "RANGE_TEXT", "CONFIDENCE_MAX", "magnitude_problem", "sigma_relative_problem", "confidence_problem",
+           "spread_problem"]
 
 #: Largest magnitude of any number read (results, limits, uncertainties, assigned values, σ_pt).
 MAX_MAGNITUDE = 1e50
 #: Smallest magnitude of a non-zero number read.
 MIN_MAGNITUDE = 1e-50
-#: σ_pt must be at least this fraction of |x_pt| (see the module notes).
-SIGMA_MIN_RELATIVE = 1e-10
+#: Differences below this fraction of the numbers' magnitude are taken as rounding (see the module notes).
+RELATIVE_RESOLUTION = 1e-12
+#: σ_pt must be at least this fraction of |x_pt|.
+SIGMA_MIN_RELATIVE = RELATIVE_RESOLUTION
+#: Largest confidence level: (1 + c)/2 < 1 in double precision.
+CONFIDENCE_MAX = 1.0 - 2.0**-52
 #: Largest |score| that numbers in range can give: (2·MAX_MAGNITUDE)/MIN_MAGNITUDE.
 MAX_SCORE = 2 * MAX_MAGNITUDE / MIN_MAGNITUDE
 #: The rule in words, for messages.
@@ -80,3 +91,25 @@ def sigma_relative_problem(sigma_pt: float, assigned: float) -> str | None:
     return (f"σ_pt = {sigma_pt:.3g} is below {SIGMA_MIN_RELATIVE:g} × |x_pt| = {floor:.3g}: results differ from "
             f"x_pt = {assigned:.6g} by amounts this small only through rounding, so the scores would show "
             "nothing but rounding")
+
+
+def confidence_problem(confidence: object) -> str | None:
+    """None for a confidence level in (0, 1) (at most CONFIDENCE_MAX), else what is allowed, in words."""
+    ok = (not isinstance(confidence, bool) and isinstance(confidence, (int, float))
+          and 0.0 < confidence <= CONFIDENCE_MAX)
+    if ok:
+        return None
+    near_one = isinstance(confidence, float) and CONFIDENCE_MAX < confidence < 1.0
+    return ("a number strictly between 0 and 1, such as 0.95"
+            + (" (this one is so close to 1 that the critical value is infinite)" if near_one else ""))
+
+
+def spread_problem(sd: float, values_magnitude: float, what: str = "the values") -> str | None:
+    """None when an SD is more than RELATIVE_RESOLUTION × the values' magnitude, else the reason in words."""
+    floor = RELATIVE_RESOLUTION * float(values_magnitude)
+    if sd > floor:
+        return None
+    if sd == 0:
+        return f"{what} do not vary"
+    return (f"{what} are (nearly) all equal: their SD, {sd:.3g}, is at most {RELATIVE_RESOLUTION:g} × their "
+            f"largest magnitude ({floor:.3g}), which is rounding, not spread")

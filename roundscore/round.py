@@ -19,7 +19,8 @@ from typing import Any, Literal
 
 from .errors import Problem, RoundFileError
 from .io.safety import DEFAULT_LIMITS, LIMIT_MAX, ReadLimits
-from .ranges import MAX_MAGNITUDE, MIN_MAGNITUDE, magnitude_problem, sigma_relative_problem
+from .ranges import (MAX_MAGNITUDE, MIN_MAGNITUDE, SIGMA_MIN_RELATIVE, confidence_problem, magnitude_problem,
+                     sigma_relative_problem)
 from .units import UnitError, mass_fraction
 
 __all__ = [
@@ -68,9 +69,6 @@ LIMIT_KEYS: dict[str, tuple[str, int, float]] = {
     "memory_mib": ("memory_bytes", 1 << 20, 64),  # less leaves a worker too little to start a reader
     "max_text_mib": ("max_text_bytes", 1 << 20, 0.001),
 }
-#: The smallest allowed confidence is above 0; the largest must leave (1 + c)/2 < 1 in double precision,
-#: else the critical value of a two-sided interval is infinite.
-CONFIDENCE_MAX = 1.0 - 2.0**-52
 #: Units are text a reader can see; markup and control characters are not part of any unit.
 UNIT_FORBIDDEN = frozenset('<>&;"\\`{}')
 MEASURAND_KEYS: dict[str, str] = {
@@ -357,7 +355,7 @@ def _measurand(c: _Checker, folder: Path, name: str, raw: object) -> MeasurandSe
     if sigma.kind == "fixed" and sigma.value is not None and not isinstance(assigned, str):
         why = sigma_relative_problem(sigma.value, assigned)
         if why is not None:
-            c.bad(f"{t}.sigma_pt", raw.get("sigma_pt"), f"σ_pt ≥ 1e-10 × |assigned|: {why}")
+            c.bad(f"{t}.sigma_pt", raw.get("sigma_pt"), f"σ_pt ≥ {SIGMA_MIN_RELATIVE:g} × |assigned|: {why}")
     return MeasurandSettings(
         name=name,
         unit=unit,
@@ -510,11 +508,9 @@ def load_round(path: str | Path) -> Round:
     confidence = 0.95
     conf_raw = r.get("confidence")
     if conf_raw is not None:
-        if (isinstance(conf_raw, bool) or not isinstance(conf_raw, (int, float))
-                or not 0.0 < conf_raw <= CONFIDENCE_MAX):
-            near_one = isinstance(conf_raw, float) and 0.0 < conf_raw < 1.0
-            c.bad("round.confidence", conf_raw, "a number strictly between 0 and 1, such as 0.95"
-                  + (" (this one is so close to 1 that the critical value is infinite)" if near_one else ""))
+        why = confidence_problem(conf_raw)  # never silently replaced by the default
+        if why is not None:
+            c.bad("round.confidence", conf_raw, why)
         else:
             confidence = float(conf_raw)
     rnd = Round(

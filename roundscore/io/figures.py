@@ -234,6 +234,12 @@ def _png(fig) -> bytes:
     return buf.getvalue()
 
 
+def _legend(ax, **kw) -> None:
+    """A legend of the labelled artists, or none when nothing is labelled (matplotlib would warn)."""
+    if ax.get_legend_handles_labels()[0]:
+        ax.legend(**kw)
+
+
 def _signal_legend(ax, signals: Sequence[str], words: str, **kw) -> None:
     from matplotlib.lines import Line2D
 
@@ -485,7 +491,7 @@ def density_figure(labs: Sequence[str], values: Sequence[float], *, assigned: fl
     ax.set_ylabel("density")
     ax.set_xlabel(f"result ({unit})" if unit else "result")
     ax.set_title(title, loc="left")
-    ax.legend(frameon=False, fontsize=8, loc="upper right")
+    _legend(ax, frameon=False, fontsize=8, loc="upper right")
     if png:
         return _png(fig)
     caption = (f"Kernel density of {int(u.sum())} results used (bandwidth "
@@ -608,7 +614,7 @@ def youden_figure(labs: Sequence[str], a: Sequence[float], b: Sequence[float], *
     ax.set_xlabel(names[0])
     ax.set_ylabel(names[1])
     ax.set_title(title, loc="left")
-    ax.legend(frameon=False, fontsize=8, loc="upper left", bbox_to_anchor=(1.02, 1.0), borderaxespad=0)
+    _legend(ax, frameon=False, fontsize=8, loc="upper left", bbox_to_anchor=(1.02, 1.0), borderaxespad=0)
     if png:
         return _png(fig)
     caption = (f"Youden plot of {len(xa)} laboratories: {names[0]} against {names[1]}, the assigned values "
