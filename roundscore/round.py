@@ -21,7 +21,7 @@ from .errors import Problem, RoundFileError
 from .io.safety import DEFAULT_LIMITS, LIMIT_MAX, ReadLimits
 from .ranges import (MAX_MAGNITUDE, MIN_MAGNITUDE, SIGMA_MIN_RELATIVE, confidence_problem, magnitude_problem,
                      sigma_relative_problem)
-from .units import UnitError, mass_fraction
+from .units import UnitError, mass_fraction, unit_text_problem
 
 __all__ = [
     "Round",
@@ -69,8 +69,6 @@ LIMIT_KEYS: dict[str, tuple[str, int, float]] = {
     "memory_mib": ("memory_bytes", 1 << 20, 64),  # less leaves a worker too little to start a reader
     "max_text_mib": ("max_text_bytes", 1 << 20, 0.001),
 }
-#: Units are text a reader can see; markup and control characters are not part of any unit.
-UNIT_FORBIDDEN = frozenset('<>&;"\\`{}')
 MEASURAND_KEYS: dict[str, str] = {
     "unit": "text (required): a unit such as mg/kg, µg/L, g/100 g, %",
     "label": "text: a longer name shown in reports",
@@ -320,7 +318,7 @@ def _measurand(c: _Checker, folder: Path, name: str, raw: object) -> MeasurandSe
         return None
     c.unknown(f"[{t}] ", raw, MEASURAND_KEYS)
     unit = c.text(f"{t}.unit", raw.get("unit"), required=True) or ""
-    if any(ch in UNIT_FORBIDDEN or not ch.isprintable() for ch in unit):
+    if unit_text_problem(unit) is not None:
         c.bad(f"{t}.unit", unit, "a unit such as mg/kg, µg/L, g/100 g or % (no markup such as < > & ; "
               "and no control characters)")
         unit = ""
