@@ -70,11 +70,12 @@ LIMIT_KEYS: dict[str, tuple[str, int, float]] = {
     "max_text_mib": ("max_text_bytes", 1 << 20, 0.001),
 }
 MEASURAND_KEYS: dict[str, str] = {
-    "unit": "text (required): a unit such as mg/kg, µg/L, g/100 g, %",
+    "unit": "text (required): a unit such as mg/kg, µg/L, g/100 g, % (a mass fraction for sigma_pt = 'horwitz')",
     "label": "text: a longer name shown in reports",
-    "assigned": "'algorithm-a', 'median' or a number (reference or formulation value)",
-    "u_assigned": "number ≥ 0: standard uncertainty of a numeric assigned value",
-    "sigma_pt": "a number > 0, 'horwitz', 'robust-sd', or { s_R = …, s_r = …, replicates = n }",
+    "assigned": "'algorithm-a', 'median' or a number (reference or formulation value; 0 or |v| 1e-50 to 1e50)",
+    "u_assigned": "number ≥ 0: standard uncertainty of a numeric assigned value (0 or 1e-50 to 1e50)",
+    "sigma_pt": "a number from 1e-50 to 1e50 (and ≥ 1e-12 × |assigned|), 'horwitz', 'robust-sd', "
+                "or { s_R = …, s_r = …, replicates = n }",
     "score": "'z', 'z-prime', 'zeta' or 'en'",
     "decimals": "whole number 0–10: decimals shown in reports",
     "allow_negative": "true or false: whether results below zero are possible (default false)",
