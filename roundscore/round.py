@@ -34,6 +34,8 @@ __all__ = [
 ]
 
 ScoreName = Literal["z", "z-prime", "zeta", "en"]
+#: Most replicate cells a submission form asks for (``[round] replicates``).
+MAX_FORM_REPLICATES = 20
 SCORES: tuple[str, ...] = ("z", "z-prime", "zeta", "en")
 ASSIGNED_METHODS: tuple[str, ...] = ("algorithm-a", "median")
 SIGMA_WORDS: tuple[str, ...] = ("horwitz", "robust-sd")
@@ -524,7 +526,7 @@ def load_round(path: str | Path) -> Round:
         results=results,
         results_sheet=c.text("round.results_sheet", r.get("results_sheet")),
         participants=_inside(c, folder, "round.participants", c.text("round.participants", r.get("participants"))),
-        replicates=c.whole("round.replicates", r.get("replicates"), 2, 1, 20),
+        replicates=c.whole("round.replicates", r.get("replicates"), 2, 1, MAX_FORM_REPLICATES),
         confidence=confidence,
         outliers=c.choice("round.outliers", r.get("outliers"), OUTLIER_ACTIONS, "exclude"),
         stragglers=c.choice("round.stragglers", r.get("stragglers"), OUTLIER_ACTIONS, "keep"),

@@ -35,8 +35,9 @@ REQUIRED = ("lab", "measurand", "replicate", "value")
 OPTIONAL = ("unit", "u", "U", "k", "method", "comment")
 #: Columns whose name is matched exactly (``u`` and ``U`` differ); the rest ignore case.
 _CASE_SENSITIVE = {"u", "U"}
-#: Largest replicate number: far more than any round asks for, and a 64-bit integer in the table.
-MAX_REPLICATE = 1000
+#: Largest replicate number: far more than any round asks for (a precision experiment may have thousands),
+#: and well inside the table's 64-bit integer column.
+MAX_REPLICATE = 1_000_000
 
 
 @dataclass(slots=True, kw_only=True)

@@ -55,7 +55,7 @@ def hashes(folder: Path) -> dict[str, str]:
 
 def refused(folder: Path, capsys, *words: str) -> str:
     """Score the round; assert exit 2, every word in the message, no traceback, inputs and folder untouched."""
-    before = hashes(folder)
+    before, listing = hashes(folder), sorted(p.name for p in folder.iterdir())
     out = folder / "out"
     code = main(["score", str(folder), "--out", str(out), "--jobs", "1", "--quiet"])
     err = capsys.readouterr().err
@@ -64,7 +64,7 @@ def refused(folder: Path, capsys, *words: str) -> str:
     for w in words:
         assert w in err, (w, err)
     assert not out.exists()  # nothing half-written: no output folder, no temporary folder beside it
-    assert sorted(p.name for p in folder.iterdir()) == sorted(before)
+    assert sorted(p.name for p in folder.iterdir()) == listing
     assert hashes(folder) == before
     return err
 
@@ -135,12 +135,12 @@ def test_horwitz_needs_a_mass_fraction_unit(make_round, capsys, strict, unit, wo
 
 # --------------------------------------------------------------------------- the results
 
-@pytest.mark.parametrize("replicate", ["100000000000000000000", "1e20", "1001", "0"])
+@pytest.mark.parametrize("replicate", ["100000000000000000000", "1e20", "1000001", "0"])
 def test_replicate_numbers_out_of_range(make_round, capsys, strict, replicate):
     # 1e20 as digits overflowed the table's 64-bit replicate column (OverflowError traceback).
     text = results_csv().replace("L01,cu,2,", f"L01,cu,{replicate},")
     refused(make_round(toml("sigma_pt = 0.1"), text), capsys,
-            "results.csv, row 3, column 'replicate' (lab L01, measurand cu)", replicate, "from 1 to 1000")
+            "results.csv, row 3, column 'replicate' (lab L01, measurand cu)", replicate, "from 1 to 1000000")
 
 
 def test_replicate_1e20_in_a_workbook(make_round, capsys, strict):
@@ -154,7 +154,28 @@ def test_replicate_1e20_in_a_workbook(make_round, capsys, strict):
         sheet.write_row(1 + 2 * i, 0, [f"L{i + 1}", "cu", 1e20 if i == 3 else 1, a])
         sheet.write_row(2 + 2 * i, 0, [f"L{i + 1}", "cu", 2, b])
     book.close()
-    refused(folder, capsys, "results.xlsx", "row 8", "'replicate'", "lab L4", "from 1 to 1000")
+    refused(folder, capsys, "results.xlsx", "row 8", "'replicate'", "lab L4", "from 1 to 1000000")
+
+
+@pytest.mark.parametrize("key, value", [("replicates", 1e20), ("replicates", 21), ("header_row", 1e20)])
+def test_a_form_whose_hidden_sheet_asks_for_1e20_replicates(make_round, capsys, strict, key, value):
+    # int(1e20) replicate columns would have exhausted the worker's memory; now the form is refused by name.
+    import openpyxl
+
+    from roundscore.io.forms import INFO_SHEET, write_form
+    from roundscore.round import load_round
+
+    folder = make_round(toml("sigma_pt = 0.1", round_extra='results = "returned"'))
+    (folder / "returned").mkdir()
+    form = folder / "returned" / "E-1-L01.xlsx"
+    write_form(load_round(folder), "L01", form)
+    book = openpyxl.load_workbook(form)
+    info = book[INFO_SHEET]
+    row = next(r for r in info.iter_rows() if r[0].value == key)
+    row[1].value = value
+    book.save(form)
+    refused(folder, capsys, "E-1-L01.xlsx", f"sheet '{INFO_SHEET}'", "the form-info sheet is damaged",
+            "replicates must be 1 to 20")
 
 
 def test_a_single_result_of_1e308_is_refused_naming_file_row_and_lab(make_round, capsys, strict):

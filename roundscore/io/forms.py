@@ -24,7 +24,7 @@ from typing import Iterable
 import xlsxwriter
 
 from ..errors import Problem
-from ..round import Round
+from ..round import MAX_FORM_REPLICATES, Round
 from .xlsx import SheetRows
 
 __all__ = ["write_forms", "write_form", "records_from_form", "FORM_FORMAT", "RESULTS_SHEET", "INFO_SHEET"]
@@ -172,18 +172,16 @@ def records_from_form(rnd: Round, results: SheetRows, info: SheetRows):
     lab = str(int(lab)) if isinstance(lab, float) and lab.is_integer() else str(lab or "").strip()
     if not lab:
         problems.append(Problem(message="the form has no laboratory code", file=file, sheet=INFO_SHEET))
-    from ..table import MAX_REPLICATE
-
     try:
         header_row = int(kv.get("header_row", HEADER_ROW))
         reps = int(kv.get("replicates", rnd.replicates))
     except (TypeError, ValueError, OverflowError):
         return [], problems + [Problem(message="the form-info sheet is damaged", file=file, sheet=INFO_SHEET)]
-    if not (1 <= reps <= MAX_REPLICATE and 1 <= header_row <= len(results.rows) + 1):
+    if not (1 <= reps <= MAX_FORM_REPLICATES and 1 <= header_row <= len(results.rows) + 1):
         return [], problems + [Problem(
-            message=f"the form-info sheet is damaged: replicates must be 1 to {MAX_REPLICATE} and header_row "
-                    "a row of the results sheet", file=file, sheet=INFO_SHEET,
-            value=kv.get("replicates") if not 1 <= reps <= MAX_REPLICATE else kv.get("header_row"))]
+            message=f"the form-info sheet is damaged: replicates must be 1 to {MAX_FORM_REPLICATES} and "
+                    "header_row a row of the results sheet", file=file, sheet=INFO_SHEET,
+            value=kv.get("replicates") if not 1 <= reps <= MAX_FORM_REPLICATES else kv.get("header_row"))]
     if problems:
         return [], problems
     rows = results.rows
