@@ -353,7 +353,8 @@ def _measurand(rnd: Round, labs: pd.DataFrame, m: MeasurandSettings,
             notes.append(msg)
             audit.append((m.name, "", "assigned value", "check failed", msg))
     audit.append((m.name, "", "assigned value", "set", f"{a_src}: x_pt = {x_pt:.6g}, u(x_pt) = {u_pt:.3g}"))
-    audit.append((m.name, "", "sigma_pt", "set", f"{s_src}: σ_pt = {s_pt:.6g}"))
+    audit.append((m.name, "", "sigma_pt", "set", f"{s_src}: σ_pt = {s_pt:.6g}") if np.isfinite(s_pt) else
+                 (m.name, "", "sigma_pt", "not set", f"{s_src}: no σ_pt, so no scores (see the notes)"))
     return MeasurandResult(
         settings=m, labs=labs, p=p, robust=est, median=med, made=made_v, niqr=niqr_v,
         assigned=x_pt, u_assigned=u_pt, sigma_pt=s_pt, assigned_source=a_src, sigma_source=s_src,

@@ -277,12 +277,15 @@ def test_scores_in_range_are_finite_or_empty_with_a_note(extreme_round):
     assert abs(by.loc[("wide", "L01"), "z"]) < 1e-48
     tiny = scores[scores["measurand"] == "tiny"]
     assert tiny["z"].notna().all() and tiny["sigma_pt"].gt(0).all()
-    for name, words in (("sharp", "1e-12 × |x_pt|"), ("zeta0", "ζ is not defined"), ("horwitz", "above 1")):
+    for name, words in (("sharp", "σ_pt could not be set"), ("zeta0", "ζ is not defined: u(x) and u(x_pt) are both 0"),
+                        ("horwitz", "σ_pt could not be set")):
         part = scores[scores["measurand"] == name]
-        assert (part["signal"] == "not-scored").all(), name
-        assert part["note"].str.contains(words, regex=False).all() if name == "zeta0" else True
-    notes = (extreme_round / "audit.csv").read_text(encoding="utf-8")
-    assert "1e-12 × |x_pt|" in notes
+        assert len(part) == len(LABS) and (part["signal"] == "not-scored").all(), name
+        assert part["note"].str.contains(words, regex=False).all(), name
+        assert part["zeta" if name == "zeta0" else "z"].isna().all(), name
+    audit = pd.read_csv(extreme_round / "audit.csv")
+    sharp = audit[(audit["measurand"] == "sharp") & (audit["step"] == "sigma_pt")]
+    assert "not usable" in set(sharp["action"]) and sharp["reason"].str.contains("1e-12 × |x_pt|", regex=False).any()
 
 
 def test_unscored_measurands_say_why_in_the_terminal(extreme_round, capsys, strict):
