@@ -72,7 +72,10 @@ def magnitude_problem(value: float) -> str | None:
     >>> magnitude_problem(1e308)
     'too large to compute with: allowed is 0, or a magnitude from 1e-50 to 1e+50 (check the unit or the decimal point)'
     """
-    v = float(value)
+    try:
+        v = float(value)
+    except OverflowError:  # an integer beyond any float
+        return f"too large to compute with: allowed is {RANGE_TEXT} (check the unit or the decimal point)"
     if not math.isfinite(v):
         return f"not a finite number: allowed is {RANGE_TEXT}"
     a = abs(v)

@@ -212,8 +212,11 @@ class _Checker:
         self.warnings: list[str] = []
 
     def bad(self, key: str, found: object, allowed: str) -> None:
+        shown = repr(found)
+        if len(shown) > 60:  # as Problem shows values: a 400-digit TOML integer is not repeated whole
+            shown = shown[:57] + "..."
         self.problems.append(
-            Problem(message=f"{self.file}: key {key!r}: found {found!r}; allowed: {allowed}")
+            Problem(message=f"{self.file}: key {key!r}: found {shown}; allowed: {allowed}")
         )
 
     def unknown(self, table: str, keys: dict[str, Any], allowed: dict[str, str]) -> None:
@@ -246,7 +249,7 @@ class _Checker:
             allowed += (f" (from {MIN_MAGNITUDE:g} to {MAX_MAGNITUDE:g})" if positive else
                         f" (0, or from {MIN_MAGNITUDE:g} to {MAX_MAGNITUDE:g})" if low == 0 else
                         f" (0, or of magnitude {MIN_MAGNITUDE:g} to {MAX_MAGNITUDE:g})")
-        if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
+        if _real(value) is None:
             self.bad(key, value, allowed)
             return None
         if (positive and value <= 0) or value < low:
@@ -274,6 +277,17 @@ class _Checker:
             self.bad(key, value, ", ".join(repr(a) for a in allowed))
             return default
         return str(value)
+
+
+def _real(value: object) -> float | None:
+    """A TOML number as a finite float, or None (text, a boolean, inf, nan, an integer too large for a float)."""
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        return None
+    try:
+        v = float(value)
+    except OverflowError:  # TOML integers have no size limit in Python
+        return None
+    return v if math.isfinite(v) else None
 
 
 def _sigma(c: _Checker, key: str, raw: object) -> SigmaSpec:
@@ -418,8 +432,7 @@ def _limits(c: _Checker, raw: object) -> ReadLimits:
         low, high = limit_range(key)
         whole = key == "max_parts"
         allowed = f"a {'whole ' if whole else ''}number from {low:g} to {high:g}"
-        if (isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value)
-                or not low <= value <= high or (whole and not isinstance(value, int))):
+        if _real(value) is None or not low <= value <= high or (whole and not isinstance(value, int)):
             c.bad(f"limits.{key}", value, allowed)
             continue
         kw[field_name] = float(value) if field_name == "timeout_s" else int(value * unit)

@@ -88,6 +88,17 @@ def test_numbers_out_of_range_in_the_round_file(make_round, capsys, strict, meas
     refused(make_round(toml(measurand), results_csv()), capsys, "round.toml", *words)
 
 
+def test_integers_beyond_any_float_are_refused(make_round, capsys, strict):
+    # TOML integers have no size limit; float(10**400) overflowed (OverflowError traceback)
+    huge = "9" * 400
+    folder = make_round(toml(f"assigned = {huge}\nu_assigned = 0\nsigma_pt = {huge}",
+                             round_extra=f"confidence = {huge}", tail=f"[limits]\ntimeout_s = {huge}\n"),
+                        results_csv())
+    err = refused(folder, capsys, "'measurand.cu.assigned'", "'measurand.cu.sigma_pt'", "'round.confidence'",
+                  "'limits.timeout_s'", "9" * 50 + "...")
+    assert huge not in err
+
+
 @pytest.mark.parametrize("key, value, allowed", [
     ("timeout_s", "1e300", "from 1 to 3600"),  # overflowed the poll timeout (OverflowError traceback)
     ("timeout_s", "0.5", "from 1 to 3600"),
