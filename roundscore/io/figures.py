@@ -33,7 +33,7 @@ import pandas as pd
 from scipy import stats as sps
 
 from ..look import PALETTE, SIGNAL_COLOUR, SIGNAL_MARKER, SIGNAL_WORD
-from ..ranges import SIGMA_MIN_RELATIVE
+from .axes import data_span, drawable, span
 from ..stats.scores import EN_ACTION, Z_ACTION, Z_WARNING
 
 __all__ = ["SvgFigure", "MarkKind", "z_bar_figure", "density_figure", "youden_figure", "mandel_figure",
@@ -432,7 +432,7 @@ def density_figure(labs: Sequence[str], values: Sequence[float], *, assigned: fl
     labs_k = [lab for lab, k in zip(labs, ok) if k]
     x, u = x[ok], u[ok]
     fig, ax = _new(_WIDE, right=0.97)
-    have_pt = _drawable(assigned, sigma_pt)
+    have_pt = drawable(assigned, sigma_pt, RANGE_SIGMAS)
     xu = x[u]
     if have_pt:
         lo, hi = assigned - RANGE_SIGMAS * sigma_pt, assigned + RANGE_SIGMAS * sigma_pt
@@ -444,7 +444,7 @@ def density_figure(labs: Sequence[str], values: Sequence[float], *, assigned: fl
         lo, hi = float(xu.min()) - 0.6 * half_span, float(xu.max()) + 0.6 * half_span
     else:
         lo, hi = 0.0, 1.0
-    lo, hi = _span(lo, hi)
+    lo, hi = span(lo, hi)
     mid, half = lo / 2 + hi / 2, hi / 2 - lo / 2  # finite for any finite limits, unlike hi − lo
     grid = mid + half * np.linspace(-1.0, 1.0, 300)
     outside = int(np.sum((x < lo) | (x > hi)))
@@ -504,39 +504,6 @@ def density_figure(labs: Sequence[str], values: Sequence[float], *, assigned: fl
     return _finish(fig, ax, key=key, title=title, caption=caption, kind="vline", marks=marks)
 
 
-def _drawable(centre: float, sigma: float) -> bool:
-    """Whether x_pt and σ_pt can be drawn: finite, σ_pt > 0, x_pt ± RANGE_SIGMAS·σ_pt finite and wider than
-    the rounding of x_pt (roundscore.ranges keeps a round's numbers so; a library caller's may not be)."""
-    c, s = float(centre), float(sigma)
-    return bool(math.isfinite(c) and math.isfinite(s) and s > 0 and math.isfinite(abs(c) + RANGE_SIGMAS * s)
-                and s >= SIGMA_MIN_RELATIVE * abs(c))
-
-
-def _data_span(v: np.ndarray) -> tuple[float, float]:
-    """Limits around finite values with 5 % margins (the picture matplotlib's autoscaling gives, computed
-    without overflow)."""
-    if not len(v):
-        return 0.0, 1.0
-    lo, hi = float(np.min(v)), float(np.max(v))
-    pad = 0.1 * (hi / 2 - lo / 2)
-    return _span(lo - pad, hi + pad)
-
-
-def _span(lo: float, hi: float) -> tuple[float, float]:
-    """Axis limits matplotlib can draw: finite and ``lo < hi`` (a guard; the round's numbers keep them so).
-
-    The numbers of a round are limited (roundscore.ranges) so that x_pt ± k·σ_pt is finite and wider than
-    the rounding of x_pt; a span that is not (a library caller's numbers) is widened around its centre.
-    """
-    big = 1e300  # matplotlib subtracts limits and scales them to pixels: keep that finite
-    lo, hi = (min(max(float(v), -big), big) if not math.isnan(v) else 0.0 for v in (lo, hi))
-    if hi > lo and hi - lo > 1e-9 * max(abs(lo), abs(hi)):
-        return lo, hi
-    mid = lo / 2 + hi / 2
-    half = max(abs(mid) * 0.05, 1e-30)
-    return mid - half, mid + half
-
-
 def youden_figure(labs: Sequence[str], a: Sequence[float], b: Sequence[float], *, names: tuple[str, str],
                   assigned: tuple[float, float], sigma_pt: tuple[float, float], key: str, title: str,
                   signals: Sequence[str] | None = None, words: str = "signals",
@@ -574,7 +541,7 @@ def youden_figure(labs: Sequence[str], a: Sequence[float], b: Sequence[float], *
     xa, xb = xa[ok], xb[ok]
     fig, ax = _new(_SQUARE, left=0.11, right=0.70, bottom=0.12, top=0.92)
     (ca, cb), (sa, sb) = assigned, sigma_pt
-    have = _drawable(ca, sa) and _drawable(cb, sb)
+    have = drawable(ca, sa, RANGE_SIGMAS) and drawable(cb, sb, RANGE_SIGMAS)
     if have:
         za, zb = (xa - ca) / sa, (xb - cb) / sb
         core = (np.abs(za) <= 3) & (np.abs(zb) <= 3)
@@ -596,12 +563,12 @@ def youden_figure(labs: Sequence[str], a: Sequence[float], b: Sequence[float], *
                   min(lim_a[1], max(xa.max(initial=ca), ca + 3 * sa) + 0.5 * sa))
         span_b = (max(lim_b[0], min(xb.min(initial=cb), cb - 3 * sb) - 0.5 * sb),
                   min(lim_b[1], max(xb.max(initial=cb), cb + 3 * sb) + 0.5 * sb))
-        span_a, span_b = _span(*span_a), _span(*span_b)
+        span_a, span_b = span(*span_a), span(*span_b)
         ax.set_xlim(*span_a)
         ax.set_ylim(*span_b)
         cx, cy = np.clip(xa, *span_a), np.clip(xb, *span_b)
     else:
-        span_a, span_b = _data_span(xa), _data_span(xb)
+        span_a, span_b = data_span(xa), data_span(xb)
         ax.set_xlim(*span_a)
         ax.set_ylim(*span_b)
         cx, cy = np.clip(xa, *span_a), np.clip(xb, *span_b)
