@@ -21,9 +21,10 @@ which keeps the arithmetic that follows well inside double precision:
   10⁻²⁶⁴ and 10²⁰⁰, that is normal numbers, so no spread is lost to underflow.
 
 The bounds are twenty orders of magnitude beyond the SI prefixes (quecto,
-10⁻³⁰, to quetta, 10³⁰; BIPM SI Brochure, 9th edition, 2019, and CGPM
-resolution 3 of 2022), so no measurement in any unit is refused by them; a
-number outside them is a typing or unit mistake.
+10⁻³⁰, to quetta, 10³⁰, added by the 27th CGPM in 2022, resolution 3; from
+memory), so no measurement in any unit is refused by them; a number outside
+them is a typing or unit mistake. Double precision limits are those of IEEE
+754 binary64 (sys.float_info).
 
 Differences are limited relative to the numbers they are differences of
 (:data:`RELATIVE_RESOLUTION`, 10⁻¹²): double precision rounds a number to a
