@@ -11,6 +11,7 @@ from __future__ import annotations
 import argparse
 import importlib
 import sys
+import warnings
 from pathlib import Path
 
 from . import __version__
@@ -52,7 +53,11 @@ def main(argv: list[str] | None = None) -> int:
     from .processes import Terminated, signals_as_errors
 
     try:
-        with signals_as_errors():
+        with signals_as_errors(), warnings.catch_warnings():
+            # A belt: library warnings (numpy, scipy, pandas, matplotlib) are never shown to a user; their
+            # causes are fixed where they arise. ``python -W ...`` (sys.warnoptions) still shows them.
+            if not sys.warnoptions:
+                warnings.simplefilter("ignore")
             return int(args.func(args) or 0)
     except Terminated as exc:
         print(f"roundscore: stopped by {exc}; outputs being written were removed and no earlier output "

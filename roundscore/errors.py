@@ -79,6 +79,8 @@ def shown_value(value: object) -> str:
         shown = value.isoformat()
     elif isinstance(value, float) and value.is_integer() and abs(value) < 1e16:
         shown = str(int(value))
+    elif isinstance(value, int) and value.bit_length() > 3000:  # str() refuses ints past 4300 digits
+        shown = f"a whole number of about {int(value.bit_length() * 0.30103) + 1} digits"
     elif isinstance(value, (int, float, _dt.timedelta)):
         shown = str(value)
     else:  # text in quotes, control characters and invisible spaces escaped

@@ -17,6 +17,7 @@ import pandas as pd
 
 from .errors import StatisticsError
 from .io.readers import Participant
+from .ranges import sigma_relative_problem
 from .round import MeasurandSettings, Round
 from .stats import robust, scores as sc, sigma as sg
 from .table import ResultTable
@@ -267,8 +268,6 @@ def _assign(m: MeasurandSettings, est, med, made_v, p) -> tuple[float, float, st
     if m.assigned == "median":
         u = robust.CONSENSUS_U_FACTOR * made_v / np.sqrt(p)
         return med, u, f"median of {p} lab means; u = 1.25·MADe/√p", notes
-    if est.sd == 0:
-        notes.append(est.note)
     return est.mean, est.u_mean, f"robust mean (Algorithm A) of {p} lab means; u = 1.25·s*/√p", notes
 
 
@@ -289,6 +288,9 @@ def _sigma(m: MeasurandSettings, est, x_pt: float) -> tuple[float, str, list[str
         return np.nan, spec.describe(), [str(exc)]
     if not x_pt > 0:
         return np.nan, spec.describe(), ["the Horwitz function needs an assigned value > 0"]
+    if x_pt * mf > 1:
+        return np.nan, spec.describe(), [f"the assigned value {x_pt:.6g} {m.unit} is a mass fraction of "
+                                         f"{x_pt * mf:.3g}, above 1 (100 %): no Horwitz σ_pt; check the unit"]
     return float(sg.horwitz_thompson(x_pt * mf) / mf), f"{spec.describe()} at x_pt = {x_pt:.6g} {m.unit}", []
 
 
@@ -334,6 +336,12 @@ def _measurand(rnd: Round, labs: pd.DataFrame, m: MeasurandSettings,
         s_pt, u_pt = item_checks.sigma_pt, item_checks.u_assigned
         notes += list(item_checks.notes)
         audit.extend(item_checks.audit)
+    if np.isfinite(x_pt) and np.isfinite(s_pt) and s_pt > 0:
+        why = sigma_relative_problem(s_pt, x_pt)  # roundscore.ranges: a σ_pt below the results' resolution
+        if why is not None:
+            notes.append(f"{why}; no scores for this measurand")
+            audit.append((m.name, "", "sigma_pt", "not usable", why))
+            s_pt = np.nan
     u_ok = None
     if np.isfinite(u_pt) and np.isfinite(s_pt):
         u_ok = bool(u_pt <= U_CHECK_FACTOR * s_pt)
@@ -345,7 +353,8 @@ def _measurand(rnd: Round, labs: pd.DataFrame, m: MeasurandSettings,
             notes.append(msg)
             audit.append((m.name, "", "assigned value", "check failed", msg))
     audit.append((m.name, "", "assigned value", "set", f"{a_src}: x_pt = {x_pt:.6g}, u(x_pt) = {u_pt:.3g}"))
-    audit.append((m.name, "", "sigma_pt", "set", f"{s_src}: σ_pt = {s_pt:.6g}"))
+    audit.append((m.name, "", "sigma_pt", "set", f"{s_src}: σ_pt = {s_pt:.6g}") if np.isfinite(s_pt) else
+                 (m.name, "", "sigma_pt", "not set", f"{s_src}: no σ_pt, so no scores (see the notes)"))
     return MeasurandResult(
         settings=m, labs=labs, p=p, robust=est, median=med, made=made_v, niqr=niqr_v,
         assigned=x_pt, u_assigned=u_pt, sigma_pt=s_pt, assigned_source=a_src, sigma_source=s_src,
@@ -368,6 +377,13 @@ def _score_rows(rnd: Round, mr: MeasurandResult) -> pd.DataFrame:
         en = sc.en_score(x, x_pt, U_lab, U_pt)
         d = sc.difference(x, x_pt)
         dp = sc.percent_difference(x, x_pt)
+    # ζ and En divide by the combined uncertainty: when the lab and the assigned value both state 0, the score
+    # is not defined (±inf or 0/0), so it is left empty with a note rather than written as infinite.
+    undefined = {"z": np.zeros(len(z), bool), "z-prime": np.zeros(len(z), bool),
+                 "zeta": np.isinf(zeta) | (np.isnan(zeta) & (np.hypot(labs["u"].to_numpy(float), u_pt) == 0)),
+                 "en": np.isinf(en) | (np.isnan(en) & (np.hypot(U_lab, U_pt) == 0))}[m.score]
+    zeta = np.where(np.isinf(zeta), np.nan, zeta)
+    en = np.where(np.isinf(en), np.nan, en)
     chosen = {"z": z, "z-prime": zp, "zeta": zeta, "en": en}[m.score]
     chosen = np.where(labs["withhold"].to_numpy(bool), np.nan, chosen)
     sig = sc.signal(chosen, "en" if m.score == "en" else "z")
@@ -397,6 +413,9 @@ def _score_rows(rnd: Round, mr: MeasurandResult) -> pd.DataFrame:
             add.append("not scored: the assigned value or σ_pt could not be set")
         elif withheld[i]:
             add.append("score withheld by the coordinator")
+        elif undefined[i]:
+            add.append({"zeta": "ζ is not defined: u(x) and u(x_pt) are both 0",
+                        "en": "En is not defined: U(x) and U(x_pt) are both 0"}[m.score])
         elif np.isnan(chosen[i]):
             add.append({"zeta": "no uncertainty reported: ζ needs u", "en": "no uncertainty reported: En needs U"}
                        .get(m.score, "not scored"))

@@ -88,6 +88,10 @@ MIN_BIAS_N = 3
 EXPECTED_MEAN_ABS_Z = math.sqrt(2.0 / math.pi)
 #: Significance level of the bias check (common practice).
 BIAS_ALPHA = 0.05
+#: The bias check treats scores as (nearly) all equal when their SD is at most this fraction of
+#: max(1, largest |z|): scores are stored to 12 significant digits (scores.csv), so a spread below about
+#: 1e-11 of their size is rounding, and a t statistic computed from it (1e16 and more) means nothing.
+EQUAL_TOLERANCE = 1e-9
 
 COMBINED_CAUTION = (
     "Combined scores can hide a single bad result behind several good ones, mix different "
@@ -332,13 +336,26 @@ def combined_scores(z: Sequence[float] | np.ndarray) -> CombinedScores:
     if arr.size == 0:
         raise StatisticsError("combined scores need at least one score")
     n = int(arr.size)
-    rsz = float(np.sum(arr) / math.sqrt(n))
-    ssz = float(np.sum(arr * arr))
+    scale = _scale(arr)
+    a = arr / scale  # exact: a power of two; sums of huge scores then stay finite (SSZ may still be inf)
+    rsz = float(np.sum(a) / math.sqrt(n)) * scale
+    ssz = float(np.sum(a * a)) * scale * scale  # Python floats: inf, never a warning, past 1.8e308
     chi2 = stats.chi2(n)
     return CombinedScores(
         n=n, rsz=rsz, rsz_p_value=float(2.0 * stats.norm.sf(abs(rsz))), ssz=ssz,
         ssz_p_value=float(chi2.sf(ssz)), ssz_critical_5=float(chi2.isf(0.05)),
-        ssz_critical_1=float(chi2.isf(0.01)), mean_abs_z=float(np.mean(np.abs(arr))))
+        ssz_critical_1=float(chi2.isf(0.01)), mean_abs_z=float(np.mean(np.abs(a))) * scale)
+
+
+def _fixed(v: float, spec: str) -> str:
+    """``v`` in the fixed format ``spec``, or in 3 significant digits when that would run to many digits."""
+    return format(v, spec) if abs(v) < 1e6 else format(v, spec.replace(".2f", ".3g"))
+
+
+def _scale(arr: np.ndarray) -> float:
+    """1, or the power of two just above max |z|: dividing by it is exact and keeps squares finite."""
+    top = float(np.max(np.abs(arr))) if arr.size else 0.0
+    return 1.0 if top <= 1.0 else math.ldexp(1.0, math.frexp(top)[1])
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -386,30 +403,38 @@ def bias_check(z: Sequence[float] | np.ndarray, *, alpha: float = BIAS_ALPHA) ->
     Raises
     ------
     StatisticsError
-        Fewer than :data:`MIN_BIAS_N` scores, or all scores equal.
+        Fewer than :data:`MIN_BIAS_N` scores, or scores (nearly) all equal: an SD of at most
+        :data:`EQUAL_TOLERANCE` · max(1, largest |z|).
     """
     arr = _series(z)
     if arr.size < MIN_BIAS_N:
         raise StatisticsError(f"the bias check needs at least {MIN_BIAS_N} scores, got {arr.size}")
     if not 0 < alpha < 1:
         raise StatisticsError(f"alpha must be between 0 and 1, got {alpha}")
-    mean = float(np.mean(arr))
-    sd = float(np.std(arr - mean, ddof=1))
-    if sd == 0.0:
-        raise StatisticsError("all scores are equal; the t test needs some spread")
-    res = stats.ttest_1samp(arr, 0.0)
+    scale = _scale(arr)
+    a = arr / scale  # exact (a power of two); t is the same, and no square overflows
+    mean = float(np.mean(a)) * scale
+    sd = float(np.std(a - np.mean(a), ddof=1)) * scale
+    tol = EQUAL_TOLERANCE * max(1.0, float(np.max(np.abs(arr))))
+    if sd <= tol:
+        raise StatisticsError(
+            f"the scores are (nearly) all equal (their SD, {sd:.3g}, is at most {EQUAL_TOLERANCE:g} × "
+            f"max(1, largest |z|) = {tol:.3g}); the test is not meaningful")
+    res = stats.ttest_1samp(a, 0.0)
     ci = res.confidence_interval(1.0 - alpha)
+    ci_low, ci_high = float(ci.low) * scale, float(ci.high) * scale
     p, t, df = float(res.pvalue), float(res.statistic), int(arr.size - 1)
     biased = p < alpha
-    numbers = f"t = {t:.2f}, df = {df}, p = {p:.3g}"
+    numbers = f"t = {_fixed(t, '.2f')}, df = {df}, p = {p:.3g}"
+    shown = _fixed(mean, "+.2f")
     if biased:
-        text = (f"the mean z ({mean:+.2f}) differs from 0 ({numbers}): a persistent bias of "
-                f"about {mean:+.2f} sigma_pt is likely; look for its cause")
+        text = (f"the mean z ({shown}) differs from 0 ({numbers}): a persistent bias of "
+                f"about {shown} sigma_pt is likely; look for its cause")
     else:
-        text = (f"no evidence at the {alpha:.0%} level that the mean z ({mean:+.2f}) differs "
+        text = (f"no evidence at the {alpha:.0%} level that the mean z ({shown}) differs "
                 f"from 0 ({numbers})")
     return BiasCheck(n=int(arr.size), df=df, mean_z=mean, sd_z=sd, t=t, p_value=p,
-                     ci_low=float(ci.low), ci_high=float(ci.high), alpha=alpha, biased=biased,
+                     ci_low=ci_low, ci_high=ci_high, alpha=alpha, biased=biased,
                      conclusion=text)
 
 

@@ -19,7 +19,10 @@ from typing import Any, Literal
 
 from .cells import DECIMAL_MARKS
 from .errors import Problem, RoundFileError, shown_value
-from .io.safety import DEFAULT_LIMITS, ReadLimits
+from .io.safety import DEFAULT_LIMITS, LIMIT_MAX, ReadLimits
+from .ranges import (MAX_MAGNITUDE, MIN_MAGNITUDE, SIGMA_MIN_RELATIVE, confidence_problem, magnitude_problem,
+                     sigma_relative_problem)
+from .units import UnitError, mass_fraction, unit_text_problem
 
 __all__ = [
     "Round",
@@ -32,6 +35,8 @@ __all__ = [
 ]
 
 ScoreName = Literal["z", "z-prime", "zeta", "en"]
+#: Most replicate cells a submission form asks for (``[round] replicates``).
+MAX_FORM_REPLICATES = 20
 SCORES: tuple[str, ...] = ("z", "z-prime", "zeta", "en")
 ASSIGNED_METHODS: tuple[str, ...] = ("algorithm-a", "median")
 SIGMA_WORDS: tuple[str, ...] = ("horwitz", "robust-sd")
@@ -48,7 +53,7 @@ ROUND_KEYS: dict[str, str] = {
     "results_sheet": "the sheet to read in a results workbook (default: the first)",
     "participants": "a CSV file of lab, name, contact",
     "replicates": "whole number ≥ 1: replicates asked for on the forms (default 2)",
-    "confidence": "number between 0.5 and 0.999 for method comparisons (default 0.95)",
+    "confidence": "number strictly between 0 and 1 for method comparisons (default 0.95)",
     "outliers": "'exclude' or 'keep': ISO 5725-2 outliers in the precision estimates (default exclude)",
     "stragglers": "'exclude' or 'keep': ISO 5725-2 stragglers (default keep)",
     "archive": "an archive file to store the round in (may be outside the round folder; ~ is your home folder)",
@@ -58,21 +63,24 @@ ROUND_KEYS: dict[str, str] = {
     "decimal": "'comma' or 'point': the decimal mark of numbers typed as text in results and item tables "
                "(default: not declared; a number whose reading depends on it, such as 1,234, is refused)",
 }
-#: ``[limits]``: bounds on reading untrusted files (see roundscore.io.safety.ReadLimits).
-LIMIT_KEYS: dict[str, tuple[str, float]] = {
-    "max_part_mib": ("max_member_bytes", 1 << 20),
-    "max_total_mib": ("max_total_bytes", 1 << 20),
-    "max_parts": ("max_members", 1),
-    "timeout_s": ("timeout_s", 1),
-    "memory_mib": ("memory_bytes", 1 << 20),
-    "max_text_mib": ("max_text_bytes", 1 << 20),
+#: ``[limits]``: bounds on reading untrusted files (see roundscore.io.safety.ReadLimits):
+#: key → (ReadLimits field, the field's unit, smallest allowed value in the key's unit). The largest allowed
+#: value is ``LIMIT_MAX[field] / unit``; :func:`limit_range` gives both.
+LIMIT_KEYS: dict[str, tuple[str, int, float]] = {
+    "max_part_mib": ("max_member_bytes", 1 << 20, 0.001),  # sizes from about 1 kB
+    "max_total_mib": ("max_total_bytes", 1 << 20, 0.001),
+    "max_parts": ("max_members", 1, 1),
+    "timeout_s": ("timeout_s", 1, 1),
+    "memory_mib": ("memory_bytes", 1 << 20, 64),  # less leaves a worker too little to start a reader
+    "max_text_mib": ("max_text_bytes", 1 << 20, 0.001),
 }
 MEASURAND_KEYS: dict[str, str] = {
-    "unit": "text (required): a unit such as mg/kg, µg/L, g/100 g, %",
+    "unit": "text (required): a unit such as mg/kg, µg/L, g/100 g, % (a mass fraction for sigma_pt = 'horwitz')",
     "label": "text: a longer name shown in reports",
-    "assigned": "'algorithm-a', 'median' or a number (reference or formulation value)",
-    "u_assigned": "number ≥ 0: standard uncertainty of a numeric assigned value",
-    "sigma_pt": "a number > 0, 'horwitz', 'robust-sd', or { s_R = …, s_r = …, replicates = n }",
+    "assigned": "'algorithm-a', 'median' or a number (reference or formulation value; 0 or |v| 1e-50 to 1e50)",
+    "u_assigned": "number ≥ 0: standard uncertainty of a numeric assigned value (0 or 1e-50 to 1e50)",
+    "sigma_pt": "a number from 1e-50 to 1e50 (and ≥ 1e-12 × |assigned|), 'horwitz', 'robust-sd', "
+                "or { s_R = …, s_r = …, replicates = n }",
     "score": "'z', 'z-prime', 'zeta' or 'en'",
     "decimals": "whole number 0–10: decimals shown in reports",
     "allow_negative": "true or false: whether results below zero are possible (default false)",
@@ -233,14 +241,26 @@ class _Checker:
             return default
         return value.strip()
 
-    def number(self, key: str, value: object, *, low=-math.inf, positive=False) -> float | None:
+    def number(self, key: str, value: object, *, low=-math.inf, positive=False, ranged=True) -> float | None:
+        """A number; ``ranged`` also requires the range of roundscore.ranges (0, or 1e-50 ≤ |v| ≤ 1e50)."""
         if value is None:
             return None
-        if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
-            self.bad(key, value, "a number" + (" > 0" if positive else ""))
+        sign = " > 0" if positive else (f" ≥ {low:g}" if low > -math.inf else "")
+        allowed = "a number" + sign
+        if ranged:
+            allowed += (f" (from {MIN_MAGNITUDE:g} to {MAX_MAGNITUDE:g})" if positive else
+                        f" (0, or from {MIN_MAGNITUDE:g} to {MAX_MAGNITUDE:g})" if low == 0 else
+                        f" (0, or of magnitude {MIN_MAGNITUDE:g} to {MAX_MAGNITUDE:g})")
+        if _real(value) is None:
+            self.bad(key, value, allowed)
             return None
         if (positive and value <= 0) or value < low:
-            self.bad(key, value, "a number > 0" if positive else f"a number ≥ {low:g}")
+            self.bad(key, value, allowed)
+            return None
+        why = magnitude_problem(value) if ranged else None
+        if why is not None:
+            self.bad(key, value, f"{allowed} ({why.split(':')[0]}; numbers outside this range overflow or lose "
+                     "their digits in the computations)")
             return None
         return float(value)
 
@@ -259,6 +279,17 @@ class _Checker:
             self.bad(key, value, ", ".join(repr(a) for a in allowed))
             return default
         return str(value)
+
+
+def _real(value: object) -> float | None:
+    """A TOML number as a finite float, or None (text, a boolean, inf, nan, an integer too large for a float)."""
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        return None
+    try:
+        v = float(value)
+    except OverflowError:  # TOML integers have no size limit in Python
+        return None
+    return v if math.isfinite(v) else None
 
 
 def _sigma(c: _Checker, key: str, raw: object) -> SigmaSpec:
@@ -324,6 +355,10 @@ def _measurand(c: _Checker, folder: Path, name: str, raw: object) -> MeasurandSe
         return None
     c.unknown(f"[{t}] ", raw, MEASURAND_KEYS)
     unit = c.text(f"{t}.unit", raw.get("unit"), required=True) or ""
+    if unit_text_problem(unit) is not None:
+        c.bad(f"{t}.unit", unit, "a unit such as mg/kg, µg/L, g/100 g or % (no markup such as < > & ; "
+              "and no control characters)")
+        unit = ""
     assigned_raw = raw.get("assigned", "algorithm-a")
     assigned: str | float
     if isinstance(assigned_raw, str):
@@ -345,13 +380,24 @@ def _measurand(c: _Checker, folder: Path, name: str, raw: object) -> MeasurandSe
     if not isinstance(allow_negative, bool):
         c.bad(f"{t}.allow_negative", allow_negative, "true or false")
         allow_negative = False
+    sigma = _sigma(c, f"{t}.sigma_pt", raw.get("sigma_pt"))
+    if sigma.kind == "horwitz" and unit:
+        try:
+            mass_fraction(unit)
+        except UnitError as exc:  # σ_pt could never be computed: say so now, naming the key
+            c.bad(f"{t}.unit", unit, f"a mass-fraction unit for sigma_pt = \"horwitz\" (such as mg/kg, µg/kg, "
+                  f"g/100 g or %): {exc}")
+    if sigma.kind == "fixed" and sigma.value is not None and not isinstance(assigned, str):
+        why = sigma_relative_problem(sigma.value, assigned)
+        if why is not None:
+            c.bad(f"{t}.sigma_pt", raw.get("sigma_pt"), f"σ_pt ≥ {SIGMA_MIN_RELATIVE:g} × |assigned|: {why}")
     return MeasurandSettings(
         name=name,
         unit=unit,
         label=c.text(f"{t}.label", raw.get("label"), default=name) or name,
         assigned=assigned,
         u_assigned=u_assigned,
-        sigma_pt=_sigma(c, f"{t}.sigma_pt", raw.get("sigma_pt")),
+        sigma_pt=sigma,
         score=c.choice(f"{t}.score", raw.get("score"), SCORES, "z"),
         decimals=decimals,
         allow_negative=allow_negative,
@@ -402,15 +448,25 @@ def _limits(c: _Checker, raw: object) -> ReadLimits:
     for key, value in raw.items():
         if key not in LIMIT_KEYS:
             continue
-        field_name, unit = LIMIT_KEYS[key]
-        v = c.number(f"limits.{key}", value, positive=True)
-        if v is not None:
-            kw[field_name] = v if field_name == "timeout_s" else int(v * unit)
+        field_name, unit, _ = LIMIT_KEYS[key]
+        low, high = limit_range(key)
+        whole = key == "max_parts"
+        allowed = f"a {'whole ' if whole else ''}number from {low:g} to {high:g}"
+        if _real(value) is None or not low <= value <= high or (whole and not isinstance(value, int)):
+            c.bad(f"limits.{key}", value, allowed)
+            continue
+        kw[field_name] = float(value) if field_name == "timeout_s" else int(value * unit)
     try:
         return ReadLimits(**kw)
     except ValueError as exc:
         c.bad("limits", raw, str(exc))
         return DEFAULT_LIMITS
+
+
+def limit_range(key: str) -> tuple[float, float]:
+    """The allowed range of a ``[limits]`` key, in the key's own unit (MiB, parts, seconds)."""
+    field_name, unit, low = LIMIT_KEYS[key]
+    return low, LIMIT_MAX[field_name] / unit
 
 
 def load_round(path: str | Path) -> Round:
@@ -433,6 +489,10 @@ def load_round(path: str | Path) -> Round:
         raise RoundFileError.single(f"{shown}: not valid TOML: {exc}") from None
     except UnicodeDecodeError as exc:
         raise RoundFileError.single(f"{shown}: not UTF-8 text: {exc}") from None
+    except RecursionError:  # tomllib parses nested arrays and inline tables recursively
+        raise RoundFileError.single(
+            f"{shown}: not a usable round file: arrays or inline tables are nested too deeply to read "
+            "(a round file needs at most three levels)") from None
     c = _Checker(shown)
     folder = p.parent
     c.unknown("", {k: v for k, v in data.items() if k not in ("round", "measurand", "exclude", "limits")},
@@ -484,9 +544,14 @@ def load_round(path: str | Path) -> Round:
         c.bad("round.decimal", decimal, " or ".join(repr(d) for d in DECIMAL_MARKS)
               + " (leave it out to refuse numbers such as 1,234 whose reading depends on it)")
         decimal = None
-    confidence = c.number("round.confidence", r.get("confidence")) or 0.95
-    if not 0.5 <= confidence <= 0.999:
-        c.bad("round.confidence", confidence, "a number between 0.5 and 0.999")
+    confidence = 0.95
+    conf_raw = r.get("confidence")
+    if conf_raw is not None:
+        why = confidence_problem(conf_raw)  # never silently replaced by the default
+        if why is not None:
+            c.bad("round.confidence", conf_raw, why)
+        else:
+            confidence = float(conf_raw)
     rnd = Round(
         path=p,
         folder=folder,
@@ -499,7 +564,7 @@ def load_round(path: str | Path) -> Round:
         results=results,
         results_sheet=c.text("round.results_sheet", r.get("results_sheet")),
         participants=_inside(c, folder, "round.participants", c.text("round.participants", r.get("participants"))),
-        replicates=c.whole("round.replicates", r.get("replicates"), 2, 1, 20),
+        replicates=c.whole("round.replicates", r.get("replicates"), 2, 1, MAX_FORM_REPLICATES),
         confidence=confidence,
         outliers=c.choice("round.outliers", r.get("outliers"), OUTLIER_ACTIONS, "exclude"),
         stragglers=c.choice("round.stragglers", r.get("stragglers"), OUTLIER_ACTIONS, "keep"),

@@ -19,6 +19,7 @@ import pandas as pd
 from .cells import HINT_DECLARE, HINT_NUMBER, CellError, parse_cell
 from .errors import InputError, Problem, cell_ref, is_text_file, place, sheet_cell, shown_value
 from .io.xlsx import SheetRows
+from .ranges import MAX_MAGNITUDE, MIN_MAGNITUDE, magnitude_problem
 from .round import Round
 from .units import UnitError, factor
 
@@ -34,6 +35,9 @@ REQUIRED = ("lab", "measurand", "replicate", "value")
 OPTIONAL = ("unit", "u", "U", "k", "method", "comment")
 #: Columns whose name is matched exactly (``u`` and ``U`` differ); the rest ignore case.
 _CASE_SENSITIVE = {"u", "U"}
+#: Largest replicate number: far more than any round asks for (a precision experiment may have thousands),
+#: and well inside the table's 64-bit integer column.
+MAX_REPLICATE = 1_000_000
 
 
 @dataclass(slots=True, kw_only=True)
@@ -128,6 +132,12 @@ def _number(v: object, what: str, rec: Record, problems: list[Problem], decimal:
                                  rec, what, v, _HINT_UNCERTAINTY))
         return None
     return cell.value
+
+
+def _out_of_range(v: float) -> bool:
+    """True for a finite number outside roundscore.ranges (NaN, a blank, is in range; ±inf is not)."""
+    a = abs(v)
+    return a > MAX_MAGNITUDE or 0.0 < a < MIN_MAGNITUDE
 
 
 def _problem(message: str, rec: Record, column: str | None, value: object, hint: str | None = None) -> Problem:
@@ -334,7 +344,7 @@ def validate_records(rnd: Round, records: Iterable[Record]) -> tuple[list[tuple]
                 "correct the measurand's name, or add it to round.toml ([measurand.NAME])"))
             continue
         rep = rec.replicate
-        if type(rep) is int and rep >= 1:
+        if type(rep) is int and 1 <= rep <= MAX_REPLICATE:
             replicate = rep
         else:
             rep_text = label(rep)
@@ -342,9 +352,9 @@ def validate_records(rnd: Round, records: Iterable[Record]) -> tuple[list[tuple]
                 replicate = int(rep_text) if rep_text is not None else -1
             except ValueError:
                 replicate = -1
-            if replicate < 1:
-                problems.append(_problem("the replicate must be a whole number ≥ 1", rec, "replicate",
-                                         rec.replicate))
+            if not 1 <= replicate <= MAX_REPLICATE:
+                problems.append(_problem(f"the replicate must be a whole number from 1 to {MAX_REPLICATE}", rec,
+                                         "replicate", rec.replicate))
                 continue
         key = (lab, m.name, replicate)
         first = seen.get(key)
@@ -374,7 +384,12 @@ def validate_records(rnd: Round, records: Iterable[Record]) -> tuple[list[tuple]
         if ok:
             value = cell.value * f if cell.value is not None else np.nan
             limit = cell.limit * f if cell.limit is not None else np.nan
-            if cell.kind == "value" and value < 0 and not m.allow_negative:
+            if _out_of_range(value) or _out_of_range(limit):  # roundscore.ranges: too large or small to compute with
+                why = magnitude_problem(value if _out_of_range(value) else limit)
+                problems.append(_problem(why + (f" (after converting {unit} to {m.unit})" if f != 1.0 else ""),
+                                         rec, "value", rec.value))
+                ok = False
+            elif cell.kind == "value" and value < 0 and not m.allow_negative:
                 problems.append(_problem(
                     f"a negative result, but {m.name} cannot be below zero "
                     "(set allow_negative = true for this measurand if it can)", rec, "value", rec.value))
@@ -384,6 +399,11 @@ def validate_records(rnd: Round, records: Iterable[Record]) -> tuple[list[tuple]
         U = _optional_number(rec.U, "U", rec, problems, decimal)
         k = _optional_number(rec.k, "k", rec, problems, decimal, positive=True)
         if not ok:
+            continue
+        bad = next((n for n, v in (("u", u * f), ("U", U * f), ("k", k)) if _out_of_range(v)), None)
+        if bad is not None:
+            problems.append(_problem(f"{bad}: " + magnitude_problem({"u": u * f, "U": U * f, "k": k}[bad]),
+                                     rec, bad, getattr(rec, bad)))
             continue
         out.append((
             lab, m.name, replicate, cell.kind, value, _decimal_scale(cell.text, f),

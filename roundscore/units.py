@@ -14,7 +14,11 @@ import re
 
 import pint
 
-__all__ = ["factor", "mass_fraction", "UnitError"]
+__all__ = ["factor", "mass_fraction", "UnitError", "UNIT_FORBIDDEN", "unit_text_problem"]
+
+#: Characters that are part of no unit: markup, statement separators, quotes. pint's parser skips some of them
+#: silently ("<b>mg/kg</b>" reads as mg/kg), so they are refused before it sees the text.
+UNIT_FORBIDDEN = frozenset('<>&;"\\`{}')
 
 
 class UnitError(ValueError):
@@ -45,8 +49,18 @@ def _clean(unit: str) -> str:
     return s.strip() or "dimensionless"
 
 
+def unit_text_problem(unit: str) -> str | None:
+    """None for text that can be a unit, else why not (markup or control characters)."""
+    if any(ch in UNIT_FORBIDDEN or not ch.isprintable() for ch in unit):
+        return f"unit {unit!r} holds markup or control characters (such as < > & ;), which no unit has"
+    return None
+
+
 @functools.cache
 def _quantity(unit: str):
+    why = unit_text_problem(unit)
+    if why is not None:
+        raise UnitError(why)
     try:
         return _registry().Quantity(1.0, _clean(unit))
     except Exception as exc:  # pint raises several error types

@@ -165,7 +165,7 @@ def test_command_csv(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None
         (["1.2", "abc", "--vs", "1", "2"], "not a number", {"column": "values", "row": 2, "value": "abc"}),
         (["1.2", "--vs", "1", "2"], "need at least 2 values", {"column": "values"}),
         (["1.2", "1.3"], "give the second set with --vs", {}),
-        (["1.2", "1.3", "--vs", "1", "2", "--confidence", "95"], "below 1", {"value": "95"}),
+        (["1.2", "1.3", "--vs", "1", "2", "--confidence", "95"], "strictly between 0 and 1", {"value": "95"}),
         (["1.2", "<0.5", "--vs", "1", "2"], "censored", {"row": 2}),
     ],
 )

@@ -96,11 +96,11 @@ def test_limits_table_configures_the_readers(make_round):
     from roundscore.errors import InputError
     from roundscore.io.readers import read_results
 
-    rows = "lab,measurand,replicate,value\n" + "".join(f"L{i},a,1,{i}.5\n" for i in range(50))
-    folder = make_round('[round]\nid="R"\n[limits]\nmax_text_mib = 0.0005\ntimeout = 3\n'
+    rows = "lab,measurand,replicate,value\n" + "".join(f"L{i},a,1,{i}.5\n" for i in range(150))
+    folder = make_round('[round]\nid="R"\n[limits]\nmax_text_mib = 0.001\ntimeout = 3\n'
                         '[measurand.a]\nunit="mg/kg"\nsigma_pt=1\n', rows)
     rnd = load_round(folder)
-    assert rnd.limits.max_text_bytes == int(0.0005 * (1 << 20))
+    assert rnd.limits.max_text_bytes == int(0.001 * (1 << 20))
     assert any("did you mean 'timeout_s'" in w for w in rnd.warnings)
     with pytest.raises(InputError, match="MiB"):
         read_results(rnd)

@@ -29,6 +29,7 @@ from typing import Any
 
 from roundscore.cells import DECIMAL_MARKS, AmbiguousNumber, CellError, parse_cell
 from roundscore.errors import InputError, Problem
+from roundscore.ranges import confidence_problem, magnitude_problem
 from roundscore.stats.compare import DEFAULT_CONFIDENCE, MIN_GROUP_SIZE, compare_one, compare_two
 
 __all__ = ["register", "run", "read_numbers", "read_csv_columns"]
@@ -80,6 +81,9 @@ def _number(text: str, *, file: str | None = None, column: str | None = None, ro
     if cell.kind == "censored":
         raise InputError.single("a censored result cannot be compared", file=file, column=column, row=row,
                                 value=text)
+    why = magnitude_problem(cell.value)  # type: ignore[arg-type]
+    if why is not None:
+        raise InputError.single(why, file=file, column=column, row=row, value=text)
     return float(cell.value)  # type: ignore[arg-type]
 
 
@@ -146,9 +150,9 @@ def _confidence(text: str) -> float:
     except ValueError:
         raise InputError.single("the confidence level must be a number such as 0.95", column="--confidence",
                                 value=text) from None
-    if not 0.5 <= value < 1:
-        raise InputError.single("the confidence level must be at least 0.5 and below 1 (e.g. 0.95)",
-                                column="--confidence", value=text)
+    why = confidence_problem(value)
+    if why is not None:
+        raise InputError.single(f"the confidence level must be {why}", column="--confidence", value=text)
     return value
 
 

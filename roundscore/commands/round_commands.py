@@ -74,6 +74,9 @@ def summary_text(ev: RoundEvaluation) -> str:
             f"{m.settings.score:<8}{n('acceptable'):>4}{n('warning'):>4}{n('action'):>4}{n('not-scored'):>4}")
     lines.append(f"  {SIGNAL_SYMBOL['acceptable']} acceptable  {SIGNAL_SYMBOL['warning']} warning signal  "
                  f"{SIGNAL_SYMBOL['action']} action signal  {SIGNAL_SYMBOL['not-scored']} not scored")
+    for name, m in ev.measurands.items():
+        if not m.scored:  # say why, here too: a row of "nan" and "not scored" alone does not
+            lines.append(f"  {name}: not scored: " + ("; ".join(m.notes) or "the assigned value or σ_pt could not be set"))
     for name, notes in ev.stage_notes.items():
         for note in notes:
             lines.append(f"  {name}: {note}")

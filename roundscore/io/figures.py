@@ -33,6 +33,7 @@ import pandas as pd
 from scipy import stats as sps
 
 from ..look import PALETTE, SIGNAL_COLOUR, SIGNAL_MARKER, SIGNAL_WORD
+from .axes import data_span, drawable, span
 from ..stats.scores import EN_ACTION, Z_ACTION, Z_WARNING
 
 __all__ = ["SvgFigure", "MarkKind", "z_bar_figure", "density_figure", "youden_figure", "mandel_figure",
@@ -233,6 +234,12 @@ def _png(fig) -> bytes:
     return buf.getvalue()
 
 
+def _legend(ax, **kw) -> None:
+    """A legend of the labelled artists, or none when nothing is labelled (matplotlib would warn)."""
+    if ax.get_legend_handles_labels()[0]:
+        ax.legend(**kw)
+
+
 def _signal_legend(ax, signals: Sequence[str], words: str, **kw) -> None:
     from matplotlib.lines import Line2D
 
@@ -425,7 +432,7 @@ def density_figure(labs: Sequence[str], values: Sequence[float], *, assigned: fl
     labs_k = [lab for lab, k in zip(labs, ok) if k]
     x, u = x[ok], u[ok]
     fig, ax = _new(_WIDE, right=0.97)
-    have_pt = bool(np.isfinite(assigned) and np.isfinite(sigma_pt) and sigma_pt > 0)
+    have_pt = drawable(assigned, sigma_pt, RANGE_SIGMAS)
     xu = x[u]
     if have_pt:
         lo, hi = assigned - RANGE_SIGMAS * sigma_pt, assigned + RANGE_SIGMAS * sigma_pt
@@ -433,19 +440,28 @@ def density_figure(labs: Sequence[str], values: Sequence[float], *, assigned: fl
             lo, hi = max(lo, min(xu.min(), assigned - 3 * sigma_pt) - 0.5 * sigma_pt), \
                 min(hi, max(xu.max(), assigned + 3 * sigma_pt) + 0.5 * sigma_pt)
     elif len(xu):
-        span = float(np.ptp(xu)) or abs(float(xu[0])) or 1.0
-        lo, hi = float(xu.min()) - 0.3 * span, float(xu.max()) + 0.3 * span
+        half_span = float(xu.max()) / 2 - float(xu.min()) / 2 or abs(float(xu[0])) / 2 or 0.5  # no overflow
+        lo, hi = float(xu.min()) - 0.6 * half_span, float(xu.max()) + 0.6 * half_span
     else:
         lo, hi = 0.0, 1.0
-    grid = np.linspace(lo, hi, 300)
+    lo, hi = span(lo, hi)
+    mid, half = lo / 2 + hi / 2, hi / 2 - lo / 2  # finite for any finite limits, unlike hi − lo
+    grid = mid + half * np.linspace(-1.0, 1.0, 300)
     outside = int(np.sum((x < lo) | (x > hi)))
     ymax = 1.0
-    if len(xu) >= 2 and np.ptp(xu) > 0:
-        if have_pt:
-            h = KDE_BANDWIDTH_FACTOR * sigma_pt
-            dens = sps.norm.pdf((grid[:, None] - xu[None, :]) / h).sum(axis=1) / (len(xu) * h)
-        else:
-            dens = sps.gaussian_kde(xu, bw_method="silverman")(grid)
+    if len(xu) >= 2 and xu.max() > xu.min():
+        # In coordinates centred on the axis and scaled by its half-width: the same curve up to the scale of
+        # the density axis (which has no ticks), and no overflow or underflow for any finite results.
+        with np.errstate(over="ignore", invalid="ignore"):  # far tails: exp(−u²/2) is 0 either way
+            gs, xs = (grid - mid) / half, (xu - mid) / half
+            xs = xs[np.isfinite(xs)]
+            if have_pt:
+                h = KDE_BANDWIDTH_FACTOR * sigma_pt / half
+                dens = sps.norm.pdf((gs[:, None] - xs[None, :]) / h).sum(axis=1) / (max(len(xs), 1) * h)
+            elif len(xs) >= 2 and np.ptp(xs) > 0:
+                dens = sps.gaussian_kde(xs, bw_method="silverman")(gs)
+            else:
+                dens = np.zeros(len(gs))
         ax.fill_between(grid, dens, color=PALETTE["sky"], alpha=0.35, linewidth=0)
         ax.plot(grid, dens, color=PALETTE["blue"], linewidth=1.4, label="kernel density")
         ymax = float(dens.max()) or 1.0
@@ -458,12 +474,11 @@ def density_figure(labs: Sequence[str], values: Sequence[float], *, assigned: fl
         ax.text(assigned - 2 * sigma_pt, 1.0, "−2σ_pt ", transform=ax.get_xaxis_transform(), fontsize=7, va="top",
                 ha="right")
     inside = (x >= lo) & (x <= hi)
-    rug = np.round(x[inside & u], 12)
-    rug_out = np.round(x[inside & ~u], 12)
+    rug, rug_out = x[inside & u], x[inside & ~u]
     y_rug = -0.06 * ymax
     if len(rug):
         # At most one tick per 0.4 pt: identical positions are drawn once (same picture, smaller file).
-        step = (hi - lo) / 1200
+        step = half / 600
         rug = np.unique(np.round(rug / step)) * step
         ax.plot(rug, np.full(len(rug), y_rug), linestyle="none", marker="|", markersize=9, color="#000000",
                 markeredgewidth=0.8, label="results (rug)")
@@ -476,7 +491,7 @@ def density_figure(labs: Sequence[str], values: Sequence[float], *, assigned: fl
     ax.set_ylabel("density")
     ax.set_xlabel(f"result ({unit})" if unit else "result")
     ax.set_title(title, loc="left")
-    ax.legend(frameon=False, fontsize=8, loc="upper right")
+    _legend(ax, frameon=False, fontsize=8, loc="upper right")
     if png:
         return _png(fig)
     caption = (f"Kernel density of {int(u.sum())} results used (bandwidth "
@@ -526,7 +541,7 @@ def youden_figure(labs: Sequence[str], a: Sequence[float], b: Sequence[float], *
     xa, xb = xa[ok], xb[ok]
     fig, ax = _new(_SQUARE, left=0.11, right=0.70, bottom=0.12, top=0.92)
     (ca, cb), (sa, sb) = assigned, sigma_pt
-    have = all(np.isfinite(v) for v in (ca, cb, sa, sb)) and sa > 0 and sb > 0
+    have = drawable(ca, sa, RANGE_SIGMAS) and drawable(cb, sb, RANGE_SIGMAS)
     if have:
         za, zb = (xa - ca) / sa, (xb - cb) / sb
         core = (np.abs(za) <= 3) & (np.abs(zb) <= 3)
@@ -548,11 +563,15 @@ def youden_figure(labs: Sequence[str], a: Sequence[float], b: Sequence[float], *
                   min(lim_a[1], max(xa.max(initial=ca), ca + 3 * sa) + 0.5 * sa))
         span_b = (max(lim_b[0], min(xb.min(initial=cb), cb - 3 * sb) - 0.5 * sb),
                   min(lim_b[1], max(xb.max(initial=cb), cb + 3 * sb) + 0.5 * sb))
+        span_a, span_b = span(*span_a), span(*span_b)
         ax.set_xlim(*span_a)
         ax.set_ylim(*span_b)
         cx, cy = np.clip(xa, *span_a), np.clip(xb, *span_b)
     else:
-        cx, cy = xa, xb
+        span_a, span_b = data_span(xa), data_span(xb)
+        ax.set_xlim(*span_a)
+        ax.set_ylim(*span_b)
+        cx, cy = np.clip(xa, *span_a), np.clip(xb, *span_b)
     for s in ("acceptable", "warning", "action", "not-scored"):
         sel = sig == s
         if sel.any():
@@ -562,7 +581,7 @@ def youden_figure(labs: Sequence[str], a: Sequence[float], b: Sequence[float], *
     ax.set_xlabel(names[0])
     ax.set_ylabel(names[1])
     ax.set_title(title, loc="left")
-    ax.legend(frameon=False, fontsize=8, loc="upper left", bbox_to_anchor=(1.02, 1.0), borderaxespad=0)
+    _legend(ax, frameon=False, fontsize=8, loc="upper left", bbox_to_anchor=(1.02, 1.0), borderaxespad=0)
     if png:
         return _png(fig)
     caption = (f"Youden plot of {len(xa)} laboratories: {names[0]} against {names[1]}, the assigned values "

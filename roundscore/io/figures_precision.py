@@ -13,7 +13,8 @@ import numpy as np
 
 from ..look import PALETTE, SIGNAL_MARKER
 from ..stats.precision import mandel_h_critical, mandel_k_critical
-from .figures import _WIDE, MAX_BARS, PROFILE_POINTS, SvgFigure, _codes, _finish, _new, _png, _step_columns
+from .figures import (_WIDE, MAX_BARS, PROFILE_POINTS, SvgFigure, _codes, _finish, _legend, _new, _png,
+                      _step_columns)
 
 __all__ = ["mandel_limits", "mandel_figure", "homogeneity_figure", "stability_figure", "stability_verdict"]
 
@@ -92,7 +93,7 @@ def mandel_figure(labs: Sequence[str], values: Sequence[float], *, statistic: Li
     ax.set_ylim(-1.2 * reach if statistic == "h" else 0.0, 1.4 * reach)  # head room for the legend
     ax.set_ylabel(f"Mandel {statistic}")
     ax.set_title(title, loc="left")
-    ax.legend(frameon=False, fontsize=7, loc="upper left", ncol=3)
+    _legend(ax, frameon=False, fontsize=7, loc="upper left", ncol=3)
     if png:
         return _png(fig)
     caption = (f"Mandel's {statistic} for {len(v)} laboratories with the 5 % (dashed) and 1 % (solid) "

@@ -36,7 +36,7 @@ import xlsxwriter
 
 from ..cells import DECIMAL_MARKS
 from ..errors import Problem, sheet_cell
-from ..round import Round
+from ..round import MAX_FORM_REPLICATES, Round
 from .xlsx import SheetRows
 
 __all__ = ["write_forms", "FormsWritten", "write_form", "records_from_form", "form_decimal", "FormDecimal",
@@ -324,8 +324,13 @@ def records_from_form(rnd: Round, results: SheetRows, info: SheetRows):
     try:
         header_row = int(kv.get("header_row", HEADER_ROW))
         reps = int(kv.get("replicates", rnd.replicates))
-    except (TypeError, ValueError):
+    except (TypeError, ValueError, OverflowError):
         return [], problems + [Problem(message="the form-info sheet is damaged", file=file, sheet=INFO_SHEET)]
+    if not (1 <= reps <= MAX_FORM_REPLICATES and 1 <= header_row <= len(results.rows) + 1):
+        return [], problems + [Problem(
+            message=f"the form-info sheet is damaged: replicates must be 1 to {MAX_FORM_REPLICATES} and "
+                    "header_row a row of the results sheet", file=file, sheet=INFO_SHEET,
+            value=kv.get("replicates") if not 1 <= reps <= MAX_FORM_REPLICATES else kv.get("header_row"))]
     declared, found = form_decimal(results, info)
     problems += found
     if problems:

@@ -48,7 +48,7 @@ from ..errors import InputError
 
 __all__ = [
     "ReadLimits", "WorkbookCheck", "inspect_workbook", "ReadFailure", "FileRows", "read_many",
-    "DEFAULT_LIMITS", "OLE2_SIGNATURE", "DEFLATE_MAX_RATIO",
+    "DEFAULT_LIMITS", "OLE2_SIGNATURE", "DEFLATE_MAX_RATIO", "LIMIT_MAX",
 ]
 
 MiB = 1 << 20
@@ -60,6 +60,12 @@ ZIP_SIGNATURE = b"PK\x03\x04"
 _CHUNK = 1 * MiB
 #: Markup that declares a DTD or an entity (XML 1.0, sections 2.8 and 4.2).
 _DTD_MARKERS = (b"<!DOCTYPE", b"<!ENTITY")
+#: Largest value of each ReadLimits field: far above any real round, and small enough for the system calls
+#: that use them (a timeout past about 2.9e5 years overflows the poll timeout; RLIMIT_AS takes a 64-bit size).
+LIMIT_MAX: dict[str, int | float] = {
+    "max_member_bytes": 4096 * (1 << 20), "max_total_bytes": 16384 * (1 << 20), "max_members": 100_000,
+    "timeout_s": 3600.0, "memory_bytes": 65536 * (1 << 20), "max_text_bytes": 4096 * (1 << 20),
+}
 
 
 
@@ -95,10 +101,12 @@ class ReadLimits:
     def __post_init__(self) -> None:
         for name in ("max_member_bytes", "max_total_bytes", "max_members", "memory_bytes", "max_text_bytes"):
             v = getattr(self, name)
-            if isinstance(v, bool) or not isinstance(v, int) or v <= 0:
-                raise ValueError(f"ReadLimits.{name} must be a whole number > 0, got {v!r}")
-        if isinstance(self.timeout_s, bool) or not isinstance(self.timeout_s, (int, float)) or not self.timeout_s > 0:
-            raise ValueError(f"ReadLimits.timeout_s must be a number of seconds > 0, got {self.timeout_s!r}")
+            if isinstance(v, bool) or not isinstance(v, int) or not 0 < v <= LIMIT_MAX[name]:
+                raise ValueError(f"ReadLimits.{name} must be a whole number from 1 to {LIMIT_MAX[name]}, got {v!r}")
+        t = self.timeout_s
+        if isinstance(t, bool) or not isinstance(t, (int, float)) or not 0 < t <= LIMIT_MAX["timeout_s"]:
+            raise ValueError(f"ReadLimits.timeout_s must be a number of seconds > 0 and at most "
+                             f"{LIMIT_MAX['timeout_s']:g}, got {t!r}")
 
 
 DEFAULT_LIMITS = ReadLimits()

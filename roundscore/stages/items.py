@@ -63,6 +63,7 @@ from ..cells import CellError, parse_cell
 from ..errors import InputError, Problem, StatisticsError, cell_ref, is_text_file
 from ..io.readers import read_item_table
 from ..io.xlsx import SheetRows
+from ..ranges import magnitude_problem
 from ..round import MeasurandSettings, Round
 from ..stats import items as st
 from ..table import cell_label, summarise_ambiguous
@@ -372,6 +373,10 @@ def _parse(sheet: SheetRows, m: MeasurandSettings, kind: TableKind,
                 bad(f"{exc} (the round reports {m.name} in {m.unit})", row, "unit", get.get("unit"))
                 continue
         value = float(cell.value) * f  # type: ignore[arg-type]
+        why = magnitude_problem(value)  # roundscore.ranges: too large or small to compute with
+        if why is not None:
+            bad(why, row, "value", get["value"])
+            continue
         if value < 0 and not m.allow_negative:
             bad(f"a negative value, but {m.name} cannot be below zero "
                 "(set allow_negative = true for this measurand if it can)", row, "value", get["value"])
@@ -386,6 +391,10 @@ def _parse(sheet: SheetRows, m: MeasurandSettings, kind: TableKind,
                 bad("u must be a number ≥ 0: the standard uncertainty of the set's mean", row, "u", get["u"])
                 continue
             u = float(uc.value) * f
+            why = magnitude_problem(u)
+            if why is not None:
+                bad(f"u: {why}", row, "u", get["u"])
+                continue
             if set_name in set_u and not math.isclose(set_u[set_name][0], u, rel_tol=1e-12, abs_tol=0.0):
                 bad(f"u differs within set {set_name!r} (row {set_u[set_name][1]} gives "
                     f"{set_u[set_name][0]:g}): u is the uncertainty of the set's mean, one number per set",

@@ -33,6 +33,7 @@ import numpy as np
 from scipy import stats as sps
 
 from roundscore.errors import StatisticsError
+from roundscore.ranges import confidence_problem, magnitude_problem, spread_problem
 from roundscore.stats.exact import check_choice
 from roundscore.stats.precision import AnovaTable, anova_oneway
 
@@ -74,10 +75,10 @@ def _pct(confidence: float) -> str:
 
 
 def _check_confidence(confidence: float) -> float:
-    c = float(confidence)
-    if not 0.5 <= c < 1:
-        raise StatisticsError(f"confidence must be at least 0.5 and below 1, got {confidence!r}")
-    return c
+    why = confidence_problem(confidence)
+    if why is not None:
+        raise StatisticsError(f"confidence must be {why}, got {confidence!r}")
+    return float(confidence)
 
 
 def _sample(values: Sequence[float] | np.ndarray, label: str) -> np.ndarray:
@@ -86,7 +87,18 @@ def _sample(values: Sequence[float] | np.ndarray, label: str) -> np.ndarray:
         raise StatisticsError(f"group {label}: need at least {MIN_GROUP_SIZE} values, got {x.size}")
     if not np.all(np.isfinite(x)):
         raise StatisticsError(f"group {label}: a value is not a finite number")
+    for v in x:  # roundscore.ranges: beyond these the sums of squares overflow or underflow
+        why = magnitude_problem(v)
+        if why is not None:
+            raise StatisticsError(f"group {label}: the value {v:g} is {why}")
     return x
+
+
+def _spread(sd: float, values: np.ndarray, label: str) -> None:
+    """Refuse a t test whose spread is rounding (roundscore.ranges.spread_problem)."""
+    why = spread_problem(sd, float(np.max(np.abs(values))), f"the values of {label}")
+    if why is not None:
+        raise StatisticsError(f"{why}; the t test is not meaningful")
 
 
 def _mean_var(x: np.ndarray) -> tuple[float, float]:
@@ -445,6 +457,7 @@ def compare_two(
     mb, vb = _mean_var(y)
     if va == 0 and vb == 0:
         raise StatisticsError(f"groups {la} and {lb}: no spread in either group, the t test is undefined")
+    _spread(math.sqrt(max(va, vb)), np.concatenate([x, y]), f"{la} and {lb}")
     ftest = _variance_test(va, vb, na - 1, nb - 1, alpha)
     if method == "auto":
         use = "welch" if ftest.reject else "pooled"
@@ -529,6 +542,7 @@ def compare_one(
     m, var = _mean_var(v)
     if var == 0:
         raise StatisticsError(f"group {label}: the values do not vary, the t test is undefined")
+    _spread(math.sqrt(var), v, label)
     n = v.size
     sd = math.sqrt(var)
     se = sd / math.sqrt(n)

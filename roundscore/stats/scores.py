@@ -97,9 +97,9 @@ def signal(score, kind: str = "z") -> np.ndarray:
 def possible_unit_slip(x, x_pt) -> np.ndarray:
     """True where x/x_pt is near 10^±1 or 10^±3 (a unit or decimal slip; common practice)."""
     x, x_pt = _a(x), _a(x_pt)
-    with np.errstate(divide="ignore", invalid="ignore"):
+    with np.errstate(all="ignore"):  # x_pt = 0 or NaN: no ratio, so no slip
         r = np.log10(np.abs(x / x_pt))
     near = np.zeros(np.shape(r), dtype=bool)
     for k in SLIP_POWERS:
         near |= np.abs(r - k) <= SLIP_TOLERANCE
-    return near & (x * x_pt > 0)
+    return near & (np.sign(x) * np.sign(x_pt) > 0)  # signs, not the product: that can overflow
