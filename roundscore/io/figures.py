@@ -636,6 +636,9 @@ def round_figures(ev, *, jobs: int | None = 1, progress=None) -> RoundFigures:
     mandel = ev.extras.get("mandel")
     if mandel is not None and len(mandel) and {"lab", "measurand", "h", "k"} <= set(mandel.columns):
         tasks += [("mandel", n) for n in dict.fromkeys(mandel["measurand"])]
+    for table in ("scores", "mandel", "precision"):  # split by measurand once, before the workers fork
+        if table == "scores" or "measurand" in getattr(ev.extras.get(table), "columns", ()):
+            ev.measurand_rows(table, "")
     drawn = run_batches(_draw_batch, tasks, jobs=jobs, shared=ev, batch_size=1, progress=progress,
                         stage="figures")
     scores, density, items, stab, youden, mandel_figs = {}, {}, {}, {}, [], {}
@@ -661,7 +664,6 @@ def _draw_batch(tasks: Sequence[tuple[str, ...]]) -> list[dict]:
 
 def _draw(ev, task: tuple[str, ...]) -> dict:
     words = ev.round.words
-    sc = ev.scores
     if task[0] == "youden":
         return {"youden": _youden(ev, task[1], task[2])}
     name = task[1]
@@ -670,8 +672,8 @@ def _draw(ev, task: tuple[str, ...]) -> dict:
     m = ev.measurands[name]
     out: dict = {}
     label = m.settings.label or name
-    g = sc[sc["measurand"] == name] if len(sc) else None
-    if m.scored and g is not None and len(g):
+    g = ev.measurand_rows("scores", name)
+    if m.scored and len(g):
         out["scores"] = z_bar_figure(g["lab"].tolist(), g[SCORE_FIELD[m.settings.score]].to_numpy(float),
                                      g["signal"].tolist(), key=f"z-{name}", score=m.settings.score,
                                      title=f"{label}: {_score_label(m.settings.score)} by laboratory", words=words)
@@ -712,9 +714,8 @@ def _youden(ev, a: str, b: str) -> SvgFigure:
     la, lb = ma.labs.set_index("lab"), mb.labs.set_index("lab")
     codes = [lab for lab in la.index if lab in lb.index]
     sig: dict[str, str] = {}
-    sc = ev.scores
     for name in (a, b):
-        g = sc[sc["measurand"] == name]
+        g = ev.measurand_rows("scores", name)
         for lab, s in zip(g["lab"], g["signal"]):
             if _WORSE.get(s, 0) >= _WORSE.get(sig.get(lab, "not-scored"), 0):
                 sig[lab] = s
@@ -729,7 +730,7 @@ def _mandel(ev, name: str) -> tuple[SvgFigure, ...]:
     from .figures_precision import mandel_figure, mandel_limits
 
     frame = ev.extras["mandel"]
-    g = frame[frame["measurand"] == name]
+    g = ev.measurand_rows("mandel", name)
     critical = frame.attrs.get("critical", {}) if isinstance(frame.attrs, dict) else {}
     h, k = g["h"].to_numpy(float), g["k"].to_numpy(float)
     lim = dict(critical.get(name, {}))
@@ -742,7 +743,7 @@ def _mandel(ev, name: str) -> tuple[SvgFigure, ...]:
         n = ev.round.replicates
         prec = ev.extras.get("precision")
         if prec is not None and "n_bar" in getattr(prec, "columns", ()):
-            row = prec[prec["measurand"] == name]
+            row = ev.measurand_rows("precision", name)
             if len(row) and np.isfinite(float(row["n_bar"].iloc[0])):
                 n = int(round(float(row["n_bar"].iloc[0])))
         lim_h = mandel_limits(int(np.isfinite(h).sum()), n)

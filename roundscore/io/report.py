@@ -364,7 +364,7 @@ def _items(ev, figs: RoundFigures) -> str:
 def _measurand_section(ev, name: str, m, figs: RoundFigures) -> str:
     d = m.settings.decimals
     e = m.robust
-    counts = ev.scores.loc[ev.scores["measurand"] == name, "signal"].value_counts()
+    counts = ev.measurand_rows("scores", name)["signal"].value_counts()
     signals = ", ".join(f"{SIGNAL_SYMBOL[s]} {SIGNAL_WORD[ev.round.words][s]}: {int(counts.get(s, 0))}"
                         for s in _SIGNALS)
     u_check = {None: "not computable", True: "yes", False: "NO: u(x_pt) is not negligible"}[m.u_check_passed]
