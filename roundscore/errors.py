@@ -11,6 +11,15 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
+from .text import clip, quote, terminal_text
+
+#: Longest message text of one problem (a message lists what is allowed; values in it are quoted clipped).
+MAX_MESSAGE_CHARS = 2000
+
+
+def _shown(text: object, limit: int = 80) -> str:
+    return terminal_text(clip(str(text), limit))
+
 __all__ = [
     "RoundscoreError",
     "Problem",
@@ -56,29 +65,30 @@ class Problem:
     value: object = None
 
     def __str__(self) -> str:
+        # Every part may come from a participant's file (a sheet name, a lab code, a cell): each is clipped
+        # and its control characters escaped (roundscore.text), so a message stays short and cannot drive
+        # the terminal. The message itself is roundscore's own text, quoting values through the same rules.
         where = []
         if self.file:
-            where.append(str(self.file))
+            where.append(_shown(self.file, 200))
         if self.sheet:
-            where.append(f"sheet {self.sheet!r}")
+            where.append(f"sheet {_shown(self.sheet)!r}")
         if self.row is not None:
             where.append(f"row {self.row}")
         if self.column:
-            where.append(f"column {self.column!r}")
+            where.append(f"column {_shown(self.column)!r}")
         who = []
         if self.lab:
-            who.append(f"lab {self.lab}")
+            who.append(f"lab {_shown(self.lab)}")
         if self.measurand:
-            who.append(f"measurand {self.measurand}")
+            who.append(f"measurand {_shown(self.measurand)}")
         text = ", ".join(where)
         if who:
             text += (" (" + ", ".join(who) + ")") if text else ", ".join(who)
         if self.value is not None:
-            shown = repr(self.value)
-            if len(shown) > 60:
-                shown = shown[:57] + "..."
-            text += f": value {shown}"
-        return f"{text}: {self.message}" if text else self.message
+            text += f": value {quote(self.value)}"
+        message = terminal_text(clip(self.message, MAX_MESSAGE_CHARS), newlines=True)
+        return f"{text}: {message}" if text else message
 
 
 @dataclass(eq=False)
@@ -116,7 +126,7 @@ class RoundFileError(InputError):
 
     @classmethod
     def key(cls, file: str, key: str, found: object, allowed: str) -> "RoundFileError":
-        msg = f"{file}: key {key!r}: found {found!r}; allowed: {allowed}"
+        msg = f"{file}: key {quote(key, 80)}: found {quote(found)}; allowed: {allowed}"
         return cls([Problem(message=msg)], summary=msg)
 
 

@@ -15,9 +15,10 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Callable, Iterator
 
+from .filenames import lab_file_name
 from .evaluate import AUDIT_COLUMNS, SCORE_COLUMNS, STATISTICS_COLUMNS, RoundEvaluation, evaluate
 from .io.csvout import write_csv
-from .io.readers import read_participants, read_results
+from .io.readers import check_labs, read_participants, read_results
 from .io.workbook import lab_payload, write_lab_workbook, write_summary
 from .parallel import run_batches, shared
 from .round import Round, load_round
@@ -70,6 +71,7 @@ def load_and_evaluate(round_path: str | Path, *, jobs: int | None = None,
     rnd = load_round(round_path)
     table = read_results(rnd, jobs=jobs, progress=progress)
     participants = read_participants(rnd)
+    table = check_labs(rnd, table, participants)  # codes agree with the participants file and the exclusions
     return evaluate(rnd, table, participants)
 
 
@@ -107,7 +109,7 @@ def write_outputs(ev: RoundEvaluation, folder: Path, *, history=None,
     labs_dir.mkdir()
     labs = ev.labs
     ev.split_by_lab()  # once, here: each worker would otherwise split the tables again
-    lab_paths = [out(f"labs/{_safe(lab)}.xlsx") for lab in labs]
+    lab_paths = [out(f"labs/{lab_file_name(lab, '.xlsx')}") for lab in labs]
     for i in range(0, len(labs), LAB_SHEETS_PER_TASK):
         group = list(zip(labs[i:i + LAB_SHEETS_PER_TASK], lab_paths[i:i + LAB_SHEETS_PER_TASK]))
         tasks.append(("labs", [(lab, p, history(lab) if history is not None else None) for lab, p in group]))
@@ -137,10 +139,6 @@ def _write_tasks(tasks: list[tuple]) -> list[None]:
             for lab, path, hist in task[1]:
                 write_lab_workbook(lab_payload(ev, lab, hist), path)
     return [None] * len(tasks)
-
-
-def _safe(text: str) -> str:
-    return "".join(ch if ch.isalnum() or ch in "-_." else "_" for ch in text)
 
 
 def run_round(round_path: str | Path, out: str | Path, *, archive: str | Path | None = None,

@@ -19,11 +19,13 @@ import pandas as pd
 from .cells import CellError, parse_cell
 from .errors import InputError, Problem
 from .io.xlsx import SheetRows
+from .labcodes import clash_problems, read_lab_code
 from .round import Round
+from .text import shown_list, too_long
 from .units import UnitError, factor
 
 __all__ = ["ResultTable", "build_table", "validate_records", "table_frame", "COLUMNS", "Record",
-           "records_from_long", "cell_label"]
+           "records_from_long", "cell_label", "lab_places"]
 
 #: Columns of :attr:`ResultTable.frame`, in order.
 COLUMNS = (
@@ -75,11 +77,15 @@ class ResultTable:
         The files read.
     warnings : tuple of str
         Things that did not stop the import.
+    lab_places : dict of str to dict
+        Where each lab code was first read (:class:`~roundscore.errors.Problem`
+        fields file, sheet, row, column), for messages that name it.
     """
 
     frame: pd.DataFrame
     files: tuple[str, ...] = ()
     warnings: tuple[str, ...] = field(default=())
+    lab_places: dict[str, dict] = field(default_factory=dict)
 
     @property
     def labs(self) -> list[str]:
@@ -178,10 +184,20 @@ def build_table(
         results where the measurand allows none, bad uncertainties.
     """
     rows, found = validate_records(rnd, records)
-    problems = list(problems) + found
+    places = lab_places(rows)
+    problems = list(problems) + found + clash_problems(places)
     if problems:
         raise InputError(problems, summary="the results cannot be imported")
-    return ResultTable(frame=table_frame(rows), files=tuple(files), warnings=tuple(warnings))
+    return ResultTable(frame=table_frame(rows), files=tuple(files), warnings=tuple(warnings), lab_places=places)
+
+
+def lab_places(rows: Iterable[tuple]) -> dict[str, dict]:
+    """Where each lab code of validated rows (:data:`COLUMNS` tuples) first appears: file, sheet, row, column."""
+    out: dict[str, dict] = {}
+    for r in rows:
+        if r[0] not in out:
+            out[r[0]] = {"file": r[-3], "sheet": r[-2], "row": r[-1], "column": "lab"}
+    return out
 
 
 def table_frame(rows: list[tuple]) -> pd.DataFrame:
@@ -226,12 +242,35 @@ def validate_records(rnd: Round, records: Iterable[Record]) -> tuple[list[tuple]
         except TypeError:  # an unhashable cell value: never from a reader, but keep the rule
             return cell_label(v)
 
+    codes: dict[tuple[type, object], tuple[str | None, str | None]] = {}
+    texts: dict[tuple[str, str], str | None] = {}  # (kind, text) -> why it is refused (None: fine)
+
+    def lab_code(v: object) -> tuple[str | None, str | None]:
+        try:
+            key = (type(v), v)
+            got = codes.get(key)
+            if got is None:
+                got = codes[key] = read_lab_code(v)
+            return got
+        except TypeError:
+            return read_lab_code(v)
+
+    def bounded(kind: str, v: object, column: str, rec: Record) -> str | None:
+        text = label(v)
+        if text is None:
+            return None
+        key = (kind, text)
+        why = texts[key] if key in texts else texts.setdefault(key, too_long(kind, text))
+        if why:
+            problems.append(_problem(why, rec, column, v))
+        return text
+
     for rec in records:
-        lab = label(rec.lab)
-        name = label(rec.measurand)
+        lab, why = lab_code(rec.lab)
         if lab is None:
-            problems.append(_problem("the lab code is empty", rec, "lab", rec.lab))
+            problems.append(_problem(why or "the lab code is empty", rec, "lab", rec.lab))
             continue
+        name = label(rec.measurand)
         if name is None:
             problems.append(_problem("the measurand is empty", rec, "measurand", rec.measurand))
             continue
@@ -240,7 +279,7 @@ def validate_records(rnd: Round, records: Iterable[Record]) -> tuple[list[tuple]
             m = known.get(lower.get(name.lower(), ""))
         if m is None:
             problems.append(_problem(
-                f"unknown measurand; the round has: {', '.join(known)}", rec, "measurand", rec.measurand))
+                f"unknown measurand; the round has: {shown_list(known)}", rec, "measurand", rec.measurand))
             continue
         rep = rec.replicate
         if type(rep) is int and rep >= 1:
@@ -272,6 +311,10 @@ def validate_records(rnd: Round, records: Iterable[Record]) -> tuple[list[tuple]
         unit = label(rec.unit) or m.unit
         f = 1.0
         if unit != m.unit:
+            why = too_long("unit", unit)
+            if why:  # refused before the unit parser sees it (a long unit text costs it seconds)
+                problems.append(_problem(why, rec, "unit", rec.unit))
+                continue
             try:
                 f = factor(unit, m.unit)
             except UnitError as exc:
@@ -290,6 +333,7 @@ def validate_records(rnd: Round, records: Iterable[Record]) -> tuple[list[tuple]
         out.append((
             lab, m.name, replicate, cell.kind, value, _decimal_scale(cell.text, f),
             cell.relation, limit, m.unit, u * f, U * f, k,
-            label(rec.method), label(rec.comment), rec.file, rec.sheet, rec.row,
+            bounded("method", rec.method, "method", rec), bounded("comment", rec.comment, "comment", rec),
+            rec.file, rec.sheet, rec.row,
         ))
     return out, problems

@@ -9,10 +9,12 @@ from pathlib import Path
 from ..errors import InputError, Problem
 from ..round import Round
 from ..table import ResultTable, build_table, records_from_long, table_frame, validate_records
-from .forms import INFO_SHEET, RESULTS_SHEET, records_from_form
+from ..labcodes import LabCodeReader, clash_problems, lab_key
+from ..text import quote, too_long
+from .forms import INFO_SHEET, RESULTS_SHEET, lab_cell, records_from_form
 from .xlsx import SheetRows, read_rows
 
-__all__ = ["read_results", "read_participants", "Participant", "read_item_table"]
+__all__ = ["read_results", "read_participants", "Participant", "read_item_table", "check_labs"]
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -22,6 +24,8 @@ class Participant:
     lab: str
     name: str
     contact: str
+    #: The row of the participants file the lab was read from (None when not read from a file).
+    row: int | None = None
 
 
 def _is_form(path: Path) -> bool:
@@ -107,6 +111,7 @@ def _read_forms(rnd: Round, files: list[Path], *, jobs: int | None, progress) ->
     problems: list[Problem] = []
     warnings: list[str] = []
     rows: list[tuple] = []
+    places: dict[str, dict] = {}
     shown = [_shown(rnd, Path(p)) for p in paths]
     for p, name in zip(paths, shown):
         got = read.get(p)
@@ -116,9 +121,12 @@ def _read_forms(rnd: Round, files: list[Path], *, jobs: int | None, progress) ->
             rows += got.rows
             problems += got.problems
             warnings += got.warnings
+            if got.rows and got.lab_place is not None:
+                places.setdefault(got.rows[0][0], got.lab_place)
         else:  # a ReadFailure: refused, crashed, out of memory or timed out
             problems += [_with_file(q, name) for q in got.as_problems()]
     del read
+    problems += clash_problems(places)
     frame = table_frame(rows)
     dup = frame.duplicated(["lab", "measurand", "replicate"], keep="first").to_numpy()
     if dup.any():
@@ -133,16 +141,20 @@ def _read_forms(rnd: Round, files: list[Path], *, jobs: int | None, progress) ->
                 measurand=r.measurand, value=int(r.replicate)))
     if problems:
         raise InputError(problems, summary="the results cannot be imported")
-    return ResultTable(frame=frame, files=tuple(shown), warnings=tuple(warnings))
+    return ResultTable(frame=frame, files=tuple(shown), warnings=tuple(warnings), lab_places=places)
 
 
 @dataclass(frozen=True, slots=True)
 class _FormRows:
-    """One returned form, validated where it was read: its row tuples (table COLUMNS) and findings."""
+    """One returned form, validated where it was read: its row tuples (table COLUMNS) and findings.
+
+    ``lab_place`` is where the form keeps its lab code (the form-info cell), named by clash messages.
+    """
 
     rows: list
     problems: list
     warnings: list
+    lab_place: dict | None = None
 
 
 def _read_sheets(paths: list[str], limits) -> list:
@@ -160,7 +172,8 @@ def _form_rows(rnd: Round, got) -> _FormRows:
     results = SheetRows(file=shown, sheet=results.sheet, rows=results.rows, warnings=results.warnings)
     records, problems = records_from_form(rnd, results, info)
     rows, found = validate_records(rnd, records)
-    return _FormRows(rows=rows, problems=problems + found, warnings=list(results.warnings + info.warnings))
+    return _FormRows(rows=rows, problems=problems + found, warnings=list(results.warnings + info.warnings),
+                     lab_place={**lab_cell(info), "file": shown})
 
 
 def _with_file(problem: Problem, shown: str) -> Problem:
@@ -201,41 +214,108 @@ def _resolved(folder: Path) -> Path:
 
 
 def read_participants(rnd: Round) -> dict[str, Participant]:
-    """The participants' names and contacts by lab code (empty when the round names no file)."""
+    """The participants' names and contacts by lab code (empty when the round names no file).
+
+    Lab codes follow the lab-code rule (:mod:`roundscore.labcodes`); names
+    and contacts are bounded (:data:`roundscore.text.TEXT_LIMITS`); a code
+    given twice, or two codes that differ only in letter case or Unicode
+    form, are refused with both rows named.
+    """
     if rnd.participants is None:
         return {}
     shown = _shown(rnd, rnd.participants)
     sheet = _read_table(rnd, rnd.participants, shown)
-    rows = [r for r in sheet.rows if any(c is not None for c in r)]
+    rows = [(i, r) for i, r in enumerate(sheet.rows, start=1) if any(c is not None for c in r)]
     if not rows:
         raise InputError.single("the participants file is empty", file=shown)
-    header = [str(c).strip().lower() if c is not None else "" for c in rows[0]]
+    head_row, head = rows[0]
+    header = [str(c).strip().lower() if c is not None else "" for c in head]
     if "lab" not in header:
         raise InputError.single(
-            f"the participants file needs a 'lab' column (and 'name', 'contact'); found: {', '.join(header)}",
-            file=shown, row=1)
+            f"the participants file needs a 'lab' column (and 'name', 'contact'); found: "
+            f"{', '.join(quote(h, 40) for h in header)}", file=shown, row=head_row)
     il = header.index("lab")
     iname = header.index("name") if "name" in header else None
     icontact = header.index("contact") if "contact" in header else None
     out: dict[str, Participant] = {}
-    problems = []
-    for i, r in enumerate(rows[1:], start=2):
-        def cell(j):
+    problems: list[Problem] = []
+    codes = LabCodeReader(problems)
+    for i, r in rows[1:]:
+        def cell(j, kind):
             if j is None or j >= len(r) or r[j] is None:
                 return ""
             v = r[j]
-            return str(int(v)) if isinstance(v, float) and v.is_integer() else str(v).strip()
-        lab = cell(il)
-        if not lab:
-            problems.append(Problem(message="the lab code is empty", file=shown, row=i))
+            text = str(int(v)) if isinstance(v, float) and v.is_integer() else str(v).strip()
+            why = too_long(kind, text)
+            if why:
+                problems.append(Problem(message=why, file=shown, row=i, column=header[j], value=v))
+            return text
+        raw = r[il] if il < len(r) else None
+        lab = codes.read(raw, file=shown, row=i, column="lab")
+        if lab is None:
             continue
         if lab in out:
-            problems.append(Problem(message="the lab appears twice", file=shown, row=i, lab=lab))
+            first = codes.first_seen[lab]
+            problems.append(Problem(message=f"the lab appears twice (first in row {first['row']})", file=shown,
+                                    row=i, column="lab", lab=lab))
             continue
-        out[lab] = Participant(lab=lab, name=cell(iname), contact=cell(icontact))
+        out[lab] = Participant(lab=lab, name=cell(iname, "participant name"), contact=cell(icontact, "contact"),
+                               row=i)
+    problems += clash_problems(codes.first_seen)
     if problems:
         raise InputError(problems, summary="the participants file has problems")
     return out
+
+
+def check_labs(rnd: Round, table: ResultTable, participants: dict[str, Participant]) -> ResultTable:
+    """Check the lab codes of the results against the participants file and the coordinator's exclusions.
+
+    * A lab code of the results and one of the participants file (or of an
+      ``[[exclude]]``) that differ only in letter case or Unicode form are
+      refused, naming both places: they would be two labs with one file name
+      on Windows and macOS, and an exclusion meant for the lab would miss it.
+    * A lab in the results that is not in the participants file is a warning,
+      or an error with ``[round] unknown_labs = "error"`` (no check when the
+      round names no participants file).
+    * An ``[[exclude]]`` naming a lab that is in neither is a warning: it
+      changes nothing.
+
+    Returns the table with the warnings added.
+    """
+    from dataclasses import replace
+
+    labs = list(dict.fromkeys(table.frame["lab"])) if len(table.frame) else []
+    results_places = {lab: table.lab_places.get(lab, {}) for lab in labs}
+    part_shown = _shown(rnd, rnd.participants) if rnd.participants is not None else None
+    part_places = {lab: {"file": part_shown, "row": p.row, "column": "lab"} for lab, p in participants.items()}
+    problems = clash_problems(results_places, also=part_places)
+    excl_places = {e.lab: {"file": str(rnd.path), "column": f"exclude[{i}].lab"}
+                   for i, e in enumerate(rnd.exclusions, start=1)}
+    problems += clash_problems(excl_places, also={**part_places, **results_places})
+    warnings: list[str] = []
+    if rnd.participants is not None:
+        keys = {lab_key(p): p for p in participants}
+        unknown = [lab for lab in labs if lab not in participants and lab_key(lab) not in keys]
+        for lab in unknown:
+            where = dict(results_places.get(lab, {}))
+            message = (f"lab code {quote(lab)} is not in the participants file {_shown(rnd, rnd.participants)}")
+            if rnd.unknown_labs == "error":
+                problems.append(Problem(message=message + " ([round] unknown_labs = \"error\"); add the lab to "
+                                        "the participants file, or correct the code", lab=lab, **where))
+            else:
+                warnings.append(str(Problem(message=message + "; its sheet carries no name ([round] "
+                                            "unknown_labs = \"error\" refuses such a form)", lab=lab, **where)))
+    known = set(labs) | set(participants)
+    known_keys = {lab_key(c) for c in known}
+    for i, e in enumerate(rnd.exclusions, start=1):
+        if e.lab not in known and lab_key(e.lab) not in known_keys:
+            warnings.append(f"{rnd.path}: [[exclude]] #{i}: lab {quote(e.lab)} is not among the round's labs; "
+                            "the exclusion changes nothing")
+    if problems:
+        raise InputError(problems, summary="the lab codes do not agree")
+    if not warnings:
+        return table
+    return replace(table, warnings=tuple(table.warnings) + tuple(warnings))
 
 
 def read_item_table(rnd: Round, path: Path, *, what: str) -> SheetRows:

@@ -215,8 +215,10 @@ def _legend(words: str) -> str:
 
 
 def lab_file_name(lab: str) -> str:
-    """The file name of a lab's page (same rule as its workbook's): unsafe characters become ``_``."""
-    return "".join(ch if ch.isalnum() or ch in "-_." else "_" for ch in lab) + ".html"
+    """The file name of a lab's page: the same stem as its workbook's (:func:`roundscore.filenames.file_stem`)."""
+    from ..filenames import lab_file_name as named
+
+    return named(lab, ".html")
 
 
 # ------------------------------------------------------------------------------------------ shared parts
