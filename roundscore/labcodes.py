@@ -14,7 +14,8 @@ named:
   digit, punctuation character, symbol or the ordinary space; control
   characters (escape sequences, line breaks, tabs), format characters
   (bidirectional overrides, zero-width joiners), private-use and unassigned
-  code points are refused.
+  code points are refused, and so is a first character ``=``, ``+``, ``-``
+  or ``@`` (a spreadsheet formula's start).
 
 Two different codes whose :func:`lab_key` is the same (they differ only in
 letter case, or in their Unicode form before normalisation, such as ``K01``
@@ -39,11 +40,20 @@ __all__ = ["MAX_LAB_CODE", "LAB_CODE_RULE", "read_lab_code", "lab_code_problem",
 #: room for a scheme prefix and a site while keeping figure labels, sheet titles and file names readable.
 MAX_LAB_CODE = 32
 
+#: First characters a lab code may not have: a spreadsheet takes them for a formula, so CSV writers prefix
+#: them (roundscore.io.csvout.neutralise), and the code would no longer read back as itself.
+FORMULA_STARTS = "=+-@"
+
 #: The rule in words, for messages and the README.
 LAB_CODE_RULE = (f"a lab code is text or a whole number of at most {MAX_LAB_CODE} characters: letters, digits, "
-                 "punctuation, symbols and spaces (no control or formatting characters)")
+                 "punctuation, symbols and spaces, not beginning with = + - @ (no control or formatting "
+                 "characters)")
 
 _ALLOWED_MAJOR = frozenset("LMNPS")
+#: Spaces removed around a code: the space separators, tab and line ends (str.strip would also remove
+#: the control characters NEL and FS-US, which are refused instead).
+_EDGE = (" \t\r\n\u00a0\u1680\u2000\u2001\u2002\u2003\u2004\u2005\u2006\u2007\u2008\u2009\u200a"
+         "\u202f\u205f\u3000")
 _LARGEST_WHOLE = 10**15  # a whole-number code beyond this is not a code a lab writes (a float's digits blur)
 
 
@@ -84,11 +94,11 @@ def read_lab_code(value: object) -> tuple[str | None, str | None]:
         text = value
     else:
         text = str(value)
-    text = text.strip()
+    text = text.strip(_EDGE)
     if not text:
         return None, None
     if not (text.isascii() and text.isalnum()):  # the common case needs no normalisation
-        text = unicodedata.normalize("NFKC", text).strip()
+        text = unicodedata.normalize("NFKC", text).strip(_EDGE)
     reason = lab_code_problem(text)
     return (None, reason) if reason else (text, None)
 
@@ -102,6 +112,9 @@ def lab_code_problem(code: str) -> str | None:
     bad = _bad_character(code)
     if bad:
         return f"the lab code holds {bad}; {LAB_CODE_RULE}"
+    if code[0] in FORMULA_STARTS:
+        return (f"the lab code begins with {code[0]!r}, which a spreadsheet reads as the start of a formula "
+                f"(and the CSV files must then alter it); {LAB_CODE_RULE}")
     if unicodedata.normalize("NFKC", code) != code:
         return f"the lab code is not in Unicode form NFKC; {LAB_CODE_RULE}"
     return None

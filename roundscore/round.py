@@ -13,6 +13,7 @@ import difflib
 import glob as _glob
 import math
 import tomllib
+import unicodedata
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Literal
@@ -238,6 +239,9 @@ class _Checker:
         if not isinstance(value, str) or (required and not value.strip()):
             self.bad(key, value, "text")
             return default
+        if _has_control(value.strip()):
+            self.bad(key, value, "text without control characters (escape sequences, line breaks, tabs)")
+            return default
         if limit is not None:
             why = too_long(limit, value.strip())
             if why:
@@ -271,6 +275,14 @@ class _Checker:
             self.bad(key, value, ", ".join(repr(a) for a in allowed))
             return default
         return str(value)
+
+
+def _has_control(text: str) -> bool:
+    """Whether ``text`` holds a control character or a line/paragraph separator (format characters such as
+    the zero-width non-joiner of Persian are kept: they are escaped when shown on a terminal)."""
+    if text.isascii():
+        return not text.isprintable()
+    return any(unicodedata.category(ch) in ("Cc", "Zl", "Zp") for ch in text)
 
 
 def _sigma(c: _Checker, key: str, raw: object) -> SigmaSpec:
@@ -313,7 +325,8 @@ def _inside(c: _Checker, folder: Path, key: str, value: str | None) -> Path | No
 
 def _measurand(c: _Checker, folder: Path, name: str, raw: object) -> MeasurandSettings | None:
     t = f"measurand.{name}"
-    why = too_long("measurand", name)
+    why = too_long("measurand", name) or (
+        "it holds control characters (escape sequences, line breaks, tabs)" if _has_control(name) else None)
     if why:
         c.problems.append(Problem(message=f"{c.file}: measurand {quote(name)}: {why} (the name of a "
                                   f"[measurand.NAME] table; give the long name as label = \"...\")"))

@@ -14,7 +14,7 @@ from __future__ import annotations
 import re
 import unicodedata
 
-__all__ = ["terminal_text", "clip", "quote", "unsafe_characters", "too_long", "MESSAGE_VALUE_CHARS",
+__all__ = ["terminal_text", "json_text", "clip", "quote", "unsafe_characters", "too_long", "MESSAGE_VALUE_CHARS",
            "TEXT_LIMITS", "MAX_LIST_SHOWN", "shown_list"]
 
 #: Characters of a value quoted in a message before it is clipped ("… (N characters)").
@@ -83,6 +83,26 @@ def terminal_text(text: object, *, newlines: bool = False) -> str:
     if _ASCII_SAFE.fullmatch(s) and (newlines or "\n" not in s):
         return s
     return "".join(_escape(ch) if (_is_unsafe(ch) and not (newlines and ch == "\n")) else ch for ch in s)
+
+
+def json_text(text: str) -> str:
+    """JSON text (from :func:`json.dumps`) with the characters :func:`terminal_text` escapes written as ``\\uXXXX``.
+
+    ``json.dumps`` escapes C0 controls itself but leaves C1 controls and
+    direction overrides raw when ``ensure_ascii`` is False; they can occur
+    only inside strings, where a ``\\uXXXX`` escape (a surrogate pair beyond
+    the BMP) is valid JSON for the same character.
+    """
+    def esc(ch: str) -> str:
+        n = ord(ch)
+        if n < 0x10000:
+            return f"\\u{n:04x}"
+        n -= 0x10000
+        return f"\\u{0xD800 + (n >> 10):04x}\\u{0xDC00 + (n & 0x3FF):04x}"
+
+    if text.isascii():
+        return text
+    return "".join(esc(ch) if ch != "\n" and _is_unsafe(ch) else ch for ch in text)
 
 
 def clip(text: object, limit: int = MESSAGE_VALUE_CHARS) -> str:

@@ -244,6 +244,11 @@ def _signal_legend(ax, signals: Sequence[str], words: str, **kw) -> None:
         ax.legend(handles=handles, frameon=False, fontsize=8, **kw)
 
 
+#: Least height of the plot area (inches) of a figure with codes under its axis: the figure grows
+#: rather than the plot shrinking away under long codes.
+MIN_PLOT_HEIGHT = 2.0
+
+
 def _codes(ax, pos: np.ndarray, labels: Sequence[str], n: int, xlabel: str = "") -> None:
     """Lab (or item) codes under the axis as plain texts, about ten times cheaper to draw than ticks.
 
@@ -257,7 +262,14 @@ def _codes(ax, pos: np.ndarray, labels: Sequence[str], n: int, xlabel: str = "")
     longest = max((len(str(lab)) for lab in labels), default=0)
     pad = 6 + 0.62 * size * longest  # points: about 0.62 em per character of DejaVu Sans
     fig = ax.figure
-    fig.subplots_adjust(bottom=(pad + 26) / (fig.get_figheight() * 72))
+    height = fig.get_figheight()
+    bottom = (pad + 26) / 72  # inches under the axes
+    top = (1 - fig.subplotpars.top) * height  # inches above the axes
+    if bottom + top + MIN_PLOT_HEIGHT > height:  # long codes: the figure grows, the plot keeps its height
+        height = bottom + top + MIN_PLOT_HEIGHT
+        fig.set_figheight(height)
+        fig.subplots_adjust(top=1 - top / height)
+    fig.subplots_adjust(bottom=bottom / height)
     if xlabel:
         ax.set_xlabel(xlabel, labelpad=pad)
 
@@ -606,6 +618,17 @@ class RoundFigures:
     stability: dict[str, SvgFigure] = field(default_factory=dict)
 
 
+#: Most measurands for which the per-measurand figures (ranked scores, distribution, Mandel h and k,
+#: item checks) are drawn. Each costs about 0.35 s of drawing and 50-700 KB of the report; past this the
+#: report shows each measurand's score strip instead and says so (measured: benchmarks/measurands.py).
+FIGURES_MAX_MEASURANDS = 100
+
+
+def figures_per_measurand(n_measurands: int) -> bool:
+    """Whether a round of ``n_measurands`` gets the per-measurand figures (:data:`FIGURES_MAX_MEASURANDS`)."""
+    return n_measurands <= FIGURES_MAX_MEASURANDS
+
+
 def round_figures(ev, *, jobs: int | None = 1, progress=None) -> RoundFigures:
     """Draw the shared figures of a :class:`~roundscore.evaluate.RoundEvaluation` (nothing is recomputed).
 
@@ -631,10 +654,12 @@ def round_figures(ev, *, jobs: int | None = 1, progress=None) -> RoundFigures:
 
     from ..parallel import run_batches
 
-    tasks: list[tuple[str, ...]] = [("measurand", n) for n in ev.measurands]
+    per_measurand = figures_per_measurand(len(ev.measurands))
+    tasks: list[tuple[str, ...]] = [("measurand", n) for n in ev.measurands] if per_measurand else []
     tasks += [("youden", a, b) for a, b in ev.round.youden if a in ev.measurands and b in ev.measurands]
     mandel = ev.extras.get("mandel")
-    if mandel is not None and len(mandel) and {"lab", "measurand", "h", "k"} <= set(mandel.columns):
+    if (per_measurand and mandel is not None and len(mandel)
+            and {"lab", "measurand", "h", "k"} <= set(mandel.columns)):
         tasks += [("mandel", n) for n in dict.fromkeys(mandel["measurand"])]
     for table in ("scores", "mandel", "precision"):  # split by measurand once, before the workers fork
         if table == "scores" or "measurand" in getattr(ev.extras.get(table), "columns", ()):
