@@ -189,6 +189,38 @@ def test_file_names_are_distinct_exactly_when_codes_are(pair):
         assert lab_key(a) == lab_key(b)
 
 
+def _decode(stem: str) -> str:
+    """The code a stem was made from, read back by the documented rule: %XX are UTF-8 bytes, the rest literal."""
+    out, i = bytearray(), 0
+    while i < len(stem):
+        if stem[i] == "%":
+            out.append(int(stem[i + 1:i + 3], 16))
+            i += 3
+        else:
+            out += stem[i].encode()
+            i += 1
+    return out.decode()
+
+
+@PROPERTY
+@given(_CODES)
+def test_a_stem_reads_back_as_its_code(raw):
+    """Injectivity, shown per code: a stem decodes to its code alone (a shortened one: a prefix, then
+    ``~`` and the code's digest), so no two codes can share a stem."""
+    import hashlib
+
+    code = _valid(raw)
+    if code is None:
+        return
+    stem = file_stem(code)
+    if "~" in stem:
+        prefix, digest = stem.split("~")
+        assert code.startswith(_decode(prefix))
+        assert digest == hashlib.sha256(code.encode()).hexdigest()[:16]
+    else:
+        assert _decode(stem) == code
+
+
 @PROPERTY
 @given(st.text(min_size=1, max_size=MAX_LAB_CODE))
 def test_any_text_is_refused_or_named_safely(raw):
