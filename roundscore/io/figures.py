@@ -21,10 +21,12 @@ statistics of the evaluation.
 
 from __future__ import annotations
 
+import hashlib
 import html
 import io
 import math
 import re
+import unicodedata
 from dataclasses import dataclass, field
 from typing import Literal, Sequence
 
@@ -206,6 +208,8 @@ def _finish(fig, ax, *, key: str, title: str, caption: str, kind: MarkKind = "no
     ids = set(_ID.findall(text))
     if ids:
         safe = re.sub(r"[^A-Za-z0-9_-]", "_", key)
+        if safe != key:  # keys that differ only in replaced characters keep distinct ids on one page
+            safe += "-" + hashlib.sha256(key.encode("utf-8", "surrogatepass")).hexdigest()[:8]
         pattern = re.compile(r'(id="|url\(#|href="#)(' + "|".join(map(re.escape, sorted(ids, key=len, reverse=True)))
                              + r')(?=[")])')
         text = pattern.sub(lambda m: f"{m.group(1)}{safe}-{m.group(2)}", text)
@@ -244,6 +248,14 @@ def _signal_legend(ax, signals: Sequence[str], words: str, **kw) -> None:
         ax.legend(handles=handles, frameon=False, fontsize=8, **kw)
 
 
+def _ems(text: str) -> float:
+    """The width of a code in em: about 0.62 em per character of DejaVu Sans, 1.3 em for a wide (East Asian)
+    character or one the font lacks (drawn as a box)."""
+    if text.isascii():
+        return 0.62 * len(text)
+    return sum(1.3 if unicodedata.east_asian_width(ch) in "WF" else 0.62 for ch in text)
+
+
 #: Least height of the plot area (inches) of a figure with codes under its axis: the figure grows
 #: rather than the plot shrinking away under long codes.
 MIN_PLOT_HEIGHT = 2.0
@@ -259,8 +271,8 @@ def _codes(ax, pos: np.ndarray, labels: Sequence[str], n: int, xlabel: str = "")
     size = 7 if n > 30 else 8
     for x, lab in zip(pos, labels):
         ax.text(x, -0.02, str(lab), transform=tr, rotation=90, ha="center", va="top", fontsize=size)
-    longest = max((len(str(lab)) for lab in labels), default=0)
-    pad = 6 + 0.62 * size * longest  # points: about 0.62 em per character of DejaVu Sans
+    longest = max((_ems(str(lab)) for lab in labels), default=0)
+    pad = 6 + size * longest  # points
     fig = ax.figure
     height = fig.get_figheight()
     bottom = (pad + 26) / 72  # inches under the axes
