@@ -6,6 +6,7 @@ Run (from the repository root)::
     python benchmarks/measurands.py --sizes 100 200 --labs 5 # other sizes
     python benchmarks/measurands.py --load 200000            # also load a round file of 200,000 measurand tables
     python benchmarks/measurands.py --package /tmp/old       # time another copy of the package (a checkout)
+    python benchmarks/measurands.py --against /tmp/old       # both, size by size, with their ratio
 
 Each run is a fresh ``python -m roundscore score`` subprocess (invented data:
 a seeded generator writes ``round.toml`` and a long-layout ``results.csv``),
@@ -62,9 +63,11 @@ def time_score(folder: Path, *, jobs: int, timeout: float, package: str | None) 
     """Seconds of one ``roundscore score`` run, and how it ended ("ok", "exit N" or "timeout")."""
     t = time.perf_counter()
     try:
+        # Run in the round folder: ``python -m`` puts the working folder first on sys.path, so run from the
+        # repository it would time the checkout's package whatever --package says.
         res = subprocess.run([sys.executable, "-m", "roundscore", "score", str(folder), "--out",
                               str(folder / "out"), "--jobs", str(jobs), "--quiet"],
-                             capture_output=True, text=True, timeout=timeout, env=_env(package))
+                             capture_output=True, text=True, timeout=timeout, env=_env(package), cwd=folder)
     except subprocess.TimeoutExpired:
         return time.perf_counter() - t, "timeout"
     status = "ok" if res.returncode == 0 else f"exit {res.returncode}: {res.stderr.strip()[-300:]}"
@@ -73,6 +76,8 @@ def time_score(folder: Path, *, jobs: int, timeout: float, package: str | None) 
 
 _LOAD = """
 import resource, sys, time
+import roundscore
+print(roundscore.__file__, file=sys.stderr)
 from roundscore.errors import RoundscoreError
 from roundscore.round import load_round
 t = time.perf_counter()
@@ -95,7 +100,7 @@ def time_load(folder: Path, n: int, *, timeout: float, package: str | None) -> s
     t = time.perf_counter()
     try:
         res = subprocess.run([sys.executable, "-c", _LOAD, str(path)], capture_output=True, text=True,
-                             timeout=timeout, env=_env(package))
+                             timeout=timeout, env=_env(package), cwd=folder)
     except subprocess.TimeoutExpired:
         return f"load {n} measurand tables ({size:.1f} MiB): timeout after {time.perf_counter() - t:.0f} s"
     if res.returncode:
@@ -112,9 +117,16 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--timeout", type=float, default=900.0, help="seconds per run before it is stopped")
     ap.add_argument("--load", type=int, default=0, help="also load a round file of this many measurand tables")
     ap.add_argument("--package", default=None, help="folder holding the roundscore package to time")
+    ap.add_argument("--against", default=None, metavar="FOLDER",
+                    help="also time the package in FOLDER (e.g. an older checkout) at each size, right after "
+                         "the first, and print the ratio of the two")
     ap.add_argument("--work", default=None, help="working folder (default: a temporary one)")
     a = ap.parse_args(argv)
     work = Path(a.work) if a.work else Path(tempfile.mkdtemp(prefix="rs-measurands-"))
+    work.mkdir(parents=True, exist_ok=True)
+    which = subprocess.run([sys.executable, "-c", "import roundscore; print(roundscore.__file__)"],
+                           capture_output=True, text=True, env=_env(a.package), cwd=work)
+    print(f"package: {which.stdout.strip() or which.stderr.strip()[-200:]}", flush=True)
     times: dict[int, float] = {}
     for n in a.sizes:
         folder = make_round(work / f"m{n}", n, a.labs)
@@ -122,6 +134,10 @@ def main(argv: list[str] | None = None) -> int:
         print(f"score {n:>6} measurands × {a.labs} labs: {secs:8.1f} s  {status}", flush=True)
         if status == "ok":
             times[n] = secs
+        if a.against:
+            other, why = time_score(folder, jobs=a.jobs, timeout=a.timeout, package=a.against)
+            ratio = f"  this/that = {secs / other:.2f}" if status == why == "ok" else ""
+            print(f"      {n:>6} measurands, {a.against}: {other:8.1f} s  {why}{ratio}", flush=True)
     ok = sorted(times)
     if len(ok) >= 2:
         base = ok[0]
