@@ -38,6 +38,8 @@ TEXT_LIMITS: dict[str, int] = {
     "contact": 200,
     "method": 200,             # as the submission form's own cell validation says
     "comment": 200,
+    "item label": 32,          # homogeneity and stability tables: shown under the item-means figure
+    "set": 64,                 # a stability table's set names: the figure's axis, the notes
 }
 
 #: Names listed in a message (known measurands, ...) before "and N more".

@@ -132,6 +132,23 @@ def test_result_texts_are_bounded(make_round, capsys, monkeypatch, column, text,
     assert not (folder / "out").exists() and _hashes(folder) == before
 
 
+def test_item_table_texts_are_bounded(make_round):
+    rows = ["item,replicate,value,unit"]
+    for i in range(1, 6):
+        for r in (1, 2):
+            item = "B3" + "x" * 40 if (i, r) == (3, 1) else f"B{i}"
+            unit = "g" * 5000 if (i, r) == (5, 1) else ""
+            rows.append(f"{item},{r},{10 + 0.01 * i + 0.001 * r},{unit}")
+    folder = _round(make_round, measurand_extra='homogeneity = "homogeneity.csv"',
+                    homogeneity__csv="\n".join(rows) + "\n")
+    with pytest.raises(InputError) as exc:
+        load_and_evaluate(folder)
+    text = str(exc.value)
+    assert "homogeneity.csv, row 6, column 'item'" in text and "item label is 42 characters long" in text
+    assert "row 10, column 'unit'" in text and "unit is 5000 characters long" in text
+    assert len(text) < 3000
+
+
 def test_unknown_measurand_message_lists_a_few(make_round, monkeypatch):
     extra = "".join(f'\n[measurand.m{i:03d}]\nunit = "mg/kg"\nsigma_pt = 1.0\n' for i in range(40))
     folder = _round(make_round, measurand_extra=extra, results=RESULTS + "L1,copper,1,3\n")
