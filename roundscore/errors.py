@@ -87,7 +87,7 @@ class Problem:
             text += (" (" + ", ".join(who) + ")") if text else ", ".join(who)
         if self.value is not None:
             text += f": value {quote(self.value)}"
-        message = terminal_text(clip(self.message, MAX_MESSAGE_CHARS), newlines=True)
+        message = terminal_text(clip(self.message, MAX_MESSAGE_CHARS))  # one line: a newline in it is quoted text
         return f"{text}: {message}" if text else message
 
 

@@ -234,7 +234,9 @@ def records_from_form(rnd: Round, results: SheetRows, info: SheetRows):
                             file=file)]
     round_id = str(kv.get("round", "")).strip()
     if round_id != rnd.id:
-        problems.append(Problem(message=f"this form is for round {round_id!r}, not {rnd.id!r}",
+        from ..text import quote
+
+        problems.append(Problem(message=f"this form is for round {quote(round_id)}, not {quote(rnd.id)}",
                                 file=file, sheet=INFO_SHEET))
     lab, lab_problems = _form_lab(kv, info, results)
     problems += lab_problems
