@@ -403,7 +403,7 @@ def _measurands(ev, parts: ReportParts) -> str:
             f"(ranked scores, distribution, Mandel's h and k, item checks) are drawn for rounds of at most "
             f"{FIGURES_MAX_MEASURANDS} measurands. Each measurand shows its score strip (every lab's score, "
             f'unnamed); the ranked scores are charted in round-summary.xlsx.</p><p class="muted">'
-            f"{_e(strip_legend(ev.round.words))}</p>")
+            f"{_e(strip_legend(ev.round.words, own=False))}</p>")
     return note + "".join(_measurand_section(ev, n, m, figs, parts.strips.get(n))
                           for n, m in ev.measurands.items())
 
