@@ -304,7 +304,7 @@ def check_labs(rnd: Round, table: ResultTable, participants: dict[str, Participa
                                         "the participants file, or correct the code", lab=lab, **where))
             else:
                 warnings.append(str(Problem(message=message + "; its sheet carries no name ([round] "
-                                            "unknown_labs = \"error\" refuses such a form)", lab=lab, **where)))
+                                            "unknown_labs = \"error\" makes this an error)", lab=lab, **where)))
     known = set(labs) | set(participants)
     known_keys = {lab_key(c) for c in known}
     for i, e in enumerate(rnd.exclusions, start=1):
