@@ -120,3 +120,4 @@ def test_no_control_character_reaches_the_terminal(scored):
     for stream in (res.stdout, res.stderr):
         assert b"\x1b" not in stream and b"\x07" not in stream
         assert "\u202e".encode() not in stream
+    assert res.stderr == b""  # not even the font's warnings about glyphs of CJK or emoji codes

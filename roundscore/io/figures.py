@@ -21,6 +21,7 @@ statistics of the evaluation.
 
 from __future__ import annotations
 
+import contextlib
 import hashlib
 import html
 import io
@@ -201,7 +202,8 @@ def _finish(fig, ax, *, key: str, title: str, caption: str, kind: MarkKind = "no
 
     with matplotlib.rc_context(_RC):
         buf = io.StringIO()
-        fig.savefig(buf, format="svg", metadata={"Date": None, "Creator": "roundscore"})
+        with _no_glyph_warnings():
+            fig.savefig(buf, format="svg", metadata={"Date": None, "Creator": "roundscore"})
     text = buf.getvalue()
     text = text[text.index("<svg"):]
     text = re.sub(r"\s*<metadata>.*?</metadata>", "", text, count=1, flags=re.S)  # no RDF block to carry
@@ -226,6 +228,17 @@ def _finish(fig, ax, *, key: str, title: str, caption: str, kind: MarkKind = "no
                      kind=kind, marks=dict(marks or {}))
 
 
+@contextlib.contextmanager
+def _no_glyph_warnings():
+    """A lab code in a script the figure font lacks (CJK, emoji) is drawn as boxes; matplotlib's warning about
+    each missing glyph is not for the user (the code is in full in every table)."""
+    import warnings
+
+    with warnings.catch_warnings():
+        warnings.filterwarnings("ignore", message=r"Glyph \d+ .* missing from", category=UserWarning)
+        yield
+
+
 def _png(fig) -> bytes:
     import matplotlib
     from matplotlib.backends.backend_agg import FigureCanvasAgg
@@ -233,7 +246,8 @@ def _png(fig) -> bytes:
     with matplotlib.rc_context(_RC):
         FigureCanvasAgg(fig)
         buf = io.BytesIO()
-        fig.savefig(buf, format="png", dpi=110, metadata={"Software": None})
+        with _no_glyph_warnings():
+            fig.savefig(buf, format="png", dpi=110, metadata={"Software": None})
     return buf.getvalue()
 
 
