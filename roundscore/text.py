@@ -14,7 +14,7 @@ from __future__ import annotations
 import re
 import unicodedata
 
-__all__ = ["terminal_text", "json_text", "clip", "quote", "unsafe_characters", "too_long", "MESSAGE_VALUE_CHARS",
+__all__ = ["terminal_text", "json_text", "clip", "quote", "too_long", "MESSAGE_VALUE_CHARS",
            "TEXT_LIMITS", "MAX_LIST_SHOWN", "shown_list"]
 
 #: Characters of a value quoted in a message before it is clipped ("… (N characters)").
@@ -55,13 +55,6 @@ _ASCII_SAFE = re.compile(r"[\x20-\x7e\n]*")
 
 def _is_unsafe(ch: str) -> bool:
     return unicodedata.category(ch) in _UNSAFE_CATEGORIES
-
-
-def unsafe_characters(text: str) -> list[str]:
-    """The characters of ``text`` that :func:`terminal_text` would escape (tab and newline included)."""
-    if text.isascii() and text.isprintable():
-        return []
-    return [ch for ch in text if _is_unsafe(ch)]
 
 
 def _escape(ch: str) -> str:
