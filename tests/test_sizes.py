@@ -170,6 +170,18 @@ def test_clip_and_quote():
     assert terminal_text("Ärzte 研究所 מעבדה") == "Ärzte 研究所 מעבדה"
 
 
+def test_json_output_escapes_what_json_leaves_raw():
+    import json
+
+    from roundscore.text import json_text
+
+    body = {"lab": "K\u202e01", "note": "x\x85y\x1b", "m": "Ärzte \U000e0001"}
+    text = json_text(json.dumps(body, ensure_ascii=False))
+    assert "\u202e" not in text and "\x85" not in text and "\x1b" not in text and "\U000e0001" not in text
+    assert "Ärzte" in text
+    assert json.loads(text) == body  # the same JSON
+
+
 def test_problem_text_is_bounded_and_escaped():
     p = Problem(message="bad", file="forms/" + "f" * 500 + ".xlsx", sheet="S\x1b[2J" + "s" * 300,
                 lab="L" * 400, measurand="m\n" * 200, value="v" * 10_000_000, row=3, column="c")
