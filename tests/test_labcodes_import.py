@@ -258,3 +258,17 @@ def test_forms_command_refuses_codes_before_writing(make_round, capsys, tmp_path
     err = capsys.readouterr().err
     assert "letter case" in err and "control character" in err and "\x1b" not in err
     assert not out.exists()
+
+
+def test_blank_forms_for_odd_codes_are_distinct_and_read_back(make_round, tmp_path):
+    from roundscore.io.forms import write_forms
+
+    codes = ["K01", "a/b", "a_b", "a\\b", "a:b", "CON", ".x", "מעבדה-7", "🧪" * 32, "한" * 32, "X" * 32]
+    rnd = load_round(make_round(FORMS_TOML.format(extra="").replace('id = "LC-F"', 'id = "LC/F 1"')))
+    paths = write_forms(rnd, [(c, None) for c in codes], tmp_path / "blank")
+    assert len(set(paths)) == len(codes) == len(list((tmp_path / "blank").iterdir()))
+    for code, path in zip(codes, paths):
+        assert path.parent == tmp_path / "blank"  # the round id's "/" did not make a folder
+        wb = openpyxl.load_workbook(path, read_only=True)
+        pairs = {r[0]: r[1] for r in wb[INFO_SHEET].iter_rows(values_only=True)}
+        assert pairs["lab"] == code
