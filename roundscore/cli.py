@@ -16,6 +16,7 @@ from pathlib import Path
 
 from . import __version__
 from .errors import RoundscoreError
+from .text import terminal_text
 
 __all__ = ["main", "build_parser"]
 
@@ -65,8 +66,9 @@ def main(argv: list[str] | None = None) -> int:
         return exc.exit_code
     except RoundscoreError as exc:
         for note in getattr(exc, "__notes__", ()):  # warnings found before the error (round.toml keys...)
-            print(f"roundscore: warning: {note}", file=sys.stderr)
-        print(f"roundscore: error: {exc}", file=sys.stderr)
+            print(f"roundscore: warning: {terminal_text(note, newlines=True)}", file=sys.stderr)
+        # A message may quote participants' text: shown with its control characters escaped.
+        print(f"roundscore: error: {terminal_text(exc, newlines=True)}", file=sys.stderr)
         return 2
     except KeyboardInterrupt:
         print("roundscore: interrupted; no output was changed", file=sys.stderr)
@@ -74,8 +76,8 @@ def main(argv: list[str] | None = None) -> int:
     except BrokenPipeError:
         return 0
     except OSError as exc:
-        where = f" {exc.filename}" if getattr(exc, "filename", None) else ""
-        print(f"roundscore: error:{where}: {exc.strerror or exc}", file=sys.stderr)
+        where = f" {terminal_text(exc.filename)}" if getattr(exc, "filename", None) else ""
+        print(f"roundscore: error:{where}: {terminal_text(exc.strerror or exc)}", file=sys.stderr)
         return 2
 
 

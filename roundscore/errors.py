@@ -13,6 +13,15 @@ import datetime as _dt
 import re
 from dataclasses import dataclass, field
 
+from .text import clip, quote, terminal_text
+
+#: Longest message text of one problem (a message lists what is allowed; values in it are quoted clipped).
+MAX_MESSAGE_CHARS = 2000
+
+
+def _shown(text: object, limit: int = 80) -> str:
+    return terminal_text(clip(str(text), limit))
+
 __all__ = [
     "RoundscoreError",
     "Problem",
@@ -86,8 +95,11 @@ def shown_value(value: object) -> str:
     else:  # text in quotes, control characters and invisible spaces escaped
         shown = repr(value)
     if len(shown) > MAX_SHOWN_VALUE:
-        shown = shown[:MAX_SHOWN_VALUE - 3] + "..."
-    return shown
+        if isinstance(value, str):  # say how long it was: a 10 MB cell is not the same mistake as a typo
+            shown = repr(value[:MAX_SHOWN_VALUE - 3])[:-1] + f"…' ({len(value)} characters)"
+        else:
+            shown = shown[:MAX_SHOWN_VALUE - 3] + "..."
+    return terminal_text(shown)
 
 
 def is_text_file(file: str | None, sheet: str | None) -> bool:
@@ -146,24 +158,29 @@ class Problem:
     hint: str | None = None
 
     def __str__(self) -> str:
-        here = place(self.file, self.sheet, self.row, self.cell)
+        # Every part may come from a participant's file (a sheet name, a lab code, a cell): each is clipped
+        # and its control characters escaped (roundscore.text), so a message stays short and cannot drive
+        # the terminal. The message itself is roundscore's own text, quoting values through the same rules.
+        here = place(_shown(self.file, 200) if self.file else None, _shown(self.sheet) if self.sheet else None,
+                     self.row, self.cell)
         where = [here] if here else []
         who = []
         if self.column:
             if self.cell and self.sheet:
-                who.append(f"column {self.column!r}")
+                who.append(f"column {_shown(self.column)!r}")
             else:
-                where.append(f"column {self.column!r}")
+                where.append(f"column {_shown(self.column)!r}")
         if self.lab:
-            who.append(f"lab {self.lab}")
+            who.append(f"lab {_shown(self.lab)}")
         if self.measurand:
-            who.append(f"measurand {self.measurand}")
+            who.append(f"measurand {_shown(self.measurand)}")
         text = ", ".join(where)
         if who:
             text += (" (" + ", ".join(who) + ")") if text else ", ".join(who)
         if self.value is not None:
             text += f": value {shown_value(self.value)}"
-        return f"{text}: {self.message}" if text else self.message
+        message = terminal_text(clip(self.message, MAX_MESSAGE_CHARS))  # one line: a newline in it is quoted text
+        return f"{text}: {message}" if text else message
 
     def _key(self) -> tuple:
         return (self.message, self.file, self.sheet, self.row, self.column, self.cell, self.lab, self.measurand,
@@ -226,7 +243,7 @@ class RoundFileError(InputError):
 
     @classmethod
     def key(cls, file: str, key: str, found: object, allowed: str) -> "RoundFileError":
-        msg = f"{file}: key {key!r}: found {shown_value(found)}; allowed: {allowed}"
+        msg = f"{file}: key {quote(key, 80)}: found {shown_value(found)}; allowed: {allowed}"
         return cls([Problem(message=msg)], summary=msg)
 
 

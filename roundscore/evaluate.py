@@ -180,6 +180,23 @@ class RoundEvaluation:
             groups = self._cache[table] = {k: g for k, g in frame.groupby("lab", sort=False)}
         return groups
 
+    def measurand_rows(self, table: str, name: str) -> pd.DataFrame:
+        """This measurand's rows of ``scores`` or of an extras table with a ``measurand`` column.
+
+        Split by measurand on first use and kept, as :meth:`lab_rows` does by lab:
+        a writer going through thousands of measurands must not filter the
+        whole table for each (that made per-measurand cost grow with the
+        number of measurands).
+        """
+        key = ("measurand", table)
+        groups = self._cache.get(key)
+        frame = self.scores if table == "scores" else self.extras[table]
+        if groups is None:
+            groups = self._cache[key] = ({str(k): g for k, g in frame.groupby("measurand", sort=False)}
+                                         if len(frame) else {})
+        got = groups.get(name)
+        return got if got is not None else frame.iloc[0:0]
+
     @property
     def failed_checks(self) -> list[str]:
         """Headlines of failed checks that must head the summary and every lab sheet."""

@@ -14,9 +14,10 @@ from typing import Callable
 
 from .errors import RoundscoreError
 from .evaluate import AUDIT_COLUMNS, SCORE_COLUMNS, STATISTICS_COLUMNS, RoundEvaluation, evaluate
+from .filenames import lab_file_name
 from .io.csvout import write_csv
 from .io.outfolder import atomic_folder, check_target
-from .io.readers import read_participants, read_results
+from .io.readers import check_labs, read_participants, read_results
 from .io.workbook import lab_payload, write_lab_workbook, write_summary
 from .parallel import run_batches, shared
 from .round import Round, load_round, with_warnings
@@ -85,6 +86,7 @@ def load_and_evaluate(round_path: str | Path | Round, *, jobs: int | None = None
     try:
         table = read_results(rnd, jobs=jobs, progress=progress)
         participants = read_participants(rnd)
+        table = check_labs(rnd, table, participants)  # codes agree with the participants file and the exclusions
         return evaluate(rnd, table, participants)
     except RoundscoreError as exc:  # the round file's warnings (unknown keys...) still reach the user
         raise with_warnings(exc, rnd.warnings)
@@ -124,7 +126,7 @@ def write_outputs(ev: RoundEvaluation, folder: Path, *, history=None,
     labs_dir.mkdir()
     labs = ev.labs
     ev.split_by_lab()  # once, here: each worker would otherwise split the tables again
-    lab_paths = [out(f"labs/{_safe(lab)}.xlsx") for lab in labs]
+    lab_paths = [out(f"labs/{lab_file_name(lab, '.xlsx')}") for lab in labs]
     for i in range(0, len(labs), LAB_SHEETS_PER_TASK):
         group = list(zip(labs[i:i + LAB_SHEETS_PER_TASK], lab_paths[i:i + LAB_SHEETS_PER_TASK]))
         tasks.append(("labs", [(lab, p, history(lab) if history is not None else None) for lab, p in group]))
@@ -154,10 +156,6 @@ def _write_tasks(tasks: list[tuple]) -> list[None]:
             for lab, path, hist in task[1]:
                 write_lab_workbook(lab_payload(ev, lab, hist), path)
     return [None] * len(tasks)
-
-
-def _safe(text: str) -> str:
-    return "".join(ch if ch.isalnum() or ch in "-_." else "_" for ch in text)
 
 
 def run_round(round_path: str | Path, out: str | Path, *, archive: str | Path | None = None,

@@ -13,6 +13,7 @@ import difflib
 import glob as _glob
 import math
 import tomllib
+import unicodedata
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Literal
@@ -23,6 +24,8 @@ from .io.safety import DEFAULT_LIMITS, LIMIT_MAX, ReadLimits
 from .ranges import (MAX_MAGNITUDE, MIN_MAGNITUDE, SIGMA_MIN_RELATIVE, confidence_problem, magnitude_problem,
                      sigma_relative_problem)
 from .units import UnitError, mass_fraction, unit_text_problem
+from .labcodes import read_lab_code
+from .text import TEXT_LIMITS, quote, too_long
 
 __all__ = [
     "Round",
@@ -62,7 +65,14 @@ ROUND_KEYS: dict[str, str] = {
     "words": "'signals' (acceptable/warning/action) or 'performance' (satisfactory/questionable/unsatisfactory)",
     "decimal": "'comma' or 'point': the decimal mark of numbers typed as text in results and item tables "
                "(default: not declared; a number whose reading depends on it, such as 1,234, is refused)",
+    "unknown_labs": "'warn' or 'error': a result from a lab not in the participants file (default warn)",
 }
+UNKNOWN_LAB_ACTIONS: tuple[str, ...] = ("warn", "error")
+#: Most measurands a round file may define. Each costs about 20 ms of evaluation and writing (measured:
+#: benchmarks/measurands.py); past this a round is refused when it is loaded, before anything is read.
+MAX_MEASURANDS = 10_000
+#: Largest round file read (a round of MAX_MEASURANDS measurands with labels and item tables is about 1 MiB).
+MAX_ROUND_FILE_BYTES = 4 << 20
 #: ``[limits]``: bounds on reading untrusted files (see roundscore.io.safety.ReadLimits):
 #: key → (ReadLimits field, the field's unit, smallest allowed value in the key's unit). The largest allowed
 #: value is ``LIMIT_MAX[field] / unit``; :func:`limit_range` gives both.
@@ -181,6 +191,7 @@ class Round:
     measurands: dict[str, MeasurandSettings]
     #: The declared decimal mark of text cells ("comma" or "point"), or None (ambiguous text is refused).
     decimal: str | None = None
+    unknown_labs: str = "warn"
     exclusions: tuple[Exclusion, ...] = field(default=())
     limits: ReadLimits = DEFAULT_LIMITS
     warnings: tuple[str, ...] = field(default=())
@@ -218,18 +229,20 @@ class _Checker:
 
     def bad(self, key: str, found: object, allowed: str) -> None:
         self.problems.append(
-            Problem(message=f"{self.file}: key {key!r}: found {shown_value(found)}; allowed: {allowed}")
+            Problem(message=f"{self.file}: key {quote(key, 80)}: found {shown_value(found)}; allowed: {allowed}")
         )
 
     def unknown(self, table: str, keys: dict[str, Any], allowed: dict[str, str]) -> None:
         for key in keys:
             if key in allowed:
                 continue
-            near = difflib.get_close_matches(key, list(allowed), n=1, cutoff=0.6)
+            near = difflib.get_close_matches(key, list(allowed), n=1, cutoff=0.6) if len(key) <= 80 else []
             hint = f"; did you mean {near[0]!r}?" if near else f"; known keys: {', '.join(allowed)}"
-            self.warnings.append(f"{self.file}: unknown key {table}{key!r} is ignored{hint}")
+            self.warnings.append(f"{self.file}: unknown key {table}{quote(key, 80)} is ignored{hint}")
 
-    def text(self, key: str, value: object, default: str | None = None, required=False) -> str | None:
+    def text(self, key: str, value: object, default: str | None = None, required=False,
+             limit: str | None = None) -> str | None:
+        """A text value; ``limit`` names its bound in :data:`roundscore.text.TEXT_LIMITS`."""
         if value is None:
             if required:
                 self.problems.append(Problem(message=f"{self.file}: key {key!r} is required"))
@@ -239,6 +252,14 @@ class _Checker:
         if not isinstance(value, str) or (required and not value.strip()):
             self.bad(key, value, "text")
             return default
+        if _has_control(value.strip()):
+            self.bad(key, value, "text without control characters (escape sequences, line breaks, tabs)")
+            return default
+        if limit is not None:
+            why = too_long(limit, value.strip())
+            if why:
+                self.bad(key, value, f"text of at most {TEXT_LIMITS[limit]} characters ({why})")
+                return default
         return value.strip()
 
     def number(self, key: str, value: object, *, low=-math.inf, positive=False, ranged=True) -> float | None:
@@ -290,6 +311,14 @@ def _real(value: object) -> float | None:
     except OverflowError:  # TOML integers have no size limit in Python
         return None
     return v if math.isfinite(v) else None
+
+
+def _has_control(text: str) -> bool:
+    """Whether ``text`` holds a control character or a line/paragraph separator (format characters such as
+    the zero-width non-joiner of Persian are kept: they are escaped when shown on a terminal)."""
+    if text.isascii():
+        return not text.isprintable()
+    return any(unicodedata.category(ch) in ("Cc", "Zl", "Zp") for ch in text)
 
 
 def _sigma(c: _Checker, key: str, raw: object) -> SigmaSpec:
@@ -350,11 +379,17 @@ def _archive_file(c: _Checker, folder: Path, value: str | None) -> Path | None:
 
 def _measurand(c: _Checker, folder: Path, name: str, raw: object) -> MeasurandSettings | None:
     t = f"measurand.{name}"
+    why = too_long("measurand", name) or (
+        "it holds control characters (escape sequences, line breaks, tabs)" if _has_control(name) else None)
+    if why:
+        c.problems.append(Problem(message=f"{c.file}: measurand {quote(name)}: {why} (the name of a "
+                                  f"[measurand.NAME] table; give the long name as label = \"...\")"))
+        return None
     if not isinstance(raw, dict):
         c.bad(t, raw, "a table of keys (unit, assigned, sigma_pt, ...)")
         return None
     c.unknown(f"[{t}] ", raw, MEASURAND_KEYS)
-    unit = c.text(f"{t}.unit", raw.get("unit"), required=True) or ""
+    unit = c.text(f"{t}.unit", raw.get("unit"), required=True, limit="unit") or ""
     if unit_text_problem(unit) is not None:
         c.bad(f"{t}.unit", unit, "a unit such as mg/kg, µg/L, g/100 g or % (no markup such as < > & ; "
               "and no control characters)")
@@ -394,7 +429,7 @@ def _measurand(c: _Checker, folder: Path, name: str, raw: object) -> MeasurandSe
     return MeasurandSettings(
         name=name,
         unit=unit,
-        label=c.text(f"{t}.label", raw.get("label"), default=name) or name,
+        label=c.text(f"{t}.label", raw.get("label"), default=name, limit="label") or name,
         assigned=assigned,
         u_assigned=u_assigned,
         sigma_pt=sigma,
@@ -425,7 +460,11 @@ def _exclusions(c: _Checker, raw: object, measurands: dict) -> tuple[Exclusion, 
         lab = e.get("lab")
         lab = str(lab) if isinstance(lab, int) and not isinstance(lab, bool) else lab
         lab = c.text(f"{key}.lab", lab, required=True)
-        reason = c.text(f"{key}.reason", e.get("reason"), required=True)
+        if lab:
+            lab, why = read_lab_code(lab)  # the same rule as the codes of the results
+            if lab is None:
+                c.bad(f"{key}.lab", e.get("lab"), why or "a lab code")
+        reason = c.text(f"{key}.reason", e.get("reason"), required=True, limit="exclusion reason")
         name = c.text(f"{key}.measurand", e.get("measurand"))
         if name is not None and name not in measurands:
             c.bad(f"{key}.measurand", name, ", ".join(measurands) or "a measurand of this round")
@@ -483,6 +522,11 @@ def load_round(path: str | Path) -> Round:
     shown = str(p)
     if not p.is_file():
         raise RoundFileError.single(f"{shown}: round file not found")
+    size = p.stat().st_size
+    if size > MAX_ROUND_FILE_BYTES:
+        raise RoundFileError.single(
+            f"{shown}: the round file is {size / 2**20:.1f} MiB; at most {MAX_ROUND_FILE_BYTES >> 20} MiB is read "
+            f"(a round of {MAX_MEASURANDS} measurands fits in about 1 MiB)")
     try:
         data = tomllib.loads(p.read_text(encoding="utf-8-sig"))
     except tomllib.TOMLDecodeError as exc:
@@ -501,7 +545,7 @@ def load_round(path: str | Path) -> Round:
     if not isinstance(r, dict):
         raise RoundFileError.single(f"{shown}: a [round] table with at least id = \"...\" is required")
     c.unknown("[round] ", r, ROUND_KEYS)
-    round_id = c.text("round.id", r.get("id"), required=True) or ""
+    round_id = c.text("round.id", r.get("id"), required=True, limit="round id") or ""
     date = c.text("round.date", r.get("date"), default="") or ""
     if date:
         try:
@@ -524,6 +568,10 @@ def load_round(path: str | Path) -> Round:
     measurands: dict[str, MeasurandSettings] = {}
     if not isinstance(measurands_raw, dict) or not measurands_raw:
         c.problems.append(Problem(message=f"{shown}: at least one [measurand.NAME] table is required"))
+    elif len(measurands_raw) > MAX_MEASURANDS:
+        raise RoundFileError.single(
+            f"{shown}: {len(measurands_raw)} [measurand.NAME] tables; a round has at most {MAX_MEASURANDS} "
+            "measurands (split it into several rounds)")
     else:
         for name, raw in measurands_raw.items():
             m = _measurand(c, folder, name, raw)
@@ -556,13 +604,13 @@ def load_round(path: str | Path) -> Round:
         path=p,
         folder=folder,
         id=round_id,
-        title=c.text("round.title", r.get("title"), default=round_id) or round_id,
-        scheme=c.text("round.scheme", r.get("scheme"), default="") or "",
+        title=c.text("round.title", r.get("title"), default=round_id, limit="title") or round_id,
+        scheme=c.text("round.scheme", r.get("scheme"), default="", limit="scheme") or "",
         date=date,
-        provider=c.text("round.provider", r.get("provider"), default="") or "",
-        material=c.text("round.material", r.get("material"), default="") or "",
+        provider=c.text("round.provider", r.get("provider"), default="", limit="provider") or "",
+        material=c.text("round.material", r.get("material"), default="", limit="material") or "",
         results=results,
-        results_sheet=c.text("round.results_sheet", r.get("results_sheet")),
+        results_sheet=c.text("round.results_sheet", r.get("results_sheet"), limit="results sheet"),
         participants=_inside(c, folder, "round.participants", c.text("round.participants", r.get("participants"))),
         replicates=c.whole("round.replicates", r.get("replicates"), 2, 1, MAX_FORM_REPLICATES),
         confidence=confidence,
@@ -574,6 +622,7 @@ def load_round(path: str | Path) -> Round:
         words=c.choice("round.words", r.get("words"), ("signals", "performance"), "signals"),
         measurands=measurands,
         decimal=decimal,
+        unknown_labs=c.choice("round.unknown_labs", r.get("unknown_labs"), UNKNOWN_LAB_ACTIONS, "warn"),
         exclusions=exclusions,
         limits=limits,
         warnings=tuple(c.warnings),

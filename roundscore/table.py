@@ -20,11 +20,13 @@ from .cells import HINT_DECLARE, HINT_NUMBER, CellError, parse_cell
 from .errors import InputError, Problem, cell_ref, is_text_file, place, sheet_cell, shown_value
 from .io.xlsx import SheetRows
 from .ranges import MAX_MAGNITUDE, MIN_MAGNITUDE, magnitude_problem
+from .labcodes import clash_problems, read_lab_code
 from .round import Round
+from .text import shown_list, too_long
 from .units import UnitError, factor
 
 __all__ = ["ResultTable", "build_table", "validate_records", "table_frame", "COLUMNS", "Record",
-           "records_from_long", "cell_label"]
+           "records_from_long", "cell_label", "lab_places"]
 
 #: Columns of :attr:`ResultTable.frame`, in order.
 COLUMNS = (
@@ -87,12 +89,16 @@ class ResultTable:
     readings : tuple of (str, str)
         How text cells were read, for the audit trail: (lab or "", what was
         done), one per round or per file, never per cell.
+    lab_places : dict of str to dict
+        Where each lab code was first read (:class:`~roundscore.errors.Problem`
+        fields file, sheet, row, column), for messages that name it.
     """
 
     frame: pd.DataFrame
     files: tuple[str, ...] = ()
     warnings: tuple[str, ...] = field(default=())
     readings: tuple[tuple[str, str], ...] = field(default=())
+    lab_places: dict[str, dict] = field(default_factory=dict)
 
     @property
     def labs(self) -> list[str]:
@@ -213,12 +219,12 @@ def build_table(
         results where the measurand allows none, bad uncertainties.
     """
     rows, found = validate_records(rnd, records)
-    problems = summarise_ambiguous(list(problems) + found)
+    places = lab_places(rows)
+    problems = summarise_ambiguous(list(problems) + found + clash_problems(places))
     if problems:
         raise InputError(problems, summary="the results cannot be imported")
     return ResultTable(frame=table_frame(rows), files=tuple(files), warnings=tuple(warnings),
-                       readings=tuple(readings))
-
+                       readings=tuple(readings), lab_places=places)
 
 #: Ambiguous numbers of one column listed one by one; more are said in one problem naming all their places.
 MAX_LISTED_AMBIGUOUS = 5
@@ -274,6 +280,16 @@ def _places(group: list[Problem], most: int = 12) -> str:
     return ", ".join(parts) + more
 
 
+
+def lab_places(rows: Iterable[tuple]) -> dict[str, dict]:
+    """Where each lab code of validated rows (:data:`COLUMNS` tuples) first appears: file, sheet, row, column."""
+    out: dict[str, dict] = {}
+    for r in rows:
+        if r[0] not in out:
+            out[r[0]] = {"file": r[-3], "sheet": r[-2], "row": r[-1], "column": "lab"}
+    return out
+
+
 def table_frame(rows: list[tuple]) -> pd.DataFrame:
     """The :attr:`ResultTable.frame` of validated rows (from :func:`validate_records`), in table order."""
     frame = pd.DataFrame(rows, columns=list(COLUMNS))
@@ -326,12 +342,35 @@ def validate_records(rnd: Round, records: Iterable[Record]) -> tuple[list[tuple]
         except TypeError:  # an unhashable cell value: never from a reader, but keep the rule
             return cell_label(v)
 
+    codes: dict[tuple[type, object], tuple[str | None, str | None]] = {}
+    texts: dict[tuple[str, str], str | None] = {}  # (kind, text) -> why it is refused (None: fine)
+
+    def lab_code(v: object) -> tuple[str | None, str | None]:
+        try:
+            key = (type(v), v)
+            got = codes.get(key)
+            if got is None:
+                got = codes[key] = read_lab_code(v)
+            return got
+        except TypeError:
+            return read_lab_code(v)
+
+    def bounded(kind: str, v: object, column: str, rec: Record) -> str | None:
+        text = label(v)
+        if text is None:
+            return None
+        key = (kind, text)
+        why = texts[key] if key in texts else texts.setdefault(key, too_long(kind, text))
+        if why:
+            problems.append(_problem(why, rec, column, v))
+        return text
+
     for rec in records:
-        lab = label(rec.lab)
-        name = label(rec.measurand)
+        lab, why = lab_code(rec.lab)
         if lab is None:
-            problems.append(_problem("the lab code is empty", rec, "lab", rec.lab))
+            problems.append(_problem(why or "the lab code is empty", rec, "lab", rec.lab))
             continue
+        name = label(rec.measurand)
         if name is None:
             problems.append(_problem("the measurand is empty", rec, "measurand", rec.measurand))
             continue
@@ -340,7 +379,7 @@ def validate_records(rnd: Round, records: Iterable[Record]) -> tuple[list[tuple]
             m = known.get(lower.get(name.lower(), ""))
         if m is None:
             problems.append(_problem(
-                f"unknown measurand; the round has: {', '.join(known)}", rec, "measurand", rec.measurand,
+                f"unknown measurand; the round has: {shown_list(known)}", rec, "measurand", rec.measurand,
                 "correct the measurand's name, or add it to round.toml ([measurand.NAME])"))
             continue
         rep = rec.replicate
@@ -375,6 +414,10 @@ def validate_records(rnd: Round, records: Iterable[Record]) -> tuple[list[tuple]
         unit = label(rec.unit) or m.unit
         f = 1.0
         if unit != m.unit:
+            why = too_long("unit", unit)
+            if why:  # refused before the unit parser sees it (a long unit text costs it seconds)
+                problems.append(_problem(why, rec, "unit", rec.unit))
+                continue
             try:
                 f = factor(unit, m.unit)
             except UnitError as exc:
@@ -408,7 +451,8 @@ def validate_records(rnd: Round, records: Iterable[Record]) -> tuple[list[tuple]
         out.append((
             lab, m.name, replicate, cell.kind, value, _decimal_scale(cell.text, f),
             cell.relation, limit, m.unit, u * f, U * f, k,
-            label(rec.method), label(rec.comment), rec.file, rec.sheet, rec.row,
+            bounded("method", rec.method, "method", rec), bounded("comment", rec.comment, "comment", rec),
+            rec.file, rec.sheet, rec.row,
         ))
     problems.sort(key=_reading_order)
     return out, problems

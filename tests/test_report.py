@@ -120,7 +120,8 @@ def test_write_report_files(demo, tmp_path):
     assert (tmp_path / "labs" / "K01.html").read_text(encoding="utf-8").startswith("<!DOCTYPE html>")
 
 
-@pytest.mark.parametrize("code, name", [("K01", "K01.html"), ("lab 7/β", "lab_7_β.html"), ("../x", ".._x.html")])
+@pytest.mark.parametrize("code, name", [("K01", "K01.html"), ("lab 7/β", "lab%207%2Fβ.html"),
+                                        ("../x", "%2E.%2Fx.html")])
 def test_lab_file_name(code, name):
     assert R.lab_file_name(code) == name
 

@@ -31,6 +31,7 @@ from roundscore.cells import DECIMAL_MARKS, AmbiguousNumber, CellError, parse_ce
 from roundscore.errors import InputError, Problem
 from roundscore.ranges import confidence_problem, magnitude_problem
 from roundscore.stats.compare import DEFAULT_CONFIDENCE, MIN_GROUP_SIZE, compare_one, compare_two
+from roundscore.text import json_text, terminal_text
 
 __all__ = ["register", "run", "read_numbers", "read_csv_columns"]
 
@@ -209,9 +210,9 @@ def run(args: argparse.Namespace) -> int:
                              labels=(label_a, label_b))
     else:
         result = compare_one(first, reference, confidence=confidence, label=label_a)
+    # Labels come from the CSV's column names: shown with control characters escaped.
     if args.json:
-        json.dump(result.to_dict(), sys.stdout, indent=2, ensure_ascii=False)
-        sys.stdout.write("\n")
+        sys.stdout.write(json_text(json.dumps(result.to_dict(), indent=2, ensure_ascii=False)) + "\n")
     else:
-        sys.stdout.write("\n".join(result.to_text()) + "\n")
+        sys.stdout.write("\n".join(terminal_text(line) for line in result.to_text()) + "\n")
     return 0

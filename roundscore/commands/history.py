@@ -30,6 +30,7 @@ import pandas as pd
 
 from roundscore import archive, history
 from roundscore.errors import ArchiveError, InputError, RoundscoreError
+from roundscore.text import json_text, terminal_text
 
 __all__ = ["register", "run", "run_add", "run_show", "run_check", "write_history_outputs",
            "SIGNAL_STYLE"]
@@ -128,13 +129,13 @@ def run_add(args: argparse.Namespace) -> int:
             text = str(exc)
             if text.startswith(f"{name}: "):
                 text = text[len(name) + 2:]
-            text = text.replace("\n", "\n    ")
-            print(f"{name}: refused: {text}")
+            text = terminal_text(text, newlines=True).replace("\n", "\n    ")
+            print(f"{terminal_text(name)}: refused: {text}")
             continue
         for outcome in outcomes:
-            print(f"{name}: {outcome.status}: {outcome.message}")
+            print(f"{terminal_text(name)}: {outcome.status}: {terminal_text(outcome.message)}")
         for note in dict.fromkeys(w for o in outcomes for w in o.warnings):
-            print(f"{name}: warning: {note}")
+            print(f"{terminal_text(name)}: warning: {terminal_text(note)}")
     if refused:
         print(refused_summary(refused, len(args.files)))
     return 2 if refused else 0
@@ -157,7 +158,7 @@ def refused_summary(refused: int, total: int) -> str:
 def _fmt(value: object) -> str:
     if isinstance(value, float):
         return "" if not np.isfinite(value) else f"{value:.4g}"
-    return "" if value is None else str(value)
+    return "" if value is None else terminal_text(value)  # archived text came from participants' files
 
 
 def format_table(frame: pd.DataFrame) -> str:
@@ -194,7 +195,7 @@ def run_show(args: argparse.Namespace) -> int:
                                 + (f", scheme {args.scheme!r}" if args.scheme else "")
                                 + (f", since {args.since}" if args.since else "")
                                 + f" (labs in the archive: {shown or 'none'})")
-    print(f"History of lab {args.lab}: {frame['round'].nunique()} rounds, "
+    print(f"History of lab {terminal_text(args.lab)}: {frame['round'].nunique()} rounds, "
           f"{frame['measurand'].nunique()} measurands")
     print(format_table(frame))
     print("signals: o acceptable, ^ warning, [] action, - not scored")
@@ -370,15 +371,19 @@ def _write_figure(frame: pd.DataFrame, paths: Sequence[Path], *, lab: str) -> No
 # --------------------------------------------------------------------------- check
 
 def format_check(report: history.HistoryCheck) -> str:
-    """The check results in words: what fired, combined scores and bias of those series."""
+    """The check results in words: what fired, combined scores and bias of those series.
+
+    Archived text (lab codes, measurand names, notes) is shown with control characters escaped.
+    """
+    t = terminal_text
     lines = []
     fired = [s for s in report.series if s.fired]
     for s in report.series:
         if not s.fired:
             continue
-        lines.append(f"{s.lab} / {s.scheme} / {s.measurand} ({len(s.values)} scored rounds, "
+        lines.append(f"{t(s.lab)} / {t(s.scheme)} / {t(s.measurand)} ({len(s.values)} scored rounds, "
                      f"window {s.window}):")
-        lines += [f"  {f.message}" for f in s.findings]
+        lines += [f"  {t(f.message)}" for f in s.findings]
         if s.combined is not None:
             c = s.combined
             lines.append(f"  combined over the window: RSZ = {c.rsz:+.2f}, SSZ = {c.ssz:.2f} "
@@ -387,10 +392,10 @@ def format_check(report: history.HistoryCheck) -> str:
                          f"mean |z| = {c.mean_abs_z:.2f}")
         if s.bias is not None:
             lines.append(f"  bias check: {s.bias.conclusion}")
-        lines += [f"  note: {n}" for n in s.notes]
+        lines += [f"  note: {t(n)}" for n in s.notes]
     biased = [s for s in report.series if not s.fired and s.bias is not None and s.bias.biased]
     for s in biased:
-        lines.append(f"{s.lab} / {s.scheme} / {s.measurand}: no rule fired; bias check: "
+        lines.append(f"{t(s.lab)} / {t(s.scheme)} / {t(s.measurand)}: no rule fired; bias check: "
                      f"{s.bias.conclusion}")
     lines.append(f"{len(fired)} of {len(report.series)} series with a rule firing in the last "
                  f"{report.window} scored rounds.")
@@ -416,7 +421,7 @@ def run_check(args: argparse.Namespace) -> int:
         body["fired"] = report.fired
         for entry, series in zip(body["series"], report.series):
             entry["fired"] = series.fired
-        print(json.dumps(body, indent=2, ensure_ascii=False))
+        print(json_text(json.dumps(body, indent=2, ensure_ascii=False)))
     else:
         print(format_check(report))
     return 1 if report.fired else 0
@@ -430,7 +435,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     try:
         return args.func(args)
     except RoundscoreError as exc:
-        print(f"error: {exc}", file=sys.stderr)
+        print(f"error: {terminal_text(exc, newlines=True)}", file=sys.stderr)
         return 2
 
 

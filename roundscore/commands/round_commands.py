@@ -9,6 +9,7 @@ from pathlib import Path
 from ..evaluate import RoundEvaluation
 from ..look import CAUTION, SIGNAL_SYMBOL
 from ..progress import terminal_bar
+from ..text import terminal_text
 
 __all__ = ["register", "summary_text"]
 
@@ -57,10 +58,16 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 
 def summary_text(ev: RoundEvaluation) -> str:
-    """A short table of the round for the terminal."""
-    lines = [f"Round {ev.round.id}: {ev.round.title}"]
+    """A short table of the round for the terminal.
+
+    Every text from a file (round title, measurand names, notes and warnings
+    quoting participants' text) is shown with its control characters
+    escaped (:func:`roundscore.text.terminal_text`), one line each.
+    """
+    t = terminal_text
+    lines = [f"Round {t(ev.round.id)}: {t(ev.round.title)}"]
     for line in ev.failed_checks:
-        lines.append(f"  CHECK FAILED: {line}")
+        lines.append(f"  CHECK FAILED: {t(line)}")
     head = f"  {'measurand':<14}{'p':>4}  {'assigned':>12} {'u(x_pt)':>10} {'σ_pt':>10} {'score':<8}" \
            f"{SIGNAL_SYMBOL['acceptable']:>4}{SIGNAL_SYMBOL['warning']:>4}{SIGNAL_SYMBOL['action']:>4}" \
            f"{SIGNAL_SYMBOL['not-scored']:>4}"
@@ -70,7 +77,7 @@ def summary_text(ev: RoundEvaluation) -> str:
         def n(s):
             return int(counts.get((name, s), 0))
         lines.append(
-            f"  {name:<14}{m.p:>4}  {m.assigned:>12.5g} {m.u_assigned:>10.3g} {m.sigma_pt:>10.4g} "
+            f"  {t(name):<14}{m.p:>4}  {m.assigned:>12.5g} {m.u_assigned:>10.3g} {m.sigma_pt:>10.4g} "
             f"{m.settings.score:<8}{n('acceptable'):>4}{n('warning'):>4}{n('action'):>4}{n('not-scored'):>4}")
     lines.append(f"  {SIGNAL_SYMBOL['acceptable']} acceptable  {SIGNAL_SYMBOL['warning']} warning signal  "
                  f"{SIGNAL_SYMBOL['action']} action signal  {SIGNAL_SYMBOL['not-scored']} not scored")
@@ -79,9 +86,9 @@ def summary_text(ev: RoundEvaluation) -> str:
             lines.append(f"  {name}: not scored: " + ("; ".join(m.notes) or "the assigned value or σ_pt could not be set"))
     for name, notes in ev.stage_notes.items():
         for note in notes:
-            lines.append(f"  {name}: {note}")
+            lines.append(f"  {t(name)}: {t(note)}")
     for w in ev.warnings:
-        lines.append(f"  note: {w}")
+        lines.append(f"  note: {t(w)}")
     return "\n".join(lines)
 
 
@@ -91,10 +98,11 @@ def _report(ev, outputs, *, quiet=False, strict=False, stored=()) -> int:
         print(f"\nWrote {len(outputs.files)} files to {outputs.folder}/ "
               f"(scores.csv, statistics.csv, round-summary.xlsx, labs/*.xlsx ...)")
         for outcome in stored:
-            print(f"Archive: {outcome.status}: {outcome.message}")
+            print(f"Archive: {outcome.status}: {terminal_text(outcome.message)}")
         print(f"\n{CAUTION}")
     if strict and ev.failed_checks:
-        print("roundscore: --strict: checks failed: " + "; ".join(ev.failed_checks), file=sys.stderr)
+        print("roundscore: --strict: checks failed: " + "; ".join(map(terminal_text, ev.failed_checks)),
+              file=sys.stderr)
         return 1
     return 0
 

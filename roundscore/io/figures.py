@@ -21,10 +21,13 @@ statistics of the evaluation.
 
 from __future__ import annotations
 
+import contextlib
+import hashlib
 import html
 import io
 import math
 import re
+import unicodedata
 from dataclasses import dataclass, field
 from typing import Literal, Sequence
 
@@ -200,13 +203,16 @@ def _finish(fig, ax, *, key: str, title: str, caption: str, kind: MarkKind = "no
 
     with matplotlib.rc_context(_RC):
         buf = io.StringIO()
-        fig.savefig(buf, format="svg", metadata={"Date": None, "Creator": "roundscore"})
+        with _no_glyph_warnings():
+            fig.savefig(buf, format="svg", metadata={"Date": None, "Creator": "roundscore"})
     text = buf.getvalue()
     text = text[text.index("<svg"):]
     text = re.sub(r"\s*<metadata>.*?</metadata>", "", text, count=1, flags=re.S)  # no RDF block to carry
     ids = set(_ID.findall(text))
     if ids:
         safe = re.sub(r"[^A-Za-z0-9_-]", "_", key)
+        if safe != key:  # keys that differ only in replaced characters keep distinct ids on one page
+            safe += "-" + hashlib.sha256(key.encode("utf-8", "surrogatepass")).hexdigest()[:8]
         pattern = re.compile(r'(id="|url\(#|href="#)(' + "|".join(map(re.escape, sorted(ids, key=len, reverse=True)))
                              + r')(?=[")])')
         text = pattern.sub(lambda m: f"{m.group(1)}{safe}-{m.group(2)}", text)
@@ -223,6 +229,17 @@ def _finish(fig, ax, *, key: str, title: str, caption: str, kind: MarkKind = "no
                      kind=kind, marks=dict(marks or {}))
 
 
+@contextlib.contextmanager
+def _no_glyph_warnings():
+    """A lab code in a script the figure font lacks (CJK, emoji) is drawn as boxes; matplotlib's warning about
+    each missing glyph is not for the user (the code is in full in every table)."""
+    import warnings
+
+    with warnings.catch_warnings():
+        warnings.filterwarnings("ignore", message=r"Glyph \d+ .* missing from", category=UserWarning)
+        yield
+
+
 def _png(fig) -> bytes:
     import matplotlib
     from matplotlib.backends.backend_agg import FigureCanvasAgg
@@ -230,7 +247,8 @@ def _png(fig) -> bytes:
     with matplotlib.rc_context(_RC):
         FigureCanvasAgg(fig)
         buf = io.BytesIO()
-        fig.savefig(buf, format="png", dpi=110, metadata={"Software": None})
+        with _no_glyph_warnings():
+            fig.savefig(buf, format="png", dpi=110, metadata={"Software": None})
     return buf.getvalue()
 
 
@@ -251,6 +269,19 @@ def _signal_legend(ax, signals: Sequence[str], words: str, **kw) -> None:
         ax.legend(handles=handles, frameon=False, fontsize=8, **kw)
 
 
+def _ems(text: str) -> float:
+    """The width of a code in em: about 0.62 em per character of DejaVu Sans, 1.3 em for a wide (East Asian)
+    character or one the font lacks (drawn as a box)."""
+    if text.isascii():
+        return 0.62 * len(text)
+    return sum(1.3 if unicodedata.east_asian_width(ch) in "WF" else 0.62 for ch in text)
+
+
+#: Least height of the plot area (inches) of a figure with codes under its axis: the figure grows
+#: rather than the plot shrinking away under long codes.
+MIN_PLOT_HEIGHT = 2.0
+
+
 def _codes(ax, pos: np.ndarray, labels: Sequence[str], n: int, xlabel: str = "") -> None:
     """Lab (or item) codes under the axis as plain texts, about ten times cheaper to draw than ticks.
 
@@ -261,10 +292,17 @@ def _codes(ax, pos: np.ndarray, labels: Sequence[str], n: int, xlabel: str = "")
     size = 7 if n > 30 else 8
     for x, lab in zip(pos, labels):
         ax.text(x, -0.02, str(lab), transform=tr, rotation=90, ha="center", va="top", fontsize=size)
-    longest = max((len(str(lab)) for lab in labels), default=0)
-    pad = 6 + 0.62 * size * longest  # points: about 0.62 em per character of DejaVu Sans
+    longest = max((_ems(str(lab)) for lab in labels), default=0)
+    pad = 6 + size * longest  # points
     fig = ax.figure
-    fig.subplots_adjust(bottom=(pad + 26) / (fig.get_figheight() * 72))
+    height = fig.get_figheight()
+    bottom = (pad + 26) / 72  # inches under the axes
+    top = (1 - fig.subplotpars.top) * height  # inches above the axes
+    if bottom + top + MIN_PLOT_HEIGHT > height:  # long codes: the figure grows, the plot keeps its height
+        height = bottom + top + MIN_PLOT_HEIGHT
+        fig.set_figheight(height)
+        fig.subplots_adjust(top=1 - top / height)
+    fig.subplots_adjust(bottom=bottom / height)
     if xlabel:
         ax.set_xlabel(xlabel, labelpad=pad)
 
@@ -625,6 +663,17 @@ class RoundFigures:
     stability: dict[str, SvgFigure] = field(default_factory=dict)
 
 
+#: Most measurands for which the per-measurand figures (ranked scores, distribution, Mandel h and k,
+#: item checks) are drawn. Each costs about 0.35 s of drawing and 50-700 KB of the report; past this the
+#: report shows each measurand's score strip instead and says so (measured: benchmarks/measurands.py).
+FIGURES_MAX_MEASURANDS = 100
+
+
+def figures_per_measurand(n_measurands: int) -> bool:
+    """Whether a round of ``n_measurands`` gets the per-measurand figures (:data:`FIGURES_MAX_MEASURANDS`)."""
+    return n_measurands <= FIGURES_MAX_MEASURANDS
+
+
 def round_figures(ev, *, jobs: int | None = 1, progress=None) -> RoundFigures:
     """Draw the shared figures of a :class:`~roundscore.evaluate.RoundEvaluation` (nothing is recomputed).
 
@@ -650,11 +699,16 @@ def round_figures(ev, *, jobs: int | None = 1, progress=None) -> RoundFigures:
 
     from ..parallel import run_batches
 
-    tasks: list[tuple[str, ...]] = [("measurand", n) for n in ev.measurands]
+    per_measurand = figures_per_measurand(len(ev.measurands))
+    tasks: list[tuple[str, ...]] = [("measurand", n) for n in ev.measurands] if per_measurand else []
     tasks += [("youden", a, b) for a, b in ev.round.youden if a in ev.measurands and b in ev.measurands]
     mandel = ev.extras.get("mandel")
-    if mandel is not None and len(mandel) and {"lab", "measurand", "h", "k"} <= set(mandel.columns):
+    if (per_measurand and mandel is not None and len(mandel)
+            and {"lab", "measurand", "h", "k"} <= set(mandel.columns)):
         tasks += [("mandel", n) for n in dict.fromkeys(mandel["measurand"])]
+    for table in ("scores", "mandel", "precision"):  # split by measurand once, before the workers fork
+        if table == "scores" or "measurand" in getattr(ev.extras.get(table), "columns", ()):
+            ev.measurand_rows(table, "")
     drawn = run_batches(_draw_batch, tasks, jobs=jobs, shared=ev, batch_size=1, progress=progress,
                         stage="figures")
     scores, density, items, stab, youden, mandel_figs = {}, {}, {}, {}, [], {}
@@ -680,7 +734,6 @@ def _draw_batch(tasks: Sequence[tuple[str, ...]]) -> list[dict]:
 
 def _draw(ev, task: tuple[str, ...]) -> dict:
     words = ev.round.words
-    sc = ev.scores
     if task[0] == "youden":
         return {"youden": _youden(ev, task[1], task[2])}
     name = task[1]
@@ -689,8 +742,8 @@ def _draw(ev, task: tuple[str, ...]) -> dict:
     m = ev.measurands[name]
     out: dict = {}
     label = m.settings.label or name
-    g = sc[sc["measurand"] == name] if len(sc) else None
-    if m.scored and g is not None and len(g):
+    g = ev.measurand_rows("scores", name)
+    if m.scored and len(g):
         out["scores"] = z_bar_figure(g["lab"].tolist(), g[SCORE_FIELD[m.settings.score]].to_numpy(float),
                                      g["signal"].tolist(), key=f"z-{name}", score=m.settings.score,
                                      title=f"{label}: {_score_label(m.settings.score)} by laboratory", words=words)
@@ -731,9 +784,8 @@ def _youden(ev, a: str, b: str) -> SvgFigure:
     la, lb = ma.labs.set_index("lab"), mb.labs.set_index("lab")
     codes = [lab for lab in la.index if lab in lb.index]
     sig: dict[str, str] = {}
-    sc = ev.scores
     for name in (a, b):
-        g = sc[sc["measurand"] == name]
+        g = ev.measurand_rows("scores", name)
         for lab, s in zip(g["lab"], g["signal"]):
             if _WORSE.get(s, 0) >= _WORSE.get(sig.get(lab, "not-scored"), 0):
                 sig[lab] = s
@@ -748,7 +800,7 @@ def _mandel(ev, name: str) -> tuple[SvgFigure, ...]:
     from .figures_precision import mandel_figure, mandel_limits
 
     frame = ev.extras["mandel"]
-    g = frame[frame["measurand"] == name]
+    g = ev.measurand_rows("mandel", name)
     critical = frame.attrs.get("critical", {}) if isinstance(frame.attrs, dict) else {}
     h, k = g["h"].to_numpy(float), g["k"].to_numpy(float)
     lim = dict(critical.get(name, {}))
@@ -761,7 +813,7 @@ def _mandel(ev, name: str) -> tuple[SvgFigure, ...]:
         n = ev.round.replicates
         prec = ev.extras.get("precision")
         if prec is not None and "n_bar" in getattr(prec, "columns", ()):
-            row = prec[prec["measurand"] == name]
+            row = ev.measurand_rows("precision", name)
             if len(row) and np.isfinite(float(row["n_bar"].iloc[0])):
                 n = int(round(float(row["n_bar"].iloc[0])))
         lim_h = mandel_limits(int(np.isfinite(h).sum()), n)

@@ -297,5 +297,10 @@ def _pale(colour: str, keep: float = 0.45) -> str:
     return "#{:02X}{:02X}{:02X}".format(*(round(c + (255 - c) * (1 - keep)) for c in (r, g, b)))
 
 
+#: Lines of a wrapped label shown in a figure (a longer text ends in "…"; the tables show it whole).
+_WRAP_LINES = 4
+
+
 def _wrap(text: str, width: int) -> str:
-    return "\n".join(textwrap.wrap(text, width))
+    lines = textwrap.wrap(text, width, max_lines=_WRAP_LINES, placeholder=" …")
+    return "\n".join(lines)

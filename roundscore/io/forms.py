@@ -40,7 +40,7 @@ from ..round import MAX_FORM_REPLICATES, Round
 from .xlsx import SheetRows
 
 __all__ = ["write_forms", "FormsWritten", "write_form", "records_from_form", "form_decimal", "FormDecimal",
-           "FORM_FORMAT", "RESULTS_SHEET", "INFO_SHEET", "DECIMAL_CELL"]
+           "form_file_name", "lab_cell", "FORM_FORMAT", "RESULTS_SHEET", "INFO_SHEET", "DECIMAL_CELL"]
 
 FORM_FORMAT = 1
 RESULTS_SHEET = "Results"
@@ -168,19 +168,45 @@ class FormsWritten:
     set_aside: tuple[tuple[Path, Path], ...] = ()  # (form written, where the file it replaced now is)
 
 
+def form_file_name(round_id: str, lab: str) -> str:
+    """A blank form's file name, ``ROUND-LAB.xlsx`` (both parts by :func:`roundscore.filenames.file_stem`)."""
+    from ..filenames import file_stem
+
+    return f"{file_stem(round_id)}-{file_stem(lab)}.xlsx"
+
+
 def write_forms(rnd: Round, labs: Iterable[tuple[str, str | None]], folder: Path, *,
                 replace: bool = False) -> FormsWritten:
     """Write one blank form per (lab code, name) into ``folder``.
 
-    An existing file of the same name is never overwritten: it is kept and
-    reported, or with ``replace`` renamed to ``NAME.old-N.xlsx`` (the first
-    unused N) before the new form takes its name. Each form is written to a
-    temporary name first and renamed when complete.
+    Every code is checked by the lab-code rule (:mod:`roundscore.labcodes`)
+    first, and codes that would clash are refused, before any form is
+    written. An existing file of the same name is never overwritten: it is
+    kept and reported, or with ``replace`` renamed to ``NAME.old-N.xlsx``
+    (the first unused N) before the new form takes its name. Each form is
+    written to a temporary name first and renamed when complete.
     """
+    from ..errors import InputError
+    from ..labcodes import clash_problems, read_lab_code
+
+    labs = list(labs)
+    problems: list[Problem] = []
+    checked: list[tuple[str, str | None]] = []
+    places: dict[str, dict] = {}
+    for i, (lab, name) in enumerate(labs, start=1):
+        code, why = read_lab_code(lab)
+        if code is None:
+            problems.append(Problem(message=why or "the lab code is empty", column=f"lab {i}", value=lab))
+            continue
+        places.setdefault(code, {"column": f"lab {i}"})
+        checked.append((code, name))
+    problems += clash_problems(places)
+    if problems:
+        raise InputError(problems, summary="no form was written: lab codes break the rule")
     folder.mkdir(parents=True, exist_ok=True)
     written, kept, aside = [], [], []
-    for lab, name in labs:
-        p = folder / f"{rnd.id}-{_safe(lab)}.xlsx"
+    for lab, name in checked:
+        p = folder / form_file_name(rnd.id, lab)
         if p.exists() or p.is_symlink():
             if not replace:
                 kept.append(p)
@@ -222,8 +248,47 @@ def _place(tmp: Path, dest: Path) -> None:
     tmp.unlink()
 
 
-def _safe(text: str) -> str:
-    return "".join(ch if ch.isalnum() or ch in "-_." else "_" for ch in text)
+def lab_cell(info: SheetRows) -> dict:
+    """Where a form keeps its lab code: the value cell beside the key ``lab`` on the form-info sheet."""
+    for i, r in enumerate(info.rows):
+        if i and r and r[0] is not None and str(r[0]).strip() == "lab":
+            return {"file": info.file if info.file else None, "sheet": INFO_SHEET, "row": i + 1, "column": "B"}
+    return {"file": info.file if info.file else None, "sheet": INFO_SHEET}
+
+
+#: Where the form shows the lab code to the person filling it in (written by :func:`write_form`).
+_SHOWN_LAB_ROW, _SHOWN_LAB_LABEL = 5, "Laboratory code"
+
+
+def _form_lab(kv: dict, info: SheetRows, results: SheetRows) -> tuple[str, list[Problem]]:
+    """The form's lab code from its form-info sheet, checked by the lab-code rule and against the Results sheet.
+
+    The code on the hidden form-info sheet is what the reader uses; the
+    Results sheet shows the same code to the person filling in the form. A
+    form whose two codes differ was edited by hand: which lab's results it
+    holds cannot be told, so it is refused, naming both cells.
+    """
+    from ..labcodes import read_lab_code
+
+    place = {**lab_cell(info), "file": results.file}
+    raw = kv.get("lab")
+    lab, why = read_lab_code(raw)
+    if lab is None:
+        return "", [Problem(message=why or "the form has no laboratory code", value=raw, **place)]
+    rows = results.rows
+    shown = rows[_SHOWN_LAB_ROW - 1] if len(rows) >= _SHOWN_LAB_ROW else ()
+    if len(shown) >= 2 and shown[0] is not None and str(shown[0]).strip() == _SHOWN_LAB_LABEL:
+        visible, _ = read_lab_code(shown[1])
+        if visible != lab:
+            from ..text import quote
+
+            return "", [Problem(
+                message=(f"the lab code on the hidden sheet {INFO_SHEET!r} ({quote(lab)}) differs from the one "
+                         f"on sheet {results.sheet or RESULTS_SHEET!r} (cell B{_SHOWN_LAB_ROW}: "
+                         f"{quote(shown[1]) if shown[1] is not None else 'empty'}); the form was edited, so "
+                         "whose results it holds is not known: send the lab its own form again, or correct "
+                         "the code that is wrong"), **place)]
+    return lab, []
 
 
 def _cell_index(ref: str) -> tuple[int, int]:
@@ -313,14 +378,13 @@ def records_from_form(rnd: Round, results: SheetRows, info: SheetRows):
                             file=file)]
     round_id = str(kv.get("round", "")).strip()
     if round_id != rnd.id:
-        problems.append(Problem(message=f"this form is for round {round_id!r}, not {rnd.id!r}",
+        from ..text import quote
+
+        problems.append(Problem(message=f"this form is for round {quote(round_id)}, not {quote(rnd.id)}",
                                 file=file, sheet=INFO_SHEET, cell=info_cell("round"),
                                 hint="put this round's returned forms in its results folder, and only those"))
-    lab = kv.get("lab")
-    lab = str(int(lab)) if isinstance(lab, float) and lab.is_integer() else str(lab or "").strip()
-    if not lab:
-        problems.append(Problem(message="the form has no laboratory code", file=file, sheet=INFO_SHEET,
-                                cell=info_cell("lab")))
+    lab, lab_problems = _form_lab(kv, info, results)
+    problems += lab_problems
     try:
         header_row = int(kv.get("header_row", HEADER_ROW))
         reps = int(kv.get("replicates", rnd.replicates))

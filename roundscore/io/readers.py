@@ -6,13 +6,15 @@ import functools
 from dataclasses import dataclass, replace
 from pathlib import Path
 
-from ..errors import InputError, Problem
+from ..errors import InputError, Problem, is_text_file
 from ..round import Round
+from ..labcodes import LabCodeReader, clash_problems, lab_key
 from ..table import ResultTable, build_table, records_from_long, summarise_ambiguous, table_frame, validate_records
-from .forms import INFO_SHEET, RESULTS_SHEET, form_decimal, records_from_form
+from ..text import quote, too_long
+from .forms import INFO_SHEET, RESULTS_SHEET, form_decimal, lab_cell, records_from_form
 from .xlsx import SheetRows, read_rows
 
-__all__ = ["read_results", "read_participants", "Participant", "read_item_table"]
+__all__ = ["read_results", "read_participants", "Participant", "read_item_table", "check_labs"]
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -22,6 +24,8 @@ class Participant:
     lab: str
     name: str
     contact: str
+    #: The row of the participants file the lab was read from (None when not read from a file).
+    row: int | None = None
 
 
 def _is_form(path: Path) -> bool:
@@ -135,6 +139,7 @@ def _read_forms(rnd: Round, files: list[Path], *, jobs: int | None, progress) ->
     warnings: list[str] = []
     readings: list[tuple[str, str]] = list(round_reading(rnd))
     rows: list[tuple] = []
+    places: dict[str, dict] = {}
     shown = [_shown(rnd, Path(p)) for p in paths]
     for p, name in zip(paths, shown):
         got = read.get(p)
@@ -146,14 +151,18 @@ def _read_forms(rnd: Round, files: list[Path], *, jobs: int | None, progress) ->
             problems += got.problems
             warnings += got.warnings
             readings += got.readings
+            if got.rows and got.lab_place is not None:
+                places.setdefault(got.rows[0][0], got.lab_place)
         else:  # a ReadFailure: refused, crashed, out of memory or timed out
             problems += [_with_file(q, name) for q in got.as_problems()]
     del read
+    problems += clash_problems(places)
     frame = table_frame(rows)
     problems = summarise_ambiguous(problems + _duplicate_forms(frame))
     if problems:
         raise InputError(problems, summary="the results cannot be imported")
-    return ResultTable(frame=frame, files=tuple(shown), warnings=tuple(warnings), readings=tuple(readings))
+    return ResultTable(frame=frame, files=tuple(shown), warnings=tuple(warnings), readings=tuple(readings),
+                       lab_places=places)
 
 
 def _duplicate_forms(frame) -> list[Problem]:
@@ -179,12 +188,16 @@ def _duplicate_forms(frame) -> list[Problem]:
 
 @dataclass(frozen=True, slots=True)
 class _FormRows:
-    """One returned form, validated where it was read: its row tuples (table COLUMNS) and findings."""
+    """One returned form, validated where it was read: its row tuples (table COLUMNS) and findings.
+
+    ``lab_place`` is where the form keeps its lab code (the form-info cell), named by clash messages.
+    """
 
     rows: list
     problems: list
     warnings: list
     readings: list
+    lab_place: dict | None = None
 
 
 def _read_sheets(paths: list[str], limits) -> list:
@@ -204,7 +217,7 @@ def _form_rows(rnd: Round, got) -> _FormRows:
     rows, found = validate_records(rnd, records)
     readings = form_reading(rnd, results, info, str(records[0].lab) if records else None)
     return _FormRows(rows=rows, problems=problems + found, warnings=list(results.warnings + info.warnings),
-                     readings=readings)
+                     readings=readings, lab_place={**lab_cell(info), "file": shown})
 
 
 def _with_file(problem: Problem, shown: str) -> Problem:
@@ -243,7 +256,13 @@ def _resolved(folder: Path) -> Path:
 
 
 def read_participants(rnd: Round) -> dict[str, Participant]:
-    """The participants' names and contacts by lab code (empty when the round names no file)."""
+    """The participants' names and contacts by lab code (empty when the round names no file).
+
+    Lab codes follow the lab-code rule (:mod:`roundscore.labcodes`); names
+    and contacts are bounded (:data:`roundscore.text.TEXT_LIMITS`); a code
+    given twice, or two codes that differ only in letter case or Unicode
+    form, are refused with both rows named.
+    """
     if rnd.participants is None:
         return {}
     shown = _shown(rnd, rnd.participants)
@@ -256,31 +275,92 @@ def read_participants(rnd: Round) -> dict[str, Participant]:
     header = [str(c).strip().lower() if c is not None else "" for c in head]
     if "lab" not in header:
         raise InputError.single(
-            f"the participants file needs a 'lab' column (and 'name', 'contact'); found: {', '.join(header)}",
-            file=shown, sheet=sheet.sheet, row=head_row)
+            f"the participants file needs a 'lab' column (and 'name', 'contact'); found: "
+            f"{', '.join(quote(h, 40) for h in header)}", file=shown, sheet=sheet.sheet, row=head_row)
     il = header.index("lab")
     iname = header.index("name") if "name" in header else None
     icontact = header.index("contact") if "contact" in header else None
     out: dict[str, Participant] = {}
-    problems = []
+    problems: list[Problem] = []
+    codes = LabCodeReader(problems)
     for i, r in numbered[1:]:
-        def cell(j):
+        def cell(j, kind):
             if j is None or j >= len(r) or r[j] is None:
                 return ""
             v = r[j]
-            return str(int(v)) if isinstance(v, float) and v.is_integer() else str(v).strip()
-        lab = cell(il)
-        if not lab:
-            problems.append(Problem(message="the lab code is empty", file=shown, sheet=sheet.sheet, row=i))
+            text = str(int(v)) if isinstance(v, float) and v.is_integer() else str(v).strip()
+            why = too_long(kind, text)
+            if why:
+                problems.append(Problem(message=why, file=shown, sheet=sheet.sheet, row=i, column=header[j],
+                                        value=v))
+            return text
+        raw = r[il] if il < len(r) else None
+        lab = codes.read(raw, file=shown, sheet=sheet.sheet, row=i, column="lab")
+        if lab is None:
             continue
         if lab in out:
-            problems.append(Problem(message="the lab appears twice", file=shown, sheet=sheet.sheet, row=i,
-                                    lab=lab))
+            first = codes.first_seen[lab]
+            line = "line" if is_text_file(shown, sheet.sheet) else "row"
+            problems.append(Problem(message=f"the lab appears twice (first in {line} {first['row']})", file=shown,
+                                    sheet=sheet.sheet, row=i, column="lab", lab=lab))
             continue
-        out[lab] = Participant(lab=lab, name=cell(iname), contact=cell(icontact))
+        out[lab] = Participant(lab=lab, name=cell(iname, "participant name"), contact=cell(icontact, "contact"),
+                               row=i)
+    problems += clash_problems(codes.first_seen)
     if problems:
         raise InputError(problems, summary="the participants file has problems")
     return out
+
+
+def check_labs(rnd: Round, table: ResultTable, participants: dict[str, Participant]) -> ResultTable:
+    """Check the lab codes of the results against the participants file and the coordinator's exclusions.
+
+    * A lab code of the results and one of the participants file (or of an
+      ``[[exclude]]``) that differ only in letter case or Unicode form are
+      refused, naming both places: they would be two labs with one file name
+      on Windows and macOS, and an exclusion meant for the lab would miss it.
+    * A lab in the results that is not in the participants file is a warning,
+      or an error with ``[round] unknown_labs = "error"`` (no check when the
+      round names no participants file).
+    * An ``[[exclude]]`` naming a lab that is in neither is a warning: it
+      changes nothing.
+
+    Returns the table with the warnings added.
+    """
+    from dataclasses import replace
+
+    labs = list(dict.fromkeys(table.frame["lab"])) if len(table.frame) else []
+    results_places = {lab: table.lab_places.get(lab, {}) for lab in labs}
+    part_shown = _shown(rnd, rnd.participants) if rnd.participants is not None else None
+    part_places = {lab: {"file": part_shown, "row": p.row, "column": "lab"} for lab, p in participants.items()}
+    problems = clash_problems(results_places, also=part_places)
+    excl_places = {e.lab: {"file": str(rnd.path), "column": f"exclude[{i}].lab"}
+                   for i, e in enumerate(rnd.exclusions, start=1)}
+    problems += clash_problems(excl_places, also={**part_places, **results_places})
+    warnings: list[str] = []
+    if rnd.participants is not None:
+        keys = {lab_key(p): p for p in participants}
+        unknown = [lab for lab in labs if lab not in participants and lab_key(lab) not in keys]
+        for lab in unknown:
+            where = dict(results_places.get(lab, {}))
+            message = (f"lab code {quote(lab)} is not in the participants file {_shown(rnd, rnd.participants)}")
+            if rnd.unknown_labs == "error":
+                problems.append(Problem(message=message + " ([round] unknown_labs = \"error\"); add the lab to "
+                                        "the participants file, or correct the code", lab=lab, **where))
+            else:
+                warnings.append(str(Problem(message=message + "; its sheet carries no name ([round] "
+                                            "unknown_labs = \"error\" makes this an error)", lab=lab, **where)))
+    known = set(labs) | set(participants)
+    known_keys = {lab_key(c) for c in known}
+    for i, e in enumerate(rnd.exclusions, start=1):
+        if e.lab not in known and lab_key(e.lab) not in known_keys:
+            warnings.append(f"{rnd.path}: [[exclude]] #{i}: lab {quote(e.lab)} is not among the round's labs; "
+                            "the exclusion changes nothing")
+    if problems:
+        raise InputError(problems, summary="the lab codes do not agree")
+    if not warnings:
+        return table
+    return replace(table, warnings=tuple(table.warnings) + tuple(warnings))
 
 
 def read_item_table(rnd: Round, path: Path, *, what: str) -> SheetRows:

@@ -40,7 +40,8 @@ import numpy as np
 import pandas as pd
 
 from ..look import CAUTION, SIGNAL_COLOUR, SIGNAL_SYMBOL, SIGNAL_WORD
-from .figures import SCORE_FIELD, RoundFigures, SvgFigure, round_figures
+from .figures import (FIGURES_MAX_MEASURANDS, SCORE_FIELD, RoundFigures, SvgFigure, figures_per_measurand,
+                      round_figures)
 from .strips import ScoreStrip, score_strip, strip_legend
 
 __all__ = ["write_report", "report_html", "lab_page_html", "ReportParts", "report_parts", "lab_file_name",
@@ -215,8 +216,10 @@ def _legend(words: str) -> str:
 
 
 def lab_file_name(lab: str) -> str:
-    """The file name of a lab's page (same rule as its workbook's): unsafe characters become ``_``."""
-    return "".join(ch if ch.isalnum() or ch in "-_." else "_" for ch in lab) + ".html"
+    """The file name of a lab's page: the same stem as its workbook's (:func:`roundscore.filenames.file_stem`)."""
+    from ..filenames import lab_file_name as named
+
+    return named(lab, ".html")
 
 
 # ------------------------------------------------------------------------------------------ shared parts
@@ -361,10 +364,10 @@ def _items(ev, figs: RoundFigures) -> str:
     return out
 
 
-def _measurand_section(ev, name: str, m, figs: RoundFigures) -> str:
+def _measurand_section(ev, name: str, m, figs: RoundFigures, strip: ScoreStrip | None = None) -> str:
     d = m.settings.decimals
     e = m.robust
-    counts = ev.scores.loc[ev.scores["measurand"] == name, "signal"].value_counts()
+    counts = ev.measurand_rows("scores", name)["signal"].value_counts()
     signals = ", ".join(f"{SIGNAL_SYMBOL[s]} {SIGNAL_WORD[ev.round.words][s]}: {int(counts.get(s, 0))}"
                         for s in _SIGNALS)
     u_check = {None: "not computable", True: "yes", False: "NO: u(x_pt) is not negligible"}[m.u_check_passed]
@@ -384,10 +387,25 @@ def _measurand_section(ev, name: str, m, figs: RoundFigures) -> str:
     for f in (figs.scores.get(name), figs.density.get(name)):
         if f is not None:
             body += _figure(f.svg, f)
-    if name not in figs.scores:
+    if strip is not None:  # a round too large for the figures: the measurand's score strip instead
+        body += f'<figure class="strip" id="strip-{_e(name)}">{strip.svg}</figure>'
+    if name not in figs.scores and (strip is None or not strip.n):
         body += '<p class="muted">No scores for this measurand (see the notes).</p>'
     title = m.settings.label if m.settings.label and m.settings.label != name else ""
     return f'<h3 id="m-{_e(name)}">{_e(name)}{" (" + _e(title) + ")" if title else ""}</h3>{body}'
+
+
+def _measurands(ev, parts: ReportParts) -> str:
+    figs = parts.figures
+    if figures_per_measurand(len(ev.measurands)):
+        return "".join(_measurand_section(ev, n, m, figs) for n, m in ev.measurands.items())
+    note = (f'<p class="muted">This round has {len(ev.measurands)} measurands: the figures of each measurand '
+            f"(ranked scores, distribution, Mandel's h and k, item checks) are drawn for rounds of at most "
+            f"{FIGURES_MAX_MEASURANDS} measurands. Each measurand shows its score strip (every lab's score, "
+            f'unnamed); the ranked scores are charted in round-summary.xlsx.</p><p class="muted">'
+            f"{_e(strip_legend(ev.round.words, own=False))}</p>")
+    return note + "".join(_measurand_section(ev, n, m, figs, parts.strips.get(n))
+                          for n, m in ev.measurands.items())
 
 
 def _score_matrix(ev) -> str:
@@ -443,8 +461,7 @@ def report_html(ev, parts: ReportParts | None = None) -> str:
     sections: list[tuple[str, str, str]] = [
         ("round", "The round and its settings", parts.heading + _settings(ev)),
         ("items", "Test items: homogeneity and stability", _items(ev, figs)),
-        ("measurands", "Measurands: statistics and figures",
-         "".join(_measurand_section(ev, n, m, figs) for n, m in ev.measurands.items())),
+        ("measurands", "Measurands: statistics and figures", _measurands(ev, parts)),
     ]
     if figs.youden:
         sections.append(("youden", "Youden plots", "".join(_figure(f.svg, f, square=True) for f in figs.youden)))

@@ -85,15 +85,18 @@ def _bands(score: str) -> list[tuple[float, float, str]]:
             (Z_WARNING, Z_ACTION, "warning"), (Z_ACTION, r, "action")]
 
 
-def strip_legend(words: str = "signals") -> str:
-    """One sentence for the page saying what the bands and marks of the strips mean."""
+def strip_legend(words: str = "signals", *, own: bool = True) -> str:
+    """One sentence for the page saying what the bands and marks of the strips mean.
+
+    ``own`` False: for a page where no lab is marked (the round report of a large round).
+    """
     w = SIGNAL_WORD[words]
+    marks = ("the black line and the marker are yours (● acceptable, ▲ warning, ■ action). A score beyond the "
+             "axis is drawn at its edge with its value written." if own else "no laboratory is marked.")
     return (f"Each row: the score axis from −{STRIP_RANGE:g} to +{STRIP_RANGE:g}, shaded {w['acceptable']} "
             f"(|score| ≤ {Z_WARNING:g}; En: ≤ {EN_ACTION:g}), {w['warning']} ({Z_WARNING:g} < |score| < "
             f"{Z_ACTION:g}, dashed line) and {w['action']} (|score| ≥ {Z_ACTION:g}, solid line; En: > "
-            f"{EN_ACTION:g}); the grey blocks or bars are every laboratory's score (anonymous), the black "
-            "line and the marker are yours (● acceptable, ▲ warning, ■ action). A score beyond the axis is "
-            "drawn at its edge with its value written.")
+            f"{EN_ACTION:g}); the grey blocks or bars are every laboratory's score (anonymous), " + marks)
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)

@@ -326,7 +326,7 @@ def _write_summary(ev: RoundEvaluation, path: Path, options: dict[str, Any]) -> 
     cd.write_string(0, 0, "Data of the charts: each measurand's official scores, ranked", fm.bold)
     row, top = 0, 2
     for name, m in ev.measurands.items():
-        g = sc[sc["measurand"] == name]
+        g = ev.measurand_rows("scores", name)
         if not len(g) or not m.scored:
             continue
         vals = g[SCORE_FIELD[m.settings.score]].to_numpy(float)

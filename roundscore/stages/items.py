@@ -67,6 +67,7 @@ from ..ranges import magnitude_problem
 from ..round import MeasurandSettings, Round
 from ..stats import items as st
 from ..table import cell_label, summarise_ambiguous
+from ..text import shown_list, too_long
 from ..units import UnitError, factor
 
 __all__ = [
@@ -329,11 +330,15 @@ def _parse(sheet: SheetRows, m: MeasurandSettings, kind: TableKind,
                 continue
             if name.lower() != m.name.lower():
                 if name.lower() not in known:
-                    bad(f"unknown measurand; the round has: {', '.join(rnd_names)}", row, "measurand", name)
+                    bad(f"unknown measurand; the round has: {shown_list(rnd_names)}", row, "measurand", name)
                 continue
         item = cell_label(get["item"])
         if item is None:
             bad("the item label is empty", row, "item", get["item"])
+            continue
+        why = too_long("item label", item)
+        if why:
+            bad(why, row, "item", get["item"])
             continue
         rep = _whole(get["replicate"])
         if rep is None:
@@ -345,6 +350,10 @@ def _parse(sheet: SheetRows, m: MeasurandSettings, kind: TableKind,
             if not set_name:
                 bad("the set is empty; name the group of this measurement (e.g. before / after)", row, "set",
                     get["set"])
+                continue
+            why = too_long("set", set_name)
+            if why:
+                bad(why, row, "set", get["set"])
                 continue
         key = (set_name, item, rep)
         if key in seen:
@@ -367,6 +376,10 @@ def _parse(sheet: SheetRows, m: MeasurandSettings, kind: TableKind,
         unit = cell_label(get.get("unit")) or m.unit
         f = 1.0
         if unit != m.unit:
+            why = too_long("unit", unit)
+            if why:  # before the unit converter sees it
+                bad(why, row, "unit", get.get("unit"))
+                continue
             try:
                 f = factor(unit, m.unit)
             except UnitError as exc:
