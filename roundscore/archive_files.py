@@ -31,6 +31,9 @@ import pandas as pd
 
 from roundscore.errors import InputError, Problem
 
+from .labcodes import read_lab_code
+from .text import too_long
+
 from .archive_checks import (DIGEST_KEY, EDIT_HINT, RESUBMIT_HINT, ROW_DIGEST_COLUMN, canonical,
                              row_digest, row_problems, sheet_digest)
 
@@ -126,9 +129,18 @@ def normalise_rows(records: Sequence[dict[str, object]], *, file: str | None, sh
             if raw == "" or raw is None:
                 out.append(None)
                 continue
+            if col == "lab":  # the lab-code rule of every other reader (roundscore.labcodes)
+                code, why = read_lab_code(int(raw) if isinstance(raw, float) and raw.is_integer() else raw)
+                if code is None:  # refused; the row keeps the text so that it is not also called empty
+                    problems.append(Problem(message=why or "the lab code is empty", column=col, value=raw, **where))
+                out.append(code if code is not None else str(raw))
+                continue
             if col in TEXT_FIELDS:
                 if isinstance(raw, float) and raw.is_integer():
-                    raw = int(raw)  # a numeric lab code read from a workbook
+                    raw = int(raw)
+                why = too_long("measurand", str(raw)) if col == "measurand" else None
+                if why:
+                    problems.append(Problem(message=why, column=col, value=raw, **where))
                 out.append(str(raw))
                 continue
             if col == "result" and isinstance(raw, str) and raw[0] in CENSORED_STARTS:

@@ -324,3 +324,17 @@ def test_hostile_workbooks_are_refused_by_name(sheets, tmp_path, db, how, words)
         assert target.stat().st_size < (1 << 20)
     text = refused(db, target, *words)
     assert "hostile.xlsx" in text
+
+
+def test_score_rows_follow_the_lab_code_rule():
+    """history add reads lab codes by the same rule as every other reader (roundscore.labcodes)."""
+    from roundscore.archive_files import ROW_FIELDS, normalise_rows
+
+    good = {c: None for c in ROW_FIELDS}
+    good.update(lab="K01", measurand="iron", signal="not-scored")
+    bad = dict(good, lab="K\x1b[2J01")
+    wide = dict(good, lab="Ｋ０２")  # full width: the code K02 (NFKC)
+    rows, problems = normalise_rows([good, bad, wide], file="scores.csv", sheet=None, first_row=2)
+    assert [r[0] for r in rows] == ["K01", "K\x1b[2J01", "K02"]
+    (p,) = problems
+    assert p.row == 3 and p.column == "lab" and "control character" in str(p) and "\x1b" not in str(p)
