@@ -11,21 +11,21 @@ from __future__ import annotations
 
 __version__ = "0.1.0"
 
-from .errors import InputError, Problem, RoundFileError, RoundscoreError, StatisticsError
-from .evaluate import RoundEvaluation, evaluate
-from .io.readers import read_participants, read_results
-from .pipeline import load_and_evaluate, run_round
-from .round import Round, load_round
-from .stats.robust import RobustEstimate, algorithm_a, made, niqr
-from .stats.scores import en_score, signal, z_prime_score, z_score, zeta_score
-from .stats.sigma import horwitz_thompson, sigma_from_precision
-from .stats.precision import algorithm_s, precision
-from .stats.outliers import cochran, grubbs_double, grubbs_single, precision_with_screening, screen
-from .stats.compare import compare_groups, compare_one, compare_two
-from .stats.exact import centred
-from .stats.items import homogeneity, stability
-from .archive import add_files, lab_history, store_round
-from .history import check_history
+from roundscore.errors import InputError, Problem, RoundFileError, RoundscoreError, StatisticsError
+from roundscore.evaluate import RoundEvaluation, evaluate
+from roundscore.io.readers import read_participants, read_results
+from roundscore.pipeline import load_and_evaluate, run_round
+from roundscore.round import Round, load_round
+from roundscore.stats.robust import RobustEstimate, algorithm_a, made, niqr
+from roundscore.stats.scores import en_score, signal, z_prime_score, z_score, zeta_score
+from roundscore.stats.sigma import horwitz_thompson, sigma_from_precision
+from roundscore.stats.precision import algorithm_s, precision
+from roundscore.stats.outliers import cochran, grubbs_double, grubbs_single, precision_with_screening, screen
+from roundscore.stats.compare import compare_groups, compare_one, compare_two
+from roundscore.stats.exact import centred
+from roundscore.stats.items import homogeneity, stability
+from roundscore.archive import add_files, lab_history, store_round
+from roundscore.history import check_history
 
 __all__ = [
     "__version__",

@@ -59,10 +59,9 @@ from typing import TYPE_CHECKING, Any, Literal
 
 import pandas as pd
 
-from roundscore.archive_files import (FLOAT_FIELDS as _FLOAT_FIELDS, ROW_FIELDS as _ROW_FIELDS,
-                                      SCORE_COLUMNS, SCORE_VALUE_COLUMN, LabRows as _LabRows,
-                                      normalise_rows as _normalise_rows, parse_date as _parse_date,
-                                      plain as _plain, read_lab_file as _read_lab_file,
+from roundscore.archive_files import (FLOAT_FIELDS as _FLOAT_FIELDS, ROW_FIELDS as _ROW_FIELDS, SCORE_COLUMNS,
+                                      SCORE_VALUE_COLUMN, LabRows as _LabRows, normalise_rows as _normalise_rows,
+                                      parse_date as _parse_date, plain as _plain, read_lab_file as _read_lab_file,
                                       text_key as _text, unquote as _unquote)
 from roundscore import archive_db as _db
 from roundscore.archive_db import (APPLICATION_ID, ARCHIVE_ENV, archive_path, now as _now,

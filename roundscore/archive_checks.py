@@ -43,8 +43,8 @@ from collections.abc import Iterable, Sequence
 
 import numpy as np
 
-from .errors import Problem
-from .stats.scores import SIGNALS, Z_ACTION, signal
+from roundscore.errors import Problem
+from roundscore.stats.scores import SIGNALS, Z_ACTION, signal
 
 __all__ = ["DIGITS", "REL_TOL", "DIGEST_KEY", "ROW_DIGEST_COLUMN", "canonical", "sheet_value",
            "row_digest", "sheet_digest", "row_problems", "EDIT_HINT", "RESUBMIT_HINT"]

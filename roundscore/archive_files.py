@@ -31,16 +31,16 @@ import pandas as pd
 
 from roundscore.errors import InputError, Problem
 
-from .labcodes import read_lab_code
-from .text import too_long
+from roundscore.labcodes import read_lab_code
+from roundscore.text import too_long
 
-from .archive_checks import (DIGEST_KEY, EDIT_HINT, RESUBMIT_HINT, ROW_DIGEST_COLUMN, canonical,
-                             row_digest, row_problems, sheet_digest)
+from roundscore.archive_checks import (DIGEST_KEY, EDIT_HINT, RESUBMIT_HINT, ROW_DIGEST_COLUMN, canonical,
+                                       row_digest, row_problems, sheet_digest)
 
 # One definition of the score-row contract (evaluate.py) and of the score and signal names.
-from .evaluate import SCORE_COLUMNS, SCORE_FIELD as SCORE_VALUE_COLUMN
-from .round import SCORES as SCORE_NAMES
-from .stats.scores import SIGNALS
+from roundscore.evaluate import SCORE_COLUMNS, SCORE_FIELD as SCORE_VALUE_COLUMN
+from roundscore.round import SCORES as SCORE_NAMES
+from roundscore.stats.scores import SIGNALS
 
 __all__ = ["SCORE_COLUMNS", "ROW_FIELDS", "TEXT_FIELDS", "FLOAT_FIELDS", "SIGNALS", "SCORE_NAMES",
            "SCORE_VALUE_COLUMN", "WORKBOOK_FORMAT", "CENSORED_STARTS", "LabRows", "plain", "unquote", "text_key",
@@ -229,8 +229,8 @@ def _records(file: Path, rows: list[list[object]], sheet: str | None) -> _Sheet:
 
 def _read_csv(file: Path) -> _Sheet:
     """A ``scores.csv``: read by the bounded text reader (size limit, no binary, any common encoding)."""
-    from .io.safety import DEFAULT_LIMITS
-    from .io.xlsx import read_csv_rows
+    from roundscore.io.safety import DEFAULT_LIMITS
+    from roundscore.io.xlsx import read_csv_rows
 
     got = read_csv_rows(file, limits=DEFAULT_LIMITS)
     return _records(file, got.rows, None)
@@ -244,7 +244,7 @@ def _read_workbook(file: Path) -> _Sheet:
     bounded worker process (:func:`roundscore.io.safety.read_many`), so a
     hostile or broken file is refused by name and never takes the process down.
     """
-    from .io.safety import DEFAULT_LIMITS, read_many
+    from roundscore.io.safety import DEFAULT_LIMITS, read_many
 
     got = read_many([file], ["data", "round"], jobs=1, limits=DEFAULT_LIMITS)[0]
     if not hasattr(got, "sheets"):  # a ReadFailure: refused, crashed, out of memory or timed out

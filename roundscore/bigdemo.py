@@ -38,9 +38,9 @@ from typing import Sequence
 
 import numpy as np
 
-from . import parallel
-from .io.forms import FIRST_ROW, RESULTS_SHEET, write_form
-from .io.outfolder import atomic_folder
+from roundscore import parallel
+from roundscore.io.forms import FIRST_ROW, RESULTS_SHEET, write_form
+from roundscore.io.outfolder import atomic_folder
 
 __all__ = ["make_big_round", "BigRound", "BIG_SEED", "BIG_ID", "fill_form"]
 
@@ -207,7 +207,7 @@ def _col(j: int) -> str:
 
 
 def _write_batch(batch: Sequence[tuple]) -> list[int]:
-    from .round import load_round
+    from roundscore.round import load_round
 
     rnd = load_round(parallel.shared())
     out = []

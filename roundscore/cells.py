@@ -49,7 +49,7 @@ from dataclasses import dataclass
 from decimal import Decimal, InvalidOperation
 from typing import Literal
 
-from .errors import RoundscoreError
+from roundscore.errors import RoundscoreError
 
 __all__ = ["Cell", "CellError", "AmbiguousNumber", "parse_cell", "MAX_CELL_TEXT", "DECIMAL_MARKS", "DecimalMark"]
 

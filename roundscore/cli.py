@@ -14,9 +14,9 @@ import sys
 import warnings
 from pathlib import Path
 
-from . import __version__
-from .errors import RoundscoreError
-from .text import terminal_text
+from roundscore import __version__
+from roundscore.errors import RoundscoreError
+from roundscore.text import terminal_text
 
 __all__ = ["main", "build_parser"]
 
@@ -51,7 +51,7 @@ def main(argv: list[str] | None = None) -> int:
     if not getattr(args, "func", None):
         parser.print_help()
         return 2
-    from .processes import Terminated, signals_as_errors
+    from roundscore.processes import Terminated, signals_as_errors
 
     try:
         with signals_as_errors(), warnings.catch_warnings():

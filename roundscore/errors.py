@@ -13,7 +13,7 @@ import datetime as _dt
 import re
 from dataclasses import dataclass, field
 
-from .text import clip, quote, terminal_text
+from roundscore.text import clip, quote, terminal_text
 
 #: Longest message text of one problem (a message lists what is allowed; values in it are quoted clipped).
 MAX_MESSAGE_CHARS = 2000

@@ -15,16 +15,16 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 import pandas as pd
 
-from .errors import StatisticsError
-from .io.readers import Participant
-from .ranges import sigma_relative_problem
-from .round import MeasurandSettings, Round
-from .stats import robust, scores as sc, sigma as sg
-from .table import ResultTable
-from .units import UnitError, mass_fraction
+from roundscore.errors import StatisticsError
+from roundscore.io.readers import Participant
+from roundscore.ranges import sigma_relative_problem
+from roundscore.round import MeasurandSettings, Round
+from roundscore.stats import robust, scores as sc, sigma as sg
+from roundscore.table import ResultTable
+from roundscore.units import UnitError, mass_fraction
 
 if TYPE_CHECKING:
-    from .stages.items import ItemOutcome
+    from roundscore.stages.items import ItemOutcome
 
 __all__ = ["evaluate", "RoundEvaluation", "MeasurandResult", "SCORE_COLUMNS", "STATISTICS_COLUMNS",
            "AUDIT_COLUMNS", "U_CHECK_FACTOR", "DEFAULT_K"]
@@ -347,7 +347,7 @@ def _measurand(rnd: Round, labs: pd.DataFrame, m: MeasurandSettings,
     item_checks = None
     if m.homogeneity is not None or m.stability is not None:
         # ISO 13528 Annex B: the item checks may widen σ_pt and add u_hom, u_stab to u(x_pt).
-        from .stages.items import apply_item_checks
+        from roundscore.stages.items import apply_item_checks
 
         item_checks = apply_item_checks(rnd, m, sigma_pt=s_pt, u_char=u_pt)
         s_pt, u_pt = item_checks.sigma_pt, item_checks.u_assigned
@@ -504,11 +504,11 @@ def evaluate(rnd: Round, table: ResultTable, participants: dict[str, Participant
     details: dict[str, Any] = {}
     item_rows = [row for n in names if results[n].item_checks is not None for row in results[n].item_checks.rows]
     if item_rows:
-        from .stages.items import ITEMS_COLUMNS
+        from roundscore.stages.items import ITEMS_COLUMNS
 
         extras["items"] = pd.DataFrame(item_rows, columns=list(ITEMS_COLUMNS))
     # STAGE: precision (ISO 5725-2) and method groups — adds extras, stage_notes, details and audit rows here.
-    from .stages.precision import precision_stage
+    from roundscore.stages.precision import precision_stage
 
     precision_stage(rnd, table, results).merge_into(extras=extras, stage_notes=stage_notes, details=details,
                                                     audit=audit)

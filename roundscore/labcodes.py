@@ -30,8 +30,8 @@ import datetime as _dt
 import unicodedata
 from typing import Mapping
 
-from .errors import Problem
-from .text import quote, terminal_text
+from roundscore.errors import Problem
+from roundscore.text import quote, terminal_text
 
 __all__ = ["MAX_LAB_CODE", "LAB_CODE_RULE", "read_lab_code", "lab_code_problem", "lab_key", "clash_problems",
            "LabCodeReader"]

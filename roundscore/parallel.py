@@ -29,7 +29,7 @@ from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 from dataclasses import dataclass
 from typing import Any, Callable, Sequence, TypeVar
 
-from .processes import context, worker_started
+from roundscore.processes import context, worker_started
 
 __all__ = ["resolve_jobs", "run_batches", "shared", "batches", "Progress", "terminal_progress",
            "BATCHES_PER_JOB"]

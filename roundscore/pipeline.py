@@ -12,15 +12,15 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Callable
 
-from .errors import RoundscoreError
-from .evaluate import AUDIT_COLUMNS, SCORE_COLUMNS, STATISTICS_COLUMNS, RoundEvaluation, evaluate
-from .filenames import lab_file_name
-from .io.csvout import write_csv
-from .io.outfolder import atomic_folder, check_target
-from .io.readers import check_labs, read_participants, read_results
-from .io.workbook import lab_payload, write_lab_workbook, write_summary
-from .parallel import run_batches, shared
-from .round import Round, load_round, with_warnings
+from roundscore.errors import RoundscoreError
+from roundscore.evaluate import AUDIT_COLUMNS, SCORE_COLUMNS, STATISTICS_COLUMNS, RoundEvaluation, evaluate
+from roundscore.filenames import lab_file_name
+from roundscore.io.csvout import write_csv
+from roundscore.io.outfolder import atomic_folder, check_target
+from roundscore.io.readers import check_labs, read_participants, read_results
+from roundscore.io.workbook import lab_payload, write_lab_workbook, write_summary
+from roundscore.parallel import run_batches, shared
+from roundscore.round import Round, load_round, with_warnings
 
 __all__ = ["run_round", "write_outputs", "atomic_folder", "Outputs", "load_and_evaluate", "round_inputs"]
 
@@ -46,7 +46,7 @@ def round_inputs(rnd: Round, archive: str | Path | None = None, *,
     (``for_forms``: they would be read back as returned forms). With
     ``for_forms`` results that do not exist yet are no error.
     """
-    from .errors import RoundFileError
+    from roundscore.errors import RoundFileError
 
     protect: list[tuple[Path, str]] = [(rnd.folder, "the round folder"),
                                        (rnd.path, "the round file")]
@@ -136,7 +136,7 @@ def write_outputs(ev: RoundEvaluation, folder: Path, *, history=None,
         def report(stage: str, done: int, total: int) -> None:
             progress("lab sheets", min(len(labs), max(0, done - n_other) * LAB_SHEETS_PER_TASK), len(labs))
     run_batches(_write_tasks, tasks, jobs=jobs, shared=ev, batch_size=1, progress=report, stage="outputs")
-    from .io.report import write_report  # report.html and labs/LAB.html (figures drawn once, pages composed)
+    from roundscore.io.report import (write_report)  # report.html and labs/LAB.html (figures drawn once, pages composed)
     files += write_report(ev, folder, jobs=jobs, progress=progress)
     return files
 
@@ -183,8 +183,8 @@ def run_round(round_path: str | Path, out: str | Path, *, archive: str | Path | 
     ev = load_and_evaluate(rnd, jobs=jobs, progress=progress)
     history = None
     if store is not None:
-        from . import archive as history_archive
-        from .errors import ArchiveConflict, ArchiveError
+        from roundscore import archive as history_archive
+        from roundscore.errors import ArchiveConflict, ArchiveError
 
         history_archive.check_round_keys(ev.round)
         history = history_archive.round_history(

@@ -18,14 +18,14 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Literal
 
-from .cells import DECIMAL_MARKS
-from .errors import Problem, RoundFileError, shown_value
-from .io.safety import DEFAULT_LIMITS, LIMIT_MAX, ReadLimits
-from .ranges import (MAX_MAGNITUDE, MIN_MAGNITUDE, SIGMA_MIN_RELATIVE, confidence_problem, magnitude_problem,
-                     sigma_relative_problem)
-from .units import UnitError, mass_fraction, unit_text_problem
-from .labcodes import read_lab_code
-from .text import TEXT_LIMITS, quote, too_long
+from roundscore.cells import DECIMAL_MARKS
+from roundscore.errors import Problem, RoundFileError, shown_value
+from roundscore.io.safety import DEFAULT_LIMITS, LIMIT_MAX, ReadLimits
+from roundscore.ranges import (MAX_MAGNITUDE, MIN_MAGNITUDE, SIGMA_MIN_RELATIVE, confidence_problem,
+                               magnitude_problem, sigma_relative_problem)
+from roundscore.units import UnitError, mass_fraction, unit_text_problem
+from roundscore.labcodes import read_lab_code
+from roundscore.text import TEXT_LIMITS, quote, too_long
 
 __all__ = [
     "Round",

@@ -16,14 +16,14 @@ from typing import Iterable
 import numpy as np
 import pandas as pd
 
-from .cells import HINT_DECLARE, HINT_NUMBER, CellError, parse_cell
-from .errors import InputError, Problem, cell_ref, is_text_file, place, sheet_cell, shown_value
-from .io.xlsx import SheetRows
-from .ranges import MAX_MAGNITUDE, MIN_MAGNITUDE, magnitude_problem
-from .labcodes import clash_problems, read_lab_code
-from .round import Round
-from .text import shown_list, too_long
-from .units import UnitError, factor
+from roundscore.cells import HINT_DECLARE, HINT_NUMBER, CellError, parse_cell
+from roundscore.errors import InputError, Problem, cell_ref, is_text_file, place, sheet_cell, shown_value
+from roundscore.io.xlsx import SheetRows
+from roundscore.ranges import MAX_MAGNITUDE, MIN_MAGNITUDE, magnitude_problem
+from roundscore.labcodes import clash_problems, read_lab_code
+from roundscore.round import Round
+from roundscore.text import shown_list, too_long
+from roundscore.units import UnitError, factor
 
 __all__ = ["ResultTable", "build_table", "validate_records", "table_frame", "COLUMNS", "Record",
            "records_from_long", "cell_label", "lab_places"]

@@ -224,7 +224,7 @@ def write_history_outputs(frame: pd.DataFrame, out: Path, *, lab: str,
     complete (:func:`roundscore.io.outfolder.atomic_folder`); ``protect``
     (the archive) may not lie inside it.
     """
-    from ..io.outfolder import atomic_folder
+    from roundscore.io.outfolder import atomic_folder
 
     names = ["history.xlsx", "history.png", "history.svg"]
     with atomic_folder(out, kind="history", protect=protect) as temp:

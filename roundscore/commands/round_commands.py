@@ -6,10 +6,10 @@ import argparse
 import sys
 from pathlib import Path
 
-from ..evaluate import RoundEvaluation
-from ..look import CAUTION, SIGNAL_SYMBOL
-from ..progress import terminal_bar
-from ..text import terminal_text
+from roundscore.evaluate import RoundEvaluation
+from roundscore.look import CAUTION, SIGNAL_SYMBOL
+from roundscore.progress import terminal_bar
+from roundscore.text import terminal_text
 
 __all__ = ["register", "summary_text"]
 
@@ -108,7 +108,7 @@ def _report(ev, outputs, *, quiet=False, strict=False, stored=()) -> int:
 
 
 def run_score(args: argparse.Namespace) -> int:
-    from ..pipeline import run_round
+    from roundscore.pipeline import run_round
 
     rp = Path(args.round)
     folder = rp if rp.is_dir() else rp.parent
@@ -125,8 +125,8 @@ def run_score(args: argparse.Namespace) -> int:
 
 def run_demo(args: argparse.Namespace) -> int:
     """The demo round is written to OUT/round and its outputs to OUT, all in one atomic step."""
-    from ..demo import make_demo_round
-    from ..pipeline import Outputs, atomic_folder, load_and_evaluate, write_outputs
+    from roundscore.demo import make_demo_round
+    from roundscore.pipeline import Outputs, atomic_folder, load_and_evaluate, write_outputs
 
     out = Path(args.out)
     bar = terminal_bar()
@@ -143,9 +143,9 @@ def run_demo(args: argparse.Namespace) -> int:
 
 
 def run_forms(args: argparse.Namespace) -> int:
-    from ..io.forms import write_forms
-    from ..io.readers import read_participants
-    from ..round import load_round
+    from roundscore.io.forms import write_forms
+    from roundscore.io.readers import read_participants
+    from roundscore.round import load_round
 
     rnd = load_round(args.round)
     if args.labs:
@@ -154,7 +154,7 @@ def run_forms(args: argparse.Namespace) -> int:
     else:
         parts = read_participants(rnd)
         if not parts:
-            from ..errors import InputError
+            from roundscore.errors import InputError
 
             raise InputError.single("no participants: name a participants file in round.toml "
                                     "([round] participants = \"participants.csv\") or give --labs",
@@ -180,8 +180,8 @@ def run_forms(args: argparse.Namespace) -> int:
 
 def _check_forms_folder(rnd, out: Path) -> None:
     """Blank forms never go where the round reads its results, nor over a file."""
-    from ..io.outfolder import OutputFolderError
-    from ..pipeline import round_inputs
+    from roundscore.io.outfolder import OutputFolderError
+    from roundscore.pipeline import round_inputs
 
     protect, folders = round_inputs(rnd, for_forms=True)
     real = out.resolve()
@@ -200,7 +200,7 @@ def _check_forms_folder(rnd, out: Path) -> None:
 
 
 def run_check(args: argparse.Namespace) -> int:
-    from ..pipeline import load_and_evaluate
+    from roundscore.pipeline import load_and_evaluate
 
     ev = load_and_evaluate(args.round)
     print(summary_text(ev))

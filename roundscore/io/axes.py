@@ -11,7 +11,7 @@ import math
 
 import numpy as np
 
-from ..ranges import SIGMA_MIN_RELATIVE
+from roundscore.ranges import SIGMA_MIN_RELATIVE
 
 __all__ = ["drawable", "span", "data_span", "AXIS_MAX"]
 

@@ -35,9 +35,9 @@ import numpy as np
 import pandas as pd
 from scipy import stats as sps
 
-from ..look import PALETTE, SIGNAL_COLOUR, SIGNAL_MARKER, SIGNAL_WORD
-from .axes import data_span, drawable, span
-from ..stats.scores import EN_ACTION, Z_ACTION, Z_WARNING
+from roundscore.look import PALETTE, SIGNAL_COLOUR, SIGNAL_MARKER, SIGNAL_WORD
+from roundscore.io.axes import data_span, drawable, span
+from roundscore.stats.scores import EN_ACTION, Z_ACTION, Z_WARNING
 
 __all__ = ["SvgFigure", "MarkKind", "z_bar_figure", "density_figure", "youden_figure", "mandel_figure",
            "homogeneity_figure", "stability_figure", "RoundFigures", "round_figures", "SCORE_FIELD",
@@ -697,7 +697,7 @@ def round_figures(ev, *, jobs: int | None = 1, progress=None) -> RoundFigures:
     """
     from matplotlib.backends import backend_svg  # noqa: F401  imported before the workers fork (~0.5 s each)
 
-    from ..parallel import run_batches
+    from roundscore.parallel import run_batches
 
     per_measurand = figures_per_measurand(len(ev.measurands))
     tasks: list[tuple[str, ...]] = [("measurand", n) for n in ev.measurands] if per_measurand else []
@@ -726,7 +726,7 @@ def round_figures(ev, *, jobs: int | None = 1, progress=None) -> RoundFigures:
 
 
 def _draw_batch(tasks: Sequence[tuple[str, ...]]) -> list[dict]:
-    from ..parallel import shared
+    from roundscore.parallel import shared
 
     ev = shared()
     return [_draw(ev, task) for task in tasks]
@@ -756,7 +756,7 @@ def _draw(ev, task: tuple[str, ...]) -> dict:
     hom = getattr(ic, "homogeneity", None)
     table = getattr(ic, "homogeneity_table", None)
     if hom is not None and table is not None:
-        from .figures_precision import homogeneity_figure
+        from roundscore.io.figures_precision import homogeneity_figure
 
         out["items"] = homogeneity_figure(list(table.items), np.asarray(table.values, float),
                                           item_labels=list(hom.item_labels), item_means=list(hom.item_means),
@@ -768,7 +768,7 @@ def _draw(ev, task: tuple[str, ...]) -> dict:
     names = getattr(ic, "stability_sets", None)
     if stab is not None and table is not None and table.sets is not None:
         names = names or (table.set_names[0], table.set_names[1])
-        from .figures_precision import stability_figure
+        from roundscore.io.figures_precision import stability_figure
 
         out["stability"] = stability_figure(
             list(table.sets), np.asarray(table.values, float), items=list(table.items), set_labels=names,
@@ -797,7 +797,7 @@ def _youden(ev, a: str, b: str) -> SvgFigure:
 
 
 def _mandel(ev, name: str) -> tuple[SvgFigure, ...]:
-    from .figures_precision import mandel_figure, mandel_limits
+    from roundscore.io.figures_precision import mandel_figure, mandel_limits
 
     frame = ev.extras["mandel"]
     g = ev.measurand_rows("mandel", name)
@@ -834,7 +834,7 @@ _ELSEWHERE = ("homogeneity_figure", "mandel_figure", "mandel_limits", "stability
 
 def __getattr__(name: str):
     if name in _ELSEWHERE:
-        from . import figures_precision
+        from roundscore.io import figures_precision
 
         return getattr(figures_precision, name)
     raise AttributeError(f"module {__name__!r} has no attribute {name!r}")

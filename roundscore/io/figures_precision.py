@@ -11,10 +11,10 @@ from typing import Literal, Sequence
 
 import numpy as np
 
-from ..look import PALETTE, SIGNAL_MARKER
-from ..stats.precision import mandel_h_critical, mandel_k_critical
-from .figures import (_WIDE, MAX_BARS, PROFILE_POINTS, SvgFigure, _codes, _finish, _legend, _new, _png,
-                      _step_columns)
+from roundscore.look import PALETTE, SIGNAL_MARKER
+from roundscore.stats.precision import mandel_h_critical, mandel_k_critical
+from roundscore.io.figures import (_WIDE, MAX_BARS, PROFILE_POINTS, SvgFigure, _codes, _finish, _legend, _new,
+                                   _png, _step_columns)
 
 __all__ = ["mandel_limits", "mandel_figure", "homogeneity_figure", "stability_figure", "stability_verdict"]
 

@@ -34,10 +34,10 @@ from typing import Iterable
 
 import xlsxwriter
 
-from ..cells import DECIMAL_MARKS
-from ..errors import Problem, sheet_cell
-from ..round import MAX_FORM_REPLICATES, Round
-from .xlsx import SheetRows
+from roundscore.cells import DECIMAL_MARKS
+from roundscore.errors import Problem, sheet_cell
+from roundscore.round import MAX_FORM_REPLICATES, Round
+from roundscore.io.xlsx import SheetRows
 
 __all__ = ["write_forms", "FormsWritten", "write_form", "records_from_form", "form_decimal", "FormDecimal",
            "form_file_name", "lab_cell", "FORM_FORMAT", "RESULTS_SHEET", "INFO_SHEET", "DECIMAL_CELL"]
@@ -170,7 +170,7 @@ class FormsWritten:
 
 def form_file_name(round_id: str, lab: str) -> str:
     """A blank form's file name, ``ROUND-LAB.xlsx`` (both parts by :func:`roundscore.filenames.file_stem`)."""
-    from ..filenames import file_stem
+    from roundscore.filenames import file_stem
 
     return f"{file_stem(round_id)}-{file_stem(lab)}.xlsx"
 
@@ -186,8 +186,8 @@ def write_forms(rnd: Round, labs: Iterable[tuple[str, str | None]], folder: Path
     (the first unused N) before the new form takes its name. Each form is
     written to a temporary name first and renamed when complete.
     """
-    from ..errors import InputError
-    from ..labcodes import clash_problems, read_lab_code
+    from roundscore.errors import InputError
+    from roundscore.labcodes import clash_problems, read_lab_code
 
     labs = list(labs)
     problems: list[Problem] = []
@@ -268,7 +268,7 @@ def _form_lab(kv: dict, info: SheetRows, results: SheetRows) -> tuple[str, list[
     form whose two codes differ was edited by hand: which lab's results it
     holds cannot be told, so it is refused, naming both cells.
     """
-    from ..labcodes import read_lab_code
+    from roundscore.labcodes import read_lab_code
 
     place = {**lab_cell(info), "file": results.file}
     raw = kv.get("lab")
@@ -280,7 +280,7 @@ def _form_lab(kv: dict, info: SheetRows, results: SheetRows) -> tuple[str, list[
     if len(shown) >= 2 and shown[0] is not None and str(shown[0]).strip() == _SHOWN_LAB_LABEL:
         visible, _ = read_lab_code(shown[1])
         if visible != lab:
-            from ..text import quote
+            from roundscore.text import quote
 
             return "", [Problem(
                 message=(f"the lab code on the hidden sheet {INFO_SHEET!r} ({quote(lab)}) differs from the one "
@@ -364,7 +364,7 @@ def records_from_form(rnd: Round, results: SheetRows, info: SheetRows):
     (``Results!D11``). Each record carries the decimal mark the form
     declares (:func:`form_decimal`), or None for the round's.
     """
-    from ..table import Record
+    from roundscore.table import Record
 
     problems: list[Problem] = []
     kv, where = _info(info)
@@ -378,7 +378,7 @@ def records_from_form(rnd: Round, results: SheetRows, info: SheetRows):
                             file=file)]
     round_id = str(kv.get("round", "")).strip()
     if round_id != rnd.id:
-        from ..text import quote
+        from roundscore.text import quote
 
         problems.append(Problem(message=f"this form is for round {quote(round_id)}, not {quote(rnd.id)}",
                                 file=file, sheet=INFO_SHEET, cell=info_cell("round"),

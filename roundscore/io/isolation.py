@@ -21,9 +21,9 @@ from multiprocessing.connection import wait as _wait
 from pathlib import Path
 from typing import Callable, Sequence
 
-from ..errors import InputError, Problem
-from ..processes import context, worker_started
-from .safety import DEFAULT_LIMITS, MiB, ReadLimits
+from roundscore.errors import InputError, Problem
+from roundscore.processes import context, worker_started
+from roundscore.io.safety import DEFAULT_LIMITS, MiB, ReadLimits
 
 __all__ = ["ReadFailure", "FileRows", "read_many", "resolve_read_jobs", "READER_HOOK_ENV", "BATCH_FILES"]
 
@@ -83,7 +83,7 @@ Reader = Callable[[str, Sequence[str | None], ReadLimits], FileRows]
 
 
 def _default_reader(path: str, sheets: Sequence[str | None], limits: ReadLimits) -> FileRows:
-    from .xlsx import read_file_sheets
+    from roundscore.io.xlsx import read_file_sheets
 
     return FileRows(file=path, sheets=tuple(read_file_sheets(path, sheets, limits=limits)))
 

@@ -42,7 +42,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Iterable, Iterator, Literal
 
-from ..errors import RoundscoreError
+from roundscore.errors import RoundscoreError
 
 __all__ = ["MARKER_NAME", "MARKER_FORMAT", "OutputFolderError", "Marker", "read_marker", "check_target",
            "atomic_folder", "recover"]

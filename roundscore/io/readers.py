@@ -6,13 +6,14 @@ import functools
 from dataclasses import dataclass, replace
 from pathlib import Path
 
-from ..errors import InputError, Problem, is_text_file
-from ..round import Round
-from ..labcodes import LabCodeReader, clash_problems, lab_key
-from ..table import ResultTable, build_table, records_from_long, summarise_ambiguous, table_frame, validate_records
-from ..text import quote, too_long
-from .forms import INFO_SHEET, RESULTS_SHEET, form_decimal, lab_cell, records_from_form
-from .xlsx import SheetRows, read_rows
+from roundscore.errors import InputError, Problem, is_text_file
+from roundscore.round import Round
+from roundscore.labcodes import LabCodeReader, clash_problems, lab_key
+from roundscore.table import (ResultTable, build_table, records_from_long, summarise_ambiguous, table_frame,
+                              validate_records)
+from roundscore.text import quote, too_long
+from roundscore.io.forms import INFO_SHEET, RESULTS_SHEET, form_decimal, lab_cell, records_from_form
+from roundscore.io.xlsx import SheetRows, read_rows
 
 __all__ = ["read_results", "read_participants", "Participant", "read_item_table", "check_labs"]
 
@@ -125,7 +126,7 @@ def _read_forms(rnd: Round, files: list[Path], *, jobs: int | None, progress) ->
     within one file, and the rows are put in the table's order. The result
     is the same for any ``jobs``.
     """
-    from .safety import read_many
+    from roundscore.io.safety import read_many
 
     report = None
     if progress:
@@ -202,7 +203,7 @@ class _FormRows:
 
 def _read_sheets(paths: list[str], limits) -> list:
     """Both sheets of each form, each file read by the isolated reader (io.safety.read_many)."""
-    from .safety import read_many
+    from roundscore.io.safety import read_many
 
     return [r.sheets if hasattr(r, "sheets") else r for r in
             read_many(paths, [RESULTS_SHEET, INFO_SHEET], jobs=1, limits=limits)]
@@ -226,14 +227,14 @@ def _with_file(problem: Problem, shown: str) -> Problem:
 
 def _isolated_read(path: Path, sheet: str | None, limits):
     """One untrusted file read in a bounded worker process (io.safety.read_many)."""
-    from .safety import read_many
+    from roundscore.io.safety import read_many
 
     return read_many([path], [sheet], jobs=1, limits=limits)[0]
 
 
 def _sheet_names(path: Path) -> list[str]:
     # The package check names the sheets without handing the file to a compiled reader.
-    from .safety import inspect_workbook
+    from roundscore.io.safety import inspect_workbook
 
     try:
         return list(inspect_workbook(path).sheets)
@@ -379,7 +380,7 @@ def _read_table(rnd: Round, path: Path, shown: str) -> SheetRows:
     (a crash or hang of the compiled reader costs this file only, reported
     by name); a text file is read here, by Python's csv module.
     """
-    from .xlsx import TEXT_SUFFIXES
+    from roundscore.io.xlsx import TEXT_SUFFIXES
 
     if Path(path).suffix.lower() in TEXT_SUFFIXES:
         return read_rows(path, limits=rnd.limits)

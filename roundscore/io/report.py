@@ -39,10 +39,10 @@ from typing import Any, Callable, Iterable, Sequence
 import numpy as np
 import pandas as pd
 
-from ..look import CAUTION, SIGNAL_COLOUR, SIGNAL_SYMBOL, SIGNAL_WORD
-from .figures import (FIGURES_MAX_MEASURANDS, SCORE_FIELD, RoundFigures, SvgFigure, figures_per_measurand,
-                      round_figures)
-from .strips import ScoreStrip, score_strip, strip_legend
+from roundscore.look import CAUTION, SIGNAL_COLOUR, SIGNAL_SYMBOL, SIGNAL_WORD
+from roundscore.io.figures import (FIGURES_MAX_MEASURANDS, SCORE_FIELD, RoundFigures, SvgFigure,
+                                   figures_per_measurand, round_figures)
+from roundscore.io.strips import ScoreStrip, score_strip, strip_legend
 
 __all__ = ["write_report", "report_html", "lab_page_html", "ReportParts", "report_parts", "lab_file_name",
            "REPORT_NAME", "FULL_FIGURES_MAX_LABS", "FULL_FIGURES_MAX_MEASURANDS", "full_lab_figures"]
@@ -217,7 +217,7 @@ def _legend(words: str) -> str:
 
 def lab_file_name(lab: str) -> str:
     """The file name of a lab's page: the same stem as its workbook's (:func:`roundscore.filenames.file_stem`)."""
-    from ..filenames import lab_file_name as named
+    from roundscore.filenames import lab_file_name as named
 
     return named(lab, ".html")
 
@@ -586,7 +586,7 @@ def write_report(ev, folder: Path, *, labs: Sequence[str] | None = None, parts: 
     round_report : bool
         Also write ``report.html`` (default True).
     """
-    from ..parallel import run_batches
+    from roundscore.parallel import run_batches
 
     folder = Path(folder)
     if parts is None:
@@ -609,7 +609,7 @@ LAB_PAGES_PER_TASK = 64
 
 
 def _lab_batch(labs: Sequence[str]) -> list[Path]:
-    from ..parallel import shared
+    from roundscore.parallel import shared
 
     ev, parts, folder = shared()
     scores, mandel = lab_records(ev, "scores", labs), lab_records(ev, "mandel", labs)

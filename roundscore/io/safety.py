@@ -44,7 +44,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Callable, Mapping, Sequence
 
-from ..errors import InputError
+from roundscore.errors import InputError
 
 __all__ = [
     "ReadLimits", "WorkbookCheck", "inspect_workbook", "ReadFailure", "FileRows", "read_many",
@@ -646,4 +646,4 @@ def _assemble(file: str, parts: dict[str, bytes], scans: dict[str, _SheetScan], 
 
 
 # Isolation lives in its own module; its public names are part of this one's.
-from .isolation import FileRows, ReadFailure, read_many  # noqa: E402
+from roundscore.io.isolation import FileRows, ReadFailure, read_many  # noqa: E402

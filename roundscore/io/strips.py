@@ -29,8 +29,8 @@ from typing import Sequence
 
 import numpy as np
 
-from ..look import PALETTE, SIGNAL_COLOUR, SIGNAL_SYMBOL, SIGNAL_WORD
-from ..stats.scores import EN_ACTION, Z_ACTION, Z_WARNING
+from roundscore.look import PALETTE, SIGNAL_COLOUR, SIGNAL_SYMBOL, SIGNAL_WORD
+from roundscore.stats.scores import EN_ACTION, Z_ACTION, Z_WARNING
 
 __all__ = ["ScoreStrip", "score_strip", "STRIP_RANGE", "STRIP_BIN", "STRIP_UNIT_BLOCKS", "STRIP_WIDTH",
            "STRIP_HEIGHT", "score_label", "strip_legend"]

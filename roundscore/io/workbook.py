@@ -32,9 +32,9 @@ import numpy as np
 import pandas as pd
 import xlsxwriter
 
-from ..archive_checks import DIGEST_KEY, ROW_DIGEST_COLUMN, row_digest, sheet_digest, sheet_value
-from ..evaluate import SCORE_COLUMNS, STATISTICS_COLUMNS, RoundEvaluation
-from ..look import CAUTION, SIGNAL_COLOUR, SIGNAL_WORD, signal_label
+from roundscore.archive_checks import DIGEST_KEY, ROW_DIGEST_COLUMN, row_digest, sheet_digest, sheet_value
+from roundscore.evaluate import SCORE_COLUMNS, STATISTICS_COLUMNS, RoundEvaluation
+from roundscore.look import CAUTION, SIGNAL_COLOUR, SIGNAL_WORD, signal_label
 
 __all__ = ["write_summary", "write_lab_workbook", "LAB_FORMAT", "FIXED_TIME", "lab_payload"]
 
@@ -380,7 +380,7 @@ def _score_chart(wb, sheet, fm: _Formats, top: int, labs: list, scores: list[flo
     colour alone), and the warning / action limits (ISO 13528 §9.4: ±2, ±3;
     En: ±1) as dashed and solid lines.
     """
-    from ..stats.scores import EN_ACTION, Z_ACTION, Z_WARNING
+    from roundscore.stats.scores import EN_ACTION, Z_ACTION, Z_WARNING
 
     limits = [(EN_ACTION, "action", "solid")] if score == "en" else \
         [(Z_WARNING, "warning", "dash"), (Z_ACTION, "action", "solid")]
@@ -622,8 +622,8 @@ def write_lab_workbook(payload: dict[str, Any], path: Path) -> None:
         # History: the lab's earlier rounds of this scheme (archive rows, roundscore.archive
         # HISTORY_COLUMNS), then a native line chart of the score per measurand over those
         # rounds and this one, with the limits of ISO 13528 (z-like 2 and 3; En 1).
-        from ..history import ACTION_LIMIT, EN_ACTION_LIMIT, WARNING_LIMIT
-        from ..look import PALETTE
+        from roundscore.history import ACTION_LIMIT, EN_ACTION_LIMIT, WARNING_LIMIT
+        from roundscore.look import PALETTE
 
         hs = wb.add_worksheet("History")
         hs.write_string(0, 0, f"Laboratory {lab}: your results in earlier rounds of scheme "

@@ -22,8 +22,8 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Sequence
 
-from ..errors import InputError, Problem
-from .safety import DEFAULT_LIMITS, ReadLimits, inspect_workbook
+from roundscore.errors import InputError, Problem
+from roundscore.io.safety import DEFAULT_LIMITS, ReadLimits, inspect_workbook
 
 __all__ = ["SheetRows", "read_rows", "read_csv_rows", "read_workbook_rows", "read_file_sheets",
            "TEXT_SUFFIXES", "WORKBOOK_SUFFIXES"]

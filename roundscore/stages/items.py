@@ -59,16 +59,16 @@ from typing import Any, Literal, get_args
 
 import numpy as np
 
-from ..cells import CellError, parse_cell
-from ..errors import InputError, Problem, StatisticsError, cell_ref, is_text_file
-from ..io.readers import read_item_table
-from ..io.xlsx import SheetRows
-from ..ranges import magnitude_problem
-from ..round import MeasurandSettings, Round
-from ..stats import items as st
-from ..table import cell_label, summarise_ambiguous
-from ..text import shown_list, too_long
-from ..units import UnitError, factor
+from roundscore.cells import CellError, parse_cell
+from roundscore.errors import InputError, Problem, StatisticsError, cell_ref, is_text_file
+from roundscore.io.readers import read_item_table
+from roundscore.io.xlsx import SheetRows
+from roundscore.ranges import magnitude_problem
+from roundscore.round import MeasurandSettings, Round
+from roundscore.stats import items as st
+from roundscore.table import cell_label, summarise_ambiguous
+from roundscore.text import shown_list, too_long
+from roundscore.units import UnitError, factor
 
 __all__ = [
     "ITEMS_COLUMNS",

@@ -68,15 +68,15 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 import pandas as pd
 
-from ..errors import RoundFileError, StatisticsError
-from ..round import Round
-from ..stats import compare as cmp
-from ..stats import outliers as ol
-from ..stats import precision as pr
-from ..table import ResultTable
+from roundscore.errors import RoundFileError, StatisticsError
+from roundscore.round import Round
+from roundscore.stats import compare as cmp
+from roundscore.stats import outliers as ol
+from roundscore.stats import precision as pr
+from roundscore.table import ResultTable
 
 if TYPE_CHECKING:
-    from ..evaluate import MeasurandResult
+    from roundscore.evaluate import MeasurandResult
 
 __all__ = [
     "PRECISION_COLUMNS", "SCREENS_COLUMNS", "MANDEL_COLUMNS", "METHODS_COLUMNS", "DOUBLE_GRUBBS_MAX_LABS",

@@ -41,20 +41,9 @@ from scipy import stats as sps
 
 from roundscore.errors import StatisticsError
 from roundscore.stats.exact import check_choice
-from roundscore.stats.grubbs_double import (
-    GRUBBS_DOUBLE_SEED,
-    OUTLIER_LEVEL,
-    STRAGGLER_LEVEL,
-    GrubbsDoubleTable,
-    grubbs_double_critical,
-    grubbs_double_table,
-)
-from roundscore.stats.precision import (
-    CellStatistics,
-    PrecisionResult,
-    cells_from,
-    precision,
-)
+from roundscore.stats.grubbs_double import (GRUBBS_DOUBLE_SEED, OUTLIER_LEVEL, STRAGGLER_LEVEL, GrubbsDoubleTable,
+                                            grubbs_double_critical, grubbs_double_table)
+from roundscore.stats.precision import CellStatistics, PrecisionResult, cells_from, precision
 
 __all__ = [
     "GRUBBS_DOUBLE_SEED",

@@ -20,7 +20,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..errors import StatisticsError
+from roundscore.errors import StatisticsError
 
 __all__ = [
     "RobustEstimate",
