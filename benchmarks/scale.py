@@ -142,7 +142,7 @@ def _floor_read_batch(paths: list[str]) -> list[int]:
 
 
 def part_floor_read(a: argparse.Namespace) -> dict:
-    from roundscore.parallel import run_batches
+    from roundscore.support.parallel import run_batches
 
     paths = sorted(str(p) for p in (Path(a.round) / "forms").glob("*.xlsx"))
     t = time.perf_counter()
@@ -216,7 +216,7 @@ def _floor_write_batch(indices: list[int]) -> list[int]:
 
     import xlsxwriter
 
-    from roundscore.parallel import shared
+    from roundscore.support.parallel import shared
 
     content, out_dir = shared()
     done = []
@@ -256,7 +256,7 @@ def _floor_write_batch(indices: list[int]) -> list[int]:
 def part_floor_write(a: argparse.Namespace) -> dict:
     import csv
 
-    from roundscore.parallel import run_batches
+    from roundscore.support.parallel import run_batches
 
     src = Path(a.out)
     content = []
@@ -486,7 +486,7 @@ def main(argv: list[str] | None = None) -> int:
         ns = argparse.Namespace(**json.loads(a.args))
         print(json.dumps(PARTS[a.part](ns)))
         return 0
-    from roundscore.parallel import resolve_jobs
+    from roundscore.support.parallel import resolve_jobs
 
     jobs = resolve_jobs(a.jobs)
     growth = sorted({int(s) for s in a.growth.split(",") if s.strip()} - {a.labs})

@@ -38,7 +38,7 @@ from typing import Sequence
 
 import numpy as np
 
-from roundscore import parallel
+from roundscore.support import parallel
 from roundscore.io.forms import FIRST_ROW, RESULTS_SHEET, write_form
 from roundscore.io.outfolder import atomic_folder
 

@@ -51,7 +51,7 @@ def main(argv: list[str] | None = None) -> int:
     if not getattr(args, "func", None):
         parser.print_help()
         return 2
-    from roundscore.processes import Terminated, signals_as_errors
+    from roundscore.support.processes import Terminated, signals_as_errors
 
     try:
         with signals_as_errors(), warnings.catch_warnings():

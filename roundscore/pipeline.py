@@ -14,12 +14,12 @@ from typing import Callable
 
 from roundscore.errors import RoundscoreError
 from roundscore.evaluate import AUDIT_COLUMNS, SCORE_COLUMNS, STATISTICS_COLUMNS, RoundEvaluation, evaluate
-from roundscore.filenames import lab_file_name
+from roundscore.support.filenames import lab_file_name
 from roundscore.io.csvout import write_csv
 from roundscore.io.outfolder import atomic_folder, check_target
 from roundscore.io.readers import check_labs, read_participants, read_results
 from roundscore.io.workbook import lab_payload, write_lab_workbook, write_summary
-from roundscore.parallel import run_batches, shared
+from roundscore.support.parallel import run_batches, shared
 from roundscore.round import Round, load_round, with_warnings
 
 __all__ = ["run_round", "write_outputs", "atomic_folder", "Outputs", "load_and_evaluate", "round_inputs"]

@@ -5,7 +5,7 @@ Every lab gets its own score sheet and page (distinct files, each naming its own
 drawn for the longest allowed code, the inputs are unchanged, and no control character from a
 participant's text reaches the terminal raw.
 
-Source of expected values: the tool's own documented rule (roundscore.labcodes, roundscore.filenames);
+Source of expected values: the tool's own documented rule (roundscore.labcodes, roundscore.support.filenames);
 no outside reference values here.
 """
 
@@ -22,7 +22,7 @@ import openpyxl
 import pandas as pd
 import pytest
 
-from roundscore.filenames import file_stem
+from roundscore.support.filenames import file_stem
 from roundscore.labcodes import MAX_LAB_CODE
 
 ROOT = Path(__file__).resolve().parents[1]

@@ -318,7 +318,7 @@ def test_sigterm_cleans_up_and_exits_non_zero(round_dir, tmp_path, capsys):
 _ORPHAN_CHILD = """
 import os, sys, time
 from pathlib import Path
-from roundscore.parallel import run_batches
+from roundscore.support.parallel import run_batches
 folder = Path(sys.argv[1])
 def slow(batch):
     (folder / str(os.getpid())).write_text("")

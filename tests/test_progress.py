@@ -7,7 +7,7 @@ import io
 
 import pytest
 
-from roundscore.progress import terminal_bar
+from roundscore.support.progress import terminal_bar
 
 
 class _Tty(io.StringIO):

@@ -8,7 +8,7 @@ from pathlib import Path
 
 from roundscore.evaluate import RoundEvaluation
 from roundscore.look import CAUTION, SIGNAL_SYMBOL
-from roundscore.progress import terminal_bar
+from roundscore.support.progress import terminal_bar
 from roundscore.text import terminal_text
 
 __all__ = ["register", "summary_text"]

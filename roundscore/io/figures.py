@@ -697,7 +697,7 @@ def round_figures(ev, *, jobs: int | None = 1, progress=None) -> RoundFigures:
     """
     from matplotlib.backends import backend_svg  # noqa: F401  imported before the workers fork (~0.5 s each)
 
-    from roundscore.parallel import run_batches
+    from roundscore.support.parallel import run_batches
 
     per_measurand = figures_per_measurand(len(ev.measurands))
     tasks: list[tuple[str, ...]] = [("measurand", n) for n in ev.measurands] if per_measurand else []
@@ -726,7 +726,7 @@ def round_figures(ev, *, jobs: int | None = 1, progress=None) -> RoundFigures:
 
 
 def _draw_batch(tasks: Sequence[tuple[str, ...]]) -> list[dict]:
-    from roundscore.parallel import shared
+    from roundscore.support.parallel import shared
 
     ev = shared()
     return [_draw(ev, task) for task in tasks]

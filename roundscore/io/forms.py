@@ -169,8 +169,8 @@ class FormsWritten:
 
 
 def form_file_name(round_id: str, lab: str) -> str:
-    """A blank form's file name, ``ROUND-LAB.xlsx`` (both parts by :func:`roundscore.filenames.file_stem`)."""
-    from roundscore.filenames import file_stem
+    """A blank form's file name, ``ROUND-LAB.xlsx`` (both parts by :func:`roundscore.support.filenames.file_stem`)."""
+    from roundscore.support.filenames import file_stem
 
     return f"{file_stem(round_id)}-{file_stem(lab)}.xlsx"
 

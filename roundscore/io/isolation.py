@@ -22,7 +22,7 @@ from pathlib import Path
 from typing import Callable, Sequence
 
 from roundscore.errors import InputError, Problem
-from roundscore.processes import context, worker_started
+from roundscore.support.processes import context, worker_started
 from roundscore.io.safety import DEFAULT_LIMITS, MiB, ReadLimits
 
 __all__ = ["ReadFailure", "FileRows", "read_many", "resolve_read_jobs", "READER_HOOK_ENV", "BATCH_FILES"]

@@ -216,8 +216,9 @@ def _legend(words: str) -> str:
 
 
 def lab_file_name(lab: str) -> str:
-    """The file name of a lab's page: the same stem as its workbook's (:func:`roundscore.filenames.file_stem`)."""
-    from roundscore.filenames import lab_file_name as named
+    """The file name of a lab's page: the same stem as its workbook's
+    (:func:`roundscore.support.filenames.file_stem`)."""
+    from roundscore.support.filenames import lab_file_name as named
 
     return named(lab, ".html")
 
@@ -586,7 +587,7 @@ def write_report(ev, folder: Path, *, labs: Sequence[str] | None = None, parts: 
     round_report : bool
         Also write ``report.html`` (default True).
     """
-    from roundscore.parallel import run_batches
+    from roundscore.support.parallel import run_batches
 
     folder = Path(folder)
     if parts is None:
@@ -609,7 +610,7 @@ LAB_PAGES_PER_TASK = 64
 
 
 def _lab_batch(labs: Sequence[str]) -> list[Path]:
-    from roundscore.parallel import shared
+    from roundscore.support.parallel import shared
 
     ev, parts, folder = shared()
     scores, mandel = lab_records(ev, "scores", labs), lab_records(ev, "mandel", labs)

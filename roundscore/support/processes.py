@@ -1,6 +1,6 @@
 """Worker processes and signals: one start method, workers that die with their parent, SIGTERM as an error.
 
-Every process roundscore starts (the pools of :mod:`roundscore.parallel` and
+Every process roundscore starts (the pools of :mod:`roundscore.support.parallel` and
 the isolated readers of :mod:`roundscore.io.isolation`) calls
 :func:`worker_started` first. On Linux it asks the kernel to end the worker
 when its parent dies (``PR_SET_PDEATHSIG``), so a ``kill -9`` of the command

@@ -29,7 +29,7 @@ from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 from dataclasses import dataclass
 from typing import Any, Callable, Sequence, TypeVar
 
-from roundscore.processes import context, worker_started
+from roundscore.support.processes import context, worker_started
 
 __all__ = ["resolve_jobs", "run_batches", "shared", "batches", "Progress", "terminal_progress",
            "BATCHES_PER_JOB"]
@@ -133,7 +133,7 @@ def _picklable_args(args: tuple) -> tuple:
 
 
 def _start_worker(parent_pid: int, context: Any, set_context: bool) -> None:
-    """Pool initializer: end with the parent (see :mod:`roundscore.processes`); take ``shared`` under spawn."""
+    """Pool initializer: end with the parent (see :mod:`roundscore.support.processes`); take ``shared`` under spawn."""
     worker_started(parent_pid)
     if set_context:
         _set_shared(context)
