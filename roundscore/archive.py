@@ -77,7 +77,7 @@ __all__ = ["ARCHIVE_ENV", "APPLICATION_ID", "SCORE_COLUMNS", "HISTORY_COLUMNS", 
            "archived_labs", "round_history", "store_evaluation", "check_round_keys"]
 
 #: Significant digits of score floats in the content hash: the precision of the pipeline's
-#: ``scores.csv`` (roundscore.io.csvout.FLOAT_FORMAT, ``{:.12g}``), the least precise file a
+#: ``scores.csv`` (roundscore.outputs.csvout.FLOAT_FORMAT, ``{:.12g}``), the least precise file a
 #: lab receives; its workbook keeps about 15 (xlsxwriter writes 16, Excel computes with 15:
 #: Microsoft, "Floating-point arithmetic may give inaccurate results in Excel").
 HASH_DIGITS = 12
@@ -203,7 +203,7 @@ def _digest(round_date: str, score_rows: Iterable[tuple], *, title: str | None =
     """Canonical content hash: sorted rows, floats as ``repr`` (via JSON), missing as null.
 
     Score floats are first rounded to :data:`HASH_DIGITS` significant digits:
-    ``scores.csv`` keeps 12 (roundscore.io.csvout) and a workbook about 15
+    ``scores.csv`` keeps 12 (roundscore.outputs.csvout) and a workbook about 15
     (xlsxwriter writes 16, Excel computes with 15), so the same round read
     from ``scores.csv`` and from ``LAB.xlsx`` must hash equally.  Changes
     beyond the 12th digit are not content changes; the value stored first is

@@ -40,7 +40,7 @@ import numpy as np
 
 from roundscore.support import parallel
 from roundscore.io.forms import FIRST_ROW, RESULTS_SHEET, write_form
-from roundscore.io.outfolder import atomic_folder
+from roundscore.outputs.outfolder import atomic_folder
 
 __all__ = ["make_big_round", "BigRound", "BIG_SEED", "BIG_ID", "fill_form"]
 
@@ -226,7 +226,7 @@ def make_big_round(folder: str | Path, *, labs: int = 2000, measurands: int = 40
     ----------
     folder : path
         A new or empty folder, or one this function wrote before (replaced
-        whole, as an output folder is: :func:`roundscore.io.outfolder.atomic_folder`).
+        whole, as an output folder is: :func:`roundscore.outputs.outfolder.atomic_folder`).
     labs, measurands, replicates : int
         The size: labs ≥ 3, 1 ≤ measurands, replicates ≥ 1.
     seed : int

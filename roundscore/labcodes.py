@@ -41,7 +41,7 @@ __all__ = ["MAX_LAB_CODE", "LAB_CODE_RULE", "read_lab_code", "lab_code_problem",
 MAX_LAB_CODE = 32
 
 #: First characters a lab code may not have: a spreadsheet takes them for a formula, so CSV writers prefix
-#: them (roundscore.io.csvout.neutralise), and the code would no longer read back as itself.
+#: them (roundscore.outputs.csvout.neutralise), and the code would no longer read back as itself.
 FORMULA_STARTS = "=+-@"
 
 #: The rule in words, for messages and the README.

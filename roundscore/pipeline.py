@@ -15,10 +15,10 @@ from typing import Callable
 from roundscore.errors import RoundscoreError
 from roundscore.evaluate import AUDIT_COLUMNS, SCORE_COLUMNS, STATISTICS_COLUMNS, RoundEvaluation, evaluate
 from roundscore.support.filenames import lab_file_name
-from roundscore.io.csvout import write_csv
-from roundscore.io.outfolder import atomic_folder, check_target
+from roundscore.outputs.csvout import write_csv
+from roundscore.outputs.outfolder import atomic_folder, check_target
 from roundscore.io.readers import check_labs, read_participants, read_results
-from roundscore.io.workbook import lab_payload, write_lab_workbook, write_summary
+from roundscore.outputs.workbook import lab_payload, write_lab_workbook, write_summary
 from roundscore.support.parallel import run_batches, shared
 from roundscore.round import Round, load_round, with_warnings
 
@@ -136,7 +136,8 @@ def write_outputs(ev: RoundEvaluation, folder: Path, *, history=None,
         def report(stage: str, done: int, total: int) -> None:
             progress("lab sheets", min(len(labs), max(0, done - n_other) * LAB_SHEETS_PER_TASK), len(labs))
     run_batches(_write_tasks, tasks, jobs=jobs, shared=ev, batch_size=1, progress=report, stage="outputs")
-    from roundscore.io.report import (write_report)  # report.html and labs/LAB.html (figures drawn once, pages composed)
+    # report.html and labs/LAB.html (figures drawn once, pages composed)
+    from roundscore.outputs.report import write_report
     files += write_report(ev, folder, jobs=jobs, progress=progress)
     return files
 

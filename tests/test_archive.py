@@ -210,7 +210,7 @@ def test_add_refuses_then_replaces_lab_rows_with_audit(tmp_path):
 
 
 def test_one_ulp_is_not_a_change_but_is_kept_as_first_stored(tmp_path):
-    # scores.csv keeps 12 significant digits (roundscore.io.csvout), a workbook ~15-16
+    # scores.csv keeps 12 significant digits (roundscore.outputs.csvout), a workbook ~15-16
     # (common practice: Excel's 15-digit precision); a last-bit difference is no change
     db = tmp_path / "a.sqlite"
     store(db, scores_frame())
@@ -253,7 +253,7 @@ def test_workbook_and_csv_of_the_same_round_agree(tmp_path):
 
 def test_pipeline_csv_precision_and_workbook_agree(tmp_path):
     # The pipeline writes scores.csv with csvout.FLOAT_FORMAT; the hash must not be finer.
-    from roundscore.io.csvout import FLOAT_FORMAT, write_csv
+    from roundscore.outputs.csvout import FLOAT_FORMAT, write_csv
 
     assert FLOAT_FORMAT == f"{{:.{archive.HASH_DIGITS}g}}"
     frame = scores_frame()

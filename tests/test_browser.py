@@ -24,7 +24,7 @@ from pathlib import Path
 import pytest
 
 from roundscore.demo import make_demo_round
-from roundscore.io.report import REPORT_NAME, lab_file_name, write_report
+from roundscore.outputs.report import REPORT_NAME, lab_file_name, write_report
 from roundscore.pipeline import load_and_evaluate
 
 CHROMIUM_FLAGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",

@@ -369,7 +369,7 @@ def test_magnitude_rule():
 ])
 def test_figures_draw_any_finite_numbers_without_warnings(strict, values, assigned, sigma):
     # Library callers may pass numbers outside the round's range; the figure is drawn, never an error.
-    from roundscore.io.figures import density_figure, youden_figure
+    from roundscore.outputs.figures import density_figure, youden_figure
 
     labs = ["a", "b", "c"]
     d = density_figure(labs, values, assigned=assigned, sigma_pt=sigma, key="d", title="t", unit="u")

@@ -10,8 +10,9 @@ import re
 import numpy as np
 import pytest
 
-from roundscore.io import figures as F
-from roundscore.io.figures_precision import stability_verdict
+from roundscore.outputs import figure_base as FB
+from roundscore.outputs import figures as F
+from roundscore.outputs.figures_precision import stability_verdict
 from roundscore.stats.items import stability
 from roundscore.stats.precision import mandel_h_critical, mandel_k_critical
 
@@ -269,17 +270,18 @@ def test_stability_png_render_for_looking():
     assert png[:8] == b"\x89PNG\r\n\x1a\n"
 
 
-@pytest.mark.parametrize("first", ["roundscore.io.figures", "roundscore.io.figures_precision"])
+@pytest.mark.parametrize("first", ["roundscore.outputs.figures", "roundscore.outputs.figures_precision",
+                                   "roundscore.outputs.figure_base"])
 def test_either_figures_module_imports_first(first):
-    # The precision figures use figures' helpers and figures re-exports them: no import cycle either way.
+    # Both figure modules build on figure_base and figures imports the precision figures: any order works.
     import subprocess
     import sys
 
-    code = (f"import {first}; from roundscore.io.figures import mandel_figure, stability_figure, "
+    code = (f"import {first}; from roundscore.outputs.figures import mandel_figure, stability_figure, "
             "homogeneity_figure, mandel_limits; print(mandel_figure.__module__)")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
     assert out.returncode == 0, out.stderr
-    assert out.stdout.strip() == "roundscore.io.figures_precision"
+    assert out.stdout.strip() == "roundscore.outputs.figures_precision"
 
 
 def test_step_columns_fill_each_run_without_gaps():
@@ -288,9 +290,9 @@ def test_step_columns_fill_each_run_without_gaps():
     from matplotlib.collections import PolyCollection
     from matplotlib.colors import to_hex
 
-    fig, ax = F._new((4, 2))
-    F._step_columns(ax, np.array([0.0, 1.0, 2.0, 3.0]), 0.0, np.array([1.0, 2.0, -1.0, 0.5]),
-                    ["#111111", "#111111", "#222222", "#222222"])
+    fig, ax = FB.new_figure((4, 2))
+    FB.step_columns(ax, np.array([0.0, 1.0, 2.0, 3.0]), 0.0, np.array([1.0, 2.0, -1.0, 0.5]),
+                   ["#111111", "#111111", "#222222", "#222222"])
     (pc,) = [c for c in ax.collections if isinstance(c, PolyCollection)]
     first, second = (p.vertices for p in pc.get_paths())
     assert [to_hex(c) for c in pc.get_facecolor()] == ["#111111", "#222222"]
@@ -310,21 +312,21 @@ def test_mandel_envelope_colours_a_lone_lab_beyond_the_line():
     h[::2] = 0.5
     h[777] = 3.0  # invented
     seen = {}
-    real_finish = F._finish
+    real_finish = FB.finish_figure
 
     def keep(fig, ax, **kw):
         seen["faces"] = [to_hex(c).upper() for c in ax.collections[0].get_facecolor()]
         seen["paths"] = ax.collections[0].get_paths()
         return real_finish(fig, ax, **kw)
 
-    import roundscore.io.figures_precision as FP
+    import roundscore.outputs.figures_precision as FP
 
-    FP._finish = keep
+    FP.finish_figure = keep
     try:
         F.mandel_figure([f"L{i}" for i in range(n)], h, statistic="h", critical_5=1.96, critical_1=2.58,
                         key="m", title="t")
     finally:
-        FP._finish = real_finish
+        FP.finish_figure = real_finish
     vermillion = F.PALETTE["vermillion"].upper()
     assert seen["faces"].count(vermillion) == 1
     run = seen["paths"][seen["faces"].index(vermillion)].vertices

@@ -23,7 +23,7 @@ from roundscore import archive
 from roundscore.archive_checks import canonical, row_problems
 from roundscore.archive_files import ROW_FIELDS, read_lab_file
 from roundscore.demo import make_demo_round
-from roundscore.io.workbook import lab_payload, write_lab_workbook
+from roundscore.outputs.workbook import lab_payload, write_lab_workbook
 from roundscore.pipeline import load_and_evaluate
 
 from .test_archive import count, scores_frame, write_workbook

@@ -1,7 +1,7 @@
 """Output folders: only a folder roundscore wrote is ever replaced; interrupted runs are recovered.
 
 Source of expected behaviour: the tool's own contract (README, "Outputs", and the rule in
-roundscore/io/outfolder.py): no outside reference values here. Every test that refuses a target
+roundscore/outputs/outfolder.py): no outside reference values here. Every test that refuses a target
 proves that what was there is still there, byte for byte.
 """
 
@@ -19,8 +19,8 @@ from pathlib import Path
 import pytest
 
 from roundscore.cli import main
-from roundscore.io import outfolder
-from roundscore.io.outfolder import MARKER_NAME, OutputFolderError, atomic_folder, check_target, read_marker
+from roundscore.outputs import outfolder
+from roundscore.outputs.outfolder import MARKER_NAME, OutputFolderError, atomic_folder, check_target, read_marker
 
 ROUND = """\
 [round]
@@ -223,7 +223,7 @@ def test_a_failed_run_removes_only_its_own_temporary_folder(tmp_path):
 _CHILD = """
 import os, signal, sys
 from pathlib import Path
-from roundscore.io import outfolder
+from roundscore.outputs import outfolder
 out = Path(sys.argv[1]); how = sys.argv[2]
 die = lambda: os.kill(os.getpid(), signal.SIGKILL)
 if how == "between":

@@ -15,7 +15,7 @@ from roundscore.bigdemo import make_big_round
 from roundscore.errors import InputError, Problem
 from roundscore.io import isolation, readers
 from roundscore.support.parallel import batches, resolve_jobs, run_batches
-from roundscore.io.outfolder import MARKER_NAME
+from roundscore.outputs.outfolder import MARKER_NAME
 from roundscore.pipeline import atomic_folder, load_and_evaluate, write_outputs
 from roundscore.round import load_round
 

@@ -9,9 +9,9 @@ import pandas as pd
 import pytest
 
 from roundscore.demo import make_demo_round
-from roundscore.io import report as R
-from roundscore.io.figures import round_figures
-from roundscore.look import CAUTION
+from roundscore.outputs import report as R
+from roundscore.outputs.figures import round_figures
+from roundscore.outputs.look import CAUTION
 from roundscore.pipeline import load_and_evaluate
 
 
@@ -58,7 +58,7 @@ def test_every_lab_and_signal_in_the_score_matrix(demo):
     matrix = page[page.index('<section id="scores">'):page.index('<section id="audit">')]
     for lab in ev.labs:
         assert f"<th>{lab}</th>" in matrix
-    # symbol in the cell, the word in its title (ISO 13528 words; roundscore.look)
+    # symbol in the cell, the word in its title (ISO 13528 words; roundscore.outputs.look)
     assert 'title="action signal">■' in matrix and 'title="warning signal">▲' in matrix
 
 
@@ -85,7 +85,7 @@ def test_lab_strip_marks_own_score_with_signal_shape(demo):
         strip = page[page.index(f'id="strip-{rec["measurand"]}"'):]
         strip = strip[:strip.index("</figure>")]
         mark = strip[strip.index('<g class="lab-mark"'):]
-        # shape by signal (roundscore.look: circle, triangle, square); the score written to 2 decimals
+        # shape by signal (roundscore.outputs.look: circle, triangle, square); the score written to 2 decimals
         shape = {"acceptable": "<circle", "warning": "<path d=", "action": "<rect"}.get(rec["signal"])
         if shape:
             assert shape in mark and f"{rec[R.SCORE_FIELD[rec['score']]]:.2f}" in mark
@@ -261,7 +261,7 @@ PAGE_BYTES = 250_000
 @pytest.fixture(scope="module")
 def large(tmp_path_factory):
     """300 labs × 40 measurands, evaluated; no matplotlib figures (a large round's lab pages need none)."""
-    from roundscore.io.figures import RoundFigures
+    from roundscore.outputs.figures import RoundFigures
 
     ev = load_and_evaluate(_large_round(tmp_path_factory.mktemp("large") / "round", 300, 40))
     none = RoundFigures(scores={}, density={}, youden=(), mandel={}, items={})

@@ -3,7 +3,7 @@ bounded, a huge round file or measurand count is refused before the work starts,
 figure limit gets score strips instead of thousands of figures.
 
 Source of expected values: the tool's own documented limits (roundscore.text.TEXT_LIMITS,
-roundscore.round.MAX_MEASURANDS / MAX_ROUND_FILE_BYTES, roundscore.io.figures.FIGURES_MAX_MEASURANDS);
+roundscore.round.MAX_MEASURANDS / MAX_ROUND_FILE_BYTES, roundscore.outputs.figures.FIGURES_MAX_MEASURANDS);
 Excel's 31-character sheet names (Microsoft's Excel specifications and limits, from memory).
 """
 
@@ -194,14 +194,14 @@ def test_problem_text_is_bounded_and_escaped():
 # ----------------------------------------------------------------------------------- many measurands
 
 def test_round_past_the_figure_limit_gets_strips(make_round, monkeypatch):
-    import roundscore.io.figures as figures_module
-    from roundscore.io.report import report_html, report_parts
+    import roundscore.outputs.figures as figures_module
+    from roundscore.outputs.report import report_html, report_parts
 
     extra = '\n[measurand.zinc]\nunit = "mg/kg"\nsigma_pt = 2.0\n'
     results = RESULTS + "".join(f"L{i},zinc,{r},{20 + 0.2 * i + 0.1 * r}\n" for i in range(1, 6) for r in (1, 2))
     ev = load_and_evaluate(_round(make_round, measurand_extra=extra, results=results))
     monkeypatch.setattr(figures_module, "FIGURES_MAX_MEASURANDS", 1)
-    import roundscore.io.report as report_module
+    import roundscore.outputs.report as report_module
 
     monkeypatch.setattr(report_module, "FIGURES_MAX_MEASURANDS", 1)
     figs = figures_module.round_figures(ev)

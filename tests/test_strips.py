@@ -10,8 +10,8 @@ import re
 import numpy as np
 import pytest
 
-from roundscore.io import strips as S
-from roundscore.look import SIGNAL_COLOUR
+from roundscore.outputs import strips as S
+from roundscore.outputs.look import SIGNAL_COLOUR
 
 # invented scores: bins of 0.25 over ±4 → 0.1 and 0.2 share [0, 0.25); -2.6 in [-2.75, -2.5); 5.0 beyond +4
 VALUES = [0.1, 0.2, -2.6, 1.9, 5.0, -4.5, float("nan")]

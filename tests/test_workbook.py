@@ -12,7 +12,7 @@ import pytest
 
 from roundscore.demo import make_demo_round
 from roundscore.evaluate import SCORE_COLUMNS
-from roundscore.io.workbook import lab_payload, write_lab_workbook, write_summary
+from roundscore.outputs.workbook import lab_payload, write_lab_workbook, write_summary
 from roundscore.pipeline import load_and_evaluate
 
 
@@ -87,7 +87,7 @@ def test_summary_has_a_chart_per_scored_measurand_with_signal_shapes(books):
     charts = _charts(summary)
     assert len(charts) == sum(m.scored for m in ev.measurands.values())
     joined = "".join(charts)
-    # signal marker shapes (roundscore.look: circle, triangle, square) and the limit lines
+    # signal marker shapes (roundscore.outputs.look: circle, triangle, square) and the limit lines
     for shape in ("circle", "triangle", "square"):
         assert f'<c:symbol val="{shape}"/>' in joined
     assert "warning limit ±2" in joined and "action limit ±1" in joined

@@ -24,9 +24,9 @@ from python_calamine import CalamineWorkbook
 from roundscore.archive_files import normalise_rows, read_lab_file
 from roundscore.demo import make_demo_round
 from roundscore.evaluate import SCORE_COLUMNS
-from roundscore.io import workbook as wbm
-from roundscore.look import SIGNAL_COLOUR, signal_label
-from roundscore.io.workbook import SUMMARY_POINTER, lab_payload, write_lab_workbook, write_summary
+from roundscore.outputs import workbook as wbm
+from roundscore.outputs.look import SIGNAL_COLOUR, signal_label
+from roundscore.outputs.workbook import SUMMARY_POINTER, lab_payload, write_lab_workbook, write_summary
 from roundscore.pipeline import load_and_evaluate
 
 #: Labs looked at: the planted iodine outlier (K07, h beyond a line), the censored mercury result (K23),

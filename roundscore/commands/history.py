@@ -221,10 +221,10 @@ def write_history_outputs(frame: pd.DataFrame, out: Path, *, lab: str,
 
     ``out`` is a roundscore output folder (new, empty, or written by an
     earlier ``history show --out``), replaced whole when all files are
-    complete (:func:`roundscore.io.outfolder.atomic_folder`); ``protect``
+    complete (:func:`roundscore.outputs.outfolder.atomic_folder`); ``protect``
     (the archive) may not lie inside it.
     """
-    from roundscore.io.outfolder import atomic_folder
+    from roundscore.outputs.outfolder import atomic_folder
 
     names = ["history.xlsx", "history.png", "history.svg"]
     with atomic_folder(out, kind="history", protect=protect) as temp:

@@ -7,7 +7,7 @@ import sys
 from pathlib import Path
 
 from roundscore.evaluate import RoundEvaluation
-from roundscore.look import CAUTION, SIGNAL_SYMBOL
+from roundscore.outputs.look import CAUTION, SIGNAL_SYMBOL
 from roundscore.support.progress import terminal_bar
 from roundscore.text import terminal_text
 
@@ -180,7 +180,7 @@ def run_forms(args: argparse.Namespace) -> int:
 
 def _check_forms_folder(rnd, out: Path) -> None:
     """Blank forms never go where the round reads its results, nor over a file."""
-    from roundscore.io.outfolder import OutputFolderError
+    from roundscore.outputs.outfolder import OutputFolderError
     from roundscore.pipeline import round_inputs
 
     protect, folders = round_inputs(rnd, for_forms=True)

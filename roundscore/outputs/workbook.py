@@ -34,7 +34,7 @@ import xlsxwriter
 
 from roundscore.archive_checks import DIGEST_KEY, ROW_DIGEST_COLUMN, row_digest, sheet_digest, sheet_value
 from roundscore.evaluate import SCORE_COLUMNS, STATISTICS_COLUMNS, RoundEvaluation
-from roundscore.look import CAUTION, SIGNAL_COLOUR, SIGNAL_WORD, signal_label
+from roundscore.outputs.look import CAUTION, SIGNAL_COLOUR, SIGNAL_WORD, signal_label
 
 __all__ = ["write_summary", "write_lab_workbook", "LAB_FORMAT", "FIXED_TIME", "lab_payload"]
 
@@ -362,7 +362,7 @@ def _write_summary(ev: RoundEvaluation, path: Path, options: dict[str, Any]) -> 
 
 SCORE_FIELD = {"z": "z", "z-prime": "z_prime", "zeta": "zeta", "en": "en"}
 _SCORE_NAME = {"z": "z-score", "z-prime": "z′-score", "zeta": "ζ-score", "en": "En number"}
-#: Workbook chart marker shapes matching roundscore.look.SIGNAL_MARKER (circle, triangle, square).
+#: Workbook chart marker shapes matching roundscore.outputs.look.SIGNAL_MARKER (circle, triangle, square).
 _CHART_MARKER = {"acceptable": "circle", "warning": "triangle", "action": "square"}
 #: Up to this many bars each data point is coloured by its signal (beyond, the file grows by a point
 #: entry per bar per chart; the marker series still carry the signals).
@@ -623,7 +623,7 @@ def write_lab_workbook(payload: dict[str, Any], path: Path) -> None:
         # HISTORY_COLUMNS), then a native line chart of the score per measurand over those
         # rounds and this one, with the limits of ISO 13528 (z-like 2 and 3; En 1).
         from roundscore.history import ACTION_LIMIT, EN_ACTION_LIMIT, WARNING_LIMIT
-        from roundscore.look import PALETTE
+        from roundscore.outputs.look import PALETTE
 
         hs = wb.add_worksheet("History")
         hs.write_string(0, 0, f"Laboratory {lab}: your results in earlier rounds of scheme "

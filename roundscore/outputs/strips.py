@@ -29,7 +29,7 @@ from typing import Sequence
 
 import numpy as np
 
-from roundscore.look import PALETTE, SIGNAL_COLOUR, SIGNAL_SYMBOL, SIGNAL_WORD
+from roundscore.outputs.look import PALETTE, SIGNAL_COLOUR, SIGNAL_SYMBOL, SIGNAL_WORD
 from roundscore.stats.scores import EN_ACTION, Z_ACTION, Z_WARNING
 
 __all__ = ["ScoreStrip", "score_strip", "STRIP_RANGE", "STRIP_BIN", "STRIP_UNIT_BLOCKS", "STRIP_WIDTH",
@@ -162,7 +162,7 @@ class ScoreStrip:
 
 
 def _marker(x: float, y: float, signal: str) -> str:
-    """Marker of a signal (shapes as :data:`roundscore.look.SIGNAL_MARKER`: circle, triangle, square, ×)."""
+    """Marker of a signal (shapes as :data:`roundscore.outputs.look.SIGNAL_MARKER`: circle, triangle, square, ×)."""
     fill = SIGNAL_COLOUR.get(signal, PALETTE["grey"])
     edge = 'stroke="#000000" stroke-width="1.2"'
     if signal == "acceptable":

@@ -1,7 +1,7 @@
 """Figures of the precision and item checks: Mandel's h and k by laboratory, homogeneity and stability.
 
-Drawn once per measurand like every shared figure (see :mod:`roundscore.io.figures`, which re-exports
-these names and holds the helpers used here).
+Drawn once per measurand like every shared figure (see :mod:`roundscore.outputs.figures`, which draws them for
+a round); the plumbing they share with the score figures is in :mod:`roundscore.outputs.figure_base`.
 """
 
 from __future__ import annotations
@@ -11,10 +11,10 @@ from typing import Literal, Sequence
 
 import numpy as np
 
-from roundscore.look import PALETTE, SIGNAL_MARKER
+from roundscore.outputs.look import PALETTE, SIGNAL_MARKER
 from roundscore.stats.precision import mandel_h_critical, mandel_k_critical
-from roundscore.io.figures import (_WIDE, MAX_BARS, PROFILE_POINTS, SvgFigure, _codes, _finish, _legend, _new,
-                                   _png, _step_columns)
+from roundscore.outputs.figure_base import (MAX_BARS, PROFILE_POINTS, WIDE, SvgFigure, codes_under_axis, finish_figure,
+                                            legend, new_figure, png_bytes, step_columns)
 
 __all__ = ["mandel_limits", "mandel_figure", "homogeneity_figure", "stability_figure", "stability_verdict"]
 
@@ -48,7 +48,7 @@ def mandel_figure(labs: Sequence[str], values: Sequence[float], *, statistic: Li
     """
     v = np.asarray(values, dtype=float)
     pos = np.arange(len(v), dtype=float)
-    fig, ax = _new(_WIDE, bottom=0.2)
+    fig, ax = new_figure(WIDE, bottom=0.2)
     size = np.abs(v) if statistic == "h" else v
     level = np.where(size > critical_1, "action", np.where(size > critical_5, "warning", "acceptable"))
     level = np.where(np.isfinite(v), level, "not-scored")
@@ -56,7 +56,7 @@ def mandel_figure(labs: Sequence[str], values: Sequence[float], *, statistic: Li
                for s in level]
     if len(v) <= MAX_BARS:
         ax.bar(pos, np.nan_to_num(v), width=0.7, color=colours, edgecolor="#333333", linewidth=0.3)
-        _codes(ax, pos, labs, len(v), "laboratory")
+        codes_under_axis(ax, pos, labs, len(v), "laboratory")
     else:  # many labs: the envelope of PROFILE_POINTS columns, coloured by each column's worst level
         rank = {"not-scored": 0, "acceptable": 1, "warning": 2, "action": 3}
         col = np.minimum((pos * PROFILE_POINTS / len(v)).astype(int), PROFILE_POINTS - 1)
@@ -68,11 +68,11 @@ def mandel_figure(labs: Sequence[str], values: Sequence[float], *, statistic: Li
         np.maximum.at(worst, col, np.array([rank[x] for x in level]))
         centre = (np.arange(PROFILE_POINTS) + 0.5) * len(v) / PROFILE_POINTS - 0.5
         colour = {rank["action"]: PALETTE["vermillion"], rank["warning"]: PALETTE["orange"]}
-        _step_columns(ax, centre, lo, hi, [colour.get(w, PALETTE["blue"]) for w in worst])
+        step_columns(ax, centre, lo, hi, [colour.get(w, PALETTE["blue"]) for w in worst])
         # codes for the most extreme labs beyond the 1 % line only (at most MAX_BARS: they must stay legible)
         far = np.flatnonzero(level == "action")
         far = np.sort(far[np.argsort(-np.abs(v[far]), kind="stable")[:MAX_BARS]])
-        _codes(ax, pos[far], [labs[i] for i in far], len(far), f"{len(v)} laboratories")
+        codes_under_axis(ax, pos[far], [labs[i] for i in far], len(far), f"{len(v)} laboratories")
     for s, word in (("acceptable", "within the 5 % line"), ("warning", "beyond 5 %"), ("action", "beyond 1 %")):
         sel = (level == s) & ((len(v) <= MAX_BARS) | (level != "acceptable"))
         if sel.any():
@@ -93,13 +93,13 @@ def mandel_figure(labs: Sequence[str], values: Sequence[float], *, statistic: Li
     ax.set_ylim(-1.2 * reach if statistic == "h" else 0.0, 1.4 * reach)  # head room for the legend
     ax.set_ylabel(f"Mandel {statistic}")
     ax.set_title(title, loc="left")
-    _legend(ax, frameon=False, fontsize=7, loc="upper left", ncol=3)
+    legend(ax, frameon=False, fontsize=7, loc="upper left", ncol=3)
     if png:
-        return _png(fig)
+        return png_bytes(fig)
     caption = (f"Mandel's {statistic} for {len(v)} laboratories with the 5 % (dashed) and 1 % (solid) "
                "indicator lines of ISO 5725-2.")
     marks = {lab: (float(p), float(x)) for lab, p, x in zip(labs, pos, v) if np.isfinite(x)}
-    return _finish(fig, ax, key=key, title=title, caption=caption, kind="bar", marks=marks)
+    return finish_figure(fig, ax, key=key, title=title, caption=caption, kind="bar", marks=marks)
 
 
 def homogeneity_figure(items: Sequence[str], values: Sequence[float], *, item_labels: Sequence[str],
@@ -111,7 +111,7 @@ def homogeneity_figure(items: Sequence[str], values: Sequence[float], *, item_la
     s_s ≤ 0.3σ_pt (ISO 13528:2015 §B.2, from memory); the check itself is in
     the items table.
     """
-    fig, ax = _new(_WIDE, right=0.97, bottom=0.2)
+    fig, ax = new_figure(WIDE, right=0.97, bottom=0.2)
     index = {lab: i for i, lab in enumerate(item_labels)}
     xs = np.array([index.get(it, -1) for it in items], dtype=float)
     vals = np.asarray(values, dtype=float)
@@ -122,17 +122,17 @@ def homogeneity_figure(items: Sequence[str], values: Sequence[float], *, item_la
     if np.isfinite(sigma_pt) and sigma_pt > 0:
         ax.axhspan(general_mean - 0.3 * sigma_pt, general_mean + 0.3 * sigma_pt, color=PALETTE["sky"], alpha=0.3,
                    linewidth=0, label="general mean ± 0.3σ_pt")
-    _codes(ax, np.arange(len(item_labels), dtype=float), list(item_labels), 40, "test item")
+    codes_under_axis(ax, np.arange(len(item_labels), dtype=float), list(item_labels), 40, "test item")
     lo, hi = ax.get_ylim()
     ax.set_ylim(lo, hi + 0.25 * (hi - lo))  # head room for the legend
     ax.set_ylabel(f"value ({unit})" if unit else "value")
     ax.set_title(title, loc="left")
     ax.legend(frameon=False, fontsize=7, loc="upper left", ncol=4)
     if png:
-        return _png(fig)
+        return png_bytes(fig)
     caption = (f"Homogeneity: replicates and means of {len(item_labels)} test items, the general mean and a band "
                "of ± 0.3σ_pt for scale.")
-    return _finish(fig, ax, key=key, title=title, caption=caption)
+    return finish_figure(fig, ax, key=key, title=title, caption=caption)
 
 
 
@@ -215,7 +215,7 @@ def stability_figure(sets: Sequence[str], values: Sequence[float], *, items: Seq
     ----------
     .. [1] ISO 13528:2015, B.5 (stability criteria).
     """
-    fig, ax = _new(_WIDE, left=0.11, right=0.56, bottom=0.16, top=0.88)
+    fig, ax = new_figure(WIDE, left=0.11, right=0.56, bottom=0.16, top=0.88)
     labels = np.asarray(sets, dtype=object)
     vals = np.asarray(values, dtype=float)
     its = np.asarray(items if items is not None else [""] * len(vals), dtype=object)
@@ -281,14 +281,14 @@ def stability_figure(sets: Sequence[str], values: Sequence[float], *, items: Seq
                        title_fontproperties={"size": 7.5, "weight": "bold"})
     legend.set_gid("legend")
     if png:
-        return _png(fig)
+        return png_bytes(fig)
     caption = (f"Stability: the values of the sets “{first}” (circles) and “{second}” (diamonds), each set's "
                "mean with a bar of ± 2 standard uncertainties, and the allowance round the first mean: the band "
                "± 0.3σ_pt of the simple criterion"
                + (" and the dashed lines ± (0.3σ_pt + 2√(u₁² + u₂²)) of the expanded criterion" if have_expanded
                   else "")
                + f" (ISO 13528 B.5). {said}")
-    return _finish(fig, ax, key=key, title=title, caption=caption)
+    return finish_figure(fig, ax, key=key, title=title, caption=caption)
 
 
 def _pale(colour: str, keep: float = 0.45) -> str:

@@ -8,7 +8,7 @@ one lab's own results and, at the top, its name: names appear only in the
 lab's own page.
 
 A lab page shows where the lab stands on every measurand as a compact score
-strip (:mod:`roundscore.io.strips`: hand-written SVG, about 3 KB, the shared
+strip (:mod:`roundscore.outputs.strips`: hand-written SVG, about 3 KB, the shared
 part built once per measurand and the lab's marker appended). In a small
 round (at most :data:`FULL_FIGURES_MAX_LABS` labs and
 :data:`FULL_FIGURES_MAX_MEASURANDS` measurands) the page also carries the
@@ -21,7 +21,7 @@ A print stylesheet makes a browser print either page to PDF cleanly
 table heads repeat).
 
 Everything shown comes from the :class:`~roundscore.evaluate.RoundEvaluation`
-and the figures of :func:`~roundscore.io.figures.round_figures`; nothing is
+and the figures of :func:`~roundscore.outputs.figures.round_figures`; nothing is
 recomputed. The shared parts are built once, so a lab page costs a few
 milliseconds (string joins) and, past the small-round limits, its size does
 not grow with the number of labs (measured: about 120 KB and 2 ms per page at
@@ -39,10 +39,10 @@ from typing import Any, Callable, Iterable, Sequence
 import numpy as np
 import pandas as pd
 
-from roundscore.look import CAUTION, SIGNAL_COLOUR, SIGNAL_SYMBOL, SIGNAL_WORD
-from roundscore.io.figures import (FIGURES_MAX_MEASURANDS, SCORE_FIELD, RoundFigures, SvgFigure,
-                                   figures_per_measurand, round_figures)
-from roundscore.io.strips import ScoreStrip, score_strip, strip_legend
+from roundscore.outputs.look import CAUTION, SIGNAL_COLOUR, SIGNAL_SYMBOL, SIGNAL_WORD
+from roundscore.outputs.figures import (FIGURES_MAX_MEASURANDS, SCORE_FIELD, RoundFigures, SvgFigure,
+                                        figures_per_measurand, round_figures)
+from roundscore.outputs.strips import ScoreStrip, score_strip, strip_legend
 
 __all__ = ["write_report", "report_html", "lab_page_html", "ReportParts", "report_parts", "lab_file_name",
            "REPORT_NAME", "FULL_FIGURES_MAX_LABS", "FULL_FIGURES_MAX_MEASURANDS", "full_lab_figures"]

@@ -12,7 +12,7 @@ The SVG is reproducible: a fixed ``svg.hashsalt``, no date in the metadata,
 text as ``<text>`` elements (``svg.fonttype = "none"``), and every element id
 prefixed with the figure's key so many figures can sit in one HTML page.
 Colour never carries meaning alone: each signal has its Okabe–Ito colour
-(:mod:`roundscore.look`), a marker shape and its word in the legend.
+(:mod:`roundscore.outputs.look`), a marker shape and its word in the legend.
 
 Figures only draw what the evaluation computed; the kernel density curve and
 the Youden ellipse are display devices (documented in their functions), not
@@ -21,35 +21,26 @@ statistics of the evaluation.
 
 from __future__ import annotations
 
-import contextlib
-import hashlib
-import html
-import io
 import math
-import re
-import unicodedata
 from dataclasses import dataclass, field
-from typing import Literal, Sequence
+from typing import Sequence
 
 import numpy as np
 import pandas as pd
 from scipy import stats as sps
 
-from roundscore.look import PALETTE, SIGNAL_COLOUR, SIGNAL_MARKER, SIGNAL_WORD
-from roundscore.io.axes import data_span, drawable, span
+from roundscore.outputs.axes import data_span, drawable, span
+from roundscore.outputs.figure_base import (MAX_BARS, PROFILE_POINTS, SQUARE, SVG_HASHSALT, WIDE, MarkKind, SvgFigure,
+                                            codes_under_axis, finish_figure, legend, new_figure, png_bytes,
+                                            signal_legend, step_columns)
+from roundscore.outputs.figures_precision import homogeneity_figure, mandel_figure, mandel_limits, stability_figure
+from roundscore.outputs.look import PALETTE, SIGNAL_COLOUR, SIGNAL_MARKER, SIGNAL_WORD
 from roundscore.stats.scores import EN_ACTION, Z_ACTION, Z_WARNING
 
 __all__ = ["SvgFigure", "MarkKind", "z_bar_figure", "density_figure", "youden_figure", "mandel_figure",
            "homogeneity_figure", "stability_figure", "RoundFigures", "round_figures", "SCORE_FIELD",
            "SVG_HASHSALT", "MAX_BARS", "KDE_BANDWIDTH_FACTOR", "YOUDEN_LEVEL", "RANGE_SIGMAS", "mandel_limits"]
 
-#: Salt of matplotlib's SVG ids: fixed so the same round gives the same SVG bytes.
-SVG_HASHSALT = "roundscore-svg"
-#: Up to this many scored labs the ranked chart draws one bar per lab with its code; above, a ranked
-#: profile filled per signal (a 500-point-wide axis cannot show more bars anyway; common practice).
-MAX_BARS = 60
-#: Samples of the ranked profile (about one per pixel of the axis; common practice).
-PROFILE_POINTS = 400
 #: Kernel bandwidth h = 0.75·σ_pt for the density of results (from memory: AMC Technical Brief 4 and
 #: ISO 13528:2015 §10.3 suggest a bandwidth of the order of σ_pt); Silverman's rule when σ_pt is not set.
 KDE_BANDWIDTH_FACTOR = 0.75
@@ -57,283 +48,6 @@ KDE_BANDWIDTH_FACTOR = 0.75
 YOUDEN_LEVEL = 0.95
 #: Axes show x_pt ± RANGE_SIGMAS·σ_pt at most; results outside are counted in the caption (common practice).
 RANGE_SIGMAS = 6.0
-#: Figure size in inches (SVG user units are points: 72 per inch).
-_WIDE = (7.2, 3.0)
-_SQUARE = (6.6, 4.4)
-_RC = {"svg.hashsalt": SVG_HASHSALT, "svg.fonttype": "none", "font.size": 9, "axes.titlesize": 10,
-       "axes.spines.top": False, "axes.spines.right": False, "font.family": "DejaVu Sans"}
-
-MarkKind = Literal["bar", "vline", "point", "none"]
-
-
-@dataclass(frozen=True, slots=True, kw_only=True)
-class SvgFigure:
-    """A figure rendered as an SVG element, with what a lab's version needs to mark it.
-
-    Attributes
-    ----------
-    key : str
-        Short unique id (``"z-iodine"``); prefixes every id inside the SVG.
-    title, caption : str
-        Plain text for the HTML ``<figcaption>`` (the caption says what is drawn).
-    svg : str
-        The ``<svg>`` element, without the XML prolog.
-    x_map, y_map : tuple of float
-        ``(a, b)`` with SVG coordinate = a·data + b, for each axis.
-    axes_box : tuple of float
-        The axes area in SVG units: (left, top, right, bottom).
-    x_limits, y_limits : tuple of float
-        The data limits of the axes.
-    kind : {"bar", "vline", "point", "none"}
-        How a lab is marked: its bar outlined, a vertical line at its result,
-        or a ring round its point.
-    marks : dict of str to tuple of float
-        Lab code → data coordinates of the thing to mark ((x, y); for "bar"
-        x is the bar's position and y its score, for "vline" y is NaN).
-    """
-
-    key: str
-    title: str
-    caption: str
-    svg: str
-    x_map: tuple[float, float]
-    y_map: tuple[float, float]
-    axes_box: tuple[float, float, float, float]
-    x_limits: tuple[float, float]
-    y_limits: tuple[float, float]
-    kind: MarkKind = "none"
-    marks: dict[str, tuple[float, float]] = field(default_factory=dict)
-
-    def to_svg(self, x: float, y: float) -> tuple[float, float]:
-        """Data coordinates → SVG user units."""
-        return self.x_map[0] * x + self.x_map[1], self.y_map[0] * y + self.y_map[1]
-
-    def for_lab(self, lab: str, label: str = "your lab") -> str:
-        """The SVG with ``lab`` marked (the shared SVG unchanged when the lab has no mark here).
-
-        The overlay is a ``<g class="lab-mark">`` appended inside the root
-        element; positions outside the axes are clamped to its edge with an
-        arrow, so an extreme result is still shown.
-        """
-        if self.kind == "none" or lab not in self.marks:
-            return self.svg
-        x, y = self.marks[lab]
-        left, top, right, bottom = self.axes_box
-        text = html.escape(f"{label} ({lab})")
-        ink = PALETTE["black"]
-        parts = []
-        if self.kind == "bar":
-            x0, y0 = self.to_svg(x - 0.5, 0.0)
-            x1, y1 = self.to_svg(x + 0.5, y)
-            y1c = min(max(y1, top), bottom)
-            ya, yb = sorted((y0, y1c))
-            parts.append(f'<rect x="{x0:.2f}" y="{ya:.2f}" width="{max(x1 - x0, 1.5):.2f}" '
-                         f'height="{max(yb - ya, 1.0):.2f}" fill="none" stroke="{ink}" stroke-width="2.2"/>')
-            tip = ya - 4 if y >= 0 else yb + 4
-            tip = min(max(tip, top + 4), bottom - 4)
-            sx = (x0 + x1) / 2
-            up = y >= 0
-            parts.append(_arrow(sx, tip, up, ink))
-            ty = tip - 12 if up else tip + 20
-            parts.append(_label(sx, min(max(ty, top + 8), bottom - 2), text, left, right))
-        elif self.kind == "vline":
-            sx, _ = self.to_svg(x, 0.0)
-            clamped = sx < left or sx > right
-            sx = min(max(sx, left), right)
-            dash = ' stroke-dasharray="4 2"' if clamped else ""
-            parts.append(f'<line x1="{sx:.2f}" y1="{top:.2f}" x2="{sx:.2f}" y2="{bottom:.2f}" stroke="{ink}" '
-                         f'stroke-width="2"{dash}/>')
-            parts.append(_arrow(sx, top + 2, False, ink))
-            out = " (outside the plotted range)" if clamped else ""
-            parts.append(_label(sx, bottom - 0.3 * (bottom - top), text + html.escape(out), left, right))
-        else:
-            sx, sy = self.to_svg(x, y)
-            sx, sy = min(max(sx, left), right), min(max(sy, top), bottom)
-            parts.append(f'<circle cx="{sx:.2f}" cy="{sy:.2f}" r="8" fill="none" stroke="{ink}" '
-                         f'stroke-width="2.2"/>')
-            parts.append(_label(sx, sy - 12, text, left, right))
-        overlay = f'<g class="lab-mark" aria-label="{text}">{"".join(parts)}</g>'
-        end = self.svg.rfind("</svg>")
-        return self.svg[:end] + overlay + self.svg[end:]
-
-
-def _arrow(x: float, y: float, pointing_down: bool, ink: str) -> str:
-    d = -7 if pointing_down else 7
-    return (f'<path d="M {x - 5:.2f} {y + d:.2f} L {x + 5:.2f} {y + d:.2f} L {x:.2f} {y:.2f} Z" '
-            f'fill="{ink}"/>')
-
-
-def _label(x: float, y: float, text: str, left: float, right: float) -> str:
-    anchor = "middle"
-    if x - left < 60:
-        anchor = "start"
-    elif right - x < 60:
-        anchor = "end"
-    return (f'<text x="{x:.2f}" y="{y:.2f}" text-anchor="{anchor}" font-family="DejaVu Sans, sans-serif" '
-            f'font-size="10" font-weight="bold" fill="#000000" stroke="#FFFFFF" stroke-width="3" '
-            f'paint-order="stroke">{text}</text>')
-
-
-# --------------------------------------------------------------------------------------------- plumbing
-
-#: Axes margins as fractions of the figure (fixed rather than tight_layout, so overlays and sizes are stable).
-_MARGINS = {"left": 0.085, "right": 0.85, "top": 0.88, "bottom": 0.16}
-
-
-def _new(size: tuple[float, float], **margins: float):
-    import matplotlib
-    from matplotlib.backends.backend_svg import FigureCanvasSVG
-    from matplotlib.figure import Figure
-
-    with matplotlib.rc_context(_RC):
-        fig = Figure(figsize=size, dpi=72)
-        FigureCanvasSVG(fig)
-        fig.subplots_adjust(**{**_MARGINS, **margins})
-        ax = fig.add_subplot()
-    return fig, ax
-
-
-_ID = re.compile(r'\bid="([^"]+)"')
-
-
-def _finish(fig, ax, *, key: str, title: str, caption: str, kind: MarkKind = "none",
-            marks: dict[str, tuple[float, float]] | None = None) -> SvgFigure:
-    """Lay out, write the SVG (deterministic), prefix its ids, and keep the data → SVG maps."""
-    import matplotlib
-
-    with matplotlib.rc_context(_RC):
-        buf = io.StringIO()
-        with _no_glyph_warnings():
-            fig.savefig(buf, format="svg", metadata={"Date": None, "Creator": "roundscore"})
-    text = buf.getvalue()
-    text = text[text.index("<svg"):]
-    text = re.sub(r"\s*<metadata>.*?</metadata>", "", text, count=1, flags=re.S)  # no RDF block to carry
-    ids = set(_ID.findall(text))
-    if ids:
-        safe = re.sub(r"[^A-Za-z0-9_-]", "_", key)
-        if safe != key:  # keys that differ only in replaced characters keep distinct ids on one page
-            safe += "-" + hashlib.sha256(key.encode("utf-8", "surrogatepass")).hexdigest()[:8]
-        pattern = re.compile(r'(id="|url\(#|href="#)(' + "|".join(map(re.escape, sorted(ids, key=len, reverse=True)))
-                             + r')(?=[")])')
-        text = pattern.sub(lambda m: f"{m.group(1)}{safe}-{m.group(2)}", text)
-    text = text.replace("<svg ", f'<svg role="img" aria-label="{html.escape(title)}" ', 1)
-    height = fig.get_figheight() * 72
-    t = ax.transData
-    p0, p1 = t.transform((0.0, 0.0)), t.transform((1.0, 1.0))
-    x_map = (float(p1[0] - p0[0]), float(p0[0]))
-    y_map = (float(-(p1[1] - p0[1])), float(height - p0[1]))
-    bb = ax.get_window_extent()
-    box = (float(bb.x0), float(height - bb.y1), float(bb.x1), float(height - bb.y0))
-    return SvgFigure(key=key, title=title, caption=caption, svg=text, x_map=x_map, y_map=y_map, axes_box=box,
-                     x_limits=tuple(map(float, ax.get_xlim())), y_limits=tuple(map(float, ax.get_ylim())),
-                     kind=kind, marks=dict(marks or {}))
-
-
-@contextlib.contextmanager
-def _no_glyph_warnings():
-    """A lab code in a script the figure font lacks (CJK, emoji) is drawn as boxes; matplotlib's warning about
-    each missing glyph is not for the user (the code is in full in every table)."""
-    import warnings
-
-    with warnings.catch_warnings():
-        warnings.filterwarnings("ignore", message=r"Glyph \d+ .* missing from", category=UserWarning)
-        yield
-
-
-def _png(fig) -> bytes:
-    import matplotlib
-    from matplotlib.backends.backend_agg import FigureCanvasAgg
-
-    with matplotlib.rc_context(_RC):
-        FigureCanvasAgg(fig)
-        buf = io.BytesIO()
-        with _no_glyph_warnings():
-            fig.savefig(buf, format="png", dpi=110, metadata={"Software": None})
-    return buf.getvalue()
-
-
-def _legend(ax, **kw) -> None:
-    """A legend of the labelled artists, or none when nothing is labelled (matplotlib would warn)."""
-    if ax.get_legend_handles_labels()[0]:
-        ax.legend(**kw)
-
-
-def _signal_legend(ax, signals: Sequence[str], words: str, **kw) -> None:
-    from matplotlib.lines import Line2D
-
-    present = [s for s in ("acceptable", "warning", "action") if s in set(signals)]
-    handles = [Line2D([], [], linestyle="none", marker=SIGNAL_MARKER[s], markersize=6,
-                      markerfacecolor=SIGNAL_COLOUR[s], markeredgecolor="#000000", markeredgewidth=0.5,
-                      label=SIGNAL_WORD[words][s]) for s in present]
-    if handles:
-        ax.legend(handles=handles, frameon=False, fontsize=8, **kw)
-
-
-def _ems(text: str) -> float:
-    """The width of a code in em: about 0.62 em per character of DejaVu Sans, 1.3 em for a wide (East Asian)
-    character or one the font lacks (drawn as a box)."""
-    if text.isascii():
-        return 0.62 * len(text)
-    return sum(1.3 if unicodedata.east_asian_width(ch) in "WF" else 0.62 for ch in text)
-
-
-#: Least height of the plot area (inches) of a figure with codes under its axis: the figure grows
-#: rather than the plot shrinking away under long codes.
-MIN_PLOT_HEIGHT = 2.0
-
-
-def _codes(ax, pos: np.ndarray, labels: Sequence[str], n: int, xlabel: str = "") -> None:
-    """Lab (or item) codes under the axis as plain texts, about ten times cheaper to draw than ticks.
-
-    The bottom margin and the axis label's pad grow with the longest code.
-    """
-    ax.set_xticks([])
-    tr = ax.get_xaxis_transform()
-    size = 7 if n > 30 else 8
-    for x, lab in zip(pos, labels):
-        ax.text(x, -0.02, str(lab), transform=tr, rotation=90, ha="center", va="top", fontsize=size)
-    longest = max((_ems(str(lab)) for lab in labels), default=0)
-    pad = 6 + size * longest  # points
-    fig = ax.figure
-    height = fig.get_figheight()
-    bottom = (pad + 26) / 72  # inches under the axes
-    top = (1 - fig.subplotpars.top) * height  # inches above the axes
-    if bottom + top + MIN_PLOT_HEIGHT > height:  # long codes: the figure grows, the plot keeps its height
-        height = bottom + top + MIN_PLOT_HEIGHT
-        fig.set_figheight(height)
-        fig.subplots_adjust(top=1 - top / height)
-    fig.subplots_adjust(bottom=bottom / height)
-    if xlabel:
-        ax.set_xlabel(xlabel, labelpad=pad)
-
-
-def _step_columns(ax, x: np.ndarray, low, high, colours: Sequence[str]) -> None:
-    """Filled columns, one per x, from ``low`` to ``high``, each reaching half-way to its neighbours.
-
-    The picture of ``fill_between(step="mid")`` per colour, without its gaps
-    where the colour changes: each run of columns of one colour becomes one
-    step-shaped polygon, and all of them one polygon collection (one artist;
-    ``fill_between`` with ``where`` built many small polygons through masked
-    arrays, the larger part of a profile figure's drawing time).
-    """
-    from matplotlib.collections import PolyCollection
-
-    x = np.asarray(x, dtype=float)
-    if not x.size:
-        return
-    edges = np.concatenate([[x[0]], (x[1:] + x[:-1]) / 2, [x[-1]]])
-    lo = np.broadcast_to(np.asarray(low, dtype=float), x.shape)
-    hi = np.broadcast_to(np.asarray(high, dtype=float), x.shape)
-    colours = list(colours)
-    starts = [0] + [i for i in range(1, len(colours)) if colours[i] != colours[i - 1]]
-    polys, faces = [], []
-    for a, b in zip(starts, starts[1:] + [len(colours)]):
-        left, right = edges[a:b], edges[a + 1:b + 1]
-        top = np.column_stack([np.column_stack([left, right]).ravel(), np.repeat(hi[a:b], 2)])
-        bottom = np.column_stack([np.column_stack([left, right]).ravel(), np.repeat(lo[a:b], 2)])[::-1]
-        polys.append(np.concatenate([top, bottom]))
-        faces.append(colours[a])
-    ax.add_collection(PolyCollection(polys, facecolors=faces, edgecolors="none", linewidths=0))
 
 
 def _limits(score: str) -> list[tuple[float, str, str]]:
@@ -384,21 +98,21 @@ def z_bar_figure(labs: Sequence[str], values: Sequence[float], signals: Sequence
     lims = _limits(score)
     top = max(lims[-1][0] + 1.0, 4.0)
     bound = float(min(max(top, math.ceil(np.max(np.abs(v))) + 0.5 if n else top), 2 * top))
-    fig, ax = _new(_WIDE, bottom=0.2 if n <= MAX_BARS else 0.1)
+    fig, ax = new_figure(WIDE, bottom=0.2 if n <= MAX_BARS else 0.1)
     pos = np.arange(n, dtype=float)
     shown = np.clip(v, -bound, bound)
     colours = [SIGNAL_COLOUR.get(s, PALETTE["grey"]) for s in sig]
     if n <= MAX_BARS:
         ax.bar(pos, shown, width=0.8, color=colours, edgecolor="#333333", linewidth=0.3)
         marked = np.ones(n, dtype=bool)
-        _codes(ax, pos, labs_k, n, "laboratory (ranked by score)")
+        codes_under_axis(ax, pos, labs_k, n, "laboratory (ranked by score)")
     else:
         # The sorted scores sampled at PROFILE_POINTS positions plus every change of signal: the same
         # picture at screen resolution, a file of bounded size.
         change = np.flatnonzero(sig[1:] != sig[:-1])
         idx = np.unique(np.concatenate([np.linspace(0, n - 1, PROFILE_POINTS).round().astype(int),
                                         change, change + 1]))
-        _step_columns(ax, pos[idx], 0.0, shown[idx], [SIGNAL_COLOUR.get(s, PALETTE["grey"]) for s in sig[idx]])
+        step_columns(ax, pos[idx], 0.0, shown[idx], [SIGNAL_COLOUR.get(s, PALETTE["grey"]) for s in sig[idx]])
         marked = sig != "acceptable"
         ax.set_xlabel(f"{n} laboratories ranked by score")
         ax.set_xticks([])
@@ -420,14 +134,14 @@ def z_bar_figure(labs: Sequence[str], values: Sequence[float], signals: Sequence
     ax.set_ylim(-bound - 0.6, bound + 0.6)
     ax.set_ylabel(_score_label(score))
     ax.set_title(title, loc="left")
-    _signal_legend(ax, list(sig), words, loc="upper left", ncol=3)
+    signal_legend(ax, list(sig), words, loc="upper left", ncol=3)
     if png:
-        return _png(fig)
+        return png_bytes(fig)
     marks = {lab: (float(p), float(z)) for lab, p, z in zip(labs_k, pos, v)}
     caption = (f"{_score_label(score)} of {n} laboratories, ranked; lines at the "
                + " and ".join(f"{w} ±{lim:g}" for lim, w, _ in lims)
                + ". Colour, marker shape and the legend word show each signal.")
-    return _finish(fig, ax, key=key, title=title, caption=caption, kind="bar", marks=marks)
+    return finish_figure(fig, ax, key=key, title=title, caption=caption, kind="bar", marks=marks)
 
 
 def _score_label(score: str) -> str:
@@ -469,7 +183,7 @@ def density_figure(labs: Sequence[str], values: Sequence[float], *, assigned: fl
     ok = np.isfinite(x)
     labs_k = [lab for lab, k in zip(labs, ok) if k]
     x, u = x[ok], u[ok]
-    fig, ax = _new(_WIDE, right=0.97)
+    fig, ax = new_figure(WIDE, right=0.97)
     have_pt = drawable(assigned, sigma_pt, RANGE_SIGMAS)
     xu = x[u]
     if have_pt:
@@ -529,9 +243,9 @@ def density_figure(labs: Sequence[str], values: Sequence[float], *, assigned: fl
     ax.set_ylabel("density")
     ax.set_xlabel(f"result ({unit})" if unit else "result")
     ax.set_title(title, loc="left")
-    _legend(ax, frameon=False, fontsize=8, loc="upper right")
+    legend(ax, frameon=False, fontsize=8, loc="upper right")
     if png:
-        return _png(fig)
+        return png_bytes(fig)
     caption = (f"Kernel density of {int(u.sum())} results used (bandwidth "
                + (f"{KDE_BANDWIDTH_FACTOR:g}·σ_pt" if have_pt else "Silverman's rule")
                + "), each result as a rug tick; the assigned value and x_pt ± 2σ_pt marked. "
@@ -539,7 +253,7 @@ def density_figure(labs: Sequence[str], values: Sequence[float], *, assigned: fl
     if outside:
         caption += f" {outside} result(s) lie outside the plotted range."
     marks = {lab: (float(v), math.nan) for lab, v in zip(labs_k, x)}
-    return _finish(fig, ax, key=key, title=title, caption=caption, kind="vline", marks=marks)
+    return finish_figure(fig, ax, key=key, title=title, caption=caption, kind="vline", marks=marks)
 
 
 def youden_figure(labs: Sequence[str], a: Sequence[float], b: Sequence[float], *, names: tuple[str, str],
@@ -577,7 +291,7 @@ def youden_figure(labs: Sequence[str], a: Sequence[float], b: Sequence[float], *
     sig = np.asarray(signals if signals is not None else ["acceptable"] * len(xa), dtype=object)[ok]
     labs_k = [lab for lab, k in zip(labs, ok) if k]
     xa, xb = xa[ok], xb[ok]
-    fig, ax = _new(_SQUARE, left=0.11, right=0.70, bottom=0.12, top=0.92)
+    fig, ax = new_figure(SQUARE, left=0.11, right=0.70, bottom=0.12, top=0.92)
     (ca, cb), (sa, sb) = assigned, sigma_pt
     have = drawable(ca, sa, RANGE_SIGMAS) and drawable(cb, sb, RANGE_SIGMAS)
     if have:
@@ -619,14 +333,14 @@ def youden_figure(labs: Sequence[str], a: Sequence[float], b: Sequence[float], *
     ax.set_xlabel(names[0])
     ax.set_ylabel(names[1])
     ax.set_title(title, loc="left")
-    _legend(ax, frameon=False, fontsize=8, loc="upper left", bbox_to_anchor=(1.02, 1.0), borderaxespad=0)
+    legend(ax, frameon=False, fontsize=8, loc="upper left", bbox_to_anchor=(1.02, 1.0), borderaxespad=0)
     if png:
-        return _png(fig)
+        return png_bytes(fig)
     caption = (f"Youden plot of {len(xa)} laboratories: {names[0]} against {names[1]}, the assigned values "
                f"crossed, a {YOUDEN_LEVEL:.0%} ellipse. Points along the 45° line suggest a systematic error "
                "common to both. Results beyond the axes are drawn at its edge.")
     marks = {lab: (float(p), float(q)) for lab, p, q in zip(labs_k, xa, xb)}
-    return _finish(fig, ax, key=key, title=title, caption=caption, kind="point", marks=marks)
+    return finish_figure(fig, ax, key=key, title=title, caption=caption, kind="point", marks=marks)
 
 
 # --------------------------------------------------------------------------------------------- the round's set
@@ -756,8 +470,6 @@ def _draw(ev, task: tuple[str, ...]) -> dict:
     hom = getattr(ic, "homogeneity", None)
     table = getattr(ic, "homogeneity_table", None)
     if hom is not None and table is not None:
-        from roundscore.io.figures_precision import homogeneity_figure
-
         out["items"] = homogeneity_figure(list(table.items), np.asarray(table.values, float),
                                           item_labels=list(hom.item_labels), item_means=list(hom.item_means),
                                           general_mean=float(hom.mean), sigma_pt=float(hom.sigma_pt),
@@ -768,8 +480,6 @@ def _draw(ev, task: tuple[str, ...]) -> dict:
     names = getattr(ic, "stability_sets", None)
     if stab is not None and table is not None and table.sets is not None:
         names = names or (table.set_names[0], table.set_names[1])
-        from roundscore.io.figures_precision import stability_figure
-
         out["stability"] = stability_figure(
             list(table.sets), np.asarray(table.values, float), items=list(table.items), set_labels=names,
             mean_first=stab.mean_first, mean_second=stab.mean_second, u_first=stab.u_first, u_second=stab.u_second,
@@ -797,8 +507,6 @@ def _youden(ev, a: str, b: str) -> SvgFigure:
 
 
 def _mandel(ev, name: str) -> tuple[SvgFigure, ...]:
-    from roundscore.io.figures_precision import mandel_figure, mandel_limits
-
     frame = ev.extras["mandel"]
     g = ev.measurand_rows("mandel", name)
     critical = frame.attrs.get("critical", {}) if isinstance(frame.attrs, dict) else {}
@@ -824,17 +532,3 @@ def _mandel(ev, name: str) -> tuple[SvgFigure, ...]:
                                critical_1=float(lim.get(f"{stat}_1", math.nan)), key=f"mandel-{stat}-{name}",
                                title=f"{name}: Mandel's {stat} by laboratory")
                  for stat, vals in (("h", h), ("k", k)))
-
-
-#: The precision and item-check figures live in :mod:`.figures_precision` (which uses this module's
-#: helpers); their names are part of this one's, looked up on first use so either module can be
-#: imported first.
-_ELSEWHERE = ("homogeneity_figure", "mandel_figure", "mandel_limits", "stability_figure")
-
-
-def __getattr__(name: str):
-    if name in _ELSEWHERE:
-        from roundscore.io import figures_precision
-
-        return getattr(figures_precision, name)
-    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
