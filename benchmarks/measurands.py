@@ -79,7 +79,7 @@ import resource, sys, time
 import roundscore
 print(roundscore.__file__, file=sys.stderr)
 from roundscore.errors import RoundscoreError
-from roundscore.round import load_round
+from roundscore.model.round import load_round
 t = time.perf_counter()
 try:
     r = load_round(sys.argv[1]); what = f"loaded {len(r.measurands)} measurands"

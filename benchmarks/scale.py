@@ -11,7 +11,7 @@ times and peak memory are its own):
 
 1. builds the round with the tool's own seeded generator
    (:mod:`roundscore.bigdemo`): blank forms written by
-   ``roundscore.io.forms.write_form`` (what ``roundscore forms`` writes),
+   ``roundscore.intake.forms.write_form`` (what ``roundscore forms`` writes),
    then filled in;
 2. runs the pipeline: read (every form, validated), evaluate, write every
    output (CSV tables, summary workbook, one score sheet per lab, and the
@@ -84,9 +84,9 @@ def part_generate(a: argparse.Namespace) -> dict:
 
 def part_pipeline(a: argparse.Namespace) -> dict:
     from roundscore.evaluate import evaluate
-    from roundscore.io.readers import read_participants, read_results
+    from roundscore.intake.readers import read_participants, read_results
     from roundscore.pipeline import atomic_folder, write_outputs
-    from roundscore.round import load_round
+    from roundscore.intake.roundfile import load_round
 
     stages: dict[str, float] = {}
     seen: dict[str, list[float]] = {}

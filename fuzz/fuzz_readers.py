@@ -9,10 +9,10 @@ table, a CSV with semicolons). Each case mutates one seed: bytes flipped,
 inserted or cut, a zip member replaced by mutated XML, truncated or padded.
 Every case is read twice:
 
-* in this process with :func:`roundscore.io.xlsx.read_file_sheets`, which
+* in this process with :func:`roundscore.intake.xlsx.read_file_sheets`, which
   may only return rows or raise :class:`~roundscore.errors.InputError`;
 * every ``--isolated-every`` cases, a batch through
-  :func:`roundscore.io.safety.read_many`, which must return one
+  :func:`roundscore.intake.isolation.read_many`, which must return one
   ``FileRows`` or ``ReadFailure`` per file.
 
 Any other outcome is a crash: the input is saved under ``--save`` with a
@@ -37,8 +37,9 @@ ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
 from roundscore.errors import InputError  # noqa: E402
-from roundscore.io.safety import FileRows, ReadFailure, ReadLimits, read_many  # noqa: E402
-from roundscore.io.xlsx import read_file_sheets  # noqa: E402
+from roundscore.intake.isolation import FileRows, ReadFailure, read_many  # noqa: E402
+from roundscore.model.limits import ReadLimits  # noqa: E402
+from roundscore.intake.xlsx import read_file_sheets  # noqa: E402
 
 #: Limits for fuzzing: small, so that a mutation that inflates is refused quickly.
 FUZZ_LIMITS = ReadLimits(max_member_bytes=8 << 20, max_total_bytes=32 << 20, timeout_s=10.0,

@@ -13,9 +13,10 @@ __version__ = "0.1.0"
 
 from roundscore.errors import InputError, Problem, RoundFileError, RoundscoreError, StatisticsError
 from roundscore.evaluate import RoundEvaluation, evaluate
-from roundscore.io.readers import read_participants, read_results
+from roundscore.intake.readers import read_participants, read_results
 from roundscore.pipeline import load_and_evaluate, run_round
-from roundscore.round import Round, load_round
+from roundscore.model.round import Round
+from roundscore.intake.roundfile import load_round
 from roundscore.stats.robust import RobustEstimate, algorithm_a, made, niqr
 from roundscore.stats.scores import en_score, signal, z_prime_score, z_score, zeta_score
 from roundscore.stats.sigma import horwitz_thompson, sigma_from_precision

@@ -70,7 +70,7 @@ from roundscore.errors import ArchiveConflict, InputError, Problem, RoundFileErr
 
 if TYPE_CHECKING:  # only for annotations: the archive does not depend on the evaluation
     from roundscore.evaluate import RoundEvaluation
-    from roundscore.round import Round
+    from roundscore.model.round import Round
 
 __all__ = ["ARCHIVE_ENV", "APPLICATION_ID", "SCORE_COLUMNS", "HISTORY_COLUMNS", "MIGRATIONS", "SCHEMA_VERSION",
            "StoreOutcome", "archive_path", "store_round", "add_files", "lab_history",

@@ -9,8 +9,8 @@ pure reading and validation; nothing touches the archive file.
 * :func:`read_lab_file` reads a ``scores.csv`` or a per-lab workbook into one
   :class:`LabRows` per (scheme, round) for the chosen lab.  These files come
   from outside: a workbook is read like a returned form (package check, then
-  a bounded worker process: :func:`roundscore.io.safety.read_many`), a CSV by
-  the bounded text reader (:func:`roundscore.io.xlsx.read_csv_rows`); every
+  a bounded worker process: :func:`roundscore.intake.isolation.read_many`), a CSV by
+  the bounded text reader (:func:`roundscore.intake.xlsx.read_csv_rows`); every
   row of the chosen lab is checked for consistency and a lab sheet against
   its digests (:mod:`roundscore.archive_checks`).
 
@@ -31,7 +31,7 @@ import pandas as pd
 
 from roundscore.errors import InputError, Problem
 
-from roundscore.labcodes import read_lab_code
+from roundscore.model.labcodes import read_lab_code
 from roundscore.text import too_long
 
 from roundscore.archive_checks import (DIGEST_KEY, EDIT_HINT, RESUBMIT_HINT, ROW_DIGEST_COLUMN, canonical,
@@ -39,7 +39,7 @@ from roundscore.archive_checks import (DIGEST_KEY, EDIT_HINT, RESUBMIT_HINT, ROW
 
 # One definition of the score-row contract (evaluate.py) and of the score and signal names.
 from roundscore.evaluate import SCORE_COLUMNS, SCORE_FIELD as SCORE_VALUE_COLUMN
-from roundscore.round import SCORES as SCORE_NAMES
+from roundscore.model.round import SCORES as SCORE_NAMES
 from roundscore.stats.scores import SIGNALS
 
 __all__ = ["SCORE_COLUMNS", "ROW_FIELDS", "TEXT_FIELDS", "FLOAT_FIELDS", "SIGNALS", "SCORE_NAMES",
@@ -129,7 +129,7 @@ def normalise_rows(records: Sequence[dict[str, object]], *, file: str | None, sh
             if raw == "" or raw is None:
                 out.append(None)
                 continue
-            if col == "lab":  # the lab-code rule of every other reader (roundscore.labcodes)
+            if col == "lab":  # the lab-code rule of every other reader (roundscore.model.labcodes)
                 code, why = read_lab_code(int(raw) if isinstance(raw, float) and raw.is_integer() else raw)
                 if code is None:  # refused; the row keeps the text so that it is not also called empty
                     problems.append(Problem(message=why or "the lab code is empty", column=col, value=raw, **where))
@@ -229,8 +229,8 @@ def _records(file: Path, rows: list[list[object]], sheet: str | None) -> _Sheet:
 
 def _read_csv(file: Path) -> _Sheet:
     """A ``scores.csv``: read by the bounded text reader (size limit, no binary, any common encoding)."""
-    from roundscore.io.safety import DEFAULT_LIMITS
-    from roundscore.io.xlsx import read_csv_rows
+    from roundscore.model.limits import DEFAULT_LIMITS
+    from roundscore.intake.xlsx import read_csv_rows
 
     got = read_csv_rows(file, limits=DEFAULT_LIMITS)
     return _records(file, got.rows, None)
@@ -240,11 +240,12 @@ def _read_workbook(file: Path) -> _Sheet:
     """A lab's score sheet: its ``data`` and ``round`` sheets, read as a returned form is.
 
     The package is checked first (zip bombs, DTDs and entities, encryption:
-    :func:`roundscore.io.safety.inspect_workbook`) and the cells are read in a
-    bounded worker process (:func:`roundscore.io.safety.read_many`), so a
+    :func:`roundscore.intake.safety.inspect_workbook`) and the cells are read in a
+    bounded worker process (:func:`roundscore.intake.isolation.read_many`), so a
     hostile or broken file is refused by name and never takes the process down.
     """
-    from roundscore.io.safety import DEFAULT_LIMITS, read_many
+    from roundscore.model.limits import DEFAULT_LIMITS
+    from roundscore.intake.isolation import read_many
 
     got = read_many([file], ["data", "round"], jobs=1, limits=DEFAULT_LIMITS)[0]
     if not hasattr(got, "sheets"):  # a ReadFailure: refused, crashed, out of memory or timed out

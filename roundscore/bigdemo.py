@@ -14,7 +14,7 @@ round folder in the shape a coordinator has after the returns come in:
     Lab code, an invented name and contact.
 ``forms/``
     One submission workbook per lab, made with
-    :func:`roundscore.io.forms.write_form` (what ``roundscore forms``
+    :func:`roundscore.intake.forms.write_form` (what ``roundscore forms``
     writes) and then *filled in*: the result, uncertainty and method cells
     are written into the workbook's sheet XML, as a spreadsheet program
     would store them, leaving every other part of the form untouched.
@@ -39,7 +39,7 @@ from typing import Sequence
 import numpy as np
 
 from roundscore.support import parallel
-from roundscore.io.forms import FIRST_ROW, RESULTS_SHEET, write_form
+from roundscore.intake.forms import FIRST_ROW, RESULTS_SHEET, write_form
 from roundscore.outputs.outfolder import atomic_folder
 
 __all__ = ["make_big_round", "BigRound", "BIG_SEED", "BIG_ID", "fill_form"]
@@ -207,7 +207,7 @@ def _col(j: int) -> str:
 
 
 def _write_batch(batch: Sequence[tuple]) -> list[int]:
-    from roundscore.round import load_round
+    from roundscore.intake.roundfile import load_round
 
     rnd = load_round(parallel.shared())
     out = []

@@ -16,12 +16,12 @@ import numpy as np
 import pandas as pd
 
 from roundscore.errors import StatisticsError
-from roundscore.io.readers import Participant
+from roundscore.model.inputs import Participant
 from roundscore.ranges import sigma_relative_problem
-from roundscore.round import MeasurandSettings, Round
+from roundscore.model.round import MeasurandSettings, Round
 from roundscore.stats import robust, scores as sc, sigma as sg
-from roundscore.table import ResultTable
-from roundscore.units import UnitError, mass_fraction
+from roundscore.model.table import ResultTable
+from roundscore.model.units import UnitError, mass_fraction
 
 if TYPE_CHECKING:
     from roundscore.stages.items import ItemOutcome

@@ -17,10 +17,11 @@ from roundscore.evaluate import AUDIT_COLUMNS, SCORE_COLUMNS, STATISTICS_COLUMNS
 from roundscore.support.filenames import lab_file_name
 from roundscore.outputs.csvout import write_csv
 from roundscore.outputs.outfolder import atomic_folder, check_target
-from roundscore.io.readers import check_labs, read_participants, read_results
+from roundscore.intake.readers import check_labs, read_participants, read_results
 from roundscore.outputs.workbook import lab_payload, write_lab_workbook, write_summary
 from roundscore.support.parallel import run_batches, shared
-from roundscore.round import Round, load_round, with_warnings
+from roundscore.model.round import Round
+from roundscore.intake.roundfile import load_round, result_files, with_warnings
 
 __all__ = ["run_round", "write_outputs", "atomic_folder", "Outputs", "load_and_evaluate", "round_inputs"]
 
@@ -51,7 +52,7 @@ def round_inputs(rnd: Round, archive: str | Path | None = None, *,
     protect: list[tuple[Path, str]] = [(rnd.folder, "the round folder"),
                                        (rnd.path, "the round file")]
     try:
-        protect += [(f, "a results file") for f in rnd.result_files()]
+        protect += [(f, "a results file") for f in result_files(rnd)]
     except RoundFileError:
         if not for_forms:
             raise

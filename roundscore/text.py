@@ -22,7 +22,7 @@ MESSAGE_VALUE_CHARS = 60
 
 #: Longest text, in characters, of each kind of text that reaches an output (the README lists them).
 #: Longer text is refused where it is read, with the file and key or cell named; nothing is truncated
-#: silently. The lab code's own limit is roundscore.labcodes.MAX_LAB_CODE.
+#: silently. The lab code's own limit is roundscore.model.labcodes.MAX_LAB_CODE.
 TEXT_LIMITS: dict[str, int] = {
     "round id": 64,            # also a file name part (blank forms) and an archive key
     "scheme": 64,              # an archive key

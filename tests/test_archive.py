@@ -403,7 +403,7 @@ def test_censored_results_are_kept_as_text(tmp_path, cell, stored, problem):
 
 def test_round_keys_needed_for_the_archive_name_the_round_file(tmp_path):
     from roundscore.errors import RoundFileError
-    from roundscore.round import load_round
+    from roundscore.intake.roundfile import load_round
 
     from .conftest import write_round
 

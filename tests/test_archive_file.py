@@ -20,7 +20,7 @@ import pytest
 from roundscore import archive, archive_db
 from roundscore.archive_files import read_lab_file
 from roundscore.errors import ArchiveConflict, ArchiveError, RoundFileError
-from roundscore.round import load_round
+from roundscore.intake.roundfile import load_round
 
 from .test_archive import count, scores_frame, store
 from .test_history_roundtrip import run_cli, small_round

@@ -10,9 +10,9 @@ import pytest
 import xlsxwriter
 
 from roundscore.bigdemo import BIG_ID, fill_form, make_big_round
-from roundscore.io.readers import read_results
-from roundscore.io.xlsx import read_rows
-from roundscore.round import load_round
+from roundscore.intake.readers import read_results
+from roundscore.intake.xlsx import read_rows
+from roundscore.intake.roundfile import load_round
 
 
 @pytest.fixture(scope="module")

@@ -16,7 +16,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from roundscore.cells import MAX_CELL_TEXT, AmbiguousNumber, Cell, CellError, parse_cell
+from roundscore.intake.cells import MAX_CELL_TEXT, AmbiguousNumber, Cell, CellError, parse_cell
 from roundscore.errors import RoundscoreError
 
 

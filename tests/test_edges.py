@@ -127,7 +127,7 @@ def test_confidence_outside_the_open_unit_interval_is_refused(make_round, capsys
 
 
 def test_confidence_inside_the_interval_is_kept(make_round):
-    from roundscore.round import load_round
+    from roundscore.intake.roundfile import load_round
 
     for value, expected in (("0.3", 0.3), (repr(CONFIDENCE_MAX), CONFIDENCE_MAX), (None, 0.95)):
         extra = f"confidence = {value}" if value else ""
@@ -173,8 +173,8 @@ def test_a_form_whose_hidden_sheet_asks_for_1e20_replicates(make_round, capsys, 
     # int(1e20) replicate columns would have exhausted the worker's memory; now the form is refused by name.
     import openpyxl
 
-    from roundscore.io.forms import INFO_SHEET, write_form
-    from roundscore.round import load_round
+    from roundscore.intake.forms import INFO_SHEET, write_form
+    from roundscore.intake.roundfile import load_round
 
     folder = make_round(toml("sigma_pt = 0.1", round_extra='results = "returned"'))
     (folder / "returned").mkdir()

@@ -8,9 +8,9 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from roundscore.io.readers import read_participants, read_results
+from roundscore.intake.readers import read_participants, read_results
 from roundscore.evaluate import evaluate
-from roundscore.round import load_round
+from roundscore.intake.roundfile import load_round
 from roundscore.stats.robust import algorithm_a
 from roundscore.stats.sigma import horwitz_thompson
 

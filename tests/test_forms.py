@@ -1,4 +1,4 @@
-"""Blank submission forms (roundscore.io.forms): written, filled in as a lab would, read back.
+"""Blank submission forms (roundscore.intake.forms): written, filled in as a lab would, read back.
 
 The form layout is our own design; the checks are internal (round trip, protection, validation).
 """
@@ -14,9 +14,9 @@ import pytest
 
 from roundscore.cli import main
 from roundscore.errors import InputError
-from roundscore.io.forms import FIRST_ROW, RESULTS_SHEET, write_form
-from roundscore.io.readers import read_results
-from roundscore.round import load_round
+from roundscore.intake.forms import FIRST_ROW, RESULTS_SHEET, write_form
+from roundscore.intake.readers import read_results
+from roundscore.intake.roundfile import load_round
 
 TOML = """
 [round]

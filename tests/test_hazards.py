@@ -25,8 +25,8 @@ import xlsxwriter
 from roundscore import pipeline
 from roundscore.cli import main
 from roundscore.errors import InputError, RoundFileError
-from roundscore.io.forms import write_forms
-from roundscore.round import load_round
+from roundscore.intake.forms import write_forms
+from roundscore.intake.roundfile import load_round, result_files
 
 HOSTILE = [
     '=HYPERLINK("http://example.invalid/x","click me")',
@@ -235,7 +235,7 @@ def test_symlink_out_of_the_round_folder_is_refused(make_round, tmp_path):
     (folder / "forms").mkdir()
     (folder / "forms" / "a.csv").symlink_to(secret)
     with pytest.raises(RoundFileError, match="outside the round folder"):
-        load_round(folder).result_files()
+        result_files(load_round(folder))
 
 
 # ------------------------------------------------------------------ hostile forms in a forms round
@@ -338,7 +338,7 @@ def test_hidden_long_table_workbook_warns(make_round, capsys):
 
 
 def test_errors_are_input_errors_not_tracebacks(tmp_path):
-    from roundscore.io.xlsx import read_rows
+    from roundscore.intake.xlsx import read_rows
 
     p = tmp_path / "x.xlsx"
     p.write_text("hello")

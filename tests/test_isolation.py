@@ -17,9 +17,9 @@ from pathlib import Path
 import pytest
 import xlsxwriter
 
-from roundscore.io.isolation import READER_HOOK_ENV, FileRows, ReadFailure, read_many
-from roundscore.io.safety import ReadLimits
-from roundscore.io.xlsx import read_file_sheets
+from roundscore.intake.isolation import READER_HOOK_ENV, FileRows, ReadFailure, read_many
+from roundscore.model.limits import ReadLimits
+from roundscore.intake.xlsx import read_file_sheets
 
 MiB = 1 << 20
 
@@ -145,7 +145,7 @@ def test_environment_hook_aborts_one_file_in_a_separate_run(files, tmp_path):
     # The whole program survives a real os.abort() in a reader, through the environment hook.
     code = (
         "import sys; sys.path.insert(0, %r)\n"
-        "from roundscore.io.isolation import read_many, ReadFailure\n"
+        "from roundscore.intake.isolation import read_many, ReadFailure\n"
         "got = read_many(sys.argv[1:], ['Results'], jobs=2)\n"
         "print(sum(isinstance(g, ReadFailure) for g in got), len(got))\n"
     ) % str(Path(__file__).parent)
@@ -190,8 +190,8 @@ def test_participants_workbook_is_read_in_isolation(make_round, monkeypatch):
     # The coordinator's own tables (participants, homogeneity, stability) go through the same bounded
     # reader as the returned forms: a reader crash on one is reported by name, and the program lives on.
     from roundscore.errors import InputError
-    from roundscore.io.readers import read_participants
-    from roundscore.round import load_round
+    from roundscore.intake.readers import read_participants
+    from roundscore.intake.roundfile import load_round
 
     folder = make_round('[round]\nid="P1"\nparticipants = "participants.xlsx"\n[measurand.cu]\nunit="mg/kg"\n'
                         'sigma_pt=0.5\n', "lab,measurand,replicate,value\nL1,cu,1,1.0\n")

@@ -327,7 +327,7 @@ def test_hostile_workbooks_are_refused_by_name(sheets, tmp_path, db, how, words)
 
 
 def test_score_rows_follow_the_lab_code_rule():
-    """history add reads lab codes by the same rule as every other reader (roundscore.labcodes)."""
+    """history add reads lab codes by the same rule as every other reader (roundscore.model.labcodes)."""
     from roundscore.archive_files import ROW_FIELDS, normalise_rows
 
     good = {c: None for c in ROW_FIELDS}

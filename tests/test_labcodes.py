@@ -1,6 +1,6 @@
 """Lab codes: the rule (characters, length, NFKC, case), the file names made from them, and clashes.
 
-Source of expected values: the tool's own documented rule (roundscore.labcodes, roundscore.support.filenames,
+Source of expected values: the tool's own documented rule (roundscore.model.labcodes, roundscore.support.filenames,
 README "Inputs roundscore refuses"); Unicode facts from the Unicode Standard (UAX #15 normalisation
 forms, Table 4-1 general categories; checked with Python's unicodedata); Windows reserved device names
 from Microsoft's "Naming Files, Paths, and Namespaces" (from memory); file-name length limits (255 bytes
@@ -17,8 +17,8 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from roundscore.support.filenames import MAX_STEM_BYTES, WINDOWS_RESERVED, file_stem, lab_file_name
-from roundscore.io.forms import form_file_name
-from roundscore.labcodes import MAX_LAB_CODE, clash_problems, lab_key, read_lab_code
+from roundscore.intake.forms import form_file_name
+from roundscore.model.labcodes import MAX_LAB_CODE, clash_problems, lab_key, read_lab_code
 
 # ------------------------------------------------------------------------------------------- the rule
 

@@ -16,10 +16,10 @@ import xlsxwriter
 
 from roundscore.cli import main
 from roundscore.errors import InputError, RoundFileError
-from roundscore.io.forms import FIRST_ROW, INFO_SHEET, RESULTS_SHEET, write_form
-from roundscore.io.readers import read_results
+from roundscore.intake.forms import FIRST_ROW, INFO_SHEET, RESULTS_SHEET, write_form
+from roundscore.intake.readers import read_results
 from roundscore.pipeline import load_and_evaluate
-from roundscore.round import load_round
+from roundscore.intake.roundfile import load_round
 
 TOML = """
 [round]
@@ -261,7 +261,7 @@ def test_forms_command_refuses_codes_before_writing(make_round, capsys, tmp_path
 
 
 def test_blank_forms_for_odd_codes_are_distinct_and_read_back(make_round, tmp_path):
-    from roundscore.io.forms import write_forms
+    from roundscore.intake.forms import write_forms
 
     codes = ["K01", "a/b", "a_b", "a\\b", "a:b", "CON", ".x", "מעבדה-7", "🧪" * 32, "한" * 32, "X" * 32]
     rnd = load_round(make_round(FORMS_TOML.format(extra="").replace('id = "LC-F"', 'id = "LC/F 1"')))

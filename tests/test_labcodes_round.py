@@ -5,7 +5,7 @@ Every lab gets its own score sheet and page (distinct files, each naming its own
 drawn for the longest allowed code, the inputs are unchanged, and no control character from a
 participant's text reaches the terminal raw.
 
-Source of expected values: the tool's own documented rule (roundscore.labcodes, roundscore.support.filenames);
+Source of expected values: the tool's own documented rule (roundscore.model.labcodes, roundscore.support.filenames);
 no outside reference values here.
 """
 
@@ -23,7 +23,7 @@ import pandas as pd
 import pytest
 
 from roundscore.support.filenames import file_stem
-from roundscore.labcodes import MAX_LAB_CODE
+from roundscore.model.labcodes import MAX_LAB_CODE
 
 ROOT = Path(__file__).resolve().parents[1]
 

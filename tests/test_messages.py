@@ -16,15 +16,15 @@ from pathlib import Path
 import openpyxl
 import pytest
 
-from roundscore.cells import HINT_DECLARE
+from roundscore.intake.cells import HINT_DECLARE
 from roundscore.cli import main
 from roundscore.commands.history import refused_summary
 from roundscore.errors import InputError, Problem, RoundFileError, shown_value
-from roundscore.io.forms import DECIMAL_CELL, FIRST_ROW, RESULTS_SHEET, write_form
-from roundscore.io.readers import read_results
+from roundscore.intake.forms import DECIMAL_CELL, FIRST_ROW, RESULTS_SHEET, write_form
+from roundscore.intake.readers import read_results
 from roundscore.pipeline import load_and_evaluate
-from roundscore.round import load_round
-from roundscore.table import MAX_LISTED_AMBIGUOUS
+from roundscore.intake.roundfile import load_round
+from roundscore.intake.validate import MAX_LISTED_AMBIGUOUS
 
 FORMS_TOML = """
 [round]

@@ -344,7 +344,7 @@ def _alive(pid: int) -> bool:
 _ORPHAN_READER = """
 import os, sys, time
 from pathlib import Path
-from roundscore.io.isolation import read_many
+from roundscore.intake.isolation import read_many
 folder = Path(sys.argv[1])
 def hang(path, sheets, limits):
     (folder / str(os.getpid())).write_text("")

@@ -13,11 +13,11 @@ import pytest
 from roundscore.support import parallel
 from roundscore.bigdemo import make_big_round
 from roundscore.errors import InputError, Problem
-from roundscore.io import isolation, readers
+from roundscore.intake import isolation, readers
 from roundscore.support.parallel import batches, resolve_jobs, run_batches
 from roundscore.outputs.outfolder import MARKER_NAME
 from roundscore.pipeline import atomic_folder, load_and_evaluate, write_outputs
-from roundscore.round import load_round
+from roundscore.intake.roundfile import load_round
 
 
 def _square(batch):

@@ -347,7 +347,7 @@ def test_double_grubbs_skipped_above_the_lab_limit(make_round):
     lines = ["lab,measurand,replicate,value"] + [
         f"L{i + 1},cu,{r},{m + (0.03 if r == 1 else -0.03) * (1 + i % 3):.3f}" for i, m in enumerate(means)
         for r in (1, 2)]
-    # Three-decimal texts such as 20.310: the round declares the decimal point (roundscore.cells).
+    # Three-decimal texts such as 20.310: the round declares the decimal point (roundscore.intake.cells).
     ev = load_and_evaluate(make_round(_toml('decimal = "point"'), "\n".join(lines) + "\n"))
     assert not ev.extras["screens"]["test"].str.startswith("grubbs_double").any()
     notes = ev.audit.query("step == 'screen' and action == 'note'")["reason"].tolist()

@@ -1,6 +1,6 @@
 """Property tests (hypothesis): invariances the standards imply, and a parser that only says no politely.
 
-* The cell parser raises nothing but :class:`~roundscore.cells.CellError`.
+* The cell parser raises nothing but :class:`~roundscore.intake.cells.CellError`.
 * Algorithm A (ISO 13528 C.3.1) is a function of the set of results:
   permutation invariant, and location/scale equivariant (x → a·x + b gives
   x* → a·x* + b, s* → |a|·s*), since its start (median, MADe) and its
@@ -22,12 +22,13 @@ import pytest
 from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 
-from roundscore.cells import AmbiguousNumber, CellError, parse_cell
+from roundscore.intake.cells import AmbiguousNumber, CellError, parse_cell
 from roundscore.evaluate import evaluate
-from roundscore.round import load_round
+from roundscore.intake.roundfile import load_round
 from roundscore.stats.precision import precision
 from roundscore.stats.robust import algorithm_a
-from roundscore.table import Record, build_table
+from roundscore.model.table import Record
+from roundscore.intake.validate import build_table
 
 FAST = settings(max_examples=150, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 

@@ -1,4 +1,4 @@
-"""round.toml validation (roundscore.round): every mistake names the file, key, what was found and allowed."""
+"""round.toml validation (roundscore.model.round): every mistake names the file, key, what was found and allowed."""
 # Source of expected values: the tool's own contract (internal behaviour); no outside reference values here.
 
 from __future__ import annotations
@@ -6,7 +6,7 @@ from __future__ import annotations
 import pytest
 
 from roundscore.errors import RoundFileError
-from roundscore.round import load_round
+from roundscore.intake.roundfile import load_round, result_files
 
 GOOD = """
 [round]
@@ -88,13 +88,13 @@ def test_missing_round_file(tmp_path):
 def test_missing_results_file_named(make_round):
     rnd = load_round(make_round(GOOD))
     with pytest.raises(RoundFileError, match="'results.csv' not found"):
-        rnd.result_files()
+        result_files(rnd)
 
 
 def test_limits_table_configures_the_readers(make_round):
-    # Internal behaviour: [limits] sizes in MiB reach the readers (roundscore.io.safety.ReadLimits).
+    # Internal behaviour: [limits] sizes in MiB reach the readers (roundscore.model.limits.ReadLimits).
     from roundscore.errors import InputError
-    from roundscore.io.readers import read_results
+    from roundscore.intake.readers import read_results
 
     rows = "lab,measurand,replicate,value\n" + "".join(f"L{i},a,1,{i}.5\n" for i in range(150))
     folder = make_round('[round]\nid="R"\n[limits]\nmax_text_mib = 0.001\ntimeout = 3\n'

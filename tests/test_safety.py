@@ -17,9 +17,9 @@ import pytest
 import xlsxwriter
 
 from roundscore.errors import InputError
-from roundscore.io.safety import (DEFLATE_MAX_RATIO, OLE2_SIGNATURE, ReadLimits, WorkbookCheck,
-                                  inspect_workbook)
-from roundscore.io.xlsx import read_file_sheets, read_workbook_rows
+from roundscore.intake.safety import DEFLATE_MAX_RATIO, OLE2_SIGNATURE, WorkbookCheck, inspect_workbook
+from roundscore.model.limits import ReadLimits
+from roundscore.intake.xlsx import read_file_sheets, read_workbook_rows
 
 MiB = 1 << 20
 
@@ -290,7 +290,7 @@ REGRESSIONS = sorted((Path(__file__).parent / "data" / "fuzz_regressions").glob(
 @pytest.mark.parametrize("path", [p for p in REGRESSIONS if not p.name.endswith(".txt")], ids=lambda p: p.name)
 def test_fuzz_regressions(path: Path):
     # Crashers kept from fuzz/fuzz_readers.py (see tests/data/fuzz_regressions/README.md).
-    from roundscore.io.safety import FileRows, ReadFailure, read_many
+    from roundscore.intake.isolation import FileRows, ReadFailure, read_many
 
     try:
         read_file_sheets(path, ["Results", "form-info"])

@@ -1,11 +1,11 @@
-"""σ_pt sources (roundscore.stats.sigma) and unit handling (roundscore.units)."""
+"""σ_pt sources (roundscore.stats.sigma) and unit handling (roundscore.model.units)."""
 
 from __future__ import annotations
 
 import pytest
 
 from roundscore.stats.sigma import horwitz_thompson, sigma_from_precision
-from roundscore.units import UnitError, factor, mass_fraction
+from roundscore.model.units import UnitError, factor, mass_fraction
 
 
 @pytest.mark.parametrize("c, rsd", [

@@ -3,7 +3,7 @@ bounded, a huge round file or measurand count is refused before the work starts,
 figure limit gets score strips instead of thousands of figures.
 
 Source of expected values: the tool's own documented limits (roundscore.text.TEXT_LIMITS,
-roundscore.round.MAX_MEASURANDS / MAX_ROUND_FILE_BYTES, roundscore.outputs.figures.FIGURES_MAX_MEASURANDS);
+roundscore.intake.roundfile.MAX_MEASURANDS / MAX_ROUND_FILE_BYTES, roundscore.outputs.figures.FIGURES_MAX_MEASURANDS);
 Excel's 31-character sheet names (Microsoft's Excel specifications and limits, from memory).
 """
 
@@ -14,11 +14,11 @@ from pathlib import Path
 
 import pytest
 
-import roundscore.round as round_module
+import roundscore.intake.roundfile as round_module
 from roundscore.cli import main
 from roundscore.errors import InputError, Problem, RoundFileError
 from roundscore.pipeline import load_and_evaluate
-from roundscore.round import load_round
+from roundscore.intake.roundfile import load_round
 from roundscore.text import TEXT_LIMITS, clip, quote, terminal_text
 
 TOML = """
@@ -114,7 +114,7 @@ def test_too_many_measurands_refused_at_load(make_round, monkeypatch):
     ("comment", "C" * 5000, "the comment is 5000 characters long; at most 200"),
 ])
 def test_result_texts_are_bounded(make_round, capsys, monkeypatch, column, text, words):
-    import roundscore.table as table_module
+    import roundscore.intake.validate as table_module
 
     results = RESULTS.replace("lab,measurand,replicate,value", f"lab,measurand,replicate,value,{column}")
     lines = results.splitlines()

@@ -1,4 +1,4 @@
-"""Importing results (roundscore.table, io.readers): the long layout, cells, units and every problem listed.
+"""Importing results (roundscore.model.table, io.readers): the long layout, cells, units and every problem listed.
 
 The rules checked here are the issue's import contract (common practice for PT result sheets).
 """
@@ -11,8 +11,8 @@ import pytest
 import xlsxwriter
 
 from roundscore.errors import InputError
-from roundscore.io.readers import read_results
-from roundscore.round import load_round
+from roundscore.intake.readers import read_results
+from roundscore.intake.roundfile import load_round
 
 TOML = """
 [round]

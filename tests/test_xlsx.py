@@ -13,10 +13,10 @@ from pathlib import Path
 import pytest
 import xlsxwriter
 
-from roundscore.cells import parse_cell
+from roundscore.intake.cells import parse_cell
 from roundscore.errors import InputError
-from roundscore.io.safety import ReadLimits
-from roundscore.io.xlsx import read_csv_rows, read_file_sheets, read_rows
+from roundscore.model.limits import ReadLimits
+from roundscore.intake.xlsx import read_csv_rows, read_file_sheets, read_rows
 
 TABLE = "lab;measurand;replicate;value;comment\nK01;lead;1;0,512;Müller & Söhne\nK02;lead;1;1.234,5;\n"
 
@@ -35,7 +35,7 @@ def test_encodings_semicolon_and_decimal_comma(tmp_path: Path, encoding: str, pr
     assert rows[0] == ["lab", "measurand", "replicate", "value", "comment"]  # no BOM left on 'lab'
     assert rows[1][4] == "Müller & Söhne"
     assert parse_cell(rows[1][3]).value == 0.512
-    # 1.234,5 reads one way only with a decimal comma: refused unless the round declares it (roundscore.cells).
+    # 1.234,5 reads one way only with a decimal comma: refused unless the round declares it (roundscore.intake.cells).
     assert parse_cell(rows[2][3], decimal="comma").value == 1234.5
     assert rows[2][4] is None
 

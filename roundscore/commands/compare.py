@@ -11,7 +11,7 @@ Forms
 
 ``--confidence 0.99`` changes the level (default 0.95), ``--method`` forces the
 pooled-SD or Welch test, ``--json`` prints JSON instead of text.  Numbers are
-read as in result files (decimal point or comma, see :mod:`roundscore.cells`); a
+read as in result files (decimal point or comma, see :mod:`roundscore.intake.cells`); a
 number whose reading depends on the decimal mark (``1,234``) is refused unless
 ``--decimal comma`` or ``--decimal point`` says which is meant.
 Bad input raises :class:`~roundscore.errors.InputError` naming the file,
@@ -27,7 +27,7 @@ import sys
 from pathlib import Path
 from typing import Any
 
-from roundscore.cells import DECIMAL_MARKS, AmbiguousNumber, CellError, parse_cell
+from roundscore.intake.cells import DECIMAL_MARKS, AmbiguousNumber, CellError, parse_cell
 from roundscore.errors import InputError, Problem
 from roundscore.ranges import confidence_problem, magnitude_problem
 from roundscore.stats.compare import DEFAULT_CONFIDENCE, MIN_GROUP_SIZE, compare_one, compare_two

@@ -143,9 +143,9 @@ def run_demo(args: argparse.Namespace) -> int:
 
 
 def run_forms(args: argparse.Namespace) -> int:
-    from roundscore.io.forms import write_forms
-    from roundscore.io.readers import read_participants
-    from roundscore.round import load_round
+    from roundscore.intake.forms import write_forms
+    from roundscore.intake.readers import read_participants
+    from roundscore.intake.roundfile import load_round
 
     rnd = load_round(args.round)
     if args.labs:

@@ -59,16 +59,16 @@ from typing import Any, Literal, get_args
 
 import numpy as np
 
-from roundscore.cells import CellError, parse_cell
+from roundscore.intake.cells import CellError, parse_cell
 from roundscore.errors import InputError, Problem, StatisticsError, cell_ref, is_text_file
-from roundscore.io.readers import read_item_table
-from roundscore.io.xlsx import SheetRows
+from roundscore.intake.readers import read_item_table
+from roundscore.intake.xlsx import SheetRows
 from roundscore.ranges import magnitude_problem
-from roundscore.round import MeasurandSettings, Round
+from roundscore.model.round import MeasurandSettings, Round
 from roundscore.stats import items as st
-from roundscore.table import cell_label, summarise_ambiguous
+from roundscore.intake.validate import cell_label, summarise_ambiguous
 from roundscore.text import shown_list, too_long
-from roundscore.units import UnitError, factor
+from roundscore.model.units import UnitError, factor
 
 __all__ = [
     "ITEMS_COLUMNS",

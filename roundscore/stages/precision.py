@@ -1,7 +1,7 @@
 """Precision, outlier screens and method groups in the round (ISO 5725-2, ISO 13528).
 
 The stage reads the evaluation's lab table (which labs are used) and the
-replicates of :class:`~roundscore.table.ResultTable`, and adds four tables:
+replicates of :class:`~roundscore.model.table.ResultTable`, and adds four tables:
 
 ``precision``
     One row per measurand: p, n̄, s_r, s_L, s_R, r, R after the ISO 5725-2
@@ -69,11 +69,11 @@ import numpy as np
 import pandas as pd
 
 from roundscore.errors import RoundFileError, StatisticsError
-from roundscore.round import Round
+from roundscore.model.round import Round
 from roundscore.stats import compare as cmp
 from roundscore.stats import outliers as ol
 from roundscore.stats import precision as pr
-from roundscore.table import ResultTable
+from roundscore.model.table import ResultTable
 
 if TYPE_CHECKING:
     from roundscore.evaluate import MeasurandResult

@@ -20,7 +20,7 @@ the blank forms ``ROUND-LAB.xlsx``) calls :func:`file_stem`. The rule:
   names are equal only if the two codes' digests agree in 64 bits.
 
 Codes that differ only in letter case are refused at import
-(:mod:`roundscore.labcodes`), so the names are distinct on case-insensitive
+(:mod:`roundscore.model.labcodes`), so the names are distinct on case-insensitive
 file systems too.
 """
 

@@ -1,7 +1,7 @@
 """Worker processes and signals: one start method, workers that die with their parent, SIGTERM as an error.
 
 Every process roundscore starts (the pools of :mod:`roundscore.support.parallel` and
-the isolated readers of :mod:`roundscore.io.isolation`) calls
+the isolated readers of :mod:`roundscore.intake.isolation`) calls
 :func:`worker_started` first. On Linux it asks the kernel to end the worker
 when its parent dies (``PR_SET_PDEATHSIG``), so a ``kill -9`` of the command
 leaves no worker behind; everywhere, a small thread also watches the parent's

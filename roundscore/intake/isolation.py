@@ -23,7 +23,7 @@ from typing import Callable, Sequence
 
 from roundscore.errors import InputError, Problem
 from roundscore.support.processes import context, worker_started
-from roundscore.io.safety import DEFAULT_LIMITS, MiB, ReadLimits
+from roundscore.model.limits import DEFAULT_LIMITS, MiB, ReadLimits
 
 __all__ = ["ReadFailure", "FileRows", "read_many", "resolve_read_jobs", "READER_HOOK_ENV", "BATCH_FILES"]
 
@@ -70,7 +70,7 @@ class FileRows:
     sheets: tuple  # tuple[SheetRows, ...]
 
     def sheet(self, name: str | None):
-        """The :class:`~roundscore.io.xlsx.SheetRows` of sheet ``name`` (None: the first read)."""
+        """The :class:`~roundscore.intake.xlsx.SheetRows` of sheet ``name`` (None: the first read)."""
         if name is None:
             return self.sheets[0]
         for s in self.sheets:
@@ -83,7 +83,7 @@ Reader = Callable[[str, Sequence[str | None], ReadLimits], FileRows]
 
 
 def _default_reader(path: str, sheets: Sequence[str | None], limits: ReadLimits) -> FileRows:
-    from roundscore.io.xlsx import read_file_sheets
+    from roundscore.intake.xlsx import read_file_sheets
 
     return FileRows(file=path, sheets=tuple(read_file_sheets(path, sheets, limits=limits)))
 

@@ -14,10 +14,10 @@ broken file from harming the run:
    notes what a reader should warn about: macros (never run: only cell
    values are read), hidden sheets and rows, merged cells, and formulas
    without a cached value (whose value is unknown without recalculating).
-2. :func:`read_many` reads files in worker processes, each bounded in
+2. :func:`roundscore.intake.isolation.read_many` reads files in worker processes, each bounded in
    address space (``RLIMIT_AS``) and time. A worker that aborts, segfaults,
    runs out of memory or hangs costs only the file it was reading, which is
-   reported as a :class:`ReadFailure` with the reason; a fresh worker takes
+   reported as a :class:`~roundscore.intake.isolation.ReadFailure` with the reason; a fresh worker takes
    over the rest of its batch. Results come back in input order, identical
    for any number of workers.
 
@@ -45,13 +45,10 @@ from pathlib import Path
 from typing import Callable, Mapping, Sequence
 
 from roundscore.errors import InputError
+from roundscore.model.limits import DEFAULT_LIMITS, MiB, ReadLimits
 
-__all__ = [
-    "ReadLimits", "WorkbookCheck", "inspect_workbook", "ReadFailure", "FileRows", "read_many",
-    "DEFAULT_LIMITS", "OLE2_SIGNATURE", "DEFLATE_MAX_RATIO", "LIMIT_MAX",
-]
+__all__ = ["WorkbookCheck", "inspect_workbook", "OLE2_SIGNATURE", "DEFLATE_MAX_RATIO"]
 
-MiB = 1 << 20
 #: Compound File Binary signature ([MS-CFB] 2.2): encrypted OOXML or a legacy .xls workbook.
 OLE2_SIGNATURE = b"\xd0\xcf\x11\xe0\xa1\xb1\x1a\xe1"
 #: Local file header signature of a zip archive (APPNOTE.TXT 4.3.7).
@@ -60,56 +57,6 @@ ZIP_SIGNATURE = b"PK\x03\x04"
 _CHUNK = 1 * MiB
 #: Markup that declares a DTD or an entity (XML 1.0, sections 2.8 and 4.2).
 _DTD_MARKERS = (b"<!DOCTYPE", b"<!ENTITY")
-#: Largest value of each ReadLimits field: far above any real round, and small enough for the system calls
-#: that use them (a timeout past about 2.9e5 years overflows the poll timeout; RLIMIT_AS takes a 64-bit size).
-LIMIT_MAX: dict[str, int | float] = {
-    "max_member_bytes": 4096 * (1 << 20), "max_total_bytes": 16384 * (1 << 20), "max_members": 100_000,
-    "timeout_s": 3600.0, "memory_bytes": 65536 * (1 << 20), "max_text_bytes": 4096 * (1 << 20),
-}
-
-
-
-@dataclass(frozen=True, slots=True, kw_only=True)
-class ReadLimits:
-    """Bounds on reading one untrusted file.
-
-    Attributes
-    ----------
-    max_member_bytes : int
-        Largest uncompressed size of one part of a workbook (64 MiB: a
-        returned form is a few kB, a large long-layout table a few MB).
-    max_total_bytes : int
-        Largest uncompressed size of all parts together (256 MiB).
-    max_members : int
-        Most parts in one workbook (2000; a form has about a dozen).
-    timeout_s : float
-        Longest time a worker may spend on one file (30 s).
-    memory_bytes : int
-        Address space a worker may add on top of what it had when it started
-        (1 GiB), enforced with ``RLIMIT_AS`` where the system has it.
-    max_text_bytes : int
-        Largest CSV or text file read (64 MiB).
-    """
-
-    max_member_bytes: int = 64 * MiB
-    max_total_bytes: int = 256 * MiB
-    max_members: int = 2000
-    timeout_s: float = 30.0
-    memory_bytes: int = 1024 * MiB
-    max_text_bytes: int = 64 * MiB
-
-    def __post_init__(self) -> None:
-        for name in ("max_member_bytes", "max_total_bytes", "max_members", "memory_bytes", "max_text_bytes"):
-            v = getattr(self, name)
-            if isinstance(v, bool) or not isinstance(v, int) or not 0 < v <= LIMIT_MAX[name]:
-                raise ValueError(f"ReadLimits.{name} must be a whole number from 1 to {LIMIT_MAX[name]}, got {v!r}")
-        t = self.timeout_s
-        if isinstance(t, bool) or not isinstance(t, (int, float)) or not 0 < t <= LIMIT_MAX["timeout_s"]:
-            raise ValueError(f"ReadLimits.timeout_s must be a number of seconds > 0 and at most "
-                             f"{LIMIT_MAX['timeout_s']:g}, got {t!r}")
-
-
-DEFAULT_LIMITS = ReadLimits()
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -644,6 +591,3 @@ def _assemble(file: str, parts: dict[str, bytes], scans: dict[str, _SheetScan], 
                          hidden_rows=hidden_rows, merged=merged, formulas_without_value=no_value,
                          uncompressed_bytes=total)
 
-
-# Isolation lives in its own module; its public names are part of this one's.
-from roundscore.io.isolation import FileRows, ReadFailure, read_many  # noqa: E402

@@ -34,10 +34,10 @@ from typing import Iterable
 
 import xlsxwriter
 
-from roundscore.cells import DECIMAL_MARKS
+from roundscore.intake.cells import DECIMAL_MARKS
 from roundscore.errors import Problem, sheet_cell
-from roundscore.round import MAX_FORM_REPLICATES, Round
-from roundscore.io.xlsx import SheetRows
+from roundscore.model.round import MAX_FORM_REPLICATES, Round
+from roundscore.intake.xlsx import SheetRows
 
 __all__ = ["write_forms", "FormsWritten", "write_form", "records_from_form", "form_decimal", "FormDecimal",
            "form_file_name", "lab_cell", "FORM_FORMAT", "RESULTS_SHEET", "INFO_SHEET", "DECIMAL_CELL"]
@@ -179,7 +179,7 @@ def write_forms(rnd: Round, labs: Iterable[tuple[str, str | None]], folder: Path
                 replace: bool = False) -> FormsWritten:
     """Write one blank form per (lab code, name) into ``folder``.
 
-    Every code is checked by the lab-code rule (:mod:`roundscore.labcodes`)
+    Every code is checked by the lab-code rule (:mod:`roundscore.model.labcodes`)
     first, and codes that would clash are refused, before any form is
     written. An existing file of the same name is never overwritten: it is
     kept and reported, or with ``replace`` renamed to ``NAME.old-N.xlsx``
@@ -187,7 +187,7 @@ def write_forms(rnd: Round, labs: Iterable[tuple[str, str | None]], folder: Path
     written to a temporary name first and renamed when complete.
     """
     from roundscore.errors import InputError
-    from roundscore.labcodes import clash_problems, read_lab_code
+    from roundscore.model.labcodes import clash_problems, read_lab_code
 
     labs = list(labs)
     problems: list[Problem] = []
@@ -268,7 +268,7 @@ def _form_lab(kv: dict, info: SheetRows, results: SheetRows) -> tuple[str, list[
     form whose two codes differ was edited by hand: which lab's results it
     holds cannot be told, so it is refused, naming both cells.
     """
-    from roundscore.labcodes import read_lab_code
+    from roundscore.model.labcodes import read_lab_code
 
     place = {**lab_cell(info), "file": results.file}
     raw = kv.get("lab")
@@ -364,7 +364,7 @@ def records_from_form(rnd: Round, results: SheetRows, info: SheetRows):
     (``Results!D11``). Each record carries the decimal mark the form
     declares (:func:`form_decimal`), or None for the round's.
     """
-    from roundscore.table import Record
+    from roundscore.model.table import Record
 
     problems: list[Problem] = []
     kv, where = _info(info)

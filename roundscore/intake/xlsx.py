@@ -3,9 +3,9 @@
 Everything above this module sees a :class:`SheetRows` and never the file
 format. Workbooks are read with python-calamine (a compiled reader, many times
 faster than openpyxl on the many small returned forms of a large round), but
-only after :func:`~roundscore.io.safety.inspect_workbook` has checked the
+only after :func:`~roundscore.intake.safety.inspect_workbook` has checked the
 package (size limits, no DTDs, not encrypted); files from outside are read in
-isolated processes by :func:`~roundscore.io.safety.read_many`.
+isolated processes by :func:`~roundscore.intake.isolation.read_many`.
 
 Text files are decoded as UTF-8 (with or without a byte-order mark), UTF-16
 with a byte-order mark (what spreadsheet programs write as "Unicode text"),
@@ -23,7 +23,8 @@ from pathlib import Path
 from typing import Sequence
 
 from roundscore.errors import InputError, Problem
-from roundscore.io.safety import DEFAULT_LIMITS, ReadLimits, inspect_workbook
+from roundscore.model.limits import DEFAULT_LIMITS, ReadLimits
+from roundscore.intake.safety import inspect_workbook
 
 __all__ = ["SheetRows", "read_rows", "read_csv_rows", "read_workbook_rows", "read_file_sheets",
            "TEXT_SUFFIXES", "WORKBOOK_SUFFIXES"]
@@ -70,7 +71,7 @@ def read_rows(path: str | Path, sheet: str | None = None, *, limits: ReadLimits 
     """Read a CSV or workbook file into rows; the format is chosen by the suffix.
 
     Reads in this process; for files from outside use
-    :func:`~roundscore.io.safety.read_many`, which isolates the reader.
+    :func:`~roundscore.intake.isolation.read_many`, which isolates the reader.
     """
     return read_file_sheets(path, [sheet], limits=limits)[0]
 

@@ -7,26 +7,17 @@ from dataclasses import dataclass, replace
 from pathlib import Path
 
 from roundscore.errors import InputError, Problem, is_text_file
-from roundscore.round import Round
-from roundscore.labcodes import LabCodeReader, clash_problems, lab_key
-from roundscore.table import (ResultTable, build_table, records_from_long, summarise_ambiguous, table_frame,
-                              validate_records)
+from roundscore.intake.roundfile import result_files
+from roundscore.model.inputs import Participant
+from roundscore.model.round import Round
+from roundscore.model.labcodes import LabCodeReader, clash_problems, lab_key
+from roundscore.model.table import ResultTable, table_frame
+from roundscore.intake.validate import build_table, records_from_long, summarise_ambiguous, validate_records
 from roundscore.text import quote, too_long
-from roundscore.io.forms import INFO_SHEET, RESULTS_SHEET, form_decimal, lab_cell, records_from_form
-from roundscore.io.xlsx import SheetRows, read_rows
+from roundscore.intake.forms import INFO_SHEET, RESULTS_SHEET, form_decimal, lab_cell, records_from_form
+from roundscore.intake.xlsx import SheetRows, read_rows
 
-__all__ = ["read_results", "read_participants", "Participant", "read_item_table", "check_labs"]
-
-
-@dataclass(frozen=True, slots=True, kw_only=True)
-class Participant:
-    """A participant's confidential details, from ``participants.csv``."""
-
-    lab: str
-    name: str
-    contact: str
-    #: The row of the participants file the lab was read from (None when not read from a file).
-    row: int | None = None
+__all__ = ["read_results", "read_participants", "read_item_table", "check_labs"]
 
 
 def _is_form(path: Path) -> bool:
@@ -79,7 +70,7 @@ def read_results(rnd: Round, *, jobs: int | None = None, progress=None) -> Resul
     the problems listed are the same for any ``jobs``; ``progress(stage,
     done, total)`` follows the files read.
     """
-    files = rnd.result_files()
+    files = result_files(rnd)
     records: list = []
     problems: list[Problem] = []
     warnings: list[str] = []
@@ -126,7 +117,7 @@ def _read_forms(rnd: Round, files: list[Path], *, jobs: int | None, progress) ->
     within one file, and the rows are put in the table's order. The result
     is the same for any ``jobs``.
     """
-    from roundscore.io.safety import read_many
+    from roundscore.intake.isolation import read_many
 
     report = None
     if progress:
@@ -203,7 +194,7 @@ class _FormRows:
 
 def _read_sheets(paths: list[str], limits) -> list:
     """Both sheets of each form, each file read by the isolated reader (io.safety.read_many)."""
-    from roundscore.io.safety import read_many
+    from roundscore.intake.isolation import read_many
 
     return [r.sheets if hasattr(r, "sheets") else r for r in
             read_many(paths, [RESULTS_SHEET, INFO_SHEET], jobs=1, limits=limits)]
@@ -227,14 +218,14 @@ def _with_file(problem: Problem, shown: str) -> Problem:
 
 def _isolated_read(path: Path, sheet: str | None, limits):
     """One untrusted file read in a bounded worker process (io.safety.read_many)."""
-    from roundscore.io.safety import read_many
+    from roundscore.intake.isolation import read_many
 
     return read_many([path], [sheet], jobs=1, limits=limits)[0]
 
 
 def _sheet_names(path: Path) -> list[str]:
     # The package check names the sheets without handing the file to a compiled reader.
-    from roundscore.io.safety import inspect_workbook
+    from roundscore.intake.safety import inspect_workbook
 
     try:
         return list(inspect_workbook(path).sheets)
@@ -259,7 +250,7 @@ def _resolved(folder: Path) -> Path:
 def read_participants(rnd: Round) -> dict[str, Participant]:
     """The participants' names and contacts by lab code (empty when the round names no file).
 
-    Lab codes follow the lab-code rule (:mod:`roundscore.labcodes`); names
+    Lab codes follow the lab-code rule (:mod:`roundscore.model.labcodes`); names
     and contacts are bounded (:data:`roundscore.text.TEXT_LIMITS`); a code
     given twice, or two codes that differ only in letter case or Unicode
     form, are refused with both rows named.
@@ -380,7 +371,7 @@ def _read_table(rnd: Round, path: Path, shown: str) -> SheetRows:
     (a crash or hang of the compiled reader costs this file only, reported
     by name); a text file is read here, by Python's csv module.
     """
-    from roundscore.io.xlsx import TEXT_SUFFIXES
+    from roundscore.intake.xlsx import TEXT_SUFFIXES
 
     if Path(path).suffix.lower() in TEXT_SUFFIXES:
         return read_rows(path, limits=rnd.limits)

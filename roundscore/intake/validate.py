@@ -1,38 +1,33 @@
-"""The tidy table of results every statistic reads: one row per reported replicate.
+"""Result cells → the validated :class:`~roundscore.model.table.ResultTable`.
 
 :func:`build_table` turns sheets read from the long layout (``lab, measurand,
 replicate, value`` and optional ``unit, u, U, k, method, comment``) or from
-returned submission forms into a :class:`ResultTable`, converting units to the
+returned submission forms into a :class:`~roundscore.model.table.ResultTable`, converting units to the
 measurand's unit, and collecting *every* problem before refusing the import.
 """
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
 from decimal import Decimal
 from typing import Iterable
 
 import numpy as np
-import pandas as pd
 
-from roundscore.cells import HINT_DECLARE, HINT_NUMBER, CellError, parse_cell
 from roundscore.errors import InputError, Problem, cell_ref, is_text_file, place, sheet_cell, shown_value
-from roundscore.io.xlsx import SheetRows
+from roundscore.intake.cells import HINT_DECLARE, HINT_NUMBER, CellError, parse_cell
+from roundscore.intake.xlsx import SheetRows
+from roundscore.model.labcodes import clash_problems, read_lab_code
+from roundscore.model.round import Round
+from roundscore.model.table import Record, ResultTable, table_frame
+from roundscore.model.units import UnitError, factor
 from roundscore.ranges import MAX_MAGNITUDE, MIN_MAGNITUDE, magnitude_problem
-from roundscore.labcodes import clash_problems, read_lab_code
-from roundscore.round import Round
 from roundscore.text import shown_list, too_long
-from roundscore.units import UnitError, factor
 
-__all__ = ["ResultTable", "build_table", "validate_records", "table_frame", "COLUMNS", "Record",
-           "records_from_long", "cell_label", "lab_places"]
+__all__ = ["build_table", "validate_records", "records_from_long", "cell_label", "lab_places",
+           "summarise_ambiguous", "MAX_LISTED_AMBIGUOUS"]
 
-#: Columns of :attr:`ResultTable.frame`, in order.
-COLUMNS = (
-    "lab", "measurand", "replicate", "status", "value", "text", "relation", "limit",
-    "unit", "u", "U", "k", "method", "comment", "file", "sheet", "row",
-)
+#: Columns of the long layout (required and optional).
 REQUIRED = ("lab", "measurand", "replicate", "value")
 OPTIONAL = ("unit", "u", "U", "k", "method", "comment")
 #: Columns whose name is matched exactly (``u`` and ``U`` differ); the rest ignore case.
@@ -40,69 +35,6 @@ _CASE_SENSITIVE = {"u", "U"}
 #: Largest replicate number: far more than any round asks for (a precision experiment may have thousands),
 #: and well inside the table's 64-bit integer column.
 MAX_REPLICATE = 1_000_000
-
-
-@dataclass(slots=True, kw_only=True)
-class Record:
-    """One result cell with its place, before validation against the round.
-
-    Not frozen, unlike the results of the package: a large round builds a
-    few hundred thousand of these, and a frozen dataclass's ``__init__``
-    (one ``object.__setattr__`` per field) is about four times slower. Nothing
-    changes a record after it is made.
-    """
-
-    lab: object
-    measurand: object
-    replicate: object
-    value: object
-    file: str
-    sheet: str | None
-    row: int
-    unit: object = None
-    u: object = None
-    U: object = None
-    k: object = None
-    method: object = None
-    comment: object = None
-    #: The decimal mark declared for this record's text cells ("comma", "point"), or None for the round's.
-    decimal: str | None = None
-    #: Field name → (0-based column index, the column's header as in the file), shared by the rows of a
-    #: sheet, so that a problem names the cell (``Results!D11``) and the header the person sees.
-    cols: dict | None = None
-
-
-@dataclass(frozen=True, slots=True, kw_only=True)
-class ResultTable:
-    """The participants' results, validated and in the measurands' units.
-
-    Attributes
-    ----------
-    frame : pandas.DataFrame
-        Columns :data:`COLUMNS`. ``status`` is "value", "censored" or
-        "blank" (not reported); ``value`` is NaN unless status is "value";
-        ``text`` keeps the number as typed for exact centring.
-    files : tuple of str
-        The files read.
-    warnings : tuple of str
-        Things that did not stop the import.
-    readings : tuple of (str, str)
-        How text cells were read, for the audit trail: (lab or "", what was
-        done), one per round or per file, never per cell.
-    lab_places : dict of str to dict
-        Where each lab code was first read (:class:`~roundscore.errors.Problem`
-        fields file, sheet, row, column), for messages that name it.
-    """
-
-    frame: pd.DataFrame
-    files: tuple[str, ...] = ()
-    warnings: tuple[str, ...] = field(default=())
-    readings: tuple[tuple[str, str], ...] = field(default=())
-    lab_places: dict[str, dict] = field(default_factory=dict)
-
-    @property
-    def labs(self) -> list[str]:
-        return sorted(self.frame["lab"].unique())
 
 
 def cell_label(v: object) -> str | None:
@@ -282,20 +214,12 @@ def _places(group: list[Problem], most: int = 12) -> str:
 
 
 def lab_places(rows: Iterable[tuple]) -> dict[str, dict]:
-    """Where each lab code of validated rows (:data:`COLUMNS` tuples) first appears: file, sheet, row, column."""
+    """Where each lab code of validated rows (:data:`~roundscore.model.table.COLUMNS` tuples) first appears: file, sheet, row, column."""
     out: dict[str, dict] = {}
     for r in rows:
         if r[0] not in out:
             out[r[0]] = {"file": r[-3], "sheet": r[-2], "row": r[-1], "column": "lab"}
     return out
-
-
-def table_frame(rows: list[tuple]) -> pd.DataFrame:
-    """The :attr:`ResultTable.frame` of validated rows (from :func:`validate_records`), in table order."""
-    frame = pd.DataFrame(rows, columns=list(COLUMNS))
-    frame = frame.astype({"replicate": "int64", "value": "float64", "limit": "float64",
-                          "u": "float64", "U": "float64", "k": "float64", "row": "int64"})
-    return frame.sort_values(["measurand", "lab", "replicate"], kind="stable").reset_index(drop=True)
 
 
 def _optional_number(v: object, what: str, rec: Record, problems: list[Problem], decimal: str | None,
@@ -318,7 +242,7 @@ def _record_place(first: Record) -> str:
 
 
 def validate_records(rnd: Round, records: Iterable[Record]) -> tuple[list[tuple], list[Problem]]:
-    """Check records against the round: one row tuple (:data:`COLUMNS`) per valid record, and every problem.
+    """Check records against the round: one row tuple (:data:`~roundscore.model.table.COLUMNS`) per valid record, and every problem.
 
     Duplicates are found among these records only (a caller joining several
     files' rows checks across them). Labels seen once are not looked up

@@ -1,9 +1,11 @@
-"""``round.toml`` → :class:`Round`: the round's settings, validated.
+"""``round.toml`` → :class:`~roundscore.model.round.Round`: the round file read and validated.
 
 The file has a ``[round]`` table and one ``[measurand.NAME]`` table per
 measurand. Every mistake is reported with the file, the key, what was found
 and what is allowed; unknown keys are reported as warnings with the nearest
 valid key, so a typo does not silently fall back to a default.
+:func:`result_files` finds the results the round names (one table, or the
+workbooks of a folder or glob).
 """
 
 from __future__ import annotations
@@ -14,209 +16,28 @@ import glob as _glob
 import math
 import tomllib
 import unicodedata
-from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any, Literal
+from typing import Any
 
-from roundscore.cells import DECIMAL_MARKS
 from roundscore.errors import Problem, RoundFileError, shown_value
-from roundscore.io.safety import DEFAULT_LIMITS, LIMIT_MAX, ReadLimits
-from roundscore.ranges import (MAX_MAGNITUDE, MIN_MAGNITUDE, SIGMA_MIN_RELATIVE, confidence_problem,
-                               magnitude_problem, sigma_relative_problem)
-from roundscore.units import UnitError, mass_fraction, unit_text_problem
-from roundscore.labcodes import read_lab_code
+from roundscore.intake.cells import DECIMAL_MARKS
+from roundscore.model.labcodes import read_lab_code
+from roundscore.model.limits import DEFAULT_LIMITS, ReadLimits
+from roundscore.model.round import (ASSIGNED_METHODS, LIMIT_KEYS, MAX_FORM_REPLICATES, MEASURAND_KEYS,
+                                    OUTLIER_ACTIONS, ROUND_KEYS, SCORES, SIGMA_WORDS, UNKNOWN_LAB_ACTIONS, Exclusion,
+                                    MeasurandSettings, Round, SigmaSpec, limit_range)
+from roundscore.model.units import UnitError, mass_fraction, unit_text_problem
+from roundscore.ranges import (MAX_MAGNITUDE, MIN_MAGNITUDE, SIGMA_MIN_RELATIVE, confidence_problem, magnitude_problem,
+                               sigma_relative_problem)
 from roundscore.text import TEXT_LIMITS, quote, too_long
 
-__all__ = [
-    "Round",
-    "Exclusion",
-    "MeasurandSettings",
-    "SigmaSpec",
-    "load_round",
-    "SCORES",
-    "ASSIGNED_METHODS",
-]
+__all__ = ["load_round", "with_warnings", "result_files", "MAX_MEASURANDS", "MAX_ROUND_FILE_BYTES"]
 
-ScoreName = Literal["z", "z-prime", "zeta", "en"]
-#: Most replicate cells a submission form asks for (``[round] replicates``).
-MAX_FORM_REPLICATES = 20
-SCORES: tuple[str, ...] = ("z", "z-prime", "zeta", "en")
-ASSIGNED_METHODS: tuple[str, ...] = ("algorithm-a", "median")
-SIGMA_WORDS: tuple[str, ...] = ("horwitz", "robust-sd")
-OUTLIER_ACTIONS: tuple[str, ...] = ("exclude", "keep")
-
-ROUND_KEYS: dict[str, str] = {
-    "id": "text (required): the round's identifier",
-    "title": "text",
-    "scheme": "text: the PT scheme this round belongs to",
-    "date": "a date (2026-10-14) or text in that form",
-    "provider": "text: the PT provider's name",
-    "material": "text: the test material",
-    "results": "a CSV or .xlsx file, a folder or a glob of returned forms",
-    "results_sheet": "the sheet to read in a results workbook (default: the first)",
-    "participants": "a CSV file of lab, name, contact",
-    "replicates": "whole number ≥ 1: replicates asked for on the forms (default 2)",
-    "confidence": "number strictly between 0 and 1 for method comparisons (default 0.95)",
-    "outliers": "'exclude' or 'keep': ISO 5725-2 outliers in the precision estimates (default exclude)",
-    "stragglers": "'exclude' or 'keep': ISO 5725-2 stragglers (default keep)",
-    "archive": "an archive file to store the round in (may be outside the round folder; ~ is your home folder)",
-    "history_rounds": "whole number: past rounds shown on each lab sheet (default 8)",
-    "youden": "list of pairs of measurand names for Youden plots",
-    "words": "'signals' (acceptable/warning/action) or 'performance' (satisfactory/questionable/unsatisfactory)",
-    "decimal": "'comma' or 'point': the decimal mark of numbers typed as text in results and item tables "
-               "(default: not declared; a number whose reading depends on it, such as 1,234, is refused)",
-    "unknown_labs": "'warn' or 'error': a result from a lab not in the participants file (default warn)",
-}
-UNKNOWN_LAB_ACTIONS: tuple[str, ...] = ("warn", "error")
 #: Most measurands a round file may define. Each costs about 20 ms of evaluation and writing (measured:
 #: benchmarks/measurands.py); past this a round is refused when it is loaded, before anything is read.
 MAX_MEASURANDS = 10_000
 #: Largest round file read (a round of MAX_MEASURANDS measurands with labels and item tables is about 1 MiB).
 MAX_ROUND_FILE_BYTES = 4 << 20
-#: ``[limits]``: bounds on reading untrusted files (see roundscore.io.safety.ReadLimits):
-#: key → (ReadLimits field, the field's unit, smallest allowed value in the key's unit). The largest allowed
-#: value is ``LIMIT_MAX[field] / unit``; :func:`limit_range` gives both.
-LIMIT_KEYS: dict[str, tuple[str, int, float]] = {
-    "max_part_mib": ("max_member_bytes", 1 << 20, 0.001),  # sizes from about 1 kB
-    "max_total_mib": ("max_total_bytes", 1 << 20, 0.001),
-    "max_parts": ("max_members", 1, 1),
-    "timeout_s": ("timeout_s", 1, 1),
-    "memory_mib": ("memory_bytes", 1 << 20, 64),  # less leaves a worker too little to start a reader
-    "max_text_mib": ("max_text_bytes", 1 << 20, 0.001),
-}
-MEASURAND_KEYS: dict[str, str] = {
-    "unit": "text (required): a unit such as mg/kg, µg/L, g/100 g, % (a mass fraction for sigma_pt = 'horwitz')",
-    "label": "text: a longer name shown in reports",
-    "assigned": "'algorithm-a', 'median' or a number (reference or formulation value; 0 or |v| 1e-50 to 1e50)",
-    "u_assigned": "number ≥ 0: standard uncertainty of a numeric assigned value (0 or 1e-50 to 1e50)",
-    "sigma_pt": "a number from 1e-50 to 1e50 (and ≥ 1e-12 × |assigned|), 'horwitz', 'robust-sd', "
-                "or { s_R = …, s_r = …, replicates = n }",
-    "score": "'z', 'z-prime', 'zeta' or 'en'",
-    "decimals": "whole number 0–10: decimals shown in reports",
-    "allow_negative": "true or false: whether results below zero are possible (default false)",
-    "homogeneity": "a CSV or .xlsx file of item, replicate, value",
-    "stability": "a CSV or .xlsx file of item, replicate, value, set",
-    "item_checks": "'uncertainty', 'widen-sigma', 'both' or 'report' (default 'uncertainty')",
-    "stability_criterion": "'auto', 'simple' or 'expanded' (default 'auto': expanded when the table gives u)",
-}
-
-
-@dataclass(frozen=True, slots=True, kw_only=True)
-class SigmaSpec:
-    """Where σ_pt comes from.
-
-    ``kind`` is "fixed" (``value``), "horwitz", "robust-sd" or "precision"
-    (``s_R``, ``s_r``, ``replicates`` from a precision experiment).
-    """
-
-    kind: Literal["fixed", "horwitz", "robust-sd", "precision"]
-    value: float | None = None
-    s_R: float | None = None
-    s_r: float | None = None
-    replicates: int | None = None
-
-    def describe(self) -> str:
-        if self.kind == "fixed":
-            return f"fixed value {self.value:g}"
-        if self.kind == "horwitz":
-            return "Horwitz equation with Thompson's modification"
-        if self.kind == "robust-sd":
-            return "robust SD of the participants' results (Algorithm A)"
-        return (
-            f"precision experiment: s_R = {self.s_R:g}, s_r = {self.s_r:g}, "
-            f"n = {self.replicates}"
-        )
-
-
-@dataclass(frozen=True, slots=True, kw_only=True)
-class MeasurandSettings:
-    """The settings of one measurand from its ``[measurand.NAME]`` table."""
-
-    name: str
-    unit: str
-    label: str
-    assigned: str | float
-    u_assigned: float | None
-    sigma_pt: SigmaSpec
-    score: str
-    decimals: int | None
-    allow_negative: bool
-    homogeneity: Path | None = None
-    stability: Path | None = None
-    item_checks: str = "uncertainty"
-    stability_criterion: str = "auto"
-
-    @property
-    def is_consensus(self) -> bool:
-        """True when the assigned value is computed from the participants' results."""
-        return isinstance(self.assigned, str)
-
-
-@dataclass(frozen=True, slots=True, kw_only=True)
-class Exclusion:
-    """A coordinator's decision to leave a lab's result out of the statistics (``[[exclude]]``).
-
-    ``measurand`` None means every measurand; ``scored`` False also withholds the score.
-    """
-
-    lab: str
-    measurand: str | None
-    reason: str
-    scored: bool = True
-
-
-@dataclass(frozen=True, slots=True, kw_only=True)
-class Round:
-    """A validated round: settings and where its files are."""
-
-    path: Path
-    folder: Path
-    id: str
-    title: str
-    scheme: str
-    date: str
-    provider: str
-    material: str
-    results: str
-    results_sheet: str | None
-    participants: Path | None
-    replicates: int
-    confidence: float
-    outliers: str
-    stragglers: str
-    archive: Path | None
-    history_rounds: int
-    youden: tuple[tuple[str, str], ...]
-    words: str
-    measurands: dict[str, MeasurandSettings]
-    #: The declared decimal mark of text cells ("comma" or "point"), or None (ambiguous text is refused).
-    decimal: str | None = None
-    unknown_labs: str = "warn"
-    exclusions: tuple[Exclusion, ...] = field(default=())
-    limits: ReadLimits = DEFAULT_LIMITS
-    warnings: tuple[str, ...] = field(default=())
-
-    def result_files(self) -> list[Path]:
-        """The results file(s): one table, or every workbook in a folder or glob."""
-        return _resolve_results(self)
-
-    def settings_dict(self) -> dict[str, Any]:
-        """A plain, JSON-ready summary of the settings (for workbooks and the archive)."""
-        out: dict[str, Any] = {
-            "id": self.id, "title": self.title, "scheme": self.scheme, "date": self.date,
-            "provider": self.provider, "material": self.material,
-        }
-        for m in self.measurands.values():
-            out[f"measurand.{m.name}"] = {
-                "unit": m.unit, "assigned": m.assigned, "u_assigned": m.u_assigned,
-                "sigma_pt": m.sigma_pt.describe(), "score": m.score,
-                "homogeneity": m.homogeneity.name if m.homogeneity else None,
-                "stability": m.stability.name if m.stability else None,
-                "item_checks": m.item_checks, "stability_criterion": m.stability_criterion,
-            }
-        out["exclusions"] = [{"lab": e.lab, "measurand": e.measurand, "reason": e.reason, "scored": e.scored}
-                             for e in self.exclusions]
-        return out
 
 
 class _Checker:
@@ -502,12 +323,6 @@ def _limits(c: _Checker, raw: object) -> ReadLimits:
         return DEFAULT_LIMITS
 
 
-def limit_range(key: str) -> tuple[float, float]:
-    """The allowed range of a ``[limits]`` key, in the key's own unit (MiB, parts, seconds)."""
-    field_name, unit, low = LIMIT_KEYS[key]
-    return low, LIMIT_MAX[field_name] / unit
-
-
 def load_round(path: str | Path) -> Round:
     """Read and validate a round file (or a folder holding ``round.toml``).
 
@@ -643,7 +458,8 @@ def with_warnings(exc: BaseException, warnings) -> BaseException:
     return exc
 
 
-def _resolve_results(rnd: Round) -> list[Path]:
+def result_files(rnd: Round) -> list[Path]:
+    """The results file(s) of a round: one table, or every workbook in a folder or glob."""
     files = _find_results(rnd)
     folder = rnd.folder.resolve()
     for f in files:  # a symbolic link may point out of the folder

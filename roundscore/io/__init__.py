@@ -1,1 +1,0 @@
-"""Readers and writers at the edge of the package."""

@@ -1,0 +1,93 @@
+"""The tidy table of results every statistic reads: one row per reported replicate.
+
+:class:`ResultTable` holds the participants' results validated and in the
+measurands' units; :class:`Record` is one result cell with its place before
+validation. The records are made and checked by :mod:`roundscore.intake`
+(:func:`roundscore.intake.validate.build_table`), which refuses an import
+listing every problem.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import pandas as pd
+
+__all__ = ["ResultTable", "Record", "COLUMNS", "table_frame"]
+
+#: Columns of :attr:`ResultTable.frame`, in order.
+COLUMNS = (
+    "lab", "measurand", "replicate", "status", "value", "text", "relation", "limit",
+    "unit", "u", "U", "k", "method", "comment", "file", "sheet", "row",
+)
+
+
+@dataclass(slots=True, kw_only=True)
+class Record:
+    """One result cell with its place, before validation against the round.
+
+    Not frozen, unlike the results of the package: a large round builds a
+    few hundred thousand of these, and a frozen dataclass's ``__init__``
+    (one ``object.__setattr__`` per field) is about four times slower. Nothing
+    changes a record after it is made.
+    """
+
+    lab: object
+    measurand: object
+    replicate: object
+    value: object
+    file: str
+    sheet: str | None
+    row: int
+    unit: object = None
+    u: object = None
+    U: object = None
+    k: object = None
+    method: object = None
+    comment: object = None
+    #: The decimal mark declared for this record's text cells ("comma", "point"), or None for the round's.
+    decimal: str | None = None
+    #: Field name → (0-based column index, the column's header as in the file), shared by the rows of a
+    #: sheet, so that a problem names the cell (``Results!D11``) and the header the person sees.
+    cols: dict | None = None
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class ResultTable:
+    """The participants' results, validated and in the measurands' units.
+
+    Attributes
+    ----------
+    frame : pandas.DataFrame
+        Columns :data:`COLUMNS`. ``status`` is "value", "censored" or
+        "blank" (not reported); ``value`` is NaN unless status is "value";
+        ``text`` keeps the number as typed for exact centring.
+    files : tuple of str
+        The files read.
+    warnings : tuple of str
+        Things that did not stop the import.
+    readings : tuple of (str, str)
+        How text cells were read, for the audit trail: (lab or "", what was
+        done), one per round or per file, never per cell.
+    lab_places : dict of str to dict
+        Where each lab code was first read (:class:`~roundscore.errors.Problem`
+        fields file, sheet, row, column), for messages that name it.
+    """
+
+    frame: pd.DataFrame
+    files: tuple[str, ...] = ()
+    warnings: tuple[str, ...] = field(default=())
+    readings: tuple[tuple[str, str], ...] = field(default=())
+    lab_places: dict[str, dict] = field(default_factory=dict)
+
+    @property
+    def labs(self) -> list[str]:
+        return sorted(self.frame["lab"].unique())
+
+
+def table_frame(rows: list[tuple]) -> pd.DataFrame:
+    """The :attr:`ResultTable.frame` of validated rows (from :func:`validate_records`), in table order."""
+    frame = pd.DataFrame(rows, columns=list(COLUMNS))
+    frame = frame.astype({"replicate": "int64", "value": "float64", "limit": "float64",
+                          "u": "float64", "U": "float64", "k": "float64", "row": "int64"})
+    return frame.sort_values(["measurand", "lab", "replicate"], kind="stable").reset_index(drop=True)
