@@ -83,7 +83,7 @@ def part_generate(a: argparse.Namespace) -> dict:
 
 
 def part_pipeline(a: argparse.Namespace) -> dict:
-    from roundscore.evaluate import evaluate
+    from roundscore.evaluation.evaluate import evaluate
     from roundscore.intake.readers import read_participants, read_results
     from roundscore.pipeline import atomic_folder, write_outputs
     from roundscore.intake.roundfile import load_round

@@ -12,11 +12,11 @@ from __future__ import annotations
 __version__ = "0.1.0"
 
 from roundscore.errors import InputError, Problem, RoundFileError, RoundscoreError, StatisticsError
-from roundscore.evaluate import RoundEvaluation, evaluate
 from roundscore.intake.readers import read_participants, read_results
-from roundscore.pipeline import load_and_evaluate, run_round
-from roundscore.model.round import Round
 from roundscore.intake.roundfile import load_round
+from roundscore.model.evaluation import RoundEvaluation
+from roundscore.model.round import Round
+from roundscore.pipeline import evaluate, load_and_evaluate, run_round
 from roundscore.stats.robust import RobustEstimate, algorithm_a, made, niqr
 from roundscore.stats.scores import en_score, signal, z_prime_score, z_score, zeta_score
 from roundscore.stats.sigma import horwitz_thompson, sigma_from_precision

@@ -69,7 +69,7 @@ from roundscore.archive_db import (APPLICATION_ID, ARCHIVE_ENV, archive_path, no
 from roundscore.errors import ArchiveConflict, InputError, Problem, RoundFileError
 
 if TYPE_CHECKING:  # only for annotations: the archive does not depend on the evaluation
-    from roundscore.evaluate import RoundEvaluation
+    from roundscore.model.evaluation import RoundEvaluation
     from roundscore.model.round import Round
 
 __all__ = ["ARCHIVE_ENV", "APPLICATION_ID", "SCORE_COLUMNS", "HISTORY_COLUMNS", "MIGRATIONS", "SCHEMA_VERSION",

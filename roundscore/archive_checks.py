@@ -10,7 +10,7 @@ back.  Two checks stop an edited row from being stored as genuine:
   ζ and En also depend on the lab's own uncertainty, which the row does not
   carry, so only their sign and their largest possible size are checked
   (``|ζ| ≤ |d| / u(x_pt)``, ``|En| ≤ |d| / U(x_pt)`` with ``U(x_pt) = 2 u(x_pt)``
-  as :mod:`roundscore.evaluate` computes it); and the signal must be the
+  as :mod:`roundscore.evaluation.evaluate` computes it); and the signal must be the
   one the limits give for the round's chosen score.
 * :func:`row_digest` and :func:`sheet_digest`: the lab sheet's ``data``
   sheet carries a digest of each row (column :data:`ROW_DIGEST_COLUMN`) and
@@ -61,9 +61,9 @@ DIGEST_KEY = "digest"
 ROW_DIGEST_COLUMN = "row_digest"
 #: Hex digits of a row digest (64 bits: an accidental match is out of the question).
 _ROW_HEX = 16
-#: U(x_pt) = 2 u(x_pt) in En (roundscore.evaluate._score_rows).
+#: U(x_pt) = 2 u(x_pt) in En (roundscore.evaluation.evaluate._score_rows).
 _EN_K = 2.0
-#: Scores by the round's score name, and the field holding each (roundscore.evaluate.SCORE_FIELD).
+#: Scores by the round's score name, and the field holding each (roundscore.model.evaluation.SCORE_FIELD).
 _SCORE_FIELD = {"z": "z", "z-prime": "z_prime", "zeta": "zeta", "en": "en"}
 #: What to do about a row that was changed.
 RESUBMIT_HINT = "add the file as the provider sent it, or ask the provider for a new copy"
@@ -225,7 +225,7 @@ def _check_signal(row: dict[str, object], x: float | None, a: float | None, s: f
             limit = math.nan
         margin = REL_TOL * (abs(a) + Z_ACTION * s)
         if text.startswith("<") and limit < a - Z_ACTION * s + margin:
-            allowed.add("action")  # a false negative (roundscore.evaluate)
+            allowed.add("action")  # a false negative (roundscore.evaluation.evaluate)
         if text.startswith(">") and limit > a + Z_ACTION * s - margin:
             allowed.add("action")  # a false positive
     if sig not in allowed:

@@ -38,7 +38,7 @@ from roundscore.archive_checks import (DIGEST_KEY, EDIT_HINT, RESUBMIT_HINT, ROW
                                        row_digest, row_problems, sheet_digest)
 
 # One definition of the score-row contract (evaluate.py) and of the score and signal names.
-from roundscore.evaluate import SCORE_COLUMNS, SCORE_FIELD as SCORE_VALUE_COLUMN
+from roundscore.model.evaluation import SCORE_COLUMNS, SCORE_FIELD as SCORE_VALUE_COLUMN
 from roundscore.model.round import SCORES as SCORE_NAMES
 from roundscore.stats.scores import SIGNALS
 

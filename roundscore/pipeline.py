@@ -13,17 +13,23 @@ from pathlib import Path
 from typing import Callable
 
 from roundscore.errors import RoundscoreError
-from roundscore.evaluate import AUDIT_COLUMNS, SCORE_COLUMNS, STATISTICS_COLUMNS, RoundEvaluation, evaluate
-from roundscore.support.filenames import lab_file_name
+from roundscore.evaluation import evaluate as _evaluation
+from roundscore.intake.inputs import read_inputs
+from roundscore.intake.items import read_item_tables
+from roundscore.intake.readers import read_participants
+from roundscore.intake.roundfile import load_round, result_files, with_warnings
+from roundscore.model.evaluation import AUDIT_COLUMNS, SCORE_COLUMNS, STATISTICS_COLUMNS, RoundEvaluation
+from roundscore.model.inputs import Participant
+from roundscore.model.round import Round
+from roundscore.model.table import ResultTable
 from roundscore.outputs.csvout import write_csv
 from roundscore.outputs.outfolder import atomic_folder, check_target
-from roundscore.intake.readers import check_labs, read_participants, read_results
 from roundscore.outputs.workbook import lab_payload, write_lab_workbook, write_summary
+from roundscore.support.filenames import lab_file_name
 from roundscore.support.parallel import run_batches, shared
-from roundscore.model.round import Round
-from roundscore.intake.roundfile import load_round, result_files, with_warnings
 
-__all__ = ["run_round", "write_outputs", "atomic_folder", "Outputs", "load_and_evaluate", "round_inputs"]
+__all__ = ["run_round", "write_outputs", "atomic_folder", "Outputs", "load_and_evaluate", "round_inputs",
+           "evaluate"]
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -78,19 +84,30 @@ def round_inputs(rnd: Round, archive: str | Path | None = None, *,
 
 def load_and_evaluate(round_path: str | Path | Round, *, jobs: int | None = None,
                       progress: Callable[[str, int, int], None] | None = None) -> RoundEvaluation:
-    """Read the round file (or take a loaded :class:`Round`), its results and participants, and evaluate it.
+    """Read the round file (or take a loaded :class:`Round`), its results, participants and item tables, and
+    evaluate it.
 
     ``jobs`` worker processes read the returned forms (None = all cores);
     the table does not depend on it.
     """
     rnd = round_path if isinstance(round_path, Round) else load_round(round_path)
     try:
-        table = read_results(rnd, jobs=jobs, progress=progress)
-        participants = read_participants(rnd)
-        table = check_labs(rnd, table, participants)  # codes agree with the participants file and the exclusions
-        return evaluate(rnd, table, participants)
+        inputs = read_inputs(rnd, jobs=jobs, progress=progress)
+        return _evaluation.evaluate(inputs.round, inputs.table, inputs.participants, items=inputs.items)
     except RoundscoreError as exc:  # the round file's warnings (unknown keys...) still reach the user
         raise with_warnings(exc, rnd.warnings)
+
+
+def evaluate(rnd: Round, table: ResultTable, participants: dict[str, Participant] | None = None,
+             ) -> RoundEvaluation:
+    """Evaluate a round from its settings and results (the public :func:`roundscore.evaluate`).
+
+    Reads the homogeneity and stability tables the round names
+    (:func:`roundscore.intake.items.read_item_tables`), then runs the pure
+    evaluation, :func:`roundscore.evaluation.evaluate.evaluate`, which reads
+    no file.
+    """
+    return _evaluation.evaluate(rnd, table, participants, items=read_item_tables(rnd))
 
 
 #: Lab sheets per task sent to a worker: fixed (not tied to the number of jobs) and small enough that the

@@ -14,7 +14,7 @@ import pandas as pd
 import pytest
 
 from roundscore.cli import main
-from roundscore.evaluate import SCORE_COLUMNS, STATISTICS_COLUMNS
+from roundscore.model.evaluation import SCORE_COLUMNS, STATISTICS_COLUMNS
 
 
 @pytest.fixture(scope="module")

@@ -1,15 +1,20 @@
-"""The evaluation (roundscore.evaluate): assigned values, σ_pt, scores, signals, notes and the audit trail.
+"""The evaluation (roundscore.evaluation.evaluate): assigned values, σ_pt, scores, signals, notes and the audit trail.
 
-Expected values are worked by hand from the ISO 13528 formulas in each test.
+Expected values are worked by hand from the ISO 13528 formulas in each test. The evaluation itself reads no
+file: the item tables come from intake, and the public roundscore.evaluate reads them first.
 """
 
 from __future__ import annotations
 
 import numpy as np
+import pandas as pd
 import pytest
 
+import roundscore
+from roundscore.errors import InputError
+from roundscore.evaluation.evaluate import evaluate
+from roundscore.intake.inputs import read_inputs
 from roundscore.intake.readers import read_participants, read_results
-from roundscore.evaluate import evaluate
 from roundscore.intake.roundfile import load_round
 from roundscore.stats.robust import algorithm_a
 from roundscore.stats.sigma import horwitz_thompson
@@ -144,3 +149,24 @@ def test_replaced_evaluation_does_not_share_per_lab_splits(make_round):
     cut = dataclasses.replace(ev, scores=ev.scores[ev.scores["lab"] != "L3"])
     assert len(cut.lab_scores("L3")) == 0 and len(ev.lab_scores("L3")) == 1
     assert cut.labs == [lab for lab in ev.labs if lab != "L3"]
+
+
+def test_public_evaluate_reads_item_tables_and_the_evaluation_reads_no_file(make_round):
+    # Ten items measured twice (invented values); the item table is named in round.toml.
+    hom = "item,replicate,value\n" + "".join(f"I{i},{r},{10 + 0.01 * ((i * 3 + r) % 5)}\n"
+                                              for i in range(1, 11) for r in (1, 2))
+    folder = make_round('[round]\nid="E10"\n[measurand.cu]\nunit="mg/kg"\nsigma_pt=0.5\nhomogeneity="hom.csv"\n',
+                        _results(LABS), hom__csv=hom)
+    rnd = load_round(folder)
+    public = roundscore.evaluate(rnd, read_results(rnd))  # reads hom.csv itself
+    assert public.measurands["cu"].item_checks.homogeneity.g == 10
+    inputs = read_inputs(rnd)
+    for f in folder.iterdir():  # nothing left to read: the evaluation must work from what intake read
+        f.unlink()
+    pure = evaluate(inputs.round, inputs.table, inputs.participants, items=inputs.items)
+    pd.testing.assert_frame_equal(pure.scores, public.scores)
+    pd.testing.assert_frame_equal(pure.extras["items"], public.extras["items"])
+    with pytest.raises(ValueError, match="cu: its homogeneity table was not read"):
+        evaluate(inputs.round, inputs.table)
+    with pytest.raises(InputError, match="homogeneity file named in the round file was not found"):
+        roundscore.evaluate(rnd, inputs.table)

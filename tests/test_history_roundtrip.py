@@ -25,7 +25,7 @@ from python_calamine import CalamineWorkbook
 from roundscore import archive
 from roundscore.cli import main
 from roundscore.demo import make_demo_round
-from roundscore.evaluate import SCORE_COLUMNS as PIPELINE_SCORE_COLUMNS
+from roundscore.model.evaluation import SCORE_COLUMNS as PIPELINE_SCORE_COLUMNS
 
 from .conftest import write_round
 
@@ -82,7 +82,7 @@ def trip(tmp_path_factory) -> dict:
 
 
 def test_score_columns_are_one_contract():
-    # The archive reads what the pipeline writes (roundscore.evaluate.SCORE_COLUMNS).
+    # The archive reads what the pipeline writes (roundscore.model.evaluation.SCORE_COLUMNS).
     assert archive.SCORE_COLUMNS == PIPELINE_SCORE_COLUMNS
 
 

@@ -1,4 +1,4 @@
-"""The item-check stage (roundscore.stages.items) end to end on small invented round folders.
+"""The item-check stage (roundscore.evaluation.items) end to end on small invented round folders.
 
 The homogeneity tables are invented and *constructed* so that their s_x and
 s_w are known exactly (item means on a fixed pattern scaled to a chosen SD,
@@ -26,7 +26,7 @@ from roundscore.cli import main
 from roundscore.demo import make_demo_round
 from roundscore.errors import InputError
 from roundscore.pipeline import load_and_evaluate
-from roundscore.stages.items import ITEMS_COLUMNS
+from roundscore.model.items import ITEMS_COLUMNS
 
 from .conftest import DEMO
 

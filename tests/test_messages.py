@@ -302,7 +302,7 @@ def test_sheet_names_are_quoted_as_a_spreadsheet_writes_them():
 
 @pytest.mark.parametrize("extra, ok", [('decimal = "comma"', True), ("", False)])
 def test_item_tables_follow_the_rounds_decimal_mark(make_round, extra, ok):
-    from roundscore.stages.items import read_item_values
+    from roundscore.intake.items import read_item_values
 
     toml = LONG_TOML.format(extra=extra) + 'homogeneity = "hom.csv"\n'
     hom = "item,replicate,value\n" + "".join(f"B{i},{r},\"10,{100 + 10 * i + r}\"\n"

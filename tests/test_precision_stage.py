@@ -1,4 +1,4 @@
-"""The precision stage (roundscore.stages.precision) end to end through evaluate and the pipeline.
+"""The precision stage (roundscore.evaluation.precision) end to end through evaluate and the pipeline.
 
 Rounds are invented and built in tmp_path, plus the demo round (invented) and
 the NIST StRD SmLs09 data set run as a round. Expected values come from the
@@ -22,9 +22,8 @@ from statsmodels.stats.multitest import multipletests
 
 from roundscore.errors import RoundFileError
 from roundscore.pipeline import load_and_evaluate, run_round
-from roundscore.stages.precision import (
-    MANDEL_COLUMNS, METHODS_COLUMNS, NEEDS_REPLICATES, PRECISION_COLUMNS, SCREENS_COLUMNS,
-)
+from roundscore.evaluation.precision import (MANDEL_COLUMNS, METHODS_COLUMNS, NEEDS_REPLICATES, PRECISION_COLUMNS,
+                                             SCREENS_COLUMNS)
 
 from .conftest import DEMO
 
@@ -340,7 +339,7 @@ def test_nist_smls09_through_the_pipeline(make_round, tmp_path):
 
 
 def test_double_grubbs_skipped_above_the_lab_limit(make_round):
-    from roundscore.stages.precision import DOUBLE_GRUBBS_MAX_LABS
+    from roundscore.evaluation.precision import DOUBLE_GRUBBS_MAX_LABS
 
     p = DOUBLE_GRUBBS_MAX_LABS + 20
     means = [20 + 0.01 * ((i * 37) % 101 - 50) for i in range(p)]  # evenly spread: light tails, no outlier

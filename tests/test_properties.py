@@ -23,7 +23,7 @@ from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 
 from roundscore.intake.cells import AmbiguousNumber, CellError, parse_cell
-from roundscore.evaluate import evaluate
+from roundscore.evaluation.evaluate import evaluate
 from roundscore.intake.roundfile import load_round
 from roundscore.stats.precision import precision
 from roundscore.stats.robust import algorithm_a

@@ -11,7 +11,7 @@ import openpyxl
 import pytest
 
 from roundscore.demo import make_demo_round
-from roundscore.evaluate import SCORE_COLUMNS
+from roundscore.model.evaluation import SCORE_COLUMNS
 from roundscore.outputs.workbook import lab_payload, write_lab_workbook, write_summary
 from roundscore.pipeline import load_and_evaluate
 

@@ -23,7 +23,7 @@ from python_calamine import CalamineWorkbook
 
 from roundscore.archive_files import normalise_rows, read_lab_file
 from roundscore.demo import make_demo_round
-from roundscore.evaluate import SCORE_COLUMNS
+from roundscore.model.evaluation import SCORE_COLUMNS
 from roundscore.outputs import workbook as wbm
 from roundscore.outputs.look import SIGNAL_COLOUR, signal_label
 from roundscore.outputs.workbook import SUMMARY_POINTER, lab_payload, write_lab_workbook, write_summary

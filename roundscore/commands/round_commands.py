@@ -6,7 +6,7 @@ import argparse
 import sys
 from pathlib import Path
 
-from roundscore.evaluate import RoundEvaluation
+from roundscore.model.evaluation import RoundEvaluation
 from roundscore.outputs.look import CAUTION, SIGNAL_SYMBOL
 from roundscore.support.progress import terminal_bar
 from roundscore.text import terminal_text

@@ -389,7 +389,7 @@ def figures_per_measurand(n_measurands: int) -> bool:
 
 
 def round_figures(ev, *, jobs: int | None = 1, progress=None) -> RoundFigures:
-    """Draw the shared figures of a :class:`~roundscore.evaluate.RoundEvaluation` (nothing is recomputed).
+    """Draw the shared figures of a :class:`~roundscore.model.evaluation.RoundEvaluation` (nothing is recomputed).
 
     Parameters
     ----------

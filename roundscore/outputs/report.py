@@ -20,7 +20,7 @@ A print stylesheet makes a browser print either page to PDF cleanly
 (sections start on a new page, figures and table rows are not split,
 table heads repeat).
 
-Everything shown comes from the :class:`~roundscore.evaluate.RoundEvaluation`
+Everything shown comes from the :class:`~roundscore.model.evaluation.RoundEvaluation`
 and the figures of :func:`~roundscore.outputs.figures.round_figures`; nothing is
 recomputed. The shared parts are built once, so a lab page costs a few
 milliseconds (string joins) and, past the small-round limits, its size does

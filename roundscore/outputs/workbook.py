@@ -13,7 +13,7 @@ round's statistics of every measurand are not repeated in each lab's file:
 the Scores sheet says they are in the summary workbook ``round-summary.xlsx``
 circulated with it.  Two sheets, ``data`` and ``round``, are
 machine-readable (the history commands read them back): their layout is a
-contract, see :data:`~roundscore.evaluate.SCORE_COLUMNS`.  The ``data`` sheet
+contract, see :data:`~roundscore.model.evaluation.SCORE_COLUMNS`.  The ``data`` sheet
 holds its numbers to 12 significant digits and a digest of each row (column
 ``row_digest``), the ``round`` sheet a digest of the whole (key ``digest``),
 so ``history add`` refuses a row edited after it was written
@@ -33,7 +33,7 @@ import pandas as pd
 import xlsxwriter
 
 from roundscore.archive_checks import DIGEST_KEY, ROW_DIGEST_COLUMN, row_digest, sheet_digest, sheet_value
-from roundscore.evaluate import SCORE_COLUMNS, STATISTICS_COLUMNS, RoundEvaluation
+from roundscore.model.evaluation import SCORE_COLUMNS, STATISTICS_COLUMNS, RoundEvaluation
 from roundscore.outputs.look import CAUTION, SIGNAL_COLOUR, SIGNAL_WORD, signal_label
 
 __all__ = ["write_summary", "write_lab_workbook", "LAB_FORMAT", "FIXED_TIME", "lab_payload"]

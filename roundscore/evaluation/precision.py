@@ -76,7 +76,7 @@ from roundscore.stats import precision as pr
 from roundscore.model.table import ResultTable
 
 if TYPE_CHECKING:
-    from roundscore.evaluate import MeasurandResult
+    from roundscore.model.evaluation import MeasurandResult
 
 __all__ = [
     "PRECISION_COLUMNS", "SCREENS_COLUMNS", "MANDEL_COLUMNS", "METHODS_COLUMNS", "DOUBLE_GRUBBS_MAX_LABS",

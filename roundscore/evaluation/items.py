@@ -1,0 +1,277 @@
+"""Test-item homogeneity and stability in the round: run the checks, apply the consequences.
+
+A measurand's ``[measurand.NAME]`` table in ``round.toml`` may name a
+homogeneity table (``homogeneity = "homogeneity.csv"``) and a stability table
+(``stability = "stability.csv"``). This stage takes them as read by intake,
+runs :func:`roundscore.stats.items.homogeneity` and
+:func:`roundscore.stats.items.stability` at the round's σ_pt, and applies the
+consequence chosen with ``item_checks``:
+
+``"uncertainty"`` (default)
+    u(x_pt)² = u_char² + u_hom² + u_stab², with u_hom = s_s and
+    u_stab = |ȳ₁ − ȳ₂|/√3.
+``"widen-sigma"``
+    σ_pt' = √(σ_pt² + s_s²).
+``"both"``
+    both of the above.
+``"report"``
+    the checks are reported; σ_pt and u(x_pt) are unchanged.
+
+The chosen consequence is applied whether or not the check passed (it is the
+provider's documented choice, made before the data are seen); a failed check
+does not stop scoring, it heads the summary and every lab sheet through
+:attr:`roundscore.model.evaluation.RoundEvaluation.failed_checks`, and
+``roundscore score --strict`` exits 1.
+
+The tables are read and validated by :mod:`roundscore.intake.items` before the
+evaluation runs (their layouts are described there); this stage reads no file.
+
+The results support, and do not replace, the provider's documented
+procedures, ISO/IEC 17043 and the accreditation body's rules.
+
+References
+----------
+.. [1] ISO 13528:2015, Annex B (homogeneity and stability), clause 7 (the
+   uncertainty of the assigned value); clause numbers from memory.
+.. [2] M. Thompson, S. L. R. Ellison, R. Wood, "The International Harmonized
+   Protocol for the proficiency testing of analytical chemistry
+   laboratories", Pure Appl. Chem. 78 (2006) 145-196, Section 3.11 (from memory).
+"""
+
+from __future__ import annotations
+
+from typing import Any, Mapping
+
+import numpy as np
+
+from roundscore.errors import InputError, StatisticsError
+from roundscore.model.items import (ITEMS_COLUMNS, ItemConsequence, ItemOutcome, ItemTable, StabilityChoice,
+                                    check_item_choice)
+from roundscore.model.round import MeasurandSettings
+from roundscore.stats import items as st
+
+__all__ = ["apply_item_checks"]
+
+
+def _set_values(table: ItemTable, set_name: str) -> tuple[np.ndarray, int, float, str]:
+    """The values entering the stability mean of one set, with item count, replicates per item and a word.
+
+    With two or more items in the set the item means are used (the item is
+    the sampling unit, so u = SD of the item means / √g); with one item its
+    replicates are used.
+    """
+    assert table.sets is not None
+    mask = np.array([s == set_name for s in table.sets])
+    vals = table.values[mask]
+    its = [it for it, keep in zip(table.items, mask) if keep]
+    order = list(dict.fromkeys(its))
+    if len(order) < 2:
+        return vals, 1, float(vals.size), "replicates of the single item"
+    codes = np.array([order.index(it) for it in its])
+    counts = np.bincount(codes)
+    shift = float(np.median(vals))
+    means = shift + np.bincount(codes, weights=vals - shift) / counts
+    return means, len(order), float(np.mean(counts)), "item means"
+
+
+def _wrap(exc: StatisticsError, table: ItemTable, m: MeasurandSettings) -> InputError:
+    return InputError.single(f"the {table.kind} check cannot be computed: {exc}", file=table.file,
+                             measurand=m.name)
+
+
+def _fmt(x: float) -> str:
+    return f"{x:.4g}"
+
+
+def _homogeneity_row(m: MeasurandSettings, h: st.HomogeneityResult, extra: list[str]) -> dict[str, Any]:
+    return {
+        "measurand": m.name, "check": "homogeneity", "g": h.g, "m": h.m, "mean": h.mean, "s_x": h.s_x,
+        "s_w": h.s_w, "s_s": h.s_s, "criterion": h.criterion, "allowed": h.allowed, "passed": bool(h.passed),
+        "note": "; ".join([*h.notes, *extra]),
+    }
+
+
+def _stability_row(m: MeasurandSettings, s: st.StabilityResult, g: int, reps: float,
+                   names: tuple[str, str], extra: list[str]) -> dict[str, Any]:
+    allowed = s.criterion if s.criterion_used == "simple" else s.allowed_expanded
+    head = (f"mean = y1 - y2 = {_fmt(s.difference)}: y1 = {_fmt(s.mean_first)} (set {names[0]!r}), "
+            f"y2 = {_fmt(s.mean_second)} (set {names[1]!r})")
+    return {
+        "measurand": m.name, "check": "stability", "g": g, "m": reps, "mean": s.difference,
+        "s_x": None, "s_w": None, "s_s": None, "criterion": s.criterion, "allowed": allowed,
+        "passed": bool(s.passed), "note": "; ".join([head, *s.notes, *extra]),
+    }
+
+
+def _not_run_row(m: MeasurandSettings, kind: str, why: str) -> dict[str, Any]:
+    return {c: None for c in ITEMS_COLUMNS} | {"measurand": m.name, "check": kind, "passed": False,
+                                               "note": f"not evaluated: {why}"}
+
+
+def apply_item_checks(m: MeasurandSettings, tables: Mapping[str, ItemTable], *, sigma_pt: float,
+                      u_char: float) -> ItemOutcome:
+    """Run the homogeneity and stability checks of measurand ``m`` and apply the consequence chosen.
+
+    Parameters
+    ----------
+    m : MeasurandSettings
+        ``m.homogeneity`` / ``m.stability`` name the tables, ``m.item_checks``
+        the consequence, ``m.stability_criterion`` the stability verdict.
+    tables : mapping of str to ItemTable
+        The measurand's tables as read by intake
+        (:func:`roundscore.intake.items.read_item_tables`), by kind
+        ("homogeneity", "stability"): one for each kind the measurand names.
+    sigma_pt : float
+        σ_pt as set for the round, before any widening; the criteria use it
+        (also when σ_pt is the participants' robust SD). NaN when it could not
+        be set: the tables are still validated, the checks are reported as not
+        evaluated (and so not passed).
+    u_char : float
+        u(x_pt) from the characterisation (reference value or consensus).
+
+    Returns
+    -------
+    ItemOutcome
+
+    Raises
+    ------
+    InputError
+        When a check cannot be computed from a table.
+    ValueError
+        When a table the measurand names is not in ``tables`` (it was not read).
+
+    Notes
+    -----
+    Assumptions, stated:
+
+    - u_hom = s_s of the homogeneity check; where s_s was truncated to 0
+      (s_x² < s_w²/m) u_hom is 0, and the notes say so.
+    - u_stab = |ȳ₁ − ȳ₂|/√3 (the difference as half-width of a rectangular
+      distribution), whether or not the stability check passed.
+    - The consequence is applied whether or not the checks passed: it is
+      the provider's documented choice. Widening needs a homogeneity table.
+    - In a stability table each set's mean is the mean of its item means
+      (two or more items) or of its replicates (one item); ``u`` in the
+      table is that mean's standard uncertainty. With ``stability_criterion
+      = "auto"`` the expanded criterion gives the verdict when the table
+      gives ``u`` for a set, otherwise the simple one; both are reported.
+
+    References
+    ----------
+    .. [1] ISO 13528:2015, B.2-B.6 and clause 7 (from memory).
+    """
+    consequence: ItemConsequence = check_item_choice(f"measurand.{m.name}.item_checks", m.item_checks,
+                                                     ItemConsequence)  # type: ignore[assignment]
+    choice: StabilityChoice = check_item_choice(f"measurand.{m.name}.stability_criterion",
+                                                getattr(m, "stability_criterion", "auto"),
+                                                StabilityChoice)  # type: ignore[assignment]
+    missing = [kind for kind in ("homogeneity", "stability") if getattr(m, kind) is not None and kind not in tables]
+    if missing:
+        raise ValueError(f"measurand {m.name}: its {' and '.join(missing)} table was not read; read the item "
+                         "tables first (roundscore.intake.items.read_item_tables)")
+    tables = {kind: tables[kind] for kind in ("homogeneity", "stability") if getattr(m, kind) is not None}
+
+    notes: list[str] = []
+    audit: list[tuple[str, str, str, str, str]] = []
+    rows: list[dict[str, Any]] = []
+    for t in tables.values():
+        notes += list(t.notes)
+    sigma_ok = bool(np.isfinite(sigma_pt) and sigma_pt > 0)
+    hom = stab = None
+    names: tuple[str, str] | None = None
+    hom_t, stab_t = tables.get("homogeneity"), tables.get("stability")
+    if not sigma_ok:
+        why = "σ_pt could not be set, so the item criteria cannot be applied"
+        for kind in tables:
+            rows.append(_not_run_row(m, kind, why))
+            notes.append(f"{kind} check {why}")
+            audit.append((m.name, "", kind, "not evaluated", why))
+    if sigma_ok and hom_t is not None:
+        try:
+            hom = st.homogeneity(list(hom_t.items), hom_t.values, sigma_pt)
+        except StatisticsError as exc:
+            raise _wrap(exc, hom_t, m) from None
+    if sigma_ok and stab_t is not None:
+        names = (stab_t.set_names[0], stab_t.set_names[1])
+        v1, g1, r1, how = _set_values(stab_t, names[0])
+        v2, g2, r2, _ = _set_values(stab_t, names[1])
+        try:
+            stab = st.stability(v1, v2, sigma_pt, u_first=stab_t.set_u.get(names[0]),
+                                u_second=stab_t.set_u.get(names[1]), criterion=choice)
+        except StatisticsError as exc:
+            raise _wrap(exc, stab_t, m) from None
+        stab_how = f"each set's mean from its {how}; criterion choice {choice!r}"
+    else:
+        g1 = g2 = 0
+        r1 = r2 = 0.0
+        stab_how = ""
+
+    u_hom = hom.s_s if hom is not None else 0.0
+    u_stab = stab.u_stab if stab is not None else 0.0
+    s_new, u_new, widened = sigma_pt, u_char, False
+    effect: list[str] = []
+    if sigma_ok and consequence in ("uncertainty", "both") and (hom is not None or stab is not None):
+        if np.isfinite(u_char):
+            u_new = st.item_uncertainty(u_char, u_hom, u_stab)
+            effect.append(
+                f"u(x_pt) = sqrt(u_char^2 + u_hom^2 + u_stab^2) = sqrt({_fmt(u_char)}^2 + {_fmt(u_hom)}^2 + "
+                f"{_fmt(u_stab)}^2) = {_fmt(u_new)} (item_checks = {consequence!r})")
+        else:
+            effect.append("u_hom and u_stab not added: u(x_pt) could not be set")
+        if hom is not None and hom.s_s_truncated:
+            effect.append("s_s was truncated to 0, so u_hom = 0")
+        if m.is_consensus:
+            effect.append("the consensus value's u already reflects part of the between-item spread; "
+                          "adding u_hom and u_stab is the cautious choice")
+    if sigma_ok and consequence in ("widen-sigma", "both"):
+        if hom is None:
+            effect.append(f"σ_pt not widened: item_checks = {consequence!r} needs a homogeneity table")
+        elif hom.s_s > 0:
+            s_new = st.widened_sigma(sigma_pt, hom.s_s)
+            widened = True
+            effect.append(f"σ_pt widened to sqrt(σ_pt^2 + s_s^2) = sqrt({_fmt(sigma_pt)}^2 + {_fmt(hom.s_s)}^2) "
+                          f"= {_fmt(s_new)} (item_checks = {consequence!r})")
+        else:
+            effect.append("σ_pt not widened: s_s was truncated to 0" if hom.s_s_truncated
+                          else "σ_pt not widened: s_s = 0")
+        if m.sigma_pt.kind == "robust-sd" and widened:
+            effect.append("σ_pt from the participants' robust SD already holds the between-item spread; "
+                          "widening counts it again (the criteria used the σ_pt before widening)")
+    if sigma_ok and consequence == "report":
+        effect.append("item_checks = 'report': σ_pt and u(x_pt) are not changed by the item checks")
+
+    if hom is not None:
+        verdict = "passed" if hom.passed else "FAILED"
+        line = (f"homogeneity ({hom.g} items x {hom.m:g}): s_s = {_fmt(hom.s_s)}, 0.3 σ_pt = {_fmt(hom.criterion)}, "
+                f"expanded allowance = {_fmt(hom.allowed)}: {verdict}")
+        if hom.passed and not hom.passed_simple:
+            line += " (on the expanded criterion only; the simple one is not met)"
+        notes.append(line)
+        if hom.s_s_truncated:
+            notes.append("homogeneity: s_x^2 < s_w^2/m, s_s truncated to 0")
+        if hom.precision_warning:
+            notes.append(f"homogeneity: {hom.precision_warning}")
+        if hom.cochran_signal in ("straggler", "outlier"):
+            notes.append(f"homogeneity: Cochran's test flags item {hom.cochran_item!r} as a {hom.cochran_signal}")
+        audit.append((m.name, "", "homogeneity", "passed" if hom.passed else "check failed", line))
+        rows.append(_homogeneity_row(m, hom, effect))
+    if stab is not None and names is not None:
+        verdict = "passed" if stab.passed else "FAILED"
+        allowed = stab.criterion if stab.criterion_used == "simple" else stab.allowed_expanded
+        line = (f"stability ({names[0]!r} vs {names[1]!r}): |y1 - y2| = {_fmt(abs(stab.difference))}, "
+                f"allowance = {_fmt(allowed)} ({stab.criterion_used} criterion): {verdict}")
+        notes.append(line)
+        audit.append((m.name, "", "stability", "passed" if stab.passed else "check failed", line))
+        rows.append(_stability_row(m, stab, g1 + g2, (r1 + r2) / 2.0, names, [stab_how, *effect]))
+    notes += effect
+    if effect:
+        action = ("σ_pt widened and u(x_pt) increased" if widened and u_new != u_char
+                  else "σ_pt widened" if widened else "u(x_pt) increased" if u_new != u_char
+                  else "no change")
+        audit.append((m.name, "", "item checks", action, "; ".join(effect)))
+    return ItemOutcome(
+        sigma_pt=float(s_new), u_assigned=float(u_new), sigma_pt_before=float(sigma_pt), u_char=float(u_char),
+        consequence=consequence, homogeneity=hom, stability=stab, homogeneity_table=hom_t,
+        stability_table=stab_t, stability_sets=names, u_hom=float(u_hom), u_stab=float(u_stab),
+        widened=widened, rows=tuple(rows), notes=tuple(notes), audit=tuple(audit),
+    )
