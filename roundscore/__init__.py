@@ -25,8 +25,8 @@ from roundscore.stats.outliers import cochran, grubbs_double, grubbs_single, pre
 from roundscore.stats.compare import compare_groups, compare_one, compare_two
 from roundscore.stats.exact import centred
 from roundscore.stats.items import homogeneity, stability
-from roundscore.archive import add_files, lab_history, store_round
-from roundscore.history import check_history
+from roundscore.history.store import add_files, lab_history, store_round
+from roundscore.history.rules import check_history
 
 __all__ = [
     "__version__",

@@ -190,7 +190,7 @@ def run_round(round_path: str | Path, out: str | Path, *, archive: str | Path | 
     archive file yet: no history, and the store creates it.  Storing the same
     content again changes nothing; different content is refused unless
     ``replace_archive``.  ``on_archive`` receives the
-    :class:`~roundscore.archive.StoreOutcome`.
+    :class:`~roundscore.history.store.StoreOutcome`.
     """
     rnd = load_round(round_path)
     store = archive if archive is not None else rnd.archive
@@ -202,7 +202,7 @@ def run_round(round_path: str | Path, out: str | Path, *, archive: str | Path | 
     ev = load_and_evaluate(rnd, jobs=jobs, progress=progress)
     history = None
     if store is not None:
-        from roundscore import archive as history_archive
+        from roundscore.history import store as history_archive
         from roundscore.errors import ArchiveConflict, ArchiveError
 
         history_archive.check_round_keys(ev.round)

@@ -1,4 +1,4 @@
-"""Tests of roundscore.archive: the SQLite history store.
+"""Tests of roundscore.history.store: the SQLite history store.
 
 All data here is invented for the tests (our own scenario: a water-analysis
 scheme "AQ" and a soil scheme "SOIL", labs with made-up codes).  Expected
@@ -23,7 +23,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from roundscore import archive
+from roundscore.history import store as archive
 from roundscore.errors import ArchiveError, InputError
 
 REPO = Path(__file__).resolve().parents[1]
@@ -511,7 +511,7 @@ def test_archive_path_precedence(tmp_path, monkeypatch):
 CHILD = textwrap.dedent("""
     import sys, time
     import numpy as np, pandas as pd
-    from roundscore import archive
+    from roundscore.history import store as archive
     db, mode, n_labs = sys.argv[1], sys.argv[2], int(sys.argv[3])
     labs = [f"L{i:05d}" for i in range(n_labs)]
     rows = [dict(lab=lab, measurand=m, unit="mg/L", n_replicates=2, result=10.0 + 0.001 * i,

@@ -1,4 +1,4 @@
-"""The archive file (roundscore.archive_db): recognised before use, read without writing, damage
+"""The archive file (roundscore.history.db): recognised before use, read without writing, damage
 and locks reported by name, ``~`` expanded, ``[round] archive`` allowed outside the round folder.
 
 All data are invented (a water scheme "AQ" with made-up lab codes).  Expected behaviour comes
@@ -17,8 +17,8 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from roundscore import archive, archive_db
-from roundscore.archive_files import read_lab_file
+from roundscore.history import store as archive, db as archive_db
+from roundscore.history.sheets import read_lab_file
 from roundscore.errors import ArchiveConflict, ArchiveError, RoundFileError
 from roundscore.intake.roundfile import load_round
 

@@ -20,7 +20,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from roundscore import history
+from roundscore.stats import trends
 from roundscore.cli import main
 from roundscore.errors import StatisticsError
 from roundscore.ranges import CONFIDENCE_MAX, MAX_MAGNITUDE, MIN_MAGNITUDE, magnitude_problem
@@ -324,14 +324,14 @@ def test_history_check_with_nearly_equal_scores(tmp_path, capsys, strict):
 
 def test_bias_check_tolerance_is_scale_aware(strict):
     with pytest.raises(StatisticsError, match=r"nearly\) all equal"):
-        history.bias_check([1e6, 1e6 + 1e-4, 1e6 - 1e-4])  # SD 1e-4 ≤ 1e-9 × 1e6 = 1e-3
-    b = history.bias_check([1e-3, 2e-3, 1.5e-3])  # near 0 the floor is 1e-9: a spread of 5e-4 is tested
+        trends.bias_check([1e6, 1e6 + 1e-4, 1e6 - 1e-4])  # SD 1e-4 ≤ 1e-9 × 1e6 = 1e-3
+    b = trends.bias_check([1e-3, 2e-3, 1.5e-3])  # near 0 the floor is 1e-9: a spread of 5e-4 is tested
     assert b.n == 3 and math.isfinite(b.t)
     # scores far beyond any roundscore computes (history add of a foreign file): finite t, no warning
-    big = history.bias_check([1e300, 2e300, 1.5e300])
-    assert big.t == pytest.approx(history.bias_check([1.0, 2.0, 1.5]).t, rel=1e-12)
+    big = trends.bias_check([1e300, 2e300, 1.5e300])
+    assert big.t == pytest.approx(trends.bias_check([1.0, 2.0, 1.5]).t, rel=1e-12)
     assert "+1.5e+300" in big.conclusion
-    assert math.isinf(history.combined_scores([1e300, 1e300]).ssz)
+    assert math.isinf(trends.combined_scores([1e300, 1e300]).ssz)
 
 
 @pytest.mark.parametrize("argv, words", [

@@ -1,4 +1,4 @@
-"""Tests of roundscore.history (trend rules, combined scores, bias check) and of
+"""Tests of roundscore.stats.trends and roundscore.history.rules (trend rules, combined scores, bias check) and of
 roundscore.commands.history (the ``history add/show/check`` subcommands).
 
 Series are hand-made so that the expected result follows from the rule's
@@ -18,7 +18,9 @@ import pandas as pd
 import pytest
 from scipy import stats
 
-from roundscore import archive, history
+from roundscore.history import store as archive
+from roundscore.history import rules as history
+from roundscore.stats import trends
 from roundscore.commands import history as cmd
 from roundscore.errors import InputError, StatisticsError
 
@@ -28,10 +30,10 @@ from roundscore.errors import InputError, StatisticsError
 @pytest.mark.parametrize("z, limit, expected", [
     ([0.5, 2.99, -3.0, 3.5], 3.0, [2, 3]),  # ISO 13528: |z| >= 3.0 is an action signal
     ([2.9, -2.999, 0.0], 3.0, []),
-    ([0.99, -1.0, 1.2], history.EN_ACTION_LIMIT, [1, 2]),  # ISO 13528: |En| >= 1.0
+    ([0.99, -1.0, 1.2], trends.EN_ACTION_LIMIT, [1, 2]),  # ISO 13528: |En| >= 1.0
 ])
 def test_rule1_action_signals(z, limit, expected):
-    assert history.action_signals(z, limit=limit).tolist() == expected
+    assert trends.action_signals(z, limit=limit).tolist() == expected
 
 
 # --------------------------------------------------------------------------- rule 2
@@ -48,7 +50,7 @@ def test_rule1_action_signals(z, limit, expected):
     ([3.5], []),
 ])
 def test_rule2_two_of_three(z, expected):
-    assert history.two_of_three(z) == expected
+    assert trends.two_of_three(z) == expected
 
 
 # --------------------------------------------------------------------------- rule 3
@@ -61,7 +63,7 @@ def test_rule2_two_of_three(z, expected):
     ([0.5] * 9 + [-0.5] * 9, [(0, 8, "high"), (9, 17, "low")]),
 ])
 def test_rule3_same_side_runs(z, expected):
-    assert history.same_side_runs(z) == expected
+    assert trends.same_side_runs(z) == expected
 
 
 # --------------------------------------------------------------------------- rule 4
@@ -69,7 +71,7 @@ def test_rule3_same_side_runs(z, expected):
 def test_cusum_recursion_by_hand():
     # Page (1954) tabular CUSUM, k = 0.5:
     # C+ = 0.5, 2.0, 0.5, 0.5 ; C- = 0, 0, 0.5, 0 (worked by hand from the definition)
-    res = history.cusum([1.0, 2.0, -1.0, 0.5])
+    res = trends.cusum([1.0, 2.0, -1.0, 0.5])
     assert res.upper.tolist() == [0.5, 2.0, 0.5, 0.5]
     assert res.lower.tolist() == [0.0, 0.0, 0.5, 0.0]
     assert res.alarms == () and (res.k, res.h) == (0.5, 4.0)
@@ -83,24 +85,24 @@ def test_cusum_recursion_by_hand():
 ])
 def test_cusum_detects_a_known_shift_not_before(shift, side, after):
     z = [0.0] * 10 + [shift] * 12
-    res = history.cusum(z)
+    res = trends.cusum(z)
     first, first_side = res.alarms[0]
     assert first == 10 + after - 1 and first_side == side
     assert all(p >= 10 for p, _ in res.alarms)
 
 
 def test_cusum_restarts_after_an_alarm_and_ignores_noise():
-    res = history.cusum([2.0] * 9)  # alarms every third point after a restart at 0
+    res = trends.cusum([2.0] * 9)  # alarms every third point after a restart at 0
     assert [p for p, _ in res.alarms] == [2, 5, 8]
-    assert history.cusum([1.0, -1.0] * 20).alarms == ()  # C+ alternates 0.5, 0: never > 4
-    held = history.cusum([2.0] * 6, restart=False)
+    assert trends.cusum([1.0, -1.0] * 20).alarms == ()  # C+ alternates 0.5, 0: never > 4
+    held = trends.cusum([2.0] * 6, restart=False)
     assert [p for p, _ in held.alarms] == [2, 3, 4, 5]
 
 
 # --------------------------------------------------------------------------- combined scores
 
 def test_combined_scores_arithmetic_and_chi2_quantiles():
-    c = history.combined_scores([1.0, -1.0, 2.0, 0.0])
+    c = trends.combined_scores([1.0, -1.0, 2.0, 0.0])
     # RSZ = 2 / sqrt(4) = 1; SSZ = 1 + 1 + 4 + 0 = 6; mean |z| = 4 / 4 (hand arithmetic)
     assert (c.n, c.rsz, c.ssz, c.mean_abs_z) == (4, 1.0, 6.0, 1.0)
     assert c.ssz_p_value == pytest.approx(stats.chi2.sf(6.0, 4), rel=1e-12)  # scipy reference
@@ -114,7 +116,7 @@ def test_combined_scores_arithmetic_and_chi2_quantiles():
     (1, 3.841, 6.635),
 ])
 def test_ssz_critical_values_match_tables_and_scipy(n, crit5, crit1):
-    c = history.combined_scores(np.full(n, 0.3))
+    c = trends.combined_scores(np.full(n, 0.3))
     assert c.ssz_critical_5 == pytest.approx(crit5, abs=6e-4)
     assert c.ssz_critical_1 == pytest.approx(crit1, abs=6e-4)
     assert c.ssz_critical_5 == pytest.approx(stats.chi2.ppf(0.95, n), rel=1e-12)
@@ -124,7 +126,7 @@ def test_ssz_critical_values_match_tables_and_scipy(n, crit5, crit1):
 
 def test_bias_check_by_hand_and_scipy():
     z = [0.5, 1.0, 1.5, 1.0, 1.0]
-    b = history.bias_check(z)
+    b = trends.bias_check(z)
     # mean 1, s = sqrt(0.5 / 4) = 0.35355, t = 1 / (s / sqrt 5) = 6.3246 (hand arithmetic)
     assert b.t == pytest.approx(1.0 / (math.sqrt(0.125) / math.sqrt(5)), rel=1e-12)
     assert b.df == 4 and b.mean_z == 1.0
@@ -135,15 +137,15 @@ def test_bias_check_by_hand_and_scipy():
 
 
 def test_bias_check_no_evidence_and_refusals():
-    b = history.bias_check([1.0, -1.0, 0.5, -0.5])
+    b = trends.bias_check([1.0, -1.0, 0.5, -0.5])
     assert not b.biased and b.t == 0.0 and b.p_value == pytest.approx(1.0)
     assert "no evidence" in b.conclusion
     with pytest.raises(StatisticsError, match="at least 3"):
-        history.bias_check([1.0, 2.0])
+        trends.bias_check([1.0, 2.0])
     with pytest.raises(StatisticsError, match=r"nearly\) all equal"):
-        history.bias_check([1.2, 1.2, 1.2])
+        trends.bias_check([1.2, 1.2, 1.2])
     with pytest.raises(StatisticsError, match="missing or infinite"):
-        history.cusum([1.0, float("nan")])
+        trends.cusum([1.0, float("nan")])
 
 
 # --------------------------------------------------------------------------- series

@@ -5,7 +5,7 @@ the scores the coordinator stored; ``history show`` and ``history check`` work o
 All data are invented: the demo round's generator (roundscore.demo, our own scenario) with
 other seeds, ids and dates, and small water rounds made up here.  Expected values are the
 invented inputs themselves, values read back from the other side of the round trip, or
-properties of the rules in roundscore.history (each named beside its check).
+properties of the rules in roundscore.history.rules (each named beside its check).
 """
 
 from __future__ import annotations
@@ -22,7 +22,7 @@ import pandas as pd
 import pytest
 from python_calamine import CalamineWorkbook
 
-from roundscore import archive
+from roundscore.history import store as archive
 from roundscore.cli import main
 from roundscore.demo import make_demo_round
 from roundscore.model.evaluation import SCORE_COLUMNS as PIPELINE_SCORE_COLUMNS
@@ -182,7 +182,7 @@ def test_history_check_fires_for_the_planted_outlier(trip):
 def test_history_check_is_quiet_on_a_clean_lab(trip, tmp_path):
     # A lab whose every score is below 1 in size cannot fire any rule over three rounds:
     # rule 1 needs 3 (En: 1), rule 2 needs 2, rule 3 needs nine rounds, and the CUSUM
-    # (k = 0.5, h = 4) grows by less than 0.5 a round (roundscore.history).
+    # (k = 0.5, h = 4) grows by less than 0.5 a round (roundscore.history.rules).
     coord = archive.lab_history(trip["coord"], lab=archive.archived_labs(trip["coord"]))
     size = coord.assign(a=coord["score_value"].abs()).groupby("lab")["a"].max()
     clean = sorted(size[size < 1].index)

@@ -19,9 +19,10 @@ from pathlib import Path
 import openpyxl
 import pytest
 
-from roundscore import archive
-from roundscore.archive_checks import canonical, row_problems
-from roundscore.archive_files import ROW_FIELDS, read_lab_file
+from roundscore.history import store as archive
+from roundscore.model.digest import canonical
+from roundscore.history.checks import row_problems
+from roundscore.history.sheets import ROW_FIELDS, read_lab_file
 from roundscore.demo import make_demo_round
 from roundscore.outputs.workbook import lab_payload, write_lab_workbook
 from roundscore.pipeline import load_and_evaluate
@@ -328,7 +329,7 @@ def test_hostile_workbooks_are_refused_by_name(sheets, tmp_path, db, how, words)
 
 def test_score_rows_follow_the_lab_code_rule():
     """history add reads lab codes by the same rule as every other reader (roundscore.model.labcodes)."""
-    from roundscore.archive_files import ROW_FIELDS, normalise_rows
+    from roundscore.history.sheets import ROW_FIELDS, normalise_rows
 
     good = {c: None for c in ROW_FIELDS}
     good.update(lab="K01", measurand="iron", signal="not-scored")

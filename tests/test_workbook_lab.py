@@ -21,7 +21,7 @@ import pytest
 from openpyxl.utils.cell import range_boundaries
 from python_calamine import CalamineWorkbook
 
-from roundscore.archive_files import normalise_rows, read_lab_file
+from roundscore.history.sheets import normalise_rows, read_lab_file
 from roundscore.demo import make_demo_round
 from roundscore.model.evaluation import SCORE_COLUMNS
 from roundscore.outputs import workbook as wbm

@@ -9,7 +9,7 @@ Subcommands
     A table in the terminal; with ``--out`` also ``history.xlsx`` (with a native
     line chart of the scores) and ``history.png`` / ``history.svg``.
 ``history check [--lab L] [--window N] [--json] [--archive FILE]``
-    Trend rules over every lab x measurand series (see :mod:`roundscore.history`);
+    Trend rules over every lab x measurand series (see :mod:`roundscore.history.rules`);
     exit code 0 when nothing fired, 1 when a rule fired.
 
 Errors are raised as :class:`roundscore.errors.RoundscoreError` subclasses; the
@@ -28,7 +28,9 @@ from typing import Sequence
 import numpy as np
 import pandas as pd
 
-from roundscore import archive, history
+from roundscore.history import store as archive
+from roundscore.history import rules as history
+from roundscore.stats import trends
 from roundscore.errors import ArchiveError, InputError, RoundscoreError
 from roundscore.text import json_text, terminal_text
 
@@ -236,8 +238,8 @@ def write_history_outputs(frame: pd.DataFrame, out: Path, *, lab: str,
 def _limits_for(part: pd.DataFrame) -> tuple[float, float | None]:
     """(action, warning) limits: 3/2 for z-like scores, 1/None for En (ISO 13528)."""
     if len(part) and (part["score"] == "en").all():
-        return history.EN_ACTION_LIMIT, None
-    return history.ACTION_LIMIT, history.WARNING_LIMIT
+        return trends.EN_ACTION_LIMIT, None
+    return trends.ACTION_LIMIT, trends.WARNING_LIMIT
 
 
 def _write_workbook(frame: pd.DataFrame, path: Path, *, lab: str) -> None:
@@ -400,7 +402,7 @@ def format_check(report: history.HistoryCheck) -> str:
     lines.append(f"{len(fired)} of {len(report.series)} series with a rule firing in the last "
                  f"{report.window} scored rounds.")
     if any(s.combined is not None for s in fired):
-        lines.append("Caution: " + history.COMBINED_CAUTION)
+        lines.append("Caution: " + trends.COMBINED_CAUTION)
     lines.append(report.disclaimer)
     return "\n".join(lines)
 

@@ -17,7 +17,7 @@ contract, see :data:`~roundscore.model.evaluation.SCORE_COLUMNS`.  The ``data`` 
 holds its numbers to 12 significant digits and a digest of each row (column
 ``row_digest``), the ``round`` sheet a digest of the whole (key ``digest``),
 so ``history add`` refuses a row edited after it was written
-(:mod:`roundscore.archive_checks`).
+(:mod:`roundscore.history.checks`).
 """
 
 from __future__ import annotations
@@ -32,7 +32,7 @@ import numpy as np
 import pandas as pd
 import xlsxwriter
 
-from roundscore.archive_checks import DIGEST_KEY, ROW_DIGEST_COLUMN, row_digest, sheet_digest, sheet_value
+from roundscore.model.digest import DIGEST_KEY, ROW_DIGEST_COLUMN, row_digest, sheet_digest, sheet_value
 from roundscore.model.evaluation import SCORE_COLUMNS, STATISTICS_COLUMNS, RoundEvaluation
 from roundscore.outputs.look import CAUTION, SIGNAL_COLOUR, SIGNAL_WORD, signal_label
 
@@ -509,7 +509,7 @@ def _fold_extras(extras: dict[str, pd.DataFrame], measurands: list[str]
 def _data_rows(table: dict[str, list]) -> tuple[dict[str, list], list[str]]:
     """The machine-readable ``data`` sheet: the score columns with numbers rounded to 12 significant
     digits (what a spreadsheet program keeps on saving again), and each row's digest
-    (roundscore.archive_checks), so ``history add`` can tell an edited row from a re-saved file."""
+    (roundscore.history.checks), so ``history add`` can tell an edited row from a re-saved file."""
     rows = {c: [sheet_value(v) for v in table.get(c, ())] for c in SCORE_COLUMNS}
     n = len(rows[SCORE_COLUMNS[0]])
     for c in SCORE_COLUMNS:
@@ -619,10 +619,10 @@ def write_lab_workbook(payload: dict[str, Any], path: Path) -> None:
     _print_setup(ws, rd["id"], top)
     hist = payload.get("history")
     if hist is not None and len(hist):
-        # History: the lab's earlier rounds of this scheme (archive rows, roundscore.archive
+        # History: the lab's earlier rounds of this scheme (archive rows, roundscore.history.store
         # HISTORY_COLUMNS), then a native line chart of the score per measurand over those
         # rounds and this one, with the limits of ISO 13528 (z-like 2 and 3; En 1).
-        from roundscore.history import ACTION_LIMIT, EN_ACTION_LIMIT, WARNING_LIMIT
+        from roundscore.stats.trends import ACTION_LIMIT, EN_ACTION_LIMIT, WARNING_LIMIT
         from roundscore.outputs.look import PALETTE
 
         hs = wb.add_worksheet("History")

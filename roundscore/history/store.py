@@ -12,7 +12,7 @@ Two sides write to the same kind of file:
 
 :func:`lab_history` reads one lab's series back, one row per round x measurand
 (several labs in one query).  Reading and validating the files and the score
-rows lives in :mod:`roundscore.archive_files`.
+rows lives in :mod:`roundscore.history.sheets`.
 
 Design decisions
 ----------------
@@ -36,7 +36,7 @@ Design decisions
 * The file is marked with ``PRAGMA application_id`` (migration 3), checked
   with ``PRAGMA quick_check`` whenever it is opened, opened read-only by the
   reading functions, and waited for while another process writes: see
-  :mod:`roundscore.archive_db`.
+  :mod:`roundscore.history.db`.
 
 References
 ----------
@@ -59,12 +59,12 @@ from typing import TYPE_CHECKING, Any, Literal
 
 import pandas as pd
 
-from roundscore.archive_files import (FLOAT_FIELDS as _FLOAT_FIELDS, ROW_FIELDS as _ROW_FIELDS, SCORE_COLUMNS,
-                                      SCORE_VALUE_COLUMN, LabRows as _LabRows, normalise_rows as _normalise_rows,
-                                      parse_date as _parse_date, plain as _plain, read_lab_file as _read_lab_file,
-                                      text_key as _text, unquote as _unquote)
-from roundscore import archive_db as _db
-from roundscore.archive_db import (APPLICATION_ID, ARCHIVE_ENV, archive_path, now as _now,
+from roundscore.history.sheets import (FLOAT_FIELDS as _FLOAT_FIELDS, ROW_FIELDS as _ROW_FIELDS, SCORE_COLUMNS,
+                                       SCORE_VALUE_COLUMN, LabRows as _LabRows, normalise_rows as _normalise_rows,
+                                       parse_date as _parse_date, plain as _plain, read_lab_file as _read_lab_file,
+                                       text_key as _text, unquote as _unquote)
+from roundscore.history import db as _db
+from roundscore.history.db import (APPLICATION_ID, ARCHIVE_ENV, archive_path, now as _now,
                                    transaction as _transaction)
 from roundscore.errors import ArchiveConflict, InputError, Problem, RoundFileError
 
@@ -169,7 +169,7 @@ def _connect(path: str | os.PathLike[str] | None, *, create: bool,
              migrations: Sequence[Callable[[sqlite3.Connection], None]] = MIGRATIONS):
     """Open the archive to write (``create``: made when missing, migrated) or read-only.
 
-    See :func:`roundscore.archive_db.open_archive`: the file is recognised
+    See :func:`roundscore.history.db.open_archive`: the file is recognised
     and checked first, and a read yields ``None`` for an empty file.
     """
     return _db.open_archive(path, write=create, migrations=migrations)

@@ -1,6 +1,6 @@
 """The archive file itself: finding it, recognising it, checking it, and opening it to read or to write.
 
-:mod:`roundscore.archive` says what is stored; this module makes sure that
+:mod:`roundscore.history.store` says what is stored; this module makes sure that
 the file it is stored in is a roundscore archive in good order, and that a
 reading command never changes it.
 
@@ -368,7 +368,7 @@ def open_archive(path: str | os.PathLike[str] | None, *, write: bool,
         schema is migrated; the file is first recognised and checked through
         a read-only connection.
     migrations : sequence of callables
-        The schema migrations (:data:`roundscore.archive.MIGRATIONS`).
+        The schema migrations (:data:`roundscore.history.store.MIGRATIONS`).
 
     Raises
     ------

@@ -1,6 +1,6 @@
 """Reading score rows: the row contract, and the files a lab receives (``scores.csv``, ``labs/LAB.xlsx``).
 
-:mod:`roundscore.archive` stores what this module reads.  Everything here is
+:mod:`roundscore.history.store` stores what this module reads.  Everything here is
 pure reading and validation; nothing touches the archive file.
 
 * :func:`normalise_rows` turns score records (from a frame, a CSV or a
@@ -12,7 +12,7 @@ pure reading and validation; nothing touches the archive file.
   a bounded worker process: :func:`roundscore.intake.isolation.read_many`), a CSV by
   the bounded text reader (:func:`roundscore.intake.xlsx.read_csv_rows`); every
   row of the chosen lab is checked for consistency and a lab sheet against
-  its digests (:mod:`roundscore.archive_checks`).
+  its digests (:mod:`roundscore.history.checks`).
 
 A CSV writer neutralises cells that start with ``= + - @`` with a leading
 ``'`` (OWASP, "CSV Injection"); the readers undo that so the stored text is
@@ -34,8 +34,8 @@ from roundscore.errors import InputError, Problem
 from roundscore.model.labcodes import read_lab_code
 from roundscore.text import too_long
 
-from roundscore.archive_checks import (DIGEST_KEY, EDIT_HINT, RESUBMIT_HINT, ROW_DIGEST_COLUMN, canonical,
-                                       row_digest, row_problems, sheet_digest)
+from roundscore.model.digest import DIGEST_KEY, ROW_DIGEST_COLUMN, canonical, row_digest, sheet_digest
+from roundscore.history.checks import EDIT_HINT, RESUBMIT_HINT, row_problems
 
 # One definition of the score-row contract (evaluate.py) and of the score and signal names.
 from roundscore.model.evaluation import SCORE_COLUMNS, SCORE_FIELD as SCORE_VALUE_COLUMN
@@ -273,7 +273,7 @@ def _read_workbook(file: Path) -> _Sheet:
 
 
 def _digest_findings(file: Path, got: _Sheet) -> tuple[list[Problem], list[str]]:
-    """Compare a lab sheet's digests with its cells (see :mod:`roundscore.archive_checks`)."""
+    """Compare a lab sheet's digests with its cells (see :mod:`roundscore.history.checks`)."""
     has_column, has_key = ROW_DIGEST_COLUMN in got.header, DIGEST_KEY in (got.meta or {})
     if not has_column and not has_key:
         return [], ["written by a roundscore without sheet digests, so edits made to it since "
@@ -305,7 +305,7 @@ def read_lab_file(file: Path, lab: str | None) -> list[LabRows]:
     """Read a ``scores.csv`` or ``labs/LAB.xlsx`` into per (scheme, round, lab) groups.
 
     Every row of the chosen lab is checked for consistency
-    (:func:`roundscore.archive_checks.row_problems`), and a lab sheet's rows
+    (:func:`roundscore.history.checks.row_problems`), and a lab sheet's rows
     against its digests; any problem refuses the whole file, naming the rows.
     """
     if not file.is_file():

@@ -1,4 +1,4 @@
-"""Checks on score rows that come back from files: each row's internal consistency, and lab-sheet digests.
+"""Checks on score rows that come back from files: each row's internal consistency.
 
 A lab's score sheet (``labs/LAB.xlsx``) and a round's ``scores.csv`` travel
 through e-mail and spreadsheet programs before ``history add`` reads them
@@ -12,55 +12,30 @@ back.  Two checks stop an edited row from being stored as genuine:
   (``|ζ| ≤ |d| / u(x_pt)``, ``|En| ≤ |d| / U(x_pt)`` with ``U(x_pt) = 2 u(x_pt)``
   as :mod:`roundscore.evaluation.evaluate` computes it); and the signal must be the
   one the limits give for the round's chosen score.
-* :func:`row_digest` and :func:`sheet_digest`: the lab sheet's ``data``
-  sheet carries a digest of each row (column :data:`ROW_DIGEST_COLUMN`) and
-  the ``round`` sheet one of the whole (key :data:`DIGEST_KEY`), so an edit
-  that keeps a row consistent is still found, and the row is named.  The
-  digests are over the cell *values as read back*, canonicalised (numbers
-  to :data:`DIGITS` significant digits, text stripped, empty cells as
-  nothing), never over file bytes: opening a sheet and saving it again in a
-  spreadsheet program changes its bytes but not these values.  The writer
-  rounds the numbers of the ``data`` sheet to :data:`DIGITS` digits, so a
-  program that keeps 15 (Excel, LibreOffice) gives back the same values.
-
-The digest catches accidental and casual edits; it is not a signature:
-anyone can compute it again.
+* the digests of :mod:`roundscore.model.digest`: the lab sheet's ``data``
+  sheet carries a digest of each row and the ``round`` sheet one of the
+  whole, so an edit that keeps a row consistent is still found, and the row
+  is named (checked by :mod:`roundscore.history.sheets`).
 
 References
 ----------
 .. [1] ISO 13528:2022 §9.3 (D, D%), §9.4 (z), §9.5 (z′), §9.6 (ζ), §9.7 (En).
-.. [2] Microsoft, "Floating-point arithmetic may give inaccurate results in
-   Excel" (15 significant digits kept).
 """
 
 from __future__ import annotations
 
-import datetime as _dt
-import hashlib
-import json
 import math
-from collections.abc import Iterable, Sequence
 
 import numpy as np
 
 from roundscore.errors import Problem
 from roundscore.stats.scores import SIGNALS, Z_ACTION, signal
 
-__all__ = ["DIGITS", "REL_TOL", "DIGEST_KEY", "ROW_DIGEST_COLUMN", "canonical", "sheet_value",
-           "row_digest", "sheet_digest", "row_problems", "EDIT_HINT", "RESUBMIT_HINT"]
+__all__ = ["REL_TOL", "row_problems", "EDIT_HINT", "RESUBMIT_HINT"]
 
-#: Significant digits kept in the ``data`` sheet and compared by the digests: the precision of
-#: ``scores.csv`` and of the archive's content hash (roundscore.archive.HASH_DIGITS).
-DIGITS = 12
 #: Relative tolerance of the consistency checks: the numbers carry 12 significant digits
 #: (a rounding error up to 5e-13 each); 1e-9 leaves room for the arithmetic (common practice).
 REL_TOL = 1e-9
-#: Key of the whole sheet's digest in the ``round`` sheet.
-DIGEST_KEY = "digest"
-#: Column of each row's digest in the ``data`` sheet (after the score columns).
-ROW_DIGEST_COLUMN = "row_digest"
-#: Hex digits of a row digest (64 bits: an accidental match is out of the question).
-_ROW_HEX = 16
 #: U(x_pt) = 2 u(x_pt) in En (roundscore.evaluation.evaluate._score_rows).
 _EN_K = 2.0
 #: Scores by the round's score name, and the field holding each (roundscore.model.evaluation.SCORE_FIELD).
@@ -70,56 +45,6 @@ RESUBMIT_HINT = "add the file as the provider sent it, or ask the provider for a
 #: Said with every consistency problem.
 EDIT_HINT = ("the row was changed after roundscore computed it (edited by hand?) or is damaged; "
              + RESUBMIT_HINT)
-
-
-# --------------------------------------------------------------------------- digests
-
-def canonical(value: object) -> str | None:
-    """A cell value as the digests see it: numbers to :data:`DIGITS` digits, text stripped.
-
-    Empty cells, empty text and non-finite numbers are ``None``; ``-0`` is ``0``.
-    """
-    if value is None:
-        return None
-    if isinstance(value, (bool, np.bool_)):
-        return "TRUE" if value else "FALSE"
-    if isinstance(value, (int, float, np.integer, np.floating)):
-        number = float(value)
-        return f"{number + 0.0:.{DIGITS}g}" if math.isfinite(number) else None
-    if isinstance(value, (_dt.datetime, _dt.date)):
-        return value.isoformat()
-    text = str(value).strip()
-    return text or None
-
-
-def sheet_value(value: object) -> object:
-    """A value as the writer puts it into the ``data`` sheet: numbers rounded to :data:`DIGITS`
-    digits (non-finite ones left out), anything else unchanged."""
-    if isinstance(value, (bool, np.bool_)) or value is None:
-        return value
-    if isinstance(value, (int, float, np.integer, np.floating)):
-        number = float(value)
-        return float(f"{number:.{DIGITS}g}") + 0.0 if math.isfinite(number) else None
-    return value
-
-
-def _hash(obj: object) -> str:
-    text = json.dumps(obj, ensure_ascii=False, separators=(",", ":"))
-    return hashlib.sha256(text.encode("utf-8")).hexdigest()
-
-
-def row_digest(values: Sequence[object]) -> str:
-    """The digest of one ``data`` row: its score-column values, in column order."""
-    return _hash([canonical(v) for v in values])[:_ROW_HEX]
-
-
-def sheet_digest(meta: Iterable[tuple[object, object]], row_digests: Iterable[object]) -> str:
-    """The digest of a whole sheet: the ``round`` sheet's pairs (but the digest) and the rows'
-    digests, both sorted, so sorting the rows in a spreadsheet program is not an edit."""
-    pairs = sorted([canonical(k) or "", canonical(v)] for k, v in meta
-                   if canonical(k) != DIGEST_KEY)
-    rows = sorted(canonical(d) or "" for d in row_digests)
-    return _hash({"round": pairs, "rows": rows})
 
 
 # --------------------------------------------------------------------------- consistency
@@ -145,7 +70,7 @@ def row_problems(row: dict[str, object], *, file: str | None, sheet: str | None,
     ``row`` maps the score fields (``result``, ``assigned``, ``u_assigned``,
     ``sigma_pt``, ``z``, ``z_prime``, ``zeta``, ``en``, ``d``, ``d_percent``,
     ``signal``, ``note``, ``score``) to values as
-    :func:`roundscore.archive_files.normalise_rows` returns them (floats,
+    :func:`roundscore.history.sheets.normalise_rows` returns them (floats,
     censored results as text, ``None`` when empty).
     """
     where = dict(file=file, sheet=sheet, row=row_number, lab=row.get("lab"),
