@@ -9,7 +9,7 @@ or the median, reference values; σ_pt fixed, Horwitz or the robust SD;
 z, z′, ζ, En), so its work is comparable to the tool's, without the tool's
 checks, audit trail, figures or report.
 
-Invented data only (the round comes from ``roundscore.bigdemo``).
+Invented data only (the round comes from ``roundscore.demo.big_round``).
 """
 
 from __future__ import annotations

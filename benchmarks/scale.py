@@ -10,7 +10,7 @@ What it does, in one run (every measured piece runs in a fresh subprocess, so
 times and peak memory are its own):
 
 1. builds the round with the tool's own seeded generator
-   (:mod:`roundscore.bigdemo`): blank forms written by
+   (:mod:`roundscore.demo.big_round`): blank forms written by
    ``roundscore.intake.forms.write_form`` (what ``roundscore forms`` writes),
    then filled in;
 2. runs the pipeline: read (every form, validated), evaluate, write every
@@ -75,7 +75,7 @@ TARGETS = {"read/floor": 1.5, "write/floor": 1.5, "total/baseline": 0.1, "expone
 # --------------------------------------------------------------------------- parts (run in subprocesses)
 
 def part_generate(a: argparse.Namespace) -> dict:
-    from roundscore.bigdemo import make_big_round
+    from roundscore.demo.big_round import make_big_round
 
     t = time.perf_counter()
     big = make_big_round(a.round, labs=a.labs, measurands=a.measurands, replicates=a.replicates, jobs=a.jobs)
@@ -507,7 +507,7 @@ def _run(a: argparse.Namespace, jobs: int, growth: list[int], work: Path) -> int
         f"{jobs} job(s), {os.cpu_count()} core(s), Python {platform.python_version()}")
     gen = run_part("generate", a, round=str(rnd), **base)
     say(f"{'generate':<10}{gen['seconds']:9.2f} s   {gen['forms']} filled-in forms, {gen['cells']} result cells "
-        "(roundscore.bigdemo; not compared)")
+        "(roundscore.demo.big_round; not compared)")
     pipe = run_part("pipeline", a, round=str(rnd), out=str(out), **base)
     st = pipe["stages"]
     fr = run_part("floor_read", a, round=str(rnd), **base)

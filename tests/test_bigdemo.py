@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 import xlsxwriter
 
-from roundscore.bigdemo import BIG_ID, fill_form, make_big_round
+from roundscore.demo.big_round import BIG_ID, fill_form, make_big_round
 from roundscore.intake.readers import read_results
 from roundscore.intake.xlsx import read_rows
 from roundscore.intake.roundfile import load_round

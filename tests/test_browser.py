@@ -23,7 +23,7 @@ from pathlib import Path
 
 import pytest
 
-from roundscore.demo import make_demo_round
+from roundscore.demo.demo_round import make_demo_round
 from roundscore.outputs.report import REPORT_NAME, lab_file_name, write_report
 from roundscore.pipeline import load_and_evaluate
 
@@ -179,7 +179,7 @@ def browser(tmp_path_factory):
 
 @pytest.fixture(scope="module")
 def demo_report(tmp_path_factory):
-    """The report and lab pages of the invented demo round (roundscore.demo)."""
+    """The report and lab pages of the invented demo round (roundscore.demo.demo_round)."""
     root = tmp_path_factory.mktemp("browser-demo")
     make_demo_round(root / "round")
     ev = load_and_evaluate(root / "round")

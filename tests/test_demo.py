@@ -3,7 +3,7 @@
 
 from __future__ import annotations
 
-from roundscore.demo import make_demo_round
+from roundscore.demo.demo_round import make_demo_round
 
 from .conftest import DEMO
 

@@ -2,7 +2,7 @@
 History sheet; the lab sheets, added to a fresh lab archive with ``history add``, give back
 the scores the coordinator stored; ``history show`` and ``history check`` work on the result.
 
-All data are invented: the demo round's generator (roundscore.demo, our own scenario) with
+All data are invented: the demo round's generator (roundscore.demo.demo_round, our own scenario) with
 other seeds, ids and dates, and small water rounds made up here.  Expected values are the
 invented inputs themselves, values read back from the other side of the round trip, or
 properties of the rules in roundscore.history.rules (each named beside its check).
@@ -24,7 +24,7 @@ from python_calamine import CalamineWorkbook
 
 from roundscore.history import store as archive
 from roundscore.cli import main
-from roundscore.demo import make_demo_round
+from roundscore.demo.demo_round import make_demo_round
 from roundscore.model.evaluation import SCORE_COLUMNS as PIPELINE_SCORE_COLUMNS
 
 from .conftest import write_round
@@ -172,7 +172,7 @@ def test_history_show_writes_the_workbook_and_chart(trip, tmp_path):
 
 
 def test_history_check_fires_for_the_planted_outlier(trip):
-    # K07's iodine is planted 6.5 between-lab SDs high in every seed (roundscore.demo), so
+    # K07's iodine is planted 6.5 between-lab SDs high in every seed (roundscore.demo.demo_round), so
     # rule 1 (|z| >= 3, ISO 13528) fires and the exit code is 1.
     code, text, err = run_cli("history", "check", "--lab", "K07", "--archive", trip["lab"])
     assert code == 1, err

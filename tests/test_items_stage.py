@@ -23,7 +23,7 @@ import pytest
 from scipy import stats
 
 from roundscore.cli import main
-from roundscore.demo import make_demo_round
+from roundscore.demo.demo_round import make_demo_round
 from roundscore.errors import InputError
 from roundscore.pipeline import load_and_evaluate
 from roundscore.model.items import ITEMS_COLUMNS

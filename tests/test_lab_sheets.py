@@ -2,7 +2,7 @@
 older sheets without a digest, and hostile workbooks (read like returned forms: package check and a
 bounded worker).
 
-The round is the invented demo round (roundscore.demo).  The score formulas the consistency check
+The round is the invented demo round (roundscore.demo.demo_round).  The score formulas the consistency check
 applies are those of ISO 13528:2022 §9 (z, z′, ζ, En, D, D%; limits 2 and 3 for z-like scores, 1
 for En, §9.4.1 and §9.7.3); the hand-built rows below are invented, their expected scores worked
 out from those formulas beside each.  Every refusal is checked to name the file and row and to
@@ -23,7 +23,7 @@ from roundscore.history import store as archive
 from roundscore.model.digest import canonical
 from roundscore.history.checks import row_problems
 from roundscore.history.sheets import ROW_FIELDS, read_lab_file
-from roundscore.demo import make_demo_round
+from roundscore.demo.demo_round import make_demo_round
 from roundscore.outputs.workbook import lab_payload, write_lab_workbook
 from roundscore.pipeline import load_and_evaluate
 

@@ -11,7 +11,7 @@ from pathlib import Path
 import pytest
 
 from roundscore.support import parallel
-from roundscore.bigdemo import make_big_round
+from roundscore.demo.big_round import make_big_round
 from roundscore.errors import InputError, Problem
 from roundscore.intake import isolation, readers
 from roundscore.support.parallel import batches, resolve_jobs, run_batches

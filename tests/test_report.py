@@ -1,4 +1,4 @@
-"""The HTML report and the lab pages, on the invented demo round (roundscore.demo) and hand-built stage tables."""
+"""The HTML report and the lab pages, on the invented demo round (roundscore.demo.demo_round) and hand-built stage tables."""
 
 from __future__ import annotations
 
@@ -8,7 +8,7 @@ import re
 import pandas as pd
 import pytest
 
-from roundscore.demo import make_demo_round
+from roundscore.demo.demo_round import make_demo_round
 from roundscore.outputs import report as R
 from roundscore.outputs.figures import round_figures
 from roundscore.outputs.look import CAUTION

@@ -10,7 +10,7 @@ import zipfile
 import openpyxl
 import pytest
 
-from roundscore.demo import make_demo_round
+from roundscore.demo.demo_round import make_demo_round
 from roundscore.model.evaluation import SCORE_COLUMNS
 from roundscore.outputs.workbook import lab_payload, write_lab_workbook, write_summary
 from roundscore.pipeline import load_and_evaluate

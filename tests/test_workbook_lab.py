@@ -1,6 +1,6 @@
 """A lab's workbook: what its Scores sheet carries, what it no longer repeats, and the low-level writers.
 
-The demo round is invented (roundscore.demo).  Expected values are the
+The demo round is invented (roundscore.demo.demo_round).  Expected values are the
 evaluation itself (the tool's own contract: the workbook must show what the
 evaluation computed), values read back from the written file, or a direct
 measurement of every value (for the column widths).  No outside reference
@@ -22,7 +22,7 @@ from openpyxl.utils.cell import range_boundaries
 from python_calamine import CalamineWorkbook
 
 from roundscore.history.sheets import normalise_rows, read_lab_file
-from roundscore.demo import make_demo_round
+from roundscore.demo.demo_round import make_demo_round
 from roundscore.model.evaluation import SCORE_COLUMNS
 from roundscore.outputs import workbook as wbm
 from roundscore.outputs.look import SIGNAL_COLOUR, signal_label
@@ -111,7 +111,7 @@ def test_censored_and_missing_results_have_no_mandel_values(books):
 def test_an_outlying_lab_sees_its_indicator_line(books):
     _, out = books
     rows = {r["Measurand"]: r for r in _scores_table(out / "K07.xlsx")[1]}
-    # The planted iodine outlier of the demo round (roundscore.demo) is far beyond the 1 % line for h.
+    # The planted iodine outlier of the demo round (roundscore.demo.demo_round) is far beyond the 1 % line for h.
     assert "h beyond 1 % indicator" in rows["iodine"]["Mandel h, k against the indicator lines"]
     ws = openpyxl.load_workbook(out / "K07.xlsx")["Scores"]
     head_row = next(r for r in range(1, 40) if ws.cell(r, 1).value == "Measurand")

@@ -125,7 +125,7 @@ def run_score(args: argparse.Namespace) -> int:
 
 def run_demo(args: argparse.Namespace) -> int:
     """The demo round is written to OUT/round and its outputs to OUT, all in one atomic step."""
-    from roundscore.demo import make_demo_round
+    from roundscore.demo.demo_round import make_demo_round
     from roundscore.pipeline import Outputs, atomic_folder, load_and_evaluate, write_outputs
 
     out = Path(args.out)

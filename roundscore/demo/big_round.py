@@ -109,7 +109,7 @@ def _measurand_names(m: int) -> list[str]:
 
 def _round_toml(names: list[str], true: np.ndarray, s_between: np.ndarray, replicates: int) -> str:
     lines = [
-        "# Large round made by roundscore.bigdemo (invented data): one compound feed, many laboratories.",
+        "# Large round made by roundscore.demo.big_round (invented data): one compound feed, many laboratories.",
         "[round]",
         f'id = "{BIG_ID}"',
         'title = "Feed scheme round 3: trace elements, vitamins and nutrients in a compound feed"',
