@@ -376,7 +376,7 @@ def test_round_history_one_query_many_labs_grouped(tmp_path):
 
 
 @pytest.mark.parametrize("cell, stored, problem", [
-    ("<0.1", "<0.1", None),  # censored results as the pipeline writes them (evaluate.py)
+    ("<0.1", "<0.1", None),  # censored results as the pipeline writes them (evaluation/evaluate.py)
     (">200", ">200", None),
     ("<limit not given", "<limit not given", None),
     ("12.5", 12.5, None),

@@ -119,7 +119,7 @@ def test_lab_sheets_give_back_the_stored_scores(trip):
     assert list(coord.columns) == list(lab.columns) == list(archive.HISTORY_COLUMNS)
     text_cols = [c for c in coord.columns if c not in FLOATS]
     pd.testing.assert_frame_equal(coord[text_cols], lab[text_cols])
-    # The lab sheet's data sheet keeps 12 significant digits (archive_checks.DIGITS: what a
+    # The lab sheet's data sheet keeps 12 significant digits (model.digest.DIGITS: what a
     # spreadsheet program saving it again keeps, and what scores.csv keeps), so numbers agree
     # to 12 digits; the censored mercury result of K23 stays the text "<0.1".
     for col in FLOATS:

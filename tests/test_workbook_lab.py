@@ -141,7 +141,7 @@ def test_history_reads_the_lab_workbook_back(books):
         for a, b in zip(got.rows, want):
             for x, y in zip(a, b):
                 if isinstance(y, float):  # the data sheet keeps 12 significant digits
-                    assert x == pytest.approx(y, rel=5e-12)  # (archive_checks.DIGITS)
+                    assert x == pytest.approx(y, rel=5e-12)  # (model.digest.DIGITS)
                 else:
                     assert x == y
 

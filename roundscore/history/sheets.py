@@ -37,7 +37,7 @@ from roundscore.text import too_long
 from roundscore.model.digest import DIGEST_KEY, ROW_DIGEST_COLUMN, canonical, row_digest, sheet_digest
 from roundscore.history.checks import EDIT_HINT, RESUBMIT_HINT, row_problems
 
-# One definition of the score-row contract (evaluate.py) and of the score and signal names.
+# One definition of the score-row contract (model/evaluation.py) and of the score and signal names.
 from roundscore.model.evaluation import SCORE_COLUMNS, SCORE_FIELD as SCORE_VALUE_COLUMN
 from roundscore.model.round import SCORES as SCORE_NAMES
 from roundscore.stats.scores import SIGNALS
