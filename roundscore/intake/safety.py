@@ -590,4 +590,3 @@ def _assemble(file: str, parts: dict[str, bytes], scans: dict[str, _SheetScan], 
     return WorkbookCheck(file=file, sheets=tuple(sheets), hidden_sheets=tuple(hidden), macros=macros,
                          hidden_rows=hidden_rows, merged=merged, formulas_without_value=no_value,
                          uncompressed_bytes=total)
-

@@ -40,7 +40,6 @@ AUDIT_COLUMNS = ("measurand", "lab", "step", "action", "reason")
 SCORE_FIELD = {"z": "z", "z-prime": "z_prime", "zeta": "zeta", "en": "en"}
 
 
-
 @dataclass(frozen=True, slots=True, kw_only=True)
 class MeasurandResult:
     """Everything computed for one measurand.

@@ -28,6 +28,7 @@ ItemConsequence = Literal["uncertainty", "widen-sigma", "both", "report"]
 StabilityChoice = Literal["auto", "simple", "expanded"]
 TableKind = Literal["homogeneity", "stability"]
 
+
 def check_item_choice(name: str, value: object, allowed: object) -> str:
     """``value`` if it is one of the ``Literal`` choices ``allowed``, else InputError listing them."""
     choices = get_args(allowed)
