@@ -118,3 +118,54 @@ def test_archives_of_older_versions_read_as_is_then_migrate_to_the_released_sche
         origin = conn.execute("SELECT origin FROM rounds WHERE round_id = 'R0'").fetchone()[0]
     conn.close()
     assert origin == "lab"  # migration 2's default for a round stored before it
+
+
+# --------------------------------------------------------------------------- the frozen migrations
+
+def master(db: Path) -> dict[str, str]:
+    with sqlite3.connect(db) as conn:
+        got = dict(conn.execute("SELECT name, sql FROM sqlite_master WHERE sql IS NOT NULL"))
+    conn.close()
+    return got
+
+
+def test_the_released_migrations_are_the_text_the_files_were_made_with():
+    from roundscore.history.db import APPLICATION_ID
+    from roundscore.history.sqlite_schema import MIGRATIONS, SCHEMA_VERSION
+
+    assert [m.version for m in MIGRATIONS] == list(range(1, SCHEMA_VERSION + 1))
+    released = versions(DATA / "archive-v3.sqlite")
+    assert [(m.version, m.description) for m in MIGRATIONS[:3]] == released
+    v1, v2 = master(DATA / "archive-v1.sqlite"), master(DATA / "archive-v2.sqlite")
+    rounds, scores = MIGRATIONS[0].statements
+    assert (v1["rounds"], v1["scores"]) == (rounds, scores)  # SQLite keeps each CREATE as written
+    alter, round_tables, audit, index = MIGRATIONS[1].statements
+    assert (v2["round_tables"], v2["audit"], v2["scores_by_lab"]) == (round_tables, audit, index)
+    assert alter == "ALTER TABLE rounds ADD COLUMN origin TEXT NOT NULL DEFAULT 'lab'"
+    assert MIGRATIONS[2].statements == (f"PRAGMA application_id = {APPLICATION_ID:d}",)
+
+
+def test_the_migrations_are_literal_text_built_from_nothing_live():
+    import ast
+
+    from roundscore.history import sqlite_schema
+
+    tree = ast.parse(Path(sqlite_schema.__file__).read_text(encoding="utf-8"))
+    imported = {alias.name for node in ast.walk(tree) if isinstance(node, ast.Import)
+                for alias in node.names}
+    imported |= {node.module for node in ast.walk(tree) if isinstance(node, ast.ImportFrom)}
+    assert imported <= {"__future__", "sqlite3", "dataclasses"}  # no column list of the package
+    assert not any(isinstance(node, ast.JoinedStr) for node in ast.walk(tree))  # no f-string
+
+
+def test_the_scores_table_holds_the_row_contract(tmp_path):
+    from roundscore.history.sheets import ROW_FIELDS
+
+    db = tmp_path / "new.sqlite"
+    maker.store_everything(db)
+    with sqlite3.connect(db) as conn:
+        columns = [r[1] for r in conn.execute("PRAGMA table_info(scores)")]
+    conn.close()
+    assert columns == ["scheme", "round_id", *ROW_FIELDS], (
+        "the score row fields and the archive's scores table differ: a new field needs a new "
+        "migration appended to roundscore.history.sqlite_schema.MIGRATIONS")
