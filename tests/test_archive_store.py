@@ -135,6 +135,10 @@ def test_the_history_commands_work_on_any_backend(archive_at, tmp_path):
             code = main([str(a) for a in (*argv, "--archive", where)])
         return code, out.getvalue() + err.getvalue()
 
+    with backends.open_store(where).writing():
+        pass  # an archive without rounds
+    code, text = run("history", "check")
+    assert code == 2 and f"{backends.open_store(where).name}: the archive holds no scores" in text
     code, text = run("history", "add", csv)
     assert code == 0 and "added: lab 'L01', round '2024-1' of scheme 'AQ': added 2 rows" in text
     code, text = run("history", "show", "--lab", "L01")
