@@ -86,9 +86,10 @@ class SqliteArchive(ArchiveStore):
 
     @contextmanager
     def writing(self) -> Iterator[SqliteWriter]:
-        with _db.open_archive(self._path, write=True, migrations=self._migrations) as conn, \
-                _db.transaction(conn):
-            yield SqliteWriter(conn)
+        with _db.open_archive(self._path, write=True, migrations=self._migrations) as conn:
+            assert conn is not None  # opened to write: always a connection
+            with _db.transaction(conn):
+                yield SqliteWriter(conn)
 
     def check(self) -> None:
         with self.reading():  # header, application id, version, quick_check
