@@ -1,4 +1,9 @@
-"""Tests of roundscore.history.store: the SQLite history store.
+"""Tests of roundscore.history.store: the history store, over every archive implementation.
+
+The tests taking ``archive_at`` run once per implementation of the store interface
+(tests/archive_backends.py: the SQLite file, and an in-memory one) and look at the archive only
+through the interface.  The last sections ("SQLite files", "crash safety") are about SQLite files
+and take ``tmp_path``.
 
 All data here is invented for the tests (our own scenario: a water-analysis
 scheme "AQ" and a soil scheme "SOIL", labs with made-up codes).  Expected
@@ -23,8 +28,14 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from roundscore.history import store as archive
+from roundscore.history import db as archive_db, store as archive
+from roundscore.history.sqlite_schema import MIGRATIONS
 from roundscore.errors import ArchiveError, InputError
+
+from . import archive_backends
+from .archive_backends import audit, exists, tables, totals
+
+archive_at = archive_backends.archive_at  # the fixture: every test taking it runs over every backend
 
 REPO = Path(__file__).resolve().parents[1]
 
@@ -114,14 +125,17 @@ def write_workbook(path: Path, frame: pd.DataFrame, *, lab: str, meta: dict | No
 
 
 def count(path, sql, args=()):
+    """One value from an SQLite archive file (for the tests about SQLite files)."""
     with sqlite3.connect(path) as conn:
-        return conn.execute(sql, args).fetchone()[0]
+        got = conn.execute(sql, args).fetchone()[0]
+    conn.close()
+    return got
 
 
 # --------------------------------------------------------------------------- coordinator side
 
-def test_store_round_idempotent_then_refused_then_replaced_with_audit(tmp_path):
-    db = tmp_path / "a.sqlite"
+def test_store_round_idempotent_then_refused_then_replaced_with_audit(archive_at):
+    db = archive_at()
     first = scores_frame()
     out = store(db, first)
     assert (out.status, out.rows) == ("added", 6)
@@ -131,23 +145,24 @@ def test_store_round_idempotent_then_refused_then_replaced_with_audit(tmp_path):
     changed = scores_frame(shift=0.25)
     with pytest.raises(ArchiveError, match="different content.*replace=True replaces it"):
         store(db, changed)
-    assert count(db, "SELECT COUNT(*) FROM audit") == 0  # a refusal writes nothing
+    assert audit(db) == []  # a refusal writes nothing
     done = store(db, changed, replace=True, reason="assigned value corrected")
     assert done.status == "replaced" and "audit" in done.message
-    with sqlite3.connect(db) as conn:
-        audit = conn.execute("SELECT replaced_at, reason, kind, row FROM audit "
-                             "WHERE kind = 'score'").fetchall()
-    assert len(audit) == 6
-    assert all(r[1] == "assigned value corrected" and r[0][:4].isdigit() for r in audit)
-    old_z = sorted(json.loads(r[3])["z"] for r in audit)
+    entries = audit(db)
+    assert [e.kind for e in entries] == ["round"] + ["score"] * 6 + ["statistics"] * 2
+    scores = [e for e in entries if e.kind == "score"]
+    assert all(e.reason == "assigned value corrected" and e.replaced_at[:4].isdigit()
+               and (e.scheme, e.round_id) == ("AQ", "2024-1") for e in scores)
+    assert json.loads(entries[0].row)["origin"] == "coordinator"
+    old_z = sorted(json.loads(e.row)["z"] for e in scores)
     assert old_z == sorted(first["z"].tolist())  # the invented inputs, not recomputed
     now = archive.lab_history(db, lab="L01").set_index("measurand")["z"]
     assert now["nitrate"] == pytest.approx(-1.0 + 0.25)
 
 
 @pytest.mark.parametrize("change", ["11th_digit", "statistics", "settings", "title"])
-def test_any_content_change_is_detected(tmp_path, change):
-    db = tmp_path / "a.sqlite"
+def test_any_content_change_is_detected(archive_at, change):
+    db = archive_at()
     store(db, scores_frame())
     frame, kw = scores_frame(), {}
     if change == "11th_digit":  # floats are compared to 12 significant digits (HASH_DIGITS)
@@ -166,23 +181,24 @@ def test_any_content_change_is_detected(tmp_path, change):
             store(db, frame, **kw)
 
 
-def test_store_round_bad_scores_name_row_column_and_value(tmp_path):
+def test_store_round_bad_scores_name_row_column_and_value(archive_at):
     frame = scores_frame().astype(object)
     frame.loc[1, "z"] = "one point two"
     frame.loc[2, "signal"] = "fine"
     with pytest.raises(InputError) as err:
-        store(tmp_path / "a.sqlite", frame)
+        store(archive_at("a"), frame)
     text = str(err.value)
     assert "column 'z'" in text and "'one point two'" in text and "not a number" in text
     assert "unknown signal" in text and "'fine'" in text
     with pytest.raises(InputError, match="missing columns: z, signal"):
-        store(tmp_path / "b.sqlite", scores_frame().drop(columns=["z", "signal"]))
+        store(archive_at("b"), scores_frame().drop(columns=["z", "signal"]))
+    assert not exists(archive_at("a")) and not exists(archive_at("b"))  # refused before opening
 
 
 # --------------------------------------------------------------------------- lab side
 
-def test_add_csv_needs_lab_when_several(tmp_path):
-    db, csv = tmp_path / "lab.sqlite", tmp_path / "scores.csv"
+def test_add_csv_needs_lab_when_several(archive_at, tmp_path):
+    db, csv = archive_at("lab"), tmp_path / "scores.csv"
     scores_frame().to_csv(csv, index=False)
     with pytest.raises(InputError, match=r"holds 3 labs \(L01, L02, L03\); pass --lab"):
         archive.add_files(db, [csv])
@@ -190,14 +206,14 @@ def test_add_csv_needs_lab_when_several(tmp_path):
         archive.add_files(db, [csv], lab="L99")
     [out] = archive.add_files(db, [csv], lab="L02")
     assert (out.status, out.rows, out.lab) == ("added", 2, "L02")
-    assert count(db, "SELECT COUNT(*) FROM scores") == 2
-    assert count(db, "SELECT COUNT(DISTINCT lab) FROM scores") == 1
+    assert totals(db) == (1, 2, 0)
+    assert archive.archived_labs(db) == ["L02"]
     [again] = archive.add_files(db, [csv], lab="L02")
     assert again.status == "unchanged" and "nothing changed" in again.message
 
 
-def test_add_refuses_then_replaces_lab_rows_with_audit(tmp_path):
-    db, csv = tmp_path / "lab.sqlite", tmp_path / "scores.csv"
+def test_add_refuses_then_replaces_lab_rows_with_audit(archive_at, tmp_path):
+    db, csv = archive_at("lab"), tmp_path / "scores.csv"
     scores_frame().to_csv(csv, index=False)
     archive.add_files(db, [csv], lab="L01")
     scores_frame(shift=0.5).to_csv(csv, index=False)
@@ -205,14 +221,16 @@ def test_add_refuses_then_replaces_lab_rows_with_audit(tmp_path):
         archive.add_files(db, [csv], lab="L01")
     [out] = archive.add_files(db, [csv], lab="L01", replace=True, reason="provider reissued")
     assert out.status == "replaced"
-    assert count(db, "SELECT COUNT(*) FROM audit WHERE kind = 'score' AND lab = 'L01' "
-                     "AND reason = 'provider reissued'") == 2
+    entries = audit(db)
+    assert [(e.kind, e.lab, e.reason) for e in entries] == [("round", "L01", "provider reissued")] + [
+        ("score", "L01", "provider reissued")] * 2
+    assert totals(db) == (1, 2, 3)
 
 
-def test_one_ulp_is_not_a_change_but_is_kept_as_first_stored(tmp_path):
+def test_one_ulp_is_not_a_change_but_is_kept_as_first_stored(archive_at):
     # scores.csv keeps 12 significant digits (roundscore.outputs.csvout), a workbook ~15-16
     # (common practice: Excel's 15-digit precision); a last-bit difference is no change
-    db = tmp_path / "a.sqlite"
+    db = archive_at()
     store(db, scores_frame())
     frame = scores_frame()
     frame.loc[0, "result"] = np.nextafter(frame.loc[0, "result"], np.inf)
@@ -228,20 +246,20 @@ def test_one_ulp_is_not_a_change_but_is_kept_as_first_stored(tmp_path):
     ("'plain", "'plain"),  # a quote not before = + - @ is the participant's own text
     ("''=x", "''=x"),  # the quote precedes a quote, not = + - @: kept
 ])
-def test_formula_neutralising_quote_is_stripped(tmp_path, cell, stored):
-    db, csv = tmp_path / "lab.sqlite", tmp_path / "scores.csv"
+def test_formula_neutralising_quote_is_stripped(archive_at, tmp_path, cell, stored):
+    db, csv = archive_at("lab"), tmp_path / "scores.csv"
     scores_frame(note=cell).to_csv(csv, index=False)
     archive.add_files(db, [csv], lab="L01")
     notes = set(archive.lab_history(db, lab="L01")["note"])
     assert notes == {stored}
 
 
-def test_workbook_and_csv_of_the_same_round_agree(tmp_path):
+def test_workbook_and_csv_of_the_same_round_agree(archive_at, tmp_path):
     frame = scores_frame(note="'=neutralised")
     csv = tmp_path / "scores.csv"
     frame.to_csv(csv, index=False)
     book = write_workbook(tmp_path / "L03.xlsx", frame, lab="L03")
-    db = tmp_path / "lab.sqlite"
+    db = archive_at("lab")
     [out] = archive.add_files(db, [book])
     assert (out.status, out.lab, out.rows) == ("added", "L03", 2)
     [same] = archive.add_files(db, [csv], lab="L03")
@@ -251,7 +269,7 @@ def test_workbook_and_csv_of_the_same_round_agree(tmp_path):
     assert hist["n_replicates"].tolist() == [2, 2]
 
 
-def test_pipeline_csv_precision_and_workbook_agree(tmp_path):
+def test_pipeline_csv_precision_and_workbook_agree(archive_at, tmp_path):
     # The pipeline writes scores.csv with csvout.FLOAT_FORMAT; the hash must not be finer.
     from roundscore.outputs.csvout import FLOAT_FORMAT, write_csv
 
@@ -264,7 +282,7 @@ def test_pipeline_csv_precision_and_workbook_agree(tmp_path):
     write_csv(frame, csv, archive.SCORE_COLUMNS)
     assert "0.333333333333," in csv.read_text(encoding="utf-8")  # really 12 digits
     book = write_workbook(tmp_path / "L02.xlsx", frame, lab="L02")
-    db = tmp_path / "lab.sqlite"
+    db = archive_at("lab")
     assert archive.add_files(db, [book])[0].status == "added"
     assert archive.add_files(db, [csv], lab="L02")[0].status == "unchanged"
 
@@ -282,7 +300,7 @@ def test_pipeline_csv_precision_and_workbook_agree(tmp_path):
     ("bad_number", "line 3, column 'result': value 'ten': not a number"),
     ("bad_date", "ISO round_date"),
 ])
-def test_files_that_are_not_ours_get_clear_messages(tmp_path, kind, expected):
+def test_files_that_are_not_ours_get_clear_messages(archive_at, tmp_path, kind, expected):
     frame = scores_frame()
     target = tmp_path / "in.xlsx"
     if kind == "no_data_sheet":
@@ -309,15 +327,14 @@ def test_files_that_are_not_ours_get_clear_messages(tmp_path, kind, expected):
         elif kind != "missing_file":
             frame.to_csv(target, index=False)
     with pytest.raises(InputError) as err:
-        archive.add_files(tmp_path / "lab.sqlite", [target], lab="L01")
+        archive.add_files(archive_at("lab"), [target], lab="L01")
     assert expected in str(err.value)
     assert target.name in str(err.value)
-    assert not (tmp_path / "lab.sqlite").exists() or count(
-        tmp_path / "lab.sqlite", "SELECT COUNT(*) FROM scores") == 0
+    assert not exists(archive_at("lab"))  # the file is read and refused before the archive is opened
 
 
-def test_one_lab_in_two_schemes_under_different_codes(tmp_path):
-    db = tmp_path / "lab.sqlite"
+def test_one_lab_in_two_schemes_under_different_codes(archive_at, tmp_path):
+    db = archive_at("lab")
     water = scores_frame(scheme="AQ", round_id="2024-1", date="2024-03-04", labs=("A7",))
     soil = scores_frame(scheme="SOIL", round_id="2024-1", date="2024-02-01", labs=("L12",),
                         measurands=("cadmium",))
@@ -331,8 +348,8 @@ def test_one_lab_in_two_schemes_under_different_codes(tmp_path):
     assert archive.archived_labs(db) == ["A7", "L12"]
 
 
-def test_lab_history_filters_and_last_n(tmp_path):
-    db = tmp_path / "a.sqlite"
+def test_lab_history_filters_and_last_n(archive_at):
+    db = archive_at()
     dates = ["2023-01-10", "2023-04-10", "2023-07-10", "2023-10-10", "2024-01-10"]
     for k, date in enumerate(dates):
         store(db, scores_frame(round_id=f"R{k + 1}", date=date, shift=0.1 * k))
@@ -352,11 +369,11 @@ def test_lab_history_filters_and_last_n(tmp_path):
         archive.lab_history(db, lab=[])
 
 
-def test_round_history_one_query_many_labs_grouped(tmp_path):
-    db = tmp_path / "a.sqlite"
+def test_round_history_one_query_many_labs_grouped(archive_at):
+    db = archive_at()
     assert archive.round_history(db, scheme="AQ", labs=["L01"], round_id="R9",
-                                 round_date="2024-01-01", last=8) == {}  # no file yet: no history
-    assert not db.exists()
+                                 round_date="2024-01-01", last=8) == {}  # no archive yet: no history
+    assert not exists(db)
     labs = [f"L{i:04d}" for i in range(2000)]  # more codes than SQLite's old 999 parameters
     for k, date in enumerate(["2023-01-10", "2023-04-10", "2023-07-10"]):
         store(db, scores_frame(round_id=f"R{k + 1}", date=date, labs=labs[:1200:7] + ["L01"],
@@ -382,14 +399,14 @@ def test_round_history_one_query_many_labs_grouped(tmp_path):
     ("12.5", 12.5, None),
     ("n.d.", None, "not a number or a censored result such as <0.1"),
 ])
-def test_censored_results_are_kept_as_text(tmp_path, cell, stored, problem):
+def test_censored_results_are_kept_as_text(archive_at, tmp_path, cell, stored, problem):
     frame = scores_frame(labs=("L01",))
     frame["result"] = frame["result"].astype(object)
     frame.loc[0, "result"] = cell
     frame = rescore(frame)
     csv = tmp_path / "scores.csv"
     frame.to_csv(csv, index=False)
-    db = tmp_path / "lab.sqlite"
+    db = archive_at("lab")
     if problem:
         with pytest.raises(InputError, match=re.escape(f"line 2, column 'result': value {cell!r}: "
                                                        f"{problem}")):
@@ -423,7 +440,7 @@ def test_round_keys_needed_for_the_archive_name_the_round_file(tmp_path):
     assert "key 'round.date'" in text and "'round.id'" not in text
 
 
-def test_store_evaluation_keeps_precision_when_the_round_has_it(tmp_path):
+def test_store_evaluation_keeps_precision_when_the_round_has_it(archive_at, tmp_path):
     from types import SimpleNamespace
 
     frame = scores_frame()
@@ -433,36 +450,34 @@ def test_store_evaluation_keeps_precision_when_the_round_has_it(tmp_path):
                               "s_R": [0.31, 0.05]})  # invented
     ev = SimpleNamespace(round=rnd, statistics=stats_frame(),
                          scores=frame.assign(rank=1.0, n_scored=3), extras={"precision": precision})
-    db = tmp_path / "a.sqlite"
+    db = archive_at()
     assert archive.store_evaluation(db, ev).status == "added"
-    with sqlite3.connect(db) as conn:
-        rows = [json.loads(r) for (r,) in conn.execute(
-            "SELECT row FROM round_tables WHERE kind = 'precision' ORDER BY position")]
-    conn.close()
-    assert rows == precision.to_dict(orient="records")
+    assert tables(db, "AQ", "2024-1", "precision") == precision.to_dict(orient="records")
+    assert tables(db, "AQ", "2024-1", "statistics") == stats_frame().to_dict(orient="records")
     assert archive.store_evaluation(db, ev).status == "unchanged"
     changed = SimpleNamespace(**{**vars(ev), "extras": {"precision": precision.assign(s_r=0.12)}})
     with pytest.raises(ArchiveError, match="different content"):
         archive.store_evaluation(db, changed)
     without = SimpleNamespace(**{**vars(ev), "extras": {}})  # no precision stage: none stored
     assert archive.store_evaluation(db, without, replace=True).status == "replaced"
-    assert count(db, "SELECT COUNT(*) FROM round_tables WHERE kind = 'precision'") == 0
+    assert tables(db, "AQ", "2024-1", "precision") == []
 
 
-def test_score_value_follows_the_chosen_score(tmp_path):
+def test_score_value_follows_the_chosen_score(archive_at):
     frame = scores_frame(labs=("L01",), measurands=("lead",))
     frame["score"] = "zeta"
-    db = tmp_path / "a.sqlite"
+    db = archive_at()
     store(db, frame, statistics=stats_frame(("lead",)))
     row = archive.lab_history(db, lab="L01").iloc[0]
     assert row["score"] == "zeta" and row["score_value"] == row["zeta"] == pytest.approx(-1.5)
 
 
-# --------------------------------------------------------------------------- schema and files
+# --------------------------------------------------------------------------- SQLite files
+# These tests are about SQLite files (schema versions, foreign files, the file's path): SQLite only.
 
 def test_migration_from_version_1(tmp_path):
     db = tmp_path / "old.sqlite"
-    with archive._connect(db, create=True, migrations=archive.MIGRATIONS[:1]) as conn:
+    with archive_db.open_archive(db, write=True, migrations=MIGRATIONS[:1]) as conn:
         conn.execute("INSERT INTO rounds (scheme, round_id, round_date, title, settings, "
                      "stored_at) VALUES ('AQ', 'R0', '2022-05-01', 'old', '{}', 'then')")
         conn.execute("INSERT INTO scores (scheme, round_id, lab, measurand, z, signal, score) "
@@ -507,11 +522,14 @@ def test_archive_path_precedence(tmp_path, monkeypatch):
 
 
 # --------------------------------------------------------------------------- crash safety
+# SQLite only: a process killed inside an SQLite transaction (the in-memory test implementation
+# keeps nothing once its process ends).
 
 CHILD = textwrap.dedent("""
     import sys, time
     import numpy as np, pandas as pd
     from roundscore.history import store as archive
+    from roundscore.history.sqlite import SqliteWriter
     db, mode, n_labs = sys.argv[1], sys.argv[2], int(sys.argv[3])
     labs = [f"L{i:05d}" for i in range(n_labs)]
     rows = [dict(lab=lab, measurand=m, unit="mg/L", n_replicates=2, result=10.0 + 0.001 * i,
@@ -520,12 +538,12 @@ CHILD = textwrap.dedent("""
                  score="z") for i, lab in enumerate(labs) for m in ("nitrate", "lead")]
     frame = pd.DataFrame(rows)
     if mode == "hooked":
-        original = archive._insert_scores
+        original = SqliteWriter.add_scores
         def slow(*a, **k):
             original(*a, **k)
             print("INSIDE", flush=True)  # all rows written, transaction not committed
             time.sleep(60)
-        archive._insert_scores = slow
+        SqliteWriter.add_scores = slow
     print("START", flush=True)
     archive.store_round(db, scheme="AQ", round_id="BIG", round_date="2024-06-01", title="big",
                         settings={}, statistics=pd.DataFrame({"measurand": ["lead"]}),
@@ -564,8 +582,8 @@ def test_sigkill_mid_import_leaves_all_or_nothing(tmp_path, mode, n_labs, wait_f
     assert count(db, "PRAGMA integrity_check") == "ok"
     big = count(db, "SELECT COUNT(*) FROM scores WHERE round_id = 'BIG'")
     header = count(db, "SELECT COUNT(*) FROM rounds WHERE round_id = 'BIG'")
-    tables = count(db, "SELECT COUNT(*) FROM round_tables WHERE round_id = 'BIG'")
-    assert (big, header, tables) in {(0, 0, 0), (2 * n_labs, 1, 1)}
+    stored_tables = count(db, "SELECT COUNT(*) FROM round_tables WHERE round_id = 'BIG'")
+    assert (big, header, stored_tables) in {(0, 0, 0), (2 * n_labs, 1, 1)}
     if mode == "hooked":
         assert big == 0  # killed before COMMIT: nothing of the round
     assert count(db, "SELECT COUNT(*) FROM scores WHERE round_id = 'SMALL'") == 6

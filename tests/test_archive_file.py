@@ -1,6 +1,9 @@
 """The archive file (roundscore.history.db): recognised before use, read without writing, damage
 and locks reported by name, ``~`` expanded, ``[round] archive`` allowed outside the round folder.
 
+SQLite only: every test here is about the SQLite file (its header, its bytes, its locks, its
+companion files); the store's behaviour over every implementation is in tests/test_archive.py.
+
 All data are invented (a water scheme "AQ" with made-up lab codes).  Expected behaviour comes
 from SQLite's documentation (cited beside the checks: "Database File Format", "Pragma
 statements", "Write-Ahead Logging", "Result and Error Codes") and the tool's own contract.
@@ -18,6 +21,8 @@ import numpy as np
 import pytest
 
 from roundscore.history import store as archive, db as archive_db
+from roundscore.history.sqlite import SqliteArchive
+from roundscore.history.sqlite_schema import MIGRATIONS
 from roundscore.history.sheets import read_lab_file
 from roundscore.errors import ArchiveConflict, ArchiveError, RoundFileError
 from roundscore.intake.roundfile import load_round
@@ -126,9 +131,8 @@ def test_reading_commands_change_nothing(tmp_path):
 def test_an_archive_written_before_the_application_id_is_read_as_is_and_marked_on_write(tmp_path):
     db = tmp_path / "old.sqlite"
     [item] = read_lab_file(lab_csv(tmp_path), None)
-    with archive._connect(db, create=True, migrations=archive.MIGRATIONS[:2]) as conn, \
-            archive._transaction(conn):  # schema version 2, as released before migration 3
-        archive._store_lab_rows(conn, item, replace=False, file="scores.csv", reason="")
+    with SqliteArchive(db, migrations=MIGRATIONS[:2]).writing() as tx:  # schema version 2,
+        archive._store_lab_rows(tx, item, replace=False, file="scores.csv", reason="")  # as released
     assert (count(db, "PRAGMA user_version"), count(db, "PRAGMA application_id")) == (2, 0)
     before = db.read_bytes()
     assert len(archive.lab_history(db, lab="L01")) == 2  # recognised by its tables, read as is

@@ -411,7 +411,7 @@ def run_check(args: argparse.Namespace) -> int:
     """Run the trend rules; 0 when nothing fired, 1 when a rule fired."""
     labs = [args.lab] if args.lab else archive.archived_labs(args.archive)
     if not labs:
-        raise ArchiveError(f"{archive.archive_path(args.archive)}: the archive holds no scores")
+        raise ArchiveError(f"{archive.open_store(args.archive).name}: the archive holds no scores")
     frame = archive.lab_history(args.archive, lab=labs)
     if frame.empty:
         known = archive.archived_labs(args.archive)

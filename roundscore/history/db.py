@@ -1,8 +1,8 @@
-"""The archive file itself: finding it, recognising it, checking it, and opening it to read or to write.
+"""The SQLite archive file itself: finding it, recognising it, checking it, and opening it to read or to write.
 
-:mod:`roundscore.history.store` says what is stored; this module makes sure that
-the file it is stored in is a roundscore archive in good order, and that a
-reading command never changes it.
+:mod:`roundscore.history.store` says what is stored, :mod:`roundscore.history.sqlite`
+how it is kept in SQLite; this module makes sure that the file it is stored in is
+a roundscore archive in good order, and that a reading command never changes it.
 
 * **Recognised before use.**  A roundscore archive carries
   :data:`APPLICATION_ID` in its SQLite header (``PRAGMA application_id``,
@@ -41,16 +41,17 @@ References
 
 from __future__ import annotations
 
-import datetime as _dt
 import math
 import os
 import sqlite3
-from collections.abc import Callable, Sequence
+from collections.abc import Sequence
 from contextlib import contextmanager
 from pathlib import Path
 from typing import Iterator
 
 from roundscore.errors import ArchiveError
+from roundscore.history.interface import now
+from roundscore.history.sqlite_schema import VERSION_TABLE, Migration
 
 __all__ = ["APPLICATION_ID", "ARCHIVE_ENV", "TIMEOUT_ENV", "BUSY_TIMEOUT_S", "archive_path",
            "busy_timeout", "open_archive", "transaction"]
@@ -116,11 +117,6 @@ def busy_timeout() -> float:
         raise ArchiveError(f"${TIMEOUT_ENV} = {text[:40]!r}: give the seconds to wait for a busy "
                            f"archive, a number above 0 and at most {MAX_TIMEOUT_S:g}")
     return value
-
-
-def now() -> str:
-    """The current UTC time, ISO 8601 to the second (stored with migrations and audit rows)."""
-    return _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds")
 
 
 # --------------------------------------------------------------------------- errors
@@ -333,8 +329,8 @@ def _tidy(file: Path) -> None:
         pass  # tidiness only: the files are SQLite's own and harmless
 
 
-def _migrate(conn: sqlite3.Connection, migrations: Sequence[Callable[[sqlite3.Connection], None]]
-             ) -> None:
+def _migrate(conn: sqlite3.Connection, migrations: Sequence[Migration]) -> None:
+    """Apply the missing migrations in one transaction, each logged in ``schema_version``."""
     if conn.execute("PRAGMA user_version").fetchone()[0] >= len(migrations):
         return
     with transaction(conn):
@@ -342,19 +338,18 @@ def _migrate(conn: sqlite3.Connection, migrations: Sequence[Callable[[sqlite3.Co
         if version >= len(migrations):
             return
         if version == 0:
-            conn.execute("CREATE TABLE IF NOT EXISTS schema_version ("
-                         "version INTEGER PRIMARY KEY, applied_at TEXT NOT NULL, description TEXT)")
+            conn.execute(VERSION_TABLE)
         for number in range(version + 1, len(migrations) + 1):
             step = migrations[number - 1]
-            step(conn)
-            doc = (step.__doc__ or "").strip().splitlines()[0] if step.__doc__ else ""
-            conn.execute("INSERT INTO schema_version VALUES (?, ?, ?)", (number, now(), doc))
+            step.apply(conn)
+            conn.execute("INSERT INTO schema_version VALUES (?, ?, ?)",
+                         (number, now(), step.description))
             conn.execute(f"PRAGMA user_version = {number:d}")
 
 
 @contextmanager
 def open_archive(path: str | os.PathLike[str] | None, *, write: bool,
-                 migrations: Sequence[Callable[[sqlite3.Connection], None]],
+                 migrations: Sequence[Migration],
                  ) -> Iterator[sqlite3.Connection | None]:
     """Open the archive; yields a connection, or ``None`` for an empty file opened to read.
 
@@ -367,8 +362,9 @@ def open_archive(path: str | os.PathLike[str] | None, *, write: bool,
         created or migrated).  ``True``: a missing file is created, an older
         schema is migrated; the file is first recognised and checked through
         a read-only connection.
-    migrations : sequence of callables
-        The schema migrations (:data:`roundscore.history.store.MIGRATIONS`).
+    migrations : sequence of Migration
+        The schema migrations (:data:`roundscore.history.sqlite_schema.MIGRATIONS`; a test
+        passes the first ones to make a file of an older version).
 
     Raises
     ------

@@ -1,4 +1,4 @@
-"""The history archive: a lab's (or a provider's) scores across PT rounds, in SQLite.
+"""The history archive: a lab's (or a provider's) scores across PT rounds.
 
 Two sides write to the same kind of file:
 
@@ -14,13 +14,18 @@ Two sides write to the same kind of file:
 (several labs in one query).  Reading and validating the files and the score
 rows lives in :mod:`roundscore.history.sheets`.
 
+This module decides what is stored and when; the archive itself is reached
+through the store interface (:mod:`roundscore.history.interface`), whose
+backend :mod:`roundscore.history.backends` chooses from the archive's location
+(a file path: the SQLite file of :mod:`roundscore.history.sqlite`).
+
 Design decisions
 ----------------
 * Keys are scheme + round + lab code: a lab may take part in several schemes
   under different codes, and round identifiers repeat across schemes.
-* Every write runs in one ``BEGIN IMMEDIATE ... COMMIT`` transaction in WAL
-  mode, so a process killed part-way through an import leaves the round wholly
-  present or wholly absent (SQLite's atomic commit).
+* Every write runs in one transaction of the store (SQLite: ``BEGIN IMMEDIATE
+  ... COMMIT`` in WAL mode), so a process killed part-way through an import
+  leaves the round wholly present or wholly absent (SQLite's atomic commit).
 * Imports are idempotent: the content is compared through a canonical hash of
   the rows (rows sorted, score floats rounded to 12 significant digits, the
   precision of the pipeline's ``scores.csv``, then written with ``repr``;
@@ -28,11 +33,12 @@ Design decisions
   The same content again is ``"unchanged"``; different content is refused
   unless ``replace=True``, and the replaced rows are first copied to the
   ``audit`` table with a UTC timestamp and a reason.
-* The schema is versioned with ``PRAGMA user_version`` and a list of migration
-  functions (:data:`MIGRATIONS`); each applied migration is also logged in the
-  ``schema_version`` table.  Opening a file to write applies the missing
-  migrations; reading never does (the queries read every released schema).
-  A file from a newer roundscore is refused rather than guessed at.
+* The schema is versioned (SQLite: ``PRAGMA user_version``) by a list of
+  released migrations frozen as literal SQL (:data:`MIGRATIONS`, in
+  :mod:`roundscore.history.sqlite_schema`); each applied migration is also
+  logged in the ``schema_version`` table.  Opening a file to write applies the
+  missing migrations; reading never does (the queries read every released
+  schema).  A file from a newer roundscore is refused rather than guessed at.
 * The file is marked with ``PRAGMA application_id`` (migration 3), checked
   with ``PRAGMA quick_check`` whenever it is opened, opened read-only by the
   reading functions, and waited for while another process writes: see
@@ -51,11 +57,10 @@ import hashlib
 import json
 import math
 import os
-import sqlite3
-from collections.abc import Callable, Iterable, Sequence
+from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 from pathlib import Path
-from typing import TYPE_CHECKING, Any, Literal
+from typing import TYPE_CHECKING, Literal
 
 import pandas as pd
 
@@ -63,9 +68,13 @@ from roundscore.history.sheets import (FLOAT_FIELDS as _FLOAT_FIELDS, ROW_FIELDS
                                        SCORE_VALUE_COLUMN, LabRows as _LabRows, normalise_rows as _normalise_rows,
                                        parse_date as _parse_date, plain as _plain, read_lab_file as _read_lab_file,
                                        text_key as _text, unquote as _unquote)
-from roundscore.history import db as _db
-from roundscore.history.db import (APPLICATION_ID, ARCHIVE_ENV, archive_path, now as _now,
-                                   transaction as _transaction)
+from roundscore.history.backends import open_store
+from roundscore.history.interface import (HISTORY_ROW_FIELDS as _HISTORY_ROW_FIELDS,
+                                          ArchiveWriter, AuditEntry, HistoryQuery, RoundRecord,
+                                          now as _now)
+# The SQLite file's names, kept here where they have always been importable from.
+from roundscore.history.db import APPLICATION_ID, ARCHIVE_ENV, archive_path
+from roundscore.history.sqlite_schema import MIGRATIONS, SCHEMA_VERSION
 from roundscore.errors import ArchiveConflict, InputError, Problem, RoundFileError
 
 if TYPE_CHECKING:  # only for annotations: the archive does not depend on the evaluation
@@ -73,7 +82,7 @@ if TYPE_CHECKING:  # only for annotations: the archive does not depend on the ev
     from roundscore.model.round import Round
 
 __all__ = ["ARCHIVE_ENV", "APPLICATION_ID", "SCORE_COLUMNS", "HISTORY_COLUMNS", "MIGRATIONS", "SCHEMA_VERSION",
-           "StoreOutcome", "archive_path", "store_round", "add_files", "lab_history",
+           "StoreOutcome", "archive_path", "open_store", "store_round", "add_files", "lab_history",
            "archived_labs", "round_history", "store_evaluation", "check_round_keys"]
 
 #: Significant digits of score floats in the content hash: the precision of the pipeline's
@@ -122,59 +131,6 @@ class StoreOutcome:
         return {f: getattr(self, f) for f in self.__slots__}
 
 
-# --------------------------------------------------------------------------- schema
-
-def _migration_1(conn: sqlite3.Connection) -> None:
-    """Initial layout: rounds and their score rows."""
-    conn.execute("""CREATE TABLE rounds (
-        scheme TEXT NOT NULL, round_id TEXT NOT NULL, round_date TEXT NOT NULL,
-        title TEXT NOT NULL DEFAULT '', settings TEXT NOT NULL DEFAULT '{}',
-        stored_at TEXT NOT NULL, PRIMARY KEY (scheme, round_id))""")
-    cols = ", ".join(
-        f"{c} REAL" if c in _FLOAT_FIELDS else
-        ("n_replicates INTEGER" if c == "n_replicates" else f"{c} TEXT")
-        for c in _ROW_FIELDS)
-    conn.execute(f"""CREATE TABLE scores (scheme TEXT NOT NULL, round_id TEXT NOT NULL, {cols},
-        PRIMARY KEY (scheme, round_id, lab, measurand),
-        FOREIGN KEY (scheme, round_id) REFERENCES rounds (scheme, round_id))""")
-
-
-def _migration_2(conn: sqlite3.Connection) -> None:
-    """Add the round's origin, the statistics/precision tables, the audit table and a lab index."""
-    conn.execute("ALTER TABLE rounds ADD COLUMN origin TEXT NOT NULL DEFAULT 'lab'")
-    conn.execute("""CREATE TABLE round_tables (
-        scheme TEXT NOT NULL, round_id TEXT NOT NULL, kind TEXT NOT NULL,
-        position INTEGER NOT NULL, row TEXT NOT NULL,
-        PRIMARY KEY (scheme, round_id, kind, position))""")
-    conn.execute("""CREATE TABLE audit (
-        id INTEGER PRIMARY KEY, replaced_at TEXT NOT NULL, reason TEXT NOT NULL,
-        scheme TEXT NOT NULL, round_id TEXT NOT NULL, lab TEXT, kind TEXT NOT NULL,
-        row TEXT NOT NULL)""")
-    conn.execute("CREATE INDEX scores_by_lab ON scores (lab, measurand)")
-
-
-def _migration_3(conn: sqlite3.Connection) -> None:
-    """Mark the file as a roundscore archive (PRAGMA application_id)."""
-    conn.execute(f"PRAGMA application_id = {_db.APPLICATION_ID:d}")
-
-
-#: Ordered schema migrations; migration ``i`` (0-based) brings a file to version ``i + 1``.
-#: Never edit a released migration: append a new one.
-MIGRATIONS: tuple[Callable[[sqlite3.Connection], None], ...] = (_migration_1, _migration_2,
-                                                                 _migration_3)
-SCHEMA_VERSION = len(MIGRATIONS)
-
-
-def _connect(path: str | os.PathLike[str] | None, *, create: bool,
-             migrations: Sequence[Callable[[sqlite3.Connection], None]] = MIGRATIONS):
-    """Open the archive to write (``create``: made when missing, migrated) or read-only.
-
-    See :func:`roundscore.history.db.open_archive`: the file is recognised
-    and checked first, and a read yields ``None`` for an empty file.
-    """
-    return _db.open_archive(path, write=create, migrations=migrations)
-
-
 # --------------------------------------------------------------------------- canonical rows
 
 def _json_default(value: object) -> object:
@@ -221,56 +177,20 @@ def _digest(round_date: str, score_rows: Iterable[tuple], *, title: str | None =
     return hashlib.sha256(_canonical_json(body).encode("utf-8")).hexdigest()
 
 
-# --------------------------------------------------------------------------- parsing rows
-
 # --------------------------------------------------------------------------- writing
 
-def _existing_lab_rows(conn: sqlite3.Connection, scheme: str, round_id: str,
-                       lab: str | None) -> list[tuple]:
-    sql = f"SELECT {', '.join(_ROW_FIELDS)} FROM scores WHERE scheme = ? AND round_id = ?"
-    args: list[object] = [scheme, round_id]
-    if lab is not None:
-        sql += " AND lab = ?"
-        args.append(lab)
-    return [tuple(r) for r in conn.execute(sql, args)]
-
-
-def _round_record(conn: sqlite3.Connection, scheme: str, round_id: str) -> dict[str, Any] | None:
-    cur = conn.execute("SELECT scheme, round_id, round_date, title, settings, stored_at, origin "
-                       "FROM rounds WHERE scheme = ? AND round_id = ?", (scheme, round_id))
-    row = cur.fetchone()
-    if row is None:
-        return None
-    return dict(zip([d[0] for d in cur.description], row))
-
-
-def _round_tables(conn: sqlite3.Connection, scheme: str, round_id: str) -> list[tuple[str, str]]:
-    return [tuple(r) for r in conn.execute(
-        "SELECT kind, row FROM round_tables WHERE scheme = ? AND round_id = ? ORDER BY kind, position",
-        (scheme, round_id))]
-
-
-def _audit(conn: sqlite3.Connection, *, scheme: str, round_id: str, lab: str | None,
+def _audit(tx: ArchiveWriter, *, scheme: str, round_id: str, lab: str | None,
            reason: str, whole_round: bool) -> None:
-    """Copy rows about to be replaced into ``audit`` (round row, score rows, tables)."""
-    rec = _round_record(conn, scheme, round_id)
-    entries = [(lab, "round", _canonical_json(rec))] if rec is not None else []
+    """Copy records about to be replaced into the audit (round record, score rows, tables)."""
+    rec = tx.find_round(scheme, round_id)
+    entries = [(lab, "round", _canonical_json(rec.as_dict()))] if rec is not None else []
     entries += [(row[0], "score", _canonical_json(dict(zip(_ROW_FIELDS, row))))
-                for row in _existing_lab_rows(conn, scheme, round_id, lab)]
+                for row in tx.score_rows(scheme, round_id, lab)]
     if whole_round:
-        entries += [(None, kind, row) for kind, row in _round_tables(conn, scheme, round_id)]
+        entries += [(None, kind, row) for kind, row in tx.round_tables(scheme, round_id)]
     when = _now()
-    conn.executemany("INSERT INTO audit (replaced_at, reason, scheme, round_id, lab, kind, row) "
-                     "VALUES (?, ?, ?, ?, ?, ?, ?)",
-                     [(when, reason, scheme, round_id, *e) for e in entries])
-
-
-def _insert_scores(conn: sqlite3.Connection, scheme: str, round_id: str,
-                   rows: Sequence[tuple]) -> None:
-    marks = ", ".join("?" * (len(_ROW_FIELDS) + 2))
-    conn.executemany(
-        f"INSERT INTO scores (scheme, round_id, {', '.join(_ROW_FIELDS)}) VALUES ({marks})",
-        ((scheme, round_id, *r) for r in rows))
+    tx.add_audit([AuditEntry(replaced_at=when, reason=reason, scheme=scheme, round_id=round_id,
+                             lab=who, kind=kind, row=row) for who, kind, row in entries])
 
 
 def _check_keys(scheme: object, round_id: object, round_date: object) -> tuple[str, str, str]:
@@ -343,13 +263,13 @@ def store_round(path: str | os.PathLike[str] | None, *, scheme: str, round_id: s
     title = str(title or "")
     new_hash = _digest(date, rows, title=title, settings=settings_json, tables=tables)
     label = f"round {round_id!r} of scheme {scheme!r}"
-    with _connect(path, create=True) as conn, _transaction(conn):
-        old = _round_record(conn, scheme, round_id)
+    with open_store(path).writing() as tx:
+        old = tx.find_round(scheme, round_id)
         status: Status = "added"
         if old is not None:
-            old_hash = _digest(old["round_date"], _existing_lab_rows(conn, scheme, round_id, None),
-                               title=old["title"], settings=old["settings"],
-                               tables=_round_tables(conn, scheme, round_id))
+            old_hash = _digest(old.round_date, tx.score_rows(scheme, round_id),
+                               title=old.title, settings=old.settings,
+                               tables=tx.round_tables(scheme, round_id))
             if old_hash == new_hash:
                 return StoreOutcome(status="unchanged", rows=len(rows), scheme=scheme,
                                     round_id=round_id,
@@ -357,25 +277,19 @@ def store_round(path: str | os.PathLike[str] | None, *, scheme: str, round_id: s
                                             "content; nothing changed")
             if not replace:
                 raise ArchiveConflict(
-                    f"{label} is already archived (stored {old['stored_at']}) with different "
+                    f"{label} is already archived (stored {old.stored_at}) with different "
                     "content; replace=True replaces it (the old rows are then kept in the audit "
                     "table)")
-            _audit(conn, scheme=scheme, round_id=round_id, lab=None, reason=reason,
+            _audit(tx, scheme=scheme, round_id=round_id, lab=None, reason=reason,
                    whole_round=True)
-            conn.execute("DELETE FROM scores WHERE scheme = ? AND round_id = ?", (scheme, round_id))
-            conn.execute("DELETE FROM round_tables WHERE scheme = ? AND round_id = ?",
-                         (scheme, round_id))
-            conn.execute("DELETE FROM rounds WHERE scheme = ? AND round_id = ?", (scheme, round_id))
+            tx.remove_round(scheme, round_id)
             status = "replaced"
-        conn.execute("INSERT INTO rounds (scheme, round_id, round_date, title, settings, stored_at, "
-                     "origin) VALUES (?, ?, ?, ?, ?, ?, 'coordinator')",
-                     (scheme, round_id, date, title, settings_json, _now()))
-        _insert_scores(conn, scheme, round_id, rows)
-        conn.executemany(
-            "INSERT INTO round_tables (scheme, round_id, kind, position, row) VALUES (?, ?, ?, ?, ?)",
-            [(scheme, round_id, kind, i, r) for kind, frame in
-             (("statistics", statistics), ("precision", precision))
-             for i, r in enumerate(_table_rows(frame))])
+        tx.add_round(RoundRecord(scheme=scheme, round_id=round_id, round_date=date, title=title,
+                                 settings=settings_json, stored_at=_now(), origin="coordinator"))
+        tx.add_scores(scheme, round_id, rows)
+        tx.add_tables(scheme, round_id, [(kind, i, r) for kind, frame in
+                                         (("statistics", statistics), ("precision", precision))
+                                         for i, r in enumerate(_table_rows(frame))])
     verb = "replaced" if status == "replaced" else "added"
     extra = "; the previous content is kept in the audit table" if status == "replaced" else ""
     return StoreOutcome(status=status, rows=len(rows), scheme=scheme, round_id=round_id,
@@ -385,40 +299,37 @@ def store_round(path: str | os.PathLike[str] | None, *, scheme: str, round_id: s
 # --------------------------------------------------------------------------- lab side: files
 
 
-def _store_lab_rows(conn: sqlite3.Connection, item: _LabRows, *, replace: bool, file: str,
+def _store_lab_rows(tx: ArchiveWriter, item: _LabRows, *, replace: bool, file: str,
                     reason: str) -> StoreOutcome:
     label = f"lab {item.lab!r}, round {item.round_id!r} of scheme {item.scheme!r}"
     common = dict(rows=len(item.rows), scheme=item.scheme, round_id=item.round_id,
                   lab=item.lab, file=file, warnings=item.warnings)
-    old_round = _round_record(conn, item.scheme, item.round_id)
-    old_rows = _existing_lab_rows(conn, item.scheme, item.round_id, item.lab)
+    old_round = tx.find_round(item.scheme, item.round_id)
+    old_rows = tx.score_rows(item.scheme, item.round_id, item.lab)
     status: Status = "added"
-    if old_round is not None and (old_rows or old_round["round_date"] != item.round_date):
-        old_hash = _digest(old_round["round_date"], old_rows)
+    if old_round is not None and (old_rows or old_round.round_date != item.round_date):
+        old_hash = _digest(old_round.round_date, old_rows)
         if old_hash == _digest(item.round_date, item.rows):
             return StoreOutcome(status="unchanged", message=f"{label} is already archived with "
                                 "identical content; nothing changed", **common)
         if not replace:
             what = ("a different round date "
-                    f"({old_round['round_date']} archived, {item.round_date} in the file)"
-                    if old_round["round_date"] != item.round_date else "different scores")
+                    f"({old_round.round_date} archived, {item.round_date} in the file)"
+                    if old_round.round_date != item.round_date else "different scores")
             raise ArchiveConflict(f"{file}: {label} is already archived with {what}; use "
                                "--replace to replace it (the old rows are kept in the audit table)")
-        _audit(conn, scheme=item.scheme, round_id=item.round_id, lab=item.lab, reason=reason,
+        _audit(tx, scheme=item.scheme, round_id=item.round_id, lab=item.lab, reason=reason,
                whole_round=False)
-        conn.execute("DELETE FROM scores WHERE scheme = ? AND round_id = ? AND lab = ?",
-                     (item.scheme, item.round_id, item.lab))
-        conn.execute("UPDATE rounds SET round_date = ? WHERE scheme = ? AND round_id = ?",
-                     (item.round_date, item.scheme, item.round_id))
+        tx.remove_scores(item.scheme, item.round_id, item.lab)
+        tx.update_round(item.scheme, item.round_id, round_date=item.round_date)
         status = "replaced"
     if old_round is None:
-        conn.execute("INSERT INTO rounds (scheme, round_id, round_date, title, settings, stored_at, "
-                     "origin) VALUES (?, ?, ?, ?, '{}', ?, 'lab')",
-                     (item.scheme, item.round_id, item.round_date, item.title, _now()))
-    elif item.title and not old_round["title"]:
-        conn.execute("UPDATE rounds SET title = ? WHERE scheme = ? AND round_id = ?",
-                     (item.title, item.scheme, item.round_id))
-    _insert_scores(conn, item.scheme, item.round_id, item.rows)
+        tx.add_round(RoundRecord(scheme=item.scheme, round_id=item.round_id,
+                                 round_date=item.round_date, title=item.title, settings="{}",
+                                 stored_at=_now(), origin="lab"))
+    elif item.title and not old_round.title:
+        tx.update_round(item.scheme, item.round_id, title=item.title)
+    tx.add_scores(item.scheme, item.round_id, item.rows)
     if status == "replaced":
         msg = f"{label}: replaced {len(item.rows)} rows; the previous rows are kept in the audit table"
     else:
@@ -464,9 +375,9 @@ def add_files(path: str | os.PathLike[str] | None, files: Iterable[str | os.Path
     for name in files:
         file = Path(name)
         items = _read_lab_file(file, lab)
-        with _connect(path, create=True) as conn, _transaction(conn):
+        with open_store(path).writing() as tx:
             for item in items:
-                outcomes.append(_store_lab_rows(conn, item, replace=replace, file=str(file),
+                outcomes.append(_store_lab_rows(tx, item, replace=replace, file=str(file),
                                                 reason=reason))
     return outcomes
 
@@ -522,11 +433,11 @@ def lab_history(path: str | os.PathLike[str] | None, *, lab: str | Sequence[str]
 
     Notes
     -----
-    One query whatever the number of labs: the codes are passed as one JSON
-    array and expanded by SQLite's ``json_each``, so 2000 labs need neither
-    2000 queries nor 2000 bound parameters (SQLite limits those to 32766 by
-    default since 3.32, 999 before; "Limits In SQLite").  ``last`` is applied
-    per scheme x lab x measurand after the date filters.
+    One query whatever the number of labs (the store's
+    :meth:`~roundscore.history.interface.ArchiveReader.history_rows`; SQLite
+    expands the codes passed as one JSON array with ``json_each``, so 2000
+    labs need neither 2000 queries nor 2000 bound parameters).  ``last`` is
+    applied per scheme x lab x measurand after the date filters.
     """
     labs = [lab] if isinstance(lab, str) else list(lab)
     if not labs or not all(isinstance(x, str) and x for x in labs):
@@ -535,23 +446,12 @@ def lab_history(path: str | os.PathLike[str] | None, *, lab: str | Sequence[str]
         raise InputError.single("last: must be a whole number of at least 1", value=last)
     if exclude_round is not None and not isinstance(exclude_round, str):
         raise InputError.single("exclude_round: give a round identifier", value=exclude_round)
-    clauses = ["s.lab IN (SELECT value FROM json_each(?))"]
-    args: list[object] = [json.dumps(sorted(set(labs)))]
-    for clause, value in (("s.scheme = ?", scheme), ("s.measurand = ?", measurand),
-                          ("r.round_date >= ?", _date_arg("since", since)),
-                          ("r.round_date < ?", _date_arg("before_date", before_date)),
-                          ("s.round_id <> ?", exclude_round)):
-        if value is not None:
-            clauses.append(clause)
-            args.append(value)
-    sql = (f"SELECT s.scheme, s.round_id AS round, r.round_date, r.title, "
-           f"{', '.join('s.' + c for c in _ROW_FIELDS)} FROM scores s JOIN rounds r "
-           f"ON r.scheme = s.scheme AND r.round_id = s.round_id WHERE {' AND '.join(clauses)} "
-           "ORDER BY r.round_date, s.round_id, s.scheme, s.lab, s.measurand")
-    names = ["scheme", "round", "round_date", "title", *_ROW_FIELDS]
-    with _connect(path, create=False) as conn:
-        rows = conn.execute(sql, args).fetchall() if conn is not None else []  # None: empty file
-    frame = pd.DataFrame(rows, columns=names)
+    query = HistoryQuery(labs=tuple(sorted(set(labs))), scheme=scheme, measurand=measurand,
+                         since=_date_arg("since", since),
+                         before=_date_arg("before_date", before_date), exclude_round=exclude_round)
+    with open_store(path).reading() as reader:
+        rows = reader.history_rows(query) if reader is not None else []  # None: an empty archive
+    frame = pd.DataFrame(rows, columns=list(_HISTORY_ROW_FIELDS))
     if last is not None and len(frame):
         frame = frame.groupby(["scheme", "lab", "measurand"], sort=False).tail(last)
     value_col = frame["score"].map(SCORE_VALUE_COLUMN)
@@ -576,10 +476,8 @@ def _result_column(values: pd.Series) -> pd.Series:
 
 def archived_labs(path: str | os.PathLike[str] | None) -> list[str]:
     """Every lab code in the archive, sorted."""
-    with _connect(path, create=False) as conn:
-        if conn is None:  # an empty file
-            return []
-        return [r[0] for r in conn.execute("SELECT DISTINCT lab FROM scores ORDER BY lab")]
+    with open_store(path).reading() as reader:
+        return reader.labs() if reader is not None else []  # None: an empty archive
 
 
 # --------------------------------------------------------------------------- the round pipeline
@@ -613,7 +511,7 @@ def round_history(path: str | os.PathLike[str], *, scheme: str, labs: Sequence[s
     Parameters
     ----------
     path : path
-        Archive file, opened read-only (nothing is created or migrated).
+        Archive, opened read-only (nothing is created or migrated).
         When it does not exist yet there is no history: ``{}``.
     scheme : str
         The round's scheme (lab codes are only meaningful within a scheme).
@@ -631,7 +529,7 @@ def round_history(path: str | os.PathLike[str], *, scheme: str, labs: Sequence[s
     dict of str to pandas.DataFrame
         Lab code to its :data:`HISTORY_COLUMNS` frame (labs without history are absent).
     """
-    if not labs or not archive_path(path).exists():
+    if not labs or not open_store(path).exists():
         return {}
     frame = lab_history(path, lab=list(labs), scheme=scheme, before_date=round_date,
                         exclude_round=round_id, last=last)
