@@ -208,7 +208,7 @@ def print_setup(ws, round_id: str, header_row: int | None = None) -> None:
     ws.set_landscape()
     ws.set_paper(9)  # A4
     ws.fit_to_pages(1, 0)
-    ws.set_header(f"&L{round_id}&RPage &P of &N")
+    ws.set_header(f"&L{round_id.replace('&', '&&')}&RPage &P of &N")  # "&&" is a literal & in a header
     if header_row is not None:
         ws.repeat_rows(header_row)
 
