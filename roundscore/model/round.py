@@ -77,7 +77,8 @@ ROUND_KEYS: dict[str, str] = {
     "history_rounds": "whole number: past rounds shown on each lab sheet (default 8)",
     "youden": "list of pairs of measurand names for Youden plots",
     "words": "'signals' (acceptable/warning/action) or 'performance' (satisfactory/questionable/unsatisfactory)",
-    "decimal": f"{options_text(DecimalMark, last=' or ')}: the decimal mark of numbers typed as text in results and item tables "
+    "decimal": f"{options_text(DecimalMark, last=' or ')}: the decimal mark of numbers typed as text in results "
+               "and item tables "
                "(default: not declared; a number whose reading depends on it, such as 1,234, is refused)",
     "unknown_labs": f"{options_text(UnknownLabs, last=' or ')}: a result from a lab not in the participants file "
                     "(default warn)",

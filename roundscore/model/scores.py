@@ -34,8 +34,8 @@ from roundscore.choices import options
 from roundscore.stats import scores as sc
 
 __all__ = ["ScoreName", "FamilyName", "ScoreInputs", "ScoreFamily", "ScoreKind", "SCORES", "SCORE_FAMILIES",
-           "SCORE_NAMES", "SCORE_VALUE_COLUMNS", "SCORE_FIELD", "CENSORED_ACTION", "score_kind", "score_label", "score_symbol",
-           "family_of"]
+           "SCORE_NAMES", "SCORE_VALUE_COLUMNS", "SCORE_FIELD", "CENSORED_ACTION", "score_kind", "score_label",
+           "score_symbol", "family_of"]
 
 #: The score names a round file may choose (``[measurand.NAME] score``); one per row of :data:`SCORES`.
 ScoreName = Literal["z", "z-prime", "zeta", "en"]

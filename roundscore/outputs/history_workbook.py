@@ -21,7 +21,7 @@ import numpy as np
 import pandas as pd
 import xlsxwriter
 
-from roundscore.model.scores import SCORE_FAMILIES, ScoreFamily
+from roundscore.model.scores import SCORE_FAMILIES, ScoreFamily, family_of
 from roundscore.model.signals import SCORED_SIGNALS, SIGNALS
 from roundscore.outputs.look import (CAUTION, LIMIT_LINE, SIGNAL_CHART_MARKER, SIGNAL_COLOUR, SIGNAL_MARKER,
                                      SIGNAL_WORD)
@@ -65,10 +65,10 @@ def series_groups(frame: pd.DataFrame) -> list[tuple[str, pd.DataFrame]]:
 
 
 def family_for(part: pd.DataFrame) -> ScoreFamily:
-    """The limits a series is drawn with: En's when every round of it is scored by En, else the z-like ones."""
-    if len(part) and (part["score"] == "en").all():
-        return SCORE_FAMILIES["en"]
-    return SCORE_FAMILIES["z-like"]
+    """The limits a series is drawn with: its scores' family (En's when every round is scored by En); the
+    z-like ones for a series that mixes families."""
+    families = {family_of(str(s)).name for s in part["score"]}
+    return SCORE_FAMILIES[families.pop() if len(families) == 1 else "z-like"]
 
 
 def _write_workbook(frame: pd.DataFrame, path: Path, *, lab: str, caution: str) -> None:

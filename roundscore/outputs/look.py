@@ -50,5 +50,9 @@ CAUTION = (
 
 
 def signal_legend_text(words: str = "signals", sep: str = "  ") -> str:
-    """Every signal's symbol and word in one line: "● acceptable  ▲ warning signal  ■ action signal  × not scored"."""
+    """Every signal's symbol and word in one line.
+
+    >>> signal_legend_text()
+    '● acceptable  ▲ warning signal  ■ action signal  × not scored'
+    """
     return sep.join(signal_label(n, words) for n in SIGNALS)

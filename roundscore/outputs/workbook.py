@@ -39,8 +39,8 @@ from roundscore.outputs.workbook_base import (FIXED_TIME, MAX_WIDTH, MIN_WIDTH, 
                                               fit_widths, print_setup, score_chart, score_table_columns, set_widths,
                                               write_table)
 # The shared helpers under their former names here (tests read them from this module).
-from roundscore.outputs.workbook_base import (OPTIONS as _OPTIONS, Formats as _Formats, fit_widths as _fit,  # noqa: F401
-                                              tint as _tint, write_table as _table)
+from roundscore.outputs.workbook_base import (OPTIONS as _OPTIONS, Formats as _Formats,  # noqa: F401
+                                              fit_widths as _fit, tint as _tint, write_table as _table)
 
 __all__ = ["write_summary", "write_lab_workbook", "LAB_FORMAT", "FIXED_TIME", "lab_payload", "LabPayload",
            "RoundFacts", "SUMMARY_POINTER", "LAB_FOLD", "SCORE_FIELD", "MIN_WIDTH", "MAX_WIDTH"]

@@ -18,6 +18,7 @@ from typing import Any, Iterable
 
 import numpy as np
 import pandas as pd
+import xlsxwriter
 
 from roundscore.model.scores import SCORES, family_of, score_label
 from roundscore.model.signals import SCORED_SIGNALS
