@@ -105,7 +105,8 @@ class ScoreFamily:
 
     def limits(self) -> tuple[tuple[float, str], ...]:
         """(limit, signal) pairs from the warning limit (when there is one) to the action limit."""
-        return ((self.warning, "warning"),) * (self.warning is not None) + ((self.action, "action"),)
+        action = ((self.action, "action"),)
+        return action if self.warning is None else ((self.warning, "warning"), *action)
 
     @property
     def members(self) -> tuple["ScoreKind", ...]:

@@ -106,13 +106,14 @@ def _series_chart(book, data, fm: Formats, top: int, label: str, part: pd.DataFr
     first = top + 2
     signal_col = {s: j for j, s in enumerate(SCORED_SIGNALS, start=2)}
     limit_col = 2 + len(SCORED_SIGNALS)
-    for i, row in enumerate(part.itertuples(index=False)):
+    rows = zip(part["round_date"].astype(str), part["round"].astype(str), part["score_value"].to_numpy(float),
+               part["signal"].astype(str))
+    for i, (date, round_id, value, signal) in enumerate(rows):
         r = first + i
-        data.write_string(r, 0, f"{row.round_date} {row.round}")
-        value = row.score_value
+        data.write_string(r, 0, f"{date} {round_id}")
         if np.isfinite(value):
             data.write_number(r, 1, float(value))
-            col = signal_col.get(row.signal)
+            col = signal_col.get(signal)
             if col is not None:
                 data.write_number(r, col, float(value))
         for j, lim in enumerate([v for lim, _ in limits for v in (lim, -lim)], start=limit_col):

@@ -20,7 +20,7 @@ from __future__ import annotations
 
 import math
 from pathlib import Path
-from typing import Any
+from typing import Any, Mapping
 
 import numpy as np
 import pandas as pd
@@ -64,7 +64,7 @@ def _mandel_check(h: Any, k: Any, flag: Any) -> str | None:
     return "within" if len(have) == 2 else (f"{have[0]} within" if have else None)
 
 
-def _fold_extras(extras: dict[str, pd.DataFrame], measurands: list[str]
+def _fold_extras(extras: Mapping[str, pd.DataFrame], measurands: list[str]
                  ) -> tuple[list[tuple[str, str, int | None, list]], list[str], dict[str, pd.DataFrame]]:
     """Split a lab's extras rows into Scores-sheet columns (:data:`LAB_FOLD`) and tables kept as sheets.
 
@@ -101,7 +101,7 @@ def _data_rows(table: dict[str, list]) -> tuple[dict[str, list], list[str]]:
     for c in SCORE_COLUMNS:
         rows[c] = rows[c] or [None] * n
     digests = [row_digest([rows[c][i] for c in SCORE_COLUMNS]) for i in range(n)]
-    rows[ROW_DIGEST_COLUMN] = digests
+    rows[ROW_DIGEST_COLUMN] = list(digests)
     return rows, digests
 
 

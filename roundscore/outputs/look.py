@@ -13,6 +13,8 @@ history workbook and charts).
 
 from __future__ import annotations
 
+from typing import Any
+
 from roundscore.model.signals import SIGNALS, WORDS, signal_label
 
 __all__ = ["SIGNAL_COLOUR", "SIGNAL_MARKER", "SIGNAL_CHART_MARKER", "SIGNAL_SYMBOL", "SIGNAL_WORD", "PALETTE",
@@ -39,8 +41,10 @@ SIGNAL_SYMBOL = {n: s.symbol for n, s in SIGNALS.items()}
 SIGNAL_WORD = {words: {n: s.word(words) for n, s in SIGNALS.items()} for words in WORDS}
 #: How a limit line is drawn, by the signal it bounds: the warning limit dashed, the action limit solid
 #: (matplotlib line style, workbook chart dash type, SVG stroke attribute).
-LIMIT_LINE = {"warning": {"matplotlib": "--", "chart": "dash", "svg": ' stroke-dasharray="4 3"'},
-              "action": {"matplotlib": "-", "chart": "solid", "svg": ""}}
+LIMIT_LINE: dict[str, dict[str, Any]] = {
+    "warning": {"matplotlib": "--", "chart": "dash", "svg": ' stroke-dasharray="4 3"'},
+    "action": {"matplotlib": "-", "chart": "solid", "svg": ""},
+}
 
 CAUTION = (
     "This evaluation supports, and does not replace, the proficiency-testing provider's documented "

@@ -14,7 +14,7 @@ from __future__ import annotations
 
 import datetime as dt
 import math
-from typing import Any, Iterable
+from typing import Any, Iterable, Mapping
 
 import numpy as np
 import pandas as pd
@@ -43,7 +43,7 @@ class Formats:
         self.wrap = wb.add_format({"text_wrap": True, "valign": "top"})
         self.caution = wb.add_format({"italic": True, "text_wrap": True, "valign": "top", "font_color": "#333333"})
         self.alert = wb.add_format({"bold": True, "font_color": "#9E3A00"})
-        self.num = {}
+        self.num: dict[int, Any] = {}
         self.wb = wb
         self.signal = {s: wb.add_format({"font_color": "#000000", "bg_color": tint(c)})
                        for s, c in SIGNAL_COLOUR.items()}
@@ -99,7 +99,7 @@ def columns_of(frame, cols: list[str]) -> tuple[dict[str, list], int]:
 def write_table(ws, fm: Formats, top: int, frame, columns: Iterable[str],
            headers: Iterable[str] | None = None, decimals: dict[str, int | None] | None = None,
            signal_col: str | None = None, words: str = "signals",
-           row_decimals: dict[str, int | None] | None = None) -> int:
+           row_decimals: Mapping[str, int | None] | None = None) -> int:
     """Write a header row and the table's columns (a frame, or lists by column); returns the row after it.
 
     ``decimals`` fixes a column's decimals; ``row_decimals`` maps measurand
