@@ -10,7 +10,7 @@ from __future__ import annotations
 import itertools
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Callable
+from typing import Callable, Iterable
 
 from roundscore.errors import RoundscoreError
 from roundscore.evaluation import evaluate as _evaluation
@@ -18,15 +18,12 @@ from roundscore.intake.inputs import read_inputs
 from roundscore.intake.items import read_item_tables
 from roundscore.intake.readers import read_participants
 from roundscore.intake.roundfile import load_round, result_files, with_warnings
-from roundscore.model.evaluation import AUDIT_COLUMNS, SCORE_COLUMNS, STATISTICS_COLUMNS, RoundEvaluation
+from roundscore.model.evaluation import RoundEvaluation
 from roundscore.model.inputs import Participant
 from roundscore.model.round import Round
 from roundscore.model.table import ResultTable
-from roundscore.outputs.csvout import write_csv
 from roundscore.outputs.outfolder import atomic_folder, check_target
-from roundscore.outputs.workbook import lab_payload, write_lab_workbook, write_summary
-from roundscore.support.filenames import lab_file_name
-from roundscore.support.parallel import run_batches, shared
+from roundscore.outputs.writers import LAB_SHEETS_PER_TASK, WriteOptions, write_with, writers_for  # noqa: F401
 
 __all__ = ["run_round", "write_outputs", "atomic_folder", "Outputs", "load_and_evaluate", "round_inputs",
            "evaluate"]
@@ -110,71 +107,20 @@ def evaluate(rnd: Round, table: ResultTable, participants: dict[str, Participant
     return _evaluation.evaluate(rnd, table, participants, items=read_item_tables(rnd))
 
 
-#: Lab sheets per task sent to a worker: fixed (not tied to the number of jobs) and small enough that the
-#: summary workbook, the largest single task, runs beside the lab sheets (common practice for pools).
-LAB_SHEETS_PER_TASK = 16
-
-
 def write_outputs(ev: RoundEvaluation, folder: Path, *, history=None,
                   progress: Callable[[str, int, int], None] | None = None,
-                  jobs: int | None = None) -> list[Path]:
-    """Write every output of an evaluation into ``folder`` (which must exist).
+                  jobs: int | None = None, formats: Iterable[str] | None = None) -> list[Path]:
+    """Write every output of an evaluation into ``folder`` (which must exist); the files written.
 
-    The CSV tables, the summary workbook and the lab sheets are independent
-    files, written by ``jobs`` worker processes (None = all cores; 1 = here,
-    one after another). Every file depends only on the evaluation, so the
-    outputs are byte-identical for any ``jobs``. ``progress(stage, done,
-    total)`` is called as the lab sheets are finished.
+    Each kind of output is a writer of :data:`roundscore.outputs.writers.WRITERS` (``formats``: only the
+    writers of these formats, e.g. ``("csv", "xlsx")``; None: all). The CSV tables, the summary workbook and
+    the lab sheets are independent files, written by ``jobs`` worker processes (None = all cores; 1 = here,
+    one after another); then the report. Every file depends only on the evaluation, so the outputs are
+    byte-identical for any ``jobs``. ``progress(stage, done, total)`` is called as the lab sheets are
+    finished (and by the report's stages). ``history(lab)`` gives a lab's archived rounds for its sheet.
     """
-    files = []
-
-    def out(name: str) -> Path:
-        p = folder / name
-        files.append(p)
-        return p
-
-    tasks: list[tuple] = [("csv", "scores", out("scores.csv"), SCORE_COLUMNS),
-                          ("csv", "statistics", out("statistics.csv"), STATISTICS_COLUMNS),
-                          ("csv", "audit", out("audit.csv"), AUDIT_COLUMNS)]
-    for name, frame in ev.extras.items():
-        if hasattr(frame, "columns"):
-            tasks.append(("csv", name, out(f"{name}.csv"), None))
-    tasks.insert(0, ("summary", out("round-summary.xlsx")))  # the largest task first
-    labs_dir = folder / "labs"
-    labs_dir.mkdir()
-    labs = ev.labs
-    ev.split_by_lab()  # once, here: each worker would otherwise split the tables again
-    lab_paths = [out(f"labs/{lab_file_name(lab, '.xlsx')}") for lab in labs]
-    for i in range(0, len(labs), LAB_SHEETS_PER_TASK):
-        group = list(zip(labs[i:i + LAB_SHEETS_PER_TASK], lab_paths[i:i + LAB_SHEETS_PER_TASK]))
-        tasks.append(("labs", [(lab, p, history(lab) if history is not None else None) for lab, p in group]))
-    n_other = sum(1 for t in tasks if t[0] != "labs")
-    report = None
-    if progress:
-        def report(stage: str, done: int, total: int) -> None:
-            progress("lab sheets", min(len(labs), max(0, done - n_other) * LAB_SHEETS_PER_TASK), len(labs))
-    run_batches(_write_tasks, tasks, jobs=jobs, shared=ev, batch_size=1, progress=report, stage="outputs")
-    # report.html and labs/LAB.html (figures drawn once, pages composed)
-    from roundscore.outputs.report import write_report
-    files += write_report(ev, folder, jobs=jobs, progress=progress)
-    return files
-
-
-def _write_tasks(tasks: list[tuple]) -> list[None]:
-    """Worker side of :func:`write_outputs`: write each task's file(s) from the shared evaluation."""
-    ev: RoundEvaluation = shared()
-    for task in tasks:
-        kind = task[0]
-        if kind == "summary":
-            write_summary(ev, task[1])
-        elif kind == "csv":
-            _, name, path, columns = task
-            frame = {"scores": ev.scores, "statistics": ev.statistics, "audit": ev.audit}.get(name)
-            write_csv(frame if frame is not None else ev.extras[name], path, columns)
-        else:
-            for lab, path, hist in task[1]:
-                write_lab_workbook(lab_payload(ev, lab, hist), path)
-    return [None] * len(tasks)
+    options = WriteOptions(history=history, jobs=jobs, progress=progress)
+    return write_with(writers_for(formats), ev, folder, options)
 
 
 def run_round(round_path: str | Path, out: str | Path, *, archive: str | Path | None = None,

@@ -27,6 +27,7 @@ from roundscore.cli import main
 from roundscore.errors import InputError, RoundFileError
 from roundscore.intake.forms import write_forms
 from roundscore.intake.roundfile import load_round, result_files
+from roundscore.outputs import lab_workbook
 
 HOSTILE = [
     '=HYPERLINK("http://example.invalid/x","click me")',
@@ -144,7 +145,7 @@ def test_failed_run_leaves_previous_outputs(small_round: Path, tmp_path: Path, m
     pipeline.run_round(small_round, out, jobs=1)
     before = hash_tree(out)
     calls = {"n": 0}
-    real = pipeline.write_lab_workbook
+    real = lab_workbook.write_lab_workbook  # what the lab-sheet writer calls (roundscore.outputs.writers)
 
     def flaky(payload, path):
         calls["n"] += 1
@@ -152,7 +153,7 @@ def test_failed_run_leaves_previous_outputs(small_round: Path, tmp_path: Path, m
             raise OSError(28, "No space left on device (simulated)")
         real(payload, path)
 
-    monkeypatch.setattr(pipeline, "write_lab_workbook", flaky)
+    monkeypatch.setattr(lab_workbook, "write_lab_workbook", flaky)
     with pytest.raises(OSError):
         pipeline.run_round(small_round, out, jobs=1)
     assert calls["n"] == 5  # it failed midway, after some sheets were written
@@ -167,10 +168,11 @@ def test_killed_run_leaves_previous_outputs(small_round: Path, tmp_path: Path):
     code = (
         "import sys, time\n"
         "from roundscore import pipeline\n"
-        "real = pipeline.write_lab_workbook\n"
+        "from roundscore.outputs import lab_workbook\n"
+        "real = lab_workbook.write_lab_workbook\n"
         "def slow(payload, path):\n"
         "    real(payload, path); print('wrote', flush=True); time.sleep(0.2)\n"
-        "pipeline.write_lab_workbook = slow\n"
+        "lab_workbook.write_lab_workbook = slow\n"
         "pipeline.run_round(sys.argv[1], sys.argv[2], jobs=1)\n"
     )
     proc = subprocess.Popen([sys.executable, "-c", code, str(small_round), str(out)],

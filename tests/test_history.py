@@ -291,7 +291,9 @@ def test_show_table_and_outputs(tmp_path, capsys):
     got, out = run_cli(["history", "show", "--archive", str(db), "--lab", "L07",
                         "--out", str(out_dir)], capsys)
     assert got == 0
-    assert "^ warning" in out.out and "[] action" in out.out and "o acceptable" in out.out
+    # the symbols and words of every other output (roundscore.outputs.look)
+    assert "▲ warning signal" in out.out and "■ action signal" in out.out and "● acceptable" in out.out
+    assert "signals: ● acceptable, ▲ warning signal, ■ action signal, × not scored" in out.out
     assert "+3.30" in out.out and "does not replace" in out.out
     assert sorted(p.name for p in out_dir.iterdir()) == [".roundscore-output", "history.png", "history.svg",
                                                          "history.xlsx"]

@@ -18,7 +18,7 @@ PACKAGE = Path(__file__).resolve().parents[1] / "roundscore"
 #: The layers, bottom to top: a module may import modules of its own layer or of a lower one. Each layer is
 #: given by module-name prefixes (a folder, or single top-level modules).
 LAYERS: tuple[tuple[str, tuple[str, ...]], ...] = (
-    ("foundation", ("roundscore.errors", "roundscore.text", "roundscore.ranges")),
+    ("foundation", ("roundscore.errors", "roundscore.text", "roundscore.ranges", "roundscore.choices")),
     ("support", ("roundscore.support",)),
     ("stats", ("roundscore.stats",)),
     ("model", ("roundscore.model",)),

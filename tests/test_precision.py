@@ -91,7 +91,7 @@ def test_centred_rejects_bad_values(texts: list[object], message: str) -> None:
 
 
 def test_centred_rejects_bad_choice() -> None:
-    with pytest.raises(InputError, match="offset must be one of 'median', 'first'"):
+    with pytest.raises(InputError, match="offset: found 'mean'; allowed: 'median', 'first'"):
         centred(["1"], offset="mean")  # type: ignore[arg-type]
 
 

@@ -9,6 +9,7 @@ values here.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import re
 import xml.etree.ElementTree as ET
@@ -150,11 +151,12 @@ def test_tables_the_lab_cannot_fold_keep_a_sheet(books, tmp_path):
     ev, _ = books
     payload = lab_payload(ev, "K07")
     # Two rows per measurand (not foldable), and a folded table with a repeated measurand.
-    payload["extras"]["replicates"] = pd.DataFrame({"lab": ["K07"] * 2, "measurand": ["iodine"] * 2,
-                                                    "replicate": [1, 2], "value": [3280.0, 3288.0]})
-    mandel = payload["extras"]["mandel"]
-    payload["extras"]["mandel"] = pd.concat([mandel, mandel.iloc[:1]], ignore_index=True)
-    write_lab_workbook(payload, tmp_path / "K07.xlsx")
+    mandel = payload.extras["mandel"]
+    extras = {**payload.extras,
+              "replicates": pd.DataFrame({"lab": ["K07"] * 2, "measurand": ["iodine"] * 2,
+                                          "replicate": [1, 2], "value": [3280.0, 3288.0]}),
+              "mandel": pd.concat([mandel, mandel.iloc[:1]], ignore_index=True)}
+    write_lab_workbook(dataclasses.replace(payload, extras=extras), tmp_path / "K07.xlsx")
     wb = openpyxl.load_workbook(tmp_path / "K07.xlsx")
     assert "Replicates" in wb.sheetnames and "Mandel" in wb.sheetnames
     rows = list(wb["Replicates"].iter_rows(values_only=True))

@@ -32,22 +32,21 @@ from roundscore.history import store as archive
 from roundscore.history import rules as history
 from roundscore.stats import trends
 from roundscore.errors import ArchiveError, InputError, RoundscoreError
+from roundscore.outputs.history_workbook import HISTORY_TABLE_COLUMNS, write_history_outputs as _write_outputs
+from roundscore.outputs.look import (SIGNAL_CHART_MARKER, SIGNAL_COLOUR, SIGNAL_MARKER, SIGNAL_SYMBOL,
+                                     signal_label, signal_legend_text)
 from roundscore.text import json_text, terminal_text
 
 __all__ = ["register", "run", "run_add", "run_show", "run_check", "write_history_outputs",
            "SIGNAL_STYLE"]
 
-#: Okabe-Ito colours (Okabe & Ito 2008, "Color Universal Design") with a marker shape
-#: and a text symbol per signal, so colour is never the only carrier of meaning.
+#: Each signal's colour, marker codes and text symbol: the tool's one look (roundscore.outputs.look), the same
+#: in the terminal table, the history workbook and charts as in every other output.
 SIGNAL_STYLE: dict[str, dict[str, str]] = {
-    "acceptable": {"color": "#009E73", "marker": "o", "xlsx": "circle", "symbol": "o"},
-    "warning": {"color": "#E69F00", "marker": "^", "xlsx": "triangle", "symbol": "^"},
-    "action": {"color": "#D55E00", "marker": "s", "xlsx": "square", "symbol": "[]"},
-    "not-scored": {"color": "#999999", "marker": "x", "xlsx": "x", "symbol": "-"},
+    s: {"color": SIGNAL_COLOUR[s], "marker": SIGNAL_MARKER[s], "xlsx": SIGNAL_CHART_MARKER[s],
+        "symbol": SIGNAL_SYMBOL[s]} for s in SIGNAL_COLOUR
 }
-_LIMIT_GREY = "#555555"
-_TABLE_COLUMNS = ("round_date", "scheme", "round", "measurand", "unit", "result", "assigned",
-                  "sigma_pt", "score", "score_value", "signal", "note")
+_TABLE_COLUMNS = HISTORY_TABLE_COLUMNS
 
 
 def _positive_int(text: str) -> int:
@@ -168,8 +167,7 @@ def format_table(frame: pd.DataFrame) -> str:
     shown = frame.loc[:, list(_TABLE_COLUMNS)].copy()
     shown["score_value"] = [("" if not np.isfinite(v) else f"{v:+.2f}")
                             for v in shown["score_value"]]
-    shown["signal"] = [f"{SIGNAL_STYLE.get(s, {'symbol': '?'})['symbol']} {s}"
-                       for s in shown["signal"]]
+    shown["signal"] = [signal_label(s) for s in shown["signal"]]
     header = ["date", "scheme", "round", "measurand", "unit", "result", "assigned", "sigma_pt",
               "score", "value", "signal", "note"]
     cells = [header] + [[_fmt(v) for v in row] for row in shown.itertuples(index=False)]
@@ -200,7 +198,7 @@ def run_show(args: argparse.Namespace) -> int:
     print(f"History of lab {terminal_text(args.lab)}: {frame['round'].nunique()} rounds, "
           f"{frame['measurand'].nunique()} measurands")
     print(format_table(frame))
-    print("signals: o acceptable, ^ warning, [] action, - not scored")
+    print(f"signals: {signal_legend_text(sep=', ')}")
     print(history.DISCLAIMER)
     if args.out:
         written = write_history_outputs(frame, Path(args.out), lab=args.lab,
@@ -210,164 +208,11 @@ def run_show(args: argparse.Namespace) -> int:
     return 0
 
 
-def _series_groups(frame: pd.DataFrame) -> list[tuple[str, pd.DataFrame]]:
-    groups = []
-    for (scheme, measurand), part in frame.groupby(["scheme", "measurand"], sort=True):
-        groups.append((f"{scheme} / {measurand}", part.reset_index(drop=True)))
-    return groups
-
-
 def write_history_outputs(frame: pd.DataFrame, out: Path, *, lab: str,
                           protect: tuple[tuple[Path, str], ...] = ()) -> list[Path]:
-    """Write ``history.xlsx``, ``history.png`` and ``history.svg`` as the output folder ``out``.
-
-    ``out`` is a roundscore output folder (new, empty, or written by an
-    earlier ``history show --out``), replaced whole when all files are
-    complete (:func:`roundscore.outputs.outfolder.atomic_folder`); ``protect``
-    (the archive) may not lie inside it.
-    """
-    from roundscore.outputs.outfolder import atomic_folder
-
-    names = ["history.xlsx", "history.png", "history.svg"]
-    with atomic_folder(out, kind="history", protect=protect) as temp:
-        _write_workbook(frame, temp / names[0], lab=lab)
-        _write_figure(frame, [temp / names[1], temp / names[2]], lab=lab)
-    return [out / n for n in names]
-
-
-def _limits_for(part: pd.DataFrame) -> tuple[float, float | None]:
-    """(action, warning) limits: 3/2 for z-like scores, 1/None for En (ISO 13528)."""
-    if len(part) and (part["score"] == "en").all():
-        return trends.EN_ACTION_LIMIT, None
-    return trends.ACTION_LIMIT, trends.WARNING_LIMIT
-
-
-def _write_workbook(frame: pd.DataFrame, path: Path, *, lab: str) -> None:
-    import xlsxwriter
-
-    book = xlsxwriter.Workbook(str(path), {"nan_inf_to_errors": False})
-    book.set_properties({"title": f"History of lab {lab}", "created": _dt.datetime(2000, 1, 1)})
-    bold = book.add_format({"bold": True})
-    table = book.add_worksheet("history")
-    charts = book.add_worksheet("charts")
-    data = book.add_worksheet("chart_data")
-    columns = list(_TABLE_COLUMNS)
-    for j, name in enumerate(columns):
-        table.write_string(0, j, name, bold)
-    for i, row in enumerate(frame.loc[:, columns].itertuples(index=False), start=1):
-        for j, value in enumerate(row):
-            _write_cell(table, i, j, value)
-    table.write_string(len(frame) + 2, 0, history.DISCLAIMER)
-    table.freeze_panes(1, 0)
-
-    charts.write_string(0, 0, f"Scores of lab {lab} by round; lines at the warning and action "
-                              "limits. Markers: circle acceptable, triangle warning, square action.")
-    top = 0
-    for k, (label, part) in enumerate(_series_groups(frame)):
-        action, warning = _limits_for(part)
-        heads = ["round", "score", "acceptable", "warning", "action", f"+{action:g}",
-                 f"-{action:g}"] + ([f"+{warning:g}", f"-{warning:g}"] if warning else [])
-        data.write_string(top, 0, label, bold)
-        for j, head in enumerate(heads):
-            data.write_string(top + 1, j, head, bold)
-        first = top + 2
-        for i, row in enumerate(part.itertuples(index=False)):
-            r = first + i
-            data.write_string(r, 0, f"{row.round_date} {row.round}")
-            value = row.score_value
-            if np.isfinite(value):
-                data.write_number(r, 1, float(value))
-                col = {"acceptable": 2, "warning": 3, "action": 4}.get(row.signal)
-                if col is not None:
-                    data.write_number(r, col, float(value))
-            limits = [action, -action] + ([warning, -warning] if warning else [])
-            for j, lim in enumerate(limits, start=5):
-                data.write_number(r, j, lim)
-        last = first + len(part) - 1
-        chart = book.add_chart({"type": "line"})
-        cats = ["chart_data", first, 0, last, 0]
-        chart.add_series({"name": "score", "categories": cats,
-                          "values": ["chart_data", first, 1, last, 1],
-                          "line": {"color": _LIMIT_GREY, "width": 1.25},
-                          "marker": {"type": "none"}})
-        for j, signal in enumerate(("acceptable", "warning", "action"), start=2):
-            style = SIGNAL_STYLE[signal]
-            chart.add_series({"name": signal, "categories": cats,
-                              "values": ["chart_data", first, j, last, j],
-                              "line": {"none": True},
-                              "marker": {"type": style["xlsx"], "size": 7,
-                                         "fill": {"color": style["color"]},
-                                         "border": {"color": style["color"]}}})
-        for j, head in enumerate(heads[5:], start=5):
-            dash = "solid" if head.lstrip("+-") == f"{action:g}" else "dash"
-            chart.add_series({"name": head, "categories": cats,
-                              "values": ["chart_data", first, j, last, j],
-                              "line": {"color": _LIMIT_GREY, "width": 0.75, "dash_type": dash},
-                              "marker": {"type": "none"}})
-        chart.set_title({"name": f"{lab}: {label}"})
-        chart.set_y_axis({"name": "score", "min": -max(4, action + 1), "max": max(4, action + 1)})
-        chart.set_x_axis({"name": "round"})
-        chart.show_blanks_as("gap")
-        chart.set_size({"width": 720, "height": 300})
-        charts.insert_chart(2 + 16 * k, 0, chart)
-        top = last + 3
-    book.close()
-
-
-def _write_cell(sheet, row: int, col: int, value: object) -> None:
-    """Write text as text (never as a formula) and numbers as numbers."""
-    if isinstance(value, (float, int, np.floating, np.integer)) and not isinstance(value, bool):
-        if np.isfinite(value):
-            sheet.write_number(row, col, float(value))
-        else:
-            sheet.write_blank(row, col, None)
-    elif value is None:
-        sheet.write_blank(row, col, None)
-    else:
-        sheet.write_string(row, col, str(value))
-
-
-def _write_figure(frame: pd.DataFrame, paths: Sequence[Path], *, lab: str) -> None:
-    import matplotlib
-    from matplotlib.figure import Figure
-    from matplotlib.lines import Line2D
-
-    groups = _series_groups(frame)
-    with matplotlib.rc_context({"svg.hashsalt": "roundscore", "font.size": 9}):
-        fig = Figure(figsize=(8.0, 1.0 + 2.3 * len(groups)), layout="constrained")
-        axes = fig.subplots(len(groups), 1, squeeze=False)[:, 0]
-        for ax, (label, part) in zip(axes, groups):
-            dates = pd.to_datetime(part["round_date"])
-            values = part["score_value"].to_numpy(float)
-            ok = np.isfinite(values)
-            action, warning = _limits_for(part)
-            ax.plot(dates[ok], values[ok], color=_LIMIT_GREY, linewidth=1.0, zorder=1)
-            for signal, style in SIGNAL_STYLE.items():
-                pick = ok & (part["signal"] == signal).to_numpy()
-                if pick.any():
-                    ax.scatter(dates[pick], values[pick], marker=style["marker"],
-                               color=style["color"], edgecolors="black", linewidths=0.4,
-                               s=36, zorder=3)
-            for lim, dash in ((action, "-"), (warning, "--")):
-                if lim:
-                    for y in (lim, -lim):
-                        ax.axhline(y, color=_LIMIT_GREY, linestyle=dash, linewidth=0.8, zorder=0)
-            ax.axhline(0.0, color="#BBBBBB", linewidth=0.6, zorder=0)
-            top = max(action + 1.0, float(np.nanmax(np.abs(values), initial=0.0)) + 0.5)
-            ax.set_ylim(-top, top)
-            ax.set_ylabel("En" if warning is None else "score (z, z', zeta)")
-            ax.set_title(f"{lab}: {label}", loc="left")
-        handles = [Line2D([], [], linestyle="none", marker=s["marker"], color=s["color"],
-                          markeredgecolor="black", markeredgewidth=0.4, label=name)
-                   for name, s in SIGNAL_STYLE.items() if name != "not-scored"]
-        handles += [Line2D([], [], color=_LIMIT_GREY, linestyle="-", label="action limit"),
-                    Line2D([], [], color=_LIMIT_GREY, linestyle="--", label="warning limit")]
-        fig.legend(handles=handles, loc="outside lower center", ncols=5, frameon=False)
-        fig.text(0.01, 0.0, history.DISCLAIMER, fontsize=6, va="bottom", ha="left",
-                 wrap=True)
-        for path in paths:
-            meta = {"Date": None} if path.suffix == ".svg" else {"Software": None}
-            fig.savefig(path, dpi=120, metadata=meta)
+    """Write ``history.xlsx``, ``history.png`` and ``history.svg`` as the output folder ``out``
+    (:func:`roundscore.outputs.history_workbook.write_history_outputs`, with the history's disclaimer)."""
+    return _write_outputs(frame, out, lab=lab, caution=history.DISCLAIMER, protect=protect)
 
 
 # --------------------------------------------------------------------------- check

@@ -7,7 +7,8 @@ import sys
 from pathlib import Path
 
 from roundscore.model.evaluation import RoundEvaluation
-from roundscore.outputs.look import CAUTION, SIGNAL_SYMBOL
+from roundscore.model.signals import SIGNALS
+from roundscore.outputs.look import CAUTION, SIGNAL_SYMBOL, signal_legend_text
 from roundscore.support.progress import terminal_bar
 from roundscore.text import terminal_text
 
@@ -69,18 +70,14 @@ def summary_text(ev: RoundEvaluation) -> str:
     for line in ev.failed_checks:
         lines.append(f"  CHECK FAILED: {t(line)}")
     head = f"  {'measurand':<14}{'p':>4}  {'assigned':>12} {'u(x_pt)':>10} {'σ_pt':>10} {'score':<8}" \
-           f"{SIGNAL_SYMBOL['acceptable']:>4}{SIGNAL_SYMBOL['warning']:>4}{SIGNAL_SYMBOL['action']:>4}" \
-           f"{SIGNAL_SYMBOL['not-scored']:>4}"
+           + "".join(f"{SIGNAL_SYMBOL[s]:>4}" for s in SIGNALS)
     lines.append(head)
     counts = ev.scores.groupby(["measurand", "signal"]).size()
     for name, m in ev.measurands.items():
-        def n(s):
-            return int(counts.get((name, s), 0))
         lines.append(
             f"  {t(name):<14}{m.p:>4}  {m.assigned:>12.5g} {m.u_assigned:>10.3g} {m.sigma_pt:>10.4g} "
-            f"{m.settings.score:<8}{n('acceptable'):>4}{n('warning'):>4}{n('action'):>4}{n('not-scored'):>4}")
-    lines.append(f"  {SIGNAL_SYMBOL['acceptable']} acceptable  {SIGNAL_SYMBOL['warning']} warning signal  "
-                 f"{SIGNAL_SYMBOL['action']} action signal  {SIGNAL_SYMBOL['not-scored']} not scored")
+            f"{m.settings.score:<8}" + "".join(f"{int(counts.get((name, s), 0)):>4}" for s in SIGNALS))
+    lines.append(f"  {signal_legend_text()}")
     for name, m in ev.measurands.items():
         if not m.scored:  # say why, here too: a row of "nan" and "not scored" alone does not
             lines.append(f"  {name}: not scored: " + ("; ".join(m.notes) or "the assigned value or σ_pt could not be set"))

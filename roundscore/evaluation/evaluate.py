@@ -25,6 +25,7 @@ from roundscore.model.evaluation import (AUDIT_COLUMNS, SCORE_COLUMNS, STATISTIC
 from roundscore.model.inputs import Participant
 from roundscore.model.items import ITEMS_COLUMNS, ItemTable, ItemTables
 from roundscore.model.round import MeasurandSettings, Round
+from roundscore.model.scores import CENSORED_ACTION, SCORES, ScoreInputs
 from roundscore.model.table import ResultTable
 from roundscore.model.units import UnitError, mass_fraction
 from roundscore.ranges import sigma_relative_problem
@@ -191,30 +192,25 @@ def _measurand(rnd: Round, labs: pd.DataFrame, m: MeasurandSettings, est: robust
 
 
 def _score_rows(rnd: Round, mr: MeasurandResult) -> pd.DataFrame:
+    """Every score of the registry (roundscore.model.scores) for each lab; the round's score gives the signal."""
     m = mr.settings
     labs = mr.labs
+    official = SCORES[m.score]
     x = labs["mean"].to_numpy(float)
     x_pt, u_pt, s_pt = mr.assigned, mr.u_assigned, mr.sigma_pt
-    U_pt = 2.0 * u_pt
+    u_lab = labs["u"].to_numpy(float)
     U_lab = labs["U"].to_numpy(float)
-    U_lab = np.where(np.isnan(U_lab), DEFAULT_K * labs["u"].to_numpy(float), U_lab)
+    U_lab = np.where(np.isnan(U_lab), DEFAULT_K * u_lab, U_lab)
+    inputs = ScoreInputs(x=x, x_pt=x_pt, u_x_pt=u_pt, sigma_pt=s_pt, u_x=u_lab, U_x=U_lab, U_x_pt=2.0 * u_pt)
+    # A score dividing by uncertainties the lab and the assigned value both state as 0 is not defined
+    # (±inf or 0/0): left empty with a note rather than written as infinite (ScoreKind.compute).
+    computed = {kind.name: kind.compute(inputs) for kind in SCORES.values()}
     with np.errstate(all="ignore"):
-        z = sc.z_score(x, x_pt, s_pt)
-        zp = sc.z_prime_score(x, x_pt, s_pt, u_pt)
-        zeta = sc.zeta_score(x, x_pt, labs["u"].to_numpy(float), u_pt)
-        en = sc.en_score(x, x_pt, U_lab, U_pt)
         d = sc.difference(x, x_pt)
         dp = sc.percent_difference(x, x_pt)
-    # ζ and En divide by the combined uncertainty: when the lab and the assigned value both state 0, the score
-    # is not defined (±inf or 0/0), so it is left empty with a note rather than written as infinite.
-    undefined = {"z": np.zeros(len(z), bool), "z-prime": np.zeros(len(z), bool),
-                 "zeta": np.isinf(zeta) | (np.isnan(zeta) & (np.hypot(labs["u"].to_numpy(float), u_pt) == 0)),
-                 "en": np.isinf(en) | (np.isnan(en) & (np.hypot(U_lab, U_pt) == 0))}[m.score]
-    zeta = np.where(np.isinf(zeta), np.nan, zeta)
-    en = np.where(np.isinf(en), np.nan, en)
-    chosen = {"z": z, "z-prime": zp, "zeta": zeta, "en": en}[m.score]
+    chosen, undefined = computed[m.score]
     chosen = np.where(labs["withhold"].to_numpy(bool), np.nan, chosen)
-    sig = sc.signal(chosen, "en" if m.score == "en" else "z")
+    sig = official.signals(chosen)
     notes = labs["reason"].fillna("").astype(str).to_numpy(dtype=object)
     slip = sc.possible_unit_slip(x, x_pt)
     status = labs["status"].to_numpy(dtype=object)
@@ -229,10 +225,10 @@ def _score_rows(rnd: Round, mr: MeasurandResult) -> pd.DataFrame:
             add.append("not reported")
         elif st == "censored":
             lim, rel = limits[i], relations[i]
-            if rel == "<" and np.isfinite(lim) and mr.scored and lim < x_pt - sc.Z_ACTION * s_pt:
+            if rel == "<" and np.isfinite(lim) and mr.scored and lim < x_pt - CENSORED_ACTION * s_pt:
                 sig[i] = "action"
                 add.append("false negative: the limit is below x_pt − 3σ_pt")
-            elif rel == ">" and np.isfinite(lim) and mr.scored and lim > x_pt + sc.Z_ACTION * s_pt:
+            elif rel == ">" and np.isfinite(lim) and mr.scored and lim > x_pt + CENSORED_ACTION * s_pt:
                 sig[i] = "action"
                 add.append("false positive: the limit is above x_pt + 3σ_pt")
             else:
@@ -242,11 +238,9 @@ def _score_rows(rnd: Round, mr: MeasurandResult) -> pd.DataFrame:
         elif withheld[i]:
             add.append("score withheld by the coordinator")
         elif undefined[i]:
-            add.append({"zeta": "ζ is not defined: u(x) and u(x_pt) are both 0",
-                        "en": "En is not defined: U(x) and U(x_pt) are both 0"}[m.score])
+            add.append(official.undefined_note)
         elif np.isnan(chosen[i]):
-            add.append({"zeta": "no uncertainty reported: ζ needs u", "en": "no uncertainty reported: En needs U"}
-                       .get(m.score, "not scored"))
+            add.append(official.missing_note)
         if sig[i] == "action" and st == "value" and slip[i]:
             add.append("possible unit or decimal slip")
         notes[i] = "; ".join([t for t in [notes[i], *add] if t])
@@ -255,7 +249,7 @@ def _score_rows(rnd: Round, mr: MeasurandResult) -> pd.DataFrame:
         "lab": labs["lab"], "measurand": m.name, "unit": m.unit, "n_replicates": labs["n_replicates"],
         "result": [r if r else (x[i] if np.isfinite(x[i]) else np.nan) for i, r in enumerate(result)],
         "assigned": x_pt, "u_assigned": u_pt, "sigma_pt": s_pt,
-        "z": z, "z_prime": zp, "zeta": zeta, "en": en, "d": d, "d_percent": dp,
+        **{kind.column: computed[kind.name][0] for kind in SCORES.values()}, "d": d, "d_percent": dp,
         "signal": sig, "note": notes, "score": m.score,
         "scheme": rnd.scheme, "round": rnd.id, "round_date": rnd.date,
     })

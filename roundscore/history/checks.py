@@ -29,7 +29,8 @@ import math
 import numpy as np
 
 from roundscore.errors import Problem
-from roundscore.stats.scores import SIGNALS, Z_ACTION, signal
+from roundscore.model.scores import CENSORED_ACTION, SCORE_FIELD, family_of
+from roundscore.model.signals import SIGNAL_NAMES as SIGNALS
 
 __all__ = ["REL_TOL", "row_problems", "EDIT_HINT", "RESUBMIT_HINT"]
 
@@ -38,8 +39,6 @@ __all__ = ["REL_TOL", "row_problems", "EDIT_HINT", "RESUBMIT_HINT"]
 REL_TOL = 1e-9
 #: U(x_pt) = 2 u(x_pt) in En (roundscore.evaluation.evaluate._score_rows).
 _EN_K = 2.0
-#: Scores by the round's score name, and the field holding each (roundscore.model.evaluation.SCORE_FIELD).
-_SCORE_FIELD = {"z": "z", "z-prime": "z_prime", "zeta": "zeta", "en": "en"}
 #: What to do about a row that was changed.
 RESUBMIT_HINT = "add the file as the provider sent it, or ask the provider for a new copy"
 #: Said with every consistency problem.
@@ -57,10 +56,11 @@ def _close(got: float, want: float, scale: float) -> bool:
     return abs(got - want) <= REL_TOL * (abs(want) + scale) + 1e-300
 
 
-def _signals(value: float, kind: str) -> set[str]:
-    """The signals a score may carry: both sides of a limit when it lies within the tolerance."""
+def _signals(value: float, score: str) -> set[str]:
+    """The signals a score may carry (by its family's limits): both sides of a limit when it lies within the
+    tolerance."""
     probe = abs(value) * np.array([1 - REL_TOL, 1.0, 1 + REL_TOL])
-    return set(signal(probe, kind).tolist())
+    return set(family_of(score).signals(probe).tolist())
 
 
 def row_problems(row: dict[str, object], *, file: str | None, sheet: str | None,
@@ -128,9 +128,9 @@ def _check_signal(row: dict[str, object], x: float | None, a: float | None, s: f
     sig = row.get("signal")
     if sig not in SIGNALS:
         return  # reported by normalise_rows
-    field = _SCORE_FIELD.get(str(row.get("score")))
+    field = SCORE_FIELD.get(str(row.get("score")))
     value = _num(row.get(field)) if field else None
-    kind = "en" if row.get("score") == "en" else "z"
+    kind = str(row.get("score"))
     if value is not None and x is None:
         return  # a score without a result: reported with its column
     if value is not None:
@@ -148,10 +148,10 @@ def _check_signal(row: dict[str, object], x: float | None, a: float | None, s: f
             limit = float(text[1:].strip())
         except ValueError:
             limit = math.nan
-        margin = REL_TOL * (abs(a) + Z_ACTION * s)
-        if text.startswith("<") and limit < a - Z_ACTION * s + margin:
+        margin = REL_TOL * (abs(a) + CENSORED_ACTION * s)
+        if text.startswith("<") and limit < a - CENSORED_ACTION * s + margin:
             allowed.add("action")  # a false negative (roundscore.evaluation.evaluate)
-        if text.startswith(">") and limit > a + Z_ACTION * s - margin:
+        if text.startswith(">") and limit > a + CENSORED_ACTION * s - margin:
             allowed.add("action")  # a false positive
     if sig not in allowed:
         what = "a censored result" if censored else "a row without a score"

@@ -2,8 +2,9 @@
 
 The rules, combined scores and the bias check are defined (with their
 sources) in :mod:`roundscore.stats.trends`. They are applied to the z-like
-scores (z, z' and zeta); a series of En scores is screened only for action
-signals. Rounds without a score (``not-scored``) are left out, so
+scores (z, z′ and ζ); a series of En scores is screened only for action
+signals (the score families and their limits are the score registry's,
+:data:`roundscore.model.scores.SCORE_FAMILIES`). Rounds without a score (``not-scored``) are left out, so
 "consecutive" means consecutive *scored* rounds. The rules run over the
 whole series; a finding is reported when it fires at one of the last
 ``window`` scored rounds. Combined scores and the bias check use those last
@@ -21,9 +22,10 @@ from typing import Literal, Sequence
 import numpy as np
 import pandas as pd
 
+from roundscore.choices import check_choice
 from roundscore.errors import InputError, StatisticsError
-from roundscore.stats.trends import (ACTION_LIMIT, CUSUM_H, CUSUM_K, EN_ACTION_LIMIT, RUN_LENGTH, WARNING_LIMIT,
-                                     AsDict, BiasCheck, CombinedScores, CusumResult, Side, action_signals, as_series,
+from roundscore.model.scores import SCORE_FAMILIES, SCORE_NAMES, SCORES, FamilyName
+from roundscore.stats.trends import (CUSUM_H, CUSUM_K, RUN_LENGTH, AsDict, BiasCheck, CombinedScores, CusumResult, Side, action_signals, as_series,
                                      bias_check, combined_scores, cusum, same_side_runs, two_of_three)
 
 __all__ = ["DEFAULT_WINDOW", "DISCLAIMER", "RULE_NAMES", "RULE_SOURCES", "RuleFinding", "SeriesCheck",
@@ -116,7 +118,7 @@ class SeriesCheck(AsDict):
     scheme: str
     lab: str
     measurand: str
-    family: Literal["z-like", "en"]
+    family: FamilyName
     rounds: tuple[str, ...]
     dates: tuple[str, ...]
     scores: tuple[str, ...]
@@ -145,7 +147,7 @@ def _finding(rule: int, positions: Sequence[int], side: Side | None, detail: str
 
 def check_series(values: Sequence[float] | np.ndarray, *, rounds: Sequence[str],
                  dates: Sequence[str], scores: Sequence[str] | None = None,
-                 family: Literal["z-like", "en"] = "z-like", window: int | None = DEFAULT_WINDOW,
+                 family: FamilyName = "z-like", window: int | None = DEFAULT_WINDOW,
                  scheme: str = "", lab: str = "", measurand: str = "") -> SeriesCheck:
     """Apply rules 1-4, combined scores and the bias check to one series.
 
@@ -165,8 +167,7 @@ def check_series(values: Sequence[float] | np.ndarray, *, rounds: Sequence[str],
     arr = as_series(values)
     if len(rounds) != arr.size or len(dates) != arr.size:
         raise StatisticsError("rounds and dates must have one entry per score")
-    if family not in ("z-like", "en"):
-        raise InputError.single("family: allowed values are 'z-like', 'en'", value=family)
+    fam = SCORE_FAMILIES[check_choice("family", family, FamilyName)]
     if window is not None and window < 1:
         raise InputError.single("window: must be at least 1", value=window)
     n = int(arr.size)
@@ -176,21 +177,20 @@ def check_series(values: Sequence[float] | np.ndarray, *, rounds: Sequence[str],
     recent = lambda positions: [p for p in positions if p >= first]  # noqa: E731
     found: list[RuleFinding] = []
     notes: list[str] = []
-    limit = ACTION_LIMIT if family == "z-like" else EN_ACTION_LIMIT
-    name = "|z|" if family == "z-like" else "|En|"
-    hits = recent(action_signals(arr, limit=limit).tolist())
+    hits = recent(action_signals(arr, limit=fam.action, strict=fam.strict).tolist())
     if hits:
-        found.append(_finding(1, hits, None, f"{name} >= {limit:g}", rounds, dates))
+        found.append(_finding(1, hits, None, fam.action_text, rounds, dates))
     cus = combined = bias = None
-    if family == "en":
-        notes.append("rules 2-4, combined scores and the bias check are not applied to En "
-                     "numbers (they assume a standard-normal score)")
+    if not fam.trend_rules:
+        notes.append(f"rules 2-4, combined scores and the bias check are not applied to {fam.title} "
+                     "(they assume a standard-normal score)")
     else:
+        warning = fam.warning if fam.warning is not None else fam.action  # z-like: 2
         for side in ("high", "low"):
-            pos = recent([p for p, s in two_of_three(arr) if s == side])
+            pos = recent([p for p, s in two_of_three(arr, limit=warning) if s == side])
             if pos:
                 found.append(_finding(2, pos, side, f"two of three {'above +' if side == 'high' else 'below -'}"
-                                      f"{WARNING_LIMIT:g}", rounds, dates))
+                                      f"{warning:g}", rounds, dates))
         for start, end, side in same_side_runs(arr):
             pos = recent(range(start + RUN_LENGTH - 1, end + 1))
             if pos:
@@ -241,9 +241,6 @@ class HistoryCheck(AsDict):
         return any(s.fired for s in self.series)
 
 
-_Z_LIKE = ("z", "z-prime", "zeta")
-
-
 def check_history(history: pd.DataFrame, *, window: int | None = DEFAULT_WINDOW) -> HistoryCheck:
     """Run :func:`check_series` over every series of an archive history frame.
 
@@ -261,10 +258,10 @@ def check_history(history: pd.DataFrame, *, window: int | None = DEFAULT_WINDOW)
         raise InputError.single(f"history table: missing columns: {', '.join(missing)}")
     scored = history[(history["signal"] != "not-scored")
                      & np.isfinite(pd.to_numeric(history["score_value"], errors="coerce"))]
-    scored = scored.assign(family=np.where(scored["score"] == "en", "en", "z-like"))
-    unknown = sorted(set(scored["score"]) - set(_Z_LIKE) - {"en"})
+    unknown = sorted(set(scored["score"]) - set(SCORE_NAMES))
     if unknown:
-        raise InputError.single(f"unknown score names {unknown}; allowed: z, z-prime, zeta, en")
+        raise InputError.single(f"unknown score names {unknown}; allowed: {', '.join(SCORE_NAMES)}")
+    scored = scored.assign(family=scored["score"].map({n: k.family for n, k in SCORES.items()}))
     scored = scored.sort_values(["round_date", "round"], kind="stable")
     out = []
     for (scheme, lab, measurand, family), part in scored.groupby(

@@ -37,10 +37,11 @@ from roundscore.text import too_long
 from roundscore.model.digest import DIGEST_KEY, ROW_DIGEST_COLUMN, canonical, row_digest, sheet_digest
 from roundscore.history.checks import EDIT_HINT, RESUBMIT_HINT, row_problems
 
-# One definition of the score-row contract (model/evaluation.py) and of the score and signal names.
-from roundscore.model.evaluation import SCORE_COLUMNS, SCORE_FIELD as SCORE_VALUE_COLUMN
-from roundscore.model.round import SCORES as SCORE_NAMES
-from roundscore.stats.scores import SIGNALS
+# One definition of the score-row contract (model/evaluation.py) and of the score and signal names (the
+# registries of model/scores.py and model/signals.py).
+from roundscore.model.evaluation import SCORE_COLUMNS, SCORE_FLOAT_COLUMNS, SCORE_ROW_COLUMNS
+from roundscore.model.scores import SCORE_FIELD as SCORE_VALUE_COLUMN, SCORE_NAMES
+from roundscore.model.signals import SIGNAL_NAMES as SIGNALS
 
 __all__ = ["SCORE_COLUMNS", "ROW_FIELDS", "TEXT_FIELDS", "FLOAT_FIELDS", "SIGNALS", "SCORE_NAMES",
            "SCORE_VALUE_COLUMN", "WORKBOOK_FORMAT", "CENSORED_STARTS", "LabRows", "plain", "unquote", "text_key",
@@ -49,10 +50,11 @@ __all__ = ["SCORE_COLUMNS", "ROW_FIELDS", "TEXT_FIELDS", "FLOAT_FIELDS", "SIGNAL
 #: First characters of a censored ``result`` ("below" / "above" a limit), as the pipeline writes it.
 CENSORED_STARTS = ("<", ">")
 #: Per-row fields stored in the ``scores`` table (scheme/round/date live on the round).
-ROW_FIELDS: tuple[str, ...] = SCORE_COLUMNS[:17]
+ROW_FIELDS: tuple[str, ...] = SCORE_ROW_COLUMNS
 TEXT_FIELDS = frozenset({"lab", "measurand", "unit", "signal", "note", "score"})
-FLOAT_FIELDS = ("result", "assigned", "u_assigned", "sigma_pt", "z", "z_prime",
-                 "zeta", "en", "d", "d_percent")
+FLOAT_FIELDS: tuple[str, ...] = SCORE_FLOAT_COLUMNS
+#: Position of each field in a row of ROW_FIELDS.
+_AT = {f: i for i, f in enumerate(ROW_FIELDS)}
 #: Leading characters a CSV writer neutralises with a ``'`` (OWASP, "CSV Injection").
 _FORMULA_STARTS = ("=", "+", "-", "@")
 WORKBOOK_FORMAT = 1
@@ -164,7 +166,7 @@ def normalise_rows(records: Sequence[dict[str, object]], *, file: str | None, sh
             else:
                 out.append(number + 0.0)  # -0.0 -> 0.0: SQLite reads negative zero back as 0.0
         row = tuple(out)
-        lab, measurand, signal, score = row[0], row[1], row[14], row[16]
+        lab, measurand, signal, score = (row[_AT[f]] for f in ("lab", "measurand", "signal", "score"))
         for col, val in (("lab", lab), ("measurand", measurand)):
             if val is None:
                 problems.append(Problem(message="empty; a value is required", column=col, **where))

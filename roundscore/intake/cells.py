@@ -49,7 +49,9 @@ from dataclasses import dataclass
 from decimal import Decimal, InvalidOperation
 from typing import Literal
 
+from roundscore.choices import options
 from roundscore.errors import RoundscoreError
+from roundscore.model.round import DecimalMark
 
 __all__ = ["Cell", "CellError", "AmbiguousNumber", "parse_cell", "MAX_CELL_TEXT", "DECIMAL_MARKS", "DecimalMark"]
 
@@ -57,9 +59,8 @@ __all__ = ["Cell", "CellError", "AmbiguousNumber", "parse_cell", "MAX_CELL_TEXT"
 MAX_CELL_TEXT = 64
 
 CellKind = Literal["value", "censored", "blank"]
-DecimalMark = Literal["comma", "point"]
-#: The decimal marks a round file or a form can declare (``[round] decimal``).
-DECIMAL_MARKS: tuple[str, ...] = ("comma", "point")
+#: The decimal marks a round file or a form can declare (``[round] decimal``; the Literal is the round's).
+DECIMAL_MARKS: tuple[str, ...] = options(DecimalMark)
 
 
 class CellError(ValueError, RoundscoreError):

@@ -20,12 +20,14 @@ from pathlib import Path
 from typing import Any
 
 from roundscore.errors import Problem, RoundFileError, shown_value
-from roundscore.intake.cells import DECIMAL_MARKS
+from roundscore.choices import is_choice, options_text
+from roundscore.model.items import ItemConsequence, StabilityChoice
 from roundscore.model.labcodes import read_lab_code
 from roundscore.model.limits import DEFAULT_LIMITS, ReadLimits
-from roundscore.model.round import (ASSIGNED_METHODS, LIMIT_KEYS, MAX_FORM_REPLICATES, MEASURAND_KEYS,
-                                    OUTLIER_ACTIONS, ROUND_KEYS, SCORES, SIGMA_WORDS, UNKNOWN_LAB_ACTIONS, Exclusion,
-                                    MeasurandSettings, Round, SigmaSpec, limit_range)
+from roundscore.model.round import (LIMIT_KEYS, MAX_FORM_REPLICATES, MEASURAND_KEYS, ROUND_KEYS, AssignedMethod,
+                                    DecimalMark, Exclusion, MeasurandSettings, OutlierAction, Round, ScoreName,
+                                    SigmaMethod, SigmaSpec, UnknownLabs, limit_range)
+from roundscore.model.signals import Words
 from roundscore.model.units import UnitError, mass_fraction, unit_text_problem
 from roundscore.ranges import (MAX_MAGNITUDE, MIN_MAGNITUDE, SIGMA_MIN_RELATIVE, confidence_problem, magnitude_problem,
                                sigma_relative_problem)
@@ -114,13 +116,14 @@ class _Checker:
             return default
         return value
 
-    def choice(self, key: str, value: object, allowed: tuple[str, ...], default: str) -> str:
+    def choice(self, key: str, value: object, allowed: Any, default: str) -> Any:
+        """``value`` when it is one of the values of the ``Literal`` ``allowed``; else a problem and ``default``."""
         if value is None:
             return default
-        if value not in allowed:
-            self.bad(key, value, ", ".join(repr(a) for a in allowed))
+        if not is_choice(value, allowed):
+            self.bad(key, value, options_text(allowed))
             return default
-        return str(value)
+        return value
 
 
 def _real(value: object) -> float | None:
@@ -147,7 +150,7 @@ def _sigma(c: _Checker, key: str, raw: object) -> SigmaSpec:
         c.problems.append(Problem(message=f"{c.file}: key {key!r} is required; allowed: {MEASURAND_KEYS['sigma_pt']}"))
         return SigmaSpec(kind="robust-sd")
     if isinstance(raw, str):
-        if raw in SIGMA_WORDS:
+        if is_choice(raw, SigmaMethod):
             return SigmaSpec(kind=raw)  # type: ignore[arg-type]
         c.bad(key, raw, MEASURAND_KEYS["sigma_pt"])
         return SigmaSpec(kind="robust-sd")
@@ -218,7 +221,7 @@ def _measurand(c: _Checker, folder: Path, name: str, raw: object) -> MeasurandSe
     assigned_raw = raw.get("assigned", "algorithm-a")
     assigned: str | float
     if isinstance(assigned_raw, str):
-        assigned = c.choice(f"{t}.assigned", assigned_raw, ASSIGNED_METHODS, "algorithm-a")
+        assigned = c.choice(f"{t}.assigned", assigned_raw, AssignedMethod, "algorithm-a")
     else:
         assigned = c.number(f"{t}.assigned", assigned_raw) or 0.0
     u_assigned = c.number(f"{t}.u_assigned", raw.get("u_assigned"), low=0.0)
@@ -254,15 +257,14 @@ def _measurand(c: _Checker, folder: Path, name: str, raw: object) -> MeasurandSe
         assigned=assigned,
         u_assigned=u_assigned,
         sigma_pt=sigma,
-        score=c.choice(f"{t}.score", raw.get("score"), SCORES, "z"),
+        score=c.choice(f"{t}.score", raw.get("score"), ScoreName, "z"),
         decimals=decimals,
         allow_negative=allow_negative,
         homogeneity=_inside(c, folder, f"{t}.homogeneity", c.text(f"{t}.homogeneity", raw.get("homogeneity"))),
         stability=_inside(c, folder, f"{t}.stability", c.text(f"{t}.stability", raw.get("stability"))),
-        item_checks=c.choice(f"{t}.item_checks", raw.get("item_checks"),
-                             ("uncertainty", "widen-sigma", "both", "report"), "uncertainty"),
+        item_checks=c.choice(f"{t}.item_checks", raw.get("item_checks"), ItemConsequence, "uncertainty"),
         stability_criterion=c.choice(f"{t}.stability_criterion", raw.get("stability_criterion"),
-                                     ("auto", "simple", "expanded"), "auto"),
+                                     StabilityChoice, "auto"),
     )
 
 
@@ -403,8 +405,8 @@ def load_round(path: str | Path) -> Round:
               "'keep' while outliers = 'keep' (leaving out stragglers while keeping outliers contradicts "
               "itself); or set outliers = \"exclude\" too")
     decimal = r.get("decimal")
-    if decimal is not None and decimal not in DECIMAL_MARKS:
-        c.bad("round.decimal", decimal, " or ".join(repr(d) for d in DECIMAL_MARKS)
+    if decimal is not None and not is_choice(decimal, DecimalMark):
+        c.bad("round.decimal", decimal, options_text(DecimalMark, last=" or ")
               + " (leave it out to refuse numbers such as 1,234 whose reading depends on it)")
         decimal = None
     confidence = 0.95
@@ -429,15 +431,15 @@ def load_round(path: str | Path) -> Round:
         participants=_inside(c, folder, "round.participants", c.text("round.participants", r.get("participants"))),
         replicates=c.whole("round.replicates", r.get("replicates"), 2, 1, MAX_FORM_REPLICATES),
         confidence=confidence,
-        outliers=c.choice("round.outliers", r.get("outliers"), OUTLIER_ACTIONS, "exclude"),
-        stragglers=c.choice("round.stragglers", r.get("stragglers"), OUTLIER_ACTIONS, "keep"),
+        outliers=c.choice("round.outliers", r.get("outliers"), OutlierAction, "exclude"),
+        stragglers=c.choice("round.stragglers", r.get("stragglers"), OutlierAction, "keep"),
         archive=_archive_file(c, folder, archive_text),
         history_rounds=c.whole("round.history_rounds", r.get("history_rounds"), 8, 1, 100),
         youden=tuple(youden),
-        words=c.choice("round.words", r.get("words"), ("signals", "performance"), "signals"),
+        words=c.choice("round.words", r.get("words"), Words, "signals"),
         measurands=measurands,
         decimal=decimal,
-        unknown_labs=c.choice("round.unknown_labs", r.get("unknown_labs"), UNKNOWN_LAB_ACTIONS, "warn"),
+        unknown_labs=c.choice("round.unknown_labs", r.get("unknown_labs"), UnknownLabs, "warn"),
         exclusions=exclusions,
         limits=limits,
         warnings=tuple(c.warnings),

@@ -7,7 +7,7 @@ and the row is named. The digests are over the cell *values as read back*,
 canonicalised (numbers to :data:`DIGITS` significant digits, text stripped,
 empty cells as nothing), never over file bytes: opening a sheet and saving it
 again in a spreadsheet program changes its bytes but not these values. The
-writer (:mod:`roundscore.outputs.workbook`) rounds the numbers of the
+writer (:mod:`roundscore.outputs.lab_workbook`) rounds the numbers of the
 ``data`` sheet to :data:`DIGITS` digits, so a program that keeps 15 (Excel,
 LibreOffice) gives back the same values; ``history add``
 (:mod:`roundscore.history.sheets`) checks them.

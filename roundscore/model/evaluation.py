@@ -19,25 +19,32 @@ import pandas as pd
 from roundscore.model.inputs import Participant
 from roundscore.model.items import ItemOutcome
 from roundscore.model.round import MeasurandSettings, Round
+from roundscore.model.scores import SCORE_FIELD, SCORE_VALUE_COLUMNS
 from roundscore.model.table import ResultTable
 from roundscore.stats.robust import RobustEstimate
 
 __all__ = ["RoundEvaluation", "MeasurandResult", "SCORE_COLUMNS", "STATISTICS_COLUMNS", "AUDIT_COLUMNS",
-           "SCORE_FIELD", "lab_order_key"]
+           "SCORE_FIELD", "ROUND_COLUMNS", "SCORE_ROW_COLUMNS", "SCORE_FLOAT_COLUMNS", "lab_order_key"]
 
-#: scores.csv columns (fixed by contract; the round columns follow so a file stands alone).
-SCORE_COLUMNS = (
+#: The round's columns that end every row of scores.csv, so a file stands alone.
+ROUND_COLUMNS = ("scheme", "round", "round_date")
+#: scores.csv columns (fixed by contract): the lab's result and the assigned value, one column per score of
+#: the registry (roundscore.model.scores.SCORES, in its order), D and D%, the signal, then the round columns.
+SCORE_COLUMNS: tuple[str, ...] = (
     "lab", "measurand", "unit", "n_replicates", "result", "assigned", "u_assigned", "sigma_pt",
-    "z", "z_prime", "zeta", "en", "d", "d_percent", "signal", "note",
-    "score", "scheme", "round", "round_date",
+    *SCORE_VALUE_COLUMNS, "d", "d_percent", "signal", "note",
+    "score", *ROUND_COLUMNS,
 )
+#: The columns of one score row without the round's (what the archive stores per row).
+SCORE_ROW_COLUMNS: tuple[str, ...] = tuple(c for c in SCORE_COLUMNS if c not in ROUND_COLUMNS)
+#: The columns of a score row holding numbers (a censored ``result`` is text: "<0.5").
+SCORE_FLOAT_COLUMNS: tuple[str, ...] = ("result", "assigned", "u_assigned", "sigma_pt", *SCORE_VALUE_COLUMNS,
+                                        "d", "d_percent")
 STATISTICS_COLUMNS = (
     "measurand", "unit", "p", "assigned", "u_assigned", "sigma_pt", "robust_mean", "robust_sd",
     "median", "made", "niqr", "iterations", "u_check_passed", "score",
 )
 AUDIT_COLUMNS = ("measurand", "lab", "step", "action", "reason")
-#: Column of the scores frame that holds each score name's value.
-SCORE_FIELD = {"z": "z", "z-prime": "z_prime", "zeta": "zeta", "en": "en"}
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)

@@ -10,11 +10,11 @@ checks of one measurand found and did to σ_pt and u(x_pt) (computed by
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Any, Literal, Mapping, get_args
+from typing import Any, Literal, Mapping
 
 import numpy as np
 
-from roundscore.errors import InputError
+from roundscore.choices import check_choice
 from roundscore.stats import items as st
 
 __all__ = ["ITEMS_COLUMNS", "ItemConsequence", "StabilityChoice", "TableKind", "ItemTable", "ItemTables",
@@ -24,18 +24,17 @@ __all__ = ["ITEMS_COLUMNS", "ItemConsequence", "StabilityChoice", "TableKind", "
 ITEMS_COLUMNS = ("measurand", "check", "g", "m", "mean", "s_x", "s_w", "s_s", "criterion", "allowed",
                  "passed", "note")
 
+#: ``item_checks``: what a failed (or passed) item check does to σ_pt and u(x_pt).
 ItemConsequence = Literal["uncertainty", "widen-sigma", "both", "report"]
-StabilityChoice = Literal["auto", "simple", "expanded"]
+#: ``stability_criterion``: the stability check's criterion (the statistic's own choice).
+StabilityChoice = st.StabilityCriterion
 TableKind = Literal["homogeneity", "stability"]
 
 
 def check_item_choice(name: str, value: object, allowed: object) -> str:
-    """``value`` if it is one of the ``Literal`` choices ``allowed``, else InputError listing them."""
-    choices = get_args(allowed)
-    if value not in choices:
-        shown = ", ".join(repr(c) for c in choices)
-        raise InputError.single(f"{name}: found {value!r}; allowed: {shown}")
-    return str(value)
+    """``value`` if it is one of the ``Literal`` choices ``allowed``, else InputError listing them
+    (:func:`roundscore.choices.check_choice`)."""
+    return check_choice(name, value, allowed)
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)

@@ -11,7 +11,11 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Literal
 
+from roundscore.choices import options, options_text
+from roundscore.model.items import ItemConsequence, StabilityChoice
 from roundscore.model.limits import DEFAULT_LIMITS, LIMIT_MAX, ReadLimits
+from roundscore.model.scores import SCORE_NAMES, ScoreName
+from roundscore.model.signals import Words
 
 __all__ = [
     "Round",
@@ -20,19 +24,39 @@ __all__ = [
     "SigmaSpec",
     "SCORES",
     "ASSIGNED_METHODS",
+    "AssignedMethod",
+    "SigmaMethod",
+    "OutlierAction",
+    "UnknownLabs",
+    "DecimalMark",
+    "ScoreName",
     "ROUND_KEYS",
     "MEASURAND_KEYS",
     "LIMIT_KEYS",
     "limit_range",
 ]
 
-ScoreName = Literal["z", "z-prime", "zeta", "en"]
 #: Most replicate cells a submission form asks for (``[round] replicates``).
 MAX_FORM_REPLICATES = 20
-SCORES: tuple[str, ...] = ("z", "z-prime", "zeta", "en")
-ASSIGNED_METHODS: tuple[str, ...] = ("algorithm-a", "median")
-SIGMA_WORDS: tuple[str, ...] = ("horwitz", "robust-sd")
-OUTLIER_ACTIONS: tuple[str, ...] = ("exclude", "keep")
+
+# The choices of a round file, each a Literal listing its values once (checked by roundscore.choices; the
+# tuples below are those values, for messages and membership tests).
+#: ``assigned``: a consensus method (or a number: a reference or formulation value).
+AssignedMethod = Literal["algorithm-a", "median"]
+#: ``sigma_pt`` given as a word (or a number, or a precision experiment's table).
+SigmaMethod = Literal["horwitz", "robust-sd"]
+#: ``[round] outliers`` and ``stragglers``: what the precision estimates do with them.
+OutlierAction = Literal["exclude", "keep"]
+#: ``[round] unknown_labs``: a result from a lab not in the participants file.
+UnknownLabs = Literal["warn", "error"]
+#: ``[round] decimal``: the decimal mark of numbers typed as text.
+DecimalMark = Literal["comma", "point"]
+
+#: The score names (the rows of the score registry, roundscore.model.scores.SCORES).
+SCORES: tuple[str, ...] = SCORE_NAMES
+ASSIGNED_METHODS: tuple[str, ...] = options(AssignedMethod)
+SIGMA_WORDS: tuple[str, ...] = options(SigmaMethod)
+OUTLIER_ACTIONS: tuple[str, ...] = options(OutlierAction)
 
 ROUND_KEYS: dict[str, str] = {
     "id": "text (required): the round's identifier",
@@ -46,17 +70,20 @@ ROUND_KEYS: dict[str, str] = {
     "participants": "a CSV file of lab, name, contact",
     "replicates": "whole number ≥ 1: replicates asked for on the forms (default 2)",
     "confidence": "number strictly between 0 and 1 for method comparisons (default 0.95)",
-    "outliers": "'exclude' or 'keep': ISO 5725-2 outliers in the precision estimates (default exclude)",
-    "stragglers": "'exclude' or 'keep': ISO 5725-2 stragglers (default keep)",
+    "outliers": f"{options_text(OutlierAction, last=' or ')}: ISO 5725-2 outliers in the precision estimates "
+                "(default exclude)",
+    "stragglers": f"{options_text(OutlierAction, last=' or ')}: ISO 5725-2 stragglers (default keep)",
     "archive": "an archive file to store the round in (may be outside the round folder; ~ is your home folder)",
     "history_rounds": "whole number: past rounds shown on each lab sheet (default 8)",
     "youden": "list of pairs of measurand names for Youden plots",
     "words": "'signals' (acceptable/warning/action) or 'performance' (satisfactory/questionable/unsatisfactory)",
-    "decimal": "'comma' or 'point': the decimal mark of numbers typed as text in results and item tables "
+    "decimal": f"{options_text(DecimalMark, last=' or ')}: the decimal mark of numbers typed as text in results "
+               "and item tables "
                "(default: not declared; a number whose reading depends on it, such as 1,234, is refused)",
-    "unknown_labs": "'warn' or 'error': a result from a lab not in the participants file (default warn)",
+    "unknown_labs": f"{options_text(UnknownLabs, last=' or ')}: a result from a lab not in the participants file "
+                    "(default warn)",
 }
-UNKNOWN_LAB_ACTIONS: tuple[str, ...] = ("warn", "error")
+UNKNOWN_LAB_ACTIONS: tuple[str, ...] = options(UnknownLabs)
 #: ``[limits]``: bounds on reading untrusted files (see roundscore.model.limits.ReadLimits):
 #: key → (ReadLimits field, the field's unit, smallest allowed value in the key's unit). The largest allowed
 #: value is ``LIMIT_MAX[field] / unit``; :func:`limit_range` gives both.
@@ -71,17 +98,18 @@ LIMIT_KEYS: dict[str, tuple[str, int, float]] = {
 MEASURAND_KEYS: dict[str, str] = {
     "unit": "text (required): a unit such as mg/kg, µg/L, g/100 g, % (a mass fraction for sigma_pt = 'horwitz')",
     "label": "text: a longer name shown in reports",
-    "assigned": "'algorithm-a', 'median' or a number (reference or formulation value; 0 or |v| 1e-50 to 1e50)",
+    "assigned": f"{options_text(AssignedMethod)} or a number (reference or formulation value; 0 or |v| 1e-50 to 1e50)",
     "u_assigned": "number ≥ 0: standard uncertainty of a numeric assigned value (0 or 1e-50 to 1e50)",
-    "sigma_pt": "a number from 1e-50 to 1e50 (and ≥ 1e-12 × |assigned|), 'horwitz', 'robust-sd', "
+    "sigma_pt": f"a number from 1e-50 to 1e50 (and ≥ 1e-12 × |assigned|), {options_text(SigmaMethod)}, "
                 "or { s_R = …, s_r = …, replicates = n }",
-    "score": "'z', 'z-prime', 'zeta' or 'en'",
+    "score": options_text(ScoreName, last=" or "),
     "decimals": "whole number 0–10: decimals shown in reports",
     "allow_negative": "true or false: whether results below zero are possible (default false)",
     "homogeneity": "a CSV or .xlsx file of item, replicate, value",
     "stability": "a CSV or .xlsx file of item, replicate, value, set",
-    "item_checks": "'uncertainty', 'widen-sigma', 'both' or 'report' (default 'uncertainty')",
-    "stability_criterion": "'auto', 'simple' or 'expanded' (default 'auto': expanded when the table gives u)",
+    "item_checks": f"{options_text(ItemConsequence, last=' or ')} (default 'uncertainty')",
+    "stability_criterion": f"{options_text(StabilityChoice, last=' or ')} (default 'auto': expanded when the "
+                           "table gives u)",
 }
 
 
@@ -119,16 +147,16 @@ class MeasurandSettings:
     name: str
     unit: str
     label: str
-    assigned: str | float
+    assigned: AssignedMethod | float
     u_assigned: float | None
     sigma_pt: SigmaSpec
-    score: str
+    score: ScoreName
     decimals: int | None
     allow_negative: bool
     homogeneity: Path | None = None
     stability: Path | None = None
-    item_checks: str = "uncertainty"
-    stability_criterion: str = "auto"
+    item_checks: ItemConsequence = "uncertainty"
+    stability_criterion: StabilityChoice = "auto"
 
     @property
     def is_consensus(self) -> bool:
@@ -166,16 +194,16 @@ class Round:
     participants: Path | None
     replicates: int
     confidence: float
-    outliers: str
-    stragglers: str
+    outliers: OutlierAction
+    stragglers: OutlierAction
     archive: Path | None
     history_rounds: int
     youden: tuple[tuple[str, str], ...]
-    words: str
+    words: Words
     measurands: dict[str, MeasurandSettings]
     #: The declared decimal mark of text cells ("comma" or "point"), or None (ambiguous text is refused).
-    decimal: str | None = None
-    unknown_labs: str = "warn"
+    decimal: DecimalMark | None = None
+    unknown_labs: UnknownLabs = "warn"
     exclusions: tuple[Exclusion, ...] = field(default=())
     limits: ReadLimits = DEFAULT_LIMITS
     warnings: tuple[str, ...] = field(default=())

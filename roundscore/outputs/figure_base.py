@@ -23,6 +23,7 @@ from typing import Literal, Sequence
 
 import numpy as np
 
+from roundscore.model.signals import SCORED_SIGNALS
 from roundscore.outputs.look import PALETTE, SIGNAL_COLOUR, SIGNAL_MARKER, SIGNAL_WORD
 
 __all__ = ["SvgFigure", "MarkKind", "SVG_HASHSALT", "MAX_BARS", "PROFILE_POINTS", "MIN_PLOT_HEIGHT", "WIDE",
@@ -240,7 +241,7 @@ def legend(ax, **kw) -> None:
 def signal_legend(ax, signals: Sequence[str], words: str, **kw) -> None:
     from matplotlib.lines import Line2D
 
-    present = [s for s in ("acceptable", "warning", "action") if s in set(signals)]
+    present = [s for s in SCORED_SIGNALS if s in set(signals)]
     handles = [Line2D([], [], linestyle="none", marker=SIGNAL_MARKER[s], markersize=6,
                       markerfacecolor=SIGNAL_COLOUR[s], markeredgecolor="#000000", markeredgewidth=0.5,
                       label=SIGNAL_WORD[words][s]) for s in present]

@@ -34,8 +34,9 @@ from roundscore.outputs.figure_base import (MAX_BARS, PROFILE_POINTS, SQUARE, SV
                                             codes_under_axis, finish_figure, legend, new_figure, png_bytes,
                                             signal_legend, step_columns)
 from roundscore.outputs.figures_precision import homogeneity_figure, mandel_figure, mandel_limits, stability_figure
-from roundscore.outputs.look import PALETTE, SIGNAL_COLOUR, SIGNAL_MARKER, SIGNAL_WORD
-from roundscore.stats.scores import EN_ACTION, Z_ACTION, Z_WARNING
+from roundscore.model.scores import SCORE_FIELD, family_of, score_label
+from roundscore.model.signals import SCORED_SIGNALS, SIGNALS
+from roundscore.outputs.look import LIMIT_LINE, PALETTE, SIGNAL_COLOUR, SIGNAL_MARKER, SIGNAL_WORD
 
 __all__ = ["SvgFigure", "MarkKind", "z_bar_figure", "density_figure", "youden_figure", "mandel_figure",
            "homogeneity_figure", "stability_figure", "RoundFigures", "round_figures", "SCORE_FIELD",
@@ -51,9 +52,8 @@ RANGE_SIGMAS = 6.0
 
 
 def _limits(score: str) -> list[tuple[float, str, str]]:
-    if score == "en":
-        return [(EN_ACTION, "action limit", "-")]
-    return [(Z_WARNING, "warning limit", "--"), (Z_ACTION, "action limit", "-")]
+    """(limit, "warning limit" / "action limit", line style) of the score's family (roundscore.model.scores)."""
+    return [(lim, f"{sig} limit", LIMIT_LINE[sig]["matplotlib"]) for lim, sig in family_of(score).limits()]
 
 
 # --------------------------------------------------------------------------------------------- figures
@@ -116,7 +116,7 @@ def z_bar_figure(labs: Sequence[str], values: Sequence[float], signals: Sequence
         marked = sig != "acceptable"
         ax.set_xlabel(f"{n} laboratories ranked by score")
         ax.set_xticks([])
-    for s in ("acceptable", "warning", "action"):
+    for s in SCORED_SIGNALS:
         sel = (sig == s) & marked
         if sel.any():
             tips = shown[sel] + np.where(shown[sel] >= 0, 0.04, -0.04) * bound
@@ -132,20 +132,16 @@ def z_bar_figure(labs: Sequence[str], values: Sequence[float], signals: Sequence
     ax.axhline(0, color="#000000", linewidth=0.6)
     ax.set_xlim(-0.8, max(n, 1) - 0.2)
     ax.set_ylim(-bound - 0.6, bound + 0.6)
-    ax.set_ylabel(_score_label(score))
+    ax.set_ylabel(score_label(score))
     ax.set_title(title, loc="left")
     signal_legend(ax, list(sig), words, loc="upper left", ncol=3)
     if png:
         return png_bytes(fig)
     marks = {lab: (float(p), float(z)) for lab, p, z in zip(labs_k, pos, v)}
-    caption = (f"{_score_label(score)} of {n} laboratories, ranked; lines at the "
+    caption = (f"{score_label(score)} of {n} laboratories, ranked; lines at the "
                + " and ".join(f"{w} ±{lim:g}" for lim, w, _ in lims)
                + ". Colour, marker shape and the legend word show each signal.")
     return finish_figure(fig, ax, key=key, title=title, caption=caption, kind="bar", marks=marks)
-
-
-def _score_label(score: str) -> str:
-    return {"z": "z-score", "z-prime": "z′-score", "zeta": "ζ-score", "en": "En number"}.get(score, score)
 
 
 def density_figure(labs: Sequence[str], values: Sequence[float], *, assigned: float, sigma_pt: float, key: str,
@@ -324,7 +320,7 @@ def youden_figure(labs: Sequence[str], a: Sequence[float], b: Sequence[float], *
         ax.set_xlim(*span_a)
         ax.set_ylim(*span_b)
         cx, cy = np.clip(xa, *span_a), np.clip(xb, *span_b)
-    for s in ("acceptable", "warning", "action", "not-scored"):
+    for s in SIGNALS:
         sel = sig == s
         if sel.any():
             ax.plot(cx[sel], cy[sel], linestyle="none", marker=SIGNAL_MARKER[s], markersize=5,
@@ -345,10 +341,8 @@ def youden_figure(labs: Sequence[str], a: Sequence[float], b: Sequence[float], *
 
 # --------------------------------------------------------------------------------------------- the round's set
 
-#: Column of the scores frame holding each official score.
-SCORE_FIELD = {"z": "z", "z-prime": "z_prime", "zeta": "zeta", "en": "en"}
 #: Signals from least to most serious (a Youden point shows the worse of its two).
-_WORSE = {"not-scored": 0, "acceptable": 1, "warning": 2, "action": 3}
+_WORSE = {n: s.rank for n, s in SIGNALS.items()}
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -460,7 +454,7 @@ def _draw(ev, task: tuple[str, ...]) -> dict:
     if m.scored and len(g):
         out["scores"] = z_bar_figure(g["lab"].tolist(), g[SCORE_FIELD[m.settings.score]].to_numpy(float),
                                      g["signal"].tolist(), key=f"z-{name}", score=m.settings.score,
-                                     title=f"{label}: {_score_label(m.settings.score)} by laboratory", words=words)
+                                     title=f"{label}: {score_label(m.settings.score)} by laboratory", words=words)
     labs = m.labs
     if len(labs) and np.isfinite(labs["mean"].to_numpy(float)).any():
         out["density"] = density_figure(labs["lab"].tolist(), labs["mean"].to_numpy(float), assigned=m.assigned,

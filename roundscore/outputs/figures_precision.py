@@ -11,6 +11,7 @@ from typing import Literal, Sequence
 
 import numpy as np
 
+from roundscore.model.signals import SIGNALS
 from roundscore.outputs.look import PALETTE, SIGNAL_MARKER
 from roundscore.stats.precision import mandel_h_critical, mandel_k_critical
 from roundscore.outputs.figure_base import (MAX_BARS, PROFILE_POINTS, WIDE, SvgFigure, codes_under_axis, finish_figure,
@@ -58,7 +59,7 @@ def mandel_figure(labs: Sequence[str], values: Sequence[float], *, statistic: Li
         ax.bar(pos, np.nan_to_num(v), width=0.7, color=colours, edgecolor="#333333", linewidth=0.3)
         codes_under_axis(ax, pos, labs, len(v), "laboratory")
     else:  # many labs: the envelope of PROFILE_POINTS columns, coloured by each column's worst level
-        rank = {"not-scored": 0, "acceptable": 1, "warning": 2, "action": 3}
+        rank = {n: k.rank for n, k in SIGNALS.items()}  # the levels are read as signals (roundscore.model.signals)
         col = np.minimum((pos * PROFILE_POINTS / len(v)).astype(int), PROFILE_POINTS - 1)
         vv = np.nan_to_num(v)
         hi, lo = np.zeros(PROFILE_POINTS), np.zeros(PROFILE_POINTS)

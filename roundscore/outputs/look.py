@@ -1,15 +1,24 @@
-"""The tool's look: one colour-blind-safe palette, and a word and a symbol for every signal.
+"""The tool's look: one colour-blind-safe palette, and a colour, a word, a symbol and a shape for every signal.
 
 Colours are from the Okabe–Ito palette (M. Okabe and K. Ito, "Color Universal
 Design", 2002; also B. Wong, Nature Methods 8 (2011) 441), which stays
 distinguishable for the common colour-vision deficiencies. Colour is never
 the only carrier of meaning: every signal also has a word and a marker shape.
+The words, symbols and shapes are the signal table's
+(:data:`roundscore.model.signals.SIGNALS`); this module gives each its colour
+and the marker codes of matplotlib and of workbook charts, for every output
+(CSV aside: figures, workbooks, the HTML report and strips, the terminal, the
+history workbook and charts).
 """
 
 from __future__ import annotations
 
-__all__ = ["SIGNAL_COLOUR", "SIGNAL_MARKER", "SIGNAL_SYMBOL", "SIGNAL_WORD", "PALETTE", "signal_label",
-           "CAUTION"]
+from typing import Any
+
+from roundscore.model.signals import SIGNALS, WORDS, signal_label
+
+__all__ = ["SIGNAL_COLOUR", "SIGNAL_MARKER", "SIGNAL_CHART_MARKER", "SIGNAL_SYMBOL", "SIGNAL_WORD", "PALETTE",
+           "LIMIT_LINE", "signal_label", "signal_legend_text", "CAUTION"]
 
 PALETTE = {
     "black": "#000000", "orange": "#E69F00", "sky": "#56B4E9", "green": "#009E73",
@@ -18,16 +27,23 @@ PALETTE = {
 }
 SIGNAL_COLOUR = {"acceptable": PALETTE["green"], "warning": PALETTE["orange"],
                  "action": PALETTE["vermillion"], "not-scored": PALETTE["grey"]}
+#: matplotlib marker codes of the signal shapes.
+_MATPLOTLIB_SHAPE = {"circle": "o", "triangle": "^", "square": "s", "cross": "x"}
+#: xlsxwriter chart marker types of the signal shapes.
+_CHART_SHAPE = {"circle": "circle", "triangle": "triangle", "square": "square", "cross": "x"}
 #: matplotlib marker codes.
-SIGNAL_MARKER = {"acceptable": "o", "warning": "^", "action": "s", "not-scored": "x"}
+SIGNAL_MARKER = {n: _MATPLOTLIB_SHAPE[s.shape] for n, s in SIGNALS.items()}
+#: Workbook chart marker types (the same shapes).
+SIGNAL_CHART_MARKER = {n: _CHART_SHAPE[s.shape] for n, s in SIGNALS.items()}
 #: Text symbols for tables and terminals, matching the marker shapes.
-SIGNAL_SYMBOL = {"acceptable": "●", "warning": "▲", "action": "■", "not-scored": "×"}
+SIGNAL_SYMBOL = {n: s.symbol for n, s in SIGNALS.items()}
 #: ISO 13528 words, and ISO/IEC 17043's performance words for schemes that prefer them.
-SIGNAL_WORD = {
-    "signals": {"acceptable": "acceptable", "warning": "warning signal", "action": "action signal",
-                "not-scored": "not scored"},
-    "performance": {"acceptable": "satisfactory", "warning": "questionable", "action": "unsatisfactory",
-                    "not-scored": "not scored"},
+SIGNAL_WORD = {words: {n: s.word(words) for n, s in SIGNALS.items()} for words in WORDS}
+#: How a limit line is drawn, by the signal it bounds: the warning limit dashed, the action limit solid
+#: (matplotlib line style, workbook chart dash type, SVG stroke attribute).
+LIMIT_LINE: dict[str, dict[str, Any]] = {
+    "warning": {"matplotlib": "--", "chart": "dash", "svg": ' stroke-dasharray="4 3"'},
+    "action": {"matplotlib": "-", "chart": "solid", "svg": ""},
 }
 
 CAUTION = (
@@ -37,6 +53,10 @@ CAUTION = (
 )
 
 
-def signal_label(signal: str, words: str = "signals") -> str:
-    """"▲ warning signal": symbol and word together."""
-    return f"{SIGNAL_SYMBOL.get(signal, '')} {SIGNAL_WORD[words].get(signal, signal)}".strip()
+def signal_legend_text(words: str = "signals", sep: str = "  ") -> str:
+    """Every signal's symbol and word in one line.
+
+    >>> signal_legend_text()
+    '● acceptable  ▲ warning signal  ■ action signal  × not scored'
+    """
+    return sep.join(signal_label(n, words) for n in SIGNALS)

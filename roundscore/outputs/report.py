@@ -39,9 +39,11 @@ from typing import Any, Callable, Iterable, Sequence
 import numpy as np
 import pandas as pd
 
+from roundscore.model.scores import SCORE_FIELD
+from roundscore.model.signals import SIGNAL_NAMES
 from roundscore.outputs.look import CAUTION, SIGNAL_COLOUR, SIGNAL_SYMBOL, SIGNAL_WORD
-from roundscore.outputs.figures import (FIGURES_MAX_MEASURANDS, SCORE_FIELD, RoundFigures, SvgFigure,
-                                        figures_per_measurand, round_figures)
+from roundscore.outputs.figures import (FIGURES_MAX_MEASURANDS, RoundFigures, SvgFigure, figures_per_measurand,
+                                        round_figures)
 from roundscore.outputs.strips import ScoreStrip, score_strip, strip_legend
 
 __all__ = ["write_report", "report_html", "lab_page_html", "ReportParts", "report_parts", "lab_file_name",
@@ -54,7 +56,7 @@ REPORT_NAME = "report.html"
 #: e-mailed page well under a few MB).
 FULL_FIGURES_MAX_LABS = 100
 FULL_FIGURES_MAX_MEASURANDS = 10
-_SIGNALS = ("acceptable", "warning", "action", "not-scored")
+_SIGNALS = SIGNAL_NAMES
 
 
 def _tint(hex_colour: str, keep: float = 0.3) -> str:
@@ -417,9 +419,9 @@ def _score_matrix(ev) -> str:
     if not len(sc):
         return '<p class="muted">No scores.</p>'
     cell: dict[tuple[str, str], str] = {}
-    for lab, meas, score, sig, z, zp, zeta, en in zip(sc["lab"], sc["measurand"], sc["score"], sc["signal"],
-                                                      sc["z"], sc["z_prime"], sc["zeta"], sc["en"]):
-        v = {"z": z, "z_prime": zp, "zeta": zeta, "en": en}[SCORE_FIELD.get(score, "z")]
+    columns = {c: sc[c].tolist() for c in dict.fromkeys(SCORE_FIELD.values())}
+    for i, (lab, meas, score, sig) in enumerate(zip(sc["lab"], sc["measurand"], sc["score"], sc["signal"])):
+        v = columns[SCORE_FIELD.get(score, "z")][i]
         text = _num(v, 2) if isinstance(v, float) and math.isfinite(v) else ""
         cell[(lab, meas)] = _signal_cell(sig, words, text)
     head = "".join(f"<th>{_e(n)}<br><span class='muted'>{_e(ev.measurands[n].settings.score)}</span></th>"

@@ -29,8 +29,9 @@ from typing import Sequence
 
 import numpy as np
 
-from roundscore.outputs.look import PALETTE, SIGNAL_COLOUR, SIGNAL_SYMBOL, SIGNAL_WORD
-from roundscore.stats.scores import EN_ACTION, Z_ACTION, Z_WARNING
+from roundscore.model.scores import SCORE_FAMILIES, family_of, score_label, score_symbol
+from roundscore.model.signals import SCORED_SIGNALS
+from roundscore.outputs.look import LIMIT_LINE, PALETTE, SIGNAL_COLOUR, SIGNAL_SYMBOL, SIGNAL_WORD
 
 __all__ = ["ScoreStrip", "score_strip", "STRIP_RANGE", "STRIP_BIN", "STRIP_UNIT_BLOCKS", "STRIP_WIDTH",
            "STRIP_HEIGHT", "score_label", "strip_legend"]
@@ -51,15 +52,6 @@ _TOP, _AXIS = 8.0, 46.0  # y of the plot's top and of the axis line
 _FONT = 'font-family="DejaVu Sans, sans-serif"'
 
 
-def score_label(score: str) -> str:
-    """The score's name as printed ("z-score", "En number"...)."""
-    return {"z": "z-score", "z-prime": "z′-score", "zeta": "ζ-score", "en": "En number"}.get(score, score)
-
-
-def _symbol(score: str) -> str:
-    return {"z": "z", "z-prime": "z′", "zeta": "ζ", "en": "En"}.get(score, score)
-
-
 def _tint(hex_colour: str, keep: float) -> str:
     r, g, b = (int(hex_colour[i:i + 2], 16) for i in (1, 3, 5))
     return "#{:02X}{:02X}{:02X}".format(*(int(c + (255 - c) * (1 - keep)) for c in (r, g, b)))
@@ -77,12 +69,13 @@ def _f(v: float) -> str:
 
 
 def _bands(score: str) -> list[tuple[float, float, str]]:
-    """(from, to, signal) over the axis: the ISO 13528 signal regions of the score."""
-    r = STRIP_RANGE
-    if score == "en":
-        return [(-r, -EN_ACTION, "action"), (-EN_ACTION, EN_ACTION, "acceptable"), (EN_ACTION, r, "action")]
-    return [(-r, -Z_ACTION, "action"), (-Z_ACTION, -Z_WARNING, "warning"), (-Z_WARNING, Z_WARNING, "acceptable"),
-            (Z_WARNING, Z_ACTION, "warning"), (Z_ACTION, r, "action")]
+    """(from, to, signal) over the axis: the ISO 13528 signal regions of the score (its family's limits)."""
+    limits = family_of(score).limits()  # from the warning limit (if any) out to the action limit
+    edges = [lim for lim, _ in limits]
+    inner = [(-edges[0], edges[0], "acceptable")]
+    # beyond each limit up to the next (the last: to the axis' end), the signal of that limit
+    outer = [(lo, hi, sig) for (lo, sig), (hi, _) in zip(limits, [*limits[1:], (STRIP_RANGE, "")])]
+    return ([(-hi, -lo, sig) for lo, hi, sig in reversed(outer)] + inner + outer)
 
 
 def strip_legend(words: str = "signals", *, own: bool = True) -> str:
@@ -91,12 +84,14 @@ def strip_legend(words: str = "signals", *, own: bool = True) -> str:
     ``own`` False: for a page where no lab is marked (the round report of a large round).
     """
     w = SIGNAL_WORD[words]
-    marks = ("the black line and the marker are yours (● acceptable, ▲ warning, ■ action). A score beyond the "
+    z, en = SCORE_FAMILIES["z-like"], SCORE_FAMILIES["en"]
+    shapes = ", ".join(f"{SIGNAL_SYMBOL[s]} {s}" for s in SCORED_SIGNALS)
+    marks = (f"the black line and the marker are yours ({shapes}). A score beyond the "
              "axis is drawn at its edge with its value written." if own else "no laboratory is marked.")
     return (f"Each row: the score axis from −{STRIP_RANGE:g} to +{STRIP_RANGE:g}, shaded {w['acceptable']} "
-            f"(|score| ≤ {Z_WARNING:g}; En: ≤ {EN_ACTION:g}), {w['warning']} ({Z_WARNING:g} < |score| < "
-            f"{Z_ACTION:g}, dashed line) and {w['action']} (|score| ≥ {Z_ACTION:g}, solid line; En: > "
-            f"{EN_ACTION:g}); the grey blocks or bars are every laboratory's score (anonymous), " + marks)
+            f"(|score| ≤ {z.warning:g}; {en.symbol}: ≤ {en.action:g}), {w['warning']} ({z.warning:g} < |score| < "
+            f"{z.action:g}, dashed line) and {w['action']} (|score| ≥ {z.action:g}, solid line; {en.symbol}: > "
+            f"{en.action:g}); the grey blocks or bars are every laboratory's score (anonymous), " + marks)
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -137,7 +132,7 @@ class ScoreStrip:
         parts = []
         if finite:
             v = float(value)
-            text = f"{_symbol(self.score)} = {v:.2f}  {SIGNAL_SYMBOL.get(sig, '')} {word}"
+            text = f"{score_symbol(self.score)} = {v:.2f}  {SIGNAL_SYMBOL.get(sig, '')} {word}"
             clamped = abs(v) > STRIP_RANGE
             x = _x(max(min(v, STRIP_RANGE), -STRIP_RANGE))
             dash = ' stroke-dasharray="3 2"' if clamped else ""
@@ -231,7 +226,7 @@ def score_strip(values: Sequence[float], *, measurand: str, score: str = "z", ti
         bands.setdefault(sig, []).append(f"M{_f(_x(lo))} {_f(_TOP)}H{_f(_x(hi))}V{_f(_AXIS)}H{_f(_x(lo))}z")
     for sig, d in bands.items():
         parts.append(f'<path d="{"".join(d)}" fill="{_tint(SIGNAL_COLOUR[sig], 0.22)}"/>')
-    lims = [(EN_ACTION, "")] if score == "en" else [(Z_WARNING, ' stroke-dasharray="4 3"'), (Z_ACTION, "")]
+    lims = [(lim, LIMIT_LINE[sig]["svg"]) for lim, sig in family_of(score).limits()]
     for lim, dash in lims:
         d = "".join(f"M{_f(_x(x))} {_f(_TOP)}V{_f(_AXIS)}" for x in (-lim, lim))
         parts.append(f'<path d="{d}" stroke="#444444" stroke-width="0.9"{dash}/>')

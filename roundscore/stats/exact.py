@@ -23,10 +23,11 @@ import math
 from collections.abc import Sequence
 from dataclasses import dataclass
 from decimal import Decimal, InvalidOperation, localcontext
-from typing import Literal, get_args
+from typing import Literal
 
 import numpy as np
 
+from roundscore.choices import check_choice
 from roundscore.errors import InputError, StatisticsError
 
 __all__ = ["Centred", "OffsetChoice", "FloatHandling", "centred", "check_choice", "grouped_fsum"]
@@ -50,35 +51,6 @@ _SAFE_SPAN = 900
 
 #: Mantissa bits of a binary64 float (IEEE 754).
 _MANTISSA_BITS = 53
-
-
-def check_choice(name: str, value: object, allowed: object) -> str:
-    """Validate a ``Literal`` method choice; the one place such choices are checked.
-
-    Parameters
-    ----------
-    name : str
-        Parameter name, for the message.
-    value : object
-        What the caller passed.
-    allowed : typing.Literal type
-        The ``Literal[...]`` alias listing the allowed strings.
-
-    Returns
-    -------
-    str
-        ``value`` unchanged when allowed.
-
-    Raises
-    ------
-    InputError
-        Naming the parameter, the value received and the allowed values.
-    """
-    options = get_args(allowed)
-    if value not in options:
-        shown = ", ".join(repr(o) for o in options)
-        raise InputError.single(f"{name} must be one of {shown}", column=name, value=value)
-    return str(value)
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)

@@ -29,12 +29,13 @@ from __future__ import annotations
 import math
 from collections import Counter
 from dataclasses import dataclass
-from typing import Literal, get_args
+from typing import Literal
 
 import numpy as np
 from numpy.typing import ArrayLike
 from scipy import stats
 
+from roundscore.choices import check_choice
 from roundscore.errors import StatisticsError
 # Cochran's critical value is shared with the ISO 5725-2 screens (one implementation).
 from roundscore.stats.outliers import cochran_critical as _cochran_critical
@@ -85,14 +86,6 @@ COCHRAN_OUTLIER_ALPHA = 0.01
 StabilityCriterion = Literal["auto", "simple", "expanded"]
 CochranSignal = Literal["none", "straggler", "outlier", "not computed"]
 WithinMethod = Literal["duplicate differences", "within-item mean square"]
-
-
-def _check_choice(name: str, value: object, allowed: object) -> None:
-    """Raise StatisticsError unless ``value`` is one of the ``Literal`` choices ``allowed``."""
-    choices = get_args(allowed)
-    if value not in choices:
-        shown = ", ".join(repr(c) for c in choices)
-        raise StatisticsError(f"{name}: found {value!r}; allowed: {shown}")
 
 
 def _number(name: str, value: object, kind: Literal["positive", "nonnegative", "probability"]) -> float:
@@ -660,7 +653,7 @@ def stability(
     >>> res.criterion_used, bool(res.passed)
     ('simple', True)
     """
-    _check_choice("criterion", criterion, StabilityCriterion)
+    check_choice("criterion", criterion, StabilityCriterion, error=StatisticsError)
     sigma_pt = _number("sigma_pt", sigma_pt, "positive")
     n1, mean1, u1 = _mean_and_u("first", first, u_first)
     n2, mean2, u2 = _mean_and_u("second", second, u_second)

@@ -22,6 +22,7 @@ __all__ = [
     "difference",
     "percent_difference",
     "signal",
+    "signals",
     "possible_unit_slip",
     "Signal",
     "Z_WARNING",
@@ -32,10 +33,11 @@ __all__ = [
 
 Signal = Literal["acceptable", "warning", "action", "not-scored"]
 SIGNALS: tuple[str, ...] = ("acceptable", "warning", "action", "not-scored")
-#: |z| > 2 is a warning signal, |z| ≥ 3 an action signal (ISO 13528 §9.4.1).
+#: |z| > 2 is a warning signal, |z| ≥ 3 an action signal (ISO 13528 §9.4.1); z′ and ζ are read the same way.
+#: The score registry (roundscore.model.scores) takes its limits from here; writers read the registry.
 Z_WARNING = 2.0
 Z_ACTION = 3.0
-#: |En| > 1 is an action signal (ISO 13528 §9.7.3).
+#: |En| > 1 is an action signal, |En| ≤ 1 acceptable; En has no warning signal (ISO 13528 §9.7.3).
 EN_ACTION = 1.0
 #: Powers of ten checked for a unit or decimal slip, and how near (in log10) counts.
 SLIP_POWERS = (-3, -1, 1, 3)
@@ -78,20 +80,36 @@ def percent_difference(x, x_pt):
         return np.where(x_pt != 0, 100.0 * (_a(x) - x_pt) / x_pt, np.nan)
 
 
+def signals(score, *, warning: float | None, action: float, strict: bool = False) -> np.ndarray:
+    """Signals for scores with the given limits; NaN scores give "not-scored".
+
+    ``|s| >= action`` is an action signal (``|s| > action`` when ``strict``),
+    else ``|s| > warning`` a warning signal (none when ``warning`` is None),
+    else acceptable.
+
+    >>> signals([0.5, 2.5, -3.0, float("nan")], warning=Z_WARNING, action=Z_ACTION).tolist()
+    ['acceptable', 'warning', 'action', 'not-scored']
+    >>> signals([1.0, -1.01], warning=None, action=EN_ACTION, strict=True).tolist()
+    ['acceptable', 'action']
+    """
+    s = np.abs(_a(score))
+    out = np.full(s.shape, "not-scored", dtype=object)
+    ok = ~np.isnan(s)
+    v = s[ok]
+    acted = v > action if strict else v >= action
+    warned = np.zeros(v.shape, dtype=bool) if warning is None else v > warning
+    out[ok] = np.where(acted, "action", np.where(warned, "warning", "acceptable"))
+    return out
+
+
 def signal(score, kind: str = "z") -> np.ndarray:
     """Signals for scores: ``kind`` "en" uses |En| ≤ 1; the others |s| ≤ 2 / < 3 / ≥ 3.
 
     NaN scores give "not-scored".
     """
-    s = np.abs(_a(score))
-    out = np.full(s.shape, "not-scored", dtype=object)
-    ok = ~np.isnan(s)
     if kind == "en":
-        out[ok] = np.where(s[ok] <= EN_ACTION, "acceptable", "action")
-    else:
-        out[ok] = np.where(s[ok] <= Z_WARNING, "acceptable",
-                           np.where(s[ok] < Z_ACTION, "warning", "action"))
-    return out
+        return signals(score, warning=None, action=EN_ACTION, strict=True)
+    return signals(score, warning=Z_WARNING, action=Z_ACTION)
 
 
 def possible_unit_slip(x, x_pt) -> np.ndarray:

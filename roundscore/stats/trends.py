@@ -4,7 +4,7 @@ The rules look at a lab's series of scores for one measurand in one scheme,
 in round-date order (:mod:`roundscore.history.rules` applies them to a lab's
 history from the archive).  They are applied to the z-like scores (z, z' and zeta),
 which share the warning limit 2 and action limit 3 of ISO 13528; a series of
-En scores is screened only for action signals, at ``|En| >= 1``, since the
+En scores is screened only for action signals, at ``|En| > 1``, since the
 other rules assume a standard-normal scale.  Rounds without a score
 (``not-scored``) are left out, so "consecutive" means consecutive *scored*
 rounds.
@@ -60,6 +60,7 @@ import pandas as pd
 from scipy import stats
 
 from roundscore.errors import StatisticsError
+from roundscore.stats.scores import EN_ACTION, Z_ACTION, Z_WARNING
 
 __all__ = [
     "ACTION_LIMIT", "WARNING_LIMIT", "EN_ACTION_LIMIT", "RUN_LENGTH", "CUSUM_K", "CUSUM_H", "COMBINED_CAUTION",
@@ -67,12 +68,13 @@ __all__ = [
     "action_signals", "two_of_three", "same_side_runs", "cusum", "combined_scores", "bias_check", "as_series",
 ]
 
-#: Action limit for z, z' and zeta: ``|z| >= 3`` (ISO 13528:2022, evaluation of z-scores).
-ACTION_LIMIT = 3.0
+#: Action limit for z, z' and zeta: ``|z| >= 3`` (ISO 13528:2022, evaluation of z-scores): the limit of the
+#: signals (roundscore.stats.scores), not a second copy of it.
+ACTION_LIMIT = Z_ACTION
 #: Warning limit: ``|z| > 2`` (ISO 13528:2022; Western Electric zone A starts at 2 sigma).
-WARNING_LIMIT = 2.0
-#: Action limit for En: ``|En| >= 1`` (ISO 13528:2022, En numbers).
-EN_ACTION_LIMIT = 1.0
+WARNING_LIMIT = Z_WARNING
+#: Action limit for En: ``|En| > 1`` (ISO 13528:2022, En numbers; ``|En| = 1`` is acceptable).
+EN_ACTION_LIMIT = EN_ACTION
 #: Run length of rule 3 (Nelson 1984 test 2; ISO 7870-2:2013 test 2).
 RUN_LENGTH = 9
 #: CUSUM reference value k, in units of the score's SD (Montgomery, from memory).
@@ -138,8 +140,9 @@ def as_series(z: Sequence[float] | np.ndarray, name: str = "z") -> np.ndarray:
 
 # --------------------------------------------------------------------------- rules on arrays
 
-def action_signals(z: Sequence[float] | np.ndarray, *, limit: float = ACTION_LIMIT) -> np.ndarray:
-    """Rule 1: positions where ``|z| >= limit``.
+def action_signals(z: Sequence[float] | np.ndarray, *, limit: float = ACTION_LIMIT,
+                   strict: bool = False) -> np.ndarray:
+    """Rule 1: positions where ``|z| >= limit`` (``|z| > limit`` when ``strict``).
 
     Parameters
     ----------
@@ -147,12 +150,16 @@ def action_signals(z: Sequence[float] | np.ndarray, *, limit: float = ACTION_LIM
         Scores in round order.
     limit : float
         3 for z, z' and zeta; :data:`EN_ACTION_LIMIT` (1) for En (ISO 13528:2022).
+    strict : bool
+        True for En, whose action signal is ``|En| > 1`` (ISO 13528:2022); the
+        z-like action signal includes the limit (``|z| >= 3``).
 
     Returns
     -------
     numpy.ndarray of int
     """
-    return np.flatnonzero(np.abs(as_series(z)) >= limit)
+    size = np.abs(as_series(z))
+    return np.flatnonzero(size > limit if strict else size >= limit)
 
 
 def two_of_three(z: Sequence[float] | np.ndarray, *,

@@ -1,0 +1,361 @@
+"""One lab's confidential score sheet (``labs/LAB.xlsx``), written from a typed :class:`LabPayload`.
+
+Sheets: ``Scores`` (the lab's results, scores and signals, beside each score
+what the lab needs to read it and where it stands among all labs, with a
+native chart of its scores per score family), ``Chart data``, ``History`` (the
+lab's earlier rounds of the scheme, when an archive is given, with a line
+chart per score family), a sheet per per-lab stage table that does not fold
+into the Scores sheet, and the machine-readable ``data`` and ``round`` sheets
+(the history commands read them back: their layout is a contract, see
+:data:`~roundscore.model.evaluation.SCORE_COLUMNS`). The ``data`` sheet holds
+its numbers to 12 significant digits and a digest of each row (column
+``row_digest``), the ``round`` sheet a digest of the whole (key ``digest``), so
+``history add`` refuses a row edited after it was written
+(:mod:`roundscore.history.checks`). The score columns, their heads, the
+families charted and their limits are the score registry's
+(:mod:`roundscore.model.scores`).
+"""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+from typing import Any, Mapping
+
+import numpy as np
+import pandas as pd
+import xlsxwriter
+
+from roundscore.model.digest import DIGEST_KEY, ROW_DIGEST_COLUMN, row_digest, sheet_digest, sheet_value
+from roundscore.model.evaluation import SCORE_COLUMNS
+from roundscore.model.scores import SCORE_FAMILIES, SCORE_FIELD, ScoreFamily, family_of
+from roundscore.outputs.look import CAUTION, LIMIT_LINE, PALETTE
+from roundscore.outputs.payloads import LabPayload, lab_payload
+from roundscore.outputs.workbook_base import (FIXED_TIME, OPTIONS, SCORE_DECIMALS, Formats, columns_of, fit_widths,
+                                              print_setup, score_chart, score_table_columns, set_widths, write_table,
+                                              write_value)
+
+__all__ = ["write_lab_workbook", "lab_payload", "LabPayload", "LAB_FORMAT", "LAB_FOLD", "SUMMARY_POINTER"]
+
+#: Version of the layout of the ``data`` and ``round`` sheets (read back by ``history add``).
+LAB_FORMAT = 1
+
+SUMMARY_POINTER = ("The round's statistics for every measurand (assigned value and how it was set, robust mean "
+                   "and SD, median, MADe, nIQR, labs used) are in the summary workbook round-summary.xlsx, "
+                   "sheet Statistics, circulated with this score sheet.")
+
+
+#: Per-lab extras tables folded into a lab's Scores sheet as a few columns (when the lab has at most one row
+#: per measurand): table → ((column, header, decimals), ...) and the line that explains them.  Other tables
+#: with a ``lab`` column get a sheet of the lab's rows.
+LAB_FOLD: dict[str, tuple[tuple[tuple[str, str, int | None], ...], str]] = {
+    "mandel": ((("h", "Mandel h", 2), ("k", "Mandel k", 2), ("flag", "Mandel h, k against the indicator lines", None)),
+               "Mandel h and k (ISO 5725-2 §7.3): how your mean and your spread of replicates compare with the "
+               "labs used, before the outlier screens; beyond an indicator line (5 % or 1 %) asks for a look at "
+               "your results. The indicator values of each measurand are on sheet Mandel of round-summary.xlsx."),
+}
+
+
+def _mandel_check(h: Any, k: Any, flag: Any) -> str | None:
+    """The indicator lines passed or not: the table's flag, or "within" (None when neither h nor k exists)."""
+    if isinstance(flag, str) and flag:
+        return flag
+    have = [n for n, v in (("h", h), ("k", k)) if isinstance(v, float) and math.isfinite(v)]
+    return "within" if len(have) == 2 else (f"{have[0]} within" if have else None)
+
+
+def _fold_extras(extras: Mapping[str, pd.DataFrame], measurands: list[str]
+                 ) -> tuple[list[tuple[str, str, int | None, list]], list[str], dict[str, pd.DataFrame]]:
+    """Split a lab's extras rows into Scores-sheet columns (:data:`LAB_FOLD`) and tables kept as sheets.
+
+    Returns the folded columns as (key, header, decimals, values in the order
+    of ``measurands``), their explaining lines, and the tables left as sheets.
+    """
+    folded, notes, sheets = [], [], {}
+    for name, frame in extras.items():
+        spec = LAB_FOLD.get(name)
+        if not len(frame):
+            continue
+        if spec is not None and "measurand" in frame.columns:
+            columns, note = spec
+            values, _ = columns_of(frame, ["measurand", *(c for c, _, _ in columns)])
+        if spec is None or "measurand" not in frame.columns or len(set(values["measurand"])) < len(frame):
+            sheets[name] = frame  # not one row per measurand: the lab's rows as a sheet of their own
+            continue
+        at = {m: i for i, m in enumerate(values["measurand"])}
+        where = [at.get(m) for m in measurands]
+        if name == "mandel":  # the flag in words, "within" when no indicator line is crossed
+            values["flag"] = [_mandel_check(h, k, f) for h, k, f in zip(values["h"], values["k"], values["flag"])]
+        for c, head, d in columns:
+            folded.append((f"{name}:{c}", head, d, [values[c][i] if i is not None else None for i in where]))
+        notes.append(note)
+    return folded, notes, sheets
+
+
+def _data_rows(table: dict[str, list]) -> tuple[dict[str, list], list[str]]:
+    """The machine-readable ``data`` sheet: the score columns with numbers rounded to 12 significant
+    digits (what a spreadsheet program keeps on saving again), and each row's digest
+    (roundscore.history.checks), so ``history add`` can tell an edited row from a re-saved file."""
+    rows = {c: [sheet_value(v) for v in table.get(c, ())] for c in SCORE_COLUMNS}
+    n = len(rows[SCORE_COLUMNS[0]])
+    for c in SCORE_COLUMNS:
+        rows[c] = rows[c] or [None] * n
+    digests = [row_digest([rows[c][i] for c in SCORE_COLUMNS]) for i in range(n)]
+    rows[ROW_DIGEST_COLUMN] = list(digests)
+    return rows, digests
+
+
+def write_lab_workbook(payload: LabPayload, path: Path) -> None:
+    """One lab's confidential score sheet (see the module docstring for its sheets)."""
+    rd, lab = payload.round, payload.lab
+    wb = xlsxwriter.Workbook(str(path), OPTIONS)
+    wb.set_properties({"title": f"Score sheet {rd.id} {lab}", "created": FIXED_TIME, "author": rd.provider or ""})
+    fm = Formats(wb)
+    ws = wb.add_worksheet("Scores")
+    r = _heading(ws, fm, payload)
+    table, folded, notes, sheets = _score_rows(payload)
+    for line in notes:
+        ws.write_string(r, 0, line)
+        r += 1
+    r += 1
+    cols, head, fixed = _score_sheet_columns(folded)
+    top = r
+    end = write_table(ws, fm, r, table, cols, head, fixed, "signal", rd.words, row_decimals=payload.decimals)
+    ws.freeze_panes(top + 1, 1)
+    ws.set_row(top, 30)  # the wrapped head
+    widths = fit_widths(table, cols, head, {**fixed, "result": 4, "assigned": 4, "u_assigned": 4, "sigma_pt": 4,
+                                            "d": 4}, "signal")
+    set_widths(ws, [max(w, 16 if j == 0 else 7) for j, w in enumerate(widths)])
+    _score_charts(wb, ws, fm, payload, table, end + 1)
+    print_setup(ws, rd.id, top)
+    if payload.history is not None and len(payload.history):
+        _history_sheet(wb, fm, payload, table)
+    for name, frame in sheets.items():
+        if len(frame):
+            xs = wb.add_worksheet(name.capitalize()[:31])
+            write_table(xs, fm, 0, frame, list(frame.columns))
+            xs.freeze_panes(1, 0)
+            set_widths(xs, fit_widths(frame, list(frame.columns), decimals={c: 4 for c in frame.columns}))
+            print_setup(xs, rd.id, 0)
+    _machine_sheets(wb, fm, payload, table)
+    wb.close()
+
+
+def _heading(ws, fm: Formats, payload: LabPayload) -> int:
+    """The title, the lab and the round, failed checks, the caution and where the statistics are; the next row."""
+    rd, lab = payload.round, payload.lab
+    ws.write_string(0, 0, f"Proficiency test round {rd.id}: score sheet for laboratory {lab}", fm.title)
+    r = 1
+    for label, value in (("Laboratory code", lab), ("Laboratory", payload.name), ("Contact", payload.contact),
+                         ("Round", rd.id), ("Title", rd.title), ("Scheme", rd.scheme),
+                         ("Date", rd.date), ("Material", rd.material)):
+        if value:
+            ws.write_string(r, 0, label, fm.bold)
+            ws.write_string(r, 1, str(value))
+            r += 1
+    for line in payload.failed_checks:
+        ws.write_string(r, 0, "Check failed: " + line, fm.alert)
+        r += 1
+    ws.merge_range(r, 0, r, 9, "CONFIDENTIAL to the laboratory named above. " + CAUTION, fm.caution)
+    ws.set_row(r, 45)
+    ws.write_string(r + 1, 0, SUMMARY_POINTER)
+    return r + 2
+
+
+def _score_rows(payload: LabPayload) -> tuple[dict[str, list], list, list[str], dict[str, pd.DataFrame]]:
+    """The Scores sheet's rows as lists by column (the lab's scores converted once, p, the folded stage columns,
+    the standing and the official score); the folded columns, their explaining lines and the tables left as sheets."""
+    own = payload.scores
+    table, _ = columns_of(own, list(own.columns))
+    measurands = table["measurand"]
+    table["p"] = [payload.p.get(m) for m in measurands]
+    folded, notes, sheets = _fold_extras(payload.extras, measurands)
+    for key, _, _, values in folded:
+        table[key] = values
+    table["standing"] = [
+        f"{int(k)} of {int(n)}" if isinstance(k, float) and not math.isnan(k) else ""
+        for k, n in zip(table["rank"], table["n_scored"])
+    ]
+    fields = [SCORE_FIELD.get(s) for s in table["score"]]
+    table["official"] = [table[f][i] if f else None for i, f in enumerate(fields)]
+    return table, folded, notes, sheets
+
+
+def _score_sheet_columns(folded: list) -> tuple[list[str], list[str], dict[str, int | None]]:
+    """(columns, heads, fixed decimals) of the Scores sheet: every score of the registry, the folded columns."""
+    score_cols, score_heads = score_table_columns()
+    cols = ["measurand", "unit", "n_replicates", "result", "assigned", "u_assigned", "sigma_pt", "p", "score",
+            "official", "signal", "standing", *score_cols, "note"]
+    head = ["Measurand", "Unit", "Replicates", "Your result", "Assigned value", "u(x_pt)", "σ_pt",
+            "Labs used (p)", "Score", "Your score", "Signal", "Rank by |score| (1 = closest)", *score_heads, "Note"]
+    cols[-1:-1] = [key for key, _, _, _ in folded]
+    head[-1:-1] = [h for _, h, _, _ in folded]
+    fixed = {"official": 2, **SCORE_DECIMALS, **{key: d for key, _, d, _ in folded if d is not None}}
+    return cols, head, fixed
+
+
+def _score_charts(wb, ws, fm: Formats, payload: LabPayload, table: dict[str, list], row: int) -> None:
+    """Native charts of the lab's official score per measurand, one per score family (their limits differ),
+    from ``row`` down the Scores sheet; their data on the sheet ``Chart data``."""
+    lab, words = payload.lab, payload.round.words
+    measurands = table["measurand"]
+    chart_rows = []
+    for family in SCORE_FAMILIES.values():
+        members = {s.name for s in family.members}
+        part = [i for i, (sc, v) in enumerate(zip(table["score"], table["official"]))
+                if sc in members and isinstance(v, float) and math.isfinite(v)]
+        if part:
+            chart_rows.append((family, [measurands[i] for i in part], [table["official"][i] for i in part],
+                               [table["signal"][i] for i in part]))
+    if not chart_rows:
+        return
+    cd = wb.add_worksheet("Chart data")
+    cd.write_string(0, 0, f"Data of the charts: laboratory {lab}'s scores by measurand", fm.bold)
+    at = 2
+    for family, names, values, signals in chart_rows:
+        name = family.symbols
+        # the family's first score names the axis ("z-score", "En number"); the limits are the family's
+        c, at = score_chart(wb, cd, fm, at, names, values, signals, name, family.members[0].name, words,
+                            f"Laboratory {lab}: {name} by measurand")
+        c.set_x_axis({"name": "measurand", "num_font": {"rotation": -45, "size": 8}, "label_position": "low"})
+        c.set_size({"width": 640, "height": 320})
+        ws.insert_chart(row, 0, c)
+        row += 17
+    set_widths(cd, [12, 16, 10, 14, 14, 14, 10, 10, 10, 10])
+
+
+#: Colours and marker shapes of the history chart's lines, one pair per measurand: shape and colour both vary,
+#: so colour is not the only cue.
+HISTORY_COLOURS = tuple(PALETTE[c] for c in ("blue", "orange", "green", "vermillion", "purple", "sky", "black",
+                                              "yellow"))
+HISTORY_SHAPES = ("circle", "diamond", "triangle", "square", "x", "star", "plus", "dash")
+#: Grey of the limit lines of the history charts.
+_LIMIT_GREY = "#555555"
+
+
+def _history_sheet(wb, fm: Formats, payload: LabPayload, table: dict[str, list]) -> None:
+    """History: the lab's earlier rounds of this scheme (archive rows, roundscore.history.store
+    HISTORY_COLUMNS), then a native line chart per score family of the score per measurand over those rounds
+    and this one, with the family's limits (ISO 13528: z-like 2 and 3; En 1)."""
+    rd, lab, hist = payload.round, payload.lab, payload.history
+    assert hist is not None
+    hs = wb.add_worksheet("History")
+    hs.write_string(0, 0, f"Laboratory {lab}: your results in earlier rounds of scheme {rd.scheme}", fm.title)
+    hs.write_string(1, 0, f"Archived rounds dated before this round ({rd.date}), the most "
+                          "recent per measurand; this round's scores are on the Scores sheet "
+                          "and end each line of the charts.")
+    end = write_table(hs, fm, 3, hist,
+                      ["round_date", "round", "measurand", "unit", "result", "assigned", "sigma_pt",
+                       "score", "score_value", "signal", "note"],
+                      ["Date", "Round", "Measurand", "Unit", "Your result", "Assigned value", "σ_pt",
+                       "Score", "Your score", "Signal", "Note"], {"score_value": 2}, "signal", rd.words)
+    order, points = _history_points(payload, table)
+    families = {f.symbol: f for f in SCORE_FAMILIES.values()}
+    rank = {symbol: i for i, symbol in enumerate(families)}
+    series = sorted({(f, m) for _, f, m in points}, key=lambda fm_: (rank[fm_[0]], fm_[1]))
+    limits = [(f.symbol, lim, word) for f in families.values() for lim, word in reversed(f.limits())]
+    limits = [x for x in limits if any(f == x[0] for f, _ in series)]
+    top = end + 2
+    hs.write_string(top, 0, "Chart data: your score by round", fm.bold)
+    heads = ["Round"] + [f"{m} ({families[f].symbols})" for f, m in series]
+    heads += [f"{sign}{lim:g} {word} limit ({f})" for f, lim, word in limits for sign in "+-"]
+    for j, h in enumerate(heads):
+        hs.write_string(top + 1, j, h, fm.head)
+    first, last = top + 2, top + 1 + len(order)
+    for i, label in enumerate(order):
+        hs.write_string(first + i, 0, label)
+        for j, (f, m) in enumerate(series, start=1):
+            write_value(hs, first + i, j, points.get((label, f, m)), fm.decimals(2))
+        for j, (f, lim, word) in enumerate(limits):
+            hs.write_number(first + i, 1 + len(series) + 2 * j, lim)
+            hs.write_number(first + i, 2 + len(series) + 2 * j, -lim)
+    row = 3
+    for family in families.values():
+        cols = [j for j, (f, _) in enumerate(series, start=1) if f == family.symbol]
+        if not cols:
+            continue
+        values = [v for (_, f, _m), v in points.items() if f == family.symbol]
+        hs.insert_chart(row, 12, _history_chart(wb, family, lab, cols, series, limits, values, top, first, last))
+        row += 17
+    hs.freeze_panes(4, 0)
+    set_widths(hs, [24, 14, 14, 9, 11, 12, 10, 8, 10, 18, 40])
+    print_setup(hs, rd.id)
+
+
+def _history_points(payload: LabPayload, table: dict[str, list]
+                    ) -> tuple[list[str], dict[tuple[str, str, str], float]]:
+    """The rounds in order (this round last) and the scores to chart: (round label, family symbol, measurand)
+    → score."""
+    rd, hist = payload.round, payload.history
+    assert hist is not None
+    points: dict[tuple[str, str, str], float] = {}
+    order: list[str] = []
+    for r in hist.to_dict("records"):
+        key = (f"{r['round_date']} {r['round']}", family_of(r["score"]).symbol)
+        if key[0] not in order:
+            order.append(key[0])
+        if r["signal"] != "not-scored" and np.isfinite(r["score_value"]):
+            points[(key[0], key[1], r["measurand"])] = float(r["score_value"])
+    this = f"{rd.date} {rd.id} (this round)"
+    order.append(this)
+    for sc, sig, m, v in zip(table["score"], table["signal"], table["measurand"], table["official"]):
+        if sig != "not-scored" and isinstance(v, float) and math.isfinite(v):
+            points[(this, family_of(sc).symbol, m)] = v
+    return order, points
+
+
+def _history_chart(wb, family: ScoreFamily, lab: str, cols: list[int], series: list[tuple[str, str]],
+                   limits: list[tuple[str, float, str]], values: list[float], top: int, first: int,
+                   last: int) -> Any:
+    """The line chart of one score family on the History sheet: a line per measurand, the limit lines."""
+    ch = wb.add_chart({"type": "line"})
+    cats = ["History", first, 0, last, 0]
+    for k, j in enumerate(cols):  # shape and colour both vary: colour is not the only cue
+        c = HISTORY_COLOURS[k % len(HISTORY_COLOURS)]
+        ch.add_series({"name": ["History", top + 1, j], "categories": cats,
+                       "values": ["History", first, j, last, j],
+                       "line": {"color": c, "width": 1.5},
+                       "marker": {"type": HISTORY_SHAPES[k % len(HISTORY_SHAPES)], "size": 6,
+                                  "fill": {"color": c}, "border": {"color": c}}})
+    hidden = []  # legend entries of the "-" limit lines (the "+" line names the pair)
+    n_series = len(cols)
+    for j, (f, lim, word) in enumerate(limits):
+        if f != family.symbol:
+            continue
+        for sign in (0, 1):
+            col = 1 + len(series) + 2 * j + sign
+            if sign:
+                hidden.append(n_series)
+            n_series += 1
+            ch.add_series({"name": f"{word} limit ±{lim:g}", "categories": cats,
+                           "values": ["History", first, col, last, col],
+                           "line": {"color": _LIMIT_GREY, "width": 0.75, "dash_type": LIMIT_LINE[word]["chart"]},
+                           "marker": {"type": "none"}})
+    bound = family.action + 1
+    if max(abs(v) for v in values) <= bound:
+        ch.set_y_axis({"min": -bound, "max": bound, "name": "score"})
+    else:
+        ch.set_y_axis({"name": "score"})
+    ch.set_title({"name": f"Laboratory {lab}: {family.heading} by round"})
+    ch.set_legend({"position": "bottom", "delete_series": hidden})
+    ch.show_blanks_as("gap")
+    ch.set_size({"width": 640, "height": 320})
+    return ch
+
+
+def _machine_sheets(wb, fm: Formats, payload: LabPayload, table: dict[str, list]) -> None:
+    """The sheets ``data`` (the score rows with their digests) and ``round`` (the round's keys and the sheet's
+    digest), read back by ``history add``."""
+    rd = payload.round
+    data = wb.add_worksheet("data")
+    rows, digests = _data_rows(table)
+    write_table(data, fm, 0, rows, [*SCORE_COLUMNS, ROW_DIGEST_COLUMN])
+    meta = wb.add_worksheet("round")
+    pairs: list[tuple[str, Any]] = [("generator", "roundscore"), ("format", LAB_FORMAT), ("scheme", rd.scheme),
+                                    ("round", rd.id), ("round_date", rd.date), ("lab", payload.lab),
+                                    ("title", rd.title)]
+    pairs.append((DIGEST_KEY, sheet_digest(pairs, digests)))
+    meta.write_row(0, 0, ["key", "value"], fm.head)
+    for i, (k, v) in enumerate(pairs, start=1):
+        meta.write_string(i, 0, k)
+        write_value(meta, i, 1, v)

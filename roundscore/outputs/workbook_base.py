@@ -1,0 +1,312 @@
+"""What every workbook roundscore writes shares: options, formats, tables written row by row, widths, charts.
+
+The round summary and the lab score sheets (:mod:`roundscore.outputs.workbook`,
+:mod:`roundscore.outputs.lab_workbook`) and a lab's history workbook
+(:mod:`roundscore.outputs.history_workbook`) are written with these helpers, so
+they share one look (:mod:`roundscore.outputs.look`): the same heads, the same
+signal cells (symbol and word on the signal's tint), the same chart markers
+and limit lines. Every text cell is written as a string, never as a formula,
+whatever it starts with; the creation time is fixed so the same content gives
+the same workbook bytes.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import math
+from typing import Any, Iterable, Mapping
+
+import numpy as np
+import pandas as pd
+import xlsxwriter
+
+from roundscore.model.scores import SCORES, family_of, score_label
+from roundscore.model.signals import SCORED_SIGNALS
+from roundscore.outputs.look import LIMIT_LINE, SIGNAL_CHART_MARKER, SIGNAL_COLOUR, SIGNAL_WORD, signal_label
+
+__all__ = ["FIXED_TIME", "OPTIONS", "Formats", "tint", "write_value", "columns_of", "write_table", "VALUE_COLUMNS",
+           "MIN_WIDTH", "MAX_WIDTH", "FIT_ROWS", "fit_widths", "set_widths", "print_setup", "score_chart",
+           "CHART_POINT_COLOURS", "SCORE_DECIMALS", "score_table_columns"]
+
+FIXED_TIME = dt.datetime(2000, 1, 1)
+# in_memory: assemble the package in memory instead of ~20 temporary files per workbook (about 2× faster).
+OPTIONS = {"strings_to_formulas": False, "strings_to_urls": False, "strings_to_numbers": False,
+            "nan_inf_to_errors": True, "in_memory": True}
+
+
+class Formats:
+    def __init__(self, wb: xlsxwriter.Workbook) -> None:
+        self.title = wb.add_format({"bold": True, "font_size": 14})
+        self.bold = wb.add_format({"bold": True})
+        self.head = wb.add_format({"bold": True, "bg_color": "#DDE6F0", "bottom": 1, "text_wrap": True,
+                                   "valign": "top"})
+        self.wrap = wb.add_format({"text_wrap": True, "valign": "top"})
+        self.caution = wb.add_format({"italic": True, "text_wrap": True, "valign": "top", "font_color": "#333333"})
+        self.alert = wb.add_format({"bold": True, "font_color": "#9E3A00"})
+        self.num: dict[int, Any] = {}
+        self.wb = wb
+        self.signal = {s: wb.add_format({"font_color": "#000000", "bg_color": tint(c)})
+                       for s, c in SIGNAL_COLOUR.items()}
+
+    def decimals(self, d: int | None) -> Any:
+        key = -1 if d is None else d
+        if key not in self.num:
+            self.num[key] = self.wb.add_format({"num_format": "0." + "0" * d if d else ("0" if d == 0 else "General")})
+        return self.num[key]
+
+
+def tint(hex_colour: str) -> str:
+    """A light tint of a palette colour for cell backgrounds (text stays black and readable)."""
+    r, g, b = (int(hex_colour[i:i + 2], 16) for i in (1, 3, 5))
+    return "#{:02X}{:02X}{:02X}".format(*(int(c + (255 - c) * 0.7) for c in (r, g, b)))
+
+
+def write_value(ws, r: int, c: int, v: Any, fmt=None) -> None:
+    """Write one value by its kind: nothing for a missing one (a blank only when it has a format)."""
+    if v is None or (isinstance(v, float) and math.isnan(v)):
+        ws.write_blank(r, c, None, fmt)
+    elif isinstance(v, (bool, np.bool_)):
+        ws.write_boolean(r, c, bool(v), fmt)
+    elif isinstance(v, (int, float, np.integer, np.floating)):
+        ws.write_number(r, c, float(v), fmt)
+    else:
+        ws.write_string(r, c, str(v), fmt)
+
+
+#: Up to this many rows a frame is converted to lists whole, whatever columns are wanted.
+_CONVERT_WHOLE_ROWS = 1000
+
+
+def columns_of(frame, cols: list[str]) -> tuple[dict[str, list], int]:
+    """The wanted columns as Python lists (a missing column is all None) and the number of rows.
+
+    A frame is converted in one step (one object array, then its columns as
+    lists): for the small frames of a lab's sheet this costs far less than
+    building a Series per column.
+    """
+    if isinstance(frame, pd.DataFrame):
+        n = len(frame)
+        present = [c for c in dict.fromkeys(cols) if c in frame.columns]
+        # A small frame is converted whole (selecting columns would copy it first); a large one only in part.
+        part = frame if n <= _CONVERT_WHOLE_ROWS or present == list(frame.columns) else frame[present]
+        lists = dict(zip(part.columns, part.to_numpy(dtype=object).T.tolist())) if n else {}
+        lists = {c: lists.get(c, []) for c in present}
+        return {c: lists[c] if c in lists else [None] * n for c in cols}, n
+    n = len(next(iter(frame.values()))) if frame else 0
+    return {c: frame[c] if c in frame else [None] * n for c in cols}, n
+
+
+def write_table(ws, fm: Formats, top: int, frame, columns: Iterable[str],
+           headers: Iterable[str] | None = None, decimals: dict[str, int | None] | None = None,
+           signal_col: str | None = None, words: str = "signals",
+           row_decimals: Mapping[str, int | None] | None = None) -> int:
+    """Write a header row and the table's columns (a frame, or lists by column); returns the row after it.
+
+    ``decimals`` fixes a column's decimals; ``row_decimals`` maps measurand
+    → decimals, applied row by row (by the row's ``measurand``) to the value
+    columns of :data:`VALUE_COLUMNS` (with one more decimal for
+    uncertainties and σ_pt).  Missing values (None, NaN, empty text) leave
+    the cell empty.  The format of each column (or each row of a value
+    column) is looked up once, and rows are written in order (as
+    xlsxwriter's ``constant_memory`` mode needs).
+    """
+    cols = list(columns)
+    for j, h in enumerate(headers or cols):
+        ws.write_string(top, j, h, fm.head)
+    data, n = columns_of(frame, cols)
+    by_row: dict[int, list] = {}
+    if row_decimals and "measurand" in frame:
+        row_d = [row_decimals.get(m) for m in (frame["measurand"].tolist() if isinstance(frame, pd.DataFrame)
+                                                else frame["measurand"])]
+        for extra in set(VALUE_COLUMNS.values()):
+            by_row[extra] = [None if d is None else fm.decimals(d + extra) for d in row_d]
+    specs = []  # (column index, values, format, formats by row or None, signal cells or None)
+    for j, c in enumerate(cols):
+        fmt, fmts, signals = None, None, None
+        if decimals and c in decimals:
+            fmt = fm.decimals(decimals[c])
+        elif by_row and c in VALUE_COLUMNS:
+            fmts = by_row[VALUE_COLUMNS[c]]
+        if c == signal_col:
+            signals = {s: (signal_label(s, words), fm.signal.get(s)) for s in set(data[c]) if isinstance(s, str)}
+        specs.append((j, data[c], fmt, fmts, signals))
+    number, string = ws.write_number, ws.write_string
+    for i in range(n):
+        r = top + 1 + i
+        for j, values, fmt, fmts, signals in specs:
+            v = values[i]
+            if fmts is not None:
+                fmt = fmts[i]
+            t = type(v)
+            if t is float:
+                if v == v:
+                    number(r, j, v, fmt)
+            elif t is str:
+                if signals is not None:
+                    label, sfmt = signals[v]
+                    if label:
+                        string(r, j, label, sfmt)
+                elif v:
+                    string(r, j, v, fmt)
+            elif t is int:
+                number(r, j, float(v), fmt)
+            elif v is not None and not (isinstance(v, float) and math.isnan(v)) and v is not pd.NA:
+                write_value(ws, r, j, v, fmt)  # numpy scalars, booleans, other objects
+    return top + 1 + n
+
+
+#: Value columns shown with the measurand's decimals (+0) or one more (+1: uncertainties, σ_pt, robust SDs).
+VALUE_COLUMNS = {"result": 0, "assigned": 0, "d": 0, "robust_mean": 0, "median": 0, "u_assigned": 1,
+                 "sigma_pt": 1, "robust_sd": 1, "made": 1, "niqr": 1}
+#: Widths (characters) a fitted column may take (common practice: readable without wrapping, notes capped).
+MIN_WIDTH, MAX_WIDTH = 6, 60
+#: Rows looked at to fit a column's width (enough to see the longest codes and notes; keeps big rounds fast).
+FIT_ROWS = 500
+
+
+def fit_widths(frame, columns: Iterable[str], headers: Iterable[str] | None = None,
+         decimals: dict[str, int | None] | None = None, signal_col: str | None = None) -> list[int]:
+    """Column widths that fit the header's longest word and the values (first :data:`FIT_ROWS` rows).
+
+    A number is measured as shown with the column's ``decimals`` (else 6
+    significant digits); with fixed decimals only the largest and the
+    smallest number need formatting (the shown length grows with the
+    magnitude on each side of zero).
+    """
+    cols = list(columns)
+    heads = list(headers or cols)
+    head = frame.iloc[:FIT_ROWS] if isinstance(frame, pd.DataFrame) else {c: v[:FIT_ROWS] for c, v in frame.items()}
+    data, _ = columns_of(head, [c for c in cols if c in frame])
+    out = []
+    for c, h in zip(cols, heads):
+        longest = max((len(w) for w in str(h).split()), default=0)
+        values = data.get(c, ())
+        floats = [v for v in values if isinstance(v, float)]
+        if floats:
+            d = (decimals or {}).get(c)
+            if d is not None:
+                finite = [v for v in floats if v - v == 0]
+                shown = [max(finite), min(finite)] if finite else []
+                shown += [v for v in floats if v == v and v - v != 0]  # ±inf, each shown
+                longest = max([longest] + [len(f"{v:.{d}f}") for v in shown])
+            else:
+                longest = max([longest] + [len(f"{v:.6g}") for v in floats if v == v])
+        others = [v for v in values if not isinstance(v, float)]
+        if others:
+            extra = 8 if c == signal_col else 0
+            longest = max(longest, max(len(str(v)) for v in others) + extra)
+        out.append(min(max(longest + 2, MIN_WIDTH), MAX_WIDTH))
+    return out
+
+
+def set_widths(ws, widths: list[int]) -> None:
+    for j, w in enumerate(widths):
+        ws.set_column(j, j, w)
+
+
+def print_setup(ws, round_id: str, header_row: int | None = None) -> None:
+    """Landscape, fit to one page wide, the round id in the page header, the table head on every page."""
+    ws.set_landscape()
+    ws.set_paper(9)  # A4
+    ws.fit_to_pages(1, 0)
+    ws.set_header(f"&L{round_id.replace('&', '&&')}&RPage &P of &N")  # "&&" is a literal & in a header
+    if header_row is not None:
+        ws.repeat_rows(header_row)
+
+
+#: Workbook chart marker shapes of the scored signals (roundscore.outputs.look: circle, triangle, square).
+_CHART_MARKER = {s: SIGNAL_CHART_MARKER[s] for s in SCORED_SIGNALS}
+#: Up to this many bars each data point is coloured by its signal (beyond, the file grows by a point
+#: entry per bar per chart; the marker series still carry the signals).
+CHART_POINT_COLOURS = 200
+
+
+def score_chart(wb, sheet, fm: Formats, top: int, labs: list, scores: list[float], signals: list[str],
+                label: str, score: str, words: str, title: str) -> tuple[Any, int]:
+    """Write one chart's data block (the bars' labels, finite scores and signals) at ``top`` on ``sheet``.
+
+    Returns (chart, next free row).
+
+    A column chart of the scores combined with a line chart (no lines) of one
+    marker series per signal, named by the signal word (shape and word, not
+    colour alone), and the warning / action limits of the score's family
+    (roundscore.model.scores; ISO 13528 §9.4: ±2, ±3; En: ±1) as dashed and solid lines.
+    """
+    limits = [(lim, sig, LIMIT_LINE[sig]["chart"]) for lim, sig in family_of(score).limits()]
+    sname = sheet.get_name()
+    heads = ["Chart", "Lab", "Score", *(SIGNAL_WORD[words][s] for s in _CHART_MARKER)]
+    heads += [f"{sign}{lim:g} {word} limit" for lim, word, _ in limits for sign in "+-"]
+    for j, h in enumerate(heads):
+        sheet.write_string(top, j, h, fm.head)
+    first, last = top + 1, top + len(scores)
+    number, string, two = sheet.write_number, sheet.write_string, fm.decimals(2)
+    marker_col = {s: j for j, s in enumerate(_CHART_MARKER, start=3)}
+    bounds = [(6 + 2 * j, lim) for j, (lim, _, _) in enumerate(limits)]
+    for r, lab, v, sig in zip(range(first, last + 1), labs, scores, signals):
+        string(r, 0, label)
+        string(r, 1, str(lab))
+        number(r, 2, v, two)
+        if sig in marker_col:
+            number(r, marker_col[sig], v, two)
+        for j, lim in bounds:
+            number(r, j, lim)
+            number(r, j + 1, -lim)
+    # The charts' cached values are given with each series (xlsxwriter's ``*_data`` series options), the
+    # same text as xlsxwriter would read back from the cells: a workbook written in constant_memory mode
+    # cannot read them back, and viewers that draw from the cache would show empty charts.
+    cats = [sname, first, 1, last, 1]
+    cat_data = [str(lab) for lab in labs]
+    shown = [f"{v:.16g}" for v in scores]
+    col = wb.add_chart({"type": "column"})
+    series = {"name": "score", "categories": cats, "values": [sname, first, 2, last, 2],
+              "categories_data": cat_data, "values_data": shown,
+              "fill": {"color": "#9DB9D3"}, "border": {"color": "#555555"}, "gap": 40}
+    if len(scores) <= CHART_POINT_COLOURS:
+        tints = {s: tint(SIGNAL_COLOUR.get(s, SIGNAL_COLOUR["not-scored"])) for s in set(signals)}
+        series["points"] = [{"fill": {"color": tints[s]}, "border": {"color": "#555555"}} for s in signals]
+    col.add_series(series)
+    line = wb.add_chart({"type": "line"})
+    present = set(signals)
+    for j, s in enumerate(_CHART_MARKER, start=3):
+        if s in present:
+            line.add_series({"name": [sname, top, j], "categories": cats, "values": [sname, first, j, last, j],
+                             "name_data": [heads[j]], "categories_data": cat_data,
+                             "values_data": [v if sig == s else None for v, sig in zip(shown, signals)],
+                             "line": {"none": True},
+                             "marker": {"type": _CHART_MARKER[s], "size": 6, "fill": {"color": SIGNAL_COLOUR[s]},
+                                        "border": {"color": "#000000"}}})
+    hidden = []
+    n_series = 1 + sum(1 for s in _CHART_MARKER if s in present)
+    for j, (lim, word, dash) in enumerate(limits):
+        for sign in (0, 1):
+            c = 6 + 2 * j + sign
+            if sign:
+                hidden.append(n_series)
+            n_series += 1
+            line.add_series({"name": f"{word} limit ±{lim:g}", "categories": cats, "values": [sname, first, c, last, c],
+                             "categories_data": cat_data, "values_data": [f"{-lim if sign else lim:.16g}"] * len(scores),
+                             "line": {"color": "#444444", "width": 1, "dash_type": dash}, "marker": {"type": "none"}})
+    col.combine(line)
+    bound = max(limits[-1][0] + 1, 4.0)
+    vmax = max(abs(v) for v in scores)
+    if vmax <= 2 * bound:
+        col.set_y_axis({"name": score_label(score), "min": -max(bound, math.ceil(vmax)),
+                        "max": max(bound, math.ceil(vmax)), "major_gridlines": {"visible": True,
+                        "line": {"color": "#DDDDDD"}}})
+    else:
+        col.set_y_axis({"name": score_label(score)})
+    col.set_x_axis({"name": "laboratory (ranked by score)", "label_position": "low",
+                    "num_font": {"rotation": -90, "size": 8}})
+    col.set_title({"name": title, "name_font": {"size": 11}})
+    col.set_legend({"position": "bottom", "delete_series": [0, *hidden]})
+    return col, last + 2
+
+
+#: Decimals of the score columns (every score of the registry: 2) and of D % (1).
+SCORE_DECIMALS: dict[str, int | None] = {**{s.column: 2 for s in SCORES.values()}, "d_percent": 1}
+
+
+def score_table_columns() -> tuple[list[str], list[str]]:
+    """(columns, heads) of every score of the registry, then D and D %: ``z, z′, ζ, En, D, D %``."""
+    return ([s.column for s in SCORES.values()] + ["d", "d_percent"],
+            [s.symbol for s in SCORES.values()] + ["D", "D %"])
