@@ -54,10 +54,10 @@ def _grubbs_high(means: list[float]) -> float:
 # ----------------------------------------------------------------------------- demo round
 
 
-@pytest.fixture(scope="module")
-def demo_ev():
-    """The committed demo round, evaluated once (reading never writes into the folder)."""
-    return load_and_evaluate(DEMO)
+@pytest.fixture
+def demo_ev(scored_demo):
+    """The demo round's evaluation (the session's shared scored demo, conftest.py): read only."""
+    return scored_demo.evaluation
 
 
 def test_demo_outlier_flagged_and_left_out_of_precision(demo_ev):
@@ -144,8 +144,8 @@ def test_demo_method_note_only_where_groups_differ(demo_ev):
     assert "F test" in methods.loc["iodine", "reason"]
 
 
-def test_demo_csv_columns_exactly(demo_round, tmp_path):
-    run_round(demo_round, tmp_path / "out")
+def test_demo_csv_columns_exactly(scored_demo):
+    out = scored_demo.out
     expected = {"precision": PRECISION_COLUMNS, "screens": SCREENS_COLUMNS, "mandel": MANDEL_COLUMNS,
                 "methods": METHODS_COLUMNS}
     # The column lists of the issue, written out here so a renamed constant cannot hide a change.
@@ -157,11 +157,11 @@ def test_demo_csv_columns_exactly(demo_round, tmp_path):
                     "ci_high", "significant"),
     }
     for name, cols in expected.items():
-        header = (tmp_path / "out" / f"{name}.csv").read_text(encoding="utf-8").splitlines()[0].split(",")
+        header = (out / f"{name}.csv").read_text(encoding="utf-8").splitlines()[0].split(",")
         assert tuple(header[: len(cols)]) == cols, name
-    mandel = pd.read_csv(tmp_path / "out" / "mandel.csv")
+    mandel = pd.read_csv(out / "mandel.csv")
     assert {"h_crit_5", "h_crit_1", "k_crit_5", "k_crit_1"} <= set(mandel.columns)
-    screens = pd.read_csv(tmp_path / "out" / "screens.csv")
+    screens = pd.read_csv(out / "screens.csv")
     assert set(screens["outcome"]) <= {"pass", "straggler", "outlier"}
 
 
