@@ -5,6 +5,7 @@ from __future__ import annotations
 import contextlib
 import hashlib
 import io
+import os
 import shutil
 import textwrap
 from dataclasses import dataclass
@@ -14,6 +15,25 @@ import pytest
 
 ROOT = Path(__file__).resolve().parents[1]
 DEMO = ROOT / "rounds" / "skw-2026-14"
+
+
+#: Most worker processes for the whole suite (measured on 2 cores; each worker scores its own shared demo).
+MAX_WORKERS = 4
+
+
+@pytest.hookimpl(optionalhook=True)
+def pytest_xdist_auto_num_workers(config) -> int:
+    """Workers for ``-n auto`` (pyproject.toml): the usable cores for the whole suite, none for chosen tests.
+
+    The whole suite (``python -m pytest``, the README's command and CI's) is spread over the cores, at most
+    :data:`MAX_WORKERS`, whole files per worker (``--dist loadfile``: a module's fixtures are made once).
+    Files or tests named on the command line run in this process, without the workers' start-up cost.
+    ``-n N`` on the command line overrides both.
+    """
+    if config.args_source != pytest.Config.ArgsSource.TESTPATHS:
+        return 0
+    cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1)
+    return min(cores, MAX_WORKERS) if cores > 1 else 0
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
