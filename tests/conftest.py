@@ -89,12 +89,21 @@ def scored_demo(tmp_path_factory) -> ScoredDemo:
     assert code == 0, printed.getvalue()
     shared = ScoredDemo(out=out, round=out / "round", evaluation=load_and_evaluate(out / "round"),
                         printed=printed.getvalue())
-    files, tables = _file_digests(out), _evaluation_digests(shared.evaluation)
+    before = snapshot(shared)
     yield shared
-    now_files, now_tables = _file_digests(out), _evaluation_digests(shared.evaluation)
-    changed = sorted(k for k in files.keys() | now_files.keys() if files.get(k) != now_files.get(k))
-    changed += sorted(f"evaluation {k}" for k in tables if tables[k] != now_tables.get(k))
+    changed = changes(before, snapshot(shared))
     assert not changed, f"a test changed the shared scored demo (copy it before changing it): {changed}"
+
+
+def snapshot(shared: ScoredDemo) -> dict[str, str]:
+    """A digest of every file under ``shared.out`` and of every table of ``shared.evaluation``."""
+    return {**{f"file {k}": v for k, v in _file_digests(shared.out).items()},
+            **{f"evaluation {k}": v for k, v in _evaluation_digests(shared.evaluation).items()}}
+
+
+def changes(before: dict[str, str], after: dict[str, str]) -> list[str]:
+    """What differs between two snapshots: changed, added and removed files and tables."""
+    return sorted(k for k in before.keys() | after.keys() if before.get(k) != after.get(k))
 
 
 @pytest.fixture
