@@ -427,6 +427,7 @@ def run_part(name: str, a: argparse.Namespace, **over) -> dict:
     proc = subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=env)
     peak = {"rss": 0, "pss": 0}
     watching = os.path.isdir("/proc") and os.path.exists(f"/proc/{os.getpid()}/smaps_rollup")
+    ended = threading.Event()  # set when the part has ended, so the monitor stops without finishing a sleep
 
     def watch():
         n = 0
@@ -436,12 +437,14 @@ def run_part(name: str, a: argparse.Namespace, **over) -> dict:
             if n % PSS_EVERY == 0:  # PSS is exact but costly to read: a tenth of the samples
                 peak["pss"] = max(peak["pss"], _pss_kb(pids))
             n += 1
-            time.sleep(MEMORY_SAMPLE_S)
+            if ended.wait(MEMORY_SAMPLE_S):
+                break
 
     th = threading.Thread(target=watch, daemon=True) if watching else None
     if th:
         th.start()
     out, err = proc.communicate()
+    ended.set()
     if th:
         th.join()
     if proc.returncode != 0:

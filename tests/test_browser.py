@@ -23,9 +23,7 @@ from pathlib import Path
 
 import pytest
 
-from roundscore.demo.demo_round import make_demo_round
-from roundscore.outputs.report import REPORT_NAME, lab_file_name, write_report
-from roundscore.pipeline import load_and_evaluate
+from roundscore.outputs.report import REPORT_NAME, lab_file_name
 
 CHROMIUM_FLAGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
                   "--disable-background-networking", "--disable-component-update", "--disable-sync",
@@ -177,16 +175,10 @@ def browser(tmp_path_factory):
     b.close()
 
 
-@pytest.fixture(scope="module")
-def demo_report(tmp_path_factory):
-    """The report and lab pages of the invented demo round (roundscore.demo.demo_round)."""
-    root = tmp_path_factory.mktemp("browser-demo")
-    make_demo_round(root / "round")
-    ev = load_and_evaluate(root / "round")
-    out = root / "out"
-    out.mkdir()
-    write_report(ev, out, labs=ev.labs[:2])
-    return ev, out
+@pytest.fixture
+def demo_report(scored_demo):
+    """The report and lab pages of the invented demo round, as the pipeline wrote them (shared: read only)."""
+    return scored_demo.evaluation, scored_demo.out
 
 
 FIGURE_SIZES = """JSON.stringify(Array.from(document.querySelectorAll('figure svg')).map(s => {

@@ -5,6 +5,7 @@ and participants' names kept to their own sheet. Internal behaviour; the demo da
 from __future__ import annotations
 
 import hashlib
+import shutil
 import subprocess
 import sys
 from pathlib import Path
@@ -17,14 +18,45 @@ from roundscore.cli import main
 from roundscore.model.evaluation import SCORE_COLUMNS, STATISTICS_COLUMNS
 
 
+#: A small invented round for the tests where the round's size does not matter (two measurands, six labs).
+SMALL_TOML = """
+[round]
+id = "CLI-1"
+scheme = "CLI"
+[measurand.copper]
+unit = "mg/kg"
+sigma_pt = 0.5
+[measurand.zinc]
+unit = "mg/kg"
+sigma_pt = 1.0
+"""
+SMALL_RESULTS = "lab,measurand,replicate,value\n" + "".join(
+    f"L{i},{m},{rep},{centre + 0.1 * i + 0.01 * rep:.2f}\n"
+    for i in range(1, 7) for m, centre in (("copper", 10.0), ("zinc", 30.0)) for rep in (1, 2))
+
+
+@pytest.fixture
+def demo_out(scored_demo) -> Path:
+    """What ``roundscore demo --out OUT`` wrote (the session's shared scored demo, conftest.py): read only."""
+    return scored_demo.out
+
+
 @pytest.fixture(scope="module")
-def demo_out(tmp_path_factory) -> Path:
-    out = tmp_path_factory.mktemp("demo") / "roundscore-demo"
-    assert main(["demo", "--out", str(out)]) == 0
-    return out
+def python_m_run(tmp_path_factory):
+    """``python -m roundscore score`` on a copy of the demo round, in a fresh interpreter: (process, out)."""
+    from .conftest import DEMO
+
+    root = tmp_path_factory.mktemp("python-m")
+    folder = shutil.copytree(DEMO, root / "round")
+    out = root / "out"
+    proc = subprocess.run([sys.executable, "-m", "roundscore", "score", str(folder), "--out", str(out)],
+                          capture_output=True, text=True)
+    return proc, out
 
 
-def test_demo_writes_every_output(demo_out):
+def test_demo_writes_every_output(demo_out, scored_demo):
+    assert scored_demo.printed.startswith(f"Demo round (invented data) written to {demo_out / 'round'}/")
+    assert "does not replace" in scored_demo.printed  # the caution, after the summary
     for name in ("scores.csv", "statistics.csv", "audit.csv", "round-summary.xlsx", "round/round.toml"):
         assert (demo_out / name).is_file(), name
     scores = pd.read_csv(demo_out / "scores.csv")
@@ -61,10 +93,8 @@ def test_names_only_in_own_sheet(demo_out):
         assert not any(n in text for n in names.values())
 
 
-def test_score_command_and_python_m(demo_round, tmp_path):
-    out = tmp_path / "out"
-    proc = subprocess.run([sys.executable, "-m", "roundscore", "score", str(demo_round), "--out", str(out)],
-                          capture_output=True, text=True)
+def test_score_command_and_python_m(python_m_run):
+    proc, out = python_m_run
     assert proc.returncode == 0, proc.stderr
     assert "iodine" in proc.stdout and "does not replace" in proc.stdout
     assert (out / "scores.csv").is_file()
@@ -84,21 +114,26 @@ def test_error_is_a_message_not_a_traceback(make_round, tmp_path):
     assert hashlib.sha256((folder / "results.csv").read_bytes()).hexdigest() == before  # input unchanged
 
 
-def test_previous_outputs_survive_a_failed_run(demo_round, tmp_path):
+def test_previous_outputs_survive_a_failed_run(make_round, tmp_path):
+    folder = make_round(SMALL_TOML, SMALL_RESULTS)
     out = tmp_path / "out"
-    assert main(["score", str(demo_round), "--out", str(out), "--quiet"]) == 0
+    assert main(["score", str(folder), "--out", str(out), "--quiet"]) == 0
     before = (out / "scores.csv").read_bytes()
-    (demo_round / "results.csv").write_text("lab,measurand,replicate,value\nK01,iodine,1,bad\n")
-    assert main(["score", str(demo_round), "--out", str(out), "--quiet"]) == 2
+    (folder / "results.csv").write_text("lab,measurand,replicate,value\nL1,copper,1,bad\n")
+    assert main(["score", str(folder), "--out", str(out), "--quiet"]) == 2
     assert (out / "scores.csv").read_bytes() == before
 
 
-def test_csv_outputs_are_reproducible(demo_round, tmp_path):
-    a, b = tmp_path / "a", tmp_path / "b"
-    assert main(["score", str(demo_round), "--out", str(a), "--quiet"]) == 0
-    assert main(["score", str(demo_round), "--out", str(b), "--quiet"]) == 0
-    for name in ("scores.csv", "statistics.csv", "audit.csv"):
-        assert (a / name).read_bytes() == (b / name).read_bytes()
+def test_outputs_are_reproducible(demo_out, python_m_run):
+    # Two runs on the same round: `roundscore demo` in this process and `python -m roundscore score` in
+    # another (another hash seed, another process pool) write the same bytes: CSV, workbooks, pages.
+    proc, out = python_m_run
+    assert proc.returncode == 0, proc.stderr
+    names = sorted(str(p.relative_to(out)) for p in out.rglob("*") if p.is_file())
+    assert "scores.csv" in names and "labs/K07.xlsx" in names and "report.html" in names
+    for name in names:
+        if name != ".roundscore-output":  # the marker names its own folder
+            assert (out / name).read_bytes() == (demo_out / name).read_bytes(), name
 
 
 def test_check_command_writes_nothing(demo_round, capsys):

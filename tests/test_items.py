@@ -2,7 +2,7 @@
 
 Reference values come from ISO 13528:2015 Table B.1 (recalled from memory,
 marked so), ISO 5725-2:1994 Table 4 (Cochran, from memory), the NIST StRD
-one-way ANOVA files shipped with scipy, and scipy/statsmodels as reference
+one-way ANOVA files (tests/data/nist_strd_anova, read by tests/refdata.py), and scipy/statsmodels as reference
 libraries. The duplicate sets are invented for these tests; their expected
 figures are worked out by hand from the ISO 13528 B.3 formulas in comments.
 """
@@ -10,13 +10,10 @@ figures are worked out by hand from the ISO 13528 B.3 formulas in comments.
 from __future__ import annotations
 
 import math
-import os
 from fractions import Fraction
-from pathlib import Path
 
 import numpy as np
 import pytest
-import scipy.stats
 from scipy import stats
 
 from roundscore.errors import StatisticsError
@@ -29,7 +26,7 @@ from roundscore.stats.items import (
     widened_sigma,
 )
 
-NIST_DIR = Path(os.path.dirname(scipy.stats.__file__)) / "tests" / "data" / "nist_anova"
+from .refdata import NIST_ANOVA_FILES, nist_anova
 
 
 # ---------------------------------------------------------------------------
@@ -278,24 +275,6 @@ def test_unbalanced_uses_anova_with_n0():
     assert any("2 replicates per item (most frequent)" in t for t in res.notes)
 
 
-def _read_nist(path):
-    """Data (treatment, response) and certified between/within df and MS of a NIST StRD file."""
-    lines = path.read_text().splitlines()
-    cert = {}
-    for line in lines:
-        tok = line.split()
-        if tok and tok[0] in ("Between", "Within") and len(tok) >= 5:
-            cert[tok[0]] = (int(tok[2]), float(tok[4]))
-    start = max(i for i, line in enumerate(lines) if line.startswith("Data:"))
-    labels, values = [], []
-    for line in lines[start + 1 :]:
-        tok = line.split()
-        if len(tok) == 2:
-            labels.append(tok[0])
-            values.append(float(tok[1]))
-    return np.array(labels), np.array(values), cert
-
-
 # File name and the tolerance on the certified values. The certified values are for the
 # decimal data; a double stores 1000000.4 only to about 1e-10 and 1000000000000.4 to about
 # 1e-4 (its ulp is 2**-13, about 1e-3 of a 0.1 step), which bounds the agreement possible for the
@@ -329,17 +308,19 @@ def _exact_mean_squares(labels, values):
     return float(ss_b / (k - 1)), float(ss_w / (n - k))
 
 
+def test_every_nist_file_has_a_tolerance():
+    assert sorted(name for name, _ in NIST_FILES) == sorted(NIST_ANOVA_FILES)
+
+
 @pytest.mark.parametrize(("name", "rel"), NIST_FILES)
 def test_nist_strd_anova(name, rel):
-    # Certified mean squares of the NIST StRD one-way ANOVA data sets (scipy ships them).
+    # Certified mean squares of the NIST StRD one-way ANOVA data sets (tests/data/nist_strd_anova).
     # A homogeneity study is a one-way layout: MS_within = s_w^2, MS_between = m s_x^2.
-    path = NIST_DIR / f"{name}.dat"
-    if not path.exists():
-        pytest.skip(f"NIST StRD file {path} not shipped with this scipy")
-    labels, values, cert = _read_nist(path)
+    data = nist_anova(name)
+    labels, values, cert = data.labels, data.values, data.certified
     res = homogeneity(labels, values, sigma_pt=1.0)
-    df_b, ms_b = cert["Between"]
-    df_w, ms_w = cert["Within"]
+    df_b, ms_b = cert["df_between"], cert["ms_between"]
+    df_w, ms_w = cert["df_within"], cert["ms_within"]
     assert res.balanced
     assert (res.df_between, res.df_within) == (df_b, df_w)
     assert res.ms_within == pytest.approx(ms_w, rel=rel)
@@ -355,11 +336,9 @@ def test_nist_strd_anova(name, rel):
 
 def test_nist_sirstv_residual_sd():
     # NIST StRD SiRstv certified residual standard deviation 1.04076068334656E-01 = s_w.
-    path = NIST_DIR / "SiRstv.dat"
-    if not path.exists():
-        pytest.skip(f"NIST StRD file {path} not shipped with this scipy")
-    labels, values, _ = _read_nist(path)
-    res = homogeneity(labels, values, sigma_pt=1.0)
+    data = nist_anova("SiRstv")
+    assert data.certified["residual_sd"] == 1.04076068334656e-01  # the file's certified value, as read
+    res = homogeneity(data.labels, data.values, sigma_pt=1.0)
     assert res.s_w == pytest.approx(1.04076068334656e-01, rel=1e-12)
     assert res.g == 5 and res.m == 5 and res.s_w_method == "within-item mean square"
 

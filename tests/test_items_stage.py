@@ -23,7 +23,6 @@ import pytest
 from scipy import stats
 
 from roundscore.cli import main
-from roundscore.demo.demo_round import make_demo_round
 from roundscore.errors import InputError
 from roundscore.pipeline import load_and_evaluate
 from roundscore.model.items import ITEMS_COLUMNS
@@ -74,7 +73,7 @@ def results_csv() -> str:
 
 def round_toml(*, hom: bool = True, stab: bool = False, checks: str = "uncertainty", sigma: str = "1.0",
                extra: str = "") -> str:
-    keys = [f'homogeneity = "hom.csv"' if hom else "", 'stability = "stab.csv"' if stab else ""]
+    keys = ['homogeneity = "hom.csv"' if hom else "", 'stability = "stab.csv"' if stab else ""]
     return (
         '[round]\nid = "IT-1"\nscheme = "IT"\n\n[measurand.cu]\nunit = "mg/kg"\n'
         f"assigned = {X_PT}\nu_assigned = {U_CHAR}\nsigma_pt = {sigma}\nitem_checks = \"{checks}\"\n"
@@ -352,13 +351,12 @@ def test_sigma_not_set_reports_not_evaluated(make_round):
 
 # ------------------------------------------------------------------------------------------------ demo
 
-def test_demo_round_has_a_borderline_measurand(tmp_path):
+def test_demo_round_has_a_borderline_measurand(scored_demo):
     # The committed demo round (invented data) must equal the generator's, and give items.csv.
-    made = make_demo_round(tmp_path / "round")
     for name in ("homogeneity.csv", "stability.csv"):
-        assert (made / name).read_bytes() == (DEMO / name).read_bytes()
-    assert main(["score", str(made), "--out", str(tmp_path / "out"), "--quiet", "--strict"]) == 0
-    items = pd.read_csv(tmp_path / "out" / "items.csv")
+        assert (scored_demo.round / name).read_bytes() == (DEMO / name).read_bytes()
+    assert scored_demo.evaluation.failed_checks == []  # what --strict refuses (its exit code: tests above)
+    items = pd.read_csv(scored_demo.out / "items.csv")
     hom = items[items["check"] == "homogeneity"]
     border = hom[(hom["s_s"] > hom["criterion"]) & (hom["s_s"] <= hom["allowed"])]
     assert len(border) == 1 and bool(border["passed"].iloc[0])

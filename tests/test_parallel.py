@@ -114,9 +114,9 @@ def big(tmp_path_factory) -> Path:
     return folder
 
 
-def _write(ev, target: Path, jobs: int) -> Path:
+def _write(ev, target: Path, jobs: int, progress=None) -> Path:
     with atomic_folder(target) as tmp:
-        write_outputs(ev, tmp, jobs=jobs)
+        write_outputs(ev, tmp, jobs=jobs, progress=progress)
     return target
 
 
@@ -130,13 +130,26 @@ def _same_tree(a: Path, b: Path) -> None:
         assert filecmp.cmp(a / rel, b / rel, shallow=False), f"{rel} differs"
 
 
-def test_outputs_byte_identical_for_any_jobs(big, tmp_path, monkeypatch):
-    monkeypatch.setattr(isolation, "BATCH_FILES", 8)  # several read batches per worker
-    ev1 = load_and_evaluate(big, jobs=1)
-    ev2 = load_and_evaluate(big, jobs=2)
+@pytest.fixture(scope="module")
+def written(big, tmp_path_factory):
+    """The round read and written with one job and with two (forms read in several batches per worker);
+    the two-job write's progress reports recorded."""
+    root = tmp_path_factory.mktemp("written")
+    with pytest.MonkeyPatch.context() as mp:
+        mp.setattr(isolation, "BATCH_FILES", 8)  # several read batches per worker
+        ev1 = load_and_evaluate(big, jobs=1)
+        ev2 = load_and_evaluate(big, jobs=2)
+    seen: list[tuple[str, int, int]] = []
+    one = _write(ev1, root / "one", 1)
+    two = _write(ev2, root / "two", 2, progress=lambda s, d, t: seen.append((s, d, t)))
+    return ev1, ev2, one, two, seen
+
+
+def test_outputs_byte_identical_for_any_jobs(written):
+    ev1, ev2, one, two, _ = written
     assert ev1.table.frame.equals(ev2.table.frame)
-    _same_tree(_write(ev1, tmp_path / "one", 1), _write(ev2, tmp_path / "two", 2))
-    assert len(list((tmp_path / "two" / "labs").glob("*.xlsx"))) == 40
+    _same_tree(one, two)
+    assert len(list((two / "labs").glob("*.xlsx"))) == 40
 
 
 def test_batched_read_equals_one_batch(big, monkeypatch):
@@ -151,11 +164,8 @@ def test_batched_read_equals_one_batch(big, monkeypatch):
     assert whole.files == parts.files and len(whole.files) == 40
 
 
-def test_write_progress_reaches_all_labs(big, tmp_path):
-    ev = load_and_evaluate(big, jobs=2)
-    seen = []
-    with atomic_folder(tmp_path / "out") as tmp:
-        write_outputs(ev, tmp, jobs=2, progress=lambda s, d, t: seen.append((s, d, t)))
+def test_write_progress_reaches_all_labs(written):
+    seen = written[4]
     assert ("lab sheets", 40, 40) in seen
 
 

@@ -3,14 +3,11 @@
 from __future__ import annotations
 
 import math
-import os
-import re
 import warnings
 from decimal import Decimal
 
 import numpy as np
 import pytest
-import scipy.stats
 
 from roundscore.errors import InputError, StatisticsError
 from roundscore.stats.exact import centred, grouped_fsum
@@ -26,36 +23,11 @@ from roundscore.stats.precision import (
     precision,
 )
 
-NIST_DIR = os.path.join(os.path.dirname(scipy.stats.__file__), "tests", "data", "nist_anova")
-NIST_FILES = ["SiRstv", "SmLs01", "SmLs02", "SmLs03", "SmLs04", "SmLs05", "SmLs06", "SmLs07", "SmLs08",
-              "SmLs09", "AtmWtAg"]
+from .refdata import NIST_ANOVA_FILES, nist_anova
+
 # Relative tolerance reached on every certified value of every file (measured: ≤ 3.2e-15);
 # the certified values are given to 15 significant digits.
 NIST_RTOL = 1e-13
-
-
-def _parse_nist(name: str) -> tuple[dict[str, float], list[str], list[str]]:
-    """Certified values (from the file header) and the data as text, from a NIST StRD ANOVA file."""
-    lines = open(os.path.join(NIST_DIR, f"{name}.dat")).read().splitlines()
-    cert: dict[str, float] = {}
-    for line in lines:
-        if m := re.match(r"\s*Between \w+\s+(\d+)\s+(\S+)\s+(\S+)\s+(\S+)\s*$", line):
-            cert |= {"df_between": int(m[1]), "ss_between": float(m[2]), "ms_between": float(m[3]),
-                     "f": float(m[4])}
-        elif m := re.match(r"\s*Within \w+\s+(\d+)\s+(\S+)\s+(\S+)\s*$", line):
-            cert |= {"df_within": int(m[1]), "ss_within": float(m[2]), "ms_within": float(m[3])}
-        elif m := re.search(r"Certified R-Squared\s+(\S+)", line):
-            cert["r_squared"] = float(m[1])
-        elif m := re.search(r"Standard Deviation\s+(\S+)", line):
-            cert["residual_sd"] = float(m[1])
-    start = max(i for i, line in enumerate(lines) if line.startswith("Data:")) + 1
-    groups, texts = [], []
-    for line in lines[start:]:
-        parts = line.split()
-        if len(parts) == 2:
-            groups.append(parts[0])
-            texts.append(parts[1])
-    return cert, groups, texts
 
 
 # ----------------------------------------------------------------------------- exact centring
@@ -98,14 +70,14 @@ def test_centred_rejects_bad_choice() -> None:
 # ----------------------------------------------------------------------------- NIST StRD
 
 
-@pytest.mark.skipif(not os.path.isdir(NIST_DIR), reason="scipy ships no NIST StRD ANOVA files here")
-@pytest.mark.parametrize("name", NIST_FILES)
+@pytest.mark.parametrize("name", NIST_ANOVA_FILES)
 def test_anova_matches_every_nist_certified_value(name: str) -> None:
     # Source: NIST Statistical Reference Datasets, one-way ANOVA, certified values in each file header
-    # (copies shipped with scipy in scipy/stats/tests/data/nist_anova).
-    cert, groups, texts = _parse_nist(name)
+    # (tests/data/nist_strd_anova, provenance in its README).
+    data = nist_anova(name)
+    cert = data.certified
     assert len(cert) == 9, "every file certifies 9 values"
-    table = anova_oneway(np.zeros(len(texts)), groups, texts=texts)
+    table = anova_oneway(np.zeros(data.observations), list(data.groups), texts=list(data.texts))
     for key, expected in cert.items():
         got = getattr(table, key)
         if key.startswith("df"):
@@ -114,12 +86,11 @@ def test_anova_matches_every_nist_certified_value(name: str) -> None:
             assert got == pytest.approx(expected, rel=NIST_RTOL), key
 
 
-@pytest.mark.skipif(not os.path.isdir(NIST_DIR), reason="scipy ships no NIST StRD ANOVA files here")
 def test_nist_residual_sd_is_repeatability_sd() -> None:
     # Source: NIST StRD SmLs09 (18009 observations, 13 constant leading digits), certified residual SD 0.1.
-    cert, groups, texts = _parse_nist("SmLs09")
-    res = precision(np.zeros(len(texts)), groups, texts=texts)
-    assert res.s_r == pytest.approx(cert["residual_sd"], rel=NIST_RTOL)
+    data = nist_anova("SmLs09")
+    res = precision(np.zeros(data.observations), list(data.groups), texts=list(data.texts))
+    assert res.s_r == pytest.approx(data.certified["residual_sd"], rel=NIST_RTOL)
     assert res.balanced and res.n_bar == 2001  # 9 treatments x 2001 replicates (file header)
 
 
@@ -388,13 +359,13 @@ def test_grouped_fsum_nonfinite_and_overflow_as_fsum() -> None:
         grouped_fsum(np.array([1e308, 1e308, -1e308]), np.array([0]))
 
 
-@pytest.mark.skipif(not os.path.isdir(NIST_DIR), reason="scipy ships no NIST StRD ANOVA files here")
 @pytest.mark.parametrize("name", ["SmLs07", "SiRstv"])
 def test_precision_from_subset_cells_agrees_with_fresh_centring(name: str) -> None:
     # Source data: NIST StRD SmLs07 (13 constant leading digits) and SiRstv; leave out the first group.
     # The subset keeps the offset of all groups, a fresh call centres on the subset's median: both are
     # correctly rounded sums of exact deviations, so they agree to a few ulps (project bound: 1e-13).
-    _, groups, texts = _parse_nist(name)
+    data = nist_anova(name)
+    groups, texts = list(data.groups), list(data.texts)
     cells = cell_statistics(np.zeros(len(texts)), groups, texts=texts)
     kept = cells.labs[1:]
     sub = precision(cells=cells.subset(list(reversed(kept))))

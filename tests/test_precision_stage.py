@@ -10,13 +10,11 @@ scipy / statsmodels, from NIST's certified values, or from ISO 5725-2 tables
 from __future__ import annotations
 
 import math
-import os
 import re
 
 import numpy as np
 import pandas as pd
 import pytest
-import scipy.stats
 from scipy import stats
 from statsmodels.stats.multitest import multipletests
 
@@ -26,8 +24,7 @@ from roundscore.evaluation.precision import (MANDEL_COLUMNS, METHODS_COLUMNS, NE
                                              SCREENS_COLUMNS)
 
 from .conftest import DEMO
-
-NIST_DIR = os.path.join(os.path.dirname(scipy.stats.__file__), "tests", "data", "nist_anova")
+from .refdata import nist_anova
 
 # Ten invented lab means: nine around 20 and a tenth chosen to be a Grubbs straggler or outlier.
 BASE9 = [20.1, 19.8, 20.4, 19.9, 20.0, 20.3, 19.7, 20.2, 20.0]
@@ -57,10 +54,10 @@ def _grubbs_high(means: list[float]) -> float:
 # ----------------------------------------------------------------------------- demo round
 
 
-@pytest.fixture(scope="module")
-def demo_ev():
-    """The committed demo round, evaluated once (reading never writes into the folder)."""
-    return load_and_evaluate(DEMO)
+@pytest.fixture
+def demo_ev(scored_demo):
+    """The demo round's evaluation (the session's shared scored demo, conftest.py): read only."""
+    return scored_demo.evaluation
 
 
 def test_demo_outlier_flagged_and_left_out_of_precision(demo_ev):
@@ -147,8 +144,8 @@ def test_demo_method_note_only_where_groups_differ(demo_ev):
     assert "F test" in methods.loc["iodine", "reason"]
 
 
-def test_demo_csv_columns_exactly(demo_round, tmp_path):
-    run_round(demo_round, tmp_path / "out")
+def test_demo_csv_columns_exactly(scored_demo):
+    out = scored_demo.out
     expected = {"precision": PRECISION_COLUMNS, "screens": SCREENS_COLUMNS, "mandel": MANDEL_COLUMNS,
                 "methods": METHODS_COLUMNS}
     # The column lists of the issue, written out here so a renamed constant cannot hide a change.
@@ -160,11 +157,11 @@ def test_demo_csv_columns_exactly(demo_round, tmp_path):
                     "ci_high", "significant"),
     }
     for name, cols in expected.items():
-        header = (tmp_path / "out" / f"{name}.csv").read_text(encoding="utf-8").splitlines()[0].split(",")
+        header = (out / f"{name}.csv").read_text(encoding="utf-8").splitlines()[0].split(",")
         assert tuple(header[: len(cols)]) == cols, name
-    mandel = pd.read_csv(tmp_path / "out" / "mandel.csv")
+    mandel = pd.read_csv(out / "mandel.csv")
     assert {"h_crit_5", "h_crit_1", "k_crit_5", "k_crit_1"} <= set(mandel.columns)
-    screens = pd.read_csv(tmp_path / "out" / "screens.csv")
+    screens = pd.read_csv(out / "screens.csv")
     assert set(screens["outcome"]) <= {"pass", "straggler", "outlier"}
 
 
@@ -316,18 +313,16 @@ def test_confidence_level_from_round(make_round, confidence):
 # ----------------------------------------------------------------------------- NIST StRD as a round
 
 
-@pytest.mark.skipif(not os.path.isdir(NIST_DIR), reason="scipy ships no NIST StRD ANOVA files here")
 def test_nist_smls09_through_the_pipeline(make_round, tmp_path):
-    # Source: NIST StRD ANOVA SmLs09 (9 groups × 2001 replicates, 13 constant leading digits; copy shipped
-    # with scipy). Certified: residual SD 0.1, MS between 20.01, MS within 0.01 (file header).
-    lines = open(os.path.join(NIST_DIR, "SmLs09.dat")).read().splitlines()
-    start = max(i for i, line in enumerate(lines) if line.startswith("Data:")) + 1
+    # Source: NIST StRD ANOVA SmLs09 (9 groups × 2001 replicates, 13 constant leading digits;
+    # tests/data/nist_strd_anova). Certified: residual SD 0.1, MS between 20.01, MS within 0.01 (file header).
+    data = nist_anova("SmLs09")
+    assert (data.certified["residual_sd"], data.certified["ms_between"], data.certified["ms_within"]) == \
+        (0.1, 20.01, 0.01)
     rows, count = ["lab,measurand,replicate,value"], {}
-    for line in lines[start:]:
-        parts = line.split()
-        if len(parts) == 2:
-            count[parts[0]] = count.get(parts[0], 0) + 1
-            rows.append(f"T{parts[0]},y,{count[parts[0]]},{parts[1]}")
+    for group, text in zip(data.groups, data.texts):
+        count[group] = count.get(group, 0) + 1
+        rows.append(f"T{group},y,{count[group]},{text}")
     folder = make_round(_toml(measurand="y", sigma="0.1"), "\n".join(rows) + "\n")
     ev, _ = run_round(folder, tmp_path / "out")
     row = ev.extras["precision"].iloc[0]

@@ -10,21 +10,14 @@ import zipfile
 import openpyxl
 import pytest
 
-from roundscore.demo.demo_round import make_demo_round
 from roundscore.model.evaluation import SCORE_COLUMNS
-from roundscore.outputs.workbook import lab_payload, write_lab_workbook, write_summary
-from roundscore.pipeline import load_and_evaluate
+from roundscore.outputs.workbook import write_summary
 
 
-@pytest.fixture(scope="module")
-def books(tmp_path_factory):
-    root = tmp_path_factory.mktemp("workbook-demo")
-    make_demo_round(root / "round")
-    ev = load_and_evaluate(root / "round")
-    write_summary(ev, root / "summary.xlsx")
-    lab = "K07"
-    write_lab_workbook(lab_payload(ev, lab), root / f"{lab}.xlsx")
-    return ev, root / "summary.xlsx", root / f"{lab}.xlsx"
+@pytest.fixture
+def books(scored_demo):
+    """The demo's evaluation, summary workbook and K07's sheet, as the pipeline wrote them (shared: read only)."""
+    return scored_demo.evaluation, scored_demo.out / "round-summary.xlsx", scored_demo.out / "labs" / "K07.xlsx"
 
 
 def _charts(path) -> list[str]:

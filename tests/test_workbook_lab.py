@@ -23,29 +23,20 @@ from openpyxl.utils.cell import range_boundaries
 from python_calamine import CalamineWorkbook
 
 from roundscore.history.sheets import normalise_rows, read_lab_file
-from roundscore.demo.demo_round import make_demo_round
 from roundscore.model.evaluation import SCORE_COLUMNS
 from roundscore.outputs import workbook as wbm
 from roundscore.outputs.look import SIGNAL_COLOUR, signal_label
 from roundscore.outputs.workbook import SUMMARY_POINTER, lab_payload, write_lab_workbook, write_summary
-from roundscore.pipeline import load_and_evaluate
 
 #: Labs looked at: the planted iodine outlier (K07, h beyond a line), the censored mercury result (K23),
 #: the missing moisture result (K30) and an ordinary lab.
 LABS = ("K01", "K07", "K23", "K30")
 
 
-@pytest.fixture(scope="module")
-def books(tmp_path_factory):
-    root = tmp_path_factory.mktemp("lab-workbooks")
-    make_demo_round(root / "round")
-    ev = load_and_evaluate(root / "round")
-    out = root / "out"
-    out.mkdir()
-    write_summary(ev, out / "round-summary.xlsx")
-    for lab in LABS:
-        write_lab_workbook(lab_payload(ev, lab), out / f"{lab}.xlsx")
-    return ev, out
+@pytest.fixture
+def books(scored_demo):
+    """The demo's evaluation and output folder as the pipeline wrote them (the shared scored demo: read only)."""
+    return scored_demo.evaluation, scored_demo.out
 
 
 def _scores_table(path) -> tuple[list[str], list[dict]]:
@@ -64,9 +55,9 @@ def _scores_table(path) -> tuple[list[str], list[dict]]:
 
 def test_no_round_statistics_or_mandel_sheet_but_a_pointer_to_the_summary(books):
     ev, out = books
-    names = openpyxl.load_workbook(out / "K07.xlsx").sheetnames
+    names = openpyxl.load_workbook(out / "labs" / "K07.xlsx").sheetnames
     assert names == ["Scores", "Chart data", "data", "round"]  # no archive here, so no History sheet
-    texts = [c for row in openpyxl.load_workbook(out / "K07.xlsx")["Scores"].iter_rows(values_only=True)
+    texts = [c for row in openpyxl.load_workbook(out / "labs" / "K07.xlsx")["Scores"].iter_rows(values_only=True)
              for c in row if isinstance(c, str)]
     assert SUMMARY_POINTER in texts and "round-summary.xlsx" in SUMMARY_POINTER
     # What the pointer and the Mandel line point to is there in the summary workbook.
@@ -78,7 +69,7 @@ def test_no_round_statistics_or_mandel_sheet_but_a_pointer_to_the_summary(books)
 @pytest.mark.parametrize("lab", LABS)
 def test_scores_sheet_carries_p_and_the_labs_mandel_h_and_k(books, lab):
     ev, out = books
-    head, rows = _scores_table(out / f"{lab}.xlsx")
+    head, rows = _scores_table(out / "labs" / f"{lab}.xlsx")
     for name in ("Labs used (p)", "Mandel h", "Mandel k", "Mandel h, k against the indicator lines"):
         assert name in head
     assert head[-1] == "Note"
@@ -103,7 +94,7 @@ def test_scores_sheet_carries_p_and_the_labs_mandel_h_and_k(books, lab):
 def test_censored_and_missing_results_have_no_mandel_values(books):
     ev, out = books
     for lab, m in (("K23", "mercury"), ("K30", "moisture")):
-        rows = {r["Measurand"]: r for r in _scores_table(out / f"{lab}.xlsx")[1]}
+        rows = {r["Measurand"]: r for r in _scores_table(out / "labs" / f"{lab}.xlsx")[1]}
         mandel = ev.extras["mandel"]
         assert not ((mandel["lab"] == lab) & (mandel["measurand"] == m)).any()
         assert rows[m]["Mandel h"] is None
@@ -111,10 +102,10 @@ def test_censored_and_missing_results_have_no_mandel_values(books):
 
 def test_an_outlying_lab_sees_its_indicator_line(books):
     _, out = books
-    rows = {r["Measurand"]: r for r in _scores_table(out / "K07.xlsx")[1]}
+    rows = {r["Measurand"]: r for r in _scores_table(out / "labs" / "K07.xlsx")[1]}
     # The planted iodine outlier of the demo round (roundscore.demo.demo_round) is far beyond the 1 % line for h.
     assert "h beyond 1 % indicator" in rows["iodine"]["Mandel h, k against the indicator lines"]
-    ws = openpyxl.load_workbook(out / "K07.xlsx")["Scores"]
+    ws = openpyxl.load_workbook(out / "labs" / "K07.xlsx")["Scores"]
     head_row = next(r for r in range(1, 40) if ws.cell(r, 1).value == "Measurand")
     col = [ws.cell(head_row, j).value for j in range(1, ws.max_column + 1)].index("Mandel h") + 1
     assert ws.cell(head_row + 1, col).number_format == "0.00"
@@ -122,7 +113,7 @@ def test_an_outlying_lab_sees_its_indicator_line(books):
 
 def test_a_lab_file_is_smaller_than_before(books):
     ev, out = books
-    book = CalamineWorkbook.from_path(str(out / "K07.xlsx"))
+    book = CalamineWorkbook.from_path(str(out / "labs" / "K07.xlsx"))
     cells = {n: sum(1 for r in book.get_sheet_by_name(n).to_python() for v in r if v not in ("", None))
              for n in book.sheet_names}
     # The round's statistics (one row per measurand, all columns) are not copied into a lab's file.
@@ -133,7 +124,7 @@ def test_a_lab_file_is_smaller_than_before(books):
 def test_history_reads_the_lab_workbook_back(books):
     ev, out = books
     for lab in LABS:
-        (got,) = read_lab_file(out / f"{lab}.xlsx", None)
+        (got,) = read_lab_file(out / "labs" / f"{lab}.xlsx", None)
         assert (got.lab, got.round_id, got.scheme) == (lab, ev.round.id, ev.round.scheme)
         want, problems = normalise_rows(ev.lab_scores(lab)[list(SCORE_COLUMNS)].to_dict("records"),
                                         file=None, sheet=None, first_row=2)
@@ -187,13 +178,13 @@ def test_summary_holds_every_score_and_statistic(books):
     assert len(mandel) == 1 + len(ev.extras["mandel"])
 
 
-def test_summary_rows_written_in_order_keep_their_height_and_no_temporary_files(books):
-    _, out = books
-    ws = openpyxl.load_workbook(out / "round-summary.xlsx")["Summary"]
+def test_summary_rows_written_in_order_keep_their_height_and_no_temporary_files(books, tmp_path):
+    ev, _ = books
+    write_summary(ev, tmp_path / "round-summary.xlsx")  # alone in its folder: nothing else may appear
+    ws = openpyxl.load_workbook(tmp_path / "round-summary.xlsx")["Summary"]
     head_row = next(r for r in range(1, 40) if ws.cell(r, 1).value == "Measurand")
     assert ws.row_dimensions[head_row].height == 30  # set before the row was written
-    assert sorted(p.name for p in out.iterdir()) == ["K01.xlsx", "K07.xlsx", "K23.xlsx", "K30.xlsx",
-                                                      "round-summary.xlsx"]
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["round-summary.xlsx"]
 
 
 _C = "{http://schemas.openxmlformats.org/drawingml/2006/chart}"
@@ -240,7 +231,7 @@ def _check_chart_caches(path) -> int:
 def test_chart_ranges_and_their_cached_values_match_the_cells(books):
     _, out = books
     assert _check_chart_caches(out / "round-summary.xlsx") > 20
-    assert _check_chart_caches(out / "K07.xlsx") > 5
+    assert _check_chart_caches(out / "labs" / "K07.xlsx") > 5
 
 
 # ----------------------------------------------------------------------------- the low-level writers

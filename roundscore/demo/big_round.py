@@ -1,7 +1,7 @@
 """A seeded generator of large rounds (invented data), returned as filled-in submission forms.
 
 Scenario (invented): the *Skerrywater Proficiency Services* feed scheme
-SKF sends one compound feed to many laboratories, who measure up to 40
+SKRF sends one compound feed to many laboratories, who measure up to 40
 trace elements, vitamins and nutrients in replicate. The generator writes a
 round folder in the shape a coordinator has after the returns come in:
 
@@ -45,7 +45,7 @@ from roundscore.outputs.outfolder import atomic_folder
 __all__ = ["make_big_round", "BigRound", "BIG_SEED", "BIG_ID", "fill_form"]
 
 BIG_SEED = 20270301
-BIG_ID = "SKF-2027-03"
+BIG_ID = "SKRF-2027-03"
 #: Share of labs made outlying per measurand (invented scenario).
 OUTLIER_RATE = 0.01
 #: Share of results reported as ``<limit`` and not reported at all (invented scenario).
@@ -113,7 +113,7 @@ def _round_toml(names: list[str], true: np.ndarray, s_between: np.ndarray, repli
         "[round]",
         f'id = "{BIG_ID}"',
         'title = "Feed scheme round 3: trace elements, vitamins and nutrients in a compound feed"',
-        'scheme = "SKF"',
+        'scheme = "SKRF"',
         'date = "2027-03-01"',
         'provider = "Skerrywater Proficiency Services"',
         'material = "Compound feed, test item CF-03"',
