@@ -29,6 +29,16 @@ def test_good_round(make_round):
     assert m.assigned == 0.5 and m.u_assigned == 0.01 and m.score == "zeta"
     assert m.sigma_pt.kind == "precision" and m.sigma_pt.replicates == 2
     assert rnd.warnings == ()
+    assert rnd.paper == "a4" and rnd.return_by == ""  # the defaults
+
+
+@pytest.mark.parametrize("line, paper, return_by", [
+    ('paper = "letter"\nreturn_by = 2026-11-30', "letter", "2026-11-30"),  # a TOML date
+    ('paper = "a4"\nreturn_by = "2026-11-30"', "a4", "2026-11-30"),  # a date as text
+])
+def test_paper_and_return_by(make_round, line, paper, return_by):
+    rnd = load_round(make_round(GOOD.replace('date = 2026-03-01', 'date = 2026-03-01\n' + line)))
+    assert (rnd.paper, rnd.return_by) == (paper, return_by) and rnd.warnings == ()
 
 
 @pytest.mark.parametrize("toml, words", [
@@ -46,6 +56,9 @@ def test_good_round(make_round):
     ('[round]\nid="R"\n', ["at least one [measurand.NAME]"]),
     ('[round]\nid="R"\nreplicates="two"\n[measurand.a]\nunit="mg/kg"\nsigma_pt=1', ["round.replicates", "whole number"]),
     ('[round\nid="R"', ["not valid TOML"]),
+    ('[round]\nid="R"\npaper="a3"\n[measurand.a]\nunit="mg/kg"\nsigma_pt=1', ["round.paper", "'a3'", "'letter'"]),
+    ('[round]\nid="R"\nreturn_by="next week"\n[measurand.a]\nunit="mg/kg"\nsigma_pt=1',
+     ["round.return_by", "'next week'", "2026-10-14"]),
 ])
 def test_mistakes_are_named(make_round, toml, words):
     folder = make_round(toml)

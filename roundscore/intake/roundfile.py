@@ -25,7 +25,7 @@ from roundscore.model.items import ItemConsequence, StabilityChoice
 from roundscore.model.labcodes import read_lab_code
 from roundscore.model.limits import DEFAULT_LIMITS, ReadLimits
 from roundscore.model.round import (LIMIT_KEYS, MAX_FORM_REPLICATES, MEASURAND_KEYS, ROUND_KEYS, AssignedMethod,
-                                    DecimalMark, Exclusion, MeasurandSettings, OutlierAction, Round, ScoreName,
+                                    DecimalMark, Exclusion, MeasurandSettings, OutlierAction, Paper, Round, ScoreName,
                                     SigmaMethod, SigmaSpec, UnknownLabs, limit_range)
 from roundscore.model.signals import Words
 from roundscore.model.units import UnitError, mass_fraction, unit_text_problem
@@ -325,6 +325,19 @@ def _limits(c: _Checker, raw: object) -> ReadLimits:
         return DEFAULT_LIMITS
 
 
+def _iso_date(c: "_Checker", key: str, value: object) -> str:
+    """A date key (a TOML date, or text such as 2026-10-14) in ISO form; "" when not given."""
+    if isinstance(value, (_dt.date, _dt.datetime)):
+        return value.isoformat()[:10]
+    text = c.text(key, value, default="") or ""
+    if text:
+        try:
+            return _dt.date.fromisoformat(text).isoformat()
+        except ValueError:
+            c.bad(key, text, "a date in the form 2026-10-14")
+    return text
+
+
 def load_round(path: str | Path) -> Round:
     """Read and validate a round file (or a folder holding ``round.toml``).
 
@@ -363,12 +376,8 @@ def load_round(path: str | Path) -> Round:
         raise RoundFileError.single(f"{shown}: a [round] table with at least id = \"...\" is required")
     c.unknown("[round] ", r, ROUND_KEYS)
     round_id = c.text("round.id", r.get("id"), required=True, limit="round id") or ""
-    date = c.text("round.date", r.get("date"), default="") or ""
-    if date:
-        try:
-            date = _dt.date.fromisoformat(date).isoformat()
-        except ValueError:
-            c.bad("round.date", date, "a date in the form 2026-10-14")
+    date = _iso_date(c, "round.date", r.get("date"))
+    return_by = _iso_date(c, "round.return_by", r.get("return_by"))
     results = c.text("round.results", r.get("results"), default="results.csv") or "results.csv"
     if Path(results).is_absolute() or ".." in Path(results).parts:
         c.bad("round.results", results, "a path (or glob) inside the round folder")
@@ -440,6 +449,8 @@ def load_round(path: str | Path) -> Round:
         measurands=measurands,
         decimal=decimal,
         unknown_labs=c.choice("round.unknown_labs", r.get("unknown_labs"), UnknownLabs, "warn"),
+        paper=c.choice("round.paper", r.get("paper"), Paper, "a4"),
+        return_by=return_by,
         exclusions=exclusions,
         limits=limits,
         warnings=tuple(c.warnings),

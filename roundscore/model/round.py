@@ -28,7 +28,7 @@ __all__ = [
     "SigmaMethod",
     "OutlierAction",
     "UnknownLabs",
-    "DecimalMark",
+    "DecimalMark", "Paper",
     "ScoreName",
     "ROUND_KEYS",
     "MEASURAND_KEYS",
@@ -51,6 +51,8 @@ OutlierAction = Literal["exclude", "keep"]
 UnknownLabs = Literal["warn", "error"]
 #: ``[round] decimal``: the decimal mark of numbers typed as text.
 DecimalMark = Literal["comma", "point"]
+#: ``[round] paper``: the paper size of printed and PDF outputs.
+Paper = Literal["a4", "letter"]
 
 #: The score names (the rows of the score registry, roundscore.model.scores.SCORES).
 SCORES: tuple[str, ...] = SCORE_NAMES
@@ -80,6 +82,9 @@ ROUND_KEYS: dict[str, str] = {
     "decimal": f"{options_text(DecimalMark, last=' or ')}: the decimal mark of numbers typed as text in results "
                "and item tables "
                "(default: not declared; a number whose reading depends on it, such as 1,234, is refused)",
+    "paper": f"{options_text(Paper, last=' or ')}: the paper size of PDFs and printed pages and workbooks "
+             "(default a4)",
+    "return_by": "a date (2026-10-14): the date by which results are due, printed on the forms",
     "unknown_labs": f"{options_text(UnknownLabs, last=' or ')}: a result from a lab not in the participants file "
                     "(default warn)",
 }
@@ -204,6 +209,10 @@ class Round:
     #: The declared decimal mark of text cells ("comma" or "point"), or None (ambiguous text is refused).
     decimal: DecimalMark | None = None
     unknown_labs: UnknownLabs = "warn"
+    #: The paper size of PDFs, printed pages and workbooks' print set-up.
+    paper: Paper = "a4"
+    #: The date results are due (ISO form), printed on the forms; "" when not given.
+    return_by: str = ""
     exclusions: tuple[Exclusion, ...] = field(default=())
     limits: ReadLimits = DEFAULT_LIMITS
     warnings: tuple[str, ...] = field(default=())
