@@ -30,6 +30,7 @@ from roundscore.model.table import ResultTable
 from roundscore.model.units import UnitError, mass_fraction
 from roundscore.ranges import sigma_relative_problem
 from roundscore.stats import robust, scores as sc, sigma as sg
+from roundscore.stats.limits import within
 
 __all__ = ["evaluate", "check_scorable", "U_CHECK_FACTOR", "DEFAULT_K"]
 
@@ -173,7 +174,7 @@ def _measurand(rnd: Round, labs: pd.DataFrame, m: MeasurandSettings, est: robust
             s_pt = np.nan
     u_ok = None
     if np.isfinite(u_pt) and np.isfinite(s_pt):
-        u_ok = bool(u_pt <= U_CHECK_FACTOR * s_pt)
+        u_ok = bool(within(u_pt, U_CHECK_FACTOR * s_pt))  # roundscore.stats.limits: on the limit passes
         if not u_ok:
             msg = (f"u(x_pt) = {u_pt:.3g} exceeds 0.3 σ_pt = {U_CHECK_FACTOR * s_pt:.3g}: the uncertainty of the "
                    "assigned value is not negligible")

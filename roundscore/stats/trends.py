@@ -60,6 +60,7 @@ import pandas as pd
 from scipy import stats
 
 from roundscore.errors import StatisticsError
+from roundscore.stats.limits import above, reaches
 from roundscore.stats.scores import EN_ACTION, Z_ACTION, Z_WARNING
 
 __all__ = [
@@ -159,7 +160,7 @@ def action_signals(z: Sequence[float] | np.ndarray, *, limit: float = ACTION_LIM
     numpy.ndarray of int
     """
     size = np.abs(as_series(z))
-    return np.flatnonzero(size > limit if strict else size >= limit)
+    return np.flatnonzero(above(size, limit) if strict else reaches(size, limit))
 
 
 def two_of_three(z: Sequence[float] | np.ndarray, *,
@@ -180,9 +181,9 @@ def two_of_three(z: Sequence[float] | np.ndarray, *,
     found: list[tuple[int, Side]] = []
     for i in range(1, arr.size):
         window = arr[max(0, i - 2):i]
-        if arr[i] > limit and np.any(window > limit):
+        if above(arr[i], limit) and np.any(above(window, limit)):
             found.append((i, "high"))
-        elif arr[i] < -limit and np.any(window < -limit):
+        elif above(-arr[i], limit) and np.any(above(-window, limit)):
             found.append((i, "low"))
     return found
 
