@@ -173,6 +173,14 @@ def two_of_three(z: Sequence[float] | np.ndarray, *,
     so two of the first two also fire.  "Beyond" is strict (``> 2``), as zone A
     of the Western Electric handbook begins at two sigma.
 
+    The reading: the rule is about any three consecutive points, and it is
+    known to hold at the point that completes it, which is therefore itself
+    beyond the limit ([2.5, 2.5, 0] fires at the second score, not the third);
+    two of the first two fire because every window of three that will contain
+    them already holds the pattern (the earliest signal, as a lab manager
+    wants it).  A score within :data:`roundscore.stats.limits.LIMIT_RTOL` of
+    the limit is on it, not beyond.
+
     References
     ----------
     Western Electric Co., Statistical Quality Control Handbook (1956).
