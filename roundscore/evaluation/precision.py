@@ -365,15 +365,15 @@ def _measurand_precision(rnd: Round, name: str, rows: pd.DataFrame | None, used:
         row |= {"p": prec.p, "n_bar": prec.n_bar, "s_r": prec.s_r, "s_L": prec.s_L, "s_R": prec.s_R,
                 "r": prec.r, "R": prec.R, "balanced": prec.balanced, "s_L_truncated": prec.s_L_truncated,
                 "general_mean": prec.general_mean}
+        left = f"; left out by the screens: {', '.join(screening.excluded)}" if screening.excluded else ""
+        audit.append((name, "", "precision", "computed",
+                       f"s_r = {_g(prec.s_r)}, s_L = {_g(prec.s_L)}, s_R = {_g(prec.s_R)} from {prec.p} labs, "
+                       f"n̄ = {_g(prec.n_bar)}{left}" + ("; s_L² < 0 set to 0" if prec.s_L_truncated else "")))
         if prec.p < MIN_PRECISION_LABS:
             caution = few_labs_caution(prec.p)
             notes.append(caution)
             stage.append(caution)
             audit.append((name, "", "precision", "caution", caution))
-        left = f"; left out by the screens: {', '.join(screening.excluded)}" if screening.excluded else ""
-        audit.append((name, "", "precision", "computed",
-                       f"s_r = {_g(prec.s_r)}, s_L = {_g(prec.s_L)}, s_R = {_g(prec.s_R)} from {prec.p} labs, "
-                       f"n̄ = {_g(prec.n_bar)}{left}" + ("; s_L² < 0 set to 0" if prec.s_L_truncated else "")))
     row["note"] = "; ".join(notes)
     detail = MeasurandPrecision(measurand=name, labs=cells.labs, cells=cells, mandel=mandel, screening=screening,
                                 precision=prec, robust=robust, robust_labs=robust_labs, notes=tuple(notes))
