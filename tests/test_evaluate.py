@@ -170,3 +170,26 @@ def test_public_evaluate_reads_item_tables_and_the_evaluation_reads_no_file(make
         evaluate(inputs.round, inputs.table)
     with pytest.raises(InputError, match="homogeneity file named in the round file was not found"):
         roundscore.evaluate(rnd, inputs.table)
+
+
+@pytest.mark.parametrize("method, sigma", [("algorithm-a", "0.5"), ("median", "0.5"), ("algorithm-a", '"robust-sd"')])
+def test_a_consensus_with_zero_spread_is_a_finding(make_round, method, sigma):
+    # Lab means 10, 10, 10, 10, 13: more than half identical, so MADe = s* = 0 and u(x_pt) = 1.25 s*/√p = 0
+    # (ISO 13528 §7.7.3). A u check on it would pass while saying nothing: it is reported as a finding.
+    labs = {f"L{i}": [v] for i, v in enumerate([10, 10, 10, 10, 13], start=1)}
+    toml = f'[round]\nid="E9"\n[measurand.cu]\nunit="mg/kg"\nassigned="{method}"\nsigma_pt={sigma}\n'
+    ev = _ev(make_round(toml, _results(labs)))
+    m = ev.measurands["cu"]
+    assert m.u_assigned == 0 and m.u_check_passed is None
+    assert len(m.findings) == 1 and "robust SD is zero" in m.findings[0]
+    assert ev.failed_checks == [f"cu: {m.findings[0]}"]
+    audit = ev.audit[(ev.audit["measurand"] == "cu") & (ev.audit["action"] == "finding")]
+    assert len(audit) == 1 and "u(x_pt)" in audit["reason"].iloc[0]
+    if sigma == '"robust-sd"':  # never scored against σ_pt = robust SD = 0
+        assert not np.isfinite(m.sigma_pt) and ev.scores["z"].isna().all()
+
+
+def test_a_consensus_with_spread_has_no_zero_spread_finding(make_round):
+    labs = {f"L{i}": [v] for i, v in enumerate([10, 10, 10, 10.5, 13], start=1)}  # MADe > 0
+    ev = _ev(make_round('[round]\nid="E9"\n[measurand.cu]\nunit="mg/kg"\nsigma_pt=0.5\n', _results(labs)))
+    assert ev.measurands["cu"].findings == () and ev.measurands["cu"].u_check_passed is not None

@@ -39,3 +39,19 @@ def test_re_exported_from_outliers() -> None:
     # The screens import the table from here; the old public names still work.
     assert outliers.grubbs_double_table is grubbs_double_table
     assert outliers.GRUBBS_DOUBLE_SEED == GRUBBS_DOUBLE_SEED == grubbs_double_table(5).seed
+
+
+@pytest.mark.parametrize("p", [7, 15])
+def test_tabulated_values_agree_with_the_run_time_simulation(p: int) -> None:
+    # The table (2**25 samples per p) and a fresh simulation with another stream must agree within their
+    # standard errors; a wrong table (an edited value, a changed statistic) fails here.
+    tab = grubbs_double_table(p)
+    assert tab.draws == 1 << 25 and tab.se_5 < 1e-4 and tab.se_1 < 1e-4
+    sim = grubbs_double_table(p, draws=1 << 19, seed=GRUBBS_DOUBLE_SEED + 1)
+    assert sim.critical_5 == pytest.approx(tab.critical_5, abs=4 * (sim.se_5 + tab.se_5))
+    assert sim.critical_1 == pytest.approx(tab.critical_1, abs=4 * (sim.se_1 + tab.se_1))
+
+
+def test_beyond_the_table_the_simulation_runs() -> None:
+    t = grubbs_double_table(41)
+    assert t.draws < 1 << 25 and 0 < t.critical_1 < t.critical_5 < 1

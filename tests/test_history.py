@@ -41,6 +41,8 @@ def test_rule1_action_signals(z, limit, expected):
 @pytest.mark.parametrize("z, expected", [
     ([2.1, 0.0, 2.5], [(2, "high")]),  # 2 of 3 above +2 (Western Electric zone A rule)
     ([2.5, 2.1], [(1, "high")]),  # two of the first two
+    ([2.5, 2.5, 0.0], [(1, "high")]),  # fires where the pattern completes (itself beyond 2), not after
+    ([2.5, 1.0, 1.0, 2.5, 2.5], [(4, "high")]),  # the 4th alone is 3 from the 1st; the 5th completes it
     ([-2.2, 1.0, -2.4], [(2, "low")]),
     ([0.0, 2.6, 2.7, 2.8], [(2, "high"), (3, "high")]),
     ([2.5, 0.0, 0.0, 2.5], []),  # 3 apart: not within three consecutive points
@@ -163,7 +165,10 @@ def test_window_limits_reported_findings(window, reported):
     assert s.fired == reported
     if reported:
         assert s.findings[0].rule == 1 and s.findings[0].rounds == ("R1",)
-    assert s.combined.n == (len(z) if window is None else min(window, len(z)))
+    if reported:  # combined scores only for a series with a finding (README, combined scores)
+        assert s.combined.n == (len(z) if window is None else min(window, len(z)))
+    else:
+        assert s.combined is None
 
 
 def test_every_rule_named_with_its_source():

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import math
 import re
+import warnings
 
 import numpy as np
 import pandas as pd
@@ -19,6 +20,9 @@ from scipy import stats
 from statsmodels.stats.multitest import multipletests
 
 from roundscore.errors import RoundFileError
+from roundscore.evaluation.evaluate import evaluate
+from roundscore.intake.readers import read_participants, read_results
+from roundscore.intake.roundfile import load_round
 from roundscore.pipeline import load_and_evaluate, run_round
 from roundscore.evaluation.precision import (MANDEL_COLUMNS, METHODS_COLUMNS, NEEDS_REPLICATES, PRECISION_COLUMNS,
                                              SCREENS_COLUMNS)
@@ -294,7 +298,8 @@ def test_small_groups_listed_not_tested(make_round):
     ev = load_and_evaluate(make_round(_toml(), _pairs(means, methods)))
     row = ev.extras["methods"].iloc[0]
     assert row["test"] == "not tested" and row["untested"] == "B (n=1); no method given (n=1)"
-    assert "cu" not in ev.stage_notes
+    # the method-group note is not a stage note (the few-labs caution of the precision is)
+    assert not any("method" in n for n in ev.stage_notes.get("cu", ()))
 
 
 @pytest.mark.parametrize("confidence", [0.9, 0.99])
@@ -373,3 +378,35 @@ def test_cell_statistics_computed_once_per_measurand(monkeypatch):
     d = ev.details["precision"]["iodine"]
     pick = [d.cells.labs.index(lab) for lab in d.precision.labs]
     assert "K07" not in d.precision.labs and d.precision.cells.means.tolist() == d.cells.means[pick].tolist()
+
+
+@pytest.mark.parametrize("labs, cautioned", [(2, True), (7, True), (8, False)])
+def test_few_labs_precision_carries_a_caution(make_round, labs, cautioned):
+    # ISO 5725-1 recommends at least 8 laboratories (from memory: ISO 5725-1:1994 §6.3.4); with 2 the
+    # between-lab SD rests on one degree of freedom.
+    lines = ["lab,measurand,replicate,value"]
+    for i in range(labs):
+        lines += [f"L{i},lead,1,{10 + 0.1 * i}", f"L{i},lead,2,{10.05 + 0.1 * i - 0.01 * (i % 3)}"]
+    rnd = load_round(make_round('[round]\nid="P2"\n[measurand.lead]\nunit="mg/kg"\nassigned=10\n'
+                                'u_assigned=0.1\nsigma_pt=0.5\n', "\n".join(lines) + "\n"))
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")  # and no library warning on the way
+        ev = evaluate(rnd, read_results(rnd), read_participants(rnd))
+    note = ev.extras["precision"].set_index("measurand").loc["lead", "note"]
+    audit = ev.audit[(ev.audit["step"] == "precision") & (ev.audit["action"] == "caution")]
+    assert (f"only {labs} labs" in str(note)) is cautioned and (len(audit) == 1) is cautioned
+    assert (f"only {labs} labs" in " ".join(ev.stage_notes.get("lead", ()))) is cautioned
+
+
+def test_a_measurand_with_every_result_censored_raises_no_library_warning(make_round):
+    # Every lab reported "<0.5": no lab mean, so no consensus; nothing may reach the terminal but our notes.
+    lines = ["lab,measurand,replicate,value"] + [f"L{i},zinc,{r},<0.5" for i in range(5) for r in (1, 2)]
+    lines += [f"L{i},lead,{r},{10 + 0.1 * i + 0.01 * r}" for i in range(5) for r in (1, 2)]
+    toml = ('[round]\nid="C0"\n[measurand.zinc]\nunit="mg/kg"\nsigma_pt=0.5\n'
+            '[measurand.lead]\nunit="mg/kg"\nsigma_pt=0.5\n')
+    rnd = load_round(make_round(toml, "\n".join(lines) + "\n"))
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        ev = evaluate(rnd, read_results(rnd), read_participants(rnd))
+    assert ev.measurands["zinc"].p == 0 and not ev.measurands["zinc"].scored
+    assert ev.measurands["lead"].scored

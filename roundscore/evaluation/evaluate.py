@@ -30,6 +30,7 @@ from roundscore.model.table import ResultTable
 from roundscore.model.units import UnitError, mass_fraction
 from roundscore.ranges import sigma_relative_problem
 from roundscore.stats import robust, scores as sc, sigma as sg
+from roundscore.stats.limits import within
 
 __all__ = ["evaluate", "check_scorable", "U_CHECK_FACTOR", "DEFAULT_K"]
 
@@ -154,8 +155,10 @@ def _measurand(rnd: Round, labs: pd.DataFrame, m: MeasurandSettings, est: robust
     made_v = float(robust.made(used)) if p else np.nan
     niqr_v = float(robust.niqr(used)) if p else np.nan
     x_pt, u_pt, a_src, notes = _assign(m, est, med, made_v, p)
-    if est is not None and est.note:
+    if est is not None and est.note and not (m.is_consensus and u_pt == 0):
         notes.append(f"Algorithm A: {est.note}")
+    findings = _zero_spread(m, u_pt, p, audit)
+    notes += [ZERO_SPREAD_NOTE] if findings else []
     s_pt, s_src, s_notes = _sigma(m, est, x_pt if np.isfinite(x_pt) else np.nan)
     notes += s_notes
     item_checks = None
@@ -172,8 +175,8 @@ def _measurand(rnd: Round, labs: pd.DataFrame, m: MeasurandSettings, est: robust
             audit.append((m.name, "", "sigma_pt", "not usable", why))
             s_pt = np.nan
     u_ok = None
-    if np.isfinite(u_pt) and np.isfinite(s_pt):
-        u_ok = bool(u_pt <= U_CHECK_FACTOR * s_pt)
+    if np.isfinite(u_pt) and np.isfinite(s_pt) and not findings:
+        u_ok = bool(within(u_pt, U_CHECK_FACTOR * s_pt))  # roundscore.stats.limits: on the limit passes
         if not u_ok:
             msg = (f"u(x_pt) = {u_pt:.3g} exceeds 0.3 σ_pt = {U_CHECK_FACTOR * s_pt:.3g}: the uncertainty of the "
                    "assigned value is not negligible")
@@ -187,8 +190,29 @@ def _measurand(rnd: Round, labs: pd.DataFrame, m: MeasurandSettings, est: robust
     return MeasurandResult(
         settings=m, labs=labs, p=p, robust=est, median=med, made=made_v, niqr=niqr_v,
         assigned=x_pt, u_assigned=u_pt, sigma_pt=s_pt, assigned_source=a_src, sigma_source=s_src,
-        u_check_passed=u_ok, notes=tuple(notes), item_checks=item_checks,
+        u_check_passed=u_ok, notes=tuple(notes), item_checks=item_checks, findings=tuple(findings),
     )
+
+
+#: The headline of a consensus whose spread is zero (a finding, not a pass of the u(x_pt) check), and what it means.
+ZERO_SPREAD_FINDING = ("the robust SD is zero (more than half of the lab means are identical): "
+                       "u(x_pt) = 0 is not credible")
+ZERO_SPREAD_NOTE = ("the robust SD of the lab means is zero, so u(x_pt) = 1.25 s*/√p = 0 understates the "
+                    "uncertainty of the assigned value and the u(x_pt) check is not made; σ_pt cannot be the robust "
+                    "SD: set it from fitness for purpose or a precision experiment, and confirm the assigned value "
+                    "another way")
+
+
+def _zero_spread(m: MeasurandSettings, u_pt: float, p: int, audit: list[tuple]) -> list[str]:
+    """The finding of a consensus value computed from results whose robust spread is zero (ISO 13528 §7.7).
+
+    With more than half of the lab means equal, MADe and Algorithm A's s* are 0, so u(x_pt) = 1.25 s*/√p
+    is 0: a u check on it would pass while saying nothing (common practice: a zero robust SD is a finding).
+    """
+    if not (m.is_consensus and p >= 3 and u_pt == 0):
+        return []
+    audit.append((m.name, "", "assigned value", "finding", ZERO_SPREAD_NOTE))
+    return [ZERO_SPREAD_FINDING]
 
 
 def _score_rows(rnd: Round, mr: MeasurandResult) -> pd.DataFrame:

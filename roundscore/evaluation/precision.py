@@ -104,6 +104,20 @@ _METHODS_EXTRA = ("df2", "p_adjusted", "t_critical", "f_statistic", "f_p_value",
 #: 0.7 s per new p at p = 100 and growing with p; project choice, ISO 5725-2 Table 5 stops at p = 40).
 DOUBLE_GRUBBS_MAX_LABS = 100
 
+#: Fewest laboratories for a precision estimate worth the name: ISO 5725-1 recommends at least 8 (from
+#: memory: ISO 5725-1:1994 §6.3.4); fewer are reported with :func:`few_labs_caution`.
+MIN_PRECISION_LABS = 8
+
+
+def few_labs_caution(p: int) -> str:
+    """The caution of a precision estimate from fewer than :data:`MIN_PRECISION_LABS` labs."""
+    text = (f"only {p} labs: s_L and s_R rest on {p - 1} degree{'s' if p != 2 else ''} of freedom "
+            f"(ISO 5725-1 recommends at least {MIN_PRECISION_LABS} laboratories); read them as rough estimates")
+    if p == 2:
+        text += ", and Grubbs' tests, which need 3 labs, screen nothing"
+    return text
+
+
 #: The message of a measurand without replicates (stage note, audit and precision.csv note).
 NEEDS_REPLICATES = ("precision needs replicates: every lab reported a single result, so no repeatability "
                     "or reproducibility can be estimated (ask for 2 or more replicates on the forms)")
@@ -355,6 +369,11 @@ def _measurand_precision(rnd: Round, name: str, rows: pd.DataFrame | None, used:
         audit.append((name, "", "precision", "computed",
                        f"s_r = {_g(prec.s_r)}, s_L = {_g(prec.s_L)}, s_R = {_g(prec.s_R)} from {prec.p} labs, "
                        f"n̄ = {_g(prec.n_bar)}{left}" + ("; s_L² < 0 set to 0" if prec.s_L_truncated else "")))
+        if prec.p < MIN_PRECISION_LABS:
+            caution = few_labs_caution(prec.p)
+            notes.append(caution)
+            stage.append(caution)
+            audit.append((name, "", "precision", "caution", caution))
     row["note"] = "; ".join(notes)
     detail = MeasurandPrecision(measurand=name, labs=cells.labs, cells=cells, mandel=mandel, screening=screening,
                                 precision=prec, robust=robust, robust_labs=robust_labs, notes=tuple(notes))

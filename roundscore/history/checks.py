@@ -31,6 +31,7 @@ import numpy as np
 from roundscore.errors import Problem
 from roundscore.model.scores import CENSORED_ACTION, SCORE_FIELD, family_of
 from roundscore.model.signals import SIGNAL_NAMES as SIGNALS
+from roundscore.stats.limits import LIMIT_RTOL
 
 __all__ = ["REL_TOL", "row_problems", "EDIT_HINT", "RESUBMIT_HINT"]
 
@@ -59,7 +60,10 @@ def _close(got: float, want: float, scale: float) -> bool:
 def _signals(value: float, score: str) -> set[str]:
     """The signals a score may carry (by its family's limits): both sides of a limit when it lies within the
     tolerance."""
-    probe = abs(value) * np.array([1 - REL_TOL, 1.0, 1 + REL_TOL])
+    # Beyond the limits' own tolerance (roundscore.stats.limits.LIMIT_RTOL), so that a row decided by an
+    # earlier version on the bare floating-point value (2.9999999999999996: a warning) is accepted too.
+    spread = 3 * max(REL_TOL, LIMIT_RTOL)
+    probe = abs(value) * np.array([1 - spread, 1.0, 1 + spread])
     return set(family_of(score).signals(probe).tolist())
 
 

@@ -204,7 +204,9 @@ def check_series(values: Sequence[float] | np.ndarray, *, rounds: Sequence[str],
                 found.append(_finding(4, pos, side, f"{'upper' if side == 'high' else 'lower'} "
                                       f"CUSUM above h = {CUSUM_H:g} (k = {CUSUM_K:g})",
                                       rounds, dates))
-        combined = combined_scores(arr[first:])
+        # Combined scores only where a rule fired (README: they are a second look at a finding, never a
+        # verdict on their own; IUPAC harmonized protocol 2006 advises against judging a lab by them).
+        combined = combined_scores(arr[first:]) if found else None
         try:
             bias = bias_check(arr[first:])
         except StatisticsError as exc:

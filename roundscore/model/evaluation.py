@@ -71,6 +71,9 @@ class MeasurandResult:
         u(x_pt) ≤ 0.3 σ_pt (None when not computable).
     notes : tuple of str
         Things the reader of the report must know about this measurand.
+    findings : tuple of str
+        Headlines of findings that head the summary and every lab sheet with the failed checks (a consensus
+        whose spread is zero, say).
     """
 
     settings: MeasurandSettings
@@ -88,6 +91,7 @@ class MeasurandResult:
     u_check_passed: bool | None
     notes: tuple[str, ...] = ()
     item_checks: ItemOutcome | None = None
+    findings: tuple[str, ...] = ()
 
     @property
     def name(self) -> str:
@@ -208,6 +212,7 @@ class RoundEvaluation:
         for m in self.measurands.values():
             if m.u_check_passed is False:
                 out.append(f"{m.name}: u(x_pt) exceeds 0.3 σ_pt")
+            out.extend(f"{m.name}: {f}" for f in m.findings)
         items = self.extras.get("items")
         if items is not None and len(items):
             for _, r in items[~items["passed"].astype(bool)].iterrows():

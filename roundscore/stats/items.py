@@ -37,6 +37,7 @@ from scipy import stats
 
 from roundscore.choices import check_choice
 from roundscore.errors import StatisticsError
+from roundscore.stats.limits import within
 # Cochran's critical value is shared with the ISO 5725-2 screens (one implementation).
 from roundscore.stats.outliers import cochran_critical as _cochran_critical
 
@@ -461,8 +462,8 @@ def homogeneity(
     criterion = HOMOGENEITY_FACTOR * sigma_pt
     factors = expanded_criterion_factors(g, m, alpha=alpha, df_within=df_within)
     allowed = math.sqrt(factors.f1 * criterion**2 + factors.f2 * s_w**2)
-    passed_simple = s_s <= criterion
-    passed_expanded = s_s <= allowed
+    passed_simple = bool(within(s_s, criterion))
+    passed_expanded = bool(within(s_s, allowed))
     notes.append(
         f"simple criterion s_s <= 0.3 sigma_pt = {criterion:.4g}: {_met(passed_simple)} (s_s = {s_s:.4g}); "
         f"expanded criterion s_s <= sqrt(F1 c^2 + F2 s_w^2) = {allowed:.4g} (F1 = {factors.f1:.4g}, "
@@ -474,7 +475,7 @@ def homogeneity(
             "for the sampling error of s_s from this check"
         )
 
-    precision_adequate = s_w <= REPEATABILITY_LIMIT_FACTOR * sigma_pt
+    precision_adequate = bool(within(s_w, REPEATABILITY_LIMIT_FACTOR * sigma_pt))
     precision_warning = None
     if not precision_adequate:
         precision_warning = (
@@ -661,11 +662,11 @@ def stability(
 
     diff = mean1 - mean2
     crit = STABILITY_FACTOR * sigma_pt
-    passed_simple = abs(diff) <= crit
+    passed_simple = bool(within(abs(diff), crit))
     u_known = math.isfinite(u1) and math.isfinite(u2)
     if u_known:
         allowed = crit + STABILITY_COVERAGE_FACTOR * math.hypot(u1, u2)
-        passed_expanded: bool | None = abs(diff) <= allowed
+        passed_expanded: bool | None = bool(within(abs(diff), allowed))
     else:
         allowed = math.nan
         passed_expanded = None

@@ -125,8 +125,15 @@ def _algorithm_a_2d(
     n = x.shape[1] - np.sum(missing, axis=1)
     with np.errstate(all="ignore"):
         med = np.nanmedian if any_missing else np.median
-        start_mean = med(x, axis=1)
-        start_sd = MADE_FACTOR * med(np.abs(x - start_mean[:, None]), axis=1)
+        # A row with no result at all (every lab censored, say) stays NaN without asking numpy for the
+        # median of nothing (an "All-NaN slice" warning that would reach the user's terminal).
+        start_mean = np.full(len(x), np.nan)
+        start_sd = np.full(len(x), np.nan)
+        some = n > 0
+        if some.any():
+            xs = x[some] if not some.all() else x
+            start_mean[some] = med(xs, axis=1)
+            start_sd[some] = MADE_FACTOR * med(np.abs(xs - start_mean[some][:, None]), axis=1)
         from_niqr = start_sd == 0
         if from_niqr.any():
             start_sd = np.where(from_niqr, niqr(x, axis=1), start_sd)

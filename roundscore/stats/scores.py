@@ -14,6 +14,8 @@ from typing import Literal
 
 import numpy as np
 
+from roundscore.stats.limits import above, reaches
+
 __all__ = [
     "z_score",
     "z_prime_score",
@@ -96,8 +98,9 @@ def signals(score, *, warning: float | None, action: float, strict: bool = False
     out = np.full(s.shape, "not-scored", dtype=object)
     ok = ~np.isnan(s)
     v = s[ok]
-    acted = v > action if strict else v >= action
-    warned = np.zeros(v.shape, dtype=bool) if warning is None else v > warning
+    # On the limit within roundscore.stats.limits.LIMIT_RTOL counts as on it: |z| = 2.0000000000000004 is 2.
+    acted = above(v, action) if strict else reaches(v, action)
+    warned = np.zeros(v.shape, dtype=bool) if warning is None else above(v, warning)
     out[ok] = np.where(acted, "action", np.where(warned, "warning", "acceptable"))
     return out
 

@@ -60,6 +60,7 @@ import pandas as pd
 from scipy import stats
 
 from roundscore.errors import StatisticsError
+from roundscore.stats.limits import above, reaches
 from roundscore.stats.scores import EN_ACTION, Z_ACTION, Z_WARNING
 
 __all__ = [
@@ -159,7 +160,7 @@ def action_signals(z: Sequence[float] | np.ndarray, *, limit: float = ACTION_LIM
     numpy.ndarray of int
     """
     size = np.abs(as_series(z))
-    return np.flatnonzero(size > limit if strict else size >= limit)
+    return np.flatnonzero(above(size, limit) if strict else reaches(size, limit))
 
 
 def two_of_three(z: Sequence[float] | np.ndarray, *,
@@ -172,6 +173,14 @@ def two_of_three(z: Sequence[float] | np.ndarray, *,
     so two of the first two also fire.  "Beyond" is strict (``> 2``), as zone A
     of the Western Electric handbook begins at two sigma.
 
+    The reading: the rule is about any three consecutive points, and it is
+    known to hold at the point that completes it, which is therefore itself
+    beyond the limit ([2.5, 2.5, 0] fires at the second score, not the third);
+    two of the first two fire because every window of three that will contain
+    them already holds the pattern (the earliest signal, as a lab manager
+    wants it).  A score within :data:`roundscore.stats.limits.LIMIT_RTOL` of
+    the limit is on it, not beyond.
+
     References
     ----------
     Western Electric Co., Statistical Quality Control Handbook (1956).
@@ -180,9 +189,9 @@ def two_of_three(z: Sequence[float] | np.ndarray, *,
     found: list[tuple[int, Side]] = []
     for i in range(1, arr.size):
         window = arr[max(0, i - 2):i]
-        if arr[i] > limit and np.any(window > limit):
+        if above(arr[i], limit) and np.any(above(window, limit)):
             found.append((i, "high"))
-        elif arr[i] < -limit and np.any(window < -limit):
+        elif above(-arr[i], limit) and np.any(above(-window, limit)):
             found.append((i, "low"))
     return found
 
