@@ -212,7 +212,7 @@ class InputError(ValueError, RoundscoreError):
         ValueError.__init__(self, str(self))
 
     @classmethod
-    def single(cls, message: str, **where: object) -> "InputError":
+    def single(cls, message: str, **where: object) -> InputError:
         """An error with a single problem; ``where`` are :class:`Problem` fields."""
         return cls([Problem(message=message, **where)], summary=message)
 
@@ -242,7 +242,7 @@ class RoundFileError(InputError):
     """A mistake in ``round.toml``: names the file, the key, what was found and what is allowed."""
 
     @classmethod
-    def key(cls, file: str, key: str, found: object, allowed: str) -> "RoundFileError":
+    def key(cls, file: str, key: str, found: object, allowed: str) -> RoundFileError:
         msg = f"{file}: key {quote(key, 80)}: found {shown_value(found)}; allowed: {allowed}"
         return cls([Problem(message=msg)], summary=msg)
 

@@ -10,7 +10,7 @@ from __future__ import annotations
 import itertools
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Callable, Iterable
+from collections.abc import Callable, Iterable
 
 from roundscore.errors import RoundscoreError
 from roundscore.evaluation import evaluate as _evaluation

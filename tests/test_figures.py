@@ -304,7 +304,6 @@ def test_step_columns_fill_each_run_without_gaps():
 def test_mandel_envelope_colours_a_lone_lab_beyond_the_line():
     # Above MAX_BARS labs the bars become column envelopes coloured by each column's worst lab: one lab
     # beyond the 1 % line among hundreds within must still colour its column (ISO 5725-2 §7.3.1 h plot).
-    from matplotlib.collections import PolyCollection
     from matplotlib.colors import to_hex
 
     n = 1200

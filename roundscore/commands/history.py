@@ -23,7 +23,7 @@ import datetime as _dt
 import json
 import sys
 from pathlib import Path
-from typing import Sequence
+from collections.abc import Sequence
 
 import numpy as np
 import pandas as pd

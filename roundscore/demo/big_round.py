@@ -34,7 +34,7 @@ import re
 import zipfile
 from dataclasses import dataclass, replace
 from pathlib import Path
-from typing import Sequence
+from collections.abc import Sequence
 
 import numpy as np
 

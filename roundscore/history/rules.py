@@ -17,7 +17,8 @@ procedures, ISO/IEC 17043 and the accreditation body's rules.
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Literal, Sequence
+from collections.abc import Sequence
+from typing import Literal
 
 import numpy as np
 import pandas as pd

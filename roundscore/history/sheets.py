@@ -25,7 +25,7 @@ import datetime as _dt
 import math
 from dataclasses import dataclass, replace
 from pathlib import Path
-from typing import Sequence
+from collections.abc import Sequence
 
 import pandas as pd
 

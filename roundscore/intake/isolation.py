@@ -12,14 +12,13 @@ References
 
 from __future__ import annotations
 
-import multiprocessing as mp
 import os
 import signal
 import time
 from dataclasses import dataclass, field
 from multiprocessing.connection import wait as _wait
 from pathlib import Path
-from typing import Callable, Sequence
+from collections.abc import Callable, Sequence
 
 from roundscore.errors import InputError, Problem
 from roundscore.support.processes import context, worker_started
@@ -217,7 +216,7 @@ BATCH_FILES = 32
 _BATCHES_PER_WORKER = 4
 
 
-def read_many(paths: Sequence[str | Path], sheets: str | None | Sequence[str | None] = None, *,
+def read_many(paths: Sequence[str | Path], sheets: str | Sequence[str | None] | None = None, *,
               jobs: int | None = None, limits: ReadLimits = DEFAULT_LIMITS,
               then: Callable[[FileRows], object] | None = None,
               progress: Callable[[int, int], None] | None = None,

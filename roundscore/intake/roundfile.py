@@ -325,7 +325,7 @@ def _limits(c: _Checker, raw: object) -> ReadLimits:
         return DEFAULT_LIMITS
 
 
-def _iso_date(c: "_Checker", key: str, value: object) -> str:
+def _iso_date(c: _Checker, key: str, value: object) -> str:
     """A date key (a TOML date, or text such as 2026-10-14) in ISO form; "" when not given."""
     if isinstance(value, (_dt.date, _dt.datetime)):
         return value.isoformat()[:10]

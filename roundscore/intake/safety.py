@@ -42,7 +42,7 @@ import zipfile
 import zlib
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Callable, Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 
 from roundscore.errors import InputError
 from roundscore.model.limits import DEFAULT_LIMITS, MiB, ReadLimits

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import math
 from decimal import Decimal
-from typing import Iterable
+from collections.abc import Iterable
 
 import numpy as np
 

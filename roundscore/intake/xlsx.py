@@ -20,7 +20,7 @@ import csv
 import io
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Sequence
+from collections.abc import Sequence
 
 from roundscore.errors import InputError, Problem
 from roundscore.model.limits import DEFAULT_LIMITS, ReadLimits

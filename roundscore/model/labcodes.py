@@ -28,7 +28,7 @@ from __future__ import annotations
 
 import datetime as _dt
 import unicodedata
-from typing import Mapping
+from collections.abc import Mapping
 
 from roundscore.errors import Problem
 from roundscore.text import quote, terminal_text

@@ -19,7 +19,8 @@ import io
 import re
 import unicodedata
 from dataclasses import dataclass, field
-from typing import Literal, Sequence
+from collections.abc import Sequence
+from typing import Literal
 
 import numpy as np
 

@@ -7,7 +7,8 @@ a round); the plumbing they share with the score figures is in :mod:`roundscore.
 from __future__ import annotations
 
 import textwrap
-from typing import Literal, Sequence
+from collections.abc import Sequence
+from typing import Literal
 
 import numpy as np
 

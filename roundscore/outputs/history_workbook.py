@@ -15,7 +15,7 @@ and action limits) and ``chart_data``.
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Sequence
+from collections.abc import Sequence
 
 import numpy as np
 import pandas as pd

@@ -25,7 +25,7 @@ from __future__ import annotations
 import html
 import math
 from dataclasses import dataclass
-from typing import Sequence
+from collections.abc import Sequence
 
 import numpy as np
 
@@ -210,7 +210,7 @@ def score_strip(values: Sequence[float], *, measurand: str, score: str = "z", ti
     """
     v = np.asarray(values, dtype=float)
     v = v[np.isfinite(v)]
-    n = int(len(v))
+    n = len(v)
     title = measurand if title is None else title
     key = f"strip-{measurand}" if key is None else key
     r = STRIP_RANGE

@@ -14,7 +14,8 @@ from __future__ import annotations
 
 import datetime as dt
 import math
-from typing import Any, Iterable, Mapping
+from collections.abc import Iterable, Mapping
+from typing import Any
 
 import numpy as np
 import pandas as pd

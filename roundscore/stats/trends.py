@@ -53,7 +53,8 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, fields
-from typing import Literal, Sequence
+from collections.abc import Sequence
+from typing import Literal
 
 import numpy as np
 import pandas as pd
