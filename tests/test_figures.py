@@ -58,7 +58,7 @@ def test_lab_overlay_is_inside_the_axes_and_named():
     assert out.startswith(f.svg[: f.svg.rfind("</svg>")])  # the shared drawing is kept as it is
     mark = out[out.rfind('<g class="lab-mark"'):]
     assert "your lab (L12)" in mark
-    left, top, right, bottom = f.axes_box
+    left, _top, right, _bottom = f.axes_box
     rx = float(re.search(r'<rect x="([\d.]+)"', mark).group(1))
     assert left <= rx <= right
     assert f.for_lab("L6") == f.svg  # not scored: nothing marked
@@ -195,7 +195,7 @@ FAILING = ([2.51, 2.49, 2.50], [2.44, 2.45, 2.46])  # ȳ₁ − ȳ₂ = 2.50 −
 
 
 def test_stability_figure_draws_means_bars_and_band_at_their_data_coordinates():
-    y1, y2, u1, u2, diff, simple, expanded = _b5(*PASSING)
+    y1, y2, u1, u2, _diff, simple, expanded = _b5(*PASSING)
     res, f = _stability_fig(*PASSING)
     assert (res.mean_first, res.mean_second, res.criterion) == pytest.approx((y1, y2, simple))
     assert f.kind == "none" and not f.marks  # no lab marks on an item figure
@@ -227,7 +227,7 @@ def test_stability_figure_draws_means_bars_and_band_at_their_data_coordinates():
     (FAILING, {"u_first": 0.01, "u_second": 0.01}, True, "expanded"),  # 0.050 ≤ 0.030 + 2√(2·0.01²) = 0.0583
 ])
 def test_stability_verdict_in_words_follows_the_check(study, kw, expect_pass, used):
-    y1, y2, u1, u2, diff, simple, expanded = _b5(*study, kw.get("u_first"), kw.get("u_second"))
+    _y1, _y2, _u1, _u2, diff, simple, expanded = _b5(*study, kw.get("u_first"), kw.get("u_second"))
     allowance = simple if used == "simple" else expanded
     assert bool(abs(diff) <= allowance) is expect_pass  # the hand computation itself
     res, f = _stability_fig(*study, **kw)
@@ -290,7 +290,7 @@ def test_step_columns_fill_each_run_without_gaps():
     from matplotlib.collections import PolyCollection
     from matplotlib.colors import to_hex
 
-    fig, ax = FB.new_figure((4, 2))
+    _fig, ax = FB.new_figure((4, 2))
     FB.step_columns(ax, np.array([0.0, 1.0, 2.0, 3.0]), 0.0, np.array([1.0, 2.0, -1.0, 0.5]),
                    ["#111111", "#111111", "#222222", "#222222"])
     (pc,) = [c for c in ax.collections if isinstance(c, PolyCollection)]

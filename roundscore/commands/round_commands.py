@@ -80,7 +80,8 @@ def summary_text(ev: RoundEvaluation) -> str:
     lines.append(f"  {signal_legend_text()}")
     for name, m in ev.measurands.items():
         if not m.scored:  # say why, here too: a row of "nan" and "not scored" alone does not
-            lines.append(f"  {name}: not scored: " + ("; ".join(m.notes) or "the assigned value or σ_pt could not be set"))
+            lines.append(f"  {name}: not scored: "
+                         + ("; ".join(m.notes) or "the assigned value or σ_pt could not be set"))
     for name, notes in ev.stage_notes.items():
         for note in notes:
             lines.append(f"  {t(name)}: {t(note)}")

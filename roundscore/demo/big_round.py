@@ -270,7 +270,8 @@ def _write_big_round(folder: Path, *, labs: int, measurands: int, replicates: in
     outlier = rng.random((labs, measurands)) < OUTLIER_RATE
     bias = np.where(outlier, rng.choice([-1.0, 1.0], (labs, measurands)) * rng.uniform(4, 8, (labs, measurands))
                     * s_between, bias)
-    values = true[None, :, None] + bias[:, :, None] + rng.normal(0.0, 1.0, (labs, measurands, replicates)) * s_within[:, None]
+    values = (true[None, :, None] + bias[:, :, None]
+              + rng.normal(0.0, 1.0, (labs, measurands, replicates)) * s_within[:, None])
     values = np.maximum(values, 1e-3 * true[None, :, None])  # a mass fraction cannot be negative
     censored = rng.random((labs, measurands)) < CENSORED_RATE
     missing = rng.random((labs, measurands)) < MISSING_RATE

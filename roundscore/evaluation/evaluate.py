@@ -287,7 +287,7 @@ def evaluate(rnd: Round, table: ResultTable, participants: dict[str, Participant
     mat = np.full((len(names), len(all_labs)), np.nan)
     for i, n in enumerate(names):
         lt = pre[n]
-        keep = (lt["status"] == "value") & ~lt["lab"].map(lambda L: (L, n) in excluded or (L, None) in excluded)
+        keep = (lt["status"] == "value") & ~lt["lab"].map(lambda L: (L, n) in excluded or (L, None) in excluded)  # noqa: B023
         mat[i, keep.to_numpy()] = lt.loc[keep, "mean"].to_numpy()
     estimates = robust.algorithm_a(mat) if len(names) else []
     results = {}

@@ -26,8 +26,9 @@ import pandas as pd
 from roundscore.choices import check_choice
 from roundscore.errors import InputError, StatisticsError
 from roundscore.model.scores import SCORE_FAMILIES, SCORE_NAMES, SCORES, FamilyName
-from roundscore.stats.trends import (CUSUM_H, CUSUM_K, RUN_LENGTH, AsDict, BiasCheck, CombinedScores, CusumResult, Side, action_signals, as_series,
-                                     bias_check, combined_scores, cusum, same_side_runs, two_of_three)
+from roundscore.stats.trends import (CUSUM_H, CUSUM_K, RUN_LENGTH, AsDict, BiasCheck, CombinedScores, CusumResult, Side,
+                                     action_signals, as_series, bias_check, combined_scores, cusum, same_side_runs,
+                                     two_of_three)
 
 __all__ = ["DEFAULT_WINDOW", "DISCLAIMER", "RULE_NAMES", "RULE_SOURCES", "RuleFinding", "SeriesCheck",
            "HistoryCheck", "check_series", "check_history"]

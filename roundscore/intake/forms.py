@@ -402,7 +402,8 @@ def records_from_form(rnd: Round, results: SheetRows, info: SheetRows):
     decimal = declared.mark if declared is not None else None
     rows = results.rows
     cols = _columns(reps)
-    header = [str(c).strip() if c is not None else "" for c in (rows[header_row - 1] if len(rows) >= header_row else [])]
+    header = [str(c).strip() if c is not None else ""
+              for c in (rows[header_row - 1] if len(rows) >= header_row else [])]
     if header[: len(cols)] != cols:
         return [], [Problem(message="the results table header was changed; expected: " + ", ".join(cols),
                             file=file, sheet=results.sheet, row=header_row,

@@ -132,7 +132,7 @@ def _limit_memory(extra: int) -> None:
     base = _virtual_size()
     if base == 0:
         return
-    soft, hard = resource.getrlimit(resource.RLIMIT_AS)
+    _soft, hard = resource.getrlimit(resource.RLIMIT_AS)
     want = base + extra
     if hard != resource.RLIM_INFINITY:
         want = min(want, hard)

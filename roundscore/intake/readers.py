@@ -276,7 +276,7 @@ def read_participants(rnd: Round) -> dict[str, Participant]:
     problems: list[Problem] = []
     codes = LabCodeReader(problems)
     for i, r in numbered[1:]:
-        def cell(j, kind):
+        def cell(j, kind, r=r, i=i):  # this row's cell
             if j is None or j >= len(r) or r[j] is None:
                 return ""
             v = r[j]

@@ -269,7 +269,8 @@ def _measurand(c: _Checker, folder: Path, name: str, raw: object) -> MeasurandSe
 
 
 def _exclusions(c: _Checker, raw: object, measurands: dict) -> tuple[Exclusion, ...]:
-    allowed = "a list of tables: [[exclude]] lab = \"L07\", measurand = \"...\" (optional), reason = \"...\", scored = true"
+    allowed = ("a list of tables: [[exclude]] lab = \"L07\", measurand = \"...\" (optional), reason = \"...\", "
+               "scored = true")
     if not isinstance(raw, list):
         c.bad("exclude", raw, allowed)
         return ()

@@ -445,7 +445,7 @@ def _central_directory(data: bytes) -> list[tuple] | None:
     at = data.rfind(b"PK\x05\x06", max(0, len(data) - 65557))
     if at < 0 or at + _EOCD.size > len(data):
         return None
-    _, disk, cd_disk, n_disk, n, cd_size, cd_offset, _ = _EOCD.unpack_from(data, at)
+    _, disk, cd_disk, n_disk, n, _cd_size, cd_offset, _ = _EOCD.unpack_from(data, at)
     if disk or cd_disk or n_disk != n or n == 0xFFFF or cd_offset == 0xFFFFFFFF:
         return None
     entries = []

@@ -214,7 +214,8 @@ def _places(group: list[Problem], most: int = 12) -> str:
 
 
 def lab_places(rows: Iterable[tuple]) -> dict[str, dict]:
-    """Where each lab code of validated rows (:data:`~roundscore.model.table.COLUMNS` tuples) first appears: file, sheet, row, column."""
+    """Where each lab code of validated rows (:data:`~roundscore.model.table.COLUMNS` tuples) first appears: file,
+    sheet, row, column."""
     out: dict[str, dict] = {}
     for r in rows:
         if r[0] not in out:
@@ -242,7 +243,8 @@ def _record_place(first: Record) -> str:
 
 
 def validate_records(rnd: Round, records: Iterable[Record]) -> tuple[list[tuple], list[Problem]]:
-    """Check records against the round: one row tuple (:data:`~roundscore.model.table.COLUMNS`) per valid record, and every problem.
+    """Check records against the round: one row tuple (:data:`~roundscore.model.table.COLUMNS`) per valid record,
+    and every problem.
 
     Duplicates are found among these records only (a caller joining several
     files' rows checks across them). Labels seen once are not looked up

@@ -517,7 +517,7 @@ def _mandel(ev, name: str) -> tuple[SvgFigure, ...]:
         if prec is not None and "n_bar" in getattr(prec, "columns", ()):
             row = ev.measurand_rows("precision", name)
             if len(row) and np.isfinite(float(row["n_bar"].iloc[0])):
-                n = int(round(float(row["n_bar"].iloc[0])))
+                n = round(float(row["n_bar"].iloc[0]))
         lim_h = mandel_limits(int(np.isfinite(h).sum()), n)
         lim_k = mandel_limits(int(np.isfinite(k).sum()), n)
         lim = {"h_5": lim_h["h_5"], "h_1": lim_h["h_1"], "k_5": lim_k["k_5"], "k_1": lim_k["k_1"]}

@@ -88,7 +88,7 @@ figure.square svg { max-width: 40rem; }
 figure.strip { margin: 0; } figure.strip svg { max-width: none; border-bottom: 1px solid var(--rule); }
 figcaption { font-size: .85rem; color: var(--muted); max-width: 46rem; }
 .legend span { margin-right: 1.2rem; white-space: nowrap; } .muted { color: var(--muted); }
-""" + "".join(
+""" + "".join(  # noqa: E501 - the style sheet's lines as written
     f".s-{s} {{ background: {_tint(c)}; }}\n" for s, c in SIGNAL_COLOUR.items()
 ) + """
 @media print {
@@ -476,7 +476,7 @@ def report_html(ev, parts: ReportParts | None = None) -> str:
             prec += f"<h3>{title}</h3>" + _table(ev.extras[key], decimals={})
     if ev.extras.get("mandel") is not None:
         prec += "<h3>Mandel's h and k</h3>"
-        for name, fs in figs.mandel.items():
+        for fs in figs.mandel.values():
             prec += "".join(_figure(f.svg, f) for f in fs)
         prec += _mandel_table(ev.extras["mandel"])
     sections.append(("precision", "Precision and screens",

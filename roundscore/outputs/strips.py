@@ -214,7 +214,7 @@ def score_strip(values: Sequence[float], *, measurand: str, score: str = "z", ti
     title = measurand if title is None else title
     key = f"strip-{measurand}" if key is None else key
     r = STRIP_RANGE
-    nbins = int(round(2 * r / STRIP_BIN))
+    nbins = round(2 * r / STRIP_BIN)
     # Text style set once on the root (inherited), so each text element carries only its position.
     parts = [f'<svg xmlns="http://www.w3.org/2000/svg" class="strip" viewBox="0 0 {_f(STRIP_WIDTH)} '
              f'{_f(STRIP_HEIGHT)}" width="{_f(STRIP_WIDTH)}" height="{_f(STRIP_HEIGHT)}" {_FONT} font-size="9" '

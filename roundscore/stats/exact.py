@@ -240,7 +240,7 @@ def centred(
     if not textual:
         numbers = []
         for i, t in enumerate(items):
-            if isinstance(t, (str, Decimal)) or isinstance(t, bool):
+            if isinstance(t, (str, Decimal, bool)):
                 raise InputError.single("mixed text and numbers", row=i + 1, value=t)
             try:
                 v = float(t)
