@@ -12,6 +12,7 @@ from __future__ import annotations
 import datetime as _dt
 import re
 from dataclasses import dataclass, field
+from typing import TypedDict, Unpack
 
 from roundscore.text import clip, quote, terminal_text
 
@@ -25,6 +26,8 @@ def _shown(text: object, limit: int = 80) -> str:
 __all__ = [
     "RoundscoreError",
     "Problem",
+    "Place",
+    "Where",
     "place",
     "is_text_file",
     "cell_ref",
@@ -187,6 +190,25 @@ class Problem:
                 shown_value(self.value) if self.value is not None else None)
 
 
+class Place(TypedDict, total=False):
+    """Where in a file a :class:`Problem` is: its file, sheet, row, column and cell fields."""
+
+    file: str | None
+    sheet: str | None
+    row: int | None
+    column: str | None
+    cell: str | None
+
+
+class Where(Place, total=False):
+    """A :class:`Problem`'s fields other than the message, as keyword arguments: ``Problem(message=m, **where)``."""
+
+    lab: str | None
+    measurand: str | None
+    value: object
+    hint: str | None
+
+
 @dataclass(eq=False)
 class InputError(ValueError, RoundscoreError):
     """One or more problems in the user's input files.
@@ -212,7 +234,7 @@ class InputError(ValueError, RoundscoreError):
         ValueError.__init__(self, str(self))
 
     @classmethod
-    def single(cls, message: str, **where: object) -> InputError:
+    def single(cls, message: str, **where: Unpack[Where]) -> InputError:
         """An error with a single problem; ``where`` are :class:`Problem` fields."""
         return cls([Problem(message=message, **where)], summary=message)
 

@@ -35,7 +35,7 @@ from collections.abc import Iterable
 import xlsxwriter
 
 from roundscore.intake.cells import DECIMAL_MARKS
-from roundscore.errors import Problem, sheet_cell
+from roundscore.errors import Problem, Place, sheet_cell
 from roundscore.model.round import MAX_FORM_REPLICATES, Round
 from roundscore.intake.xlsx import SheetRows
 
@@ -192,7 +192,7 @@ def write_forms(rnd: Round, labs: Iterable[tuple[str, str | None]], folder: Path
     labs = list(labs)
     problems: list[Problem] = []
     checked: list[tuple[str, str | None]] = []
-    places: dict[str, dict] = {}
+    places: dict[str, Place] = {}
     for i, (lab, name) in enumerate(labs, start=1):
         code, why = read_lab_code(lab)
         if code is None:
@@ -249,14 +249,14 @@ def _place(tmp: Path, dest: Path) -> None:
 
 
 def lab_cell(info: SheetRows) -> dict:
-    """Where a form keeps its lab code: the value cell beside the key ``lab`` on the form-info sheet."""
+    """Place a form keeps its lab code: the value cell beside the key ``lab`` on the form-info sheet."""
     for i, r in enumerate(info.rows):
         if i and r and r[0] is not None and str(r[0]).strip() == "lab":
             return {"file": info.file if info.file else None, "sheet": INFO_SHEET, "row": i + 1, "column": "B"}
     return {"file": info.file if info.file else None, "sheet": INFO_SHEET}
 
 
-#: Where the form shows the lab code to the person filling it in (written by :func:`write_form`).
+#: Place the form shows the lab code to the person filling it in (written by :func:`write_form`).
 _SHOWN_LAB_ROW, _SHOWN_LAB_LABEL = 5, "Laboratory code"
 
 

@@ -11,10 +11,11 @@ from __future__ import annotations
 import math
 from decimal import Decimal
 from collections.abc import Iterable
+from typing import Any
 
 import numpy as np
 
-from roundscore.errors import InputError, Problem, cell_ref, is_text_file, place, sheet_cell, shown_value
+from roundscore.errors import InputError, Problem, Place, cell_ref, is_text_file, place, sheet_cell, shown_value
 from roundscore.intake.cells import HINT_DECLARE, HINT_NUMBER, CellError, parse_cell
 from roundscore.intake.xlsx import SheetRows
 from roundscore.model.labcodes import clash_problems, read_lab_code
@@ -121,7 +122,7 @@ def records_from_long(sheet: SheetRows) -> tuple[list[Record], list[Problem]]:
         r = rows[i]
         if not any(c is not None and str(c).strip() for c in r):
             continue
-        get = {k: (r[j] if j < len(r) else None) for k, j in index.items()}
+        get: dict[str, Any] = {k: (r[j] if j < len(r) else None) for k, j in index.items()}  # cells as read
         records.append(Record(file=sheet.file, sheet=sheet.sheet, row=sheet.row_number(i), cols=cols, **get))
     return records, problems
 
@@ -213,10 +214,10 @@ def _places(group: list[Problem], most: int = 12) -> str:
 
 
 
-def lab_places(rows: Iterable[tuple]) -> dict[str, dict]:
-    """Where each lab code of validated rows (:data:`~roundscore.model.table.COLUMNS` tuples) first appears: file,
+def lab_places(rows: Iterable[tuple]) -> dict[str, Place]:
+    """Place each lab code of validated rows (:data:`~roundscore.model.table.COLUMNS` tuples) first appears: file,
     sheet, row, column."""
-    out: dict[str, dict] = {}
+    out: dict[str, Place] = {}
     for r in rows:
         if r[0] not in out:
             out[r[0]] = {"file": r[-3], "sheet": r[-2], "row": r[-1], "column": "lab"}
@@ -235,7 +236,7 @@ def _optional_number(v: object, what: str, rec: Record, problems: list[Problem],
 
 
 def _record_place(first: Record) -> str:
-    """Where an earlier record's result is: ``results.csv, line 3`` or ``form.xlsx, Results!C10``."""
+    """Place an earlier record's result is: ``results.csv, line 3`` or ``form.xlsx, Results!C10``."""
     cell = None
     if first.sheet is not None and first.cols is not None and "value" in first.cols:
         cell = cell_ref(first.row, first.cols["value"][0])

@@ -13,6 +13,8 @@ from dataclasses import dataclass, field
 
 import pandas as pd
 
+from roundscore.errors import Place
+
 __all__ = ["ResultTable", "Record", "COLUMNS", "table_frame"]
 
 #: Columns of :attr:`ResultTable.frame`, in order.
@@ -70,7 +72,7 @@ class ResultTable:
         How text cells were read, for the audit trail: (lab or "", what was
         done), one per round or per file, never per cell.
     lab_places : dict of str to dict
-        Where each lab code was first read (:class:`~roundscore.errors.Problem`
+        Place each lab code was first read (:class:`~roundscore.errors.Problem`
         fields file, sheet, row, column), for messages that name it.
     """
 
@@ -78,7 +80,7 @@ class ResultTable:
     files: tuple[str, ...] = ()
     warnings: tuple[str, ...] = field(default=())
     readings: tuple[tuple[str, str], ...] = field(default=())
-    lab_places: dict[str, dict] = field(default_factory=dict)
+    lab_places: dict[str, Place] = field(default_factory=dict)
 
     @property
     def labs(self) -> list[str]:
