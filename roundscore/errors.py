@@ -26,6 +26,7 @@ def _shown(text: object, limit: int = 80) -> str:
 __all__ = [
     "RoundscoreError",
     "Problem",
+    "Location",
     "Place",
     "Where",
     "place",
@@ -190,14 +191,19 @@ class Problem:
                 shown_value(self.value) if self.value is not None else None)
 
 
-class Place(TypedDict, total=False):
-    """Where in a file a :class:`Problem` is: its file, sheet, row, column and cell fields."""
+class Location(TypedDict, total=False):
+    """Where in a file a :class:`Problem` is: its file, sheet, row and cell fields."""
 
     file: str | None
     sheet: str | None
     row: int | None
-    column: str | None
     cell: str | None
+
+
+class Place(Location, total=False):
+    """A :class:`Location` and the column: where a lab code was read (:mod:`roundscore.model.labcodes`)."""
+
+    column: str | None
 
 
 class Where(Place, total=False):

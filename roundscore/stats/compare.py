@@ -459,6 +459,7 @@ def compare_two(
         raise StatisticsError(f"groups {la} and {lb}: no spread in either group, the t test is undefined")
     _spread(math.sqrt(max(va, vb)), np.concatenate([x, y]), f"{la} and {lb}")
     ftest = _variance_test(va, vb, na - 1, nb - 1, alpha)
+    use: Literal["pooled", "welch"]
     if method == "auto":
         use = "welch" if ftest.reject else "pooled"
         reason = (
@@ -658,7 +659,7 @@ def compare_groups(
             PairwiseComparison(comparison=c, p_adjusted=float(pa), significant=bool(r))
             for c, pa, r in zip(pairs, p_adj, reject)
         )
-    if len(tested) < 2:
+    if anova is None:  # fewer than two groups tested
         conclusion = "Fewer than two groups have at least 2 labs; no comparison was made."
     else:
         differing = [f"{pc.comparison.label_a} vs {pc.comparison.label_b}" for pc in pairwise if pc.significant]
