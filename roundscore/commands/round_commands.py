@@ -111,7 +111,7 @@ def run_score(args: argparse.Namespace) -> int:
     rp = Path(args.round)
     folder = rp if rp.is_dir() else rp.parent
     out = Path(args.out) if args.out else folder / "out"
-    stored = []
+    stored: list[object] = []
     bar = terminal_bar(enabled=False if args.quiet else None)
     try:
         ev, outputs = run_round(rp, out, archive=args.archive, jobs=args.jobs, progress=bar,

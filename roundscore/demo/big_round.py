@@ -189,11 +189,18 @@ def fill_form(path: Path, cells: dict[str, str | float]) -> None:
     tmp.replace(path)
 
 
+def _found(match: re.Match[str] | None) -> str:
+    """The first group of a match in a workbook this module wrote itself (so it is there)."""
+    if match is None:
+        raise ValueError("the workbook written lacks a part it always has")
+    return match.group(1)
+
+
 def _sheet_part(data: dict[str, bytes], sheet: str) -> str:
     wb = data["xl/workbook.xml"].decode()
     rels = data["xl/_rels/workbook.xml.rels"].decode()
-    rid = re.search(r'<sheet name="' + re.escape(sheet) + r'" sheetId="\d+" r:id="(rId\d+)"', wb).group(1)
-    target = re.search(r'<Relationship Id="' + rid + r'" Type="[^"]+" Target="([^"]+)"', rels).group(1)
+    rid = _found(re.search(r'<sheet name="' + re.escape(sheet) + r'" sheetId="\d+" r:id="(rId\d+)"', wb))
+    target = _found(re.search(r'<Relationship Id="' + rid + r'" Type="[^"]+" Target="([^"]+)"', rels))
     return "xl/" + target.lstrip("/").removeprefix("xl/")
 
 

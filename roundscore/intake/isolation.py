@@ -24,6 +24,7 @@ from pathlib import Path
 from typing import Any, TypeVar, overload
 
 from roundscore.errors import InputError, Problem
+from roundscore.support.parallel import resolve_jobs
 from roundscore.support.processes import context, worker_started
 from roundscore.model.limits import DEFAULT_LIMITS, MiB, ReadLimits
 
@@ -206,15 +207,9 @@ def _died(process: BaseProcess) -> str:
 
 
 def resolve_read_jobs(jobs: int | None, n_files: int) -> int:
-    """Worker count: ``None`` or 0 = the cores this process may use, never more than the files."""
-    if jobs is None or jobs == 0:
-        try:
-            jobs = len(os.sched_getaffinity(0))
-        except AttributeError:
-            jobs = os.cpu_count() or 1
-    if isinstance(jobs, bool) or not isinstance(jobs, int) or jobs < 0:
-        raise ValueError(f"jobs must be a whole number ≥ 0 (0 = all cores), got {jobs!r}")
-    return max(1, min(jobs, n_files))
+    """Worker count: ``None`` or 0 = the cores this process may use (:func:`~roundscore.support.parallel.resolve_jobs`),
+    never more than the files."""
+    return max(1, min(resolve_jobs(jobs), n_files))
 
 
 #: Most files per batch sent to a worker: a batch is one message each way, so IPC is

@@ -34,6 +34,7 @@ References
 
 from __future__ import annotations
 
+import functools
 import html
 import os
 import re
@@ -327,7 +328,8 @@ def _prolog_verdict(head: bytes, complete: bool) -> bool | None:
     None: more bytes are needed (or the start is unusual and the whole part must be scanned)."""
     if head.startswith(b"\xef\xbb\xbf"):
         head = head[3:]
-    rest = head[_PROLOG.match(head).end():]
+    prolog = _PROLOG.match(head)  # it matches the empty string, so always
+    rest = head[prolog.end() if prolog else 0:]
     if not rest:
         return False if complete else None
     if rest.startswith(b"<!"):
@@ -475,7 +477,7 @@ def _inspect_zipfile(path: str | Path, scan: _Scan) -> None:
         infos = zf.infolist()
         _check_count(scan, len(infos))
         for info in infos:
-            scan.member(info.filename, info.file_size, lambda cap, i=info: _stream(zf, i, file, cap))
+            scan.member(info.filename, info.file_size, functools.partial(_stream, zf, info, file))
 
 
 def _stream(zf: zipfile.ZipFile, info: zipfile.ZipInfo, file: str, cap: int) -> bytes:

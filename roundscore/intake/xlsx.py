@@ -242,6 +242,6 @@ def _read_workbook(path: str | Path, sheets: list[str | None], limits: ReadLimit
             if _fatal(exc):
                 raise
             raise InputError.single(f"corrupt workbook, sheet {name!r} cannot be read: {exc}", file=file) from None
-        rows = [[None if c == "" else c for c in r] for r in data]
+        rows: list[list[object]] = [[None if c == "" else c for c in r] for r in data]
         out.append(SheetRows(file=file, sheet=name, rows=rows, warnings=check.warnings_for(name)))
     return out

@@ -522,7 +522,7 @@ def lab_page_html(ev, parts: ReportParts, lab: str, *, scores: list[dict[str, An
         d = r.measurands[meas].decimals if meas in r.measurands else None
         v = rec.get(SCORE_FIELD.get(rec["score"], "z"))
         rank, n = rec.get("rank"), rec.get("n_scored")
-        standing = f"{int(rank)} of {int(n)}" if isinstance(rank, float) and math.isfinite(rank) else ""
+        standing = f"{int(rank)} of {int(n)}" if isinstance(rank, float) and math.isfinite(rank) and n else ""
         res = rec["result"]
         table.append(
             f'<tr><td><a href="#strip-{_e(meas)}">{_e(meas)}</a></td><td>{_e(rec["unit"])}</td>'
@@ -535,10 +535,10 @@ def lab_page_html(ev, parts: ReportParts, lab: str, *, scores: list[dict[str, An
     own = {rec["measurand"]: rec for rec in rows}
     strips = []
     for meas, strip in parts.strips.items():
-        rec = own.get(meas)
-        v = rec.get(SCORE_FIELD.get(rec["score"], "z")) if rec else None
+        mine = own.get(meas)
+        v = mine.get(SCORE_FIELD.get(mine["score"], "z")) if mine else None
         strips.append(f'<figure class="strip" id="strip-{_e(meas)}">'
-                      f'{strip.for_lab(lab, v, rec["signal"] if rec else None, words)}</figure>')
+                      f'{strip.for_lab(lab, v, mine["signal"] if mine else None, words)}</figure>')
     stand = ("<h2>Where you stand</h2><p>Every laboratory's score on each measurand, yours marked; other "
              f'laboratories are not named.</p><p class="muted">{_e(strip_legend(words))}</p>' + "".join(strips))
     figs = parts.figures

@@ -31,6 +31,7 @@ References
 
 from __future__ import annotations
 
+import functools
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass
@@ -346,12 +347,12 @@ def grubbs_double(values: Sequence[float] | np.ndarray) -> GrubbsPair:
 
     g_hi = ratio(order[:-2])
     g_lo = ratio(order[2:])
-    common = dict(p=p, critical_5=table.critical_5, critical_1=table.critical_1)
+    result = functools.partial(GrubbsResult, p=p, critical_5=table.critical_5, critical_1=table.critical_1)
     return GrubbsPair(
-        high=GrubbsResult(side="high", statistic=g_hi, indices=(int(order[-1]), int(order[-2])),
-                     outcome=_outcome_below(g_hi, table.critical_5, table.critical_1), **common),
-        low=GrubbsResult(side="low", statistic=g_lo, indices=(int(order[0]), int(order[1])),
-                     outcome=_outcome_below(g_lo, table.critical_5, table.critical_1), **common),
+        high=result(side="high", statistic=g_hi, indices=(int(order[-1]), int(order[-2])),
+                    outcome=_outcome_below(g_hi, table.critical_5, table.critical_1)),
+        low=result(side="low", statistic=g_lo, indices=(int(order[0]), int(order[1])),
+                   outcome=_outcome_below(g_lo, table.critical_5, table.critical_1)),
     )
 
 
