@@ -81,7 +81,7 @@ def _lab_tables(table: ResultTable, names: list[str], all_labs: list[str]) -> di
         "n_replicates": np.where(is_cens, n_val + n_cens, np.where(is_val, n_val, 0)),
         "mean": np.where(is_val, agg["mean"].to_numpy(float), np.nan),
         "sd": np.where(is_val, agg["sd"].to_numpy(float), np.nan),
-        "status": status, "relation": np.where(is_cens, rel, None),  # type: ignore[call-overload]  # numpy's stubs refuse a None fill "limit": np.where(is_cens, lim, np.nan),
+        "status": status, "relation": np.where(is_cens, rel, None), "limit": np.where(is_cens, lim, np.nan),  # type: ignore[call-overload]  # numpy's stubs refuse the None fill
         "u": u, "U": U, "k": k, "method": firsts["method"].to_numpy(dtype=object),
         "result_text": text, "used": False, "reason": reason,
     })

@@ -14,6 +14,7 @@ from dataclasses import dataclass, field
 import pandas as pd
 
 from roundscore.errors import Place
+from roundscore.model.round import DecimalMark
 
 __all__ = ["ResultTable", "Record", "COLUMNS", "table_frame"]
 
@@ -48,7 +49,7 @@ class Record:
     method: object = None
     comment: object = None
     #: The decimal mark declared for this record's text cells ("comma", "point"), or None for the round's.
-    decimal: str | None = None
+    decimal: DecimalMark | None = None
     #: Field name → (0-based column index, the column's header as in the file), shared by the rows of a
     #: sheet, so that a problem names the cell (``Results!D11``) and the header the person sees.
     cols: dict | None = None
