@@ -172,11 +172,8 @@ def _b5(first, second, u1=None, u2=None):
 def _stability_fig(first, second, names=("before", "after"), key="st", **kw):
     res = stability(first, second, SIGMA_PT, **kw)
     sets = [names[0]] * len(first) + [names[1]] * len(second)
-    fig = F.stability_figure(sets, [*first, *second], set_labels=names, mean_first=res.mean_first,
-                             mean_second=res.mean_second, u_first=res.u_first, u_second=res.u_second,
-                             difference=res.difference, criterion=res.criterion,
-                             allowed_expanded=res.allowed_expanded, criterion_used=res.criterion_used,
-                             passed=bool(res.passed), key=key, title="invented: stability", unit="mg/kg")
+    plot = F.StabilityPlot.of(res, sets=sets, values=[*first, *second], set_labels=names, unit="mg/kg")
+    fig = F.stability_figure(plot, key=key, title="invented: stability")
     return res, fig
 
 
@@ -263,10 +260,10 @@ def test_stability_figure_without_u_has_no_bar_and_is_reproducible():
 
 
 def test_stability_png_render_for_looking():
-    png = F.stability_figure(["a", "b"], [1.0, 1.1], set_labels=("a", "b"), mean_first=1.0, mean_second=1.1,
-                             u_first=float("nan"), u_second=float("nan"), difference=-0.1, criterion=0.03,
-                             allowed_expanded=float("nan"), criterion_used="simple", passed=False, key="p",
-                             title="t", png=True)
+    plot = F.StabilityPlot(sets=("a", "b"), values=(1.0, 1.1), set_labels=("a", "b"), mean_first=1.0,
+                           mean_second=1.1, u_first=float("nan"), u_second=float("nan"), difference=-0.1,
+                           criterion=0.03, allowed_expanded=float("nan"), criterion_used="simple", passed=False)
+    png = F.stability_figure(plot, key="p", title="t", png=True)
     assert png[:8] == b"\x89PNG\r\n\x1a\n"
 
 

@@ -31,12 +31,13 @@ import tempfile
 from dataclasses import dataclass
 from pathlib import Path
 from collections.abc import Iterable
+from typing import Any
 
 import xlsxwriter
 
-from roundscore.intake.cells import DECIMAL_MARKS
+from roundscore.intake.cells import is_decimal_mark
 from roundscore.errors import Problem, Place, sheet_cell
-from roundscore.model.round import MAX_FORM_REPLICATES, Round
+from roundscore.model.round import MAX_FORM_REPLICATES, DecimalMark, Round
 from roundscore.intake.xlsx import SheetRows
 
 __all__ = ["write_forms", "FormsWritten", "write_form", "records_from_form", "form_decimal", "FormDecimal",
@@ -306,13 +307,14 @@ def _cell_index(ref: str) -> tuple[int, int]:
 class FormDecimal:
     """The decimal mark a returned form declares for its text cells, and where it says so."""
 
-    mark: str
+    mark: DecimalMark
     source: str
 
 
-def _info(info: SheetRows) -> tuple[dict, dict]:
+def _info(info: SheetRows) -> tuple[dict[str, Any], dict[str, int]]:
     """form-info's key/value pairs, and the 1-based row of each key."""
-    kv, rows = {}, {}
+    kv: dict[str, Any] = {}
+    rows: dict[str, int] = {}
     for i, r in enumerate(info.rows[1:], start=2):
         if r and r[0] is not None:
             key = str(r[0]).strip()
@@ -341,7 +343,7 @@ def form_decimal(results: SheetRows, info: SheetRows) -> tuple[FormDecimal | Non
         text = str(v).strip() if v is not None else ""
         if text:
             word = text.split()[0].lower()
-            if word in DECIMAL_MARKS:
+            if is_decimal_mark(word):
                 return FormDecimal(mark=word, source=sheet_cell(results.sheet or RESULTS_SHEET, ref.strip())), []
             return None, [Problem(message="the decimal mark must be point or comma, or the cell left blank",
                                   file=file, sheet=results.sheet, row=row + 1, cell=ref.strip(),
@@ -350,7 +352,7 @@ def form_decimal(results: SheetRows, info: SheetRows) -> tuple[FormDecimal | Non
     v = kv.get("decimal")
     text = str(v).strip().lower() if v is not None else ""
     if text:
-        if text in DECIMAL_MARKS:
+        if is_decimal_mark(text):
             return FormDecimal(mark=text, source=sheet_cell(INFO_SHEET, f"B{where['decimal']}")), []
         return None, [Problem(message="the form-info sheet is damaged (decimal)", file=file, sheet=INFO_SHEET,
                               cell=f"B{where['decimal']}", value=v)]

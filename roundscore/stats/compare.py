@@ -27,7 +27,7 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass
-from typing import Literal
+from typing import Any, Literal
 
 import numpy as np
 from scipy import stats as sps
@@ -36,6 +36,7 @@ from roundscore.errors import StatisticsError
 from roundscore.ranges import confidence_problem, magnitude_problem, spread_problem
 from roundscore.stats.exact import check_choice
 from roundscore.stats.precision import AnovaTable, anova_oneway
+from roundscore.support.plain import plain_fields
 
 __all__ = [
     "DEFAULT_CONFIDENCE",
@@ -109,20 +110,6 @@ def _mean_var(x: np.ndarray) -> tuple[float, float]:
     return m, math.fsum(d * d) / (x.size - 1)
 
 
-def _json(value: object) -> object:
-    if isinstance(value, float):
-        return value if math.isfinite(value) else None
-    if isinstance(value, tuple):
-        return [_json(v) for v in value]
-    if hasattr(value, "to_dict"):
-        return value.to_dict()
-    return value
-
-
-def _as_dict(obj: object) -> dict[str, object]:
-    return {name: _json(getattr(obj, name)) for name in obj.__slots__}  # type: ignore[attr-defined]
-
-
 @dataclass(frozen=True, slots=True, kw_only=True)
 class VarianceTest:
     """Two-sided F test of the ratio of two variances.
@@ -152,9 +139,9 @@ class VarianceTest:
     alpha: float
     reject: bool
 
-    def to_dict(self) -> dict[str, object]:
+    def to_dict(self) -> dict[str, Any]:
         """JSON-ready mapping."""
-        return _as_dict(self)
+        return plain_fields(self)
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -218,9 +205,9 @@ class TwoSampleComparison:
     significant: bool
     conclusion: str
 
-    def to_dict(self) -> dict[str, object]:
+    def to_dict(self) -> dict[str, Any]:
         """JSON-ready mapping (non-finite numbers become null)."""
-        return {"kind": "two-sample", **_as_dict(self), "disclaimer": DISCLAIMER}
+        return {"kind": "two-sample", **plain_fields(self), "disclaimer": DISCLAIMER}
 
     def to_text(self) -> list[str]:
         """Readable lines."""
@@ -289,9 +276,9 @@ class OneSampleComparison:
     significant: bool
     conclusion: str
 
-    def to_dict(self) -> dict[str, object]:
+    def to_dict(self) -> dict[str, Any]:
         """JSON-ready mapping."""
-        return {"kind": "one-sample", **_as_dict(self), "disclaimer": DISCLAIMER}
+        return {"kind": "one-sample", **plain_fields(self), "disclaimer": DISCLAIMER}
 
     def to_text(self) -> list[str]:
         """Readable lines."""
@@ -324,9 +311,9 @@ class PairwiseComparison:
     p_adjusted: float
     significant: bool
 
-    def to_dict(self) -> dict[str, object]:
+    def to_dict(self) -> dict[str, Any]:
         """JSON-ready mapping."""
-        return _as_dict(self)
+        return plain_fields(self)
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -365,9 +352,9 @@ class GroupComparison:
     confidence: float
     conclusion: str
 
-    def to_dict(self) -> dict[str, object]:
+    def to_dict(self) -> dict[str, Any]:
         """JSON-ready mapping."""
-        return {"kind": "groups", **_as_dict(self), "disclaimer": DISCLAIMER}
+        return {"kind": "groups", **plain_fields(self), "disclaimer": DISCLAIMER}
 
     def to_text(self) -> list[str]:
         """Readable lines."""
