@@ -34,7 +34,7 @@ from scipy import stats as sps
 
 from roundscore.errors import StatisticsError
 from roundscore.ranges import confidence_problem, magnitude_problem, spread_problem
-from roundscore.stats.exact import check_choice
+from roundscore.stats.exact import check_choice, mean_variance
 from roundscore.stats.precision import AnovaTable, anova_oneway
 from roundscore.support.plain import plain_fields
 
@@ -100,14 +100,6 @@ def _spread(sd: float, values: np.ndarray, label: str) -> None:
     why = spread_problem(sd, float(np.max(np.abs(values))), f"the values of {label}")
     if why is not None:
         raise StatisticsError(f"{why}; the t test is not meaningful")
-
-
-def _mean_var(x: np.ndarray) -> tuple[float, float]:
-    """Mean (fsum, refined) and variance by the two-pass formula (divisor n − 1)."""
-    m = math.fsum(x) / x.size
-    m += math.fsum(x - m) / x.size
-    d = x - m
-    return m, math.fsum(d * d) / (x.size - 1)
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -440,8 +432,8 @@ def compare_two(
     x, y = _sample(a, la), _sample(b, lb)
     alpha = 1 - confidence
     na, nb = x.size, y.size
-    ma, va = _mean_var(x)
-    mb, vb = _mean_var(y)
+    ma, va = mean_variance(x)
+    mb, vb = mean_variance(y)
     if va == 0 and vb == 0:
         raise StatisticsError(f"groups {la} and {lb}: no spread in either group, the t test is undefined")
     _spread(math.sqrt(max(va, vb)), np.concatenate([x, y]), f"{la} and {lb}")
@@ -527,7 +519,7 @@ def compare_one(
     if not math.isfinite(ref):
         raise StatisticsError(f"reference value {reference!r} is not a finite number")
     alpha = 1 - confidence
-    m, var = _mean_var(v)
+    m, var = mean_variance(v)
     if var == 0:
         raise StatisticsError(f"group {label}: the values do not vary, the t test is undefined")
     _spread(math.sqrt(var), v, label)
@@ -626,7 +618,7 @@ def compare_groups(
     members = {name: x[g == name] for name in names}
     tested = [n for n in names if members[n].size >= MIN_GROUP_SIZE]
     untested = tuple(n for n in names if members[n].size < MIN_GROUP_SIZE)
-    stats_ = [_mean_var(members[n]) for n in tested]
+    stats_ = [mean_variance(members[n]) for n in tested]
     anova = None
     anova_sig = False
     if len(tested) >= 2:
