@@ -250,14 +250,14 @@ def _place(tmp: Path, dest: Path) -> None:
 
 
 def lab_cell(info: SheetRows) -> dict:
-    """Place a form keeps its lab code: the value cell beside the key ``lab`` on the form-info sheet."""
+    """Where a form keeps its lab code: the value cell beside the key ``lab`` on the form-info sheet."""
     for i, r in enumerate(info.rows):
         if i and r and r[0] is not None and str(r[0]).strip() == "lab":
             return {"file": info.file if info.file else None, "sheet": INFO_SHEET, "row": i + 1, "column": "B"}
     return {"file": info.file if info.file else None, "sheet": INFO_SHEET}
 
 
-#: Place the form shows the lab code to the person filling it in (written by :func:`write_form`).
+#: Where the form shows the lab code to the person filling it in (written by :func:`write_form`).
 _SHOWN_LAB_ROW, _SHOWN_LAB_LABEL = 5, "Laboratory code"
 
 

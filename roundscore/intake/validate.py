@@ -222,7 +222,7 @@ def _places(group: list[Problem], most: int = 12) -> str:
 
 
 def lab_places(rows: Iterable[tuple]) -> dict[str, Place]:
-    """Place each lab code of validated rows (:data:`~roundscore.model.table.COLUMNS` tuples) first appears: file,
+    """Where each lab code of validated rows (:data:`~roundscore.model.table.COLUMNS` tuples) first appears: file,
     sheet, row, column."""
     out: dict[str, Place] = {}
     for r in rows:
@@ -243,7 +243,7 @@ def _optional_number(v: object, what: str, rec: Record, problems: list[Problem],
 
 
 def _record_place(first: Record) -> str:
-    """Place an earlier record's result is: ``results.csv, line 3`` or ``form.xlsx, Results!C10``."""
+    """Where an earlier record's result is: ``results.csv, line 3`` or ``form.xlsx, Results!C10``."""
     cell = None
     if first.sheet is not None and first.cols is not None and "value" in first.cols:
         cell = cell_ref(first.row, first.cols["value"][0])

@@ -72,8 +72,8 @@ class ResultTable:
     readings : tuple of (str, str)
         How text cells were read, for the audit trail: (lab or "", what was
         done), one per round or per file, never per cell.
-    lab_places : dict of str to dict
-        Place each lab code was first read (:class:`~roundscore.errors.Problem`
+    lab_places : dict of str to Place
+        Where each lab code was first read (:class:`~roundscore.errors.Problem`
         fields file, sheet, row, column), for messages that name it.
     """
 
