@@ -288,7 +288,7 @@ def part_floor_write(a: argparse.Namespace) -> dict:
 
 
 def _weight(item) -> int:
-    rel, kind, data = item
+    _rel, kind, data = item
     if kind == "xlsx":
         return sum(len(r) for _, rows in data[0] for r in rows)
     return len(data)
@@ -351,7 +351,7 @@ def part_figures(a: argparse.Namespace) -> dict:
     rng = np.random.default_rng(a.seed)
     n = a.figure_sample
     t = time.perf_counter()
-    for i in range(n):
+    for _ in range(n):
         fig, ax = plt.subplots(figsize=(4, 2.5))
         z = rng.normal(0, 1, a.labs)
         ax.plot(np.sort(z), ".", color="#0072B2")

@@ -133,7 +133,7 @@ def check_in_process(path: Path) -> str | None:
         read_file_sheets(path, SHEETS if path.suffix == ".xlsx" else [None], limits=FUZZ_LIMITS)
     except InputError as exc:
         return "refused" if str(exc) else "InputError with an empty message"
-    except BaseException as exc:  # noqa: BLE001 - anything else is what we hunt for
+    except BaseException as exc:  # anything else is what we hunt for
         if isinstance(exc, KeyboardInterrupt):
             raise
         return "".join(traceback.format_exception(exc))

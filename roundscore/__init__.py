@@ -9,6 +9,7 @@ The public API: load a round, read its results, evaluate, write outputs.
 
 from __future__ import annotations
 
+#: The package version: the one place it is written (pyproject.toml reads it, [tool.setuptools.dynamic]).
 __version__ = "0.1.0"
 
 from roundscore.errors import InputError, Problem, RoundFileError, RoundscoreError, StatisticsError

@@ -12,6 +12,7 @@ from __future__ import annotations
 import datetime as _dt
 import re
 from dataclasses import dataclass, field
+from typing import TypedDict, Unpack
 
 from roundscore.text import clip, quote, terminal_text
 
@@ -25,6 +26,9 @@ def _shown(text: object, limit: int = 80) -> str:
 __all__ = [
     "RoundscoreError",
     "Problem",
+    "Location",
+    "Place",
+    "Where",
     "place",
     "is_text_file",
     "cell_ref",
@@ -187,6 +191,30 @@ class Problem:
                 shown_value(self.value) if self.value is not None else None)
 
 
+class Location(TypedDict, total=False):
+    """Where in a file a :class:`Problem` is: its file, sheet, row and cell fields."""
+
+    file: str | None
+    sheet: str | None
+    row: int | None
+    cell: str | None
+
+
+class Place(Location, total=False):
+    """A :class:`Location` and the column: where a lab code was read (:mod:`roundscore.model.labcodes`)."""
+
+    column: str | None
+
+
+class Where(Place, total=False):
+    """A :class:`Problem`'s fields other than the message, as keyword arguments: ``Problem(message=m, **where)``."""
+
+    lab: str | None
+    measurand: str | None
+    value: object
+    hint: str | None
+
+
 @dataclass(eq=False)
 class InputError(ValueError, RoundscoreError):
     """One or more problems in the user's input files.
@@ -212,7 +240,7 @@ class InputError(ValueError, RoundscoreError):
         ValueError.__init__(self, str(self))
 
     @classmethod
-    def single(cls, message: str, **where: object) -> "InputError":
+    def single(cls, message: str, **where: Unpack[Where]) -> InputError:
         """An error with a single problem; ``where`` are :class:`Problem` fields."""
         return cls([Problem(message=message, **where)], summary=message)
 
@@ -242,7 +270,7 @@ class RoundFileError(InputError):
     """A mistake in ``round.toml``: names the file, the key, what was found and what is allowed."""
 
     @classmethod
-    def key(cls, file: str, key: str, found: object, allowed: str) -> "RoundFileError":
+    def key(cls, file: str, key: str, found: object, allowed: str) -> RoundFileError:
         msg = f"{file}: key {quote(key, 80)}: found {shown_value(found)}; allowed: {allowed}"
         return cls([Problem(message=msg)], summary=msg)
 

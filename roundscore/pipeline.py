@@ -10,7 +10,7 @@ from __future__ import annotations
 import itertools
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Callable, Iterable
+from collections.abc import Callable, Iterable
 
 from roundscore.errors import RoundscoreError
 from roundscore.evaluation import evaluate as _evaluation
@@ -92,7 +92,8 @@ def load_and_evaluate(round_path: str | Path | Round, *, jobs: int | None = None
         inputs = read_inputs(rnd, jobs=jobs, progress=progress)
         return _evaluation.evaluate(inputs.round, inputs.table, inputs.participants, items=inputs.items)
     except RoundscoreError as exc:  # the round file's warnings (unknown keys...) still reach the user
-        raise with_warnings(exc, rnd.warnings)
+        with_warnings(exc, rnd.warnings)
+        raise
 
 
 def evaluate(rnd: Round, table: ResultTable, participants: dict[str, Participant] | None = None,
@@ -144,7 +145,8 @@ def run_round(round_path: str | Path, out: str | Path, *, archive: str | Path | 
         protect, input_folders = round_inputs(rnd, store)
         check_target(out, protect=protect, input_folders=input_folders)  # refused before any work is done
     except RoundscoreError as exc:
-        raise with_warnings(exc, rnd.warnings)
+        with_warnings(exc, rnd.warnings)
+        raise
     ev = load_and_evaluate(rnd, jobs=jobs, progress=progress)
     history = None
     if store is not None:

@@ -14,7 +14,7 @@ import hashlib
 import re
 from collections import Counter
 from dataclasses import dataclass
-from functools import lru_cache
+from functools import cache
 from pathlib import Path
 
 import numpy as np
@@ -80,7 +80,7 @@ def digests(folder: Path = NIST_ANOVA_DIR) -> dict[str, str]:
     return out
 
 
-@lru_cache(maxsize=None)
+@cache
 def nist_anova(name: str, folder: Path = NIST_ANOVA_DIR) -> NistAnova:
     """The data set ``name`` from tests/data/nist_strd_anova, its digest checked (read once per session)."""
     path = folder / f"{name}.dat"

@@ -143,7 +143,7 @@ def test_store_round_idempotent_then_refused_then_replaced_with_audit(archive_at
     assert again.status == "unchanged"
     assert "nothing changed" in again.message
     changed = scores_frame(shift=0.25)
-    with pytest.raises(ArchiveError, match="different content.*replace=True replaces it"):
+    with pytest.raises(ArchiveError, match=r"different content.*replace=True replaces it"):
         store(db, changed)
     assert audit(db) == []  # a refusal writes nothing
     done = store(db, changed, replace=True, reason="assigned value corrected")
@@ -505,7 +505,7 @@ def test_newer_schema_and_foreign_files_are_refused(tmp_path):
         archive.lab_history(db, lab="L01")
     junk = tmp_path / "junk.sqlite"
     junk.write_bytes(b"this is not a database at all" * 100)
-    with pytest.raises(ArchiveError, match="junk.sqlite: not a roundscore archive: not an SQLite"):
+    with pytest.raises(ArchiveError, match=r"junk.sqlite: not a roundscore archive: not an SQLite"):
         archive.lab_history(junk, lab="L01")
     with pytest.raises(ArchiveError, match="no archive at"):
         archive.lab_history(tmp_path / "absent.sqlite", lab="L01")

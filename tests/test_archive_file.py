@@ -123,7 +123,7 @@ def test_reading_commands_change_nothing(tmp_path):
     assert set(archive.round_history(db, scheme="AQ", labs=["L01", "L02"], round_id="R9",
                                      round_date="2030-01-01", last=8)) == {"L01", "L02"}
     for argv in (["history", "show", "--lab", "L02"], ["history", "check"]):
-        code, text, err = run_cli(*argv, "--archive", db)
+        code, _text, err = run_cli(*argv, "--archive", db)
         assert code in (0, 1) and "Traceback" not in err, err
     assert snapshot(folder) == before  # the archive's bytes, and no -wal/-shm left behind
 
@@ -136,7 +136,7 @@ def test_an_archive_written_before_the_application_id_is_read_as_is_and_marked_o
     assert (count(db, "PRAGMA user_version"), count(db, "PRAGMA application_id")) == (2, 0)
     before = db.read_bytes()
     assert len(archive.lab_history(db, lab="L01")) == 2  # recognised by its tables, read as is
-    code, text, err = run_cli("history", "show", "--lab", "L01", "--archive", db)
+    code, _text, err = run_cli("history", "show", "--lab", "L01", "--archive", db)
     assert code == 0, err
     assert db.read_bytes() == before
     store(db, scores_frame(round_id="R2", date="2024-09-01"))  # the first write migrates
@@ -199,7 +199,7 @@ def test_damaged_archives_are_reported_and_never_written(tmp_path, good_archive,
     assert text == ""  # nothing shown: no partial table
     code, text, err = run_cli("history", "add", lab_csv(tmp_path, labs=("L001",)), "--archive", db)
     assert code == 2 and f"{db}: {said}" in text and "Traceback" not in text + err
-    with pytest.raises(ArchiveError, match="damaged|not an SQLite database") as got:
+    with pytest.raises(ArchiveError, match=r"damaged|not an SQLite database") as got:
         store(db, scores_frame(round_id="R2"))
     assert not isinstance(got.value, ArchiveConflict)
     assert snapshot(folder) == before
@@ -237,7 +237,7 @@ def test_a_held_lock_is_waited_for_and_reported_as_busy(held, tmp_path):
 def test_score_with_a_busy_archive_says_busy_and_never_advises_replacing(held, tmp_path):
     folder = small_round(tmp_path / "r", round_id="AQ-1", date="2025-01-10")
     before = rows(held)
-    code, text, err = run_cli("score", folder, "--archive", held)
+    code, _text, err = run_cli("score", folder, "--archive", held)
     assert code == 2 and "Traceback" not in err
     assert "the outputs were written to" in err and "the archive is busy" in err
     assert "replace" not in err.lower()
@@ -295,7 +295,7 @@ def test_other_round_file_paths_stay_inside_the_round_folder(tmp_path):
     folder = small_round(tmp_path / "r", round_id="AQ-1", date="2025-01-10",
                          extra='participants = "../people.csv"\narchive = "../h.sqlite"')
     (tmp_path / "people.csv").write_text("lab,name\nW1,Somewhere\n", encoding="utf-8")
-    with pytest.raises(RoundFileError, match="round.participants.*a path inside the round folder"):
+    with pytest.raises(RoundFileError, match=r"round.participants.*a path inside the round folder"):
         load_round(folder)
 
 

@@ -86,16 +86,15 @@ def test_a_write_that_fails_keeps_nothing_of_it(archive_at):
     where = archive_at()
     store(where, scores_frame())
     before = archive.lab_history(where, lab="L01")
-    with pytest.raises(RuntimeError, match="stop"):
-        with backends.open_store(where).writing() as tx:
-            tx.remove_round("AQ", "2024-1")
-            tx.add_round(record())
-            tx.add_scores("AQ", "R1", rows_of(scores_frame(), "L01"))
-            tx.add_audit([AuditEntry(replaced_at="x", reason="r", scheme="AQ", round_id="R1",
-                                     lab=None, kind="round", row="{}")])
-            assert tx.find_round("AQ", "R1") == record()  # a write's reads see its writes
-            assert tx.find_round("AQ", "2024-1") is None
-            raise RuntimeError("stop")
+    with pytest.raises(RuntimeError, match="stop"), backends.open_store(where).writing() as tx:
+        tx.remove_round("AQ", "2024-1")
+        tx.add_round(record())
+        tx.add_scores("AQ", "R1", rows_of(scores_frame(), "L01"))
+        tx.add_audit([AuditEntry(replaced_at="x", reason="r", scheme="AQ", round_id="R1",
+                                 lab=None, kind="round", row="{}")])
+        assert tx.find_round("AQ", "R1") == record()  # a write's reads see its writes
+        assert tx.find_round("AQ", "2024-1") is None
+        raise RuntimeError("stop")
     assert totals(where) == (1, 6, 0)
     assert archive.lab_history(where, lab="L01").equals(before)
 

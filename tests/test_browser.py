@@ -49,7 +49,8 @@ class Browser:
 
         # The child reads commands on fd 3 and writes replies on fd 4. Copies of the pipe ends above 9 are
         # moved there after the fork (so neither overwrites the other); the originals close on exec.
-        r_hi, w_hi = fcntl.fcntl(to_child_r, fcntl.F_DUPFD_CLOEXEC, 10), fcntl.fcntl(from_child_w, fcntl.F_DUPFD_CLOEXEC, 10)
+        r_hi = fcntl.fcntl(to_child_r, fcntl.F_DUPFD_CLOEXEC, 10)
+        w_hi = fcntl.fcntl(from_child_w, fcntl.F_DUPFD_CLOEXEC, 10)
 
         def fds() -> None:
             os.dup2(r_hi, 3)
@@ -217,7 +218,7 @@ def test_lab_page_marks_own_bar_and_keeps_others_anonymous(browser, demo_report)
 
 def test_report_prints_to_pdf(browser, demo_report, tmp_path):
     """The print stylesheet gives a multi-page PDF (sections start on new pages)."""
-    ev, out = demo_report
+    _ev, out = demo_report
     browser.open((out / REPORT_NAME).as_uri())
     pdf = base64.b64decode(browser.call("Page.printToPDF", session=True, printBackground=True,
                                         preferCSSPageSize=True)["data"])

@@ -39,7 +39,7 @@ def test_welch_df_matches_statsmodels() -> None:
     # Reference: statsmodels.stats.weightstats.ttest_ind(usevar="unequal") returns the Welch df.
     from statsmodels.stats.weightstats import ttest_ind
 
-    t, p, df = ttest_ind(ICPMS, WIDE, usevar="unequal")
+    t, _p, df = ttest_ind(ICPMS, WIDE, usevar="unequal")
     res = compare_two(ICPMS, WIDE, method="welch")
     assert res.df == pytest.approx(df, rel=1e-12) and res.t == pytest.approx(t, rel=1e-12)
 

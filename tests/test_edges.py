@@ -385,7 +385,7 @@ def test_the_cli_belt_hides_library_warnings(monkeypatch, capsys):
 
     def noisy(args):
         np.log(np.zeros(1))  # a numpy RuntimeWarning
-        warnings.warn("a library's UserWarning")
+        warnings.warn("a library's UserWarning", stacklevel=1)
         return 0
 
     monkeypatch.setattr(sys, "warnoptions", [])  # no -W option: the belt is on

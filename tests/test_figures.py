@@ -58,7 +58,7 @@ def test_lab_overlay_is_inside_the_axes_and_named():
     assert out.startswith(f.svg[: f.svg.rfind("</svg>")])  # the shared drawing is kept as it is
     mark = out[out.rfind('<g class="lab-mark"'):]
     assert "your lab (L12)" in mark
-    left, top, right, bottom = f.axes_box
+    left, _top, right, _bottom = f.axes_box
     rx = float(re.search(r'<rect x="([\d.]+)"', mark).group(1))
     assert left <= rx <= right
     assert f.for_lab("L6") == f.svg  # not scored: nothing marked
@@ -172,11 +172,8 @@ def _b5(first, second, u1=None, u2=None):
 def _stability_fig(first, second, names=("before", "after"), key="st", **kw):
     res = stability(first, second, SIGMA_PT, **kw)
     sets = [names[0]] * len(first) + [names[1]] * len(second)
-    fig = F.stability_figure(sets, [*first, *second], set_labels=names, mean_first=res.mean_first,
-                             mean_second=res.mean_second, u_first=res.u_first, u_second=res.u_second,
-                             difference=res.difference, criterion=res.criterion,
-                             allowed_expanded=res.allowed_expanded, criterion_used=res.criterion_used,
-                             passed=bool(res.passed), key=key, title="invented: stability", unit="mg/kg")
+    plot = F.StabilityPlot.of(res, sets=sets, values=[*first, *second], set_labels=names, unit="mg/kg")
+    fig = F.stability_figure(plot, key=key, title="invented: stability")
     return res, fig
 
 
@@ -195,7 +192,7 @@ FAILING = ([2.51, 2.49, 2.50], [2.44, 2.45, 2.46])  # ȳ₁ − ȳ₂ = 2.50 −
 
 
 def test_stability_figure_draws_means_bars_and_band_at_their_data_coordinates():
-    y1, y2, u1, u2, diff, simple, expanded = _b5(*PASSING)
+    y1, y2, u1, u2, _diff, simple, expanded = _b5(*PASSING)
     res, f = _stability_fig(*PASSING)
     assert (res.mean_first, res.mean_second, res.criterion) == pytest.approx((y1, y2, simple))
     assert f.kind == "none" and not f.marks  # no lab marks on an item figure
@@ -227,7 +224,7 @@ def test_stability_figure_draws_means_bars_and_band_at_their_data_coordinates():
     (FAILING, {"u_first": 0.01, "u_second": 0.01}, True, "expanded"),  # 0.050 ≤ 0.030 + 2√(2·0.01²) = 0.0583
 ])
 def test_stability_verdict_in_words_follows_the_check(study, kw, expect_pass, used):
-    y1, y2, u1, u2, diff, simple, expanded = _b5(*study, kw.get("u_first"), kw.get("u_second"))
+    _y1, _y2, _u1, _u2, diff, simple, expanded = _b5(*study, kw.get("u_first"), kw.get("u_second"))
     allowance = simple if used == "simple" else expanded
     assert bool(abs(diff) <= allowance) is expect_pass  # the hand computation itself
     res, f = _stability_fig(*study, **kw)
@@ -263,10 +260,10 @@ def test_stability_figure_without_u_has_no_bar_and_is_reproducible():
 
 
 def test_stability_png_render_for_looking():
-    png = F.stability_figure(["a", "b"], [1.0, 1.1], set_labels=("a", "b"), mean_first=1.0, mean_second=1.1,
-                             u_first=float("nan"), u_second=float("nan"), difference=-0.1, criterion=0.03,
-                             allowed_expanded=float("nan"), criterion_used="simple", passed=False, key="p",
-                             title="t", png=True)
+    plot = F.StabilityPlot(sets=("a", "b"), values=(1.0, 1.1), set_labels=("a", "b"), mean_first=1.0,
+                           mean_second=1.1, u_first=float("nan"), u_second=float("nan"), difference=-0.1,
+                           criterion=0.03, allowed_expanded=float("nan"), criterion_used="simple", passed=False)
+    png = F.stability_figure(plot, key="p", title="t", png=True)
     assert png[:8] == b"\x89PNG\r\n\x1a\n"
 
 
@@ -290,7 +287,7 @@ def test_step_columns_fill_each_run_without_gaps():
     from matplotlib.collections import PolyCollection
     from matplotlib.colors import to_hex
 
-    fig, ax = FB.new_figure((4, 2))
+    _fig, ax = FB.new_figure((4, 2))
     FB.step_columns(ax, np.array([0.0, 1.0, 2.0, 3.0]), 0.0, np.array([1.0, 2.0, -1.0, 0.5]),
                    ["#111111", "#111111", "#222222", "#222222"])
     (pc,) = [c for c in ax.collections if isinstance(c, PolyCollection)]
@@ -304,7 +301,6 @@ def test_step_columns_fill_each_run_without_gaps():
 def test_mandel_envelope_colours_a_lone_lab_beyond_the_line():
     # Above MAX_BARS labs the bars become column envelopes coloured by each column's worst lab: one lab
     # beyond the 1 % line among hundreds within must still colour its column (ISO 5725-2 §7.3.1 h plot).
-    from matplotlib.collections import PolyCollection
     from matplotlib.colors import to_hex
 
     n = 1200

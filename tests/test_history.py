@@ -318,7 +318,7 @@ def test_show_table_and_outputs(tmp_path, capsys):
         assert colour in svg
     png = (out_dir / "history.png").read_bytes()
     assert png[:8] == b"\x89PNG\r\n\x1a\n"
-    got, again = run_cli(["history", "show", "--archive", str(db), "--lab", "L07",
+    got, _again = run_cli(["history", "show", "--archive", str(db), "--lab", "L07",
                           "--out", str(out_dir)], capsys)
     assert (out_dir / "history.svg").read_text().lower() == svg  # deterministic
 

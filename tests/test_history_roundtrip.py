@@ -282,6 +282,6 @@ def test_history_rounds_date_order_scheme_and_round_toml_key(tmp_path, monkeypat
 
 def test_archive_needs_a_scheme_and_writes_nothing_without(tmp_path):
     folder = small_round(tmp_path / "r", round_id="AQ-1", date="2025-01-10", scheme="")
-    code, text, err = run_cli("score", folder, "--archive", tmp_path / "a.sqlite")
+    code, _text, err = run_cli("score", folder, "--archive", tmp_path / "a.sqlite")
     assert code == 2 and "'round.scheme'" in err and "round.toml" in err
     assert not (folder / "out").exists() and not (tmp_path / "a.sqlite").exists()

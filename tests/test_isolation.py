@@ -144,11 +144,11 @@ def test_refusals_come_back_with_their_problems(tmp_path, files):
 def test_environment_hook_aborts_one_file_in_a_separate_run(files, tmp_path):
     # The whole program survives a real os.abort() in a reader, through the environment hook.
     code = (
-        "import sys; sys.path.insert(0, %r)\n"
+        f"import sys; sys.path.insert(0, {str(Path(__file__).parent)!r})\n"
         "from roundscore.intake.isolation import read_many, ReadFailure\n"
         "got = read_many(sys.argv[1:], ['Results'], jobs=2)\n"
         "print(sum(isinstance(g, ReadFailure) for g in got), len(got))\n"
-    ) % str(Path(__file__).parent)
+    )
     env = dict(os.environ, **{READER_HOOK_ENV: "test_isolation:reader_abort"})
     out = subprocess.run([sys.executable, "-c", code, *map(str, files)], env=env, capture_output=True,
                          text=True, timeout=120, cwd=str(Path(__file__).parent))

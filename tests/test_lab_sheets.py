@@ -211,7 +211,7 @@ def test_rows_removed_or_the_round_sheet_edited_are_refused(sheets, tmp_path, db
 def test_an_older_sheet_without_digest_is_accepted_with_a_warning_but_still_checked(tmp_path, db):
     frame = scores_frame(labs=("L05",))
     old = write_workbook(tmp_path / "L05.xlsx", frame, lab="L05")  # the format before digests
-    code, text, err = run_cli("history", "add", old, "--archive", db)
+    code, text, _err = run_cli("history", "add", old, "--archive", db)
     assert code == 0 and ": added: " in text
     assert "warning: written by a roundscore without sheet digests" in text
     assert "checked for consistency" in text

@@ -200,7 +200,7 @@ def test_form_lab_not_in_participants_is_an_error_when_asked(forms_round, capsys
 
 def test_unknown_labs_key_is_checked(make_round):
     folder = make_round(TOML.format(extra='unknown_labs = "refuse"'), _results(LABS))
-    with pytest.raises(RoundFileError, match="unknown_labs.*'warn', 'error'"):
+    with pytest.raises(RoundFileError, match=r"unknown_labs.*'warn', 'error'"):
         load_round(folder)
 
 

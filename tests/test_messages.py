@@ -240,7 +240,7 @@ def test_round_file_warnings_are_shown_with_its_mistakes(make_round, capsys):
 
 def test_a_bad_decimal_value_in_the_round_file(make_round):
     folder = _long(make_round, 'decimal = "dot"', "lab,measurand,replicate,value\n")
-    with pytest.raises(RoundFileError, match="round.decimal.*'comma' or 'point'"):
+    with pytest.raises(RoundFileError, match=r"round.decimal.*'comma' or 'point'"):
         load_round(folder)
 
 

@@ -209,10 +209,9 @@ def test_a_failed_run_removes_only_its_own_temporary_folder(tmp_path):
     with atomic_folder(out) as tmp:
         (tmp / "a.csv").write_text("old")
     (tmp_path / "sibling.txt").write_text("keep")
-    with pytest.raises(RuntimeError):
-        with atomic_folder(out) as tmp:
-            (tmp / "a.csv").write_text("new")
-            raise RuntimeError("boom")
+    with pytest.raises(RuntimeError), atomic_folder(out) as tmp:
+        (tmp / "a.csv").write_text("new")
+        raise RuntimeError("boom")
     assert (out / "a.csv").read_text() == "old"
     assert sorted(p.name for p in tmp_path.iterdir()) == ["out", "sibling.txt"]
 

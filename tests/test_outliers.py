@@ -206,7 +206,7 @@ def test_screen_skips_with_notes() -> None:
     assert any("fewer than 3 labs" in n for n in s.notes)
     s2 = screen([1.0, 1.0, 2.0, 2.0, 3.0, 3.0], ["A", "A", "B", "B", "C", "C"])
     assert any("no lab shows within-lab spread" in n for n in s2.notes)
-    with pytest.raises(InputError, match="drop: found .all.; allowed: "):
+    with pytest.raises(InputError, match=r"drop: found .all.; allowed: "):
         screen([1.0, 2.0], ["A", "B"], drop="all")  # type: ignore[arg-type]
 
 

@@ -61,7 +61,7 @@ def _edit(path: Path, old: str, new: str) -> None:
 def test_a_changed_byte_is_refused_by_its_digest(copy):
     _edit(copy / "SmLs01.dat", "           1         1.4\n", "           1         1.5\n")
     parse_nist_anova(copy / "SmLs01.dat")  # still well formed: only the digest can tell
-    with pytest.raises(RefDataError, match="SHA-256 .* differs from SHA256SUMS"):
+    with pytest.raises(RefDataError, match=r"SHA-256 .* differs from SHA256SUMS"):
         nist_anova("SmLs01", copy)
 
 

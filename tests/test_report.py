@@ -1,4 +1,5 @@
-"""The HTML report and the lab pages, on the invented demo round (roundscore.demo.demo_round) and hand-built stage tables."""
+"""The HTML report and the lab pages, on the invented demo round (roundscore.demo.demo_round) and hand-built stage
+tables."""
 
 from __future__ import annotations
 
@@ -21,7 +22,8 @@ def demo(tmp_path_factory):
     make_demo_round(root / "round")
     toml = root / "round" / "round.toml"
     # a Youden pair for this test (the demo round itself has none)
-    toml.write_text(toml.read_text().replace("replicates = 2\n", 'replicates = 2\nyouden = [["iodine", "arsenic"]]\n', 1))
+    toml.write_text(toml.read_text().replace("replicates = 2\n", 'replicates = 2\nyouden = [["iodine", "arsenic"]]\n',
+                                             1))
     ev = load_and_evaluate(root / "round")
     parts = R.report_parts(ev)
     return ev, parts

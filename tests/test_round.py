@@ -54,7 +54,8 @@ def test_paper_and_return_by(make_round, line, paper, return_by):
     ('[round]\nid="R"\nresults="../elsewhere.csv"\n[measurand.a]\nunit="mg/kg"\nsigma_pt=1',
      ["round.results", "inside the round folder"]),
     ('[round]\nid="R"\n', ["at least one [measurand.NAME]"]),
-    ('[round]\nid="R"\nreplicates="two"\n[measurand.a]\nunit="mg/kg"\nsigma_pt=1', ["round.replicates", "whole number"]),
+    ('[round]\nid="R"\nreplicates="two"\n[measurand.a]\nunit="mg/kg"\nsigma_pt=1',
+     ["round.replicates", "whole number"]),
     ('[round\nid="R"', ["not valid TOML"]),
     ('[round]\nid="R"\npaper="a3"\n[measurand.a]\nunit="mg/kg"\nsigma_pt=1', ["round.paper", "'a3'", "'letter'"]),
     ('[round]\nid="R"\nreturn_by="next week"\n[measurand.a]\nunit="mg/kg"\nsigma_pt=1',
@@ -89,7 +90,7 @@ def test_exclusions(make_round):
     rnd = load_round(make_round(GOOD + '\n[[exclude]]\nlab = "L3"\nreason = "sample thawed"\nscored = false\n'))
     (e,) = rnd.exclusions
     assert e.lab == "L3" and e.measurand is None and not e.scored
-    with pytest.raises(RoundFileError, match="exclude\\[1\\].reason"):
+    with pytest.raises(RoundFileError, match=r"exclude\[1\].reason"):
         load_round(make_round(GOOD + '\n[[exclude]]\nlab = "L3"\n'))
 
 
@@ -100,7 +101,7 @@ def test_missing_round_file(tmp_path):
 
 def test_missing_results_file_named(make_round):
     rnd = load_round(make_round(GOOD))
-    with pytest.raises(RoundFileError, match="'results.csv' not found"):
+    with pytest.raises(RoundFileError, match=r"'results.csv' not found"):
         result_files(rnd)
 
 
@@ -117,5 +118,5 @@ def test_limits_table_configures_the_readers(make_round):
     assert any("did you mean 'timeout_s'" in w for w in rnd.warnings)
     with pytest.raises(InputError, match="MiB"):
         read_results(rnd)
-    with pytest.raises(RoundFileError, match="limits.memory_mib"):
+    with pytest.raises(RoundFileError, match=r"limits.memory_mib"):
         load_round(make_round('[round]\nid="R"\n[limits]\nmemory_mib = -1\n[measurand.a]\nunit="mg/kg"\nsigma_pt=1\n'))

@@ -104,7 +104,7 @@ def test_round_file_too_large_is_refused_unread(make_round, monkeypatch):
 def test_too_many_measurands_refused_at_load(make_round, monkeypatch):
     monkeypatch.setattr(round_module, "MAX_MEASURANDS", 3)
     extra = "".join(f'\n[measurand.m{i}]\nunit = "mg/kg"\nsigma_pt = 1.0\n' for i in range(3))
-    with pytest.raises(RoundFileError, match="4 \\[measurand.NAME\\] tables; a round has at most 3"):
+    with pytest.raises(RoundFileError, match=r"4 \[measurand.NAME\] tables; a round has at most 3"):
         load_round(_round(make_round, measurand_extra=extra))
 
 

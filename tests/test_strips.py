@@ -48,7 +48,8 @@ def test_bar_positions_follow_the_axis():
 def test_limit_lines_follow_the_score(score, dashed, solid):
     # ISO 13528 §9.4 (z: warning ±2 dashed, action ±3 solid) and §9.7 (En: action ±1), from memory
     svg = _strip(score=score).svg
-    lines = re.findall(r'<path d="((?:M[\d.]+ [\d.]+V[\d.]+)+)" stroke="#444444" stroke-width="0.9"( stroke-dasharray)?',
+    lines = re.findall(r'<path d="((?:M[\d.]+ [\d.]+V[\d.]+)+)" stroke="#444444" '
+                       r'stroke-width="0.9"( stroke-dasharray)?',
                        svg)
     n_dashed = sum(p.count("M") for p, d in lines if d)
     n_solid = sum(p.count("M") for p, d in lines if not d)

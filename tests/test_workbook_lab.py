@@ -54,7 +54,7 @@ def _scores_table(path) -> tuple[list[str], list[dict]]:
 
 
 def test_no_round_statistics_or_mandel_sheet_but_a_pointer_to_the_summary(books):
-    ev, out = books
+    _ev, out = books
     names = openpyxl.load_workbook(out / "labs" / "K07.xlsx").sheetnames
     assert names == ["Scores", "Chart data", "data", "round"]  # no archive here, so no History sheet
     texts = [c for row in openpyxl.load_workbook(out / "labs" / "K07.xlsx")["Scores"].iter_rows(values_only=True)

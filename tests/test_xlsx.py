@@ -109,7 +109,7 @@ def test_workbook_sheets_and_missing_sheet(tmp_path: Path):
 def test_legacy_xls_refused_with_advice(tmp_path: Path):
     path = tmp_path / "old.xls"
     path.write_bytes(b"\xd0\xcf\x11\xe0\xa1\xb1\x1a\xe1" + bytes(1000))
-    with pytest.raises(InputError, match="save as .xlsx without a password"):
+    with pytest.raises(InputError, match=r"save as .xlsx without a password"):
         read_rows(path)
 
 

@@ -27,10 +27,11 @@ import sys
 from pathlib import Path
 from typing import Any
 
-from roundscore.intake.cells import DECIMAL_MARKS, AmbiguousNumber, CellError, parse_cell
+from roundscore.intake.cells import DECIMAL_MARKS, AmbiguousNumber, CellError, DecimalMark, parse_cell
 from roundscore.errors import InputError, Problem
 from roundscore.ranges import confidence_problem, magnitude_problem
-from roundscore.stats.compare import DEFAULT_CONFIDENCE, MIN_GROUP_SIZE, compare_one, compare_two
+from roundscore.stats.compare import (DEFAULT_CONFIDENCE, MIN_GROUP_SIZE, OneSampleComparison, TwoSampleComparison,
+                                      compare_one, compare_two)
 from roundscore.text import json_text, terminal_text
 
 __all__ = ["register", "run", "read_numbers", "read_csv_columns"]
@@ -67,7 +68,7 @@ def register(subparsers: Any) -> argparse.ArgumentParser:
 
 
 def _number(text: str, *, file: str | None = None, column: str | None = None, row: int | None = None,
-            decimal: str | None = None) -> float | None:
+            decimal: DecimalMark | None = None) -> float | None:
     """One number as a lab would type it; None for a blank; InputError otherwise."""
     try:
         cell = parse_cell(text, decimal=decimal)
@@ -88,7 +89,7 @@ def _number(text: str, *, file: str | None = None, column: str | None = None, ro
     return float(cell.value)  # type: ignore[arg-type]
 
 
-def read_numbers(texts: list[str], *, column: str, decimal: str | None = None) -> list[float]:
+def read_numbers(texts: list[str], *, column: str, decimal: DecimalMark | None = None) -> list[float]:
     """Numbers given on the command line; ``row`` in errors is the 1-based position."""
     out = []
     for i, text in enumerate(texts, start=1):
@@ -99,7 +100,7 @@ def read_numbers(texts: list[str], *, column: str, decimal: str | None = None) -
     return out
 
 
-def read_csv_columns(path: str, columns: list[str], *, decimal: str | None = None) -> dict[str, list[float]]:
+def read_csv_columns(path: str, columns: list[str], *, decimal: DecimalMark | None = None) -> dict[str, list[float]]:
     """Numbers from named columns of a CSV file (comma, semicolon or tab separated).
 
     Blank cells are skipped.  Rows are numbered as in a spreadsheet (header = row 1).
@@ -187,7 +188,7 @@ def run(args: argparse.Namespace) -> int:
         cols = [args.a] + ([args.b] if args.b else [])
         data = read_csv_columns(args.csv, cols, decimal=decimal)
         first, label_a = data[args.a], args.label_a or args.a
-        second, label_b = (data[args.b], args.label_b or args.b) if args.b else (None, None)
+        second, label_b = (data[args.b], args.label_b or args.b) if args.b else (None, "")
     else:
         if args.a or args.b:
             raise InputError.single("--a and --b name CSV columns; use them with --csv", column="--a/--b")
@@ -202,13 +203,15 @@ def run(args: argparse.Namespace) -> int:
         elif reference is None:
             raise InputError.single("give the second set with --vs, or a --reference value", column="--vs")
         else:
-            second, label_b = None, None
+            second, label_b = None, ""
     _enough(first, label=args.a if file else "values", file=file)
+    result: TwoSampleComparison | OneSampleComparison
     if second is not None:
         _enough(second, label=args.b if file else "--vs", file=file)
         result = compare_two(first, second, confidence=confidence, method=args.method,
                              labels=(label_a, label_b))
     else:
+        assert reference is not None, "without a second set, a --reference value (checked above)"
         result = compare_one(first, reference, confidence=confidence, label=label_a)
     # Labels come from the CSV's column names: shown with control characters escaped.
     if args.json:

@@ -23,7 +23,7 @@ import datetime as _dt
 import json
 import sys
 from pathlib import Path
-from typing import Sequence
+from collections.abc import Sequence
 
 import numpy as np
 import pandas as pd
@@ -240,10 +240,10 @@ def format_check(report: history.HistoryCheck) -> str:
         if s.bias is not None:
             lines.append(f"  bias check: {s.bias.conclusion}")
         lines += [f"  note: {t(n)}" for n in s.notes]
-    biased = [s for s in report.series if not s.fired and s.bias is not None and s.bias.biased]
-    for s in biased:
+    biased = [(s, s.bias) for s in report.series if not s.fired and s.bias is not None and s.bias.biased]
+    for s, bias in biased:
         lines.append(f"{t(s.lab)} / {t(s.scheme)} / {t(s.measurand)}: no rule fired; bias check: "
-                     f"{s.bias.conclusion}")
+                     f"{bias.conclusion}")
     lines.append(f"{len(fired)} of {len(report.series)} series with a rule firing in the last "
                  f"{report.window} scored rounds.")
     if any(s.combined is not None for s in fired):

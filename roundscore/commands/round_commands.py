@@ -80,7 +80,8 @@ def summary_text(ev: RoundEvaluation) -> str:
     lines.append(f"  {signal_legend_text()}")
     for name, m in ev.measurands.items():
         if not m.scored:  # say why, here too: a row of "nan" and "not scored" alone does not
-            lines.append(f"  {name}: not scored: " + ("; ".join(m.notes) or "the assigned value or σ_pt could not be set"))
+            lines.append(f"  {name}: not scored: "
+                         + ("; ".join(m.notes) or "the assigned value or σ_pt could not be set"))
     for name, notes in ev.stage_notes.items():
         for note in notes:
             lines.append(f"  {t(name)}: {t(note)}")
@@ -110,7 +111,7 @@ def run_score(args: argparse.Namespace) -> int:
     rp = Path(args.round)
     folder = rp if rp.is_dir() else rp.parent
     out = Path(args.out) if args.out else folder / "out"
-    stored = []
+    stored: list[object] = []
     bar = terminal_bar(enabled=False if args.quiet else None)
     try:
         ev, outputs = run_round(rp, out, archive=args.archive, jobs=args.jobs, progress=bar,

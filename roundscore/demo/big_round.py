@@ -34,7 +34,7 @@ import re
 import zipfile
 from dataclasses import dataclass, replace
 from pathlib import Path
-from typing import Sequence
+from collections.abc import Sequence
 
 import numpy as np
 
@@ -189,11 +189,18 @@ def fill_form(path: Path, cells: dict[str, str | float]) -> None:
     tmp.replace(path)
 
 
+def _found(match: re.Match[str] | None) -> str:
+    """The first group of a match in a workbook this module wrote itself (so it is there)."""
+    if match is None:
+        raise ValueError("the workbook written lacks a part it always has")
+    return match.group(1)
+
+
 def _sheet_part(data: dict[str, bytes], sheet: str) -> str:
     wb = data["xl/workbook.xml"].decode()
     rels = data["xl/_rels/workbook.xml.rels"].decode()
-    rid = re.search(r'<sheet name="' + re.escape(sheet) + r'" sheetId="\d+" r:id="(rId\d+)"', wb).group(1)
-    target = re.search(r'<Relationship Id="' + rid + r'" Type="[^"]+" Target="([^"]+)"', rels).group(1)
+    rid = _found(re.search(r'<sheet name="' + re.escape(sheet) + r'" sheetId="\d+" r:id="(rId\d+)"', wb))
+    target = _found(re.search(r'<Relationship Id="' + rid + r'" Type="[^"]+" Target="([^"]+)"', rels))
     return "xl/" + target.lstrip("/").removeprefix("xl/")
 
 
@@ -270,7 +277,8 @@ def _write_big_round(folder: Path, *, labs: int, measurands: int, replicates: in
     outlier = rng.random((labs, measurands)) < OUTLIER_RATE
     bias = np.where(outlier, rng.choice([-1.0, 1.0], (labs, measurands)) * rng.uniform(4, 8, (labs, measurands))
                     * s_between, bias)
-    values = true[None, :, None] + bias[:, :, None] + rng.normal(0.0, 1.0, (labs, measurands, replicates)) * s_within[:, None]
+    values = (true[None, :, None] + bias[:, :, None]
+              + rng.normal(0.0, 1.0, (labs, measurands, replicates)) * s_within[:, None])
     values = np.maximum(values, 1e-3 * true[None, :, None])  # a mass fraction cannot be negative
     censored = rng.random((labs, measurands)) < CENSORED_RATE
     missing = rng.random((labs, measurands)) < MISSING_RATE

@@ -82,11 +82,11 @@ def _lab_tables(table: ResultTable, names: list[str], all_labs: list[str]) -> di
         "n_replicates": np.where(is_cens, n_val + n_cens, np.where(is_val, n_val, 0)),
         "mean": np.where(is_val, agg["mean"].to_numpy(float), np.nan),
         "sd": np.where(is_val, agg["sd"].to_numpy(float), np.nan),
-        "status": status, "relation": np.where(is_cens, rel, None), "limit": np.where(is_cens, lim, np.nan),
+        "status": status, "relation": np.where(is_cens, rel, None), "limit": np.where(is_cens, lim, np.nan),  # type: ignore[call-overload]  # numpy's stubs refuse the None fill
         "u": u, "U": U, "k": k, "method": firsts["method"].to_numpy(dtype=object),
         "result_text": text, "used": False, "reason": reason,
     })
-    return {n: g.drop(columns="measurand").reset_index(drop=True)
+    return {str(n): g.drop(columns="measurand").reset_index(drop=True)
             for n, g in out.groupby("measurand", sort=False)}
 
 
@@ -106,9 +106,9 @@ def _assign(m: MeasurandSettings, est, med, made_v, p) -> tuple[float, float, st
 def _sigma(m: MeasurandSettings, est, x_pt: float) -> tuple[float, str, list[str]]:
     spec = m.sigma_pt
     if spec.kind == "fixed":
-        return float(spec.value), spec.describe(), []
+        return spec.fixed(), spec.describe(), []
     if spec.kind == "precision":
-        return sg.sigma_from_precision(spec.s_R, spec.s_r, spec.replicates), spec.describe(), []
+        return sg.sigma_from_precision(*spec.experiment()), spec.describe(), []
     if spec.kind == "robust-sd":
         if est is None or not est.sd > 0:
             return np.nan, spec.describe(), ["σ_pt from the robust SD cannot be set (too few results or zero spread)"]
@@ -311,9 +311,9 @@ def evaluate(rnd: Round, table: ResultTable, participants: dict[str, Participant
     mat = np.full((len(names), len(all_labs)), np.nan)
     for i, n in enumerate(names):
         lt = pre[n]
-        keep = (lt["status"] == "value") & ~lt["lab"].map(lambda L: (L, n) in excluded or (L, None) in excluded)
+        keep = (lt["status"] == "value") & ~lt["lab"].map(lambda L: (L, n) in excluded or (L, None) in excluded)  # noqa: B023
         mat[i, keep.to_numpy()] = lt.loc[keep, "mean"].to_numpy()
-    estimates = robust.algorithm_a(mat) if len(names) else []
+    estimates = robust.algorithm_a_rows(mat) if len(names) else []
     results = {}
     for i, n in enumerate(names):
         est = estimates[i] if estimates[i].n >= 3 else None
@@ -336,7 +336,7 @@ def evaluate(rnd: Round, table: ResultTable, participants: dict[str, Participant
     extras: dict[str, pd.DataFrame] = {}
     stage_notes: dict[str, tuple[str, ...]] = {}
     details: dict[str, Any] = {}
-    item_rows = [row for n in names if results[n].item_checks is not None for row in results[n].item_checks.rows]
+    item_rows = [row for n in names if (ic := results[n].item_checks) is not None for row in ic.rows]
     if item_rows:
         extras["items"] = pd.DataFrame(item_rows, columns=list(ITEMS_COLUMNS))
     # STAGE: precision (ISO 5725-2) and method groups — adds extras, stage_notes, details and audit rows here.

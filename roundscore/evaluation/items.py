@@ -40,7 +40,9 @@ References
 
 from __future__ import annotations
 
-from typing import Any, Mapping
+from collections.abc import Mapping
+from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 
@@ -177,8 +179,6 @@ def apply_item_checks(m: MeasurandSettings, tables: Mapping[str, ItemTable], *, 
     for t in tables.values():
         notes += list(t.notes)
     sigma_ok = bool(np.isfinite(sigma_pt) and sigma_pt > 0)
-    hom = stab = None
-    names: tuple[str, str] | None = None
     hom_t, stab_t = tables.get("homogeneity"), tables.get("stability")
     if not sigma_ok:
         why = "σ_pt could not be set, so the item criteria cannot be applied"
@@ -186,31 +186,81 @@ def apply_item_checks(m: MeasurandSettings, tables: Mapping[str, ItemTable], *, 
             rows.append(_not_run_row(m, kind, why))
             notes.append(f"{kind} check {why}")
             audit.append((m.name, "", kind, "not evaluated", why))
-    if sigma_ok and hom_t is not None:
-        try:
-            hom = st.homogeneity(list(hom_t.items), hom_t.values, sigma_pt)
-        except StatisticsError as exc:
-            raise _wrap(exc, hom_t, m) from None
-    if sigma_ok and stab_t is not None:
-        names = (stab_t.set_names[0], stab_t.set_names[1])
-        v1, g1, r1, how = _set_values(stab_t, names[0])
-        v2, g2, r2, _ = _set_values(stab_t, names[1])
-        try:
-            stab = st.stability(v1, v2, sigma_pt, u_first=stab_t.set_u.get(names[0]),
-                                u_second=stab_t.set_u.get(names[1]), criterion=choice)
-        except StatisticsError as exc:
-            raise _wrap(exc, stab_t, m) from None
-        stab_how = f"each set's mean from its {how}; criterion choice {choice!r}"
-    else:
-        g1 = g2 = 0
-        r1 = r2 = 0.0
-        stab_how = ""
+    hom = _homogeneity(m, hom_t, sigma_pt) if sigma_ok and hom_t is not None else None
+    run = _stability(m, stab_t, sigma_pt, choice) if sigma_ok and stab_t is not None else None
+    stab = run.result if run is not None else None
+    names = run.names if run is not None else None
 
     u_hom = hom.s_s if hom is not None else 0.0
     u_stab = stab.u_stab if stab is not None else 0.0
     s_new, u_new, widened = sigma_pt, u_char, False
     effect: list[str] = []
-    if sigma_ok and consequence in ("uncertainty", "both") and (hom is not None or stab is not None):
+    if sigma_ok:
+        s_new, u_new, widened = _consequence(m, consequence, hom, stab, sigma_pt=sigma_pt, u_char=u_char,
+                                             u_hom=u_hom, u_stab=u_stab, effect=effect)
+    if hom is not None:
+        line = _homogeneity_line(hom, notes)
+        audit.append((m.name, "", "homogeneity", "passed" if hom.passed else "check failed", line))
+        rows.append(_homogeneity_row(m, hom, effect))
+    if stab is not None and names is not None and run is not None:
+        verdict = "passed" if stab.passed else "FAILED"
+        allowed = stab.criterion if stab.criterion_used == "simple" else stab.allowed_expanded
+        line = (f"stability ({names[0]!r} vs {names[1]!r}): |y1 - y2| = {_fmt(abs(stab.difference))}, "
+                f"allowance = {_fmt(allowed)} ({stab.criterion_used} criterion): {verdict}")
+        notes.append(line)
+        audit.append((m.name, "", "stability", "passed" if stab.passed else "check failed", line))
+        rows.append(_stability_row(m, stab, run.items, run.replicates, names, [run.how, *effect]))
+    notes += effect
+    if effect:
+        action = ("σ_pt widened and u(x_pt) increased" if widened and u_new != u_char
+                  else "σ_pt widened" if widened else "u(x_pt) increased" if u_new != u_char
+                  else "no change")
+        audit.append((m.name, "", "item checks", action, "; ".join(effect)))
+    return ItemOutcome(
+        sigma_pt=float(s_new), u_assigned=float(u_new), sigma_pt_before=float(sigma_pt), u_char=float(u_char),
+        consequence=consequence, homogeneity=hom, stability=stab, homogeneity_table=hom_t,
+        stability_table=stab_t, stability_sets=names, u_hom=float(u_hom), u_stab=float(u_stab),
+        widened=widened, rows=tuple(rows), notes=tuple(notes), audit=tuple(audit),
+    )
+
+
+def _homogeneity(m: MeasurandSettings, table: ItemTable, sigma_pt: float) -> st.HomogeneityResult:
+    try:
+        return st.homogeneity(list(table.items), table.values, sigma_pt)
+    except StatisticsError as exc:
+        raise _wrap(exc, table, m) from None
+
+
+@dataclass(frozen=True, slots=True)
+class _StabilityRun:
+    """The stability check of a measurand, with what its row of the items table shows."""
+
+    result: st.StabilityResult
+    names: tuple[str, str]  # the first and second set
+    items: int  # items (or replicates of a single item) of both sets
+    replicates: float  # the mean of the two sets' replicate numbers
+    how: str  # how each set's mean was taken, and the criterion choice
+
+
+def _stability(m: MeasurandSettings, table: ItemTable, sigma_pt: float, choice: StabilityChoice) -> _StabilityRun:
+    names = (table.set_names[0], table.set_names[1])
+    v1, g1, r1, how = _set_values(table, names[0])
+    v2, g2, r2, _ = _set_values(table, names[1])
+    try:
+        result = st.stability(v1, v2, sigma_pt, u_first=table.set_u.get(names[0]),
+                              u_second=table.set_u.get(names[1]), criterion=choice)
+    except StatisticsError as exc:
+        raise _wrap(exc, table, m) from None
+    return _StabilityRun(result=result, names=names, items=g1 + g2, replicates=(r1 + r2) / 2.0,
+                         how=f"each set's mean from its {how}; criterion choice {choice!r}")
+
+
+def _consequence(m: MeasurandSettings, consequence: ItemConsequence, hom: st.HomogeneityResult | None,
+                 stab: st.StabilityResult | None, *, sigma_pt: float, u_char: float, u_hom: float, u_stab: float,
+                 effect: list[str]) -> tuple[float, float, bool]:
+    """σ_pt and u(x_pt) after the consequence chosen, and whether σ_pt was widened; ``effect`` says why."""
+    s_new, u_new, widened = sigma_pt, u_char, False
+    if consequence in ("uncertainty", "both") and (hom is not None or stab is not None):
         if np.isfinite(u_char):
             u_new = st.item_uncertainty(u_char, u_hom, u_stab)
             effect.append(
@@ -223,7 +273,7 @@ def apply_item_checks(m: MeasurandSettings, tables: Mapping[str, ItemTable], *, 
         if m.is_consensus:
             effect.append("the consensus value's u already reflects part of the between-item spread; "
                           "adding u_hom and u_stab is the cautious choice")
-    if sigma_ok and consequence in ("widen-sigma", "both"):
+    if consequence in ("widen-sigma", "both"):
         if hom is None:
             effect.append(f"σ_pt not widened: item_checks = {consequence!r} needs a homogeneity table")
         elif hom.s_s > 0:
@@ -237,41 +287,23 @@ def apply_item_checks(m: MeasurandSettings, tables: Mapping[str, ItemTable], *, 
         if m.sigma_pt.kind == "robust-sd" and widened:
             effect.append("σ_pt from the participants' robust SD already holds the between-item spread; "
                           "widening counts it again (the criteria used the σ_pt before widening)")
-    if sigma_ok and consequence == "report":
+    if consequence == "report":
         effect.append("item_checks = 'report': σ_pt and u(x_pt) are not changed by the item checks")
+    return s_new, u_new, widened
 
-    if hom is not None:
-        verdict = "passed" if hom.passed else "FAILED"
-        line = (f"homogeneity ({hom.g} items x {hom.m:g}): s_s = {_fmt(hom.s_s)}, 0.3 σ_pt = {_fmt(hom.criterion)}, "
-                f"expanded allowance = {_fmt(hom.allowed)}: {verdict}")
-        if hom.passed and not hom.passed_simple:
-            line += " (on the expanded criterion only; the simple one is not met)"
-        notes.append(line)
-        if hom.s_s_truncated:
-            notes.append("homogeneity: s_x^2 < s_w^2/m, s_s truncated to 0")
-        if hom.precision_warning:
-            notes.append(f"homogeneity: {hom.precision_warning}")
-        if hom.cochran_signal in ("straggler", "outlier"):
-            notes.append(f"homogeneity: Cochran's test flags item {hom.cochran_item!r} as a {hom.cochran_signal}")
-        audit.append((m.name, "", "homogeneity", "passed" if hom.passed else "check failed", line))
-        rows.append(_homogeneity_row(m, hom, effect))
-    if stab is not None and names is not None:
-        verdict = "passed" if stab.passed else "FAILED"
-        allowed = stab.criterion if stab.criterion_used == "simple" else stab.allowed_expanded
-        line = (f"stability ({names[0]!r} vs {names[1]!r}): |y1 - y2| = {_fmt(abs(stab.difference))}, "
-                f"allowance = {_fmt(allowed)} ({stab.criterion_used} criterion): {verdict}")
-        notes.append(line)
-        audit.append((m.name, "", "stability", "passed" if stab.passed else "check failed", line))
-        rows.append(_stability_row(m, stab, g1 + g2, (r1 + r2) / 2.0, names, [stab_how, *effect]))
-    notes += effect
-    if effect:
-        action = ("σ_pt widened and u(x_pt) increased" if widened and u_new != u_char
-                  else "σ_pt widened" if widened else "u(x_pt) increased" if u_new != u_char
-                  else "no change")
-        audit.append((m.name, "", "item checks", action, "; ".join(effect)))
-    return ItemOutcome(
-        sigma_pt=float(s_new), u_assigned=float(u_new), sigma_pt_before=float(sigma_pt), u_char=float(u_char),
-        consequence=consequence, homogeneity=hom, stability=stab, homogeneity_table=hom_t,
-        stability_table=stab_t, stability_sets=names, u_hom=float(u_hom), u_stab=float(u_stab),
-        widened=widened, rows=tuple(rows), notes=tuple(notes), audit=tuple(audit),
-    )
+
+def _homogeneity_line(hom: st.HomogeneityResult, notes: list[str]) -> str:
+    """The homogeneity verdict in one line (also the audit's), its notes added to ``notes``."""
+    verdict = "passed" if hom.passed else "FAILED"
+    line = (f"homogeneity ({hom.g} items x {hom.m:g}): s_s = {_fmt(hom.s_s)}, 0.3 σ_pt = {_fmt(hom.criterion)}, "
+            f"expanded allowance = {_fmt(hom.allowed)}: {verdict}")
+    if hom.passed and not hom.passed_simple:
+        line += " (on the expanded criterion only; the simple one is not met)"
+    notes.append(line)
+    if hom.s_s_truncated:
+        notes.append("homogeneity: s_x^2 < s_w^2/m, s_s truncated to 0")
+    if hom.precision_warning:
+        notes.append(f"homogeneity: {hom.precision_warning}")
+    if hom.cochran_signal in ("straggler", "outlier"):
+        notes.append(f"homogeneity: Cochran's test flags item {hom.cochran_item!r} as a {hom.cochran_signal}")
+    return line

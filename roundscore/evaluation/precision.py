@@ -61,6 +61,7 @@ References
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any
@@ -302,8 +303,8 @@ def _measurand_precision(rnd: Round, name: str, rows: pd.DataFrame | None, used:
     """Precision, screens and Mandel of one measurand: details, the precision row, screen rows, stage notes."""
     notes: list[str] = []
     stage: list[str] = []
-    empty = dict(measurand=name, labs=(), cells=None, mandel=None, screening=None, precision=None, robust=None,
-                 robust_labs=0)
+    empty = functools.partial(MeasurandPrecision, measurand=name, labs=(), cells=None, mandel=None, screening=None,
+                              precision=None, robust=None, robust_labs=0)
     row: dict[str, Any] = {"measurand": name, "p": 0, "excluded": "", "labs_screened": 0}
     if rows is None or not len(rows):
         values = np.empty(0)
@@ -313,12 +314,11 @@ def _measurand_precision(rnd: Round, name: str, rows: pd.DataFrame | None, used:
     if len(present) < 2:
         msg = f"precision needs at least 2 labs with numeric results; {len(present)} here"
         audit.append((name, "", "precision", "not computed", msg))
-        return MeasurandPrecision(notes=(msg,), **empty), row | {"note": msg}, [], [msg]
+        return empty(notes=(msg,)), row | {"note": msg}, [], [msg]
     row["labs_screened"] = len(present)
     if len(present) == values.size:  # one result per lab
         audit.append((name, "", "precision", "not computed", NEEDS_REPLICATES))
-        shown = {"labs": tuple(lab for lab in used if lab in present)}
-        return (MeasurandPrecision(notes=(NEEDS_REPLICATES,), **(empty | shown)),
+        return (empty(notes=(NEEDS_REPLICATES,), labs=tuple(lab for lab in used if lab in present)),
                 row | {"note": NEEDS_REPLICATES}, [], [NEEDS_REPLICATES])
     # The cell statistics are computed once: precision of every used lab (Mandel's h and k before the
     # screens, and the final result when the screens leave nobody out), the screens, and the precision
@@ -326,6 +326,7 @@ def _measurand_precision(rnd: Round, name: str, rows: pd.DataFrame | None, used:
     cells = pr.cell_statistics(values, labs, texts=texts)
     unscreened = pr.precision(cells=cells)
     mandel = unscreened.mandel
+    robust: pr.AlgorithmSResult | None
     if unscreened.robust_s_r is not None:
         robust, robust_labs = unscreened.robust_s_r, cells.p
     else:
@@ -439,6 +440,7 @@ def _method_groups(rnd: Round, mr: MeasurandResult, audit: list) -> tuple[Method
         if len(tested) < 2:
             raise StatisticsError("fewer than two method groups have at least 2 labs: the groups are listed, "
                                   "not tested")
+        c: cmp.TwoSampleComparison | cmp.GroupComparison
         if len(tested) == 2:
             a, b = tested
             c = cmp.compare_two(group_values[a], group_values[b], confidence=rnd.confidence, labels=(a, b))
@@ -459,12 +461,13 @@ def _method_groups(rnd: Round, mr: MeasurandResult, audit: list) -> tuple[Method
             vals = np.concatenate([group_values[g] for g in tested])
             labels = np.concatenate([[g] * group_values[g].size for g in tested])
             c = cmp.compare_groups(vals, labels, confidence=rnd.confidence)
-            a = c.anova
+            anova = c.anova
+            assert anova is not None, "three or more groups were tested"
             differing = [pc for pc in c.pairwise if pc.significant]
             comparison, significant, conclusion = c, bool(c.anova_significant or differing), c.conclusion
             rows.append(base | {
                 "groups": ", ".join(f"{g} (n={n})" for g, n in zip(c.groups, c.sizes)), "test": "one-way ANOVA",
-                "statistic": a.f, "df": a.df_between, "df2": a.df_within, "p_value": a.p_value,
+                "statistic": anova.f, "df": anova.df_between, "df2": anova.df_within, "p_value": anova.p_value,
                 "significant": c.anova_significant, "conclusion": c.conclusion,
             })
             for pc in c.pairwise:
@@ -479,7 +482,7 @@ def _method_groups(rnd: Round, mr: MeasurandResult, audit: list) -> tuple[Method
                 })
             if significant:
                 pairs = ", ".join(f"{pc.comparison.label_a} vs {pc.comparison.label_b}" for pc in differing)
-                stage.append(f"method groups differ (one-way ANOVA p = {a.p_value:.2g}"
+                stage.append(f"method groups differ (one-way ANOVA p = {anova.p_value:.2g}"
                              + (f"; after Holm's correction: {pairs}" if pairs else "") + f"); {MIXED_METHODS}")
     except StatisticsError as exc:
         conclusion = f"method groups not compared: {exc}"

@@ -28,7 +28,7 @@ import math
 
 import numpy as np
 
-from roundscore.errors import Problem
+from roundscore.errors import Problem, Where
 from roundscore.model.scores import CENSORED_ACTION, SCORE_FIELD, family_of
 from roundscore.model.signals import SIGNAL_NAMES as SIGNALS
 from roundscore.stats.limits import LIMIT_RTOL
@@ -77,13 +77,14 @@ def row_problems(row: dict[str, object], *, file: str | None, sheet: str | None,
     :func:`roundscore.history.sheets.normalise_rows` returns them (floats,
     censored results as text, ``None`` when empty).
     """
-    where = dict(file=file, sheet=sheet, row=row_number, lab=row.get("lab"),
-                 measurand=row.get("measurand"))
+    lab, measurand = row.get("lab"), row.get("measurand")
+    where: Where = {"file": file, "sheet": sheet, "row": row_number, "lab": None if lab is None else str(lab),
+                    "measurand": None if measurand is None else str(measurand)}
     problems: list[Problem] = []
 
     def bad(column: str, message: str) -> None:
-        problems.append(Problem(message=f"{message}: {EDIT_HINT}", column=column,
-                                value=row.get(column), **where))
+        problems.append(Problem(message=f"{message}: {EDIT_HINT}",
+                                **(where | {"column": column, "value": row.get(column)})))
 
     result = row.get("result")
     x, censored = _num(result), isinstance(result, str)

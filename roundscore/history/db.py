@@ -47,7 +47,7 @@ import sqlite3
 from collections.abc import Sequence
 from contextlib import contextmanager
 from pathlib import Path
-from typing import Iterator
+from collections.abc import Iterator
 
 from roundscore.errors import ArchiveError
 from roundscore.history.interface import now

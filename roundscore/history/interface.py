@@ -53,7 +53,7 @@ HISTORY_ROW_FIELDS: tuple[str, ...] = ("scheme", "round", "round_date", "title",
 
 def now() -> str:
     """The current UTC time, ISO 8601 to the second (stored with rounds, migrations and audit rows)."""
-    return _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds")
+    return _dt.datetime.now(_dt.UTC).isoformat(timespec="seconds")
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)

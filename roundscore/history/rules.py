@@ -17,7 +17,8 @@ procedures, ISO/IEC 17043 and the accreditation body's rules.
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Literal, Sequence
+from collections.abc import Sequence
+from typing import Literal
 
 import numpy as np
 import pandas as pd
@@ -25,8 +26,9 @@ import pandas as pd
 from roundscore.choices import check_choice
 from roundscore.errors import InputError, StatisticsError
 from roundscore.model.scores import SCORE_FAMILIES, SCORE_NAMES, SCORES, FamilyName
-from roundscore.stats.trends import (CUSUM_H, CUSUM_K, RUN_LENGTH, AsDict, BiasCheck, CombinedScores, CusumResult, Side, action_signals, as_series,
-                                     bias_check, combined_scores, cusum, same_side_runs, two_of_three)
+from roundscore.stats.trends import (CUSUM_H, CUSUM_K, RUN_LENGTH, AsDict, BiasCheck, CombinedScores, CusumResult, Side,
+                                     action_signals, as_series, bias_check, combined_scores, cusum, same_side_runs,
+                                     two_of_three)
 
 __all__ = ["DEFAULT_WINDOW", "DISCLAIMER", "RULE_NAMES", "RULE_SOURCES", "RuleFinding", "SeriesCheck",
            "HistoryCheck", "check_series", "check_history"]
@@ -136,6 +138,10 @@ class SeriesCheck(AsDict):
         return bool(self.findings)
 
 
+#: Both sides of zero, in the order findings are listed.
+_SIDES: tuple[Side, Side] = ("high", "low")
+
+
 def _finding(rule: int, positions: Sequence[int], side: Side | None, detail: str,
              rounds: Sequence[str], dates: Sequence[str]) -> RuleFinding:
     pos = tuple(int(p) for p in positions)
@@ -186,7 +192,7 @@ def check_series(values: Sequence[float] | np.ndarray, *, rounds: Sequence[str],
                      "(they assume a standard-normal score)")
     else:
         warning = fam.warning if fam.warning is not None else fam.action  # z-like: 2
-        for side in ("high", "low"):
+        for side in _SIDES:
             pos = recent([p for p, s in two_of_three(arr, limit=warning) if s == side])
             if pos:
                 found.append(_finding(2, pos, side, f"two of three {'above +' if side == 'high' else 'below -'}"
@@ -198,7 +204,7 @@ def check_series(values: Sequence[float] | np.ndarray, *, rounds: Sequence[str],
                                       f"{'above' if side == 'high' else 'below'} 0 from "
                                       f"{rounds[start]}", rounds, dates))
         cus = cusum(arr)
-        for side in ("high", "low"):
+        for side in _SIDES:
             pos = recent([p for p, s in cus.alarms if s == side])
             if pos:
                 found.append(_finding(4, pos, side, f"{'upper' if side == 'high' else 'lower'} "

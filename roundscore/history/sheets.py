@@ -25,11 +25,12 @@ import datetime as _dt
 import math
 from dataclasses import dataclass, replace
 from pathlib import Path
-from typing import Sequence
+from collections.abc import Mapping, Sequence
+from typing import Any
 
 import pandas as pd
 
-from roundscore.errors import InputError, Problem
+from roundscore.errors import InputError, Location, Problem
 
 from roundscore.model.labcodes import read_lab_code
 from roundscore.text import too_long
@@ -104,7 +105,7 @@ def parse_date(value: object) -> str | None:
         return None
 
 
-def normalise_rows(records: Sequence[dict[str, object]], *, file: str | None, sheet: str | None,
+def normalise_rows(records: Sequence[Mapping[Any, object]], *, file: str | None, sheet: str | None,
                    first_row: int, row_numbers: Sequence[int] | None = None,
                    ) -> tuple[list[tuple], list[Problem]]:
     """Validate and convert score records into tuples in :data:`ROW_FIELDS` order.
@@ -123,7 +124,7 @@ def normalise_rows(records: Sequence[dict[str, object]], *, file: str | None, sh
     numbers = list(row_numbers) if row_numbers is not None else [first_row + i
                                                                   for i in range(len(records))]
     for i, rec in enumerate(records):
-        where = dict(file=file, sheet=sheet, row=numbers[i])
+        where: Location = {"file": file, "sheet": sheet, "row": numbers[i]}
         out: list[object] = []
         for col in ROW_FIELDS:
             raw = plain(rec.get(col))
@@ -179,7 +180,7 @@ def normalise_rows(records: Sequence[dict[str, object]], *, file: str | None, sh
         key = (str(lab), str(measurand))
         if key in seen and lab is not None and measurand is not None:
             problems.append(Problem(message=f"duplicate lab x measurand (also on row {seen[key]})",
-                                    lab=lab, measurand=measurand, **where))
+                                    lab=str(lab), measurand=str(measurand), **where))
         seen.setdefault(key, numbers[i])
         rows.append(row)
     return rows, problems
@@ -328,7 +329,7 @@ def read_lab_file(file: Path, lab: str | None) -> list[LabRows]:
         found, notes = _digest_findings(file, got)
         problems += found
         warnings += notes
-    keys = []
+    keys: list[tuple[str, str, str]] = []
     for number, rec in zip(numbers, records):
         scheme, round_id = text_key(rec.get("scheme")), text_key(rec.get("round"))
         date = parse_date(rec.get("round_date"))
@@ -336,7 +337,7 @@ def read_lab_file(file: Path, lab: str | None) -> list[LabRows]:
             problems.append(Problem(message="scheme, round and an ISO round_date are required",
                                     file=str(file), sheet=sheet, row=number,
                                     value=[scheme, round_id, rec.get("round_date")]))
-        keys.append((scheme, round_id, date))
+        keys.append((scheme, round_id, date or ""))  # no date: a problem above, raised below
     if meta is not None:
         held = {"scheme": {k[0] for k in keys}, "round": {k[1] for k in keys},
                 "lab": {str(r[0]) for r in rows}}
@@ -363,10 +364,12 @@ def read_lab_file(file: Path, lab: str | None) -> list[LabRows]:
     if lab is not None and lab not in labs:
         raise InputError.single(f"has no rows for lab {lab!r} (labs in the file: "
                                 f"{', '.join(labs[:10])})", file=str(file))
+    if chosen is None:
+        raise InputError.single("holds no lab code", file=str(file), sheet=sheet)
     groups: dict[tuple[str, str, str], list[tuple]] = {}
-    for key, row in zip(keys, rows):
+    for round_key, row in zip(keys, rows):
         if row[0] == chosen:
-            groups.setdefault(key, []).append(row)  # type: ignore[arg-type]
+            groups.setdefault(round_key, []).append(row)
     if len({(s, r) for s, r, _ in groups}) != len(groups):
         raise InputError.single("one round carries two different round dates", file=str(file))
     title = str(meta.get("title") or "") if meta else ""

@@ -53,6 +53,7 @@ References
 from __future__ import annotations
 
 import datetime as _dt
+import functools
 import hashlib
 import json
 import math
@@ -302,16 +303,16 @@ def store_round(path: str | os.PathLike[str] | None, *, scheme: str, round_id: s
 def _store_lab_rows(tx: ArchiveWriter, item: _LabRows, *, replace: bool, file: str,
                     reason: str) -> StoreOutcome:
     label = f"lab {item.lab!r}, round {item.round_id!r} of scheme {item.scheme!r}"
-    common = dict(rows=len(item.rows), scheme=item.scheme, round_id=item.round_id,
-                  lab=item.lab, file=file, warnings=item.warnings)
+    outcome = functools.partial(StoreOutcome, rows=len(item.rows), scheme=item.scheme, round_id=item.round_id,
+                                lab=item.lab, file=file, warnings=item.warnings)
     old_round = tx.find_round(item.scheme, item.round_id)
     old_rows = tx.score_rows(item.scheme, item.round_id, item.lab)
     status: Status = "added"
     if old_round is not None and (old_rows or old_round.round_date != item.round_date):
         old_hash = _digest(old_round.round_date, old_rows)
         if old_hash == _digest(item.round_date, item.rows):
-            return StoreOutcome(status="unchanged", message=f"{label} is already archived with "
-                                "identical content; nothing changed", **common)
+            return outcome(status="unchanged", message=f"{label} is already archived with "
+                           "identical content; nothing changed")
         if not replace:
             what = ("a different round date "
                     f"({old_round.round_date} archived, {item.round_date} in the file)"
@@ -334,7 +335,7 @@ def _store_lab_rows(tx: ArchiveWriter, item: _LabRows, *, replace: bool, file: s
         msg = f"{label}: replaced {len(item.rows)} rows; the previous rows are kept in the audit table"
     else:
         msg = f"{label}: added {len(item.rows)} rows"
-    return StoreOutcome(status=status, message=msg, **common)
+    return outcome(status=status, message=msg)
 
 
 def add_files(path: str | os.PathLike[str] | None, files: Iterable[str | os.PathLike[str]], *,

@@ -47,13 +47,14 @@ import numbers
 import re
 from dataclasses import dataclass
 from decimal import Decimal, InvalidOperation
-from typing import Literal
+from typing import Literal, TypeGuard
 
-from roundscore.choices import options
+from roundscore.choices import is_choice, options
 from roundscore.errors import RoundscoreError
 from roundscore.model.round import DecimalMark
 
-__all__ = ["Cell", "CellError", "AmbiguousNumber", "parse_cell", "MAX_CELL_TEXT", "DECIMAL_MARKS", "DecimalMark"]
+__all__ = ["Cell", "CellError", "AmbiguousNumber", "parse_cell", "MAX_CELL_TEXT", "DECIMAL_MARKS", "DecimalMark",
+           "is_decimal_mark"]
 
 #: Longest text accepted in a result cell; longer text is refused unread.
 MAX_CELL_TEXT = 64
@@ -61,6 +62,11 @@ MAX_CELL_TEXT = 64
 CellKind = Literal["value", "censored", "blank"]
 #: The decimal marks a round file or a form can declare (``[round] decimal``; the Literal is the round's).
 DECIMAL_MARKS: tuple[str, ...] = options(DecimalMark)
+
+
+def is_decimal_mark(value: object) -> TypeGuard[DecimalMark]:
+    """Whether ``value`` is one of :data:`DECIMAL_MARKS` ("comma", "point")."""
+    return is_choice(value, DecimalMark)
 
 
 class CellError(ValueError, RoundscoreError):

@@ -30,13 +30,14 @@ import re
 import tempfile
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Iterable
+from collections.abc import Iterable
+from typing import Any
 
 import xlsxwriter
 
-from roundscore.intake.cells import DECIMAL_MARKS
-from roundscore.errors import Problem, sheet_cell
-from roundscore.model.round import MAX_FORM_REPLICATES, Round
+from roundscore.intake.cells import is_decimal_mark
+from roundscore.errors import Problem, Place, sheet_cell
+from roundscore.model.round import MAX_FORM_REPLICATES, DecimalMark, Round
 from roundscore.intake.xlsx import SheetRows
 
 __all__ = ["write_forms", "FormsWritten", "write_form", "records_from_form", "form_decimal", "FormDecimal",
@@ -192,7 +193,7 @@ def write_forms(rnd: Round, labs: Iterable[tuple[str, str | None]], folder: Path
     labs = list(labs)
     problems: list[Problem] = []
     checked: list[tuple[str, str | None]] = []
-    places: dict[str, dict] = {}
+    places: dict[str, Place] = {}
     for i, (lab, name) in enumerate(labs, start=1):
         code, why = read_lab_code(lab)
         if code is None:
@@ -306,13 +307,14 @@ def _cell_index(ref: str) -> tuple[int, int]:
 class FormDecimal:
     """The decimal mark a returned form declares for its text cells, and where it says so."""
 
-    mark: str
+    mark: DecimalMark
     source: str
 
 
-def _info(info: SheetRows) -> tuple[dict, dict]:
+def _info(info: SheetRows) -> tuple[dict[str, Any], dict[str, int]]:
     """form-info's key/value pairs, and the 1-based row of each key."""
-    kv, rows = {}, {}
+    kv: dict[str, Any] = {}
+    rows: dict[str, int] = {}
     for i, r in enumerate(info.rows[1:], start=2):
         if r and r[0] is not None:
             key = str(r[0]).strip()
@@ -341,7 +343,7 @@ def form_decimal(results: SheetRows, info: SheetRows) -> tuple[FormDecimal | Non
         text = str(v).strip() if v is not None else ""
         if text:
             word = text.split()[0].lower()
-            if word in DECIMAL_MARKS:
+            if is_decimal_mark(word):
                 return FormDecimal(mark=word, source=sheet_cell(results.sheet or RESULTS_SHEET, ref.strip())), []
             return None, [Problem(message="the decimal mark must be point or comma, or the cell left blank",
                                   file=file, sheet=results.sheet, row=row + 1, cell=ref.strip(),
@@ -350,7 +352,7 @@ def form_decimal(results: SheetRows, info: SheetRows) -> tuple[FormDecimal | Non
     v = kv.get("decimal")
     text = str(v).strip().lower() if v is not None else ""
     if text:
-        if text in DECIMAL_MARKS:
+        if is_decimal_mark(text):
             return FormDecimal(mark=text, source=sheet_cell(INFO_SHEET, f"B{where['decimal']}")), []
         return None, [Problem(message="the form-info sheet is damaged (decimal)", file=file, sheet=INFO_SHEET,
                               cell=f"B{where['decimal']}", value=v)]
@@ -402,7 +404,8 @@ def records_from_form(rnd: Round, results: SheetRows, info: SheetRows):
     decimal = declared.mark if declared is not None else None
     rows = results.rows
     cols = _columns(reps)
-    header = [str(c).strip() if c is not None else "" for c in (rows[header_row - 1] if len(rows) >= header_row else [])]
+    header = [str(c).strip() if c is not None else ""
+              for c in (rows[header_row - 1] if len(rows) >= header_row else [])]
     if header[: len(cols)] != cols:
         return [], [Problem(message="the results table header was changed; expected: " + ", ".join(cols),
                             file=file, sheet=results.sheet, row=header_row,

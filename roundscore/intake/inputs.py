@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from typing import Callable
+from collections.abc import Callable
 
 from roundscore.intake.items import read_item_tables
 from roundscore.intake.readers import check_labs, read_participants, read_results

@@ -12,16 +12,19 @@ References
 
 from __future__ import annotations
 
-import multiprocessing as mp
 import os
 import signal
 import time
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
+from multiprocessing.connection import Connection
 from multiprocessing.connection import wait as _wait
+from multiprocessing.process import BaseProcess
 from pathlib import Path
-from typing import Callable, Sequence
+from typing import Any, TypeVar, overload
 
 from roundscore.errors import InputError, Problem
+from roundscore.support.parallel import resolve_jobs
 from roundscore.support.processes import context, worker_started
 from roundscore.model.limits import DEFAULT_LIMITS, MiB, ReadLimits
 
@@ -133,7 +136,7 @@ def _limit_memory(extra: int) -> None:
     base = _virtual_size()
     if base == 0:
         return
-    soft, hard = resource.getrlimit(resource.RLIMIT_AS)
+    _soft, hard = resource.getrlimit(resource.RLIMIT_AS)
     want = base + extra
     if hard != resource.RLIM_INFINITY:
         want = min(want, hard)
@@ -177,15 +180,19 @@ def _worker(conn, progress, limits: ReadLimits, reader: Reader | None,
         return
 
 
+#: One work item: (index in the input, path, the sheets wanted).
+_Item = tuple[int, str, list[str | None]]
+
+
 @dataclass(slots=True)
 class _Slot:
-    process: object
-    conn: object
-    progress: object  # shared array: index of the file being read, its start time
-    batch: list = field(default_factory=list)
+    process: BaseProcess
+    conn: Connection
+    progress: Any  # shared ctypes array of two doubles: index of the file being read, its start time
+    batch: list[_Item] = field(default_factory=list)
 
 
-def _died(process) -> str:
+def _died(process: BaseProcess) -> str:
     code = process.exitcode
     if code is not None and code < 0:
         try:
@@ -200,15 +207,9 @@ def _died(process) -> str:
 
 
 def resolve_read_jobs(jobs: int | None, n_files: int) -> int:
-    """Worker count: ``None`` or 0 = the cores this process may use, never more than the files."""
-    if jobs is None or jobs == 0:
-        try:
-            jobs = len(os.sched_getaffinity(0))
-        except AttributeError:
-            jobs = os.cpu_count() or 1
-    if isinstance(jobs, bool) or not isinstance(jobs, int) or jobs < 0:
-        raise ValueError(f"jobs must be a whole number ≥ 0 (0 = all cores), got {jobs!r}")
-    return max(1, min(jobs, n_files))
+    """Worker count: ``None`` or 0 = the cores this process may use (:func:`~roundscore.support.parallel.resolve_jobs`),
+    never more than the files."""
+    return max(1, min(resolve_jobs(jobs), n_files))
 
 
 #: Most files per batch sent to a worker: a batch is one message each way, so IPC is
@@ -217,11 +218,24 @@ BATCH_FILES = 32
 _BATCHES_PER_WORKER = 4
 
 
-def read_many(paths: Sequence[str | Path], sheets: str | None | Sequence[str | None] = None, *,
+T = TypeVar("T")
+
+
+@overload
+def read_many(paths: Sequence[str | Path], sheets: str | Sequence[str | None] | None = None, *,
+              jobs: int | None = None, limits: ReadLimits = DEFAULT_LIMITS, then: None = None,
+              progress: Callable[[int, int], None] | None = None,
+              _reader: Reader | None = None) -> list[FileRows | ReadFailure]: ...
+@overload
+def read_many(paths: Sequence[str | Path], sheets: str | Sequence[str | None] | None = None, *,
+              jobs: int | None = None, limits: ReadLimits = DEFAULT_LIMITS, then: Callable[[FileRows], T],
+              progress: Callable[[int, int], None] | None = None,
+              _reader: Reader | None = None) -> list[T | ReadFailure]: ...
+def read_many(paths: Sequence[str | Path], sheets: str | Sequence[str | None] | None = None, *,
               jobs: int | None = None, limits: ReadLimits = DEFAULT_LIMITS,
               then: Callable[[FileRows], object] | None = None,
               progress: Callable[[int, int], None] | None = None,
-              _reader: Reader | None = None) -> list[FileRows | ReadFailure]:
+              _reader: Reader | None = None) -> list[Any]:
     """Read many untrusted files in isolated worker processes; one result per path, in input order.
 
     Parameters
@@ -268,86 +282,108 @@ def read_many(paths: Sequence[str | Path], sheets: str | None | Sequence[str | N
     items = [(i, str(p), wanted) for i, p in enumerate(paths)]
     if not items:
         return []
-    results: list[FileRows | ReadFailure | None] = [None] * len(items)
     n_workers = resolve_read_jobs(jobs, len(items))
-    size = max(1, min(BATCH_FILES, -(-len(items) // (n_workers * _BATCHES_PER_WORKER))))
-    queue = [items[i:i + size] for i in range(0, len(items), size)]
-    queue.reverse()  # pop() from the end gives the batches in order
-    ctx = context()
-    slots: list[_Slot] = []
+    pool = _Pool(items, n_workers, limits=limits, reader=_reader, then=then, progress=progress)
+    try:
+        for _ in range(n_workers):
+            pool.start()
+        while pool.step():
+            pass
+    finally:
+        pool.close()
+    return [r if r is not None else ReadFailure(file=items[i][1], reason="the file was not read")
+            for i, r in enumerate(pool.results)]
 
-    def start() -> None:
-        parent, child = ctx.Pipe(duplex=True)
-        shared_progress = ctx.RawArray("d", 2)
-        proc = ctx.Process(target=_worker, args=(child, shared_progress, limits, _reader, then, os.getpid()),
-                           daemon=True)
+
+class _Pool:
+    """The workers of one :func:`read_many` call: each slot reads one batch at a time; a dead or hung
+    worker is replaced and its batch, less the file it was on, is read again."""
+
+    def __init__(self, items: list[_Item], n_workers: int, *, limits: ReadLimits, reader: Reader | None,
+                 then: Callable[[FileRows], object] | None, progress: Callable[[int, int], None] | None) -> None:
+        self.results: list[object | None] = [None] * len(items)
+        self.total = len(items)
+        size = max(1, min(BATCH_FILES, -(-len(items) // (n_workers * _BATCHES_PER_WORKER))))
+        self.queue = [items[i:i + size] for i in range(0, len(items), size)]
+        self.queue.reverse()  # pop() from the end gives the batches in order
+        self.ctx = context()
+        self.slots: list[_Slot] = []
+        self.limits, self.reader, self.then, self.progress = limits, reader, then, progress
+        self.done = 0
+
+    def start(self) -> None:
+        parent, child = self.ctx.Pipe(duplex=True)
+        shared_progress = self.ctx.RawArray("d", 2)
+        proc = self.ctx.Process(target=_worker, daemon=True,
+                                args=(child, shared_progress, self.limits, self.reader, self.then, os.getpid()))
         proc.start()
         child.close()
         slot = _Slot(process=proc, conn=parent, progress=shared_progress)
-        slots.append(slot)
-        feed(slot)
+        self.slots.append(slot)
+        self.feed(slot)
 
-    def feed(slot: _Slot) -> None:
-        if queue:
-            slot.batch = queue.pop()
+    def feed(self, slot: _Slot) -> None:
+        if self.queue:
+            slot.batch = self.queue.pop()
             slot.progress[0] = -1.0
             slot.progress[1] = time.monotonic()
             slot.conn.send(slot.batch)
 
-    def retire(slot: _Slot, reason: str) -> None:
+    def retire(self, slot: _Slot, reason: str) -> None:
         # The file the worker was on fails; the others of its batch are read again.
         current = int(slot.progress[0])
         indices = [b[0] for b in slot.batch]
         culprit = indices.index(current) if current in indices else 0
         index, path, _ = slot.batch[culprit]
-        results[index] = ReadFailure(file=path, reason=reason)
+        self.results[index] = ReadFailure(file=path, reason=reason)
         rest = slot.batch[:culprit] + slot.batch[culprit + 1:]
         if rest:
-            queue.append(rest)
+            self.queue.append(rest)
         slot.batch = []
         _end(slot)
-        slots.remove(slot)
-        if queue:
-            start()
+        self.slots.remove(slot)
+        if self.queue:
+            self.start()
 
-    done = 0
-    try:
-        for _ in range(n_workers):
-            start()
-        while True:
-            busy = [s for s in slots if s.batch]
-            if not busy:
-                break
-            deadline = min(s.progress[1] for s in busy) + limits.timeout_s
-            ready = _wait([s.conn for s in busy] + [s.process.sentinel for s in busy],
-                          timeout=max(0.0, deadline - time.monotonic()))
-            now = time.monotonic()
-            for slot in busy:
-                got = None
-                if slot.conn in ready:
-                    try:
-                        got = slot.conn.recv()
-                    except (EOFError, OSError):
-                        got = None
-                if got is not None:
-                    for (index, _, _), value in zip(slot.batch, got):
-                        results[index] = value
-                    done += len(slot.batch)
-                    slot.batch = []
-                    feed(slot)
-                    if progress is not None:
-                        progress(done, len(items))
-                elif slot.conn in ready or slot.process.sentinel in ready:
-                    slot.process.join(timeout=5.0)
-                    retire(slot, _died(slot.process))
-                elif now - slot.progress[1] >= limits.timeout_s:
-                    retire(slot, f"unreadable: reading the file took longer than the limit of "
-                                 f"{limits.timeout_s:g} s, so it was stopped; the other files were read")
-    finally:
-        for slot in list(slots):
+    def step(self) -> bool:
+        """Wait for the busy workers once and handle what came back; False when no work is left."""
+        busy = [s for s in self.slots if s.batch]
+        if not busy:
+            return False
+        timeout_s = self.limits.timeout_s
+        deadline = min(s.progress[1] for s in busy) + timeout_s
+        ready = _wait([s.conn for s in busy] + [s.process.sentinel for s in busy],
+                      timeout=max(0.0, deadline - time.monotonic()))
+        now = time.monotonic()
+        for slot in busy:
+            got = None
+            if slot.conn in ready:
+                try:
+                    got = slot.conn.recv()
+                except (EOFError, OSError):
+                    got = None
+            if got is not None:
+                self.collect(slot, got)
+            elif slot.conn in ready or slot.process.sentinel in ready:
+                slot.process.join(timeout=5.0)
+                self.retire(slot, _died(slot.process))
+            elif now - slot.progress[1] >= timeout_s:
+                self.retire(slot, f"unreadable: reading the file took longer than the limit of "
+                                  f"{timeout_s:g} s, so it was stopped; the other files were read")
+        return True
+
+    def collect(self, slot: _Slot, got: list[object]) -> None:
+        for (index, _, _), value in zip(slot.batch, got):
+            self.results[index] = value
+        self.done += len(slot.batch)
+        slot.batch = []
+        self.feed(slot)
+        if self.progress is not None:
+            self.progress(self.done, self.total)
+
+    def close(self) -> None:
+        for slot in list(self.slots):
             _end(slot, polite=True)
-    return [r if r is not None else ReadFailure(file=items[i][1], reason="the file was not read")
-            for i, r in enumerate(results)]
 
 
 def _end(slot: _Slot, polite: bool = False) -> None:

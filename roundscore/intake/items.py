@@ -25,6 +25,7 @@ stability
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
@@ -35,7 +36,7 @@ from roundscore.intake.readers import read_item_table
 from roundscore.intake.validate import cell_label, summarise_ambiguous
 from roundscore.intake.xlsx import SheetRows
 from roundscore.model.items import ItemTable, ItemTables, TableKind, check_item_choice
-from roundscore.model.round import MeasurandSettings, Round
+from roundscore.model.round import DecimalMark, MeasurandSettings, Round
 from roundscore.model.units import UnitError, factor
 from roundscore.ranges import magnitude_problem
 from roundscore.text import shown_list, too_long
@@ -111,169 +112,217 @@ def read_item_values(rnd: Round, m: MeasurandSettings, kind: TableKind) -> ItemT
 
 
 def _parse(sheet: SheetRows, m: MeasurandSettings, kind: TableKind,
-           rnd_names: tuple[str, ...] = (), *, decimal: str | None = None) -> ItemTable:
-    required, optional = _REQUIRED[kind], _OPTIONAL[kind]
-    rnd_names = rnd_names or (m.name,)
-    known = {n.lower() for n in rnd_names}
-    problems: list[Problem] = []
-    notes: list[str] = []
+           rnd_names: tuple[str, ...] = (), *, decimal: DecimalMark | None = None) -> ItemTable:
+    table = _TableReader(sheet, m, kind, rnd_names, decimal)
+    start = table.header()
+    got = [r for i in range(start + 1, len(sheet.rows)) if (r := table.read_row(i)) is not None]
+    items, sets, where = [g.item for g in got], [g.set_name for g in got], [g.row for g in got]
+    set_names = tuple(dict.fromkeys(sets)) if kind == "stability" else ()
+    if not table.problems:
+        _check_layout(kind, items, sets, where, set_names, table.bad)
+    if table.problems:
+        raise InputError(summarise_ambiguous(table.problems),
+                         summary=f"the {kind} table for {m.name} cannot be used")
+    return ItemTable(
+        file=sheet.file, kind=kind, items=tuple(items), replicates=tuple(g.replicate for g in got),
+        values=np.asarray([g.value for g in got], dtype=float), sets=tuple(sets) if kind == "stability" else None,
+        set_names=set_names, set_u={k: v[0] for k, v in table.set_u.items()}, rows=tuple(where),
+        notes=tuple(table.notes) + tuple(sheet.warnings),
+    )
 
-    index: dict[str, int] = {}
 
-    def bad(message: str, row: int | None, column: str | None = None, value: object = None,
+@dataclass(frozen=True, slots=True)
+class _Measurement:
+    """One usable row of an item table."""
+
+    item: str
+    replicate: int
+    set_name: str  # "" in a homogeneity table
+    value: float  # in the measurand's unit
+    row: int  # as the person sees it
+
+
+class _TableReader:
+    """An item table read row by row, every problem collected with its cell (:meth:`bad`)."""
+
+    def __init__(self, sheet: SheetRows, m: MeasurandSettings, kind: TableKind, rnd_names: tuple[str, ...],
+                 decimal: DecimalMark | None) -> None:
+        self.sheet, self.m, self.kind, self.decimal = sheet, m, kind, decimal
+        self.rnd_names = rnd_names or (m.name,)
+        self.known = {n.lower() for n in self.rnd_names}
+        self.problems: list[Problem] = []
+        self.notes: list[str] = []
+        self.index: dict[str, int] = {}
+        self.row_word = "line" if is_text_file(sheet.file, sheet.sheet) else "row"
+        self.seen: dict[tuple[str, str, int], int] = {}
+        self.set_u: dict[str, tuple[float, int]] = {}
+
+    def bad(self, message: str, row: int | None, column: str | None = None, value: object = None,
             hint: str | None = None) -> None:
         cell = None  # a workbook's cell is named as the person sees it: Sheet1!C4
-        if sheet.sheet is not None and row is not None and column in index:
-            cell = cell_ref(row, index[column])
-        problems.append(Problem(message=message, file=sheet.file, sheet=sheet.sheet, row=row, column=column,
-                                measurand=m.name, value=value, cell=cell, hint=hint))
+        if self.sheet.sheet is not None and row is not None and column in self.index:
+            cell = cell_ref(row, self.index[column])
+        self.problems.append(Problem(message=message, file=self.sheet.file, sheet=self.sheet.sheet, row=row,
+                                     column=column, measurand=self.m.name, value=value, cell=cell, hint=hint))
 
-    rows = sheet.rows
-    _row_word = "line" if is_text_file(sheet.file, sheet.sheet) else "row"
-    start = next((i for i, r in enumerate(rows) if any(cell_label(c) for c in r)), None)
-    if start is None:
-        bad(f"the {kind} table is empty; the header must hold {', '.join(required)}", None)
-        raise InputError(problems, summary=f"the {kind} table cannot be read")
-    header = [cell_label(c) or "" for c in rows[start]]
-    ignored = []
-    for j, name in enumerate(header):
-        key = name.lower()
-        if key in required or key in optional:
-            if key in index:
-                bad(f"column {name!r} appears twice", start + 1, name)
-            index[key] = j
-        elif name:
-            ignored.append(name)
-    missing = [c for c in required if c not in index]
-    if missing:
-        bad(f"missing column(s) {', '.join(missing)}; the header must hold {', '.join(required)} "
-            f"(optional: {', '.join(optional)}); found: {', '.join(h for h in header if h) or 'nothing'}",
-            start + 1)
-        raise InputError(problems, summary=f"the {kind} table cannot be read")
-    if ignored:
-        notes.append(f"{sheet.file}: column(s) {', '.join(ignored)} ignored")
+    def header(self) -> int:
+        """The header's row index, its columns read into :attr:`index`; InputError when it is unusable."""
+        kind, rows = self.kind, self.sheet.rows
+        required, optional = _REQUIRED[kind], _OPTIONAL[kind]
+        start = next((i for i, r in enumerate(rows) if any(cell_label(c) for c in r)), None)
+        if start is None:
+            self.bad(f"the {kind} table is empty; the header must hold {', '.join(required)}", None)
+            raise InputError(self.problems, summary=f"the {kind} table cannot be read")
+        header = [cell_label(c) or "" for c in rows[start]]
+        ignored = []
+        for j, name in enumerate(header):
+            key = name.lower()
+            if key in required or key in optional:
+                if key in self.index:
+                    self.bad(f"column {name!r} appears twice", start + 1, name)
+                self.index[key] = j
+            elif name:
+                ignored.append(name)
+        missing = [c for c in required if c not in self.index]
+        if missing:
+            self.bad(f"missing column(s) {', '.join(missing)}; the header must hold {', '.join(required)} "
+                     f"(optional: {', '.join(optional)}); found: {', '.join(h for h in header if h) or 'nothing'}",
+                     start + 1)
+            raise InputError(self.problems, summary=f"the {kind} table cannot be read")
+        if ignored:
+            self.notes.append(f"{self.sheet.file}: column(s) {', '.join(ignored)} ignored")
+        return start
 
-    items: list[str] = []
-    reps: list[int] = []
-    values: list[float] = []
-    sets: list[str] = []
-    where: list[int] = []
-    set_u: dict[str, tuple[float, int]] = {}
-    seen: dict[tuple[str, str, int], int] = {}
-    for i in range(start + 1, len(rows)):
-        r = rows[i]
+    def read_row(self, i: int) -> _Measurement | None:
+        """Row ``i`` (0-based) as a measurement; None for an empty row, another measurand's or a bad one."""
+        r = self.sheet.rows[i]
         if not any(cell_label(c) for c in r):
-            continue
-        row = sheet.row_number(i)
-        get = {k: (r[j] if j < len(r) else None) for k, j in index.items()}
-        if "measurand" in index:
-            name = cell_label(get["measurand"])
-            if name is None:
-                bad("the measurand is empty", row, "measurand", get["measurand"])
-                continue
-            if name.lower() != m.name.lower():
-                if name.lower() not in known:
-                    bad(f"unknown measurand; the round has: {shown_list(rnd_names)}", row, "measurand", name)
-                continue
+            return None
+        row = self.sheet.row_number(i)
+        get = {k: (r[j] if j < len(r) else None) for k, j in self.index.items()}
+        if "measurand" in self.index and not self._ours(get, row):
+            return None
+        keys = self._keys(get, row)
+        if keys is None:
+            return None
+        item, rep, set_name = keys
+        value_f = self._value(get, row)
+        if value_f is None:
+            return None
+        value, f = value_f
+        if self.kind == "stability" and cell_label(get.get("u")) is not None:
+            if not self._set_u(get, row, set_name, f):
+                return None
+        return _Measurement(item=item, replicate=rep, set_name=set_name, value=value, row=row)
+
+    def _ours(self, get: dict[str, object], row: int) -> bool:
+        """Whether the row is of this measurand (a problem when it names none, or one the round lacks)."""
+        name = cell_label(get["measurand"])
+        if name is None:
+            self.bad("the measurand is empty", row, "measurand", get["measurand"])
+            return False
+        if name.lower() != self.m.name.lower():
+            if name.lower() not in self.known:
+                self.bad(f"unknown measurand; the round has: {shown_list(self.rnd_names)}", row, "measurand",
+                         name)
+            return False
+        return True
+
+    def _keys(self, get: dict[str, object], row: int) -> tuple[str, int, str] | None:
+        """Item, replicate and set of a row, each checked, and checked against the rows before."""
         item = cell_label(get["item"])
         if item is None:
-            bad("the item label is empty", row, "item", get["item"])
-            continue
+            self.bad("the item label is empty", row, "item", get["item"])
+            return None
         why = too_long("item label", item)
         if why:
-            bad(why, row, "item", get["item"])
-            continue
+            self.bad(why, row, "item", get["item"])
+            return None
         rep = _whole(get["replicate"])
         if rep is None:
-            bad("the replicate must be a whole number ≥ 1", row, "replicate", get["replicate"])
-            continue
+            self.bad("the replicate must be a whole number ≥ 1", row, "replicate", get["replicate"])
+            return None
         set_name = ""
-        if kind == "stability":
+        if self.kind == "stability":
             set_name = cell_label(get["set"]) or ""
             if not set_name:
-                bad("the set is empty; name the group of this measurement (e.g. before / after)", row, "set",
-                    get["set"])
-                continue
+                self.bad("the set is empty; name the group of this measurement (e.g. before / after)", row,
+                         "set", get["set"])
+                return None
             why = too_long("set", set_name)
             if why:
-                bad(why, row, "set", get["set"])
-                continue
+                self.bad(why, row, "set", get["set"])
+                return None
         key = (set_name, item, rep)
-        if key in seen:
+        if key in self.seen:
             what = f"set {set_name!r}, " if set_name else ""
-            bad(f"duplicate measurement for {what}item {item!r}, replicate {rep} (also {_row_word} {seen[key]})",
-                row, "replicate", get["replicate"])
-            continue
-        seen[key] = row
+            self.bad(f"duplicate measurement for {what}item {item!r}, replicate {rep} "
+                     f"(also {self.row_word} {self.seen[key]})", row, "replicate", get["replicate"])
+            return None
+        self.seen[key] = row
+        return item, rep, set_name
+
+    def _value(self, get: dict[str, object], row: int) -> tuple[float, float] | None:
+        """The row's value in the measurand's unit, and the unit's factor; None after a problem."""
+        m = self.m
         try:
-            cell = parse_cell(get["value"], decimal=decimal)
+            cell = parse_cell(get["value"], decimal=self.decimal)
         except CellError as exc:
-            bad(str(exc), row, "value", get["value"], exc.hint)
-            continue
+            self.bad(str(exc), row, "value", get["value"], exc.hint)
+            return None
         if cell.kind == "censored":
-            bad(_WHY_CENSORED, row, "value", get["value"])
-            continue
-        if cell.kind == "blank":
-            bad(_WHY_BLANK, row, "value", get["value"])
-            continue
+            self.bad(_WHY_CENSORED, row, "value", get["value"])
+            return None
+        if cell.kind == "blank" or cell.value is None:
+            self.bad(_WHY_BLANK, row, "value", get["value"])
+            return None
         unit = cell_label(get.get("unit")) or m.unit
         f = 1.0
         if unit != m.unit:
             why = too_long("unit", unit)
             if why:  # before the unit converter sees it
-                bad(why, row, "unit", get.get("unit"))
-                continue
+                self.bad(why, row, "unit", get.get("unit"))
+                return None
             try:
                 f = factor(unit, m.unit)
             except UnitError as exc:
-                bad(f"{exc} (the round reports {m.name} in {m.unit})", row, "unit", get.get("unit"))
-                continue
-        value = float(cell.value) * f  # type: ignore[arg-type]
+                self.bad(f"{exc} (the round reports {m.name} in {m.unit})", row, "unit", get.get("unit"))
+                return None
+        value = float(cell.value) * f
         why = magnitude_problem(value)  # roundscore.ranges: too large or small to compute with
         if why is not None:
-            bad(why, row, "value", get["value"])
-            continue
+            self.bad(why, row, "value", get["value"])
+            return None
         if value < 0 and not m.allow_negative:
-            bad(f"a negative value, but {m.name} cannot be below zero "
-                "(set allow_negative = true for this measurand if it can)", row, "value", get["value"])
-            continue
-        if kind == "stability" and cell_label(get.get("u")) is not None:
-            try:
-                uc = parse_cell(get["u"], decimal=decimal)
-            except CellError as exc:
-                bad(f"u: {exc}", row, "u", get["u"], exc.hint)
-                continue
-            if uc.kind != "value" or uc.value is None or uc.value < 0:
-                bad("u must be a number ≥ 0: the standard uncertainty of the set's mean", row, "u", get["u"])
-                continue
-            u = float(uc.value) * f
-            why = magnitude_problem(u)
-            if why is not None:
-                bad(f"u: {why}", row, "u", get["u"])
-                continue
-            if set_name in set_u and not math.isclose(set_u[set_name][0], u, rel_tol=1e-12, abs_tol=0.0):
-                bad(f"u differs within set {set_name!r} (row {set_u[set_name][1]} gives "
-                    f"{set_u[set_name][0]:g}): u is the uncertainty of the set's mean, one number per set",
-                    row, "u", get["u"])
-                continue
-            set_u.setdefault(set_name, (u, row))
-        items.append(item)
-        reps.append(rep)
-        values.append(value)
-        sets.append(set_name)
-        where.append(row)
+            self.bad(f"a negative value, but {m.name} cannot be below zero "
+                     "(set allow_negative = true for this measurand if it can)", row, "value", get["value"])
+            return None
+        return value, f
 
-    set_names = tuple(dict.fromkeys(sets)) if kind == "stability" else ()
-    if not problems:
-        _check_layout(kind, items, sets, where, set_names, bad)
-    if problems:
-        raise InputError(summarise_ambiguous(problems), summary=f"the {kind} table for {m.name} cannot be used")
-    return ItemTable(
-        file=sheet.file, kind=kind, items=tuple(items), replicates=tuple(reps),
-        values=np.asarray(values, dtype=float), sets=tuple(sets) if kind == "stability" else None,
-        set_names=set_names, set_u={k: v[0] for k, v in set_u.items()}, rows=tuple(where),
-        notes=tuple(notes) + tuple(sheet.warnings),
-    )
+    def _set_u(self, get: dict[str, object], row: int, set_name: str, f: float) -> bool:
+        """A stability row's u (the uncertainty of its set's mean), kept in :attr:`set_u`; False after a
+        problem."""
+        try:
+            uc = parse_cell(get["u"], decimal=self.decimal)
+        except CellError as exc:
+            self.bad(f"u: {exc}", row, "u", get["u"], exc.hint)
+            return False
+        if uc.kind != "value" or uc.value is None or uc.value < 0:
+            self.bad("u must be a number ≥ 0: the standard uncertainty of the set's mean", row, "u", get["u"])
+            return False
+        u = float(uc.value) * f
+        why = magnitude_problem(u)
+        if why is not None:
+            self.bad(f"u: {why}", row, "u", get["u"])
+            return False
+        set_u = self.set_u
+        if set_name in set_u and not math.isclose(set_u[set_name][0], u, rel_tol=1e-12, abs_tol=0.0):
+            self.bad(f"u differs within set {set_name!r} (row {set_u[set_name][1]} gives "
+                     f"{set_u[set_name][0]:g}): u is the uncertainty of the set's mean, one number per set",
+                     row, "u", get["u"])
+            return False
+        set_u.setdefault(set_name, (u, row))
+        return True
 
 
 def _check_layout(kind, items, sets, where, set_names, bad) -> None:
@@ -321,7 +370,7 @@ def read_item_tables(rnd: Round) -> ItemTables:
             if getattr(m, kind) is None:
                 continue
             try:
-                tables[kind] = read_item_values(rnd, m, kind)  # type: ignore[arg-type]
+                tables[kind] = read_item_values(rnd, m, kind)
             except InputError as exc:
                 problems += exc.problems
         if problems:

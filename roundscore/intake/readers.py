@@ -6,7 +6,7 @@ import functools
 from dataclasses import dataclass, replace
 from pathlib import Path
 
-from roundscore.errors import InputError, Problem, is_text_file
+from roundscore.errors import InputError, Problem, Place, is_text_file
 from roundscore.intake.roundfile import result_files
 from roundscore.model.inputs import Participant
 from roundscore.model.round import Round
@@ -131,7 +131,7 @@ def _read_forms(rnd: Round, files: list[Path], *, jobs: int | None, progress) ->
     warnings: list[str] = []
     readings: list[tuple[str, str]] = list(round_reading(rnd))
     rows: list[tuple] = []
-    places: dict[str, dict] = {}
+    places: dict[str, Place] = {}
     shown = [_shown(rnd, Path(p)) for p in paths]
     for p, name in zip(paths, shown):
         got = read.get(p)
@@ -189,7 +189,7 @@ class _FormRows:
     problems: list
     warnings: list
     readings: list
-    lab_place: dict | None = None
+    lab_place: Place | None = None
 
 
 def _read_sheets(paths: list[str], limits) -> list:
@@ -276,7 +276,7 @@ def read_participants(rnd: Round) -> dict[str, Participant]:
     problems: list[Problem] = []
     codes = LabCodeReader(problems)
     for i, r in numbered[1:]:
-        def cell(j, kind):
+        def cell(j, kind, r=r, i=i):  # this row's cell
             if j is None or j >= len(r) or r[j] is None:
                 return ""
             v = r[j]
@@ -322,19 +322,20 @@ def check_labs(rnd: Round, table: ResultTable, participants: dict[str, Participa
     from dataclasses import replace
 
     labs = list(dict.fromkeys(table.frame["lab"])) if len(table.frame) else []
-    results_places = {lab: table.lab_places.get(lab, {}) for lab in labs}
+    results_places: dict[str, Place] = {lab: table.lab_places.get(lab, {}) for lab in labs}
     part_shown = _shown(rnd, rnd.participants) if rnd.participants is not None else None
-    part_places = {lab: {"file": part_shown, "row": p.row, "column": "lab"} for lab, p in participants.items()}
+    part_places: dict[str, Place] = {lab: {"file": part_shown, "row": p.row, "column": "lab"}
+                                     for lab, p in participants.items()}
     problems = clash_problems(results_places, also=part_places)
-    excl_places = {e.lab: {"file": str(rnd.path), "column": f"exclude[{i}].lab"}
-                   for i, e in enumerate(rnd.exclusions, start=1)}
+    excl_places: dict[str, Place] = {e.lab: {"file": str(rnd.path), "column": f"exclude[{i}].lab"}
+                                     for i, e in enumerate(rnd.exclusions, start=1)}
     problems += clash_problems(excl_places, also={**part_places, **results_places})
     warnings: list[str] = []
     if rnd.participants is not None:
         keys = {lab_key(p): p for p in participants}
         unknown = [lab for lab in labs if lab not in participants and lab_key(lab) not in keys]
         for lab in unknown:
-            where = dict(results_places.get(lab, {}))
+            where = results_places.get(lab, {})
             message = (f"lab code {quote(lab)} is not in the participants file {_shown(rnd, rnd.participants)}")
             if rnd.unknown_labs == "error":
                 problems.append(Problem(message=message + " ([round] unknown_labs = \"error\"); add the lab to "

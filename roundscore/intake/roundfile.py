@@ -95,18 +95,19 @@ class _Checker:
             allowed += (f" (from {MIN_MAGNITUDE:g} to {MAX_MAGNITUDE:g})" if positive else
                         f" (0, or from {MIN_MAGNITUDE:g} to {MAX_MAGNITUDE:g})" if low == 0 else
                         f" (0, or of magnitude {MIN_MAGNITUDE:g} to {MAX_MAGNITUDE:g})")
-        if _real(value) is None:
+        real = _real(value)
+        if real is None:
             self.bad(key, value, allowed)
             return None
-        if (positive and value <= 0) or value < low:
+        if (positive and real <= 0) or real < low:
             self.bad(key, value, allowed)
             return None
-        why = magnitude_problem(value) if ranged else None
+        why = magnitude_problem(real) if ranged else None
         if why is not None:
             self.bad(key, value, f"{allowed} ({why.split(':')[0]}; numbers outside this range overflow or lose "
                      "their digits in the computations)")
             return None
-        return float(value)
+        return real
 
     def whole(self, key: str, value: object, default: int, low: int, high: int) -> int:
         if value is None:
@@ -219,7 +220,7 @@ def _measurand(c: _Checker, folder: Path, name: str, raw: object) -> MeasurandSe
               "and no control characters)")
         unit = ""
     assigned_raw = raw.get("assigned", "algorithm-a")
-    assigned: str | float
+    assigned: AssignedMethod | float
     if isinstance(assigned_raw, str):
         assigned = c.choice(f"{t}.assigned", assigned_raw, AssignedMethod, "algorithm-a")
     else:
@@ -269,7 +270,8 @@ def _measurand(c: _Checker, folder: Path, name: str, raw: object) -> MeasurandSe
 
 
 def _exclusions(c: _Checker, raw: object, measurands: dict) -> tuple[Exclusion, ...]:
-    allowed = "a list of tables: [[exclude]] lab = \"L07\", measurand = \"...\" (optional), reason = \"...\", scored = true"
+    allowed = ("a list of tables: [[exclude]] lab = \"L07\", measurand = \"...\" (optional), reason = \"...\", "
+               "scored = true")
     if not isinstance(raw, list):
         c.bad("exclude", raw, allowed)
         return ()
@@ -306,7 +308,7 @@ def _limits(c: _Checker, raw: object) -> ReadLimits:
         c.bad("limits", raw, "a table: [limits] max_part_mib = 64, max_total_mib = 256, ...")
         return DEFAULT_LIMITS
     c.unknown("[limits] ", raw, {k: "" for k in LIMIT_KEYS})
-    kw: dict[str, int | float] = {}
+    kw: dict[str, Any] = {}  # ReadLimits field → value (an int, or a float for timeout_s)
     for key, value in raw.items():
         if key not in LIMIT_KEYS:
             continue
@@ -314,10 +316,11 @@ def _limits(c: _Checker, raw: object) -> ReadLimits:
         low, high = limit_range(key)
         whole = key == "max_parts"
         allowed = f"a {'whole ' if whole else ''}number from {low:g} to {high:g}"
-        if _real(value) is None or not low <= value <= high or (whole and not isinstance(value, int)):
+        real = _real(value)
+        if real is None or not low <= real <= high or (whole and not isinstance(value, int)):
             c.bad(f"limits.{key}", value, allowed)
             continue
-        kw[field_name] = float(value) if field_name == "timeout_s" else int(value * unit)
+        kw[field_name] = real if field_name == "timeout_s" else int(real * unit)
     try:
         return ReadLimits(**kw)
     except ValueError as exc:
@@ -325,7 +328,7 @@ def _limits(c: _Checker, raw: object) -> ReadLimits:
         return DEFAULT_LIMITS
 
 
-def _iso_date(c: "_Checker", key: str, value: object) -> str:
+def _iso_date(c: _Checker, key: str, value: object) -> str:
     """A date key (a TOML date, or text such as 2026-10-14) in ISO form; "" when not given."""
     if isinstance(value, (_dt.date, _dt.datetime)):
         return value.isoformat()[:10]

@@ -34,6 +34,7 @@ References
 
 from __future__ import annotations
 
+import functools
 import html
 import os
 import re
@@ -42,7 +43,7 @@ import zipfile
 import zlib
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Callable, Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 
 from roundscore.errors import InputError
 from roundscore.model.limits import DEFAULT_LIMITS, MiB, ReadLimits
@@ -327,7 +328,8 @@ def _prolog_verdict(head: bytes, complete: bool) -> bool | None:
     None: more bytes are needed (or the start is unusual and the whole part must be scanned)."""
     if head.startswith(b"\xef\xbb\xbf"):
         head = head[3:]
-    rest = head[_PROLOG.match(head).end():]
+    prolog = _PROLOG.match(head)  # it matches the empty string, so always
+    rest = head[prolog.end() if prolog else 0:]
     if not rest:
         return False if complete else None
     if rest.startswith(b"<!"):
@@ -445,7 +447,7 @@ def _central_directory(data: bytes) -> list[tuple] | None:
     at = data.rfind(b"PK\x05\x06", max(0, len(data) - 65557))
     if at < 0 or at + _EOCD.size > len(data):
         return None
-    _, disk, cd_disk, n_disk, n, cd_size, cd_offset, _ = _EOCD.unpack_from(data, at)
+    _, disk, cd_disk, n_disk, n, _cd_size, cd_offset, _ = _EOCD.unpack_from(data, at)
     if disk or cd_disk or n_disk != n or n == 0xFFFF or cd_offset == 0xFFFFFFFF:
         return None
     entries = []
@@ -475,7 +477,7 @@ def _inspect_zipfile(path: str | Path, scan: _Scan) -> None:
         infos = zf.infolist()
         _check_count(scan, len(infos))
         for info in infos:
-            scan.member(info.filename, info.file_size, lambda cap, i=info: _stream(zf, i, file, cap))
+            scan.member(info.filename, info.file_size, functools.partial(_stream, zf, info, file))
 
 
 def _stream(zf: zipfile.ZipFile, info: zipfile.ZipInfo, file: str, cap: int) -> bytes:

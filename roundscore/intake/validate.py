@@ -10,15 +10,16 @@ from __future__ import annotations
 
 import math
 from decimal import Decimal
-from typing import Iterable
+from collections.abc import Iterable
+from typing import Any
 
 import numpy as np
 
-from roundscore.errors import InputError, Problem, cell_ref, is_text_file, place, sheet_cell, shown_value
+from roundscore.errors import InputError, Problem, Place, cell_ref, is_text_file, place, sheet_cell, shown_value
 from roundscore.intake.cells import HINT_DECLARE, HINT_NUMBER, CellError, parse_cell
 from roundscore.intake.xlsx import SheetRows
 from roundscore.model.labcodes import clash_problems, read_lab_code
-from roundscore.model.round import Round
+from roundscore.model.round import DecimalMark, Round
 from roundscore.model.table import Record, ResultTable, table_frame
 from roundscore.model.units import UnitError, factor
 from roundscore.ranges import MAX_MAGNITUDE, MIN_MAGNITUDE, magnitude_problem
@@ -55,7 +56,7 @@ _HINT_UNCERTAINTY = ("give u, or U with its coverage factor k, as numbers in the
                      "2), or leave them blank")
 
 
-def _number(v: object, what: str, rec: Record, problems: list[Problem], decimal: str | None,
+def _number(v: object, what: str, rec: Record, problems: list[Problem], decimal: DecimalMark | None,
             *, positive=False) -> float | None:
     try:
         cell = parse_cell(v, decimal=decimal)
@@ -76,6 +77,13 @@ def _out_of_range(v: float) -> bool:
     """True for a finite number outside roundscore.ranges (NaN, a blank, is in range; ±inf is not)."""
     a = abs(v)
     return a > MAX_MAGNITUDE or 0.0 < a < MIN_MAGNITUDE
+
+
+def _range_problem(v: float) -> str:
+    """What is wrong with a number :func:`_out_of_range` refused (roundscore.ranges)."""
+    why = magnitude_problem(v)
+    assert why is not None, "a number out of range has a problem"
+    return why
 
 
 def _problem(message: str, rec: Record, column: str | None, value: object, hint: str | None = None) -> Problem:
@@ -121,7 +129,7 @@ def records_from_long(sheet: SheetRows) -> tuple[list[Record], list[Problem]]:
         r = rows[i]
         if not any(c is not None and str(c).strip() for c in r):
             continue
-        get = {k: (r[j] if j < len(r) else None) for k, j in index.items()}
+        get: dict[str, Any] = {k: (r[j] if j < len(r) else None) for k, j in index.items()}  # cells as read
         records.append(Record(file=sheet.file, sheet=sheet.sheet, row=sheet.row_number(i), cols=cols, **get))
     return records, problems
 
@@ -188,7 +196,7 @@ def summarise_ambiguous(problems: list[Problem]) -> list[Problem]:
             file=file, sheet=None if first.cell else sheet, column=column, hint=HINT_DECLARE)
     if not replaced:
         return problems
-    return [replaced.get(i, p) for i, p in enumerate(problems) if replaced.get(i, p) is not None]
+    return [q for i, p in enumerate(problems) if (q := replaced.get(i, p)) is not None]
 
 
 def _places(group: list[Problem], most: int = 12) -> str:
@@ -213,16 +221,17 @@ def _places(group: list[Problem], most: int = 12) -> str:
 
 
 
-def lab_places(rows: Iterable[tuple]) -> dict[str, dict]:
-    """Where each lab code of validated rows (:data:`~roundscore.model.table.COLUMNS` tuples) first appears: file, sheet, row, column."""
-    out: dict[str, dict] = {}
+def lab_places(rows: Iterable[tuple]) -> dict[str, Place]:
+    """Where each lab code of validated rows (:data:`~roundscore.model.table.COLUMNS` tuples) first appears: file,
+    sheet, row, column."""
+    out: dict[str, Place] = {}
     for r in rows:
         if r[0] not in out:
             out[r[0]] = {"file": r[-3], "sheet": r[-2], "row": r[-1], "column": "lab"}
     return out
 
 
-def _optional_number(v: object, what: str, rec: Record, problems: list[Problem], decimal: str | None,
+def _optional_number(v: object, what: str, rec: Record, problems: list[Problem], decimal: DecimalMark | None,
                      *, positive=False) -> float:
     """An uncertainty or coverage factor cell: NaN when blank, the number, or NaN and a problem."""
     if v is None:
@@ -242,7 +251,8 @@ def _record_place(first: Record) -> str:
 
 
 def validate_records(rnd: Round, records: Iterable[Record]) -> tuple[list[tuple], list[Problem]]:
-    """Check records against the round: one row tuple (:data:`~roundscore.model.table.COLUMNS`) per valid record, and every problem.
+    """Check records against the round: one row tuple (:data:`~roundscore.model.table.COLUMNS`) per valid record,
+    and every problem.
 
     Duplicates are found among these records only (a caller joining several
     files' rows checks across them). Labels seen once are not looked up
@@ -352,7 +362,7 @@ def validate_records(rnd: Round, records: Iterable[Record]) -> tuple[list[tuple]
             value = cell.value * f if cell.value is not None else np.nan
             limit = cell.limit * f if cell.limit is not None else np.nan
             if _out_of_range(value) or _out_of_range(limit):  # roundscore.ranges: too large or small to compute with
-                why = magnitude_problem(value if _out_of_range(value) else limit)
+                why = _range_problem(value if _out_of_range(value) else limit)
                 problems.append(_problem(why + (f" (after converting {unit} to {m.unit})" if f != 1.0 else ""),
                                          rec, "value", rec.value))
                 ok = False
@@ -369,7 +379,7 @@ def validate_records(rnd: Round, records: Iterable[Record]) -> tuple[list[tuple]
             continue
         bad = next((n for n, v in (("u", u * f), ("U", U * f), ("k", k)) if _out_of_range(v)), None)
         if bad is not None:
-            problems.append(_problem(f"{bad}: " + magnitude_problem({"u": u * f, "U": U * f, "k": k}[bad]),
+            problems.append(_problem(f"{bad}: " + _range_problem({"u": u * f, "U": U * f, "k": k}[bad]),
                                      rec, bad, getattr(rec, bad)))
             continue
         out.append((

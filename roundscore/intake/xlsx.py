@@ -20,7 +20,7 @@ import csv
 import io
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Sequence
+from collections.abc import Sequence
 
 from roundscore.errors import InputError, Problem
 from roundscore.model.limits import DEFAULT_LIMITS, ReadLimits
@@ -242,6 +242,6 @@ def _read_workbook(path: str | Path, sheets: list[str | None], limits: ReadLimit
             if _fatal(exc):
                 raise
             raise InputError.single(f"corrupt workbook, sheet {name!r} cannot be read: {exc}", file=file) from None
-        rows = [[None if c == "" else c for c in r] for r in data]
+        rows: list[list[object]] = [[None if c == "" else c for c in r] for r in data]
         out.append(SheetRows(file=file, sheet=name, rows=rows, warnings=check.warnings_for(name)))
     return out

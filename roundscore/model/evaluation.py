@@ -143,7 +143,7 @@ class RoundEvaluation:
     warnings: tuple[str, ...] = ()
     # Not an __init__ argument: dataclasses.replace() then starts a fresh cache instead of sharing the
     # original's (whose per-lab splits would belong to other tables).
-    _cache: dict[str, Any] = field(default_factory=dict, init=False, repr=False, compare=False)
+    _cache: dict[str | tuple[str, str], Any] = field(default_factory=dict, init=False, repr=False, compare=False)
 
     @property
     def labs(self) -> list[str]:

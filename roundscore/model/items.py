@@ -10,7 +10,8 @@ checks of one measurand found and did to σ_pt and u(x_pt) (computed by
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Any, Literal, Mapping
+from collections.abc import Mapping
+from typing import Any, Literal
 
 import numpy as np
 

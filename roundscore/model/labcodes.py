@@ -28,9 +28,10 @@ from __future__ import annotations
 
 import datetime as _dt
 import unicodedata
-from typing import Mapping
+from collections.abc import Mapping
+from typing import Unpack
 
-from roundscore.errors import Problem
+from roundscore.errors import Problem, Place
 from roundscore.text import quote, terminal_text
 
 __all__ = ["MAX_LAB_CODE", "LAB_CODE_RULE", "read_lab_code", "lab_code_problem", "lab_key", "clash_problems",
@@ -132,12 +133,12 @@ def lab_key(code: str) -> str:
     return nf("NFKC", nf("NFKC", nf("NFD", code).casefold()).casefold())
 
 
-def _where(place: Mapping[str, object]) -> str:
-    return str(Problem(message="", **{k: v for k, v in place.items() if k != "message"})).rstrip(": ")
+def _where(place: Place) -> str:
+    return str(Problem(message="", **place)).rstrip(": ")
 
 
-def clash_problems(first_seen: Mapping[str, Mapping[str, object]], *,
-                   also: Mapping[str, Mapping[str, object]] | None = None) -> list[Problem]:
+def clash_problems(first_seen: Mapping[str, Place], *,
+                   also: Mapping[str, Place] | None = None) -> list[Problem]:
     """Problems for codes that differ but share a :func:`lab_key`.
 
     ``first_seen`` maps each distinct code to where it was first read
@@ -146,7 +147,7 @@ def clash_problems(first_seen: Mapping[str, Mapping[str, object]], *,
     checking the results) that must not clash with them either. Each clash
     is one problem at the later code's place, naming the other's.
     """
-    groups: dict[str, list[tuple[str, Mapping[str, object]]]] = {}
+    groups: dict[str, list[tuple[str, Place]]] = {}
     for source in (first_seen, also or {}):
         for code, place in source.items():
             group = groups.setdefault(lab_key(code), [])
@@ -162,7 +163,8 @@ def clash_problems(first_seen: Mapping[str, Mapping[str, object]], *,
                 message=(f"lab code {quote(code)} and lab code {quote(first_code)} ({_where(first_place)}) differ "
                          "only in letter case or Unicode form: they would be one file on Windows and macOS and "
                          "are easily taken for one lab; use one spelling for one lab, or distinct codes"),
-                lab=code, **{k: v for k, v in place.items() if k in ("file", "sheet", "row", "column")}))
+                lab=code, file=place.get("file"), sheet=place.get("sheet"), row=place.get("row"),
+                column=place.get("column")))
     return problems
 
 
@@ -176,10 +178,10 @@ class LabCodeReader:
 
     def __init__(self, problems: list[Problem]) -> None:
         self.problems = problems
-        self.first_seen: dict[str, dict[str, object]] = {}
+        self.first_seen: dict[str, Place] = {}
         self._cache: dict[tuple[type, object], tuple[str | None, str | None]] = {}
 
-    def read(self, value: object, **place: object) -> str | None:
+    def read(self, value: object, /, **place: Unpack[Place]) -> str | None:
         try:
             key = (type(value), value)
             got = self._cache.get(key)
@@ -192,5 +194,5 @@ class LabCodeReader:
             self.problems.append(Problem(message=reason or "the lab code is empty", value=value, **place))
             return None
         if code not in self.first_seen:
-            self.first_seen[code] = dict(place)
+            self.first_seen[code] = place
         return code

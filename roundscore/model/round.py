@@ -132,6 +132,18 @@ class SigmaSpec:
     s_r: float | None = None
     replicates: int | None = None
 
+    def fixed(self) -> float:
+        """The fixed σ_pt (``kind`` "fixed")."""
+        if self.value is None:
+            raise ValueError(f"σ_pt of kind {self.kind!r} has no fixed value")
+        return float(self.value)
+
+    def experiment(self) -> tuple[float, float, int]:
+        """``s_R``, ``s_r`` and the replicates of the precision experiment (``kind`` "precision")."""
+        if self.s_R is None or self.s_r is None or self.replicates is None:
+            raise ValueError(f"σ_pt of kind {self.kind!r} has no precision experiment")
+        return self.s_R, self.s_r, self.replicates
+
     def describe(self) -> str:
         if self.kind == "fixed":
             return f"fixed value {self.value:g}"

@@ -26,7 +26,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from types import MappingProxyType
-from typing import Callable, Literal, Mapping
+from collections.abc import Callable, Mapping
+from typing import Literal
 
 import numpy as np
 
@@ -109,7 +110,7 @@ class ScoreFamily:
         return action if self.warning is None else ((self.warning, "warning"), *action)
 
     @property
-    def members(self) -> tuple["ScoreKind", ...]:
+    def members(self) -> tuple[ScoreKind, ...]:
         """The scores of this family, in the table's order."""
         return tuple(s for s in SCORES.values() if s.family == self.name)
 

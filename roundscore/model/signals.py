@@ -22,7 +22,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from types import MappingProxyType
-from typing import Literal, Mapping
+from collections.abc import Mapping
+from typing import Literal
 
 from roundscore.choices import options
 from roundscore.stats.scores import Signal

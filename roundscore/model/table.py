@@ -13,6 +13,9 @@ from dataclasses import dataclass, field
 
 import pandas as pd
 
+from roundscore.errors import Place
+from roundscore.model.round import DecimalMark
+
 __all__ = ["ResultTable", "Record", "COLUMNS", "table_frame"]
 
 #: Columns of :attr:`ResultTable.frame`, in order.
@@ -46,7 +49,7 @@ class Record:
     method: object = None
     comment: object = None
     #: The decimal mark declared for this record's text cells ("comma", "point"), or None for the round's.
-    decimal: str | None = None
+    decimal: DecimalMark | None = None
     #: Field name → (0-based column index, the column's header as in the file), shared by the rows of a
     #: sheet, so that a problem names the cell (``Results!D11``) and the header the person sees.
     cols: dict | None = None
@@ -69,7 +72,7 @@ class ResultTable:
     readings : tuple of (str, str)
         How text cells were read, for the audit trail: (lab or "", what was
         done), one per round or per file, never per cell.
-    lab_places : dict of str to dict
+    lab_places : dict of str to Place
         Where each lab code was first read (:class:`~roundscore.errors.Problem`
         fields file, sheet, row, column), for messages that name it.
     """
@@ -78,7 +81,7 @@ class ResultTable:
     files: tuple[str, ...] = ()
     warnings: tuple[str, ...] = field(default=())
     readings: tuple[tuple[str, str], ...] = field(default=())
-    lab_places: dict[str, dict] = field(default_factory=dict)
+    lab_places: dict[str, Place] = field(default_factory=dict)
 
     @property
     def labs(self) -> list[str]:

@@ -27,7 +27,7 @@ class UnitError(ValueError):
 
 @functools.cache
 def _registry() -> pint.UnitRegistry:
-    ureg = pint.UnitRegistry()
+    ureg: pint.UnitRegistry = pint.UnitRegistry()
     ureg.define("ppb = 1e-9 = parts_per_billion")
     ureg.define("ppt = 1e-12 = parts_per_trillion")
     return ureg

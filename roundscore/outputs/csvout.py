@@ -13,6 +13,7 @@ import csv
 import io
 import math
 from pathlib import Path
+from typing import Any
 
 import pandas as pd
 
@@ -27,7 +28,7 @@ def neutralise(text: str) -> str:
     return "'" + text if text.startswith(_DANGEROUS) else text
 
 
-def _cell(v: object) -> str:
+def _cell(v: Any) -> str:
     if v is None:
         return ""
     if isinstance(v, bool):

@@ -124,7 +124,7 @@ class Section:
     """A titled group of blocks; a rendering keeps the heading with the first block that follows it."""
 
     heading: Heading
-    blocks: tuple["Block", ...]
+    blocks: tuple[Block, ...]
 
 
 #: Any block a document holds.

@@ -19,12 +19,16 @@ import io
 import re
 import unicodedata
 from dataclasses import dataclass, field
-from typing import Literal, Sequence
+from collections.abc import Sequence
+from typing import TYPE_CHECKING, Any, Literal
 
 import numpy as np
 
 from roundscore.model.signals import SCORED_SIGNALS
 from roundscore.outputs.look import PALETTE, SIGNAL_COLOUR, SIGNAL_MARKER, SIGNAL_WORD
+
+if TYPE_CHECKING:
+    from matplotlib.typing import RcKeyType
 
 __all__ = ["SvgFigure", "MarkKind", "SVG_HASHSALT", "MAX_BARS", "PROFILE_POINTS", "MIN_PLOT_HEIGHT", "WIDE",
            "SQUARE", "new_figure", "finish_figure", "png_bytes", "legend", "signal_legend", "codes_under_axis",
@@ -40,8 +44,13 @@ PROFILE_POINTS = 400
 #: Figure size in inches (SVG user units are points: 72 per inch).
 WIDE = (7.2, 3.0)
 SQUARE = (6.6, 4.4)
-_RC = {"svg.hashsalt": SVG_HASHSALT, "svg.fonttype": "none", "font.size": 9, "axes.titlesize": 10,
-       "axes.spines.top": False, "axes.spines.right": False, "font.family": "DejaVu Sans"}
+_RC: dict[RcKeyType, Any] = {"svg.hashsalt": SVG_HASHSALT, "svg.fonttype": "none", "font.size": 9, "axes.titlesize": 10,
+        "axes.spines.top": False, "axes.spines.right": False, "font.family": "DejaVu Sans"}
+
+
+def _floats(pair: tuple[float, float]) -> tuple[float, float]:
+    """An axis's limits as plain floats."""
+    return float(pair[0]), float(pair[1])
 
 MarkKind = Literal["bar", "vline", "point", "none"]
 
@@ -205,7 +214,7 @@ def finish_figure(fig, ax, *, key: str, title: str, caption: str, kind: MarkKind
     bb = ax.get_window_extent()
     box = (float(bb.x0), float(height - bb.y1), float(bb.x1), float(height - bb.y0))
     return SvgFigure(key=key, title=title, caption=caption, svg=text, x_map=x_map, y_map=y_map, axes_box=box,
-                     x_limits=tuple(map(float, ax.get_xlim())), y_limits=tuple(map(float, ax.get_ylim())),
+                     x_limits=_floats(ax.get_xlim()), y_limits=_floats(ax.get_ylim()),
                      kind=kind, marks=dict(marks or {}))
 
 

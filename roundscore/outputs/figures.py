@@ -23,7 +23,8 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from typing import Sequence
+from collections.abc import Sequence
+from typing import Literal, overload
 
 import numpy as np
 import pandas as pd
@@ -33,7 +34,8 @@ from roundscore.outputs.axes import data_span, drawable, span
 from roundscore.outputs.figure_base import (MAX_BARS, PROFILE_POINTS, SQUARE, SVG_HASHSALT, WIDE, MarkKind, SvgFigure,
                                             codes_under_axis, finish_figure, legend, new_figure, png_bytes,
                                             signal_legend, step_columns)
-from roundscore.outputs.figures_precision import homogeneity_figure, mandel_figure, mandel_limits, stability_figure
+from roundscore.outputs.figures_precision import (MANDEL_STATISTICS, StabilityPlot, homogeneity_figure, mandel_figure,
+                                                  mandel_limits, stability_figure)
 from roundscore.model.scores import SCORE_FIELD, family_of, score_label
 from roundscore.model.signals import SCORED_SIGNALS, SIGNALS
 from roundscore.outputs.look import LIMIT_LINE, PALETTE, SIGNAL_COLOUR, SIGNAL_MARKER, SIGNAL_WORD
@@ -252,6 +254,16 @@ def density_figure(labs: Sequence[str], values: Sequence[float], *, assigned: fl
     return finish_figure(fig, ax, key=key, title=title, caption=caption, kind="vline", marks=marks)
 
 
+@overload
+def youden_figure(labs: Sequence[str], a: Sequence[float], b: Sequence[float], *, names: tuple[str, str],
+                  assigned: tuple[float, float], sigma_pt: tuple[float, float], key: str, title: str,
+                  signals: Sequence[str] | None = None, words: str = "signals",
+                  png: Literal[False] = False) -> SvgFigure: ...
+@overload
+def youden_figure(labs: Sequence[str], a: Sequence[float], b: Sequence[float], *, names: tuple[str, str],
+                  assigned: tuple[float, float], sigma_pt: tuple[float, float], key: str, title: str,
+                  signals: Sequence[str] | None = None, words: str = "signals",
+                  png: Literal[True]) -> bytes: ...
 def youden_figure(labs: Sequence[str], a: Sequence[float], b: Sequence[float], *, names: tuple[str, str],
                   assigned: tuple[float, float], sigma_pt: tuple[float, float], key: str, title: str,
                   signals: Sequence[str] | None = None, words: str = "signals",
@@ -419,6 +431,10 @@ def round_figures(ev, *, jobs: int | None = 1, progress=None) -> RoundFigures:
             ev.measurand_rows(table, "")
     drawn = run_batches(_draw_batch, tasks, jobs=jobs, shared=ev, batch_size=1, progress=progress,
                         stage="figures")
+    scores: dict[str, SvgFigure]
+    density: dict[str, SvgFigure]
+    items: dict[str, SvgFigure]
+    stab: dict[str, SvgFigure]
     scores, density, items, stab, youden, mandel_figs = {}, {}, {}, {}, [], {}
     for task, figs in zip(tasks, drawn):
         if task[0] == "measurand":
@@ -474,12 +490,10 @@ def _draw(ev, task: tuple[str, ...]) -> dict:
     names = getattr(ic, "stability_sets", None)
     if stab is not None and table is not None and table.sets is not None:
         names = names or (table.set_names[0], table.set_names[1])
-        out["stability"] = stability_figure(
-            list(table.sets), np.asarray(table.values, float), items=list(table.items), set_labels=names,
-            mean_first=stab.mean_first, mean_second=stab.mean_second, u_first=stab.u_first, u_second=stab.u_second,
-            difference=stab.difference, criterion=stab.criterion, allowed_expanded=stab.allowed_expanded,
-            criterion_used=stab.criterion_used, passed=bool(stab.passed), key=f"stability-{name}",
-            title=f"{label}: stability of the test items", unit=m.settings.unit)
+        plot = StabilityPlot.of(stab, sets=table.sets, values=table.values, items=table.items, set_labels=names,
+                                unit=m.settings.unit)
+        out["stability"] = stability_figure(plot, key=f"stability-{name}",
+                                            title=f"{label}: stability of the test items")
     return out
 
 
@@ -517,7 +531,7 @@ def _mandel(ev, name: str) -> tuple[SvgFigure, ...]:
         if prec is not None and "n_bar" in getattr(prec, "columns", ()):
             row = ev.measurand_rows("precision", name)
             if len(row) and np.isfinite(float(row["n_bar"].iloc[0])):
-                n = int(round(float(row["n_bar"].iloc[0])))
+                n = round(float(row["n_bar"].iloc[0]))
         lim_h = mandel_limits(int(np.isfinite(h).sum()), n)
         lim_k = mandel_limits(int(np.isfinite(k).sum()), n)
         lim = {"h_5": lim_h["h_5"], "h_1": lim_h["h_1"], "k_5": lim_k["k_5"], "k_1": lim_k["k_1"]}
@@ -525,4 +539,4 @@ def _mandel(ev, name: str) -> tuple[SvgFigure, ...]:
     return tuple(mandel_figure(labs, vals, statistic=stat, critical_5=float(lim.get(f"{stat}_5", math.nan)),
                                critical_1=float(lim.get(f"{stat}_1", math.nan)), key=f"mandel-{stat}-{name}",
                                title=f"{name}: Mandel's {stat} by laboratory")
-                 for stat, vals in (("h", h), ("k", k)))
+                 for stat, vals in zip(MANDEL_STATISTICS, (h, k)))

@@ -7,7 +7,9 @@ a round); the plumbing they share with the score figures is in :mod:`roundscore.
 from __future__ import annotations
 
 import textwrap
-from typing import Literal, Sequence
+from collections.abc import Sequence
+from dataclasses import dataclass
+from typing import TYPE_CHECKING, Literal, overload
 
 import numpy as np
 
@@ -17,7 +19,20 @@ from roundscore.stats.precision import mandel_h_critical, mandel_k_critical
 from roundscore.outputs.figure_base import (MAX_BARS, PROFILE_POINTS, WIDE, SvgFigure, codes_under_axis, finish_figure,
                                             legend, new_figure, png_bytes, step_columns)
 
-__all__ = ["mandel_limits", "mandel_figure", "homogeneity_figure", "stability_figure", "stability_verdict"]
+if TYPE_CHECKING:
+    from matplotlib.axes import Axes
+    from matplotlib.figure import Figure
+
+    from roundscore.stats.items import StabilityResult
+
+__all__ = ["mandel_limits", "mandel_figure", "homogeneity_figure", "stability_figure", "stability_verdict",
+           "StabilityPlot", "MandelStatistic", "MANDEL_STATISTICS"]
+
+#: Mandel's between-lab (h) and within-lab (k) statistic, in the order they are drawn.
+MandelStatistic = Literal["h", "k"]
+MANDEL_STATISTICS: tuple[MandelStatistic, MandelStatistic] = ("h", "k")
+#: Values as the figures take them: a sequence or an array of floats.
+Values = Sequence[float] | np.ndarray
 
 
 def mandel_limits(p: int, n: int) -> dict[str, float]:
@@ -29,7 +44,13 @@ def mandel_limits(p: int, n: int) -> dict[str, float]:
             "k_5": mandel_k_critical(p, n, 0.05), "k_1": mandel_k_critical(p, n, 0.01)}
 
 
-def mandel_figure(labs: Sequence[str], values: Sequence[float], *, statistic: Literal["h", "k"],
+@overload
+def mandel_figure(labs: Sequence[str], values: Values, *, statistic: MandelStatistic, critical_5: float,
+                  critical_1: float, key: str, title: str, png: Literal[False] = False) -> SvgFigure: ...
+@overload
+def mandel_figure(labs: Sequence[str], values: Values, *, statistic: MandelStatistic, critical_5: float,
+                  critical_1: float, key: str, title: str, png: Literal[True]) -> bytes: ...
+def mandel_figure(labs: Sequence[str], values: Values, *, statistic: MandelStatistic,
                   critical_5: float, critical_1: float, key: str, title: str,
                   png: bool = False) -> SvgFigure | bytes:
     """Mandel's h or k by lab, with the 5 % (dashed) and 1 % (solid) indicator lines.
@@ -73,7 +94,7 @@ def mandel_figure(labs: Sequence[str], values: Sequence[float], *, statistic: Li
         # codes for the most extreme labs beyond the 1 % line only (at most MAX_BARS: they must stay legible)
         far = np.flatnonzero(level == "action")
         far = np.sort(far[np.argsort(-np.abs(v[far]), kind="stable")[:MAX_BARS]])
-        codes_under_axis(ax, pos[far], [labs[i] for i in far], len(far), f"{len(v)} laboratories")
+        codes_under_axis(ax, pos[far], [labs[int(i)] for i in far], len(far), f"{len(v)} laboratories")
     for s, word in (("acceptable", "within the 5 % line"), ("warning", "beyond 5 %"), ("action", "beyond 1 %")):
         sel = (level == s) & ((len(v) <= MAX_BARS) | (level != "acceptable"))
         if sel.any():
@@ -103,7 +124,15 @@ def mandel_figure(labs: Sequence[str], values: Sequence[float], *, statistic: Li
     return finish_figure(fig, ax, key=key, title=title, caption=caption, kind="bar", marks=marks)
 
 
-def homogeneity_figure(items: Sequence[str], values: Sequence[float], *, item_labels: Sequence[str],
+@overload
+def homogeneity_figure(items: Sequence[str], values: Values, *, item_labels: Sequence[str],
+                       item_means: Sequence[float], general_mean: float, sigma_pt: float, key: str, title: str,
+                       unit: str = "", png: Literal[False] = False) -> SvgFigure: ...
+@overload
+def homogeneity_figure(items: Sequence[str], values: Values, *, item_labels: Sequence[str],
+                       item_means: Sequence[float], general_mean: float, sigma_pt: float, key: str, title: str,
+                       unit: str = "", png: Literal[True]) -> bytes: ...
+def homogeneity_figure(items: Sequence[str], values: Values, *, item_labels: Sequence[str],
                        item_means: Sequence[float], general_mean: float, sigma_pt: float, key: str, title: str,
                        unit: str = "", png: bool = False) -> SvgFigure | bytes:
     """Homogeneity: each item's replicates (small dots) and mean (circle), the general mean ± 0.3σ_pt.
@@ -177,18 +206,15 @@ def stability_verdict(difference: float, allowance: float, *, passed: bool, crit
     return text + ")"
 
 
-def stability_figure(sets: Sequence[str], values: Sequence[float], *, items: Sequence[str] | None = None,
-                     set_labels: tuple[str, str], mean_first: float, mean_second: float, u_first: float,
-                     u_second: float, difference: float, criterion: float, allowed_expanded: float,
-                     criterion_used: str, passed: bool, key: str, title: str, unit: str = "",
-                     png: bool = False) -> SvgFigure | bytes:
-    """Stability: the values of both sets, each set's mean ± 2u, the allowance round the first mean.
+@dataclass(frozen=True, slots=True, kw_only=True)
+class StabilityPlot:
+    """What the stability figure draws: the stability table's measurements and the check's own numbers.
 
-    Parameters
+    Attributes
     ----------
-    sets, values : sequences of equal length
+    sets, values : tuples of equal length
         Set label and value of each measurement of the stability table.
-    items : sequence of str, optional
+    items : tuple of str or None
         Item label of each measurement: a set's values are spread by item
         (replicates of an item one above the other).
     set_labels : (str, str)
@@ -203,6 +229,43 @@ def stability_figure(sets: Sequence[str], values: Sequence[float], *, items: Seq
     criterion_used, passed
         Which criterion gives the verdict and the verdict (written in the
         figure and the caption by :func:`stability_verdict`).
+    unit : str
+        The measurand's unit, for the axis.
+    """
+
+    sets: tuple[str, ...]
+    values: tuple[float, ...]
+    items: tuple[str, ...] | None = None
+    set_labels: tuple[str, str]
+    mean_first: float
+    mean_second: float
+    u_first: float
+    u_second: float
+    difference: float
+    criterion: float
+    allowed_expanded: float
+    criterion_used: str
+    passed: bool
+    unit: str = ""
+
+    @classmethod
+    def of(cls, check: StabilityResult, *, sets: Sequence[str], values: Values, set_labels: tuple[str, str],
+           items: Sequence[str] | None = None, unit: str = "") -> StabilityPlot:
+        """The plot of a stability check and the measurements it was computed from (nothing is recomputed)."""
+        return cls(sets=tuple(str(s) for s in sets), values=tuple(float(v) for v in values),
+                   items=None if items is None else tuple(items), set_labels=set_labels,
+                   mean_first=check.mean_first, mean_second=check.mean_second, u_first=check.u_first,
+                   u_second=check.u_second, difference=check.difference, criterion=check.criterion,
+                   allowed_expanded=check.allowed_expanded, criterion_used=check.criterion_used,
+                   passed=bool(check.passed), unit=unit)
+
+
+@overload
+def stability_figure(plot: StabilityPlot, *, key: str, title: str, png: Literal[False] = False) -> SvgFigure: ...
+@overload
+def stability_figure(plot: StabilityPlot, *, key: str, title: str, png: Literal[True]) -> bytes: ...
+def stability_figure(plot: StabilityPlot, *, key: str, title: str, png: bool = False) -> SvgFigure | bytes:
+    """Stability: the values of both sets, each set's mean ± 2u, the allowance round the first mean.
 
     Notes
     -----
@@ -217,11 +280,35 @@ def stability_figure(sets: Sequence[str], values: Sequence[float], *, items: Seq
     .. [1] ISO 13528:2015, B.5 (stability criteria).
     """
     fig, ax = new_figure(WIDE, left=0.11, right=0.56, bottom=0.16, top=0.88)
-    labels = np.asarray(sets, dtype=object)
-    vals = np.asarray(values, dtype=float)
-    its = np.asarray(items if items is not None else [""] * len(vals), dtype=object)
-    means, us = (mean_first, mean_second), (u_first, u_second)
-    first, second = (str(s) for s in set_labels)
+    first, second = (str(s) for s in plot.set_labels)
+    have_band, have_expanded = _draw_allowance(ax, plot, first)
+    vals = np.asarray(plot.values, dtype=float)
+    _draw_sets(ax, plot, vals, (first, second))
+    _fit_axes(fig, ax, plot, vals, (first, second), have_band=have_band, have_expanded=have_expanded)
+    ax.set_title(title, loc="left")
+    allowance = plot.criterion if plot.criterion_used == "simple" else plot.allowed_expanded
+    verdict = stability_verdict(plot.difference, allowance, passed=plot.passed, criterion_used=plot.criterion_used,
+                                unit=plot.unit, criterion=plot.criterion)
+    said = f"{'Passed' if plot.passed else 'Not passed'} ({first} − {second}): {verdict}."
+    # the verdict heads the legend: one block right of the axes, so neither covers data nor the other
+    legend = ax.legend(frameon=False, fontsize=7, loc="upper left", bbox_to_anchor=(1.03, 1.0), borderaxespad=0,
+                       title=_wrap(said, _LEGEND_WIDTH + 4), alignment="left",
+                       title_fontproperties={"size": 7.5, "weight": "bold"})
+    legend.set_gid("legend")
+    if png:
+        return png_bytes(fig)
+    caption = (f"Stability: the values of the sets “{first}” (circles) and “{second}” (diamonds), each set's "
+               "mean with a bar of ± 2 standard uncertainties, and the allowance round the first mean: the band "
+               "± 0.3σ_pt of the simple criterion"
+               + (" and the dashed lines ± (0.3σ_pt + 2√(u₁² + u₂²)) of the expanded criterion" if have_expanded
+                  else "")
+               + f" (ISO 13528 B.5). {said}")
+    return finish_figure(fig, ax, key=key, title=title, caption=caption)
+
+
+def _draw_allowance(ax: Axes, plot: StabilityPlot, first: str) -> tuple[bool, bool]:
+    """The band ȳ₁ ± 0.3σ_pt and the dashed lines of the expanded criterion; whether each was drawn."""
+    criterion, allowed_expanded, mean_first = plot.criterion, plot.allowed_expanded, plot.mean_first
     have_band = bool(np.isfinite(criterion) and criterion > 0)
     have_expanded = bool(np.isfinite(allowed_expanded))
     if have_band:
@@ -234,7 +321,15 @@ def stability_figure(sets: Sequence[str], values: Sequence[float], *, items: Seq
             line = ax.axhline(mean_first + sgn * allowed_expanded, color="#444444", linestyle="--", linewidth=0.9,
                               label=word if sgn > 0 else None)
             line.set_gid(gid)
-    for i, (name, pos, (colour, marker)) in enumerate(zip((first, second), _SET_POS, _SET_LOOK)):
+    return have_band, have_expanded
+
+
+def _draw_sets(ax: Axes, plot: StabilityPlot, vals: np.ndarray, names: tuple[str, str]) -> None:
+    """Each set's values (spread by item) left of its mean, and the mean ± 2u."""
+    labels = np.asarray(plot.sets, dtype=object)
+    its = np.asarray(plot.items if plot.items is not None else [""] * len(vals), dtype=object)
+    means, us = (plot.mean_first, plot.mean_second), (plot.u_first, plot.u_second)
+    for i, (name, pos, (colour, marker)) in enumerate(zip(names, _SET_POS, _SET_LOOK)):
         sel = labels == name
         order = list(dict.fromkeys(its[sel]))
         rank = np.array([order.index(it) for it in its[sel]], dtype=float)
@@ -253,11 +348,18 @@ def stability_figure(sets: Sequence[str], values: Sequence[float], *, items: Seq
         drawn.lines[0].set_gid(f"mean-{which}")
         for bars in drawn.lines[2]:
             bars.set_gid(f"bar-{which}")
-    ticks = [_wrap(first, 24), _wrap(second, 24)]
+
+
+def _fit_axes(fig: Figure, ax: Axes, plot: StabilityPlot, vals: np.ndarray, names: tuple[str, str], *,
+              have_band: bool, have_expanded: bool) -> None:
+    """Set names under the axis (wrapped), the limits holding every value, bar and line, the labels."""
+    ticks = [_wrap(names[0], 24), _wrap(names[1], 24)]
     ax.set_xticks(list(_SET_POS), labels=ticks)
     lines = max(t.count("\n") + 1 for t in ticks)
     fig.subplots_adjust(bottom=(lines * 11 + 26) / (fig.get_figheight() * 72))  # room for wrapped set names
     ax.set_xlim(_SET_POS[0] - 0.55, _SET_POS[1] + 0.55)
+    means, us = (plot.mean_first, plot.mean_second), (plot.u_first, plot.u_second)
+    mean_first, criterion, allowed_expanded = plot.mean_first, plot.criterion, plot.allowed_expanded
     reach = [*vals[np.isfinite(vals)], *means]
     reach += [m + s * 2 * u for m, u in zip(means, us) if np.isfinite(u) for s in (-1, 1)]
     if have_band:
@@ -269,27 +371,8 @@ def stability_figure(sets: Sequence[str], values: Sequence[float], *, items: Seq
         lo, hi = min(reach), max(reach)
         pad = 0.08 * (hi - lo) if hi > lo else max(abs(hi) * 0.05, 1e-9)
         ax.set_ylim(lo - pad, hi + pad)
-    ax.set_ylabel(f"value ({unit})" if unit else "value")
+    ax.set_ylabel(f"value ({plot.unit})" if plot.unit else "value")
     ax.set_xlabel("stability set")
-    ax.set_title(title, loc="left")
-    allowance = criterion if criterion_used == "simple" else allowed_expanded
-    verdict = stability_verdict(difference, allowance, passed=passed, criterion_used=criterion_used, unit=unit,
-                                criterion=criterion)
-    said = f"{'Passed' if passed else 'Not passed'} ({first} − {second}): {verdict}."
-    # the verdict heads the legend: one block right of the axes, so neither covers data nor the other
-    legend = ax.legend(frameon=False, fontsize=7, loc="upper left", bbox_to_anchor=(1.03, 1.0), borderaxespad=0,
-                       title=_wrap(said, _LEGEND_WIDTH + 4), alignment="left",
-                       title_fontproperties={"size": 7.5, "weight": "bold"})
-    legend.set_gid("legend")
-    if png:
-        return png_bytes(fig)
-    caption = (f"Stability: the values of the sets “{first}” (circles) and “{second}” (diamonds), each set's "
-               "mean with a bar of ± 2 standard uncertainties, and the allowance round the first mean: the band "
-               "± 0.3σ_pt of the simple criterion"
-               + (" and the dashed lines ± (0.3σ_pt + 2√(u₁² + u₂²)) of the expanded criterion" if have_expanded
-                  else "")
-               + f" (ISO 13528 B.5). {said}")
-    return finish_figure(fig, ax, key=key, title=title, caption=caption)
 
 
 def _pale(colour: str, keep: float = 0.45) -> str:

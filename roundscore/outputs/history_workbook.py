@@ -15,7 +15,7 @@ and action limits) and ``chart_data``.
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Sequence
+from collections.abc import Sequence
 
 import numpy as np
 import pandas as pd
@@ -116,8 +116,8 @@ def _series_chart(book, data, fm: Formats, top: int, label: str, part: pd.DataFr
             col = signal_col.get(signal)
             if col is not None:
                 data.write_number(r, col, float(value))
-        for j, lim in enumerate([v for lim, _ in limits for v in (lim, -lim)], start=limit_col):
-            data.write_number(r, j, lim)
+        for j, bound in enumerate([v for lim, _ in limits for v in (lim, -lim)], start=limit_col):
+            data.write_number(r, j, bound)
     last = first + len(part) - 1
     chart = book.add_chart({"type": "line"})
     cats = ["chart_data", first, 0, last, 0]
@@ -128,7 +128,7 @@ def _series_chart(book, data, fm: Formats, top: int, label: str, part: pd.DataFr
                           "values": ["chart_data", first, j, last, j], "line": {"none": True},
                           "marker": {"type": SIGNAL_CHART_MARKER[s], "size": 7, "fill": {"color": SIGNAL_COLOUR[s]},
                                      "border": {"color": "#000000"}}})
-    for j, (lim, sig) in enumerate(limits):
+    for j, (_lim, sig) in enumerate(limits):
         for sign in (0, 1):
             col = limit_col + 2 * j + sign
             chart.add_series({"name": heads[col], "categories": cats, "values": ["chart_data", first, col, last, col],

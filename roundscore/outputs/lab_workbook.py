@@ -20,7 +20,8 @@ from __future__ import annotations
 
 import math
 from pathlib import Path
-from typing import Any, Mapping
+from collections.abc import Mapping
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -266,7 +267,7 @@ def _history_sheet(wb, fm: Formats, payload: LabPayload, table: dict[str, list])
         hs.write_string(first + i, 0, label)
         for j, (f, m) in enumerate(series, start=1):
             write_value(hs, first + i, j, points.get((label, f, m)), fm.decimals(2))
-        for j, (f, lim, word) in enumerate(limits):
+        for j, (_f, lim, _word) in enumerate(limits):
             hs.write_number(first + i, 1 + len(series) + 2 * j, lim)
             hs.write_number(first + i, 2 + len(series) + 2 * j, -lim)
     row = 3

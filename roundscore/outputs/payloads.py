@@ -10,7 +10,7 @@ evaluation when needed, and nothing in it is recomputed.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Mapping
+from collections.abc import Mapping
 
 import pandas as pd
 
@@ -41,7 +41,7 @@ class RoundFacts:
     words: Words
 
     @classmethod
-    def of(cls, rnd: Round) -> "RoundFacts":
+    def of(cls, rnd: Round) -> RoundFacts:
         """The facts of a round's settings."""
         return cls(id=rnd.id, title=rnd.title, scheme=rnd.scheme, date=rnd.date, provider=rnd.provider,
                    material=rnd.material, words=rnd.words)

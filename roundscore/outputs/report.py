@@ -34,7 +34,8 @@ import html
 import math
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any, Callable, Iterable, Sequence
+from collections.abc import Callable, Iterable, Sequence
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -87,7 +88,7 @@ figure.square svg { max-width: 40rem; }
 figure.strip { margin: 0; } figure.strip svg { max-width: none; border-bottom: 1px solid var(--rule); }
 figcaption { font-size: .85rem; color: var(--muted); max-width: 46rem; }
 .legend span { margin-right: 1.2rem; white-space: nowrap; } .muted { color: var(--muted); }
-""" + "".join(
+""" + "".join(  # noqa: E501 - the style sheet's lines as written
     f".s-{s} {{ background: {_tint(c)}; }}\n" for s, c in SIGNAL_COLOUR.items()
 ) + """
 @media print {
@@ -475,7 +476,7 @@ def report_html(ev, parts: ReportParts | None = None) -> str:
             prec += f"<h3>{title}</h3>" + _table(ev.extras[key], decimals={})
     if ev.extras.get("mandel") is not None:
         prec += "<h3>Mandel's h and k</h3>"
-        for name, fs in figs.mandel.items():
+        for fs in figs.mandel.values():
             prec += "".join(_figure(f.svg, f) for f in fs)
         prec += _mandel_table(ev.extras["mandel"])
     sections.append(("precision", "Precision and screens",
@@ -521,7 +522,7 @@ def lab_page_html(ev, parts: ReportParts, lab: str, *, scores: list[dict[str, An
         d = r.measurands[meas].decimals if meas in r.measurands else None
         v = rec.get(SCORE_FIELD.get(rec["score"], "z"))
         rank, n = rec.get("rank"), rec.get("n_scored")
-        standing = f"{int(rank)} of {int(n)}" if isinstance(rank, float) and math.isfinite(rank) else ""
+        standing = f"{int(rank)} of {int(n)}" if isinstance(rank, float) and math.isfinite(rank) and n else ""
         res = rec["result"]
         table.append(
             f'<tr><td><a href="#strip-{_e(meas)}">{_e(meas)}</a></td><td>{_e(rec["unit"])}</td>'
@@ -534,10 +535,10 @@ def lab_page_html(ev, parts: ReportParts, lab: str, *, scores: list[dict[str, An
     own = {rec["measurand"]: rec for rec in rows}
     strips = []
     for meas, strip in parts.strips.items():
-        rec = own.get(meas)
-        v = rec.get(SCORE_FIELD.get(rec["score"], "z")) if rec else None
+        mine = own.get(meas)
+        v = mine.get(SCORE_FIELD.get(mine["score"], "z")) if mine else None
         strips.append(f'<figure class="strip" id="strip-{_e(meas)}">'
-                      f'{strip.for_lab(lab, v, rec["signal"] if rec else None, words)}</figure>')
+                      f'{strip.for_lab(lab, v, mine["signal"] if mine else None, words)}</figure>')
     stand = ("<h2>Where you stand</h2><p>Every laboratory's score on each measurand, yours marked; other "
              f'laboratories are not named.</p><p class="muted">{_e(strip_legend(words))}</p>' + "".join(strips))
     figs = parts.figures

@@ -25,7 +25,7 @@ from __future__ import annotations
 import html
 import math
 from dataclasses import dataclass
-from typing import Sequence
+from collections.abc import Sequence
 
 import numpy as np
 
@@ -130,7 +130,7 @@ class ScoreStrip:
         word = SIGNAL_WORD[words].get(sig, sig)
         finite = value is not None and isinstance(value, (int, float)) and math.isfinite(value)
         parts = []
-        if finite:
+        if finite and value is not None:
             v = float(value)
             text = f"{score_symbol(self.score)} = {v:.2f}  {SIGNAL_SYMBOL.get(sig, '')} {word}"
             clamped = abs(v) > STRIP_RANGE
@@ -210,11 +210,11 @@ def score_strip(values: Sequence[float], *, measurand: str, score: str = "z", ti
     """
     v = np.asarray(values, dtype=float)
     v = v[np.isfinite(v)]
-    n = int(len(v))
+    n = len(v)
     title = measurand if title is None else title
     key = f"strip-{measurand}" if key is None else key
     r = STRIP_RANGE
-    nbins = int(round(2 * r / STRIP_BIN))
+    nbins = round(2 * r / STRIP_BIN)
     # Text style set once on the root (inherited), so each text element carries only its position.
     parts = [f'<svg xmlns="http://www.w3.org/2000/svg" class="strip" viewBox="0 0 {_f(STRIP_WIDTH)} '
              f'{_f(STRIP_HEIGHT)}" width="{_f(STRIP_WIDTH)}" height="{_f(STRIP_HEIGHT)}" {_FONT} font-size="9" '
@@ -224,8 +224,8 @@ def score_strip(values: Sequence[float], *, measurand: str, score: str = "z", ti
     bands: dict[str, list[str]] = {}
     for lo, hi, sig in _bands(score):
         bands.setdefault(sig, []).append(f"M{_f(_x(lo))} {_f(_TOP)}H{_f(_x(hi))}V{_f(_AXIS)}H{_f(_x(lo))}z")
-    for sig, d in bands.items():
-        parts.append(f'<path d="{"".join(d)}" fill="{_tint(SIGNAL_COLOUR[sig], 0.22)}"/>')
+    for sig, paths in bands.items():
+        parts.append(f'<path d="{"".join(paths)}" fill="{_tint(SIGNAL_COLOUR[sig], 0.22)}"/>')
     lims = [(lim, LIMIT_LINE[sig]["svg"]) for lim, sig in family_of(score).limits()]
     for lim, dash in lims:
         d = "".join(f"M{_f(_x(x))} {_f(_TOP)}V{_f(_AXIS)}" for x in (-lim, lim))

@@ -14,7 +14,8 @@ from __future__ import annotations
 
 import datetime as dt
 import math
-from typing import Any, Iterable, Mapping
+from collections.abc import Iterable, Mapping
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -284,7 +285,8 @@ def score_chart(wb, sheet, fm: Formats, top: int, labs: list, scores: list[float
                 hidden.append(n_series)
             n_series += 1
             line.add_series({"name": f"{word} limit ±{lim:g}", "categories": cats, "values": [sname, first, c, last, c],
-                             "categories_data": cat_data, "values_data": [f"{-lim if sign else lim:.16g}"] * len(scores),
+                             "categories_data": cat_data,
+                             "values_data": [f"{-lim if sign else lim:.16g}"] * len(scores),
                              "line": {"color": "#444444", "width": 1, "dash_type": dash}, "marker": {"type": "none"}})
     col.combine(line)
     bound = max(limits[-1][0] + 1, 4.0)

@@ -28,7 +28,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any, Callable, ClassVar, Iterable, Sequence
+from collections.abc import Callable, Iterable, Sequence
+from typing import Any, ClassVar
 
 import pandas as pd
 

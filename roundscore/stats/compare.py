@@ -27,15 +27,16 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass
-from typing import Literal
+from typing import Any, Literal
 
 import numpy as np
 from scipy import stats as sps
 
 from roundscore.errors import StatisticsError
 from roundscore.ranges import confidence_problem, magnitude_problem, spread_problem
-from roundscore.stats.exact import check_choice
+from roundscore.stats.exact import check_choice, mean_variance
 from roundscore.stats.precision import AnovaTable, anova_oneway
+from roundscore.support.plain import plain_fields
 
 __all__ = [
     "DEFAULT_CONFIDENCE",
@@ -101,28 +102,6 @@ def _spread(sd: float, values: np.ndarray, label: str) -> None:
         raise StatisticsError(f"{why}; the t test is not meaningful")
 
 
-def _mean_var(x: np.ndarray) -> tuple[float, float]:
-    """Mean (fsum, refined) and variance by the two-pass formula (divisor n − 1)."""
-    m = math.fsum(x) / x.size
-    m += math.fsum(x - m) / x.size
-    d = x - m
-    return m, math.fsum(d * d) / (x.size - 1)
-
-
-def _json(value: object) -> object:
-    if isinstance(value, float):
-        return value if math.isfinite(value) else None
-    if isinstance(value, tuple):
-        return [_json(v) for v in value]
-    if hasattr(value, "to_dict"):
-        return value.to_dict()
-    return value
-
-
-def _as_dict(obj: object) -> dict[str, object]:
-    return {name: _json(getattr(obj, name)) for name in obj.__slots__}  # type: ignore[attr-defined]
-
-
 @dataclass(frozen=True, slots=True, kw_only=True)
 class VarianceTest:
     """Two-sided F test of the ratio of two variances.
@@ -152,9 +131,9 @@ class VarianceTest:
     alpha: float
     reject: bool
 
-    def to_dict(self) -> dict[str, object]:
+    def to_dict(self) -> dict[str, Any]:
         """JSON-ready mapping."""
-        return _as_dict(self)
+        return plain_fields(self)
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -218,9 +197,9 @@ class TwoSampleComparison:
     significant: bool
     conclusion: str
 
-    def to_dict(self) -> dict[str, object]:
+    def to_dict(self) -> dict[str, Any]:
         """JSON-ready mapping (non-finite numbers become null)."""
-        return {"kind": "two-sample", **_as_dict(self), "disclaimer": DISCLAIMER}
+        return {"kind": "two-sample", **plain_fields(self), "disclaimer": DISCLAIMER}
 
     def to_text(self) -> list[str]:
         """Readable lines."""
@@ -289,9 +268,9 @@ class OneSampleComparison:
     significant: bool
     conclusion: str
 
-    def to_dict(self) -> dict[str, object]:
+    def to_dict(self) -> dict[str, Any]:
         """JSON-ready mapping."""
-        return {"kind": "one-sample", **_as_dict(self), "disclaimer": DISCLAIMER}
+        return {"kind": "one-sample", **plain_fields(self), "disclaimer": DISCLAIMER}
 
     def to_text(self) -> list[str]:
         """Readable lines."""
@@ -324,9 +303,9 @@ class PairwiseComparison:
     p_adjusted: float
     significant: bool
 
-    def to_dict(self) -> dict[str, object]:
+    def to_dict(self) -> dict[str, Any]:
         """JSON-ready mapping."""
-        return _as_dict(self)
+        return plain_fields(self)
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -365,9 +344,9 @@ class GroupComparison:
     confidence: float
     conclusion: str
 
-    def to_dict(self) -> dict[str, object]:
+    def to_dict(self) -> dict[str, Any]:
         """JSON-ready mapping."""
-        return {"kind": "groups", **_as_dict(self), "disclaimer": DISCLAIMER}
+        return {"kind": "groups", **plain_fields(self), "disclaimer": DISCLAIMER}
 
     def to_text(self) -> list[str]:
         """Readable lines."""
@@ -453,12 +432,13 @@ def compare_two(
     x, y = _sample(a, la), _sample(b, lb)
     alpha = 1 - confidence
     na, nb = x.size, y.size
-    ma, va = _mean_var(x)
-    mb, vb = _mean_var(y)
+    ma, va = mean_variance(x)
+    mb, vb = mean_variance(y)
     if va == 0 and vb == 0:
         raise StatisticsError(f"groups {la} and {lb}: no spread in either group, the t test is undefined")
     _spread(math.sqrt(max(va, vb)), np.concatenate([x, y]), f"{la} and {lb}")
     ftest = _variance_test(va, vb, na - 1, nb - 1, alpha)
+    use: Literal["pooled", "welch"]
     if method == "auto":
         use = "welch" if ftest.reject else "pooled"
         reason = (
@@ -539,7 +519,7 @@ def compare_one(
     if not math.isfinite(ref):
         raise StatisticsError(f"reference value {reference!r} is not a finite number")
     alpha = 1 - confidence
-    m, var = _mean_var(v)
+    m, var = mean_variance(v)
     if var == 0:
         raise StatisticsError(f"group {label}: the values do not vary, the t test is undefined")
     _spread(math.sqrt(var), v, label)
@@ -638,7 +618,7 @@ def compare_groups(
     members = {name: x[g == name] for name in names}
     tested = [n for n in names if members[n].size >= MIN_GROUP_SIZE]
     untested = tuple(n for n in names if members[n].size < MIN_GROUP_SIZE)
-    stats_ = [_mean_var(members[n]) for n in tested]
+    stats_ = [mean_variance(members[n]) for n in tested]
     anova = None
     anova_sig = False
     if len(tested) >= 2:
@@ -658,7 +638,7 @@ def compare_groups(
             PairwiseComparison(comparison=c, p_adjusted=float(pa), significant=bool(r))
             for c, pa, r in zip(pairs, p_adj, reject)
         )
-    if len(tested) < 2:
+    if anova is None:  # fewer than two groups tested
         conclusion = "Fewer than two groups have at least 2 labs; no comparison was made."
     else:
         differing = [f"{pc.comparison.label_a} vs {pc.comparison.label_b}" for pc in pairwise if pc.significant]

@@ -121,8 +121,8 @@ def _ranks(m: int, prob: float) -> tuple[int, int, int, int]:
     """Ranks for the quantile (linear interpolation) and its ±1 SE order-statistic interval."""
     pos = (m - 1) * prob
     half = math.sqrt(m * prob * (1 - prob))  # binomial SD of the rank
-    return (int(math.floor(pos)), min(int(math.floor(pos)) + 1, m - 1),
-            max(int(math.floor(pos - half)), 0), min(int(math.ceil(pos + half)), m - 1))
+    return (math.floor(pos), min(math.floor(pos) + 1, m - 1),
+            max(math.floor(pos - half), 0), min(math.ceil(pos + half), m - 1))
 
 
 def _quantile_with_se(partitioned: np.ndarray, prob: float) -> tuple[float, float]:

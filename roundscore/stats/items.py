@@ -395,60 +395,22 @@ def homogeneity(
     alpha = _number("alpha", alpha, "probability")
     y = _finite_vector("values", values)
     labels, codes = _group(items, y.size)
+    counts = _replicates_per_item(labels, codes)
     g = len(labels)
-    if g < 2:
-        raise StatisticsError(f"a homogeneity check needs at least 2 items; found {g}")
-    counts = np.bincount(codes, minlength=g)
-    single = [labels[i] for i in np.flatnonzero(counts < 2)]
-    if single:
-        shown = ", ".join(repr(s) for s in single[:10])
-        more = f" and {len(single) - 10} more" if len(single) > 10 else ""
-        msg = f"every item needs at least 2 replicates; {len(single)} item(s) have one: {shown}{more}"
-        raise StatisticsError(msg)
-
     notes: list[str] = []
-    n_total = int(y.size)
     balanced = bool(np.all(counts == counts[0]))
-
-    # Centre first, then two-pass means with a correction pass.
-    shift = float(np.median(y))
-    d = y - shift
-    means_d = np.bincount(codes, weights=d, minlength=g) / counts
-    resid = d - means_d[codes]
-    means_d = means_d + np.bincount(codes, weights=resid, minlength=g) / counts
-    resid = d - means_d[codes]
-
-    df_between = g - 1
-    df_within = n_total - g
-    ms_within = float(np.dot(resid, resid)) / df_within
-    grand_d = float(np.dot(counts, means_d) / n_total)  # weighted (ANOVA) grand mean
-    dev = means_d - grand_d
-    ms_between = float(np.dot(counts, dev * dev)) / df_between
-
-    general_mean = shift + float(np.mean(means_d))
-    s_x = float(np.std(means_d, ddof=1))
-
+    a = _one_way(y, codes, counts)
     if balanced:
         m: float = int(counts[0])
-        s_x2 = s_x * s_x
+        s_x2 = a.s_x * a.s_x
     else:
-        m = float((n_total - float(np.dot(counts, counts)) / n_total) / df_between)
-        s_x2 = ms_between / m
+        m = float((a.n - float(np.dot(counts, counts)) / a.n) / a.df_between)
+        s_x2 = a.ms_between / m
         notes.append(
             f"unbalanced table (replicates per item from {counts.min()} to {counts.max()}): "
             f"s_s from the one-way ANOVA mean squares with effective replicate number n0 = {m:.4g}"
         )
-
-    if balanced and m == 2:
-        pairs = d[np.argsort(codes, kind="stable")].reshape(g, 2)  # centred pair of each item
-        w = pairs[:, 1] - pairs[:, 0]
-        s_w = math.sqrt(float(np.dot(w, w)) / (2 * g))
-        s_w_method: WithinMethod = "duplicate differences"
-        notes.append("s_w from the within-item duplicate differences: sqrt(sum w^2 / (2g))")
-    else:
-        s_w = math.sqrt(ms_within)
-        s_w_method = "within-item mean square"
-        notes.append("s_w from the one-way ANOVA within-item mean square")
+    s_w, s_w_method = _within_sd(a, codes, g, duplicates=balanced and m == 2, notes=notes)
 
     s_s2 = s_x2 - s_w * s_w / m
     s_s_truncated = s_s2 < 0.0
@@ -459,6 +421,38 @@ def homogeneity(
             "(the between-item spread is below what the within-item spread explains)"
         )
 
+    criterion, factors, allowed, passed_simple, passed_expanded = _criteria(
+        sigma_pt, alpha, g=g, m=m, s_s=s_s, s_w=s_w, df_within=a.df_within, notes=notes)
+    precision_adequate = bool(within(s_w, REPEATABILITY_LIMIT_FACTOR * sigma_pt))
+    precision_warning = None
+    if not precision_adequate:
+        precision_warning = (
+            f"s_w = {s_w:.4g} exceeds 0.5 sigma_pt = {REPEATABILITY_LIMIT_FACTOR * sigma_pt:.4g}: "
+            "the check method is too imprecise for the homogeneity test to be meaningful"
+        )
+        notes.append(precision_warning)
+    if g < RECOMMENDED_MIN_ITEMS:
+        notes.append(f"only {g} items checked; ISO 13528 asks for at least {RECOMMENDED_MIN_ITEMS}")
+    cochran = _cochran(a, codes, counts, labels, pairs=balanced and m == 2, notes=notes)
+    if not balanced:
+        notes.append(f"Cochran's critical values for {cochran.replicates} replicates per item (most frequent)")
+
+    return HomogeneityResult(
+        item_labels=tuple(labels), item_means=tuple(float(a.shift + v) for v in a.means_d),
+        replicates=tuple(int(c) for c in counts), g=g, m=m, balanced=balanced, n=a.n,
+        mean=a.general_mean, s_x=a.s_x, s_w=s_w, s_w_method=s_w_method, s_s=s_s, s_s_truncated=s_s_truncated,
+        ms_between=a.ms_between, ms_within=a.ms_within, df_between=a.df_between, df_within=a.df_within,
+        sigma_pt=sigma_pt, alpha=alpha, criterion=criterion, f1=factors.f1, f2=factors.f2, allowed=allowed,
+        passed_simple=passed_simple, passed_expanded=passed_expanded, passed=passed_expanded,
+        precision_adequate=precision_adequate, precision_warning=precision_warning,
+        cochran_c=cochran.c, cochran_item=cochran.item, cochran_critical_5=cochran.critical_5,
+        cochran_critical_1=cochran.critical_1, cochran_signal=cochran.signal, notes=tuple(notes),
+    )
+
+
+def _criteria(sigma_pt: float, alpha: float, *, g: int, m: float, s_s: float, s_w: float, df_within: int,
+              notes: list[str]) -> tuple[float, CriterionFactors, float, bool, bool]:
+    """The simple (s_s ≤ 0.3σ_pt) and expanded criterion: c, F1 and F2, the allowance, both verdicts."""
     criterion = HOMOGENEITY_FACTOR * sigma_pt
     factors = expanded_criterion_factors(g, m, alpha=alpha, df_within=df_within)
     allowed = math.sqrt(factors.f1 * criterion**2 + factors.f2 * s_w**2)
@@ -474,58 +468,113 @@ def homogeneity(
             "the simple criterion alone would reject the items; the expanded one allows "
             "for the sampling error of s_s from this check"
         )
+    return criterion, factors, allowed, passed_simple, passed_expanded
 
-    precision_adequate = bool(within(s_w, REPEATABILITY_LIMIT_FACTOR * sigma_pt))
-    precision_warning = None
-    if not precision_adequate:
-        precision_warning = (
-            f"s_w = {s_w:.4g} exceeds 0.5 sigma_pt = {REPEATABILITY_LIMIT_FACTOR * sigma_pt:.4g}: "
-            "the check method is too imprecise for the homogeneity test to be meaningful"
-        )
-        notes.append(precision_warning)
-    if g < RECOMMENDED_MIN_ITEMS:
-        notes.append(f"only {g} items checked; ISO 13528 asks for at least {RECOMMENDED_MIN_ITEMS}")
 
-    # Cochran's test on the within-item variances.
-    var_i = np.bincount(codes, weights=resid * resid, minlength=g) / (counts - 1)
+def _replicates_per_item(labels: list[str], codes: np.ndarray) -> np.ndarray:
+    """The replicates of each item; StatisticsError for fewer than 2 items or an item measured once."""
+    g = len(labels)
+    if g < 2:
+        raise StatisticsError(f"a homogeneity check needs at least 2 items; found {g}")
+    counts = np.bincount(codes, minlength=g)
+    single = [labels[i] for i in np.flatnonzero(counts < 2)]
+    if single:
+        shown = ", ".join(repr(s) for s in single[:10])
+        more = f" and {len(single) - 10} more" if len(single) > 10 else ""
+        msg = f"every item needs at least 2 replicates; {len(single)} item(s) have one: {shown}{more}"
+        raise StatisticsError(msg)
+    return counts
+
+
+@dataclass(frozen=True, slots=True)
+class _OneWay:
+    """The one-way layout of a homogeneity table, centred on the median of its values."""
+
+    n: int
+    shift: float  # the median the values are centred on
+    d: np.ndarray  # the centred values
+    means_d: np.ndarray  # centred item means
+    resid: np.ndarray  # each value less its item mean
+    df_between: int
+    df_within: int
+    ms_between: float
+    ms_within: float
+    general_mean: float  # mean of the item means
+    s_x: float  # SD of the item means
+
+
+def _one_way(y: np.ndarray, codes: np.ndarray, counts: np.ndarray) -> _OneWay:
+    g = counts.size
+    n_total = int(y.size)
+    # Centre first, then two-pass means with a correction pass.
+    shift = float(np.median(y))
+    d = y - shift
+    means_d = np.bincount(codes, weights=d, minlength=g) / counts
+    resid = d - means_d[codes]
+    means_d = means_d + np.bincount(codes, weights=resid, minlength=g) / counts
+    resid = d - means_d[codes]
+
+    df_between = g - 1
+    df_within = n_total - g
+    ms_within = float(np.dot(resid, resid)) / df_within
+    grand_d = float(np.dot(counts, means_d) / n_total)  # weighted (ANOVA) grand mean
+    dev = means_d - grand_d
+    ms_between = float(np.dot(counts, dev * dev)) / df_between
+    return _OneWay(n=n_total, shift=shift, d=d, means_d=means_d, resid=resid, df_between=df_between,
+                   df_within=df_within, ms_between=ms_between, ms_within=ms_within,
+                   general_mean=shift + float(np.mean(means_d)), s_x=float(np.std(means_d, ddof=1)))
+
+
+def _within_sd(a: _OneWay, codes: np.ndarray, g: int, *, duplicates: bool,
+               notes: list[str]) -> tuple[float, WithinMethod]:
+    """s_w: from the pair differences of a table in duplicate, else the within-item mean square."""
+    if duplicates:
+        pairs = a.d[np.argsort(codes, kind="stable")].reshape(g, 2)  # centred pair of each item
+        w = pairs[:, 1] - pairs[:, 0]
+        notes.append("s_w from the within-item duplicate differences: sqrt(sum w^2 / (2g))")
+        return math.sqrt(float(np.dot(w, w)) / (2 * g)), "duplicate differences"
+    notes.append("s_w from the one-way ANOVA within-item mean square")
+    return math.sqrt(a.ms_within), "within-item mean square"
+
+
+@dataclass(frozen=True, slots=True)
+class _Cochran:
+    c: float
+    item: str | None
+    signal: CochranSignal
+    critical_5: float
+    critical_1: float
+    replicates: int  # the replicate number of the critical values
+
+
+def _cochran(a: _OneWay, codes: np.ndarray, counts: np.ndarray, labels: list[str], *, pairs: bool,
+             notes: list[str]) -> _Cochran:
+    """Cochran's test on the within-item variances (ISO 5725-2 7.3.2)."""
+    g = counts.size
+    var_i = np.bincount(codes, weights=a.resid * a.resid, minlength=g) / (counts - 1)
     total = float(var_i.sum())
     freq = Counter(int(c) for c in counts)
     n_cochran = min(freq, key=lambda c: (-freq[c], c))  # most frequent; the smaller on a tie
     crit5 = _cochran_critical(g, n_cochran, COCHRAN_STRAGGLER_ALPHA)
     crit1 = _cochran_critical(g, n_cochran, COCHRAN_OUTLIER_ALPHA)
-    signal: CochranSignal
-    if total > 0.0:
-        worst = int(np.argmax(var_i))
-        cochran_c = float(var_i[worst] / total)
-        cochran_item: str | None = labels[worst]
-        signal = "outlier" if cochran_c > crit1 else "straggler" if cochran_c > crit5 else "none"
-        if signal != "none":
-            what = "discordant pair" if (balanced and m == 2) else "largest within-item variance"
-            notes.append(
-                f"Cochran's test: item {cochran_item!r} ({what}) C = {cochran_c:.4g} exceeds the "
-                f"{'1 %' if signal == 'outlier' else '5 %'} critical value "
-                f"{crit1 if signal == 'outlier' else crit5:.4g} ({signal}); "
-                "kept in the calculation, to be investigated"
-            )
-    else:
-        cochran_c = math.nan
-        cochran_item = None
-        signal = "not computed"
+    if not total > 0.0:
         notes.append("Cochran's test not computed: every within-item variance is zero")
-    if not balanced:
-        notes.append(f"Cochran's critical values for {n_cochran} replicates per item (most frequent)")
-
-    return HomogeneityResult(
-        item_labels=tuple(labels), item_means=tuple(float(shift + v) for v in means_d),
-        replicates=tuple(int(c) for c in counts), g=g, m=m, balanced=balanced, n=n_total,
-        mean=general_mean, s_x=s_x, s_w=s_w, s_w_method=s_w_method, s_s=s_s, s_s_truncated=s_s_truncated,
-        ms_between=ms_between, ms_within=ms_within, df_between=df_between, df_within=df_within,
-        sigma_pt=sigma_pt, alpha=alpha, criterion=criterion, f1=factors.f1, f2=factors.f2, allowed=allowed,
-        passed_simple=passed_simple, passed_expanded=passed_expanded, passed=passed_expanded,
-        precision_adequate=precision_adequate, precision_warning=precision_warning,
-        cochran_c=cochran_c, cochran_item=cochran_item, cochran_critical_5=crit5,
-        cochran_critical_1=crit1, cochran_signal=signal, notes=tuple(notes),
-    )
+        return _Cochran(c=math.nan, item=None, signal="not computed", critical_5=crit5, critical_1=crit1,
+                        replicates=n_cochran)
+    worst = int(np.argmax(var_i))
+    cochran_c = float(var_i[worst] / total)
+    item = labels[worst]
+    signal: CochranSignal = "outlier" if cochran_c > crit1 else "straggler" if cochran_c > crit5 else "none"
+    if signal != "none":
+        what = "discordant pair" if pairs else "largest within-item variance"
+        notes.append(
+            f"Cochran's test: item {item!r} ({what}) C = {cochran_c:.4g} exceeds the "
+            f"{'1 %' if signal == 'outlier' else '5 %'} critical value "
+            f"{crit1 if signal == 'outlier' else crit5:.4g} ({signal}); "
+            "kept in the calculation, to be investigated"
+        )
+    return _Cochran(c=cochran_c, item=item, signal=signal, critical_5=crit5, critical_1=crit1,
+                    replicates=n_cochran)
 
 
 

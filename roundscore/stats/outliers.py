@@ -31,6 +31,7 @@ References
 
 from __future__ import annotations
 
+import functools
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass
@@ -40,7 +41,7 @@ import numpy as np
 from scipy import stats as sps
 
 from roundscore.errors import StatisticsError
-from roundscore.stats.exact import check_choice
+from roundscore.stats.exact import check_choice, fsum_mean, mean_variance
 from roundscore.stats.grubbs_double import (GRUBBS_DOUBLE_SEED, OUTLIER_LEVEL, STRAGGLER_LEVEL, GrubbsDoubleTable,
                                             grubbs_double_critical, grubbs_double_table)
 from roundscore.stats.precision import CellStatistics, PrecisionResult, cells_from, precision
@@ -261,13 +262,6 @@ def grubbs_critical(n: int, alpha: float, *, sided: Sided = "two") -> float:
     return (n - 1) / math.sqrt(n) * math.sqrt(t * t / (n - 2 + t * t))
 
 
-def _mean_sd(x: np.ndarray) -> tuple[float, float]:
-    m = math.fsum(x) / x.size
-    m += math.fsum(x - m) / x.size
-    d = x - m
-    return m, math.sqrt(math.fsum(d * d) / (x.size - 1))
-
-
 def grubbs_single(values: Sequence[float] | np.ndarray) -> GrubbsPair:
     """Single Grubbs test on the largest and on the smallest value.
 
@@ -290,7 +284,8 @@ def grubbs_single(values: Sequence[float] | np.ndarray) -> GrubbsPair:
     p = x.size
     if p < 3:
         raise StatisticsError(f"Grubbs' test needs at least 3 values, got {p}")
-    m, s = _mean_sd(x)
+    m, var = mean_variance(x)
+    s = math.sqrt(var)
     if not s > 0:
         raise StatisticsError("Grubbs' test: the values do not vary")
     c5 = grubbs_critical(p, STRAGGLER_LEVEL)
@@ -330,7 +325,7 @@ def grubbs_double(values: Sequence[float] | np.ndarray) -> GrubbsPair:
     p = x.size
     if p < 4:
         raise StatisticsError(f"the double Grubbs test needs at least 4 values, got {p}")
-    m, _ = _mean_sd(x)
+    m = fsum_mean(x)
     d = x - m
     ss0 = math.fsum(d * d)
     if not ss0 > 0:
@@ -340,18 +335,18 @@ def grubbs_double(values: Sequence[float] | np.ndarray) -> GrubbsPair:
 
     def ratio(keep: np.ndarray) -> float:
         y = x[keep]
-        my, _ = _mean_sd(y)
+        my = fsum_mean(y)
         e = y - my
         return math.fsum(e * e) / ss0
 
     g_hi = ratio(order[:-2])
     g_lo = ratio(order[2:])
-    common = dict(p=p, critical_5=table.critical_5, critical_1=table.critical_1)
+    result = functools.partial(GrubbsResult, p=p, critical_5=table.critical_5, critical_1=table.critical_1)
     return GrubbsPair(
-        high=GrubbsResult(side="high", statistic=g_hi, indices=(int(order[-1]), int(order[-2])),
-                     outcome=_outcome_below(g_hi, table.critical_5, table.critical_1), **common),
-        low=GrubbsResult(side="low", statistic=g_lo, indices=(int(order[0]), int(order[1])),
-                     outcome=_outcome_below(g_lo, table.critical_5, table.critical_1), **common),
+        high=result(side="high", statistic=g_hi, indices=(int(order[-1]), int(order[-2])),
+                    outcome=_outcome_below(g_hi, table.critical_5, table.critical_1)),
+        low=result(side="low", statistic=g_lo, indices=(int(order[0]), int(order[1])),
+                   outcome=_outcome_below(g_lo, table.critical_5, table.critical_1)),
     )
 
 

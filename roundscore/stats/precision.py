@@ -37,7 +37,7 @@ import numpy as np
 from scipy import stats as sps
 
 from roundscore.errors import StatisticsError
-from roundscore.stats.exact import centred, grouped_fsum
+from roundscore.stats.exact import centred, fsum_mean, grouped_fsum
 
 __all__ = [
     "LIMIT_FACTOR",
@@ -349,12 +349,6 @@ class PrecisionResult:
         }
 
 
-def _mean_fsum(x: np.ndarray) -> float:
-    """Mean by fsum with one refinement pass (error ≈ 1 ulp of the mean)."""
-    m = math.fsum(x) / x.size
-    return m + math.fsum(x - m) / x.size
-
-
 def _ss(x: np.ndarray, m: float) -> float:
     d = x - m
     return math.fsum(d * d)
@@ -578,7 +572,7 @@ def mandel(cells: CellStatistics) -> MandelResult:
     """
     dm = cells.deviation_means
     p = cells.p
-    centre = _mean_fsum(dm)
+    centre = fsum_mean(dm)
     sd_means = math.sqrt(_ss(dm, centre) / (p - 1)) if p > 1 else math.nan
     with np.errstate(invalid="ignore", divide="ignore"):
         h = (dm - centre) / sd_means if sd_means > 0 else np.full(p, np.nan)

@@ -25,6 +25,7 @@ from roundscore.errors import StatisticsError
 __all__ = [
     "RobustEstimate",
     "algorithm_a",
+    "algorithm_a_rows",
     "made",
     "niqr",
     "ALGORITHM_A_WINSOR",
@@ -235,6 +236,35 @@ def algorithm_a(
             f"Algorithm A needs at least 3 results, got {int(n_each[0])}: "
             "give the assigned value as a number instead"
         )
+    out = _estimates(a, sd_factor, tol, maxiter)
+    return out[0] if one else out
+
+
+def algorithm_a_rows(
+    x: np.ndarray,
+    *,
+    sd_factor: float = ALGORITHM_A_SD_FACTOR,
+    tol: float = ALGORITHM_A_TOL,
+    maxiter: int = ALGORITHM_A_MAXITER,
+) -> list[RobustEstimate]:
+    """:func:`algorithm_a` of each row of a 2-D array (NaN: no result there), one estimate per row.
+
+    A row with fewer than 3 results gets an estimate with a note saying so.
+
+    Examples
+    --------
+    >>> [e.n for e in algorithm_a_rows(np.array([[1.0, 2.0, 3.0, 9.0], [1.0, 2.0, np.nan, np.nan]]))]
+    [4, 2]
+    """
+    a = np.asarray(x, dtype=float)
+    if a.ndim != 2:
+        raise StatisticsError(f"algorithm_a_rows takes 2-D results, got {a.ndim}-D")
+    if np.isinf(a).any():
+        raise StatisticsError("results must be finite numbers")
+    return _estimates(a, sd_factor, tol, maxiter)
+
+
+def _estimates(a: np.ndarray, sd_factor: float, tol: float, maxiter: int) -> list[RobustEstimate]:
     mean, sd, n, it, m0, s0, from_niqr = _algorithm_a_2d(a, sd_factor, tol, maxiter)
     out = []
     for i in range(len(a)):
@@ -252,4 +282,4 @@ def algorithm_a(
                 start_mean=float(m0[i]), start_sd=float(s0[i]), note=note,
             )
         )
-    return out[0] if one else out
+    return out

@@ -52,16 +52,17 @@ References
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, fields
-from typing import Literal, Sequence
+from collections.abc import Sequence
+from dataclasses import dataclass
+from typing import Literal
 
 import numpy as np
-import pandas as pd
 from scipy import stats
 
 from roundscore.errors import StatisticsError
 from roundscore.stats.limits import above, reaches
 from roundscore.stats.scores import EN_ACTION, Z_ACTION, Z_WARNING
+from roundscore.support.plain import AsDict
 
 __all__ = [
     "ACTION_LIMIT", "WARNING_LIMIT", "EN_ACTION_LIMIT", "RUN_LENGTH", "CUSUM_K", "CUSUM_H", "COMBINED_CAUTION",
@@ -101,30 +102,6 @@ COMBINED_CAUTION = (
 
 #: The side of zero a rule fired on.
 Side = Literal["high", "low"]
-
-
-def _to_plain(value: object) -> object:
-    if isinstance(value, np.ndarray):
-        return [_to_plain(v) for v in value.tolist()]
-    if isinstance(value, (list, tuple)):
-        return [_to_plain(v) for v in value]
-    if hasattr(value, "to_dict") and not isinstance(value, (pd.DataFrame, pd.Series)):
-        return value.to_dict()
-    if isinstance(value, np.generic):
-        value = value.item()
-    if isinstance(value, float) and not math.isfinite(value):
-        return None
-    return value
-
-
-class AsDict:
-    """Mixin of the result dataclasses: ``to_dict()`` gives their fields as JSON-ready values."""
-
-    __slots__ = ()
-
-    def to_dict(self) -> dict[str, object]:
-        """The fields as JSON-ready values (arrays as lists, non-finite numbers as None)."""
-        return {f.name: _to_plain(getattr(self, f.name)) for f in fields(self)}  # type: ignore[arg-type]
 
 
 def as_series(z: Sequence[float] | np.ndarray, name: str = "z") -> np.ndarray:

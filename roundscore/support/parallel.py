@@ -27,7 +27,8 @@ import sys
 import time
 from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 from dataclasses import dataclass
-from typing import Any, Callable, Sequence, TypeVar
+from collections.abc import Callable, Sequence
+from typing import Any, TypeVar
 
 from roundscore.support.processes import context, worker_started
 
@@ -84,7 +85,7 @@ def shared() -> Any:
 class _Failure:
     """An exception raised in a worker, in a form that survives pickling."""
 
-    kind: type
+    kind: type[BaseException]
     state: dict
     args: tuple
     text: str
@@ -250,14 +251,15 @@ def _check_length(res: Any, part: Sequence) -> None:
 def terminal_progress(stream=None, *, every: float = 0.5) -> Progress:
     """A progress callback that prints ``stage: done/total`` on one line, at most every ``every`` seconds."""
     stream = stream or sys.stderr
-    last = {"t": 0.0, "stage": None}
+    last_t, last_stage = 0.0, ""
 
     def show(stage: str, done: int, total: int) -> None:
+        nonlocal last_t, last_stage
         now = time.monotonic()
         final = done >= total
-        if not final and stage == last["stage"] and now - last["t"] < every:
+        if not final and stage == last_stage and now - last_t < every:
             return
-        last["t"], last["stage"] = now, stage
+        last_t, last_stage = now, stage
         end = "\n" if final else ""
         stream.write(f"\r  {stage}: {done}/{total}{end}")
         stream.flush()

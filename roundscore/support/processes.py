@@ -21,7 +21,7 @@ import signal
 import sys
 import threading
 from contextlib import contextmanager
-from typing import Iterator
+from collections.abc import Iterator
 
 __all__ = ["context", "worker_started", "Terminated", "signals_as_errors", "PARENT_POLL_S"]
 
@@ -105,7 +105,7 @@ def signals_as_errors() -> Iterator[None]:
         yield
         return
 
-    def raise_terminated(signum, frame):  # noqa: ARG001 - the signal module's signature
+    def raise_terminated(signum, frame):  # the signal module's signature
         for sig in previous:  # once: a second signal must not interrupt the clean-up of the first
             signal.signal(sig, signal.SIG_IGN)
         raise Terminated(signum)

@@ -71,7 +71,7 @@ class TerminalBar:
         self._bar = None
         self._stage = None
 
-    def __enter__(self) -> "TerminalBar":
+    def __enter__(self) -> TerminalBar:
         return self
 
     def __exit__(self, *exc: object) -> None:
