@@ -26,8 +26,8 @@ from roundscore.model.signals import SCORED_SIGNALS, SIGNALS
 from roundscore.outputs.look import (CAUTION, LIMIT_LINE, SIGNAL_CHART_MARKER, SIGNAL_COLOUR, SIGNAL_MARKER,
                                      SIGNAL_WORD)
 from roundscore.outputs.outfolder import atomic_folder
-from roundscore.outputs.workbook_base import (FIXED_TIME, OPTIONS, Formats, fit_widths, print_setup, set_widths,
-                                              write_table)
+from roundscore.outputs.workbook_base import (FIXED_TIME, OPTIONS, Formats, fit_widths, print_setup, score_axis,
+                                              set_widths, value_axis, write_table)
 
 __all__ = ["HISTORY_TABLE_COLUMNS", "HISTORY_FILES", "write_history_outputs", "series_groups", "family_for"]
 
@@ -106,23 +106,28 @@ def _series_chart(book, data, fm: Formats, top: int, label: str, part: pd.DataFr
     first = top + 2
     signal_col = {s: j for j, s in enumerate(SCORED_SIGNALS, start=2)}
     limit_col = 2 + len(SCORED_SIGNALS)
-    rows = zip(part["round_date"].astype(str), part["round"].astype(str), part["score_value"].to_numpy(float),
-               part["signal"].astype(str))
+    true = [float(v) if np.isfinite(v) else None for v in part["score_value"].to_numpy(float)]
+    axis = score_axis(true, family)  # a score beyond the fixed axis is written at its edge, and labelled
+    rows = zip(part["round_date"].astype(str), part["round"].astype(str), axis.drawn, part["signal"].astype(str))
     for i, (date, round_id, value, signal) in enumerate(rows):
         r = first + i
         data.write_string(r, 0, f"{date} {round_id}")
-        if np.isfinite(value):
-            data.write_number(r, 1, float(value))
+        if value is not None:
+            data.write_number(r, 1, value)
             col = signal_col.get(signal)
             if col is not None:
-                data.write_number(r, col, float(value))
+                data.write_number(r, col, value)
         for j, lim in enumerate([v for lim, _ in limits for v in (lim, -lim)], start=limit_col):
             data.write_number(r, j, lim)
     last = first + len(part) - 1
     chart = book.add_chart({"type": "line"})
     cats = ["chart_data", first, 0, last, 0]
-    chart.add_series({"name": "score", "categories": cats, "values": ["chart_data", first, 1, last, 1],
-                      "line": {"color": _LIMIT_GREY, "width": 1.25}, "marker": {"type": "none"}})
+    spec = {"name": "score", "categories": cats, "values": ["chart_data", first, 1, last, 1],
+            "line": {"color": _LIMIT_GREY, "width": 1.25}, "marker": {"type": "none"}}
+    labels = axis.labels(true, ("below", "above"))
+    if labels is not None:
+        spec["data_labels"] = labels
+    chart.add_series(spec)
     for s, j in signal_col.items():
         chart.add_series({"name": SIGNAL_WORD["signals"][s], "categories": cats,
                           "values": ["chart_data", first, j, last, j], "line": {"none": True},
@@ -134,9 +139,8 @@ def _series_chart(book, data, fm: Formats, top: int, label: str, part: pd.DataFr
             chart.add_series({"name": heads[col], "categories": cats, "values": ["chart_data", first, col, last, col],
                               "line": {"color": _LIMIT_GREY, "width": 0.75, "dash_type": LIMIT_LINE[sig]["chart"]},
                               "marker": {"type": "none"}})
-    bound = max(4, family.action + 1)
     chart.set_title({"name": f"{lab}: {label}"})
-    chart.set_y_axis({"name": "score", "min": -bound, "max": bound})
+    chart.set_y_axis(value_axis("score", axis.limit))
     chart.set_x_axis({"name": "round"})
     chart.show_blanks_as("gap")
     chart.set_size({"width": 720, "height": 300})

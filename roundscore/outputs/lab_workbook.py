@@ -31,9 +31,9 @@ from roundscore.model.evaluation import SCORE_COLUMNS
 from roundscore.model.scores import SCORE_FAMILIES, SCORE_FIELD, ScoreFamily, family_of
 from roundscore.outputs.look import CAUTION, LIMIT_LINE, PALETTE
 from roundscore.outputs.payloads import LabPayload, lab_payload
-from roundscore.outputs.workbook_base import (FIXED_TIME, OPTIONS, SCORE_DECIMALS, Formats, columns_of, fit_widths,
-                                              print_setup, score_chart, score_table_columns, set_widths, write_table,
-                                              write_value)
+from roundscore.outputs.workbook_base import (FIXED_TIME, OPTIONS, SCORE_DECIMALS, Formats, axis_limit, clip_to,
+                                              columns_of, fit_widths, print_setup, score_chart, score_table_columns,
+                                              set_widths, value_axis, write_table, write_value)
 
 __all__ = ["write_lab_workbook", "lab_payload", "LabPayload", "LAB_FORMAT", "LAB_FOLD", "SUMMARY_POINTER"]
 
@@ -221,7 +221,7 @@ def _score_charts(wb, ws, fm: Formats, payload: LabPayload, table: dict[str, lis
         c.set_size({"width": 640, "height": 320})
         ws.insert_chart(row, 0, c)
         row += 17
-    set_widths(cd, [12, 16, 10, 14, 14, 14, 10, 10, 10, 10])
+    set_widths(cd, [12, 16, 10, 12, 14, 14, 14, 10, 10, 10, 10])
 
 
 #: Colours and marker shapes of the history chart's lines, one pair per measurand: shape and colour both vary,
@@ -262,10 +262,13 @@ def _history_sheet(wb, fm: Formats, payload: LabPayload, table: dict[str, list])
     for j, h in enumerate(heads):
         hs.write_string(top + 1, j, h, fm.head)
     first, last = top + 2, top + 1 + len(order)
+    # each family's axis (workbook_base.axis_limit); a score beyond it is written at the edge, labelled
+    limit = {f.symbol: axis_limit([v for (_, s, _m), v in points.items() if s == f.symbol], f)
+             for f in families.values()}
     for i, label in enumerate(order):
         hs.write_string(first + i, 0, label)
         for j, (f, m) in enumerate(series, start=1):
-            write_value(hs, first + i, j, points.get((label, f, m)), fm.decimals(2))
+            write_value(hs, first + i, j, clip_to([points.get((label, f, m))], limit[f]).drawn[0], fm.decimals(2))
         for j, (f, lim, word) in enumerate(limits):
             hs.write_number(first + i, 1 + len(series) + 2 * j, lim)
             hs.write_number(first + i, 2 + len(series) + 2 * j, -lim)
@@ -274,8 +277,9 @@ def _history_sheet(wb, fm: Formats, payload: LabPayload, table: dict[str, list])
         cols = [j for j, (f, _) in enumerate(series, start=1) if f == family.symbol]
         if not cols:
             continue
-        values = [v for (_, f, _m), v in points.items() if f == family.symbol]
-        hs.insert_chart(row, 12, _history_chart(wb, family, lab, cols, series, limits, values, top, first, last))
+        true = {j: [points.get((label, f, m)) for label in order] for j, (f, m) in enumerate(series, start=1)}
+        hs.insert_chart(row, 12, _history_chart(wb, family, lab, cols, series, limits, true,
+                                                limit[family.symbol], top, first, last))
         row += 17
     hs.freeze_panes(4, 0)
     set_widths(hs, [24, 14, 14, 9, 11, 12, 10, 8, 10, 18, 40])
@@ -305,18 +309,24 @@ def _history_points(payload: LabPayload, table: dict[str, list]
 
 
 def _history_chart(wb, family: ScoreFamily, lab: str, cols: list[int], series: list[tuple[str, str]],
-                   limits: list[tuple[str, float, str]], values: list[float], top: int, first: int,
-                   last: int) -> Any:
-    """The line chart of one score family on the History sheet: a line per measurand, the limit lines."""
+                   limits: list[tuple[str, float, str]], true: dict[int, list], limit: float, top: int,
+                   first: int, last: int) -> Any:
+    """The line chart of one score family on the History sheet: a line per measurand, the limit lines; the
+    value axis fixed at ±``limit``, a score beyond it drawn at the edge with its true value (``true``: the
+    scores of each column) as its label."""
     ch = wb.add_chart({"type": "line"})
     cats = ["History", first, 0, last, 0]
     for k, j in enumerate(cols):  # shape and colour both vary: colour is not the only cue
         c = HISTORY_COLOURS[k % len(HISTORY_COLOURS)]
-        ch.add_series({"name": ["History", top + 1, j], "categories": cats,
-                       "values": ["History", first, j, last, j],
-                       "line": {"color": c, "width": 1.5},
-                       "marker": {"type": HISTORY_SHAPES[k % len(HISTORY_SHAPES)], "size": 6,
-                                  "fill": {"color": c}, "border": {"color": c}}})
+        spec = {"name": ["History", top + 1, j], "categories": cats,
+                "values": ["History", first, j, last, j],
+                "line": {"color": c, "width": 1.5},
+                "marker": {"type": HISTORY_SHAPES[k % len(HISTORY_SHAPES)], "size": 6,
+                           "fill": {"color": c}, "border": {"color": c}}}
+        labels = clip_to(true[j], limit).labels(true[j], ("below", "above"))
+        if labels is not None:
+            spec["data_labels"] = labels
+        ch.add_series(spec)
     hidden = []  # legend entries of the "-" limit lines (the "+" line names the pair)
     n_series = len(cols)
     for j, (f, lim, word) in enumerate(limits):
@@ -331,11 +341,7 @@ def _history_chart(wb, family: ScoreFamily, lab: str, cols: list[int], series: l
                            "values": ["History", first, col, last, col],
                            "line": {"color": _LIMIT_GREY, "width": 0.75, "dash_type": LIMIT_LINE[word]["chart"]},
                            "marker": {"type": "none"}})
-    bound = family.action + 1
-    if max(abs(v) for v in values) <= bound:
-        ch.set_y_axis({"min": -bound, "max": bound, "name": "score"})
-    else:
-        ch.set_y_axis({"name": "score"})
+    ch.set_y_axis(value_axis("score", limit))
     ch.set_title({"name": f"Laboratory {lab}: {family.heading} by round"})
     ch.set_legend({"position": "bottom", "delete_series": hidden})
     ch.show_blanks_as("gap")

@@ -156,7 +156,7 @@ def _write_summary(ev: RoundEvaluation, path: Path, options: dict[str, Any]) -> 
         ch.insert_chart(row, 0, c)
         row += 17
     cd.freeze_panes(2, 0)
-    set_widths(cd, [12, 16, 10, 14, 14, 14, 10, 10, 10, 10])
+    set_widths(cd, [12, 16, 10, 12, 14, 14, 14, 10, 10, 10, 10])
     print_setup(ch, rnd.id)
     # Left out / audit
     ws = wb.add_worksheet("Audit")
