@@ -134,3 +134,28 @@ def test_existing_forms_are_kept_unless_replace_and_then_set_aside(make_round, c
     assert main(["forms", str(folder), "--labs", "A1", "--replace"]) == 0
     assert "F1-A1.old-2.xlsx" in _hashes(blank) and _hashes(blank)["F1-A1.old-1.xlsx"] == filled["F1-A1.xlsx"]
     assert not [p for p in blank.iterdir() if p.name.startswith(".")]  # no temporary file left
+
+
+def test_blank_form_prints_one_page_wide_on_the_rounds_paper(tmp_path):
+    # pageSetup / definedName as in ECMA-376 Part 1 (§18.3.1.63: paperSize 1 = Letter); form-info is hidden
+    import re
+    import zipfile
+
+    from roundscore.intake.forms import write_form
+    from roundscore.intake.roundfile import load_round
+
+    folder = tmp_path / "r"
+    folder.mkdir()
+    (folder / "round.toml").write_text('[round]\nid = "R-1"\npaper = "letter"\nreturn_by = "2026-11-02"\n'
+                                       '[measurand.lead]\nunit = "mg/kg"\nsigma_pt = 0.1\n', encoding="utf-8")
+    rnd = load_round(folder)
+    path = tmp_path / "form.xlsx"
+    write_form(rnd, "L01", path)
+    with zipfile.ZipFile(path) as z:
+        book = z.read("xl/workbook.xml").decode()
+        sheet = z.read("xl/worksheets/sheet1.xml").decode()
+    assert re.search(r'<sheet name="form-info" sheetId="2" state="hidden"', book)
+    assert '<definedName name="_xlnm.Print_Titles" localSheetId="0">Results!$9:$9</definedName>' in book
+    assert re.search(r'<definedName name="_xlnm.Print_Area" localSheetId="0">Results!\$A\$1:\$[A-Z]+\$\d+<', book)
+    assert 'paperSize="1"' in sheet and 'fitToHeight="0"' in sheet and '<pageSetUpPr fitToPage="1"/>' in sheet
+    assert "Laboratory L01" in re.search(r"<oddHeader>(.*?)</oddHeader>", sheet).group(1)

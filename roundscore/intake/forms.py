@@ -38,6 +38,7 @@ from roundscore.intake.cells import DECIMAL_MARKS
 from roundscore.errors import Problem, sheet_cell
 from roundscore.model.round import MAX_FORM_REPLICATES, Round
 from roundscore.intake.xlsx import SheetRows
+from roundscore.support.sheetprint import print_layout
 
 __all__ = ["write_forms", "FormsWritten", "write_form", "records_from_form", "form_decimal", "FormDecimal",
            "form_file_name", "lab_cell", "FORM_FORMAT", "RESULTS_SHEET", "INFO_SHEET", "DECIMAL_CELL"]
@@ -99,6 +100,7 @@ def write_form(rnd: Round, lab: str, path: Path, *, name: str | None = None,
     cols = _columns(reps)
     for j, c in enumerate(cols):
         ws.write(HEADER_ROW - 1, j, c, head)
+    ws.set_row(HEADER_ROW - 1, 30)  # the wrapped heads
     n_first_u = 2 + reps
     for i, m in enumerate(rnd.measurands.values()):
         r = FIRST_ROW - 1 + i
@@ -132,11 +134,11 @@ def write_form(rnd: Round, lab: str, path: Path, *, name: str | None = None,
     ]
     for i, t in enumerate(notes):
         ws.write(end + i, 0, t, note)
-    ws.set_column(0, 0, 22)
-    ws.set_column(1, 1, 10)
-    ws.set_column(2, 1 + reps, 12)
-    ws.set_column(n_first_u, n_first_u + 2, 14)
-    ws.set_column(n_first_u + 3, n_first_u + 4, 28)
+    widths = [22, 10] + [12] * reps + [14] * 3 + [28] * 2
+    # printed one page wide on the round's paper, the table head on every page (support/sheetprint.py)
+    print_layout(ws, paper=rnd.paper, header=(rnd.id, f"Laboratory {lab}", "Submission form"),
+                 head_rows=(HEADER_ROW - 1, HEADER_ROW - 1), area=(0, 0, end + len(notes) - 1, len(widths) - 1),
+                 widths=widths)
     ws.freeze_panes(HEADER_ROW, 1)
     ws.protect("", {"select_locked_cells": True, "select_unlocked_cells": True,
                     "format_columns": True})
@@ -149,6 +151,7 @@ def write_form(rnd: Round, lab: str, path: Path, *, name: str | None = None,
         info.write(r, 0, k)
         info.write(r, 1, v)
     info.protect("")
+    info.hide()  # read by the tool, never printed
     wb.close()
 
 

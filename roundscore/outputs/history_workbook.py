@@ -26,8 +26,8 @@ from roundscore.model.signals import SCORED_SIGNALS, SIGNALS
 from roundscore.outputs.look import (CAUTION, LIMIT_LINE, SIGNAL_CHART_MARKER, SIGNAL_COLOUR, SIGNAL_MARKER,
                                      SIGNAL_WORD)
 from roundscore.outputs.outfolder import atomic_folder
-from roundscore.outputs.workbook_base import (FIXED_TIME, OPTIONS, Formats, fit_widths, print_setup, score_axis,
-                                              set_widths, value_axis, write_table)
+from roundscore.outputs.workbook_base import (CHART_HEIGHT, CHART_ROWS, FIXED_TIME, OPTIONS, Chart, Formats,
+                                              fit_widths, print_setup, score_axis, set_widths, value_axis, write_table)
 
 __all__ = ["HISTORY_TABLE_COLUMNS", "HISTORY_FILES", "write_history_outputs", "series_groups", "family_for"]
 
@@ -41,17 +41,17 @@ _LIMIT_GREY = "#555555"
 
 
 def write_history_outputs(frame: pd.DataFrame, out: Path, *, lab: str, caution: str = CAUTION,
-                          protect: tuple[tuple[Path, str], ...] = ()) -> list[Path]:
+                          protect: tuple[tuple[Path, str], ...] = (), paper: str = "a4") -> list[Path]:
     """Write ``history.xlsx``, ``history.png`` and ``history.svg`` as the output folder ``out``.
 
     ``out`` is a roundscore output folder (new, empty, or written by an
     earlier ``history show --out``), replaced whole when all files are
     complete (:func:`roundscore.outputs.outfolder.atomic_folder`); ``protect``
     (the archive) may not lie inside it. ``caution`` is written under the
-    table and the charts.
+    table and the charts; ``paper`` ("a4" or "letter") is the workbook's print paper.
     """
     with atomic_folder(out, kind="history", protect=protect) as temp:
-        _write_workbook(frame, temp / HISTORY_FILES[0], lab=lab, caution=caution)
+        _write_workbook(frame, temp / HISTORY_FILES[0], lab=lab, caution=caution, paper=paper)
         _write_figure(frame, [temp / HISTORY_FILES[1], temp / HISTORY_FILES[2]], lab=lab, caution=caution)
     return [out / n for n in HISTORY_FILES]
 
@@ -71,7 +71,7 @@ def family_for(part: pd.DataFrame) -> ScoreFamily:
     return SCORE_FAMILIES[families.pop() if len(families) == 1 else "z-like"]
 
 
-def _write_workbook(frame: pd.DataFrame, path: Path, *, lab: str, caution: str) -> None:
+def _write_workbook(frame: pd.DataFrame, path: Path, *, lab: str, caution: str, paper: str) -> None:
     book = xlsxwriter.Workbook(str(path), OPTIONS)
     book.set_properties({"title": f"History of lab {lab}", "created": FIXED_TIME})
     fm = Formats(book)
@@ -83,15 +83,22 @@ def _write_workbook(frame: pd.DataFrame, path: Path, *, lab: str, caution: str) 
     table.merge_range(end + 1, 0, end + 1, 9, caution, fm.caution)
     table.set_row(end + 1, 45)
     table.freeze_panes(1, 0)
-    set_widths(table, fit_widths(frame, columns, decimals={"score_value": 2}, signal_col="signal"))
-    print_setup(table, f"History of lab {lab}", 0)
+    widths = fit_widths(frame, columns, decimals={"score_value": 2}, signal_col="signal")
+    set_widths(table, widths)
+    where = {"paper": paper, "lab": lab}
+    print_setup(table, "History", 0, widths=widths, last_row=end + 1, title="history", **where)
     markers = ", ".join(f"{SIGNALS[s].shape} {SIGNALS[s].word()}" for s in SCORED_SIGNALS)
     charts.write_string(0, 0, f"Scores of lab {lab} by round; lines at the warning and action "
                               f"limits. Markers: {markers}.")
-    top = 0
+    top, placed = 0, []
     for k, (label, part) in enumerate(series_groups(frame)):
         chart, top = _series_chart(book, data, fm, top, label, part, lab)
-        charts.insert_chart(2 + 16 * k, 0, chart)
+        charts.insert_chart(2 + CHART_ROWS * k, 0, chart)
+        placed.append(Chart(2 + CHART_ROWS * k, CHART_HEIGHT, 720))
+    print_setup(charts, "History", widths=[10] * 10, last_row=1 + CHART_ROWS * len(placed), charts=placed,
+                title="charts", **where)
+    print_setup(data, "History", widths=[20, 10, 12, 12, 12, 8, 8, 8, 8], last_row=max(top - 1, 0),
+                title="chart_data", **where)
     book.close()
 
 
@@ -143,7 +150,7 @@ def _series_chart(book, data, fm: Formats, top: int, label: str, part: pd.DataFr
     chart.set_y_axis(value_axis("score", axis.limit))
     chart.set_x_axis({"name": "round"})
     chart.show_blanks_as("gap")
-    chart.set_size({"width": 720, "height": 300})
+    chart.set_size({"width": 720, "height": CHART_HEIGHT})
     return chart, last + 3
 
 

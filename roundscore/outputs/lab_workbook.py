@@ -31,9 +31,10 @@ from roundscore.model.evaluation import SCORE_COLUMNS
 from roundscore.model.scores import SCORE_FAMILIES, SCORE_FIELD, ScoreFamily, family_of
 from roundscore.outputs.look import CAUTION, LIMIT_LINE, PALETTE
 from roundscore.outputs.payloads import LabPayload, lab_payload
-from roundscore.outputs.workbook_base import (FIXED_TIME, OPTIONS, SCORE_DECIMALS, Formats, axis_limit, clip_to,
-                                              columns_of, fit_widths, print_setup, score_chart, score_table_columns,
-                                              set_widths, value_axis, write_table, write_value)
+from roundscore.outputs.workbook_base import (CHART_HEIGHT, CHART_ROWS, FIXED_TIME, OPTIONS, SCORE_DECIMALS, Chart,
+                                              Formats, axis_limit, clip_to, columns_of, fit_widths, print_setup,
+                                              score_chart, score_table_columns, set_widths, value_axis, write_table,
+                                              write_value)
 
 __all__ = ["write_lab_workbook", "lab_payload", "LabPayload", "LAB_FORMAT", "LAB_FOLD", "SUMMARY_POINTER"]
 
@@ -113,6 +114,7 @@ def write_lab_workbook(payload: LabPayload, path: Path) -> None:
     fm = Formats(wb)
     ws = wb.add_worksheet("Scores")
     r = _heading(ws, fm, payload)
+    tall = {r - 2: 45.0}  # the caution's row (the table head's is added below)
     table, folded, notes, sheets = _score_rows(payload)
     for line in notes:
         ws.write_string(r, 0, line)
@@ -120,25 +122,35 @@ def write_lab_workbook(payload: LabPayload, path: Path) -> None:
     r += 1
     cols, head, fixed = _score_sheet_columns(folded)
     top = r
+    tall[top] = 30.0
     end = write_table(ws, fm, r, table, cols, head, fixed, "signal", rd.words, row_decimals=payload.decimals)
     ws.freeze_panes(top + 1, 1)
     ws.set_row(top, 30)  # the wrapped head
     widths = fit_widths(table, cols, head, {**fixed, "result": 4, "assigned": 4, "u_assigned": 4, "sigma_pt": 4,
                                             "d": 4}, "signal")
-    set_widths(ws, [max(w, 16 if j == 0 else 7) for j, w in enumerate(widths)])
-    _score_charts(wb, ws, fm, payload, table, end + 1)
-    print_setup(ws, rd.id, top)
+    widths = [max(w, 16 if j == 0 else 7) for j, w in enumerate(widths)]
+    set_widths(ws, widths)
+    charts = _score_charts(wb, ws, fm, payload, table, end + 1)
+    _print(ws, payload, top, widths, end + 1 + CHART_ROWS * len(charts), charts=charts, row_points=tall,
+           title="Score sheet")
     if payload.history is not None and len(payload.history):
         _history_sheet(wb, fm, payload, table)
     for name, frame in sheets.items():
         if len(frame):
             xs = wb.add_worksheet(name.capitalize()[:31])
-            write_table(xs, fm, 0, frame, list(frame.columns))
+            last = write_table(xs, fm, 0, frame, list(frame.columns))
             xs.freeze_panes(1, 0)
-            set_widths(xs, fit_widths(frame, list(frame.columns), decimals={c: 4 for c in frame.columns}))
-            print_setup(xs, rd.id, 0)
+            xwidths = fit_widths(frame, list(frame.columns), decimals={c: 4 for c in frame.columns})
+            set_widths(xs, xwidths)
+            _print(xs, payload, 0, xwidths, last - 1, title=name.capitalize())
     _machine_sheets(wb, fm, payload, table)
     wb.close()
+
+
+def _print(ws, payload: LabPayload, head_row: int | None, widths: list, last_row: int, **kw) -> None:
+    """A lab file's sheet prints on the round's paper, its header naming the round and the lab."""
+    print_setup(ws, payload.round.id, head_row, paper=payload.round.paper, lab=payload.lab, widths=widths,
+                last_row=last_row, **kw)
 
 
 def _heading(ws, fm: Formats, payload: LabPayload) -> int:
@@ -194,7 +206,7 @@ def _score_sheet_columns(folded: list) -> tuple[list[str], list[str], dict[str, 
     return cols, head, fixed
 
 
-def _score_charts(wb, ws, fm: Formats, payload: LabPayload, table: dict[str, list], row: int) -> None:
+def _score_charts(wb, ws, fm: Formats, payload: LabPayload, table: dict[str, list], row: int) -> list[Chart]:
     """Native charts of the lab's official score per measurand, one per score family (their limits differ),
     from ``row`` down the Scores sheet; their data on the sheet ``Chart data``."""
     lab, words = payload.lab, payload.round.words
@@ -208,7 +220,8 @@ def _score_charts(wb, ws, fm: Formats, payload: LabPayload, table: dict[str, lis
             chart_rows.append((family, [measurands[i] for i in part], [table["official"][i] for i in part],
                                [table["signal"][i] for i in part]))
     if not chart_rows:
-        return
+        return []
+    placed = []
     cd = wb.add_worksheet("Chart data")
     cd.write_string(0, 0, f"Data of the charts: laboratory {lab}'s scores by measurand", fm.bold)
     at = 2
@@ -218,10 +231,14 @@ def _score_charts(wb, ws, fm: Formats, payload: LabPayload, table: dict[str, lis
         c, at = score_chart(wb, cd, fm, at, names, values, signals, name, family.members[0].name, words,
                             f"Laboratory {lab}: {name} by measurand")
         c.set_x_axis({"name": "measurand", "num_font": {"rotation": -45, "size": 8}, "label_position": "low"})
-        c.set_size({"width": 640, "height": 320})
+        c.set_size({"width": 640, "height": CHART_HEIGHT})
         ws.insert_chart(row, 0, c)
-        row += 17
-    set_widths(cd, [12, 16, 10, 12, 14, 14, 14, 10, 10, 10, 10])
+        placed.append(Chart(row, CHART_HEIGHT, 640))
+        row += CHART_ROWS
+    widths = [12, 16, 10, 12, 14, 14, 14, 10, 10, 10, 10]
+    set_widths(cd, widths)
+    _print(cd, payload, None, widths, at - 2, title="Chart data")
+    return placed
 
 
 #: Colours and marker shapes of the history chart's lines, one pair per measurand: shape and colour both vary,
@@ -272,18 +289,20 @@ def _history_sheet(wb, fm: Formats, payload: LabPayload, table: dict[str, list])
         for j, (f, lim, word) in enumerate(limits):
             hs.write_number(first + i, 1 + len(series) + 2 * j, lim)
             hs.write_number(first + i, 2 + len(series) + 2 * j, -lim)
-    row = 3
+    row, placed = last + 2, []  # the charts below their data, so the sheet prints one table wide
+    true = {j: [points.get((label, f, m)) for label in order] for j, (f, m) in enumerate(series, start=1)}
     for family in families.values():
         cols = [j for j, (f, _) in enumerate(series, start=1) if f == family.symbol]
         if not cols:
             continue
-        true = {j: [points.get((label, f, m)) for label in order] for j, (f, m) in enumerate(series, start=1)}
-        hs.insert_chart(row, 12, _history_chart(wb, family, lab, cols, series, limits, true,
-                                                limit[family.symbol], top, first, last))
-        row += 17
+        hs.insert_chart(row, 0, _history_chart(wb, family, lab, cols, series, limits, true,
+                                               limit[family.symbol], top, first, last))
+        placed.append(Chart(row, CHART_HEIGHT, 640))
+        row += CHART_ROWS
     hs.freeze_panes(4, 0)
-    set_widths(hs, [24, 14, 14, 9, 11, 12, 10, 8, 10, 18, 40])
-    print_setup(hs, rd.id)
+    widths = [24, 14, 14, 9, 11, 12, 10, 8, 10, 18, 40]
+    set_widths(hs, widths)
+    _print(hs, payload, 3, widths, row, charts=placed, title="History")
 
 
 def _history_points(payload: LabPayload, table: dict[str, list]
@@ -345,7 +364,7 @@ def _history_chart(wb, family: ScoreFamily, lab: str, cols: list[int], series: l
     ch.set_title({"name": f"Laboratory {lab}: {family.heading} by round"})
     ch.set_legend({"position": "bottom", "delete_series": hidden})
     ch.show_blanks_as("gap")
-    ch.set_size({"width": 640, "height": 320})
+    ch.set_size({"width": 640, "height": CHART_HEIGHT})
     return ch
 
 

@@ -30,6 +30,8 @@ class RoundFacts:
     id, title, scheme, date, provider, material : str
     words : {"signals", "performance"}
         The signal vocabulary (``[round] words``).
+    paper : {"a4", "letter"}
+        The paper the sheets print on (``[round] paper``).
     """
 
     id: str
@@ -39,12 +41,13 @@ class RoundFacts:
     provider: str
     material: str
     words: Words
+    paper: str = "a4"
 
     @classmethod
     def of(cls, rnd: Round) -> "RoundFacts":
         """The facts of a round's settings."""
         return cls(id=rnd.id, title=rnd.title, scheme=rnd.scheme, date=rnd.date, provider=rnd.provider,
-                   material=rnd.material, words=rnd.words)
+                   material=rnd.material, words=rnd.words, paper=rnd.paper)
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)

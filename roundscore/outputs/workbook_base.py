@@ -24,9 +24,10 @@ import xlsxwriter
 from roundscore.model.scores import SCORES, ScoreFamily, family_of, score_label
 from roundscore.model.signals import SCORED_SIGNALS
 from roundscore.outputs.look import LIMIT_LINE, SIGNAL_CHART_MARKER, SIGNAL_COLOUR, SIGNAL_WORD, signal_label
+from roundscore.support.sheetprint import Chart, print_layout
 
 __all__ = ["FIXED_TIME", "OPTIONS", "Formats", "tint", "write_value", "columns_of", "write_table", "VALUE_COLUMNS",
-           "MIN_WIDTH", "MAX_WIDTH", "FIT_ROWS", "fit_widths", "set_widths", "print_setup", "score_chart",
+           "MIN_WIDTH", "MAX_WIDTH", "FIT_ROWS", "fit_widths", "set_widths", "print_setup", "Chart", "CHART_HEIGHT", "CHART_ROWS", "score_chart",
            "CHART_POINT_COLOURS", "SCORE_DECIMALS", "score_table_columns", "AXIS_PERCENTILE", "AXIS_CAP",
            "ScoreAxis", "axis_limit", "clip_to", "score_axis", "value_axis"]
 
@@ -206,14 +207,29 @@ def set_widths(ws, widths: list[int]) -> None:
         ws.set_column(j, j, w)
 
 
-def print_setup(ws, round_id: str, header_row: int | None = None) -> None:
-    """Landscape, fit to one page wide, the round id in the page header, the table head on every page."""
-    ws.set_landscape()
-    ws.set_paper(9)  # A4
-    ws.fit_to_pages(1, 0)
-    ws.set_header(f"&L{round_id.replace('&', '&&')}&RPage &P of &N")  # "&&" is a literal & in a header
-    if header_row is not None:
-        ws.repeat_rows(header_row)
+def print_setup(ws, round_id: str, header_row: int | None = None, *, paper: str = "a4", lab: str = "",
+                title: str = "", widths: Iterable[float] = (), last_row: int | None = None,
+                charts: Iterable[Chart] = (), landscape: bool | None = None,
+                row_points: Mapping[int, float] | None = None) -> None:
+    """How a sheet of a circulated workbook prints (:func:`roundscore.support.sheetprint.print_layout`).
+
+    ``paper`` is ``[round] paper``; the page header names the round (left),
+    the lab for a lab's file (centre) and ``title`` (right), the footer has the
+    page numbers. Rows up to ``header_row`` (the table head) print on every
+    page; with ``last_row`` the print area is the sheet's columns of ``widths``
+    down to that row. The sheet prints one page wide, landscape when it is wide,
+    and each of ``charts`` whole on one page.
+    """
+    widths = list(widths)
+    area = (0, 0, last_row, max(len(widths), 1) - 1) if last_row is not None else None
+    print_layout(ws, paper="letter" if paper == "letter" else "a4",
+                 header=(round_id, f"Laboratory {lab}" if lab else "", title),
+                 head_rows=(header_row, header_row) if header_row is not None else None, area=area,
+                 widths=widths, charts=list(charts), landscape=landscape, row_points=row_points)
+
+
+#: Height (pixels) of a score chart and the rows (of 20 px) from one chart to the next below it.
+CHART_HEIGHT, CHART_ROWS = 280, 15
 
 
 #: Workbook chart marker shapes of the scored signals (roundscore.outputs.look: circle, triangle, square).
