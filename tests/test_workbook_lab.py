@@ -285,3 +285,14 @@ def test_fit_with_fixed_decimals_equals_measuring_every_value(decimals):
         assert wbm._fit(frame, ["c"], ["h"], {"c": decimals}) == [_fit_by_measuring_every_value(values, decimals)]
         assert wbm._fit({"c": values}, ["c"], ["h"], {"c": decimals}) == [
             _fit_by_measuring_every_value(values, decimals)]
+
+
+def test_machine_sheets_are_hidden_and_last(books):
+    # openpyxl reads sheet_state from the workbook part (ECMA-376 §18.2.19 sheet@state)
+    _, out = books
+    wb = openpyxl.load_workbook(out / "labs" / "K19.xlsx")
+    states = [(ws.title, ws.sheet_state) for ws in wb.worksheets]
+    machine = [i for i, (name, _) in enumerate(states) if name in ("data", "round")]
+    assert [states[i][1] for i in machine] == ["hidden", "hidden"]
+    assert machine == [len(states) - 2, len(states) - 1]  # nothing a person reads after them
+    assert all(state == "visible" for name, state in states if name not in ("data", "round"))

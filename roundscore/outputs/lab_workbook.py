@@ -370,12 +370,15 @@ def _history_chart(wb, family: ScoreFamily, lab: str, cols: list[int], series: l
 
 def _machine_sheets(wb, fm: Formats, payload: LabPayload, table: dict[str, list]) -> None:
     """The sheets ``data`` (the score rows with their digests) and ``round`` (the round's keys and the sheet's
-    digest), read back by ``history add``."""
+    digest), read back by ``history add``: hidden (never printed) and last, so no sheet a person reads comes
+    after them."""
     rd = payload.round
     data = wb.add_worksheet("data")
+    data.hide()
     rows, digests = _data_rows(table)
     write_table(data, fm, 0, rows, [*SCORE_COLUMNS, ROW_DIGEST_COLUMN])
     meta = wb.add_worksheet("round")
+    meta.hide()
     pairs: list[tuple[str, Any]] = [("generator", "roundscore"), ("format", LAB_FORMAT), ("scheme", rd.scheme),
                                     ("round", rd.id), ("round_date", rd.date), ("lab", payload.lab),
                                     ("title", rd.title)]
