@@ -142,7 +142,7 @@ def write_lab_workbook(payload: LabPayload, path: Path) -> None:
 
 
 def _heading(ws, fm: Formats, payload: LabPayload) -> int:
-    """The title, the lab and the round, failed checks, the caution and where the statistics are; the next row."""
+    """The title, the lab and the round, what failed checks mean for its scores, the caution and where the statistics are; the next row."""
     rd, lab = payload.round, payload.lab
     ws.write_string(0, 0, f"Proficiency test round {rd.id}: score sheet for laboratory {lab}", fm.title)
     r = 1
@@ -153,8 +153,8 @@ def _heading(ws, fm: Formats, payload: LabPayload) -> int:
             ws.write_string(r, 0, label, fm.bold)
             ws.write_string(r, 1, str(value))
             r += 1
-    for line in payload.failed_checks:
-        ws.write_string(r, 0, "Check failed: " + line, fm.alert)
+    for line in payload.notices:  # plain words for the lab; the technical findings are in the summary
+        ws.write_string(r, 0, line, fm.alert)
         r += 1
     ws.merge_range(r, 0, r, 9, "CONFIDENTIAL to the laboratory named above. " + CAUTION, fm.caution)
     ws.set_row(r, 45)

@@ -537,7 +537,8 @@ def lab_page_html(ev, parts: ReportParts, lab: str, *, scores: list[dict[str, An
         rec = own.get(meas)
         v = rec.get(SCORE_FIELD.get(rec["score"], "z")) if rec else None
         strips.append(f'<figure class="strip" id="strip-{_e(meas)}">'
-                      f'{strip.for_lab(lab, v, rec["signal"] if rec else None, words)}</figure>')
+                      f'{strip.for_lab(lab, v, rec["signal"] if rec else None, words, rec.get("state") if rec else None)}'
+                      '</figure>')
     stand = ("<h2>Where you stand</h2><p>Every laboratory's score on each measurand, yours marked; other "
              f'laboratories are not named.</p><p class="muted">{_e(strip_legend(words))}</p>' + "".join(strips))
     figs = parts.figures
