@@ -459,7 +459,7 @@ def _draw(ev, task: tuple[str, ...]) -> dict:
         values = g[SCORE_FIELD[m.settings.score]].to_numpy(float)
         if "state" in g.columns:  # a censored false negative (positive) has its signal, not a value
             side = g["state"].map(STATE_SIDE).fillna(0).to_numpy(float)
-            values = np.where(side != 0, side * np.inf, values)
+            values = np.where(side < 0, -np.inf, np.where(side > 0, np.inf, values))
         out["scores"] = z_bar_figure(g["lab"].tolist(), values,
                                      g["signal"].tolist(), key=f"z-{name}", score=m.settings.score,
                                      title=f"{label}: {score_label(m.settings.score)} by laboratory", words=words)
