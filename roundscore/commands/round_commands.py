@@ -3,10 +3,12 @@
 from __future__ import annotations
 
 import argparse
+import math
 import sys
 from pathlib import Path
 
 from roundscore.model.evaluation import RoundEvaluation
+from roundscore.model.scores import score_symbol
 from roundscore.model.signals import SIGNALS
 from roundscore.outputs.look import CAUTION, SIGNAL_SYMBOL, signal_legend_text
 from roundscore.support.progress import terminal_bar
@@ -58,6 +60,13 @@ def register(sub: argparse._SubParsersAction) -> None:
     c.set_defaults(func=run_check)
 
 
+def _shown(x: float, decimals: int | None, fallback: str, more: int = 0) -> str:
+    """A number as people read it: to ``decimals`` (+ ``more``) places when the measurand sets them."""
+    if decimals is None or not math.isfinite(x):
+        return format(x, fallback)
+    return f"{x:.{decimals + more}f}"
+
+
 def summary_text(ev: RoundEvaluation) -> str:
     """A short table of the round for the terminal.
 
@@ -74,9 +83,11 @@ def summary_text(ev: RoundEvaluation) -> str:
     lines.append(head)
     counts = ev.scores.groupby(["measurand", "signal"]).size()
     for name, m in ev.measurands.items():
+        d = m.settings.decimals  # the measurand's decimals (uncertainties one more); else significant digits
         lines.append(
-            f"  {t(name):<14}{m.p:>4}  {m.assigned:>12.5g} {m.u_assigned:>10.3g} {m.sigma_pt:>10.4g} "
-            f"{m.settings.score:<8}" + "".join(f"{int(counts.get((name, s), 0)):>4}" for s in SIGNALS))
+            f"  {t(name):<14}{m.p:>4}  {_shown(m.assigned, d, '.5g'):>12} {_shown(m.u_assigned, d, '.3g', 1):>10} "
+            f"{_shown(m.sigma_pt, d, '.4g', 1):>10} {score_symbol(m.settings.score):<8}"
+            + "".join(f"{int(counts.get((name, s), 0)):>4}" for s in SIGNALS))
     lines.append(f"  {signal_legend_text()}")
     for name, m in ev.measurands.items():
         if not m.scored:  # say why, here too: a row of "nan" and "not scored" alone does not

@@ -376,7 +376,7 @@ def validate_records(rnd: Round, records: Iterable[Record]) -> tuple[list[tuple]
             lab, m.name, replicate, cell.kind, value, _decimal_scale(cell.text, f),
             cell.relation, limit, m.unit, u * f, U * f, k,
             bounded("method", rec.method, "method", rec), bounded("comment", rec.comment, "comment", rec),
-            rec.file, rec.sheet, rec.row,
+            rec.file, rec.sheet, rec.row, unit if unit != m.unit else None, f,
         ))
     problems.sort(key=_reading_order)
     return out, problems

@@ -18,7 +18,7 @@ __all__ = ["ResultTable", "Record", "COLUMNS", "table_frame"]
 #: Columns of :attr:`ResultTable.frame`, in order.
 COLUMNS = (
     "lab", "measurand", "replicate", "status", "value", "text", "relation", "limit",
-    "unit", "u", "U", "k", "method", "comment", "file", "sheet", "row",
+    "unit", "u", "U", "k", "method", "comment", "file", "sheet", "row", "unit_given", "factor",
 )
 
 
@@ -61,7 +61,12 @@ class ResultTable:
     frame : pandas.DataFrame
         Columns :data:`COLUMNS`. ``status`` is "value", "censored" or
         "blank" (not reported); ``value`` is NaN unless status is "value";
-        ``text`` keeps the number as typed for exact centring.
+        ``text`` keeps the number as typed for exact centring. ``value``,
+        ``limit``, ``u`` and ``U`` are in the measurand's ``unit``; a result
+        entered in another unit keeps that unit in ``unit_given`` and the
+        factor it was multiplied by in ``factor`` (``unit_given`` None and
+        ``factor`` 1 when it was entered in the measurand's unit), so the
+        evaluation can record every conversion.
     files : tuple of str
         The files read.
     warnings : tuple of str
@@ -89,5 +94,6 @@ def table_frame(rows: list[tuple]) -> pd.DataFrame:
     """The :attr:`ResultTable.frame` of validated rows (from :func:`validate_records`), in table order."""
     frame = pd.DataFrame(rows, columns=list(COLUMNS))
     frame = frame.astype({"replicate": "int64", "value": "float64", "limit": "float64",
-                          "u": "float64", "U": "float64", "k": "float64", "row": "int64"})
+                          "u": "float64", "U": "float64", "k": "float64", "row": "int64",
+                          "factor": "float64"})
     return frame.sort_values(["measurand", "lab", "replicate"], kind="stable").reset_index(drop=True)

@@ -154,7 +154,7 @@ def _print(ws, payload: LabPayload, head_row: int | None, widths: list, last_row
 
 
 def _heading(ws, fm: Formats, payload: LabPayload) -> int:
-    """The title, the lab and the round, failed checks, the caution and where the statistics are; the next row."""
+    """The title, the lab and the round, what failed checks mean for its scores, the caution and where the statistics are; the next row."""
     rd, lab = payload.round, payload.lab
     ws.write_string(0, 0, f"Proficiency test round {rd.id}: score sheet for laboratory {lab}", fm.title)
     r = 1
@@ -165,8 +165,8 @@ def _heading(ws, fm: Formats, payload: LabPayload) -> int:
             ws.write_string(r, 0, label, fm.bold)
             ws.write_string(r, 1, str(value))
             r += 1
-    for line in payload.failed_checks:
-        ws.write_string(r, 0, "Check failed: " + line, fm.alert)
+    for line in payload.notices:  # plain words for the lab; the technical findings are in the summary
+        ws.write_string(r, 0, line, fm.alert)
         r += 1
     ws.merge_range(r, 0, r, 9, "CONFIDENTIAL to the laboratory named above. " + CAUTION, fm.caution)
     ws.set_row(r, 45)

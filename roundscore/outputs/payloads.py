@@ -61,7 +61,10 @@ class LabPayload:
         The lab's code, and its name and contact from the participants file
         ("" when not given; only the lab's own sheet shows them).
     failed_checks : tuple of str
-        Headlines of the round's failed checks (they head the sheet).
+        Headlines of the round's failed checks, in the coordinator's words (not shown to the lab).
+    notices : tuple of str
+        What those checks mean for the lab's scores, in plain words
+        (:attr:`~roundscore.model.evaluation.RoundEvaluation.lab_notices`): they head the sheet.
     scores : pandas.DataFrame
         The lab's rows of the scores (:data:`~roundscore.model.evaluation.SCORE_COLUMNS`,
         ``rank``, ``n_scored``).
@@ -86,6 +89,7 @@ class LabPayload:
     decimals: Mapping[str, int | None]
     extras: Mapping[str, pd.DataFrame] = field(default_factory=dict)
     history: pd.DataFrame | None = None
+    notices: tuple[str, ...] = ()
 
 
 def lab_payload(ev: RoundEvaluation, lab: str, history: pd.DataFrame | None = None) -> LabPayload:
@@ -97,5 +101,5 @@ def lab_payload(ev: RoundEvaluation, lab: str, history: pd.DataFrame | None = No
         p={n: m.p for n, m in ev.measurands.items()},
         decimals={n: m.decimals for n, m in ev.round.measurands.items()},
         extras={k: ev.lab_rows(k, lab) for k in ev.lab_tables if k != "scores"},
-        history=history,
+        history=history, notices=tuple(ev.lab_notices),
     )
