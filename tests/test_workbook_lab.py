@@ -296,3 +296,39 @@ def test_machine_sheets_are_hidden_and_last(books):
     assert [states[i][1] for i in machine] == ["hidden", "hidden"]
     assert machine == [len(states) - 2, len(states) - 1]  # nothing a person reads after them
     assert all(state == "visible" for name, state in states if name not in ("data", "round"))
+
+
+def test_headings_decimals_and_how_to_read(books, tmp_path):
+    # display headings (outputs/headings.py), number formats to the measurand's decimals with full precision
+    # kept in the cells, the guidance sheet (outputs/guidance.py); the demo's cadmium has decimals = 3
+    from roundscore.outputs.guidance import GUIDANCE_TITLE, how_to_read
+    from roundscore.outputs.lab_workbook import write_lab_workbook
+    from roundscore.outputs.payloads import lab_payload
+
+    ev, out = books
+    summary = openpyxl.load_workbook(out / "round-summary.xlsx")
+    stats_head = [c.value for c in summary["Statistics"][1]]
+    assert "Robust SD s*" in stats_head and "MADe" in stats_head and "robust_sd" not in stats_head
+    mandel = [c.value for c in summary["Mandel"][1]]
+    assert "h: critical value at 5 %" in mandel and "h_crit_5" not in mandel
+    col = mandel.index("h") + 1
+    assert {summary["Mandel"].cell(r, col).number_format for r in range(2, 8)} == {"0.00"}
+    history = pd.DataFrame([{"scheme": "SKW", "round": "SKW-2026-13", "round_date": "2026-06-01", "title": "",
+                             "lab": "K19", "measurand": "cadmium", "unit": "mg/kg", "result": 0.8412345678,
+                             "assigned": 0.83010242632412457, "sigma_pt": 0.03010242632412457, "score": "z",
+                             "score_value": 0.3698, "signal": "acceptable", "note": ""}])
+    path = tmp_path / "K19.xlsx"
+    write_lab_workbook(lab_payload(ev, "K19", history), path)
+    wb = openpyxl.load_workbook(path)
+    assert wb.sheetnames[:2] == ["Scores", "How to read"]
+    hs = wb["History"]
+    head = [c.value for c in hs[4]]
+    row = 5
+    sigma = hs.cell(row, head.index("σ_pt") + 1)
+    assert sigma.value == pytest.approx(0.03010242632412457, rel=1e-15)  # full precision in the cell
+    assert sigma.number_format == "0.0000"  # shown to cadmium's 3 decimals + 1
+    assert hs.cell(row, head.index("Your result") + 1).number_format == "0.000"
+    text = [c.value for c in wb["How to read"]["A"] if c.value]
+    assert text[0] == GUIDANCE_TITLE
+    parts = how_to_read(ev.round.words)
+    assert all(p.title in text for p in parts) and all(f"• {b}" in text for p in parts for b in p.bullets)

@@ -7,9 +7,10 @@ workbook shares (:mod:`roundscore.outputs.workbook_base`) and in the tool's look
 the signal's tint, the chart markers and colours are those of every other
 output, the limits those of each score's family (:mod:`roundscore.model.scores`).
 
-Sheets: ``history`` (one row per round × measurand; the column names are the
-archive's), ``charts`` (a line chart per scheme × measurand with the warning
-and action limits) and ``chart_data``.
+Sheets: ``history`` (one row per round × measurand: the archive's columns under
+their display headings, :mod:`roundscore.outputs.headings`; values to decimals set by
+σ_pt's size, :func:`shown_decimals`), ``charts`` (a line chart per scheme × measurand
+with the warning and action limits) and ``chart_data``.
 """
 
 from __future__ import annotations
@@ -23,13 +24,15 @@ import xlsxwriter
 
 from roundscore.model.scores import SCORE_FAMILIES, ScoreFamily, family_of
 from roundscore.model.signals import SCORED_SIGNALS, SIGNALS
+from roundscore.outputs.headings import headings
 from roundscore.outputs.look import (CAUTION, LIMIT_LINE, SIGNAL_CHART_MARKER, SIGNAL_COLOUR, SIGNAL_MARKER,
                                      SIGNAL_WORD)
 from roundscore.outputs.outfolder import atomic_folder
 from roundscore.outputs.workbook_base import (CHART_HEIGHT, CHART_ROWS, FIXED_TIME, OPTIONS, Chart, Formats,
                                               fit_widths, print_setup, score_axis, set_widths, value_axis, write_table)
 
-__all__ = ["HISTORY_TABLE_COLUMNS", "HISTORY_FILES", "write_history_outputs", "series_groups", "family_for"]
+__all__ = ["HISTORY_TABLE_COLUMNS", "HISTORY_FILES", "write_history_outputs", "series_groups", "family_for",
+           "shown_decimals"]
 
 #: The columns of the ``history`` sheet (and of the terminal table of ``history show``).
 HISTORY_TABLE_COLUMNS = ("round_date", "scheme", "round", "measurand", "unit", "result", "assigned",
@@ -79,11 +82,14 @@ def _write_workbook(frame: pd.DataFrame, path: Path, *, lab: str, caution: str, 
     charts = book.add_worksheet("charts")
     data = book.add_worksheet("chart_data")
     columns = list(HISTORY_TABLE_COLUMNS)
-    end = write_table(table, fm, 0, frame, columns, decimals={"score_value": 2}, signal_col="signal")
+    heads = headings(columns)
+    table.set_row(0, 30)  # the wrapped heads
+    end = write_table(table, fm, 0, frame, columns, heads, decimals={"score_value": 2}, signal_col="signal",
+                      row_decimals=shown_decimals(frame))
     table.merge_range(end + 1, 0, end + 1, 9, caution, fm.caution)
     table.set_row(end + 1, 45)
     table.freeze_panes(1, 0)
-    widths = fit_widths(frame, columns, decimals={"score_value": 2}, signal_col="signal")
+    widths = fit_widths(frame, columns, heads, decimals={"score_value": 2}, signal_col="signal")
     set_widths(table, widths)
     where = {"paper": paper, "lab": lab}
     print_setup(table, "History", 0, widths=widths, last_row=end + 1, title="history", **where)
@@ -100,6 +106,22 @@ def _write_workbook(frame: pd.DataFrame, path: Path, *, lab: str, caution: str, 
     print_setup(data, "History", widths=[20, 10, 12, 12, 12, 8, 8, 8, 8], last_row=max(top - 1, 0),
                 title="chart_data", **where)
     book.close()
+
+
+def shown_decimals(frame: pd.DataFrame) -> dict[str, int]:
+    """The decimals each measurand's values are shown with: the archive keeps no ``decimals``, so σ_pt's size
+    decides (common practice: σ_pt to 3 significant digits, results and assigned values one decimal fewer).
+
+    >>> shown_decimals(pd.DataFrame({"measurand": ["Cd", "Cd", "I"], "sigma_pt": [0.0301, 0.05, 123.7]}))
+    {'Cd': 3, 'I': 0}
+    """
+    out: dict[str, int] = {}
+    for m, part in frame.groupby("measurand", sort=True):
+        sigma = part["sigma_pt"].to_numpy(float)
+        sigma = sigma[np.isfinite(sigma) & (sigma > 0)]
+        if sigma.size:
+            out[str(m)] = max(0, 1 - int(np.floor(np.log10(sigma.min()))))
+    return out
 
 
 def _series_chart(book, data, fm: Formats, top: int, label: str, part: pd.DataFrame, lab: str):

@@ -2,10 +2,12 @@
 
 Sheets: ``Scores`` (the lab's results, scores and signals, beside each score
 what the lab needs to read it and where it stands among all labs, with a
-native chart of its scores per score family), ``Chart data``, ``History`` (the
+native chart of its scores per score family), ``How to read`` (what the scores
+compare, the signal limits and what a signal asks of the lab:
+:mod:`roundscore.outputs.guidance`), ``Chart data``, ``History`` (the
 lab's earlier rounds of the scheme, when an archive is given, with a line
 chart per score family), a sheet per per-lab stage table that does not fold
-into the Scores sheet, and the machine-readable ``data`` and ``round`` sheets
+into the Scores sheet, and, hidden and last, the machine-readable ``data`` and ``round`` sheets
 (the history commands read them back: their layout is a contract, see
 :data:`~roundscore.model.evaluation.SCORE_COLUMNS`). The ``data`` sheet holds
 its numbers to 12 significant digits and a digest of each row (column
@@ -29,12 +31,13 @@ import xlsxwriter
 from roundscore.model.digest import DIGEST_KEY, ROW_DIGEST_COLUMN, row_digest, sheet_digest, sheet_value
 from roundscore.model.evaluation import SCORE_COLUMNS
 from roundscore.model.scores import SCORE_FAMILIES, SCORE_FIELD, ScoreFamily, family_of
+from roundscore.outputs.guidance import GUIDANCE_TITLE, how_to_read
 from roundscore.outputs.look import CAUTION, LIMIT_LINE, PALETTE
 from roundscore.outputs.payloads import LabPayload, lab_payload
 from roundscore.outputs.workbook_base import (CHART_HEIGHT, CHART_ROWS, FIXED_TIME, OPTIONS, SCORE_DECIMALS, Chart,
                                               Formats, axis_limit, clip_to, columns_of, fit_widths, print_setup,
-                                              score_chart, score_table_columns, set_widths, value_axis, write_table,
-                                              write_value)
+                                              score_chart, score_table_columns, set_widths, stage_sheet, value_axis,
+                                              write_table, write_value)
 
 __all__ = ["write_lab_workbook", "lab_payload", "LabPayload", "LAB_FORMAT", "LAB_FOLD", "SUMMARY_POINTER"]
 
@@ -130,6 +133,7 @@ def write_lab_workbook(payload: LabPayload, path: Path) -> None:
                                             "d": 4}, "signal")
     widths = [max(w, 16 if j == 0 else 7) for j, w in enumerate(widths)]
     set_widths(ws, widths)
+    _guidance_sheet(wb, fm, payload)  # second: what a person reads first after the scores
     charts = _score_charts(wb, ws, fm, payload, table, end + 1)
     _print(ws, payload, top, widths, end + 1 + CHART_ROWS * len(charts), charts=charts, row_points=tall,
            title="Score sheet")
@@ -137,14 +141,34 @@ def write_lab_workbook(payload: LabPayload, path: Path) -> None:
         _history_sheet(wb, fm, payload, table)
     for name, frame in sheets.items():
         if len(frame):
-            xs = wb.add_worksheet(name.capitalize()[:31])
-            last = write_table(xs, fm, 0, frame, list(frame.columns))
-            xs.freeze_panes(1, 0)
-            xwidths = fit_widths(frame, list(frame.columns), decimals={c: 4 for c in frame.columns})
-            set_widths(xs, xwidths)
-            _print(xs, payload, 0, xwidths, last - 1, title=name.capitalize())
+            xs, xwidths, last = stage_sheet(wb, fm, name, frame, payload.decimals)
+            _print(xs, payload, 0, xwidths, last, title=name.capitalize())
     _machine_sheets(wb, fm, payload, table)
     wb.close()
+
+
+def _guidance_sheet(wb, fm: Formats, payload: LabPayload) -> None:
+    """The sheet "How to read your scores" (:func:`roundscore.outputs.guidance.how_to_read`, in the round's
+    words): a title, each part's title in bold, its text and bullets wrapped in one wide column; portrait."""
+    ws = wb.add_worksheet("How to read")
+    ws.write_string(0, 0, GUIDANCE_TITLE, fm.title)
+    width = 100  # characters: one column, about a portrait page wide
+
+    def para(row: int, text: str, fmt) -> None:  # a wrapped paragraph gets the height of its lines (programs
+        ws.set_row(row, 15.0 * max(1, math.ceil(len(text) * 1.1 / width)))  # do not grow rows on opening)
+        ws.write_string(row, 0, text, fmt)
+
+    r = 2
+    for part in how_to_read(payload.round.words):
+        ws.write_string(r, 0, part.title, fm.bold)
+        para(r + 1, part.text, fm.wrap)
+        r += 2
+        for bullet in part.bullets:
+            para(r, f"• {bullet}", fm.wrap)
+            r += 1
+        r += 1
+    para(r, CAUTION, fm.caution)
+    _print(ws, payload, None, [width], r, landscape=False, title=GUIDANCE_TITLE)
 
 
 def _print(ws, payload: LabPayload, head_row: int | None, widths: list, last_row: int, **kw) -> None:
@@ -265,7 +289,8 @@ def _history_sheet(wb, fm: Formats, payload: LabPayload, table: dict[str, list])
                       ["round_date", "round", "measurand", "unit", "result", "assigned", "sigma_pt",
                        "score", "score_value", "signal", "note"],
                       ["Date", "Round", "Measurand", "Unit", "Your result", "Assigned value", "σ_pt",
-                       "Score", "Your score", "Signal", "Note"], {"score_value": 2}, "signal", rd.words)
+                       "Score", "Your score", "Signal", "Note"], {"score_value": 2}, "signal", rd.words,
+                      row_decimals=payload.decimals)  # values to the measurand's decimals, σ_pt one more
     order, points = _history_points(payload, table)
     families = {f.symbol: f for f in SCORE_FAMILIES.values()}
     rank = {symbol: i for i, symbol in enumerate(families)}

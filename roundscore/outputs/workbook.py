@@ -33,11 +33,12 @@ from roundscore.model.evaluation import STATISTICS_COLUMNS, RoundEvaluation
 from roundscore.model.scores import SCORE_FIELD, score_label
 from roundscore.outputs.lab_workbook import (LAB_FOLD, LAB_FORMAT, SUMMARY_POINTER, lab_payload,
                                              write_lab_workbook)
+from roundscore.outputs.headings import headings
 from roundscore.outputs.look import CAUTION
 from roundscore.outputs.payloads import LabPayload, RoundFacts
 from roundscore.outputs.workbook_base import (CHART_HEIGHT, CHART_ROWS, FIXED_TIME, MAX_WIDTH, MIN_WIDTH, OPTIONS,
                                               SCORE_DECIMALS, Chart, Formats, fit_widths, print_setup, score_chart,
-                                              score_table_columns, set_widths, write_table)
+                                              score_table_columns, set_widths, stage_sheet, write_table)
 # The shared helpers under their former names here (tests read them from this module).
 from roundscore.outputs.workbook_base import (OPTIONS as _OPTIONS, Formats as _Formats,  # noqa: F401
                                               fit_widths as _fit, tint as _tint, write_table as _table)
@@ -122,9 +123,11 @@ def _write_summary(ev: RoundEvaluation, path: Path, options: dict[str, Any]) -> 
     print_setup(ws, rnd.id, head_row, widths=widths, last_row=r - 1, **paper)
     # Statistics
     ws = wb.add_worksheet("Statistics")
-    end = write_table(ws, fm, 0, ev.statistics, STATISTICS_COLUMNS, row_decimals=dec)
+    stat_heads = headings(STATISTICS_COLUMNS)
+    ws.set_row(0, 30)  # the wrapped heads
+    end = write_table(ws, fm, 0, ev.statistics, STATISTICS_COLUMNS, stat_heads, row_decimals=dec)
     ws.freeze_panes(1, 1)
-    widths = fit_widths(ev.statistics, STATISTICS_COLUMNS, decimals={c: 4 for c in STATISTICS_COLUMNS})
+    widths = fit_widths(ev.statistics, STATISTICS_COLUMNS, stat_heads, decimals={c: 4 for c in STATISTICS_COLUMNS})
     set_widths(ws, widths)
     print_setup(ws, rnd.id, 0, widths=widths, last_row=end - 1, **paper)
     # Scores
@@ -167,17 +170,13 @@ def _write_summary(ev: RoundEvaluation, path: Path, options: dict[str, Any]) -> 
     print_setup(cd, rnd.id, widths=widths, last_row=max(top - 2, 1), **paper)
     # Left out / audit
     ws = wb.add_worksheet("Audit")
-    end = write_table(ws, fm, 0, ev.audit, list(ev.audit.columns))
+    end = write_table(ws, fm, 0, ev.audit, list(ev.audit.columns), headings(ev.audit.columns))
     ws.freeze_panes(1, 0)
-    widths = fit_widths(ev.audit, list(ev.audit.columns))
+    widths = fit_widths(ev.audit, list(ev.audit.columns), headings(ev.audit.columns))
     set_widths(ws, widths)
     print_setup(ws, rnd.id, 0, widths=widths, last_row=end - 1, **paper)
     for name, frame in ev.extras.items():
         if isinstance(frame, pd.DataFrame) and len(frame.columns):
-            ws = wb.add_worksheet(name.capitalize()[:31])
-            end = write_table(ws, fm, 0, frame, list(frame.columns))
-            ws.freeze_panes(1, 0)
-            widths = fit_widths(frame, list(frame.columns), decimals={c: 4 for c in frame.columns})
-            set_widths(ws, widths)
-            print_setup(ws, rnd.id, 0, widths=widths, last_row=end - 1, **paper)
+            ws, widths, last = stage_sheet(wb, fm, name, frame, dec)
+            print_setup(ws, rnd.id, 0, widths=widths, last_row=last, **paper)
     wb.close()

@@ -23,12 +23,14 @@ import xlsxwriter
 
 from roundscore.model.scores import SCORES, ScoreFamily, family_of, score_label
 from roundscore.model.signals import SCORED_SIGNALS
+from roundscore.outputs.headings import headings
 from roundscore.outputs.look import LIMIT_LINE, SIGNAL_CHART_MARKER, SIGNAL_COLOUR, SIGNAL_WORD, signal_label
 from roundscore.support.sheetprint import Chart, print_layout
 
 __all__ = ["FIXED_TIME", "OPTIONS", "Formats", "tint", "write_value", "columns_of", "write_table", "VALUE_COLUMNS",
            "MIN_WIDTH", "MAX_WIDTH", "FIT_ROWS", "fit_widths", "set_widths", "print_setup", "Chart", "CHART_HEIGHT", "CHART_ROWS", "score_chart",
-           "CHART_POINT_COLOURS", "SCORE_DECIMALS", "score_table_columns", "AXIS_PERCENTILE", "AXIS_CAP",
+           "CHART_POINT_COLOURS", "SCORE_DECIMALS", "score_table_columns", "STAT_DECIMALS", "stage_decimals",
+           "stage_sheet", "AXIS_PERCENTILE", "AXIS_CAP",
            "ScoreAxis", "axis_limit", "clip_to", "score_axis", "value_axis"]
 
 FIXED_TIME = dt.datetime(2000, 1, 1)
@@ -160,7 +162,37 @@ def write_table(ws, fm: Formats, top: int, frame, columns: Iterable[str],
 
 #: Value columns shown with the measurand's decimals (+0) or one more (+1: uncertainties, σ_pt, robust SDs).
 VALUE_COLUMNS = {"result": 0, "assigned": 0, "d": 0, "robust_mean": 0, "median": 0, "u_assigned": 1,
-                 "sigma_pt": 1, "robust_sd": 1, "made": 1, "niqr": 1}
+                 "sigma_pt": 1, "robust_sd": 1, "made": 1, "niqr": 1,
+                 # the stage tables' values in the measurand's unit (items, precision, methods, Mandel)
+                 "mean": 0, "general_mean": 0, "difference": 0, "ci_low": 0, "ci_high": 0, "sd": 1, "s_x": 1,
+                 "s_w": 1, "s_s": 1, "s_r": 1, "s_L": 1, "s_R": 1, "r": 1, "R": 1, "s_r_robust": 1,
+                 "criterion": 1, "allowed": 1}
+#: Decimals of the stage tables' dimensionless numbers (common practice: statistics and critical values to
+#: 2 or 3 decimals, p-values to 4); other numbers show as the program's General format.
+STAT_DECIMALS: dict[str, int] = {"h": 2, "k": 2, "h_crit_5": 2, "h_crit_1": 2, "k_crit_5": 2, "k_crit_1": 2,
+                                 "statistic": 3, "critical_5": 3, "critical_1": 3, "f_statistic": 3,
+                                 "t_critical": 3, "p_value": 4, "p_adjusted": 4, "f_p_value": 4, "n_bar": 2}
+
+
+def stage_decimals(frame) -> dict[str, int | None]:
+    """The fixed decimals of a stage table's columns (:data:`STAT_DECIMALS`, those it has)."""
+    return {c: d for c, d in STAT_DECIMALS.items() if c in frame.columns}
+
+
+def stage_sheet(wb, fm: Formats, name: str, frame: pd.DataFrame,
+                row_decimals: Mapping[str, int | None]) -> tuple[Any, list[int], int]:
+    """A stage table (Mandel, screens, items ...) as a sheet of its own: display headings
+    (:mod:`roundscore.outputs.headings`), values to the measurand's decimals, statistics to
+    :data:`STAT_DECIMALS`. Returns (sheet, column widths, last row)."""
+    ws = wb.add_worksheet(name.capitalize()[:31])
+    cols, heads = list(frame.columns), headings(frame.columns)
+    fixed = stage_decimals(frame)
+    ws.set_row(0, 30)  # the wrapped heads (before the rows: constant_memory writes rows in order)
+    end = write_table(ws, fm, 0, frame, cols, heads, decimals=fixed, row_decimals=row_decimals)
+    ws.freeze_panes(1, 0)
+    widths = fit_widths(frame, cols, heads, decimals={**{c: 4 for c in cols}, **fixed})
+    set_widths(ws, widths)
+    return ws, widths, end - 1
 #: Widths (characters) a fitted column may take (common practice: readable without wrapping, notes capped).
 MIN_WIDTH, MAX_WIDTH = 6, 60
 #: Rows looked at to fit a column's width (enough to see the longest codes and notes; keeps big rounds fast).
