@@ -326,6 +326,8 @@ def evaluate(rnd: Round, table: ResultTable, participants: dict[str, Participant
     all_labs = sorted(set(table.frame["lab"]) | set(participants), key=lab_order_key)
     # How text cells were read (a declared decimal mark): one line per round or per form, from the reader.
     audit: list[tuple] = [("", lab, "import", "decimal mark", text) for lab, text in table.readings]
+    # what each returned form says of the lab's sample (intake/forms.py form_receipt), as the lab gave it
+    audit += [("", lab, "import", "sample receipt", f"{r.text()} ({r.source})") for lab, r in table.receipts.items()]
     names = list(rnd.measurands)
     # Lab means per measurand, for one vectorised Algorithm A call.
     pre = _lab_tables(table, names, all_labs)

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import math
 from decimal import Decimal
-from typing import Iterable
+from typing import Iterable, Mapping
 
 import numpy as np
 
@@ -19,7 +19,7 @@ from roundscore.intake.cells import HINT_DECLARE, HINT_NUMBER, CellError, parse_
 from roundscore.intake.xlsx import SheetRows
 from roundscore.model.labcodes import clash_problems, read_lab_code
 from roundscore.model.round import Round
-from roundscore.model.table import Record, ResultTable, table_frame
+from roundscore.model.table import Record, ResultTable, SampleReceipt, table_frame
 from roundscore.model.units import UnitError, factor
 from roundscore.ranges import MAX_MAGNITUDE, MIN_MAGNITUDE, magnitude_problem
 from roundscore.text import shown_list, too_long
@@ -140,6 +140,7 @@ def build_table(
     warnings: Iterable[str] = (),
     problems: Iterable[Problem] = (),
     readings: Iterable[tuple[str, str]] = (),
+    receipts: Mapping[str, SampleReceipt] | None = None,
 ) -> ResultTable:
     """Validate records against the round and build the :class:`ResultTable`.
 
@@ -156,7 +157,7 @@ def build_table(
     if problems:
         raise InputError(problems, summary="the results cannot be imported")
     return ResultTable(frame=table_frame(rows), files=tuple(files), warnings=tuple(warnings),
-                       readings=tuple(readings), lab_places=places)
+                       readings=tuple(readings), lab_places=places, receipts=dict(sorted((receipts or {}).items())))
 
 #: Ambiguous numbers of one column listed one by one; more are said in one problem naming all their places.
 MAX_LISTED_AMBIGUOUS = 5

@@ -13,7 +13,7 @@ from dataclasses import dataclass, field
 
 import pandas as pd
 
-__all__ = ["ResultTable", "Record", "COLUMNS", "table_frame"]
+__all__ = ["ResultTable", "Record", "SampleReceipt", "COLUMNS", "table_frame"]
 
 #: Columns of :attr:`ResultTable.frame`, in order.
 COLUMNS = (
@@ -53,6 +53,32 @@ class Record:
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
+class SampleReceipt:
+    """What a returned form says about the lab's sample: when it arrived, in what condition, when it was analysed.
+
+    Each is "" when the lab left it blank; the dates are ISO dates (YYYY-MM-DD). ``source`` names the form's
+    cells (``lab-K01.xlsx, Results!I2:I4``).
+    """
+
+    arrived: str = ""
+    condition: str = ""
+    analysed: str = ""
+    source: str = ""
+
+    #: (field, what a person reads) in the order shown.
+    LABELS = (("arrived", "Date the sample arrived"), ("condition", "Condition on arrival"),
+              ("analysed", "Date of analysis"))
+
+    def lines(self) -> list[tuple[str, str]]:
+        """(label, value) of each field filled in."""
+        return [(label, getattr(self, name)) for name, label in self.LABELS if getattr(self, name)]
+
+    def text(self) -> str:
+        """One line for the audit trail ("" when every field is blank)."""
+        return "; ".join(f"{label.lower()}: {value}" for label, value in self.lines())
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
 class ResultTable:
     """The participants' results, validated and in the measurands' units.
 
@@ -77,6 +103,9 @@ class ResultTable:
     lab_places : dict of str to dict
         Where each lab code was first read (:class:`~roundscore.errors.Problem`
         fields file, sheet, row, column), for messages that name it.
+    receipts : dict of str to SampleReceipt
+        The sample's arrival, condition and analysis date each returned form
+        gives (labs whose form has none of them filled in are not listed).
     """
 
     frame: pd.DataFrame
@@ -84,6 +113,7 @@ class ResultTable:
     warnings: tuple[str, ...] = field(default=())
     readings: tuple[tuple[str, str], ...] = field(default=())
     lab_places: dict[str, dict] = field(default_factory=dict)
+    receipts: dict[str, SampleReceipt] = field(default_factory=dict)
 
     @property
     def labs(self) -> list[str]:

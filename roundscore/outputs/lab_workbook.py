@@ -184,7 +184,7 @@ def _heading(ws, fm: Formats, payload: LabPayload) -> int:
     r = 1
     for label, value in (("Laboratory code", lab), ("Laboratory", payload.name), ("Contact", payload.contact),
                          ("Round", rd.id), ("Title", rd.title), ("Scheme", rd.scheme),
-                         ("Date", rd.date), ("Material", rd.material)):
+                         ("Date", rd.date), ("Material", rd.material), *payload.receipt):
         if value:
             ws.write_string(r, 0, label, fm.bold)
             ws.write_string(r, 1, str(value))

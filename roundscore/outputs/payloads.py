@@ -65,6 +65,9 @@ class LabPayload:
     notices : tuple of str
         What those checks mean for the lab's scores, in plain words
         (:attr:`~roundscore.model.evaluation.RoundEvaluation.lab_notices`): they head the sheet.
+    receipt : tuple of (str, str)
+        What the lab's returned form says of its sample (label, value: the date it arrived, its condition,
+        the date of analysis), the fields it filled in; empty without them.
     scores : pandas.DataFrame
         The lab's rows of the scores (:data:`~roundscore.model.evaluation.SCORE_COLUMNS`,
         ``rank``, ``n_scored``).
@@ -90,6 +93,7 @@ class LabPayload:
     extras: Mapping[str, pd.DataFrame] = field(default_factory=dict)
     history: pd.DataFrame | None = None
     notices: tuple[str, ...] = ()
+    receipt: tuple[tuple[str, str], ...] = ()
 
 
 def lab_payload(ev: RoundEvaluation, lab: str, history: pd.DataFrame | None = None) -> LabPayload:
@@ -102,4 +106,5 @@ def lab_payload(ev: RoundEvaluation, lab: str, history: pd.DataFrame | None = No
         decimals={n: m.decimals for n, m in ev.round.measurands.items()},
         extras={k: ev.lab_rows(k, lab) for k in ev.lab_tables if k != "scores"},
         history=history, notices=tuple(ev.lab_notices),
+        receipt=tuple(r.lines()) if (r := ev.table.receipts.get(lab)) is not None else (),
     )
