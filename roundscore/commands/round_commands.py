@@ -11,6 +11,7 @@ from roundscore.model.evaluation import RoundEvaluation
 from roundscore.model.scores import score_symbol
 from roundscore.model.signals import SIGNALS
 from roundscore.outputs.look import CAUTION, SIGNAL_SYMBOL, signal_legend_text
+from roundscore.outputs.writers import FORMATS
 from roundscore.support.progress import terminal_bar
 from roundscore.text import terminal_text
 
@@ -32,6 +33,9 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--strict", action="store_true",
                    help="exit 1 when an item or u(x_pt) check fails (the outputs are written either way)")
     p.add_argument("--jobs", type=int, default=None, help="worker processes (default: all cores)")
+    p.add_argument("--formats", type=formats_arg, default=None, metavar="LIST",
+                   help=f"the output formats to write, comma-separated, from {', '.join(FORMATS)} "
+                        "(default: all); circulation.csv lists what was written")
     p.add_argument("--quiet", action="store_true", help="print nothing but errors")
     p.set_defaults(func=run_score)
 
@@ -39,6 +43,8 @@ def register(sub: argparse._SubParsersAction) -> None:
                        description="Write the invented demo round into --out/round and score it into --out.")
     d.add_argument("--out", default="roundscore-demo", help="output folder (default: ./roundscore-demo)")
     d.add_argument("--jobs", type=int, default=None, help="worker processes (default: all cores)")
+    d.add_argument("--formats", type=formats_arg, default=None, metavar="LIST",
+                   help=f"the output formats to write, comma-separated, from {', '.join(FORMATS)} (default: all)")
     d.set_defaults(func=run_demo)
 
     f = sub.add_parser("forms", help="write one blank submission workbook per participant",
@@ -65,6 +71,20 @@ def _shown(x: float, decimals: int | None, fallback: str, more: int = 0) -> str:
     if decimals is None or not math.isfinite(x):
         return format(x, fallback)
     return f"{x:.{decimals + more}f}"
+
+
+def formats_arg(text: str) -> tuple[str, ...]:
+    """``--formats``: comma-separated output formats, each one a writer's (``outputs.writers.FORMATS``).
+
+    >>> formats_arg("xlsx, csv")
+    ('xlsx', 'csv')
+    """
+    wanted = tuple(dict.fromkeys(w.strip().lower() for w in text.split(",") if w.strip()))
+    unknown = [w for w in wanted if w not in FORMATS]
+    if unknown or not wanted:
+        found = ", ".join(repr(terminal_text(w)) for w in unknown) if unknown else "nothing"
+        raise argparse.ArgumentTypeError(f"found {found}; allowed: {', '.join(FORMATS)} (comma-separated)")
+    return wanted
 
 
 def summary_text(ev: RoundEvaluation) -> str:
@@ -103,8 +123,8 @@ def summary_text(ev: RoundEvaluation) -> str:
 def _report(ev, outputs, *, quiet=False, strict=False, stored=()) -> int:
     if not quiet:
         print(summary_text(ev))
-        print(f"\nWrote {len(outputs.files)} files to {outputs.folder}/ "
-              f"(scores.csv, statistics.csv, round-summary.xlsx, labs/*.xlsx ...)")
+        print(f"\nWrote {len(outputs.files)} files to {outputs.folder}/ ({_kinds(outputs)}); "
+              "circulation.csv lists what to send each lab")
         for outcome in stored:
             print(f"Archive: {outcome.status}: {terminal_text(outcome.message)}")
         print(f"\n{CAUTION}")
@@ -113,6 +133,14 @@ def _report(ev, outputs, *, quiet=False, strict=False, stored=()) -> int:
               file=sys.stderr)
         return 1
     return 0
+
+
+def _kinds(outputs) -> str:
+    """The kinds of files written, for the closing line ("12 csv, 33 xlsx, 32 html")."""
+    from collections import Counter
+
+    counts = Counter(p.suffix.lstrip(".") for p in outputs.files)
+    return ", ".join(f"{n} {kind}" for kind, n in counts.items())
 
 
 def run_score(args: argparse.Namespace) -> int:
@@ -125,7 +153,8 @@ def run_score(args: argparse.Namespace) -> int:
     bar = terminal_bar(enabled=False if args.quiet else None)
     try:
         ev, outputs = run_round(rp, out, archive=args.archive, jobs=args.jobs, progress=bar,
-                                replace_archive=args.replace_archive, on_archive=stored.append)
+                                replace_archive=args.replace_archive, on_archive=stored.append,
+                                formats=args.formats)
     finally:
         bar.close()
     return _report(ev, outputs, quiet=args.quiet, strict=args.strict, stored=stored)
@@ -142,7 +171,7 @@ def run_demo(args: argparse.Namespace) -> int:
         with atomic_folder(out, kind="demo") as tmp:
             make_demo_round(tmp / "round")
             ev = load_and_evaluate(tmp / "round", jobs=args.jobs, progress=bar)
-            written = write_outputs(ev, tmp, jobs=args.jobs, progress=bar)
+            written = write_outputs(ev, tmp, jobs=args.jobs, progress=bar, formats=args.formats)
     finally:
         bar.close()
     outputs = Outputs(folder=out, files=tuple(out / p.relative_to(tmp) for p in written))
