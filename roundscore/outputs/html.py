@@ -11,11 +11,11 @@ from __future__ import annotations
 
 import html
 
-from roundscore.outputs.document import (Block, Bullets, Cell, Document, Facts, Figure, Heading, Paragraph,
-                                         Section, Table)
+from roundscore.outputs.document import (Block, Bullets, Cell, Column, Document, Facts, Figure, Heading,
+                                         Paragraph, Section, Table)
 from roundscore.outputs.look import SIGNAL_COLOUR, SIGNAL_WORD
 
-__all__ = ["render_html", "PAPER_SIZES", "CSS"]
+__all__ = ["render_html", "column_groups", "PAPER_SIZES", "CSS", "MAX_COLUMNS"]
 
 #: CSS ``@page size`` of each ``[round] paper``, portrait.
 PAPER_SIZES = {"a4": "A4", "letter": "letter"}
@@ -60,9 +60,9 @@ figcaption { font-size: .85rem; color: var(--muted); max-width: 46rem; }
   h1, h2, h3 { break-after: avoid; }
   figure, tr, dl.kv, .caution, .alert, .confidential { break-inside: avoid; }
   thead { display: table-header-group; }
+  table { font-size: 7.5pt; }
   .wide { display: table; overflow: visible; width: 100%; table-layout: auto; }
-  th, td { overflow-wrap: anywhere; word-break: break-word; padding: .1rem .25rem; }
-  td.n, td[class^="s-"] { white-space: normal; }
+  th, td { overflow-wrap: break-word; hyphens: auto; padding: .1rem .2rem; }
   figure svg, figure.square svg, figcaption { max-width: 100%; }
   a { color: inherit; text-decoration: none; }
   * { -webkit-print-color-adjust: exact; print-color-adjust: exact; }
@@ -84,14 +84,47 @@ def _cell(c: Cell, numeric: bool, signal_words: dict[str, str]) -> str:
     return f'<td class="n">{body}</td>' if numeric else f"<td>{body}</td>"
 
 
+#: A table with more columns than this is drawn as column groups, each repeating the table's key columns,
+#: so that it fits the printed width of A4 or Letter portrait (measured by tests/test_browser.py: eleven
+#: columns of short numbers and headings fit 186 mm; common practice for wide statistical tables).
+MAX_COLUMNS = 11
+
+
+def column_groups(t: Table, most: int = MAX_COLUMNS) -> list[list[int]]:
+    """The column indices of each group: the key columns, then at most ``most`` − keys others.
+
+    >>> t = Table(columns=tuple(Column(title=str(i)) for i in range(12)), rows=(), key_columns=2)
+    >>> column_groups(t, 6)
+    [[0, 1, 2, 3, 4, 5], [0, 1, 6, 7, 8, 9], [0, 1, 10, 11]]
+    >>> column_groups(Table(columns=tuple(Column(title=str(i)) for i in range(12)), rows=()), 11)
+    [[0, 1, 2, 3, 4, 5, 6], [0, 7, 8, 9, 10, 11]]
+    """
+    n = len(t.columns)
+    if n <= most:
+        return [list(range(n))]
+    keys = list(range(min(max(t.key_columns, 0), most - 1)))
+    rest = list(range(len(keys), n))
+    groups = -(-len(rest) // (most - len(keys)))
+    step = -(-len(rest) // groups)  # balanced: no group left with a single column
+    return [keys + rest[i:i + step] for i in range(0, len(rest), step)]
+
+
 def _table(t: Table, words: dict[str, str]) -> str:
     numeric = [c.numeric for c in t.columns]
-    out = ['<table class="wide">']
-    if t.caption:
-        out.append(f"<caption>{_e(t.caption)}</caption>")
-    out.append("<thead><tr>" + "".join(f"<th>{_e(c.title)}</th>" for c in t.columns) + "</tr></thead><tbody>")
-    out += ["<tr>" + "".join(_cell(c, numeric[j], words) for j, c in enumerate(row)) + "</tr>" for row in t.rows]
-    out.append("</tbody></table>")
+    groups = column_groups(t)
+    out = []
+    for g, cols in enumerate(groups):
+        out.append('<table class="wide">')
+        caption = t.caption
+        if len(groups) > 1:
+            part = f"Columns {cols[0] + 1 if g == 0 else cols[t.key_columns] + 1}–{cols[-1] + 1} of {len(numeric)}"
+            caption = f"{caption} ({part})" if caption else part
+        if caption:
+            out.append(f"<caption>{_e(caption)}</caption>")
+        out.append("<thead><tr>" + "".join(f"<th>{_e(t.columns[j].title)}</th>" for j in cols)
+                   + "</tr></thead><tbody>")
+        out += ["<tr>" + "".join(_cell(row[j], numeric[j], words) for j in cols) + "</tr>" for row in t.rows]
+        out.append("</tbody></table>")
     return "".join(out)
 
 
