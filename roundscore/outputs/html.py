@@ -10,6 +10,8 @@ header row repeats) and gives figures the printable width, so nothing is cut off
 from __future__ import annotations
 
 import html
+import re
+from collections import OrderedDict
 
 from roundscore.outputs.document import (Block, Bullets, Cell, Column, Document, Facts, Figure, Heading,
                                          Paragraph, Section, Table)
@@ -70,8 +72,13 @@ figcaption { font-size: .85rem; color: var(--muted); max-width: 46rem; }
 """
 
 
+_SPECIAL = re.compile(r"[&<>\"']")
+
+
 def _e(v: object) -> str:
-    return html.escape("" if v is None else str(v), quote=True)
+    """Text escaped for HTML (most cells have nothing to escape: returned as they are)."""
+    s = "" if v is None else v if isinstance(v, str) else str(v)
+    return html.escape(s, quote=True) if _SPECIAL.search(s) else s
 
 
 def _cell(c: Cell, numeric: bool, signal_words: dict[str, str]) -> str:
@@ -123,7 +130,18 @@ def _table(t: Table, words: dict[str, str]) -> str:
             out.append(f"<caption>{_e(caption)}</caption>")
         out.append("<thead><tr>" + "".join(f"<th>{_e(t.columns[j].title)}</th>" for j in cols)
                    + "</tr></thead><tbody>")
-        out += ["<tr>" + "".join(_cell(row[j], numeric[j], words) for j in cols) + "</tr>" for row in t.rows]
+        for row in t.rows:  # the loop every lab page runs: kept flat (no call per plain cell)
+            out.append("<tr>")
+            for j in cols:
+                c = row[j]
+                if c.signal is None and not c.link:
+                    text = c.text
+                    if _SPECIAL.search(text):
+                        text = html.escape(text, quote=True)
+                    out.append(f'<td class="n">{text}</td>' if numeric[j] else f"<td>{text}</td>")
+                else:
+                    out.append(_cell(c, numeric[j], words))
+            out.append("</tr>")
         out.append("</tbody></table>")
     return "".join(out)
 
@@ -178,6 +196,28 @@ def _block(b: Block, w: dict[str, str]) -> str:
     raise TypeError(f"not a document block: {type(b).__name__}")
 
 
+#: Rendered tables and sections by identity, most recently used last: the blocks every lab page shares (the
+#: round statistics, "How to read your scores") are drawn once per process, not once per page. The block is
+#: kept beside its HTML, so its id cannot be reused while it is cached.
+_DRAWN: OrderedDict[int, tuple[Block, str, int]] = OrderedDict()
+_DRAWN_MAX = 64
+
+
+def _drawn(b: Block, w: dict[str, str]) -> str:
+    if not isinstance(b, (Table, Section)):
+        return _block(b, w)
+    key = id(b)
+    hit = _DRAWN.get(key)
+    if hit is not None and hit[0] is b and hit[2] == id(w):
+        _DRAWN.move_to_end(key)
+        return hit[1]
+    out = _block(b, w)
+    _DRAWN[key] = (b, out, id(w))
+    if len(_DRAWN) > _DRAWN_MAX:
+        _DRAWN.popitem(last=False)
+    return out
+
+
 def _blocks(blocks, w: dict[str, str]) -> str:
     """The blocks in order; consecutive confidential blocks share one box."""
     out: list[str] = []
@@ -189,7 +229,7 @@ def _blocks(blocks, w: dict[str, str]) -> str:
         if box:
             out.append('<div class="confidential">' + "".join(box) + "</div>")
             box = []
-        out.append(_block(b, w))
+        out.append(_drawn(b, w))
     if box:
         out.append('<div class="confidential">' + "".join(box) + "</div>")
     return "".join(out)
