@@ -10,12 +10,14 @@ header row repeats) and gives figures the printable width, so nothing is cut off
 from __future__ import annotations
 
 import html
+import re
+from collections import OrderedDict
 
-from roundscore.outputs.document import (Block, Bullets, Cell, Document, Facts, Figure, Heading, Paragraph,
-                                         Section, Table)
+from roundscore.outputs.document import (Block, Bullets, Cell, Column, Document, Facts, Figure, Heading,
+                                         Paragraph, Section, Table)
 from roundscore.outputs.look import SIGNAL_COLOUR, SIGNAL_WORD
 
-__all__ = ["render_html", "PAPER_SIZES", "CSS"]
+__all__ = ["render_html", "column_groups", "PAPER_SIZES", "CSS", "MAX_COLUMNS"]
 
 #: CSS ``@page size`` of each ``[round] paper``, portrait.
 PAPER_SIZES = {"a4": "A4", "letter": "letter"}
@@ -60,9 +62,9 @@ figcaption { font-size: .85rem; color: var(--muted); max-width: 46rem; }
   h1, h2, h3 { break-after: avoid; }
   figure, tr, dl.kv, .caution, .alert, .confidential { break-inside: avoid; }
   thead { display: table-header-group; }
+  table { font-size: 7.5pt; }
   .wide { display: table; overflow: visible; width: 100%; table-layout: auto; }
-  th, td { overflow-wrap: anywhere; word-break: break-word; padding: .1rem .25rem; }
-  td.n, td[class^="s-"] { white-space: normal; }
+  th, td { overflow-wrap: break-word; hyphens: auto; padding: .1rem .2rem; }
   figure svg, figure.square svg, figcaption { max-width: 100%; }
   a { color: inherit; text-decoration: none; }
   * { -webkit-print-color-adjust: exact; print-color-adjust: exact; }
@@ -70,8 +72,13 @@ figcaption { font-size: .85rem; color: var(--muted); max-width: 46rem; }
 """
 
 
+_SPECIAL = re.compile(r"[&<>\"']")
+
+
 def _e(v: object) -> str:
-    return html.escape("" if v is None else str(v), quote=True)
+    """Text escaped for HTML (most cells have nothing to escape: returned as they are)."""
+    s = "" if v is None else v if isinstance(v, str) else str(v)
+    return html.escape(s, quote=True) if _SPECIAL.search(s) else s
 
 
 def _cell(c: Cell, numeric: bool, signal_words: dict[str, str]) -> str:
@@ -84,14 +91,58 @@ def _cell(c: Cell, numeric: bool, signal_words: dict[str, str]) -> str:
     return f'<td class="n">{body}</td>' if numeric else f"<td>{body}</td>"
 
 
+#: A table with more columns than this is drawn as column groups, each repeating the table's key columns,
+#: so that it fits the printed width of A4 or Letter portrait (measured by tests/test_browser.py: eleven
+#: columns of short numbers and headings fit 186 mm; common practice for wide statistical tables).
+MAX_COLUMNS = 11
+
+
+def column_groups(t: Table, most: int = MAX_COLUMNS) -> list[list[int]]:
+    """The column indices of each group: the key columns, then at most ``most`` − keys others.
+
+    >>> t = Table(columns=tuple(Column(title=str(i)) for i in range(12)), rows=(), key_columns=2)
+    >>> column_groups(t, 6)
+    [[0, 1, 2, 3, 4, 5], [0, 1, 6, 7, 8, 9], [0, 1, 10, 11]]
+    >>> column_groups(Table(columns=tuple(Column(title=str(i)) for i in range(12)), rows=()), 11)
+    [[0, 1, 2, 3, 4, 5, 6], [0, 7, 8, 9, 10, 11]]
+    """
+    n = len(t.columns)
+    if n <= most:
+        return [list(range(n))]
+    keys = list(range(min(max(t.key_columns, 0), most - 1)))
+    rest = list(range(len(keys), n))
+    groups = -(-len(rest) // (most - len(keys)))
+    step = -(-len(rest) // groups)  # balanced: no group left with a single column
+    return [keys + rest[i:i + step] for i in range(0, len(rest), step)]
+
+
 def _table(t: Table, words: dict[str, str]) -> str:
     numeric = [c.numeric for c in t.columns]
-    out = ['<table class="wide">']
-    if t.caption:
-        out.append(f"<caption>{_e(t.caption)}</caption>")
-    out.append("<thead><tr>" + "".join(f"<th>{_e(c.title)}</th>" for c in t.columns) + "</tr></thead><tbody>")
-    out += ["<tr>" + "".join(_cell(c, numeric[j], words) for j, c in enumerate(row)) + "</tr>" for row in t.rows]
-    out.append("</tbody></table>")
+    groups = column_groups(t)
+    out = []
+    for g, cols in enumerate(groups):
+        out.append('<table class="wide">')
+        caption = t.caption
+        if len(groups) > 1:
+            part = f"Columns {cols[0] + 1 if g == 0 else cols[t.key_columns] + 1}–{cols[-1] + 1} of {len(numeric)}"
+            caption = f"{caption} ({part})" if caption else part
+        if caption:
+            out.append(f"<caption>{_e(caption)}</caption>")
+        out.append("<thead><tr>" + "".join(f"<th>{_e(t.columns[j].title)}</th>" for j in cols)
+                   + "</tr></thead><tbody>")
+        for row in t.rows:  # the loop every lab page runs: kept flat (no call per plain cell)
+            out.append("<tr>")
+            for j in cols:
+                c = row[j]
+                if c.signal is None and not c.link:
+                    text = c.text
+                    if _SPECIAL.search(text):
+                        text = html.escape(text, quote=True)
+                    out.append(f'<td class="n">{text}</td>' if numeric[j] else f"<td>{text}</td>")
+                else:
+                    out.append(_cell(c, numeric[j], words))
+            out.append("</tr>")
+        out.append("</tbody></table>")
     return "".join(out)
 
 
@@ -145,6 +196,28 @@ def _block(b: Block, w: dict[str, str]) -> str:
     raise TypeError(f"not a document block: {type(b).__name__}")
 
 
+#: Rendered tables and sections by identity, most recently used last: the blocks every lab page shares (the
+#: round statistics, "How to read your scores") are drawn once per process, not once per page. The block is
+#: kept beside its HTML, so its id cannot be reused while it is cached.
+_DRAWN: OrderedDict[int, tuple[Block, str, int]] = OrderedDict()
+_DRAWN_MAX = 64
+
+
+def _drawn(b: Block, w: dict[str, str]) -> str:
+    if not isinstance(b, (Table, Section)):
+        return _block(b, w)
+    key = id(b)
+    hit = _DRAWN.get(key)
+    if hit is not None and hit[0] is b and hit[2] == id(w):
+        _DRAWN.move_to_end(key)
+        return hit[1]
+    out = _block(b, w)
+    _DRAWN[key] = (b, out, id(w))
+    if len(_DRAWN) > _DRAWN_MAX:
+        _DRAWN.popitem(last=False)
+    return out
+
+
 def _blocks(blocks, w: dict[str, str]) -> str:
     """The blocks in order; consecutive confidential blocks share one box."""
     out: list[str] = []
@@ -156,7 +229,7 @@ def _blocks(blocks, w: dict[str, str]) -> str:
         if box:
             out.append('<div class="confidential">' + "".join(box) + "</div>")
             box = []
-        out.append(_block(b, w))
+        out.append(_drawn(b, w))
     if box:
         out.append('<div class="confidential">' + "".join(box) + "</div>")
     return "".join(out)
