@@ -16,6 +16,7 @@ from roundscore.intake.validate import build_table, records_from_long, summarise
 from roundscore.text import quote, too_long
 from roundscore.intake.forms import (INFO_SHEET, RESULTS_SHEET, form_decimal, form_receipt, lab_cell,
                                      records_from_form)
+from roundscore.intake.safety import hidden_by_design
 from roundscore.intake.xlsx import SheetRows, read_rows
 
 __all__ = ["read_results", "read_participants", "read_item_table", "check_labs"]
@@ -60,7 +61,8 @@ def _read_form(rnd: Round, path: Path):
     lab = str(recs[0].lab) if recs else None
     receipt = form_receipt(results, info)[0]
     receipts = {lab: receipt} if lab is not None and receipt is not None else {}
-    return recs, problems, results.warnings + info.warnings, form_reading(rnd, results, info, lab), receipts
+    warnings = results.warnings + hidden_by_design(info.warnings, str(path), [INFO_SHEET])
+    return recs, problems, warnings, form_reading(rnd, results, info, lab), receipts
 
 
 def read_results(rnd: Round, *, jobs: int | None = None, progress=None) -> ResultTable:
@@ -218,7 +220,8 @@ def _form_rows(rnd: Round, got) -> _FormRows:
     records, problems = records_from_form(rnd, results, info)
     rows, found = validate_records(rnd, records)
     readings = form_reading(rnd, results, info, str(records[0].lab) if records else None)
-    return _FormRows(rows=rows, problems=problems + found, warnings=list(results.warnings + info.warnings),
+    warnings = results.warnings + hidden_by_design(info.warnings, str(got.file), [INFO_SHEET])
+    return _FormRows(rows=rows, problems=problems + found, warnings=list(warnings),
                      readings=readings, lab_place={**lab_cell(info), "file": shown},
                      receipt=form_receipt(results, info)[0])
 
