@@ -56,7 +56,7 @@ def _scores_table(path) -> tuple[list[str], list[dict]]:
 def test_no_round_statistics_or_mandel_sheet_but_a_pointer_to_the_summary(books):
     ev, out = books
     names = openpyxl.load_workbook(out / "labs" / "K07.xlsx").sheetnames
-    assert names == ["Scores", "Chart data", "data", "round"]  # no archive here, so no History sheet
+    assert names == ["Scores", "How to read", "Chart data", "data", "round"]  # no archive here, so no History
     texts = [c for row in openpyxl.load_workbook(out / "labs" / "K07.xlsx")["Scores"].iter_rows(values_only=True)
              for c in row if isinstance(c, str)]
     assert SUMMARY_POINTER in texts and "round-summary.xlsx" in SUMMARY_POINTER
@@ -151,7 +151,7 @@ def test_tables_the_lab_cannot_fold_keep_a_sheet(books, tmp_path):
     wb = openpyxl.load_workbook(tmp_path / "K07.xlsx")
     assert "Replicates" in wb.sheetnames and "Mandel" in wb.sheetnames
     rows = list(wb["Replicates"].iter_rows(values_only=True))
-    assert rows == [("lab", "measurand", "replicate", "value"), ("K07", "iodine", 1, 3280), ("K07", "iodine", 2, 3288)]
+    assert rows == [("Lab", "Measurand", "replicate", "value"), ("K07", "iodine", 1, 3280), ("K07", "iodine", 2, 3288)]
     assert len(list(wb["Mandel"].iter_rows(values_only=True))) == 1 + len(mandel) + 1
     assert "Mandel h" not in _scores_table(tmp_path / "K07.xlsx")[0]
 

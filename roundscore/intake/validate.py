@@ -19,7 +19,7 @@ from roundscore.intake.cells import HINT_DECLARE, HINT_NUMBER, CellError, parse_
 from roundscore.intake.xlsx import SheetRows
 from roundscore.model.labcodes import clash_problems, read_lab_code
 from roundscore.model.round import Round
-from roundscore.model.table import Record, ResultTable, SampleReceipt, table_frame
+from roundscore.model.table import COLUMNS, Record, ResultTable, SampleReceipt, table_frame
 from roundscore.model.units import UnitError, factor
 from roundscore.ranges import MAX_MAGNITUDE, MIN_MAGNITUDE, magnitude_problem
 from roundscore.text import shown_list, too_long
@@ -217,9 +217,10 @@ def _places(group: list[Problem], most: int = 12) -> str:
 def lab_places(rows: Iterable[tuple]) -> dict[str, dict]:
     """Where each lab code of validated rows (:data:`~roundscore.model.table.COLUMNS` tuples) first appears: file, sheet, row, column."""
     out: dict[str, dict] = {}
+    i_file, i_sheet, i_row = (COLUMNS.index(c) for c in ("file", "sheet", "row"))
     for r in rows:
         if r[0] not in out:
-            out[r[0]] = {"file": r[-3], "sheet": r[-2], "row": r[-1], "column": "lab"}
+            out[r[0]] = {"file": r[i_file], "sheet": r[i_sheet], "row": r[i_row], "column": "lab"}
     return out
 
 
