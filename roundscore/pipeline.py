@@ -126,9 +126,10 @@ def write_outputs(ev: RoundEvaluation, folder: Path, *, history=None,
 
 def run_round(round_path: str | Path, out: str | Path, *, archive: str | Path | None = None,
               jobs: int | None = None, progress=None, replace_archive: bool = False,
-              on_archive: Callable[[object], None] | None = None,
+              on_archive: Callable[[object], None] | None = None, formats: Iterable[str] | None = None,
               ) -> tuple[RoundEvaluation, Outputs]:
-    """Score a round folder and write all outputs into ``out`` atomically.
+    """Score a round folder and write all outputs into ``out`` atomically (``formats``: only the writers of
+    these output formats, :func:`roundscore.outputs.writers.writers_for`; None: all).
 
     With ``archive`` (or ``[round] archive`` in the round file; the argument
     wins) each lab sheet shows the lab's earlier rounds of this scheme (the
@@ -139,6 +140,7 @@ def run_round(round_path: str | Path, out: str | Path, *, archive: str | Path | 
     ``replace_archive``.  ``on_archive`` receives the
     :class:`~roundscore.history.store.StoreOutcome`.
     """
+    writers_for(formats)  # an unknown format is refused before any work is done
     rnd = load_round(round_path)
     store = archive if archive is not None else rnd.archive
     try:
@@ -158,7 +160,7 @@ def run_round(round_path: str | Path, out: str | Path, *, archive: str | Path | 
             store, scheme=ev.round.scheme, labs=ev.labs, round_id=ev.round.id,
             round_date=ev.round.date, last=ev.round.history_rounds).get
     with atomic_folder(Path(out), kind="round outputs", protect=protect, input_folders=input_folders) as tmp:
-        written = write_outputs(ev, tmp, history=history, progress=progress, jobs=jobs)
+        written = write_outputs(ev, tmp, history=history, progress=progress, jobs=jobs, formats=formats)
     final = Path(out)
     if store is not None:
         try:

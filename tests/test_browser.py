@@ -236,3 +236,84 @@ def test_the_checks_can_fail(browser, tmp_path):
     errors = browser.errors()
     assert any("planted error" in e for e in errors) and any(e.startswith("exception") for e in errors)
     assert json.loads(browser.evaluate(FIGURE_SIZES)) == [["f", 0, 0]]
+
+
+# ------------------------------------------------------------------------------------------ printing
+
+#: Printable width in CSS pixels (96 per inch) of each paper with the stylesheet's 12 mm side margins:
+#: A4 is 210 mm wide, US Letter 8.5 in (215.9 mm).
+PRINTABLE_PX = {"a4": (210 - 24) / 25.4 * 96, "letter": (215.9 - 24) / 25.4 * 96}
+#: Paper size in inches for Page.printToPDF, and its PDF MediaBox in points.
+PAPER_INCHES = {"a4": (210 / 25.4, 297 / 25.4), "letter": (8.5, 11.0)}
+#: Page bounds for the demo (6 measurands, 31 labs; counted 2026-12-02 with headless Chromium: the report
+#: 30 pages on A4 and 32 on Letter, a lab page 9 on both): a bound, not an exact count, so that fonts may
+#: differ a little; a page that stops splitting wide tables or starts cutting figures leaves it.
+PAGE_BOUNDS = {"report": (20, 45), "lab": (5, 14)}
+
+#: Elements whose right edge passes the body's (the printable width): tag, class, id, width.
+OVERFLOW = """JSON.stringify((() => {
+  const limit = document.body.getBoundingClientRect().right + 1;
+  return Array.from(document.body.querySelectorAll('*')).filter(e => {
+    const r = e.getBoundingClientRect();
+    return r.width > 0 && r.right > limit && !e.closest('svg *');
+  }).slice(0, 20).map(e => [e.tagName, e.className && e.className.baseVal !== undefined ? e.className.baseVal
+                           : e.className, e.id, Math.round(e.getBoundingClientRect().width)]);
+})())"""
+
+
+def _pages(pdf: bytes) -> int:
+    import re
+
+    return len(re.findall(rb"/Type\s*/Page[^s]", pdf))
+
+
+def _print(browser, paper: str) -> bytes:
+    w, h = PAPER_INCHES[paper]
+    return base64.b64decode(browser.call("Page.printToPDF", session=True, printBackground=True,
+                                         preferCSSPageSize=True, paperWidth=w, paperHeight=h)["data"])
+
+
+@pytest.mark.parametrize("paper", ["a4", "letter"])
+@pytest.mark.parametrize("page", ["report", "lab"])
+def test_pages_print_with_nothing_cut_off(browser, demo_report, tmp_path, page, paper):
+    """Print emulation at the paper's printable width: no element is wider; the page count stays bounded."""
+    ev, out = demo_report
+    path = out / REPORT_NAME if page == "report" else out / "labs" / lab_file_name(ev.labs[0])
+    text = path.read_text(encoding="utf-8")
+    assert "size: A4;" in text  # the demo round prints on A4 ([round] paper)
+    copy = tmp_path / f"{page}-{paper}.html"  # the same page on the other paper: only @page size changes
+    copy.write_text(text.replace("size: A4;", "size: letter;") if paper == "letter" else text, encoding="utf-8")
+    width = int(PRINTABLE_PX[paper])
+    browser.call("Emulation.setDeviceMetricsOverride", session=True, width=width, height=1000,
+                 deviceScaleFactor=1, mobile=False)
+    browser.call("Emulation.setEmulatedMedia", session=True, media="print")
+    try:
+        browser.open(copy.as_uri())
+        assert json.loads(browser.evaluate(OVERFLOW)) == []
+        pdf = _print(browser, paper)
+    finally:
+        browser.call("Emulation.setEmulatedMedia", session=True, media="")
+        browser.call("Emulation.setDeviceMetricsOverride", session=True, width=1280, height=900,
+                     deviceScaleFactor=1, mobile=False)
+    (tmp_path / f"{page}-{paper}.pdf").write_bytes(pdf)
+    lo, hi = PAGE_BOUNDS[page]
+    assert lo <= _pages(pdf) <= hi
+    import re
+
+    # the MediaBox width in points: the @page size was used (A4 595.3 pt, Letter 612 pt)
+    box = [float(v) for v in re.search(rb"/MediaBox\s*\[([^\]]*)\]", pdf).group(1).split()]
+    assert box[2] == pytest.approx(PAPER_INCHES[paper][0] * 72, abs=1.0)
+    print(f"{page} on {paper}: {_pages(pdf)} pages")
+
+
+def test_the_overflow_check_can_fail(browser, tmp_path):
+    """A table wider than the printable width is found (the check is not blind)."""
+    bad = tmp_path / "wide.html"
+    bad.write_text("<!DOCTYPE html><html><body><table style='width:2000px'><tr><td>x</td></tr></table>"
+                   "</body></html>")
+    browser.call("Emulation.setEmulatedMedia", session=True, media="print")
+    try:
+        browser.open(bad.as_uri())
+        assert json.loads(browser.evaluate(OVERFLOW))
+    finally:
+        browser.call("Emulation.setEmulatedMedia", session=True, media="")

@@ -134,3 +134,100 @@ def test_existing_forms_are_kept_unless_replace_and_then_set_aside(make_round, c
     assert main(["forms", str(folder), "--labs", "A1", "--replace"]) == 0
     assert "F1-A1.old-2.xlsx" in _hashes(blank) and _hashes(blank)["F1-A1.old-1.xlsx"] == filled["F1-A1.xlsx"]
     assert not [p for p in blank.iterdir() if p.name.startswith(".")]  # no temporary file left
+
+
+def test_blank_form_prints_one_page_wide_on_the_rounds_paper(tmp_path):
+    # pageSetup / definedName as in ECMA-376 Part 1 (§18.3.1.63: paperSize 1 = Letter); form-info is hidden
+    import re
+    import zipfile
+
+    from roundscore.intake.forms import write_form
+    from roundscore.intake.roundfile import load_round
+
+    folder = tmp_path / "r"
+    folder.mkdir()
+    (folder / "round.toml").write_text('[round]\nid = "R-1"\npaper = "letter"\nreturn_by = "2026-11-02"\n'
+                                       '[measurand.lead]\nunit = "mg/kg"\nsigma_pt = 0.1\n', encoding="utf-8")
+    rnd = load_round(folder)
+    path = tmp_path / "form.xlsx"
+    write_form(rnd, "L01", path)
+    with zipfile.ZipFile(path) as z:
+        book = z.read("xl/workbook.xml").decode()
+        sheet = z.read("xl/worksheets/sheet1.xml").decode()
+    assert re.search(r'<sheet name="form-info" sheetId="2" state="hidden"', book)
+    assert '<definedName name="_xlnm.Print_Titles" localSheetId="0">Results!$9:$9</definedName>' in book
+    assert re.search(r'<definedName name="_xlnm.Print_Area" localSheetId="0">Results!\$A\$1:\$[A-Z]+\$\d+<', book)
+    assert 'paperSize="1"' in sheet and 'fitToHeight="0"' in sheet and '<pageSetUpPr fitToPage="1"/>' in sheet
+    assert "Laboratory L01" in re.search(r"<oddHeader>(.*?)</oddHeader>", sheet).group(1)
+
+
+def _receipt_cells(path) -> dict[str, str]:
+    wb = openpyxl.load_workbook(path)
+    kv = {r[0]: r[1] for r in wb["form-info"].iter_rows(min_row=2, values_only=True)}
+    return {k[:-5]: v for k, v in kv.items() if k in ("arrived_cell", "condition_cell", "analysed_cell")}
+
+
+def _returned_round(make_round, fields: dict[str, object] | None, *, strip: bool = False):
+    """Round F1 with lab A1's form returned: results filled in, the sample fields set (or the form-info keys
+    removed, as in a form written before the fields existed)."""
+    import datetime as dt
+
+    folder = make_round(TOML.replace("replicates = 2\n", 'replicates = 2\nreturn_by = "2026-11-02"\n'),
+                        participants__csv="lab,name,contact\nA1,Alpha Lab,a@x.example\n")
+    (folder / "returned").mkdir()
+    path = folder / "returned" / "F1-A1.xlsx"
+    write_form(load_round(folder), "A1", path)
+    _fill(path, [[10.1, 10.3], [20.0, 21.0]])
+    wb = openpyxl.load_workbook(path)
+    ws, info = wb[RESULTS_SHEET], wb["form-info"]
+    cells = {r[0].value: r[1] for r in info.iter_rows(min_row=2) if r[0].value}
+    for key, value in (fields or {}).items():
+        ws[cells[f"{key}_cell"].value].value = value
+    if strip:
+        for key in ("arrived_cell", "condition_cell", "analysed_cell"):
+            cells[key].value = None
+            info.cell(row=cells[key].row, column=1).value = None
+    wb.save(path)
+    return folder, dt
+
+
+def test_form_prints_return_by_and_reads_the_sample_fields(make_round):
+    import datetime as dt
+
+    from roundscore.pipeline import load_and_evaluate
+
+    folder, _ = _returned_round(make_round, {"arrived": dt.datetime(2026, 10, 1), "condition": "intact, cool",
+                                             "analysed": "2026-10-05"})
+    rnd = load_round(folder)
+    wb = openpyxl.load_workbook(folder / "returned" / "F1-A1.xlsx")
+    shown = {r[0]: r[1] for r in wb[RESULTS_SHEET].iter_rows(min_row=2, max_row=7, max_col=2, values_only=True)}
+    assert shown["Return by"] == rnd.return_by == "2026-11-02"
+    assert wb[RESULTS_SHEET]["C10"].value == 10.1 and wb[RESULTS_SHEET]["D11"].value == 21.0  # addresses kept
+    table = read_results(rnd, jobs=1)
+    receipt = table.receipts["A1"]
+    assert (receipt.arrived, receipt.condition, receipt.analysed) == ("2026-10-01", "intact, cool", "2026-10-05")
+    assert "F1-A1.xlsx" in receipt.source and "Results!" in receipt.source
+    ev = load_and_evaluate(folder)
+    row = ev.audit[(ev.audit["lab"] == "A1") & (ev.audit["action"] == "sample receipt")]
+    assert len(row) == 1 and "date the sample arrived: 2026-10-01" in row["reason"].iloc[0]
+    assert "condition on arrival: intact, cool" in row["reason"].iloc[0]
+
+
+@pytest.mark.parametrize("value", ["1 Oct 2026", "14/10/2026", "2026-02-30"])  # a typed number there is a date
+def test_a_bad_sample_date_is_refused_naming_the_cell(make_round, value):
+    folder, _ = _returned_round(make_round, {"analysed": value})
+    with pytest.raises(InputError) as err:
+        read_results(load_round(folder), jobs=1)
+    text = str(err.value)
+    cell = _receipt_cells(folder / "returned" / "F1-A1.xlsx")["analysed"]
+    assert "date of analysis is not a date" in text and cell in text
+    assert "F1-A1.xlsx" in text and "YYYY-MM-DD" in text
+
+
+def test_blank_and_old_forms_still_read(make_round):
+    folder, _ = _returned_round(make_round, None)
+    table = read_results(load_round(folder), jobs=1)
+    assert table.receipts == {} and set(table.frame["lab"]) == {"A1"}
+    old, _ = _returned_round(make_round, {"arrived": "2026-10-01"}, strip=True)  # no form-info keys: ignored
+    table = read_results(load_round(old), jobs=1)
+    assert table.receipts == {} and len(table.frame) == 4

@@ -311,7 +311,7 @@ def test_show_table_and_outputs(tmp_path, capsys):
 
     sheet = openpyxl.load_workbook(out_dir / "history.xlsx")["history"]
     header = [c.value for c in sheet[1]]
-    note = sheet.cell(row=2, column=header.index("note") + 1)
+    note = sheet.cell(row=2, column=header.index("Note") + 1)  # display headings (outputs/headings.py)
     assert note.value == "=2+2" and note.data_type == "s"  # text, never a formula
     svg = (out_dir / "history.svg").read_text().lower()
     for colour in ("#009e73", "#e69f00", "#d55e00"):  # Okabe-Ito, one per signal shown

@@ -59,7 +59,7 @@ def test_every_lab_and_signal_in_the_score_matrix(demo):
     page = R.report_html(ev, parts)
     matrix = page[page.index('<section id="scores">'):page.index('<section id="audit">')]
     for lab in ev.labs:
-        assert f"<th>{lab}</th>" in matrix
+        assert f"<td>{lab}</td>" in matrix
     # symbol in the cell, the word in its title (ISO 13528 words; roundscore.outputs.look)
     assert 'title="action signal">■' in matrix and 'title="warning signal">▲' in matrix
 
@@ -305,7 +305,16 @@ def test_long_mandel_table_lists_flagged_rows_only():
     frame = pd.DataFrame({"lab": [f"L{i:04d}" for i in range(rows)], "measurand": "m00",
                           "h": 0.1, "k": 0.9, "flag": ""})  # invented
     frame.loc[[5, 700], "flag"] = "h beyond 1 % indicator"
-    html_ = R._mandel_table(frame)
+    from types import SimpleNamespace
+
+    from roundscore.outputs.document import Document
+
+    ev = SimpleNamespace(round=SimpleNamespace(words="signals", measurands={}))  # what the table reads
+
+    def drawn(f: pd.DataFrame) -> str:
+        return R.render_html(Document(title="t", blocks=tuple(R._mandel_table(ev, f))))
+
+    html_ = drawn(frame)
     assert f"2 of {rows} rows" in html_ and "mandel.csv" in html_
     assert ">L0005<" in html_ and ">L0700<" in html_ and ">L0006<" not in html_
-    assert ">L0006<" in R._mandel_table(frame.iloc[:R.MANDEL_TABLE_MAX_ROWS])  # short: every row
+    assert ">L0006<" in drawn(frame.iloc[:R.MANDEL_TABLE_MAX_ROWS])  # short: every row

@@ -106,3 +106,51 @@ def test_summary_is_reproducible(books, tmp_path):
     again = tmp_path / "again.xlsx"
     write_summary(ev, again)
     assert again.read_bytes() == summary.read_bytes()
+
+
+def _axis(chart: str) -> tuple[float, float]:
+    """The (min, max) of a chart's value axis (the first c:valAx with both set)."""
+    m = re.search(r'<c:valAx>.*?<c:max val="([^"]+)"/><c:min val="([^"]+)"/>', chart, re.S)
+    assert m, "no fixed value axis"
+    return float(m.group(2)), float(m.group(1))
+
+
+def test_a_decimal_slip_does_not_flatten_the_charts(books):
+    # The demo's K19 cadmium z ≈ 6504 (a decimal slip, invented): the axes stay at the z-like ±4 and the bar
+    # at the edge carries the true value as its label (workbook_base.score_axis).
+    ev, summary, _ = books
+    z = ev.scores.set_index(["lab", "measurand"])["z"]
+    assert z[("K19", "cadmium")] > 6000
+    charts = _charts(summary)
+    cadmium = next(c for c in charts if "cadmium: z-score" in c)
+    assert _axis(cadmium) == (-4.0, 4.0)
+    assert f"<a:t>{z[('K19', 'cadmium')]:.2f}</a:t>" in cadmium
+    for c in charts:  # every chart: z-like ±4..8, En ±2..4; none scaled to the slip
+        lo, hi = _axis(c)
+        assert lo == -hi and (2 <= hi <= 8)
+    lab = _charts(summary.parent / "labs" / "K19.xlsx")
+    zlike = next(c for c in lab if "z, z′, ζ" in c)
+    assert _axis(zlike) == (-4.0, 4.0) and f"<a:t>{z[('K19', 'cadmium')]:.2f}</a:t>" in zlike
+    wb = openpyxl.load_workbook(summary.parent / "labs" / "K19.xlsx")
+    rows = list(wb["Chart data"].iter_rows(values_only=True))
+    cad = next(r for r in rows if r[1] == "cadmium")
+    assert cad[2] == pytest.approx(z[("K19", "cadmium")]) and cad[3] == 4.0  # the true score, and where drawn
+
+
+@pytest.mark.parametrize("values, family, want", [
+    ([0.1, -0.5, 1.2], "z-like", 4.0),                     # the base: action limit + 1
+    ([0.3] * 9 + [5.2] * 3, "z-like", 6.0),                # a quarter beyond 4: widened to the bulk
+    ([50.0] * 20, "z-like", 8.0),                          # capped at twice the base
+    ([0.2, 0.4, 0.9], "en", 2.0),
+    ([2.6] * 10, "en", 3.0),
+    ([], "en", 2.0),
+])
+def test_axis_limit_rule(values, family, want):
+    from roundscore.model.scores import SCORE_FAMILIES
+    from roundscore.outputs.workbook_base import axis_limit, clip_to
+
+    got = axis_limit(values, SCORE_FAMILIES[family])
+    assert got == want
+    drawn = clip_to(values + [1e4, -1e4, float("nan")], got)
+    assert drawn.drawn[-3:] == [got, -got, None] and drawn.off_scale[-3:] == [True, True, False]
+    assert all(abs(v) <= got for v in drawn.drawn if v is not None)

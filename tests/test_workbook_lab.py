@@ -56,7 +56,7 @@ def _scores_table(path) -> tuple[list[str], list[dict]]:
 def test_no_round_statistics_or_mandel_sheet_but_a_pointer_to_the_summary(books):
     _ev, out = books
     names = openpyxl.load_workbook(out / "labs" / "K07.xlsx").sheetnames
-    assert names == ["Scores", "Chart data", "data", "round"]  # no archive here, so no History sheet
+    assert names == ["Scores", "How to read", "Chart data", "data", "round"]  # no archive here, so no History
     texts = [c for row in openpyxl.load_workbook(out / "labs" / "K07.xlsx")["Scores"].iter_rows(values_only=True)
              for c in row if isinstance(c, str)]
     assert SUMMARY_POINTER in texts and "round-summary.xlsx" in SUMMARY_POINTER
@@ -151,7 +151,7 @@ def test_tables_the_lab_cannot_fold_keep_a_sheet(books, tmp_path):
     wb = openpyxl.load_workbook(tmp_path / "K07.xlsx")
     assert "Replicates" in wb.sheetnames and "Mandel" in wb.sheetnames
     rows = list(wb["Replicates"].iter_rows(values_only=True))
-    assert rows == [("lab", "measurand", "replicate", "value"), ("K07", "iodine", 1, 3280), ("K07", "iodine", 2, 3288)]
+    assert rows == [("Lab", "Measurand", "replicate", "value"), ("K07", "iodine", 1, 3280), ("K07", "iodine", 2, 3288)]
     assert len(list(wb["Mandel"].iter_rows(values_only=True))) == 1 + len(mandel) + 1
     assert "Mandel h" not in _scores_table(tmp_path / "K07.xlsx")[0]
 
@@ -285,3 +285,50 @@ def test_fit_with_fixed_decimals_equals_measuring_every_value(decimals):
         assert wbm._fit(frame, ["c"], ["h"], {"c": decimals}) == [_fit_by_measuring_every_value(values, decimals)]
         assert wbm._fit({"c": values}, ["c"], ["h"], {"c": decimals}) == [
             _fit_by_measuring_every_value(values, decimals)]
+
+
+def test_machine_sheets_are_hidden_and_last(books):
+    # openpyxl reads sheet_state from the workbook part (ECMA-376 §18.2.19 sheet@state)
+    _, out = books
+    wb = openpyxl.load_workbook(out / "labs" / "K19.xlsx")
+    states = [(ws.title, ws.sheet_state) for ws in wb.worksheets]
+    machine = [i for i, (name, _) in enumerate(states) if name in ("data", "round")]
+    assert [states[i][1] for i in machine] == ["hidden", "hidden"]
+    assert machine == [len(states) - 2, len(states) - 1]  # nothing a person reads after them
+    assert all(state == "visible" for name, state in states if name not in ("data", "round"))
+
+
+def test_headings_decimals_and_how_to_read(books, tmp_path):
+    # display headings (outputs/headings.py), number formats to the measurand's decimals with full precision
+    # kept in the cells, the guidance sheet (outputs/guidance.py); the demo's cadmium has decimals = 3
+    from roundscore.outputs.guidance import GUIDANCE_TITLE, how_to_read
+    from roundscore.outputs.lab_workbook import write_lab_workbook
+    from roundscore.outputs.payloads import lab_payload
+
+    ev, out = books
+    summary = openpyxl.load_workbook(out / "round-summary.xlsx")
+    stats_head = [c.value for c in summary["Statistics"][1]]
+    assert "Robust SD s*" in stats_head and "MADe" in stats_head and "robust_sd" not in stats_head
+    mandel = [c.value for c in summary["Mandel"][1]]
+    assert "h: critical value at 5 %" in mandel and "h_crit_5" not in mandel
+    col = mandel.index("h") + 1
+    assert {summary["Mandel"].cell(r, col).number_format for r in range(2, 8)} == {"0.00"}
+    history = pd.DataFrame([{"scheme": "SKW", "round": "SKW-2026-13", "round_date": "2026-06-01", "title": "",
+                             "lab": "K19", "measurand": "cadmium", "unit": "mg/kg", "result": 0.8412345678,
+                             "assigned": 0.83010242632412457, "sigma_pt": 0.03010242632412457, "score": "z",
+                             "score_value": 0.3698, "signal": "acceptable", "note": ""}])
+    path = tmp_path / "K19.xlsx"
+    write_lab_workbook(lab_payload(ev, "K19", history), path)
+    wb = openpyxl.load_workbook(path)
+    assert wb.sheetnames[:2] == ["Scores", "How to read"]
+    hs = wb["History"]
+    head = [c.value for c in hs[4]]
+    row = 5
+    sigma = hs.cell(row, head.index("σ_pt") + 1)
+    assert sigma.value == pytest.approx(0.03010242632412457, rel=1e-15)  # full precision in the cell
+    assert sigma.number_format == "0.0000"  # shown to cadmium's 3 decimals + 1
+    assert hs.cell(row, head.index("Your result") + 1).number_format == "0.000"
+    text = [c.value for c in wb["How to read"]["A"] if c.value]
+    assert text[0] == GUIDANCE_TITLE
+    parts = how_to_read(ev.round.words)
+    assert all(p.title in text for p in parts) and all(f"• {b}" in text for p in parts for b in p.bullets)

@@ -31,7 +31,9 @@ import pandas as pd
 from roundscore.history import store as archive
 from roundscore.history import rules as history
 from roundscore.stats import trends
+from roundscore.choices import options
 from roundscore.errors import ArchiveError, InputError, RoundscoreError
+from roundscore.model.round import Paper
 from roundscore.outputs.history_workbook import HISTORY_TABLE_COLUMNS, write_history_outputs as _write_outputs
 from roundscore.outputs.look import (SIGNAL_CHART_MARKER, SIGNAL_COLOUR, SIGNAL_MARKER, SIGNAL_SYMBOL,
                                      signal_label, signal_legend_text)
@@ -93,6 +95,8 @@ def register(subparsers: argparse._SubParsersAction) -> argparse.ArgumentParser:
     show.add_argument("--scheme", help="only this scheme")
     show.add_argument("--out", metavar="DIR",
                       help="also write history.xlsx, history.png and history.svg into DIR")
+    show.add_argument("--paper", choices=options(Paper), default="a4",
+                      help="the paper history.xlsx prints on (default: a4)")
     show.add_argument("--archive", metavar="FILE", help=archive_help)
     show.set_defaults(func=run_show)
 
@@ -201,7 +205,7 @@ def run_show(args: argparse.Namespace) -> int:
     print(f"signals: {signal_legend_text(sep=', ')}")
     print(history.DISCLAIMER)
     if args.out:
-        written = write_history_outputs(frame, Path(args.out), lab=args.lab,
+        written = write_history_outputs(frame, Path(args.out), lab=args.lab, paper=args.paper,
                                         protect=((archive.archive_path(args.archive), "the archive"),))
         for path in written:
             print(f"wrote {path}")
@@ -209,10 +213,10 @@ def run_show(args: argparse.Namespace) -> int:
 
 
 def write_history_outputs(frame: pd.DataFrame, out: Path, *, lab: str,
-                          protect: tuple[tuple[Path, str], ...] = ()) -> list[Path]:
+                          protect: tuple[tuple[Path, str], ...] = (), paper: str = "a4") -> list[Path]:
     """Write ``history.xlsx``, ``history.png`` and ``history.svg`` as the output folder ``out``
     (:func:`roundscore.outputs.history_workbook.write_history_outputs`, with the history's disclaimer)."""
-    return _write_outputs(frame, out, lab=lab, caution=history.DISCLAIMER, protect=protect)
+    return _write_outputs(frame, out, lab=lab, caution=history.DISCLAIMER, protect=protect, paper=paper)
 
 
 # --------------------------------------------------------------------------- check

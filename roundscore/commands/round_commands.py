@@ -3,12 +3,15 @@
 from __future__ import annotations
 
 import argparse
+import math
 import sys
 from pathlib import Path
 
 from roundscore.model.evaluation import RoundEvaluation
+from roundscore.model.scores import score_symbol
 from roundscore.model.signals import SIGNALS
 from roundscore.outputs.look import CAUTION, SIGNAL_SYMBOL, signal_legend_text
+from roundscore.outputs.writers import FORMATS
 from roundscore.support.progress import terminal_bar
 from roundscore.text import terminal_text
 
@@ -30,6 +33,9 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--strict", action="store_true",
                    help="exit 1 when an item or u(x_pt) check fails (the outputs are written either way)")
     p.add_argument("--jobs", type=int, default=None, help="worker processes (default: all cores)")
+    p.add_argument("--formats", type=formats_arg, default=None, metavar="LIST",
+                   help=f"the output formats to write, comma-separated, from {', '.join(FORMATS)} "
+                        "(default: all); circulation.csv lists what was written")
     p.add_argument("--quiet", action="store_true", help="print nothing but errors")
     p.set_defaults(func=run_score)
 
@@ -37,6 +43,8 @@ def register(sub: argparse._SubParsersAction) -> None:
                        description="Write the invented demo round into --out/round and score it into --out.")
     d.add_argument("--out", default="roundscore-demo", help="output folder (default: ./roundscore-demo)")
     d.add_argument("--jobs", type=int, default=None, help="worker processes (default: all cores)")
+    d.add_argument("--formats", type=formats_arg, default=None, metavar="LIST",
+                   help=f"the output formats to write, comma-separated, from {', '.join(FORMATS)} (default: all)")
     d.set_defaults(func=run_demo)
 
     f = sub.add_parser("forms", help="write one blank submission workbook per participant",
@@ -58,6 +66,27 @@ def register(sub: argparse._SubParsersAction) -> None:
     c.set_defaults(func=run_check)
 
 
+def _shown(x: float, decimals: int | None, fallback: str, more: int = 0) -> str:
+    """A number as people read it: to ``decimals`` (+ ``more``) places when the measurand sets them."""
+    if decimals is None or not math.isfinite(x):
+        return format(x, fallback)
+    return f"{x:.{decimals + more}f}"
+
+
+def formats_arg(text: str) -> tuple[str, ...]:
+    """``--formats``: comma-separated output formats, each one a writer's (``outputs.writers.FORMATS``).
+
+    >>> formats_arg("xlsx, csv")
+    ('xlsx', 'csv')
+    """
+    wanted = tuple(dict.fromkeys(w.strip().lower() for w in text.split(",") if w.strip()))
+    unknown = [w for w in wanted if w not in FORMATS]
+    if unknown or not wanted:
+        found = ", ".join(repr(terminal_text(w)) for w in unknown) if unknown else "nothing"
+        raise argparse.ArgumentTypeError(f"found {found}; allowed: {', '.join(FORMATS)} (comma-separated)")
+    return wanted
+
+
 def summary_text(ev: RoundEvaluation) -> str:
     """A short table of the round for the terminal.
 
@@ -74,9 +103,11 @@ def summary_text(ev: RoundEvaluation) -> str:
     lines.append(head)
     counts = ev.scores.groupby(["measurand", "signal"]).size()
     for name, m in ev.measurands.items():
+        d = m.settings.decimals  # the measurand's decimals (uncertainties one more); else significant digits
         lines.append(
-            f"  {t(name):<14}{m.p:>4}  {m.assigned:>12.5g} {m.u_assigned:>10.3g} {m.sigma_pt:>10.4g} "
-            f"{m.settings.score:<8}" + "".join(f"{int(counts.get((name, s), 0)):>4}" for s in SIGNALS))
+            f"  {t(name):<14}{m.p:>4}  {_shown(m.assigned, d, '.5g'):>12} {_shown(m.u_assigned, d, '.3g', 1):>10} "
+            f"{_shown(m.sigma_pt, d, '.4g', 1):>10} {score_symbol(m.settings.score):<8}"
+            + "".join(f"{int(counts.get((name, s), 0)):>4}" for s in SIGNALS))
     lines.append(f"  {signal_legend_text()}")
     for name, m in ev.measurands.items():
         if not m.scored:  # say why, here too: a row of "nan" and "not scored" alone does not
@@ -93,8 +124,8 @@ def summary_text(ev: RoundEvaluation) -> str:
 def _report(ev, outputs, *, quiet=False, strict=False, stored=()) -> int:
     if not quiet:
         print(summary_text(ev))
-        print(f"\nWrote {len(outputs.files)} files to {outputs.folder}/ "
-              f"(scores.csv, statistics.csv, round-summary.xlsx, labs/*.xlsx ...)")
+        print(f"\nWrote {len(outputs.files)} files to {outputs.folder}/ ({_kinds(outputs)}); "
+              "circulation.csv lists what to send each lab")
         for outcome in stored:
             print(f"Archive: {outcome.status}: {terminal_text(outcome.message)}")
         print(f"\n{CAUTION}")
@@ -103,6 +134,14 @@ def _report(ev, outputs, *, quiet=False, strict=False, stored=()) -> int:
               file=sys.stderr)
         return 1
     return 0
+
+
+def _kinds(outputs) -> str:
+    """The kinds of files written, for the closing line ("12 csv, 33 xlsx, 32 html")."""
+    from collections import Counter
+
+    counts = Counter(p.suffix.lstrip(".") for p in outputs.files)
+    return ", ".join(f"{n} {kind}" for kind, n in counts.items())
 
 
 def run_score(args: argparse.Namespace) -> int:
@@ -115,7 +154,8 @@ def run_score(args: argparse.Namespace) -> int:
     bar = terminal_bar(enabled=False if args.quiet else None)
     try:
         ev, outputs = run_round(rp, out, archive=args.archive, jobs=args.jobs, progress=bar,
-                                replace_archive=args.replace_archive, on_archive=stored.append)
+                                replace_archive=args.replace_archive, on_archive=stored.append,
+                                formats=args.formats)
     finally:
         bar.close()
     return _report(ev, outputs, quiet=args.quiet, strict=args.strict, stored=stored)
@@ -132,7 +172,7 @@ def run_demo(args: argparse.Namespace) -> int:
         with atomic_folder(out, kind="demo") as tmp:
             make_demo_round(tmp / "round")
             ev = load_and_evaluate(tmp / "round", jobs=args.jobs, progress=bar)
-            written = write_outputs(ev, tmp, jobs=args.jobs, progress=bar)
+            written = write_outputs(ev, tmp, jobs=args.jobs, progress=bar, formats=args.formats)
     finally:
         bar.close()
     outputs = Outputs(folder=out, files=tuple(out / p.relative_to(tmp) for p in written))

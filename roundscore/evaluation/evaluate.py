@@ -135,8 +135,13 @@ def _measurand(rnd: Round, labs: pd.DataFrame, m: MeasurandSettings, est: robust
             labs.loc[hit, "reason"] = f"excluded by the coordinator: {e.reason}"
             labs.loc[hit, "excluded"] = True
             labs.loc[hit, "withhold"] = not e.scored
+            if not e.scored:
+                labs.loc[hit, "reason"] = f"withheld by the coordinator: {e.reason}"
             if hit.any():
                 audit.append((m.name, e.lab, "exclusion", "left out of the statistics", e.reason))
+                if not e.scored:
+                    audit.append((m.name, e.lab, "exclusion", "score withheld: no score in any output",
+                                  e.reason))
     if "excluded" not in labs:
         labs["excluded"] = False
     if "withhold" not in labs:
@@ -215,8 +220,13 @@ def _zero_spread(m: MeasurandSettings, u_pt: float, p: int, audit: list[tuple]) 
     return [ZERO_SPREAD_FINDING]
 
 
-def _score_rows(rnd: Round, mr: MeasurandResult) -> pd.DataFrame:
-    """Every score of the registry (roundscore.model.scores) for each lab; the round's score gives the signal."""
+def _score_rows(rnd: Round, mr: MeasurandResult, converted: dict[str, str] | None = None) -> pd.DataFrame:
+    """Every score of the registry (roundscore.model.scores) for each lab; the round's score gives the signal.
+
+    Each row gets its one state (:data:`~roundscore.model.evaluation.ScoreState`). A withheld row has no
+    score values at all (z, z′, ζ, En, D, D% blank), so no writer can show one. ``converted``: lab → the
+    note of a unit conversion of its result ("entered in g/kg, converted ×1000").
+    """
     m = mr.settings
     labs = mr.labs
     official = SCORES[m.score]
@@ -241,39 +251,53 @@ def _score_rows(rnd: Round, mr: MeasurandResult) -> pd.DataFrame:
     limits = labs["limit"].to_numpy(dtype=float)
     relations = labs["relation"].to_numpy(dtype=object)
     texts = labs["result_text"].to_numpy(dtype=object)
-    withheld = labs["withhold"].to_numpy(dtype=bool)
+    withheld = labs["withhold"].to_numpy(dtype=bool) & (status != "not-reported")
+    state = np.full(len(labs), "scored", dtype=object)
+    converted = converted or {}
+    lab_codes = labs["lab"].to_numpy(dtype=object)
     for i in range(len(labs)):
         st = status[i]
         add = []
         if st == "not-reported":
+            state[i] = "not-reported"
             add.append("not reported")
+        elif withheld[i]:
+            state[i] = "withheld"
+            notes[i] = f"not scored: {notes[i]}"
         elif st == "censored":
             lim, rel = limits[i], relations[i]
             if rel == "<" and np.isfinite(lim) and mr.scored and lim < x_pt - CENSORED_ACTION * s_pt:
-                sig[i] = "action"
+                sig[i], state[i] = "action", "false-negative"
                 add.append("false negative: the limit is below x_pt − 3σ_pt")
             elif rel == ">" and np.isfinite(lim) and mr.scored and lim > x_pt + CENSORED_ACTION * s_pt:
-                sig[i] = "action"
+                sig[i], state[i] = "action", "false-positive"
                 add.append("false positive: the limit is above x_pt + 3σ_pt")
             else:
+                state[i] = "not-scored"
                 add.append(f"censored result {texts[i]}: not scored")
         elif not mr.scored:
+            state[i] = "not-scored"
             add.append("not scored: the assigned value or σ_pt could not be set")
-        elif withheld[i]:
-            add.append("score withheld by the coordinator")
         elif undefined[i]:
+            state[i] = "not-scored"
             add.append(official.undefined_note)
         elif np.isnan(chosen[i]):
+            state[i] = "not-scored"
             add.append(official.missing_note)
         if sig[i] == "action" and st == "value" and slip[i]:
             add.append("possible unit or decimal slip")
+        if lab_codes[i] in converted:
+            add.append(converted[lab_codes[i]])
         notes[i] = "; ".join([t for t in [notes[i], *add] if t])
+    # Withheld means absent: no score value of any kind, so no writer can show one.
+    values = {kind.column: np.where(withheld, np.nan, computed[kind.name][0]) for kind in SCORES.values()}
+    d, dp = np.where(withheld, np.nan, d), np.where(withheld, np.nan, dp)
     result = np.where(labs["status"] == "censored", labs["result_text"], "")
     out = pd.DataFrame({
         "lab": labs["lab"], "measurand": m.name, "unit": m.unit, "n_replicates": labs["n_replicates"],
         "result": [r if r else (x[i] if np.isfinite(x[i]) else np.nan) for i, r in enumerate(result)],
         "assigned": x_pt, "u_assigned": u_pt, "sigma_pt": s_pt,
-        **{kind.column: computed[kind.name][0] for kind in SCORES.values()}, "d": d, "d_percent": dp,
+        **values, "d": d, "d_percent": dp,
         "signal": sig, "note": notes, "score": m.score,
         "scheme": rnd.scheme, "round": rnd.id, "round_date": rnd.date,
     })
@@ -286,6 +310,29 @@ def _score_rows(rnd: Round, mr: MeasurandResult) -> pd.DataFrame:
     out["rank"] = ranks
     out["n_scored"] = int(ok.sum())
     out["method"] = labs["method"].to_numpy()
+    out["state"] = state
+    return out
+
+
+def _conversions(table: ResultTable, audit: list[tuple]) -> dict[str, dict[str, str]]:
+    """Every unit conversion done on reading: one audit row and one note per lab × measurand × unit given.
+
+    Returns measurand → lab → the note said beside the result ("entered in g/kg, converted ×1000 to mg/kg").
+    """
+    f = table.frame
+    if "unit_given" not in f.columns:
+        return {}
+    done = f[f["unit_given"].notna()]
+    out: dict[str, dict[str, str]] = {}
+    if not len(done):
+        return out
+    firsts = done.groupby(["measurand", "lab", "unit_given"], sort=False)[["factor", "unit"]].first()
+    for key, row in firsts.iterrows():  # the table is in measurand, lab order
+        meas, lab, given = (str(k) for k in key)  # type: ignore[attr-defined]  # a 3-level index key (Hashable)
+        text = f"entered in {given}, converted ×{row['factor']:.6g} to {row['unit']}"
+        audit.append((meas, lab, "import", "unit converted", f"{text} (factor {row['factor']:.12g})"))
+        got = out.setdefault(str(meas), {})
+        got[lab] = f"{got[lab]}; {text}" if lab in got else text
     return out
 
 
@@ -304,6 +351,8 @@ def evaluate(rnd: Round, table: ResultTable, participants: dict[str, Participant
     all_labs = sorted(set(table.frame["lab"]) | set(participants), key=lab_order_key)
     # How text cells were read (a declared decimal mark): one line per round or per form, from the reader.
     audit: list[tuple] = [("", lab, "import", "decimal mark", text) for lab, text in table.readings]
+    # what each returned form says of the lab's sample (intake/forms.py form_receipt), as the lab gave it
+    audit += [("", lab, "import", "sample receipt", f"{r.text()} ({r.source})") for lab, r in table.receipts.items()]
     names = list(rnd.measurands)
     # Lab means per measurand, for one vectorised Algorithm A call.
     pre = _lab_tables(table, names, all_labs)
@@ -318,7 +367,8 @@ def evaluate(rnd: Round, table: ResultTable, participants: dict[str, Participant
     for i, n in enumerate(names):
         est = estimates[i] if estimates[i].n >= 3 else None
         results[n] = _measurand(rnd, pre[n], rnd.measurands[n], est, audit, dict(items.get(n, {})))
-    frames = [_score_rows(rnd, results[n]) for n in names]
+    converted = _conversions(table, audit)
+    frames = [_score_rows(rnd, results[n], converted.get(n)) for n in names]
     scores = pd.concat(frames, ignore_index=True) if frames else pd.DataFrame(columns=SCORE_COLUMNS)
     stats_rows = []
     for n in names:

@@ -96,8 +96,8 @@ def _homogeneity_row(m: MeasurandSettings, h: st.HomogeneityResult, extra: list[
 def _stability_row(m: MeasurandSettings, s: st.StabilityResult, g: int, reps: float,
                    names: tuple[str, str], extra: list[str]) -> dict[str, Any]:
     allowed = s.criterion if s.criterion_used == "simple" else s.allowed_expanded
-    head = (f"mean = y1 - y2 = {_fmt(s.difference)}: y1 = {_fmt(s.mean_first)} (set {names[0]!r}), "
-            f"y2 = {_fmt(s.mean_second)} (set {names[1]!r})")
+    head = (f"mean = ȳ1 − ȳ2 = {_fmt(s.difference)}: ȳ1 = {_fmt(s.mean_first)} (set {names[0]!r}), "
+            f"ȳ2 = {_fmt(s.mean_second)} (set {names[1]!r})")
     return {
         "measurand": m.name, "check": "stability", "g": g, "m": reps, "mean": s.difference,
         "s_x": None, "s_w": None, "s_s": None, "criterion": s.criterion, "allowed": allowed,
@@ -205,7 +205,7 @@ def apply_item_checks(m: MeasurandSettings, tables: Mapping[str, ItemTable], *, 
     if stab is not None and names is not None and run is not None:
         verdict = "passed" if stab.passed else "FAILED"
         allowed = stab.criterion if stab.criterion_used == "simple" else stab.allowed_expanded
-        line = (f"stability ({names[0]!r} vs {names[1]!r}): |y1 - y2| = {_fmt(abs(stab.difference))}, "
+        line = (f"stability ({names[0]!r} vs {names[1]!r}): |ȳ1 − ȳ2| = {_fmt(abs(stab.difference))}, "
                 f"allowance = {_fmt(allowed)} ({stab.criterion_used} criterion): {verdict}")
         notes.append(line)
         audit.append((m.name, "", "stability", "passed" if stab.passed else "check failed", line))
@@ -264,8 +264,8 @@ def _consequence(m: MeasurandSettings, consequence: ItemConsequence, hom: st.Hom
         if np.isfinite(u_char):
             u_new = st.item_uncertainty(u_char, u_hom, u_stab)
             effect.append(
-                f"u(x_pt) = sqrt(u_char^2 + u_hom^2 + u_stab^2) = sqrt({_fmt(u_char)}^2 + {_fmt(u_hom)}^2 + "
-                f"{_fmt(u_stab)}^2) = {_fmt(u_new)} (item_checks = {consequence!r})")
+                f"u(x_pt) = √(u_char² + u_hom² + u_stab²) = √({_fmt(u_char)}² + {_fmt(u_hom)}² + "
+                f"{_fmt(u_stab)}²) = {_fmt(u_new)} (item_checks = {consequence!r})")
         else:
             effect.append("u_hom and u_stab not added: u(x_pt) could not be set")
         if hom is not None and hom.s_s_truncated:
@@ -279,7 +279,7 @@ def _consequence(m: MeasurandSettings, consequence: ItemConsequence, hom: st.Hom
         elif hom.s_s > 0:
             s_new = st.widened_sigma(sigma_pt, hom.s_s)
             widened = True
-            effect.append(f"σ_pt widened to sqrt(σ_pt^2 + s_s^2) = sqrt({_fmt(sigma_pt)}^2 + {_fmt(hom.s_s)}^2) "
+            effect.append(f"σ_pt widened to √(σ_pt² + s_s²) = √({_fmt(sigma_pt)}² + {_fmt(hom.s_s)}²) "
                           f"= {_fmt(s_new)} (item_checks = {consequence!r})")
         else:
             effect.append("σ_pt not widened: s_s was truncated to 0" if hom.s_s_truncated
@@ -295,13 +295,13 @@ def _consequence(m: MeasurandSettings, consequence: ItemConsequence, hom: st.Hom
 def _homogeneity_line(hom: st.HomogeneityResult, notes: list[str]) -> str:
     """The homogeneity verdict in one line (also the audit's), its notes added to ``notes``."""
     verdict = "passed" if hom.passed else "FAILED"
-    line = (f"homogeneity ({hom.g} items x {hom.m:g}): s_s = {_fmt(hom.s_s)}, 0.3 σ_pt = {_fmt(hom.criterion)}, "
+    line = (f"homogeneity ({hom.g} items × {hom.m:g}): s_s = {_fmt(hom.s_s)}, 0.3 σ_pt = {_fmt(hom.criterion)}, "
             f"expanded allowance = {_fmt(hom.allowed)}: {verdict}")
     if hom.passed and not hom.passed_simple:
         line += " (on the expanded criterion only; the simple one is not met)"
     notes.append(line)
     if hom.s_s_truncated:
-        notes.append("homogeneity: s_x^2 < s_w^2/m, s_s truncated to 0")
+        notes.append("homogeneity: s_x̄² < s_w²/m, s_s truncated to 0")
     if hom.precision_warning:
         notes.append(f"homogeneity: {hom.precision_warning}")
     if hom.cochran_signal in ("straggler", "outlier"):

@@ -31,7 +31,7 @@ from typing import Any
 import pandas as pd
 
 from roundscore.errors import InputError, Location, Problem
-
+from roundscore.intake.safety import hidden_by_design
 from roundscore.model.labcodes import read_lab_code
 from roundscore.text import too_long
 
@@ -271,7 +271,8 @@ def _read_workbook(file: Path) -> _Sheet:
         raise InputError.single(f"workbook format {meta.get('format')!r} is not supported "
                                 f"(this version reads format {WORKBOOK_FORMAT})",
                                 file=str(file), sheet="round")
-    warnings = tuple(dict.fromkeys(data.warnings + meta_sheet.warnings))
+    # hidden by the writer (outputs/lab_workbook.py): not worth a warning
+    warnings = hidden_by_design(dict.fromkeys(data.warnings + meta_sheet.warnings), str(file), ["data", "round"])
     return replace(sheet, meta=meta, meta_items=items, warnings=warnings)
 
 

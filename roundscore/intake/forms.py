@@ -14,7 +14,14 @@ A form has two sheets:
     round id, lab code, the row where the table starts, how many
     replicates the form asks for, the decimal mark the form was written
     with (``[round] decimal``, or blank) and the cell where the lab can
-    state its own (``decimal_cell``).
+    state its own (``decimal_cell``), and the cells of the optional sample
+    fields (``arrived_cell``, ``condition_cell``, ``analysed_cell``).
+
+The heading block also prints ``[round] return_by`` ("Return by") and has three
+optional fields beside it: the date the sample arrived, its condition on
+arrival and the date of analysis. Read back by :func:`form_receipt` (blank
+allowed; a date that is not one is refused, naming the cell); a form written
+before these fields existed has no such keys and reads as before.
 
 The heading block holds that choice in words ("Decimal mark": point or
 comma, a drop-down list). It only matters for numbers typed as text (a
@@ -25,6 +32,7 @@ when filled in, it decides how the form's text cells are read, ahead of
 
 from __future__ import annotations
 
+import datetime as dt
 import os
 import re
 import tempfile
@@ -38,10 +46,13 @@ import xlsxwriter
 from roundscore.intake.cells import is_decimal_mark
 from roundscore.errors import Problem, Place, sheet_cell
 from roundscore.model.round import MAX_FORM_REPLICATES, DecimalMark, Round
+from roundscore.model.table import SampleReceipt
 from roundscore.intake.xlsx import SheetRows
+from roundscore.support.sheetprint import print_layout
 
 __all__ = ["write_forms", "FormsWritten", "write_form", "records_from_form", "form_decimal", "FormDecimal",
-           "form_file_name", "lab_cell", "FORM_FORMAT", "RESULTS_SHEET", "INFO_SHEET", "DECIMAL_CELL"]
+           "form_file_name", "lab_cell", "FORM_FORMAT", "RESULTS_SHEET", "INFO_SHEET", "DECIMAL_CELL", "RECEIPT_FIELDS",
+           "form_receipt"]
 
 FORM_FORMAT = 1
 RESULTS_SHEET = "Results"
@@ -63,9 +74,16 @@ def _columns(replicates: int) -> list[str]:
     )
 
 
+#: The optional sample fields: (form-info key, label, kind), in the rows 2-4 beside the heading block (the
+#: Method and Comment columns, wide enough for a date and a few words).
+RECEIPT_FIELDS = (("arrived", "Date the sample arrived", "date"), ("condition", "Condition on arrival", "text"),
+                  ("analysed", "Date of analysis", "date"))
+
+
 def write_form(rnd: Round, lab: str, path: Path, *, name: str | None = None,
                deadline: str = "") -> None:
-    """Write the blank form of one participant to ``path``."""
+    """Write the blank form of one participant to ``path`` (``deadline``: else ``[round] return_by``)."""
+    deadline = deadline or rnd.return_by
     reps = rnd.replicates
     wb = xlsxwriter.Workbook(str(path), {"strings_to_formulas": False, "strings_to_urls": False})
     wb.set_properties({"title": f"Submission form {rnd.id} {lab}", "author": rnd.provider or "roundscore",
@@ -97,10 +115,12 @@ def write_form(rnd: Round, lab: str, path: Path, *, name: str | None = None,
         "error_message": "Choose point or comma, or leave the cell blank."})
     ws.write(drow, dcol + 1, "point: 12.5, comma: 12,5 (only needed for numbers typed as text, such as <0,05)",
              note)
+    n_first_u = 2 + reps
+    receipt_cells = _write_receipt_fields(wb, ws, bold, n_first_u + 3)
     cols = _columns(reps)
     for j, c in enumerate(cols):
         ws.write(HEADER_ROW - 1, j, c, head)
-    n_first_u = 2 + reps
+    ws.set_row(HEADER_ROW - 1, 30)  # the wrapped heads
     for i, m in enumerate(rnd.measurands.values()):
         r = FIRST_ROW - 1 + i
         ws.write_string(r, 0, m.name, locked)
@@ -133,11 +153,11 @@ def write_form(rnd: Round, lab: str, path: Path, *, name: str | None = None,
     ]
     for i, t in enumerate(notes):
         ws.write(end + i, 0, t, note)
-    ws.set_column(0, 0, 22)
-    ws.set_column(1, 1, 10)
-    ws.set_column(2, 1 + reps, 12)
-    ws.set_column(n_first_u, n_first_u + 2, 14)
-    ws.set_column(n_first_u + 3, n_first_u + 4, 28)
+    widths = [22, 10] + [12] * reps + [14] * 3 + [28] * 2
+    # printed one page wide on the round's paper, the table head on every page (support/sheetprint.py)
+    print_layout(ws, paper=rnd.paper, header=(rnd.id, f"Laboratory {lab}", "Submission form"),
+                 head_rows=(HEADER_ROW - 1, HEADER_ROW - 1), area=(0, 0, end + len(notes) - 1, len(widths) - 1),
+                 widths=widths)
     ws.freeze_panes(HEADER_ROW, 1)
     ws.protect("", {"select_locked_cells": True, "select_unlocked_cells": True,
                     "format_columns": True})
@@ -145,12 +165,39 @@ def write_form(rnd: Round, lab: str, path: Path, *, name: str | None = None,
     info.write_row(0, 0, ["key", "value"], bold)
     pairs = [("generator", "roundscore"), ("format", FORM_FORMAT), ("round", rnd.id), ("lab", lab),
              ("replicates", reps), ("header_row", HEADER_ROW), ("measurands", len(rnd.measurands)),
-             ("decimal", rnd.decimal or ""), ("decimal_cell", DECIMAL_CELL)]
+             ("decimal", rnd.decimal or ""), ("decimal_cell", DECIMAL_CELL),
+             *((f"{key}_cell", cell) for key, cell in receipt_cells.items())]
     for r, (k, v) in enumerate(pairs, start=1):
         info.write(r, 0, k)
         info.write(r, 1, v)
     info.protect("")
+    info.hide()  # read by the tool, never printed
     wb.close()
+
+
+def _write_receipt_fields(wb, ws, bold, col: int) -> dict[str, str]:
+    """The optional sample fields: labels in column ``col`` (Method), entry cells beside them (Comment), rows
+    2-4; their cells by form-info key."""
+    entry = wb.add_format({"locked": False, "border": 1, "bg_color": "#FFFFFF", "align": "left"})
+    date = wb.add_format({"locked": False, "border": 1, "bg_color": "#FFFFFF", "align": "left",
+                          "num_format": "yyyy-mm-dd"})
+    cells = {}
+    for row, (key, label, kind) in enumerate(RECEIPT_FIELDS, start=1):
+        ws.write_string(row, col, label, bold)
+        ws.write_blank(row, col + 1, None, date if kind == "date" else entry)
+        if kind == "date":
+            ws.data_validation(row, col + 1, row, col + 1, {
+                "validate": "date", "criteria": "between", "minimum": dt.date(2000, 1, 1),
+                "maximum": dt.date(2100, 12, 31), "input_title": label,
+                "input_message": "Optional: a date, such as 2026-10-14.",
+                "error_message": "Enter a date, such as 2026-10-14, or leave the cell blank."})
+        else:
+            ws.data_validation(row, col + 1, row, col + 1, {
+                "validate": "length", "criteria": "<=", "value": 200, "input_title": label,
+                "input_message": "Optional: for example intact, cool, leaking, thawed.",
+                "error_message": "At most 200 characters."})
+        cells[key] = xlsxwriter.utility.xl_rowcol_to_cell(row, col + 1)
+    return cells
 
 
 def _fixed_time():
@@ -359,6 +406,64 @@ def form_decimal(results: SheetRows, info: SheetRows) -> tuple[FormDecimal | Non
     return None, []
 
 
+def _date_text(v) -> str | None:
+    """An ISO date from a cell: a date (or date-time at midnight) cell, or text YYYY-MM-DD; None otherwise."""
+    if isinstance(v, dt.datetime):
+        return v.date().isoformat() if v.time() == dt.time(0) else None
+    if isinstance(v, dt.date):
+        return v.isoformat()
+    if isinstance(v, str):
+        try:
+            return dt.date.fromisoformat(v.strip()).isoformat() if re.fullmatch(r"\d{4}-\d{2}-\d{2}",
+                                                                                 v.strip()) else None
+        except ValueError:
+            return None
+    return None
+
+
+def form_receipt(results: SheetRows, info: SheetRows) -> tuple[SampleReceipt | None, list[Problem]]:
+    """The optional sample fields of a returned form (:data:`RECEIPT_FIELDS`), and problems naming the cell of
+    a date that is not one. ``(None, [])`` for a form without the fields (written before they existed) or
+    with all of them blank."""
+    from roundscore.text import clip
+
+    kv, where = _info(info)
+    found: dict[str, str] = {}
+    cells: list[str] = []
+    problems: list[Problem] = []
+    for key, label, kind in RECEIPT_FIELDS:
+        ref = kv.get(f"{key}_cell")
+        if not isinstance(ref, str):
+            continue
+        try:
+            row, col = _cell_index(ref.strip())
+        except ValueError:
+            problems.append(Problem(message=f"the form-info sheet is damaged ({key}_cell)", file=results.file,
+                                    sheet=INFO_SHEET, cell=f"B{where[f'{key}_cell']}", value=ref))
+            continue
+        cells.append(ref.strip())
+        v = results.rows[row][col] if row < len(results.rows) and col < len(results.rows[row]) else None
+        if v is None or (isinstance(v, str) and not v.strip()):
+            continue
+        if kind == "date":
+            text = _date_text(v)
+            if text is None:
+                problems.append(Problem(
+                    message=f"{label.lower()} is not a date", file=results.file, sheet=results.sheet,
+                    row=row + 1, cell=ref.strip(), column=label, value=v,
+                    hint="write the date as YYYY-MM-DD (2026-10-14), or leave the cell blank"))
+                continue
+            found[key] = text
+        else:
+            found[key] = clip(" ".join(str(v).split()), 200)
+    if problems or not found:
+        return None, problems
+    source = f"{results.file}, {sheet_cell(results.sheet or RESULTS_SHEET, cells[0])}"
+    if len(cells) > 1:
+        source += f":{cells[-1]}"
+    return SampleReceipt(**found, source=source), []
+
+
 def records_from_form(rnd: Round, results: SheetRows, info: SheetRows):
     """Long-layout records from a returned form's two sheets.
 
@@ -399,6 +504,7 @@ def records_from_form(rnd: Round, results: SheetRows, info: SheetRows):
             value=kv.get("replicates") if not 1 <= reps <= MAX_FORM_REPLICATES else kv.get("header_row"))]
     declared, found = form_decimal(results, info)
     problems += found
+    problems += form_receipt(results, info)[1]
     if problems:
         return [], problems
     decimal = declared.mark if declared is not None else None

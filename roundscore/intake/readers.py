@@ -11,10 +11,12 @@ from roundscore.intake.roundfile import result_files
 from roundscore.model.inputs import Participant
 from roundscore.model.round import Round
 from roundscore.model.labcodes import LabCodeReader, clash_problems, lab_key
-from roundscore.model.table import ResultTable, table_frame
+from roundscore.model.table import ResultTable, SampleReceipt, table_frame
 from roundscore.intake.validate import build_table, records_from_long, summarise_ambiguous, validate_records
 from roundscore.text import quote, too_long
-from roundscore.intake.forms import INFO_SHEET, RESULTS_SHEET, form_decimal, lab_cell, records_from_form
+from roundscore.intake.forms import (INFO_SHEET, RESULTS_SHEET, form_decimal, form_receipt, lab_cell,
+                                     records_from_form)
+from roundscore.intake.safety import hidden_by_design
 from roundscore.intake.xlsx import SheetRows, read_rows
 
 __all__ = ["read_results", "read_participants", "read_item_table", "check_labs"]
@@ -52,12 +54,15 @@ def _read_form(rnd: Round, path: Path):
     (got,) = _read_sheets([str(path)], rnd.limits)
     if not isinstance(got, tuple):  # a ReadFailure or an InputError
         probs = got.as_problems() if hasattr(got, "as_problems") else list(got.problems)
-        return [], [_with_file(p, shown) for p in probs], (), []
+        return [], [_with_file(p, shown) for p in probs], (), [], {}
     results, info = got
     results = replace(results, file=shown)
     recs, problems = records_from_form(rnd, results, info)
     lab = str(recs[0].lab) if recs else None
-    return recs, problems, results.warnings + info.warnings, form_reading(rnd, results, info, lab)
+    receipt = form_receipt(results, info)[0]
+    receipts = {lab: receipt} if lab is not None and receipt is not None else {}
+    warnings = results.warnings + hidden_by_design(info.warnings, str(path), [INFO_SHEET])
+    return recs, problems, warnings, form_reading(rnd, results, info, lab), receipts
 
 
 def read_results(rnd: Round, *, jobs: int | None = None, progress=None) -> ResultTable:
@@ -75,6 +80,7 @@ def read_results(rnd: Round, *, jobs: int | None = None, progress=None) -> Resul
     problems: list[Problem] = []
     warnings: list[str] = []
     readings: list[tuple[str, str]] = list(round_reading(rnd))
+    receipts: dict = {}
     single_table = len(files) == 1 and not (Path(rnd.folder / rnd.results).is_dir()
                                             or any(ch in rnd.results for ch in "*?["))
     if not single_table:
@@ -89,14 +95,16 @@ def read_results(rnd: Round, *, jobs: int | None = None, progress=None) -> Resul
             sheet = got.sheets[0]
             sheet = replace(sheet, file=shown)
             if sheet.sheet and INFO_SHEET in _sheet_names(f):
-                recs, probs, warns, notes = _read_form(rnd, f)
+                recs, probs, warns, notes, got_receipts = _read_form(rnd, f)
                 readings += notes
+                receipts.update(got_receipts)
             else:
                 recs, probs = records_from_long(sheet)
                 warns = sheet.warnings
         elif _is_form(f):
-            recs, probs, warns, notes = _read_form(rnd, f)
+            recs, probs, warns, notes, got_receipts = _read_form(rnd, f)
             readings += notes
+            receipts.update(got_receipts)
         else:
             probs = [Problem(message="not a submission workbook (.xlsx)", file=shown)]
             recs, warns = [], ()
@@ -104,7 +112,7 @@ def read_results(rnd: Round, *, jobs: int | None = None, progress=None) -> Resul
         problems += probs
         warnings += list(warns)
     return build_table(rnd, records, files=[_shown(rnd, f) for f in files], warnings=warnings, problems=problems,
-                       readings=readings)
+                       readings=readings, receipts=receipts)
 
 
 def _read_forms(rnd: Round, files: list[Path], *, jobs: int | None, progress) -> ResultTable:
@@ -132,6 +140,7 @@ def _read_forms(rnd: Round, files: list[Path], *, jobs: int | None, progress) ->
     readings: list[tuple[str, str]] = list(round_reading(rnd))
     rows: list[tuple] = []
     places: dict[str, Place] = {}
+    receipts: dict = {}
     shown = [_shown(rnd, Path(p)) for p in paths]
     for p, name in zip(paths, shown):
         got = read.get(p)
@@ -143,6 +152,8 @@ def _read_forms(rnd: Round, files: list[Path], *, jobs: int | None, progress) ->
             problems += got.problems
             warnings += got.warnings
             readings += got.readings
+            if got.rows and got.receipt is not None:
+                receipts.setdefault(got.rows[0][0], got.receipt)
             if got.rows and got.lab_place is not None:
                 places.setdefault(got.rows[0][0], got.lab_place)
         else:  # a ReadFailure: refused, crashed, out of memory or timed out
@@ -154,7 +165,7 @@ def _read_forms(rnd: Round, files: list[Path], *, jobs: int | None, progress) ->
     if problems:
         raise InputError(problems, summary="the results cannot be imported")
     return ResultTable(frame=frame, files=tuple(shown), warnings=tuple(warnings), readings=tuple(readings),
-                       lab_places=places)
+                       lab_places=places, receipts=dict(sorted(receipts.items())))
 
 
 def _duplicate_forms(frame) -> list[Problem]:
@@ -190,6 +201,7 @@ class _FormRows:
     warnings: list
     readings: list
     lab_place: Place | None = None
+    receipt: SampleReceipt | None = None
 
 
 def _read_sheets(paths: list[str], limits) -> list:
@@ -208,8 +220,10 @@ def _form_rows(rnd: Round, got) -> _FormRows:
     records, problems = records_from_form(rnd, results, info)
     rows, found = validate_records(rnd, records)
     readings = form_reading(rnd, results, info, str(records[0].lab) if records else None)
-    return _FormRows(rows=rows, problems=problems + found, warnings=list(results.warnings + info.warnings),
-                     readings=readings, lab_place={**lab_cell(info), "file": shown})
+    warnings = results.warnings + hidden_by_design(info.warnings, str(got.file), [INFO_SHEET])
+    return _FormRows(rows=rows, problems=problems + found, warnings=list(warnings),
+                     readings=readings, lab_place={**lab_cell(info), "file": shown},
+                     receipt=form_receipt(results, info)[0])
 
 
 def _with_file(problem: Problem, shown: str) -> Problem:

@@ -48,7 +48,8 @@ from collections.abc import Callable, Mapping, Sequence
 from roundscore.errors import InputError
 from roundscore.model.limits import DEFAULT_LIMITS, MiB, ReadLimits
 
-__all__ = ["WorkbookCheck", "inspect_workbook", "OLE2_SIGNATURE", "DEFLATE_MAX_RATIO"]
+__all__ = ["WorkbookCheck", "inspect_workbook", "OLE2_SIGNATURE", "DEFLATE_MAX_RATIO", "hidden_note",
+           "hidden_by_design"]
 
 #: Compound File Binary signature ([MS-CFB] 2.2): encrypted OOXML or a legacy .xls workbook.
 OLE2_SIGNATURE = b"\xd0\xcf\x11\xe0\xa1\xb1\x1a\xe1"
@@ -58,6 +59,18 @@ ZIP_SIGNATURE = b"PK\x03\x04"
 _CHUNK = 1 * MiB
 #: Markup that declares a DTD or an entity (XML 1.0, sections 2.8 and 4.2).
 _DTD_MARKERS = (b"<!DOCTYPE", b"<!ENTITY")
+
+
+def hidden_note(file: str, sheet: str) -> str:
+    """The warning that a sheet read is hidden."""
+    return f"{file}: sheet {sheet!r} is hidden; its values are read all the same"
+
+
+def hidden_by_design(warnings, file: str, sheets) -> tuple[str, ...]:
+    """``warnings`` without the hidden-sheet notes of ``sheets``: the sheets roundscore itself hides (a form's
+    ``form-info``, a lab sheet's ``data`` and ``round``), whose being hidden says nothing."""
+    drop = {hidden_note(str(file), s) for s in sheets}
+    return tuple(w for w in warnings if w not in drop)
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -102,7 +115,7 @@ class WorkbookCheck:
         if self.macros:
             out.append(f"{self.file}: macros present; they are never run, only cell values are read")
         if sheet is not None and sheet in self.hidden_sheets:
-            out.append(f"{self.file}: sheet {sheet!r} is hidden; its values are read all the same")
+            out.append(hidden_note(self.file, sheet))
         rows = self.hidden_rows.get(sheet or "", ())
         if rows:
             out.append(f"{self.file}: sheet {sheet!r} has hidden rows {_short(rows)}; "

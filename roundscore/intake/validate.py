@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import math
 from decimal import Decimal
-from collections.abc import Iterable
+from collections.abc import Iterable, Mapping
 from typing import Any
 
 import numpy as np
@@ -20,7 +20,7 @@ from roundscore.intake.cells import HINT_DECLARE, HINT_NUMBER, CellError, parse_
 from roundscore.intake.xlsx import SheetRows
 from roundscore.model.labcodes import clash_problems, read_lab_code
 from roundscore.model.round import DecimalMark, Round
-from roundscore.model.table import Record, ResultTable, table_frame
+from roundscore.model.table import COLUMNS, Record, ResultTable, SampleReceipt, table_frame
 from roundscore.model.units import UnitError, factor
 from roundscore.ranges import MAX_MAGNITUDE, MIN_MAGNITUDE, magnitude_problem
 from roundscore.text import shown_list, too_long
@@ -148,6 +148,7 @@ def build_table(
     warnings: Iterable[str] = (),
     problems: Iterable[Problem] = (),
     readings: Iterable[tuple[str, str]] = (),
+    receipts: Mapping[str, SampleReceipt] | None = None,
 ) -> ResultTable:
     """Validate records against the round and build the :class:`ResultTable`.
 
@@ -164,7 +165,7 @@ def build_table(
     if problems:
         raise InputError(problems, summary="the results cannot be imported")
     return ResultTable(frame=table_frame(rows), files=tuple(files), warnings=tuple(warnings),
-                       readings=tuple(readings), lab_places=places)
+                       readings=tuple(readings), lab_places=places, receipts=dict(sorted((receipts or {}).items())))
 
 #: Ambiguous numbers of one column listed one by one; more are said in one problem naming all their places.
 MAX_LISTED_AMBIGUOUS = 5
@@ -225,9 +226,10 @@ def lab_places(rows: Iterable[tuple]) -> dict[str, Place]:
     """Where each lab code of validated rows (:data:`~roundscore.model.table.COLUMNS` tuples) first appears: file,
     sheet, row, column."""
     out: dict[str, Place] = {}
+    i_file, i_sheet, i_row = (COLUMNS.index(c) for c in ("file", "sheet", "row"))
     for r in rows:
         if r[0] not in out:
-            out[r[0]] = {"file": r[-3], "sheet": r[-2], "row": r[-1], "column": "lab"}
+            out[r[0]] = {"file": r[i_file], "sheet": r[i_sheet], "row": r[i_row], "column": "lab"}
     return out
 
 
@@ -386,7 +388,7 @@ def validate_records(rnd: Round, records: Iterable[Record]) -> tuple[list[tuple]
             lab, m.name, replicate, cell.kind, value, _decimal_scale(cell.text, f),
             cell.relation, limit, m.unit, u * f, U * f, k,
             bounded("method", rec.method, "method", rec), bounded("comment", rec.comment, "comment", rec),
-            rec.file, rec.sheet, rec.row,
+            rec.file, rec.sheet, rec.row, unit if unit != m.unit else None, f,
         ))
     problems.sort(key=_reading_order)
     return out, problems

@@ -11,7 +11,9 @@ from __future__ import annotations
 
 import re
 from dataclasses import dataclass, field
-from typing import Any
+from types import MappingProxyType
+from typing import Any, Literal
+from collections.abc import Mapping
 
 import numpy as np
 import pandas as pd
@@ -19,12 +21,13 @@ import pandas as pd
 from roundscore.model.inputs import Participant
 from roundscore.model.items import ItemOutcome
 from roundscore.model.round import MeasurandSettings, Round
-from roundscore.model.scores import SCORE_FIELD, SCORE_VALUE_COLUMNS
+from roundscore.model.scores import SCORE_FIELD, SCORE_VALUE_COLUMNS, score_symbol
 from roundscore.model.table import ResultTable
 from roundscore.stats.robust import RobustEstimate
 
 __all__ = ["RoundEvaluation", "MeasurandResult", "SCORE_COLUMNS", "STATISTICS_COLUMNS", "AUDIT_COLUMNS",
-           "SCORE_FIELD", "ROUND_COLUMNS", "SCORE_ROW_COLUMNS", "SCORE_FLOAT_COLUMNS", "lab_order_key"]
+           "SCORE_FIELD", "ROUND_COLUMNS", "SCORE_ROW_COLUMNS", "SCORE_FLOAT_COLUMNS", "lab_order_key",
+           "ScoreState", "STATES", "STATE_SIDE"]
 
 #: The round's columns that end every row of scores.csv, so a file stands alone.
 ROUND_COLUMNS = ("scheme", "round", "round_date")
@@ -40,6 +43,23 @@ SCORE_ROW_COLUMNS: tuple[str, ...] = tuple(c for c in SCORE_COLUMNS if c not in 
 #: The columns of a score row holding numbers (a censored ``result`` is text: "<0.5").
 SCORE_FLOAT_COLUMNS: tuple[str, ...] = ("result", "assigned", "u_assigned", "sigma_pt", *SCORE_VALUE_COLUMNS,
                                         "d", "d_percent")
+#: The one state of a lab × measurand, decided once by the evaluation (the ``state`` column of
+#: :attr:`RoundEvaluation.scores`, after the scores.csv columns; every writer draws it, none decides it):
+#: ``scored`` (a score and its signal), ``false-negative`` / ``false-positive`` (a censored result whose
+#: limit lies beyond x_pt ∓ 3σ_pt: no score value, an action signal), ``withheld`` (an ``[[exclude]]`` with
+#: ``scored = false``: no score value in any output, the note gives the reason), ``not-scored`` (the note
+#: says why: no assigned value or σ_pt, a censored result that cannot be judged, no uncertainty for ζ/En...),
+#: ``not-reported``. scores.csv keeps its columns: there the state reads from ``signal`` and ``note``.
+ScoreState = Literal["scored", "false-negative", "false-positive", "withheld", "not-scored", "not-reported"]
+#: Each state in words, as a person reads it beside the signal (the signal's own word for ``scored``).
+STATES: Mapping[str, str] = MappingProxyType({
+    "scored": "scored", "false-negative": "false negative (censored result)",
+    "false-positive": "false positive (censored result)", "withheld": "not scored: withheld",
+    "not-scored": "not scored", "not-reported": "not reported",
+})
+#: Where a state without a score value sits on a score axis: a false negative below its low end, a false
+#: positive above its high end (−1, +1); the others are not drawn on an axis.
+STATE_SIDE: Mapping[str, int] = MappingProxyType({"false-negative": -1, "false-positive": 1})
 STATISTICS_COLUMNS = (
     "measurand", "unit", "p", "assigned", "u_assigned", "sigma_pt", "robust_mean", "robust_sd",
     "median", "made", "niqr", "iterations", "u_check_passed", "score",
@@ -115,7 +135,8 @@ class RoundEvaluation:
     measurands : dict of str to MeasurandResult
     scores : pandas.DataFrame
         One row per lab × measurand, :data:`SCORE_COLUMNS` plus ``rank``
-        and ``n_scored`` (where the lab stands among all scored labs, by |score|).
+        and ``n_scored`` (where the lab stands among all scored labs, by |score|),
+        ``method`` and ``state`` (:data:`ScoreState`).
     statistics : pandas.DataFrame
         One row per measurand, :data:`STATISTICS_COLUMNS`.
     audit : pandas.DataFrame
@@ -206,6 +227,39 @@ class RoundEvaluation:
         if "failed_checks" not in self._cache:
             self._cache["failed_checks"] = self._failed_checks()
         return list(self._cache["failed_checks"])
+
+    @property
+    def lab_notices(self) -> list[str]:
+        """What the failed checks mean for a lab's score, in plain words (the lab's page, sheet and PDF).
+
+        The technical findings (:attr:`failed_checks`) stay in the summary workbook and the round report.
+        """
+        if "lab_notices" not in self._cache:
+            self._cache["lab_notices"] = self._lab_notices()
+        return list(self._cache["lab_notices"])
+
+    def _lab_notices(self) -> list[str]:
+        out = []
+        for m in self.measurands.values():
+            if m.u_check_passed is False:
+                score = m.settings.score
+                if score == "z":
+                    out.append(f"{m.name}: the uncertainty of the assigned value is large compared with σ_pt, "
+                               "and the z-score does not allow for it: treat your z-score as indicative.")
+                else:
+                    out.append(f"{m.name}: the uncertainty of the assigned value is large compared with σ_pt; "
+                               f"the {score_symbol(score)} score used allows for it.")
+        items = self.extras.get("items")
+        if items is not None and len(items):
+            for _, r in items[~items["passed"].astype(bool)].iterrows():
+                what = "homogeneous" if r["check"] == "homogeneity" else "stable"
+                if str(r.get("note", "")).startswith("not evaluated"):
+                    out.append(f"{r['measurand']}: whether the test items were {what} enough could not be "
+                               "checked: treat your score as indicative.")
+                else:
+                    out.append(f"{r['measurand']}: the test items may not have been {what} enough; the "
+                               "provider allowed for it as the round file says: treat your score with care.")
+        return out
 
     def _failed_checks(self) -> list[str]:
         out = []

@@ -16,12 +16,12 @@ import pandas as pd
 from roundscore.errors import Place
 from roundscore.model.round import DecimalMark
 
-__all__ = ["ResultTable", "Record", "COLUMNS", "table_frame"]
+__all__ = ["ResultTable", "Record", "SampleReceipt", "COLUMNS", "table_frame"]
 
 #: Columns of :attr:`ResultTable.frame`, in order.
 COLUMNS = (
     "lab", "measurand", "replicate", "status", "value", "text", "relation", "limit",
-    "unit", "u", "U", "k", "method", "comment", "file", "sheet", "row",
+    "unit", "u", "U", "k", "method", "comment", "file", "sheet", "row", "unit_given", "factor",
 )
 
 
@@ -56,6 +56,32 @@ class Record:
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
+class SampleReceipt:
+    """What a returned form says about the lab's sample: when it arrived, in what condition, when it was analysed.
+
+    Each is "" when the lab left it blank; the dates are ISO dates (YYYY-MM-DD). ``source`` names the form's
+    cells (``lab-K01.xlsx, Results!I2:I4``).
+    """
+
+    arrived: str = ""
+    condition: str = ""
+    analysed: str = ""
+    source: str = ""
+
+    #: (field, what a person reads) in the order shown.
+    LABELS = (("arrived", "Date the sample arrived"), ("condition", "Condition on arrival"),
+              ("analysed", "Date of analysis"))
+
+    def lines(self) -> list[tuple[str, str]]:
+        """(label, value) of each field filled in."""
+        return [(label, getattr(self, name)) for name, label in self.LABELS if getattr(self, name)]
+
+    def text(self) -> str:
+        """One line for the audit trail ("" when every field is blank)."""
+        return "; ".join(f"{label.lower()}: {value}" for label, value in self.lines())
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
 class ResultTable:
     """The participants' results, validated and in the measurands' units.
 
@@ -64,7 +90,12 @@ class ResultTable:
     frame : pandas.DataFrame
         Columns :data:`COLUMNS`. ``status`` is "value", "censored" or
         "blank" (not reported); ``value`` is NaN unless status is "value";
-        ``text`` keeps the number as typed for exact centring.
+        ``text`` keeps the number as typed for exact centring. ``value``,
+        ``limit``, ``u`` and ``U`` are in the measurand's ``unit``; a result
+        entered in another unit keeps that unit in ``unit_given`` and the
+        factor it was multiplied by in ``factor`` (``unit_given`` None and
+        ``factor`` 1 when it was entered in the measurand's unit), so the
+        evaluation can record every conversion.
     files : tuple of str
         The files read.
     warnings : tuple of str
@@ -75,6 +106,9 @@ class ResultTable:
     lab_places : dict of str to Place
         Where each lab code was first read (:class:`~roundscore.errors.Problem`
         fields file, sheet, row, column), for messages that name it.
+    receipts : dict of str to SampleReceipt
+        The sample's arrival, condition and analysis date each returned form
+        gives (labs whose form has none of them filled in are not listed).
     """
 
     frame: pd.DataFrame
@@ -82,6 +116,7 @@ class ResultTable:
     warnings: tuple[str, ...] = field(default=())
     readings: tuple[tuple[str, str], ...] = field(default=())
     lab_places: dict[str, Place] = field(default_factory=dict)
+    receipts: dict[str, SampleReceipt] = field(default_factory=dict)
 
     @property
     def labs(self) -> list[str]:
@@ -92,5 +127,6 @@ def table_frame(rows: list[tuple]) -> pd.DataFrame:
     """The :attr:`ResultTable.frame` of validated rows (from :func:`validate_records`), in table order."""
     frame = pd.DataFrame(rows, columns=list(COLUMNS))
     frame = frame.astype({"replicate": "int64", "value": "float64", "limit": "float64",
-                          "u": "float64", "U": "float64", "k": "float64", "row": "int64"})
+                          "u": "float64", "U": "float64", "k": "float64", "row": "int64",
+                          "factor": "float64"})
     return frame.sort_values(["measurand", "lab", "replicate"], kind="stable").reset_index(drop=True)

@@ -29,8 +29,9 @@ from typing import Literal, TypeAlias
 __all__ = ["Document", "Block", "Heading", "Paragraph", "Bullets", "Facts", "Column", "Cell", "Table",
            "Figure", "Section", "TextStyle"]
 
-#: How a paragraph reads: ordinary text, a muted note, a caution box, the confidential box, small print.
-TextStyle = Literal["body", "note", "caution", "confidential", "small"]
+#: How a paragraph reads: ordinary text, a muted note, a caution box, the confidential box, small print, an
+#: alert (a failed check heading a page).
+TextStyle = Literal["body", "note", "caution", "confidential", "small", "alert"]
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -117,6 +118,9 @@ class Figure:
     #: The share of the text width it takes (1.0 full width; a square plot less).
     width: float = 1.0
     anchor: str = ""
+    #: "plot" (a figure with its title and caption) or "strip" (a lab page's score strip: a row of a list of
+    #: strips, drawn at its own size with no caption).
+    kind: Literal["plot", "strip"] = "plot"
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -140,3 +144,9 @@ class Document:
     subtitle: str = ""
     #: Text of the running footer on every printed page (e.g. "Confidential to laboratory L01"); "" for none.
     footer: str = ""
+    #: The paper it prints on (``[round] paper``: "a4" or "letter").
+    paper: str = "a4"
+    #: Whether a rendering lists the top-level sections first (a table of contents; the round report).
+    contents: bool = False
+    #: The round's signal vocabulary (``[round] words``): the word a rendering gives a signal cell's tooltip.
+    words: str = "signals"

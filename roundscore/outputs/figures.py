@@ -37,6 +37,7 @@ from roundscore.outputs.figure_base import (MAX_BARS, PROFILE_POINTS, SQUARE, SV
 from roundscore.outputs.figures_precision import (MANDEL_STATISTICS, StabilityPlot, homogeneity_figure, mandel_figure,
                                                   mandel_limits, stability_figure)
 from roundscore.model.scores import SCORE_FIELD, family_of, score_label
+from roundscore.model.evaluation import STATE_SIDE
 from roundscore.model.signals import SCORED_SIGNALS, SIGNALS
 from roundscore.outputs.look import LIMIT_LINE, PALETTE, SIGNAL_COLOUR, SIGNAL_MARKER, SIGNAL_WORD
 
@@ -89,7 +90,7 @@ def z_bar_figure(labs: Sequence[str], values: Sequence[float], signals: Sequence
     to its edge with their value printed.
     """
     v = np.asarray(values, dtype=float)
-    keep = np.isfinite(v)
+    keep = ~np.isnan(v)  # −inf / +inf: a censored false negative / positive, drawn at the axis' end
     labs_k = [lab for lab, k in zip(labs, keep) if k]
     sig = np.asarray(signals, dtype=object)[keep]
     v = v[keep]
@@ -99,7 +100,8 @@ def z_bar_figure(labs: Sequence[str], values: Sequence[float], signals: Sequence
     n = len(v)
     lims = _limits(score)
     top = max(lims[-1][0] + 1.0, 4.0)
-    bound = float(min(max(top, math.ceil(np.max(np.abs(v))) + 0.5 if n else top), 2 * top))
+    fin = v[np.isfinite(v)]
+    bound = float(min(max(top, math.ceil(np.max(np.abs(fin))) + 0.5 if len(fin) else top), 2 * top))
     fig, ax = new_figure(WIDE, bottom=0.2 if n <= MAX_BARS else 0.1)
     pos = np.arange(n, dtype=float)
     shown = np.clip(v, -bound, bound)
@@ -125,7 +127,8 @@ def z_bar_figure(labs: Sequence[str], values: Sequence[float], signals: Sequence
             ax.plot(pos[sel], tips, linestyle="none", marker=SIGNAL_MARKER[s], markersize=5 if n <= MAX_BARS else 4,
                     markerfacecolor=SIGNAL_COLOUR[s], markeredgecolor="#000000", markeredgewidth=0.5)
     for i in np.flatnonzero(np.abs(v) > bound):
-        ax.annotate(f"{v[i]:.3g}", (pos[i], shown[i]), xytext=(0, 6 if v[i] > 0 else -12),
+        ax.annotate(f"{v[i]:.3g}" if np.isfinite(v[i]) else "censored", (pos[i], shown[i]),
+                    xytext=(0, 6 if v[i] > 0 else -12),
                     textcoords="offset points", ha="center", fontsize=7)
     for lim, word, style in lims:
         for sign in (1, -1):
@@ -139,10 +142,12 @@ def z_bar_figure(labs: Sequence[str], values: Sequence[float], signals: Sequence
     signal_legend(ax, list(sig), words, loc="upper left", ncol=3)
     if png:
         return png_bytes(fig)
-    marks = {lab: (float(p), float(z)) for lab, p, z in zip(labs_k, pos, v)}
+    marks = {lab: (float(p), float(z)) for lab, p, z in zip(labs_k, pos, shown)}
     caption = (f"{score_label(score)} of {n} laboratories, ranked; lines at the "
                + " and ".join(f"{w} ±{lim:g}" for lim, w, _ in lims)
-               + ". Colour, marker shape and the legend word show each signal.")
+               + ". Colour, marker shape and the legend word show each signal."
+               + (" A censored result whose limit is beyond the action limit (a false negative or positive) "
+                  "has no score value: it is drawn at the axis' end, marked censored." if np.isinf(v).any() else ""))
     return finish_figure(fig, ax, key=key, title=title, caption=caption, kind="bar", marks=marks)
 
 
@@ -468,7 +473,11 @@ def _draw(ev, task: tuple[str, ...]) -> dict:
     label = m.settings.label or name
     g = ev.measurand_rows("scores", name)
     if m.scored and len(g):
-        out["scores"] = z_bar_figure(g["lab"].tolist(), g[SCORE_FIELD[m.settings.score]].to_numpy(float),
+        values = g[SCORE_FIELD[m.settings.score]].to_numpy(float)
+        if "state" in g.columns:  # a censored false negative (positive) has its signal, not a value
+            side = g["state"].map(STATE_SIDE).fillna(0).to_numpy(float)
+            values = np.where(side < 0, -np.inf, np.where(side > 0, np.inf, values))
+        out["scores"] = z_bar_figure(g["lab"].tolist(), values,
                                      g["signal"].tolist(), key=f"z-{name}", score=m.settings.score,
                                      title=f"{label}: {score_label(m.settings.score)} by laboratory", words=words)
     labs = m.labs

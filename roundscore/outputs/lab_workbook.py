@@ -2,10 +2,12 @@
 
 Sheets: ``Scores`` (the lab's results, scores and signals, beside each score
 what the lab needs to read it and where it stands among all labs, with a
-native chart of its scores per score family), ``Chart data``, ``History`` (the
+native chart of its scores per score family), ``How to read`` (what the scores
+compare, the signal limits and what a signal asks of the lab:
+:mod:`roundscore.outputs.guidance`), ``Chart data``, ``History`` (the
 lab's earlier rounds of the scheme, when an archive is given, with a line
 chart per score family), a sheet per per-lab stage table that does not fold
-into the Scores sheet, and the machine-readable ``data`` and ``round`` sheets
+into the Scores sheet, and, hidden and last, the machine-readable ``data`` and ``round`` sheets
 (the history commands read them back: their layout is a contract, see
 :data:`~roundscore.model.evaluation.SCORE_COLUMNS`). The ``data`` sheet holds
 its numbers to 12 significant digits and a digest of each row (column
@@ -30,11 +32,13 @@ import xlsxwriter
 from roundscore.model.digest import DIGEST_KEY, ROW_DIGEST_COLUMN, row_digest, sheet_digest, sheet_value
 from roundscore.model.evaluation import SCORE_COLUMNS
 from roundscore.model.scores import SCORE_FAMILIES, SCORE_FIELD, ScoreFamily, family_of
+from roundscore.outputs.guidance import GUIDANCE_TITLE, how_to_read
 from roundscore.outputs.look import CAUTION, LIMIT_LINE, PALETTE
 from roundscore.outputs.payloads import LabPayload, lab_payload
-from roundscore.outputs.workbook_base import (FIXED_TIME, OPTIONS, SCORE_DECIMALS, Formats, columns_of, fit_widths,
-                                              print_setup, score_chart, score_table_columns, set_widths, write_table,
-                                              write_value)
+from roundscore.outputs.workbook_base import (CHART_HEIGHT, CHART_ROWS, FIXED_TIME, OPTIONS, SCORE_DECIMALS, Chart,
+                                              Formats, axis_limit, clip_to, columns_of, fit_widths, print_setup,
+                                              score_chart, score_table_columns, set_widths, stage_sheet, value_axis,
+                                              write_table, write_value)
 
 __all__ = ["write_lab_workbook", "lab_payload", "LabPayload", "LAB_FORMAT", "LAB_FOLD", "SUMMARY_POINTER"]
 
@@ -114,6 +118,7 @@ def write_lab_workbook(payload: LabPayload, path: Path) -> None:
     fm = Formats(wb)
     ws = wb.add_worksheet("Scores")
     r = _heading(ws, fm, payload)
+    tall = {r - 2: 45.0}  # the caution's row (the table head's is added below)
     table, folded, notes, sheets = _score_rows(payload)
     for line in notes:
         ws.write_string(r, 0, line)
@@ -121,41 +126,73 @@ def write_lab_workbook(payload: LabPayload, path: Path) -> None:
     r += 1
     cols, head, fixed = _score_sheet_columns(folded)
     top = r
+    tall[top] = 30.0
     end = write_table(ws, fm, r, table, cols, head, fixed, "signal", rd.words, row_decimals=payload.decimals)
     ws.freeze_panes(top + 1, 1)
     ws.set_row(top, 30)  # the wrapped head
     widths = fit_widths(table, cols, head, {**fixed, "result": 4, "assigned": 4, "u_assigned": 4, "sigma_pt": 4,
                                             "d": 4}, "signal")
-    set_widths(ws, [max(w, 16 if j == 0 else 7) for j, w in enumerate(widths)])
-    _score_charts(wb, ws, fm, payload, table, end + 1)
-    print_setup(ws, rd.id, top)
+    widths = [max(w, 16 if j == 0 else 7) for j, w in enumerate(widths)]
+    set_widths(ws, widths)
+    _guidance_sheet(wb, fm, payload)  # second: what a person reads first after the scores
+    charts = _score_charts(wb, ws, fm, payload, table, end + 1)
+    _print(ws, payload, top, widths, end + 1 + CHART_ROWS * len(charts), charts=charts, row_points=tall,
+           title="Score sheet")
     if payload.history is not None and len(payload.history):
         _history_sheet(wb, fm, payload, table)
     for name, frame in sheets.items():
         if len(frame):
-            xs = wb.add_worksheet(name.capitalize()[:31])
-            write_table(xs, fm, 0, frame, list(frame.columns))
-            xs.freeze_panes(1, 0)
-            set_widths(xs, fit_widths(frame, list(frame.columns), decimals={c: 4 for c in frame.columns}))
-            print_setup(xs, rd.id, 0)
+            xs, xwidths, last = stage_sheet(wb, fm, name, frame, payload.decimals)
+            _print(xs, payload, 0, xwidths, last, title=name.capitalize())
     _machine_sheets(wb, fm, payload, table)
     wb.close()
 
 
+def _guidance_sheet(wb, fm: Formats, payload: LabPayload) -> None:
+    """The sheet "How to read your scores" (:func:`roundscore.outputs.guidance.how_to_read`, in the round's
+    words): a title, each part's title in bold, its text and bullets wrapped in one wide column; portrait."""
+    ws = wb.add_worksheet("How to read")
+    ws.write_string(0, 0, GUIDANCE_TITLE, fm.title)
+    width = 100  # characters: one column, about a portrait page wide
+
+    def para(row: int, text: str, fmt) -> None:  # a wrapped paragraph gets the height of its lines (programs
+        ws.set_row(row, 15.0 * max(1, math.ceil(len(text) * 1.1 / width)))  # do not grow rows on opening)
+        ws.write_string(row, 0, text, fmt)
+
+    r = 2
+    for part in how_to_read(payload.round.words):
+        ws.write_string(r, 0, part.title, fm.bold)
+        para(r + 1, part.text, fm.wrap)
+        r += 2
+        for bullet in part.bullets:
+            para(r, f"• {bullet}", fm.wrap)
+            r += 1
+        r += 1
+    para(r, CAUTION, fm.caution)
+    _print(ws, payload, None, [width], r, landscape=False, title=GUIDANCE_TITLE)
+
+
+def _print(ws, payload: LabPayload, head_row: int | None, widths: list, last_row: int, **kw) -> None:
+    """A lab file's sheet prints on the round's paper, its header naming the round and the lab."""
+    print_setup(ws, payload.round.id, head_row, paper=payload.round.paper, lab=payload.lab, widths=widths,
+                last_row=last_row, **kw)
+
+
 def _heading(ws, fm: Formats, payload: LabPayload) -> int:
-    """The title, the lab and the round, failed checks, the caution and where the statistics are; the next row."""
+    """The title, the lab and the round, what failed checks mean for its scores, the caution and where the
+    statistics are; the next row."""
     rd, lab = payload.round, payload.lab
     ws.write_string(0, 0, f"Proficiency test round {rd.id}: score sheet for laboratory {lab}", fm.title)
     r = 1
     for label, value in (("Laboratory code", lab), ("Laboratory", payload.name), ("Contact", payload.contact),
                          ("Round", rd.id), ("Title", rd.title), ("Scheme", rd.scheme),
-                         ("Date", rd.date), ("Material", rd.material)):
+                         ("Date", rd.date), ("Material", rd.material), *payload.receipt):
         if value:
             ws.write_string(r, 0, label, fm.bold)
             ws.write_string(r, 1, str(value))
             r += 1
-    for line in payload.failed_checks:
-        ws.write_string(r, 0, "Check failed: " + line, fm.alert)
+    for line in payload.notices:  # plain words for the lab; the technical findings are in the summary
+        ws.write_string(r, 0, line, fm.alert)
         r += 1
     ws.merge_range(r, 0, r, 9, "CONFIDENTIAL to the laboratory named above. " + CAUTION, fm.caution)
     ws.set_row(r, 45)
@@ -195,7 +232,7 @@ def _score_sheet_columns(folded: list) -> tuple[list[str], list[str], dict[str, 
     return cols, head, fixed
 
 
-def _score_charts(wb, ws, fm: Formats, payload: LabPayload, table: dict[str, list], row: int) -> None:
+def _score_charts(wb, ws, fm: Formats, payload: LabPayload, table: dict[str, list], row: int) -> list[Chart]:
     """Native charts of the lab's official score per measurand, one per score family (their limits differ),
     from ``row`` down the Scores sheet; their data on the sheet ``Chart data``."""
     lab, words = payload.lab, payload.round.words
@@ -209,7 +246,8 @@ def _score_charts(wb, ws, fm: Formats, payload: LabPayload, table: dict[str, lis
             chart_rows.append((family, [measurands[i] for i in part], [table["official"][i] for i in part],
                                [table["signal"][i] for i in part]))
     if not chart_rows:
-        return
+        return []
+    placed = []
     cd = wb.add_worksheet("Chart data")
     cd.write_string(0, 0, f"Data of the charts: laboratory {lab}'s scores by measurand", fm.bold)
     at = 2
@@ -219,10 +257,14 @@ def _score_charts(wb, ws, fm: Formats, payload: LabPayload, table: dict[str, lis
         c, at = score_chart(wb, cd, fm, at, names, values, signals, name, family.members[0].name, words,
                             f"Laboratory {lab}: {name} by measurand")
         c.set_x_axis({"name": "measurand", "num_font": {"rotation": -45, "size": 8}, "label_position": "low"})
-        c.set_size({"width": 640, "height": 320})
+        c.set_size({"width": 640, "height": CHART_HEIGHT})
         ws.insert_chart(row, 0, c)
-        row += 17
-    set_widths(cd, [12, 16, 10, 14, 14, 14, 10, 10, 10, 10])
+        placed.append(Chart(row, CHART_HEIGHT, 640))
+        row += CHART_ROWS
+    widths = [12, 16, 10, 12, 14, 14, 14, 10, 10, 10, 10]
+    set_widths(cd, widths)
+    _print(cd, payload, None, widths, at - 2, title="Chart data")
+    return placed
 
 
 #: Colours and marker shapes of the history chart's lines, one pair per measurand: shape and colour both vary,
@@ -249,7 +291,8 @@ def _history_sheet(wb, fm: Formats, payload: LabPayload, table: dict[str, list])
                       ["round_date", "round", "measurand", "unit", "result", "assigned", "sigma_pt",
                        "score", "score_value", "signal", "note"],
                       ["Date", "Round", "Measurand", "Unit", "Your result", "Assigned value", "σ_pt",
-                       "Score", "Your score", "Signal", "Note"], {"score_value": 2}, "signal", rd.words)
+                       "Score", "Your score", "Signal", "Note"], {"score_value": 2}, "signal", rd.words,
+                      row_decimals=payload.decimals)  # values to the measurand's decimals, σ_pt one more
     order, points = _history_points(payload, table)
     families = {f.symbol: f for f in SCORE_FAMILIES.values()}
     rank = {symbol: i for i, symbol in enumerate(families)}
@@ -263,24 +306,30 @@ def _history_sheet(wb, fm: Formats, payload: LabPayload, table: dict[str, list])
     for j, h in enumerate(heads):
         hs.write_string(top + 1, j, h, fm.head)
     first, last = top + 2, top + 1 + len(order)
+    # each family's axis (workbook_base.axis_limit); a score beyond it is written at the edge, labelled
+    limit = {f.symbol: axis_limit([v for (_, s, _m), v in points.items() if s == f.symbol], f)
+             for f in families.values()}
     for i, label in enumerate(order):
         hs.write_string(first + i, 0, label)
         for j, (f, m) in enumerate(series, start=1):
-            write_value(hs, first + i, j, points.get((label, f, m)), fm.decimals(2))
+            write_value(hs, first + i, j, clip_to([points.get((label, f, m))], limit[f]).drawn[0], fm.decimals(2))
         for j, (_f, lim, _word) in enumerate(limits):
             hs.write_number(first + i, 1 + len(series) + 2 * j, lim)
             hs.write_number(first + i, 2 + len(series) + 2 * j, -lim)
-    row = 3
+    row, placed = last + 2, []  # the charts below their data, so the sheet prints one table wide
+    true = {j: [points.get((label, f, m)) for label in order] for j, (f, m) in enumerate(series, start=1)}
     for family in families.values():
         cols = [j for j, (f, _) in enumerate(series, start=1) if f == family.symbol]
         if not cols:
             continue
-        values = [v for (_, f, _m), v in points.items() if f == family.symbol]
-        hs.insert_chart(row, 12, _history_chart(wb, family, lab, cols, series, limits, values, top, first, last))
-        row += 17
+        hs.insert_chart(row, 0, _history_chart(wb, family, lab, cols, series, limits, true,
+                                               limit[family.symbol], top, first, last))
+        placed.append(Chart(row, CHART_HEIGHT, 640))
+        row += CHART_ROWS
     hs.freeze_panes(4, 0)
-    set_widths(hs, [24, 14, 14, 9, 11, 12, 10, 8, 10, 18, 40])
-    print_setup(hs, rd.id)
+    widths = [24, 14, 14, 9, 11, 12, 10, 8, 10, 18, 40]
+    set_widths(hs, widths)
+    _print(hs, payload, 3, widths, row, charts=placed, title="History")
 
 
 def _history_points(payload: LabPayload, table: dict[str, list]
@@ -306,18 +355,24 @@ def _history_points(payload: LabPayload, table: dict[str, list]
 
 
 def _history_chart(wb, family: ScoreFamily, lab: str, cols: list[int], series: list[tuple[str, str]],
-                   limits: list[tuple[str, float, str]], values: list[float], top: int, first: int,
-                   last: int) -> Any:
-    """The line chart of one score family on the History sheet: a line per measurand, the limit lines."""
+                   limits: list[tuple[str, float, str]], true: dict[int, list], limit: float, top: int,
+                   first: int, last: int) -> Any:
+    """The line chart of one score family on the History sheet: a line per measurand, the limit lines; the
+    value axis fixed at ±``limit``, a score beyond it drawn at the edge with its true value (``true``: the
+    scores of each column) as its label."""
     ch = wb.add_chart({"type": "line"})
     cats = ["History", first, 0, last, 0]
     for k, j in enumerate(cols):  # shape and colour both vary: colour is not the only cue
         c = HISTORY_COLOURS[k % len(HISTORY_COLOURS)]
-        ch.add_series({"name": ["History", top + 1, j], "categories": cats,
-                       "values": ["History", first, j, last, j],
-                       "line": {"color": c, "width": 1.5},
-                       "marker": {"type": HISTORY_SHAPES[k % len(HISTORY_SHAPES)], "size": 6,
-                                  "fill": {"color": c}, "border": {"color": c}}})
+        spec = {"name": ["History", top + 1, j], "categories": cats,
+                "values": ["History", first, j, last, j],
+                "line": {"color": c, "width": 1.5},
+                "marker": {"type": HISTORY_SHAPES[k % len(HISTORY_SHAPES)], "size": 6,
+                           "fill": {"color": c}, "border": {"color": c}}}
+        labels = clip_to(true[j], limit).labels(true[j], ("below", "above"))
+        if labels is not None:
+            spec["data_labels"] = labels
+        ch.add_series(spec)
     hidden = []  # legend entries of the "-" limit lines (the "+" line names the pair)
     n_series = len(cols)
     for j, (f, lim, word) in enumerate(limits):
@@ -332,26 +387,25 @@ def _history_chart(wb, family: ScoreFamily, lab: str, cols: list[int], series: l
                            "values": ["History", first, col, last, col],
                            "line": {"color": _LIMIT_GREY, "width": 0.75, "dash_type": LIMIT_LINE[word]["chart"]},
                            "marker": {"type": "none"}})
-    bound = family.action + 1
-    if max(abs(v) for v in values) <= bound:
-        ch.set_y_axis({"min": -bound, "max": bound, "name": "score"})
-    else:
-        ch.set_y_axis({"name": "score"})
+    ch.set_y_axis(value_axis("score", limit))
     ch.set_title({"name": f"Laboratory {lab}: {family.heading} by round"})
     ch.set_legend({"position": "bottom", "delete_series": hidden})
     ch.show_blanks_as("gap")
-    ch.set_size({"width": 640, "height": 320})
+    ch.set_size({"width": 640, "height": CHART_HEIGHT})
     return ch
 
 
 def _machine_sheets(wb, fm: Formats, payload: LabPayload, table: dict[str, list]) -> None:
     """The sheets ``data`` (the score rows with their digests) and ``round`` (the round's keys and the sheet's
-    digest), read back by ``history add``."""
+    digest), read back by ``history add``: hidden (never printed) and last, so no sheet a person reads comes
+    after them."""
     rd = payload.round
     data = wb.add_worksheet("data")
+    data.hide()
     rows, digests = _data_rows(table)
     write_table(data, fm, 0, rows, [*SCORE_COLUMNS, ROW_DIGEST_COLUMN])
     meta = wb.add_worksheet("round")
+    meta.hide()
     pairs: list[tuple[str, Any]] = [("generator", "roundscore"), ("format", LAB_FORMAT), ("scheme", rd.scheme),
                                     ("round", rd.id), ("round_date", rd.date), ("lab", payload.lab),
                                     ("title", rd.title)]

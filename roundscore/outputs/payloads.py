@@ -30,6 +30,8 @@ class RoundFacts:
     id, title, scheme, date, provider, material : str
     words : {"signals", "performance"}
         The signal vocabulary (``[round] words``).
+    paper : {"a4", "letter"}
+        The paper the sheets print on (``[round] paper``).
     """
 
     id: str
@@ -39,12 +41,13 @@ class RoundFacts:
     provider: str
     material: str
     words: Words
+    paper: str = "a4"
 
     @classmethod
     def of(cls, rnd: Round) -> RoundFacts:
         """The facts of a round's settings."""
         return cls(id=rnd.id, title=rnd.title, scheme=rnd.scheme, date=rnd.date, provider=rnd.provider,
-                   material=rnd.material, words=rnd.words)
+                   material=rnd.material, words=rnd.words, paper=rnd.paper)
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -58,7 +61,13 @@ class LabPayload:
         The lab's code, and its name and contact from the participants file
         ("" when not given; only the lab's own sheet shows them).
     failed_checks : tuple of str
-        Headlines of the round's failed checks (they head the sheet).
+        Headlines of the round's failed checks, in the coordinator's words (not shown to the lab).
+    notices : tuple of str
+        What those checks mean for the lab's scores, in plain words
+        (:attr:`~roundscore.model.evaluation.RoundEvaluation.lab_notices`): they head the sheet.
+    receipt : tuple of (str, str)
+        What the lab's returned form says of its sample (label, value: the date it arrived, its condition,
+        the date of analysis), the fields it filled in; empty without them.
     scores : pandas.DataFrame
         The lab's rows of the scores (:data:`~roundscore.model.evaluation.SCORE_COLUMNS`,
         ``rank``, ``n_scored``).
@@ -83,6 +92,8 @@ class LabPayload:
     decimals: Mapping[str, int | None]
     extras: Mapping[str, pd.DataFrame] = field(default_factory=dict)
     history: pd.DataFrame | None = None
+    notices: tuple[str, ...] = ()
+    receipt: tuple[tuple[str, str], ...] = ()
 
 
 def lab_payload(ev: RoundEvaluation, lab: str, history: pd.DataFrame | None = None) -> LabPayload:
@@ -94,5 +105,6 @@ def lab_payload(ev: RoundEvaluation, lab: str, history: pd.DataFrame | None = No
         p={n: m.p for n, m in ev.measurands.items()},
         decimals={n: m.decimals for n, m in ev.round.measurands.items()},
         extras={k: ev.lab_rows(k, lab) for k in ev.lab_tables if k != "scores"},
-        history=history,
+        history=history, notices=tuple(ev.lab_notices),
+        receipt=tuple(r.lines()) if (r := ev.table.receipts.get(lab)) is not None else (),
     )

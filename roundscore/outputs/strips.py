@@ -29,6 +29,7 @@ from collections.abc import Sequence
 
 import numpy as np
 
+from roundscore.model.evaluation import STATE_SIDE, STATES
 from roundscore.model.scores import SCORE_FAMILIES, family_of, score_label, score_symbol
 from roundscore.model.signals import SCORED_SIGNALS
 from roundscore.outputs.look import LIMIT_LINE, PALETTE, SIGNAL_COLOUR, SIGNAL_SYMBOL, SIGNAL_WORD
@@ -119,18 +120,30 @@ class ScoreStrip:
     n: int
     svg: str
 
-    def for_lab(self, lab: str, value: float | None, signal: str | None, words: str = "signals") -> str:
+    def for_lab(self, lab: str, value: float | None, signal: str | None, words: str = "signals",
+                state: str | None = None) -> str:
         """The strip with ``lab``'s score marked (``value`` None or NaN: the gutter says it is not scored).
 
         The appended ``<g class="lab-mark">`` holds the lab's text in the
         gutter, a line at its score and a marker whose shape and colour give
         its signal; a score beyond the axis sits at the edge with its value.
+        ``state`` is the evaluation's (:data:`roundscore.model.evaluation.STATES`): a censored false
+        negative (positive) has no value but its signal, and is drawn with that signal beyond the axis'
+        low (high) end; a state without a score (withheld, not reported ...) is said in words, unmarked.
         """
         sig = signal if signal in SIGNAL_COLOUR else "not-scored"
         word = SIGNAL_WORD[words].get(sig, sig)
         finite = value is not None and isinstance(value, (int, float)) and math.isfinite(value)
+        side = STATE_SIDE.get(state or "", 0)
         parts = []
-        if finite and value is not None:
+        if not finite and side:
+            # a censored result judged by its limit: its signal at the axis' end, no number
+            x = _x(side * STRIP_RANGE)
+            text = f"{SIGNAL_SYMBOL.get(sig, '')} {word}: {STATES[state or '']}"
+            parts.append(f'<line x1="{_f(x)}" y1="{_f(_TOP - 2)}" x2="{_f(x)}" y2="{_f(_AXIS)}" stroke="#000000" '
+                         f'stroke-width="1.6" stroke-dasharray="3 2"/>')
+            parts.append(_marker(x, _AXIS, sig))
+        elif finite and value is not None:
             v = float(value)
             text = f"{score_symbol(self.score)} = {v:.2f}  {SIGNAL_SYMBOL.get(sig, '')} {word}"
             clamped = abs(v) > STRIP_RANGE
@@ -148,7 +161,9 @@ class ScoreStrip:
                              f'font-weight="bold" text-anchor="{"end" if right else "start"}" fill="#000000" '
                              f'stroke="#FFFFFF" stroke-width="3" paint-order="stroke">{v:.3g}</text>')
         else:
-            text = f"{SIGNAL_SYMBOL['not-scored']} {SIGNAL_WORD[words]['not-scored']}"
+            what = STATES.get(state or "", "")
+            text = (f"{SIGNAL_SYMBOL['not-scored']} {what}" if state not in (None, "scored", "not-scored")
+                    else f"{SIGNAL_SYMBOL['not-scored']} {SIGNAL_WORD[words]['not-scored']}")
         parts.append(f'<text x="8" y="32" font-size="10.5" fill="#000000">{html.escape(text)}</text>')
         label = html.escape(f"{self.title}: {text}, your lab ({lab})")
         overlay = f'<g class="lab-mark" aria-label="{label}">{"".join(parts)}</g>'

@@ -33,11 +33,12 @@ from roundscore.model.evaluation import STATISTICS_COLUMNS, RoundEvaluation
 from roundscore.model.scores import SCORE_FIELD, score_label
 from roundscore.outputs.lab_workbook import (LAB_FOLD, LAB_FORMAT, SUMMARY_POINTER, lab_payload,
                                              write_lab_workbook)
+from roundscore.outputs.headings import headings
 from roundscore.outputs.look import CAUTION
 from roundscore.outputs.payloads import LabPayload, RoundFacts
-from roundscore.outputs.workbook_base import (FIXED_TIME, MAX_WIDTH, MIN_WIDTH, OPTIONS, SCORE_DECIMALS, Formats,
-                                              fit_widths, print_setup, score_chart, score_table_columns, set_widths,
-                                              write_table)
+from roundscore.outputs.workbook_base import (CHART_HEIGHT, CHART_ROWS, FIXED_TIME, MAX_WIDTH, MIN_WIDTH, OPTIONS,
+                                              SCORE_DECIMALS, Chart, Formats, fit_widths, print_setup, score_chart,
+                                              score_table_columns, set_widths, stage_sheet, write_table)
 # The shared helpers under their former names here (tests read them from this module).
 from roundscore.outputs.workbook_base import (OPTIONS as _OPTIONS, Formats as _Formats,  # noqa: F401
                                               fit_widths as _fit, tint as _tint, write_table as _table)
@@ -115,30 +116,36 @@ def _write_summary(ev: RoundEvaluation, path: Path, options: dict[str, Any]) -> 
     for w in ev.warnings:
         ws.write_string(r, 0, "Note: " + w)
         r += 1
-    set_widths(ws, [max(w, 12) for w in fit_widths(frame, list("abcdefg"), head[:7])] + [40, 40, 16, 60])
+    widths = [max(w, 12) for w in fit_widths(frame, list("abcdefg"), head[:7])] + [40, 40, 16, 60]
+    set_widths(ws, widths)
     ws.freeze_panes(head_row + 1, 1)
-    print_setup(ws, rnd.id, head_row)
+    paper: dict[str, Any] = {"paper": rnd.paper, "title": "Round summary"}
+    print_setup(ws, rnd.id, head_row, widths=widths, last_row=r - 1, **paper)
     # Statistics
     ws = wb.add_worksheet("Statistics")
-    write_table(ws, fm, 0, ev.statistics, STATISTICS_COLUMNS, row_decimals=dec)
+    stat_heads = headings(STATISTICS_COLUMNS)
+    ws.set_row(0, 30)  # the wrapped heads
+    end = write_table(ws, fm, 0, ev.statistics, STATISTICS_COLUMNS, stat_heads, row_decimals=dec)
     ws.freeze_panes(1, 1)
-    set_widths(ws, fit_widths(ev.statistics, STATISTICS_COLUMNS, decimals={c: 4 for c in STATISTICS_COLUMNS}))
-    print_setup(ws, rnd.id, 0)
+    widths = fit_widths(ev.statistics, STATISTICS_COLUMNS, stat_heads, decimals={c: 4 for c in STATISTICS_COLUMNS})
+    set_widths(ws, widths)
+    print_setup(ws, rnd.id, 0, widths=widths, last_row=end - 1, **paper)
     # Scores
     ws = wb.add_worksheet("Scores")
     sc = ev.scores
     end = write_table(ws, fm, 0, sc, _SCORE_COLS, _SCORE_HEAD, SCORE_DECIMALS, "signal", rnd.words, row_decimals=dec)
     ws.freeze_panes(1, 2)
     ws.autofilter(0, 0, max(end - 1, 1), len(_SCORE_COLS) - 1)
-    set_widths(ws, fit_widths(sc, _SCORE_COLS, _SCORE_HEAD, {**SCORE_DECIMALS, "result": 4, "assigned": 4,
-                                                     "u_assigned": 4, "sigma_pt": 4, "d": 4}, "signal"))
-    print_setup(ws, rnd.id, 0)
+    widths = fit_widths(sc, _SCORE_COLS, _SCORE_HEAD, {**SCORE_DECIMALS, "result": 4, "assigned": 4,
+                                                       "u_assigned": 4, "sigma_pt": 4, "d": 4}, "signal")
+    set_widths(ws, widths)
+    print_setup(ws, rnd.id, 0, widths=widths, last_row=end - 1, **paper)
     # Charts: one native chart of the official score per measurand, labs ranked by score, with the
     # signal as marker shape and legend word as well as colour, and the limit lines.
     ch = wb.add_worksheet("Charts")
     cd = wb.add_worksheet("Chart data")
     cd.write_string(0, 0, "Data of the charts: each measurand's official scores, ranked", fm.bold)
-    row, top = 0, 2
+    row, top, placed = 0, 2, []
     for name, m in ev.measurands.items():
         g = ev.measurand_rows("scores", name)
         if not len(g) or not m.scored:
@@ -152,23 +159,24 @@ def _write_summary(ev: RoundEvaluation, path: Path, options: dict[str, Any]) -> 
                               g["signal"].to_numpy()[keep][order].tolist(), f"{name} ({m.settings.score})",
                               m.settings.score, rnd.words,
                               f"{name}: {score_label(m.settings.score)} by laboratory (ranked)")
-        c.set_size({"width": 900, "height": 320})
+        c.set_size({"width": 900, "height": CHART_HEIGHT})
         ch.insert_chart(row, 0, c)
-        row += 17
+        placed.append(Chart(row, CHART_HEIGHT, 900))
+        row += CHART_ROWS
     cd.freeze_panes(2, 0)
-    set_widths(cd, [12, 16, 10, 14, 14, 14, 10, 10, 10, 10])
-    print_setup(ch, rnd.id)
+    widths = [12, 16, 10, 12, 14, 14, 14, 10, 10, 10, 10]
+    set_widths(cd, widths)
+    print_setup(ch, rnd.id, charts=placed, last_row=max(row - 1, 0), widths=[10] * 12, **paper)  # 12 columns: 900 px
+    print_setup(cd, rnd.id, widths=widths, last_row=max(top - 2, 1), **paper)
     # Left out / audit
     ws = wb.add_worksheet("Audit")
-    write_table(ws, fm, 0, ev.audit, list(ev.audit.columns))
+    end = write_table(ws, fm, 0, ev.audit, list(ev.audit.columns), headings(ev.audit.columns))
     ws.freeze_panes(1, 0)
-    set_widths(ws, fit_widths(ev.audit, list(ev.audit.columns)))
-    print_setup(ws, rnd.id, 0)
+    widths = fit_widths(ev.audit, list(ev.audit.columns), headings(ev.audit.columns))
+    set_widths(ws, widths)
+    print_setup(ws, rnd.id, 0, widths=widths, last_row=end - 1, **paper)
     for name, frame in ev.extras.items():
         if isinstance(frame, pd.DataFrame) and len(frame.columns):
-            ws = wb.add_worksheet(name.capitalize()[:31])
-            write_table(ws, fm, 0, frame, list(frame.columns))
-            ws.freeze_panes(1, 0)
-            set_widths(ws, fit_widths(frame, list(frame.columns), decimals={c: 4 for c in frame.columns}))
-            print_setup(ws, rnd.id, 0)
+            ws, widths, last = stage_sheet(wb, fm, name, frame, dec)
+            print_setup(ws, rnd.id, 0, widths=widths, last_row=last, **paper)
     wb.close()

@@ -15,19 +15,25 @@ from __future__ import annotations
 import datetime as dt
 import math
 from collections.abc import Iterable, Mapping
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 import pandas as pd
 import xlsxwriter
 
-from roundscore.model.scores import SCORES, family_of, score_label
+from roundscore.model.scores import SCORES, ScoreFamily, family_of, score_label
 from roundscore.model.signals import SCORED_SIGNALS
+from roundscore.outputs.headings import headings
 from roundscore.outputs.look import LIMIT_LINE, SIGNAL_CHART_MARKER, SIGNAL_COLOUR, SIGNAL_WORD, signal_label
+from roundscore.support.sheetprint import Chart, print_layout
 
 __all__ = ["FIXED_TIME", "OPTIONS", "Formats", "tint", "write_value", "columns_of", "write_table", "VALUE_COLUMNS",
-           "MIN_WIDTH", "MAX_WIDTH", "FIT_ROWS", "fit_widths", "set_widths", "print_setup", "score_chart",
-           "CHART_POINT_COLOURS", "SCORE_DECIMALS", "score_table_columns"]
+           "MIN_WIDTH", "MAX_WIDTH", "FIT_ROWS", "fit_widths", "set_widths", "print_setup", "Chart", "CHART_HEIGHT",
+           "CHART_ROWS", "score_chart",
+           "CHART_POINT_COLOURS", "SCORE_DECIMALS", "score_table_columns", "STAT_DECIMALS", "stage_decimals",
+           "stage_sheet", "AXIS_PERCENTILE", "AXIS_CAP",
+           "ScoreAxis", "axis_limit", "clip_to", "score_axis", "value_axis"]
 
 FIXED_TIME = dt.datetime(2000, 1, 1)
 # in_memory: assemble the package in memory instead of ~20 temporary files per workbook (about 2× faster).
@@ -158,7 +164,37 @@ def write_table(ws, fm: Formats, top: int, frame, columns: Iterable[str],
 
 #: Value columns shown with the measurand's decimals (+0) or one more (+1: uncertainties, σ_pt, robust SDs).
 VALUE_COLUMNS = {"result": 0, "assigned": 0, "d": 0, "robust_mean": 0, "median": 0, "u_assigned": 1,
-                 "sigma_pt": 1, "robust_sd": 1, "made": 1, "niqr": 1}
+                 "sigma_pt": 1, "robust_sd": 1, "made": 1, "niqr": 1,
+                 # the stage tables' values in the measurand's unit (items, precision, methods, Mandel)
+                 "mean": 0, "general_mean": 0, "difference": 0, "ci_low": 0, "ci_high": 0, "sd": 1, "s_x": 1,
+                 "s_w": 1, "s_s": 1, "s_r": 1, "s_L": 1, "s_R": 1, "r": 1, "R": 1, "s_r_robust": 1,
+                 "criterion": 1, "allowed": 1}
+#: Decimals of the stage tables' dimensionless numbers (common practice: statistics and critical values to
+#: 2 or 3 decimals, p-values to 4); other numbers show as the program's General format.
+STAT_DECIMALS: dict[str, int] = {"h": 2, "k": 2, "h_crit_5": 2, "h_crit_1": 2, "k_crit_5": 2, "k_crit_1": 2,
+                                 "statistic": 3, "critical_5": 3, "critical_1": 3, "f_statistic": 3,
+                                 "t_critical": 3, "p_value": 4, "p_adjusted": 4, "f_p_value": 4, "n_bar": 2}
+
+
+def stage_decimals(frame) -> dict[str, int | None]:
+    """The fixed decimals of a stage table's columns (:data:`STAT_DECIMALS`, those it has)."""
+    return {c: d for c, d in STAT_DECIMALS.items() if c in frame.columns}
+
+
+def stage_sheet(wb, fm: Formats, name: str, frame: pd.DataFrame,
+                row_decimals: Mapping[str, int | None]) -> tuple[Any, list[int], int]:
+    """A stage table (Mandel, screens, items ...) as a sheet of its own: display headings
+    (:mod:`roundscore.outputs.headings`), values to the measurand's decimals, statistics to
+    :data:`STAT_DECIMALS`. Returns (sheet, column widths, last row)."""
+    ws = wb.add_worksheet(name.capitalize()[:31])
+    cols, heads = list(frame.columns), headings(frame.columns)
+    fixed = stage_decimals(frame)
+    ws.set_row(0, 30)  # the wrapped heads (before the rows: constant_memory writes rows in order)
+    end = write_table(ws, fm, 0, frame, cols, heads, decimals=fixed, row_decimals=row_decimals)
+    ws.freeze_panes(1, 0)
+    widths = fit_widths(frame, cols, heads, decimals={**{c: 4 for c in cols}, **fixed})
+    set_widths(ws, widths)
+    return ws, widths, end - 1
 #: Widths (characters) a fitted column may take (common practice: readable without wrapping, notes capped).
 MIN_WIDTH, MAX_WIDTH = 6, 60
 #: Rows looked at to fit a column's width (enough to see the longest codes and notes; keeps big rounds fast).
@@ -205,14 +241,29 @@ def set_widths(ws, widths: list[int]) -> None:
         ws.set_column(j, j, w)
 
 
-def print_setup(ws, round_id: str, header_row: int | None = None) -> None:
-    """Landscape, fit to one page wide, the round id in the page header, the table head on every page."""
-    ws.set_landscape()
-    ws.set_paper(9)  # A4
-    ws.fit_to_pages(1, 0)
-    ws.set_header(f"&L{round_id.replace('&', '&&')}&RPage &P of &N")  # "&&" is a literal & in a header
-    if header_row is not None:
-        ws.repeat_rows(header_row)
+def print_setup(ws, round_id: str, header_row: int | None = None, *, paper: str = "a4", lab: str = "",
+                title: str = "", widths: Iterable[float] = (), last_row: int | None = None,
+                charts: Iterable[Chart] = (), landscape: bool | None = None,
+                row_points: Mapping[int, float] | None = None) -> None:
+    """How a sheet of a circulated workbook prints (:func:`roundscore.support.sheetprint.print_layout`).
+
+    ``paper`` is ``[round] paper``; the page header names the round (left),
+    the lab for a lab's file (centre) and ``title`` (right), the footer has the
+    page numbers. Rows up to ``header_row`` (the table head) print on every
+    page; with ``last_row`` the print area is the sheet's columns of ``widths``
+    down to that row. The sheet prints one page wide, landscape when it is wide,
+    and each of ``charts`` whole on one page.
+    """
+    widths = list(widths)
+    area = (0, 0, last_row, max(len(widths), 1) - 1) if last_row is not None else None
+    print_layout(ws, paper="letter" if paper == "letter" else "a4",
+                 header=(round_id, f"Laboratory {lab}" if lab else "", title),
+                 head_rows=(header_row, header_row) if header_row is not None else None, area=area,
+                 widths=widths, charts=list(charts), landscape=landscape, row_points=row_points)
+
+
+#: Height (pixels) of a score chart and the rows (of 20 px) from one chart to the next below it.
+CHART_HEIGHT, CHART_ROWS = 280, 15
 
 
 #: Workbook chart marker shapes of the scored signals (roundscore.outputs.look: circle, triangle, square).
@@ -220,6 +271,85 @@ _CHART_MARKER = {s: SIGNAL_CHART_MARKER[s] for s in SCORED_SIGNALS}
 #: Up to this many bars each data point is coloured by its signal (beyond, the file grows by a point
 #: entry per bar per chart; the marker series still carry the signals).
 CHART_POINT_COLOURS = 200
+
+
+#: The value axis of a score chart (common practice, chosen here): ±(action limit + 1), z-like ±4 and En ±2,
+#: widened to the :data:`AXIS_PERCENTILE` th percentile of |score| (the order statistic at or below it, so one
+#: gross error among a lab's five scores does not count as the bulk) rounded up when the bulk of the scores needs
+#: more, never past :data:`AXIS_CAP` times the base (z-like ±8, En ±4). A score beyond the axis is drawn at
+#: its edge and labelled with its true value, so one gross error (a decimal slip, z ≈ 6504) does not flatten
+#: every other bar.
+AXIS_PERCENTILE = 95
+AXIS_CAP = 2
+
+
+@dataclass(frozen=True, slots=True)
+class ScoreAxis:
+    """A score chart's value axis: ±``limit``, the scores as drawn (clipped to the axis), which are off scale."""
+
+    limit: float
+    drawn: list[float | None]
+    off_scale: list[bool]
+
+    def labels(self, values: Iterable[float | None], position: tuple[str, str] = ("inside_end", "inside_end"),
+               ) -> dict | None:
+        """Chart data labels (xlsxwriter's ``data_labels``) giving each off-scale point its true value, or
+        None when every point is on the scale. ``position``: where the label of a point at the top and at the
+        bottom edge goes."""
+        if not any(self.off_scale):
+            return None
+        custom: list[dict] = []
+        for v, off in zip(values, self.off_scale):
+            if off and v is not None:
+                custom.append({"value": f"{v:.2f}", "position": position[0] if v > 0 else position[1],
+                               "font": {"bold": True, "color": "#000000", "size": 8}})
+            else:
+                custom.append({"delete": True})
+        return {"value": True, "custom": custom}
+
+
+def axis_limit(values: Iterable[float | None], family: ScoreFamily) -> float:
+    """The half-range of the value axis of a chart of ``family``'s scores (the rule is at :data:`AXIS_PERCENTILE`).
+
+    >>> from roundscore.model.scores import SCORE_FAMILIES
+    >>> z, en = SCORE_FAMILIES["z-like"], SCORE_FAMILIES["en"]
+    >>> axis_limit([0.5, -1.2] * 10 + [6504.1], z), axis_limit([0.3] * 9 + [5.2] * 3, z), axis_limit([90.0] * 5, z)
+    (4.0, 6.0, 8.0)
+    >>> axis_limit([0.4, 1.6, -2.5], en), axis_limit([0.6, 6504.1, -0.8, 1.4, 0.9], z)
+    (2.0, 4.0)
+    """
+    base = family.action + 1.0
+    finite = np.array([abs(v) for v in values if v is not None and math.isfinite(v)], dtype=float)
+    if not finite.size:
+        return base
+    bulk = math.ceil(float(np.percentile(finite, AXIS_PERCENTILE, method="lower")))
+    return float(min(max(base, bulk), AXIS_CAP * base))
+
+
+def clip_to(values: Iterable[float | None], limit: float) -> ScoreAxis:
+    """The scores as drawn on an axis of ±``limit``: clipped to it, the off-scale ones marked."""
+    drawn: list[float | None] = []
+    off: list[bool] = []
+    for v in values:
+        if v is None or not math.isfinite(v):
+            drawn.append(None)
+            off.append(False)
+        else:
+            drawn.append(min(max(v, -limit), limit))
+            off.append(abs(v) > limit)
+    return ScoreAxis(limit=limit, drawn=drawn, off_scale=off)
+
+
+def score_axis(values: Iterable[float | None], family: ScoreFamily) -> ScoreAxis:
+    """The value axis of a chart of ``family``'s scores and the scores as drawn on it."""
+    vals = list(values)
+    return clip_to(vals, axis_limit(vals, family))
+
+
+def value_axis(name: str, limit: float) -> dict:
+    """xlsxwriter's ``set_y_axis`` options of a score chart: fixed at ±``limit``, light grid lines."""
+    return {"name": name, "min": -limit, "max": limit, "major_unit": 1 if limit <= 4 else 2,
+            "major_gridlines": {"visible": True, "line": {"color": "#DDDDDD"}}}
 
 
 def score_chart(wb, sheet, fm: Formats, top: int, labs: list, scores: list[float], signals: list[str],
@@ -232,23 +362,30 @@ def score_chart(wb, sheet, fm: Formats, top: int, labs: list, scores: list[float
     marker series per signal, named by the signal word (shape and word, not
     colour alone), and the warning / action limits of the score's family
     (roundscore.model.scores; ISO 13528 §9.4: ±2, ±3; En: ±1) as dashed and solid lines.
+    The value axis is fixed (:func:`score_axis`): a score beyond it is drawn
+    at the edge (column "Drawn at") and labelled with its true value.
     """
-    limits = [(lim, sig, LIMIT_LINE[sig]["chart"]) for lim, sig in family_of(score).limits()]
+    family = family_of(score)
+    limits = [(lim, sig, LIMIT_LINE[sig]["chart"]) for lim, sig in family.limits()]
+    axis = score_axis(scores, family)
     sname = sheet.get_name()
-    heads = ["Chart", "Lab", "Score", *(SIGNAL_WORD[words][s] for s in _CHART_MARKER)]
+    heads = ["Chart", "Lab", "Score", f"Drawn at (axis ±{axis.limit:g})",
+             *(SIGNAL_WORD[words][s] for s in _CHART_MARKER)]
     heads += [f"{sign}{lim:g} {word} limit" for lim, word, _ in limits for sign in "+-"]
     for j, h in enumerate(heads):
         sheet.write_string(top, j, h, fm.head)
     first, last = top + 1, top + len(scores)
     number, string, two = sheet.write_number, sheet.write_string, fm.decimals(2)
-    marker_col = {s: j for j, s in enumerate(_CHART_MARKER, start=3)}
-    bounds = [(6 + 2 * j, lim) for j, (lim, _, _) in enumerate(limits)]
-    for r, lab, v, sig in zip(range(first, last + 1), labs, scores, signals):
+    marker_col = {s: j for j, s in enumerate(_CHART_MARKER, start=4)}
+    limit_col = 4 + len(_CHART_MARKER)
+    bounds = [(limit_col + 2 * j, lim) for j, (lim, _, _) in enumerate(limits)]
+    for r, lab, v, d, sig in zip(range(first, last + 1), labs, scores, axis.drawn, signals):
         string(r, 0, label)
         string(r, 1, str(lab))
         number(r, 2, v, two)
+        number(r, 3, d, two)
         if sig in marker_col:
-            number(r, marker_col[sig], v, two)
+            number(r, marker_col[sig], d, two)
         for j, lim in bounds:
             number(r, j, lim)
             number(r, j + 1, -lim)
@@ -257,18 +394,21 @@ def score_chart(wb, sheet, fm: Formats, top: int, labs: list, scores: list[float
     # cannot read them back, and viewers that draw from the cache would show empty charts.
     cats = [sname, first, 1, last, 1]
     cat_data = [str(lab) for lab in labs]
-    shown = [f"{v:.16g}" for v in scores]
+    shown = [f"{v:.16g}" for v in axis.drawn]
     col = wb.add_chart({"type": "column"})
-    series = {"name": "score", "categories": cats, "values": [sname, first, 2, last, 2],
+    series = {"name": "score", "categories": cats, "values": [sname, first, 3, last, 3],
               "categories_data": cat_data, "values_data": shown,
               "fill": {"color": "#9DB9D3"}, "border": {"color": "#555555"}, "gap": 40}
     if len(scores) <= CHART_POINT_COLOURS:
         tints = {s: tint(SIGNAL_COLOUR.get(s, SIGNAL_COLOUR["not-scored"])) for s in set(signals)}
         series["points"] = [{"fill": {"color": tints[s]}, "border": {"color": "#555555"}} for s in signals]
+    labels = axis.labels(scores)
+    if labels is not None:
+        series["data_labels"] = labels
     col.add_series(series)
     line = wb.add_chart({"type": "line"})
     present = set(signals)
-    for j, s in enumerate(_CHART_MARKER, start=3):
+    for s, j in marker_col.items():
         if s in present:
             line.add_series({"name": [sname, top, j], "categories": cats, "values": [sname, first, j, last, j],
                              "name_data": [heads[j]], "categories_data": cat_data,
@@ -280,7 +420,7 @@ def score_chart(wb, sheet, fm: Formats, top: int, labs: list, scores: list[float
     n_series = 1 + sum(1 for s in _CHART_MARKER if s in present)
     for j, (lim, word, dash) in enumerate(limits):
         for sign in (0, 1):
-            c = 6 + 2 * j + sign
+            c = limit_col + 2 * j + sign
             if sign:
                 hidden.append(n_series)
             n_series += 1
@@ -289,14 +429,7 @@ def score_chart(wb, sheet, fm: Formats, top: int, labs: list, scores: list[float
                              "values_data": [f"{-lim if sign else lim:.16g}"] * len(scores),
                              "line": {"color": "#444444", "width": 1, "dash_type": dash}, "marker": {"type": "none"}})
     col.combine(line)
-    bound = max(limits[-1][0] + 1, 4.0)
-    vmax = max(abs(v) for v in scores)
-    if vmax <= 2 * bound:
-        col.set_y_axis({"name": score_label(score), "min": -max(bound, math.ceil(vmax)),
-                        "max": max(bound, math.ceil(vmax)), "major_gridlines": {"visible": True,
-                        "line": {"color": "#DDDDDD"}}})
-    else:
-        col.set_y_axis({"name": score_label(score)})
+    col.set_y_axis(value_axis(score_label(score), axis.limit))
     col.set_x_axis({"name": "laboratory (ranked by score)", "label_position": "low",
                     "num_font": {"rotation": -90, "size": 8}})
     col.set_title({"name": title, "name_font": {"size": 11}})

@@ -35,6 +35,7 @@ import pandas as pd
 
 from roundscore.model.evaluation import AUDIT_COLUMNS, SCORE_COLUMNS, STATISTICS_COLUMNS, RoundEvaluation
 from roundscore.outputs import lab_workbook
+from roundscore.outputs.circulation import write_circulation
 from roundscore.outputs.csvout import write_csv
 from roundscore.outputs.payloads import lab_payload
 from roundscore.outputs.workbook import write_summary
@@ -240,7 +241,8 @@ def _run_batch(tasks: Sequence[WriteTask]) -> list[None]:
 def write_with(writers: Iterable[Writer], ev: RoundEvaluation, folder: Path,
                options: WriteOptions | None = None) -> list[Path]:
     """Write the outputs of ``writers`` into ``folder`` (which must exist): their tasks in one pool, then each
-    writer's ``write``; the files written, in the writers' order (the tasks' files first)."""
+    writer's ``write``, then ``circulation.csv`` (:mod:`roundscore.outputs.circulation`: what to send each lab,
+    listing only the files written); the files written, in the writers' order (the tasks' files first)."""
     options = options or WriteOptions()
     writers = tuple(writers)
     tasks = [t for w in writers for t in w.tasks(ev, folder, options)]
@@ -248,4 +250,5 @@ def write_with(writers: Iterable[Writer], ev: RoundEvaluation, folder: Path,
     run_tasks(ev, tasks, options)
     for w in writers:
         files += w.write(ev, folder, options)
+    files.append(write_circulation(ev, folder, files))  # last: it lists what the writers wrote
     return files

@@ -417,7 +417,7 @@ def homogeneity(
     s_s = math.sqrt(max(0.0, s_s2))
     if s_s_truncated:
         notes.append(
-            f"s_x^2 - s_w^2/m = {s_s2:.4g} is negative: between-item SD s_s set to 0 "
+            f"s_x̄² − s_w²/m = {s_s2:.4g} is negative: between-item SD s_s set to 0 "
             "(the between-item spread is below what the within-item spread explains)"
         )
 
@@ -427,7 +427,7 @@ def homogeneity(
     precision_warning = None
     if not precision_adequate:
         precision_warning = (
-            f"s_w = {s_w:.4g} exceeds 0.5 sigma_pt = {REPEATABILITY_LIMIT_FACTOR * sigma_pt:.4g}: "
+            f"s_w = {s_w:.4g} exceeds 0.5 σ_pt = {REPEATABILITY_LIMIT_FACTOR * sigma_pt:.4g}: "
             "the check method is too imprecise for the homogeneity test to be meaningful"
         )
         notes.append(precision_warning)
@@ -459,8 +459,8 @@ def _criteria(sigma_pt: float, alpha: float, *, g: int, m: float, s_s: float, s_
     passed_simple = bool(within(s_s, criterion))
     passed_expanded = bool(within(s_s, allowed))
     notes.append(
-        f"simple criterion s_s <= 0.3 sigma_pt = {criterion:.4g}: {_met(passed_simple)} (s_s = {s_s:.4g}); "
-        f"expanded criterion s_s <= sqrt(F1 c^2 + F2 s_w^2) = {allowed:.4g} (F1 = {factors.f1:.4g}, "
+        f"simple criterion s_s ≤ 0.3 σ_pt = {criterion:.4g}: {_met(passed_simple)} (s_s = {s_s:.4g}); "
+        f"expanded criterion s_s ≤ √(F1·c² + F2·s_w²) = {allowed:.4g} (F1 = {factors.f1:.4g}, "
         f"F2 = {factors.f2:.4g}): {_met(passed_expanded)}; the verdict uses the expanded criterion"
     )
     if passed_expanded and not passed_simple:
@@ -531,7 +531,7 @@ def _within_sd(a: _OneWay, codes: np.ndarray, g: int, *, duplicates: bool,
     if duplicates:
         pairs = a.d[np.argsort(codes, kind="stable")].reshape(g, 2)  # centred pair of each item
         w = pairs[:, 1] - pairs[:, 0]
-        notes.append("s_w from the within-item duplicate differences: sqrt(sum w^2 / (2g))")
+        notes.append("s_w from the within-item duplicate differences: √(Σw²/(2g))")
         return math.sqrt(float(np.dot(w, w)) / (2 * g)), "duplicate differences"
     notes.append("s_w from the one-way ANOVA within-item mean square")
     return math.sqrt(a.ms_within), "within-item mean square"
@@ -722,7 +722,7 @@ def stability(
         notes.append("expanded criterion not computed: a set has a single value and no uncertainty was given")
     for name, given in (("first", u_first is not None), ("second", u_second is not None)):
         if u_known and not given:
-            notes.append(f"u of the {name} mean from its SD/sqrt(n)")
+            notes.append(f"u of the {name} mean from its SD/√n")
 
     given_any = u_first is not None or u_second is not None
     auto_choice: Literal["simple", "expanded"] = "expanded" if given_any and u_known else "simple"
@@ -733,16 +733,16 @@ def stability(
             "u_second, or at least 2 values in each set"
         )
     passed = passed_simple if used == "simple" else bool(passed_expanded)
-    shown = f"|y1 - y2| = {abs(diff):.4g}"
-    notes.append(f"{shown}; simple criterion |y1 - y2| <= 0.3 sigma_pt = {crit:.4g}: {_met(passed_simple)}")
+    shown = f"|ȳ1 − ȳ2| = {abs(diff):.4g}"
+    notes.append(f"{shown}; simple criterion |ȳ1 − ȳ2| ≤ 0.3 σ_pt = {crit:.4g}: {_met(passed_simple)}")
     if passed_expanded is not None:
         notes.append(
-            f"expanded criterion |y1 - y2| <= 0.3 sigma_pt + 2 sqrt(u1^2 + u2^2) = {allowed:.4g}: "
+            f"expanded criterion |ȳ1 − ȳ2| ≤ 0.3 σ_pt + 2√(u1² + u2²) = {allowed:.4g}: "
             f"{_met(passed_expanded)}"
         )
     notes.append(f"the verdict uses the {used} criterion")
     u_stab = abs(diff) / math.sqrt(3.0)
-    notes.append("u_stab = |y1 - y2| / sqrt(3): the difference as half-width of a rectangular distribution")
+    notes.append("u_stab = |ȳ1 − ȳ2|/√3: the difference as half-width of a rectangular distribution")
 
     return StabilityResult(
         n_first=n1, n_second=n2, mean_first=mean1, mean_second=mean2, difference=diff, u_first=u1,

@@ -1,0 +1,74 @@
+"""Display headings of the column contracts: the standards' notation and plain words for what people read.
+
+The CSV files keep their fixed column names (``u_assigned``, ``robust_sd``, ``h_crit_5`` ...: a contract with
+the programs that read them). Every table a person reads (the HTML pages, the workbooks, the PDFs) heads a
+column with :func:`heading` instead, so one column has one heading everywhere: ``u(x_pt)``, ``σ_pt``,
+``robust SD``, ``MADe``, ``nIQR``, ``critical value at 5 %``. The score columns take their symbols from the
+score registry (:data:`roundscore.model.scores.SCORES`), so a new score needs no line here.
+
+>>> heading("u_assigned"), heading("sigma_pt"), heading("z_prime")
+('u(x_pt)', 'σ_pt', 'z′')
+>>> heading("h_crit_5")
+'h: critical value at 5 %'
+>>> heading("some_new_column")  # a column not listed reads as words
+'some new column'
+"""
+
+from __future__ import annotations
+
+from types import MappingProxyType
+from collections.abc import Iterable, Mapping
+
+from roundscore.model.scores import SCORES
+
+__all__ = ["HEADINGS", "heading", "headings"]
+
+#: Column name (of scores.csv, statistics.csv, audit.csv and the extras tables) → its display heading.
+HEADINGS: Mapping[str, str] = MappingProxyType({
+    # scores.csv (model/evaluation.py SCORE_COLUMNS)
+    "lab": "Lab", "measurand": "Measurand", "unit": "Unit", "n_replicates": "Replicates", "result": "Result",
+    "assigned": "Assigned value x_pt", "u_assigned": "u(x_pt)", "sigma_pt": "σ_pt",
+    **{s.column: s.symbol for s in SCORES.values()},
+    "d": "D (x − x_pt)", "d_percent": "D % (relative to x_pt)", "signal": "Signal", "note": "Note",
+    "score": "Score", "state": "State", "scheme": "Scheme", "round": "Round", "round_date": "Round date",
+    "rank": "Rank by |score|", "n_scored": "Labs scored", "method": "Method",
+    "score_value": "Score value",
+    # statistics.csv (STATISTICS_COLUMNS)
+    "p": "Labs used (p)", "robust_mean": "Robust mean x*", "robust_sd": "Robust SD s*", "median": "Median",
+    "made": "MADe", "niqr": "nIQR", "iterations": "Iterations", "u_check_passed": "u(x_pt) ≤ 0.3 σ_pt",
+    # audit.csv (AUDIT_COLUMNS)
+    "step": "Step", "action": "Action", "reason": "Reason",
+    # items.csv (model/items.py ITEMS_COLUMNS)
+    "check": "Check", "g": "Items (g)", "m": "Replicates per item (m)", "mean": "Mean", "s_x": "s_x̄",
+    "s_w": "s_w", "s_s": "s_s", "criterion": "Criterion", "allowed": "Allowed", "passed": "Passed",
+    # precision.csv (ISO 5725-2 notation)
+    "n_bar": "Mean replicates n̄", "s_r": "s_r", "s_L": "s_L", "s_R": "s_R", "r": "Repeatability limit r",
+    "R": "Reproducibility limit R", "s_r_robust": "s_r (robust, Algorithm S)", "excluded": "Excluded",
+    "labs_screened": "Labs screened", "balanced": "Balanced", "s_L_truncated": "s_L set to 0",
+    "general_mean": "General mean", "robust_labs": "Labs (robust)", "outliers": "Outliers",
+    "stragglers": "Stragglers",
+    # screens.csv
+    "test": "Test", "labs": "Labs", "statistic": "Statistic", "critical_5": "Critical value at 5 %",
+    "critical_1": "Critical value at 1 %", "outcome": "Outcome",
+    # mandel.csv
+    "h": "h", "k": "k", "flag": "Indicator", "n": "n", "sd": "SD",
+    "h_crit_5": "h: critical value at 5 %", "h_crit_1": "h: critical value at 1 %",
+    "k_crit_5": "k: critical value at 5 %", "k_crit_1": "k: critical value at 1 %",
+    # methods.csv
+    "groups": "Groups", "df": "Degrees of freedom", "df2": "Degrees of freedom (within groups)",
+    "p_value": "p-value", "difference": "Difference", "ci_low": "Confidence interval: low",
+    "ci_high": "Confidence interval: high", "significant": "Significant", "p_adjusted": "p-value (Holm)",
+    "t_critical": "t: critical value", "f_statistic": "F", "f_p_value": "F test: p-value",
+    "confidence": "Confidence level", "untested": "Groups too small to test", "conclusion": "Conclusion",
+})
+
+
+def heading(column: str) -> str:
+    """The heading people read for a column; a column not listed reads as words (underscores as spaces)."""
+    got = HEADINGS.get(column)
+    return got if got is not None else str(column).replace("_", " ")
+
+
+def headings(columns: Iterable[str]) -> list[str]:
+    """:func:`heading` of each column, in order."""
+    return [heading(c) for c in columns]
