@@ -135,15 +135,18 @@ class _Pairs:
         self.idx = np.arange(self.v.size)
         p = int(np.count_nonzero(counts))
         self.total = p * (p - 1) / 2.0  # Σ_{i<j} 1/(n_i n_j) · n_i n_j
-        # The pairs of one lab's own results (positions a < b in sorted order), counted and subtracted.
-        same_a, same_b = [], []
-        for lab in np.flatnonzero(counts > 1):
-            pos = np.flatnonzero(self.lab == lab)
-            a, b = np.triu_indices(pos.size, 1)
-            same_a.append(pos[a])
-            same_b.append(pos[b])
-        self.sa = np.concatenate(same_a) if same_a else np.zeros(0, dtype=int)
-        self.sb = np.concatenate(same_b) if same_b else np.zeros(0, dtype=int)
+        # The pairs of one lab's own results (positions a < b in sorted order), counted and subtracted:
+        # the k-th and m-th result of every lab with more than m results, for each k < m.
+        by_lab = np.argsort(self.lab, kind="stable")
+        starts = np.concatenate([[0], np.cumsum(counts)[:-1]])
+        same_a, same_b = [np.zeros(0, dtype=int)], [np.zeros(0, dtype=int)]
+        for m in range(1, self.most):
+            has = np.flatnonzero(counts > m)
+            for k in range(m):
+                a, b = by_lab[starts[has] + k], by_lab[starts[has] + m]
+                same_a.append(np.minimum(a, b))
+                same_b.append(np.maximum(a, b))
+        self.sa, self.sb = np.concatenate(same_a), np.concatenate(same_b)
         self.sw = self.w[self.sa] * self.w[self.sb]
 
     def _upto(self, x: float, side: str) -> np.ndarray:
