@@ -83,6 +83,9 @@ def test_location_and_scale_equivariance(values, shift, scale):
     top = sorted(base.densities)
     if len(top) > 1 and top[-2] > top[-1] * (1 - 1e-6):
         return  # two modes of (nearly) equal height: either may be the highest
+    z = (x - base.mode) / 0.5
+    if np.sum((z * z - 1) * np.exp(-z * z / 2)) > -0.05 * np.sum(np.exp(-z * z / 2)):
+        return  # a flat top (two groups about 2h apart): the mode is ill-conditioned, not a point
     assert moved.mode == pytest.approx(scale * base.mode + shift, abs=1e-6 * scale + 1e-9 * abs(shift))
 
 
