@@ -18,6 +18,7 @@ import numpy as np
 import pandas as pd
 
 from roundscore.errors import StatisticsError
+from roundscore.evaluation import consensus
 from roundscore.evaluation.items import apply_item_checks
 from roundscore.evaluation.precision import precision_stage
 from roundscore.model.evaluation import (AUDIT_COLUMNS, SCORE_COLUMNS, STATISTICS_COLUMNS, MeasurandResult,
@@ -90,21 +91,28 @@ def _lab_tables(table: ResultTable, names: list[str], all_labs: list[str]) -> di
             for n, g in out.groupby("measurand", sort=False)}
 
 
-def _assign(m: MeasurandSettings, est, med, made_v, p) -> tuple[float, float, str, list[str]]:
+def _assign(m: MeasurandSettings, est, med, made_v, p, alt) -> tuple[float, float, str, list[str]]:
     notes: list[str] = []
     if not m.is_consensus:
         return float(m.assigned), float(m.u_assigned or 0.0), "reference value stated in the round file", notes
     if p < 3:
         notes.append(f"only {p} usable result(s): a consensus value needs at least 3; no scores for this measurand")
         return np.nan, np.nan, "consensus (not computable)", notes
+    other = consensus.assign(m, alt, p)  # q-hampel, kernel-mode (roundscore.evaluation.consensus)
+    if other is not None:
+        return other
     if m.assigned == "median":
         u = robust.CONSENSUS_U_FACTOR * made_v / np.sqrt(p)
         return med, u, f"median of {p} lab means; u = 1.25·MADe/√p", notes
     return est.mean, est.u_mean, f"robust mean (Algorithm A) of {p} lab means; u = 1.25·s*/√p", notes
 
 
-def _sigma(m: MeasurandSettings, est, x_pt: float) -> tuple[float, str, list[str]]:
+def _sigma(m: MeasurandSettings, est, x_pt: float, qh=None) -> tuple[float, str, list[str]]:
     spec = m.sigma_pt
+    if spec.kind == "q-method":
+        if qh is None or not qh.sd > 0:
+            return np.nan, spec.describe(), ["σ_pt from the Q method cannot be set (too few results or zero spread)"]
+        return qh.sd, spec.describe(), []
     if spec.kind == "fixed":
         return spec.fixed(), spec.describe(), []
     if spec.kind == "precision":
@@ -127,7 +135,7 @@ def _sigma(m: MeasurandSettings, est, x_pt: float) -> tuple[float, str, list[str
 
 
 def _measurand(rnd: Round, labs: pd.DataFrame, m: MeasurandSettings, est: robust.RobustEstimate | None,
-               audit: list[tuple], tables: dict[str, ItemTable]) -> MeasurandResult:
+               audit: list[tuple], tables: dict[str, ItemTable], qh=None) -> tuple[MeasurandResult, Any]:
     labs = labs.copy()
     for e in rnd.exclusions:
         if e.measurand in (None, m.name):
@@ -149,6 +157,8 @@ def _measurand(rnd: Round, labs: pd.DataFrame, m: MeasurandSettings, est: robust
     labs["excluded"] = labs["excluded"].fillna(False).astype(bool)
     labs["withhold"] = labs["withhold"].fillna(False).astype(bool)
     labs["used"] = (labs["status"] == "value") & ~labs["excluded"]
+    if m.consensus_labs is not None:  # a consensus of the labs the round file names
+        labs["used"] &= labs["lab"].isin(m.consensus_labs)
     cens = labs["status"] == "censored"
     audit.extend((m.name, lab, "import", "left out of the statistics", f"censored result {t}")
                  for lab, t in zip(labs.loc[cens, "lab"], labs.loc[cens, "result_text"]))
@@ -159,12 +169,17 @@ def _measurand(rnd: Round, labs: pd.DataFrame, m: MeasurandSettings, est: robust
     med = float(np.median(used)) if p else np.nan
     made_v = float(robust.made(used)) if p else np.nan
     niqr_v = float(robust.niqr(used)) if p else np.nan
-    x_pt, u_pt, a_src, notes = _assign(m, est, med, made_v, p)
+    kern, knote = consensus.kernel_for(m, used, lambda x: _sigma(m, est, x, qh)[0], med)
+    alt = consensus.Alternatives(q_hampel=qh, kernel=kern, kernel_note=knote)
+    x_pt, u_pt, a_src, notes = _assign(m, est, med, made_v, p, alt)
+    if m.consensus_labs is not None and (missing := sorted(set(m.consensus_labs) - set(labs.loc[labs["used"], "lab"]))):
+        notes.append(f"{len(missing)} of the {len(m.consensus_labs)} labs named for the consensus gave no usable "
+                     f"result: {', '.join(missing[:10])}")
     if est is not None and est.note and not (m.is_consensus and u_pt == 0):
         notes.append(f"Algorithm A: {est.note}")
     findings = _zero_spread(m, u_pt, p, audit)
     notes += [ZERO_SPREAD_NOTE] if findings else []
-    s_pt, s_src, s_notes = _sigma(m, est, x_pt if np.isfinite(x_pt) else np.nan)
+    s_pt, s_src, s_notes = _sigma(m, est, x_pt if np.isfinite(x_pt) else np.nan, qh)
     notes += s_notes
     item_checks = None
     if m.homogeneity is not None or m.stability is not None:
@@ -196,7 +211,7 @@ def _measurand(rnd: Round, labs: pd.DataFrame, m: MeasurandSettings, est: robust
         settings=m, labs=labs, p=p, robust=est, median=med, made=made_v, niqr=niqr_v,
         assigned=x_pt, u_assigned=u_pt, sigma_pt=s_pt, assigned_source=a_src, sigma_source=s_src,
         u_check_passed=u_ok, notes=tuple(notes), item_checks=item_checks, findings=tuple(findings),
-    )
+    ), alt
 
 
 #: The headline of a consensus whose spread is zero (a finding, not a pass of the u(x_pt) check), and what it means.
@@ -361,12 +376,17 @@ def evaluate(rnd: Round, table: ResultTable, participants: dict[str, Participant
     for i, n in enumerate(names):
         lt = pre[n]
         keep = (lt["status"] == "value") & ~lt["lab"].map(lambda L: (L, n) in excluded or (L, None) in excluded)  # noqa: B023
+        subset = rnd.measurands[n].consensus_labs
+        if subset is not None:
+            keep &= lt["lab"].isin(subset)
         mat[i, keep.to_numpy()] = lt.loc[keep, "mean"].to_numpy()
     estimates = robust.algorithm_a_rows(mat) if len(names) else []
-    results = {}
+    q_hampel = consensus.estimates(table, names, mat, all_labs)  # Q/Hampel, on the same labs
+    results, alts = {}, {}
     for i, n in enumerate(names):
         est = estimates[i] if estimates[i].n >= 3 else None
-        results[n] = _measurand(rnd, pre[n], rnd.measurands[n], est, audit, dict(items.get(n, {})))
+        results[n], alts[n] = _measurand(rnd, pre[n], rnd.measurands[n], est, audit, dict(items.get(n, {})),
+                                         q_hampel[n])
     converted = _conversions(table, audit)
     frames = [_score_rows(rnd, results[n], converted.get(n)) for n in names]
     scores = pd.concat(frames, ignore_index=True) if frames else pd.DataFrame(columns=SCORE_COLUMNS)
@@ -389,6 +409,10 @@ def evaluate(rnd: Round, table: ResultTable, participants: dict[str, Participant
     item_rows = [row for n in names if (ic := results[n].item_checks) is not None for row in ic.rows]
     if item_rows:
         extras["items"] = pd.DataFrame(item_rows, columns=list(ITEMS_COLUMNS))
+    # STAGE: consensus — other estimates side by side (consensus.csv), the reference check.
+    tables, c_notes = consensus.stage(results, alts)
+    extras.update(tables)
+    stage_notes.update(c_notes)
     # STAGE: precision (ISO 5725-2) and method groups — adds extras, stage_notes, details and audit rows here.
     precision_stage(rnd, table, results).merge_into(extras=extras, stage_notes=stage_notes, details=details,
                                                     audit=audit)

@@ -21,6 +21,7 @@ from typing import Any
 
 from roundscore.errors import Problem, RoundFileError, shown_value
 from roundscore.choices import is_choice, options_text
+from roundscore.intake.consensus_keys import reference_value, subset_assigned
 from roundscore.model.items import ItemConsequence, StabilityChoice
 from roundscore.model.labcodes import read_lab_code
 from roundscore.model.limits import DEFAULT_LIMITS, ReadLimits
@@ -221,7 +222,10 @@ def _measurand(c: _Checker, folder: Path, name: str, raw: object) -> MeasurandSe
         unit = ""
     assigned_raw = raw.get("assigned", "algorithm-a")
     assigned: AssignedMethod | float
-    if isinstance(assigned_raw, str):
+    subset = None
+    if isinstance(assigned_raw, dict):  # a consensus of some labs only (roundscore.intake.consensus_keys)
+        assigned, subset = subset_assigned(c, f"{t}.assigned", assigned_raw, lambda k, v: _inside(c, folder, k, v))
+    elif isinstance(assigned_raw, str):
         assigned = c.choice(f"{t}.assigned", assigned_raw, AssignedMethod, "algorithm-a")
     else:
         assigned = c.number(f"{t}.assigned", assigned_raw) or 0.0
@@ -266,6 +270,7 @@ def _measurand(c: _Checker, folder: Path, name: str, raw: object) -> MeasurandSe
         item_checks=c.choice(f"{t}.item_checks", raw.get("item_checks"), ItemConsequence, "uncertainty"),
         stability_criterion=c.choice(f"{t}.stability_criterion", raw.get("stability_criterion"),
                                      StabilityChoice, "auto"),
+        consensus_labs=subset, reference=reference_value(c, f"{t}.reference", raw.get("reference")),
     )
 
 

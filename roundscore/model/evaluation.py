@@ -267,6 +267,10 @@ class RoundEvaluation:
             if m.u_check_passed is False:
                 out.append(f"{m.name}: u(x_pt) exceeds 0.3 σ_pt")
             out.extend(f"{m.name}: {f}" for f in m.findings)
+        ref = self.extras.get("reference")  # roundscore.evaluation.consensus: consensus against a reference value
+        if ref is not None:
+            out += [f"{r.measurand}: the consensus disagrees with the reference value (ratio {r.ratio:.2f})"
+                    for r in ref.itertuples() if r.agrees is False]
         items = self.extras.get("items")
         if items is not None and len(items):
             for _, r in items[~items["passed"].astype(bool)].iterrows():

@@ -42,9 +42,10 @@ MAX_FORM_REPLICATES = 20
 # The choices of a round file, each a Literal listing its values once (checked by roundscore.choices; the
 # tuples below are those values, for messages and membership tests).
 #: ``assigned``: a consensus method (or a number: a reference or formulation value).
-AssignedMethod = Literal["algorithm-a", "median"]
-#: ``sigma_pt`` given as a word (or a number, or a precision experiment's table).
-SigmaMethod = Literal["horwitz", "robust-sd"]
+AssignedMethod = Literal["algorithm-a", "median", "q-hampel", "kernel-mode"]
+#: ``sigma_pt`` given as a word (or a number, or a precision experiment's table): "robust-sd" is Algorithm A's
+#: s*, "q-method" the Q method's s* (ISO 13528 C.5.2).
+SigmaMethod = Literal["horwitz", "robust-sd", "q-method"]
 #: ``[round] outliers`` and ``stragglers``: what the precision estimates do with them.
 OutlierAction = Literal["exclude", "keep"]
 #: ``[round] unknown_labs``: a result from a lab not in the participants file.
@@ -103,7 +104,11 @@ LIMIT_KEYS: dict[str, tuple[str, int, float]] = {
 MEASURAND_KEYS: dict[str, str] = {
     "unit": "text (required): a unit such as mg/kg, µg/L, g/100 g, % (a mass fraction for sigma_pt = 'horwitz')",
     "label": "text: a longer name shown in reports",
-    "assigned": f"{options_text(AssignedMethod)} or a number (reference or formulation value; 0 or |v| 1e-50 to 1e50)",
+    "assigned": f"{options_text(AssignedMethod)} or a number (reference or formulation value; 0 or |v| 1e-50 to 1e50)"
+                ", or { method = …, labs = [\"K03\", …] } or { method = …, labs_file = \"FILE.csv\" } (a "
+                "consensus of those labs only)",
+    "reference": "{ value = number, u = number ≥ 0 }: an independent reference value and its standard "
+                 "uncertainty, compared with the consensus",
     "u_assigned": "number ≥ 0: standard uncertainty of a numeric assigned value (0 or 1e-50 to 1e50)",
     "sigma_pt": f"a number from 1e-50 to 1e50 (and ≥ 1e-12 × |assigned|), {options_text(SigmaMethod)}, "
                 "or { s_R = …, s_r = …, replicates = n }",
@@ -126,7 +131,7 @@ class SigmaSpec:
     (``s_R``, ``s_r``, ``replicates`` from a precision experiment).
     """
 
-    kind: Literal["fixed", "horwitz", "robust-sd", "precision"]
+    kind: Literal["fixed", "horwitz", "robust-sd", "q-method", "precision"]
     value: float | None = None
     s_R: float | None = None
     s_r: float | None = None
@@ -151,6 +156,8 @@ class SigmaSpec:
             return "Horwitz equation with Thompson's modification"
         if self.kind == "robust-sd":
             return "robust SD of the participants' results (Algorithm A)"
+        if self.kind == "q-method":
+            return "robust SD of the participants' individual results (Q method, ISO 13528 C.5.2)"
         return (
             f"precision experiment: s_R = {self.s_R:g}, s_r = {self.s_r:g}, "
             f"n = {self.replicates}"
@@ -174,6 +181,10 @@ class MeasurandSettings:
     stability: Path | None = None
     item_checks: ItemConsequence = "uncertainty"
     stability_criterion: StabilityChoice = "auto"
+    #: The labs whose results make the consensus (``assigned = { method, labs }``); None: every lab.
+    consensus_labs: tuple[str, ...] | None = None
+    #: ``reference = { value, u }``: an independent reference value and its standard uncertainty, or None.
+    reference: tuple[float, float] | None = None
 
     @property
     def is_consensus(self) -> bool:
@@ -242,6 +253,8 @@ class Round:
                 "homogeneity": m.homogeneity.name if m.homogeneity else None,
                 "stability": m.stability.name if m.stability else None,
                 "item_checks": m.item_checks, "stability_criterion": m.stability_criterion,
+                "consensus_labs": list(m.consensus_labs) if m.consensus_labs is not None else None,
+                "reference": list(m.reference) if m.reference is not None else None,
             }
         out["exclusions"] = [{"lab": e.lab, "measurand": e.measurand, "reason": e.reason, "scored": e.scored}
                              for e in self.exclusions]

@@ -1,0 +1,392 @@
+"""The Q method (robust SD from between-lab differences) and the Hampel estimator (robust location).
+
+ISO 13528 Annex C.5 (the 2015 edition's clause; the 2022 edition keeps the
+method; clause numbers and formulas below as recalled, from memory, after
+Müller and Uhlig [2]):
+
+* **Q method** (C.5.2). For p labs, lab i with n_i results y_ik, the
+  empirical distribution of the absolute differences between results of
+  *different* labs, each pair of labs weighted equally::
+
+      H1(x) = 2/(p(p-1)) · Σ_{i<j} 1/(n_i n_j) · Σ_k Σ_m  I(|y_ik − y_jm| ≤ x)
+
+  H1 is a step function; G1 joins the points (x_i, ½(H1(x_i) + H1(x_{i−1})))
+  at its jumps x_1 < x_2 < ... (and (0, 0)) by straight lines, and::
+
+      s* = G1⁻¹(0.25 + 0.75·H1(0)) / (√2 · Φ⁻¹(0.625 + 0.375·H1(0)))
+
+  (H1(0) is the share of pairs with identical results; for normal data
+  G1⁻¹(0.25) is the quartile of |difference|, √2·σ·Φ⁻¹(0.625)).
+* **Hampel estimator** (C.5.3). x* is the solution of
+  Σ ψ((ȳ_i − x)/s*) = 0 on the lab means ȳ_i, with Hampel's three-part
+  redescending ψ (linear to 1.5, flat to 3, back to zero at 4.5). ψ is
+  piecewise linear, so the sum is piecewise linear in x between the nodes
+  ȳ_i ± {1.5, 3, 4.5}·s*, and every solution is found exactly by sorting the
+  nodes, accumulating the slope changes and interpolating where the sum
+  falls through zero. If there are several, the one nearest the median is
+  taken; if there is none, the median (the standard's rule, from memory).
+
+What the O(p²) pairs cost, and what is done about it. With p labs of n
+results, there are about (pn)²/2 differences (2000 labs × 2 replicates: 8
+million per measurand). They are never formed: the results are sorted once,
+and H1(x) at any x is a weighted count of pairs with difference ≤ x, found
+for every result at once by binary search in the sorted results and prefix
+sums of the weights, O(N log N) for N = Σn_i results (the pairs of one
+lab's own results are counted separately, O(N·n), and subtracted). The jump
+of G1 that holds the quantile is found by bisection on x (about 50 counts),
+until the band of differences left is small; only that band is listed.
+The result is the exact G1⁻¹ of the definition (the tests compare it with a
+plain loop over all pairs).
+
+References
+----------
+.. [1] ISO 13528:2015 Statistical methods for use in proficiency testing by
+   interlaboratory comparison, Annex C.5 (Q method and Hampel estimator).
+.. [2] J. Müller, S. Uhlig, "Estimation of variance components with high
+   breakdown point and high efficiency", Biometrika 88 (2001) 353-366.
+.. [3] F. R. Hampel, "The influence curve and its role in robust
+   estimation", J. Am. Stat. Assoc. 69 (1974) 383-393.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.stats import norm
+
+from roundscore.errors import StatisticsError
+from roundscore.stats.robust import CONSENSUS_U_FACTOR
+
+__all__ = ["QHampelEstimate", "q_method", "hampel", "q_hampel", "hampel_psi", "HAMPEL_A", "HAMPEL_B", "HAMPEL_C"]
+
+#: Hampel ψ: linear up to a = 1.5, constant to b = 3, falls to 0 at c = 4.5 (ISO 13528 C.5.3, from memory).
+HAMPEL_A, HAMPEL_B, HAMPEL_C = 1.5, 3.0, 4.5
+#: Differences that agree to this fraction of the largest |result| are tied (one jump of H1), and results
+#: that close are identical: the computed difference of two results read as decimals carries rounding of
+#: about 1e-16 of their size, which must not split a tie (common practice for numbers read from text).
+TIE_TOLERANCE = 1e-12
+#: The band of differences listed at the end of the bisection holds at most this many pairs per result.
+_BAND_PAIRS_PER_RESULT = 4
+#: Bisection steps on x before listing whatever band is left (each halves the band; 200 is far more than
+#: the 64 or so that float resolution allows).
+_MAX_BISECTIONS = 200
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class QHampelEstimate:
+    """Q method and Hampel estimator for one set of results.
+
+    Attributes
+    ----------
+    mean : float
+        Hampel's x* on the lab means (NaN with fewer than 2 labs).
+    sd : float
+        s* by the Q method on the labs' individual results.
+    n : int
+        Number of labs (p).
+    n_results : int
+        Number of individual results the Q method used.
+    ties : float
+        H1(0): the share of between-lab pairs of identical results.
+    solutions : int
+        How many solutions the Hampel equation had (the one nearest the median is x*).
+    note : str
+        Empty, or what happened (zero spread, no solution: the median...).
+    """
+
+    mean: float
+    sd: float
+    n: int
+    n_results: int
+    ties: float
+    solutions: int
+    note: str = ""
+
+    @property
+    def u_mean(self) -> float:
+        """Standard uncertainty of x* as an assigned value: 1.25 s*/√p (ISO 13528 §7.7.3, robust consensus)."""
+        return CONSENSUS_U_FACTOR * self.sd / np.sqrt(self.n) if self.n else np.nan
+
+
+def hampel_psi(q: np.ndarray) -> np.ndarray:
+    """Hampel's ψ with a = 1.5, b = 3, c = 4.5: q, ±1.5, ±(4.5 − |q|), 0 (ISO 13528 C.5.3)."""
+    q = np.asarray(q, dtype=float)
+    aq = np.abs(q)
+    mid = np.where(aq <= HAMPEL_B, HAMPEL_A, np.maximum(HAMPEL_C - aq, 0.0) * HAMPEL_A / (HAMPEL_C - HAMPEL_B))
+    return np.where(aq <= HAMPEL_A, q, np.sign(q) * mid)
+
+
+class _Pairs:
+    """The between-lab differences of one set of results, counted without forming them.
+
+    ``v`` sorted results, ``lab`` their lab index, ``w`` their weight 1/n_i.
+    """
+
+    def __init__(self, values: np.ndarray, labs: np.ndarray, tol: float) -> None:
+        self.tol = tol
+        order = np.argsort(values, kind="stable")
+        self.v = values[order]
+        self.lab = labs[order]
+        counts = np.bincount(labs)
+        self.w = 1.0 / counts[self.lab]
+        self.cw = np.concatenate([[0.0], np.cumsum(self.w)])  # prefix sums of the weights
+        self.most = int(counts.max())
+        self.idx = np.arange(self.v.size)
+        p = int(np.count_nonzero(counts))
+        self.total = p * (p - 1) / 2.0  # Σ_{i<j} 1/(n_i n_j) · n_i n_j
+        # The pairs of one lab's own results (positions a < b in sorted order), counted and subtracted:
+        # the k-th and m-th result of every lab with more than m results, for each k < m.
+        by_lab = np.argsort(self.lab, kind="stable")
+        starts = np.concatenate([[0], np.cumsum(counts)[:-1]])
+        same_a, same_b = [np.zeros(0, dtype=int)], [np.zeros(0, dtype=int)]
+        for m in range(1, self.most):
+            has = np.flatnonzero(counts > m)
+            for k in range(m):
+                a, b = by_lab[starts[has] + k], by_lab[starts[has] + m]
+                same_a.append(np.minimum(a, b))
+                same_b.append(np.maximum(a, b))
+        self.sa, self.sb = np.concatenate(same_a), np.concatenate(same_b)
+        self.sw = self.w[self.sa] * self.w[self.sb]
+
+    def _upto(self, x: float, side: str) -> np.ndarray:
+        """For each result a: the last position b with v[b] − v[a] ≤ x ('right') or < x ('left').
+
+        The difference is compared as computed, fl(v[b] − v[a]), the same number the listed band holds;
+        the binary search on v[a] + x can miss it by a rounding, so the ends are corrected (over ties).
+        """
+        v = self.v
+        inside = (lambda d: d <= x) if side == "right" else (lambda d: d < x)
+        r = np.searchsorted(v, v + x, side=side) - 1  # type: ignore[call-overload]  # side is a Literal
+        for _ in range(64):
+            nxt = np.minimum(r + 1, v.size - 1)
+            up = (r + 1 < v.size) & inside(v[nxt] - v)
+            if not up.any():
+                break
+            r[up] = np.searchsorted(v, v[nxt[up]], side="right") - 1
+        for _ in range(64):
+            at = np.maximum(r, 0)
+            down = (r >= 0) & ~inside(v[at] - v)
+            if not down.any():
+                break
+            r[down] = np.searchsorted(v, v[at[down]], side="left") - 1
+        return r
+
+    def H(self, x: float, strict: bool = False) -> float:
+        """H1(x) (or H1 just below x, ``strict``): the weighted share of between-lab pairs with |d| ≤ x."""
+        r = self._upto(x, "left" if strict else "right")
+        r = np.maximum(r, self.idx)
+        s = float(np.dot(self.w, self.cw[r + 1] - self.cw[self.idx + 1]))
+        if self.sa.size:
+            d_ok = (self.v[self.sb] < self.v[self.sa] + x) if strict else (self.v[self.sb] <= self.v[self.sa] + x)
+            s -= float(self.sw[d_ok].sum())
+        return s / self.total
+
+    def count(self, lo: float, hi: float) -> int:
+        """Pairs (any labs) with lo < d ≤ hi: an upper bound of the band's size."""
+        r_hi = np.maximum(self._upto(hi, "right"), self.idx)
+        r_lo = np.maximum(self._upto(lo, "right"), self.idx)
+        return int(np.sum(r_hi - r_lo))
+
+    def band(self, lo: float, hi: float, *, with_lo: bool = False) -> tuple[np.ndarray, np.ndarray]:
+        """The between-lab differences d with lo < d ≤ hi (lo ≤ d ≤ hi ``with_lo``), as the counts see them.
+
+        Returns the differences and their weights (as shares of H1).
+        """
+        r_hi = np.maximum(self._upto(hi, "right"), self.idx)
+        r_lo = np.maximum(self._upto(lo, "left" if with_lo else "right"), self.idx)
+        n = r_hi - r_lo
+        a = np.repeat(self.idx, n)
+        b = np.repeat(r_lo + 1, n) + (np.arange(n.sum()) - np.repeat(np.cumsum(n) - n, n))
+        keep = self.lab[a] != self.lab[b]
+        a, b = a[keep], b[keep]
+        return self.v[b] - self.v[a], self.w[a] * self.w[b] / self.total
+
+    def node_at_or_below(self, x: float) -> float:
+        """The largest between-lab difference ≤ x (0.0 when there is none above 0)."""
+        best = 0.0
+        r = self._upto(x, "right")
+        for back in range(self.most + 1):  # skip at most a lab's other results
+            b = r - back
+            ok = (b > self.idx) & (self.lab[np.maximum(b, 0)] != self.lab)
+            if ok.any():
+                best = max(best, float(np.max(self.v[b[ok]] - self.v[self.idx[ok]])))
+        return best
+
+    def node_above(self, x: float) -> float:
+        """The smallest between-lab difference > x (x itself when there is none)."""
+        best = np.inf
+        r = self._upto(x, "right") + 1
+        for ahead in range(self.most + 1):
+            b = r + ahead
+            ok = b < self.v.size
+            ok[ok] &= self.lab[b[ok]] != self.lab[ok]
+            if ok.any():
+                best = min(best, float(np.min(self.v[b[ok]] - self.v[self.idx[ok]])))
+        return best if np.isfinite(best) else x
+
+
+def _g1_inverse(pairs: _Pairs, target: float, h0: float) -> float:
+    """G1⁻¹(target): the point where the polygon through (0, 0) and the mid-jumps of H1 reaches ``target``."""
+    tol = pairs.tol
+    lo, hi = tol, float(pairs.v[-1] - pairs.v[0])
+
+    def mid_jump(x: float) -> float:  # ½(H1(x) + H1(x−)); equals H1(x) away from a jump
+        return 0.5 * (pairs.H(x) + pairs.H(x, strict=True))
+
+    limit = _BAND_PAIRS_PER_RESULT * pairs.v.size
+    for _ in range(_MAX_BISECTIONS):
+        if hi - lo <= tol or pairs.count(lo, hi) <= limit:
+            break
+        mid = 0.5 * (lo + hi)
+        if mid_jump(mid) <= target:
+            lo = mid
+        else:
+            hi = mid
+    # Every jump of G1 that can bound the target lies between the last node ≤ lo and the first node > hi;
+    # the band is widened by the tie tolerance at both ends so no group of tied differences is cut.
+    below = pairs.node_at_or_below(lo - tol)
+    above = pairs.node_above(pairs.node_above(hi) + tol)
+    if below > tol:
+        d, w = pairs.band(below, above, with_lo=True)
+        base = pairs.H(below, strict=True)
+    else:
+        d, w = pairs.band(tol, above)
+        base = h0
+    order = np.argsort(d, kind="stable")
+    d, w = d[order], w[order]
+    # Differences within the tie tolerance are one jump of H1 (see q_method).
+    start = np.flatnonzero(np.concatenate([[True], np.diff(d) > tol])) if d.size else np.zeros(0, dtype=int)
+    cum = np.concatenate([[0.0], np.cumsum(w)])
+    before = base + cum[start]  # H1 just below each jump
+    at = base + cum[np.concatenate([start[1:], [d.size]])]  # H1 at each jump
+    nodes = np.concatenate([[0.0], d[start]])
+    g = np.concatenate([[0.0], 0.5 * (before + at)])
+    k = int(np.clip(np.searchsorted(g, target, side="right"), 1, g.size - 1))  # g[k-1] ≤ target < g[k]
+    x0, x1, g0, g1 = nodes[k - 1], nodes[k], g[k - 1], g[k]
+    return float(x0 + (target - g0) * (x1 - x0) / (g1 - g0))
+
+
+def q_method(values: np.ndarray, labs: np.ndarray) -> tuple[float, float]:
+    """s* by the Q method (ISO 13528 C.5.2) and H1(0), from individual results and their lab indices.
+
+    Parameters
+    ----------
+    values : array of float
+        Every result of every lab (replicates as separate values; no NaN).
+    labs : array of int
+        The lab of each value (0..p−1).
+
+    Returns
+    -------
+    (s*, H1(0)) : tuple of float
+        s* = 0 when every between-lab pair is tied (H1(0) = 1).
+
+    Examples
+    --------
+    >>> s, ties = q_method(np.array([10.0, 10.2, 9.9, 10.4, 10.1, 10.3]), np.arange(6))
+    >>> round(s, 4), ties
+    (0.2836, 0.0)
+    """
+    values = np.asarray(values, dtype=float)
+    labs = np.asarray(labs)
+    if values.shape != labs.shape or values.ndim != 1:
+        raise StatisticsError("q_method takes one value and one lab index per result")
+    if not np.isfinite(values).all():
+        raise StatisticsError("results must be finite numbers")
+    _, labs = np.unique(labs, return_inverse=True)
+    if labs.max(initial=-1) < 1:
+        raise StatisticsError("the Q method needs results from at least 2 labs")
+    # Shift by the median: the differences are unchanged, and the sums v + x stay small numbers.
+    # Two differences within TIE_TOLERANCE of the results' size are the same difference (one jump of H1).
+    tol = TIE_TOLERANCE * float(np.max(np.abs(values)))
+    pairs = _Pairs(values - np.median(values), labs, tol)
+    h0 = pairs.H(tol)
+    if h0 >= 1.0 - 1e-12:
+        return 0.0, 1.0
+    quantile = _g1_inverse(pairs, 0.25 + 0.75 * h0, h0)
+    return float(quantile / (np.sqrt(2.0) * norm.ppf(0.625 + 0.375 * h0))), h0
+
+
+def hampel(means: np.ndarray, sd: np.ndarray | float) -> tuple[np.ndarray, np.ndarray]:
+    """Hampel's x* for each row of ``means`` (NaN = no lab) with scale ``sd`` per row (ISO 13528 C.5.3).
+
+    Solved exactly (ψ is piecewise linear; see the module notes), vectorised
+    over rows: the 6p nodes of each row are sorted once and the sum of ψ is
+    accumulated along them.
+
+    Returns
+    -------
+    (x*, number of solutions) : arrays over rows
+        x* is the median where there is no solution or sd is not > 0.
+    """
+    y = np.atleast_2d(np.asarray(means, dtype=float))
+    s = np.broadcast_to(np.asarray(sd, dtype=float), (y.shape[0],)).astype(float)
+    with np.errstate(all="ignore"):
+        med = np.nanmedian(y, axis=1) if y.shape[1] else np.full(y.shape[0], np.nan)
+    offsets = np.array([-HAMPEL_C, -HAMPEL_B, -HAMPEL_A, HAMPEL_A, HAMPEL_B, HAMPEL_C])
+    # The slope of ψ((y − x)/s) as a function of x changes by these (× 1/s) at x = y + offset·s.
+    changes = np.array([1.0, -1.0, -1.0, 1.0, 1.0, -1.0])
+    good = np.isfinite(y)
+    yc = np.where(good, y - med[:, None], 0.0)  # centred: nodes and sums stay near zero
+    sc = np.where(s > 0, s, 1.0)
+    nodes = yc[:, :, None] + offsets * sc[:, None, None]
+    slope_change = np.broadcast_to(changes, nodes.shape) / sc[:, None, None] * good[:, :, None]
+    nodes = np.where(good[:, :, None], nodes, np.inf).reshape(len(y), -1)
+    slope_change = slope_change.reshape(len(y), -1)
+    order = np.argsort(nodes, axis=1, kind="stable")
+    z = np.take_along_axis(nodes, order, axis=1)
+    dz = np.take_along_axis(slope_change, order, axis=1)
+    slope = np.cumsum(dz, axis=1)  # the slope on [z_k, z_k+1]
+    with np.errstate(invalid="ignore"):
+        step = np.where(np.isfinite(z[:, 1:]), np.diff(z, axis=1), 0.0) * slope[:, :-1]
+    value = np.concatenate([np.zeros((len(y), 1)), np.cumsum(step, axis=1)], axis=1)  # Σψ at each node
+    # Where Σψ falls through zero from one node to the next (a descending crossing), the root is linear.
+    v0, v1 = value[:, :-1], value[:, 1:]
+    scale_v = np.maximum(np.abs(value).max(axis=1, keepdims=True), 1e-300) * 1e-12
+    falls = (v0 > scale_v) & (v1 <= scale_v) | (np.abs(v0) <= scale_v) & (v1 < -scale_v)
+    falls &= np.isfinite(z[:, 1:])
+    with np.errstate(all="ignore"):
+        root = np.where(v0 != v1, z[:, :-1] + v0 * (z[:, 1:] - z[:, :-1]) / (v0 - v1), z[:, :-1])
+    root = np.where(falls, root, np.nan)
+    solutions = np.sum(falls, axis=1)
+    dist = np.where(falls, np.abs(root), np.inf)
+    pick = np.argmin(dist, axis=1)
+    x = np.take_along_axis(root, pick[:, None], axis=1)[:, 0]
+    x = np.where((solutions > 0) & (s > 0), x, 0.0) + med
+    return x, np.where(s > 0, solutions, 0)
+
+
+def q_hampel(values: np.ndarray, labs: np.ndarray) -> QHampelEstimate:
+    """Q method for s* on the individual results, then Hampel's x* on the lab means (ISO 13528 C.5).
+
+    Parameters
+    ----------
+    values : array of float
+        Every result (replicates separately).
+    labs : array
+        The lab of each result.
+
+    Examples
+    --------
+    >>> est = q_hampel(np.array([10.1, 10.3, 9.8, 10.0, 10.2, 14.0]), np.arange(6))
+    >>> round(est.mean, 4), round(est.sd, 4)
+    (10.08, 0.3884)
+    """
+    values = np.asarray(values, dtype=float)
+    codes, idx = np.unique(np.asarray(labs), return_inverse=True)
+    p = codes.size
+    n_res = int(values.size)
+    if p < 2:
+        return QHampelEstimate(mean=np.nan, sd=np.nan, n=p, n_results=n_res, ties=np.nan, solutions=0,
+                               note=f"only {p} lab(s): the Q method needs at least 2")
+    sd, ties = q_method(values, idx)
+    means = np.bincount(idx, weights=values) / np.bincount(idx)
+    x, sol = hampel(means[None, :], sd)
+    note = ""
+    if sd == 0:
+        note = "every lab gave the same result: s* is zero, so it cannot serve as σ_pt"
+    elif sol[0] == 0:
+        note = "the Hampel equation has no solution: x* is the median"
+    return QHampelEstimate(mean=float(x[0]), sd=sd, n=p, n_results=n_res, ties=ties, solutions=int(sol[0]),
+                           note=note)
