@@ -41,7 +41,7 @@ import pandas as pd
 
 from roundscore.model.scores import SCORE_FIELD
 from roundscore.model.signals import SIGNAL_NAMES
-from roundscore.outputs.look import CAUTION, SIGNAL_COLOUR, SIGNAL_SYMBOL, SIGNAL_WORD
+from roundscore.outputs.look import CAUTION, SIGNAL_COLOUR, SIGNAL_SYMBOL, SIGNAL_WORD, tint as _tint
 from roundscore.outputs.figures import (FIGURES_MAX_MEASURANDS, RoundFigures, SvgFigure, figures_per_measurand,
                                         round_figures)
 from roundscore.outputs.strips import ScoreStrip, score_strip, strip_legend
@@ -57,11 +57,6 @@ REPORT_NAME = "report.html"
 FULL_FIGURES_MAX_LABS = 100
 FULL_FIGURES_MAX_MEASURANDS = 10
 _SIGNALS = SIGNAL_NAMES
-
-
-def _tint(hex_colour: str, keep: float = 0.3) -> str:
-    r, g, b = (int(hex_colour[i:i + 2], 16) for i in (1, 3, 5))
-    return "#{:02X}{:02X}{:02X}".format(*(int(c + (255 - c) * (1 - keep)) for c in (r, g, b)))
 
 
 _CSS = """
