@@ -39,6 +39,7 @@ from __future__ import annotations
 import copy
 import functools
 import io
+import re
 import unicodedata
 from dataclasses import dataclass
 from datetime import datetime, timezone
@@ -108,10 +109,11 @@ class _Template:
     data: bytes  # the font program without the tables fpdf2 drops from every subset, copied per document
 
 
-#: Tables fpdf2 2.8 drops from every embedded subset (``fpdf/output.py``, ``_add_fonts``): removed once from
-#: the font program kept in memory, so a document's subsetting does not read and prune them again.
+#: Tables fpdf2 2.8 drops from every embedded subset (``fpdf/output.py``, ``_add_fonts``), and ``kern``, which
+#: it never uses (its text widths take no kerning) and which its subsets of DejaVu Sans lose anyway: removed
+#: once from the font program kept in memory, so a document's subsetting does not read and prune them again.
 _DROPPED_TABLES = ("FFTM", "GDEF", "GPOS", "GSUB", "MATH", "hdmx", "meta", "sbix", "CBDT", "CBLC", "EBDT",
-                   "EBLC", "EBSC", "SVG ", "CPAL", "COLR")
+                   "EBLC", "EBSC", "SVG ", "CPAL", "COLR", "kern")
 
 
 @functools.cache
@@ -199,7 +201,7 @@ def _visual(line: str) -> str:
     from fpdf.bidi import BidiParagraph, auto_detect_base_direction
 
     frags = BidiParagraph(text=line, base_direction=auto_detect_base_direction(line)).get_bidi_fragments()
-    return "".join(t[::-1] if d == "RTL" else t for t, d in frags)
+    return "".join(t[::-1] if getattr(d, "value", d) == "RTL" else t for t, d in frags)
 
 
 # ------------------------------------------------------------------------------------------ the page
@@ -222,6 +224,7 @@ def _new_pdf(paper: Paper, footer: str, created: datetime) -> Any:
     w, h = PAPER_MM[paper]
     pdf = _Pdf(unit="mm", format=(w, h))
     pdf.set_margins(MARGIN_MM, MARGIN_MM, MARGIN_MM)
+    pdf.c_margin = 0  # text starts where this module puts it (cells pad themselves)
     pdf.set_auto_page_break(False)
     pdf.set_creation_date(created)
     pdf.set_creator("roundscore")
@@ -280,7 +283,8 @@ class _Layout:
     def __init__(self, pdf: Any, anchors: set[str]) -> None:
         self.pdf = pdf
         self.bottom = pdf.h - MARGIN_MM - _FOOTER_MM
-        self.links = {a: pdf.add_link() for a in sorted(anchors)}
+        self.anchors = sorted(anchors)
+        self.links: dict[str, int] = {}
 
     # -- primitives
     def font(self, size: float, style: str = "", colour: str = PAGE_COLOUR["ink"]) -> None:
@@ -298,6 +302,8 @@ class _Layout:
     def page(self) -> None:
         self.pdf.add_page()
         self.pdf.set_y(self.pdf.t_margin)
+        if not self.links:  # a link needs a page: each points at the first until its anchor is drawn
+            self.links = {a: self.pdf.add_link(page=1) for a in self.anchors}
 
     def lines(self, text: str, width: float) -> list[str]:
         return _wrap(self.pdf.get_string_width, printable_text(text, lines=True), width)
@@ -484,7 +490,7 @@ class _Layout:
         if height > self.room():  # taller than a whole page: shrunk to fit
             width, height = width * self.room() / height, self.room()
         if height > 0:
-            pdf.image(io.BytesIO(fig.svg.encode("utf-8")), x=pdf.l_margin, y=pdf.get_y(), w=width, h=height)
+            pdf.image(io.BytesIO(_svg_for_fpdf(fig.svg)), x=pdf.l_margin, y=pdf.get_y(), w=width, h=height)
             pdf.set_y(pdf.get_y() + height + 1)
         if fig.caption:
             self.font(SMALL_PT, "", PAGE_COLOUR["muted"])
@@ -496,12 +502,30 @@ class _Layout:
             _TableDrawer(self, table, group, size, widths).draw()
 
 
+_SVG_ID = re.compile(r'\bid="([^"]*)"')
+
+
+def _svg_for_fpdf(svg: str) -> bytes:
+    """``svg`` with its element ids renamed to word characters, as fpdf2 2.8's SVG reader needs for the
+    references it follows (``url(#id)`` of a clip path, ``href="#id"``); the drawing is unchanged.
+
+    >>> _svg_for_fpdf('<svg><clipPath id="d-lead-1"/><g clip-path="url(#d-lead-1)"/></svg>')
+    b'<svg><clipPath id="r0"/><g clip-path="url(#r0)"/></svg>'
+    """
+    ids = {old: f"r{k}" for k, old in enumerate(dict.fromkeys(_SVG_ID.findall(svg)))}
+    if ids and any(not re.fullmatch(r"\w+", old) for old in ids):
+        names = "|".join(re.escape(old) for old in sorted(ids, key=len, reverse=True))
+        svg = _SVG_ID.sub(lambda m: f'id="{ids[m.group(1)]}"', svg)
+        svg = re.sub(rf'(url\(#|href="#)({names})(?=[)"])', lambda m: m.group(1) + ids[m.group(2)], svg)
+    return svg.encode("utf-8")
+
+
 @functools.lru_cache(maxsize=64)
 def _svg_size(svg: str) -> tuple[float, float]:
     """(width, height) of an SVG in its own units (its viewBox, else its width and height)."""
     from fpdf.svg import SVGObject
 
-    obj = SVGObject(svg.encode("utf-8"))
+    obj = SVGObject(_svg_for_fpdf(svg))
     if obj.viewbox:
         return float(obj.viewbox[2]), float(obj.viewbox[3])
     return float(obj.width or 0), float(obj.height or 0)
