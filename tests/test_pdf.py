@@ -78,7 +78,7 @@ def _fonts(data: bytes) -> set[str]:
 
 # ------------------------------------------------------------------------------------------ documents
 
-def _lab_document_fallback(ev, lab: str) -> Document:
+def _lab_document_fallback(ev, lab: str, strips: bool = True) -> Document:
     """A minimal lab document from the evaluation, to exercise the renderer and the writer until the real
     builder (``outputs.report.lab_document``) lands: the lab's identity, its scores table with signals, the
     round statistics (wide), one strip figure per measurand."""
@@ -105,13 +105,13 @@ def _lab_document_fallback(ev, lab: str) -> Document:
     stats = Table(columns=tuple(Column(title=str(c), numeric=st[c].dtype.kind == "f") for c in st.columns),
                   rows=tuple(tuple(Cell(text=f"{v:.4g}" if isinstance(v, float) else str(v)) for v in row)
                              for row in st.itertuples(index=False)), key_columns=1, caption="Round statistics")
-    strips = []
-    for name in ev.measurands:
+    figures = []
+    for name in ev.measurands if strips else ():
         own = rows[rows["measurand"] == name]
         z = ev.scores[ev.scores["measurand"] == name]["z"].to_numpy(float)
         strip = score_strip(z, measurand=name, score="z", title=name, key=f"strip-{name}")
         v = float(own["z"].iloc[0]) if len(own) else None
-        strips.append(Figure(svg=strip.for_lab(lab, v, own["signal"].iloc[0] if len(own) else None, "signals"),
+        figures.append(Figure(svg=strip.for_lab(lab, v, own["signal"].iloc[0] if len(own) else None, "signals"),
                              anchor=f"strip-{name}"))
     return Document(title=f"Round {ev.round.id}: results of laboratory {lab}", subtitle=ev.round.title or "",
                     footer=f"Confidential to laboratory {lab}", blocks=(
@@ -119,7 +119,7 @@ def _lab_document_fallback(ev, lab: str) -> Document:
         Facts(pairs=(("Laboratory code", lab), ("Laboratory", p.name if p else ""),
                      ("Contact", p.contact if p else ""))),
         Section(heading=Heading(text="Your scores"), blocks=(scores,)),
-        Section(heading=Heading(text="Where you stand"), blocks=tuple(strips)),
+        Section(heading=Heading(text="Where you stand"), blocks=tuple(figures)),
         Section(heading=Heading(text="Round statistics"), blocks=(stats,)),
         Paragraph(text="This evaluation supports, and does not replace, the provider's procedures.",
                   style="caution")))
@@ -327,11 +327,12 @@ def test_the_demo_lab_document_fits_the_page(scored_demo):
 
 def test_same_document_gives_the_same_bytes_here_and_in_a_fresh_process(every_pdf, figure_svg, tmp_path):
     assert render_pdf(_every_block(figure_svg)) == every_pdf
-    (tmp_path / "figure.svg").write_text(figure_svg, encoding="utf-8")
-    script = (f"import sys; sys.path.insert(0, {str(Path(__file__).parent)!r}); from pathlib import Path; "
-              "from test_pdf import _every_block; from roundscore.outputs.pdf import render_pdf; "
-              f"svg = Path({str(tmp_path / 'figure.svg')!r}).read_text(encoding='utf-8'); "
-              f"Path({str(tmp_path / 'out.pdf')!r}).write_bytes(render_pdf(_every_block(svg)))")
+    import pickle
+
+    (tmp_path / "doc.pickle").write_bytes(pickle.dumps(_every_block(figure_svg)))
+    script = ("import pickle, sys; from pathlib import Path; from roundscore.outputs.pdf import render_pdf; "
+              f"doc = pickle.loads(Path({str(tmp_path / 'doc.pickle')!r}).read_bytes()); "
+              f"Path({str(tmp_path / 'out.pdf')!r}).write_bytes(render_pdf(doc))")
     subprocess.run([sys.executable, "-c", script], check=True, timeout=120)
     assert (tmp_path / "out.pdf").read_bytes() == every_pdf
     assert b"/CreationDate (D:20000101000000Z" in every_pdf
@@ -356,3 +357,46 @@ def test_fonts_parsed_once_give_the_same_file_as_fpdf_add_font(figure_svg, monke
 def test_unknown_paper_is_refused():
     with pytest.raises(ValueError, match="paper: found 'a3'"):
         render_pdf(Document(title="T", blocks=()), "a3")  # type: ignore[arg-type]
+
+
+# ------------------------------------------------------------------------------------------ the writer
+
+def _report_document_fallback(ev) -> Document:
+    """A minimal round document (labs by code only) until ``outputs.report.report_document`` lands."""
+    sc = ev.scores
+    return Document(title=f"Round {ev.round.id}: report", footer=f"Round {ev.round.id}", blocks=(
+        Heading(text="Scores"),
+        Table(columns=(Column(title="Lab"), Column(title="Measurand"), Column(title="z", numeric=True)),
+              rows=tuple((Cell(text=r.lab), Cell(text=r.measurand), Cell(text=f"{r.z:.2f}", signal=r.signal))
+                         for r in sc.itertuples()), key_columns=2)))
+
+
+def test_the_pdf_writer_writes_a_file_per_lab_and_the_report_on_the_rounds_paper(scored_demo, tmp_path,
+                                                                                   monkeypatch):
+    import dataclasses
+
+    import roundscore.outputs.report as report
+    import roundscore.outputs.writers as writers
+    from roundscore.support.filenames import lab_file_name
+
+    monkeypatch.setattr(report, "lab_document", lambda ev, parts, lab: _lab_document_fallback(ev, lab, False),
+                        raising=False)
+    monkeypatch.setattr(report, "report_document", lambda ev, parts: _report_document_fallback(ev), raising=False)
+    monkeypatch.setattr(writers, "report_parts_of", lambda ev, options: None)
+    ev = scored_demo.evaluation
+    ev = dataclasses.replace(ev, round=dataclasses.replace(ev.round, paper="letter"))
+    seen = []
+    files = writers.write_with([writers.PdfFiles()], ev, tmp_path,
+                               writers.WriteOptions(jobs=1, progress=lambda *a: seen.append(a)))
+    labs = ev.labs
+    assert files == [tmp_path / "report.pdf"] + [tmp_path / "labs" / lab_file_name(lab, ".pdf") for lab in labs]
+    assert seen and seen[-1] == ("lab PDFs", len(labs), len(labs))
+    report_text = _text(files[0].read_bytes())
+    assert all(lab in report_text for lab in labs)
+    assert not any(p.name in report_text for p in ev.participants.values())  # labs by code only
+    for lab, path in zip(labs[:3], files[1:4]):
+        data = path.read_bytes()
+        text = _text(data)
+        assert lab in text and ev.participants[lab].name in text
+        assert not any(p.name in text for other, p in ev.participants.items() if other != lab)
+        assert set(_page_sizes(data)) == {PAPER_MM["letter"]}
