@@ -520,15 +520,26 @@ def _svg_for_fpdf(svg: str) -> bytes:
     return svg.encode("utf-8")
 
 
-@functools.lru_cache(maxsize=64)
-def _svg_size(svg: str) -> tuple[float, float]:
-    """(width, height) of an SVG in its own units (its viewBox, else its width and height)."""
-    from fpdf.svg import SVGObject
+_SVG_TAG = re.compile(r"<svg\b[^>]*>", re.S)
+_NUMBER = r"([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)"
 
-    obj = SVGObject(_svg_for_fpdf(svg))
-    if obj.viewbox:
-        return float(obj.viewbox[2]), float(obj.viewbox[3])
-    return float(obj.width or 0), float(obj.height or 0)
+
+def _svg_size(svg: str) -> tuple[float, float]:
+    """(width, height) of an SVG in its own units: its viewBox, else its width and height (0, 0 if neither).
+
+    Read from the root element's attributes (fpdf2 parses the whole SVG again to draw it).
+
+    >>> _svg_size('<svg xmlns="http://www.w3.org/2000/svg" width="360pt" viewBox="0 0 720 64"><g/></svg>')
+    (720.0, 64.0)
+    """
+    m = _SVG_TAG.search(svg)
+    tag = m.group(0) if m else ""
+    box = re.search(r'viewBox="\s*' + r"[\s,]+".join([_NUMBER] * 4) + r'\s*"', tag)
+    if box:
+        return float(box.group(3)), float(box.group(4))
+    w = re.search(r'\bwidth="' + _NUMBER, tag)
+    h = re.search(r'\bheight="' + _NUMBER, tag)
+    return (float(w.group(1)), float(h.group(1))) if w and h else (0.0, 0.0)
 
 
 # ------------------------------------------------------------------------------------------ tables
