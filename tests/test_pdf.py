@@ -255,12 +255,28 @@ def test_a_heading_moves_to_the_next_page_with_what_follows_it():
 
 # ------------------------------------------------------------------------------------------ nothing overflows
 
+def _baselines(data: bytes) -> list[float]:
+    """The baseline of every text run, in mm from the top of its page."""
+    out = []
+    for page in _reader(data).pages:
+        height = float(page.mediabox.height)
+
+        def visit(text, cm, tm, font, size, height=height):
+            if text.strip():
+                out.append((height - (tm[5] * cm[3] + cm[5])) / PT)
+        page.extract_text(visitor_text=visit)
+    return out
+
+
 def _check_within_margins(data: bytes, paper: str = "a4") -> None:
     right = PAPER_MM[paper][0] - MARGIN_MM
     runs = _runs(data)
     assert runs
     assert min(x for _, x, _, _, _ in runs) >= MARGIN_MM - 0.01
     assert _widest_right_edge(data) <= right + 0.01
+    ys = _baselines(data)
+    # the footer sits in the bottom margin, clear of the 5 mm or so a printer cannot print (common practice)
+    assert min(ys) >= MARGIN_MM and max(ys) <= PAPER_MM[paper][1] - 8
 
 
 HOSTILE = ("שלום עולם مختبر", "Lab 😀 ☃", "Bad\x07\x1b[31mname\u202e", "W" * 400, "<script>alert(1)</script>",
@@ -282,6 +298,18 @@ def test_hostile_text_prints_within_the_margins_and_readably():
     assert "\x07" not in text and "\x1b" not in text and "\u202e" not in text
     assert "\ufffd" in text  # ... each shown as the replacement character
     assert text.replace("\n", "").count("W" * 50) >= 1  # the long word is broken, not lost
+
+
+def test_a_table_row_taller_than_a_page_continues_on_the_next():
+    note = " ".join(f"word{i}" for i in range(3000))
+    doc = Document(title="T", blocks=(Table(columns=(Column(title="Lab"), Column(title="Note")),
+                                            rows=((Cell(text="L1"), Cell(text=note)), (Cell(text="L2"), Cell(text="x")))),))
+    data = render_pdf(doc)
+    _check_within_margins(data)
+    pages = [p.extract_text() for p in _reader(data).pages]
+    assert len(pages) >= 2 and all("Note" in p for p in pages)  # the header on each page
+    words = re.findall(r"word\d+", "".join(pages))
+    assert words == [f"word{i}" for i in range(3000)]
 
 
 def test_printable_text_replaces_what_cannot_print_and_orders_rtl_runs_visually():

@@ -377,17 +377,16 @@ class _Layout:
             pdf.line(pdf.l_margin, pdf.get_y() + 0.3, pdf.l_margin + pdf.epw, pdf.get_y() + 0.3)
         pdf.set_y(pdf.get_y() + 1.5)
 
-    def text_lines(self, lines: Sequence[str], size: float, x: float, width: float, align: str = "L",
-                   link: int | None = None) -> None:
+    def text_lines(self, lines: Sequence[str], size: float, x: float, width: float) -> None:
         """Lines at ``x``, each on a new page when the page is full."""
         pdf = self.pdf
         h = size * LEADING * _PT
         for line in lines:
             self.need(h)
             pdf.set_x(x)
-            pdf.cell(width, h, line, align=align, new_x="LMARGIN", new_y="NEXT", link=link or "")
+            pdf.cell(width, h, line, new_x="LMARGIN", new_y="NEXT")
 
-    def paragraph(self, text: str, style: TextStyle, *, prefix: str = "") -> None:
+    def paragraph(self, text: str, style: TextStyle) -> None:
         pdf = self.pdf
         size = SMALL_PT if style == "small" else (BODY_PT - 0.5 if style == "note" else BODY_PT)
         boxed = _BOXED.get(style)
@@ -656,18 +655,23 @@ class _TableDrawer:
             layout.font(BODY_PT - 0.5, "", PAGE_COLOUR["muted"])
             caption = layout.lines(table.caption, pdf.epw)
         rows = [[self.cell_lines(row[j].text, k) for k, j in enumerate(self.group)] for row in table.rows]
-        first = self.row_height(rows[0]) if rows else 0.0
+        first = min(self.row_height(rows[0]), 3 * self.line_h + 2 * _VPAD) if rows else 0.0  # a tall row splits
         layout.need(len(caption[:2]) * (BODY_PT - 0.5) * LEADING * _PT + head_h + first + 1)
         if caption:
             layout.font(BODY_PT - 0.5, "", PAGE_COLOUR["muted"])
             layout.text_lines(caption, BODY_PT - 0.5, pdf.l_margin, pdf.epw)
         self.draw_row([None] * len(self.group), head, header=True)
+        fresh = layout.bottom - pdf.t_margin - head_h  # the room for rows on a new page
         for row, lines in zip(table.rows, rows):
-            h = self.row_height(lines)
-            if h > layout.room():
+            cells = [row[j] for j in self.group]
+            while self.row_height(lines) > layout.room():
+                fit = int((layout.room() - 2 * _VPAD) // self.line_h)
+                if self.row_height(lines) > fresh and fit >= 1:  # taller than a page: split between lines
+                    self.draw_row(cells, [x[:fit] for x in lines], header=False)
+                    lines = [x[fit:] for x in lines]
                 layout.page()
                 self.draw_row([None] * len(self.group), head, header=True)
-            self.draw_row([row[j] for j in self.group], lines, header=False)
+            self.draw_row(cells, lines, header=False)
         pdf.set_y(pdf.get_y() + 3)
 
 
