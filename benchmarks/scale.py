@@ -243,6 +243,10 @@ def _floor_write_batch(indices: list[int]) -> list[int]:
                 if chart is not None:
                     wb.worksheets()[0].insert_chart(0, 0, chart)
             wb.close()
+        elif kind == "pdf":
+            from pdf_floor import bare_pdf
+
+            target.write_bytes(bare_pdf(*data))
         elif kind == "csv":
             buf = io.StringIO()
             csv.writer(buf, lineterminator="\n").writerows(data)
@@ -260,11 +264,22 @@ def part_floor_write(a: argparse.Namespace) -> dict:
 
     src = Path(a.out)
     content = []
+    pdfs = {}
+    if any(src.rglob("*.pdf")):  # the same documents, rebuilt from the evaluation (untimed)
+        from pdf_floor import documents
+
+        from roundscore.pipeline import load_and_evaluate
+
+        ev = load_and_evaluate(Path(a.round))
+        pdfs, _ = documents(ev, list(ev.labs))
+        paper = ev.round.paper
     for p in sorted(src.rglob("*")):
         if not p.is_file():
             continue
         rel = p.relative_to(src)
-        if p.suffix.lower() == ".xlsx":
+        if p.suffix.lower() == ".pdf" and rel.as_posix() in pdfs:
+            content.append((rel, "pdf", (pdfs[rel.as_posix()], paper)))
+        elif p.suffix.lower() == ".xlsx":
             content.append((rel, "xlsx", _workbook_content(p)))
         elif p.suffix.lower() == ".csv":
             with open(p, newline="", encoding="utf-8") as fh:
@@ -284,11 +299,13 @@ def part_floor_write(a: argparse.Namespace) -> dict:
     run_batches(_floor_write_batch, order, jobs=a.jobs, shared=(content, str(out_dir)),
                 batch_size=max(1, len(order) // (16 * a.jobs)))
     return {"seconds": time.perf_counter() - t, "files": len(content), "cells": cells, "charts": charts,
-            "series": series}
+            "series": series, "pdfs": sum(1 for c in content if c[1] == "pdf")}
 
 
 def _weight(item) -> int:
     _rel, kind, data = item
+    if kind == "pdf":
+        return 20000  # about a summary sheet's cells: a PDF takes tens of milliseconds
     if kind == "xlsx":
         return sum(len(r) for _, rows in data[0] for r in rows)
     return len(data)
@@ -363,7 +380,44 @@ def part_figures(a: argparse.Namespace) -> dict:
     return {"per_figure": (time.perf_counter() - t) / n, "sample": n}
 
 
-PARTS = {"generate": part_generate, "pipeline": part_pipeline, "floor_read": part_floor_read,
+def _pdf_batch(names: list[str]) -> list[int]:
+    from pdf_floor import bare_pdf
+
+    from roundscore.outputs.pdf import render_pdf
+    from roundscore.support.parallel import shared
+
+    docs, paper, out_dir, bare = shared()
+    for name in names:
+        data = (bare_pdf if bare else render_pdf)(docs[name], paper)
+        target = Path(out_dir) / name
+        target.parent.mkdir(parents=True, exist_ok=True)
+        target.write_bytes(data)
+    return [1] * len(names)
+
+
+def part_pdf(a: argparse.Namespace) -> dict:
+    """The PDF files alone: roundscore's renderer against the bare library on the same documents, each in a pool
+    of ``jobs`` processes (the documents are built first, untimed)."""
+    from pdf_floor import documents
+
+    from roundscore.pipeline import load_and_evaluate
+    from roundscore.support.parallel import run_batches
+
+    ev = load_and_evaluate(Path(a.round))
+    labs = list(ev.labs)[:a.pdf_labs] if a.pdf_labs else list(ev.labs)
+    docs, stand_in = documents(ev, labs)
+    names = sorted(docs)
+    out = {}
+    for label, bare in (("roundscore", False), ("floor", True)):
+        folder = Path(a.pdf_out) / label
+        t = time.perf_counter()
+        run_batches(_pdf_batch, names, jobs=a.jobs, shared=(docs, ev.round.paper, str(folder), bare), batch_size=16)
+        out[label] = time.perf_counter() - t
+        out[f"{label}_bytes"] = sum(p.stat().st_size for p in folder.rglob("*.pdf"))
+    return {**out, "files": len(names), "stand_in": stand_in}
+
+
+PARTS = {"pdf": part_pdf, "generate": part_generate, "pipeline": part_pipeline, "floor_read": part_floor_read,
          "floor_write": part_floor_write, "baseline": part_baseline, "core": part_core, "figures": part_figures}
 
 
@@ -480,6 +534,10 @@ def main(argv: list[str] | None = None) -> int:
     p.add_argument("--core-sets", type=int, default=10000, help="sets for the Algorithm A comparison")
     p.add_argument("--core-labs", type=int, default=200, help="lab means per set for the comparison")
     p.add_argument("--figure-sample", type=int, default=20, help="matplotlib figures timed for the estimate")
+    p.add_argument("--pdf-labs", type=int, default=0,
+                   help="labs whose PDFs the PDF comparison writes (default 0: all)")
+    p.add_argument("--only-pdf", action="store_true",
+                   help="generate the round and run only the PDF comparison (renderer against the bare library)")
     p.add_argument("--work", default=None, help="working folder (default: a temporary one, removed)")
     p.add_argument("--seed", type=int, default=20270301)
     p.add_argument("--part", help=argparse.SUPPRESS)
@@ -511,10 +569,12 @@ def _run(a: argparse.Namespace, jobs: int, growth: list[int], work: Path) -> int
     gen = run_part("generate", a, round=str(rnd), **base)
     say(f"{'generate':<10}{gen['seconds']:9.2f} s   {gen['forms']} filled-in forms, {gen['cells']} result cells "
         "(roundscore.demo.big_round; not compared)")
+    if a.only_pdf:
+        return _pdf_line(a, say, rnd, work, base)
     pipe = run_part("pipeline", a, round=str(rnd), out=str(out), **base)
     st = pipe["stages"]
     fr = run_part("floor_read", a, round=str(rnd), **base)
-    fw = run_part("floor_write", a, out=str(out), floor_out=str(work / "floor-out"), **base)
+    fw = run_part("floor_write", a, round=str(rnd), out=str(out), floor_out=str(work / "floor-out"), **base)
     bl = run_part("baseline", a, round=str(rnd), baseline_out=str(work / "baseline-out"))
     floor_total = fr["seconds"] + fw["seconds"]
     say(_line("read", st["read"], fr["seconds"], bl["read"]))
@@ -526,7 +586,9 @@ def _run(a: argparse.Namespace, jobs: int, growth: list[int], work: Path) -> int
     say(f"  floor read: python-calamine, {jobs} process(es), both sheets of {gen['forms']} forms; floor write: "
         f"xlsxwriter in memory, {jobs} process(es), {fw['files']} files, {fw['cells']} cells, {fw['charts']} "
         f"native charts with their {fw['series']} series over the same ranges and their point fills (+ the same CSV "
-        "rows and other files' bytes)")
+        f"rows, {fw['pdfs']} PDFs drawn by bare fpdf2 from the same documents, other files' bytes)")
+    if not fw["pdfs"]:
+        _pdf_line(a, say, rnd, work, base)
     say(f"  baseline: pandas.read_excel+openpyxl per file, a per-measurand Algorithm A loop, openpyxl per lab "
         f"sheet ({bl['labs']} labs, all files, not sampled)")
     spans = pipe["progress_stages"]
@@ -571,6 +633,18 @@ def _run(a: argparse.Namespace, jobs: int, growth: list[int], work: Path) -> int
             + f": exponent {expo:.2f} (least-squares slope of log time on log labs; target ≤ {TARGETS['exponent']})")
     say(f"read/floor={st['read'] / fr['seconds']:.2f} write/floor={st['write'] / fw['seconds']:.2f} "
         f"total/baseline={st['total'] / bl['total']:.3f} exponent={expo:.2f}")
+    return 0
+
+
+def _pdf_line(a: argparse.Namespace, say, rnd: Path, work: Path, base: dict) -> int:
+    """The PDF comparison, printed (run when the pipeline writes no PDFs, or with --only-pdf)."""
+    pdf = run_part("pdf", a, round=str(rnd), pdf_out=str(work / "pdf-out"), **base)
+    n = pdf["files"]
+    say(f"{'pdf':<10}{pdf['roundscore']:9.2f} s   {n} files ({pdf['roundscore_bytes'] / n / 1024:.0f} KB each), "
+        f"{pdf['roundscore'] / pdf['floor']:.2f}× the floor ({pdf['floor']:.2f} s: bare fpdf2, add_font per file, "
+        f"FPDF.table, FPDF.image of the same SVG; {pdf['floor_bytes'] / n / 1024:.0f} KB each)"
+        + ("; stand-in lab documents (outputs/report.py has no lab_document yet)" if pdf["stand_in"] else ""))
+    say(f"pdf/floor={pdf['roundscore'] / pdf['floor']:.2f} per file {pdf['roundscore'] / n * 1000:.0f} ms")
     return 0
 
 

@@ -50,3 +50,8 @@ def test_stage_lines_give_seconds_and_ratios(tiny_run):
 def test_refuses_bad_option():
     res = subprocess.run([sys.executable, str(SCRIPT), "--labs", "many"], capture_output=True, text=True)
     assert res.returncode == 2 and "--labs" in res.stderr
+
+
+def test_pdf_files_are_compared_with_the_bare_library(tiny_run):
+    line = next((ln for ln in tiny_run.splitlines() if ln.startswith("pdf ")), "")
+    assert re.search(r"\d+\.\d+ s +\d+ files .*× the floor", line), tiny_run

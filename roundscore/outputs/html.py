@@ -15,17 +15,12 @@ from collections import OrderedDict
 
 from roundscore.outputs.document import (Block, Bullets, Cell, Document, Facts, Figure, Heading,
                                          Paragraph, Section, Table)
-from roundscore.outputs.look import SIGNAL_COLOUR, SIGNAL_WORD
+from roundscore.outputs.look import SIGNAL_COLOUR, SIGNAL_WORD, tint as _tint
 
 __all__ = ["render_html", "column_groups", "PAPER_SIZES", "CSS", "MAX_COLUMNS"]
 
 #: CSS ``@page size`` of each ``[round] paper``, portrait.
 PAPER_SIZES = {"a4": "A4", "letter": "letter"}
-
-
-def _tint(hex_colour: str, keep: float = 0.3) -> str:
-    r, g, b = (int(hex_colour[i:i + 2], 16) for i in (1, 3, 5))
-    return "#{:02X}{:02X}{:02X}".format(*(int(c + (255 - c) * (1 - keep)) for c in (r, g, b)))
 
 
 CSS = """

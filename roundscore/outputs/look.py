@@ -18,13 +18,18 @@ from typing import Any
 from roundscore.model.signals import SIGNALS, WORDS, signal_label
 
 __all__ = ["SIGNAL_COLOUR", "SIGNAL_MARKER", "SIGNAL_CHART_MARKER", "SIGNAL_SYMBOL", "SIGNAL_WORD", "PALETTE",
-           "LIMIT_LINE", "signal_label", "signal_legend_text", "CAUTION"]
+           "LIMIT_LINE", "signal_label", "signal_legend_text", "CAUTION", "PAGE_COLOUR", "tint"]
 
 PALETTE = {
     "black": "#000000", "orange": "#E69F00", "sky": "#56B4E9", "green": "#009E73",
     "yellow": "#F0E442", "blue": "#0072B2", "vermillion": "#D55E00", "purple": "#CC79A7",
     "grey": "#8C8C8C",
 }
+#: The colours of a page a person reads (HTML and PDF): text, muted text, table rules, table heads, links,
+#: the caution box (its rule and fill) and the alert box.
+PAGE_COLOUR = {"ink": "#1A1A1A", "muted": "#555555", "rule": "#C8C8C8", "head": "#DDE6F0", "link": "#0B4F8A",
+               "caution": PALETTE["blue"], "caution_fill": "#EEF5FB", "alert": PALETTE["vermillion"],
+               "alert_fill": "#FBEEE6"}
 SIGNAL_COLOUR = {"acceptable": PALETTE["green"], "warning": PALETTE["orange"],
                  "action": PALETTE["vermillion"], "not-scored": PALETTE["grey"]}
 #: matplotlib marker codes of the signal shapes.
@@ -45,6 +50,16 @@ LIMIT_LINE: dict[str, dict[str, Any]] = {
     "warning": {"matplotlib": "--", "chart": "dash", "svg": ' stroke-dasharray="4 3"'},
     "action": {"matplotlib": "-", "chart": "solid", "svg": ""},
 }
+
+def tint(hex_colour: str, keep: float = 0.3) -> str:
+    """``hex_colour`` mixed with white, keeping the share ``keep`` of the colour (a cell's background).
+
+    >>> tint("#009E73")
+    '#B2E1D5'
+    """
+    r, g, b = (int(hex_colour[i:i + 2], 16) for i in (1, 3, 5))
+    return "#{:02X}{:02X}{:02X}".format(*(int(c + (255 - c) * (1 - keep)) for c in (r, g, b)))
+
 
 CAUTION = (
     "This evaluation supports, and does not replace, the proficiency-testing provider's documented "

@@ -32,7 +32,7 @@ import numpy as np
 from roundscore.model.evaluation import STATE_SIDE, STATES
 from roundscore.model.scores import SCORE_FAMILIES, family_of, score_label, score_symbol
 from roundscore.model.signals import SCORED_SIGNALS
-from roundscore.outputs.look import LIMIT_LINE, PALETTE, SIGNAL_COLOUR, SIGNAL_SYMBOL, SIGNAL_WORD
+from roundscore.outputs.look import LIMIT_LINE, PALETTE, SIGNAL_COLOUR, SIGNAL_SYMBOL, SIGNAL_WORD, tint as _tint
 
 __all__ = ["ScoreStrip", "score_strip", "STRIP_RANGE", "STRIP_BIN", "STRIP_UNIT_BLOCKS", "STRIP_WIDTH",
            "STRIP_HEIGHT", "score_label", "strip_legend"]
@@ -51,11 +51,6 @@ _GUTTER = 200.0
 _PLOT = (_GUTTER + 12.0, STRIP_WIDTH - 14.0)  # x of score −STRIP_RANGE and +STRIP_RANGE
 _TOP, _AXIS = 8.0, 46.0  # y of the plot's top and of the axis line
 _FONT = 'font-family="DejaVu Sans, sans-serif"'
-
-
-def _tint(hex_colour: str, keep: float) -> str:
-    r, g, b = (int(hex_colour[i:i + 2], 16) for i in (1, 3, 5))
-    return "#{:02X}{:02X}{:02X}".format(*(int(c + (255 - c) * (1 - keep)) for c in (r, g, b)))
 
 
 def _x(score: float) -> float:

@@ -43,7 +43,8 @@ from roundscore.support.filenames import lab_file_name
 from roundscore.support.parallel import Progress, run_batches, shared
 
 __all__ = ["WriteOptions", "WriteTask", "Writer", "CsvTables", "SummaryWorkbook", "LabWorkbooks", "HtmlReport",
-           "WRITERS", "FORMATS", "writers_for", "run_tasks", "write_with", "LAB_SHEETS_PER_TASK"]
+           "PdfFiles", "report_parts_of", "WRITERS", "FORMATS", "writers_for", "run_tasks", "write_with",
+           "LAB_SHEETS_PER_TASK"]
 
 #: Lab sheets per task sent to a worker: fixed (not tied to the number of jobs) and small enough that the
 #: summary workbook, the largest single task, runs beside the lab sheets (common practice for pools).
@@ -174,6 +175,22 @@ class LabWorkbooks(Writer):
             lab_workbook.write_lab_workbook(lab_payload(ev, lab, hist), path)
 
 
+def report_parts_of(ev: RoundEvaluation, options: WriteOptions) -> Any:
+    """The shared parts of the round's pages (figures drawn once, in a pool of their own), built once per
+    evaluation: the HTML and the PDF writers of one run share them."""
+    from roundscore.outputs.figures import round_figures  # matplotlib: imported only when pages are written
+    from roundscore.outputs.report import report_parts
+
+    if _PARTS and _PARTS[0][0] is ev:
+        return _PARTS[0][1]
+    parts = report_parts(ev, round_figures(ev, jobs=options.jobs, progress=options.progress))
+    _PARTS[:] = [(ev, parts)]
+    return parts
+
+
+_PARTS: list[tuple[RoundEvaluation, Any]] = []  # the last evaluation's parts (one run writes one evaluation)
+
+
 class HtmlReport(Writer):
     """``report.html`` and ``labs/LAB.html`` (:mod:`roundscore.outputs.report`): the figures are drawn once, in
     a pool of their own, then the pages are composed."""
@@ -182,13 +199,28 @@ class HtmlReport(Writer):
     format = "html"
 
     def write(self, ev: RoundEvaluation, folder: Path, options: WriteOptions) -> list[Path]:
-        from roundscore.outputs.report import write_report  # matplotlib: imported only when a report is written
+        from roundscore.outputs.report import write_report
 
-        return write_report(ev, folder, jobs=options.jobs, progress=options.progress)
+        return write_report(ev, folder, jobs=options.jobs, progress=options.progress,
+                            parts=report_parts_of(ev, options))
+
+
+class PdfFiles(Writer):
+    """``report.pdf`` and ``labs/LAB.pdf`` (:mod:`roundscore.outputs.pdf_files`): the same documents as the
+    HTML pages, drawn by :mod:`roundscore.outputs.pdf` on the round's paper, the lab files in a pool of their
+    own after the shared parts (the HTML writer's, when both are written) are built."""
+
+    name = "pdf"
+    format = "pdf"
+
+    def write(self, ev: RoundEvaluation, folder: Path, options: WriteOptions) -> list[Path]:
+        from roundscore.outputs.pdf_files import write_pdfs
+
+        return write_pdfs(ev, folder, report_parts_of(ev, options), jobs=options.jobs, progress=options.progress)
 
 
 #: Every kind of output of ``roundscore score``, in the order their files are listed.
-WRITERS: tuple[Writer, ...] = (CsvTables(), SummaryWorkbook(), LabWorkbooks(), HtmlReport())
+WRITERS: tuple[Writer, ...] = (CsvTables(), SummaryWorkbook(), LabWorkbooks(), HtmlReport(), PdfFiles())
 #: The output formats, in the order of :data:`WRITERS`.
 FORMATS: tuple[str, ...] = tuple(dict.fromkeys(w.format for w in WRITERS))
 _BY_NAME = {w.name: w for w in WRITERS}
@@ -248,7 +280,10 @@ def write_with(writers: Iterable[Writer], ev: RoundEvaluation, folder: Path,
     tasks = [t for w in writers for t in w.tasks(ev, folder, options)]
     files = [p for t in tasks for p in t.files]
     run_tasks(ev, tasks, options)
-    for w in writers:
-        files += w.write(ev, folder, options)
+    try:
+        for w in writers:
+            files += w.write(ev, folder, options)
+    finally:
+        _PARTS.clear()
     files.append(write_circulation(ev, folder, files))  # last: it lists what the writers wrote
     return files
