@@ -512,13 +512,22 @@ def _svg_for_fpdf(svg: str) -> bytes:
 
     >>> _svg_for_fpdf('<svg><clipPath id="d-lead-1"/><g clip-path="url(#d-lead-1)"/></svg>')
     b'<svg><clipPath id="r0"/><g clip-path="url(#r0)"/></svg>'
+    >>> _svg_for_fpdf('<svg><path style="fill: #56b4e9"/><text style="font-size: 9px">a</text></svg>')[30:]
+    b'<text style="fill: #000000; opacity: 1; font-size: 9px">a</text></svg>'
     """
     ids = {old: f"r{k}" for k, old in enumerate(dict.fromkeys(_SVG_ID.findall(svg)))}
     if ids and any(not re.fullmatch(r"\w+", old) for old in ids):
         names = "|".join(re.escape(old) for old in sorted(ids, key=len, reverse=True))
         svg = _SVG_ID.sub(lambda m: f'id="{ids[m.group(1)]}"', svg)
         svg = re.sub(rf'(url\(#|href="#)({names})(?=[)"])', lambda m: m.group(1) + ids[m.group(2)], svg)
+    # fpdf2 2.8 draws a <text> without a fill in the fill and opacity of the shape drawn before it (a pale
+    # band, say), not in SVG's default black: give matplotlib's text elements their colour explicitly.
+    svg = _SVG_TEXT_STYLE.sub(lambda m: m.group(0) if "fill" in m.group(1) else
+                              f'<text style="fill: #000000; opacity: 1; {m.group(1)}"', svg)
     return svg.encode("utf-8")
+
+
+_SVG_TEXT_STYLE = re.compile(r'<text style="([^"]*)"')
 
 
 _SVG_TAG = re.compile(r"<svg\b[^>]*>", re.S)
