@@ -512,7 +512,7 @@ def _svg_for_fpdf(svg: str) -> bytes:
 
     >>> _svg_for_fpdf('<svg><clipPath id="d-lead-1"/><g clip-path="url(#d-lead-1)"/></svg>')
     b'<svg><clipPath id="r0"/><g clip-path="url(#r0)"/></svg>'
-    >>> _svg_for_fpdf('<svg><path style="fill: #56b4e9"/><text style="font-size: 9px">a</text></svg>')[33:]
+    >>> _svg_for_fpdf('<svg><path style="fill: #56b4e9"/><text style="font-size: 9px">a</text></svg>')[34:]
     b'<text style="fill: #000000; opacity: 1; font-size: 9px">a</text></svg>'
     """
     ids = {old: f"r{k}" for k, old in enumerate(dict.fromkeys(_SVG_ID.findall(svg)))}
