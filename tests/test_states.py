@@ -243,3 +243,27 @@ def test_report_keeps_the_technical_finding_and_the_same_signals(scored):
         page = _lab_page(out, lab)
         assert "Check failed" not in page and "u(x_pt) exceeds" not in page
         assert "treat your z-score as indicative" in page
+
+
+def _pdf_text(path):
+    import io
+
+    import pypdf
+
+    text = "\n".join(p.extract_text() for p in pypdf.PdfReader(io.BytesIO(path.read_bytes())).pages)
+    return " ".join(text.split())  # table cells wrap inside their column
+
+
+def test_the_pdfs_say_each_state_and_hold_no_withheld_value(scored):
+    # The PDF is drawn from the same Document as the page: each lab's state in words, the withheld value nowhere.
+    ev, out = scored
+    texts = _texts(_withheld_numbers(ev).values())
+    for lab, (state, signal) in EXPECTED.items():
+        text = _pdf_text(out / "labs" / f"{lab}.pdf")
+        assert SIGNALS[signal].label() in text, (lab, state)
+        assert f"Invented Lab {int(lab[1:])}" in text
+    withheld = _pdf_text(out / "labs" / "L05.pdf")
+    assert "withheld" in withheld and not [t for t in texts if t in withheld]
+    assert "converted ×1000" in _pdf_text(out / "labs" / "L13.pdf")
+    report = _pdf_text(out / "report.pdf")
+    assert not [t for t in texts if t in report]
