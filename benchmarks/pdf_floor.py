@@ -27,7 +27,7 @@ def bare_pdf(doc: Any, paper: str) -> bytes:
     from fpdf.fonts import FontFace
 
     from roundscore.outputs.document import Bullets, Facts, Figure, Heading, Paragraph, Section, Table
-    from roundscore.outputs.pdf import PDF_DATE
+    from roundscore.outputs.pdf import PDF_DATE, _svg_for_fpdf
 
     folder = matplotlib.get_data_path() + "/fonts/ttf/"
 
@@ -72,7 +72,9 @@ def bare_pdf(doc: Any, paper: str) -> bytes:
                     for c in row:
                         r.cell(c.text)
         elif isinstance(block, Figure):
-            pdf.image(io.BytesIO(block.svg.encode("utf-8")), w=pdf.epw * block.width)
+            # fpdf2 2.8 cannot follow matplotlib's clip-path ids (they hold "-"): the floor needs the same
+            # renaming roundscore does before drawing, or the bare library fails on every figure.
+            pdf.image(io.BytesIO(_svg_for_fpdf(block.svg)), w=pdf.epw * block.width)
 
     text(doc.title, 15, "B")
     for block in doc.blocks:

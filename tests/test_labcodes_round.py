@@ -92,8 +92,8 @@ def test_every_lab_has_its_own_sheet_and_page(scored):
     labs = sorted(pd.read_csv(out / "scores.csv", dtype=str, keep_default_na=False)["lab"].unique())
     assert labs == sorted(CODES)
     sheets = sorted(p.name for p in (out / "labs").iterdir())
-    expected = sorted([file_stem(c) + ".xlsx" for c in CODES] + [file_stem(c) + ".html" for c in CODES])
-    assert sheets == expected and len(set(sheets)) == 2 * len(CODES)
+    expected = sorted(file_stem(c) + suffix for c in CODES for suffix in (".xlsx", ".html", ".pdf"))
+    assert sheets == expected and len(set(sheets)) == 3 * len(CODES)
     for code in CODES:
         wb = openpyxl.load_workbook(out / "labs" / (file_stem(code) + ".xlsx"), read_only=True)
         pairs = {r[0]: r[1] for r in wb["round"].iter_rows(values_only=True) if r and r[0]}

@@ -241,12 +241,13 @@ def test_writers_write_what_they_list(written):
 
 
 def test_the_writer_list():
-    assert FORMATS == ("csv", "xlsx", "html")
-    assert [w.name for w in WRITERS] == ["tables", "summary", "lab sheets", "report"]
+    assert FORMATS == ("csv", "xlsx", "html", "pdf")
+    assert [w.name for w in WRITERS] == ["tables", "summary", "lab sheets", "report", "pdf"]
     assert [w.name for w in writers_for(["html", "csv"])] == ["tables", "report"]  # the list's order
     assert writers_for(None) == WRITERS
-    with pytest.raises(ValueError, match="unknown output formats \\['pdf'\\]"):
-        writers_for(["pdf"])
+    assert [w.name for w in writers_for(["pdf"])] == ["pdf"]
+    with pytest.raises(ValueError, match="unknown output formats \\['docx'\\]"):
+        writers_for(["docx"])
     with pytest.raises(dataclasses.FrozenInstanceError):
         WriteTask(writer="tables", files=()).labs = 3  # type: ignore[misc]
 

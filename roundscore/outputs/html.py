@@ -95,6 +95,7 @@ MAX_COLUMNS = 11
 def column_groups(t: Table, most: int = MAX_COLUMNS) -> list[list[int]]:
     """The column indices of each group: the key columns, then at most ``most`` − keys others.
 
+    >>> from roundscore.outputs.document import Column
     >>> t = Table(columns=tuple(Column(title=str(i)) for i in range(12)), rows=(), key_columns=2)
     >>> column_groups(t, 6)
     [[0, 1, 2, 3, 4, 5], [0, 1, 6, 7, 8, 9], [0, 1, 10, 11]]

@@ -524,10 +524,14 @@ def _svg_for_fpdf(svg: str) -> bytes:
     # band, say), not in SVG's default black: give matplotlib's text elements their colour explicitly.
     svg = _SVG_TEXT_STYLE.sub(lambda m: m.group(0) if "fill" in m.group(1) else
                               f'<text style="fill: #000000; opacity: 1; {m.group(1)}"', svg)
+    # Participant text in a figure (a method name in a legend) is printed as the body text is: a character the
+    # embedded font has no glyph for shows as U+FFFD (else fpdf2 drops it and warns on the terminal).
+    svg = _SVG_TEXT_BODY.sub(lambda m: m.group(1) + printable_text(m.group(2)) + m.group(3), svg)
     return svg.encode("utf-8")
 
 
 _SVG_TEXT_STYLE = re.compile(r'<text style="([^"]*)"')
+_SVG_TEXT_BODY = re.compile(r"(<text\b[^>]*>)([^<]*)(</text>)")
 
 
 _SVG_TAG = re.compile(r"<svg\b[^>]*>", re.S)

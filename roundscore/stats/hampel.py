@@ -322,8 +322,10 @@ def hampel(means: np.ndarray, sd: np.ndarray | float) -> tuple[np.ndarray, np.nd
     """
     y = np.atleast_2d(np.asarray(means, dtype=float))
     s = np.broadcast_to(np.asarray(sd, dtype=float), (y.shape[0],)).astype(float)
-    with np.errstate(all="ignore"):
-        med = np.nanmedian(y, axis=1) if y.shape[1] else np.full(y.shape[0], np.nan)
+    med = np.full(y.shape[0], np.nan)
+    some = np.isfinite(y).any(axis=1)  # a row with no result (every lab censored) stays NaN, with no warning
+    if some.any():
+        med[some] = np.nanmedian(y[some], axis=1)
     offsets = np.array([-HAMPEL_C, -HAMPEL_B, -HAMPEL_A, HAMPEL_A, HAMPEL_B, HAMPEL_C])
     # The slope of ψ((y − x)/s) as a function of x changes by these (× 1/s) at x = y + offset·s.
     changes = np.array([1.0, -1.0, -1.0, 1.0, 1.0, -1.0])
