@@ -5,6 +5,7 @@ code before the archive store interface (see the README there: commit, script, v
 expected reads (``expected.json``) and the schema (``schema.sql``) were recorded by that code. The
 data are invented; the checks compare this code with that one, no outside value is involved.
 """
+# Source of expected values: the tool's own contract (internal behaviour); no outside reference values here.
 
 from __future__ import annotations
 

@@ -5,6 +5,7 @@ registry tests are about which implementation a location reaches.  All data are 
 scheme "AQ", made-up lab codes); the expected values are the inputs themselves and the contract
 written in roundscore.history.interface.
 """
+# Source of expected values: the tool's own contract (internal behaviour); no outside reference values here.
 
 from __future__ import annotations
 

@@ -1,4 +1,5 @@
 """The display headings (outputs/headings.py) and the "How to read your scores" text (outputs/guidance.py)."""
+# Source of expected values: the tool's own contract (internal behaviour); no outside reference values here.
 
 from __future__ import annotations
 

@@ -1,4 +1,5 @@
 """The version is written once (roundscore.__version__); the package metadata and the CLI read it."""
+# Source of expected values: the tool's own contract (internal behaviour); no outside reference values here.
 
 import importlib.metadata
 import tomllib

@@ -6,6 +6,7 @@ evaluation computed), values read back from the written file, or a direct
 measurement of every value (for the column widths).  No outside reference
 values here.
 """
+# Source of expected values: the tool's own contract (internal behaviour); no outside reference values here.
 
 from __future__ import annotations
 
