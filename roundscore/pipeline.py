@@ -114,9 +114,9 @@ def write_outputs(ev: RoundEvaluation, folder: Path, *, history=None,
     """Write every output of an evaluation into ``folder`` (which must exist); the files written.
 
     Each kind of output is a writer of :data:`roundscore.outputs.writers.WRITERS` (``formats``: only the
-    writers of these formats, e.g. ``("csv", "xlsx")``; None: all). The CSV tables, the summary workbook and
-    the lab sheets are independent files, written by ``jobs`` worker processes (None = all cores; 1 = here,
-    one after another); then the report. Every file depends only on the evaluation, so the outputs are
+    writers of these formats, e.g. ``("csv", "xlsx")``; None: ``$ROUNDSCORE_FORMATS``, else all). The CSV
+    tables, the summary workbook and the lab sheets are independent files, written by ``jobs`` worker
+    processes (None = all cores; 1 = here, one after another); then the report. Every file depends only on the evaluation, so the outputs are
     byte-identical for any ``jobs``. ``progress(stage, done, total)`` is called as the lab sheets are
     finished (and by the report's stages). ``history(lab)`` gives a lab's archived rounds for its sheet.
     """
@@ -129,7 +129,8 @@ def run_round(round_path: str | Path, out: str | Path, *, archive: str | Path | 
               on_archive: Callable[[object], None] | None = None, formats: Iterable[str] | None = None,
               ) -> tuple[RoundEvaluation, Outputs]:
     """Score a round folder and write all outputs into ``out`` atomically (``formats``: only the writers of
-    these output formats, :func:`roundscore.outputs.writers.writers_for`; None: all).
+    these output formats, :func:`roundscore.outputs.writers.writers_for`; None: ``$ROUNDSCORE_FORMATS``, else
+    all).
 
     With ``archive`` (or ``[round] archive`` in the round file; the argument
     wins) each lab sheet shows the lab's earlier rounds of this scheme (the

@@ -15,7 +15,7 @@ import re
 import unicodedata
 
 __all__ = ["terminal_text", "json_text", "clip", "quote", "too_long", "MESSAGE_VALUE_CHARS",
-           "TEXT_LIMITS", "MAX_LIST_SHOWN", "shown_list"]
+           "TEXT_LIMITS", "MAX_LIST_SHOWN", "shown_list", "shown_number"]
 
 #: Characters of a value quoted in a message before it is clipped ("… (N characters)").
 MESSAGE_VALUE_CHARS = 60
@@ -128,3 +128,19 @@ def shown_list(names, limit: int = MAX_LIST_SHOWN) -> str:
     names = list(names)
     shown = ", ".join(terminal_text(clip(str(n), 40)) for n in names[:limit])
     return shown + (f" and {len(names) - limit} more" if len(names) > limit else "")
+
+
+def shown_number(x: float, decimals: int | None, fallback: str = ".4g", more: int = 0) -> str:
+    """A number as people read it in a note or a summary line: to ``decimals`` (+ ``more``) places when the
+    measurand sets them (``[measurand.NAME] decimals``), else by the format ``fallback``; "n/a" when not finite.
+
+    >>> shown_number(0.03010242632412457, 3), shown_number(0.0301024, None), shown_number(0.0301, 2, more=1)
+    ('0.030', '0.0301', '0.030')
+    >>> shown_number(float("nan"), 2)
+    'n/a'
+    """
+    if x != x or x in (float("inf"), float("-inf")):
+        return "n/a"
+    if decimals is None:
+        return format(x, fallback)
+    return f"{x:.{decimals + more}f}"

@@ -20,6 +20,15 @@ DEMO = ROOT / "rounds" / "skw-2026-14"
 #: Most worker processes for the whole suite (measured on 2 cores; each worker scores its own shared demo).
 MAX_WORKERS = 4
 
+#: The formats the tests' runs write when a test names none (``$ROUNDSCORE_FORMATS``, set for this process and
+#: every process it starts): the PDFs take most of a run's time, so only the tests that read PDFs write them,
+#: asking with ``--formats`` / ``formats=`` (or :data:`ALL_FORMATS`), and the shared demo's PDFs are made once
+#: by :func:`demo_pdfs`. A test of the default itself removes the variable (``monkeypatch.delenv``).
+TEST_FORMATS = "csv,xlsx,html"
+#: Every format, for a test that reads the PDFs too (``--formats`` takes it as is).
+ALL_FORMATS = "csv,xlsx,html,pdf"
+os.environ["ROUNDSCORE_FORMATS"] = TEST_FORMATS
+
 
 @pytest.hookimpl(optionalhook=True)
 def pytest_xdist_auto_num_workers(config) -> int:
@@ -43,7 +52,8 @@ class ScoredDemo:
     Attributes
     ----------
     out : Path
-        Everything the command wrote (scores.csv ... round-summary.xlsx, labs/*.xlsx and *.html, report.html).
+        Everything the command wrote (scores.csv ... round-summary.xlsx, labs/*.xlsx and *.html, report.html),
+        in the formats of :data:`TEST_FORMATS`: no PDFs (:func:`demo_pdfs` has them).
     round : Path
         ``OUT/round``: the demo round the command wrote (equal to rounds/skw-2026-14, tests/test_demo.py).
     evaluation : RoundEvaluation
@@ -93,6 +103,17 @@ def scored_demo(tmp_path_factory) -> ScoredDemo:
     yield shared
     changed = changes(before, snapshot(shared))
     assert not changed, f"a test changed the shared scored demo (copy it before changing it): {changed}"
+
+
+@pytest.fixture(scope="session")
+def demo_pdfs(scored_demo, tmp_path_factory) -> Path:
+    """The shared demo's PDFs (report.pdf, labs/LAB.pdf), written once per session from its evaluation by the
+    pipeline's own PDF writer, as ``roundscore demo`` writes them by default. Read-only, like the demo."""
+    from roundscore.pipeline import write_outputs
+
+    folder = tmp_path_factory.mktemp("demo-pdfs")
+    write_outputs(scored_demo.evaluation, folder, formats=("pdf",))
+    return folder
 
 
 def snapshot(shared: ScoredDemo) -> dict[str, str]:

@@ -436,14 +436,14 @@ def test_the_pdf_writer_writes_a_file_per_lab_and_the_report_on_the_rounds_paper
 
 # --------------------------------------------------------------------------- the demo's own PDFs
 
-def test_every_demo_lab_pdf_names_its_lab_every_measurand_and_no_other_lab(scored_demo):
+def test_every_demo_lab_pdf_names_its_lab_every_measurand_and_no_other_lab(scored_demo, demo_pdfs):
     # The pipeline writes labs/LAB.pdf from the same Document as labs/LAB.html (one source, two renderings).
     ev = scored_demo.evaluation
     names = {lab: p.name for lab, p in ev.participants.items() if p.name}
-    pdfs = sorted((scored_demo.out / "labs").glob("*.pdf"))
+    pdfs = sorted((demo_pdfs / "labs").glob("*.pdf"))
     assert len(pdfs) == len(ev.labs)
     for lab in ev.labs:
-        text = _text((scored_demo.out / "labs" / f"{lab}.pdf").read_bytes())
+        text = _text((demo_pdfs / "labs" / f"{lab}.pdf").read_bytes())
         assert f"laboratory {lab}" in text and names[lab] in text
         for meas in ev.round.measurands:
             assert meas in text, (lab, meas)
@@ -452,8 +452,8 @@ def test_every_demo_lab_pdf_names_its_lab_every_measurand_and_no_other_lab(score
         assert "How to read your scores" in text and "does not replace" in text
 
 
-def test_the_demo_report_pdf_is_the_report_page(scored_demo):
-    data = (scored_demo.out / "report.pdf").read_bytes()
+def test_the_demo_report_pdf_is_the_report_page(scored_demo, demo_pdfs):
+    data = (demo_pdfs / "report.pdf").read_bytes()
     text = _text(data)
     assert f"round {scored_demo.evaluation.round.id}".lower() in text.lower()
     for meas in scored_demo.evaluation.round.measurands:

@@ -126,6 +126,11 @@ def test_demo_method_note_only_where_groups_differ(demo_ev):
     ev = demo_ev
     notes = ev.stage_notes
     assert any(n.startswith("method groups differ") and "may not suit every lab" in n for n in notes["iodine"])
+    # the difference and its interval to the measurand's decimals (people read the note), not significant digits
+    (note,) = [n for n in notes["iodine"] if n.startswith("method groups differ")]
+    d = ev.round.measurands["iodine"].decimals
+    c = ev.extras["methods"].set_index("measurand").loc["iodine"]
+    assert f"= {c['difference']:.{d}f} mg/kg" in note and f"CI {c['ci_low']:.{d}f} to {c['ci_high']:.{d}f}" in note
     assert not any("method groups" in n for n in notes.get("arsenic", ()))  # two groups, no difference
     methods = ev.extras["methods"].set_index("measurand")
     assert bool(methods.loc["iodine", "significant"]) and not bool(methods.loc["arsenic", "significant"])

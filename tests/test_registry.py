@@ -240,7 +240,8 @@ def test_writers_write_what_they_list(written):
     assert not any(n.endswith(".html") for n in on_disk)  # only the formats asked for
 
 
-def test_the_writer_list():
+def test_the_writer_list(monkeypatch):
+    monkeypatch.delenv("ROUNDSCORE_FORMATS")  # the default itself (tests/conftest.py sets the test formats)
     assert FORMATS == ("csv", "xlsx", "html", "pdf")
     assert [w.name for w in WRITERS] == ["tables", "summary", "lab sheets", "report", "pdf"]
     assert [w.name for w in writers_for(["html", "csv"])] == ["tables", "report"]  # the list's order

@@ -22,6 +22,8 @@ from roundscore.model.evaluation import STATES
 from roundscore.model.signals import SIGNALS
 from roundscore.pipeline import load_and_evaluate
 
+from .conftest import ALL_FORMATS
+
 TOML = """
 [round]
 id = "ST-1"
@@ -76,7 +78,8 @@ def scored(tmp_path_factory):
     (folder / "participants.csv").write_text("lab,name,contact\n" + "".join(
         f"L{i:02d},Invented Lab {i},lab{i}@invented.example\n" for i in range(1, 15)), encoding="utf-8")
     out = root / "out"
-    assert main(["score", str(folder), "--out", str(out), "--jobs", "1", "--quiet"]) == 0
+    # every format: the PDFs are among the outputs whose states are walked (tests/conftest.py ALL_FORMATS)
+    assert main(["score", str(folder), "--out", str(out), "--jobs", "1", "--quiet", "--formats", ALL_FORMATS]) == 0
     ev = load_and_evaluate(folder, jobs=1)
     return ev, out
 
@@ -177,6 +180,33 @@ def test_lab_workbook_rows_say_each_state(scored):
         # plain words for the lab: no coordinator finding heads its sheet
         heads = " ".join(str(c) for r in ws.iter_rows(max_row=14, values_only=True) for c in r if c is not None)
         assert "Check failed" not in heads and "zinc: the uncertainty of the assigned value is large" in heads
+
+
+def _chart_rows(path, label_start):
+    ws = openpyxl.load_workbook(path)["Chart data"]
+    return [r for r in ws.iter_rows(values_only=True) if r and isinstance(r[0], str) and r[0].startswith(label_start)]
+
+
+@pytest.mark.parametrize("name, label, key, absent", [("labs/L11.xlsx", "z", "copper", "—"),
+                                                      ("round-summary.xlsx", "copper", "L11", "L05")])
+def test_workbook_charts_draw_the_censored_false_negative(scored, name, label, key, absent):
+    """The censored false negative is a bar at the axis' low end with its action signal, not left out; the
+    withheld lab has no bar (one state, drawn the same way in every output)."""
+    _, out = scored
+    rows = _chart_rows(out / name, label)
+    by_lab = {r[1]: r for r in rows}
+    fn = by_lab.get(key)
+    assert fn is not None, rows
+    assert fn[2] == "false negative (censored result)"
+    head = openpyxl.load_workbook(out / name)["Chart data"]
+    heads = next(r for r in head.iter_rows(values_only=True) if r and r[0] == "Chart")
+    limit = float(heads[3].split("±")[1].rstrip(")"))
+    assert fn[3] == -limit  # drawn at the low end of the fixed axis
+    # its action marker sits there too (the marker series named by the signal's word)
+    words = {SIGNALS["action"].word(w) for w in ("signals", "iso-17043")}
+    (action,) = [j for j, h in enumerate(heads) if h in words]
+    assert fn[action] == -limit
+    assert absent not in by_lab
 
 
 def _lab_page(out, lab):

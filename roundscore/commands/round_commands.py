@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import argparse
-import math
 import sys
 from pathlib import Path
 
@@ -11,9 +10,9 @@ from roundscore.model.evaluation import RoundEvaluation
 from roundscore.model.scores import score_symbol
 from roundscore.model.signals import SIGNALS
 from roundscore.outputs.look import CAUTION, SIGNAL_SYMBOL, signal_legend_text
-from roundscore.outputs.writers import FORMATS
+from roundscore.outputs.writers import FORMATS, FORMATS_VARIABLE, parse_formats, writers_for
 from roundscore.support.progress import terminal_bar
-from roundscore.text import terminal_text
+from roundscore.text import shown_number, terminal_text
 
 __all__ = ["register", "summary_text"]
 
@@ -35,7 +34,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--jobs", type=int, default=None, help="worker processes (default: all cores)")
     p.add_argument("--formats", type=formats_arg, default=None, metavar="LIST",
                    help=f"the output formats to write, comma-separated, from {', '.join(FORMATS)} "
-                        "(default: all); circulation.csv lists what was written")
+                        f"(default: ${FORMATS_VARIABLE}, else all); circulation.csv lists what was written")
     p.add_argument("--quiet", action="store_true", help="print nothing but errors")
     p.set_defaults(func=run_score)
 
@@ -44,7 +43,8 @@ def register(sub: argparse._SubParsersAction) -> None:
     d.add_argument("--out", default="roundscore-demo", help="output folder (default: ./roundscore-demo)")
     d.add_argument("--jobs", type=int, default=None, help="worker processes (default: all cores)")
     d.add_argument("--formats", type=formats_arg, default=None, metavar="LIST",
-                   help=f"the output formats to write, comma-separated, from {', '.join(FORMATS)} (default: all)")
+                   help=f"the output formats to write, comma-separated, from {', '.join(FORMATS)} "
+                        f"(default: ${FORMATS_VARIABLE}, else all)")
     d.set_defaults(func=run_demo)
 
     f = sub.add_parser("forms", help="write one blank submission workbook per participant",
@@ -66,25 +66,16 @@ def register(sub: argparse._SubParsersAction) -> None:
     c.set_defaults(func=run_check)
 
 
-def _shown(x: float, decimals: int | None, fallback: str, more: int = 0) -> str:
-    """A number as people read it: to ``decimals`` (+ ``more``) places when the measurand sets them."""
-    if decimals is None or not math.isfinite(x):
-        return format(x, fallback)
-    return f"{x:.{decimals + more}f}"
-
-
 def formats_arg(text: str) -> tuple[str, ...]:
     """``--formats``: comma-separated output formats, each one a writer's (``outputs.writers.FORMATS``).
 
     >>> formats_arg("xlsx, csv")
     ('xlsx', 'csv')
     """
-    wanted = tuple(dict.fromkeys(w.strip().lower() for w in text.split(",") if w.strip()))
-    unknown = [w for w in wanted if w not in FORMATS]
-    if unknown or not wanted:
-        found = ", ".join(repr(terminal_text(w)) for w in unknown) if unknown else "nothing"
-        raise argparse.ArgumentTypeError(f"found {found}; allowed: {', '.join(FORMATS)} (comma-separated)")
-    return wanted
+    try:
+        return parse_formats(text)
+    except ValueError as exc:
+        raise argparse.ArgumentTypeError(str(exc)) from None
 
 
 def summary_text(ev: RoundEvaluation) -> str:
@@ -105,8 +96,8 @@ def summary_text(ev: RoundEvaluation) -> str:
     for name, m in ev.measurands.items():
         d = m.settings.decimals  # the measurand's decimals (uncertainties one more); else significant digits
         lines.append(
-            f"  {t(name):<14}{m.p:>4}  {_shown(m.assigned, d, '.5g'):>12} {_shown(m.u_assigned, d, '.3g', 1):>10} "
-            f"{_shown(m.sigma_pt, d, '.4g', 1):>10} {score_symbol(m.settings.score):<8}"
+            f"  {t(name):<14}{m.p:>4}  {shown_number(m.assigned, d, '.5g'):>12} {shown_number(m.u_assigned, d, '.3g', 1):>10} "
+            f"{shown_number(m.sigma_pt, d, '.4g', 1):>10} {score_symbol(m.settings.score):<8}"
             + "".join(f"{int(counts.get((name, s), 0)):>4}" for s in SIGNALS))
     lines.append(f"  {signal_legend_text()}")
     for name, m in ev.measurands.items():
@@ -167,12 +158,13 @@ def run_demo(args: argparse.Namespace) -> int:
     from roundscore.pipeline import Outputs, atomic_folder, load_and_evaluate, write_outputs
 
     out = Path(args.out)
+    formats = tuple(w.format for w in writers_for(args.formats))  # $ROUNDSCORE_FORMATS is read before any work
     bar = terminal_bar()
     try:
         with atomic_folder(out, kind="demo") as tmp:
             make_demo_round(tmp / "round")
             ev = load_and_evaluate(tmp / "round", jobs=args.jobs, progress=bar)
-            written = write_outputs(ev, tmp, jobs=args.jobs, progress=bar, formats=args.formats)
+            written = write_outputs(ev, tmp, jobs=args.jobs, progress=bar, formats=formats)
     finally:
         bar.close()
     outputs = Outputs(folder=out, files=tuple(out / p.relative_to(tmp) for p in written))

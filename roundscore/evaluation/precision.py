@@ -75,6 +75,7 @@ from roundscore.stats import compare as cmp
 from roundscore.stats import outliers as ol
 from roundscore.stats import precision as pr
 from roundscore.model.table import ResultTable
+from roundscore.text import shown_number
 
 if TYPE_CHECKING:
     from roundscore.model.evaluation import MeasurandResult
@@ -367,9 +368,15 @@ def _measurand_precision(rnd: Round, name: str, rows: pd.DataFrame | None, used:
                 "r": prec.r, "R": prec.R, "balanced": prec.balanced, "s_L_truncated": prec.s_L_truncated,
                 "general_mean": prec.general_mean}
         left = f"; left out by the screens: {', '.join(screening.excluded)}" if screening.excluded else ""
+        settings = rnd.measurands.get(name)
+        d = settings.decimals if settings is not None else None
+
+        def sd(x: float) -> str:  # a standard deviation: one decimal more than the measurand's values
+            return shown_number(x, d, more=1)
+
         audit.append((name, "", "precision", "computed",
-                       f"s_r = {_g(prec.s_r)}, s_L = {_g(prec.s_L)}, s_R = {_g(prec.s_R)} from {prec.p} labs, "
-                       f"n̄ = {_g(prec.n_bar)}{left}" + ("; s_L² < 0 set to 0" if prec.s_L_truncated else "")))
+                       f"s_r = {sd(prec.s_r)}, s_L = {sd(prec.s_L)}, s_R = {sd(prec.s_R)} from {prec.p} labs, "
+                       f"n̄ = {prec.n_bar:.4g}{left}" + ("; s_L² < 0 set to 0" if prec.s_L_truncated else "")))
         if prec.p < MIN_PRECISION_LABS:
             caution = few_labs_caution(prec.p)
             notes.append(caution)
@@ -455,8 +462,10 @@ def _method_groups(rnd: Round, mr: MeasurandResult, audit: list) -> tuple[Method
             })
             if significant:
                 test = "pooled-SD t test" if c.method == "pooled" else "Welch t test"
-                stage.append(f"method groups differ: {a} − {b} = {_g(c.difference)} {unit} ({pct} CI "
-                             f"{_g(c.ci_low)} to {_g(c.ci_high)}; {test}, p = {c.p_value:.2g}); {MIXED_METHODS}")
+                d = mr.settings.decimals
+                stage.append(f"method groups differ: {a} − {b} = {shown_number(c.difference, d)} {unit} ({pct} CI "
+                             f"{shown_number(c.ci_low, d)} to {shown_number(c.ci_high, d)}; {test}, "
+                             f"p = {c.p_value:.2g}); {MIXED_METHODS}")
         else:
             vals = np.concatenate([group_values[g] for g in tested])
             labels = np.concatenate([[g] * group_values[g].size for g in tested])

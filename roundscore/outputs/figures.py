@@ -30,7 +30,7 @@ import numpy as np
 import pandas as pd
 from scipy import stats as sps
 
-from roundscore.outputs.axes import data_span, drawable, span
+from roundscore.outputs.axes import axis_limit, data_span, drawable, span
 from roundscore.outputs.figure_base import (MAX_BARS, PROFILE_POINTS, SQUARE, SVG_HASHSALT, WIDE, MarkKind, SvgFigure,
                                             codes_under_axis, finish_figure, legend, new_figure, png_bytes,
                                             signal_legend, step_columns)
@@ -99,9 +99,8 @@ def z_bar_figure(labs: Sequence[str], values: Sequence[float], signals: Sequence
     labs_k = [labs_k[i] for i in order]
     n = len(v)
     lims = _limits(score)
-    top = max(lims[-1][0] + 1.0, 4.0)
-    fin = v[np.isfinite(v)]
-    bound = float(min(max(top, math.ceil(np.max(np.abs(fin))) + 0.5 if len(fin) else top), 2 * top))
+    # the value axis of every score chart (outputs/axes.py): a gross error does not widen it past the bulk
+    bound = axis_limit(v[np.isfinite(v)].tolist(), family_of(score))
     fig, ax = new_figure(WIDE, bottom=0.2 if n <= MAX_BARS else 0.1)
     pos = np.arange(n, dtype=float)
     shown = np.clip(v, -bound, bound)
@@ -127,7 +126,8 @@ def z_bar_figure(labs: Sequence[str], values: Sequence[float], signals: Sequence
             ax.plot(pos[sel], tips, linestyle="none", marker=SIGNAL_MARKER[s], markersize=5 if n <= MAX_BARS else 4,
                     markerfacecolor=SIGNAL_COLOUR[s], markeredgecolor="#000000", markeredgewidth=0.5)
     for i in np.flatnonzero(np.abs(v) > bound):
-        ax.annotate(f"{v[i]:.3g}" if np.isfinite(v[i]) else "censored", (pos[i], shown[i]),
+        ax.annotate(f"{v[i]:.2f}" if np.isfinite(v[i]) else ("false negative" if v[i] < 0 else "false positive"),
+                    (pos[i], shown[i]),
                     xytext=(0, 6 if v[i] > 0 else -12),
                     textcoords="offset points", ha="center", fontsize=7)
     for lim, word, style in lims:

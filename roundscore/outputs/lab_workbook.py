@@ -30,7 +30,7 @@ import pandas as pd
 import xlsxwriter
 
 from roundscore.model.digest import DIGEST_KEY, ROW_DIGEST_COLUMN, row_digest, sheet_digest, sheet_value
-from roundscore.model.evaluation import SCORE_COLUMNS
+from roundscore.model.evaluation import SCORE_COLUMNS, STATE_SIDE
 from roundscore.model.scores import SCORE_FAMILIES, SCORE_FIELD, ScoreFamily, family_of
 from roundscore.outputs.guidance import GUIDANCE_TITLE, how_to_read
 from roundscore.outputs.look import CAUTION, LIMIT_LINE, PALETTE
@@ -240,22 +240,24 @@ def _score_charts(wb, ws, fm: Formats, payload: LabPayload, table: dict[str, lis
     chart_rows = []
     for family in SCORE_FAMILIES.values():
         members = {s.name for s in family.members}
-        part = [i for i, (sc, v) in enumerate(zip(table["score"], table["official"]))
-                if sc in members and isinstance(v, float) and math.isfinite(v)]
+        # a scored row, and a censored false negative or positive (no value; drawn at the axis' end)
+        part = [i for i, (sc, v, st) in enumerate(zip(table["score"], table["official"], table["state"]))
+                if sc in members and (st in STATE_SIDE or (isinstance(v, float) and math.isfinite(v)))]
         if part:
-            chart_rows.append((family, [measurands[i] for i in part], [table["official"][i] for i in part],
-                               [table["signal"][i] for i in part]))
+            chart_rows.append((family, [measurands[i] for i in part],
+                               [None if table["state"][i] in STATE_SIDE else table["official"][i] for i in part],
+                               [table["signal"][i] for i in part], [table["state"][i] for i in part]))
     if not chart_rows:
         return []
     placed = []
     cd = wb.add_worksheet("Chart data")
     cd.write_string(0, 0, f"Data of the charts: laboratory {lab}'s scores by measurand", fm.bold)
     at = 2
-    for family, names, values, signals in chart_rows:
+    for family, names, values, signals, states in chart_rows:
         name = family.symbols
         # the family's first score names the axis ("z-score", "En number"); the limits are the family's
         c, at = score_chart(wb, cd, fm, at, names, values, signals, name, family.members[0].name, words,
-                            f"Laboratory {lab}: {name} by measurand")
+                            f"Laboratory {lab}: {name} by measurand", states=states)
         c.set_x_axis({"name": "measurand", "num_font": {"rotation": -45, "size": 8}, "label_position": "low"})
         c.set_size({"width": 640, "height": CHART_HEIGHT})
         ws.insert_chart(row, 0, c)

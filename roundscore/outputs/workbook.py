@@ -29,7 +29,7 @@ import numpy as np
 import pandas as pd
 import xlsxwriter
 
-from roundscore.model.evaluation import STATISTICS_COLUMNS, RoundEvaluation
+from roundscore.model.evaluation import STATE_SIDE, STATISTICS_COLUMNS, RoundEvaluation
 from roundscore.model.scores import SCORE_FIELD, score_label
 from roundscore.outputs.lab_workbook import (LAB_FOLD, LAB_FORMAT, SUMMARY_POINTER, lab_payload,
                                              write_lab_workbook)
@@ -151,14 +151,19 @@ def _write_summary(ev: RoundEvaluation, path: Path, options: dict[str, Any]) -> 
         if not len(g) or not m.scored:
             continue
         vals = g[SCORE_FIELD[m.settings.score]].to_numpy(float)
-        keep = np.isfinite(vals)
-        order = np.argsort(vals[keep], kind="stable")
+        # the scored labs ranked, a censored false negative first and a false positive last (drawn at the
+        # axis' ends: they have no score value, only their signal)
+        side = g["state"].map(STATE_SIDE).fillna(0).to_numpy(float)
+        keep = np.isfinite(vals) | (side != 0)
+        order = np.lexsort((np.where(side[keep] != 0, 0.0, vals[keep]), side[keep]))
         if not len(order):
             continue
-        c, top = score_chart(wb, cd, fm, top, g["lab"].to_numpy()[keep][order].tolist(), vals[keep][order].tolist(),
-                              g["signal"].to_numpy()[keep][order].tolist(), f"{name} ({m.settings.score})",
-                              m.settings.score, rnd.words,
-                              f"{name}: {score_label(m.settings.score)} by laboratory (ranked)")
+        drawn = [None if sd else float(v) for v, sd in zip(vals[keep][order], side[keep][order])]
+        c, top = score_chart(wb, cd, fm, top, g["lab"].to_numpy()[keep][order].tolist(), drawn,
+                             g["signal"].to_numpy()[keep][order].tolist(), f"{name} ({m.settings.score})",
+                             m.settings.score, rnd.words,
+                             f"{name}: {score_label(m.settings.score)} by laboratory (ranked)",
+                             states=g["state"].to_numpy()[keep][order].tolist())
         c.set_size({"width": 900, "height": CHART_HEIGHT})
         ch.insert_chart(row, 0, c)
         placed.append(Chart(row, CHART_HEIGHT, 900))

@@ -22,8 +22,10 @@ import numpy as np
 import pandas as pd
 import xlsxwriter
 
+from roundscore.model.evaluation import STATE_SIDE, STATES
 from roundscore.model.scores import SCORES, ScoreFamily, family_of, score_label
 from roundscore.model.signals import SCORED_SIGNALS
+from roundscore.outputs.axes import AXIS_CAP, AXIS_PERCENTILE, axis_limit
 from roundscore.outputs.headings import headings
 from roundscore.outputs.look import LIMIT_LINE, SIGNAL_CHART_MARKER, SIGNAL_COLOUR, SIGNAL_WORD, signal_label
 from roundscore.support.sheetprint import Chart, print_layout
@@ -273,16 +275,6 @@ _CHART_MARKER = {s: SIGNAL_CHART_MARKER[s] for s in SCORED_SIGNALS}
 CHART_POINT_COLOURS = 200
 
 
-#: The value axis of a score chart (common practice, chosen here): ±(action limit + 1), z-like ±4 and En ±2,
-#: widened to the :data:`AXIS_PERCENTILE` th percentile of |score| (the order statistic at or below it, so one
-#: gross error among a lab's five scores does not count as the bulk) rounded up when the bulk of the scores needs
-#: more, never past :data:`AXIS_CAP` times the base (z-like ±8, En ±4). A score beyond the axis is drawn at
-#: its edge and labelled with its true value, so one gross error (a decimal slip, z ≈ 6504) does not flatten
-#: every other bar.
-AXIS_PERCENTILE = 95
-AXIS_CAP = 2
-
-
 @dataclass(frozen=True, slots=True)
 class ScoreAxis:
     """A score chart's value axis: ±``limit``, the scores as drawn (clipped to the axis), which are off scale."""
@@ -292,38 +284,27 @@ class ScoreAxis:
     off_scale: list[bool]
 
     def labels(self, values: Iterable[float | None], position: tuple[str, str] = ("inside_end", "inside_end"),
-               ) -> dict | None:
+               texts: Iterable[str | None] | None = None) -> dict | None:
         """Chart data labels (xlsxwriter's ``data_labels``) giving each off-scale point its true value, or
         None when every point is on the scale. ``position``: where the label of a point at the top and at the
-        bottom edge goes."""
-        if not any(self.off_scale):
+        bottom edge goes. ``texts``: a label of its own for a point (a censored false negative drawn at the
+        axis' end: its state in words), given in place of the value."""
+        vals = list(values)
+        own = list(texts) if texts is not None else [None] * len(vals)
+        if not any(self.off_scale) and not any(own):
             return None
         custom: list[dict] = []
-        for v, off in zip(values, self.off_scale):
-            if off and v is not None:
+        for v, off, text, d in zip(vals, self.off_scale, own, self.drawn):
+            if text:
+                up = d is not None and d > 0
+                custom.append({"value": text, "position": position[0] if up else position[1],
+                               "font": {"bold": True, "color": "#000000", "size": 8}})
+            elif off and v is not None:
                 custom.append({"value": f"{v:.2f}", "position": position[0] if v > 0 else position[1],
                                "font": {"bold": True, "color": "#000000", "size": 8}})
             else:
                 custom.append({"delete": True})
         return {"value": True, "custom": custom}
-
-
-def axis_limit(values: Iterable[float | None], family: ScoreFamily) -> float:
-    """The half-range of the value axis of a chart of ``family``'s scores (the rule is at :data:`AXIS_PERCENTILE`).
-
-    >>> from roundscore.model.scores import SCORE_FAMILIES
-    >>> z, en = SCORE_FAMILIES["z-like"], SCORE_FAMILIES["en"]
-    >>> axis_limit([0.5, -1.2] * 10 + [6504.1], z), axis_limit([0.3] * 9 + [5.2] * 3, z), axis_limit([90.0] * 5, z)
-    (4.0, 6.0, 8.0)
-    >>> axis_limit([0.4, 1.6, -2.5], en), axis_limit([0.6, 6504.1, -0.8, 1.4, 0.9], z)
-    (2.0, 4.0)
-    """
-    base = family.action + 1.0
-    finite = np.array([abs(v) for v in values if v is not None and math.isfinite(v)], dtype=float)
-    if not finite.size:
-        return base
-    bulk = math.ceil(float(np.percentile(finite, AXIS_PERCENTILE, method="lower")))
-    return float(min(max(base, bulk), AXIS_CAP * base))
 
 
 def clip_to(values: Iterable[float | None], limit: float) -> ScoreAxis:
@@ -352,8 +333,8 @@ def value_axis(name: str, limit: float) -> dict:
             "major_gridlines": {"visible": True, "line": {"color": "#DDDDDD"}}}
 
 
-def score_chart(wb, sheet, fm: Formats, top: int, labs: list, scores: list[float], signals: list[str],
-                label: str, score: str, words: str, title: str) -> tuple[Any, int]:
+def score_chart(wb, sheet, fm: Formats, top: int, labs: list, scores: list[float | None], signals: list[str],
+                label: str, score: str, words: str, title: str, states: list[str] | None = None) -> tuple[Any, int]:
     """Write one chart's data block (the bars' labels, finite scores and signals) at ``top`` on ``sheet``.
 
     Returns (chart, next free row).
@@ -364,10 +345,16 @@ def score_chart(wb, sheet, fm: Formats, top: int, labs: list, scores: list[float
     (roundscore.model.scores; ISO 13528 §9.4: ±2, ±3; En: ±1) as dashed and solid lines.
     The value axis is fixed (:func:`score_axis`): a score beyond it is drawn
     at the edge (column "Drawn at") and labelled with its true value.
+    ``states`` (the evaluation's, one per bar): a censored false negative or positive has no score
+    (None) and is drawn at the axis' low or high end (:data:`~roundscore.model.evaluation.STATE_SIDE`)
+    with its signal, labelled with its state in words.
     """
     family = family_of(score)
     limits = [(lim, sig, LIMIT_LINE[sig]["chart"]) for lim, sig in family.limits()]
     axis = score_axis(scores, family)
+    sides = [STATE_SIDE.get(st, 0) for st in states] if states is not None else [0] * len(scores)
+    drawn = [side * axis.limit if side else d for d, side in zip(axis.drawn, sides)]
+    texts = [STATES[st] if side else None for st, side in zip(states or [""] * len(scores), sides)]
     sname = sheet.get_name()
     heads = ["Chart", "Lab", "Score", f"Drawn at (axis ±{axis.limit:g})",
              *(SIGNAL_WORD[words][s] for s in _CHART_MARKER)]
@@ -379,13 +366,17 @@ def score_chart(wb, sheet, fm: Formats, top: int, labs: list, scores: list[float
     marker_col = {s: j for j, s in enumerate(_CHART_MARKER, start=4)}
     limit_col = 4 + len(_CHART_MARKER)
     bounds = [(limit_col + 2 * j, lim) for j, (lim, _, _) in enumerate(limits)]
-    for r, lab, v, d, sig in zip(range(first, last + 1), labs, scores, axis.drawn, signals):
+    for r, lab, v, d, sig, text in zip(range(first, last + 1), labs, scores, drawn, signals, texts):
         string(r, 0, label)
         string(r, 1, str(lab))
-        number(r, 2, v, two)
-        number(r, 3, d, two)
-        if sig in marker_col:
-            number(r, marker_col[sig], d, two)
+        if v is None or text:
+            string(r, 2, text or "")
+        else:
+            number(r, 2, v, two)
+        if d is not None:
+            number(r, 3, d, two)
+            if sig in marker_col:
+                number(r, marker_col[sig], d, two)
         for j, lim in bounds:
             number(r, j, lim)
             number(r, j + 1, -lim)
@@ -394,7 +385,7 @@ def score_chart(wb, sheet, fm: Formats, top: int, labs: list, scores: list[float
     # cannot read them back, and viewers that draw from the cache would show empty charts.
     cats = [sname, first, 1, last, 1]
     cat_data = [str(lab) for lab in labs]
-    shown = [f"{v:.16g}" for v in axis.drawn]
+    shown = [f"{v:.16g}" if v is not None else None for v in drawn]
     col = wb.add_chart({"type": "column"})
     series = {"name": "score", "categories": cats, "values": [sname, first, 3, last, 3],
               "categories_data": cat_data, "values_data": shown,
@@ -402,7 +393,7 @@ def score_chart(wb, sheet, fm: Formats, top: int, labs: list, scores: list[float
     if len(scores) <= CHART_POINT_COLOURS:
         tints = {s: tint(SIGNAL_COLOUR.get(s, SIGNAL_COLOUR["not-scored"])) for s in set(signals)}
         series["points"] = [{"fill": {"color": tints[s]}, "border": {"color": "#555555"}} for s in signals]
-    labels = axis.labels(scores)
+    labels = axis.labels(scores, texts=texts)
     if labels is not None:
         series["data_labels"] = labels
     col.add_series(series)

@@ -26,6 +26,7 @@ and never recompute a statistic.
 
 from __future__ import annotations
 
+import os
 from dataclasses import dataclass
 from pathlib import Path
 from collections.abc import Callable, Iterable, Sequence
@@ -33,6 +34,7 @@ from typing import Any, ClassVar
 
 import pandas as pd
 
+from roundscore.errors import RoundscoreError
 from roundscore.model.evaluation import AUDIT_COLUMNS, SCORE_COLUMNS, STATISTICS_COLUMNS, RoundEvaluation
 from roundscore.outputs import lab_workbook
 from roundscore.outputs.circulation import write_circulation
@@ -41,9 +43,11 @@ from roundscore.outputs.payloads import lab_payload
 from roundscore.outputs.workbook import write_summary
 from roundscore.support.filenames import lab_file_name
 from roundscore.support.parallel import Progress, run_batches, shared
+from roundscore.text import terminal_text
 
 __all__ = ["WriteOptions", "WriteTask", "Writer", "CsvTables", "SummaryWorkbook", "LabWorkbooks", "HtmlReport",
-           "PdfFiles", "report_parts_of", "WRITERS", "FORMATS", "writers_for", "run_tasks", "write_with",
+           "PdfFiles", "report_parts_of", "WRITERS", "FORMATS", "FORMATS_VARIABLE", "parse_formats",
+           "default_formats", "writers_for", "run_tasks", "write_with",
            "LAB_SHEETS_PER_TASK"]
 
 #: Lab sheets per task sent to a worker: fixed (not tied to the number of jobs) and small enough that the
@@ -226,17 +230,59 @@ FORMATS: tuple[str, ...] = tuple(dict.fromkeys(w.format for w in WRITERS))
 _BY_NAME = {w.name: w for w in WRITERS}
 
 
+#: The environment variable naming the formats written when none are asked for (no ``--formats``, or
+#: ``formats=None``): comma-separated as ``--formats``, e.g. ``csv,xlsx,html`` for a scheme that circulates no
+#: PDFs. Unset or empty: every format.
+FORMATS_VARIABLE = "ROUNDSCORE_FORMATS"
+
+
+def parse_formats(text: str) -> tuple[str, ...]:
+    """Comma-separated output formats (``--formats``, :data:`FORMATS_VARIABLE`), each one a writer's.
+
+    >>> parse_formats("xlsx, CSV,xlsx")
+    ('xlsx', 'csv')
+
+    Raises
+    ------
+    ValueError
+        For a format no writer writes, or none at all; the message says what was found and what is allowed.
+    """
+    wanted = tuple(dict.fromkeys(w.strip().lower() for w in text.split(",") if w.strip()))
+    unknown = [w for w in wanted if w not in FORMATS]
+    if unknown or not wanted:
+        found = ", ".join(repr(terminal_text(w)) for w in unknown) if unknown else "nothing"
+        raise ValueError(f"found {found}; allowed: {', '.join(FORMATS)} (comma-separated)")
+    return wanted
+
+
+def default_formats() -> tuple[str, ...]:
+    """The formats written when none are asked for: :data:`FORMATS_VARIABLE`'s, else every format.
+
+    Raises
+    ------
+    RoundscoreError
+        When the variable names a format no writer writes (the variable is named in the message).
+    """
+    text = os.environ.get(FORMATS_VARIABLE, "")
+    if not text.strip():
+        return FORMATS
+    try:
+        return parse_formats(text)
+    except ValueError as exc:
+        raise RoundscoreError(f"environment variable {FORMATS_VARIABLE}: {exc}") from None
+
+
 def writers_for(formats: Iterable[str] | None = None) -> tuple[Writer, ...]:
-    """The writers of the given formats (None: every writer), in the order of :data:`WRITERS`.
+    """The writers of the given formats (None: :func:`default_formats`), in the order of :data:`WRITERS`.
 
     Raises
     ------
     ValueError
         For a format no writer writes.
+    RoundscoreError
+        When ``formats`` is None and :data:`FORMATS_VARIABLE` names a format no writer writes.
     """
-    if formats is None:
-        return WRITERS
-    wanted = list(formats)
+    wanted = list(default_formats() if formats is None else formats)
     unknown = [f for f in wanted if f not in FORMATS]
     if unknown:
         raise ValueError(f"unknown output formats {unknown}; known: {', '.join(FORMATS)}")
