@@ -8,9 +8,15 @@ Subcommands
 ``history show --lab L [--measurand M] [--since DATE] [--scheme S] [--out DIR] [--archive FILE]``
     A table in the terminal; with ``--out`` also ``history.xlsx`` (with a native
     line chart of the scores) and ``history.png`` / ``history.svg``.
-``history check [--lab L] [--window N] [--json] [--archive FILE]``
+``history check [--lab L] [--window N] [--json] [--open] [--archive FILE]``
     Trend rules over every lab x measurand series (see :mod:`roundscore.history.rules`);
-    exit code 0 when nothing fired, 1 when a rule fired.
+    exit code 0 when nothing fired, 1 when a rule fired. ``--open``: the warning and action
+    signals and rule findings no closed investigation record answers; 1 when any remain.
+``history note --lab L --round R --measurand M --status open|closed --by NAME [--cause T] [--action T]
+[--date D] [--scheme S]``
+    Record (or change) the lab's investigation of one point (:mod:`roundscore.history.investigations`).
+``history alias --lab L --scheme S --name NAME``
+    Give a lab code of a scheme its laboratory's name; codes sharing a name are one laboratory.
 
 Errors are raised as :class:`roundscore.errors.RoundscoreError` subclasses; the
 command-line entry point maps them to exit code 2.
@@ -29,6 +35,7 @@ import numpy as np
 import pandas as pd
 
 from roundscore.history import store as archive
+from roundscore.history import investigations as records
 from roundscore.history import rules as history
 from roundscore.stats import trends
 from roundscore.choices import options
@@ -39,8 +46,8 @@ from roundscore.outputs.look import (SIGNAL_CHART_MARKER, SIGNAL_COLOUR, SIGNAL_
                                      signal_label, signal_legend_text)
 from roundscore.text import json_text, terminal_text
 
-__all__ = ["register", "run", "run_add", "run_show", "run_check", "write_history_outputs",
-           "SIGNAL_STYLE"]
+__all__ = ["register", "run", "run_add", "run_show", "run_check", "run_note", "run_alias", "write_history_outputs",
+           "format_open", "SIGNAL_STYLE"]
 
 #: Each signal's colour, marker codes and text symbol: the tool's one look (roundscore.outputs.look), the same
 #: in the terminal table, the history workbook and charts as in every other output.
@@ -74,7 +81,7 @@ def register(subparsers: argparse._SubParsersAction) -> argparse.ArgumentParser:
         "history", help="a lab's scores across rounds: archive, show, check for trends",
         description="Keep scores of past rounds in an archive (SQLite) and look at a lab's "
                     "history. " + history.DISCLAIMER)
-    sub = parser.add_subparsers(dest="history_command", metavar="{add,show,check}", required=True)
+    sub = parser.add_subparsers(dest="history_command", metavar="{add,show,check,note,alias,report}", required=True)
     archive_help = (f"archive file (default ${archive.ARCHIVE_ENV} or "
                     "the user data folder's roundscore/archive.sqlite)")
 
@@ -106,14 +113,39 @@ def register(subparsers: argparse._SubParsersAction) -> argparse.ArgumentParser:
                        metavar="N", help="report rules firing in the last N scored rounds of "
                        f"each series (default {history.DEFAULT_WINDOW})")
     check.add_argument("--json", action="store_true", help="print the results as JSON")
+    check.add_argument("--open", action="store_true",
+                       help="list the warning and action signals and rule findings that no closed "
+                            "investigation record answers; exit 1 when any remain")
     check.add_argument("--archive", metavar="FILE", help=archive_help)
     check.set_defaults(func=run_check)
+
+    note = sub.add_parser("note", help="record the lab's investigation of a signal or rule finding")
+    note.add_argument("--lab", required=True, help="lab code")
+    note.add_argument("--round", required=True, dest="round_id", metavar="ID", help="round identifier")
+    note.add_argument("--measurand", required=True, help="measurand")
+    note.add_argument("--scheme", help="the scheme (needed when the round id is archived in several)")
+    note.add_argument("--status", required=True, choices=records.STATUSES, help="open or closed")
+    note.add_argument("--cause", default="", help="the cause found (needed to close)")
+    note.add_argument("--action", default="", help="the corrective action taken (needed to close)")
+    note.add_argument("--by", required=True, metavar="NAME", help="who records it")
+    note.add_argument("--date", type=_iso_date, metavar="YYYY-MM-DD", help="the day (default: today)")
+    note.add_argument("--reason", default="investigation record changed",
+                      help="reason recorded in the audit table when a record is changed")
+    note.add_argument("--archive", metavar="FILE", help=archive_help)
+    note.set_defaults(func=run_note)
+
+    alias = sub.add_parser("alias", help="give a lab code of a scheme its laboratory's name")
+    alias.add_argument("--lab", required=True, help="lab code in the scheme")
+    alias.add_argument("--scheme", required=True, help="the scheme")
+    alias.add_argument("--name", required=True, help="the laboratory's name (codes sharing it are one laboratory)")
+    alias.add_argument("--archive", metavar="FILE", help=archive_help)
+    alias.set_defaults(func=run_alias)
     return parser
 
 
 def run(args: argparse.Namespace) -> int:
     """Run the chosen ``history`` subcommand; returns its exit code."""
-    handlers = {"add": run_add, "show": run_show, "check": run_check}
+    handlers = {"add": run_add, "show": run_show, "check": run_check, "note": run_note, "alias": run_alias}
     return handlers[args.history_command](args)
 
 
@@ -266,6 +298,12 @@ def run_check(args: argparse.Namespace) -> int:
         known = archive.archived_labs(args.archive)
         raise InputError.single(f"no archived scores for lab {args.lab!r} (labs in the archive: "
                                 f"{', '.join(known[:20]) or 'none'})")
+    if getattr(args, "open", False):
+        if args.lab:  # the laboratory under every code it has (history alias)
+            _, frame = records.lab_frame(args.archive, args.lab)
+        points = records.finding_points(frame, records.investigations(args.archive, sorted(set(frame["lab"]))))
+        print(format_open(points))
+        return 1 if any(p.is_open for p in points) else 0
     report = history.check_history(frame, window=args.window)
     if args.json:
         body = report.to_dict()
@@ -276,6 +314,45 @@ def run_check(args: argparse.Namespace) -> int:
     else:
         print(format_check(report))
     return 1 if report.fired else 0
+
+
+def finding_text(p: records.FindingPoint) -> str:
+    """A finding in words: "■ action signal, z = +3.40; rule 1 (action signal)"."""
+    value = f"{p.score} = {p.value:+.2f}" if np.isfinite(p.value) else p.score
+    return "; ".join([f"{signal_label(p.signal)}, {value}", *(h.label() for h in p.rules)])
+
+
+def format_open(points: Sequence[records.FindingPoint]) -> str:
+    """The findings no closed record answers, one line each, and the count."""
+    t = terminal_text
+    open_ = [p for p in points if p.is_open]
+    lines = []
+    for p in open_:
+        rec = (f"record open since {p.record.recorded_on} ({t(p.record.by)})" if p.record is not None
+               else "no record")
+        lines.append(f"{p.round_date} {t(p.lab)} / {t(p.scheme)} / {t(p.round_id)} / {t(p.measurand)}: "
+                     f"{finding_text(p)} - {rec}")
+    closed = len(points) - len(open_)
+    lines.append(f"{len(open_)} open of {len(points)} findings ({closed} answered by a closed record).")
+    lines.append(records.DISCLAIMER)
+    return "\n".join(lines)
+
+
+def run_note(args: argparse.Namespace) -> int:
+    """Store an investigation record; 0 when stored or unchanged (a refusal is an error: 2)."""
+    outcome = records.record_investigation(args.archive, lab=args.lab, round_id=args.round_id,
+                                           measurand=args.measurand, status=args.status, by=args.by,
+                                           cause=args.cause, action=args.action, date=args.date,
+                                           scheme=args.scheme, reason=args.reason)
+    print(f"{outcome.status}: {terminal_text(outcome.message)}")
+    return 0
+
+
+def run_alias(args: argparse.Namespace) -> int:
+    """Store a lab code's laboratory name; 0 when stored or unchanged."""
+    outcome = records.name_laboratory(args.archive, scheme=args.scheme, lab=args.lab, name=args.name)
+    print(f"{outcome.status}: {terminal_text(outcome.message)}")
+    return 0
 
 
 def main(argv: Sequence[str] | None = None) -> int:
