@@ -41,7 +41,8 @@ from roundscore.stats import trends
 from roundscore.choices import options
 from roundscore.errors import ArchiveError, InputError, RoundscoreError
 from roundscore.model.round import Paper
-from roundscore.outputs.history_workbook import HISTORY_TABLE_COLUMNS, write_history_outputs as _write_outputs
+from roundscore.outputs.history_workbook import (HISTORY_TABLE_COLUMNS, head_lines as _head_lines,
+                                                write_history_outputs as _write_outputs)
 from roundscore.outputs.look import (SIGNAL_CHART_MARKER, SIGNAL_COLOUR, SIGNAL_MARKER, SIGNAL_SYMBOL,
                                      signal_label, signal_legend_text)
 from roundscore.text import json_text, terminal_text
@@ -204,8 +205,10 @@ def format_table(frame: pd.DataFrame) -> str:
     shown["score_value"] = [("" if not np.isfinite(v) else f"{v:+.2f}")
                             for v in shown["score_value"]]
     shown["signal"] = [signal_label(s) for s in shown["signal"]]
+    if "rules" not in shown.columns:
+        shown["rules"] = ""
     header = ["date", "scheme", "round", "measurand", "unit", "result", "assigned", "sigma_pt",
-              "score", "value", "signal", "note"]
+              "score", "value", "signal", "rules", "note"]
     cells = [header] + [[_fmt(v) for v in row] for row in shown.itertuples(index=False)]
     widths = [max(len(r[i]) for r in cells) for i in range(len(header))]
     numeric = {5, 6, 7, 9}
@@ -231,13 +234,17 @@ def run_show(args: argparse.Namespace) -> int:
                                 + (f", scheme {args.scheme!r}" if args.scheme else "")
                                 + (f", since {args.since}" if args.since else "")
                                 + f" (labs in the archive: {shown or 'none'})")
+    frame = records.with_rules(frame)
     print(f"History of lab {terminal_text(args.lab)}: {frame['round'].nunique()} rounds, "
           f"{frame['measurand'].nunique()} measurands")
     print(format_table(frame))
     print(f"signals: {signal_legend_text(sep=', ')}")
     print(history.DISCLAIMER)
     if args.out:
-        written = write_history_outputs(frame, Path(args.out), lab=args.lab, paper=args.paper,
+        who = records.laboratory_codes(args.archive, args.lab)
+        head = _head_lines(frame, lab=args.lab, name=who.name, produced=_dt.date.today().isoformat(),
+                           archive=archive.open_store(args.archive).name)
+        written = write_history_outputs(frame, Path(args.out), lab=args.lab, paper=args.paper, head=head,
                                         protect=((archive.archive_path(args.archive), "the archive"),))
         for path in written:
             print(f"wrote {path}")
@@ -245,10 +252,11 @@ def run_show(args: argparse.Namespace) -> int:
 
 
 def write_history_outputs(frame: pd.DataFrame, out: Path, *, lab: str,
-                          protect: tuple[tuple[Path, str], ...] = (), paper: str = "a4") -> list[Path]:
+                          protect: tuple[tuple[Path, str], ...] = (), paper: str = "a4",
+                          head: Sequence[str] = ()) -> list[Path]:
     """Write ``history.xlsx``, ``history.png`` and ``history.svg`` as the output folder ``out``
     (:func:`roundscore.outputs.history_workbook.write_history_outputs`, with the history's disclaimer)."""
-    return _write_outputs(frame, out, lab=lab, caution=history.DISCLAIMER, protect=protect, paper=paper)
+    return _write_outputs(frame, out, lab=lab, caution=history.DISCLAIMER, protect=protect, paper=paper, head=head)
 
 
 # --------------------------------------------------------------------------- check

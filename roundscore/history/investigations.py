@@ -45,7 +45,7 @@ from roundscore.text import quote, shown_list, too_long
 
 __all__ = ["DISCLAIMER", "Status", "STATUSES", "FINDING_SIGNALS", "RuleHit", "FindingPoint", "NoteOutcome",
            "finding_points", "record_investigation", "investigations", "name_laboratory", "laboratory_codes",
-           "LabIdentity", "lab_frame"]
+           "LabIdentity", "lab_frame", "with_rules"]
 
 #: The caution of every lab-facing output of the records (``history check --open``, the lab's pack).
 DISCLAIMER = ("This history supports, and does not replace, the laboratory's own quality system, the provider's "
@@ -145,6 +145,14 @@ def finding_points(frame: pd.DataFrame, records: Sequence[Investigation] = ()) -
             rules=tuple(sorted(hits.get(key, ()), key=lambda h: (h.rule, h.side or ""))), record=by_key.get(key)))
     out.sort(key=lambda p: (p.round_date, p.round_id, p.scheme, p.measurand, p.lab))
     return out
+
+
+def with_rules(frame: pd.DataFrame) -> pd.DataFrame:
+    """The history frame with a ``rules`` column: the trend rules firing at each row ("3, 4"; "" for none)."""
+    tags = {p.key(): ", ".join(str(r) for r in sorted({h.rule for h in p.rules})) for p in finding_points(frame)}
+    keys = zip(frame["scheme"].astype(str), frame["round"].astype(str), frame["lab"].astype(str),
+               frame["measurand"].astype(str))
+    return frame.assign(rules=[tags.get(k, "") for k in keys])
 
 
 def investigations(path: str | os.PathLike[str] | None, labs: Sequence[str] | None = None) -> list[Investigation]:
