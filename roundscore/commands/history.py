@@ -141,12 +141,25 @@ def register(subparsers: argparse._SubParsersAction) -> argparse.ArgumentParser:
     alias.add_argument("--name", required=True, help="the laboratory's name (codes sharing it are one laboratory)")
     alias.add_argument("--archive", metavar="FILE", help=archive_help)
     alias.set_defaults(func=run_alias)
+
+    report = sub.add_parser("report", help="a lab's audit pack: workbook, HTML page and PDF")
+    report.add_argument("--lab", required=True, help="lab code, or a laboratory's name given with history alias")
+    report.add_argument("--since", type=_iso_date, metavar="DATE", help="rounds on or after DATE")
+    report.add_argument("--scheme", help="only this scheme")
+    report.add_argument("--out", required=True, metavar="DIR", help="the pack's output folder")
+    report.add_argument("--paper", choices=options(Paper),
+                        help="the paper (default: the rounds' [round] paper when they agree, else a4)")
+    report.add_argument("--formats", default="xlsx,html,pdf", metavar="LIST",
+                        help="the files to write: xlsx, html, pdf (default: all three)")
+    report.add_argument("--archive", metavar="FILE", help=archive_help)
+    report.set_defaults(func=run_report)
     return parser
 
 
 def run(args: argparse.Namespace) -> int:
     """Run the chosen ``history`` subcommand; returns its exit code."""
-    handlers = {"add": run_add, "show": run_show, "check": run_check, "note": run_note, "alias": run_alias}
+    handlers = {"add": run_add, "show": run_show, "check": run_check, "note": run_note, "alias": run_alias,
+                "report": run_report}
     return handlers[args.history_command](args)
 
 
@@ -361,6 +374,24 @@ def run_alias(args: argparse.Namespace) -> int:
     outcome = records.name_laboratory(args.archive, scheme=args.scheme, lab=args.lab, name=args.name)
     print(f"{outcome.status}: {terminal_text(outcome.message)}")
     return 0
+
+
+def run_report(args: argparse.Namespace) -> int:
+    """Write the lab's pack; 0 when written, 1 when findings remain open (the pack is written either way)."""
+    from roundscore.history import pack as packs
+
+    formats = tuple(f.strip() for f in str(args.formats).split(",") if f.strip())
+    unknown = sorted(set(formats) - {"xlsx", "html", "pdf"})
+    if unknown or not formats:
+        raise InputError.single(f"--formats: unknown {', '.join(unknown) or 'empty list'}; allowed: xlsx, html, pdf",
+                                value=args.formats)
+    pack = packs.lab_pack(args.archive, args.lab, since=args.since, scheme=args.scheme, paper=args.paper)
+    for path in packs.write_pack(pack, Path(args.out), formats=formats, protect=packs.default_protect(args.archive)):
+        print(f"wrote {path}")
+    open_n = sum(p.is_open for p in pack.points)
+    print(f"{len(pack.points)} findings, {open_n} open (no closed investigation record).")
+    print(records.DISCLAIMER)
+    return 1 if open_n else 0
 
 
 def main(argv: Sequence[str] | None = None) -> int:
