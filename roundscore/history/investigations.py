@@ -335,6 +335,6 @@ def lab_frame(path: str | os.PathLike[str] | None, lab: str, *, scheme: str | No
     if who.codes:
         pairs = set(who.codes)
         keep = [(s, c) in pairs for s, c in zip(frame["scheme"], frame["lab"])]
-        frame = frame[keep].reset_index(drop=True)
+        frame = frame.loc[pd.Series(keep, index=frame.index, dtype=bool)].reset_index(drop=True)
     pairs_found = tuple(dict.fromkeys(zip(frame["scheme"].astype(str), frame["lab"].astype(str))))
     return LabIdentity(name=who.name, codes=tuple(sorted(pairs_found))), frame
