@@ -10,16 +10,13 @@ pack's paper, one page wide, with its head rows repeated (:mod:`roundscore.suppo
 from __future__ import annotations
 
 from pathlib import Path
-from typing import TYPE_CHECKING, Any
+from typing import Any
 
 import xlsxwriter
 
 from roundscore.outputs.document import Document, Facts, Paragraph, Section, Table
 from roundscore.outputs.history_workbook import SERIES_HEIGHT, SERIES_ROWS, series_chart, series_groups
 from roundscore.outputs.workbook_base import FIXED_TIME, OPTIONS, Chart, Formats, print_setup, set_widths
-
-if TYPE_CHECKING:
-    from roundscore.history.pack import LabPack
 
 __all__ = ["write_pack_workbook"]
 
@@ -81,8 +78,9 @@ def _sheet(book, fm: Formats, name: str, title: str, lines: list[str], table: Ta
                 widths=widths, last_row=last)
 
 
-def write_pack_workbook(pack: LabPack, doc: Document, path: Path) -> None:
-    """Write ``pack.xlsx``: the head and findings, per round, per measurand, the charts and their data."""
+def write_pack_workbook(pack: Any, doc: Document, path: Path) -> None:
+    """Write ``pack.xlsx`` of a :class:`roundscore.history.pack.LabPack` (typed loosely: that module imports
+    this one) and its document: the head and findings, per round, per measurand, the charts and their data."""
     book = xlsxwriter.Workbook(str(path), OPTIONS)
     book.set_properties({"title": doc.title, "created": FIXED_TIME})
     fm = Formats(book)
