@@ -40,6 +40,7 @@ TEXT_LIMITS: dict[str, int] = {
     "comment": 200,
     "item label": 32,          # homogeneity and stability tables: shown under the item-means figure
     "set": 64,                 # a stability table's set names: the figure's axis, the notes
+    "investigation text": 2000,  # a lab's investigation record: the cause found, the action taken
 }
 
 #: Names listed in a message (known measurands, ...) before "and N more".

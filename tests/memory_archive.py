@@ -21,10 +21,10 @@ from dataclasses import dataclass, field, replace
 
 from roundscore.errors import ArchiveError
 from roundscore.history.interface import (ArchiveReader, ArchiveStore, ArchiveWriter, AuditEntry,
-                                          HistoryQuery, RoundRecord)
+                                          HistoryQuery, Investigation, Laboratory, RoundRecord)
 
 SCHEME = "memory"
-LATEST_VERSION = 3
+LATEST_VERSION = 4
 
 
 @dataclass
@@ -33,6 +33,8 @@ class _Records:
     scores: dict[tuple[str, str], dict[tuple[str, str], tuple]] = field(default_factory=dict)
     tables: dict[tuple[str, str], list[tuple[str, int, str]]] = field(default_factory=dict)
     audit: list[AuditEntry] = field(default_factory=list)
+    investigations: dict[tuple[str, str, str, str], Investigation] = field(default_factory=dict)
+    laboratories: dict[tuple[str, str], Laboratory] = field(default_factory=dict)
     version: int = 0
 
 
@@ -82,6 +84,13 @@ class MemoryReader(ArchiveReader):
     def audit_entries(self) -> list[AuditEntry]:
         return list(self._r.audit)
 
+    def investigations(self, labs: Sequence[str] | None = None) -> list[Investigation]:
+        return [self._r.investigations[k] for k in sorted(self._r.investigations)
+                if labs is None or k[2] in set(labs)]
+
+    def laboratories(self) -> list[Laboratory]:
+        return [self._r.laboratories[k] for k in sorted(self._r.laboratories)]
+
 
 class MemoryWriter(MemoryReader, ArchiveWriter):
     def add_round(self, record: RoundRecord) -> None:
@@ -120,6 +129,12 @@ class MemoryWriter(MemoryReader, ArchiveWriter):
 
     def add_audit(self, entries: Sequence[AuditEntry]) -> None:
         self._r.audit.extend(entries)
+
+    def put_investigation(self, record: Investigation) -> None:
+        self._r.investigations[record.key()] = record
+
+    def put_laboratory(self, record: Laboratory) -> None:
+        self._r.laboratories[(record.scheme, record.lab)] = record
 
 
 class MemoryArchive(ArchiveStore):

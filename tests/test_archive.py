@@ -488,9 +488,9 @@ def test_migration_from_version_1(tmp_path):
     assert hist["score_value"].tolist() == [2.5]
     assert db.read_bytes() == before and count(db, "PRAGMA user_version") == 1
     store(db, scores_frame(round_id="R0", date="2022-05-01"), replace=True)  # a write migrates
-    assert count(db, "PRAGMA user_version") == archive.SCHEMA_VERSION == 3
+    assert count(db, "PRAGMA user_version") == archive.SCHEMA_VERSION == 4  # the released migrations
     assert count(db, "PRAGMA application_id") == archive.APPLICATION_ID
-    assert count(db, "SELECT COUNT(*) FROM schema_version") == 3
+    assert count(db, "SELECT COUNT(*) FROM schema_version") == 4
     old_round = json.loads(count(db, "SELECT row FROM audit WHERE kind = 'round'"))
     assert old_round["origin"] == "lab"  # migration 2's default for rounds stored before it
     assert count(db, "SELECT COUNT(*) FROM audit WHERE kind = 'score'") == 1

@@ -141,7 +141,7 @@ def test_an_archive_written_before_the_application_id_is_read_as_is_and_marked_o
     assert db.read_bytes() == before
     store(db, scores_frame(round_id="R2", date="2024-09-01"))  # the first write migrates
     assert (count(db, "PRAGMA user_version"), count(db, "PRAGMA application_id")) == \
-        (3, archive.APPLICATION_ID)
+        (archive.SCHEMA_VERSION, archive.APPLICATION_ID)
     assert rows(db) == (2, 8, 0)  # the old round is still there, beside the new one
     assert count(db, "SELECT description FROM schema_version WHERE version = 3") == \
         "Mark the file as a roundscore archive (PRAGMA application_id)."

@@ -33,6 +33,16 @@ def _load_maker():
 maker = _load_maker()  # the same inputs, reads and schema dump the reference files were made with
 EXPECTED = json.loads((DATA / "expected.json").read_text(encoding="utf-8"))
 SCHEMA = (DATA / "schema.sql").read_text(encoding="utf-8")
+#: The schema this roundscore writes: version 3's and the tables of migration 4 (investigation records,
+#: laboratories), recorded from a new archive when migration 4 was released (README there).
+SCHEMA_NOW = (DATA / "schema-v4.sql").read_text(encoding="utf-8")
+
+
+def released_versions() -> list[tuple[int, str]]:
+    """The versions a migrated or new archive logs: the reference file's three, then the later migrations."""
+    from roundscore.history.sqlite_schema import MIGRATIONS
+
+    return versions(DATA / "archive-v3.sqlite") + [(m.version, m.description) for m in MIGRATIONS[3:]]
 
 
 def copy(name: str, folder: Path) -> Path:
@@ -88,7 +98,7 @@ def test_an_archive_written_before_accepts_the_same_stores(tmp_path):
     got = json.loads(json.dumps(maker.reads(db), ensure_ascii=False))
     assert got.pop("archived_labs") == sorted(EXPECTED["reads"]["archived_labs"] + ["N01"])
     assert got == {k: v for k, v in EXPECTED["reads"].items() if k != "archived_labs"}
-    assert maker.schema(db) == SCHEMA
+    assert maker.schema(db) == SCHEMA_NOW  # migrated by the first write
     with sqlite3.connect(db) as conn:
         assert conn.execute("SELECT COUNT(*) FROM audit").fetchone()[0] == 11  # nothing replaced
     conn.close()
@@ -97,8 +107,8 @@ def test_an_archive_written_before_accepts_the_same_stores(tmp_path):
 def test_a_new_archive_has_the_released_schema(tmp_path):
     db = tmp_path / "new.sqlite"
     assert maker.store_everything(db) == EXPECTED["statuses"]
-    assert maker.schema(db) == SCHEMA  # every CREATE text, index, user version, application id
-    assert versions(db) == versions(DATA / "archive-v3.sqlite")
+    assert maker.schema(db) == SCHEMA_NOW  # every CREATE text, index, user version, application id
+    assert versions(db) == released_versions()
     assert json.loads(json.dumps(maker.reads(db), ensure_ascii=False)) == EXPECTED["reads"]
 
 
@@ -111,8 +121,8 @@ def test_archives_of_older_versions_read_as_is_then_migrate_to_the_released_sche
     assert db.read_bytes() == before  # reading never migrates
     statuses = maker.store_everything(db)  # the first write migrates
     assert statuses == EXPECTED["statuses"]
-    assert maker.schema(db) == SCHEMA
-    assert versions(db) == versions(DATA / "archive-v3.sqlite")
+    assert maker.schema(db) == SCHEMA_NOW
+    assert versions(db) == released_versions()
     old = archive.lab_history(db, lab="L01", scheme="AQ", measurand="lead")
     assert old["round"].tolist() == ["R0", "2024-1"]
     with sqlite3.connect(db) as conn:
@@ -144,6 +154,12 @@ def test_the_released_migrations_are_the_text_the_files_were_made_with():
     assert (v2["round_tables"], v2["audit"], v2["scores_by_lab"]) == (round_tables, audit, index)
     assert alter == "ALTER TABLE rounds ADD COLUMN origin TEXT NOT NULL DEFAULT 'lab'"
     assert MIGRATIONS[2].statements == (f"PRAGMA application_id = {APPLICATION_ID:d}",)
+    # migration 4 adds two tables and changes nothing of version 3's schema
+    now = [line for line in SCHEMA_NOW.splitlines() if line not in SCHEMA.splitlines()]
+    assert now[0] == "-- PRAGMA user_version = 4"
+    investigations, laboratories = MIGRATIONS[3].statements
+    assert f"{investigations};" in SCHEMA_NOW and f"{laboratories};" in SCHEMA_NOW
+    assert all(line in SCHEMA_NOW.splitlines() for line in SCHEMA.splitlines()[1:])
 
 
 def test_the_migrations_are_literal_text_built_from_nothing_live():

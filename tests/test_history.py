@@ -307,11 +307,21 @@ def test_show_table_and_outputs(tmp_path, capsys):
         chart = book.read("xl/charts/chart1.xml").decode()
     assert "xl/charts/chart1.xml" in names and "<c:lineChart>" in chart
     assert "009E73" in chart and "D55E00" in chart and "triangle" in chart
+    # the round ids are the categories, labelled under the plot; the rules firing at 2023-3 (|z| = 3.3 ≥ 3,
+    # ISO 13528; 2.4 and 3.3 two of three beyond 2, Western Electric zone A) are ringed and named there
+    assert "<c:v>2023-3</c:v>" in chart and '<c:tickLblPos val="low"/>' in chart
+    assert "trend rule fired" in chart and "R1 R2 R4" in chart
     import openpyxl
 
     sheet = openpyxl.load_workbook(out_dir / "history.xlsx")["history"]
-    header = [c.value for c in sheet[1]]
-    note = sheet.cell(row=2, column=header.index("Note") + 1)  # display headings (outputs/headings.py)
+    assert sheet.cell(row=1, column=1).value == "Laboratory L07"  # the head names the lab, scheme, dates
+    assert sheet.cell(row=2, column=1).value.startswith("Scheme ")
+    assert "produced " in sheet.cell(row=4, column=1).value
+    top = next(r for r in range(1, 10) if sheet.cell(row=r, column=1).value == "Round date")
+    header = [c.value for c in sheet[top]]
+    note = sheet.cell(row=top + 1, column=header.index("Note") + 1)  # display headings (outputs/headings.py)
+    rules = [sheet.cell(row=top + 1 + k, column=header.index("rules") + 1).value for k in range(4)]
+    assert rules == [None, None, "1, 2, 4", None]  # in the table too; CUSUM z - 0.5: 0, 1.9, 4.7 > h = 4 (Page 1954)
     assert note.value == "=2+2" and note.data_type == "s"  # text, never a formula
     svg = (out_dir / "history.svg").read_text().lower()
     for colour in ("#009e73", "#e69f00", "#d55e00"):  # Okabe-Ito, one per signal shown

@@ -8,9 +8,15 @@ Subcommands
 ``history show --lab L [--measurand M] [--since DATE] [--scheme S] [--out DIR] [--archive FILE]``
     A table in the terminal; with ``--out`` also ``history.xlsx`` (with a native
     line chart of the scores) and ``history.png`` / ``history.svg``.
-``history check [--lab L] [--window N] [--json] [--archive FILE]``
+``history check [--lab L] [--window N] [--json] [--open] [--archive FILE]``
     Trend rules over every lab x measurand series (see :mod:`roundscore.history.rules`);
-    exit code 0 when nothing fired, 1 when a rule fired.
+    exit code 0 when nothing fired, 1 when a rule fired. ``--open``: the warning and action
+    signals and rule findings no closed investigation record answers; 1 when any remain.
+``history note --lab L --round R --measurand M --status open|closed --by NAME [--cause T] [--action T]
+[--date D] [--scheme S]``
+    Record (or change) the lab's investigation of one point (:mod:`roundscore.history.investigations`).
+``history alias --lab L --scheme S --name NAME``
+    Give a lab code of a scheme its laboratory's name; codes sharing a name are one laboratory.
 
 Errors are raised as :class:`roundscore.errors.RoundscoreError` subclasses; the
 command-line entry point maps them to exit code 2.
@@ -29,18 +35,20 @@ import numpy as np
 import pandas as pd
 
 from roundscore.history import store as archive
+from roundscore.history import investigations as records
 from roundscore.history import rules as history
 from roundscore.stats import trends
 from roundscore.choices import options
 from roundscore.errors import ArchiveError, InputError, RoundscoreError
 from roundscore.model.round import Paper
-from roundscore.outputs.history_workbook import HISTORY_TABLE_COLUMNS, write_history_outputs as _write_outputs
+from roundscore.outputs.history_workbook import (HISTORY_TABLE_COLUMNS, head_lines as _head_lines,
+                                                write_history_outputs as _write_outputs)
 from roundscore.outputs.look import (SIGNAL_CHART_MARKER, SIGNAL_COLOUR, SIGNAL_MARKER, SIGNAL_SYMBOL,
                                      signal_label, signal_legend_text)
 from roundscore.text import json_text, terminal_text
 
-__all__ = ["register", "run", "run_add", "run_show", "run_check", "write_history_outputs",
-           "SIGNAL_STYLE"]
+__all__ = ["register", "run", "run_add", "run_show", "run_check", "run_note", "run_alias", "write_history_outputs",
+           "format_open", "SIGNAL_STYLE"]
 
 #: Each signal's colour, marker codes and text symbol: the tool's one look (roundscore.outputs.look), the same
 #: in the terminal table, the history workbook and charts as in every other output.
@@ -74,7 +82,7 @@ def register(subparsers: argparse._SubParsersAction) -> argparse.ArgumentParser:
         "history", help="a lab's scores across rounds: archive, show, check for trends",
         description="Keep scores of past rounds in an archive (SQLite) and look at a lab's "
                     "history. " + history.DISCLAIMER)
-    sub = parser.add_subparsers(dest="history_command", metavar="{add,show,check}", required=True)
+    sub = parser.add_subparsers(dest="history_command", metavar="{add,show,check,note,alias,report}", required=True)
     archive_help = (f"archive file (default ${archive.ARCHIVE_ENV} or "
                     "the user data folder's roundscore/archive.sqlite)")
 
@@ -106,14 +114,52 @@ def register(subparsers: argparse._SubParsersAction) -> argparse.ArgumentParser:
                        metavar="N", help="report rules firing in the last N scored rounds of "
                        f"each series (default {history.DEFAULT_WINDOW})")
     check.add_argument("--json", action="store_true", help="print the results as JSON")
+    check.add_argument("--open", action="store_true",
+                       help="list the warning and action signals and rule findings that no closed "
+                            "investigation record answers; exit 1 when any remain")
     check.add_argument("--archive", metavar="FILE", help=archive_help)
     check.set_defaults(func=run_check)
+
+    note = sub.add_parser("note", help="record the lab's investigation of a signal or rule finding")
+    note.add_argument("--lab", required=True, help="lab code")
+    note.add_argument("--round", required=True, dest="round_id", metavar="ID", help="round identifier")
+    note.add_argument("--measurand", required=True, help="measurand")
+    note.add_argument("--scheme", help="the scheme (needed when the round id is archived in several)")
+    note.add_argument("--status", required=True, choices=records.STATUSES, help="open or closed")
+    note.add_argument("--cause", default="", help="the cause found (needed to close)")
+    note.add_argument("--action", default="", help="the corrective action taken (needed to close)")
+    note.add_argument("--by", required=True, metavar="NAME", help="who records it")
+    note.add_argument("--date", type=_iso_date, metavar="YYYY-MM-DD", help="the day (default: today)")
+    note.add_argument("--reason", default="investigation record changed",
+                      help="reason recorded in the audit table when a record is changed")
+    note.add_argument("--archive", metavar="FILE", help=archive_help)
+    note.set_defaults(func=run_note)
+
+    alias = sub.add_parser("alias", help="give a lab code of a scheme its laboratory's name")
+    alias.add_argument("--lab", required=True, help="lab code in the scheme")
+    alias.add_argument("--scheme", required=True, help="the scheme")
+    alias.add_argument("--name", required=True, help="the laboratory's name (codes sharing it are one laboratory)")
+    alias.add_argument("--archive", metavar="FILE", help=archive_help)
+    alias.set_defaults(func=run_alias)
+
+    report = sub.add_parser("report", help="a lab's audit pack: workbook, HTML page and PDF")
+    report.add_argument("--lab", required=True, help="lab code, or a laboratory's name given with history alias")
+    report.add_argument("--since", type=_iso_date, metavar="DATE", help="rounds on or after DATE")
+    report.add_argument("--scheme", help="only this scheme")
+    report.add_argument("--out", required=True, metavar="DIR", help="the pack's output folder")
+    report.add_argument("--paper", choices=options(Paper),
+                        help="the paper (default: the rounds' [round] paper when they agree, else a4)")
+    report.add_argument("--formats", default="xlsx,html,pdf", metavar="LIST",
+                        help="the files to write: xlsx, html, pdf (default: all three)")
+    report.add_argument("--archive", metavar="FILE", help=archive_help)
+    report.set_defaults(func=run_report)
     return parser
 
 
 def run(args: argparse.Namespace) -> int:
     """Run the chosen ``history`` subcommand; returns its exit code."""
-    handlers = {"add": run_add, "show": run_show, "check": run_check}
+    handlers = {"add": run_add, "show": run_show, "check": run_check, "note": run_note, "alias": run_alias,
+                "report": run_report}
     return handlers[args.history_command](args)
 
 
@@ -172,8 +218,10 @@ def format_table(frame: pd.DataFrame) -> str:
     shown["score_value"] = [("" if not np.isfinite(v) else f"{v:+.2f}")
                             for v in shown["score_value"]]
     shown["signal"] = [signal_label(s) for s in shown["signal"]]
+    if "rules" not in shown.columns:
+        shown["rules"] = ""
     header = ["date", "scheme", "round", "measurand", "unit", "result", "assigned", "sigma_pt",
-              "score", "value", "signal", "note"]
+              "score", "value", "signal", "rules", "note"]
     cells = [header] + [[_fmt(v) for v in row] for row in shown.itertuples(index=False)]
     widths = [max(len(r[i]) for r in cells) for i in range(len(header))]
     numeric = {5, 6, 7, 9}
@@ -199,13 +247,17 @@ def run_show(args: argparse.Namespace) -> int:
                                 + (f", scheme {args.scheme!r}" if args.scheme else "")
                                 + (f", since {args.since}" if args.since else "")
                                 + f" (labs in the archive: {shown or 'none'})")
+    frame = records.with_rules(frame)
     print(f"History of lab {terminal_text(args.lab)}: {frame['round'].nunique()} rounds, "
           f"{frame['measurand'].nunique()} measurands")
     print(format_table(frame))
     print(f"signals: {signal_legend_text(sep=', ')}")
     print(history.DISCLAIMER)
     if args.out:
-        written = write_history_outputs(frame, Path(args.out), lab=args.lab, paper=args.paper,
+        who = records.laboratory_codes(args.archive, args.lab)
+        head = _head_lines(frame, lab=args.lab, name=who.name, produced=_dt.date.today().isoformat(),
+                           archive=archive.open_store(args.archive).name)
+        written = write_history_outputs(frame, Path(args.out), lab=args.lab, paper=args.paper, head=head,
                                         protect=((archive.archive_path(args.archive), "the archive"),))
         for path in written:
             print(f"wrote {path}")
@@ -213,10 +265,11 @@ def run_show(args: argparse.Namespace) -> int:
 
 
 def write_history_outputs(frame: pd.DataFrame, out: Path, *, lab: str,
-                          protect: tuple[tuple[Path, str], ...] = (), paper: str = "a4") -> list[Path]:
+                          protect: tuple[tuple[Path, str], ...] = (), paper: str = "a4",
+                          head: Sequence[str] = ()) -> list[Path]:
     """Write ``history.xlsx``, ``history.png`` and ``history.svg`` as the output folder ``out``
     (:func:`roundscore.outputs.history_workbook.write_history_outputs`, with the history's disclaimer)."""
-    return _write_outputs(frame, out, lab=lab, caution=history.DISCLAIMER, protect=protect, paper=paper)
+    return _write_outputs(frame, out, lab=lab, caution=history.DISCLAIMER, protect=protect, paper=paper, head=head)
 
 
 # --------------------------------------------------------------------------- check
@@ -266,6 +319,12 @@ def run_check(args: argparse.Namespace) -> int:
         known = archive.archived_labs(args.archive)
         raise InputError.single(f"no archived scores for lab {args.lab!r} (labs in the archive: "
                                 f"{', '.join(known[:20]) or 'none'})")
+    if getattr(args, "open", False):
+        if args.lab:  # the laboratory under every code it has (history alias)
+            _, frame = records.lab_frame(args.archive, args.lab)
+        points = records.finding_points(frame, records.investigations(args.archive, sorted(set(frame["lab"]))))
+        print(format_open(points))
+        return 1 if any(p.is_open for p in points) else 0
     report = history.check_history(frame, window=args.window)
     if args.json:
         body = report.to_dict()
@@ -276,6 +335,63 @@ def run_check(args: argparse.Namespace) -> int:
     else:
         print(format_check(report))
     return 1 if report.fired else 0
+
+
+def finding_text(p: records.FindingPoint) -> str:
+    """A finding in words: "■ action signal, z = +3.40; rule 1 (action signal)"."""
+    value = f"{p.score} = {p.value:+.2f}" if np.isfinite(p.value) else p.score
+    return "; ".join([f"{signal_label(p.signal)}, {value}", *(h.label() for h in p.rules)])
+
+
+def format_open(points: Sequence[records.FindingPoint]) -> str:
+    """The findings no closed record answers, one line each, and the count."""
+    t = terminal_text
+    open_ = [p for p in points if p.is_open]
+    lines = []
+    for p in open_:
+        rec = (f"record open since {p.record.recorded_on} ({t(p.record.by)})" if p.record is not None
+               else "no record")
+        lines.append(f"{p.round_date} {t(p.lab)} / {t(p.scheme)} / {t(p.round_id)} / {t(p.measurand)}: "
+                     f"{finding_text(p)} - {rec}")
+    closed = len(points) - len(open_)
+    lines.append(f"{len(open_)} open of {len(points)} findings ({closed} answered by a closed record).")
+    lines.append(records.DISCLAIMER)
+    return "\n".join(lines)
+
+
+def run_note(args: argparse.Namespace) -> int:
+    """Store an investigation record; 0 when stored or unchanged (a refusal is an error: 2)."""
+    outcome = records.record_investigation(args.archive, lab=args.lab, round_id=args.round_id,
+                                           measurand=args.measurand, status=args.status, by=args.by,
+                                           cause=args.cause, action=args.action, date=args.date,
+                                           scheme=args.scheme, reason=args.reason)
+    print(f"{outcome.status}: {terminal_text(outcome.message)}")
+    return 0
+
+
+def run_alias(args: argparse.Namespace) -> int:
+    """Store a lab code's laboratory name; 0 when stored or unchanged."""
+    outcome = records.name_laboratory(args.archive, scheme=args.scheme, lab=args.lab, name=args.name)
+    print(f"{outcome.status}: {terminal_text(outcome.message)}")
+    return 0
+
+
+def run_report(args: argparse.Namespace) -> int:
+    """Write the lab's pack; 0 when written, 1 when findings remain open (the pack is written either way)."""
+    from roundscore.history import pack as packs
+
+    formats = tuple(f.strip() for f in str(args.formats).split(",") if f.strip())
+    unknown = sorted(set(formats) - {"xlsx", "html", "pdf"})
+    if unknown or not formats:
+        raise InputError.single(f"--formats: unknown {', '.join(unknown) or 'empty list'}; allowed: xlsx, html, pdf",
+                                value=args.formats)
+    pack = packs.lab_pack(args.archive, args.lab, since=args.since, scheme=args.scheme, paper=args.paper)
+    for path in packs.write_pack(pack, Path(args.out), formats=formats, protect=packs.default_protect(args.archive)):
+        print(f"wrote {path}")
+    open_n = sum(p.is_open for p in pack.points)
+    print(f"{len(pack.points)} findings, {open_n} open (no closed investigation record).")
+    print(records.DISCLAIMER)
+    return 1 if open_n else 0
 
 
 def main(argv: Sequence[str] | None = None) -> int:

@@ -45,7 +45,7 @@ from dataclasses import asdict, dataclass
 from roundscore.history.sheets import ROW_FIELDS
 
 __all__ = ["ROW_FIELDS", "HISTORY_ROW_FIELDS", "RoundRecord", "AuditEntry", "HistoryQuery",
-           "ArchiveReader", "ArchiveWriter", "ArchiveStore", "now"]
+           "Investigation", "Laboratory", "ArchiveReader", "ArchiveWriter", "ArchiveStore", "now"]
 
 #: Fields of a row of :meth:`ArchiveReader.history_rows`: the round's keys, then a score row.
 HISTORY_ROW_FIELDS: tuple[str, ...] = ("scheme", "round", "round_date", "title", *ROW_FIELDS)
@@ -105,8 +105,9 @@ class AuditEntry:
         The round concerned.
     lab : str or None
         The lab of a score row, or of a lab's import; ``None`` for a whole round's tables.
-    kind : {"round", "score", "statistics", "precision"}
-        What was replaced.
+    kind : {"round", "score", "statistics", "precision", "investigation", "laboratory"}
+        What was replaced (an investigation record or a laboratory's name is kept here when it
+        is changed).
     row : str
         The replaced record as canonical JSON.
     """
@@ -147,6 +148,66 @@ class HistoryQuery:
     exclude_round: str | None = None
 
 
+@dataclass(frozen=True, slots=True, kw_only=True)
+class Investigation:
+    """A lab's record of what it did about a signal or a trend-rule finding.
+
+    Attributes
+    ----------
+    scheme, round_id, lab, measurand : str
+        The point of the lab's series it is about (one record per point).
+    status : {"open", "closed"}
+        Whether the investigation is still going on.
+    cause, action : str
+        The cause found and the corrective action taken (``""`` while unknown).
+    by : str
+        Who recorded (or closed) it.
+    recorded_on : str
+        The day it was recorded or closed, ISO ``YYYY-MM-DD``.
+    stored_at : str
+        UTC time of the store, ISO 8601.
+    """
+
+    scheme: str
+    round_id: str
+    lab: str
+    measurand: str
+    status: str
+    cause: str = ""
+    action: str = ""
+    by: str
+    recorded_on: str
+    stored_at: str
+
+    def key(self) -> tuple[str, str, str, str]:
+        """(scheme, round, lab, measurand): the point it is about."""
+        return (self.scheme, self.round_id, self.lab, self.measurand)
+
+    def content(self) -> dict[str, str]:
+        """The fields a user gave (``stored_at`` aside): what decides whether a record changed."""
+        return {k: v for k, v in asdict(self).items() if k != "stored_at"}
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class Laboratory:
+    """The laboratory behind a lab code of one scheme (a lab takes part under other codes elsewhere).
+
+    Attributes
+    ----------
+    scheme, lab : str
+        The scheme and the code the lab has there.
+    name : str
+        The laboratory's name; codes sharing a name are one laboratory.
+    stored_at : str
+        UTC time of the store, ISO 8601.
+    """
+
+    scheme: str
+    lab: str
+    name: str
+    stored_at: str
+
+
 class ArchiveReader(ABC):
     """An archive opened to read (:meth:`ArchiveStore.reading`)."""
 
@@ -185,6 +246,16 @@ class ArchiveReader(ABC):
     def audit_entries(self) -> list[AuditEntry]:
         """The audit, oldest entry first (in the order the entries were added)."""
 
+    @abstractmethod
+    def investigations(self, labs: Sequence[str] | None = None) -> list[Investigation]:
+        """The investigation records (only those of ``labs`` when given), ordered by scheme, round,
+        lab and measurand; none in an archive older than the records."""
+
+    @abstractmethod
+    def laboratories(self) -> list[Laboratory]:
+        """Every laboratory name given to a lab code, ordered by scheme and code; none in an archive
+        older than the names."""
+
 
 class ArchiveWriter(ArchiveReader):
     """An archive opened to write: the reads see the writes made in the same transaction."""
@@ -218,6 +289,14 @@ class ArchiveWriter(ArchiveReader):
     @abstractmethod
     def add_audit(self, entries: Sequence[AuditEntry]) -> None:
         """Append entries to the audit, in this order."""
+
+    @abstractmethod
+    def put_investigation(self, record: Investigation) -> None:
+        """Store a record, replacing the one of the same point (the caller audits the old one)."""
+
+    @abstractmethod
+    def put_laboratory(self, record: Laboratory) -> None:
+        """Store a code's laboratory name, replacing the one given before (the caller audits it)."""
 
 
 class ArchiveStore(ABC):

@@ -34,7 +34,7 @@ from pathlib import Path
 
 from roundscore.history import db as _db
 from roundscore.history.interface import (ROW_FIELDS, ArchiveReader, ArchiveStore, ArchiveWriter,
-                                          AuditEntry, HistoryQuery, RoundRecord)
+                                          AuditEntry, HistoryQuery, Investigation, Laboratory, RoundRecord)
 from roundscore.history.sqlite_schema import MIGRATIONS, Migration
 
 __all__ = ["SqliteArchive", "SqliteReader", "SqliteWriter"]
@@ -42,6 +42,12 @@ __all__ = ["SqliteArchive", "SqliteReader", "SqliteWriter"]
 _ROUND_FIELDS = ("scheme", "round_id", "round_date", "title", "settings", "stored_at", "origin")
 _AUDIT_FIELDS = ("replaced_at", "reason", "scheme", "round_id", "lab", "kind", "row")
 _COLUMNS = ", ".join(ROW_FIELDS)
+#: The investigations table's columns in :class:`Investigation` field order (``by`` is ``by_name``).
+_INVESTIGATION_COLUMNS = ("scheme", "round_id", "lab", "measurand", "status", "cause", "action", "by_name",
+                          "recorded_on", "stored_at")
+_INVESTIGATION_FIELDS = ("scheme", "round_id", "lab", "measurand", "status", "cause", "action", "by",
+                         "recorded_on", "stored_at")
+_LABORATORY_FIELDS = ("scheme", "lab", "name", "stored_at")
 
 
 class SqliteArchive(ArchiveStore):
@@ -177,6 +183,23 @@ class SqliteReader(ArchiveReader):
         return [AuditEntry(**dict(zip(_AUDIT_FIELDS, row))) for row in self._rows(
             f"SELECT {', '.join(_AUDIT_FIELDS)} FROM audit ORDER BY id")]
 
+    def investigations(self, labs: Sequence[str] | None = None) -> list[Investigation]:
+        if self.version() < 4:  # added by migration 4
+            return []
+        sql = f"SELECT {', '.join(_INVESTIGATION_COLUMNS)} FROM investigations"
+        args: list[object] = []
+        if labs is not None:
+            sql += " WHERE lab IN (SELECT value FROM json_each(?))"
+            args.append(json.dumps(list(labs)))
+        return [Investigation(**dict(zip(_INVESTIGATION_FIELDS, row))) for row in self._rows(
+            sql + " ORDER BY scheme, round_id, lab, measurand", args)]
+
+    def laboratories(self) -> list[Laboratory]:
+        if self.version() < 4:
+            return []
+        return [Laboratory(**dict(zip(_LABORATORY_FIELDS, row))) for row in self._rows(
+            f"SELECT {', '.join(_LABORATORY_FIELDS)} FROM laboratories ORDER BY scheme, lab")]
+
 
 class SqliteWriter(SqliteReader, ArchiveWriter):
     """Writes inside the transaction :meth:`SqliteArchive.writing` holds."""
@@ -216,3 +239,13 @@ class SqliteWriter(SqliteReader, ArchiveWriter):
         self._conn.executemany(
             f"INSERT INTO audit ({', '.join(_AUDIT_FIELDS)}) VALUES (?, ?, ?, ?, ?, ?, ?)",
             [tuple(getattr(e, f) for f in _AUDIT_FIELDS) for e in entries])
+
+    def put_investigation(self, record: Investigation) -> None:
+        self._conn.execute(
+            f"INSERT OR REPLACE INTO investigations ({', '.join(_INVESTIGATION_COLUMNS)}) "
+            f"VALUES ({', '.join('?' * len(_INVESTIGATION_COLUMNS))})",
+            tuple(getattr(record, f) for f in _INVESTIGATION_FIELDS))
+
+    def put_laboratory(self, record: Laboratory) -> None:
+        self._conn.execute(f"INSERT OR REPLACE INTO laboratories ({', '.join(_LABORATORY_FIELDS)}) "
+                           "VALUES (?, ?, ?, ?)", tuple(getattr(record, f) for f in _LABORATORY_FIELDS))

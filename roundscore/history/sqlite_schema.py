@@ -99,7 +99,22 @@ _MIGRATION_3 = Migration(
     statements=("PRAGMA application_id = 1381189697",),
 )
 
+_MIGRATION_4 = Migration(
+    version=4,
+    description="Add the labs' investigation records and the laboratories behind the lab codes.",
+    statements=(
+        "CREATE TABLE investigations (\n"
+        "        scheme TEXT NOT NULL, round_id TEXT NOT NULL, lab TEXT NOT NULL, measurand TEXT NOT NULL,\n"
+        "        status TEXT NOT NULL, cause TEXT NOT NULL DEFAULT '', action TEXT NOT NULL DEFAULT '',\n"
+        "        by_name TEXT NOT NULL, recorded_on TEXT NOT NULL, stored_at TEXT NOT NULL,\n"
+        "        PRIMARY KEY (scheme, round_id, lab, measurand))",
+        "CREATE TABLE laboratories (\n"
+        "        scheme TEXT NOT NULL, lab TEXT NOT NULL, name TEXT NOT NULL, stored_at TEXT NOT NULL,\n"
+        "        PRIMARY KEY (scheme, lab))",
+    ),
+)
+
 #: The released migrations in order; ``MIGRATIONS[i]`` brings a file to version ``i + 1``.
-MIGRATIONS: tuple[Migration, ...] = (_MIGRATION_1, _MIGRATION_2, _MIGRATION_3)
+MIGRATIONS: tuple[Migration, ...] = (_MIGRATION_1, _MIGRATION_2, _MIGRATION_3, _MIGRATION_4)
 #: The schema version this roundscore writes.
 SCHEMA_VERSION = len(MIGRATIONS)
