@@ -13,7 +13,8 @@ from pathlib import Path
 import pytest
 
 SCRIPT = Path(__file__).resolve().parents[1] / "benchmarks" / "scale.py"
-FINAL = re.compile(r"^read/floor=(\S+) write/floor=(\S+) total/baseline=(\S+) exponent=(\S+)$")
+FINAL = re.compile(r"^read/floor=(\S+) write/floor=(\S+) total/floor=(\S+) recheck/cold=(\S+) "
+                   r"evaluate/baseline=(\S+) exponent=(\S+)$")
 
 
 @pytest.fixture(scope="module")
@@ -29,16 +30,23 @@ def tiny_run(tmp_path_factory) -> str:
     return res.stdout
 
 
-def test_final_line_has_four_ratios(tiny_run):
+def test_final_line_has_six_ratios(tiny_run):
     last = tiny_run.strip().splitlines()[-1]
     m = FINAL.match(last)
     assert m, last
     values = [float(v) for v in m.groups()]
-    assert all(math.isfinite(v) and v > 0 for v in values[:3])
-    assert math.isfinite(values[3])
+    assert all(math.isfinite(v) and v > 0 for v in values[:5])
+    assert math.isfinite(values[5])
 
 
-@pytest.mark.parametrize("stage", ["generate", "read", "evaluate", "write", "total", "core", "figures", "growth"])
+def test_recheck_line_runs_check_twice_and_shows_the_changes(tiny_run):
+    line = next(ln for ln in tiny_run.splitlines() if ln.startswith("recheck"))
+    assert re.search(r"cold check \d+\.\d+ s, re-check after one exclusion \d+\.\d+ s", line), line
+    assert "changes shown" in line and re.search(r"exit codes [01], [01]", line), line
+
+
+@pytest.mark.parametrize("stage", ["generate", "read", "evaluate", "write", "total", "core", "figures", "growth",
+                                   "recheck"])
 def test_one_line_per_stage(tiny_run, stage):
     assert any(line.startswith(stage) for line in tiny_run.splitlines()), tiny_run
 

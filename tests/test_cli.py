@@ -136,11 +136,14 @@ def test_outputs_are_reproducible(demo_out, python_m_run):
             assert (out / name).read_bytes() == (demo_out / name).read_bytes(), name
 
 
-def test_check_command_writes_nothing(demo_round, capsys):
+def test_check_command_writes_only_its_cache(demo_round, capsys):
+    # check writes no outputs: only the cache folder (the previous check's summary) inside ROUND/out, the output
+    # folder score writes, marked as roundscore's; --no-cache changes nothing of that for a long-layout round.
     listing = sorted(p.name for p in demo_round.iterdir())
     assert main(["check", str(demo_round)]) == 0
     assert "valid" in capsys.readouterr().out
-    assert sorted(p.name for p in demo_round.iterdir()) == listing
+    assert sorted(p.name for p in demo_round.iterdir()) == sorted([*listing, "out"])
+    assert sorted(p.name for p in (demo_round / "out").iterdir()) == [".roundscore-cache", ".roundscore-output"]
 
 
 def test_no_command_prints_help(capsys):

@@ -47,8 +47,9 @@ def run_cli(*args: str, capsys=None) -> tuple[int, str]:
 
 
 def hash_tree(folder: Path) -> dict[str, str]:
+    """Every file of a round folder by its digest, but for ROUND/out (score's outputs, check's cache)."""
     return {str(p.relative_to(folder)): hashlib.sha256(p.read_bytes()).hexdigest()
-            for p in sorted(folder.rglob("*")) if p.is_file()}
+            for p in sorted(folder.rglob("*")) if p.is_file() and p.relative_to(folder).parts[0] != "out"}
 
 
 def make_hostile(round_dir: Path) -> None:

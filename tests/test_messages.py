@@ -42,8 +42,9 @@ sigma_pt = 2.0
 
 
 def hash_tree(folder: Path) -> dict[str, str]:
+    """Every file of a round folder by its digest, but for ROUND/out (score's outputs, check's cache)."""
     return {str(p.relative_to(folder)): hashlib.sha256(p.read_bytes()).hexdigest()
-            for p in sorted(folder.rglob("*")) if p.is_file()}
+            for p in sorted(folder.rglob("*")) if p.is_file() and p.relative_to(folder).parts[0] != "out"}
 
 
 def _form(folder: Path, lab: str, cells: dict[str, object]) -> Path:
@@ -268,7 +269,7 @@ def test_check_exits_1_when_a_check_fails_and_score_needs_strict(make_round, tmp
 def test_check_exits_0_when_every_check_passes(make_round, capsys):
     folder = make_round(LONG_TOML.format(extra="").replace("sigma_pt = 0.5", "sigma_pt = 5"), CHECK_ROWS)
     assert main(["check", str(folder)]) == 0
-    assert "The round file and results are valid; nothing was written." in capsys.readouterr().out
+    assert "The round file and results are valid; no outputs were written" in capsys.readouterr().out
 
 
 @pytest.mark.parametrize("refused, total, text", [

@@ -36,6 +36,9 @@ def register(sub: argparse._SubParsersAction) -> None:
                    help=f"the output formats to write, comma-separated, from {', '.join(FORMATS)} "
                         f"(default: ${FORMATS_VARIABLE}, else all); circulation.csv lists what was written")
     p.add_argument("--quiet", action="store_true", help="print nothing but errors")
+    p.add_argument("--no-cache", action="store_true",
+                   help="read every returned form again, not using or writing the input cache in the output "
+                        "folder (the outputs are the same either way)")
     p.set_defaults(func=run_score)
 
     d = sub.add_parser("demo", help="run the whole job on the bundled demo round",
@@ -63,6 +66,14 @@ def register(sub: argparse._SubParsersAction) -> None:
                        description="Read and evaluate the round as score would, print the summary and write "
                                    "nothing. Exits 1 when an item or u(x_pt) check fails, 2 on an error.")
     c.add_argument("round", help="round folder or its round.toml")
+    c.add_argument("--out", default=None,
+                   help="the round's output folder, where the input cache and the previous check's summary are "
+                        "kept (default: ROUND/out, as for score); no outputs are written there")
+    c.add_argument("--no-cache", action="store_true",
+                   help="read every returned form again, not using or writing the input cache")
+    c.add_argument("--changes", action="store_true",
+                   help="list every lab whose signal changed since the previous check of the round")
+    c.add_argument("--jobs", type=int, default=None, help="worker processes reading the forms (default: all cores)")
     c.set_defaults(func=run_check)
 
 
@@ -146,7 +157,7 @@ def run_score(args: argparse.Namespace) -> int:
     try:
         ev, outputs = run_round(rp, out, archive=args.archive, jobs=args.jobs, progress=bar,
                                 replace_archive=args.replace_archive, on_archive=stored.append,
-                                formats=args.formats)
+                                formats=args.formats, use_cache=not args.no_cache)
     finally:
         bar.close()
     return _report(ev, outputs, quiet=args.quiet, strict=args.strict, stored=stored)
@@ -230,17 +241,31 @@ def _check_forms_folder(rnd, out: Path) -> None:
 
 
 def run_check(args: argparse.Namespace) -> int:
-    from roundscore.pipeline import load_and_evaluate
+    from roundscore.commands.changes import changes_text, compare, previous_summary, store_summary
+    from roundscore.pipeline import check_round
 
-    ev = load_and_evaluate(args.round)
+    checked = check_round(args.round, out=args.out, use_cache=not args.no_cache, jobs=args.jobs)
+    ev = checked.evaluation
     print(summary_text(ev))
+    print()
+    place = checked.cache
+    if place is None:
+        print("Changes: not kept (the output folder is not roundscore's, or holds the round's inputs; give --out "
+              "a folder of its own)")
+        folder = None
+    else:
+        previous = previous_summary(place.existing(), ev.round.id)
+        print(changes_text(compare(previous, ev) if previous is not None else None, listed=args.changes))
+        folder = place.create()
+        store_summary(folder, ev)
     failed = ev.failed_checks
+    nothing = "no outputs were written" + (f" (the cache is kept in {folder})" if folder is not None else "")
     if failed:
         print(f"\nThe round file and results are valid, but {_checks(len(failed))} failed (listed above); "
-              "nothing was written.")
+              f"{nothing}.")
         print("roundscore: check: checks failed: " + "; ".join(failed), file=sys.stderr)
         return 1
-    print("\nThe round file and results are valid; nothing was written.")
+    print(f"\nThe round file and results are valid; {nothing}.")
     return 0
 
 

@@ -6,12 +6,15 @@ import functools
 from dataclasses import dataclass, replace
 from pathlib import Path
 
+import numpy as np
+
 from roundscore.errors import InputError, Problem, Place, is_text_file
 from roundscore.intake.roundfile import result_files
 from roundscore.model.inputs import Participant
 from roundscore.model.round import Round
 from roundscore.model.labcodes import LabCodeReader, clash_problems, lab_key
-from roundscore.model.table import ResultTable, SampleReceipt, table_frame
+from roundscore.model.table import COLUMNS, ResultTable, SampleReceipt, columns_of, frame_from_columns
+from roundscore.intake.cache import CachedForm, FileKey, InputCache, file_key, unchanged
 from roundscore.intake.validate import build_table, records_from_long, summarise_ambiguous, validate_records
 from roundscore.text import quote, too_long
 from roundscore.intake.forms import (INFO_SHEET, RESULTS_SHEET, form_decimal, form_receipt, lab_cell,
@@ -65,7 +68,8 @@ def _read_form(rnd: Round, path: Path):
     return recs, problems, warnings, form_reading(rnd, results, info, lab), receipts
 
 
-def read_results(rnd: Round, *, jobs: int | None = None, progress=None) -> ResultTable:
+def read_results(rnd: Round, *, jobs: int | None = None, progress=None, cache: InputCache | None = None,
+                 ) -> ResultTable:
     """All results of the round as one validated table.
 
     ``round.results`` names one long-layout table (CSV or workbook), or a
@@ -73,7 +77,12 @@ def read_results(rnd: Round, *, jobs: int | None = None, progress=None) -> Resul
     is collected before the import is refused. Forms are read and checked
     by ``jobs`` isolated worker processes (None = all cores); the table and
     the problems listed are the same for any ``jobs``; ``progress(stage,
-    done, total)`` follows the files read.
+    done, total)`` follows the files read. With ``cache``
+    (:class:`~roundscore.intake.cache.InputCache`) a returned form whose
+    content and reading settings are those of a cached one is not read
+    again, and what this read gave is kept for the cache's next save; the
+    table is the same with or without it (a long-layout table is always
+    read).
     """
     files = result_files(rnd)
     records: list = []
@@ -84,7 +93,7 @@ def read_results(rnd: Round, *, jobs: int | None = None, progress=None) -> Resul
     single_table = len(files) == 1 and not (Path(rnd.folder / rnd.results).is_dir()
                                             or any(ch in rnd.results for ch in "*?["))
     if not single_table:
-        return _read_forms(rnd, files, jobs=jobs, progress=progress)
+        return _read_forms(rnd, files, jobs=jobs, progress=progress, cache=cache)
     for f in files:
         shown = _shown(rnd, f)
         if single_table:
@@ -115,7 +124,8 @@ def read_results(rnd: Round, *, jobs: int | None = None, progress=None) -> Resul
                        readings=readings, receipts=receipts)
 
 
-def _read_forms(rnd: Round, files: list[Path], *, jobs: int | None, progress) -> ResultTable:
+def _read_forms(rnd: Round, files: list[Path], *, jobs: int | None, progress,
+                cache: InputCache | None = None) -> ResultTable:
     """A folder of returned forms: each read and validated in an isolated worker process, then joined.
 
     Each worker turns a form into validated row tuples where it read it
@@ -123,49 +133,92 @@ def _read_forms(rnd: Round, files: list[Path], *, jobs: int | None, progress) ->
     processes. Here the rows are joined into one frame, a lab code returned
     in two forms is reported as the duplicate :func:`build_table` reports
     within one file, and the rows are put in the table's order. The result
-    is the same for any ``jobs``.
+    is the same for any ``jobs``. A form the ``cache`` holds is taken from
+    it instead of being read; the forms read without a problem are handed
+    back to the cache (before any problem is raised, so fixing one form of
+    many reads only that one again).
     """
     from roundscore.intake.isolation import read_many
 
+    paths = [str(f) for f in files]
+    shown = [_shown(rnd, Path(p)) for p in paths]
+    forms = [p for p in paths if _is_form(Path(p))]
+    keys: dict[str, FileKey | None] = {}
+    cached: dict[str, CachedForm] = {}
+    if cache is not None:
+        for p, name in zip(paths, shown):
+            if _is_form(Path(p)):
+                keys[p] = key = file_key(p, name, cache.max_bytes)
+                got_form = cache.get(key)
+                if got_form is not None:
+                    cached[p] = got_form
+    to_read = [p for p in forms if p not in cached]
     report = None
     if progress:
         def report(done: int, total: int) -> None:
             progress("read forms", done, total)
-    paths = [str(f) for f in files]
-    forms = [p for p in paths if _is_form(Path(p))]
-    read = dict(zip(forms, read_many(forms, [RESULTS_SHEET, INFO_SHEET], jobs=jobs, limits=rnd.limits,
-                                     then=functools.partial(_form_rows, rnd), progress=report)))
+    read = dict(zip(to_read, read_many(to_read, [RESULTS_SHEET, INFO_SHEET], jobs=jobs, limits=rnd.limits,
+                                       then=functools.partial(_form_rows, rnd), progress=report)))
     problems: list[Problem] = []
     warnings: list[str] = []
     readings: list[tuple[str, str]] = list(round_reading(rnd))
-    rows: list[tuple] = []
+    segments: list[dict] = []
     places: dict[str, Place] = {}
     receipts: dict = {}
-    shown = [_shown(rnd, Path(p)) for p in paths]
+    kept: list[tuple[FileKey, CachedForm, int]] = []  # (key, form, segment index) of the forms read cleanly
     for p, name in zip(paths, shown):
         got = read.get(p)
-        if got is None:
+        hit = cached.get(p)
+        if hit is not None:
+            key = keys[p]
+            assert key is not None, "a cached form has a key"
+            columns = cache.rows_of(key)  # type: ignore[union-attr]  # cached forms come from a cache
+            form = hit
+        elif got is None:
             problems.append(Problem(message="not a submission workbook (.xlsx)", file=name,
                                     hint="the results folder holds returned forms (.xlsx) only"))
+            continue
         elif isinstance(got, _FormRows):
-            rows += got.rows
+            columns = columns_of(got.rows)
             problems += got.problems
-            warnings += got.warnings
-            readings += got.readings
-            if got.rows and got.receipt is not None:
-                receipts.setdefault(got.rows[0][0], got.receipt)
-            if got.rows and got.lab_place is not None:
-                places.setdefault(got.rows[0][0], got.lab_place)
+            form = CachedForm(warnings=tuple(got.warnings), readings=tuple(got.readings),
+                              lab_place=got.lab_place, receipt=got.receipt)
+            key = keys.get(p)
         else:  # a ReadFailure: refused, crashed, out of memory or timed out
             problems += [_with_file(q, name) for q in got.as_problems()]
+            continue
+        warnings += form.warnings
+        readings += form.readings
+        n = len(columns["lab"])
+        if n and form.receipt is not None:
+            receipts.setdefault(columns["lab"][0], form.receipt)
+        if n and form.lab_place is not None:
+            places.setdefault(columns["lab"][0], form.lab_place)
+        read_cleanly = hit is not None or (isinstance(got, _FormRows) and not got.problems)
+        if key is not None and read_cleanly and (hit is not None or unchanged(key)):
+            kept.append((key, form, len(segments)))
+        segments.append(columns)
     del read
+    merged = _joined(segments)
+    if cache is not None:
+        clean = merged if len(kept) == len(segments) else _joined([segments[i] for _, _, i in kept])
+        cache.keep([k for k, _, _ in kept], [f for _, f, _ in kept], clean,
+                   [len(segments[i]["lab"]) for _, _, i in kept])
+    del segments
     problems += clash_problems(places)
-    frame = table_frame(rows)
+    frame = frame_from_columns(merged)
     problems = summarise_ambiguous(problems + _duplicate_forms(frame))
     if problems:
         raise InputError(problems, summary="the results cannot be imported")
     return ResultTable(frame=frame, files=tuple(shown), warnings=tuple(warnings), readings=tuple(readings),
                        lab_places=places, receipts=dict(sorted(receipts.items())))
+
+
+def _joined(segments: list[dict]) -> dict:
+    """Columns of several forms, one after another (:data:`~roundscore.model.table.COLUMNS`)."""
+    if not segments:
+        return columns_of([])
+    return {c: np.concatenate([s[c] for s in segments]) for c in COLUMNS}
 
 
 def _duplicate_forms(frame) -> list[Problem]:

@@ -11,18 +11,23 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
+import numpy as np
 import pandas as pd
 
 from roundscore.errors import Place
 from roundscore.model.round import DecimalMark
 
-__all__ = ["ResultTable", "Record", "SampleReceipt", "COLUMNS", "table_frame"]
+__all__ = ["ResultTable", "Record", "SampleReceipt", "COLUMNS", "NUMBER_COLUMNS", "table_frame", "columns_of",
+           "frame_from_columns"]
 
 #: Columns of :attr:`ResultTable.frame`, in order.
 COLUMNS = (
     "lab", "measurand", "replicate", "status", "value", "text", "relation", "limit",
     "unit", "u", "U", "k", "method", "comment", "file", "sheet", "row", "unit_given", "factor",
 )
+#: The numeric columns and their dtypes; the others hold text or None.
+NUMBER_COLUMNS = {"replicate": "int64", "value": "float64", "limit": "float64", "u": "float64", "U": "float64",
+                  "k": "float64", "row": "int64", "factor": "float64"}
 
 
 @dataclass(slots=True, kw_only=True)
@@ -125,8 +130,26 @@ class ResultTable:
 
 def table_frame(rows: list[tuple]) -> pd.DataFrame:
     """The :attr:`ResultTable.frame` of validated rows (from :func:`validate_records`), in table order."""
-    frame = pd.DataFrame(rows, columns=list(COLUMNS))
-    frame = frame.astype({"replicate": "int64", "value": "float64", "limit": "float64",
-                          "u": "float64", "U": "float64", "k": "float64", "row": "int64",
-                          "factor": "float64"})
+    return frame_from_columns(columns_of(rows))
+
+
+def columns_of(rows: list[tuple]) -> dict[str, np.ndarray]:
+    """Validated row tuples as columns (:data:`COLUMNS`): numbers in their dtypes, text as object arrays."""
+    out: dict[str, np.ndarray] = {}
+    cols = list(zip(*rows)) if rows else [()] * len(COLUMNS)
+    for name, values in zip(COLUMNS, cols):
+        if name in NUMBER_COLUMNS:
+            out[name] = np.array(values, dtype=NUMBER_COLUMNS[name])
+        else:
+            a = np.empty(len(values), dtype=object)
+            a[:] = values
+            out[name] = a
+    return out
+
+
+def frame_from_columns(columns: dict[str, np.ndarray]) -> pd.DataFrame:
+    """The :attr:`ResultTable.frame` of columns in reading order (:func:`columns_of`, or the input cache's),
+    sorted by measurand, lab and replicate: the one constructor, so the table is the same however it was read."""
+    frame = pd.DataFrame({name: columns[name] for name in COLUMNS})
+    frame = frame.astype(NUMBER_COLUMNS)
     return frame.sort_values(["measurand", "lab", "replicate"], kind="stable").reset_index(drop=True)

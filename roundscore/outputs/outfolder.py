@@ -46,7 +46,7 @@ from typing import Literal
 from roundscore.errors import RoundscoreError
 
 __all__ = ["MARKER_NAME", "MARKER_FORMAT", "OutputFolderError", "Marker", "read_marker", "check_target",
-           "atomic_folder", "recover"]
+           "atomic_folder", "recover", "mark_folder"]
 
 #: The marker file's name inside every output folder roundscore writes.
 MARKER_NAME = ".roundscore-output"
@@ -97,6 +97,15 @@ def read_marker(folder: Path) -> Marker | None:
         return None
     return Marker(format=fmt, state=state, target=str(data.get("target", "")), kind=str(data.get("kind", "")),
                   files=frozenset(files))
+
+
+def mark_folder(folder: Path, *, kind: str, files: Iterable[str] = ()) -> None:
+    """Give a folder roundscore just created its complete marker, listing ``files`` (all it may hold), so
+    that :func:`check_target` takes it, and an output folder holding it, for ours (e.g. the input cache)."""
+    part = Path(folder) / (MARKER_NAME + ".new")
+    part.write_text(_marker_text(state="complete", target=Path(folder).name, kind=kind, files=files),
+                    encoding="utf-8")
+    os.replace(part, Path(folder) / MARKER_NAME)
 
 
 def _foreign(folder: Path, marker: Marker, *, limit: int = 5) -> list[Path]:
