@@ -22,6 +22,7 @@ __all__ = ["ResultTable", "Record", "SampleReceipt", "COLUMNS", "table_frame"]
 COLUMNS = (
     "lab", "measurand", "replicate", "status", "value", "text", "relation", "limit",
     "unit", "u", "U", "k", "method", "comment", "file", "sheet", "row", "unit_given", "factor",
+    "item", "category",
 )
 
 
@@ -48,6 +49,8 @@ class Record:
     k: object = None
     method: object = None
     comment: object = None
+    #: The test item of a qualitative result (the optional ``item`` column); ignored for a number.
+    item: object = None
     #: The decimal mark declared for this record's text cells ("comma", "point"), or None for the round's.
     decimal: DecimalMark | None = None
     #: Field name → (0-based column index, the column's header as in the file), shared by the rows of a
@@ -95,7 +98,11 @@ class ResultTable:
         entered in another unit keeps that unit in ``unit_given`` and the
         factor it was multiplied by in ``factor`` (``unit_given`` None and
         ``factor`` 1 when it was entered in the measurand's unit), so the
-        evaluation can record every conversion.
+        evaluation can record every conversion. A result of a nominal or
+        ordinal measurand (:mod:`roundscore.model.qualitative`) has status
+        "category": its category in ``category``, the word as typed in
+        ``text``, its test item in ``item`` ("" when the round has none);
+        both are None on the rows of numbers.
     files : tuple of str
         The files read.
     warnings : tuple of str
