@@ -107,7 +107,7 @@ def qualitative_measurand(c: Any, name: str, raw: dict[str, Any]) -> Qualitative
     """``[measurand.NAME]`` with ``kind`` nominal or ordinal → :class:`QualitativeSettings` (None after a problem
     that leaves nothing to build)."""
     t = f"measurand.{name}"
-    kind = raw.get("kind")
+    kind: QualitativeKind = raw.get("kind")  # type: ignore[assignment]  # narrowed by the check below
     if not is_choice(kind, QualitativeKind):
         c.bad(f"{t}.kind", kind, options_text(QualitativeKind, last=" or ") + " (leave kind out for a number)")
         return None

@@ -319,7 +319,8 @@ def validate_records(rnd: Round, records: Iterable[Record]) -> tuple[list[tuple]
             continue
         if m is None:
             problems.append(_problem(
-                f"unknown measurand; the round has: {shown_list({**known, **rnd.qualitative})}", rec, "measurand", rec.measurand,
+                f"unknown measurand; the round has: {shown_list({**known, **rnd.qualitative})}", rec, "measurand",
+                rec.measurand,
                 "correct the measurand's name, or add it to round.toml ([measurand.NAME])"))
             continue
         rep = rec.replicate
