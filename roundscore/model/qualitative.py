@@ -27,7 +27,9 @@ from collections.abc import Mapping
 from typing import Literal
 
 __all__ = ["QualitativeKind", "QualitativeMethod", "QualitativeSettings", "normalise", "NEGATIVE_WORDS",
-           "DEFAULT_WARNING_STEPS", "DEFAULT_ACTION_STEPS", "MAX_CATEGORIES", "QUALITATIVE_RESULT"]
+           "DEFAULT_WARNING_STEPS", "DEFAULT_ACTION_STEPS", "MAX_CATEGORIES", "QUALITATIVE_RESULT",
+           "QUALITATIVE_COLUMNS", "QUALITATIVE_SUMMARY_COLUMNS", "DISTRIBUTION_COLUMNS", "QUALITATIVE_METHODS_COLUMNS",
+           "Agreement", "AGREEMENTS", "QualitativeItem", "WRONG_AGREEMENTS"]
 
 #: ``kind`` of a qualitative measurand (a measurand without ``kind`` is quantitative).
 QualitativeKind = Literal["nominal", "ordinal"]
@@ -114,3 +116,49 @@ class QualitativeSettings:
         """One line for the settings tables: kind and categories."""
         order = " < " if self.kind == "ordinal" else ", "
         return f"{self.kind}: {order.join(self.categories)}"
+
+
+#: ``qualitative.csv`` (fixed by contract): one row per lab × measurand × item.
+QUALITATIVE_COLUMNS = ("lab", "measurand", "item", "reported", "assigned", "agreement", "deviation", "signal", "note")
+#: ``qualitative_summary.csv`` (fixed by contract): one row per measurand × item; the interval is Wilson's
+#: (roundscore.stats.qualitative.INTERVAL_METHOD) at ``[round] confidence``.
+QUALITATIVE_SUMMARY_COLUMNS = ("measurand", "item", "assigned", "n", "agreeing", "proportion", "ci_low", "ci_high",
+                               "false_positives", "false_negatives")
+#: ``qualitative_distribution.csv``: how many labs reported each category of each item (the figures' data).
+DISTRIBUTION_COLUMNS = ("measurand", "item", "category", "order", "count", "proportion", "assigned")
+#: ``qualitative_methods.csv``: agreement by method group, with the test of independence used.
+QUALITATIVE_METHODS_COLUMNS = ("measurand", "item", "groups", "test", "statistic", "df", "p_value", "note")
+#: The ``agreement`` of a result with the assigned category: "agrees"; "false positive" (the assigned category
+#: is the negative one and the lab reported another); "false negative" (the lab reported the negative category
+#: where another was assigned); "disagrees" (another wrong category: a wrong identification, a wrong grade).
+Agreement = Literal["agrees", "false positive", "false negative", "disagrees"]
+AGREEMENTS: tuple[str, ...] = ("agrees", "false positive", "false negative", "disagrees")
+#: The agreements that are wrong results (a run of them is a history trend: roundscore.history.rules).
+WRONG_AGREEMENTS: tuple[str, ...] = AGREEMENTS[1:]
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class QualitativeItem:
+    """The assigned category of one measurand × item and how it was set (kept in the evaluation's details).
+
+    Attributes
+    ----------
+    measurand, item : str
+    assigned : str or None
+        The assigned category (None: it could not be set; no signals then).
+    source : str
+        In words, where it came from ("stated in the round file", "median category of 12 labs").
+    n : int
+        Results used (reported by labs not excluded).
+    mode : str or None
+        The most frequent category among them (None on a tie) and ``mode_agreement`` the share reporting it.
+    mode_agreement : float
+    """
+
+    measurand: str
+    item: str
+    assigned: str | None
+    source: str
+    n: int
+    mode: str | None
+    mode_agreement: float
