@@ -101,7 +101,8 @@ def qualitative_figure(name: str, title: str, kind: str, dist: pd.DataFrame, row
                         caption=f"Categories reported ({order}) per test item; the assigned category is outlined "
                                 "and marked ▼ assigned.")
     marks: dict[str, list[tuple[float, float, str]]] = {}
-    for r in rows.itertuples():
-        if r.reported and (r.item, r.reported) in starts:
-            marks.setdefault(str(r.lab), []).append((*starts[(r.item, r.reported)], str(r.signal)))
+    for lab, item, reported, signal in zip(rows["lab"], rows["item"], rows["reported"], rows["signal"]):
+        spot = starts.get((str(item), str(reported)))
+        if reported and spot is not None:
+            marks.setdefault(str(lab), []).append((*spot, str(signal)))
     return QualitativeFigure(figure=svg, marks=marks)

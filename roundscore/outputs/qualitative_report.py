@@ -142,7 +142,7 @@ def lab_section(ev, parts: QualitativeParts | None, lab: str) -> Section | None:
                   Cell(text=str(r.assigned)), Cell(text=str(r.agreement)), Cell(text=_steps(r.deviation)),
                   _signal(str(r.signal), words), Cell(text=str(r.note))) for r in mine.itertuples())
     blocks: list[Block] = [Paragraph(text=RULES), Table(columns=_LAB, rows=rows, key_columns=2)]
-    for name, fig in (parts.figures.items() if parts is not None else ()):
+    for fig in (parts.figures.values() if parts is not None else ()):
         blocks.append(Figure(svg=fig.for_lab(lab, words), title=fig.figure.title,
                              caption=fig.figure.caption + " Your results are ringed."))
     return Section(heading=Heading(text="Your qualitative results", level=2, anchor="your-qualitative"),
