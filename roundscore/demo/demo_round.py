@@ -218,7 +218,7 @@ def make_demo_round(folder: str | Path, *, seed: int = DEMO_SEED) -> Path:
     folder.mkdir(parents=True, exist_ok=True)
     rng = np.random.default_rng(seed)
     labs = [f"K{i:02d}" for i in range(1, len(_NAMES) + 1)]
-    rows = []
+    rows: list[list[object]] = []
     for name, (true, s_L, s_r, d) in _MEASURANDS.items():
         bias = rng.normal(0.0, s_L, len(labs))
         for li, lab in enumerate(labs):
