@@ -17,6 +17,12 @@ value's uncertainty already holds the between-bottle spread. Stability
 bottles kept frozen against bottles kept two weeks at 40 °C (with the
 uncertainty of each mean, so the expanded criterion is used).
 
+Two qualitative measurands share the round: *Salmonella* in 25 g (nominal: detected / not detected) on
+two test items, KM-14S (spiked) and KM-14B (a blank), with one false negative (K09), one false positive
+(K22), results typed as "pos", "+" or "ND" (mapped by the round file's aliases) and two methods (culture
+and real-time PCR); and a graded sand-and-grit test (ordinal: none < trace < some < much) whose assigned
+grade is the participants' median, with one lab (K26) two grades off.
+
 ``python rounds/make_demo.py`` rewrites ``rounds/skw-2026-14`` from this
 module; a test checks that the committed files equal what it makes.
 """
@@ -101,6 +107,20 @@ assigned = "median"
 sigma_pt = "robust-sd"
 score = "z-prime"
 decimals = 2
+
+[measurand.salmonella]
+kind = "nominal"
+label = "Salmonella spp. in 25 g"
+categories = ["detected", "not detected"]
+assigned = { "KM-14S" = "detected", "KM-14B" = "not detected" }
+aliases = { "+" = "detected", "pos" = "detected", "-" = "not detected", "ND" = "not detected" }
+
+[measurand.grit]
+kind = "ordinal"
+label = "Sand and grit (graded by sieving)"
+categories = ["none", "trace", "some", "much"]
+assigned = "median"
+deviation_signals = { warning = 1, action = 2 }
 """
 
 # name: (true value, between-lab SD, within-lab SD, decimals)
@@ -168,13 +188,37 @@ def _write_item_tables(folder: Path, seed: int) -> None:
                                     "" if u is None else _fmt(u, d + 1)])
 
 
+def _qualitative_rows(labs: list[str], seed: int) -> list[list[object]]:
+    """The salmonella and grit results, from their own generator (the numbers' results are not disturbed)."""
+    rng = np.random.default_rng([seed, 3])
+    rows: list[list[object]] = []
+    for li, lab in enumerate(labs):
+        method = "real-time PCR" if li % 3 == 1 else "culture"
+        for item, truth in (("KM-14S", "detected"), ("KM-14B", "not detected")):
+            word = truth
+            if (lab, item) == ("K09", "KM-14S"):
+                word = "not detected"  # a false negative
+            if (lab, item) == ("K22", "KM-14B"):
+                word = "detected"  # a false positive
+            if lab == "K05":
+                word = {"detected": "pos", "not detected": "ND"}[word]  # other spellings, mapped by aliases
+            if lab == "K17":
+                word = {"detected": "+", "not detected": "Not Detected"}[word]
+            rows.append([lab, "salmonella", 1, word, "", "", "", "", method, item])
+        grade = ["none", "trace", "some"][int(rng.choice(3, p=[0.15, 0.7, 0.15]))]
+        if lab == "K26":
+            grade = "much"  # two grades above the median
+        rows.append([lab, "grit", 1, grade, "", "", "", "", "", ""])
+    return rows
+
+
 def make_demo_round(folder: str | Path, *, seed: int = DEMO_SEED) -> Path:
     """Write the demo round (round.toml, results.csv, participants.csv, item tables) into ``folder``."""
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
     rng = np.random.default_rng(seed)
     labs = [f"K{i:02d}" for i in range(1, len(_NAMES) + 1)]
-    rows = []
+    rows: list[list[object]] = []
     for name, (true, s_L, s_r, d) in _MEASURANDS.items():
         bias = rng.normal(0.0, s_L, len(labs))
         for li, lab in enumerate(labs):
@@ -207,10 +251,11 @@ def make_demo_round(folder: str | Path, *, seed: int = DEMO_SEED) -> Path:
                     U_txt, k_txt = _fmt(max(1.6 * s_L, 0.004), 3), "2"
                 if name in ("cadmium", "lead") and lab == "K15":
                     text = text.replace(".", ",")  # decimal comma, as some labs type it
-                rows.append([lab, name, rep, text, unit, u_txt, U_txt, k_txt, method])
+                rows.append([lab, name, rep, text, unit, u_txt, U_txt, k_txt, method, ""])
+    rows += _qualitative_rows(labs, seed)
     with open(folder / "results.csv", "w", newline="", encoding="utf-8") as fh:
         w = csv.writer(fh, lineterminator="\n")
-        w.writerow(["lab", "measurand", "replicate", "value", "unit", "u", "U", "k", "method"])
+        w.writerow(["lab", "measurand", "replicate", "value", "unit", "u", "U", "k", "method", "item"])
         w.writerows(rows)
     with open(folder / "participants.csv", "w", newline="", encoding="utf-8") as fh:
         w = csv.writer(fh, lineterminator="\n")

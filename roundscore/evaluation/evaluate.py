@@ -21,6 +21,7 @@ from roundscore.errors import StatisticsError
 from roundscore.evaluation import consensus
 from roundscore.evaluation.items import apply_item_checks
 from roundscore.evaluation.precision import precision_stage
+from roundscore.evaluation.qualitative import qualitative_stage
 from roundscore.model.evaluation import (AUDIT_COLUMNS, SCORE_COLUMNS, STATISTICS_COLUMNS, MeasurandResult,
                                          RoundEvaluation, lab_order_key)
 from roundscore.model.inputs import Participant
@@ -416,6 +417,13 @@ def evaluate(rnd: Round, table: ResultTable, participants: dict[str, Participant
     # STAGE: precision (ISO 5725-2) and method groups — adds extras, stage_notes, details and audit rows here.
     precision_stage(rnd, table, results).merge_into(extras=extras, stage_notes=stage_notes, details=details,
                                                     audit=audit)
+    # STAGE: qualitative — nominal and ordinal measurands (roundscore.evaluation.qualitative).
+    qual = qualitative_stage(rnd, table, all_labs)
+    extras.update(qual.extras)
+    stage_notes.update(qual.notes)
+    audit += qual.audit
+    if qual.items:
+        details["qualitative"] = qual.items
     audit_df = pd.DataFrame(audit, columns=list(AUDIT_COLUMNS))
     return RoundEvaluation(
         round=rnd, table=table, participants=participants, measurands=results, scores=scores,

@@ -22,9 +22,11 @@ from typing import Any
 from roundscore.errors import Problem, RoundFileError, shown_value
 from roundscore.choices import is_choice, options_text
 from roundscore.intake.consensus_keys import reference_value, subset_assigned
+from roundscore.intake.qualitative_keys import QUALITATIVE_ONLY_KEYS, qualitative_measurand
 from roundscore.model.items import ItemConsequence, StabilityChoice
 from roundscore.model.labcodes import read_lab_code
 from roundscore.model.limits import DEFAULT_LIMITS, ReadLimits
+from roundscore.model.qualitative import QualitativeSettings
 from roundscore.model.round import (LIMIT_KEYS, MAX_FORM_REPLICATES, MEASURAND_KEYS, ROUND_KEYS, AssignedMethod,
                                     DecimalMark, Exclusion, MeasurandSettings, OutlierAction, Paper, Round, ScoreName,
                                     SigmaMethod, SigmaSpec, UnknownLabs, limit_range)
@@ -203,7 +205,8 @@ def _archive_file(c: _Checker, folder: Path, value: str | None) -> Path | None:
     return p if p.is_absolute() else folder / p
 
 
-def _measurand(c: _Checker, folder: Path, name: str, raw: object) -> MeasurandSettings | None:
+def _measurand(c: _Checker, folder: Path, name: str, raw: object
+               ) -> MeasurandSettings | QualitativeSettings | None:
     t = f"measurand.{name}"
     why = too_long("measurand", name) or (
         "it holds control characters (escape sequences, line breaks, tabs)" if _has_control(name) else None)
@@ -214,6 +217,12 @@ def _measurand(c: _Checker, folder: Path, name: str, raw: object) -> MeasurandSe
     if not isinstance(raw, dict):
         c.bad(t, raw, "a table of keys (unit, assigned, sigma_pt, ...)")
         return None
+    if raw.get("kind", "quantitative") != "quantitative":  # nominal or ordinal (roundscore.intake.qualitative_keys)
+        return qualitative_measurand(c, name, raw)
+    for key in QUALITATIVE_ONLY_KEYS:
+        if key in raw:
+            c.bad(f"{t}.{key}", raw[key], "a key of a qualitative measurand only: add kind = \"nominal\" or "
+                  "\"ordinal\" (or leave the key out)")
     c.unknown(f"[{t}] ", raw, MEASURAND_KEYS)
     unit = c.text(f"{t}.unit", raw.get("unit"), required=True, limit="unit") or ""
     if unit_text_problem(unit) is not None:
@@ -400,6 +409,7 @@ def load_round(path: str | Path) -> Round:
     archive_text = c.text("round.archive", r.get("archive"))
     measurands_raw = data.get("measurand")
     measurands: dict[str, MeasurandSettings] = {}
+    qualitative: dict[str, QualitativeSettings] = {}
     if not isinstance(measurands_raw, dict) or not measurands_raw:
         c.problems.append(Problem(message=f"{shown}: at least one [measurand.NAME] table is required"))
     elif len(measurands_raw) > MAX_MEASURANDS:
@@ -409,13 +419,15 @@ def load_round(path: str | Path) -> Round:
     else:
         for name, raw in measurands_raw.items():
             m = _measurand(c, folder, name, raw)
-            if m is not None:
+            if isinstance(m, QualitativeSettings):
+                qualitative[name] = m
+            elif m is not None:
                 measurands[name] = m
     for a, b in youden:
         for name in (a, b):
             if name not in measurands:
                 c.bad("round.youden", name, "names of measurands in this file")
-    exclusions = _exclusions(c, data.get("exclude", []), measurands)
+    exclusions = _exclusions(c, data.get("exclude", []), {**measurands, **qualitative})
     limits = _limits(c, data.get("limits", {}))
     if r.get("outliers") == "keep" and r.get("stragglers") == "exclude":
         c.bad("round.stragglers", "exclude",
@@ -462,6 +474,7 @@ def load_round(path: str | Path) -> Round:
         exclusions=exclusions,
         limits=limits,
         warnings=tuple(c.warnings),
+        qualitative=qualitative,
     )
     if c.problems:
         raise with_warnings(RoundFileError(c.problems, summary=f"{shown} has mistakes"), c.warnings)

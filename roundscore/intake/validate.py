@@ -17,6 +17,7 @@ import numpy as np
 
 from roundscore.errors import InputError, Problem, Place, cell_ref, is_text_file, place, sheet_cell, shown_value
 from roundscore.intake.cells import HINT_DECLARE, HINT_NUMBER, CellError, parse_cell
+from roundscore.intake.qualitative import QualitativeRows
 from roundscore.intake.xlsx import SheetRows
 from roundscore.model.labcodes import clash_problems, read_lab_code
 from roundscore.model.round import DecimalMark, Round
@@ -30,7 +31,7 @@ __all__ = ["build_table", "validate_records", "records_from_long", "cell_label",
 
 #: Columns of the long layout (required and optional).
 REQUIRED = ("lab", "measurand", "replicate", "value")
-OPTIONAL = ("unit", "u", "U", "k", "method", "comment")
+OPTIONAL = ("unit", "u", "U", "k", "method", "comment", "item")
 #: Columns whose name is matched exactly (``u`` and ``U`` differ); the rest ignore case.
 _CASE_SENSITIVE = {"u", "U"}
 #: Largest replicate number: far more than any round asks for (a precision experiment may have thousands),
@@ -267,6 +268,7 @@ def validate_records(rnd: Round, records: Iterable[Record]) -> tuple[list[tuple]
     known = rnd.measurands
     lower = {k.lower(): k for k in known}
     labels: dict[tuple[type, object], str | None] = {}
+    qualitative = QualitativeRows(rnd, problems, _problem)
 
     def label(v: object) -> str | None:
         key = (type(v), v)
@@ -313,9 +315,12 @@ def validate_records(rnd: Round, records: Iterable[Record]) -> tuple[list[tuple]
         m = known.get(name)
         if m is None:
             m = known.get(lower.get(name.lower(), ""))
+        if m is None and qualitative.add(rec, lab, name, label):  # a nominal or ordinal measurand's result
+            continue
         if m is None:
             problems.append(_problem(
-                f"unknown measurand; the round has: {shown_list(known)}", rec, "measurand", rec.measurand,
+                f"unknown measurand; the round has: {shown_list({**known, **rnd.qualitative})}", rec, "measurand",
+                rec.measurand,
                 "correct the measurand's name, or add it to round.toml ([measurand.NAME])"))
             continue
         rep = rec.replicate
@@ -388,8 +393,9 @@ def validate_records(rnd: Round, records: Iterable[Record]) -> tuple[list[tuple]
             lab, m.name, replicate, cell.kind, value, _decimal_scale(cell.text, f),
             cell.relation, limit, m.unit, u * f, U * f, k,
             bounded("method", rec.method, "method", rec), bounded("comment", rec.comment, "comment", rec),
-            rec.file, rec.sheet, rec.row, unit if unit != m.unit else None, f,
+            rec.file, rec.sheet, rec.row, unit if unit != m.unit else None, f, None, None,
         ))
+    out += qualitative.rows
     problems.sort(key=_reading_order)
     return out, problems
 

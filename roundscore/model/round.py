@@ -14,6 +14,7 @@ from typing import Any, Literal
 from roundscore.choices import options, options_text
 from roundscore.model.items import ItemConsequence, StabilityChoice
 from roundscore.model.limits import DEFAULT_LIMITS, LIMIT_MAX, ReadLimits
+from roundscore.model.qualitative import QualitativeKind, QualitativeMethod, QualitativeSettings
 from roundscore.model.scores import SCORE_NAMES, ScoreName
 from roundscore.model.signals import Words
 
@@ -32,7 +33,7 @@ __all__ = [
     "ScoreName",
     "ROUND_KEYS",
     "MEASURAND_KEYS",
-    "LIMIT_KEYS",
+    "LIMIT_KEYS", "QUALITATIVE_ASSIGNED", "QualitativeSettings",
     "limit_range",
 ]
 
@@ -120,7 +121,23 @@ MEASURAND_KEYS: dict[str, str] = {
     "item_checks": f"{options_text(ItemConsequence, last=' or ')} (default 'uncertainty')",
     "stability_criterion": f"{options_text(StabilityChoice, last=' or ')} (default 'auto': expanded when the "
                            "table gives u)",
+    # Qualitative measurands (roundscore.model.qualitative; read by roundscore.intake.qualitative_keys).
+    "kind": f"{options_text(QualitativeKind, last=' or ')} for a qualitative measurand (default: quantitative); "
+            "such a measurand takes label, categories, assigned, items, aliases, negative, deviation_signals",
+    "categories": "list of text (kind nominal or ordinal, required): the categories a result may take, from "
+                  "lowest to highest for ordinal",
+    "items": "list of text (qualitative): the test items' codes (default: the keys of assigned, else any item)",
+    "aliases": "{ \"+\" = \"detected\", \"ND\" = \"not detected\" } (qualitative): other spellings of a "
+               "category (case and spaces are ignored)",
+    "negative": "a category (qualitative): the one meaning absent, for false positives and negatives (default: "
+                "the category 'not detected', 'negative', 'absent' or 'not found' when there is one)",
+    "deviation_signals": "{ warning = 1, action = 2 } (ordinal): categories of deviation from which a warning "
+                         "and an action signal are given (default 1 and 2)",
 }
+#: What ``assigned`` holds for a qualitative measurand (MEASURAND_KEYS["assigned"] is the quantitative text).
+QUALITATIVE_ASSIGNED = (f"a category, {options_text(QualitativeMethod, last=' or ')} (from the participants; "
+                        "median for ordinal only), or { \"ITEM\" = category or method, ... } per test item "
+                        "(default: median for ordinal; required for nominal)")
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -239,6 +256,9 @@ class Round:
     exclusions: tuple[Exclusion, ...] = field(default=())
     limits: ReadLimits = DEFAULT_LIMITS
     warnings: tuple[str, ...] = field(default=())
+    #: The nominal and ordinal measurands (``kind``), by name; not in :attr:`measurands`, which holds the
+    #: quantitative ones only, so everything scoring numbers reads those alone.
+    qualitative: dict[str, QualitativeSettings] = field(default_factory=dict)
 
     def settings_dict(self) -> dict[str, Any]:
         """A plain, JSON-ready summary of the settings (for workbooks and the archive)."""
@@ -256,6 +276,11 @@ class Round:
                 "consensus_labs": list(m.consensus_labs) if m.consensus_labs is not None else None,
                 "reference": list(m.reference) if m.reference is not None else None,
             }
+        for q in self.qualitative.values():
+            out[f"measurand.{q.name}"] = {"kind": q.kind, "categories": list(q.categories),
+                                          "assigned": q.assigned, "assigned_items": dict(q.assigned_items),
+                                          "items": list(q.items), "negative": q.negative,
+                                          "deviation_signals": [q.warning_steps, q.action_steps]}
         out["exclusions"] = [{"lab": e.lab, "measurand": e.measurand, "reason": e.reason, "scored": e.scored}
                              for e in self.exclusions]
         return out

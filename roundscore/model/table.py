@@ -24,6 +24,7 @@ __all__ = ["ResultTable", "Record", "SampleReceipt", "COLUMNS", "NUMBER_COLUMNS"
 COLUMNS = (
     "lab", "measurand", "replicate", "status", "value", "text", "relation", "limit",
     "unit", "u", "U", "k", "method", "comment", "file", "sheet", "row", "unit_given", "factor",
+    "item", "category",
 )
 #: The numeric columns and their dtypes; the others hold text or None.
 NUMBER_COLUMNS = {"replicate": "int64", "value": "float64", "limit": "float64", "u": "float64", "U": "float64",
@@ -53,6 +54,8 @@ class Record:
     k: object = None
     method: object = None
     comment: object = None
+    #: The test item of a qualitative result (the optional ``item`` column); ignored for a number.
+    item: object = None
     #: The decimal mark declared for this record's text cells ("comma", "point"), or None for the round's.
     decimal: DecimalMark | None = None
     #: Field name → (0-based column index, the column's header as in the file), shared by the rows of a
@@ -100,7 +103,11 @@ class ResultTable:
         entered in another unit keeps that unit in ``unit_given`` and the
         factor it was multiplied by in ``factor`` (``unit_given`` None and
         ``factor`` 1 when it was entered in the measurand's unit), so the
-        evaluation can record every conversion.
+        evaluation can record every conversion. A result of a nominal or
+        ordinal measurand (:mod:`roundscore.model.qualitative`) has status
+        "category": its category in ``category``, the word as typed in
+        ``text``, its test item in ``item`` ("" when the round has none);
+        both are None on the rows of numbers.
     files : tuple of str
         The files read.
     warnings : tuple of str

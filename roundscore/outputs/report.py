@@ -51,6 +51,7 @@ from roundscore.outputs.workbook_base import VALUE_COLUMNS
 from roundscore.outputs.figures import (FIGURES_MAX_MEASURANDS, RoundFigures, SvgFigure, figures_per_measurand,
                                         round_figures)
 from roundscore.outputs.strips import ScoreStrip, score_strip, strip_legend
+from roundscore.outputs import qualitative_report
 
 __all__ = ["write_report", "report_html", "lab_page_html", "report_document", "lab_document", "render_html",
            "guidance_section", "ReportParts", "report_parts", "lab_file_name",
@@ -199,6 +200,8 @@ class ReportParts:
     full_figures: bool
     figures_note: str
     guidance: Section
+    #: The qualitative measurands' figures (roundscore.outputs.qualitative_report), drawn once.
+    qualitative: qualitative_report.QualitativeParts | None = None
 
 
 def full_lab_figures(n_labs: int, n_measurands: int) -> bool:
@@ -254,7 +257,8 @@ def report_parts(ev, figures: RoundFigures | None = None) -> ReportParts:
                 f"laboratories and {n_meas} measurands they are left out of this page to keep it small.")
     return ReportParts(figures=figures, heading=heading_, lab_heading=lab_heading, statistics=stats,
                        strips=_strips(ev), full_figures=full, figures_note=note,
-                       guidance=guidance_section(ev.round.words))
+                       guidance=guidance_section(ev.round.words),
+                       qualitative=qualitative_report.qualitative_parts(ev))
 
 
 def lab_records(ev, table: str, labs: Sequence[str]) -> dict[str, list[dict[str, Any]]]:
@@ -449,6 +453,9 @@ def report_document(ev, parts: ReportParts | None = None) -> Document:
         _frame_table(ev, methods, decimals={"p_value": 4, "p_adjusted": 4, "f_p_value": 4})
         if methods is not None else
         Paragraph(text="No method-group comparison in this evaluation.", style="note")]))
+    qual = qualitative_report.report_section(ev, parts.qualitative)  # nominal and ordinal measurands
+    if qual is not None:
+        sections.append(qual)
     sections.append(_section("scores", "Every laboratory's scores", [*_score_matrix(ev), *_score_detail(ev)]))
     sections.append(_section("audit", "Audit trail: exclusions and decisions",
                              [_frame_table(ev, ev.audit, key_columns=2)] if len(ev.audit) else
@@ -534,6 +541,9 @@ def lab_document(ev, parts: ReportParts, lab: str, *, scores: list[dict[str, Any
         parts.guidance,
         _section("where-you-stand", "Where you stand", stand),
     ]
+    qual = qualitative_report.lab_section(ev, parts.qualitative, lab)  # nominal and ordinal measurands
+    if qual is not None:
+        blocks.insert(-2, qual)
     if per:
         blocks.append(_section("in-detail", "In detail", [
             Paragraph(text="The round report's figures with your laboratory marked; other laboratories appear "
