@@ -122,9 +122,9 @@ def write_outputs(ev: RoundEvaluation, folder: Path, *, history=None,
     Each kind of output is a writer of :data:`roundscore.outputs.writers.WRITERS` (``formats``: only the
     writers of these formats, e.g. ``("csv", "xlsx")``; None: ``$ROUNDSCORE_FORMATS``, else all). The CSV
     tables, the summary workbook and the lab sheets are independent files, written by ``jobs`` worker
-    processes (None = all cores; 1 = here, one after another); then the report. Every file depends only on the evaluation, so the outputs are
-    byte-identical for any ``jobs``. ``progress(stage, done, total)`` is called as the lab sheets are
-    finished (and by the report's stages). ``history(lab)`` gives a lab's archived rounds for its sheet.
+    processes (None = all cores; 1 = here, one after another); then the report. Every file depends only on
+    the evaluation, so the outputs are byte-identical for any ``jobs``. ``progress(stage, done, total)`` is
+    called as the lab sheets are finished (and by the report's stages). ``history(lab)`` gives a lab's archived rounds for its sheet.
     """
     options = WriteOptions(history=history, jobs=jobs, progress=progress)
     return write_with(writers_for(formats), ev, folder, options)

@@ -107,7 +107,8 @@ def summary_text(ev: RoundEvaluation) -> str:
     for name, m in ev.measurands.items():
         d = m.settings.decimals  # the measurand's decimals (uncertainties one more); else significant digits
         lines.append(
-            f"  {t(name):<14}{m.p:>4}  {shown_number(m.assigned, d, '.5g'):>12} {shown_number(m.u_assigned, d, '.3g', 1):>10} "
+            f"  {t(name):<14}{m.p:>4}  {shown_number(m.assigned, d, '.5g'):>12} "
+            f"{shown_number(m.u_assigned, d, '.3g', 1):>10} "
             f"{shown_number(m.sigma_pt, d, '.4g', 1):>10} {score_symbol(m.settings.score):<8}"
             + "".join(f"{int(counts.get((name, s), 0)):>4}" for s in SIGNALS))
     lines.append(f"  {signal_legend_text()}")

@@ -49,11 +49,11 @@ def data_span(v: np.ndarray) -> tuple[float, float]:
 
 
 #: The value axis of a score chart (common practice, chosen here; the workbooks' charts and the ranked figure of
-#: the report and lab pages): ±(action limit + 1), z-like ±4 and En ±2, widened to the :data:`AXIS_PERCENTILE` th percentile of |score| (the order statistic at or below it, so one
-#: gross error among a lab's five scores does not count as the bulk) rounded up when the bulk of the scores needs
-#: more, never past :data:`AXIS_CAP` times the base (z-like ±8, En ±4). A score beyond the axis is drawn at
-#: its edge and labelled with its true value, so one gross error (a decimal slip, z ≈ 6504) does not flatten
-#: every other bar.
+#: the report and lab pages): ±(action limit + 1), z-like ±4 and En ±2, widened to the :data:`AXIS_PERCENTILE`
+#: th percentile of |score| (the order statistic at or below it, so one gross error among a lab's five scores
+#: does not count as the bulk) rounded up when the bulk of the scores needs more, never past :data:`AXIS_CAP`
+#: times the base (z-like ±8, En ±4). A score beyond the axis is drawn at its edge and labelled with its true
+#: value, so one gross error (a decimal slip, z ≈ 6504) does not flatten every other bar.
 AXIS_PERCENTILE = 95
 AXIS_CAP = 2
 
