@@ -124,7 +124,8 @@ def write_outputs(ev: RoundEvaluation, folder: Path, *, history=None,
     tables, the summary workbook and the lab sheets are independent files, written by ``jobs`` worker
     processes (None = all cores; 1 = here, one after another); then the report. Every file depends only on
     the evaluation, so the outputs are byte-identical for any ``jobs``. ``progress(stage, done, total)`` is
-    called as the lab sheets are finished (and by the report's stages). ``history(lab)`` gives a lab's archived rounds for its sheet.
+    called as the lab sheets are finished (and by the report's stages). ``history(lab)`` gives a lab's
+    archived rounds for its sheet.
     """
     options = WriteOptions(history=history, jobs=jobs, progress=progress)
     return write_with(writers_for(formats), ev, folder, options)
