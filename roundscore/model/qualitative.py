@@ -83,6 +83,11 @@ class QualitativeSettings:
         Kept so code reading a measurand's decimals treats both kinds alike.
     """
 
+    def __deepcopy__(self, memo: dict) -> QualitativeSettings:
+        """Itself: frozen, its mappings read-only (``copy.deepcopy`` of an evaluation copies its tables)."""
+        return self
+
+
     name: str
     kind: QualitativeKind
     categories: tuple[str, ...]

@@ -52,7 +52,8 @@ class QualitativeFigure:
                          f'text-anchor="{anchor}" fill="{ink}">{text}</text>')
         svg = self.figure.svg
         end = svg.rfind("</svg>")
-        return svg[:end] + f'<g class="lab-mark">{"".join(parts)}</g>' + svg[end:]
+        label = html.escape(f"your results ({lab})", quote=True)
+        return svg[:end] + f'<g class="lab-mark" aria-label="{label}">{"".join(parts)}</g>' + svg[end:]
 
 
 def qualitative_figure(name: str, title: str, kind: str, dist: pd.DataFrame, rows: pd.DataFrame,
