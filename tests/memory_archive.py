@@ -24,7 +24,7 @@ from roundscore.history.interface import (ArchiveReader, ArchiveStore, ArchiveWr
                                           HistoryQuery, Investigation, Laboratory, RoundRecord)
 
 SCHEME = "memory"
-LATEST_VERSION = 4
+LATEST_VERSION = 5
 
 
 @dataclass
@@ -32,6 +32,7 @@ class _Records:
     rounds: dict[tuple[str, str], RoundRecord] = field(default_factory=dict)
     scores: dict[tuple[str, str], dict[tuple[str, str], tuple]] = field(default_factory=dict)
     tables: dict[tuple[str, str], list[tuple[str, int, str]]] = field(default_factory=dict)
+    qualitative: dict[tuple[str, str], dict[tuple[str, str, str], tuple]] = field(default_factory=dict)
     audit: list[AuditEntry] = field(default_factory=list)
     investigations: dict[tuple[str, str, str, str], Investigation] = field(default_factory=dict)
     laboratories: dict[tuple[str, str], Laboratory] = field(default_factory=dict)
@@ -64,22 +65,33 @@ class MemoryReader(ArchiveReader):
         return [(kind, row) for kind, _, row in sorted(self._r.tables.get((scheme, round_id), []))]
 
     def history_rows(self, query: HistoryQuery) -> list[tuple]:
+        return self._history(self._r.scores, query, key=lambda r: (r[2], r[1], r[0], r[4], r[5]))
+
+    def qualitative_history_rows(self, query: HistoryQuery) -> list[tuple]:
+        return self._history(self._r.qualitative, query, key=lambda r: (r[2], r[1], r[0], r[4], r[5], r[6]))
+
+    def qualitative_rows(self, scheme: str, round_id: str, lab: str | None = None) -> list[tuple]:
+        rows = self._r.qualitative.get((scheme, round_id), {})
+        return [row for key, row in rows.items() if lab is None or key[0] == lab]
+
+    def _history(self, table, query: HistoryQuery, *, key) -> list[tuple]:
         labs = set(query.labs)
         out = []
-        for (scheme, round_id), rows in self._r.scores.items():
+        for (scheme, round_id), rows in table.items():
             rnd = self._r.rounds[(scheme, round_id)]
             if ((query.scheme is not None and scheme != query.scheme)
                     or (query.since is not None and rnd.round_date < query.since)
                     or (query.before is not None and rnd.round_date >= query.before)
                     or (query.exclude_round is not None and round_id == query.exclude_round)):
                 continue
-            for (lab, measurand), row in rows.items():
+            for (lab, measurand, *_), row in rows.items():
                 if lab in labs and (query.measurand is None or measurand == query.measurand):
                     out.append((scheme, round_id, rnd.round_date, rnd.title, *row))
-        return sorted(out, key=lambda r: (r[2], r[1], r[0], r[4], r[5]))
+        return sorted(out, key=key)
 
     def labs(self) -> list[str]:
-        return sorted({lab for rows in self._r.scores.values() for lab, _ in rows})
+        return sorted({key[0] for table in (self._r.scores, self._r.qualitative)
+                       for rows in table.values() for key in rows})
 
     def audit_entries(self) -> list[AuditEntry]:
         return list(self._r.audit)
@@ -107,13 +119,23 @@ class MemoryWriter(MemoryReader, ArchiveWriter):
             title=old.title if title is None else title)
 
     def remove_round(self, scheme: str, round_id: str) -> None:
-        for table in (self._r.scores, self._r.tables, self._r.rounds):
+        for table in (self._r.scores, self._r.qualitative, self._r.tables, self._r.rounds):
             table.pop((scheme, round_id), None)
 
     def remove_scores(self, scheme: str, round_id: str, lab: str) -> None:
-        rows = self._r.scores.get((scheme, round_id), {})
-        for key in [k for k in rows if k[0] == lab]:
-            del rows[key]
+        for table in (self._r.scores, self._r.qualitative):
+            rows = table.get((scheme, round_id), {})
+            for key in [k for k in rows if k[0] == lab]:
+                del rows[key]
+
+    def add_qualitative(self, scheme: str, round_id: str, rows: Sequence[tuple]) -> None:
+        if (scheme, round_id) not in self._r.rounds:
+            raise ArchiveError(f"no round {(scheme, round_id)} for its qualitative rows")
+        kept = self._r.qualitative.setdefault((scheme, round_id), {})
+        for row in rows:
+            if (row[0], row[1], row[2]) in kept:
+                raise ArchiveError(f"qualitative row {(row[0], row[1], row[2])} is archived already")
+            kept[(row[0], row[1], row[2])] = tuple(row)
 
     def add_scores(self, scheme: str, round_id: str, rows: Sequence[tuple]) -> None:
         if (scheme, round_id) not in self._r.rounds:

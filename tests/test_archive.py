@@ -291,7 +291,8 @@ def test_pipeline_csv_precision_and_workbook_agree(archive_at, tmp_path):
     ("no_data_sheet", "not a roundscore lab workbook: no sheet named 'data'"),
     ("no_round_sheet", "not a roundscore lab workbook: no sheet named 'round'"),
     ("wrong_generator", "generator"),
-    ("wrong_format", "format 2"),
+    ("wrong_format", "format 3"),
+    ("no_qualitative_sheet", "no sheet named 'qualitative_data'"),  # format 2 promises the qualitative results
     ("lab_mismatch", "sheet 'round' gives lab 'L09'"),
     ("csv_missing", "missing columns: z, signal"),
     ("not_csv", "missing columns"),
@@ -310,6 +311,8 @@ def test_files_that_are_not_ours_get_clear_messages(archive_at, tmp_path, kind, 
     elif kind == "wrong_generator":
         write_workbook(target, frame, lab="L01", meta={"generator": "spreadsheet"})
     elif kind == "wrong_format":
+        write_workbook(target, frame, lab="L01", meta={"format": 3})
+    elif kind == "no_qualitative_sheet":
         write_workbook(target, frame, lab="L01", meta={"format": 2})
     elif kind == "lab_mismatch":
         write_workbook(target, frame, lab="L01", meta={"lab": "L09"})
@@ -488,9 +491,9 @@ def test_migration_from_version_1(tmp_path):
     assert hist["score_value"].tolist() == [2.5]
     assert db.read_bytes() == before and count(db, "PRAGMA user_version") == 1
     store(db, scores_frame(round_id="R0", date="2022-05-01"), replace=True)  # a write migrates
-    assert count(db, "PRAGMA user_version") == archive.SCHEMA_VERSION == 4  # the released migrations
+    assert count(db, "PRAGMA user_version") == archive.SCHEMA_VERSION == 5  # the released migrations
     assert count(db, "PRAGMA application_id") == archive.APPLICATION_ID
-    assert count(db, "SELECT COUNT(*) FROM schema_version") == 4
+    assert count(db, "SELECT COUNT(*) FROM schema_version") == 5
     old_round = json.loads(count(db, "SELECT row FROM audit WHERE kind = 'round'"))
     assert old_round["origin"] == "lab"  # migration 2's default for rounds stored before it
     assert count(db, "SELECT COUNT(*) FROM audit WHERE kind = 'score'") == 1

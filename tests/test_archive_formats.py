@@ -33,9 +33,12 @@ def _load_maker():
 maker = _load_maker()  # the same inputs, reads and schema dump the reference files were made with
 EXPECTED = json.loads((DATA / "expected.json").read_text(encoding="utf-8"))
 SCHEMA = (DATA / "schema.sql").read_text(encoding="utf-8")
-#: The schema this roundscore writes: version 3's and the tables of migration 4 (investigation records,
-#: laboratories), recorded from a new archive when migration 4 was released (README there).
-SCHEMA_NOW = (DATA / "schema-v4.sql").read_text(encoding="utf-8")
+#: The schema of version 4: version 3's and the tables of migration 4 (investigation records, laboratories),
+#: recorded from a new archive when migration 4 was released (README there).
+SCHEMA_V4 = (DATA / "schema-v4.sql").read_text(encoding="utf-8")
+#: The schema this roundscore writes: version 4's and the qualitative table of migration 5, recorded the same way
+#: when migration 5 was released.
+SCHEMA_NOW = (DATA / "schema-v5.sql").read_text(encoding="utf-8")
 
 
 def released_versions() -> list[tuple[int, str]]:
@@ -155,11 +158,17 @@ def test_the_released_migrations_are_the_text_the_files_were_made_with():
     assert alter == "ALTER TABLE rounds ADD COLUMN origin TEXT NOT NULL DEFAULT 'lab'"
     assert MIGRATIONS[2].statements == (f"PRAGMA application_id = {APPLICATION_ID:d}",)
     # migration 4 adds two tables and changes nothing of version 3's schema
-    now = [line for line in SCHEMA_NOW.splitlines() if line not in SCHEMA.splitlines()]
-    assert now[0] == "-- PRAGMA user_version = 4"
+    v4 = [line for line in SCHEMA_V4.splitlines() if line not in SCHEMA.splitlines()]
+    assert v4[0] == "-- PRAGMA user_version = 4"
     investigations, laboratories = MIGRATIONS[3].statements
-    assert f"{investigations};" in SCHEMA_NOW and f"{laboratories};" in SCHEMA_NOW
-    assert all(line in SCHEMA_NOW.splitlines() for line in SCHEMA.splitlines()[1:])
+    assert f"{investigations};" in SCHEMA_V4 and f"{laboratories};" in SCHEMA_V4
+    assert all(line in SCHEMA_V4.splitlines() for line in SCHEMA.splitlines()[1:])
+    # migration 5 adds the qualitative table and its index and changes nothing of version 4's schema
+    now = [line for line in SCHEMA_NOW.splitlines() if line not in SCHEMA_V4.splitlines()]
+    assert now[0] == "-- PRAGMA user_version = 5"
+    qualitative, index = MIGRATIONS[4].statements
+    assert f"{qualitative};" in SCHEMA_NOW and f"{index};" in SCHEMA_NOW
+    assert all(line in SCHEMA_NOW.splitlines() for line in SCHEMA_V4.splitlines()[1:])
 
 
 def test_the_migrations_are_literal_text_built_from_nothing_live():

@@ -10,6 +10,7 @@ import hashlib
 import shutil
 
 import openpyxl
+import pandas as pd
 import pytest
 
 from roundscore.cli import main
@@ -231,3 +232,103 @@ def test_blank_and_old_forms_still_read(make_round):
     old, _ = _returned_round(make_round, {"arrived": "2026-10-01"}, strip=True)  # no form-info keys: ignored
     table = read_results(load_round(old), jobs=1)
     assert table.receipts == {} and len(table.frame) == 4
+
+
+# --------------------------------------------------------------------------- qualitative measurands
+
+QUAL_TOML = """
+[round]
+id = "Q1"
+provider = "Invented PT Ltd"
+results = "{results}"
+participants = "participants.csv"
+replicates = 1
+[measurand.iron]
+unit = "mg/kg"
+sigma_pt = 1.0
+[measurand.salmonella]
+kind = "nominal"
+categories = ["detected", "not detected"]
+assigned = {{ "S1" = "detected", "B1" = "not detected" }}
+aliases = {{ "+" = "detected", "ND" = "not detected" }}
+[measurand.grade]
+kind = "ordinal"
+categories = ["negative", "weak", "positive"]
+assigned = "median"
+"""
+QUAL_LABS = "lab,name\nA1,Alpha Lab\nB2,Beta Lab\n"
+#: What the labs report, as typed (any casing, an alias): (lab, measurand, item, value, method).
+QUAL_RESULTS = [("A1", "salmonella", "S1", "Detected", "culture"), ("A1", "salmonella", "B1", "ND", "culture"),
+                ("A1", "grade", "", " weak ", None), ("B2", "salmonella", "S1", "+", None),
+                ("B2", "grade", "", "POSITIVE", "PCR")]
+
+
+def _qualitative_rows(ws) -> dict[tuple[str, str], int]:
+    """Row numbers of the qualitative table by (measurand, item), found under its heading."""
+    heading = next(r for r in range(1, ws.max_row + 1) if ws.cell(row=r, column=1).value == "Qualitative results")
+    assert [ws.cell(row=heading + 1, column=c).value for c in range(1, 6)] == [
+        "Measurand", "Item", "Result", "Method", "Comment"]
+    rows, r = {}, heading + 2
+    while ws.cell(row=r, column=1).value:
+        rows[(ws.cell(row=r, column=1).value, ws.cell(row=r, column=2).value or "")] = r
+        r += 1
+    return rows
+
+
+def _qualitative_frame(folder):
+    t = read_results(load_round(folder)).frame
+    q = t[t["status"] == "category"]
+    return q.loc[:, ["lab", "measurand", "item", "category", "method"]].sort_values(
+        ["lab", "measurand", "item"]).reset_index(drop=True)
+
+
+def test_qualitative_measurands_get_rows_with_lists_and_read_back_as_the_long_layout(make_round):
+    folder = make_round(QUAL_TOML.format(results="returned"), participants__csv=QUAL_LABS)
+    assert main(["forms", str(folder)]) == 0
+    (folder / "returned").mkdir()
+    for f in sorted((folder / "blank-forms").glob("*.xlsx")):
+        shutil.copy(f, folder / "returned" / f.name)
+    for form in sorted((folder / "returned").glob("*.xlsx")):
+        wb = openpyxl.load_workbook(form)
+        ws = wb[RESULTS_SHEET]
+        rows = _qualitative_rows(ws)
+        assert list(rows) == [("salmonella", "S1"), ("salmonella", "B1"), ("grade", "")]  # one row per item
+        lists = {str(dv.sqref): dv for dv in ws.data_validations.dataValidation if dv.type == "list"}
+
+        def listed(ref: str, lists=lists, info=wb["form-info"]) -> list[str]:
+            first, last = lists[ref].formula1.split("!")[1].replace("$", "").split(":")
+            return [c[0].value for c in info[first:last]]
+
+        assert listed(f"C{rows[('salmonella', 'S1')]}") == ["detected", "not detected"]
+        assert listed(f"B{rows[('salmonella', 'S1')]}") == ["S1", "B1"]
+        assert listed(f"C{rows[('grade', '')]}") == ["negative", "weak", "positive"]
+        assert f"B{rows[('grade', '')]}" not in lists  # no items declared: a free item cell
+        assert ws.cell(row=rows[("grade", "")], column=3).protection.locked is False
+        lab = form.stem.split("-")[-1]
+        for who, measurand, item, value, method in QUAL_RESULTS:
+            if who == lab:
+                ws.cell(row=rows[(measurand, item)], column=3, value=value)
+                ws.cell(row=rows[(measurand, item)], column=4, value=method)
+        wb.save(form)
+    from_forms = _qualitative_frame(folder)
+    lines = ["lab,measurand,replicate,value,item,method"] + [
+        f"{who},{m},1,{v},{item},{method or ''}" for who, m, item, v, method in QUAL_RESULTS]
+    long = make_round(QUAL_TOML.format(results="results.csv"), "\n".join(lines) + "\n",
+                      participants__csv=QUAL_LABS)
+    pd.testing.assert_frame_equal(from_forms, _qualitative_frame(long))
+    assert from_forms["category"].tolist() == ["weak", "not detected", "detected", "positive", "detected"]
+
+
+def test_a_word_that_is_no_category_on_a_form_is_refused_naming_the_cell(make_round):
+    folder = make_round(QUAL_TOML.format(results="returned"), participants__csv=QUAL_LABS)
+    (folder / "returned").mkdir()
+    write_form(load_round(folder), "A1", folder / "returned" / "Q1-A1.xlsx")
+    wb = openpyxl.load_workbook(folder / "returned" / "Q1-A1.xlsx")
+    ws = wb[RESULTS_SHEET]
+    row = _qualitative_rows(ws)[("salmonella", "B1")]
+    ws.cell(row=row, column=3, value="maybe")
+    wb.save(folder / "returned" / "Q1-A1.xlsx")
+    with pytest.raises(InputError) as err:
+        read_results(load_round(folder))
+    text = str(err.value)
+    assert f"Results!C{row}" in text and "'maybe'" in text and "not a category of salmonella" in text

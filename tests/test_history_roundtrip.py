@@ -141,6 +141,53 @@ def test_the_same_scores_from_csv_are_unchanged_in_the_lab_archive(trip):
     assert ": unchanged: " in text and "nothing changed" in text
 
 
+def test_lab_sheets_give_back_the_qualitative_results(trip):
+    # The demo's salmonella (nominal, two items) and grit (ordinal) results: the coordinator's archive (score
+    # --archive) and the lab's (history add of its sheets) hold the rows of qualitative.csv, cell for cell.
+    coord = archive.lab_qualitative_history(trip["coord"], lab=list(COMPARED_LABS))
+    lab = archive.lab_qualitative_history(trip["lab"], lab=list(COMPARED_LABS))
+    assert len(coord) == len(COMPARED_LABS) * 3 * 3  # 3 rounds x (2 salmonella items + grit)
+    pd.testing.assert_frame_equal(coord.drop(columns="title"), lab.drop(columns="title"))
+    first = pd.read_csv(trip["outs"][0] / "qualitative.csv", dtype=str, keep_default_na=False)
+    first = first[first["lab"].isin(COMPARED_LABS)].sort_values(["lab", "measurand", "item"])
+    mine = coord[coord["round"] == ROUNDS[0][1]].sort_values(["lab", "measurand", "item"])
+    for col in ("lab", "measurand", "item", "reported", "assigned", "agreement", "signal"):
+        assert mine[col].tolist() == first[col].tolist(), col
+    assert [("" if pd.isna(v) else str(v)) for v in mine["deviation"]] == first["deviation"].tolist()
+
+
+def test_an_edited_qualitative_result_is_refused_by_its_digest(trip, tmp_path):
+    import openpyxl
+
+    sheet = next(p for p in trip["sheets"] if Path(p).stem == "K07")
+    wb = openpyxl.load_workbook(sheet)
+    ws = wb["qualitative_data"]
+    head = [c.value for c in ws[1]]
+    cell = ws.cell(row=2, column=head.index("reported") + 1)
+    cell.value = "not detected" if cell.value != "not detected" else "detected"  # the row's digest no longer fits
+    edited = tmp_path / "K07.xlsx"
+    wb.save(edited)
+    code, text, _ = run_cli("history", "add", edited, "--archive", tmp_path / "x.sqlite")
+    assert code == 2
+    assert "sheet 'qualitative_data', row 2" in text and "does not match its digest" in text
+    assert not (tmp_path / "x.sqlite").exists()
+
+
+def test_history_show_and_check_list_the_qualitative_results(trip):
+    code, text, err = run_cli("history", "show", "--lab", "K07", "--archive", trip["lab"])
+    assert code == 0, err
+    assert "Qualitative results of lab K07: 3 rounds, 2 measurands" in text
+    assert len(re.findall(r"\n\S+\s+SKW\s+\S+\s+salmonella\s", text)) == 6
+    code, text, err = run_cli("history", "check", "--lab", "K07", "--archive", trip["lab"], "--json")
+    body = __import__("json").loads(text)
+    assert isinstance(body["qualitative"], list)
+    wrong = archive.lab_qualitative_history(trip["lab"], lab="K07")
+    assert body["fired"] == (code == 1)
+    for f in body["qualitative"]:  # every finding names two wrong rounds among three
+        assert len(f["wrong"]) >= 2 and set(f["wrong"]) <= set(
+            wrong[wrong["agreement"] != "agrees"]["round"])
+
+
 def test_lab_sheets_show_the_earlier_rounds_with_a_chart(trip):
     first, third = (trip["outs"][i] / "labs" / "K07.xlsx" for i in (0, 2))
     assert "History" not in CalamineWorkbook.from_path(str(first)).sheet_names  # no archive yet

@@ -44,7 +44,9 @@ def test_report_section_and_lab_pages(scored_demo):
 
 def test_lab_workbook_holds_only_its_rows(scored_demo):
     wb = openpyxl.load_workbook(scored_demo.out / "labs" / "K22.xlsx", read_only=True)
-    assert [n for n in wb.sheetnames if n.lower().startswith("qualitative")] == ["Qualitative"]  # no round tables
+    # no round tables; the hidden machine sheet read back by history add (also its rows only)
+    assert [n for n in wb.sheetnames if n.lower().startswith("qualitative")] == ["Qualitative", "qualitative_data"]
+    assert {r[0] for r in wb["qualitative_data"].iter_rows(min_row=2, values_only=True)} == {"K22"}
     cells = [c for row in wb["Qualitative"].iter_rows(values_only=True) for c in row if isinstance(c, str)]
     labs = {c for c in cells if c.startswith("K") and c[1:].isdigit()}
     assert labs == {"K22"}

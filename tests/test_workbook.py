@@ -11,6 +11,7 @@ import openpyxl
 import pytest
 
 from roundscore.model.evaluation import SCORE_COLUMNS
+from roundscore.model.qualitative import QUALITATIVE_COLUMNS
 from roundscore.outputs.workbook import write_summary
 
 
@@ -39,7 +40,11 @@ def test_data_and_round_sheets_keep_their_contract(books):
             assert rec["z"] == pytest.approx(z[rec["measurand"]], rel=5e-12)  # 12 digits kept
         assert re.fullmatch(r"[0-9a-f]{16}", r[len(SCORE_COLUMNS)])
     meta = dict(list(wb["round"].iter_rows(values_only=True))[1:])
-    assert meta["generator"] == "roundscore" and meta["lab"] == "K07" and meta["format"] == 1
+    # format 2: the demo's K07 has qualitative results, on the hidden sheet qualitative_data (counted here)
+    assert meta["generator"] == "roundscore" and meta["lab"] == "K07" and meta["format"] == 2
+    qual = list(wb["qualitative_data"].iter_rows(values_only=True))
+    assert list(qual[0]) == [*QUALITATIVE_COLUMNS, "row_digest"]
+    assert meta["qualitative_rows"] == len(qual) - 1 == len(ev.lab_rows("qualitative", "K07"))
     assert re.fullmatch(r"[0-9a-f]{64}", meta["digest"])
 
 

@@ -57,7 +57,8 @@ def _scores_table(path) -> tuple[list[str], list[dict]]:
 def test_no_round_statistics_or_mandel_sheet_but_a_pointer_to_the_summary(books):
     _ev, out = books
     names = openpyxl.load_workbook(out / "labs" / "K07.xlsx").sheetnames
-    assert names == ["Scores", "How to read", "Chart data", "data", "round"]  # no archive here, so no History
+    # no archive here, so no History; the demo's qualitative results as a sheet and their hidden machine sheet
+    assert names == ["Scores", "How to read", "Chart data", "Qualitative", "data", "qualitative_data", "round"]
     texts = [c for row in openpyxl.load_workbook(out / "labs" / "K07.xlsx")["Scores"].iter_rows(values_only=True)
              for c in row if isinstance(c, str)]
     assert SUMMARY_POINTER in texts and "round-summary.xlsx" in SUMMARY_POINTER
@@ -293,10 +294,11 @@ def test_machine_sheets_are_hidden_and_last(books):
     _, out = books
     wb = openpyxl.load_workbook(out / "labs" / "K19.xlsx")
     states = [(ws.title, ws.sheet_state) for ws in wb.worksheets]
-    machine = [i for i, (name, _) in enumerate(states) if name in ("data", "round")]
-    assert [states[i][1] for i in machine] == ["hidden", "hidden"]
-    assert machine == [len(states) - 2, len(states) - 1]  # nothing a person reads after them
-    assert all(state == "visible" for name, state in states if name not in ("data", "round"))
+    hidden = ("data", "qualitative_data", "round")  # the demo's labs have qualitative results
+    machine = [i for i, (name, _) in enumerate(states) if name in hidden]
+    assert [states[i][1] for i in machine] == ["hidden", "hidden", "hidden"]
+    assert machine == [len(states) - 3, len(states) - 2, len(states) - 1]  # nothing a person reads after them
+    assert all(state == "visible" for name, state in states if name not in hidden)
 
 
 def test_headings_decimals_and_how_to_read(books, tmp_path):

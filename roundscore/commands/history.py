@@ -37,6 +37,7 @@ import pandas as pd
 from roundscore.history import store as archive
 from roundscore.history import investigations as records
 from roundscore.history import rules as history
+from roundscore.history import qualitative as qualitative_rule
 from roundscore.stats import trends
 from roundscore.choices import options
 from roundscore.errors import ArchiveError, InputError, RoundscoreError
@@ -235,11 +236,38 @@ def format_table(frame: pd.DataFrame) -> str:
     return "\n".join(lines)
 
 
+def format_qualitative(frame: pd.DataFrame, findings: Sequence[qualitative_rule.QualitativeFinding]) -> str:
+    """A lab's qualitative results as a fixed-width text table; column ``rule`` marks the rounds where the run of
+    wrong results fired (:func:`roundscore.history.qualitative.check_qualitative`)."""
+    fired = {(f.scheme, f.lab, f.measurand, f.round) for f in findings}
+    header = ["date", "scheme", "round", "measurand", "item", "reported", "assigned", "agreement", "deviation",
+              "signal", "rule", "note"]
+    cells = [header]
+    for rec in frame.to_dict(orient="records"):
+        dev = rec["deviation"]
+        deviation = "" if dev is None or pd.isna(dev) else f"{int(dev):+d}"
+        rule = "Q" if (rec["scheme"], rec["lab"], rec["measurand"], rec["round"]) in fired else ""
+        cells.append([_fmt(rec[c]) for c in ("round_date", "scheme", "round", "measurand", "item", "reported",
+                                             "assigned", "agreement")]
+                     + [deviation, signal_label(str(rec["signal"])), rule, _fmt(rec["note"])])
+    widths = [max(len(row[i]) for row in cells) for i in range(len(header))]
+    lines = []
+    for j, row in enumerate(cells):
+        lines.append("  ".join(c.rjust(w) if (i == 8 and j) else c.ljust(w)
+                               for i, (c, w) in enumerate(zip(row, widths))).rstrip())
+        if j == 0:
+            lines.append("  ".join("-" * w for w in widths))
+    lines.append(f"rule Q: {qualitative_rule.RULE_NAME} of a measurand ({qualitative_rule.RULE_SOURCE})")
+    return "\n".join(lines)
+
+
 def run_show(args: argparse.Namespace) -> int:
-    """Print a lab's history; with ``--out`` write the workbook and charts."""
+    """Print a lab's history (scores, then qualitative results); with ``--out`` write the workbook and charts."""
     frame = archive.lab_history(args.archive, lab=args.lab, scheme=args.scheme,
                                 measurand=args.measurand, since=args.since)
-    if frame.empty:
+    qual = archive.lab_qualitative_history(args.archive, lab=args.lab, scheme=args.scheme,
+                                           measurand=args.measurand, since=args.since)
+    if frame.empty and qual.empty:
         labs = archive.archived_labs(args.archive)
         shown = ", ".join(labs[:20]) + (" ..." if len(labs) > 20 else "")
         raise InputError.single(f"no archived scores match lab {args.lab!r}"
@@ -247,13 +275,20 @@ def run_show(args: argparse.Namespace) -> int:
                                 + (f", scheme {args.scheme!r}" if args.scheme else "")
                                 + (f", since {args.since}" if args.since else "")
                                 + f" (labs in the archive: {shown or 'none'})")
-    frame = records.with_rules(frame)
-    print(f"History of lab {terminal_text(args.lab)}: {frame['round'].nunique()} rounds, "
-          f"{frame['measurand'].nunique()} measurands")
-    print(format_table(frame))
+    if not frame.empty:
+        frame = records.with_rules(frame)
+        print(f"History of lab {terminal_text(args.lab)}: {frame['round'].nunique()} rounds, "
+              f"{frame['measurand'].nunique()} measurands")
+        print(format_table(frame))
+    if not qual.empty:
+        print(f"{'Q' if frame.empty else chr(10) + 'Q'}ualitative results of lab {terminal_text(args.lab)}: "
+              f"{qual['round'].nunique()} rounds, {qual['measurand'].nunique()} measurands")
+        print(format_qualitative(qual, qualitative_rule.check_qualitative(qual)))
     print(f"signals: {signal_legend_text(sep=', ')}")
     print(history.DISCLAIMER)
-    if args.out:
+    if args.out and frame.empty:
+        print("no scores to chart: the workbook and charts of --out are written for scored measurands only")
+    elif args.out:
         who = records.laboratory_codes(args.archive, args.lab)
         head = _head_lines(frame, lab=args.lab, name=who.name, produced=_dt.date.today().isoformat(),
                            archive=archive.open_store(args.archive).name)
@@ -315,7 +350,8 @@ def run_check(args: argparse.Namespace) -> int:
     if not labs:
         raise ArchiveError(f"{archive.open_store(args.archive).name}: the archive holds no scores")
     frame = archive.lab_history(args.archive, lab=labs)
-    if frame.empty:
+    qual = archive.lab_qualitative_history(args.archive, lab=labs)
+    if frame.empty and qual.empty:
         known = archive.archived_labs(args.archive)
         raise InputError.single(f"no archived scores for lab {args.lab!r} (labs in the archive: "
                                 f"{', '.join(known[:20]) or 'none'})")
@@ -325,16 +361,27 @@ def run_check(args: argparse.Namespace) -> int:
         points = records.finding_points(frame, records.investigations(args.archive, sorted(set(frame["lab"]))))
         print(format_open(points))
         return 1 if any(p.is_open for p in points) else 0
-    report = history.check_history(frame, window=args.window)
+    report = (history.check_history(frame, window=args.window) if not frame.empty
+              else history.HistoryCheck(series=(), window=args.window))
+    findings = qualitative_rule.check_qualitative(qual, window=args.window)
     if args.json:
         body = report.to_dict()
-        body["fired"] = report.fired
+        body["fired"] = report.fired or bool(findings)
         for entry, series in zip(body["series"], report.series):
             entry["fired"] = series.fired
+        body["qualitative"] = [f.to_dict() for f in findings]
         print(json_text(json.dumps(body, indent=2, ensure_ascii=False)))
     else:
-        print(format_check(report))
-    return 1 if report.fired else 0
+        text = format_check(report)
+        if not qual.empty:
+            n_series = qual.groupby(["scheme", "lab", "measurand"]).ngroups
+            lines = [f"{terminal_text(f.lab)} / {terminal_text(f.scheme)} / {terminal_text(f.measurand)} "
+                     f"(qualitative), round {terminal_text(f.round)}:\n  {terminal_text(f.message)}" for f in findings]
+            lines.append(f"{len({(f.scheme, f.lab, f.measurand) for f in findings})} of {n_series} qualitative series "
+                         f"with {qualitative_rule.RULE_NAME} (rule Q: {qualitative_rule.RULE_SOURCE}).")
+            text = text.replace(report.disclaimer, "\n".join(lines) + "\n" + report.disclaimer)
+        print(text)
+    return 1 if report.fired or findings else 0
 
 
 def finding_text(p: records.FindingPoint) -> str:

@@ -27,6 +27,10 @@ What every backend promises
   ``int`` (``n_replicates``), ``float`` or ``None``; ``result`` may be a censored result's text
   (``"<0.1"``).  They come back as they went in (a float to the last bit, a text as text).
   Text compares by code point (SQLite's BINARY collation).
+* Qualitative rows (nominal and ordinal measurands) are tuples in :data:`QUALITATIVE_ROW_FIELDS` order
+  (text, ``deviation`` an ``int`` or ``None``, ``item`` ``""`` when the measurand has no items), kept beside
+  the score rows of the same round and removed with them.  An archive of a version before they were kept
+  reads as holding none.
 * Every error a backend raises is an ``ArchiveError`` naming the archive (:attr:`ArchiveStore.name`).
 
 The interface names are our own; they carry no SQL.  A test double beside the tests
@@ -42,13 +46,18 @@ from collections.abc import Sequence
 from contextlib import AbstractContextManager
 from dataclasses import asdict, dataclass
 
+from roundscore.history.qualitative import QUALITATIVE_ROW_FIELDS
 from roundscore.history.sheets import ROW_FIELDS
 
-__all__ = ["ROW_FIELDS", "HISTORY_ROW_FIELDS", "RoundRecord", "AuditEntry", "HistoryQuery",
+__all__ = ["ROW_FIELDS", "HISTORY_ROW_FIELDS", "QUALITATIVE_ROW_FIELDS", "QUALITATIVE_HISTORY_ROW_FIELDS",
+           "RoundRecord", "AuditEntry", "HistoryQuery",
            "Investigation", "Laboratory", "ArchiveReader", "ArchiveWriter", "ArchiveStore", "now"]
 
 #: Fields of a row of :meth:`ArchiveReader.history_rows`: the round's keys, then a score row.
 HISTORY_ROW_FIELDS: tuple[str, ...] = ("scheme", "round", "round_date", "title", *ROW_FIELDS)
+#: Fields of a row of :meth:`ArchiveReader.qualitative_history_rows`: the round's keys, then a qualitative row.
+QUALITATIVE_HISTORY_ROW_FIELDS: tuple[str, ...] = ("scheme", "round", "round_date", "title",
+                                                   *QUALITATIVE_ROW_FIELDS)
 
 
 def now() -> str:
@@ -105,7 +114,7 @@ class AuditEntry:
         The round concerned.
     lab : str or None
         The lab of a score row, or of a lab's import; ``None`` for a whole round's tables.
-    kind : {"round", "score", "statistics", "precision", "investigation", "laboratory"}
+    kind : {"round", "score", "qualitative", "statistics", "precision", "investigation", "laboratory"}
         What was replaced (an investigation record or a laboratory's name is kept here when it
         is changed).
     row : str
@@ -240,7 +249,18 @@ class ArchiveReader(ABC):
 
     @abstractmethod
     def labs(self) -> list[str]:
-        """Every lab code with score rows, sorted, each once."""
+        """Every lab code with score rows or qualitative rows, sorted, each once."""
+
+    @abstractmethod
+    def qualitative_rows(self, scheme: str, round_id: str, lab: str | None = None) -> list[tuple]:
+        """The round's qualitative rows (only ``lab``'s when given), tuples in :data:`QUALITATIVE_ROW_FIELDS`
+        order, in no particular order."""
+
+    @abstractmethod
+    def qualitative_history_rows(self, query: HistoryQuery) -> list[tuple]:
+        """The qualitative rows the query selects, each with its round's keys
+        (:data:`QUALITATIVE_HISTORY_ROW_FIELDS`), ordered by round date, round identifier, scheme, lab,
+        measurand and item."""
 
     @abstractmethod
     def audit_entries(self) -> list[AuditEntry]:
@@ -271,16 +291,21 @@ class ArchiveWriter(ArchiveReader):
 
     @abstractmethod
     def remove_round(self, scheme: str, round_id: str) -> None:
-        """Remove a round with all its score rows and tables."""
+        """Remove a round with all its score rows, qualitative rows and tables."""
 
     @abstractmethod
     def remove_scores(self, scheme: str, round_id: str, lab: str) -> None:
-        """Remove one lab's score rows of a round (the round stays)."""
+        """Remove one lab's score rows and qualitative rows of a round (the round stays)."""
 
     @abstractmethod
     def add_scores(self, scheme: str, round_id: str, rows: Sequence[tuple]) -> None:
         """Add score rows (:data:`ROW_FIELDS` order) to an archived round; a lab x measurand
         archived already is an error."""
+
+    @abstractmethod
+    def add_qualitative(self, scheme: str, round_id: str, rows: Sequence[tuple]) -> None:
+        """Add qualitative rows (:data:`QUALITATIVE_ROW_FIELDS` order) to an archived round; a lab x measurand
+        x item archived already is an error."""
 
     @abstractmethod
     def add_tables(self, scheme: str, round_id: str, rows: Sequence[tuple[str, int, str]]) -> None:

@@ -37,6 +37,8 @@ from roundscore.text import too_long
 
 from roundscore.model.digest import DIGEST_KEY, ROW_DIGEST_COLUMN, canonical, row_digest, sheet_digest
 from roundscore.history.checks import EDIT_HINT, RESUBMIT_HINT, row_problems
+from roundscore.history.qualitative import QUALITATIVE_ROW_FIELDS, normalise_rows as _qualitative_rows
+from roundscore.model.qualitative import QUALITATIVE_COUNT_KEY, QUALITATIVE_SHEET
 
 # One definition of the score-row contract (model/evaluation.py) and of the score and signal names (the
 # registries of model/scores.py and model/signals.py).
@@ -59,6 +61,8 @@ _AT = {f: i for i, f in enumerate(ROW_FIELDS)}
 #: Leading characters a CSV writer neutralises with a ``'`` (OWASP, "CSV Injection").
 _FORMULA_STARTS = ("=", "+", "-", "@")
 WORKBOOK_FORMAT = 1
+#: The format of a lab sheet that also carries qualitative results (hidden sheet ``qualitative_data``).
+WORKBOOK_FORMAT_QUALITATIVE = 2
 
 
 def plain(value: object) -> object:
@@ -199,6 +203,11 @@ class LabRows:
     title: str
     rows: tuple[tuple, ...]
     warnings: tuple[str, ...] = ()
+    #: The lab's qualitative rows of the round (the lab sheet's hidden ``qualitative_data`` sheet).
+    qualitative: tuple[tuple, ...] = ()
+    #: Whether the file can carry qualitative rows (a lab sheet of format 2); a ``scores.csv`` cannot, so it
+    #: says nothing about the qualitative rows archived already.
+    carries_qualitative: bool = False
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -212,6 +221,9 @@ class _Sheet:
     meta_items: tuple[tuple[object, object], ...] = ()
     header: tuple[str, ...] = ()
     warnings: tuple[str, ...] = ()
+    #: The hidden ``qualitative_data`` sheet's records and their spreadsheet rows (a format-2 lab sheet).
+    qualitative: tuple[dict[str, object], ...] = ()
+    qualitative_numbers: tuple[int, ...] = ()
 
 
 def _records(file: Path, rows: list[list[object]], sheet: str | None) -> _Sheet:
@@ -267,13 +279,34 @@ def _read_workbook(file: Path) -> _Sheet:
     if text_key(meta.get("generator")) != "roundscore":
         raise InputError.single("not a roundscore lab workbook: key 'generator' is not 'roundscore'",
                                 file=str(file), sheet="round", value=meta.get("generator"))
-    if text_key(meta.get("format")) != str(WORKBOOK_FORMAT):
+    fmt = text_key(meta.get("format"))
+    if fmt not in (str(WORKBOOK_FORMAT), str(WORKBOOK_FORMAT_QUALITATIVE)):
         raise InputError.single(f"workbook format {meta.get('format')!r} is not supported "
-                                f"(this version reads format {WORKBOOK_FORMAT})",
+                                f"(this version reads formats {WORKBOOK_FORMAT} and {WORKBOOK_FORMAT_QUALITATIVE})",
                                 file=str(file), sheet="round")
     # hidden by the writer (outputs/lab_workbook.py): not worth a warning
-    warnings = hidden_by_design(dict.fromkeys(data.warnings + meta_sheet.warnings), str(file), ["data", "round"])
-    return replace(sheet, meta=meta, meta_items=items, warnings=warnings)
+    found = data.warnings + meta_sheet.warnings
+    qual: list[dict[str, object]] = []
+    qual_numbers: list[int] = []
+    if fmt == str(WORKBOOK_FORMAT_QUALITATIVE):
+        qual_sheet = read_many([file], [QUALITATIVE_SHEET], jobs=1, limits=DEFAULT_LIMITS)[0]
+        if not hasattr(qual_sheet, "sheets"):
+            raise InputError([replace(q, file=str(file), sheet=QUALITATIVE_SHEET) for q in qual_sheet.as_problems()],
+                             summary=f"{file}: the qualitative results cannot be read")
+        rows = qual_sheet.sheets[0].rows
+        head = [str(c).strip() if c is not None else "" for c in rows[0]] if rows else []
+        missing = [c for c in (*QUALITATIVE_ROW_FIELDS, ROW_DIGEST_COLUMN) if c not in head]
+        if missing:
+            raise InputError.single(f"missing columns: {', '.join(missing)}; the sheet was edited after roundscore "
+                                    f"wrote it; {EDIT_HINT}", file=str(file), sheet=QUALITATIVE_SHEET)
+        for i, r in enumerate(rows[1:], start=2):
+            if any(v not in ("", None) for v in r):
+                qual.append(dict(zip(head, r)))
+                qual_numbers.append(i)
+        found += qual_sheet.sheets[0].warnings
+    warnings = hidden_by_design(dict.fromkeys(found), str(file), ["data", "round", QUALITATIVE_SHEET])
+    return replace(sheet, meta=meta, meta_items=items, warnings=warnings, qualitative=tuple(qual),
+                   qualitative_numbers=tuple(qual_numbers))
 
 
 def _digest_findings(file: Path, got: _Sheet) -> tuple[list[Problem], list[str]]:
@@ -288,15 +321,25 @@ def _digest_findings(file: Path, got: _Sheet) -> tuple[list[Problem], list[str]]
                                 f"sheet was edited after roundscore wrote it; {EDIT_HINT}",
                         file=str(file), sheet="round" if has_column else "data")], []
     problems = []
-    for rec, number in zip(got.records, got.numbers):
-        if canonical(rec.get(ROW_DIGEST_COLUMN)) != row_digest([rec.get(c) for c in SCORE_COLUMNS]):
-            problems.append(Problem(
-                message=f"this row does not match its digest: it was changed after roundscore "
-                        f"wrote the sheet; {RESUBMIT_HINT}",
-                file=str(file), sheet="data", row=number, lab=text_key(rec.get("lab")) or None,
-                measurand=text_key(rec.get("measurand")) or None))
+    for name, columns, records, numbers in (("data", SCORE_COLUMNS, got.records, got.numbers),
+                                            (QUALITATIVE_SHEET, QUALITATIVE_ROW_FIELDS, got.qualitative,
+                                             got.qualitative_numbers)):
+        for rec, number in zip(records, numbers):
+            if canonical(rec.get(ROW_DIGEST_COLUMN)) != row_digest([rec.get(c) for c in columns]):
+                problems.append(Problem(
+                    message=f"this row does not match its digest: it was changed after roundscore "
+                            f"wrote the sheet; {RESUBMIT_HINT}",
+                    file=str(file), sheet=name, row=number, lab=text_key(rec.get("lab")) or None,
+                    measurand=text_key(rec.get("measurand")) or None))
+    counted = text_key((got.meta or {}).get(QUALITATIVE_COUNT_KEY)) or "0"
+    if counted != str(len(got.qualitative)):
+        problems.append(Problem(
+            message=f"sheet 'round' counts {counted} qualitative results but sheet {QUALITATIVE_SHEET!r} holds "
+                    f"{len(got.qualitative)}: rows were added or removed after roundscore wrote it; {RESUBMIT_HINT}",
+            file=str(file), sheet=QUALITATIVE_SHEET))
     if not problems:
-        whole = sheet_digest(got.meta_items, [rec.get(ROW_DIGEST_COLUMN) for rec in got.records])
+        whole = sheet_digest(got.meta_items, [rec.get(ROW_DIGEST_COLUMN)
+                                              for rec in (*got.records, *got.qualitative)])
         if whole != canonical(got.meta[DIGEST_KEY]):  # type: ignore[index]
             problems.append(Problem(
                 message="the sheet does not match its digest although every row does: rows were "
@@ -326,6 +369,9 @@ def read_lab_file(file: Path, lab: str | None) -> list[LabRows]:
     rows, problems = normalise_rows(records, file=str(file), sheet=sheet, first_row=2,
                                     row_numbers=numbers)
     warnings = [w[len(str(file)) + 2:] if w.startswith(f"{file}: ") else w for w in got.warnings]
+    qual_rows, qual_problems = _qualitative_rows(list(got.qualitative), file=str(file), sheet=QUALITATIVE_SHEET,
+                                                 row_numbers=got.qualitative_numbers)
+    problems += qual_problems
     if meta is not None:
         found, notes = _digest_findings(file, got)
         problems += found
@@ -341,14 +387,14 @@ def read_lab_file(file: Path, lab: str | None) -> list[LabRows]:
         keys.append((scheme, round_id, date or ""))  # no date: a problem above, raised below
     if meta is not None:
         held = {"scheme": {k[0] for k in keys}, "round": {k[1] for k in keys},
-                "lab": {str(r[0]) for r in rows}}
+                "lab": {str(r[0]) for r in (*rows, *qual_rows)}}
         for key, got_keys in held.items():
             want = text_key(meta.get(key))
             if not want or got_keys - {want}:
                 problems.append(Problem(message=f"sheet 'round' gives {key} {want!r} but the "
                                         f"data sheet holds {sorted(got_keys)}", file=str(file),
                                         sheet="round"))
-    labs = sorted({r[0] for r in rows if r[0] is not None})
+    labs = sorted({r[0] for r in (*rows, *qual_rows) if r[0] is not None})
     chosen = lab if lab is not None else (labs[0] if len(labs) == 1 else None)
     for number, row in zip(numbers, rows):
         if chosen is not None and row[0] == chosen:
@@ -356,7 +402,7 @@ def read_lab_file(file: Path, lab: str | None) -> list[LabRows]:
                                      row_number=number)
     if problems:
         raise InputError(problems, summary=f"{file}: the scores have problems")
-    if not rows:
+    if not rows and not qual_rows:
         raise InputError.single("holds no score rows", file=str(file), sheet=sheet)
     if lab is None and len(labs) > 1:
         shown = ", ".join(labs[:10]) + (" ..." if len(labs) > 10 else "")
@@ -374,6 +420,15 @@ def read_lab_file(file: Path, lab: str | None) -> list[LabRows]:
     if len({(s, r) for s, r, _ in groups}) != len(groups):
         raise InputError.single("one round carries two different round dates", file=str(file))
     title = str(meta.get("title") or "") if meta else ""
+    qualitative = tuple(r for r in qual_rows if r[0] == chosen)
+    carries = meta is not None and text_key(meta.get("format")) == str(WORKBOOK_FORMAT_QUALITATIVE)
+    if meta is not None and qualitative and not groups:  # a round of qualitative measurands only
+        date = parse_date(meta.get("round_date"))
+        if date is None:
+            raise InputError.single("the round date is not an ISO date YYYY-MM-DD", file=str(file), sheet="round",
+                                    value=meta.get("round_date"))
+        groups[(text_key(meta.get("scheme")), text_key(meta.get("round")), date)] = []
+    # a lab sheet holds one round (checked above against sheet 'round'): its qualitative rows belong to it
     return [LabRows(scheme=s, round_id=r, round_date=d, lab=chosen, title=title, rows=tuple(v),
-                    warnings=tuple(warnings))
+                    warnings=tuple(warnings), qualitative=qualitative, carries_qualitative=carries)
             for (s, r, d), v in sorted(groups.items())]

@@ -14,7 +14,8 @@ errors as messages naming the file).
   queries nor 2000 bound parameters (SQLite limits those to 32766 by default since 3.32, 999
   before; "Limits In SQLite").
 * The queries read every released schema: a file of version 1 has no ``origin`` column and no
-  audit table, and is read as rounds of origin ``"lab"`` with an empty audit.
+  audit table, and is read as rounds of origin ``"lab"`` with an empty audit; a file before
+  version 5 has no ``qualitative`` table and is read as holding no qualitative rows.
 
 References
 ----------
@@ -33,8 +34,9 @@ from contextlib import contextmanager
 from pathlib import Path
 
 from roundscore.history import db as _db
-from roundscore.history.interface import (ROW_FIELDS, ArchiveReader, ArchiveStore, ArchiveWriter,
-                                          AuditEntry, HistoryQuery, Investigation, Laboratory, RoundRecord)
+from roundscore.history.interface import (QUALITATIVE_ROW_FIELDS, ROW_FIELDS, ArchiveReader, ArchiveStore,
+                                          ArchiveWriter, AuditEntry, HistoryQuery, Investigation, Laboratory,
+                                          RoundRecord)
 from roundscore.history.sqlite_schema import MIGRATIONS, Migration
 
 __all__ = ["SqliteArchive", "SqliteReader", "SqliteWriter"]
@@ -42,6 +44,9 @@ __all__ = ["SqliteArchive", "SqliteReader", "SqliteWriter"]
 _ROUND_FIELDS = ("scheme", "round_id", "round_date", "title", "settings", "stored_at", "origin")
 _AUDIT_FIELDS = ("replaced_at", "reason", "scheme", "round_id", "lab", "kind", "row")
 _COLUMNS = ", ".join(ROW_FIELDS)
+_QUALITATIVE_COLUMNS = ", ".join(QUALITATIVE_ROW_FIELDS)
+#: The schema version that added the qualitative table (migration 5).
+_QUALITATIVE_SINCE = 5
 #: The investigations table's columns in :class:`Investigation` field order (``by`` is ``by_name``).
 _INVESTIGATION_COLUMNS = ("scheme", "round_id", "lab", "measurand", "status", "cause", "action", "by_name",
                           "recorded_on", "stored_at")
@@ -158,7 +163,9 @@ class SqliteReader(ArchiveReader):
             "SELECT kind, row FROM round_tables WHERE scheme = ? AND round_id = ? "
             "ORDER BY kind, position", (scheme, round_id))]
 
-    def history_rows(self, query: HistoryQuery) -> list[tuple]:
+    @staticmethod
+    def _history_where(query: HistoryQuery) -> tuple[list[str], list[object]]:
+        """The WHERE clauses of a history query over a table ``s`` joined to ``rounds r``, and their values."""
         clauses = ["s.lab IN (SELECT value FROM json_each(?))"]
         args: list[object] = [json.dumps(list(query.labs))]
         for clause, value in (("s.scheme = ?", query.scheme), ("s.measurand = ?", query.measurand),
@@ -168,6 +175,10 @@ class SqliteReader(ArchiveReader):
             if value is not None:
                 clauses.append(clause)
                 args.append(value)
+        return clauses, args
+
+    def history_rows(self, query: HistoryQuery) -> list[tuple]:
+        clauses, args = self._history_where(query)
         sql = (f"SELECT s.scheme, s.round_id AS round, r.round_date, r.title, "
                f"{', '.join('s.' + c for c in ROW_FIELDS)} FROM scores s JOIN rounds r "
                f"ON r.scheme = s.scheme AND r.round_id = s.round_id WHERE {' AND '.join(clauses)} "
@@ -175,7 +186,29 @@ class SqliteReader(ArchiveReader):
         return self._rows(sql, args)
 
     def labs(self) -> list[str]:
-        return [r[0] for r in self._rows("SELECT DISTINCT lab FROM scores ORDER BY lab")]
+        if self.version() < _QUALITATIVE_SINCE:
+            return [r[0] for r in self._rows("SELECT DISTINCT lab FROM scores ORDER BY lab")]
+        return [r[0] for r in self._rows("SELECT lab FROM scores UNION SELECT lab FROM qualitative ORDER BY lab")]
+
+    def qualitative_rows(self, scheme: str, round_id: str, lab: str | None = None) -> list[tuple]:
+        if self.version() < _QUALITATIVE_SINCE:
+            return []
+        sql = f"SELECT {_QUALITATIVE_COLUMNS} FROM qualitative WHERE scheme = ? AND round_id = ?"
+        args: list[object] = [scheme, round_id]
+        if lab is not None:
+            sql += " AND lab = ?"
+            args.append(lab)
+        return self._rows(sql, args)
+
+    def qualitative_history_rows(self, query: HistoryQuery) -> list[tuple]:
+        if self.version() < _QUALITATIVE_SINCE:
+            return []
+        clauses, args = self._history_where(query)
+        sql = (f"SELECT s.scheme, s.round_id AS round, r.round_date, r.title, "
+               f"{', '.join('s.' + c for c in QUALITATIVE_ROW_FIELDS)} FROM qualitative s JOIN rounds r "
+               f"ON r.scheme = s.scheme AND r.round_id = s.round_id WHERE {' AND '.join(clauses)} "
+               "ORDER BY r.round_date, s.round_id, s.scheme, s.lab, s.measurand, s.item")
+        return self._rows(sql, args)
 
     def audit_entries(self) -> list[AuditEntry]:
         if self.version() < 2:
@@ -217,13 +250,21 @@ class SqliteWriter(SqliteReader, ArchiveWriter):
                                    (value, scheme, round_id))
 
     def remove_round(self, scheme: str, round_id: str) -> None:
-        for table in ("scores", "round_tables", "rounds"):  # rows before the round they refer to
+        tables = ("scores", "qualitative", "round_tables", "rounds")  # rows before the round they refer to
+        for table in tables if self.version() >= _QUALITATIVE_SINCE else tables[:1] + tables[2:]:
             self._conn.execute(f"DELETE FROM {table} WHERE scheme = ? AND round_id = ?",
                                (scheme, round_id))
 
     def remove_scores(self, scheme: str, round_id: str, lab: str) -> None:
-        self._conn.execute("DELETE FROM scores WHERE scheme = ? AND round_id = ? AND lab = ?",
-                           (scheme, round_id, lab))
+        for table in ("scores", "qualitative") if self.version() >= _QUALITATIVE_SINCE else ("scores",):
+            self._conn.execute(f"DELETE FROM {table} WHERE scheme = ? AND round_id = ? AND lab = ?",
+                               (scheme, round_id, lab))
+
+    def add_qualitative(self, scheme: str, round_id: str, rows: Sequence[tuple]) -> None:
+        marks = ", ".join("?" * (len(QUALITATIVE_ROW_FIELDS) + 2))
+        self._conn.executemany(
+            f"INSERT INTO qualitative (scheme, round_id, {_QUALITATIVE_COLUMNS}) VALUES ({marks})",
+            ((scheme, round_id, *r) for r in rows))
 
     def add_scores(self, scheme: str, round_id: str, rows: Sequence[tuple]) -> None:
         marks = ", ".join("?" * (len(ROW_FIELDS) + 2))

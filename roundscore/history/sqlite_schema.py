@@ -114,7 +114,21 @@ _MIGRATION_4 = Migration(
     ),
 )
 
+_MIGRATION_5 = Migration(
+    version=5,
+    description="Add the qualitative results: one row per lab, nominal or ordinal measurand and test item.",
+    statements=(
+        "CREATE TABLE qualitative (\n"
+        "        scheme TEXT NOT NULL, round_id TEXT NOT NULL, lab TEXT NOT NULL, measurand TEXT NOT NULL,\n"
+        "        item TEXT NOT NULL DEFAULT '', reported TEXT, assigned TEXT, agreement TEXT,\n"
+        "        deviation INTEGER, signal TEXT, note TEXT,\n"
+        "        PRIMARY KEY (scheme, round_id, lab, measurand, item),\n"
+        "        FOREIGN KEY (scheme, round_id) REFERENCES rounds (scheme, round_id))",
+        "CREATE INDEX qualitative_by_lab ON qualitative (lab, measurand)",
+    ),
+)
+
 #: The released migrations in order; ``MIGRATIONS[i]`` brings a file to version ``i + 1``.
-MIGRATIONS: tuple[Migration, ...] = (_MIGRATION_1, _MIGRATION_2, _MIGRATION_3, _MIGRATION_4)
+MIGRATIONS: tuple[Migration, ...] = (_MIGRATION_1, _MIGRATION_2, _MIGRATION_3, _MIGRATION_4, _MIGRATION_5)
 #: The schema version this roundscore writes.
 SCHEMA_VERSION = len(MIGRATIONS)

@@ -70,8 +70,10 @@ from roundscore.history.sheets import (FLOAT_FIELDS as _FLOAT_FIELDS, ROW_FIELDS
                                        parse_date as _parse_date, plain as _plain, read_lab_file as _read_lab_file,
                                        text_key as _text, unquote as _unquote)
 from roundscore.history.backends import open_store
+from roundscore.history import qualitative as _qualitative
 from roundscore.history.interface import (HISTORY_ROW_FIELDS as _HISTORY_ROW_FIELDS,
-                                          ArchiveWriter, AuditEntry, HistoryQuery, RoundRecord,
+                                          QUALITATIVE_ROW_FIELDS as _QUALITATIVE_FIELDS, ArchiveWriter, AuditEntry,
+                                          HistoryQuery, RoundRecord,
                                           now as _now)
 # The SQLite file's names, kept here where they have always been importable from.
 from roundscore.history.db import APPLICATION_ID, ARCHIVE_ENV, archive_path
@@ -84,6 +86,7 @@ if TYPE_CHECKING:  # only for annotations: the archive does not depend on the ev
 
 __all__ = ["ARCHIVE_ENV", "APPLICATION_ID", "SCORE_COLUMNS", "HISTORY_COLUMNS", "MIGRATIONS", "SCHEMA_VERSION",
            "StoreOutcome", "archive_path", "open_store", "store_round", "add_files", "lab_history",
+           "lab_qualitative_history", "QUALITATIVE_HISTORY_COLUMNS",
            "archived_labs", "round_history", "store_evaluation", "check_round_keys"]
 
 #: Significant digits of score floats in the content hash: the precision of the pipeline's
@@ -156,7 +159,8 @@ def _table_rows(frame: pd.DataFrame | None) -> list[str]:
 
 
 def _digest(round_date: str, score_rows: Iterable[tuple], *, title: str | None = None,
-            settings: str | None = None, tables: Sequence[tuple[str, str]] = ()) -> str:
+            settings: str | None = None, tables: Sequence[tuple[str, str]] = (),
+            qualitative: Sequence[tuple] = ()) -> str:
     """Canonical content hash: sorted rows, floats as ``repr`` (via JSON), missing as null.
 
     Score floats are first rounded to :data:`HASH_DIGITS` significant digits:
@@ -164,7 +168,8 @@ def _digest(round_date: str, score_rows: Iterable[tuple], *, title: str | None =
     (xlsxwriter writes 16, Excel computes with 15), so the same round read
     from ``scores.csv`` and from ``LAB.xlsx`` must hash equally.  Changes
     beyond the 12th digit are not content changes; the value stored first is
-    the one kept.
+    the one kept.  Qualitative rows enter the hash only when there are some, so
+    a round without them hashes as it did before they were kept.
     """
     rows = ([float(f"{v:.{HASH_DIGITS}g}") if isinstance(v, float) else v for v in r]
             for r in score_rows)
@@ -175,18 +180,23 @@ def _digest(round_date: str, score_rows: Iterable[tuple], *, title: str | None =
         body["settings"] = settings
     if tables:
         body["tables"] = sorted(list(t) for t in tables)
+    if qualitative:
+        body["qualitative"] = sorted((list(r) for r in qualitative), key=lambda r: (r[0], r[1], r[2]))
     return hashlib.sha256(_canonical_json(body).encode("utf-8")).hexdigest()
 
 
 # --------------------------------------------------------------------------- writing
 
 def _audit(tx: ArchiveWriter, *, scheme: str, round_id: str, lab: str | None,
-           reason: str, whole_round: bool) -> None:
-    """Copy records about to be replaced into the audit (round record, score rows, tables)."""
+           reason: str, whole_round: bool, qualitative: bool = True) -> None:
+    """Copy records about to be replaced into the audit (round record, score rows, qualitative rows unless
+    ``qualitative`` is false, tables)."""
     rec = tx.find_round(scheme, round_id)
     entries = [(lab, "round", _canonical_json(rec.as_dict()))] if rec is not None else []
     entries += [(row[0], "score", _canonical_json(dict(zip(_ROW_FIELDS, row))))
                 for row in tx.score_rows(scheme, round_id, lab)]
+    entries += [(row[0], "qualitative", _canonical_json(dict(zip(_QUALITATIVE_FIELDS, row))))
+                for row in (tx.qualitative_rows(scheme, round_id, lab) if qualitative else [])]
     if whole_round:
         entries += [(None, kind, row) for kind, row in tx.round_tables(scheme, round_id)]
     when = _now()
@@ -208,7 +218,8 @@ def store_round(path: str | os.PathLike[str] | None, *, scheme: str, round_id: s
                 round_date: str | _dt.date, title: str, settings: dict,
                 statistics: pd.DataFrame, scores: pd.DataFrame,
                 precision: pd.DataFrame | None = None, replace: bool = False,
-                reason: str = "replaced on request (replace=True)") -> StoreOutcome:
+                reason: str = "replaced on request (replace=True)",
+                qualitative: pd.DataFrame | None = None) -> StoreOutcome:
     """Store a whole evaluated round (coordinator side).
 
     Parameters
@@ -221,6 +232,9 @@ def store_round(path: str | os.PathLike[str] | None, *, scheme: str, round_id: s
         The round's settings, stored as canonical JSON (non-JSON values as text).
     statistics, precision : pandas.DataFrame
         Per-measurand tables, stored row by row as JSON (any columns).
+    qualitative : pandas.DataFrame, optional
+        The nominal and ordinal measurands' results, one row per lab x measurand x item with the
+        ``qualitative.csv`` columns (:data:`roundscore.history.qualitative.QUALITATIVE_ROW_FIELDS`).
     scores : pandas.DataFrame
         Every lab x measurand row with the ``scores.csv`` columns
         (:data:`SCORE_COLUMNS`; ``scheme``/``round``/``round_date`` optional and,
@@ -256,13 +270,22 @@ def store_round(path: str | os.PathLike[str] | None, *, scheme: str, round_id: s
     rows, row_problems = _normalise_rows(scores.to_dict(orient="records"), file="scores table",
                                          sheet=None, first_row=1)
     problems += row_problems
+    qual_rows: list[tuple] = []
+    if qualitative is not None:
+        missing = [c for c in _QUALITATIVE_FIELDS if c not in qualitative.columns]
+        if missing:
+            raise InputError.single(f"qualitative table: missing columns: {', '.join(missing)}")
+        qual_rows, qual_problems = _qualitative.normalise_rows(
+            qualitative.to_dict(orient="records"), file="qualitative table", sheet=None,
+            row_numbers=range(1, len(qualitative) + 1))
+        problems += qual_problems
     if problems:
         raise InputError(problems, summary="the scores table has problems")
     settings_json = _canonical_json(settings)
     tables = ([("precision", r) for r in _table_rows(precision)]
               + [("statistics", r) for r in _table_rows(statistics)])
     title = str(title or "")
-    new_hash = _digest(date, rows, title=title, settings=settings_json, tables=tables)
+    new_hash = _digest(date, rows, title=title, settings=settings_json, tables=tables, qualitative=qual_rows)
     label = f"round {round_id!r} of scheme {scheme!r}"
     with open_store(path).writing() as tx:
         old = tx.find_round(scheme, round_id)
@@ -270,7 +293,8 @@ def store_round(path: str | os.PathLike[str] | None, *, scheme: str, round_id: s
         if old is not None:
             old_hash = _digest(old.round_date, tx.score_rows(scheme, round_id),
                                title=old.title, settings=old.settings,
-                               tables=tx.round_tables(scheme, round_id))
+                               tables=tx.round_tables(scheme, round_id),
+                               qualitative=tx.qualitative_rows(scheme, round_id))
             if old_hash == new_hash:
                 return StoreOutcome(status="unchanged", rows=len(rows), scheme=scheme,
                                     round_id=round_id,
@@ -288,13 +312,16 @@ def store_round(path: str | os.PathLike[str] | None, *, scheme: str, round_id: s
         tx.add_round(RoundRecord(scheme=scheme, round_id=round_id, round_date=date, title=title,
                                  settings=settings_json, stored_at=_now(), origin="coordinator"))
         tx.add_scores(scheme, round_id, rows)
+        if qual_rows:
+            tx.add_qualitative(scheme, round_id, qual_rows)
         tx.add_tables(scheme, round_id, [(kind, i, r) for kind, frame in
                                          (("statistics", statistics), ("precision", precision))
                                          for i, r in enumerate(_table_rows(frame))])
     verb = "replaced" if status == "replaced" else "added"
     extra = "; the previous content is kept in the audit table" if status == "replaced" else ""
+    qual = f" and {len(qual_rows)} qualitative results" if qual_rows else ""
     return StoreOutcome(status=status, rows=len(rows), scheme=scheme, round_id=round_id,
-                        message=f"{label}: {verb} {len(rows)} score rows{extra}")
+                        message=f"{label}: {verb} {len(rows)} score rows{qual}{extra}")
 
 
 # --------------------------------------------------------------------------- lab side: files
@@ -307,10 +334,14 @@ def _store_lab_rows(tx: ArchiveWriter, item: _LabRows, *, replace: bool, file: s
                                 lab=item.lab, file=file, warnings=item.warnings)
     old_round = tx.find_round(item.scheme, item.round_id)
     old_rows = tx.score_rows(item.scheme, item.round_id, item.lab)
+    # a scores.csv (or a sheet written before qualitative results were kept) cannot carry qualitative rows:
+    # it is compared on its score rows, and the qualitative rows archived from the lab's sheet stay
+    kept = tx.qualitative_rows(item.scheme, item.round_id, item.lab)
+    old_qual = kept if item.carries_qualitative else []
     status: Status = "added"
-    if old_round is not None and (old_rows or old_round.round_date != item.round_date):
-        old_hash = _digest(old_round.round_date, old_rows)
-        if old_hash == _digest(item.round_date, item.rows):
+    if old_round is not None and (old_rows or old_qual or old_round.round_date != item.round_date):
+        old_hash = _digest(old_round.round_date, old_rows, qualitative=old_qual)
+        if old_hash == _digest(item.round_date, item.rows, qualitative=item.qualitative):
             return outcome(status="unchanged", message=f"{label} is already archived with "
                            "identical content; nothing changed")
         if not replace:
@@ -320,8 +351,10 @@ def _store_lab_rows(tx: ArchiveWriter, item: _LabRows, *, replace: bool, file: s
             raise ArchiveConflict(f"{file}: {label} is already archived with {what}; use "
                                "--replace to replace it (the old rows are kept in the audit table)")
         _audit(tx, scheme=item.scheme, round_id=item.round_id, lab=item.lab, reason=reason,
-               whole_round=False)
+               whole_round=False, qualitative=item.carries_qualitative)
         tx.remove_scores(item.scheme, item.round_id, item.lab)
+        if not item.carries_qualitative:
+            tx.add_qualitative(item.scheme, item.round_id, kept)
         tx.update_round(item.scheme, item.round_id, round_date=item.round_date)
         status = "replaced"
     if old_round is None:
@@ -331,10 +364,13 @@ def _store_lab_rows(tx: ArchiveWriter, item: _LabRows, *, replace: bool, file: s
     elif item.title and not old_round.title:
         tx.update_round(item.scheme, item.round_id, title=item.title)
     tx.add_scores(item.scheme, item.round_id, item.rows)
+    if item.qualitative:
+        tx.add_qualitative(item.scheme, item.round_id, item.qualitative)
+    qual = f" and {len(item.qualitative)} qualitative results" if item.qualitative else ""
     if status == "replaced":
-        msg = f"{label}: replaced {len(item.rows)} rows; the previous rows are kept in the audit table"
+        msg = f"{label}: replaced {len(item.rows)} rows{qual}; the previous rows are kept in the audit table"
     else:
-        msg = f"{label}: added {len(item.rows)} rows"
+        msg = f"{label}: added {len(item.rows)} rows{qual}"
     return outcome(status=status, message=msg)
 
 
@@ -466,6 +502,29 @@ def lab_history(path: str | os.PathLike[str] | None, *, lab: str | Sequence[str]
     return frame.loc[:, list(HISTORY_COLUMNS)].reset_index(drop=True)
 
 
+#: Columns of :func:`lab_qualitative_history`'s frame.
+QUALITATIVE_HISTORY_COLUMNS: tuple[str, ...] = _qualitative.QUALITATIVE_HISTORY_COLUMNS
+
+
+def lab_qualitative_history(path: str | os.PathLike[str] | None, *, lab: str | Sequence[str],
+                            scheme: str | None = None, measurand: str | None = None,
+                            since: str | _dt.date | None = None) -> pd.DataFrame:
+    """One lab's archived qualitative results (nominal and ordinal measurands), one row per round x
+    measurand x item, ordered by round date, round, scheme, lab, measurand and item.
+
+    Columns :data:`QUALITATIVE_HISTORY_COLUMNS` (``deviation`` a nullable integer; ``item`` ``""`` where the
+    measurand has none); empty with these columns when nothing matches or the archive predates them.
+    """
+    labs = [lab] if isinstance(lab, str) else list(lab)
+    if not labs or not all(isinstance(x, str) and x for x in labs):
+        raise InputError.single("lab: give one or more lab codes", value=lab)
+    query = HistoryQuery(labs=tuple(sorted(set(labs))), scheme=scheme, measurand=measurand,
+                         since=_date_arg("since", since))
+    with open_store(path).reading() as reader:
+        rows = reader.qualitative_history_rows(query) if reader is not None else []
+    return _qualitative.qualitative_frame(rows)
+
+
 def _result_column(values: pd.Series) -> pd.Series:
     """Results as floats; when some are censored (text such as ``"<0.1"``) an object column
     holding floats and those texts."""
@@ -545,8 +604,9 @@ def store_evaluation(path: str | os.PathLike[str], ev: RoundEvaluation, *, repla
     A thin layer over :func:`store_round` that takes the pieces from the
     evaluation: ``ev.round.settings_dict()``, ``ev.statistics``,
     ``ev.extras["precision"]`` (absent when the round has no precision stage)
-    and ``ev.scores`` (the ``scores.csv`` columns; ``rank`` and ``n_scored``
-    are not stored since they follow from the scores).
+    ``ev.scores`` (the ``scores.csv`` columns; ``rank`` and ``n_scored``
+    are not stored since they follow from the scores) and ``ev.extras["qualitative"]``
+    (the nominal and ordinal measurands' results, when the round has any).
 
     Raises
     ------
@@ -558,7 +618,9 @@ def store_evaluation(path: str | os.PathLike[str], ev: RoundEvaluation, *, repla
     rnd = ev.round
     check_round_keys(rnd)
     precision = ev.extras.get("precision")
+    qualitative = ev.extras.get("qualitative")
     return store_round(path, scheme=rnd.scheme, round_id=rnd.id, round_date=rnd.date,
                        title=rnd.title, settings=rnd.settings_dict(), statistics=ev.statistics,
                        scores=ev.scores, precision=precision if isinstance(precision, pd.DataFrame)
-                       else None, replace=replace, reason=reason)
+                       else None, replace=replace, reason=reason,
+                       qualitative=qualitative if isinstance(qualitative, pd.DataFrame) else None)

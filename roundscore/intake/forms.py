@@ -23,6 +23,14 @@ arrival and the date of analysis. Read back by :func:`form_receipt` (blank
 allowed; a date that is not one is refused, naming the cell); a form written
 before these fields existed has no such keys and reads as before.
 
+Nominal and ordinal measurands (:mod:`roundscore.model.qualitative`) get a table of their own below the
+instructions, headed "Qualitative results": one row per measurand and test item (the items round.toml
+declares; one row with a free item cell when it declares none), the result cell a drop-down list of the
+measurand's categories and the item cell one of its items. The lists are held on the hidden form-info sheet
+(a spreadsheet's typed list is comma-separated and at most 255 characters). form-info gives the table's
+header row and its number of rows (``qualitative_header_row``, ``qualitative_rows``); they read back to the
+same records as the long layout's ``item`` and ``value`` columns (:func:`records_from_form`).
+
 The heading block holds that choice in words ("Decimal mark": point or
 comma, a drop-down list). It only matters for numbers typed as text (a
 spreadsheet stores a typed number as a number, which is never ambiguous);
@@ -64,6 +72,13 @@ DECIMAL_CELL = "B8"
 #: The choices offered in that cell (a spreadsheet's list is comma-separated, so no examples in them);
 #: the reader takes the first word of what the cell holds.
 DECIMAL_CHOICES = {"point": "point", "comma": "comma"}
+
+
+#: The qualitative results' table (its header row is form-info's ``qualitative_header_row``).
+QUALITATIVE_HEADING = "Qualitative results"
+QUALITATIVE_FORM_COLUMNS = ("Measurand", "Item", "Result", "Method", "Comment")
+#: The first column of form-info holding the drop-down lists (one column per list, the list from row 2).
+_LIST_COLUMN = 3
 
 
 def _columns(replicates: int) -> list[str]:
@@ -153,26 +168,109 @@ def write_form(rnd: Round, lab: str, path: Path, *, name: str | None = None,
     ]
     for i, t in enumerate(notes):
         ws.write(end + i, 0, t, note)
+    info = wb.add_worksheet(INFO_SHEET)
+    qual_head, qual_rows = _qualitative_table(rnd, ws, info, end + len(notes) + 1,
+                                              {"head": head, "locked": locked, "entry": entry, "bold": bold})
+    last = qual_head - 1 + qual_rows if qual_rows else end + len(notes) - 1  # the printed area's last row
     widths = [22, 10] + [12] * reps + [14] * 3 + [28] * 2
     # printed one page wide on the round's paper, the table head on every page (support/sheetprint.py)
     print_layout(ws, paper=rnd.paper, header=(rnd.id, f"Laboratory {lab}", "Submission form"),
-                 head_rows=(HEADER_ROW - 1, HEADER_ROW - 1), area=(0, 0, end + len(notes) - 1, len(widths) - 1),
+                 head_rows=(HEADER_ROW - 1, HEADER_ROW - 1), area=(0, 0, last, len(widths) - 1),
                  widths=widths)
     ws.freeze_panes(HEADER_ROW, 1)
     ws.protect("", {"select_locked_cells": True, "select_unlocked_cells": True,
                     "format_columns": True})
-    info = wb.add_worksheet(INFO_SHEET)
     info.write_row(0, 0, ["key", "value"], bold)
     pairs = [("generator", "roundscore"), ("format", FORM_FORMAT), ("round", rnd.id), ("lab", lab),
              ("replicates", reps), ("header_row", HEADER_ROW), ("measurands", len(rnd.measurands)),
              ("decimal", rnd.decimal or ""), ("decimal_cell", DECIMAL_CELL),
-             *((f"{key}_cell", cell) for key, cell in receipt_cells.items())]
+             *((f"{key}_cell", cell) for key, cell in receipt_cells.items()),
+             *((("qualitative_header_row", qual_head), ("qualitative_rows", qual_rows)) if qual_rows else ())]
     for r, (k, v) in enumerate(pairs, start=1):
         info.write(r, 0, k)
         info.write(r, 1, v)
     info.protect("")
     info.hide()  # read by the tool, never printed
     wb.close()
+
+
+def _qualitative_table(rnd: Round, ws, info, top: int, fm: dict) -> tuple[int, int]:
+    """The qualitative results' table from 0-based row ``top`` (heading, header, rows); its drop-down lists on
+    ``info``. Returns the 1-based header row and the number of rows (0, 0 without qualitative measurands)."""
+    if not rnd.qualitative:
+        return 0, 0
+    ws.write(top, 0, QUALITATIVE_HEADING, fm["bold"])
+    ws.write(top, 1, "choose the result from the list; one row per test item", None)
+    head = top + 1
+    for j, c in enumerate(QUALITATIVE_FORM_COLUMNS):
+        ws.write(head, j, c, fm["head"])
+    lists: dict[tuple[str, ...], str] = {}
+
+    def source(values: tuple[str, ...]) -> str:
+        """The form-info range holding ``values`` (one column per distinct list)."""
+        if values not in lists:
+            col = _LIST_COLUMN + len(lists)
+            info.write_column(1, col, list(values))
+            first = xlsxwriter.utility.xl_rowcol_to_cell(1, col, row_abs=True, col_abs=True)
+            last = xlsxwriter.utility.xl_rowcol_to_cell(len(values), col, row_abs=True, col_abs=True)
+            lists[values] = f"='{INFO_SHEET}'!{first}:{last}"
+        return lists[values]
+
+    r = head + 1
+    for q in rnd.qualitative.values():
+        for item in q.items or ("",):
+            ws.write_string(r, 0, q.name, fm["locked"])
+            if item:
+                ws.write_string(r, 1, item, fm["entry"])
+            else:
+                ws.write_blank(r, 1, None, fm["entry"])
+            for j in range(2, len(QUALITATIVE_FORM_COLUMNS)):
+                ws.write_blank(r, j, None, fm["entry"])
+            if q.items:
+                ws.data_validation(r, 1, r, 1, {"validate": "list", "source": source(q.items),
+                                                "error_title": "Item",
+                                                "error_message": f"Choose one of the test items of {q.name}."})
+            order = " (lowest first)" if q.kind == "ordinal" else ""
+            ws.data_validation(r, 2, r, 2, {"validate": "list", "source": source(q.categories),
+                                            "input_title": q.label or q.name,
+                                            "input_message": f"One of: {', '.join(q.categories)}{order}"[:255],
+                                            "error_title": "Result",
+                                            "error_message": f"Choose one of the categories of {q.name}."[:255]})
+            ws.data_validation(r, 3, r, 4, {"validate": "length", "criteria": "<=", "value": 200,
+                                            "error_message": "At most 200 characters."})
+            r += 1
+    return head + 1, r - head - 1
+
+
+def _qualitative_records(rnd: Round, results: SheetRows, kv: dict, lab: str, decimal):
+    """The records of the qualitative table (none on a form without one); a blank result is no record."""
+    from roundscore.model.table import Record
+
+    try:
+        head, n = int(kv.get("qualitative_header_row") or 0), int(kv.get("qualitative_rows") or 0)
+    except (TypeError, ValueError, OverflowError):
+        return [], [Problem(message="the form-info sheet is damaged (qualitative_header_row, qualitative_rows)",
+                            file=results.file, sheet=INFO_SHEET)]
+    if not n:
+        return [], []
+    rows = results.rows
+    header = [str(c).strip() if c is not None else "" for c in (rows[head - 1] if 0 < head <= len(rows) else [])]
+    if tuple(header[:len(QUALITATIVE_FORM_COLUMNS)]) != QUALITATIVE_FORM_COLUMNS:
+        return [], [Problem(message="the qualitative results' header was changed; expected: "
+                                    + ", ".join(QUALITATIVE_FORM_COLUMNS), file=results.file, sheet=results.sheet,
+                            row=head, hint="return the form with its tables as they were sent")]
+    cols = QUALITATIVE_FORM_COLUMNS
+    places = {"measurand": (0, cols[0]), "item": (1, cols[1]), "value": (2, cols[2]), "method": (3, cols[3]),
+              "comment": (4, cols[4])}
+    records = []
+    for i in range(head, min(head + n, len(rows))):
+        r = list(rows[i]) + [None] * (len(cols) - len(rows[i]))
+        if r[0] is None or str(r[0]).strip() == "":
+            continue
+        records.append(Record(lab=lab, measurand=r[0], replicate=1, value=r[2], item=r[1], method=r[3],
+                              comment=r[4], file=results.file, sheet=results.sheet, row=i + 1, decimal=decimal,
+                              cols=places))
+    return records, []
 
 
 def _write_receipt_fields(wb, ws, bold, col: int) -> dict[str, str]:
@@ -539,4 +637,5 @@ def records_from_form(rnd: Round, results: SheetRows, info: SheetRows):
                 k=r[iu + 2], method=r[iu + 3], comment=r[iu + 4],
                 file=file, sheet=results.sheet, row=i + 1, decimal=decimal, cols=places[rep - 1],
             ))
-    return records, problems
+    qual, qual_problems = _qualitative_records(rnd, results, kv, lab, decimal)
+    return records + qual, problems + qual_problems

@@ -227,13 +227,17 @@ def _duplicate_forms(frame) -> list[Problem]:
     A lab's second form repeats every result of its first: that is one
     problem, said once with both files, not one per result.
     """
-    dup = frame.duplicated(["lab", "measurand", "replicate"], keep="first").to_numpy()
+    keys = ["lab", "measurand", "replicate"]
+    if "item" in frame.columns:  # a qualitative measurand's test items are results of their own
+        frame = frame.assign(item=frame["item"].fillna("").astype(str))
+        keys.append("item")
+    dup = frame.duplicated(keys, keep="first").to_numpy()
     if not dup.any():
         return []
-    first = frame[~dup].set_index(["lab", "measurand", "replicate"])["file"]
+    first = frame[~dup].set_index(keys)["file"]
     found: dict[tuple[str, str, str], int] = {}
-    for r in frame[dup].itertuples(index=False):
-        key = (r.file, r.lab, first.loc[(r.lab, r.measurand, r.replicate)])
+    for r in frame[dup].to_dict(orient="records"):
+        key = (r["file"], r["lab"], first.loc[tuple(r[k] for k in keys)])
         found[key] = found.get(key, 0) + 1
     return [Problem(message=f"lab {lab} returned two forms: this one and {other} ({n} result"
                             f"{'s' if n != 1 else ''} given in both)",

@@ -29,7 +29,8 @@ from typing import Literal
 __all__ = ["QualitativeKind", "QualitativeMethod", "QualitativeSettings", "normalise", "NEGATIVE_WORDS",
            "DEFAULT_WARNING_STEPS", "DEFAULT_ACTION_STEPS", "MAX_CATEGORIES", "QUALITATIVE_RESULT",
            "QUALITATIVE_COLUMNS", "QUALITATIVE_SUMMARY_COLUMNS", "DISTRIBUTION_COLUMNS", "QUALITATIVE_METHODS_COLUMNS",
-           "Agreement", "AGREEMENTS", "QualitativeItem", "WRONG_AGREEMENTS"]
+           "Agreement", "AGREEMENTS", "QualitativeItem", "WRONG_AGREEMENTS", "QUALITATIVE_SHEET",
+           "QUALITATIVE_COUNT_KEY"]
 
 #: ``kind`` of a qualitative measurand (a measurand without ``kind`` is quantitative).
 QualitativeKind = Literal["nominal", "ordinal"]
@@ -125,6 +126,10 @@ class QualitativeSettings:
 
 #: ``qualitative.csv`` (fixed by contract): one row per lab × measurand × item.
 QUALITATIVE_COLUMNS = ("lab", "measurand", "item", "reported", "assigned", "agreement", "deviation", "signal", "note")
+#: The lab sheet's hidden sheet of the lab's ``qualitative.csv`` rows with a digest each (read back by
+#: ``history add``), and the key of sheet ``round`` counting them (roundscore.outputs.lab_workbook).
+QUALITATIVE_SHEET = "qualitative_data"
+QUALITATIVE_COUNT_KEY = "qualitative_rows"
 #: ``qualitative_summary.csv`` (fixed by contract): one row per measurand × item; the interval is Wilson's
 #: (roundscore.stats.qualitative.INTERVAL_METHOD) at ``[round] confidence``.
 QUALITATIVE_SUMMARY_COLUMNS = ("measurand", "item", "assigned", "n", "agreeing", "proportion", "ci_low", "ci_high",

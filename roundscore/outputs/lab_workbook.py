@@ -31,6 +31,7 @@ import xlsxwriter
 
 from roundscore.model.digest import DIGEST_KEY, ROW_DIGEST_COLUMN, row_digest, sheet_digest, sheet_value
 from roundscore.model.evaluation import SCORE_COLUMNS, STATE_SIDE
+from roundscore.model.qualitative import QUALITATIVE_COLUMNS, QUALITATIVE_COUNT_KEY, QUALITATIVE_SHEET
 from roundscore.model.scores import SCORE_FAMILIES, SCORE_FIELD, ScoreFamily, family_of
 from roundscore.outputs.guidance import GUIDANCE_TITLE, how_to_read
 from roundscore.outputs.look import CAUTION, LIMIT_LINE, PALETTE
@@ -40,10 +41,15 @@ from roundscore.outputs.workbook_base import (CHART_HEIGHT, CHART_ROWS, FIXED_TI
                                               score_chart, score_table_columns, set_widths, stage_sheet, value_axis,
                                               write_table, write_value)
 
-__all__ = ["write_lab_workbook", "lab_payload", "LabPayload", "LAB_FORMAT", "LAB_FOLD", "SUMMARY_POINTER"]
+__all__ = ["write_lab_workbook", "lab_payload", "LabPayload", "LAB_FORMAT", "LAB_FORMAT_QUALITATIVE", "LAB_FOLD",
+           "QUALITATIVE_SHEET", "SUMMARY_POINTER"]
 
 #: Version of the layout of the ``data`` and ``round`` sheets (read back by ``history add``).
 LAB_FORMAT = 1
+#: The layout when the lab has qualitative results: format 1 and a hidden ``qualitative_data`` sheet (the
+#: ``qualitative.csv`` columns and a digest per row, counted by key ``qualitative_rows`` of the ``round`` sheet), so a
+#: roundscore that reads only format 1 refuses the file instead of storing half of it.
+LAB_FORMAT_QUALITATIVE = 2
 
 SUMMARY_POINTER = ("The round's statistics for every measurand (assigned value and how it was set, robust mean "
                    "and SD, median, MADe, nIQR, labs used) are in the summary workbook round-summary.xlsx, "
@@ -406,13 +412,34 @@ def _machine_sheets(wb, fm: Formats, payload: LabPayload, table: dict[str, list]
     data.hide()
     rows, digests = _data_rows(table)
     write_table(data, fm, 0, rows, [*SCORE_COLUMNS, ROW_DIGEST_COLUMN])
+    qual = payload.extras.get("qualitative")
+    qual_digests = _qualitative_sheet(wb, fm, qual) if qual is not None and len(qual) else []
     meta = wb.add_worksheet("round")
     meta.hide()
-    pairs: list[tuple[str, Any]] = [("generator", "roundscore"), ("format", LAB_FORMAT), ("scheme", rd.scheme),
-                                    ("round", rd.id), ("round_date", rd.date), ("lab", payload.lab),
-                                    ("title", rd.title)]
-    pairs.append((DIGEST_KEY, sheet_digest(pairs, digests)))
+    pairs: list[tuple[str, Any]] = [("generator", "roundscore"),
+                                    ("format", LAB_FORMAT_QUALITATIVE if qual_digests else LAB_FORMAT),
+                                    ("scheme", rd.scheme), ("round", rd.id), ("round_date", rd.date),
+                                    ("lab", payload.lab), ("title", rd.title)]
+    if qual_digests:
+        pairs.append((QUALITATIVE_COUNT_KEY, len(qual_digests)))
+    pairs.append((DIGEST_KEY, sheet_digest(pairs, digests + qual_digests)))
     meta.write_row(0, 0, ["key", "value"], fm.head)
     for i, (k, v) in enumerate(pairs, start=1):
         meta.write_string(i, 0, k)
         write_value(meta, i, 1, v)
+
+
+def _qualitative_sheet(wb, fm: Formats, frame: pd.DataFrame) -> list[str]:
+    """The hidden ``qualitative_data`` sheet: the lab's rows of ``qualitative.csv`` and each row's digest (the same
+    digest as the ``data`` rows'); returns the digests, which enter the whole sheet's digest."""
+    ws = wb.add_worksheet(QUALITATIVE_SHEET)
+    ws.hide()
+    values, n = columns_of(frame, list(QUALITATIVE_COLUMNS))
+    values = {c: [None if v == "" else v for v in values[c]] for c in QUALITATIVE_COLUMNS}
+    digests = [row_digest([values[c][i] for c in QUALITATIVE_COLUMNS]) for i in range(n)]
+    ws.write_row(0, 0, [*QUALITATIVE_COLUMNS, ROW_DIGEST_COLUMN], fm.head)
+    for i in range(n):
+        for j, c in enumerate(QUALITATIVE_COLUMNS):
+            write_value(ws, i + 1, j, values[c][i])
+        ws.write_string(i + 1, len(QUALITATIVE_COLUMNS), digests[i])
+    return digests
