@@ -20,6 +20,7 @@ References
 from __future__ import annotations
 
 import math
+import re
 from collections.abc import Sequence
 from dataclasses import dataclass
 from decimal import Decimal, InvalidOperation, localcontext
@@ -52,6 +53,14 @@ _SAFE_SPAN = 900
 
 #: Mantissa bits of a binary64 float (IEEE 754).
 _MANTISSA_BITS = 53
+
+#: Plain decimals, one a line: an optional sign, digits, an optional point and fraction digits (no exponent, no
+#: space): the texts :func:`_integer_centred` can centre in integers.
+_PLAIN = re.compile(r"[-+]?[0-9]+(?:\.[0-9]*)?(?:\n[-+]?[0-9]+(?:\.[0-9]*)?)*")
+#: Largest power of ten a binary64 float holds exactly (5**22 < 2**53).
+_EXACT_POWER = 22
+#: Bound on |value × 10**E| below which the scaled float rounds to the exact integer (see _integer_centred).
+_SCALED_BOUND = 2.0**49
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -179,6 +188,46 @@ def grouped_fsum(x: np.ndarray, starts: np.ndarray) -> np.ndarray:
         out[zero] = by_fsum(zero)
     return out
 
+def _integer_centred(items: list, offset: OffsetChoice) -> Centred | None:
+    """:func:`centred` of plain decimal texts done in integers, bit for bit; None when it cannot be proved so.
+
+    Every text is ``N_i / 10**E`` with ``E`` the most fraction digits of any
+    text and ``N_i`` an integer. With ``v_i = float(text_i)`` (correctly
+    rounded: ``v_i = N_i/10**E·(1 + δ)``, ``|δ| ≤ 2**-53``) and ``10**E``
+    exact (``E ≤ 22``), the float product ``v_i·10**E`` is ``N_i(1 + ε)``
+    with ``|ε| < 2**-51``; when ``|v_i·10**E| < 2**49`` its error is below
+    ``2**49·2**-51 = 1/4``, so rounding it to the nearest integer gives
+    ``N_i`` exactly. The differences ``D_i = N_i − N_off`` are then exact in
+    int64 and as floats (``|D_i| < 2**51``), and ``float(D_i) / 10**E`` is
+    one IEEE division of exact operands: the exact difference rounded once to
+    the nearest float (ties to even), which is what ``float(Decimal(text_i) −
+    Decimal(text_off))`` gives. The offset is the same text picked the same
+    way (a stable order of equal values), kept as its own ``Decimal``.
+
+    Anything else (an exponent, a space, more than 22 fraction digits, values
+    too large for the bound, a negative zero whose decimal difference may be
+    −0) returns None and the caller centres in ``Decimal``.
+    """
+    if not items or not all(type(t) is str for t in items):
+        return None
+    joined = "\n".join(items)
+    if _PLAIN.fullmatch(joined) is None:
+        return None
+    points = [t.find(".") for t in items]
+    e = max((len(t) - 1 - i) if i >= 0 else 0 for t, i in zip(items, points))
+    if e > _EXACT_POWER:
+        return None
+    scale = float(10**e)
+    scaled = np.fromiter(map(float, items), dtype=float, count=len(items)) * scale
+    if not np.all(np.abs(scaled) < _SCALED_BOUND):
+        return None
+    ints = np.rint(scaled).astype(np.int64)
+    if "-" in joined and any(t[0] == "-" and v == 0 for t, v in zip(items, ints.tolist())):
+        return None
+    at = 0 if offset == "first" else int(np.argsort(ints, kind="stable")[(ints.size - 1) // 2])
+    return Centred(offset=Decimal(items[at]), deviations=(ints - ints[at]).astype(float) / scale, exact=True)
+
+
 def _decimal_offset(decimals: Sequence[Decimal], offset: OffsetChoice) -> Decimal:
     if offset == "first":
         return decimals[0]
@@ -255,6 +304,9 @@ def centred(
             off = arr[0] if offset == "first" else np.sort(arr)[(arr.size - 1) // 2]
             return Centred(offset=Decimal(float(off)), deviations=arr - off, exact=False)
         items = [repr(v) for v in numbers]
+    fast = _integer_centred(items, offset)
+    if fast is not None:
+        return fast
     decimals = _parse_all(items)
     with localcontext() as ctx:
         ctx.prec = DECIMAL_PRECISION
