@@ -57,6 +57,7 @@ _MANTISSA_BITS = 53
 #: Plain decimals, one a line: an optional sign, digits, an optional point and fraction digits (no exponent, no
 #: space): the texts :func:`_integer_centred` can centre in integers.
 _PLAIN = re.compile(r"[-+]?[0-9]+(?:\.[0-9]*)?(?:\n[-+]?[0-9]+(?:\.[0-9]*)?)*")
+_FRACTION = re.compile(r"\.([0-9]*)")
 #: Largest power of ten a binary64 float holds exactly (5**22 < 2**53).
 _EXACT_POWER = 22
 #: Bound on |value × 10**E| below which the scaled float rounds to the exact integer (see _integer_centred).
@@ -208,13 +209,12 @@ def _integer_centred(items: list, offset: OffsetChoice) -> Centred | None:
     too large for the bound, a negative zero whose decimal difference may be
     −0) returns None and the caller centres in ``Decimal``.
     """
-    if not items or not all(type(t) is str for t in items):
+    if not items or set(map(type, items)) != {str}:
         return None
     joined = "\n".join(items)
     if _PLAIN.fullmatch(joined) is None:
         return None
-    points = [t.find(".") for t in items]
-    e = max((len(t) - 1 - i) if i >= 0 else 0 for t, i in zip(items, points))
+    e = max(map(len, _FRACTION.findall(joined)), default=0)
     if e > _EXACT_POWER:
         return None
     scale = float(10**e)
@@ -222,7 +222,7 @@ def _integer_centred(items: list, offset: OffsetChoice) -> Centred | None:
     if not np.all(np.abs(scaled) < _SCALED_BOUND):
         return None
     ints = np.rint(scaled).astype(np.int64)
-    if "-" in joined and any(t[0] == "-" and v == 0 for t, v in zip(items, ints.tolist())):
+    if "-" in joined and any(items[i][0] == "-" for i in np.flatnonzero(ints == 0).tolist()):
         return None
     at = 0 if offset == "first" else int(np.argsort(ints, kind="stable")[(ints.size - 1) // 2])
     return Centred(offset=Decimal(items[at]), deviations=(ints - ints[at]).astype(float) / scale, exact=True)
@@ -286,6 +286,9 @@ def centred(
     items = list(texts.tolist() if isinstance(texts, np.ndarray) else texts)
     if not items:
         raise StatisticsError("no values to centre")
+    fast = _integer_centred(items, offset)
+    if fast is not None:
+        return fast
     textual = all(isinstance(t, (str, Decimal)) for t in items)
     if not textual:
         numbers = []
