@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 
 from roundscore.errors import InputError, StatisticsError
-from roundscore.stats.exact import _integer_centred, centred, grouped_fsum
+from roundscore.stats.exact import _integer_centred, centred, clipped_square_sums, grouped_fsum
 from roundscore.stats.precision import (
     LIMIT_FACTOR,
     CellStatistics,
@@ -85,6 +85,20 @@ def test_integer_centring_equals_decimal_bit_for_bit(seed: int, offset: str) -> 
     assert str(fast.offset) == str(off)  # the same text, not only an equal value
     assert _bits(fast.deviations.tolist()) == _bits(ref)
     assert _bits(centred(texts, offset=offset).deviations.tolist()) == _bits(ref)  # type: ignore[arg-type]
+
+
+@pytest.mark.parametrize("seed", [4, 5])
+def test_clipped_square_sums_equal_math_fsum(seed: int) -> None:
+    # Reference: math.fsum (correctly rounded) of the clipped squares, as Algorithm S computed them before.
+    rng = np.random.default_rng(seed)
+    w = np.sort(np.concatenate([rng.lognormal(0, 2, 300), [0.0, 0.0, 1.5, 1.5, 1e-170]]))
+    total = clipped_square_sums(w)
+    assert total is not None
+    cuts = [0.0, 1.5, 1e-300, 1e300, float(w[-1]), float(w[150]), *rng.lognormal(0, 2, 50).tolist()]
+    for c in cuts:
+        clipped = np.minimum(w, c)
+        assert total(c).hex() == math.fsum(clipped * clipped).hex(), c
+    assert clipped_square_sums(np.array([1e-160, 1.0])) is None  # a square (1e-320) below the safe range
 
 
 @pytest.mark.parametrize(("texts", "why"), [

@@ -19,9 +19,10 @@ References
 
 from __future__ import annotations
 
+import itertools
 import math
 import re
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from decimal import Decimal, InvalidOperation, localcontext
 from typing import Literal
@@ -31,7 +32,7 @@ import numpy as np
 from roundscore.choices import check_choice
 from roundscore.errors import InputError, StatisticsError
 
-__all__ = ["Centred", "OffsetChoice", "FloatHandling", "centred", "check_choice", "grouped_fsum", "fsum_mean",
+__all__ = ["Centred", "OffsetChoice", "FloatHandling", "centred", "check_choice", "grouped_fsum", "clipped_square_sums", "fsum_mean",
            "mean_variance"]
 
 OffsetChoice = Literal["median", "first"]
@@ -188,6 +189,57 @@ def grouped_fsum(x: np.ndarray, starts: np.ndarray) -> np.ndarray:
     if zero.size:  # an exact zero: fsum decides the sign (-0.0 only when every term is -0.0)
         out[zero] = by_fsum(zero)
     return out
+
+def _exact_int(v: float) -> tuple[int, int]:
+    """A finite float as ``(i, e)`` with ``v == i * 2**e`` exactly (i an int of at most 53 bits)."""
+    mant, expo = math.frexp(v)
+    return int(mant * 2**_MANTISSA_BITS), expo - _MANTISSA_BITS
+
+
+def clipped_square_sums(w: np.ndarray) -> Callable[[float], float] | None:
+    """``c ↦ math.fsum(np.minimum(w, c) * np.minimum(w, c))`` bit for bit, in O(log n) per call.
+
+    ``w`` is sorted ascending, finite and ≥ 0 (as Algorithm S's standard
+    deviations). The values at or below ``c`` keep their squares ``w_i·w_i``;
+    the ``k`` above become ``c·c``. Every square is ``i·2**e`` exactly, so the
+    exact sum of the first ``j`` squares is a prefix sum of integers (kept as
+    Python ints at the smallest exponent), and the exact total is that prefix
+    plus ``k·(c·c)``; converting the integer to float rounds once, correctly
+    (ties to even), and scaling by a power of two is exact for a normal
+    result: the correctly rounded exact sum, which is what ``math.fsum``
+    returns. Returns None when a square lies outside the safe range (see
+    ``SAFE_EXPONENT``); a call whose ``c·c`` or exponent span leaves it falls
+    back to ``math.fsum`` itself.
+    """
+    sq = w * w
+    if sq.size == 0 or not np.all(np.isfinite(sq)) or np.any(w < 0):
+        return None
+    nonzero = sq[sq != 0]
+    if nonzero.size and (nonzero.min() < 2.0**-SAFE_EXPONENT or nonzero.max() > 2.0**SAFE_EXPONENT):
+        return None
+    parts = [_exact_int(v) for v in nonzero.tolist()]
+    e0 = min((e for _, e in parts), default=0)
+    top = max((e for _, e in parts), default=e0)
+    prefix = [0] * (sq.size - nonzero.size) + list(itertools.accumulate(i << (e - e0) for i, e in parts))
+    prefix.insert(0, 0)  # prefix[j]: the exact sum of the j smallest squares, times 2**-e0
+
+    def total(c: float) -> float:
+        c2 = c * c
+        j = int(np.searchsorted(w, c, side="right"))
+        k = w.size - j
+        if k == 0 or c2 == 0:
+            i2, e2 = 0, e0
+        elif not (2.0**-SAFE_EXPONENT <= c2 <= 2.0**SAFE_EXPONENT):
+            return math.fsum(np.minimum(w, c) * np.minimum(w, c))
+        else:
+            i2, e2 = _exact_int(c2)
+        e = min(e0, e2)
+        if max(top, e2) - e > _SAFE_SPAN:
+            return math.fsum(np.minimum(w, c) * np.minimum(w, c))
+        return math.ldexp(float((prefix[j] << (e0 - e)) + k * (i2 << (e2 - e))), e)
+
+    return total
+
 
 def _integer_centred(items: list, offset: OffsetChoice) -> Centred | None:
     """:func:`centred` of plain decimal texts done in integers, bit for bit; None when it cannot be proved so.
