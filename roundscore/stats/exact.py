@@ -19,7 +19,6 @@ References
 
 from __future__ import annotations
 
-import itertools
 import math
 import re
 from collections.abc import Callable, Sequence
@@ -32,8 +31,8 @@ import numpy as np
 from roundscore.choices import check_choice
 from roundscore.errors import InputError, StatisticsError
 
-__all__ = ["Centred", "OffsetChoice", "FloatHandling", "centred", "check_choice", "grouped_fsum", "clipped_square_sums", "fsum_mean",
-           "mean_variance"]
+__all__ = ["Centred", "OffsetChoice", "FloatHandling", "centred", "check_choice", "grouped_fsum", "clipped_square_sums",
+           "fsum_mean", "mean_variance"]
 
 OffsetChoice = Literal["median", "first"]
 FloatHandling = Literal["as_float", "shortest_repr"]
@@ -217,11 +216,14 @@ def clipped_square_sums(w: np.ndarray) -> Callable[[float], float] | None:
     nonzero = sq[sq != 0]
     if nonzero.size and (nonzero.min() < 2.0**-SAFE_EXPONENT or nonzero.max() > 2.0**SAFE_EXPONENT):
         return None
-    parts = [_exact_int(v) for v in nonzero.tolist()]
-    e0 = min((e for _, e in parts), default=0)
-    top = max((e for _, e in parts), default=e0)
-    prefix = [0] * (sq.size - nonzero.size) + list(itertools.accumulate(i << (e - e0) for i, e in parts))
-    prefix.insert(0, 0)  # prefix[j]: the exact sum of the j smallest squares, times 2**-e0
+    mant, expo = np.frexp(nonzero)
+    ints = (mant * float(2**_MANTISSA_BITS)).astype(np.int64)  # exact: |mant| < 1 has 53 bits
+    lsb = expo.astype(np.int64) - _MANTISSA_BITS  # each square == ints * 2**lsb exactly
+    e0 = int(lsb.min()) if lsb.size else 0
+    top = int(lsb.max()) if lsb.size else e0
+    # prefix[j]: the exact sum of the j smallest squares, times 2**-e0 (Python ints; zeros sort first)
+    sums = np.cumsum(ints.astype(object) << (lsb - e0).astype(object)).tolist() if lsb.size else []
+    prefix = [0] * (1 + sq.size - nonzero.size) + sums
 
     def total(c: float) -> float:
         c2 = c * c
