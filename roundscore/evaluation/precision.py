@@ -263,7 +263,7 @@ def _g(x: float) -> str:
 def _replicates(rows: pd.DataFrame, used: list[str]) -> tuple[np.ndarray, np.ndarray, list[str] | None]:
     """The used labs' numeric replicates in lab order: values, lab codes, texts (None if any is missing)."""
     lab = rows["lab"].to_numpy(dtype=object)
-    pos = pd.Index(used).get_indexer(lab)  # the lab's place in ``used``; -1 when not used
+    pos = pd.Index(used).get_indexer(pd.Index(lab))  # the lab's place in ``used``; -1 when not used
     found = np.flatnonzero(pos >= 0)
     pick = found[np.argsort(pos[found], kind="stable")]
     texts = rows["text"].to_numpy(dtype=object)[pick].tolist()
