@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 
 from roundscore.errors import InputError, StatisticsError
-from roundscore.stats.exact import centred, grouped_fsum
+from roundscore.stats.exact import _integer_centred, centred, clipped_square_sums, grouped_fsum
 from roundscore.stats.precision import (
     LIMIT_FACTOR,
     CellStatistics,
@@ -50,6 +50,68 @@ def test_centred_median_offset_and_floats() -> None:
     # With floats="shortest_repr" the typed decimals are recovered and centring is exact.
     s = centred([1000000000000.4, 1000000000000.3], offset="first", floats="shortest_repr")
     assert s.exact and s.deviations.tolist() == [0.0, -0.1]
+
+
+def _decimal_reference(texts: list[str], offset: str) -> tuple[Decimal, list[float]]:
+    # Reference: Python's decimal module (exact subtraction at 60 digits, then float() rounds once), the
+    # lower median taken from a stable sort of the Decimals (the documented choice of roundscore.stats.exact).
+    import decimal
+
+    with decimal.localcontext() as ctx:
+        ctx.prec = 60
+        ds = [Decimal(t.strip()) for t in texts]
+        off = ds[0] if offset == "first" else sorted(ds)[(len(ds) - 1) // 2]
+        return off, [float(d - off) for d in ds]
+
+
+def _bits(values: list[float]) -> list[str]:
+    return [float(v).hex() for v in values]  # hex keeps the sign of zero and every bit
+
+
+@pytest.mark.parametrize("seed", [1, 2, 3])
+@pytest.mark.parametrize("offset", ["median", "first"])
+def test_integer_centring_equals_decimal_bit_for_bit(seed: int, offset: str) -> None:
+    rng = np.random.default_rng(seed)
+    texts = []
+    for _ in range(400):  # mixed magnitudes and fraction digits, ties, trailing zeros, signs (invented)
+        digits = int(rng.integers(0, 7))
+        scale = 10.0 ** int(rng.integers(-3, 6))
+        text = f"{rng.normal(0, 1) * scale:.{digits}f}"
+        texts.append(text if float(text) != 0 else "0")  # a negative zero is declined (tested below)
+    texts += ["0.1", "0.10", "+0.3", "7", "7.", "12345678.123456", "-0.0001"]
+    fast = _integer_centred(texts, offset)  # type: ignore[arg-type]
+    assert fast is not None  # the integer path is taken for these plain texts
+    off, ref = _decimal_reference(texts, offset)
+    assert str(fast.offset) == str(off)  # the same text, not only an equal value
+    assert _bits(fast.deviations.tolist()) == _bits(ref)
+    assert _bits(centred(texts, offset=offset).deviations.tolist()) == _bits(ref)  # type: ignore[arg-type]
+
+
+@pytest.mark.parametrize("seed", [4, 5])
+def test_clipped_square_sums_equal_math_fsum(seed: int) -> None:
+    # Reference: math.fsum (correctly rounded) of the clipped squares, as Algorithm S computed them before.
+    rng = np.random.default_rng(seed)
+    w = np.sort(np.concatenate([rng.lognormal(0, 2, 300), [0.0, 0.0, 1.5, 1.5, 1e-170]]))
+    total = clipped_square_sums(w)
+    assert total is not None
+    cuts = [0.0, 1.5, 1e-300, 1e300, float(w[-1]), float(w[150]), *rng.lognormal(0, 2, 50).tolist()]
+    for c in cuts:
+        clipped = np.minimum(w, c)
+        assert total(c).hex() == math.fsum(clipped * clipped).hex(), c
+    assert clipped_square_sums(np.array([1e-160, 1.0])) is None  # a square (1e-320) below the safe range
+
+
+@pytest.mark.parametrize(("texts", "why"), [
+    (["1e3", "2"], "an exponent"), ([" 1.5", "2"], "a space"), (["-0.0", "0.0", "1"], "a negative zero"),
+    (["1." + "1" * 23, "2"], "more than 22 fraction digits"), (["1000000000000000.5", "1"], "beyond 2**49"),
+    (["1,5", "2"], "a comma"),
+])
+def test_integer_centring_declines_what_it_cannot_prove(texts: list[str], why: str) -> None:
+    assert _integer_centred(texts, "median") is None, why
+    if "," not in texts[0]:  # the Decimal path still centres them exactly (reference: the decimal module)
+        off, ref = _decimal_reference(texts, "median")
+        c = centred(texts)
+        assert c.offset == off and _bits(c.deviations.tolist()) == _bits(ref)
 
 
 @pytest.mark.parametrize(

@@ -268,50 +268,48 @@ def _score_rows(rnd: Round, mr: MeasurandResult, converted: dict[str, str] | Non
     relations = labs["relation"].to_numpy(dtype=object)
     texts = labs["result_text"].to_numpy(dtype=object)
     withheld = labs["withhold"].to_numpy(dtype=bool) & (status != "not-reported")
-    state = np.full(len(labs), "scored", dtype=object)
     converted = converted or {}
     lab_codes = labs["lab"].to_numpy(dtype=object)
-    for i in range(len(labs)):
-        st = status[i]
-        add = []
-        if st == "not-reported":
-            state[i] = "not-reported"
-            add.append("not reported")
-        elif withheld[i]:
-            state[i] = "withheld"
-            notes[i] = f"not scored: {notes[i]}"
-        elif st == "censored":
-            lim, rel = limits[i], relations[i]
-            if rel == "<" and np.isfinite(lim) and mr.scored and lim < x_pt - CENSORED_ACTION * s_pt:
-                sig[i], state[i] = "action", "false-negative"
-                add.append("false negative: the limit is below x_pt − 3σ_pt")
-            elif rel == ">" and np.isfinite(lim) and mr.scored and lim > x_pt + CENSORED_ACTION * s_pt:
-                sig[i], state[i] = "action", "false-positive"
-                add.append("false positive: the limit is above x_pt + 3σ_pt")
-            else:
-                state[i] = "not-scored"
-                add.append(f"censored result {texts[i]}: not scored")
-        elif not mr.scored:
-            state[i] = "not-scored"
-            add.append("not scored: the assigned value or σ_pt could not be set")
-        elif undefined[i]:
-            state[i] = "not-scored"
-            add.append(official.undefined_note)
-        elif np.isnan(chosen[i]):
-            state[i] = "not-scored"
-            add.append(official.missing_note)
-        if sig[i] == "action" and st == "value" and slip[i]:
-            add.append("possible unit or decimal slip")
-        if lab_codes[i] in converted:
-            add.append(converted[lab_codes[i]])
-        notes[i] = "; ".join([t for t in [notes[i], *add] if t])
+    # Each row's one state, decided in this order (the first that holds wins), and the note it adds.
+    scored = mr.scored
+    reported = status != "not-reported"
+    censored = reported & ~withheld & (status == "censored")
+    rest = reported & ~withheld & ~censored
+    with np.errstate(invalid="ignore"):
+        finite = np.isfinite(limits)
+        false_neg = censored & (relations == "<") & finite & scored & (limits < x_pt - CENSORED_ACTION * s_pt)
+        false_pos = (censored & ~false_neg & (relations == ">") & finite & scored
+                     & (limits > x_pt + CENSORED_ACTION * s_pt))
+    not_cens = censored & ~false_neg & ~false_pos
+    unscored = rest & (not scored)
+    undef = rest & scored & undefined.astype(bool)
+    missing = rest & scored & ~undefined.astype(bool) & np.isnan(chosen)
+    state = np.select([~reported, withheld, false_neg, false_pos, not_cens | unscored | undef | missing],
+                      ["not-reported", "withheld", "false-negative", "false-positive", "not-scored"],
+                      "scored").astype(object)
+    sig = np.where(false_neg | false_pos, "action", sig).astype(object)
+    said = np.select(
+        [~reported, false_neg, false_pos, not_cens, unscored, undef, missing],
+        ["not reported", "false negative: the limit is below x_pt − 3σ_pt",
+         "false positive: the limit is above x_pt + 3σ_pt", "censored result " + texts + ": not scored",
+         "not scored: the assigned value or σ_pt could not be set", official.undefined_note, official.missing_note],
+        "").astype(object)
+    slipped = np.where((sig == "action") & (status == "value") & slip.astype(bool),
+                       "possible unit or decimal slip", "").astype(object)
+    conv = np.array([converted.get(c, "") for c in lab_codes.tolist()], dtype=object) if converted else None
+    notes = np.where(withheld, "not scored: " + notes, notes)
+    notes = _joined([notes, said, slipped] + ([conv] if conv is not None else []))
     # Withheld means absent: no score value of any kind, so no writer can show one.
     values = {kind.column: np.where(withheld, np.nan, computed[kind.name][0]) for kind in SCORES.values()}
     d, dp = np.where(withheld, np.nan, d), np.where(withheld, np.nan, dp)
-    result = np.where(labs["status"] == "censored", labs["result_text"], "")
+    shown: Any = np.where(np.isfinite(x), x, np.nan)
+    is_cens = status == "censored"
+    if is_cens.any():  # the censored result's text ("<0.5") in place of a mean, each row's own object as before
+        shown = [t if (c and t) else (v if f else np.nan)
+                 for t, c, v, f in zip(texts.tolist(), is_cens.tolist(), list(x), np.isfinite(x).tolist())]
     out = pd.DataFrame({
         "lab": labs["lab"], "measurand": m.name, "unit": m.unit, "n_replicates": labs["n_replicates"],
-        "result": [r if r else (x[i] if np.isfinite(x[i]) else np.nan) for i, r in enumerate(result)],
+        "result": shown,
         "assigned": x_pt, "u_assigned": u_pt, "sigma_pt": s_pt,
         **values, "d": d, "d_percent": dp,
         "signal": sig, "note": notes, "score": m.score,
@@ -327,6 +325,15 @@ def _score_rows(rnd: Round, mr: MeasurandResult, converted: dict[str, str] | Non
     out["n_scored"] = int(ok.sum())
     out["method"] = labs["method"].to_numpy()
     out["state"] = state
+    return out
+
+
+def _joined(parts: list[np.ndarray]) -> np.ndarray:
+    """Row by row, the non-empty texts of ``parts`` joined with "; " (object arrays of str of one length)."""
+    out = parts[0]
+    for part in parts[1:]:
+        has_out, has_part = out != "", part != ""
+        out = np.where(has_part & has_out, out + "; " + part, np.where(has_part, part, out))
     return out
 
 

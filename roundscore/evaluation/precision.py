@@ -62,6 +62,7 @@ References
 from __future__ import annotations
 
 import functools
+import itertools
 import math
 from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any
@@ -261,14 +262,13 @@ def _g(x: float) -> str:
 
 def _replicates(rows: pd.DataFrame, used: list[str]) -> tuple[np.ndarray, np.ndarray, list[str] | None]:
     """The used labs' numeric replicates in lab order: values, lab codes, texts (None if any is missing)."""
-    lab = rows["lab"].to_numpy(dtype=str)
-    order = {code: i for i, code in enumerate(used)}
-    pos = np.array([order.get(code, -1) for code in lab.tolist()], dtype=np.intp)
+    lab = rows["lab"].to_numpy(dtype=object)
+    pos = pd.Index(used).get_indexer(pd.Index(lab))  # the lab's place in ``used``; -1 when not used
     found = np.flatnonzero(pos >= 0)
     pick = found[np.argsort(pos[found], kind="stable")]
     texts = rows["text"].to_numpy(dtype=object)[pick].tolist()
-    ok = all(isinstance(t, str) and t for t in texts)
-    return rows["value"].to_numpy(float)[pick], lab[pick], texts if ok else None
+    ok = all(map(isinstance, texts, itertools.repeat(str))) and "" not in texts
+    return rows["value"].to_numpy(float)[pick], lab[pick].astype(str), texts if ok else None
 
 
 def _algorithm_s(cells: pr.CellStatistics) -> tuple[pr.AlgorithmSResult | None, int, str]:

@@ -20,7 +20,8 @@ References
 from __future__ import annotations
 
 import math
-from collections.abc import Sequence
+import re
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from decimal import Decimal, InvalidOperation, localcontext
 from typing import Literal
@@ -30,8 +31,8 @@ import numpy as np
 from roundscore.choices import check_choice
 from roundscore.errors import InputError, StatisticsError
 
-__all__ = ["Centred", "OffsetChoice", "FloatHandling", "centred", "check_choice", "grouped_fsum", "fsum_mean",
-           "mean_variance"]
+__all__ = ["Centred", "OffsetChoice", "FloatHandling", "centred", "check_choice", "grouped_fsum", "clipped_square_sums",
+           "fsum_mean", "mean_variance"]
 
 OffsetChoice = Literal["median", "first"]
 FloatHandling = Literal["as_float", "shortest_repr"]
@@ -52,6 +53,15 @@ _SAFE_SPAN = 900
 
 #: Mantissa bits of a binary64 float (IEEE 754).
 _MANTISSA_BITS = 53
+
+#: Plain decimals, one a line: an optional sign, digits, an optional point and fraction digits (no exponent, no
+#: space): the texts :func:`_integer_centred` can centre in integers.
+_PLAIN = re.compile(r"[-+]?[0-9]+(?:\.[0-9]*)?(?:\n[-+]?[0-9]+(?:\.[0-9]*)?)*")
+_FRACTION = re.compile(r"\.([0-9]*)")
+#: Largest power of ten a binary64 float holds exactly (5**22 < 2**53).
+_EXACT_POWER = 22
+#: Bound on |value × 10**E| below which the scaled float rounds to the exact integer (see _integer_centred).
+_SCALED_BOUND = 2.0**49
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -179,6 +189,99 @@ def grouped_fsum(x: np.ndarray, starts: np.ndarray) -> np.ndarray:
         out[zero] = by_fsum(zero)
     return out
 
+def _exact_int(v: float) -> tuple[int, int]:
+    """A finite float as ``(i, e)`` with ``v == i * 2**e`` exactly (i an int of at most 53 bits)."""
+    mant, expo = math.frexp(v)
+    return int(mant * 2**_MANTISSA_BITS), expo - _MANTISSA_BITS
+
+
+def clipped_square_sums(w: np.ndarray) -> Callable[[float], float] | None:
+    """``c ↦ math.fsum(np.minimum(w, c) * np.minimum(w, c))`` bit for bit, in O(log n) per call.
+
+    ``w`` is sorted ascending, finite and ≥ 0 (as Algorithm S's standard
+    deviations). The values at or below ``c`` keep their squares ``w_i·w_i``;
+    the ``k`` above become ``c·c``. Every square is ``i·2**e`` exactly, so the
+    exact sum of the first ``j`` squares is a prefix sum of integers (kept as
+    Python ints at the smallest exponent), and the exact total is that prefix
+    plus ``k·(c·c)``; converting the integer to float rounds once, correctly
+    (ties to even), and scaling by a power of two is exact for a normal
+    result: the correctly rounded exact sum, which is what ``math.fsum``
+    returns. Returns None when a square lies outside the safe range (see
+    ``SAFE_EXPONENT``); a call whose ``c·c`` or exponent span leaves it falls
+    back to ``math.fsum`` itself.
+    """
+    sq = w * w
+    if sq.size == 0 or not np.all(np.isfinite(sq)) or np.any(w < 0):
+        return None
+    nonzero = sq[sq != 0]
+    if nonzero.size and (nonzero.min() < 2.0**-SAFE_EXPONENT or nonzero.max() > 2.0**SAFE_EXPONENT):
+        return None
+    mant, expo = np.frexp(nonzero)
+    ints = (mant * float(2**_MANTISSA_BITS)).astype(np.int64)  # exact: |mant| < 1 has 53 bits
+    lsb = expo.astype(np.int64) - _MANTISSA_BITS  # each square == ints * 2**lsb exactly
+    e0 = int(lsb.min()) if lsb.size else 0
+    top = int(lsb.max()) if lsb.size else e0
+    # prefix[j]: the exact sum of the j smallest squares, times 2**-e0 (Python ints; zeros sort first)
+    sums = np.cumsum(ints.astype(object) << (lsb - e0).astype(object)).tolist() if lsb.size else []
+    prefix = [0] * (1 + sq.size - nonzero.size) + sums
+
+    def total(c: float) -> float:
+        c2 = c * c
+        j = int(np.searchsorted(w, c, side="right"))
+        k = w.size - j
+        if k == 0 or c2 == 0:
+            i2, e2 = 0, e0
+        elif not (2.0**-SAFE_EXPONENT <= c2 <= 2.0**SAFE_EXPONENT):
+            return math.fsum(np.minimum(w, c) * np.minimum(w, c))
+        else:
+            i2, e2 = _exact_int(c2)
+        e = min(e0, e2)
+        if max(top, e2) - e > _SAFE_SPAN:
+            return math.fsum(np.minimum(w, c) * np.minimum(w, c))
+        return math.ldexp(float((prefix[j] << (e0 - e)) + k * (i2 << (e2 - e))), e)
+
+    return total
+
+
+def _integer_centred(items: list, offset: OffsetChoice) -> Centred | None:
+    """:func:`centred` of plain decimal texts done in integers, bit for bit; None when it cannot be proved so.
+
+    Every text is ``N_i / 10**E`` with ``E`` the most fraction digits of any
+    text and ``N_i`` an integer. With ``v_i = float(text_i)`` (correctly
+    rounded: ``v_i = N_i/10**E·(1 + δ)``, ``|δ| ≤ 2**-53``) and ``10**E``
+    exact (``E ≤ 22``), the float product ``v_i·10**E`` is ``N_i(1 + ε)``
+    with ``|ε| < 2**-51``; when ``|v_i·10**E| < 2**49`` its error is below
+    ``2**49·2**-51 = 1/4``, so rounding it to the nearest integer gives
+    ``N_i`` exactly. The differences ``D_i = N_i − N_off`` are then exact in
+    int64 and as floats (``|D_i| < 2**51``), and ``float(D_i) / 10**E`` is
+    one IEEE division of exact operands: the exact difference rounded once to
+    the nearest float (ties to even), which is what ``float(Decimal(text_i) −
+    Decimal(text_off))`` gives. The offset is the same text picked the same
+    way (a stable order of equal values), kept as its own ``Decimal``.
+
+    Anything else (an exponent, a space, more than 22 fraction digits, values
+    too large for the bound, a negative zero whose decimal difference may be
+    −0) returns None and the caller centres in ``Decimal``.
+    """
+    if not items or set(map(type, items)) != {str}:
+        return None
+    joined = "\n".join(items)
+    if _PLAIN.fullmatch(joined) is None:
+        return None
+    e = max(map(len, _FRACTION.findall(joined)), default=0)
+    if e > _EXACT_POWER:
+        return None
+    scale = float(10**e)
+    scaled = np.fromiter(map(float, items), dtype=float, count=len(items)) * scale
+    if not np.all(np.abs(scaled) < _SCALED_BOUND):
+        return None
+    ints = np.rint(scaled).astype(np.int64)
+    if "-" in joined and any(items[i][0] == "-" for i in np.flatnonzero(ints == 0).tolist()):
+        return None
+    at = 0 if offset == "first" else int(np.argsort(ints, kind="stable")[(ints.size - 1) // 2])
+    return Centred(offset=Decimal(items[at]), deviations=(ints - ints[at]).astype(float) / scale, exact=True)
+
+
 def _decimal_offset(decimals: Sequence[Decimal], offset: OffsetChoice) -> Decimal:
     if offset == "first":
         return decimals[0]
@@ -237,6 +340,9 @@ def centred(
     items = list(texts.tolist() if isinstance(texts, np.ndarray) else texts)
     if not items:
         raise StatisticsError("no values to centre")
+    fast = _integer_centred(items, offset)
+    if fast is not None:
+        return fast
     textual = all(isinstance(t, (str, Decimal)) for t in items)
     if not textual:
         numbers = []
@@ -255,6 +361,9 @@ def centred(
             off = arr[0] if offset == "first" else np.sort(arr)[(arr.size - 1) // 2]
             return Centred(offset=Decimal(float(off)), deviations=arr - off, exact=False)
         items = [repr(v) for v in numbers]
+    fast = _integer_centred(items, offset)
+    if fast is not None:
+        return fast
     decimals = _parse_all(items)
     with localcontext() as ctx:
         ctx.prec = DECIMAL_PRECISION

@@ -37,7 +37,7 @@ import numpy as np
 from scipy import stats as sps
 
 from roundscore.errors import StatisticsError
-from roundscore.stats.exact import centred, fsum_mean, grouped_fsum
+from roundscore.stats.exact import centred, clipped_square_sums, fsum_mean, grouped_fsum
 
 __all__ = [
     "LIMIT_FACTOR",
@@ -666,9 +666,15 @@ def algorithm_s(sds: Sequence[float] | np.ndarray, df: int) -> AlgorithmSResult:
     current = float(np.median(w))
     iterations = 0
     converged = current == 0.0
+    sums = clipped_square_sums(np.sort(w))  # Σ min(w_i, ψ)² exactly as math.fsum gives it, per ψ
     while not converged and iterations < ALGORITHM_S_MAX_ITER:
-        winsorized = np.minimum(w, eta * current)
-        new = xi * math.sqrt(math.fsum(winsorized * winsorized) / w.size)
+        psi = eta * current
+        if sums is not None:
+            square_sum = sums(psi)
+        else:
+            winsorized = np.minimum(w, psi)
+            square_sum = math.fsum(winsorized * winsorized)
+        new = xi * math.sqrt(square_sum / w.size)
         iterations += 1
         converged = abs(new - current) <= ALGORITHM_S_TOLERANCE * abs(current)
         current = new
