@@ -1,4 +1,8 @@
-"""The qualitative outputs of the demo round: CSV contracts, report section, lab pages, sheets and figure."""
+"""The qualitative outputs of the demo round: CSV contracts, report section, lab pages, sheets and figure.
+
+Source of expected values: the tool's own contract (the column names fixed by the issue, the demo's planted and
+invented results); no outside reference values here.
+"""
 
 from __future__ import annotations
 
