@@ -34,6 +34,7 @@ from typing import Any
 import pandas as pd
 
 from roundscore.errors import Location, Problem
+from roundscore.history.cellvalues import scalar, unquote
 from roundscore.model.labcodes import read_lab_code
 from roundscore.model.qualitative import AGREEMENTS, QUALITATIVE_COLUMNS, QUALITATIVE_SHEET, WRONG_AGREEMENTS
 from roundscore.model.signals import SIGNAL_NAMES
@@ -57,17 +58,10 @@ _TEXT = ("measurand", "item", "reported", "assigned", "agreement", "signal", "no
 
 
 def _plain(value: object) -> object:
-    if value is None or value is pd.NaT:
-        return None
-    if hasattr(value, "item") and not isinstance(value, (str, bytes)):
-        value = value.item()
-    if isinstance(value, float) and math.isnan(value):
-        return None
+    """A cell as a scalar; text stripped and un-neutralised, empty text as None."""
+    value = scalar(value)
     if isinstance(value, str):
-        value = value.strip()
-        if len(value) >= 2 and value[0] == "'" and value[1] in "=+-@":  # a CSV writer's neutralising
-            value = value[1:]
-        return value or None
+        return unquote(value.strip()) or None
     return value
 
 

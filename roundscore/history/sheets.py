@@ -36,6 +36,7 @@ from roundscore.model.labcodes import read_lab_code
 from roundscore.text import too_long
 
 from roundscore.model.digest import DIGEST_KEY, ROW_DIGEST_COLUMN, canonical, row_digest, sheet_digest
+from roundscore.history.cellvalues import scalar, unquote
 from roundscore.history.checks import EDIT_HINT, RESUBMIT_HINT, row_problems
 from roundscore.history.qualitative import QUALITATIVE_ROW_FIELDS, normalise_rows as _qualitative_rows
 from roundscore.model.qualitative import QUALITATIVE_COUNT_KEY, QUALITATIVE_SHEET
@@ -58,21 +59,14 @@ TEXT_FIELDS = frozenset({"lab", "measurand", "unit", "signal", "note", "score"})
 FLOAT_FIELDS: tuple[str, ...] = SCORE_FLOAT_COLUMNS
 #: Position of each field in a row of ROW_FIELDS.
 _AT = {f: i for i, f in enumerate(ROW_FIELDS)}
-#: Leading characters a CSV writer neutralises with a ``'`` (OWASP, "CSV Injection").
-_FORMULA_STARTS = ("=", "+", "-", "@")
 WORKBOOK_FORMAT = 1
 #: The format of a lab sheet that also carries qualitative results (hidden sheet ``qualitative_data``).
 WORKBOOK_FORMAT_QUALITATIVE = 2
 
 
 def plain(value: object) -> object:
-    """A JSON-ready scalar: numpy scalars unwrapped, NaN/NaT/None as None."""
-    if value is None or value is pd.NaT:
-        return None
-    if hasattr(value, "item") and not isinstance(value, (str, bytes)):
-        value = value.item()
-    if isinstance(value, float) and math.isnan(value):
-        return None
+    """A JSON-ready scalar: numpy scalars unwrapped, NaN/NaT/None as None, dates as ISO text."""
+    value = scalar(value)
     if isinstance(value, (_dt.date, _dt.datetime, pd.Timestamp)):
         return value.isoformat()
     return value
@@ -80,13 +74,6 @@ def plain(value: object) -> object:
 
 
 # --------------------------------------------------------------------------- parsing rows
-
-def unquote(text: str) -> str:
-    """Undo formula-injection neutralising: drop one ``'`` before ``= + - @``."""
-    if len(text) >= 2 and text[0] == "'" and text[1] in _FORMULA_STARTS:
-        return text[1:]
-    return text
-
 
 def text_key(value: object) -> str:
     """A key cell as text: stripped, un-neutralised, whole floats without ``.0``."""
