@@ -83,10 +83,10 @@ def _number(text: str, *, file: str | None = None, column: str | None = None, ro
     if cell.kind == "censored":
         raise InputError.single("a censored result cannot be compared", file=file, column=column, row=row,
                                 value=text)
-    why = magnitude_problem(cell.value)  # type: ignore[arg-type]
+    why = magnitude_problem(cell.value)  # type: ignore[arg-type]  # a number cell: blank and censored returned above
     if why is not None:
         raise InputError.single(why, file=file, column=column, row=row, value=text)
-    return float(cell.value)  # type: ignore[arg-type]
+    return float(cell.value)  # type: ignore[arg-type]  # a number cell, as above
 
 
 def read_numbers(texts: list[str], *, column: str, decimal: DecimalMark | None = None) -> list[float]:

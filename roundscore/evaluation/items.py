@@ -163,10 +163,10 @@ def apply_item_checks(m: MeasurandSettings, tables: Mapping[str, ItemTable], *, 
     .. [1] ISO 13528:2015, B.2-B.6 and clause 7 (from memory).
     """
     consequence: ItemConsequence = check_item_choice(f"measurand.{m.name}.item_checks", m.item_checks,
-                                                     ItemConsequence)  # type: ignore[assignment]
+                                                     ItemConsequence)  # type: ignore[assignment]  # checked: one of the Literal's values
     choice: StabilityChoice = check_item_choice(f"measurand.{m.name}.stability_criterion",
                                                 getattr(m, "stability_criterion", "auto"),
-                                                StabilityChoice)  # type: ignore[assignment]
+                                                StabilityChoice)  # type: ignore[assignment]  # checked: one of the Literal's values
     missing = [kind for kind in ("homogeneity", "stability") if getattr(m, kind) is not None and kind not in tables]
     if missing:
         raise ValueError(f"measurand {m.name}: its {' and '.join(missing)} table was not read; read the item "

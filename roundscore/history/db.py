@@ -153,7 +153,7 @@ def _translate(file: Path, exc: BaseException, timeout: float) -> ArchiveError:
         return ArchiveError(damaged_message(file, "a text value is not valid UTF-8"))
     if "decode" in str(exc).lower() and "utf" in str(exc).lower():  # Python's own text decoding
         return ArchiveError(damaged_message(file, "a text value is not valid UTF-8"))
-    code = _code(exc)  # type: ignore[arg-type]
+    code = _code(exc)  # type: ignore[arg-type]  # any exception: _code reads only its code attribute and text
     if code in (_BUSY, _LOCKED):
         return ArchiveError(busy_message(file, timeout))
     if code == _NOTADB:

@@ -165,7 +165,7 @@ def _num(v: float, d: int = 2, sign: bool = False) -> str:
 def _value(v: object, d: int | None) -> str:
     if isinstance(v, str):
         return v
-    return _num(float(v), d if d is not None else 4) if v is not None else ""  # type: ignore[arg-type]
+    return _num(float(v), d if d is not None else 4) if v is not None else ""  # type: ignore[arg-type]  # a number here
 
 
 def findings_table(pack: LabPack) -> Table:

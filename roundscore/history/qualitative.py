@@ -94,7 +94,7 @@ def normalise_rows(records: Sequence[Mapping[Any, object]], *, file: str | None,
                     out[col] = None
                     continue
                 try:
-                    number_ = float(raw)  # type: ignore[arg-type]
+                    number_ = float(raw)  # type: ignore[arg-type]  # any cell value; a non-number raises below
                 except (TypeError, ValueError):
                     number_ = math.nan
                 if not number_.is_integer():

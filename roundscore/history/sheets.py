@@ -141,7 +141,7 @@ def normalise_rows(records: Sequence[Mapping[Any, object]], *, file: str | None,
                 out.append(raw)  # a censored result as the round reported it, e.g. "<0.1"
                 continue
             try:
-                number = float(raw)  # type: ignore[arg-type]
+                number = float(raw)  # type: ignore[arg-type]  # any cell value; a non-number raises below
             except (TypeError, ValueError):
                 allowed = ("a number or a censored result such as <0.1"
                            if col == "result" else "a number")
@@ -327,7 +327,7 @@ def _digest_findings(file: Path, got: _Sheet) -> tuple[list[Problem], list[str]]
     if not problems:
         whole = sheet_digest(got.meta_items, [rec.get(ROW_DIGEST_COLUMN)
                                               for rec in (*got.records, *got.qualitative)])
-        if whole != canonical(got.meta[DIGEST_KEY]):  # type: ignore[index]
+        if whole != canonical(got.meta[DIGEST_KEY]):  # type: ignore[index]  # meta is present when no problem was found
             problems.append(Problem(
                 message="the sheet does not match its digest although every row does: rows were "
                         "added, copied or removed in sheet 'data', or sheet 'round' was edited, "

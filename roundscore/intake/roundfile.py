@@ -155,7 +155,7 @@ def _sigma(c: _Checker, key: str, raw: object) -> SigmaSpec:
         return SigmaSpec(kind="robust-sd")
     if isinstance(raw, str):
         if is_choice(raw, SigmaMethod):
-            return SigmaSpec(kind=raw)  # type: ignore[arg-type]
+            return SigmaSpec(kind=raw)  # type: ignore[arg-type]  # is_choice checked it is a SigmaMethod
         c.bad(key, raw, MEASURAND_KEYS["sigma_pt"])
         return SigmaSpec(kind="robust-sd")
     if isinstance(raw, dict):

@@ -92,7 +92,7 @@ WithinMethod = Literal["duplicate differences", "within-item mean square"]
 def _number(name: str, value: object, kind: Literal["positive", "nonnegative", "probability"]) -> float:
     """``value`` as a finite float that is > 0, >= 0, or strictly between 0 and 1 (``kind``)."""
     try:
-        x = float(value)  # type: ignore[arg-type]
+        x = float(value)  # type: ignore[arg-type]  # any value; a non-number raises below
     except (TypeError, ValueError):
         raise StatisticsError(f"{name} must be a number; found {value!r}") from None
     ok = {"positive": x > 0.0, "nonnegative": x >= 0.0, "probability": 0.0 < x < 1.0}[kind]
