@@ -136,8 +136,9 @@ class UncertaintyCounts:
         """Uncertainties found implausible (too small or too large)."""
         return self.too_small + self.too_large
 
-    def line(self) -> str:
-        """The summary line: "reported uncertainties (ISO 13528:2015 §9.8, from memory): ..."."""
+    def line(self, capital: bool = False, where: str = "uncertainties.csv") -> str:
+        """The summary line: "reported uncertainties (ISO 13528:2015 §9.8, from memory): ... (``where``)"
+        ("Reported ..." when ``capital``)."""
         checked = self.flagged + self.plausible
         parts = [f"{self.flagged} of {checked} checked look implausible ({self.too_small} too small: below "
                  f"u(x_pt) or {U_MIN_REPRODUCIBILITY_FACTOR:g} s_R; {self.too_large} too large: above "
@@ -148,7 +149,8 @@ class UncertaintyCounts:
             parts.append(f"{self.not_checked} not checked")
         if self.joint:
             parts.append(f"{self.joint} note{'s' if self.joint != 1 else ''} on z and ζ read together")
-        return f"reported uncertainties ({CLAUSE}): " + "; ".join(parts) + " (uncertainties.csv)"
+        return (f"{'R' if capital else 'r'}eported uncertainties ({CLAUSE}): " + "; ".join(parts)
+                + f" ({where})")
 
 
 def counts(table: pd.DataFrame | None) -> UncertaintyCounts | None:
