@@ -10,9 +10,11 @@ Per lab × measurand, on the evaluation's score rows (nothing is recomputed but 
 * **the check** (ISO 13528:2015 §9.8, from memory): u below the lowest plausible u (u(x_pt), or 0.3 s_R
   when larger and the round's precision rests on at least 8 laboratories, the ISO 5725-1 minimum) is "too
   small", above 1.5 σ_pt "too large"; ``check`` is one of :data:`UncertaintyVerdict`, ``reading`` says it
-  in plain words for the laboratory;
+  in a few plain words naming the limit (for the lab's sheet), ``advice`` in sentences what the laboratory
+  is asked to look at (for its page);
 * **z and ζ together** (``joint``, ISO 13528:2015 §9.6/§9.8, from memory): the z-like score against σ_pt
-  (z′ when the round scores the measurand with z′, else z) read with ζ, where both exist.
+  (z′ when the round scores the measurand with z′, else z) read with ζ, where both exist: a few words in
+  ``joint``, the sentence added to ``advice``.
 
 The table's columns are :data:`UNCERTAINTY_COLUMNS`; :func:`counts` gives the numbers the summaries print.
 """
@@ -35,11 +37,12 @@ if TYPE_CHECKING:
     from roundscore.model.evaluation import MeasurandResult
 
 __all__ = ["UNCERTAINTY_COLUMNS", "UncertaintyVerdict", "UncertaintyCounts", "uncertainty_stage", "counts",
-           "MIN_REPRODUCIBILITY_LABS", "CLAUSE"]
+           "MIN_REPRODUCIBILITY_LABS", "CLAUSE", "LAB_EXPLANATION", "RULE", "VERDICT_WORDS", "FLAGGED"]
 
 #: uncertainties.csv: lab, measurand, the reported standard uncertainty, the plausible range, the verdict,
-#: the verdict in words, the joint reading of z and ζ in words ("" when there is none).
-UNCERTAINTY_COLUMNS = ("lab", "measurand", "u", "u_min", "u_max", "check", "reading", "joint")
+#: the verdict in a few plain words (which limit), the joint reading of z and ζ in a few words ("" when there is
+#: none), and what the laboratory is asked to do in sentences ("" when nothing).
+UNCERTAINTY_COLUMNS = ("lab", "measurand", "u", "u_min", "u_max", "check", "reading", "joint", "advice")
 #: The verdict on a reported u.
 UncertaintyVerdict = Literal["plausible", "too-small", "too-large", "not-reported", "not-checked"]
 #: s_R bounds the lowest plausible u only when the precision rests on at least this many labs (ISO 5725-1
@@ -48,29 +51,57 @@ MIN_REPRODUCIBILITY_LABS = MIN_PRECISION_LABS
 #: Where the check comes from, as every output cites it.
 CLAUSE = "ISO 13528:2015 §9.8, from memory"
 
-_SMALL_XPT = ("Too small: below the uncertainty of the assigned value, u(x_pt). A laboratory can rarely know "
-              "the value better than the round's assigned value is known: please check that your uncertainty "
-              "includes every significant contribution.")
-_SMALL_SR = (f"Too small: below {U_MIN_REPRODUCIBILITY_FACTOR:g} s_R, far below the spread between laboratories "
-             "in this round. It may leave out effects that make laboratories differ (calibration, recovery, "
-             "method bias): please check your uncertainty budget.")
-_ZERO = "Too small: an uncertainty of zero. Every result has an uncertainty: please report your standard uncertainty."
-_LARGE = (f"Too large: above {U_MAX_SIGMA_FACTOR:g} σ_pt. An uncertainty this large is probably not fit for the "
-          "purpose σ_pt expresses; please check it (was an expanded uncertainty U entered as u?).")
-_PLAUSIBLE = "Plausible: within the range shown."
-_NONE = "No uncertainty reported."
-_UNSET = "Not checked: this measurand has no u(x_pt) or σ_pt."
-_EMPTY = "Not checked: the lowest plausible u is above 1.5 σ_pt, so no u would be plausible."
+#: The verdicts in words (the tables people read), and the verdicts counted as implausible.
+VERDICT_WORDS = {"plausible": "plausible", "too-small": "too small", "too-large": "too large",
+                 "not-reported": "not reported", "not-checked": "not checked"}
+FLAGGED = ("too-small", "too-large")
+#: The rule in words, for the round report and the summary (the README states it with its sources).
+RULE = (f"A reported standard uncertainty u ({CLAUSE}) is plausible from the lowest plausible u, the uncertainty "
+        f"of the assigned value u(x_pt) or {U_MIN_REPRODUCIBILITY_FACTOR:g} s_R when that is larger (s_R from "
+        f"at least {MIN_REPRODUCIBILITY_LABS} laboratories; roundscore's reading of \"far below the round's "
+        f"reproducibility\"), up to {U_MAX_SIGMA_FACTOR:g} σ_pt; on a limit counts as within. z and ζ are read "
+        "together where both exist: an acceptable z with an action signal for ζ points to an understated "
+        "uncertainty, an action signal for z with an acceptable ζ to a result that may not be fit for the purpose "
+        "σ_pt expresses (ISO 13528:2015 §9.6 and §9.8, from memory).")
+#: What a laboratory's sheet and page say above its uncertainty check.
+LAB_EXPLANATION = (f"Your reported standard uncertainty u ({CLAUSE}) is plausible from the lowest plausible u "
+                   "(the uncertainty of the assigned value, u(x_pt), or "
+                   f"{U_MIN_REPRODUCIBILITY_FACTOR:g} s_R, the spread between laboratories, when larger) up to "
+                   f"{U_MAX_SIGMA_FACTOR:g} σ_pt; z and ζ read together are noted where they point to an "
+                   "understated uncertainty or to a result that may not be fit for purpose.")
+
+#: Each reading: (the short words of the lab's sheet, the advice of its page), by the case of the check.
+_READINGS = {
+    "zero": ("too small: zero", "An uncertainty of zero: every result has an uncertainty; please report your "
+             "standard uncertainty."),
+    "below-u": ("too small: below u(x_pt)", "Smaller than the uncertainty of the assigned value, u(x_pt): a "
+                "laboratory can rarely know the value better than the round's assigned value is known. Please "
+                "check that your uncertainty includes every significant contribution."),
+    "below-sr": (f"too small: below {U_MIN_REPRODUCIBILITY_FACTOR:g} s_R",
+                 f"Below {U_MIN_REPRODUCIBILITY_FACTOR:g} s_R, far below the spread between laboratories in this "
+                 "round: it may leave out effects that make laboratories differ (calibration, recovery, method "
+                 "bias). Please check your uncertainty budget."),
+    "large": (f"too large: above {U_MAX_SIGMA_FACTOR:g} σ_pt",
+              f"Above {U_MAX_SIGMA_FACTOR:g} σ_pt: an uncertainty this large is probably not fit for the purpose "
+              "σ_pt expresses. Please check it (was an expanded uncertainty U entered as u?)."),
+    "plausible": ("plausible", ""),
+    "none": ("no uncertainty reported", ""),
+    "unset": ("not checked: no u(x_pt) or σ_pt", ""),
+    "empty": (f"not checked: the lowest plausible u is above {U_MAX_SIGMA_FACTOR:g} σ_pt", ""),
+}
 
 
-def _joint_words(words: str, z: str) -> dict[str, str]:
+def _joint_words(words: str, z: str) -> dict[str, tuple[str, str]]:
+    """Each joint reading: (the short words, the advice), with ``z`` the z-like score's symbol."""
     ok, act = SIGNALS["acceptable"].word(words), SIGNALS["action"].word(words)
     return {
-        "understated": (f"{z} {ok} but ζ {act}: your result is close enough for the purpose σ_pt expresses, but "
-                        "your stated uncertainty is probably too small to cover its difference from the "
-                        "assigned value."),
-        "not-fit": (f"{z} {act} but ζ {ok}: your uncertainty is large enough to cover the deviation, but a "
-                    "result this far from the assigned value may not be fit for the purpose σ_pt expresses."),
+        "understated": ("uncertainty probably understated",
+                        f"{z} {ok} but ζ {act}: your result is close enough for the purpose σ_pt expresses, but "
+                        "your stated uncertainty is probably too small to cover its difference from the assigned "
+                        "value."),
+        "not-fit": ("result may not be fit for purpose",
+                    f"{z} {act} but ζ {ok}: your uncertainty is large enough to cover the deviation, but a result "
+                    "this far from the assigned value may not be fit for the purpose σ_pt expresses."),
     }
 
 
@@ -105,19 +136,29 @@ def uncertainty_stage(results: dict[str, MeasurandResult], scores: pd.DataFrame,
     zero = chk.small & (u <= 0)
     verdict = np.select([~reported, chk.small, chk.large, chk.checked],
                         ["not-reported", "too-small", "too-large", "plausible"], "not-checked").astype(object)
-    reading = np.select(
+    case = np.select(
         [~reported, zero, chk.below_u_x_pt, chk.small, chk.large, chk.checked, chk.empty],
-        [_NONE, _ZERO, _SMALL_XPT, _SMALL_SR, _LARGE, _PLAUSIBLE, _EMPTY], _UNSET).astype(object)
+        ["none", "zero", "below-u", "below-sr", "large", "plausible", "empty"], "unset").astype(object)
+    reading = _pick(case, {k: v[0] for k, v in _READINGS.items()})
+    advice = _pick(case, {k: v[1] for k, v in _READINGS.items()})
     prime = rows["score"].to_numpy(dtype=object) == "z-prime"  # z′ when the round scores with it, else z
     z = np.where(prime, rows["z_prime"].to_numpy(float), rows["z"].to_numpy(float))
     code = joint_reading(z, rows["zeta"].to_numpy(float))
     plain, primed = _joint_words(words, score_symbol("z")), _joint_words(words, score_symbol("z-prime"))
-    joint = np.select([(code == c) & (prime == p) for c in plain for p in (False, True)],
-                      [(primed if p else plain)[c] for c in plain for p in (False, True)], "").astype(object)
+    joint = _pick(code, {c: w[0] for c, w in plain.items()})
+    said = np.where(prime, _pick(code, {c: w[1] for c, w in primed.items()}),
+                    _pick(code, {c: w[1] for c, w in plain.items()}))
+    advice = np.where((advice != "") & (said != ""), advice + " " + said, np.where(said != "", said, advice))
     return pd.DataFrame({
         "lab": rows["lab"].to_numpy(dtype=object), "measurand": rows["measurand"].to_numpy(dtype=object),
         "u": u, "u_min": chk.u_min, "u_max": chk.u_max, "check": verdict, "reading": reading, "joint": joint,
+        "advice": advice.astype(object),
     }, columns=list(UNCERTAINTY_COLUMNS))
+
+
+def _pick(keys: np.ndarray, words: dict[str, str]) -> np.ndarray:
+    """Row by row, the words of each key ("" for a key not in ``words``)."""
+    return np.select([keys == k for k in words], list(words.values()), "").astype(object)
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)

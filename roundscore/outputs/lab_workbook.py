@@ -29,7 +29,7 @@ import numpy as np
 import pandas as pd
 import xlsxwriter
 
-from roundscore.evaluation.uncertainty import CLAUSE as UNCERTAINTY_CLAUSE
+from roundscore.evaluation.uncertainty import LAB_EXPLANATION as UNCERTAINTY_EXPLANATION
 from roundscore.model.digest import DIGEST_KEY, ROW_DIGEST_COLUMN, row_digest, sheet_digest, sheet_value
 from roundscore.model.evaluation import SCORE_COLUMNS, STATE_SIDE
 from roundscore.model.qualitative import QUALITATIVE_COLUMNS, QUALITATIVE_COUNT_KEY, QUALITATIVE_SHEET
@@ -41,7 +41,6 @@ from roundscore.outputs.workbook_base import (CHART_HEIGHT, CHART_ROWS, FIXED_TI
                                               VALUE_COLUMNS, Chart, Formats, axis_limit, clip_to, columns_of,
                                               fit_widths, print_setup, score_chart, score_table_columns, set_widths,
                                               stage_sheet, value_axis, write_table, write_value)
-from roundscore.stats.uncertainty import U_MAX_SIGMA_FACTOR, U_MIN_REPRODUCIBILITY_FACTOR
 
 __all__ = ["write_lab_workbook", "lab_payload", "LabPayload", "LAB_FORMAT", "LAB_FORMAT_QUALITATIVE", "LAB_FOLD",
            "QUALITATIVE_SHEET", "SUMMARY_POINTER"]
@@ -70,11 +69,7 @@ LAB_FOLD: dict[str, tuple[tuple[tuple[str, str, int | None], ...], str]] = {
     "uncertainties": ((("u", "Your u (standard uncertainty)", None), ("u_min", "Lowest plausible u", None),
                        ("u_max", "Highest plausible u", None), ("reading", "Your u: reading", None),
                        ("joint", "z and ζ read together", None)),
-                      f"Your reported standard uncertainty u ({UNCERTAINTY_CLAUSE}) is plausible from the lowest "
-                      "plausible u (the uncertainty of the assigned value, u(x_pt), or "
-                      f"{U_MIN_REPRODUCIBILITY_FACTOR:g} s_R, the spread between laboratories, when larger) up to "
-                      f"{U_MAX_SIGMA_FACTOR:g} σ_pt; z and ζ read together are noted where they point to an "
-                      "understated uncertainty or to a result that may not be fit for purpose."),
+                      UNCERTAINTY_EXPLANATION),
 }
 
 

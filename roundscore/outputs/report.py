@@ -51,7 +51,7 @@ from roundscore.outputs.look import CAUTION, SIGNAL_SYMBOL, SIGNAL_WORD, signal_
 from roundscore.outputs.figures import (FIGURES_MAX_MEASURANDS, RoundFigures, SvgFigure, figures_per_measurand,
                                         round_figures)
 from roundscore.outputs.strips import ScoreStrip, score_strip, strip_legend
-from roundscore.outputs import qualitative_report
+from roundscore.outputs import consensus_report, qualitative_report
 
 __all__ = ["write_report", "report_html", "lab_page_html", "report_document", "lab_document", "render_html",
            "guidance_section", "ReportParts", "report_parts", "lab_file_name",
@@ -355,6 +355,9 @@ def report_document(ev, parts: ReportParts | None = None) -> Document:
         _section("items", "Test items: homogeneity and stability", _items(ev, figs)),
         _section("measurands", "Measurands: statistics and figures", _measurands(ev, parts)),
     ]
+    sensitivity = consensus_report.sensitivity_section(ev)  # consensus.csv: the estimates side by side
+    if sensitivity is not None:
+        sections.append(sensitivity)
     if figs.youden:
         sections.append(_section("youden", "Youden plots", [_figure(f, square=True) for f in figs.youden]))
     prec: list[Block] = []
@@ -377,7 +380,8 @@ def report_document(ev, parts: ReportParts | None = None) -> Document:
     qual = qualitative_report.report_section(ev, parts.qualitative)  # nominal and ordinal measurands
     if qual is not None:
         sections.append(qual)
-    sections.append(_section("scores", "Every laboratory's scores", [*_score_matrix(ev), *_score_detail(ev)]))
+    sections.append(_section("scores", "Every laboratory's scores", [*_score_matrix(ev), *_score_detail(ev),
+                                                                     *consensus_report.uncertainty_blocks(ev)]))
     sections.append(_section("audit", "Audit trail: exclusions and decisions",
                              [_frame_table(ev, ev.audit, key_columns=2)] if len(ev.audit) else
                              [Paragraph(text="Nothing was left out.", style="note")]))
@@ -404,12 +408,13 @@ _LAB_COLUMNS = (Column(title="Measurand"), Column(title="Unit"), Column(title="Y
 
 
 def lab_document(ev, parts: ReportParts, lab: str, *, scores: list[dict[str, Any]] | None = None,
-                 mandel: list[dict[str, Any]] | None = None) -> Document:
+                 mandel: list[dict[str, Any]] | None = None,
+                 uncertainties: list[dict[str, Any]] | None = None) -> Document:
     """One lab's confidential page content: its name, its scores, a strip per measurand with its score marked.
 
     In a small round (``parts.full_figures``) the round report's figures
-    follow, with the lab's bar or result marked. ``scores`` and ``mandel``
-    are the lab's rows as records (:func:`lab_records`; looked up when not given).
+    follow, with the lab's bar or result marked. ``scores``, ``mandel`` and
+    ``uncertainties`` are the lab's rows as records (:func:`lab_records`; looked up when not given).
     """
     r = ev.round
     words = r.words
@@ -417,6 +422,8 @@ def lab_document(ev, parts: ReportParts, lab: str, *, scores: list[dict[str, Any
     rows = scores if scores is not None else lab_records(ev, "scores", [lab]).get(lab, [])
     if mandel is None:
         mandel = lab_records(ev, "mandel", [lab]).get(lab)
+    if uncertainties is None:
+        uncertainties = lab_records(ev, "uncertainties", [lab]).get(lab, [])
     ident = Facts(pairs=(("Laboratory code", lab), ("Laboratory", p.name if p else ""),
                          ("Contact", p.contact if p else "")), style="confidential")
     table_rows = []
@@ -462,6 +469,9 @@ def lab_document(ev, parts: ReportParts, lab: str, *, scores: list[dict[str, Any
         parts.guidance,
         _section("where-you-stand", "Where you stand", stand),
     ]
+    unc = consensus_report.lab_uncertainty_section(ev, lab, uncertainties, rows)  # its u beside ζ and En
+    if unc is not None:
+        blocks.insert(-2, unc)
     qual = qualitative_report.lab_section(ev, parts.qualitative, lab)  # nominal and ordinal measurands
     if qual is not None:
         blocks.insert(-2, qual)
@@ -481,9 +491,10 @@ def lab_document(ev, parts: ReportParts, lab: str, *, scores: list[dict[str, Any
 
 
 def lab_page_html(ev, parts: ReportParts, lab: str, *, scores: list[dict[str, Any]] | None = None,
-                  mandel: list[dict[str, Any]] | None = None) -> str:
+                  mandel: list[dict[str, Any]] | None = None,
+                  uncertainties: list[dict[str, Any]] | None = None) -> str:
     """One lab's confidential page as HTML (:func:`lab_document` drawn by :func:`render_html`)."""
-    return render_html(lab_document(ev, parts, lab, scores=scores, mandel=mandel))
+    return render_html(lab_document(ev, parts, lab, scores=scores, mandel=mandel, uncertainties=uncertainties))
 
 
 # ------------------------------------------------------------------------------------------ writing
@@ -534,10 +545,11 @@ def _lab_batch(labs: Sequence[str]) -> list[Path]:
 
     ev, parts, folder = shared()
     scores, mandel = lab_records(ev, "scores", labs), lab_records(ev, "mandel", labs)
+    unc = lab_records(ev, "uncertainties", labs)
     out = []
     for lab in labs:
         path = folder / "labs" / lab_file_name(lab)
-        path.write_text(lab_page_html(ev, parts, lab, scores=scores.get(lab, []), mandel=mandel.get(lab, [])),
-                        encoding="utf-8")
+        path.write_text(lab_page_html(ev, parts, lab, scores=scores.get(lab, []), mandel=mandel.get(lab, []),
+                                      uncertainties=unc.get(lab, [])), encoding="utf-8")
         out.append(path)
     return out
