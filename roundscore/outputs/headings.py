@@ -63,7 +63,7 @@ HEADINGS: Mapping[str, str] = MappingProxyType({
     "t_critical": "t: critical value", "f_statistic": "F", "f_p_value": "F test: p-value",
     "confidence": "Confidence level", "untested": "Groups too small to test", "conclusion": "Conclusion",
     # consensus.csv (the sensitivity table) and uncertainties.csv
-    "value": "Value", "u": "u", "chosen": "Chosen", "why": "Why flagged",
+    "chosen": "Chosen", "why": "Why flagged",
     "u_min": "Lowest plausible u", "u_max": "Highest plausible u", "reading": "Reading",
     "joint": "z and ζ read together",
 })
@@ -71,7 +71,7 @@ HEADINGS: Mapping[str, str] = MappingProxyType({
 #: (table, column) → the heading of a column that one extras table means its own way (its name elsewhere
 #: means something else: ``flag`` is Mandel's indicator, in consensus.csv the sensitivity flag).
 TABLE_HEADINGS: Mapping[tuple[str, str], str] = MappingProxyType({
-    ("consensus", "method"): "Estimate", ("consensus", "flag"): "Sensitivity flag",
+    ("consensus", "method"): "Estimate", ("consensus", "value"): "Value", ("consensus", "flag"): "Sensitivity flag",
     ("uncertainties", "u"): "Reported u", ("uncertainties", "check"): "Verdict",
 })
 

@@ -1,9 +1,11 @@
 """The HTML round report and one HTML page per lab: self-contained files (SVG inline, no network, no script).
 
 ``report.html`` holds the round and its settings, the item checks, each
-measurand's statistics and figures, the Youden plots, precision and
-screens, method groups, every lab's scores with signals, the audit trail
-and the cautions. Labs appear only by code in it. ``labs/LAB.html`` holds
+measurand's statistics and figures, the sensitivity of the assigned value to
+the estimator, the Youden plots, precision and screens, method groups, every
+lab's scores with signals and the reported uncertainties found implausible
+(:mod:`roundscore.outputs.consensus_report`), the audit trail and the
+cautions. Labs appear only by code in it. ``labs/LAB.html`` holds
 one lab's own results and, at the top, its name: names appear only in the
 lab's own page.
 
