@@ -78,7 +78,8 @@ def test_the_lab_workbook_shows_its_u_and_the_reading_beside_zeta_and_en(scored,
     assert head.index("ζ") < head.index("En") < head.index("Your u (standard uncertainty)") < head.index("Note")
     assert row["Your u: reading"] == want["reading"]
     assert (row["z and ζ read together"] or "") == want["joint"]
-    assert row["Lowest plausible u"] == pytest.approx(want["u_min"]) and row["Highest plausible u"] == pytest.approx(0.6)
+    assert row["Lowest plausible u"] == pytest.approx(want["u_min"])
+    assert row["Highest plausible u"] == pytest.approx(1.5 * ur.SIGMA_PT)
     if lab == "N1":
         assert row["Your u (standard uncertainty)"] is None and row["Your u: reading"] == "no uncertainty reported"
     else:
@@ -186,7 +187,7 @@ def test_the_sensitivity_table_shows_each_estimate_the_chosen_and_why(skewed):
     section = sensitivity_section(ev)
     table = _table(section)
     heads = [col.title for col in table.columns]
-    assert heads == ["Measurand", "Estimate", "Value", "u", "Robust SD s*", "σ_pt", "Chosen", "n",
+    assert heads == ["Measurand", "Estimate", "Value", "u", "Robust SD", "σ_pt", "Chosen", "n",
                      "Sensitivity flag"]
     assert len(table.rows) == len(c)
     for row, (_, want) in zip(table.rows, c.iterrows()):

@@ -38,7 +38,9 @@ def sensitivity_section(ev) -> Section | None:
     blocks: list[Block] = [Paragraph(text=(
         "For every measurand, the assigned value each estimator gives on the same laboratories' results, with "
         "its standard uncertainty u and the robust SD it implies (s* for Algorithm A and Q/Hampel, MADe for the "
-        "median); the last row of each measurand is the assigned value used for the scores, marked chosen. A "
+        "median). The estimator the round file chooses is marked chosen, and so is the last row of each "
+        "measurand: the assigned value the scores use (a stated value, or the estimate with any allowance for "
+        "the test items in its u). A "
         f"measurand is flagged when two estimates differ by more than {SENSITIVITY_U_FACTOR:g}·√(u₁² + u₂²) "
         f"(where both u are known) or by more than {SENSITIVITY_SIGMA_FACTOR:g} σ_pt (roundscore's rule): the "
         "choice of estimator then matters and is worth justifying. The kernel mode's u, its bootstrap standard "

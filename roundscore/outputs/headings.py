@@ -72,6 +72,7 @@ HEADINGS: Mapping[str, str] = MappingProxyType({
 #: means something else: ``flag`` is Mandel's indicator, in consensus.csv the sensitivity flag).
 TABLE_HEADINGS: Mapping[tuple[str, str], str] = MappingProxyType({
     ("consensus", "method"): "Estimate", ("consensus", "value"): "Value", ("consensus", "flag"): "Sensitivity flag",
+    ("consensus", "robust_sd"): "Robust SD",
     ("uncertainties", "u"): "Reported u", ("uncertainties", "check"): "Verdict",
 })
 
