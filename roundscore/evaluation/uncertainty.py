@@ -136,29 +136,27 @@ def uncertainty_stage(results: dict[str, MeasurandResult], scores: pd.DataFrame,
     zero = chk.small & (u <= 0)
     verdict = np.select([~reported, chk.small, chk.large, chk.checked],
                         ["not-reported", "too-small", "too-large", "plausible"], "not-checked").astype(object)
-    case = np.select(
-        [~reported, zero, chk.below_u_x_pt, chk.small, chk.large, chk.checked, chk.empty],
-        ["none", "zero", "below-u", "below-sr", "large", "plausible", "empty"], "unset").astype(object)
-    reading = _pick(case, {k: v[0] for k, v in _READINGS.items()})
-    advice = _pick(case, {k: v[1] for k, v in _READINGS.items()})
+    cases = list(_READINGS)  # each row's case as an index into the words (one take per column, no text loop)
+    case = np.select([~reported, zero, chk.below_u_x_pt, chk.small, chk.large, chk.checked, chk.empty],
+                     [cases.index(k) for k in ("none", "zero", "below-u", "below-sr", "large", "plausible",
+                                               "empty")], cases.index("unset"))
     prime = rows["score"].to_numpy(dtype=object) == "z-prime"  # z′ when the round scores with it, else z
     z = np.where(prime, rows["z_prime"].to_numpy(float), rows["z"].to_numpy(float))
     code = joint_reading(z, rows["zeta"].to_numpy(float))
-    plain, primed = _joint_words(words, score_symbol("z")), _joint_words(words, score_symbol("z-prime"))
-    joint = _pick(code, {c: w[0] for c, w in plain.items()})
-    said = np.where(prime, _pick(code, {c: w[1] for c, w in primed.items()}),
-                    _pick(code, {c: w[1] for c, w in plain.items()}))
-    advice = np.where((advice != "") & (said != ""), advice + " " + said, np.where(said != "", said, advice))
+    said = (_joint_words(words, score_symbol("z")), _joint_words(words, score_symbol("z-prime")))
+    kinds = ["", *said[0]]  # no joint reading, then its kinds
+    joint_at = np.select([code == k for k in kinds[1:]], list(range(1, len(kinds))), 0)
+    reading = np.array([_READINGS[k][0] for k in cases], dtype=object)[case]
+    joint = np.array([""] + [w[0] for w in said[0].values()], dtype=object)[joint_at]
+    # the advice of every (case, joint reading, z or z′) once, then taken row by row
+    combos = np.array([" ".join(t for t in (_READINGS[c][1], said[p][k][1] if k else "") if t)
+                       for c in cases for k in kinds for p in (0, 1)], dtype=object)
+    advice = combos[(case * len(kinds) + joint_at) * 2 + prime.astype(int)]
     return pd.DataFrame({
         "lab": rows["lab"].to_numpy(dtype=object), "measurand": rows["measurand"].to_numpy(dtype=object),
         "u": u, "u_min": chk.u_min, "u_max": chk.u_max, "check": verdict, "reading": reading, "joint": joint,
-        "advice": advice.astype(object),
+        "advice": advice,
     }, columns=list(UNCERTAINTY_COLUMNS))
-
-
-def _pick(keys: np.ndarray, words: dict[str, str]) -> np.ndarray:
-    """Row by row, the words of each key ("" for a key not in ``words``)."""
-    return np.select([keys == k for k in words], list(words.values()), "").astype(object)
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
