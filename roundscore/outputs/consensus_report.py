@@ -107,7 +107,7 @@ def lab_uncertainty_section(ev, lab: str, rows: Sequence[dict[str, Any]],
         score = by_measurand.get(m, {})
         joint = str(rec.get("joint") or "")
         reading = str(rec["reading"] or "") + (f"; z and ζ read together: {joint}" if joint else "")
-        body.append((Cell(text=m, link=f"strip-{m}"), Cell(text=number_text(rec["u"], d)),
+        body.append((Cell(text=m), Cell(text=number_text(rec["u"], d)),
                      Cell(text=number_text(rec["u_min"], d)), Cell(text=number_text(rec["u_max"], d)),
                      Cell(text=number_text(score.get(zeta.column), 2)),
                      Cell(text=number_text(score.get(en.column), 2)),
