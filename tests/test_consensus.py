@@ -110,20 +110,41 @@ def test_reference_check(make_round, ref, agrees):
     assert bool(flagged) is (not agrees)
 
 
-def test_sensitivity_flag_fires_and_is_printed(make_round):
-    # A skewed round: a tail of high results pulls Algorithm A above the median and the kernel mode by more
-    # than 0.3 σ_pt (σ_pt small here), so the rule fires.
-    labs = {f"L{i}": [10.0 + 0.01 * i, 10.0 + 0.01 * i] for i in range(1, 11)}
-    labs.update({f"H{i}": [10.6 + 0.05 * i] * 2 for i in range(1, 6)})
-    folder = make_round('[round]\nid="C7"\n[measurand.cu]\nunit="mg/kg"\nsigma_pt=0.2\n', _results(labs))
+def _skewed(copies: int) -> dict[str, list[float]]:
+    """A skewed round: ten labs near 10 and a tail of five high ones, each ``copies`` times."""
+    labs = {f"L{i}": [10.0 + 0.01 * (i % 10 + 1)] * 2 for i in range(1, 10 * copies + 1)}
+    labs.update({f"H{i}": [10.6 + 0.05 * (i % 5 + 1)] * 2 for i in range(1, 5 * copies + 1)})
+    return labs
+
+
+@pytest.mark.parametrize("copies, sigma_pt, rule", [
+    # 15 labs, σ_pt = 0.2: Algorithm A and Q/Hampel differ by more than 0.3 σ_pt = 0.06 but by less than
+    # 2·√(u₁² + u₂²) (the u are large with 15 labs): the σ_pt rule fires.
+    (1, 0.2, "sigma"),
+    # 45 labs, σ_pt = 2: the same difference, now below 0.3 σ_pt = 0.6 but above 2·√(u₁² + u₂²) (u shrink
+    # with √p): the u rule fires.
+    (3, 2.0, "u"),
+])
+def test_sensitivity_flag_fires_by_the_rule_that_holds_and_is_printed(make_round, copies, sigma_pt, rule):
+    folder = make_round(f'[round]\nid="C7"\n[measurand.cu]\nunit="mg/kg"\nsigma_pt={sigma_pt}\n',
+                        _results(_skewed(copies)))
     ev = _ev(folder)
     c = ev.extras["consensus"]
     assert c["flag"].all()
-    values = c.set_index("method")["value"]
-    assert abs(values["Algorithm A"] - values["median"]) > 0.3 * 0.2 or "2·√" in c["why"].iloc[0]
-    assert any("sensitive to the method" in n for n in ev.stage_notes["cu"])
+    by = c.set_index("method")
+    a, q = by.loc["Algorithm A"], by.loc["Q/Hampel"]  # the first pair of the table, so the first checked
+    d = abs(a["value"] - q["value"])
+    lim_u, lim_s = 2 * np.hypot(a["u"], q["u"]), 0.3 * sigma_pt  # the rule (README, "Sensitivity table")
+    if rule == "sigma":
+        assert lim_s < d <= lim_u
+        want = f"Algorithm A and Q/Hampel differ by {d:.3g}, more than 0.3 σ_pt = {lim_s:.3g}"
+    else:
+        assert lim_u < d <= lim_s
+        want = f"Algorithm A and Q/Hampel differ by {d:.3g}, more than 2·√(u₁² + u₂²) = {lim_u:.3g}"
+    assert (c["why"] == want).all()
+    assert ev.stage_notes["cu"] == (f"the assigned value is sensitive to the method: {want} (consensus.csv)",)
     from roundscore.commands.round_commands import summary_text
-    assert "sensitive to the method" in summary_text(ev)
+    assert f"cu: the assigned value is sensitive to the method: {want}" in summary_text(ev)
 
 
 def test_no_flag_when_the_estimates_agree(make_round):

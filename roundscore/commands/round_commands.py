@@ -6,6 +6,7 @@ import argparse
 import sys
 from pathlib import Path
 
+from roundscore.evaluation.uncertainty import counts as uncertainty_counts
 from roundscore.model.evaluation import RoundEvaluation
 from roundscore.model.scores import score_symbol
 from roundscore.model.signals import SIGNALS
@@ -119,6 +120,8 @@ def summary_text(ev: RoundEvaluation) -> str:
     for name, notes in ev.stage_notes.items():
         for note in notes:
             lines.append(f"  {t(name)}: {t(note)}")
+    if (got := uncertainty_counts(ev.extras.get("uncertainties"))) is not None:
+        lines.append(f"  {got.line()}")
     for w in ev.warnings:
         lines.append(f"  note: {t(w)}")
     return "\n".join(lines)

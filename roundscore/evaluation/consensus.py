@@ -31,6 +31,7 @@ from roundscore.model.table import ResultTable
 from roundscore.stats import robust
 from roundscore.stats.hampel import QHampelEstimate, hampel, q_method
 from roundscore.stats.kernel import BANDWIDTH_FACTOR, BOOTSTRAP_SAMPLES, KernelMode, kernel_mode
+from roundscore.stats.limits import above
 
 __all__ = ["Alternatives", "estimates", "kernel_for", "assign", "stage", "CONSENSUS_COLUMNS", "REFERENCE_COLUMNS",
            "SENSITIVITY_U_FACTOR", "SENSITIVITY_SIGMA_FACTOR", "REFERENCE_LIMIT"]
@@ -165,10 +166,10 @@ def _flag(rows: list[dict], sigma_pt: float) -> str:
             d = abs(a["value"] - b["value"])
             ua, ub = a["u"], b["u"]
             lim_u = SENSITIVITY_U_FACTOR * np.hypot(ua, ub)  # NaN unless both are known
-            if np.isfinite(lim_u) and d > lim_u and (ua > 0 or ub > 0):
+            if np.isfinite(lim_u) and above(d, lim_u) and (ua > 0 or ub > 0):  # the one limits comparison
                 return (f"{a['method']} and {b['method']} differ by {d:.3g}, more than 2·√(u₁² + u₂²) = "
                         f"{lim_u:.3g}")
-            if np.isfinite(sigma_pt) and d > SENSITIVITY_SIGMA_FACTOR * sigma_pt:
+            if np.isfinite(sigma_pt) and above(d, SENSITIVITY_SIGMA_FACTOR * sigma_pt):
                 return (f"{a['method']} and {b['method']} differ by {d:.3g}, more than 0.3 σ_pt = "
                         f"{SENSITIVITY_SIGMA_FACTOR * sigma_pt:.3g}")
     return ""

@@ -22,6 +22,7 @@ from roundscore.evaluation import consensus
 from roundscore.evaluation.items import apply_item_checks
 from roundscore.evaluation.precision import precision_stage
 from roundscore.evaluation.qualitative import qualitative_stage
+from roundscore.evaluation.uncertainty import uncertainty_stage
 from roundscore.model.evaluation import (AUDIT_COLUMNS, SCORE_COLUMNS, STATISTICS_COLUMNS, MeasurandResult,
                                          RoundEvaluation, lab_order_key)
 from roundscore.model.inputs import Participant
@@ -424,6 +425,9 @@ def evaluate(rnd: Round, table: ResultTable, participants: dict[str, Participant
     # STAGE: precision (ISO 5725-2) and method groups — adds extras, stage_notes, details and audit rows here.
     precision_stage(rnd, table, results).merge_into(extras=extras, stage_notes=stage_notes, details=details,
                                                     audit=audit)
+    # STAGE: the labs' reported uncertainties, and z with ζ (roundscore.evaluation.uncertainty; reads s_R).
+    if (unc := uncertainty_stage(results, scores, extras.get("precision"), rnd.words)) is not None:
+        extras["uncertainties"] = unc
     # STAGE: qualitative — nominal and ordinal measurands (roundscore.evaluation.qualitative).
     qual = qualitative_stage(rnd, table, all_labs)
     extras.update(qual.extras)

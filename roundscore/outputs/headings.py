@@ -12,6 +12,8 @@ score registry (:data:`roundscore.model.scores.SCORES`), so a new score needs no
 'h: critical value at 5 %'
 >>> heading("some_new_column")  # a column not listed reads as words
 'some new column'
+>>> heading("flag"), heading("flag", table="consensus")  # a table may head a column its own way
+('Indicator', 'Sensitivity flag')
 """
 
 from __future__ import annotations
@@ -21,7 +23,7 @@ from collections.abc import Iterable, Mapping
 
 from roundscore.model.scores import SCORES
 
-__all__ = ["HEADINGS", "heading", "headings"]
+__all__ = ["HEADINGS", "TABLE_HEADINGS", "heading", "headings"]
 
 #: Column name (of scores.csv, statistics.csv, audit.csv and the extras tables) → its display heading.
 HEADINGS: Mapping[str, str] = MappingProxyType({
@@ -60,15 +62,29 @@ HEADINGS: Mapping[str, str] = MappingProxyType({
     "ci_high": "Confidence interval: high", "significant": "Significant", "p_adjusted": "p-value (Holm)",
     "t_critical": "t: critical value", "f_statistic": "F", "f_p_value": "F test: p-value",
     "confidence": "Confidence level", "untested": "Groups too small to test", "conclusion": "Conclusion",
+    # consensus.csv (the sensitivity table) and uncertainties.csv
+    "chosen": "Chosen", "why": "Why flagged",
+    "u_min": "Lowest plausible u", "u_max": "Highest plausible u", "reading": "Reading",
+    "joint": "z and ζ read together",
+})
+
+#: (table, column) → the heading of a column that one extras table means its own way (its name elsewhere
+#: means something else: ``flag`` is Mandel's indicator, in consensus.csv the sensitivity flag).
+TABLE_HEADINGS: Mapping[tuple[str, str], str] = MappingProxyType({
+    ("consensus", "method"): "Estimate", ("consensus", "value"): "Value", ("consensus", "flag"): "Sensitivity flag",
+    ("consensus", "robust_sd"): "Robust SD",
+    ("uncertainties", "u"): "Reported u", ("uncertainties", "check"): "Verdict",
 })
 
 
-def heading(column: str) -> str:
-    """The heading people read for a column; a column not listed reads as words (underscores as spaces)."""
-    got = HEADINGS.get(column)
+def heading(column: str, table: str | None = None) -> str:
+    """The heading people read for a column (of extras ``table`` when given: :data:`TABLE_HEADINGS` first);
+    a column not listed reads as words (underscores as spaces)."""
+    got = TABLE_HEADINGS.get((table, column)) if table is not None else None
+    got = got if got is not None else HEADINGS.get(column)
     return got if got is not None else str(column).replace("_", " ")
 
 
-def headings(columns: Iterable[str]) -> list[str]:
+def headings(columns: Iterable[str], table: str | None = None) -> list[str]:
     """:func:`heading` of each column, in order."""
-    return [heading(c) for c in columns]
+    return [heading(c, table) for c in columns]

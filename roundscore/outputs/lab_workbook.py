@@ -29,6 +29,7 @@ import numpy as np
 import pandas as pd
 import xlsxwriter
 
+from roundscore.evaluation.uncertainty import LAB_EXPLANATION as UNCERTAINTY_EXPLANATION
 from roundscore.model.digest import DIGEST_KEY, ROW_DIGEST_COLUMN, row_digest, sheet_digest, sheet_value
 from roundscore.model.evaluation import SCORE_COLUMNS, STATE_SIDE
 from roundscore.model.qualitative import QUALITATIVE_COLUMNS, QUALITATIVE_COUNT_KEY, QUALITATIVE_SHEET
@@ -36,10 +37,10 @@ from roundscore.model.scores import SCORE_FAMILIES, SCORE_FIELD, ScoreFamily, fa
 from roundscore.outputs.guidance import GUIDANCE_TITLE, how_to_read
 from roundscore.outputs.look import CAUTION, LIMIT_LINE, PALETTE
 from roundscore.outputs.payloads import LabPayload, lab_payload
-from roundscore.outputs.workbook_base import (CHART_HEIGHT, CHART_ROWS, FIXED_TIME, OPTIONS, SCORE_DECIMALS, Chart,
-                                              Formats, axis_limit, clip_to, columns_of, fit_widths, print_setup,
-                                              score_chart, score_table_columns, set_widths, stage_sheet, value_axis,
-                                              write_table, write_value)
+from roundscore.outputs.workbook_base import (CHART_HEIGHT, CHART_ROWS, FIXED_TIME, OPTIONS, SCORE_DECIMALS,
+                                              VALUE_COLUMNS, Chart, Formats, axis_limit, clip_to, columns_of,
+                                              fit_widths, print_setup, score_chart, score_table_columns, set_widths,
+                                              stage_sheet, value_axis, write_table, write_value)
 
 __all__ = ["write_lab_workbook", "lab_payload", "LabPayload", "LAB_FORMAT", "LAB_FORMAT_QUALITATIVE", "LAB_FOLD",
            "QUALITATIVE_SHEET", "SUMMARY_POINTER"]
@@ -57,13 +58,18 @@ SUMMARY_POINTER = ("The round's statistics for every measurand (assigned value a
 
 
 #: Per-lab extras tables folded into a lab's Scores sheet as a few columns (when the lab has at most one row
-#: per measurand): table → ((column, header, decimals), ...) and the line that explains them.  Other tables
-#: with a ``lab`` column get a sheet of the lab's rows.
+#: per measurand): table → ((column, header, decimals), ...) and the line that explains them; a column
+#: without fixed decimals that is a value column (workbook_base.VALUE_COLUMNS: u, u_min ...) is shown to the
+#: measurand's decimals as it is everywhere.  Other tables with a ``lab`` column get a sheet of the lab's rows.
 LAB_FOLD: dict[str, tuple[tuple[tuple[str, str, int | None], ...], str]] = {
     "mandel": ((("h", "Mandel h", 2), ("k", "Mandel k", 2), ("flag", "Mandel h, k against the indicator lines", None)),
                "Mandel h and k (ISO 5725-2 §7.3): how your mean and your spread of replicates compare with the "
                "labs used, before the outlier screens; beyond an indicator line (5 % or 1 %) asks for a look at "
                "your results. The indicator values of each measurand are on sheet Mandel of round-summary.xlsx."),
+    "uncertainties": ((("u", "Your u (standard uncertainty)", None), ("u_min", "Lowest plausible u", None),
+                       ("u_max", "Highest plausible u", None), ("reading", "Your u: reading", None),
+                       ("joint", "z and ζ read together", None)),
+                      UNCERTAINTY_EXPLANATION),
 }
 
 
@@ -130,10 +136,11 @@ def write_lab_workbook(payload: LabPayload, path: Path) -> None:
         ws.write_string(r, 0, line)
         r += 1
     r += 1
-    cols, head, fixed = _score_sheet_columns(folded)
+    cols, head, fixed, value_columns = _score_sheet_columns(folded)
     top = r
     tall[top] = 30.0
-    end = write_table(ws, fm, r, table, cols, head, fixed, "signal", rd.words, row_decimals=payload.decimals)
+    end = write_table(ws, fm, r, table, cols, head, fixed, "signal", rd.words, row_decimals=payload.decimals,
+                      value_columns=value_columns)
     ws.freeze_panes(top + 1, 1)
     ws.set_row(top, 30)  # the wrapped head
     widths = fit_widths(table, cols, head, {**fixed, "result": 4, "assigned": 4, "u_assigned": 4, "sigma_pt": 4,
@@ -225,8 +232,9 @@ def _score_rows(payload: LabPayload) -> tuple[dict[str, list], list, list[str], 
     return table, folded, notes, sheets
 
 
-def _score_sheet_columns(folded: list) -> tuple[list[str], list[str], dict[str, int | None]]:
-    """(columns, heads, fixed decimals) of the Scores sheet: every score of the registry, the folded columns."""
+def _score_sheet_columns(folded: list) -> tuple[list[str], list[str], dict[str, int | None], dict[str, int]]:
+    """(columns, heads, fixed decimals, value columns) of the Scores sheet: every score of the registry, the
+    folded columns; the value columns are shown to each row's measurand's decimals (plus the extra places)."""
     score_cols, score_heads = score_table_columns()
     cols = ["measurand", "unit", "n_replicates", "result", "assigned", "u_assigned", "sigma_pt", "p", "score",
             "official", "signal", "standing", *score_cols, "note"]
@@ -235,7 +243,9 @@ def _score_sheet_columns(folded: list) -> tuple[list[str], list[str], dict[str, 
     cols[-1:-1] = [key for key, _, _, _ in folded]
     head[-1:-1] = [h for _, h, _, _ in folded]
     fixed = {"official": 2, **SCORE_DECIMALS, **{key: d for key, _, d, _ in folded if d is not None}}
-    return cols, head, fixed
+    values = {**VALUE_COLUMNS, **{key: VALUE_COLUMNS[c] for key, _, d, _ in folded
+                                  if d is None and (c := key.split(":", 1)[1]) in VALUE_COLUMNS}}
+    return cols, head, fixed, values
 
 
 def _score_charts(wb, ws, fm: Formats, payload: LabPayload, table: dict[str, list], row: int) -> list[Chart]:

@@ -1,9 +1,11 @@
 """The HTML round report and one HTML page per lab: self-contained files (SVG inline, no network, no script).
 
 ``report.html`` holds the round and its settings, the item checks, each
-measurand's statistics and figures, the Youden plots, precision and
-screens, method groups, every lab's scores with signals, the audit trail
-and the cautions. Labs appear only by code in it. ``labs/LAB.html`` holds
+measurand's statistics and figures, the sensitivity of the assigned value to
+the estimator, the Youden plots, precision and screens, method groups, every
+lab's scores with signals and the reported uncertainties found implausible
+(:mod:`roundscore.outputs.consensus_report`), the audit trail and the
+cautions. Labs appear only by code in it. ``labs/LAB.html`` holds
 one lab's own results and, at the top, its name: names appear only in the
 lab's own page.
 
@@ -36,22 +38,22 @@ from pathlib import Path
 from typing import Any
 from collections.abc import Callable, Iterable, Sequence
 
-import numpy as np
 import pandas as pd
 
 from roundscore.model.scores import SCORE_FIELD, score_label, score_symbol
 from roundscore.model.signals import SIGNAL_NAMES
 from roundscore.outputs.document import (Block, Bullets, Cell, Column, Document, Facts, Figure, Heading, Paragraph,
                                          Section, Table)
+from roundscore.outputs.frames import (frame_table as _frame_table, more_places as _more, number_text as _num,
+                                       records_table as _records_table, signal_text as _signal_text)
 from roundscore.outputs.guidance import GUIDANCE_TITLE, how_to_read
 from roundscore.outputs.headings import heading
 from roundscore.outputs.html import render_html
 from roundscore.outputs.look import CAUTION, SIGNAL_SYMBOL, SIGNAL_WORD, signal_legend_text
-from roundscore.outputs.workbook_base import VALUE_COLUMNS
 from roundscore.outputs.figures import (FIGURES_MAX_MEASURANDS, RoundFigures, SvgFigure, figures_per_measurand,
                                         round_figures)
 from roundscore.outputs.strips import ScoreStrip, score_strip, strip_legend
-from roundscore.outputs import qualitative_report
+from roundscore.outputs import consensus_report, qualitative_report
 
 __all__ = ["write_report", "report_html", "lab_page_html", "report_document", "lab_document", "render_html",
            "guidance_section", "ReportParts", "report_parts", "lab_file_name",
@@ -65,85 +67,6 @@ REPORT_NAME = "report.html"
 FULL_FIGURES_MAX_LABS = 100
 FULL_FIGURES_MAX_MEASURANDS = 10
 _SIGNALS = SIGNAL_NAMES
-
-
-def _num(v: Any, decimals: int | None = None) -> str:
-    """A number as shown: ``decimals`` places, else 6 significant digits; text as it is; NaN blank."""
-    if v is None or isinstance(v, str):
-        return "" if v is None else v
-    if isinstance(v, (bool, np.bool_)):
-        return "yes" if v else "no"
-    try:
-        x = float(v)
-    except (TypeError, ValueError):
-        return str(v)
-    if not math.isfinite(x):
-        return ""
-    if decimals is None:
-        return f"{x:.6g}"
-    return f"{x:.{decimals}f}"
-
-
-def _more(d: int | None) -> int | None:
-    return None if d is None else d + 1
-
-
-def _signal_text(signal: str, words: str, text: str = "") -> str:
-    """A signal cell's text: its symbol and a number, or its symbol and word."""
-    sym = SIGNAL_SYMBOL.get(signal, "")
-    return f"{sym} {text}".strip() if text else f"{sym} {SIGNAL_WORD[words].get(signal, signal)}".strip()
-
-
-def _is_numeric(frame: pd.DataFrame, c: str) -> bool:
-    return bool(pd.api.types.is_numeric_dtype(frame[c]) and not pd.api.types.is_bool_dtype(frame[c]))
-
-
-def _frame_table(ev, frame: pd.DataFrame | None, columns: Sequence[str] | None = None, *,
-                 decimals: dict[str, int | None] | None = None, signal: str | None = None,
-                 caption: str = "", key_columns: int = 1) -> Table | Paragraph:
-    """A frame's columns as a :class:`Table`, headed by :func:`~roundscore.outputs.headings.heading`.
-
-    A value column (:data:`~roundscore.outputs.workbook_base.VALUE_COLUMNS`) of a row naming its
-    measurand is shown to that measurand's ``decimals`` (uncertainties and spreads one more); ``decimals``
-    fixes a column's places; other numbers show 6 significant digits.
-    """
-    if frame is None or not len(frame.columns):
-        return Paragraph(text="Not available.", style="note")
-    cols = [c for c in (columns or list(frame.columns)) if c in frame.columns]
-    decimals = decimals or {}
-    words = ev.round.words
-    places = {n: m.decimals for n, m in ev.round.measurands.items()}
-    meas = frame["measurand"].tolist() if "measurand" in frame.columns else [None] * len(frame)
-    numeric = [_is_numeric(frame, c) for c in cols]
-    data = [frame[c].tolist() for c in cols]
-    rows = []
-    for i in range(len(frame)):
-        row = []
-        for j, c in enumerate(cols):
-            v = data[j][i]
-            if c == signal and isinstance(v, str):
-                row.append(Cell(text=_signal_text(v, words), signal=v))
-                continue
-            if c in decimals:
-                d = decimals[c]
-            elif c in VALUE_COLUMNS and places.get(meas[i]) is not None:
-                d = places[meas[i]] + VALUE_COLUMNS[c]
-            else:
-                d = None
-            row.append(Cell(text=_num(v, d) if numeric[j] or not isinstance(v, str) else v))
-        rows.append(tuple(row))
-    return Table(columns=tuple(Column(title=heading(c), numeric=numeric[j]) for j, c in enumerate(cols)),
-                 rows=tuple(rows), caption=caption, key_columns=min(key_columns, len(cols)))
-
-
-def _records_table(rows: Sequence[dict[str, Any]], decimals: dict[str, int | None] | None = None) -> Table | None:
-    """A :class:`Table` of records (the keys of the first as columns), for the few rows of one lab."""
-    if not rows:
-        return None
-    decimals = decimals or {}
-    cols = list(rows[0])
-    return Table(columns=tuple(Column(title=heading(c)) for c in cols),
-                 rows=tuple(tuple(Cell(text=_num(rec.get(c), decimals.get(c))) for c in cols) for rec in rows))
 
 
 def _figure(fig: SvgFigure, svg: str | None = None, square: bool = False) -> Figure:
@@ -434,6 +357,9 @@ def report_document(ev, parts: ReportParts | None = None) -> Document:
         _section("items", "Test items: homogeneity and stability", _items(ev, figs)),
         _section("measurands", "Measurands: statistics and figures", _measurands(ev, parts)),
     ]
+    sensitivity = consensus_report.sensitivity_section(ev)  # consensus.csv: the estimates side by side
+    if sensitivity is not None:
+        sections.append(sensitivity)
     if figs.youden:
         sections.append(_section("youden", "Youden plots", [_figure(f, square=True) for f in figs.youden]))
     prec: list[Block] = []
@@ -456,7 +382,8 @@ def report_document(ev, parts: ReportParts | None = None) -> Document:
     qual = qualitative_report.report_section(ev, parts.qualitative)  # nominal and ordinal measurands
     if qual is not None:
         sections.append(qual)
-    sections.append(_section("scores", "Every laboratory's scores", [*_score_matrix(ev), *_score_detail(ev)]))
+    sections.append(_section("scores", "Every laboratory's scores", [*_score_matrix(ev), *_score_detail(ev),
+                                                                     *consensus_report.uncertainty_blocks(ev)]))
     sections.append(_section("audit", "Audit trail: exclusions and decisions",
                              [_frame_table(ev, ev.audit, key_columns=2)] if len(ev.audit) else
                              [Paragraph(text="Nothing was left out.", style="note")]))
@@ -483,12 +410,13 @@ _LAB_COLUMNS = (Column(title="Measurand"), Column(title="Unit"), Column(title="Y
 
 
 def lab_document(ev, parts: ReportParts, lab: str, *, scores: list[dict[str, Any]] | None = None,
-                 mandel: list[dict[str, Any]] | None = None) -> Document:
+                 mandel: list[dict[str, Any]] | None = None,
+                 uncertainties: list[dict[str, Any]] | None = None) -> Document:
     """One lab's confidential page content: its name, its scores, a strip per measurand with its score marked.
 
     In a small round (``parts.full_figures``) the round report's figures
-    follow, with the lab's bar or result marked. ``scores`` and ``mandel``
-    are the lab's rows as records (:func:`lab_records`; looked up when not given).
+    follow, with the lab's bar or result marked. ``scores``, ``mandel`` and
+    ``uncertainties`` are the lab's rows as records (:func:`lab_records`; looked up when not given).
     """
     r = ev.round
     words = r.words
@@ -496,6 +424,8 @@ def lab_document(ev, parts: ReportParts, lab: str, *, scores: list[dict[str, Any
     rows = scores if scores is not None else lab_records(ev, "scores", [lab]).get(lab, [])
     if mandel is None:
         mandel = lab_records(ev, "mandel", [lab]).get(lab)
+    if uncertainties is None:
+        uncertainties = lab_records(ev, "uncertainties", [lab]).get(lab, [])
     ident = Facts(pairs=(("Laboratory code", lab), ("Laboratory", p.name if p else ""),
                          ("Contact", p.contact if p else "")), style="confidential")
     table_rows = []
@@ -541,6 +471,9 @@ def lab_document(ev, parts: ReportParts, lab: str, *, scores: list[dict[str, Any
         parts.guidance,
         _section("where-you-stand", "Where you stand", stand),
     ]
+    unc = consensus_report.lab_uncertainty_section(ev, lab, uncertainties, rows)  # its u beside ζ and En
+    if unc is not None:
+        blocks.insert(-2, unc)
     qual = qualitative_report.lab_section(ev, parts.qualitative, lab)  # nominal and ordinal measurands
     if qual is not None:
         blocks.insert(-2, qual)
@@ -560,9 +493,10 @@ def lab_document(ev, parts: ReportParts, lab: str, *, scores: list[dict[str, Any
 
 
 def lab_page_html(ev, parts: ReportParts, lab: str, *, scores: list[dict[str, Any]] | None = None,
-                  mandel: list[dict[str, Any]] | None = None) -> str:
+                  mandel: list[dict[str, Any]] | None = None,
+                  uncertainties: list[dict[str, Any]] | None = None) -> str:
     """One lab's confidential page as HTML (:func:`lab_document` drawn by :func:`render_html`)."""
-    return render_html(lab_document(ev, parts, lab, scores=scores, mandel=mandel))
+    return render_html(lab_document(ev, parts, lab, scores=scores, mandel=mandel, uncertainties=uncertainties))
 
 
 # ------------------------------------------------------------------------------------------ writing
@@ -613,10 +547,11 @@ def _lab_batch(labs: Sequence[str]) -> list[Path]:
 
     ev, parts, folder = shared()
     scores, mandel = lab_records(ev, "scores", labs), lab_records(ev, "mandel", labs)
+    unc = lab_records(ev, "uncertainties", labs)
     out = []
     for lab in labs:
         path = folder / "labs" / lab_file_name(lab)
-        path.write_text(lab_page_html(ev, parts, lab, scores=scores.get(lab, []), mandel=mandel.get(lab, [])),
-                        encoding="utf-8")
+        path.write_text(lab_page_html(ev, parts, lab, scores=scores.get(lab, []), mandel=mandel.get(lab, []),
+                                      uncertainties=unc.get(lab, [])), encoding="utf-8")
         out.append(path)
     return out

@@ -29,6 +29,7 @@ import numpy as np
 import pandas as pd
 import xlsxwriter
 
+from roundscore.evaluation.uncertainty import counts as uncertainty_counts
 from roundscore.model.evaluation import STATE_SIDE, STATISTICS_COLUMNS, RoundEvaluation
 from roundscore.model.scores import SCORE_FIELD, score_label
 from roundscore.outputs.lab_workbook import (LAB_FOLD, LAB_FORMAT, SUMMARY_POINTER, lab_payload,
@@ -113,6 +114,10 @@ def _write_summary(ev: RoundEvaluation, path: Path, options: dict[str, Any]) -> 
     r = write_table(ws, fm, r, frame.rename(columns={"d": "assigned", "e": "u_assigned", "f": "sigma_pt"}),
                ["a", "b", "c", "assigned", "u_assigned", "sigma_pt", "g", "h", "i", "j", "k"], head,
                row_decimals=dec) + 1
+    got = uncertainty_counts(ev.extras.get("uncertainties"))  # the labs' reported uncertainties, counted
+    if got is not None:
+        ws.write_string(r, 0, got.line(capital=True, where="sheet Uncertainties"))
+        r += 1
     for w in ev.warnings:
         ws.write_string(r, 0, "Note: " + w)
         r += 1

@@ -108,14 +108,16 @@ def columns_of(frame, cols: list[str]) -> tuple[dict[str, list], int]:
 def write_table(ws, fm: Formats, top: int, frame, columns: Iterable[str],
            headers: Iterable[str] | None = None, decimals: dict[str, int | None] | None = None,
            signal_col: str | None = None, words: str = "signals",
-           row_decimals: Mapping[str, int | None] | None = None) -> int:
+           row_decimals: Mapping[str, int | None] | None = None,
+           value_columns: Mapping[str, int] | None = None) -> int:
     """Write a header row and the table's columns (a frame, or lists by column); returns the row after it.
 
     ``decimals`` fixes a column's decimals; ``row_decimals`` maps measurand
     → decimals, applied row by row (by the row's ``measurand``) to the value
     columns of :data:`VALUE_COLUMNS` (with one more decimal for
-    uncertainties and σ_pt).  Missing values (None, NaN, empty text) leave
-    the cell empty.  The format of each column (or each row of a value
+    uncertainties and σ_pt), or of ``value_columns`` when given (the same
+    mapping for other column names).  Missing values (None, NaN, empty
+    text) leave the cell empty.  The format of each column (or each row of a value
     column) is looked up once, and rows are written in order (as
     xlsxwriter's ``constant_memory`` mode needs).
     """
@@ -123,19 +125,20 @@ def write_table(ws, fm: Formats, top: int, frame, columns: Iterable[str],
     for j, h in enumerate(headers or cols):
         ws.write_string(top, j, h, fm.head)
     data, n = columns_of(frame, cols)
+    values_by_row = VALUE_COLUMNS if value_columns is None else value_columns
     by_row: dict[int, list] = {}
     if row_decimals and "measurand" in frame:
         row_d = [row_decimals.get(m) for m in (frame["measurand"].tolist() if isinstance(frame, pd.DataFrame)
                                                 else frame["measurand"])]
-        for extra in set(VALUE_COLUMNS.values()):
+        for extra in set(values_by_row.values()):
             by_row[extra] = [None if d is None else fm.decimals(d + extra) for d in row_d]
     specs = []  # (column index, values, format, formats by row or None, signal cells or None)
     for j, c in enumerate(cols):
         fmt, fmts, signals = None, None, None
         if decimals and c in decimals:
             fmt = fm.decimals(decimals[c])
-        elif by_row and c in VALUE_COLUMNS:
-            fmts = by_row[VALUE_COLUMNS[c]]
+        elif by_row and c in values_by_row:
+            fmts = by_row[values_by_row[c]]
         if c == signal_col:
             signals = {s: (signal_label(s, words), fm.signal.get(s)) for s in set(data[c]) if isinstance(s, str)}
         specs.append((j, data[c], fmt, fmts, signals))
@@ -170,7 +173,9 @@ VALUE_COLUMNS = {"result": 0, "assigned": 0, "d": 0, "robust_mean": 0, "median":
                  # the stage tables' values in the measurand's unit (items, precision, methods, Mandel)
                  "mean": 0, "general_mean": 0, "difference": 0, "ci_low": 0, "ci_high": 0, "sd": 1, "s_x": 1,
                  "s_w": 1, "s_s": 1, "s_r": 1, "s_L": 1, "s_R": 1, "r": 1, "R": 1, "s_r_robust": 1,
-                 "criterion": 1, "allowed": 1}
+                 "criterion": 1, "allowed": 1,
+                 # the sensitivity table's estimates, the labs' reported uncertainties and their plausible range
+                 "value": 0, "u": 1, "u_min": 1, "u_max": 1}
 #: Decimals of the stage tables' dimensionless numbers (common practice: statistics and critical values to
 #: 2 or 3 decimals, p-values to 4); other numbers show as the program's General format.
 STAT_DECIMALS: dict[str, int] = {"h": 2, "k": 2, "h_crit_5": 2, "h_crit_1": 2, "k_crit_5": 2, "k_crit_1": 2,
@@ -189,7 +194,7 @@ def stage_sheet(wb, fm: Formats, name: str, frame: pd.DataFrame,
     (:mod:`roundscore.outputs.headings`), values to the measurand's decimals, statistics to
     :data:`STAT_DECIMALS`. Returns (sheet, column widths, last row)."""
     ws = wb.add_worksheet(name.capitalize()[:31])
-    cols, heads = list(frame.columns), headings(frame.columns)
+    cols, heads = list(frame.columns), headings(frame.columns, name)
     fixed = stage_decimals(frame)
     ws.set_row(0, 30)  # the wrapped heads (before the rows: constant_memory writes rows in order)
     end = write_table(ws, fm, 0, frame, cols, heads, decimals=fixed, row_decimals=row_decimals)
