@@ -21,7 +21,7 @@ from collections.abc import Iterable, Mapping
 
 from roundscore.model.scores import SCORES
 
-__all__ = ["HEADINGS", "heading", "headings"]
+__all__ = ["HEADINGS", "heading", "headings", "AUDIT_STEPS", "audit_for_people"]
 
 #: Column name (of scores.csv, statistics.csv, audit.csv and the extras tables) → its display heading.
 HEADINGS: Mapping[str, str] = MappingProxyType({
@@ -72,3 +72,23 @@ def heading(column: str) -> str:
 def headings(columns: Iterable[str]) -> list[str]:
     """:func:`heading` of each column, in order."""
     return [heading(c) for c in columns]
+
+
+#: Steps of audit.csv (its ``step`` column keeps these names) whose name is a column's: shown as its heading.
+AUDIT_STEPS: Mapping[str, str] = MappingProxyType({"sigma_pt": HEADINGS["sigma_pt"],
+                                                   "u_assigned": HEADINGS["u_assigned"]})
+
+
+def audit_for_people(audit):
+    """The audit trail as people read it (the report's and the summary workbook's): a ``step`` named like a
+    column (``sigma_pt``) shown in the standards' notation (σ_pt); audit.csv keeps the names.
+
+    >>> import pandas as pd
+    >>> audit_for_people(pd.DataFrame({"step": ["sigma_pt", "import"]}))["step"].tolist()
+    ['σ_pt', 'import']
+    """
+    if "step" not in audit.columns or not audit["step"].isin(list(AUDIT_STEPS)).any():
+        return audit
+    out = audit.copy()
+    out["step"] = out["step"].map(lambda s: AUDIT_STEPS.get(s, s))
+    return out

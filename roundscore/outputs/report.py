@@ -44,7 +44,7 @@ from roundscore.model.signals import SIGNAL_NAMES
 from roundscore.outputs.document import (Block, Bullets, Cell, Column, Document, Facts, Figure, Heading, Paragraph,
                                          Section, Table)
 from roundscore.outputs.guidance import GUIDANCE_TITLE, how_to_read
-from roundscore.outputs.headings import heading
+from roundscore.outputs.headings import audit_for_people, heading
 from roundscore.outputs.html import render_html
 from roundscore.outputs.look import CAUTION, SIGNAL_SYMBOL, SIGNAL_WORD, signal_legend_text
 from roundscore.outputs.workbook_base import VALUE_COLUMNS
@@ -458,7 +458,7 @@ def report_document(ev, parts: ReportParts | None = None) -> Document:
         sections.append(qual)
     sections.append(_section("scores", "Every laboratory's scores", [*_score_matrix(ev), *_score_detail(ev)]))
     sections.append(_section("audit", "Audit trail: exclusions and decisions",
-                             [_frame_table(ev, ev.audit, key_columns=2)] if len(ev.audit) else
+                             [_frame_table(ev, audit_for_people(ev.audit), key_columns=2)] if len(ev.audit) else
                              [Paragraph(text="Nothing was left out.", style="note")]))
     cautions = [CAUTION, *ev.failed_checks, *ev.warnings,
                 "Laboratories are shown by code only; each laboratory's own page and workbook carry its name."]
