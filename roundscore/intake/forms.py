@@ -60,7 +60,7 @@ from roundscore.support.sheetprint import print_layout
 
 __all__ = ["write_forms", "FormsWritten", "write_form", "records_from_form", "form_decimal", "FormDecimal",
            "form_file_name", "lab_cell", "FORM_FORMAT", "RESULTS_SHEET", "INFO_SHEET", "DECIMAL_CELL", "RECEIPT_FIELDS",
-           "form_receipt"]
+           "form_receipt", "date_text"]
 
 FORM_FORMAT = 1
 RESULTS_SHEET = "Results"
@@ -504,7 +504,7 @@ def form_decimal(results: SheetRows, info: SheetRows) -> tuple[FormDecimal | Non
     return None, []
 
 
-def _date_text(v) -> str | None:
+def date_text(v) -> str | None:
     """An ISO date from a cell: a date (or date-time at midnight) cell, or text YYYY-MM-DD; None otherwise."""
     if isinstance(v, dt.datetime):
         return v.date().isoformat() if v.time() == dt.time(0) else None
@@ -544,7 +544,7 @@ def form_receipt(results: SheetRows, info: SheetRows) -> tuple[SampleReceipt | N
         if v is None or (isinstance(v, str) and not v.strip()):
             continue
         if kind == "date":
-            text = _date_text(v)
+            text = date_text(v)
             if text is None:
                 problems.append(Problem(
                     message=f"{label.lower()} is not a date", file=results.file, sheet=results.sheet,

@@ -128,15 +128,19 @@ def write_lab_workbook(payload: LabPayload, path: Path) -> None:
     # the caution's and the pointer's rows (the table head's is added below)
     tall = {r - 2: 45.0, r - 1: ROW_POINTS * len(wrap_words(SUMMARY_POINTER, HEADING_CHARS))}
     table, folded, notes, sheets = _score_rows(payload)
-    for line in notes:
-        ws.write_string(r, 0, line)
+    for line in notes:  # wrapped across the table's first columns, as the heading's paragraphs
+        ws.merge_range(r, 0, r, 9, line, fm.wrap)
+        ws.set_row(r, ROW_POINTS * len(wrap_words(line, HEADING_CHARS)))
+        tall[r] = ROW_POINTS * len(wrap_words(line, HEADING_CHARS))
         r += 1
     r += 1
     cols, head, fixed = _score_sheet_columns(folded)
     top = r
     widths = fit_widths(table, cols, head, {**fixed, "result": 4, "assigned": 4, "u_assigned": 4, "sigma_pt": 4,
                                             "d": 4}, "signal")
-    widths = [max(w, 16 if j == 0 else 7) for j, w in enumerate(widths)]
+    # the first column also holds the heading's labels ("Date the sample arrived")
+    label_width = max(len(label) for label in HEADING_LABELS + tuple(label for label, _ in payload.receipt)) + 1
+    widths = [max(w, label_width if j == 0 else 7) for j, w in enumerate(widths)]
     end = write_table(ws, fm, r, table, cols, head, fixed, "signal", rd.words, row_decimals=payload.decimals,
                       widths=widths)
     tall[top] = ROW_POINTS * max(len(wrap_words(h, w)) for h, w in zip(head, widths))
@@ -192,9 +196,8 @@ def _heading(ws, fm: Formats, payload: LabPayload) -> int:
     rd, lab = payload.round, payload.lab
     ws.write_string(0, 0, f"Proficiency test round {rd.id}: score sheet for laboratory {lab}", fm.title)
     r = 1
-    for label, value in (("Laboratory code", lab), ("Laboratory", payload.name), ("Contact", payload.contact),
-                         ("Round", rd.id), ("Title", rd.title), ("Scheme", rd.scheme),
-                         ("Date", rd.date), ("Material", rd.material), *payload.receipt):
+    values = (lab, payload.name, payload.contact, rd.id, rd.title, rd.scheme, rd.date, rd.material)
+    for label, value in (*zip(HEADING_LABELS, values), *payload.receipt):  # and what the lab said of its sample
         if value:
             ws.write_string(r, 0, label, fm.bold)
             ws.write_string(r, 1, str(value))
@@ -211,6 +214,8 @@ def _heading(ws, fm: Formats, payload: LabPayload) -> int:
     return r + 2
 
 
+#: The labels of the Scores sheet's heading (column A), before the lab's sample receipt.
+HEADING_LABELS = ("Laboratory code", "Laboratory", "Contact", "Round", "Title", "Scheme", "Date", "Material")
 #: Characters a line of the heading's wrapped paragraphs holds (merged over the table's first ten columns, at
 #: least about 105 units wide, so some 115 characters of text: a lower count errs on a taller row).
 HEADING_CHARS = 105

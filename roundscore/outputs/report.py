@@ -496,8 +496,10 @@ def lab_document(ev, parts: ReportParts, lab: str, *, scores: list[dict[str, Any
     rows = scores if scores is not None else lab_records(ev, "scores", [lab]).get(lab, [])
     if mandel is None:
         mandel = lab_records(ev, "mandel", [lab]).get(lab)
+    receipt = ev.table.receipts.get(lab)  # what the lab said of its sample (form fields or results columns)
     ident = Facts(pairs=(("Laboratory code", lab), ("Laboratory", p.name if p else ""),
-                         ("Contact", p.contact if p else "")), style="confidential")
+                         ("Contact", p.contact if p else ""), *(receipt.lines() if receipt is not None else ())),
+                  style="confidential")
     table_rows = []
     for rec in rows:
         meas = rec["measurand"]
