@@ -232,7 +232,7 @@ def _qualitative_table(rnd: Round, ws, info, top: int, fm: dict) -> tuple[int, i
                                                 "error_message": f"Choose one of the test items of {q.name}."})
             order = " (lowest first)" if q.kind == "ordinal" else ""
             ws.data_validation(r, 2, r, 2, {"validate": "list", "source": source(q.categories),
-                                            "input_title": q.label or q.name,
+                                            "input_title": _input_title(q.label or q.name),
                                             "input_message": f"One of: {', '.join(q.categories)}{order}"[:255],
                                             "error_title": "Result",
                                             "error_message": f"Choose one of the categories of {q.name}."[:255]})
@@ -296,6 +296,29 @@ def _write_receipt_fields(wb, ws, bold, col: int) -> dict[str, str]:
                 "error_message": "At most 200 characters."})
         cells[key] = xlsxwriter.utility.xl_rowcol_to_cell(row, col + 1)
     return cells
+
+
+#: Longest title of a cell's input message (UTF-16 code units): Excel's limit; xlsxwriter drops the whole
+#: validation, drop-down list included, when a title is longer.
+INPUT_TITLE_UNITS = 32
+
+
+def _input_title(text: str) -> str:
+    """``text`` as a data validation's input title: cut with "…" to :data:`INPUT_TITLE_UNITS` UTF-16 units.
+
+    >>> _input_title("Sand and grit (graded by sieving)")
+    'Sand and grit (graded by sievin…'
+    >>> _input_title("grit")
+    'grit'
+    """
+    def units(s: str) -> int:
+        return len(s.encode("utf-16-le")) // 2
+
+    if units(text) <= INPUT_TITLE_UNITS:
+        return text
+    while units(text) > INPUT_TITLE_UNITS - 1:
+        text = text[:-1]
+    return text.rstrip() + "…"
 
 
 def _fixed_time():
