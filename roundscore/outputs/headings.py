@@ -60,6 +60,8 @@ HEADINGS: Mapping[str, str] = MappingProxyType({
     "ci_high": "Confidence interval: high", "significant": "Significant", "p_adjusted": "p-value (Holm)",
     "t_critical": "t: critical value", "f_statistic": "F", "f_p_value": "F test: p-value",
     "confidence": "Confidence level", "untested": "Groups too small to test", "conclusion": "Conclusion",
+    # a lab's history (history show --out, roundscore.outputs.history_workbook)
+    "rules": "Trend rules fired",
 })
 
 
