@@ -124,6 +124,9 @@ def _frame_table(ev, frame: pd.DataFrame | None, columns: Sequence[str] | None =
             if c == signal and isinstance(v, str):
                 row.append(Cell(text=_signal_text(v, words), signal=v))
                 continue
+            if c == "score" and isinstance(v, str):  # a score by its symbol (ζ), as every page shows it
+                row.append(Cell(text=score_symbol(v)))
+                continue
             if c in decimals:
                 d = decimals[c]
             elif c in VALUE_COLUMNS and places.get(meas[i]) is not None:

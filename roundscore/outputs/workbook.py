@@ -72,6 +72,13 @@ _SCORE_COLS = ["lab", "measurand", "unit", "n_replicates", "result", "assigned",
                *score_table_columns()[0], "signal", "note"]
 
 
+def _symbols(frame: pd.DataFrame) -> pd.DataFrame:
+    """``frame`` with its ``score`` column as the scores' symbols (z, z′, ζ, En) for people to read."""
+    if "score" not in frame.columns or not len(frame):
+        return frame
+    return frame.assign(score=frame["score"].map(lambda s: score_symbol(s) if isinstance(s, str) else s))
+
+
 def write_summary(ev: RoundEvaluation, path: Path) -> None:
     """The summary workbook for circulation: settings, statistics, all scores by lab code, charts, audit.
 
@@ -124,14 +131,15 @@ def _write_summary(ev: RoundEvaluation, path: Path, options: dict[str, Any]) -> 
     # Statistics
     ws = wb.add_worksheet("Statistics")
     stat_heads = headings(STATISTICS_COLUMNS)
-    widths = fit_widths(ev.statistics, STATISTICS_COLUMNS, stat_heads, decimals={c: 4 for c in STATISTICS_COLUMNS})
-    end = write_table(ws, fm, 0, ev.statistics, STATISTICS_COLUMNS, stat_heads, row_decimals=dec, widths=widths)
+    stats = _symbols(ev.statistics)
+    widths = fit_widths(stats, STATISTICS_COLUMNS, stat_heads, decimals={c: 4 for c in STATISTICS_COLUMNS})
+    end = write_table(ws, fm, 0, stats, STATISTICS_COLUMNS, stat_heads, row_decimals=dec, widths=widths)
     ws.freeze_panes(1, 1)
     set_widths(ws, widths)
     print_setup(ws, rnd.id, 0, widths=widths, last_row=end - 1, **paper)
     # Scores
     ws = wb.add_worksheet("Scores")
-    sc = ev.scores
+    sc = _symbols(ev.scores)
     widths = fit_widths(sc, _SCORE_COLS, _SCORE_HEAD, {**SCORE_DECIMALS, "result": 4, "assigned": 4,
                                                        "u_assigned": 4, "sigma_pt": 4, "d": 4}, "signal")
     end = write_table(ws, fm, 0, sc, _SCORE_COLS, _SCORE_HEAD, SCORE_DECIMALS, "signal", rnd.words, row_decimals=dec,
