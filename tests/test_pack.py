@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import csv
 import math
+import re
 import shutil
 
 import openpyxl
@@ -82,7 +83,8 @@ def test_the_charts_mark_the_findings_where_they_fired(small):
     figures = [b for b in packs.pack_document(packs.lab_pack(small[0].archive, "L01")).blocks
                for b in getattr(b, "blocks", ()) if getattr(b, "svg", None)]
     assert [f.title for f in figures] == ["AQ / lead", "AQ / nitrate", "SOIL / copper"]
-    assert all(f.title not in f.svg for f in figures)
+    drawn = [" ".join(re.findall(r"<text\b[^>]*>([^<]*)</text>", f.svg)) for f in figures]  # text on the canvas
+    assert all(f.title not in text for f, text in zip(figures, drawn)) and all("AQ-25-09" in t for t in drawn[:2])
 
 
 def test_per_round_counts_match_a_count_of_scores_csv(small):
