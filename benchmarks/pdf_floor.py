@@ -2,7 +2,8 @@
 
 :func:`bare_pdf` draws a :class:`~roundscore.outputs.document.Document` the
 plain way fpdf2 documents it, with none of roundscore's layout logic: the same
-two DejaVu Sans fonts added to each document with ``add_font``, headings and
+two DejaVu Sans fonts (parsed once per process and registered in each document,
+as roundscore does: see :func:`_fonts_once`), headings and
 text with ``multi_cell``, tables with ``FPDF.table()`` (header row repeated),
 figures with ``FPDF.image()`` of the same SVG, a footer with the page number.
 It does not split wide tables, shrink fonts, keep headings with what follows
@@ -22,14 +23,11 @@ from typing import Any
 
 
 def bare_pdf(doc: Any, paper: str) -> bytes:
-    import matplotlib
     from fpdf import FPDF
     from fpdf.fonts import FontFace
 
     from roundscore.outputs.document import Bullets, Facts, Figure, Heading, Paragraph, Section, Table
     from roundscore.outputs.pdf import PDF_DATE, _svg_for_fpdf
-
-    folder = matplotlib.get_data_path() + "/fonts/ttf/"
 
     class Bare(FPDF):
         def footer(self) -> None:
@@ -39,8 +37,7 @@ def bare_pdf(doc: Any, paper: str) -> bytes:
 
     pdf = Bare(format="A4" if paper == "a4" else "Letter")
     pdf.set_creation_date(PDF_DATE)
-    pdf.add_font("DejaVu Sans", "", folder + "DejaVuSans.ttf")
-    pdf.add_font("DejaVu Sans", "B", folder + "DejaVuSans-Bold.ttf")
+    _fonts_once(pdf)
     pdf.add_page()
 
     def text(s: str, size: float = 9, style: str = "") -> None:
@@ -80,6 +77,32 @@ def bare_pdf(doc: Any, paper: str) -> bytes:
     for block in doc.blocks:
         draw(block)
     return bytes(pdf.output())
+
+
+def _fonts_once(pdf: Any) -> None:
+    """The two DejaVu Sans styles registered in ``pdf`` from fonts parsed once per process.
+
+    fpdf2's ``add_font`` parses the whole font file for every document (about
+    0.3 s a file for the two styles); roundscore parses each style once per
+    worker process and gives every document a fresh copy to subset
+    (``roundscore.outputs.pdf._add_fonts``, tested to write the same file as
+    ``add_font``). A floor paying ``add_font`` per file would charge the bare
+    library a cost any program writing thousands of files avoids, so the floor
+    registers its fonts the same way; with ``ROUNDSCORE_FLOOR_ADD_FONT=1`` it
+    calls ``add_font`` per document as before (to measure what that costs).
+    """
+    import os
+
+    if os.environ.get("ROUNDSCORE_FLOOR_ADD_FONT") == "1":
+        import matplotlib
+
+        folder = matplotlib.get_data_path() + "/fonts/ttf/"
+        pdf.add_font("DejaVu Sans", "", folder + "DejaVuSans.ttf")
+        pdf.add_font("DejaVu Sans", "B", folder + "DejaVuSans-Bold.ttf")
+        return
+    from roundscore.outputs.pdf import _add_fonts
+
+    _add_fonts(pdf)
 
 
 def documents(ev: Any, labs: list[str]) -> tuple[dict[str, Any], bool]:

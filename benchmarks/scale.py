@@ -690,7 +690,7 @@ def _pdf_line(a: argparse.Namespace, say, rnd: Path, work: Path, base: dict) -> 
     pdf = run_part("pdf", a, round=str(rnd), pdf_out=str(work / "pdf-out"), **base)
     n = pdf["files"]
     say(f"{'pdf':<10}{pdf['roundscore']:9.2f} s   {n} files ({pdf['roundscore_bytes'] / n / 1024:.0f} KB each), "
-        f"{pdf['roundscore'] / pdf['floor']:.2f}× the floor ({pdf['floor']:.2f} s: bare fpdf2, add_font per file, "
+        f"{pdf['roundscore'] / pdf['floor']:.2f}× the floor ({pdf['floor']:.2f} s: bare fpdf2, fonts parsed once, "
         f"FPDF.table, FPDF.image of the same SVG; {pdf['floor_bytes'] / n / 1024:.0f} KB each)"
         + ("; stand-in lab documents (outputs/report.py has no lab_document yet)" if pdf["stand_in"] else ""))
     say(f"pdf/floor={pdf['roundscore'] / pdf['floor']:.2f} per file {pdf['roundscore'] / n * 1000:.0f} ms")

@@ -320,7 +320,7 @@ def test_show_table_and_outputs(tmp_path, capsys):
     top = next(r for r in range(1, 10) if sheet.cell(row=r, column=1).value == "Round date")
     header = [c.value for c in sheet[top]]
     note = sheet.cell(row=top + 1, column=header.index("Note") + 1)  # display headings (outputs/headings.py)
-    rules = [sheet.cell(row=top + 1 + k, column=header.index("rules") + 1).value for k in range(4)]
+    rules = [sheet.cell(row=top + 1 + k, column=header.index("Trend rules fired") + 1).value for k in range(4)]
     assert rules == [None, None, "1, 2, 4", None]  # in the table too; CUSUM z - 0.5: 0, 1.9, 4.7 > h = 4 (Page 1954)
     assert note.value == "=2+2" and note.data_type == "s"  # text, never a formula
     svg = (out_dir / "history.svg").read_text().lower()

@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import csv
 import math
+import re
 import shutil
 
 import openpyxl
@@ -78,6 +79,12 @@ def test_the_charts_mark_the_findings_where_they_fired(small):
     assert [r[0] for r in nitrate if r[head.index("action")] is not None] == ["AQ-25-04"]
     html = (out / "pack.html").read_text(encoding="utf-8")
     assert html.count("<svg") == 3 and "R4" in html and "R3" in html and "AQ-25-09" in html
+    # each chart's name is given once, by the page (its figure's title), not again inside the drawing
+    figures = [b for b in packs.pack_document(packs.lab_pack(small[0].archive, "L01")).blocks
+               for b in getattr(b, "blocks", ()) if getattr(b, "svg", None)]
+    assert [f.title for f in figures] == ["AQ / lead", "AQ / nitrate", "SOIL / copper"]
+    drawn = [" ".join(re.findall(r"<text\b[^>]*>([^<]*)</text>", f.svg)) for f in figures]  # text on the canvas
+    assert all(f.title not in text for f, text in zip(figures, drawn)) and all("AQ-25-09" in t for t in drawn[:2])
 
 
 def test_per_round_counts_match_a_count_of_scores_csv(small):

@@ -51,10 +51,14 @@ scored = false
 """
 
 #: Copper results (invented): L05 withheld, L09 warning, L10 action, L11 a censored false negative,
-#: L12 a decimal slip (×1000), L13 entered in g/kg (0.01002 g/kg = 10.02 mg/kg), L14 reported nothing.
-COPPER = {"L01": "10.03", "L02": "9.91", "L03": "10.12", "L04": "9.87", "L05": "11.3945", "L06": "10.05",
+#: L12 a decimal slip (×1000), L13 entered in g/kg (0.01002 g/kg = 10.02 mg/kg), L06 in µg/kg (10050 µg/kg =
+#: 10.05 mg/kg), L07 in ppm (a mass fraction of 1e-6: 9.97 ppm = 9.97 mg/kg), L14 reported nothing.
+COPPER = {"L01": "10.03", "L02": "9.91", "L03": "10.12", "L04": "9.87", "L05": "11.3945", "L06": "10050",
           "L07": "9.97", "L08": "10.08", "L09": "11.2", "L10": "8.2", "L11": "<2", "L12": "10010",
           "L13": "0.01002"}
+#: The units the labs entered other than the measurand's mg/kg, and the factor each is converted by (SI:
+#: 1 g/kg = 1000 mg/kg, 1 µg/kg = 0.001 mg/kg; ppm as a mass fraction 1e-6 = 1 mg/kg).
+UNITS = {"L13": ("g/kg", "1000"), "L06": ("µg/kg", "0.001"), "L07": ("ppm", "1")}
 #: Zinc results spread widely against σ_pt = 0.05, so u(x_pt) > 0.3 σ_pt (the check fails).
 ZINC = {f"L{i:02d}": f"{5 + 0.08 * ((i * 7) % 11 - 5):.2f}" for i in range(1, 14)}
 
@@ -72,7 +76,7 @@ def scored(tmp_path_factory):
     folder.mkdir()
     (folder / "round.toml").write_text(TOML.lstrip(), encoding="utf-8")
     rows = ["lab,measurand,replicate,value,unit"]
-    rows += [f"{lab},copper,1,{v},{'g/kg' if lab == 'L13' else ''}" for lab, v in COPPER.items()]
+    rows += [f"{lab},copper,1,{v},{UNITS[lab][0] if lab in UNITS else ''}" for lab, v in COPPER.items()]
     rows += [f"{lab},zinc,1,{v}," for lab, v in ZINC.items()]
     (folder / "results.csv").write_text("\n".join(rows) + "\n", encoding="utf-8")
     (folder / "participants.csv").write_text("lab,name,contact\n" + "".join(
@@ -148,9 +152,14 @@ def test_audit_records_the_withholding_and_the_conversion(scored):
     audit = _csv(out / "audit.csv")
     assert any(r["lab"] == "L05" and "withheld" in r["action"] and r["reason"] == "sample thawed in transit"
                for r in audit)
-    (conv,) = [r for r in audit if r["action"] == "unit converted"]
-    assert (conv["lab"], conv["measurand"]) == ("L13", "copper")
-    assert "g/kg" in conv["reason"] and "1000" in conv["reason"]
+    conv = {r["lab"]: r for r in audit if r["action"] == "unit converted"}
+    assert set(conv) == set(UNITS) and {r["measurand"] for r in conv.values()} == {"copper"}
+    for lab, (unit, factor) in UNITS.items():
+        assert conv[lab]["reason"].startswith(f"entered in {unit}, converted ×{factor} to mg/kg"), conv[lab]
+    rows = _csv(out / "scores.csv")
+    assert float(_copper(rows, "L06")["result"]) == pytest.approx(10.05)
+    assert float(_copper(rows, "L07")["result"]) == pytest.approx(9.97)
+    assert _copper(rows, "L06")["note"] == "entered in µg/kg, converted ×0.001 to mg/kg"
 
 
 @pytest.mark.parametrize("name", ["round-summary.xlsx", "labs/L05.xlsx"])
@@ -297,3 +306,30 @@ def test_the_pdfs_say_each_state_and_hold_no_withheld_value(scored):
     assert "converted ×1000" in _pdf_text(out / "labs" / "L13.pdf")
     report = _pdf_text(out / "report.pdf")
     assert not [t for t in texts if t in report]
+
+
+def test_history_and_the_circulation_list_follow_the_states(scored, tmp_path):
+    """The archived round read back by ``history show``: the withheld row says so and carries no value, the
+    censored false negative keeps its signal; circulation.csv lists every lab's own files."""
+    ev, out = scored
+    folder = ev.round.folder
+    db = tmp_path / "archive.sqlite"
+    assert main(["score", str(folder), "--out", str(tmp_path / "out"), "--jobs", "1", "--quiet", "--formats", "csv",
+                 "--archive", str(db)]) == 0
+    hidden = _withheld_numbers(ev)
+    for lab in ("L05", "L11"):
+        assert main(["history", "show", "--archive", str(db), "--lab", lab, "--out", str(tmp_path / lab)]) == 0
+        ws = openpyxl.load_workbook(tmp_path / lab / "history.xlsx")["history"]
+        rows = [r for r in ws.iter_rows(values_only=True) if r and "copper" in r]
+        (row,) = rows
+        text = " ".join(str(c) for c in row if c is not None)
+        _, signal = EXPECTED[lab]
+        assert SIGNALS[signal].label() in text, text
+        if lab == "L05":
+            assert "withheld by the coordinator" in text
+            assert not any(isinstance(c, float) and any(abs(c - v) < 1e-9 for v in hidden.values()) for c in row)
+        else:
+            assert "false negative" in text
+    listed = {r["lab"]: r["files"].split(";") for r in _csv(out / "circulation.csv")}
+    assert set(listed) == {f"L{i:02d}" for i in range(1, 15)}
+    assert listed["L05"] == ["labs/L05.xlsx", "labs/L05.html", "labs/L05.pdf"]

@@ -42,6 +42,7 @@ from roundscore.stats import trends
 from roundscore.choices import options
 from roundscore.errors import ArchiveError, InputError, RoundscoreError
 from roundscore.model.round import Paper
+from roundscore.model.scores import SCORES, score_symbol
 from roundscore.outputs.history_workbook import (HISTORY_TABLE_COLUMNS, head_lines as _head_lines,
                                                 write_history_outputs as _write_outputs)
 from roundscore.outputs.look import (SIGNAL_CHART_MARKER, SIGNAL_COLOUR, SIGNAL_MARKER, SIGNAL_SYMBOL,
@@ -219,9 +220,11 @@ def format_table(frame: pd.DataFrame) -> str:
     shown["score_value"] = [("" if not np.isfinite(v) else f"{v:+.2f}")
                             for v in shown["score_value"]]
     shown["signal"] = [signal_label(s) for s in shown["signal"]]
+    if "score" in shown.columns:  # the score's symbol (z, z′, ζ, En), as every other output shows it
+        shown["score"] = [score_symbol(s) if isinstance(s, str) and s in SCORES else s for s in shown["score"]]
     if "rules" not in shown.columns:
         shown["rules"] = ""
-    header = ["date", "scheme", "round", "measurand", "unit", "result", "assigned", "sigma_pt",
+    header = ["date", "scheme", "round", "measurand", "unit", "result", "assigned", "σ_pt",
               "score", "value", "signal", "rules", "note"]
     cells = [header] + [[_fmt(v) for v in row] for row in shown.itertuples(index=False)]
     widths = [max(len(r[i]) for r in cells) for i in range(len(header))]

@@ -15,7 +15,11 @@ checks are reported only: each lab had its own bottle, so the consensus
 value's uncertainty already holds the between-bottle spread. Stability
 (``stability.csv``): iodine before and after the round, and mercury in
 bottles kept frozen against bottles kept two weeks at 40 °C (with the
-uncertainty of each mean, so the expanded criterion is used).
+uncertainty of each mean, so the expanded criterion is used). Results are due
+by 2026-10-07 (``return_by``, printed on the blank forms); three labs say when
+their sample arrived, in what condition and when they analysed it (the
+results table's optional columns ``arrived``, ``condition``, ``analysed``):
+K08's cool box came with its ice packs melted.
 
 Two qualitative measurands share the round: *Salmonella* in 25 g (nominal: detected / not detected) on
 two test items, KM-14S (spiked) and KM-14B (a blank), with one false negative (K09), one false positive
@@ -51,6 +55,8 @@ material = "Dried kelp meal, test item KM-14"
 results = "results.csv"
 participants = "participants.csv"
 replicates = 2
+# The date results are due, printed on the blank forms (roundscore forms).
+return_by = "2026-10-07"
 # Numbers typed as text use a decimal point (1.012 is one point zero one two); one lab types decimal
 # commas (0,838), which have only one reading and are read as such.
 decimal = "point"
@@ -212,6 +218,13 @@ def _qualitative_rows(labs: list[str], seed: int) -> list[list[object]]:
     return rows
 
 
+#: The sample receipts some labs gave (invented): the results table's optional columns arrived, condition and
+#: analysed, on the lab's first row; they reach the audit trail and the lab's score sheet and page.
+_RECEIPTS = {"K03": ("2026-09-22", "intact", "2026-09-29"),
+             "K08": ("2026-09-25", "cool box, ice packs melted", "2026-09-30"),
+             "K21": ("2026-09-23", "", "")}
+
+
 def make_demo_round(folder: str | Path, *, seed: int = DEMO_SEED) -> Path:
     """Write the demo round (round.toml, results.csv, participants.csv, item tables) into ``folder``."""
     folder = Path(folder)
@@ -253,9 +266,15 @@ def make_demo_round(folder: str | Path, *, seed: int = DEMO_SEED) -> Path:
                     text = text.replace(".", ",")  # decimal comma, as some labs type it
                 rows.append([lab, name, rep, text, unit, u_txt, U_txt, k_txt, method, ""])
     rows += _qualitative_rows(labs, seed)
+    first: dict[object, int] = {}
+    for i, row in enumerate(rows):
+        first.setdefault(row[0], i)
+    rows = [row + list(_RECEIPTS[row[0]] if row[0] in _RECEIPTS and first[row[0]] == i else ("", "", ""))
+            for i, row in enumerate(rows)]
     with open(folder / "results.csv", "w", newline="", encoding="utf-8") as fh:
         w = csv.writer(fh, lineterminator="\n")
-        w.writerow(["lab", "measurand", "replicate", "value", "unit", "u", "U", "k", "method", "item"])
+        w.writerow(["lab", "measurand", "replicate", "value", "unit", "u", "U", "k", "method", "item", "arrived",
+                    "condition", "analysed"])
         w.writerows(rows)
     with open(folder / "participants.csv", "w", newline="", encoding="utf-8") as fh:
         w = csv.writer(fh, lineterminator="\n")

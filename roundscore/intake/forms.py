@@ -60,7 +60,7 @@ from roundscore.support.sheetprint import print_layout
 
 __all__ = ["write_forms", "FormsWritten", "write_form", "records_from_form", "form_decimal", "FormDecimal",
            "form_file_name", "lab_cell", "FORM_FORMAT", "RESULTS_SHEET", "INFO_SHEET", "DECIMAL_CELL", "RECEIPT_FIELDS",
-           "form_receipt"]
+           "form_receipt", "date_text"]
 
 FORM_FORMAT = 1
 RESULTS_SHEET = "Results"
@@ -232,7 +232,7 @@ def _qualitative_table(rnd: Round, ws, info, top: int, fm: dict) -> tuple[int, i
                                                 "error_message": f"Choose one of the test items of {q.name}."})
             order = " (lowest first)" if q.kind == "ordinal" else ""
             ws.data_validation(r, 2, r, 2, {"validate": "list", "source": source(q.categories),
-                                            "input_title": q.label or q.name,
+                                            "input_title": _input_title(q.label or q.name),
                                             "input_message": f"One of: {', '.join(q.categories)}{order}"[:255],
                                             "error_title": "Result",
                                             "error_message": f"Choose one of the categories of {q.name}."[:255]})
@@ -296,6 +296,29 @@ def _write_receipt_fields(wb, ws, bold, col: int) -> dict[str, str]:
                 "error_message": "At most 200 characters."})
         cells[key] = xlsxwriter.utility.xl_rowcol_to_cell(row, col + 1)
     return cells
+
+
+#: Longest title of a cell's input message (UTF-16 code units): Excel's limit; xlsxwriter drops the whole
+#: validation, drop-down list included, when a title is longer.
+INPUT_TITLE_UNITS = 32
+
+
+def _input_title(text: str) -> str:
+    """``text`` as a data validation's input title: cut with "…" to :data:`INPUT_TITLE_UNITS` UTF-16 units.
+
+    >>> _input_title("Sand and grit (graded by sieving)")
+    'Sand and grit (graded by sievin…'
+    >>> _input_title("grit")
+    'grit'
+    """
+    def units(s: str) -> int:
+        return len(s.encode("utf-16-le")) // 2
+
+    if units(text) <= INPUT_TITLE_UNITS:
+        return text
+    while units(text) > INPUT_TITLE_UNITS - 1:
+        text = text[:-1]
+    return text.rstrip() + "…"
 
 
 def _fixed_time():
@@ -504,7 +527,7 @@ def form_decimal(results: SheetRows, info: SheetRows) -> tuple[FormDecimal | Non
     return None, []
 
 
-def _date_text(v) -> str | None:
+def date_text(v) -> str | None:
     """An ISO date from a cell: a date (or date-time at midnight) cell, or text YYYY-MM-DD; None otherwise."""
     if isinstance(v, dt.datetime):
         return v.date().isoformat() if v.time() == dt.time(0) else None
@@ -544,7 +567,7 @@ def form_receipt(results: SheetRows, info: SheetRows) -> tuple[SampleReceipt | N
         if v is None or (isinstance(v, str) and not v.strip()):
             continue
         if kind == "date":
-            text = _date_text(v)
+            text = date_text(v)
             if text is None:
                 problems.append(Problem(
                     message=f"{label.lower()} is not a date", file=results.file, sheet=results.sheet,

@@ -12,17 +12,23 @@ from roundscore.errors import InputError, Problem, Place, is_text_file
 from roundscore.intake.roundfile import result_files
 from roundscore.model.inputs import Participant
 from roundscore.model.round import Round
-from roundscore.model.labcodes import LabCodeReader, clash_problems, lab_key
+from roundscore.model.labcodes import LabCodeReader, clash_problems, lab_key, read_lab_code
 from roundscore.model.table import COLUMNS, ResultTable, SampleReceipt, columns_of, frame_from_columns
 from roundscore.intake.cache import CachedForm, FileKey, InputCache, file_key, unchanged
-from roundscore.intake.validate import build_table, records_from_long, summarise_ambiguous, validate_records
-from roundscore.text import quote, too_long
-from roundscore.intake.forms import (INFO_SHEET, RESULTS_SHEET, form_decimal, form_receipt, lab_cell,
-                                     records_from_form)
+from roundscore.intake.validate import (build_table, cell_label, records_from_long, summarise_ambiguous,
+                                       validate_records)
+from roundscore.text import clip, quote, too_long
+from roundscore.intake.forms import (INFO_SHEET, RECEIPT_FIELDS, RESULTS_SHEET, date_text, form_decimal,
+                                     form_receipt, lab_cell, records_from_form)
 from roundscore.intake.safety import hidden_by_design
 from roundscore.intake.xlsx import SheetRows, read_rows
 
-__all__ = ["read_results", "read_participants", "read_item_table", "check_labs"]
+__all__ = ["read_results", "read_participants", "read_item_table", "check_labs", "receipts_from_long",
+           "RECEIPT_COLUMNS"]
+
+#: The long layout's optional columns of the sample's receipt (the forms' fields, :data:`RECEIPT_FIELDS`):
+#: the date the sample arrived, its condition on arrival, the date of analysis.
+RECEIPT_COLUMNS = tuple(key for key, _, _ in RECEIPT_FIELDS)
 
 
 def _is_form(path: Path) -> bool:
@@ -109,6 +115,9 @@ def read_results(rnd: Round, *, jobs: int | None = None, progress=None, cache: I
                 receipts.update(got_receipts)
             else:
                 recs, probs = records_from_long(sheet)
+                got_receipts, receipt_probs = receipts_from_long(sheet)
+                receipts.update(got_receipts)
+                probs = probs + receipt_probs
                 warns = sheet.warnings
         elif _is_form(f):
             recs, probs, warns, notes, got_receipts = _read_form(rnd, f)
@@ -122,6 +131,66 @@ def read_results(rnd: Round, *, jobs: int | None = None, progress=None, cache: I
         warnings += list(warns)
     return build_table(rnd, records, files=[_shown(rnd, f) for f in files], warnings=warnings, problems=problems,
                        readings=readings, receipts=receipts)
+
+
+def receipts_from_long(sheet: SheetRows) -> tuple[dict[str, SampleReceipt], list[Problem]]:
+    """The sample receipts a long-layout table gives in its optional columns :data:`RECEIPT_COLUMNS`
+    (``arrived``, ``condition``, ``analysed``), by lab; and the problems, each naming the row and the value.
+
+    A lab's fields may stand on any of its rows (on the first, say); blank cells say nothing, and two rows of
+    one lab that give a field different values are refused, as is a date that is not one (a date cell or
+    ``YYYY-MM-DD`` text, as on the forms). A table without these columns gives none. Rows whose lab code is
+    not valid are left to the results' own checks.
+    """
+    rows = sheet.rows
+    start = next((i for i, r in enumerate(rows) if any(c is not None for c in r)), None)
+    if start is None:
+        return {}, []
+    index = {name: j for j, c in enumerate(rows[start]) if (name := (cell_label(c) or "").lower()) in RECEIPT_COLUMNS}
+    lab_col = next((j for j, c in enumerate(rows[start]) if (cell_label(c) or "").lower() == "lab"), None)
+    if not index or lab_col is None:
+        return {}, []
+    kinds = {key: (label, kind) for key, label, kind in RECEIPT_FIELDS}
+    found: dict[str, dict[str, tuple[str, int]]] = {}
+    problems: list[Problem] = []
+    for i in range(start + 1, len(rows)):
+        r = rows[i]
+        lab, _ = read_lab_code(r[lab_col] if lab_col < len(r) else None)
+        if lab is None:
+            continue
+        line = sheet.row_number(i)
+        for key, j in index.items():
+            v = r[j] if j < len(r) else None
+            if v is None or (isinstance(v, str) and not v.strip()) or (isinstance(v, float) and v != v):
+                continue
+            label, kind = kinds[key]
+            where = Place(file=sheet.file, sheet=sheet.sheet, row=line, column=str(cell_label(rows[start][j])))
+            if kind == "date":
+                text = date_text(v)
+                if text is None:
+                    problems.append(Problem(message=f"{label.lower()} is not a date", lab=lab, value=v,
+                                            hint="write the date as YYYY-MM-DD (2026-10-14), or leave the cell "
+                                                 "blank", **where))
+                    continue
+            else:
+                text = clip(" ".join(str(v).split()), 200)
+            had = found.setdefault(lab, {}).get(key)
+            if had is None:
+                found[lab][key] = (text, line)
+            elif had[0] != text:
+                problems.append(Problem(message=f"{label.lower()} differs from the lab's row {had[1]} "
+                                                f"({had[0]!r})",
+                                        lab=lab, value=v,
+                                        hint="give the sample's receipt once per lab, or the same on every row",
+                                        **where))
+    out = {}
+    for lab, fields in found.items():
+        lines = sorted({line for _, line in fields.values()})
+        word = "line" if is_text_file(sheet.file, sheet.sheet) else "row"
+        rows_text = f"{word} {lines[0]}" if len(lines) == 1 else f"{word}s {', '.join(map(str, lines))}"
+        out[lab] = SampleReceipt(**{k: v for k, (v, _) in fields.items()},
+                                 source=f"{sheet.file}{', ' + sheet.sheet if sheet.sheet else ''}, {rows_text}")
+    return out, problems
 
 
 def _read_forms(rnd: Round, files: list[Path], *, jobs: int | None, progress,

@@ -16,6 +16,7 @@ from collections.abc import Sequence
 import numpy as np
 import pandas as pd
 
+from roundscore.model.scores import score_symbol
 from roundscore.outputs.document import Cell, Column, Paragraph, Table
 from roundscore.outputs.headings import heading
 from roundscore.outputs.look import SIGNAL_SYMBOL, SIGNAL_WORD
@@ -81,6 +82,9 @@ def frame_table(ev, frame: pd.DataFrame | None, columns: Sequence[str] | None = 
             v = data[j][i]
             if c == signal and isinstance(v, str):
                 row.append(Cell(text=signal_text(v, words), signal=v))
+                continue
+            if c == "score" and isinstance(v, str):  # a score by its symbol (ζ), as every page shows it
+                row.append(Cell(text=score_symbol(v)))
                 continue
             if c in decimals:
                 d = decimals[c]

@@ -23,7 +23,7 @@ from collections.abc import Iterable, Mapping
 
 from roundscore.model.scores import SCORES
 
-__all__ = ["HEADINGS", "TABLE_HEADINGS", "heading", "headings"]
+__all__ = ["HEADINGS", "TABLE_HEADINGS", "heading", "headings", "AUDIT_STEPS", "audit_for_people"]
 
 #: Column name (of scores.csv, statistics.csv, audit.csv and the extras tables) → its display heading.
 HEADINGS: Mapping[str, str] = MappingProxyType({
@@ -66,6 +66,8 @@ HEADINGS: Mapping[str, str] = MappingProxyType({
     "chosen": "Chosen", "why": "Why flagged",
     "u_min": "Lowest plausible u", "u_max": "Highest plausible u", "reading": "Reading",
     "joint": "z and ζ read together",
+    # a lab's history (history show --out, roundscore.outputs.history_workbook)
+    "rules": "Trend rules fired",
 })
 
 #: (table, column) → the heading of a column that one extras table means its own way (its name elsewhere
@@ -88,3 +90,23 @@ def heading(column: str, table: str | None = None) -> str:
 def headings(columns: Iterable[str], table: str | None = None) -> list[str]:
     """:func:`heading` of each column, in order."""
     return [heading(c, table) for c in columns]
+
+
+#: Steps of audit.csv (its ``step`` column keeps these names) whose name is a column's: shown as its heading.
+AUDIT_STEPS: Mapping[str, str] = MappingProxyType({"sigma_pt": HEADINGS["sigma_pt"],
+                                                   "u_assigned": HEADINGS["u_assigned"]})
+
+
+def audit_for_people(audit):
+    """The audit trail as people read it (the report's and the summary workbook's): a ``step`` named like a
+    column (``sigma_pt``) shown in the standards' notation (σ_pt); audit.csv keeps the names.
+
+    >>> import pandas as pd
+    >>> audit_for_people(pd.DataFrame({"step": ["sigma_pt", "import"]}))["step"].tolist()
+    ['σ_pt', 'import']
+    """
+    if "step" not in audit.columns or not audit["step"].isin(list(AUDIT_STEPS)).any():
+        return audit
+    out = audit.copy()
+    out["step"] = out["step"].map(lambda s: AUDIT_STEPS.get(s, s))
+    return out

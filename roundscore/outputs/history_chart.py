@@ -12,6 +12,7 @@ Used by ``history show --out`` (``history.png``/``.svg``, several series in one 
 
 from __future__ import annotations
 
+import math
 from collections.abc import Sequence
 
 import numpy as np
@@ -21,7 +22,7 @@ from roundscore.model.signals import SCORED_SIGNALS
 from roundscore.outputs.figure_base import SvgFigure, finish_figure, new_figure
 from roundscore.outputs.look import LIMIT_LINE, SIGNAL_COLOUR, SIGNAL_MARKER, SIGNAL_WORD
 
-__all__ = ["draw_series", "series_figure", "legend_handles", "RULE_RING", "rule_tag"]
+__all__ = ["draw_series", "series_figure", "legend_handles", "RULE_RING", "rule_tag", "round_labels", "TICK_PT"]
 
 #: How a point where a trend rule fired is marked: a ring around it (colour never alone: a shape and a label).
 RULE_RING = {"marker": "o", "size": 150, "colour": "#000000"}
@@ -67,9 +68,47 @@ def draw_series(ax, *, rounds: Sequence[str], values: Sequence[float] | np.ndarr
     ax.set_ylim(-bound - 0.5, bound + 0.5)
     ax.set_xlim(-0.6, max(n, 1) - 0.4)
     ax.set_xticks(pos)
-    ax.set_xticklabels(list(rounds), rotation=45 if n > 4 else 0, ha="right" if n > 4 else "center", fontsize=7)
+    labels, rotate = round_labels(list(rounds), _axis_points(ax))
+    ax.set_xticklabels(labels, rotation=45 if rotate else 0, ha="right" if rotate else "center",
+                       fontsize=TICK_PT, rotation_mode="anchor" if rotate else "default")
     ax.set_xlabel("round")
     ax.set_ylabel(family.symbols if len(family.members) == 1 else f"score ({family.symbols})")
+
+
+#: Size (points) of the round ids under the time axis.
+TICK_PT = 7.0
+
+
+def _axis_points(ax) -> float:
+    """The width of ``ax`` in points (before a constrained layout: the figure's default subplot share)."""
+    fig = ax.figure
+    return float(ax.get_position().width * fig.get_figwidth() * 72)
+
+
+def round_labels(rounds: Sequence[str], axis_points: float, size: float = TICK_PT) -> tuple[list[str], bool]:
+    """The round ids as the time axis shows them: (labels, rotated), none overlapping its neighbour.
+
+    Level while every id fits its share of the axis; else turned 45°, where a label needs about 1.9 times
+    its size of the axis between ticks (its height across the slant, with a little room). When even that is
+    more than a tick's share, only every k-th round is labelled, the last (the latest round) always; the
+    others keep their tick. Text widths are estimated at 0.6 of the size a character (DejaVu Sans).
+
+    >>> round_labels(["R1", "R2", "R3"], 400)
+    (['R1', 'R2', 'R3'], False)
+    >>> labels, turned = round_labels([f"SKW-2026-{k:02d}" for k in range(60)], 450)
+    >>> turned, labels[-1], labels[-2], sum(1 for t in labels if t)
+    (True, 'SKW-2026-59', '', 30)
+    """
+    n = len(rounds)
+    if not n:
+        return [], False
+    share = axis_points / n
+    widest = max(len(str(r)) for r in rounds) * 0.6 * size
+    if widest <= 0.9 * share:
+        return [str(r) for r in rounds], False
+    step = max(1, math.ceil(1.9 * size / share))
+    last = n - 1
+    return [str(r) if (last - i) % step == 0 else "" for i, r in enumerate(rounds)], True
 
 
 def legend_handles(words: str = "signals") -> list:
@@ -90,9 +129,10 @@ def series_figure(*, key: str, title: str, caption: str, rounds: Sequence[str], 
                   signals: Sequence[str], family: ScoreFamily, rules: Sequence[Sequence[int]],
                   words: str = "signals") -> SvgFigure:
     """One series as a reproducible SVG figure (the pack's chart of a scheme × measurand)."""
-    fig, ax = new_figure((7.2, 3.3), bottom=0.3, top=0.9, right=0.97, left=0.09)
+    # no title drawn in the figure: the page's heading and the figure's title name it (drawn once, not twice)
+    fig, ax = new_figure((7.2, 3.3), bottom=0.36, top=0.97, right=0.97, left=0.09)
     draw_series(ax, rounds=rounds, values=values, signals=signals, family=family, rules=rules, words=words)
-    ax.set_title(title, loc="left")
-    ax.legend(handles=legend_handles(words), loc="upper center", bbox_to_anchor=(0.5, -0.42), ncol=6,
-              frameon=False, fontsize=7)
+    # the legend at the figure's foot, inside its canvas (below the axes it was cut off where SVG clips)
+    fig.legend(handles=legend_handles(words), loc="lower center", bbox_to_anchor=(0.5, 0.005), ncol=6,
+               frameon=False, fontsize=7)
     return finish_figure(fig, ax, key=key, title=title, caption=caption)

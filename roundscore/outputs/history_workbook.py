@@ -26,7 +26,7 @@ import numpy as np
 import pandas as pd
 import xlsxwriter
 
-from roundscore.model.scores import SCORE_FAMILIES, ScoreFamily, family_of
+from roundscore.model.scores import SCORE_FAMILIES, ScoreFamily, family_of, score_symbol
 from roundscore.model.signals import SCORED_SIGNALS, SIGNALS
 from roundscore.outputs.headings import headings
 from roundscore.outputs.history_chart import draw_series, legend_handles, rule_tag
@@ -121,11 +121,11 @@ def _write_workbook(frame: pd.DataFrame, path: Path, *, lab: str, caution: str, 
     for i, line in enumerate(head):
         table.merge_range(i, 0, i, len(columns) - 1, line, fm.bold if i == 0 else None)
     top = len(head) + 1 if head else 0
-    table.set_row(top, 30)  # the wrapped heads
-    end = write_table(table, fm, top, frame, columns, heads, decimals={"score_value": 2}, signal_col="signal",
-                      row_decimals=shown_decimals(frame))
-    widths = fit_widths(frame, columns, heads, decimals={"score_value": 2}, signal_col="signal")
+    shown = frame.assign(score=[score_symbol(str(s)) for s in frame["score"]])  # ζ, not zeta
+    widths = fit_widths(shown, columns, heads, decimals={"score_value": 2}, signal_col="signal")
     widths = [min(w, 40) for w in widths]
+    end = write_table(table, fm, top, shown, columns, heads, decimals={"score_value": 2}, signal_col="signal",
+                      row_decimals=shown_decimals(frame), widths=widths)
     table.merge_range(end + 1, 0, end + 1, len(columns) - 1, caution, fm.caution)
     table.set_row(end + 1, 45)
     table.freeze_panes(top + 1, 0)

@@ -33,14 +33,15 @@ from roundscore.evaluation.uncertainty import LAB_EXPLANATION as UNCERTAINTY_EXP
 from roundscore.model.digest import DIGEST_KEY, ROW_DIGEST_COLUMN, row_digest, sheet_digest, sheet_value
 from roundscore.model.evaluation import SCORE_COLUMNS, STATE_SIDE
 from roundscore.model.qualitative import QUALITATIVE_COLUMNS, QUALITATIVE_COUNT_KEY, QUALITATIVE_SHEET
-from roundscore.model.scores import SCORE_FAMILIES, SCORE_FIELD, ScoreFamily, family_of
+from roundscore.model.scores import SCORE_FAMILIES, SCORE_FIELD, ScoreFamily, family_of, score_symbol
 from roundscore.outputs.guidance import GUIDANCE_TITLE, how_to_read
 from roundscore.outputs.look import CAUTION, LIMIT_LINE, PALETTE
 from roundscore.outputs.payloads import LabPayload, lab_payload
 from roundscore.outputs.workbook_base import (CHART_HEIGHT, CHART_ROWS, FIXED_TIME, OPTIONS, SCORE_DECIMALS,
                                               VALUE_COLUMNS, Chart, Formats, axis_limit, clip_to, columns_of,
                                               fit_widths, print_setup, score_chart, score_table_columns, set_widths,
-                                              stage_sheet, value_axis, write_table, write_value)
+                                              stage_sheet, value_axis, wrap_words, write_table, write_value)
+from roundscore.support.sheetprint import ROW_POINTS
 
 __all__ = ["write_lab_workbook", "lab_payload", "LabPayload", "LAB_FORMAT", "LAB_FORMAT_QUALITATIVE", "LAB_FOLD",
            "QUALITATIVE_SHEET", "SUMMARY_POINTER"]
@@ -130,22 +131,26 @@ def write_lab_workbook(payload: LabPayload, path: Path) -> None:
     fm = Formats(wb)
     ws = wb.add_worksheet("Scores")
     r = _heading(ws, fm, payload)
-    tall = {r - 2: 45.0}  # the caution's row (the table head's is added below)
+    # the caution's and the pointer's rows (the table head's is added below)
+    tall = {r - 2: 45.0, r - 1: ROW_POINTS * len(wrap_words(SUMMARY_POINTER, HEADING_CHARS))}
     table, folded, notes, sheets = _score_rows(payload)
-    for line in notes:
-        ws.write_string(r, 0, line)
+    for line in notes:  # wrapped across the table's first columns, as the heading's paragraphs
+        ws.merge_range(r, 0, r, 9, line, fm.wrap)
+        ws.set_row(r, ROW_POINTS * len(wrap_words(line, HEADING_CHARS)))
+        tall[r] = ROW_POINTS * len(wrap_words(line, HEADING_CHARS))
         r += 1
     r += 1
     cols, head, fixed, value_columns = _score_sheet_columns(folded)
     top = r
-    tall[top] = 30.0
-    end = write_table(ws, fm, r, table, cols, head, fixed, "signal", rd.words, row_decimals=payload.decimals,
-                      value_columns=value_columns)
-    ws.freeze_panes(top + 1, 1)
-    ws.set_row(top, 30)  # the wrapped head
     widths = fit_widths(table, cols, head, {**fixed, "result": 4, "assigned": 4, "u_assigned": 4, "sigma_pt": 4,
                                             "d": 4}, "signal")
-    widths = [max(w, 16 if j == 0 else 7) for j, w in enumerate(widths)]
+    # the first column also holds the heading's labels ("Date the sample arrived")
+    label_width = max(len(label) for label in HEADING_LABELS + tuple(label for label, _ in payload.receipt)) + 1
+    widths = [max(w, label_width if j == 0 else 7) for j, w in enumerate(widths)]
+    end = write_table(ws, fm, r, table, cols, head, fixed, "signal", rd.words, row_decimals=payload.decimals,
+                      widths=widths, value_columns=value_columns)
+    tall[top] = ROW_POINTS * max(len(wrap_words(h, w)) for h, w in zip(head, widths))
+    ws.freeze_panes(top + 1, 1)
     set_widths(ws, widths)
     _guidance_sheet(wb, fm, payload)  # second: what a person reads first after the scores
     charts = _score_charts(wb, ws, fm, payload, table, end + 1)
@@ -197,20 +202,29 @@ def _heading(ws, fm: Formats, payload: LabPayload) -> int:
     rd, lab = payload.round, payload.lab
     ws.write_string(0, 0, f"Proficiency test round {rd.id}: score sheet for laboratory {lab}", fm.title)
     r = 1
-    for label, value in (("Laboratory code", lab), ("Laboratory", payload.name), ("Contact", payload.contact),
-                         ("Round", rd.id), ("Title", rd.title), ("Scheme", rd.scheme),
-                         ("Date", rd.date), ("Material", rd.material), *payload.receipt):
+    values = (lab, payload.name, payload.contact, rd.id, rd.title, rd.scheme, rd.date, rd.material)
+    for label, value in (*zip(HEADING_LABELS, values), *payload.receipt):  # and what the lab said of its sample
         if value:
             ws.write_string(r, 0, label, fm.bold)
             ws.write_string(r, 1, str(value))
             r += 1
+    alert = fm.wb.add_format({"bold": True, "font_color": "#9E3A00", "text_wrap": True, "valign": "top"})
     for line in payload.notices:  # plain words for the lab; the technical findings are in the summary
-        ws.write_string(r, 0, line, fm.alert)
+        ws.merge_range(r, 0, r, 9, line, alert)  # wrapped across the table's first columns: never cut off
+        ws.set_row(r, ROW_POINTS * len(wrap_words(line, HEADING_CHARS)))
         r += 1
     ws.merge_range(r, 0, r, 9, "CONFIDENTIAL to the laboratory named above. " + CAUTION, fm.caution)
     ws.set_row(r, 45)
-    ws.write_string(r + 1, 0, SUMMARY_POINTER)
+    ws.merge_range(r + 1, 0, r + 1, 9, SUMMARY_POINTER, fm.wrap)
+    ws.set_row(r + 1, ROW_POINTS * len(wrap_words(SUMMARY_POINTER, HEADING_CHARS)))
     return r + 2
+
+
+#: The labels of the Scores sheet's heading (column A), before the lab's sample receipt.
+HEADING_LABELS = ("Laboratory code", "Laboratory", "Contact", "Round", "Title", "Scheme", "Date", "Material")
+#: Characters a line of the heading's wrapped paragraphs holds (merged over the table's first ten columns, at
+#: least about 105 units wide, so some 115 characters of text: a lower count errs on a taller row).
+HEADING_CHARS = 105
 
 
 def _score_rows(payload: LabPayload) -> tuple[dict[str, list], list, list[str], dict[str, pd.DataFrame]]:
@@ -229,6 +243,7 @@ def _score_rows(payload: LabPayload) -> tuple[dict[str, list], list, list[str], 
     ]
     fields = [SCORE_FIELD.get(s) for s in table["score"]]
     table["official"] = [table[f][i] if f else None for i, f in enumerate(fields)]
+    table["score_shown"] = [score_symbol(s) if isinstance(s, str) else s for s in table["score"]]
     return table, folded, notes, sheets
 
 
@@ -236,7 +251,7 @@ def _score_sheet_columns(folded: list) -> tuple[list[str], list[str], dict[str, 
     """(columns, heads, fixed decimals, value columns) of the Scores sheet: every score of the registry, the
     folded columns; the value columns are shown to each row's measurand's decimals (plus the extra places)."""
     score_cols, score_heads = score_table_columns()
-    cols = ["measurand", "unit", "n_replicates", "result", "assigned", "u_assigned", "sigma_pt", "p", "score",
+    cols = ["measurand", "unit", "n_replicates", "result", "assigned", "u_assigned", "sigma_pt", "p", "score_shown",
             "official", "signal", "standing", *score_cols, "note"]
     head = ["Measurand", "Unit", "Replicates", "Your result", "Assigned value", "u(x_pt)", "σ_pt",
             "Labs used (p)", "Score", "Your score", "Signal", "Rank by |score| (1 = closest)", *score_heads, "Note"]

@@ -568,17 +568,22 @@ def _table_groups(pdf: Any, table: Table) -> list[tuple[list[int], float, list[f
     n = len(table.columns)
     keys = list(range(min(max(table.key_columns, 0), n)))
     # widths measured at 1 pt: string widths scale with the font size
-    natural, least = [], []
+    # per column: the longest word (a number whole), the widest cell (the heading by its longest word) and
+    # the widest cell or heading on one line
+    natural, body, least = [], [], []
     for j, col in enumerate(table.columns):
-        nat, low = 0.0, 0.0
+        nat, cells, low = 0.0, 0.0, 0.0
         for k, text in enumerate([col.title] + [row[j].text for row in table.rows]):
             pdf.set_font(FONT_FAMILY, "B" if k == 0 else "", 1.0)
             s = printable_text(text)
-            nat = max(nat, pdf.get_string_width(s))
-            # a number is never broken; a text column needs at least its longest word
-            low = nat if col.numeric else max(low, max((pdf.get_string_width(w) for w in s.split(" ")),
-                                                        default=0.0))
+            whole = pdf.get_string_width(s)
+            word = max((pdf.get_string_width(w) for w in s.split(" ")), default=0.0)
+            nat = max(nat, whole)
+            cells = max(cells, word if k == 0 else whole)
+            # a number is never broken; a heading and a text need at least their longest word
+            low = max(low, whole if col.numeric and k > 0 else word)
         natural.append(nat)
+        body.append(cells)
         least.append(low)
 
     def need(cols: Sequence[int], size: float) -> float:
@@ -600,18 +605,26 @@ def _table_groups(pdf: Any, table: Table) -> list[tuple[list[int], float, list[f
                 current = list(keys)
             current.append(j)
         groups.append(current)
-    return [(g, size, _widths([natural[j] * size + 2 * _PAD for j in g],
-                              [least[j] * size + 2 * _PAD for j in g], epw)) for g in groups]
+
+    def widths(g: list[int]) -> list[float]:
+        # the cells on one line first (headings wrap), then what room is left for the headings on one line
+        nat, cells, low = ([v[j] * size + 2 * _PAD for j in g] for v in (natural, body, least))
+        return _widths(nat, cells, epw) if sum(cells) <= epw else _widths(cells, low, epw)
+
+    return [(g, size, widths(g)) for g in groups]
 
 
 def _widths(natural: list[float], least: list[float], total: float) -> list[float]:
     """Column widths within ``total``: natural when they fit, else each at least its longest word (when that
-    fits), the room left shared in proportion to how much each wants beyond that.
+    fits), the room left shared out evenly, a column wanting less than its share getting all it wants (so short
+    texts, a signal word, stay on one line and the long ones, a note, wrap).
 
     >>> _widths([10, 20], [5, 5], 100)
     [10, 20]
     >>> [round(w, 1) for w in _widths([50, 100], [10, 20], 90)]
-    [30.0, 60.0]
+    [40.0, 50.0]
+    >>> [round(float(w), 1) for w in _widths([12, 100, 100], [4, 10, 10], 72)]
+    [12.0, 30.0, 30.0]
     """
     if sum(natural) <= total:
         return natural
@@ -619,7 +632,20 @@ def _widths(natural: list[float], least: list[float], total: float) -> list[floa
         return [total * w / sum(least) for w in least]
     spare = total - sum(least)
     wants = [max(0.0, a - b) for a, b in zip(natural, least)]
-    return [b + spare * w / sum(wants) for b, w in zip(least, wants)] if sum(wants) > 0 else least
+    give = [0.0] * len(wants)
+    open_ = sorted((i for i, w in enumerate(wants) if w > 0), key=lambda i: wants[i])
+    while open_:
+        share = spare / len(open_)
+        i = open_[0]
+        if wants[i] <= share:  # satisfied whole: the rest is shared by the others
+            give[i] = wants[i]
+            spare -= wants[i]
+            open_.pop(0)
+        else:
+            for i in open_:
+                give[i] = share
+            break
+    return [b + g for b, g in zip(least, give)]
 
 
 class _TableDrawer:

@@ -47,7 +47,7 @@ from roundscore.outputs.document import (Block, Bullets, Cell, Column, Document,
 from roundscore.outputs.frames import (frame_table as _frame_table, more_places as _more, number_text as _num,
                                        records_table as _records_table, signal_text as _signal_text)
 from roundscore.outputs.guidance import GUIDANCE_TITLE, how_to_read
-from roundscore.outputs.headings import heading
+from roundscore.outputs.headings import audit_for_people, heading
 from roundscore.outputs.html import render_html
 from roundscore.outputs.look import CAUTION, SIGNAL_SYMBOL, SIGNAL_WORD, signal_legend_text
 from roundscore.outputs.figures import (FIGURES_MAX_MEASURANDS, RoundFigures, SvgFigure, figures_per_measurand,
@@ -385,7 +385,7 @@ def report_document(ev, parts: ReportParts | None = None) -> Document:
     sections.append(_section("scores", "Every laboratory's scores", [*_score_matrix(ev), *_score_detail(ev),
                                                                      *consensus_report.uncertainty_blocks(ev)]))
     sections.append(_section("audit", "Audit trail: exclusions and decisions",
-                             [_frame_table(ev, ev.audit, key_columns=2)] if len(ev.audit) else
+                             [_frame_table(ev, audit_for_people(ev.audit), key_columns=2)] if len(ev.audit) else
                              [Paragraph(text="Nothing was left out.", style="note")]))
     cautions = [CAUTION, *ev.failed_checks, *ev.warnings,
                 "Laboratories are shown by code only; each laboratory's own page and workbook carry its name."]
@@ -426,8 +426,10 @@ def lab_document(ev, parts: ReportParts, lab: str, *, scores: list[dict[str, Any
         mandel = lab_records(ev, "mandel", [lab]).get(lab)
     if uncertainties is None:
         uncertainties = lab_records(ev, "uncertainties", [lab]).get(lab, [])
+    receipt = ev.table.receipts.get(lab)  # what the lab said of its sample (form fields or results columns)
     ident = Facts(pairs=(("Laboratory code", lab), ("Laboratory", p.name if p else ""),
-                         ("Contact", p.contact if p else "")), style="confidential")
+                         ("Contact", p.contact if p else ""), *(receipt.lines() if receipt is not None else ())),
+                  style="confidential")
     table_rows = []
     for rec in rows:
         meas = rec["measurand"]

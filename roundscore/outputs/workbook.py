@@ -31,10 +31,10 @@ import xlsxwriter
 
 from roundscore.evaluation.uncertainty import counts as uncertainty_counts
 from roundscore.model.evaluation import STATE_SIDE, STATISTICS_COLUMNS, RoundEvaluation
-from roundscore.model.scores import SCORE_FIELD, score_label
+from roundscore.model.scores import SCORE_FIELD, score_label, score_symbol
 from roundscore.outputs.lab_workbook import (LAB_FOLD, LAB_FORMAT, SUMMARY_POINTER, lab_payload,
                                              write_lab_workbook)
-from roundscore.outputs.headings import headings
+from roundscore.outputs.headings import audit_for_people, headings
 from roundscore.outputs.look import CAUTION
 from roundscore.outputs.payloads import LabPayload, RoundFacts
 from roundscore.outputs.workbook_base import (CHART_HEIGHT, CHART_ROWS, FIXED_TIME, MAX_WIDTH, MIN_WIDTH, OPTIONS,
@@ -73,6 +73,13 @@ _SCORE_COLS = ["lab", "measurand", "unit", "n_replicates", "result", "assigned",
                *score_table_columns()[0], "signal", "note"]
 
 
+def _symbols(frame: pd.DataFrame) -> pd.DataFrame:
+    """``frame`` with its ``score`` column as the scores' symbols (z, z′, ζ, En) for people to read."""
+    if "score" not in frame.columns or not len(frame):
+        return frame
+    return frame.assign(score=frame["score"].map(lambda s: score_symbol(s) if isinstance(s, str) else s))
+
+
 def write_summary(ev: RoundEvaluation, path: Path) -> None:
     """The summary workbook for circulation: settings, statistics, all scores by lab code, charts, audit.
 
@@ -103,17 +110,18 @@ def _write_summary(ev: RoundEvaluation, path: Path, options: dict[str, Any]) -> 
     rows = []
     for m in ev.measurands.values():
         rows.append({"a": m.name, "b": m.settings.unit, "c": m.p, "d": m.assigned, "e": m.u_assigned,
-                     "f": m.sigma_pt, "g": m.settings.score, "h": m.assigned_source, "i": m.sigma_source,
+                     "f": m.sigma_pt, "g": score_symbol(m.settings.score), "h": m.assigned_source,
+                     "i": m.sigma_source,
                      "j": "n/a" if m.u_check_passed is None else ("yes" if m.u_check_passed else "NO"),
                      "k": " ".join(m.notes + ev.stage_notes.get(m.name, ()))})
     dec = {n: m.decimals for n, m in rnd.measurands.items()}
     frame = pd.DataFrame(rows, columns=list("abcdefghijk"))
     frame["measurand"] = frame["a"]
     head_row = r
-    ws.set_row(head_row, 30)  # before the row is written (constant_memory writes rows in order)
+    widths = [max(w, 12) for w in fit_widths(frame, list("abcdefg"), head[:7])] + [40, 40, 16, 60]
     r = write_table(ws, fm, r, frame.rename(columns={"d": "assigned", "e": "u_assigned", "f": "sigma_pt"}),
                ["a", "b", "c", "assigned", "u_assigned", "sigma_pt", "g", "h", "i", "j", "k"], head,
-               row_decimals=dec) + 1
+               row_decimals=dec, widths=widths) + 1
     got = uncertainty_counts(ev.extras.get("uncertainties"))  # the labs' reported uncertainties, counted
     if got is not None:
         ws.write_string(r, 0, got.line(capital=True, where="sheet Uncertainties"))
@@ -121,7 +129,6 @@ def _write_summary(ev: RoundEvaluation, path: Path, options: dict[str, Any]) -> 
     for w in ev.warnings:
         ws.write_string(r, 0, "Note: " + w)
         r += 1
-    widths = [max(w, 12) for w in fit_widths(frame, list("abcdefg"), head[:7])] + [40, 40, 16, 60]
     set_widths(ws, widths)
     ws.freeze_panes(head_row + 1, 1)
     paper: dict[str, Any] = {"paper": rnd.paper, "title": "Round summary"}
@@ -129,20 +136,21 @@ def _write_summary(ev: RoundEvaluation, path: Path, options: dict[str, Any]) -> 
     # Statistics
     ws = wb.add_worksheet("Statistics")
     stat_heads = headings(STATISTICS_COLUMNS)
-    ws.set_row(0, 30)  # the wrapped heads
-    end = write_table(ws, fm, 0, ev.statistics, STATISTICS_COLUMNS, stat_heads, row_decimals=dec)
+    stats = _symbols(ev.statistics)
+    widths = fit_widths(stats, STATISTICS_COLUMNS, stat_heads, decimals={c: 4 for c in STATISTICS_COLUMNS})
+    end = write_table(ws, fm, 0, stats, STATISTICS_COLUMNS, stat_heads, row_decimals=dec, widths=widths)
     ws.freeze_panes(1, 1)
-    widths = fit_widths(ev.statistics, STATISTICS_COLUMNS, stat_heads, decimals={c: 4 for c in STATISTICS_COLUMNS})
     set_widths(ws, widths)
     print_setup(ws, rnd.id, 0, widths=widths, last_row=end - 1, **paper)
     # Scores
     ws = wb.add_worksheet("Scores")
-    sc = ev.scores
-    end = write_table(ws, fm, 0, sc, _SCORE_COLS, _SCORE_HEAD, SCORE_DECIMALS, "signal", rnd.words, row_decimals=dec)
-    ws.freeze_panes(1, 2)
-    ws.autofilter(0, 0, max(end - 1, 1), len(_SCORE_COLS) - 1)
+    sc = _symbols(ev.scores)
     widths = fit_widths(sc, _SCORE_COLS, _SCORE_HEAD, {**SCORE_DECIMALS, "result": 4, "assigned": 4,
                                                        "u_assigned": 4, "sigma_pt": 4, "d": 4}, "signal")
+    end = write_table(ws, fm, 0, sc, _SCORE_COLS, _SCORE_HEAD, SCORE_DECIMALS, "signal", rnd.words, row_decimals=dec,
+                      widths=widths)
+    ws.freeze_panes(1, 2)
+    ws.autofilter(0, 0, max(end - 1, 1), len(_SCORE_COLS) - 1)
     set_widths(ws, widths)
     print_setup(ws, rnd.id, 0, widths=widths, last_row=end - 1, **paper)
     # Charts: one native chart of the official score per measurand, labs ranked by score, with the
@@ -165,7 +173,8 @@ def _write_summary(ev: RoundEvaluation, path: Path, options: dict[str, Any]) -> 
             continue
         drawn = [None if sd else float(v) for v, sd in zip(vals[keep][order], side[keep][order])]
         c, top = score_chart(wb, cd, fm, top, g["lab"].to_numpy()[keep][order].tolist(), drawn,
-                             g["signal"].to_numpy()[keep][order].tolist(), f"{name} ({m.settings.score})",
+                             g["signal"].to_numpy()[keep][order].tolist(),
+                             f"{name} ({score_symbol(m.settings.score)})",
                              m.settings.score, rnd.words,
                              f"{name}: {score_label(m.settings.score)} by laboratory (ranked)",
                              states=g["state"].to_numpy()[keep][order].tolist())
@@ -180,9 +189,10 @@ def _write_summary(ev: RoundEvaluation, path: Path, options: dict[str, Any]) -> 
     print_setup(cd, rnd.id, widths=widths, last_row=max(top - 2, 1), **paper)
     # Left out / audit
     ws = wb.add_worksheet("Audit")
-    end = write_table(ws, fm, 0, ev.audit, list(ev.audit.columns), headings(ev.audit.columns))
+    audit = audit_for_people(ev.audit)
+    widths = fit_widths(audit, list(audit.columns), headings(audit.columns))
+    end = write_table(ws, fm, 0, audit, list(audit.columns), headings(audit.columns), widths=widths)
     ws.freeze_panes(1, 0)
-    widths = fit_widths(ev.audit, list(ev.audit.columns), headings(ev.audit.columns))
     set_widths(ws, widths)
     print_setup(ws, rnd.id, 0, widths=widths, last_row=end - 1, **paper)
     for name, frame in ev.extras.items():

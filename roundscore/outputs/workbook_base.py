@@ -14,7 +14,7 @@ from __future__ import annotations
 
 import datetime as dt
 import math
-from collections.abc import Iterable, Mapping
+from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any
 
@@ -28,10 +28,11 @@ from roundscore.model.signals import SCORED_SIGNALS
 from roundscore.outputs.axes import AXIS_CAP, AXIS_PERCENTILE, axis_limit
 from roundscore.outputs.headings import headings
 from roundscore.outputs.look import LIMIT_LINE, SIGNAL_CHART_MARKER, SIGNAL_COLOUR, SIGNAL_WORD, signal_label
-from roundscore.support.sheetprint import Chart, print_layout
+from roundscore.support.sheetprint import ROW_POINTS, Chart, print_layout
 
 __all__ = ["FIXED_TIME", "OPTIONS", "Formats", "tint", "write_value", "columns_of", "write_table", "VALUE_COLUMNS",
-           "MIN_WIDTH", "MAX_WIDTH", "FIT_ROWS", "fit_widths", "set_widths", "print_setup", "Chart", "CHART_HEIGHT",
+           "MIN_WIDTH", "MAX_WIDTH", "FIT_ROWS", "fit_widths", "wrap_words", "set_widths", "print_setup", "Chart",
+           "CHART_HEIGHT",
            "CHART_ROWS", "score_chart",
            "CHART_POINT_COLOURS", "SCORE_DECIMALS", "score_table_columns", "STAT_DECIMALS", "stage_decimals",
            "stage_sheet", "AXIS_PERCENTILE", "AXIS_CAP",
@@ -53,9 +54,21 @@ class Formats:
         self.caution = wb.add_format({"italic": True, "text_wrap": True, "valign": "top", "font_color": "#333333"})
         self.alert = wb.add_format({"bold": True, "font_color": "#9E3A00"})
         self.num: dict[int, Any] = {}
+        self._wraps: dict[int, Any] = {}
         self.wb = wb
         self.signal = {s: wb.add_format({"font_color": "#000000", "bg_color": tint(c)})
                        for s, c in SIGNAL_COLOUR.items()}
+
+    def wrap_like(self, fmt: Any) -> Any:
+        """The wrapping text format for a column written with ``fmt`` (None: the default): aligned at the
+        bottom, as the row's other cells are, so its last line stands beside them."""
+        key = id(fmt)
+        if key not in self._wraps:
+            props = {"text_wrap": True, "valign": "bottom"}
+            if getattr(fmt, "num_format", None):
+                props["num_format"] = fmt.num_format
+            self._wraps[key] = self.wb.add_format(props)
+        return self._wraps[key]
 
     def decimals(self, d: int | None) -> Any:
         key = -1 if d is None else d
@@ -109,7 +122,7 @@ def write_table(ws, fm: Formats, top: int, frame, columns: Iterable[str],
            headers: Iterable[str] | None = None, decimals: dict[str, int | None] | None = None,
            signal_col: str | None = None, words: str = "signals",
            row_decimals: Mapping[str, int | None] | None = None,
-           value_columns: Mapping[str, int] | None = None) -> int:
+           value_columns: Mapping[str, int] | None = None, widths: Sequence[int] | None = None) -> int:
     """Write a header row and the table's columns (a frame, or lists by column); returns the row after it.
 
     ``decimals`` fixes a column's decimals; ``row_decimals`` maps measurand
@@ -120,9 +133,20 @@ def write_table(ws, fm: Formats, top: int, frame, columns: Iterable[str],
     text) leave the cell empty.  The format of each column (or each row of a value
     column) is looked up once, and rows are written in order (as
     xlsxwriter's ``constant_memory`` mode needs).
+
+    With ``widths`` (the columns' widths in characters, as :func:`fit_widths`
+    gives them) the header row gets the height of its wrapped headings, and a
+    text longer than its column (a note, an audit reason) is wrapped in its cell
+    with the row made tall enough for it: a spreadsheet program does not grow
+    rows when it opens a file, and a text running past its column is cut off
+    at the edge of the printed page.
     """
     cols = list(columns)
-    for j, h in enumerate(headers or cols):
+    heads = list(headers or cols)
+    fits = list(widths) if widths is not None else None
+    if fits is not None:
+        ws.set_row(top, ROW_POINTS * max([1] + [len(wrap_words(h, w)) for h, w in zip(heads, fits)]))
+    for j, h in enumerate(heads):
         ws.write_string(top, j, h, fm.head)
     data, n = columns_of(frame, cols)
     values_by_row = VALUE_COLUMNS if value_columns is None else value_columns
@@ -142,10 +166,29 @@ def write_table(ws, fm: Formats, top: int, frame, columns: Iterable[str],
         if c == signal_col:
             signals = {s: (signal_label(s, words), fm.signal.get(s)) for s in set(data[c]) if isinstance(s, str)}
         specs.append((j, data[c], fmt, fmts, signals))
+    # text columns whose longest text (in the rows fitted) is wider than the column: wrapped where needed
+    wrapping = [(j, values, int(fits[j] * BODY_CHARS)) for j, values, fmt, fmts, signals in specs
+                if fits is not None and j < len(fits) and signals is None and fmts is None
+                and any(type(v) is str and len(v) > fits[j] * BODY_CHARS - 2 for v in values[:FIT_ROWS])]
+    wrap_fmt: dict[int, Any] = {j: fm.wrap_like(fmt) for j, _, fmt, _, _ in specs
+                                if any(j == w for w, _, _ in wrapping)}
     number, string = ws.write_number, ws.write_string
     for i in range(n):
         r = top + 1 + i
+        wrapped: set[int] = set()
+        if wrapping:
+            lines = 1
+            for j, values, width in wrapping:
+                v = values[i]
+                if type(v) is str and len(v) > width - 2:
+                    wrapped.add(j)
+                    lines = max(lines, len(wrap_words(v, width)))
+            if wrapped:
+                ws.set_row(r, ROW_POINTS * lines)
         for j, values, fmt, fmts, signals in specs:
+            if j in wrapped:
+                string(r, j, values[i], wrap_fmt[j])
+                continue
             v = values[i]
             if fmts is not None:
                 fmt = fmts[i]
@@ -165,6 +208,41 @@ def write_table(ws, fm: Formats, top: int, frame, columns: Iterable[str],
             elif v is not None and not (isinstance(v, float) and math.isnan(v)) and v is not pd.NA:
                 write_value(ws, r, j, v, fmt)  # numpy scalars, booleans, other objects
     return top + 1 + n
+
+
+#: Characters of ordinary text a column holds per unit of its width (a width counts the digit "0" of the default
+#: font; letters and spaces are narrower on average, common practice for Calibri-like fonts). Bold headings are
+#: wrapped at one character a unit.
+BODY_CHARS = 1.1
+
+
+def wrap_words(text: str, width: int) -> list[str]:
+    """``text`` as the lines it takes in a wrapped cell holding ``width`` characters a line (words kept whole
+    where they fit, a longer word broken).
+
+    >>> wrap_words("Rank by |score| (1 = closest)", 12)
+    ['Rank by', '|score| (1 =', 'closest)']
+    """
+    room = max(1, int(width))
+    lines: list[str] = []
+    for para in str(text).split("\n"):
+        line = ""
+        for word in para.split():
+            while len(word) > room:
+                if line:
+                    lines.append(line)
+                    line = ""
+                lines.append(word[:room])
+                word = word[room:]
+            if not line:
+                line = word
+            elif len(line) + 1 + len(word) <= room:
+                line += " " + word
+            else:
+                lines.append(line)
+                line = word
+        lines.append(line)
+    return lines or [""]
 
 
 #: Value columns shown with the measurand's decimals (+0) or one more (+1: uncertainties, σ_pt, robust SDs).
@@ -196,10 +274,9 @@ def stage_sheet(wb, fm: Formats, name: str, frame: pd.DataFrame,
     ws = wb.add_worksheet(name.capitalize()[:31])
     cols, heads = list(frame.columns), headings(frame.columns, name)
     fixed = stage_decimals(frame)
-    ws.set_row(0, 30)  # the wrapped heads (before the rows: constant_memory writes rows in order)
-    end = write_table(ws, fm, 0, frame, cols, heads, decimals=fixed, row_decimals=row_decimals)
-    ws.freeze_panes(1, 0)
     widths = fit_widths(frame, cols, heads, decimals={**{c: 4 for c in cols}, **fixed})
+    end = write_table(ws, fm, 0, frame, cols, heads, decimals=fixed, row_decimals=row_decimals, widths=widths)
+    ws.freeze_panes(1, 0)
     set_widths(ws, widths)
     return ws, widths, end - 1
 #: Widths (characters) a fitted column may take (common practice: readable without wrapping, notes capped).
@@ -364,6 +441,8 @@ def score_chart(wb, sheet, fm: Formats, top: int, labs: list, scores: list[float
     heads = ["Chart", "Lab", "Score", f"Drawn at (axis ±{axis.limit:g})",
              *(SIGNAL_WORD[words][s] for s in _CHART_MARKER)]
     heads += [f"{sign}{lim:g} {word} limit" for lim, word, _ in limits for sign in "+-"]
+    # the wrapped heads' height, in the narrowest width the callers give these columns (10 characters)
+    sheet.set_row(top, ROW_POINTS * max(len(wrap_words(h, 10)) for h in heads))
     for j, h in enumerate(heads):
         sheet.write_string(top, j, h, fm.head)
     first, last = top + 1, top + len(scores)

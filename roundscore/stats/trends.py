@@ -405,7 +405,7 @@ def bias_check(z: Sequence[float] | np.ndarray, *, alpha: float = BIAS_ALPHA) ->
     shown = _fixed(mean, "+.2f")
     if biased:
         text = (f"the mean z ({shown}) differs from 0 ({numbers}): a persistent bias of "
-                f"about {shown} sigma_pt is likely; look for its cause")
+                f"about {shown} σ_pt is likely; look for its cause")
     else:
         text = (f"no evidence at the {alpha:.0%} level that the mean z ({shown}) differs "
                 f"from 0 ({numbers})")
