@@ -371,7 +371,7 @@ def evaluate(rnd: Round, table: ResultTable, participants: dict[str, Participant
     """
     participants = participants or {}
     items = items or {}
-    all_labs = sorted(set(table.frame["lab"]) | set(participants), key=lab_order_key)
+    all_labs = sorted(set(table.frame["lab"].unique()) | set(participants), key=lab_order_key)
     # How text cells were read (a declared decimal mark): one line per round or per form, from the reader.
     audit: list[tuple] = [("", lab, "import", "decimal mark", text) for lab, text in table.readings]
     # what each returned form says of the lab's sample (intake/forms.py form_receipt), as the lab gave it
@@ -383,7 +383,8 @@ def evaluate(rnd: Round, table: ResultTable, participants: dict[str, Participant
     mat = np.full((len(names), len(all_labs)), np.nan)
     for i, n in enumerate(names):
         lt = pre[n]
-        keep = (lt["status"] == "value") & ~lt["lab"].map(lambda L: (L, n) in excluded or (L, None) in excluded)  # noqa: B023
+        gone = [lab for lab, which in excluded if which is None or which == n]  # the coordinator's exclusions
+        keep = (lt["status"] == "value") & ~lt["lab"].isin(gone)
         subset = rnd.measurands[n].consensus_labs
         if subset is not None:
             keep &= lt["lab"].isin(subset)

@@ -414,13 +414,16 @@ def _mandel_frame(name: str, d: MeasurandPrecision) -> pd.DataFrame | None:
 def _method_groups(rnd: Round, mr: MeasurandResult, audit: list) -> tuple[MethodGroups | None, list[dict], list[str]]:
     """Compare the method groups of one measurand on the used labs' means."""
     labs = mr.labs[mr.labs["used"].to_numpy(bool)]
-    raw = labs["method"].to_numpy(dtype=object)
-    text = np.array([str(v).strip() if isinstance(v, str) else "" for v in raw], dtype=object)
+    # Each distinct method cell once (in order of first appearance; no method: code -1, the last entry).
+    codes, distinct = pd.factorize(labs["method"].to_numpy(dtype=object))
+    spelled = [str(v).strip() if isinstance(v, str) else "" for v in distinct]
+    text = np.array(spelled + [""], dtype=object)[codes]
     given = text != ""
-    keys = np.array([t.casefold() for t in text], dtype=object)
+    keys = np.array([word.casefold() for word in spelled] + [""], dtype=object)[codes]
     shown: dict[str, str] = {}
-    for k_, t in zip(keys[given], text[given]):
-        shown.setdefault(k_, t)
+    for word in spelled:
+        if word:
+            shown.setdefault(word.casefold(), word)
     if len(shown) < 2:
         return None, [], []
     name = mr.name
