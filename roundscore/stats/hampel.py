@@ -53,9 +53,9 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.stats import norm
 
 from roundscore.errors import StatisticsError
+from roundscore.stats.distributions import norm_ppf
 from roundscore.stats.robust import CONSENSUS_U_FACTOR
 
 __all__ = ["QHampelEstimate", "q_method", "hampel", "q_hampel", "hampel_psi", "HAMPEL_A", "HAMPEL_B", "HAMPEL_C"]
@@ -332,7 +332,7 @@ def q_method(values: np.ndarray, labs: np.ndarray) -> tuple[float, float]:
     if h0 >= 1.0 - 1e-12:
         return 0.0, 1.0
     quantile = _g1_inverse(pairs, 0.25 + 0.75 * h0, h0)
-    return float(quantile / (np.sqrt(2.0) * norm.ppf(0.625 + 0.375 * h0))), h0
+    return float(quantile / (np.sqrt(2.0) * norm_ppf(0.625 + 0.375 * h0))), h0
 
 
 def hampel(means: np.ndarray, sd: np.ndarray | float) -> tuple[np.ndarray, np.ndarray]:

@@ -35,10 +35,9 @@ from dataclasses import dataclass
 from decimal import Decimal
 
 import numpy as np
-from scipy import stats as sps
 
 from roundscore.errors import StatisticsError
-from roundscore.stats.distributions import f_isf, f_sf, t_isf
+from roundscore.stats.distributions import chi2_cdf, chi2_ppf, f_isf, f_sf, t_isf
 from roundscore.stats.exact import centred, clipped_square_sums, fsum_mean, grouped_fsum
 
 __all__ = [
@@ -625,9 +624,9 @@ def algorithm_s_factors(df: int) -> AlgorithmSFactors:
     """
     if df < 1:
         raise StatisticsError(f"Algorithm S needs at least 1 degree of freedom per SD, got {df}")
-    c = float(sps.chi2.ppf(ALGORITHM_S_COVERAGE, df))
+    c = chi2_ppf(ALGORITHM_S_COVERAGE, df)
     eta2 = c / df
-    xi = 1.0 / math.sqrt(float(sps.chi2.cdf(c, df + 2)) + eta2 * (1.0 - ALGORITHM_S_COVERAGE))
+    xi = 1.0 / math.sqrt(chi2_cdf(c, df + 2) + eta2 * (1.0 - ALGORITHM_S_COVERAGE))
     return AlgorithmSFactors(df=int(df), eta=math.sqrt(eta2), xi=xi)
 
 
