@@ -44,12 +44,23 @@ def test_f_functions_equal_scipy():
             assert _same(d.f_cdf(abs(x), dfn, n), sps.f.cdf(abs(x), dfn, n)), (x, dfn, n)
 
 
+def test_chi2_and_normal_equal_scipy():
+    for q, x, df, _, dff in _grid():
+        assert _same(d.norm_ppf(q), sps.norm.ppf(q)), q
+        assert _same(d.norm_ppf(1 - q), sps.norm.ppf(1 - q)), q
+        for nu in (df, dff):
+            assert _same(d.chi2_ppf(q, nu), sps.chi2.ppf(q, nu)), (q, nu)
+            assert _same(d.chi2_cdf(abs(x), nu), sps.chi2.cdf(abs(x), nu)), (x, nu)
+
+
 @pytest.mark.parametrize("q", [0.0, 1.0, -0.1, 1.5, math.nan])
 @pytest.mark.parametrize("df", [3, 0, -1, math.inf, math.nan])
 def test_edges_are_scipys(q, df):
     assert _same(d.t_isf(q, df), sps.t.isf(q, df))
     assert _same(d.f_isf(q, df, 7), sps.f.isf(q, df, 7))
     assert _same(d.f_ppf(q, 7, df), sps.f.ppf(q, 7, df))
+    assert _same(d.chi2_ppf(q, df), sps.chi2.ppf(q, df))
+    assert _same(d.norm_ppf(q), sps.norm.ppf(q))
 
 
 @pytest.mark.parametrize("x", [0.0, -1.0, math.inf, -math.inf, math.nan])
@@ -57,6 +68,7 @@ def test_edge_points_are_scipys(x):
     assert _same(d.t_sf(x, 4), sps.t.sf(x, 4))
     assert _same(d.f_sf(x, 3, 9), sps.f.sf(x, 3, 9))
     assert _same(d.f_cdf(x, 3, 9), sps.f.cdf(x, 3, 9))
+    assert _same(d.chi2_cdf(x, 2), sps.chi2.cdf(x, 2))
 
 
 def test_a_median_quantile_is_plus_zero():
