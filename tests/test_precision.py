@@ -413,6 +413,18 @@ def test_grouped_fsum_equals_math_fsum(runs: list[list[float]], why: str) -> Non
     assert np.signbit(got).tolist() == np.signbit(ref).tolist(), why
 
 
+@pytest.mark.parametrize("runs, size", [(400, 3), (4, 500), (40, 32), (2, 33)])
+def test_grouped_fsum_both_ways_equal_math_fsum(runs: int, size: int) -> None:
+    # Reference: math.fsum run by run. Many short runs are summed in integers, a few long ones by fsum itself
+    # (exact._FSUM_RUN_COST decides); data with cancellation (1e16 scale beside unit values) so a plain sum fails.
+    rng = np.random.default_rng(runs * size)
+    x = rng.normal(0, 1, runs * size) * np.where(rng.random(runs * size) < 0.1, 1e16, 1.0)
+    starts = np.arange(runs) * size
+    ref = [math.fsum(x[s:s + size]) for s in starts]
+    assert grouped_fsum(x, starts).tolist() == ref
+    assert np.add.reduceat(x, starts).tolist() != ref  # the data do tell an exact sum from a plain one
+
+
 def test_grouped_fsum_nonfinite_and_overflow_as_fsum() -> None:
     # math.fsum's own results for inf and nan, and its error on an intermediate overflow (Python documentation).
     got = grouped_fsum(np.array([1.0, math.inf, 2.0, 1.0, math.nan, 1.0]), np.array([0, 3]))

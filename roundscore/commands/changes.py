@@ -90,11 +90,15 @@ def _is_int(v: object) -> bool:
     return isinstance(v, int) and not isinstance(v, bool) and 0 <= v <= 15
 
 
-def store_summary(folder: Path | None, ev: RoundEvaluation) -> bool:
-    """Store this check's summary for the next one (atomically); False when there is no cache folder."""
+def store_summary(folder: Path | None, ev: RoundEvaluation, summary: dict | None = None) -> bool:
+    """Store this check's summary for the next one (atomically); False when there is no cache folder.
+
+    ``summary``: :func:`check_summary` of ``ev`` when the caller has it already.
+    """
     if folder is None:
         return False
-    data = json.dumps(check_summary(ev), ensure_ascii=True, allow_nan=False, separators=(",", ":"))
+    data = json.dumps(summary if summary is not None else check_summary(ev), ensure_ascii=True, allow_nan=False,
+                      separators=(",", ":"))
     try:
         return write_atomic(folder, SUMMARY_NAME, data.encode("ascii"))
     except OSError:
@@ -120,14 +124,14 @@ class Changes:
         return len({lab for lab, *_ in self.signals})
 
 
-def compare(previous: dict, ev: RoundEvaluation) -> Changes:
+def compare(previous: dict, ev: RoundEvaluation, summary: dict | None = None) -> Changes:
     """What changed from ``previous`` (:func:`previous_summary`) to this evaluation.
 
     A value moved when its text at the measurand's decimals (σ_pt one place
     more, as the summary table shows it) differs; a measurand without
     decimals is compared to 5 (x_pt) and 4 (σ_pt) significant digits.
     """
-    now = check_summary(ev)
+    now = summary if summary is not None else check_summary(ev)
     moved: list[tuple[str, str, str, str]] = []
     notes: list[str] = []
     before_m, now_m = previous["measurands"], now["measurands"]

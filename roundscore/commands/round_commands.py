@@ -245,7 +245,7 @@ def _check_forms_folder(rnd, out: Path) -> None:
 
 
 def run_check(args: argparse.Namespace) -> int:
-    from roundscore.commands.changes import changes_text, compare, previous_summary, store_summary
+    from roundscore.commands.changes import changes_text, check_summary, compare, previous_summary, store_summary
     from roundscore.pipeline import check_round
 
     checked = check_round(args.round, out=args.out, use_cache=not args.no_cache, jobs=args.jobs)
@@ -259,9 +259,10 @@ def run_check(args: argparse.Namespace) -> int:
         folder = None
     else:
         previous = previous_summary(place.existing(), ev.round.id)
-        print(changes_text(compare(previous, ev) if previous is not None else None, listed=args.changes))
+        summary = check_summary(ev)  # compared with the previous one, then stored for the next
+        print(changes_text(compare(previous, ev, summary) if previous is not None else None, listed=args.changes))
         folder = place.create()
-        store_summary(folder, ev)
+        store_summary(folder, ev, summary)
     failed = ev.failed_checks
     nothing = "no outputs were written" + (f" (the cache is kept in {folder})" if folder is not None else "")
     if failed:

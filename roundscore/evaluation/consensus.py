@@ -58,32 +58,44 @@ class Alternatives:
     kernel_note: str = ""
 
 
-def _replicates(table: ResultTable, names: list[str], used: dict[str, set[str]]) -> dict[str, pd.DataFrame]:
+def _replicates(table: ResultTable, names: list[str], labs: list[str]
+                ) -> tuple[list[np.ndarray], np.ndarray, np.ndarray, np.ndarray]:
+    """The numeric results by measurand, each in the table's order: row positions per measurand (of
+    ``names``), and for every numeric row its lab's place in ``labs``, that lab's rank in the lab codes'
+    sorted order (the numbering ``q_method`` gives the codes themselves), and the value."""
     f = table.frame
-    vals = f[f["status"] == "value"][["measurand", "lab", "value"]]
-    return {str(n): g for n, g in vals.groupby("measurand", sort=False) if str(n) in used}
+    value = (f["status"] == "value").to_numpy()
+    meas = pd.Index(names).get_indexer(pd.Index(f["measurand"].to_numpy(dtype=object)[value]))
+    pos = pd.Index(labs).get_indexer(pd.Index(f["lab"].to_numpy(dtype=object)[value]))
+    ranks = np.empty(len(labs), dtype=np.intp)
+    ranks[sorted(range(len(labs)), key=labs.__getitem__)] = np.arange(len(labs))
+    order = np.argsort(meas, kind="stable")  # grouped by measurand, the table's order kept within each
+    bounds = np.searchsorted(meas[order], np.arange(len(names) + 1))
+    rows = [order[bounds[i]:bounds[i + 1]] for i in range(len(names))]
+    return rows, pos, np.where(pos >= 0, ranks[pos], -1), f["value"].to_numpy(float)[value]
 
 
 def estimates(table: ResultTable, names: list[str], mat: np.ndarray, labs: list[str]
               ) -> dict[str, QHampelEstimate | None]:
     """Q/Hampel for every measurand: s* by the Q method on each used lab's replicates, x* by Hampel (one call).
 
-    ``mat`` holds the lab means used (measurand × lab, NaN = not used), as Algorithm A receives them.
+    ``mat`` holds the lab means used (measurand × lab, NaN = not used), as Algorithm A receives them;
+    ``labs`` are its columns' lab codes (every lab in the table is one of them).
     """
-    used = {n: {labs[j] for j in np.flatnonzero(np.isfinite(mat[i]))} for i, n in enumerate(names)}
-    reps = _replicates(table, names, used)
+    rows, pos, ranks, values = _replicates(table, names, labs)
     sds = np.full(len(names), np.nan)
     info: list[tuple[int, int, float]] = []
-    for i, n in enumerate(names):
-        g = reps.get(n)
-        p = len(used[n])
-        if g is None or p < 3:
+    for i in range(len(names)):
+        used = np.isfinite(mat[i])
+        p = int(used.sum())
+        mine = rows[i]
+        if not mine.size or p < 3:
             info.append((p, 0, np.nan))
             continue
-        g = g[g["lab"].isin(used[n])]
-        s, ties = q_method(g["value"].to_numpy(float), g["lab"].to_numpy())
+        mine = mine[used[pos[mine]]]
+        s, ties = q_method(values[mine], ranks[mine])
         sds[i] = s
-        info.append((p, len(g), ties))
+        info.append((p, int(mine.size), ties))
     x, sol = hampel(mat, np.where(np.isfinite(sds), sds, 0.0)) if len(names) else (np.zeros(0), np.zeros(0))
     out: dict[str, QHampelEstimate | None] = {}
     for i, n in enumerate(names):

@@ -89,8 +89,10 @@ def _lab_tables(table: ResultTable, names: list[str], all_labs: list[str]) -> di
         "u": u, "U": U, "k": k, "method": firsts["method"].to_numpy(dtype=object),
         "result_text": text, "used": False, "reason": reason,
     })
-    return {str(n): g.drop(columns="measurand").reset_index(drop=True)
-            for n, g in out.groupby("measurand", sort=False)}
+    if not len(out):
+        return {}
+    body, step = out.drop(columns="measurand"), len(all_labs)  # measurand-major: one slice per measurand
+    return {str(n): body.iloc[i * step:(i + 1) * step].reset_index(drop=True) for i, n in enumerate(names)}
 
 
 def _assign(m: MeasurandSettings, est, med, made_v, p, alt) -> tuple[float, float, str, list[str]]:
@@ -158,15 +160,16 @@ def _measurand(rnd: Round, labs: pd.DataFrame, m: MeasurandSettings, est: robust
         labs["withhold"] = False
     labs["excluded"] = labs["excluded"].fillna(False).astype(bool)
     labs["withhold"] = labs["withhold"].fillna(False).astype(bool)
-    labs["used"] = (labs["status"] == "value") & ~labs["excluded"]
+    status, codes = labs["status"].to_numpy(dtype=object), labs["lab"].to_numpy(dtype=object)
+    in_use = (status == "value") & ~labs["excluded"].to_numpy(bool)
     if m.consensus_labs is not None:  # a consensus of the labs the round file names
-        labs["used"] &= labs["lab"].isin(m.consensus_labs)
-    cens = labs["status"] == "censored"
+        in_use &= labs["lab"].isin(m.consensus_labs).to_numpy()
+    labs["used"] = in_use
+    cens = status == "censored"
     audit.extend((m.name, lab, "import", "left out of the statistics", f"censored result {t}")
-                 for lab, t in zip(labs.loc[cens, "lab"], labs.loc[cens, "result_text"]))
-    audit.extend((m.name, lab, "import", "not scored", "no result reported")
-                 for lab in labs.loc[labs["status"] == "not-reported", "lab"])
-    used = labs.loc[labs["used"], "mean"].to_numpy()
+                 for lab, t in zip(codes[cens], labs["result_text"].to_numpy(dtype=object)[cens]))
+    audit.extend((m.name, lab, "import", "not scored", "no result reported") for lab in codes[status == "not-reported"])
+    used = labs["mean"].to_numpy()[in_use]
     p = len(used)
     med = float(np.median(used)) if p else np.nan
     made_v = float(robust.made(used)) if p else np.nan
@@ -308,25 +311,21 @@ def _score_rows(rnd: Round, mr: MeasurandResult, converted: dict[str, str] | Non
     if is_cens.any():  # the censored result's text ("<0.5") in place of a mean, each row's own object as before
         shown = [t if (c and t) else (v if f else np.nan)
                  for t, c, v, f in zip(texts.tolist(), is_cens.tolist(), list(x), np.isfinite(x).tolist())]
-    out = pd.DataFrame({
-        "lab": labs["lab"], "measurand": m.name, "unit": m.unit, "n_replicates": labs["n_replicates"],
-        "result": shown,
-        "assigned": x_pt, "u_assigned": u_pt, "sigma_pt": s_pt,
-        **values, "d": d, "d_percent": dp,
-        "signal": sig, "note": notes, "score": m.score,
-        "scheme": rnd.scheme, "round": rnd.id, "round_date": rnd.date,
-    })
     value = np.abs(chosen)
     ok = np.isfinite(value)
     ranks = np.full(len(value), np.nan)
     if ok.any():
         order = pd.Series(value[ok]).rank(method="min").to_numpy()
         ranks[ok] = order
-    out["rank"] = ranks
-    out["n_scored"] = int(ok.sum())
-    out["method"] = labs["method"].to_numpy()
-    out["state"] = state
-    return out
+    return pd.DataFrame({
+        "lab": labs["lab"], "measurand": m.name, "unit": m.unit, "n_replicates": labs["n_replicates"],
+        "result": shown,
+        "assigned": x_pt, "u_assigned": u_pt, "sigma_pt": s_pt,
+        **values, "d": d, "d_percent": dp,
+        "signal": sig, "note": notes, "score": m.score,
+        "scheme": rnd.scheme, "round": rnd.id, "round_date": rnd.date,
+        "rank": ranks, "n_scored": int(ok.sum()), "method": labs["method"].to_numpy(), "state": state,
+    })
 
 
 def _joined(parts: list[np.ndarray]) -> np.ndarray:
@@ -372,7 +371,7 @@ def evaluate(rnd: Round, table: ResultTable, participants: dict[str, Participant
     """
     participants = participants or {}
     items = items or {}
-    all_labs = sorted(set(table.frame["lab"]) | set(participants), key=lab_order_key)
+    all_labs = sorted(set(table.frame["lab"].unique()) | set(participants), key=lab_order_key)
     # How text cells were read (a declared decimal mark): one line per round or per form, from the reader.
     audit: list[tuple] = [("", lab, "import", "decimal mark", text) for lab, text in table.readings]
     # what each returned form says of the lab's sample (intake/forms.py form_receipt), as the lab gave it
@@ -384,7 +383,8 @@ def evaluate(rnd: Round, table: ResultTable, participants: dict[str, Participant
     mat = np.full((len(names), len(all_labs)), np.nan)
     for i, n in enumerate(names):
         lt = pre[n]
-        keep = (lt["status"] == "value") & ~lt["lab"].map(lambda L: (L, n) in excluded or (L, None) in excluded)  # noqa: B023
+        gone = [lab for lab, which in excluded if which is None or which == n]  # the coordinator's exclusions
+        keep = (lt["status"] == "value") & ~lt["lab"].isin(gone)
         subset = rnd.measurands[n].consensus_labs
         if subset is not None:
             keep &= lt["lab"].isin(subset)

@@ -413,19 +413,22 @@ def _mandel_frame(name: str, d: MeasurandPrecision) -> pd.DataFrame | None:
 
 def _method_groups(rnd: Round, mr: MeasurandResult, audit: list) -> tuple[MethodGroups | None, list[dict], list[str]]:
     """Compare the method groups of one measurand on the used labs' means."""
-    labs = mr.labs[mr.labs["used"].to_numpy(bool)]
-    raw = labs["method"].to_numpy(dtype=object)
-    text = np.array([str(v).strip() if isinstance(v, str) else "" for v in raw], dtype=object)
+    used = mr.labs["used"].to_numpy(bool)  # the used labs' columns, taken without a frame of them
+    # Each distinct method cell once (in order of first appearance; no method: code -1, the last entry).
+    codes, distinct = pd.factorize(mr.labs["method"].to_numpy(dtype=object)[used])
+    spelled = [str(v).strip() if isinstance(v, str) else "" for v in distinct]
+    text = np.array(spelled + [""], dtype=object)[codes]
     given = text != ""
-    keys = np.array([t.casefold() for t in text], dtype=object)
+    keys = np.array([word.casefold() for word in spelled] + [""], dtype=object)[codes]
     shown: dict[str, str] = {}
-    for k_, t in zip(keys[given], text[given]):
-        shown.setdefault(k_, t)
+    for word in spelled:
+        if word:
+            shown.setdefault(word.casefold(), word)
     if len(shown) < 2:
         return None, [], []
     name = mr.name
-    lab_codes = labs["lab"].to_numpy(dtype=str)
-    means = labs["mean"].to_numpy(float)
+    lab_codes = mr.labs["lab"].to_numpy(dtype=str)[used]
+    means = mr.labs["mean"].to_numpy(float)[used]
     names = sorted(shown.values(), key=str.casefold)
     groups = {g: tuple(lab_codes[given & (keys == g.casefold())].tolist()) for g in names}
     sizes = {g: len(v) for g, v in groups.items()}

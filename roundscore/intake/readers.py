@@ -18,6 +18,7 @@ from roundscore.intake.cache import CachedForm, FileKey, InputCache, file_key, u
 from roundscore.intake.validate import (build_table, cell_label, records_from_long, summarise_ambiguous,
                                        validate_records)
 from roundscore.text import clip, quote, too_long
+from roundscore.support.paths import resolve_each
 from roundscore.intake.forms import (INFO_SHEET, RECEIPT_FIELDS, RESULTS_SHEET, date_text, form_decimal,
                                      form_receipt, lab_cell, records_from_form)
 from roundscore.intake.safety import hidden_by_design
@@ -210,7 +211,7 @@ def _read_forms(rnd: Round, files: list[Path], *, jobs: int | None, progress,
     from roundscore.intake.isolation import read_many
 
     paths = [str(f) for f in files]
-    shown = [_shown(rnd, Path(p)) for p in paths]
+    shown = _shown_all(rnd, paths)
     forms = [p for p in paths if _is_form(Path(p))]
     keys: dict[str, FileKey | None] = {}
     cached: dict[str, CachedForm] = {}
@@ -381,6 +382,18 @@ def _shown(rnd: Round, path: Path) -> str:
         return str(path)
 
 
+def _shown_all(rnd: Round, paths: list[str]) -> list[str]:
+    """:func:`_shown` of each path (each folder resolved once: support.paths.resolve_each)."""
+    top = _resolved(rnd.folder)
+    out = []
+    for p, real in zip(paths, resolve_each(paths, lexical=False)):
+        try:
+            out.append(str(real.relative_to(top)))
+        except ValueError:
+            out.append(str(Path(p)))
+    return out
+
+
 @functools.lru_cache(maxsize=64)
 def _resolved(folder: Path) -> Path:
     # A round folder is resolved once per process, not once per file of a 2000-form round.
@@ -461,7 +474,7 @@ def check_labs(rnd: Round, table: ResultTable, participants: dict[str, Participa
     """
     from dataclasses import replace
 
-    labs = list(dict.fromkeys(table.frame["lab"])) if len(table.frame) else []
+    labs = list(table.frame["lab"].unique()) if len(table.frame) else []  # in order of first appearance
     results_places: dict[str, Place] = {lab: table.lab_places.get(lab, {}) for lab in labs}
     part_shown = _shown(rnd, rnd.participants) if rnd.participants is not None else None
     part_places: dict[str, Place] = {lab: {"file": part_shown, "row": p.row, "column": "lab"}

@@ -32,6 +32,7 @@ from roundscore.model.round import (LIMIT_KEYS, MAX_FORM_REPLICATES, MEASURAND_K
                                     SigmaMethod, SigmaSpec, UnknownLabs, limit_range)
 from roundscore.model.signals import Words
 from roundscore.model.units import UnitError, mass_fraction, unit_text_problem
+from roundscore.support.paths import inside_each
 from roundscore.ranges import (MAX_MAGNITUDE, MIN_MAGNITUDE, SIGMA_MIN_RELATIVE, confidence_problem, magnitude_problem,
                                sigma_relative_problem)
 from roundscore.text import TEXT_LIMITS, quote, too_long
@@ -496,13 +497,11 @@ def result_files(rnd: Round) -> list[Path]:
     """The results file(s) of a round: one table, or every workbook in a folder or glob."""
     files = _find_results(rnd)
     folder = rnd.folder.resolve()
-    for f in files:  # a symbolic link may point out of the folder
-        try:
-            f.resolve().relative_to(folder)
-        except ValueError:
+    for f, inside in zip(files, inside_each(files, folder, lexical=False)):  # a link may point out of the folder
+        if not inside:
             raise RoundFileError.single(
                 f"{rnd.path}: key 'round.results': {f.name} leads outside the round folder "
-                f"(a link to {f.resolve()}); results must be inside {rnd.folder}") from None
+                f"(a link to {f.resolve()}); results must be inside {rnd.folder}")
     return files
 
 

@@ -28,7 +28,6 @@ from typing import Literal, overload
 
 import numpy as np
 import pandas as pd
-from scipy import stats as sps
 
 from roundscore.outputs.axes import axis_limit, data_span, drawable, span
 from roundscore.outputs.figure_base import (MAX_BARS, PROFILE_POINTS, SQUARE, SVG_HASHSALT, WIDE, MarkKind, SvgFigure,
@@ -207,6 +206,7 @@ def density_figure(labs: Sequence[str], values: Sequence[float], *, assigned: fl
     if len(xu) >= 2 and xu.max() > xu.min():
         # In coordinates centred on the axis and scaled by its half-width: the same curve up to the scale of
         # the density axis (which has no ticks), and no overflow or underflow for any finite results.
+        from scipy import stats as sps  # here, not at import: scipy.stats takes about a second to load
         with np.errstate(over="ignore", invalid="ignore"):  # far tails: exp(−u²/2) is 0 either way
             gs, xs = (grid - mid) / half, (xu - mid) / half
             xs = xs[np.isfinite(xs)]
@@ -312,6 +312,7 @@ def youden_figure(labs: Sequence[str], a: Sequence[float], b: Sequence[float], *
         core = (np.abs(za) <= 3) & (np.abs(zb) <= 3)
         rho = float(np.corrcoef(za[core], zb[core])[0, 1]) if core.sum() >= 3 else 0.0
         rho = 0.0 if not np.isfinite(rho) else max(min(rho, 0.99), -0.99)
+        from scipy import stats as sps  # here, not at import: scipy.stats takes about a second to load
         r2 = float(sps.chi2.ppf(YOUDEN_LEVEL, 2))
         t = np.linspace(0, 2 * np.pi, 181)
         vals, vecs = np.linalg.eigh(np.array([[1.0, rho], [rho, 1.0]]))

@@ -44,6 +44,7 @@ from collections.abc import Iterable, Iterator
 from typing import Literal
 
 from roundscore.errors import RoundscoreError
+from roundscore.support.paths import inside_each
 
 __all__ = ["MARKER_NAME", "MARKER_FORMAT", "OutputFolderError", "Marker", "read_marker", "check_target",
            "atomic_folder", "recover", "mark_folder"]
@@ -175,10 +176,11 @@ def check_target(target: str | os.PathLike[str], *, protect: Iterable[Protected]
         raise OutputFolderError(f"output folder {shown} is a symbolic link (to {os.readlink(absolute)}); "
                                 "give the folder it leads to, or a new folder")
     real = absolute.resolve()
-    for item in protect:
-        p, what = item if isinstance(item, tuple) else (item, "a file the command needs")
-        rp = Path(os.path.abspath(p)).resolve()
-        if _inside(rp, real):
+    items = [item if isinstance(item, tuple) else (item, "a file the command needs") for item in protect]
+    # A round's 2000 forms share one folder: resolved and compared once (support.paths).
+    for (p, what), inside in zip(items, inside_each([p for p, _ in items], real)):
+        if inside:
+            rp = Path(os.path.abspath(p)).resolve()
             how = f"is {what}" if rp == real else f"contains {what}, {p}"
             raise OutputFolderError(
                 f"output folder {shown} {how}; nothing was written. Give --out a folder of its own "

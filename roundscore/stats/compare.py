@@ -30,10 +30,11 @@ from dataclasses import dataclass
 from typing import Any, Literal
 
 import numpy as np
-from scipy import stats as sps
 
 from roundscore.errors import StatisticsError
-from roundscore.ranges import confidence_problem, magnitude_problem, spread_problem
+from roundscore.stats.distributions import f_cdf, f_isf, f_ppf, f_sf, t_isf, t_sf
+from roundscore.ranges import (MAX_MAGNITUDE, MIN_MAGNITUDE, confidence_problem, magnitude_problem,
+                               spread_problem)
 from roundscore.stats.exact import check_choice, mean_variance
 from roundscore.stats.precision import AnovaTable, anova_oneway
 from roundscore.support.plain import plain_fields
@@ -88,10 +89,12 @@ def _sample(values: Sequence[float] | np.ndarray, label: str) -> np.ndarray:
         raise StatisticsError(f"group {label}: need at least {MIN_GROUP_SIZE} values, got {x.size}")
     if not np.all(np.isfinite(x)):
         raise StatisticsError(f"group {label}: a value is not a finite number")
-    for v in x:  # roundscore.ranges: beyond these the sums of squares overflow or underflow
-        why = magnitude_problem(v)
-        if why is not None:
-            raise StatisticsError(f"group {label}: the value {v:g} is {why}")
+    size = np.abs(x)
+    if np.any((size > MAX_MAGNITUDE) | ((size > 0) & (size < MIN_MAGNITUDE))):  # then name the first
+        for v in x:  # roundscore.ranges: beyond these the sums of squares overflow or underflow
+            why = magnitude_problem(v)
+            if why is not None:
+                raise StatisticsError(f"group {label}: the value {v:g} is {why}")
     return x
 
 
@@ -380,10 +383,10 @@ def _variance_test(va: float, vb: float, dfa: int, dfb: int, alpha: float) -> Va
     if math.isnan(f):
         p = math.nan
     else:
-        p = min(1.0, 2 * min(float(sps.f.cdf(f, dfa, dfb)), float(sps.f.sf(f, dfa, dfb))))
+        p = min(1.0, 2 * min(f_cdf(f, dfa, dfb), f_sf(f, dfa, dfb)))
     return VarianceTest(
         f=f, df_a=dfa, df_b=dfb, p_value=p,
-        critical_low=float(sps.f.ppf(alpha / 2, dfa, dfb)), critical_high=float(sps.f.isf(alpha / 2, dfa, dfb)),
+        critical_low=f_ppf(alpha / 2, dfa, dfb), critical_high=f_isf(alpha / 2, dfa, dfb),
         alpha=alpha, reject=bool(p < alpha),
     )
 
@@ -461,8 +464,8 @@ def compare_two(
         se = math.sqrt(qa + qb)
         df = (qa + qb) ** 2 / (qa * qa / (na - 1) + qb * qb / (nb - 1))
     t = diff / se
-    tc = float(sps.t.isf(alpha / 2, df))
-    p = float(2 * sps.t.sf(abs(t), df))
+    tc = t_isf(alpha / 2, df)
+    p = float(2 * t_sf(abs(t), df))
     lo, hi = diff - tc * se, diff + tc * se
     significant = bool(p < alpha)
     name = "pooled-SD t" if use == "pooled" else "Welch t"
@@ -529,8 +532,8 @@ def compare_one(
     df = float(n - 1)
     diff = m - ref
     t = diff / se
-    tc = float(sps.t.isf(alpha / 2, df))
-    p = float(2 * sps.t.sf(abs(t), df))
+    tc = t_isf(alpha / 2, df)
+    p = float(2 * t_sf(abs(t), df))
     lo, hi = m - tc * se, m + tc * se
     significant = bool(p < alpha)
     body = (

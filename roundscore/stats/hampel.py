@@ -53,9 +53,9 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.stats import norm
 
 from roundscore.errors import StatisticsError
+from roundscore.stats.distributions import norm_ppf
 from roundscore.stats.robust import CONSENSUS_U_FACTOR
 
 __all__ = ["QHampelEstimate", "q_method", "hampel", "q_hampel", "hampel_psi", "HAMPEL_A", "HAMPEL_B", "HAMPEL_C"]
@@ -148,29 +148,56 @@ class _Pairs:
                 same_b.append(np.maximum(a, b))
         self.sa, self.sb = np.concatenate(same_a), np.concatenate(same_b)
         self.sw = self.w[self.sa] * self.w[self.sb]
+        # _upto's answers by (x, side): the bisection asks for the same ends again (count(lo, hi)), and
+        # H(x) and H(x−) share one search. The arrays are never changed in place by their users.
+        self._found: dict[tuple[float, str], tuple[np.ndarray, bool]] = {}
 
     def _upto(self, x: float, side: str) -> np.ndarray:
         """For each result a: the last position b with v[b] − v[a] ≤ x ('right') or < x ('left').
 
         The difference is compared as computed, fl(v[b] − v[a]), the same number the listed band holds;
         the binary search on v[a] + x can miss it by a rounding, so the ends are corrected (over ties).
+        Each answer is kept: the same (x, side) is not searched again. The 'left' answer is the 'right'
+        one wherever no computed difference at the 'right' end equals x exactly (fl(v[b] − v[a]) grows
+        with b, so the positions with a difference < x are those with one ≤ x, less those equal to x):
+        it is then taken from the 'right' answer without a search, the same array.
         """
+        key = (x, side)
+        got = self._found.get(key)
+        if got is None:
+            right = self._found.get((x, "right")) if side == "left" else None
+            if right is not None and right[1]:
+                r = right[0]
+                at = np.maximum(r, 0)
+                if not ((r >= 0) & (self.v[at] - self.v == x)).any():
+                    got = right
+            if got is None:
+                got = self._search(x, side)
+            self._found[key] = got
+        return got[0]
+
+    def _search(self, x: float, side: str) -> tuple[np.ndarray, bool]:
+        """:meth:`_upto` searched: the positions, and whether both corrections settled (they always do in
+        practice: each pass moves past one group of equal results)."""
         v = self.v
         inside = (lambda d: d <= x) if side == "right" else (lambda d: d < x)
         r = np.searchsorted(v, v + x, side=side) - 1  # type: ignore[call-overload]  # side is a Literal
+        settled_up = settled_down = False
         for _ in range(64):
             nxt = np.minimum(r + 1, v.size - 1)
             up = (r + 1 < v.size) & inside(v[nxt] - v)
             if not up.any():
+                settled_up = True
                 break
             r[up] = np.searchsorted(v, v[nxt[up]], side="right") - 1
         for _ in range(64):
             at = np.maximum(r, 0)
             down = (r >= 0) & ~inside(v[at] - v)
             if not down.any():
+                settled_down = True
                 break
             r[down] = np.searchsorted(v, v[at[down]], side="left") - 1
-        return r
+        return r, settled_up and settled_down
 
     def H(self, x: float, strict: bool = False) -> float:
         """H1(x) (or H1 just below x, ``strict``): the weighted share of between-lab pairs with |d| ≤ x."""
@@ -305,7 +332,7 @@ def q_method(values: np.ndarray, labs: np.ndarray) -> tuple[float, float]:
     if h0 >= 1.0 - 1e-12:
         return 0.0, 1.0
     quantile = _g1_inverse(pairs, 0.25 + 0.75 * h0, h0)
-    return float(quantile / (np.sqrt(2.0) * norm.ppf(0.625 + 0.375 * h0))), h0
+    return float(quantile / (np.sqrt(2.0) * norm_ppf(0.625 + 0.375 * h0))), h0
 
 
 def hampel(means: np.ndarray, sd: np.ndarray | float) -> tuple[np.ndarray, np.ndarray]:

@@ -33,7 +33,6 @@ from typing import Literal
 
 import numpy as np
 from numpy.typing import ArrayLike
-from scipy import stats
 
 from roundscore.choices import check_choice
 from roundscore.errors import StatisticsError
@@ -197,6 +196,7 @@ def expanded_criterion_factors(
     if df_within < 1:
         raise StatisticsError(f"within-item degrees of freedom must be >= 1; found {df_within!r}")
     q = 1.0 - alpha
+    from scipy import stats  # here, not at import: scipy.stats takes about a second to load
     f1 = float(stats.chi2.ppf(q, g - 1) / (g - 1))
     f2 = float((stats.f.ppf(q, g - 1, df_within) - 1.0) / m)
     return CriterionFactors(g=g, m=m, df_within=int(df_within), alpha=alpha, f1=f1, f2=f2)

@@ -38,9 +38,9 @@ from dataclasses import dataclass
 from typing import Literal
 
 import numpy as np
-from scipy import stats as sps
 
 from roundscore.errors import StatisticsError
+from roundscore.stats.distributions import f_isf, t_isf
 from roundscore.stats.exact import check_choice, fsum_mean, mean_variance
 from roundscore.stats.grubbs_double import (GRUBBS_DOUBLE_SEED, OUTLIER_LEVEL, STRAGGLER_LEVEL, GrubbsDoubleTable,
                                             grubbs_double_critical, grubbs_double_table)
@@ -123,6 +123,7 @@ class CochranResult:
     outcome: Outcome
 
 
+@functools.lru_cache(maxsize=4096)
 def cochran_critical(p: int, n: int, alpha: float) -> float:
     """Upper critical value of Cochran's C for p variances of n replicates each.
 
@@ -146,7 +147,7 @@ def cochran_critical(p: int, n: int, alpha: float) -> float:
     if not 0.0 < alpha < 1.0:
         raise StatisticsError(f"Cochran's test: alpha must lie strictly between 0 and 1; found {alpha!r}")
     nu = n - 1
-    f = float(sps.f.isf(alpha / p, nu, (p - 1) * nu))
+    f = f_isf(alpha / p, nu, (p - 1) * nu)
     return 1.0 / (1.0 + (p - 1) / f)
 
 
@@ -239,6 +240,7 @@ class GrubbsPair:
     low: GrubbsResult
 
 
+@functools.lru_cache(maxsize=4096)
 def grubbs_critical(n: int, alpha: float, *, sided: Sided = "two") -> float:
     """Critical value of the single Grubbs statistic for n values.
 
@@ -258,7 +260,7 @@ def grubbs_critical(n: int, alpha: float, *, sided: Sided = "two") -> float:
     if n < 3:
         raise StatisticsError(f"Grubbs' test needs at least 3 values, got {n}")
     a = alpha / (2 * n) if sided == "two" else alpha / n
-    t = float(sps.t.isf(a, n - 2))
+    t = t_isf(a, n - 2)
     return (n - 1) / math.sqrt(n) * math.sqrt(t * t / (n - 2 + t * t))
 
 

@@ -28,15 +28,16 @@ References
 
 from __future__ import annotations
 
+import functools
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass
 from decimal import Decimal
 
 import numpy as np
-from scipy import stats as sps
 
 from roundscore.errors import StatisticsError
+from roundscore.stats.distributions import chi2_cdf, chi2_ppf, f_isf, f_sf, t_isf
 from roundscore.stats.exact import centred, clipped_square_sums, fsum_mean, grouped_fsum
 
 __all__ = [
@@ -450,7 +451,7 @@ def _anova_from_cells(cells: CellStatistics) -> AnovaTable:
             f = ms_b / ms_w
         else:
             f = math.inf if ms_b > 0 else math.nan
-        p_value = float(sps.f.sf(f, df_b, df_w)) if math.isfinite(f) else (0.0 if f == math.inf else math.nan)
+        p_value = f_sf(f, df_b, df_w) if math.isfinite(f) else (0.0 if f == math.inf else math.nan)
     else:
         f, p_value = math.nan, math.nan
     ss_t = ss_b + ss_w
@@ -507,6 +508,7 @@ def anova_oneway(
     return _anova_from_cells(cell_statistics(values, groups, texts=texts))
 
 
+@functools.lru_cache(maxsize=4096)
 def mandel_h_critical(p: int, alpha: float) -> float:
     """Indicator value for Mandel's |h| with p labs.
 
@@ -526,10 +528,11 @@ def mandel_h_critical(p: int, alpha: float) -> float:
     """
     if p < 3:
         return math.nan
-    t = float(sps.t.isf(alpha / 2, p - 2))
+    t = t_isf(alpha / 2, p - 2)
     return (p - 1) * t / math.sqrt(p * (t * t + p - 2))
 
 
+@functools.lru_cache(maxsize=4096)
 def mandel_k_critical(p: int, n: int, alpha: float) -> float:
     """Indicator value for Mandel's k with p labs of n replicates.
 
@@ -542,7 +545,7 @@ def mandel_k_critical(p: int, n: int, alpha: float) -> float:
     """
     if p < 2 or n < 2:
         return math.nan
-    f = float(sps.f.isf(alpha, n - 1, (p - 1) * (n - 1)))
+    f = f_isf(alpha, n - 1, (p - 1) * (n - 1))
     return math.sqrt(p / (1 + (p - 1) / f))
 
 
@@ -596,6 +599,7 @@ def mandel(cells: CellStatistics) -> MandelResult:
     )
 
 
+@functools.lru_cache(maxsize=256)
 def algorithm_s_factors(df: int) -> AlgorithmSFactors:
     """Limit factor η and adjustment factor ξ of Algorithm S for ν = ``df``.
 
@@ -620,9 +624,9 @@ def algorithm_s_factors(df: int) -> AlgorithmSFactors:
     """
     if df < 1:
         raise StatisticsError(f"Algorithm S needs at least 1 degree of freedom per SD, got {df}")
-    c = float(sps.chi2.ppf(ALGORITHM_S_COVERAGE, df))
+    c = chi2_ppf(ALGORITHM_S_COVERAGE, df)
     eta2 = c / df
-    xi = 1.0 / math.sqrt(float(sps.chi2.cdf(c, df + 2)) + eta2 * (1.0 - ALGORITHM_S_COVERAGE))
+    xi = 1.0 / math.sqrt(chi2_cdf(c, df + 2) + eta2 * (1.0 - ALGORITHM_S_COVERAGE))
     return AlgorithmSFactors(df=int(df), eta=math.sqrt(eta2), xi=xi)
 
 

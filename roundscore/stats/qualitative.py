@@ -28,7 +28,6 @@ from collections.abc import Sequence
 from typing import Literal
 
 import numpy as np
-from scipy import stats
 
 __all__ = ["Proportion", "proportion", "median_rank", "mode_rank", "Independence", "independence",
            "INTERVAL_METHOD", "ordinal_signals"]
@@ -55,6 +54,7 @@ def proportion(k: int, n: int, confidence: float = 0.95) -> Proportion:
     """The proportion ``k / n`` with Wilson's score interval at ``confidence`` (scipy's binomtest)."""
     if n <= 0:
         return Proportion(k=0, n=0, proportion=math.nan, ci_low=math.nan, ci_high=math.nan, confidence=confidence)
+    from scipy import stats  # here, not at import: scipy.stats takes about a second to load
     ci = stats.binomtest(int(k), int(n)).proportion_ci(confidence_level=confidence, method=INTERVAL_METHOD)
     return Proportion(k=int(k), n=int(n), proportion=k / n, ci_low=float(ci.low), ci_high=float(ci.high),
                       confidence=confidence)
@@ -108,6 +108,7 @@ def independence(counts: np.ndarray) -> Independence | None:
     t = t[t.sum(axis=1) > 0][:, t.sum(axis=0) > 0] if t.size else t
     if t.ndim != 2 or t.shape[0] < 2 or t.shape[1] < 2:
         return None
+    from scipy import stats  # here, not at import: scipy.stats takes about a second to load
     expected = np.outer(t.sum(axis=1), t.sum(axis=0)) / t.sum()
     if t.shape == (2, 2):
         res = stats.fisher_exact(t)

@@ -57,7 +57,6 @@ from dataclasses import dataclass
 from typing import Literal
 
 import numpy as np
-from scipy import stats
 
 from roundscore.errors import StatisticsError
 from roundscore.stats.limits import above, reaches
@@ -316,6 +315,7 @@ def combined_scores(z: Sequence[float] | np.ndarray) -> CombinedScores:
     a = arr / scale  # exact: a power of two; sums of huge scores then stay finite (SSZ may still be inf)
     rsz = float(np.sum(a) / math.sqrt(n)) * scale
     ssz = float(np.sum(a * a)) * scale * scale  # Python floats: inf, never a warning, past 1.8e308
+    from scipy import stats  # here, not at import: scipy.stats takes about a second to load
     chi2 = stats.chi2(n)
     return CombinedScores(
         n=n, rsz=rsz, rsz_p_value=float(2.0 * stats.norm.sf(abs(rsz))), ssz=ssz,
@@ -396,6 +396,7 @@ def bias_check(z: Sequence[float] | np.ndarray, *, alpha: float = BIAS_ALPHA) ->
         raise StatisticsError(
             f"the scores are (nearly) all equal (their SD, {sd:.3g}, is at most {EQUAL_TOLERANCE:g} × "
             f"max(1, largest |z|) = {tol:.3g}); the test is not meaningful")
+    from scipy import stats  # here, not at import: scipy.stats takes about a second to load
     res = stats.ttest_1samp(a, 0.0)
     ci = res.confidence_interval(1.0 - alpha)
     ci_low, ci_high = float(ci.low) * scale, float(ci.high) * scale
