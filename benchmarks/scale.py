@@ -147,6 +147,21 @@ def _floor_read_batch(paths: list[str]) -> list[int]:
     return out
 
 
+def part_evaluate(a: argparse.Namespace) -> dict:
+    """The evaluation alone (the forms read first, untimed): for repeating the evaluate/baseline ratio without the
+    writing stage."""
+    from roundscore.evaluation.evaluate import evaluate
+    from roundscore.intake.readers import read_participants, read_results
+    from roundscore.intake.roundfile import load_round
+
+    rnd = load_round(a.round)
+    table = read_results(rnd, jobs=a.jobs)
+    participants = read_participants(rnd)
+    t = time.perf_counter()
+    evaluate(rnd, table, participants)
+    return {"seconds": time.perf_counter() - t}
+
+
 def part_floor_read(a: argparse.Namespace) -> dict:
     from roundscore.support.parallel import run_batches
 
@@ -457,7 +472,7 @@ def part_recheck(a: argparse.Namespace) -> dict:
             "changes": "Since the previous check of this round" in said}
 
 
-PARTS = {"recheck": part_recheck,
+PARTS = {"recheck": part_recheck, "evaluate": part_evaluate,
          "pdf": part_pdf, "generate": part_generate, "pipeline": part_pipeline, "floor_read": part_floor_read,
          "floor_write": part_floor_write, "baseline": part_baseline, "core": part_core, "figures": part_figures}
 

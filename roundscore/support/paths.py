@@ -20,6 +20,18 @@ from pathlib import Path
 __all__ = ["resolve_each", "inside_each"]
 
 
+def _has_parent_part(p: str | os.PathLike[str]) -> bool:
+    """Whether a path has a ``..`` part (as ``".." in Path(p).parts``, without building the Path).
+
+    >>> [_has_parent_part(p) for p in ("a/../b", "a/..b", "..", "a/b")]
+    [True, False, True, False]
+    """
+    text = os.fspath(p)
+    if os.altsep:
+        text = text.replace(os.altsep, os.sep)
+    return ".." in text.split(os.sep)
+
+
 def resolve_each(paths: Iterable[str | os.PathLike[str]], *, lexical: bool = True) -> list[Path]:
     """``Path(os.path.abspath(p)).resolve()`` for each path, in order (the same paths, fewer system calls).
 
@@ -29,7 +41,7 @@ def resolve_each(paths: Iterable[str | os.PathLike[str]], *, lexical: bool = Tru
     folders: dict[str, Path] = {}
     out: list[Path] = []
     for p in paths:
-        if not lexical and ".." in Path(p).parts:
+        if not lexical and _has_parent_part(p):
             out.append(Path(p).resolve())
             continue
         full = os.path.abspath(p)
@@ -58,7 +70,7 @@ def inside_each(paths: Iterable[str | os.PathLike[str]], folder: Path, *, lexica
     folders: dict[str, tuple[str, bool]] = {}  # folder as given → (resolved, whether inside)
     out: list[bool] = []
     for p in paths:
-        if not lexical and ".." in Path(p).parts:
+        if not lexical and _has_parent_part(p):
             out.append(holds(str(Path(p).resolve())))
             continue
         full = os.path.abspath(p)
