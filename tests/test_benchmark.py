@@ -3,6 +3,7 @@
 
 from __future__ import annotations
 
+import json
 import math
 import os
 import re
@@ -18,8 +19,13 @@ FINAL = re.compile(r"^read/floor=(\S+) write/floor=(\S+) total/floor=(\S+) reche
 
 
 @pytest.fixture(scope="module")
-def tiny_run(tmp_path_factory) -> str:
-    work = tmp_path_factory.mktemp("bench")
+def tiny_work(tmp_path_factory) -> Path:
+    return tmp_path_factory.mktemp("bench")
+
+
+@pytest.fixture(scope="module")
+def tiny_run(tiny_work) -> str:
+    work = tiny_work
     res = subprocess.run(
         [sys.executable, str(SCRIPT), "--labs", "8", "--measurands", "3", "--growth", "4", "--core-sets", "20",
          "--core-labs", "15", "--figure-sample", "1", "--jobs", "2", "--work", str(work)],
@@ -67,3 +73,18 @@ def test_pdf_files_are_compared_with_the_bare_library(tiny_run):
     # The pipeline writes the PDFs, so the write stage counts them, against bare fpdf2 drawing the same documents
     # in the floor (8 lab files and report.pdf of the tiny round).
     assert re.search(r"floor write: .*\b9 PDFs drawn by bare fpdf2 from the same documents", tiny_run), tiny_run
+
+
+def test_the_evaluate_part_times_the_evaluation_of_the_generated_round(tiny_run, tiny_work):
+    # The part the README's repeated evaluate/baseline figures come from: the round the tiny run generated
+    # (round-8), read untimed, then evaluated; a missing round is refused, not timed as zero.
+    args = {"round": str(tiny_work / "round-8"), "jobs": 1}
+    res = subprocess.run([sys.executable, str(SCRIPT), "--part", "evaluate", "--args", json.dumps(args)],
+                         capture_output=True, text=True, timeout=120)
+    assert res.returncode == 0, res.stderr
+    seconds = json.loads(res.stdout.strip().splitlines()[-1])["seconds"]
+    assert 0 < seconds < 60
+    args["round"] = str(tiny_work / "no-such-round")
+    res = subprocess.run([sys.executable, str(SCRIPT), "--part", "evaluate", "--args", json.dumps(args)],
+                         capture_output=True, text=True, timeout=120)
+    assert res.returncode != 0
