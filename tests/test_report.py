@@ -318,3 +318,22 @@ def test_long_mandel_table_lists_flagged_rows_only():
     assert f"2 of {rows} rows" in html_ and "mandel.csv" in html_
     assert ">L0005<" in html_ and ">L0700<" in html_ and ">L0006<" not in html_
     assert ">L0006<" in drawn(frame.iloc[:R.MANDEL_TABLE_MAX_ROWS])  # short: every row
+
+
+def test_settings_table_says_the_assigned_value_in_words(demo):
+    # People read the settings: the method in words, not round.toml's names; a stated value to its decimals.
+    ev, parts = demo
+    doc = R.report_document(ev, parts)
+    settings = next(b for sec in doc.blocks if isinstance(sec, R.Section) and sec.heading.anchor == "round"
+                    for b in sec.blocks if isinstance(b, R.Table) and b.columns[0].title == "Measurand")
+    col = [c.title for c in settings.columns].index("Assigned value")
+    shown = {row[0].text: row[col].text for row in settings.rows}
+    for name, m in ev.round.measurands.items():
+        if m.assigned == "algorithm-a":
+            assert shown[name] == "Algorithm A robust mean (ISO 13528 C.3)"
+        elif m.assigned == "median":
+            assert shown[name] == "median of the lab means"
+        else:
+            assert shown[name] == f"stated value {m.assigned:.{m.decimals}f}"
+    assert not any("algorithm-a" in v for v in shown.values())
+    assert "stated value 0.512" in "".join(shown.values())  # the demo's lead (its decimals: 3)

@@ -203,6 +203,25 @@ class MeasurandSettings:
     #: ``reference = { value, u }``: an independent reference value and its standard uncertainty, or None.
     reference: tuple[float, float] | None = None
 
+    def describe_assigned(self, decimals: int | None = None) -> str:
+        """The assigned-value setting in words, as the report's settings table shows it (round.toml keeps
+        the method names).
+
+        >>> from roundscore.model.round import MeasurandSettings, SigmaSpec
+        >>> m = MeasurandSettings(name="lead", unit="mg/kg", label="", assigned="q-hampel", u_assigned=None,
+        ...                       sigma_pt=SigmaSpec(kind="robust-sd"), score="z", decimals=2,
+        ...                       allow_negative=False, consensus_labs=("K01", "K02", "K03"))
+        >>> m.describe_assigned()
+        'Hampel estimate with the Q method (ISO 13528 C.5) of 3 named labs'
+        """
+        if not isinstance(self.assigned, str):
+            value = f"{self.assigned:.{decimals}f}" if decimals is not None else f"{self.assigned:g}"
+            return f"stated value {value}"
+        words = {"algorithm-a": "Algorithm A robust mean (ISO 13528 C.3)", "median": "median of the lab means",
+                 "q-hampel": "Hampel estimate with the Q method (ISO 13528 C.5)",
+                 "kernel-mode": "kernel-density mode (h = 0.75 σ_pt)"}.get(self.assigned, self.assigned)
+        return words if self.consensus_labs is None else f"{words} of {len(self.consensus_labs)} named labs"
+
     @property
     def is_consensus(self) -> bool:
         """True when the assigned value is computed from the participants' results."""

@@ -208,7 +208,7 @@ def _settings(ev) -> list[Block]:
     rows = []
     for m in r.measurands.values():
         rows.append({"measurand": m.name, "label": m.label, "unit": m.unit,
-                     "assigned": m.assigned if isinstance(m.assigned, str) else _num(m.assigned, m.decimals),
+                     "assigned": m.describe_assigned(m.decimals),
                      "u_assigned": "" if m.u_assigned is None else _num(m.u_assigned, _more(m.decimals)),
                      "sigma_pt": m.sigma_pt.describe(), "score": score_label(m.score),
                      "decimals": "" if m.decimals is None else str(m.decimals),
