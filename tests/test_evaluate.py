@@ -193,3 +193,21 @@ def test_a_consensus_with_spread_has_no_zero_spread_finding(make_round):
     labs = {f"L{i}": [v] for i, v in enumerate([10, 10, 10, 10.5, 13], start=1)}  # MADe > 0
     ev = _ev(make_round('[round]\nid="E9"\n[measurand.cu]\nunit="mg/kg"\nsigma_pt=0.5\n', _results(labs)))
     assert ev.measurands["cu"].findings == () and ev.measurands["cu"].u_check_passed is not None
+
+
+def test_a_conversion_factor_is_said_in_full_in_the_audit_only_when_the_note_rounds_it():
+    # 1 lb = 0.45359237 kg exactly (the international avoirdupois pound of 1959, a definition): mg/lb → mg/kg is
+    # ×2.20462262185..., which the note's 6 digits round; ×1000 is exact and said once.
+    from types import SimpleNamespace
+
+    from roundscore.evaluation.evaluate import _conversions
+
+    frame = pd.DataFrame({"measurand": ["cu", "cu"], "lab": ["L1", "L2"], "unit_given": ["mg/lb", "g/kg"],
+                          "factor": [1 / 0.45359237, 1000.0], "unit": ["mg/kg", "mg/kg"]})
+    audit: list[tuple] = []
+    notes = _conversions(SimpleNamespace(frame=frame), audit)
+    assert notes == {"cu": {"L1": "entered in mg/lb, converted ×2.20462 to mg/kg",
+                            "L2": "entered in g/kg, converted ×1000 to mg/kg"}}
+    reasons = {row[1]: row[4] for row in audit}
+    assert reasons == {"L1": "entered in mg/lb, converted ×2.20462 to mg/kg (factor 2.20462262185)",
+                       "L2": "entered in g/kg, converted ×1000 to mg/kg"}

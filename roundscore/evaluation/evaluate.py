@@ -353,7 +353,9 @@ def _conversions(table: ResultTable, audit: list[tuple]) -> dict[str, dict[str, 
     for key, row in firsts.iterrows():  # the table is in measurand, lab order
         meas, lab, given = (str(k) for k in key)  # type: ignore[attr-defined]  # a 3-level index key (Hashable)
         text = f"entered in {given}, converted ×{row['factor']:.6g} to {row['unit']}"
-        audit.append((meas, lab, "import", "unit converted", f"{text} (factor {row['factor']:.12g})"))
+        full = f"{row['factor']:.12g}"  # the factor to 12 digits, said only where the note's 6 digits round it
+        audit.append((meas, lab, "import", "unit converted",
+                      text if full == f"{row['factor']:.6g}" else f"{text} (factor {full})"))
         got = out.setdefault(str(meas), {})
         got[lab] = f"{got[lab]}; {text}" if lab in got else text
     return out
