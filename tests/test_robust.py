@@ -171,3 +171,24 @@ def test_a_slow_start_still_converges():
             break
     assert steps > 2000 and est.iterations == steps
     assert est.mean == pytest.approx(m, rel=1e-12) and est.sd == pytest.approx(s, rel=1e-12)
+
+
+def test_a_set_collapsing_to_zero_spread_ends_with_the_finding():
+    # 27 of 36 results equal: a plain loop from the definition (as above) shrinks s* by the same ratio (about
+    # 0.997) every step, towards s* = 0 and x* = the common value, so no rule on the step relative to s* ever
+    # stops it (it ran past 100,000 steps). The estimate is that limit, with the zero-spread finding.
+    x = np.array([0.0] * 27 + [0.006, 1.0, 0.01, 0.01, 0.006, 0.006, 1.0, 0.001, 0.1])
+    m, s = float(np.median(x)), float(niqr(x))
+    start, ratios = s, []
+    for _ in range(20_000):
+        w = np.clip(x, m - 1.5 * s, m + 1.5 * s)
+        new_m, new_s = float(w.mean()), 1.134 * float(w.std(ddof=1))
+        ratios.append(new_s / s)
+        m, s = new_m, new_s
+    assert s < 1e-20 * start and abs(m) < 1e-20 and max(ratios[1:]) < 1  # the plain loop heads for (0, 0)
+    est = algorithm_a(x)
+    assert est.sd == 0.0 and est.mean == 0.0
+    assert "identical" in est.note and "cannot serve as σ_pt" in est.note
+    # with the common value elsewhere the limit moves with it (location equivariance)
+    moved = algorithm_a(x + 12.5)
+    assert moved.sd == 0.0 and moved.mean == 12.5

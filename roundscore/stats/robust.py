@@ -153,6 +153,7 @@ def _algorithm_a_2d(
         X[missing[rows]] = 0.0
     N = n[rows].astype(float)
     m, s = np.zeros(rows.size), sd[rows]  # x* − shift and s*
+    s0 = s.copy()  # each row's starting s*: a row whose s* falls to tol·s0 is collapsing to s* = 0
     live = np.ones(rows.size, dtype=bool)  # rows of X not yet converged
     W = np.empty_like(X)
     for _ in range(maxiter):
@@ -171,10 +172,16 @@ def _algorithm_a_2d(
         at = rows[live]
         mean[at], sd[at] = (new_m + shift)[live], new_s[live]
         iterations[at] += 1
-        live &= ~done & (new_s > 0)
+        # Most results equal (to the median): s* can shrink by the same ratio every step, towards the
+        # solution s* = 0, x* = that value, which no step-size rule relative to s* reaches.
+        gone = live & (new_s <= tol * s0)
+        if gone.any():
+            mean[rows[gone]], sd[rows[gone]] = shift[gone], 0.0
+        live &= ~done & (new_s > 0) & ~gone
         m, s = new_m, new_s
         if np.count_nonzero(live) <= (1.0 - _COMPACT_SHARE) * live.size:
             rows, X, N, m, s, shift = rows[live], X[live], N[live], m[live], s[live], shift[live]
+            s0 = s0[live]
             mask = mask[live] if mask is not None else None
             live = np.ones(rows.size, dtype=bool)
             W = np.empty_like(X)
