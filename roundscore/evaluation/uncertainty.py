@@ -70,24 +70,24 @@ LAB_EXPLANATION = (f"Your reported standard uncertainty u ({CLAUSE}) is plausibl
                    f"{U_MAX_SIGMA_FACTOR:g} σ_pt; z and ζ read together are noted where they point to an "
                    "understated uncertainty or to a result that may not be fit for purpose.")
 
-#: Each reading: (the short words of the lab's sheet, the advice of its page), by the case of the check.
-_READINGS = {
-    "zero": ("too small: zero", "An uncertainty of zero: every result has an uncertainty; please report your "
-             "standard uncertainty."),
-    "below-u": ("too small: below u(x_pt)", "Smaller than the uncertainty of the assigned value, u(x_pt): a "
-                "laboratory can rarely know the value better than the round's assigned value is known. Please "
-                "check that your uncertainty includes every significant contribution."),
-    "below-sr": (f"too small: below {U_MIN_REPRODUCIBILITY_FACTOR:g} s_R",
+#: Each case of the check: (its verdict, the short words of the lab's sheet, the advice of its page).
+_READINGS: dict[str, tuple[UncertaintyVerdict, str, str]] = {
+    "zero": ("too-small", "too small: zero", "An uncertainty of zero: every result has an uncertainty; please "
+             "report your standard uncertainty."),
+    "below-u": ("too-small", "too small: below u(x_pt)", "Smaller than the uncertainty of the assigned value, "
+                "u(x_pt): a laboratory can rarely know the value better than the round's assigned value is known. "
+                "Please check that your uncertainty includes every significant contribution."),
+    "below-sr": ("too-small", f"too small: below {U_MIN_REPRODUCIBILITY_FACTOR:g} s_R",
                  f"Below {U_MIN_REPRODUCIBILITY_FACTOR:g} s_R, far below the spread between laboratories in this "
                  "round: it may leave out effects that make laboratories differ (calibration, recovery, method "
                  "bias). Please check your uncertainty budget."),
-    "large": (f"too large: above {U_MAX_SIGMA_FACTOR:g} σ_pt",
+    "large": ("too-large", f"too large: above {U_MAX_SIGMA_FACTOR:g} σ_pt",
               f"Above {U_MAX_SIGMA_FACTOR:g} σ_pt: an uncertainty this large is probably not fit for the purpose "
               "σ_pt expresses. Please check it (was an expanded uncertainty U entered as u?)."),
-    "plausible": ("plausible", ""),
-    "none": ("no uncertainty reported", ""),
-    "unset": ("not checked: no u(x_pt) or σ_pt", ""),
-    "empty": (f"not checked: the lowest plausible u is above {U_MAX_SIGMA_FACTOR:g} σ_pt", ""),
+    "plausible": ("plausible", "plausible", ""),
+    "none": ("not-reported", "no uncertainty reported", ""),
+    "unset": ("not-checked", "not checked: no u(x_pt) or σ_pt", ""),
+    "empty": ("not-checked", f"not checked: the lowest plausible u is above {U_MAX_SIGMA_FACTOR:g} σ_pt", ""),
 }
 
 
@@ -134,8 +134,6 @@ def uncertainty_stage(results: dict[str, MeasurandResult], scores: pd.DataFrame,
                               sigma_pt=rows["sigma_pt"].to_numpy(float), s_R=s_R)
     reported = np.isfinite(u)
     zero = chk.small & (u <= 0)
-    verdict = np.select([~reported, chk.small, chk.large, chk.checked],
-                        ["not-reported", "too-small", "too-large", "plausible"], "not-checked").astype(object)
     cases = list(_READINGS)  # each row's case as an index into the words (one take per column, no text loop)
     case = np.select([~reported, zero, chk.below_u_x_pt, chk.small, chk.large, chk.checked, chk.empty],
                      [cases.index(k) for k in ("none", "zero", "below-u", "below-sr", "large", "plausible",
@@ -146,10 +144,11 @@ def uncertainty_stage(results: dict[str, MeasurandResult], scores: pd.DataFrame,
     said = (_joint_words(words, score_symbol("z")), _joint_words(words, score_symbol("z-prime")))
     kinds = ["", *said[0]]  # no joint reading, then its kinds
     joint_at = np.select([code == k for k in kinds[1:]], list(range(1, len(kinds))), 0)
-    reading = np.array([_READINGS[k][0] for k in cases], dtype=object)[case]
+    verdict = np.array([_READINGS[k][0] for k in cases], dtype=object)[case]  # a case's verdict (small ⊃ below u)
+    reading = np.array([_READINGS[k][1] for k in cases], dtype=object)[case]
     joint = np.array([""] + [w[0] for w in said[0].values()], dtype=object)[joint_at]
     # the advice of every (case, joint reading, z or z′) once, then taken row by row
-    combos = np.array([" ".join(t for t in (_READINGS[c][1], said[p][k][1] if k else "") if t)
+    combos = np.array([" ".join(t for t in (_READINGS[c][2], said[p][k][1] if k else "") if t)
                        for c in cases for k in kinds for p in (0, 1)], dtype=object)
     advice = combos[(case * len(kinds) + joint_at) * 2 + prime.astype(int)]
     return pd.DataFrame({

@@ -16,6 +16,7 @@ from roundscore.evaluation.consensus import SENSITIVITY_SIGMA_FACTOR, SENSITIVIT
 from roundscore.evaluation.uncertainty import FLAGGED, LAB_EXPLANATION, RULE, counts
 from roundscore.model.scores import SCORES
 from roundscore.outputs.document import Block, Bullets, Cell, Column, Heading, Paragraph, Section, Table
+from roundscore.outputs.headings import heading
 from roundscore.outputs.frames import frame_table, more_places, number_text
 
 __all__ = ["sensitivity_section", "uncertainty_blocks", "lab_uncertainty_section", "SENSITIVITY_TABLE_MAX_ROWS",
@@ -97,7 +98,7 @@ def lab_uncertainty_section(ev, lab: str, rows: Sequence[dict[str, Any]],
     by_measurand = {rec["measurand"]: rec for rec in scores}
     zeta, en = SCORES["zeta"], SCORES["en"]
     columns = (Column(title="Measurand"), Column(title="Your u", numeric=True),
-               Column(title="Lowest plausible u", numeric=True), Column(title="Highest plausible u", numeric=True),
+               Column(title=heading("u_min"), numeric=True), Column(title=heading("u_max"), numeric=True),
                Column(title=zeta.symbol, numeric=True), Column(title=en.symbol, numeric=True),
                Column(title="Reading"), Column(title="What it asks of you"))
     body = []
