@@ -106,7 +106,7 @@ def part_pipeline(a: argparse.Namespace) -> dict:
     table = read_results(rnd, jobs=a.jobs, progress=progress)
     participants = read_participants(rnd)
     t1 = time.perf_counter()
-    ev = evaluate(rnd, table, participants)
+    ev = evaluate(rnd, table, participants, jobs=a.jobs)
     t2 = time.perf_counter()
     del table
     with atomic_folder(Path(a.out)) as tmp:
@@ -158,7 +158,7 @@ def part_evaluate(a: argparse.Namespace) -> dict:
     table = read_results(rnd, jobs=a.jobs)
     participants = read_participants(rnd)
     t = time.perf_counter()
-    evaluate(rnd, table, participants)
+    evaluate(rnd, table, participants, jobs=a.jobs)
     return {"seconds": time.perf_counter() - t}
 
 

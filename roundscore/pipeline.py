@@ -89,29 +89,32 @@ def load_and_evaluate(round_path: str | Path | Round, *, jobs: int | None = None
     """Read the round file (or take a loaded :class:`Round`), its results, participants and item tables, and
     evaluate it.
 
-    ``jobs`` worker processes read the returned forms (None = all cores);
-    the table does not depend on it, nor on ``cache`` (the input cache the
-    returned forms are taken from where they are unchanged).
+    ``jobs`` worker processes read the returned forms and evaluate the
+    measurands of a large round (None = all cores); neither the table nor the
+    evaluation depends on it, nor on ``cache`` (the input cache the returned
+    forms are taken from where they are unchanged).
     """
     rnd = round_path if isinstance(round_path, Round) else load_round(round_path)
     try:
         inputs = read_inputs(rnd, jobs=jobs, progress=progress, cache=cache)
-        return _evaluation.evaluate(inputs.round, inputs.table, inputs.participants, items=inputs.items)
+        return _evaluation.evaluate(inputs.round, inputs.table, inputs.participants, items=inputs.items,
+                                    jobs=jobs)
     except RoundscoreError as exc:  # the round file's warnings (unknown keys...) still reach the user
         with_warnings(exc, rnd.warnings)
         raise
 
 
-def evaluate(rnd: Round, table: ResultTable, participants: dict[str, Participant] | None = None,
-             ) -> RoundEvaluation:
+def evaluate(rnd: Round, table: ResultTable, participants: dict[str, Participant] | None = None, *,
+             jobs: int | None = 1) -> RoundEvaluation:
     """Evaluate a round from its settings and results (the public :func:`roundscore.evaluate`).
 
     Reads the homogeneity and stability tables the round names
     (:func:`roundscore.intake.items.read_item_tables`), then runs the pure
     evaluation, :func:`roundscore.evaluation.evaluate.evaluate`, which reads
-    no file.
+    no file (``jobs``: worker processes for a large round's measurands, None =
+    all cores; the evaluation does not depend on it).
     """
-    return _evaluation.evaluate(rnd, table, participants, items=read_item_tables(rnd))
+    return _evaluation.evaluate(rnd, table, participants, items=read_item_tables(rnd), jobs=jobs)
 
 
 def write_outputs(ev: RoundEvaluation, folder: Path, *, history=None,

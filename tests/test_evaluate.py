@@ -211,3 +211,57 @@ def test_a_conversion_factor_is_said_in_full_in_the_audit_only_when_the_note_rou
     reasons = {row[1]: row[4] for row in audit}
     assert reasons == {"L1": "entered in mg/lb, converted ×2.20462 to mg/kg (factor 2.20462262185)",
                        "L2": "entered in g/kg, converted ×1000 to mg/kg"}
+
+
+def _frames(ev):
+    return {"scores": ev.scores, "statistics": ev.statistics, "audit": ev.audit, **ev.extras}
+
+
+def test_measurands_evaluated_in_worker_processes_give_the_same_evaluation(demo_round, monkeypatch):
+    """A large round's measurands are evaluated in worker processes (one batch each, back in order): every table,
+    note and detail is the same as evaluated here, one after another (common practice for parallel work: the
+    result must not depend on the number of workers)."""
+    import roundscore.evaluation.evaluate as ev_mod
+
+    rnd = load_round(demo_round)
+    table, parts = read_results(rnd), read_participants(rnd)
+    here = roundscore.evaluate(rnd, table, parts)
+    monkeypatch.setattr(ev_mod, "PARALLEL_MIN_RESULTS", 0)  # the demo is small: make it "large"
+    calls = []
+    real = ev_mod.run_batches
+
+    def spy(fn, items, **kw):
+        calls.append(kw["jobs"])
+        return real(fn, items, **kw)
+
+    monkeypatch.setattr(ev_mod, "run_batches", spy)
+    apart = roundscore.evaluate(rnd, table, parts, jobs=2)
+    assert calls == [2]
+    a, b = _frames(here), _frames(apart)
+    assert a.keys() == b.keys() and len(a) > 5
+    for name in a:
+        pd.testing.assert_frame_equal(a[name], b[name], check_exact=True, obj=name)
+    assert here.stage_notes == apart.stage_notes
+    assert here.details.keys() == apart.details.keys()
+    for n, mr in here.measurands.items():
+        other = apart.measurands[n]
+        assert other.settings is rnd.measurands[n]  # the round's own settings, not a worker's copy
+        assert (other.assigned, other.u_assigned, other.sigma_pt, other.notes) == (
+            mr.assigned, mr.u_assigned, mr.sigma_pt, mr.notes)
+        pd.testing.assert_frame_equal(mr.labs, other.labs, check_exact=True)
+
+
+def test_an_error_in_a_measurand_worker_reaches_the_caller(demo_round, monkeypatch):
+    import roundscore.evaluation.evaluate as ev_mod
+    from roundscore.errors import StatisticsError
+
+    rnd = load_round(demo_round)
+    table, parts = read_results(rnd), read_participants(rnd)
+    monkeypatch.setattr(ev_mod, "PARALLEL_MIN_RESULTS", 0)
+
+    def broken(*args, **kwargs):
+        raise StatisticsError("deliberately broken for the test")
+
+    monkeypatch.setattr(ev_mod, "measurand_part", broken)  # inherited by the forked workers
+    with pytest.raises(StatisticsError, match="deliberately broken"):
+        roundscore.evaluate(rnd, table, parts, jobs=2)

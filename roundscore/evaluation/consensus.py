@@ -21,7 +21,7 @@ calls :func:`estimates` before the measurands are assigned and
 from __future__ import annotations
 
 from dataclasses import dataclass
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 
 import numpy as np
 import pandas as pd
@@ -33,7 +33,8 @@ from roundscore.stats.hampel import QHampelEstimate, hampel, q_method
 from roundscore.stats.kernel import BANDWIDTH_FACTOR, BOOTSTRAP_SAMPLES, KernelMode, kernel_mode
 from roundscore.stats.limits import above
 
-__all__ = ["Alternatives", "estimates", "kernel_for", "assign", "stage", "CONSENSUS_COLUMNS", "REFERENCE_COLUMNS",
+__all__ = ["Alternatives", "estimates", "estimates_for", "replicates", "kernel_for", "assign", "stage",
+           "CONSENSUS_COLUMNS", "REFERENCE_COLUMNS",
            "SENSITIVITY_U_FACTOR", "SENSITIVITY_SIGMA_FACTOR", "REFERENCE_LIMIT"]
 
 #: The sensitivity flag: two estimates differ by more than 2·√(u₁² + u₂²) ...
@@ -58,7 +59,7 @@ class Alternatives:
     kernel_note: str = ""
 
 
-def _replicates(table: ResultTable, names: list[str], labs: list[str]
+def replicates(table: ResultTable, names: list[str], labs: list[str]
                 ) -> tuple[list[np.ndarray], np.ndarray, np.ndarray, np.ndarray]:
     """The numeric results by measurand, each in the table's order: row positions per measurand (of
     ``names``), and for every numeric row its lab's place in ``labs``, that lab's rank in the lab codes'
@@ -82,10 +83,19 @@ def estimates(table: ResultTable, names: list[str], mat: np.ndarray, labs: list[
     ``mat`` holds the lab means used (measurand × lab, NaN = not used), as Algorithm A receives them;
     ``labs`` are its columns' lab codes (every lab in the table is one of them).
     """
-    rows, pos, ranks, values = _replicates(table, names, labs)
-    sds = np.full(len(names), np.nan)
+    return estimates_for(replicates(table, names, labs), names, mat, range(len(names)))
+
+
+def estimates_for(prepared: tuple[list[np.ndarray], np.ndarray, np.ndarray, np.ndarray], names: list[str],
+                  mat: np.ndarray, which: Sequence[int]) -> dict[str, QHampelEstimate | None]:
+    """:func:`estimates` for the measurands at the positions ``which`` of ``names`` (``prepared``: what
+    :func:`replicates` gives for the round). Each measurand's estimate depends on its own results only, so any
+    grouping of the measurands gives the same numbers."""
+    rows, pos, ranks, values = prepared
+    which = list(which)
+    sds = np.full(len(which), np.nan)
     info: list[tuple[int, int, float]] = []
-    for i in range(len(names)):
+    for j, i in enumerate(which):
         used = np.isfinite(mat[i])
         p = int(used.sum())
         mine = rows[i]
@@ -94,19 +104,20 @@ def estimates(table: ResultTable, names: list[str], mat: np.ndarray, labs: list[
             continue
         mine = mine[used[pos[mine]]]
         s, ties = q_method(values[mine], ranks[mine])
-        sds[i] = s
+        sds[j] = s
         info.append((p, int(mine.size), ties))
-    x, sol = hampel(mat, np.where(np.isfinite(sds), sds, 0.0)) if len(names) else (np.zeros(0), np.zeros(0))
+    x, sol = (hampel(mat[which], np.where(np.isfinite(sds), sds, 0.0)) if which
+              else (np.zeros(0), np.zeros(0)))
     out: dict[str, QHampelEstimate | None] = {}
-    for i, n in enumerate(names):
-        p, n_res, ties = info[i]
+    for j, i in enumerate(which):
+        p, n_res, ties = info[j]
         if p < 3:
-            out[n] = None
+            out[names[i]] = None
             continue
-        note = ("every lab gave the same result: s* is zero, so it cannot serve as σ_pt" if sds[i] == 0 else
-                "the Hampel equation has no solution: x* is the median" if sol[i] == 0 else "")
-        out[n] = QHampelEstimate(mean=float(x[i]), sd=float(sds[i]), n=p, n_results=n_res, ties=float(ties),
-                                 solutions=int(sol[i]), note=note)
+        note = ("every lab gave the same result: s* is zero, so it cannot serve as σ_pt" if sds[j] == 0 else
+                "the Hampel equation has no solution: x* is the median" if sol[j] == 0 else "")
+        out[names[i]] = QHampelEstimate(mean=float(x[j]), sd=float(sds[j]), n=p, n_results=n_res,
+                                        ties=float(ties), solutions=int(sol[j]), note=note)
     return out
 
 

@@ -12,6 +12,9 @@ round names and then calls this function.
 
 from __future__ import annotations
 
+import dataclasses
+from collections.abc import Sequence
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
@@ -20,7 +23,7 @@ import pandas as pd
 from roundscore.errors import StatisticsError
 from roundscore.evaluation import consensus
 from roundscore.evaluation.items import apply_item_checks
-from roundscore.evaluation.precision import precision_stage
+from roundscore.evaluation.precision import MeasurandPart, assemble, drop_choice, measurand_part, replicate_rows
 from roundscore.evaluation.qualitative import qualitative_stage
 from roundscore.evaluation.uncertainty import uncertainty_stage
 from roundscore.model.evaluation import (AUDIT_COLUMNS, SCORE_COLUMNS, STATISTICS_COLUMNS, MeasurandResult,
@@ -34,6 +37,7 @@ from roundscore.model.units import UnitError, mass_fraction
 from roundscore.ranges import sigma_relative_problem
 from roundscore.stats import robust, scores as sc, sigma as sg
 from roundscore.stats.limits import within
+from roundscore.support.parallel import resolve_jobs, run_batches, shared
 
 __all__ = ["evaluate", "check_scorable", "U_CHECK_FACTOR", "DEFAULT_K"]
 
@@ -361,15 +365,66 @@ def _conversions(table: ResultTable, audit: list[tuple]) -> dict[str, dict[str, 
     return out
 
 
+#: Numeric results (rows of the result table) from which the measurands are evaluated in worker processes:
+#: below it the pool's start (about 0.1 s) costs more than it saves (measured with benchmarks/scale.py's
+#: ``evaluate`` part; each result costs about 10 µs of per-measurand work).
+PARALLEL_MIN_RESULTS = 40_000
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class _Context:
+    """What every measurand's evaluation reads (inherited by forked workers, never changed)."""
+
+    rnd: Round
+    names: list[str]
+    pre: dict[str, pd.DataFrame]
+    mat: np.ndarray
+    estimates: list
+    items: ItemTables
+    converted: dict[str, dict[str, str]]
+    replicates: tuple
+    by_measurand: dict[str, pd.DataFrame]
+    drop: Any
+
+
+@dataclass(frozen=True, slots=True, kw_only=True)
+class _Done:
+    """One measurand evaluated: its result, the other estimates, its audit rows and precision part (its score
+    rows are built in the parent: a large frame of text, cheaper to build than to send back)."""
+
+    result: MeasurandResult
+    alternatives: consensus.Alternatives
+    audit: list[tuple]
+    precision: MeasurandPart
+
+
+def _measurands(batch: Sequence[int]) -> list[_Done]:
+    """Evaluate the measurands at the positions ``batch`` of the round (in a worker or here)."""
+    c: _Context = shared()
+    q_hampel = consensus.estimates_for(c.replicates, c.names, c.mat, batch)
+    out = []
+    for i in batch:
+        n = c.names[i]
+        audit: list[tuple] = []
+        est = c.estimates[i] if c.estimates[i].n >= 3 else None
+        result, alt = _measurand(c.rnd, c.pre[n], c.rnd.measurands[n], est, audit, dict(c.items.get(n, {})),
+                                 q_hampel[n])
+        out.append(_Done(result=result, alternatives=alt, audit=audit,
+                         precision=measurand_part(c.rnd, result, c.by_measurand.get(n), c.drop)))
+    return out
+
+
 def evaluate(rnd: Round, table: ResultTable, participants: dict[str, Participant] | None = None, *,
-             items: ItemTables | None = None) -> RoundEvaluation:
+             items: ItemTables | None = None, jobs: int | None = 1) -> RoundEvaluation:
     """Evaluate a round: statistics, assigned values, σ_pt and scores for every measurand.
 
     Algorithm A runs once, vectorised over all measurands. ``items`` holds
     the homogeneity and stability tables the round names, as read by
     :func:`roundscore.intake.items.read_item_tables` (measurand → kind →
     table); a round naming a table that is not given raises ValueError.
-    Nothing is read from a file here.
+    Nothing is read from a file here. ``jobs``: worker processes for the
+    measurands of a large round (:data:`PARALLEL_MIN_RESULTS`; None or 0 = all
+    cores; the default 1 evaluates here); the evaluation does not depend on it.
     """
     participants = participants or {}
     items = items or {}
@@ -392,13 +447,25 @@ def evaluate(rnd: Round, table: ResultTable, participants: dict[str, Participant
             keep &= lt["lab"].isin(subset)
         mat[i, keep.to_numpy()] = lt.loc[keep, "mean"].to_numpy()
     estimates = robust.algorithm_a_rows(mat) if len(names) else []
-    q_hampel = consensus.estimates(table, names, mat, all_labs)  # Q/Hampel, on the same labs
+    conversions: list[tuple] = []
+    converted = _conversions(table, conversions)
+    drop = drop_choice(rnd)
+    # Each measurand's own work (Q/Hampel, assigned value, σ_pt, scores, precision, method groups) depends on its
+    # results alone: in worker processes for a large round (one contiguous batch per worker, the results back in
+    # the round's order, so the evaluation is the same for any number of jobs), here for a small one.
+    context = _Context(rnd=rnd, names=names, pre=pre, mat=mat, estimates=estimates, items=items,
+                       converted=converted, replicates=consensus.replicates(table, names, all_labs),
+                       by_measurand=replicate_rows(table), drop=drop)
+    workers = resolve_jobs(jobs) if int(table.frame.shape[0]) >= PARALLEL_MIN_RESULTS else 1
+    workers = max(1, min(workers, len(names)))
+    done = run_batches(_measurands, list(range(len(names))), jobs=workers, shared=context,
+                       batch_size=max(1, -(-len(names) // workers)))
     results, alts = {}, {}
-    for i, n in enumerate(names):
-        est = estimates[i] if estimates[i].n >= 3 else None
-        results[n], alts[n] = _measurand(rnd, pre[n], rnd.measurands[n], est, audit, dict(items.get(n, {})),
-                                         q_hampel[n])
-    converted = _conversions(table, audit)
+    for n, one in zip(names, done):
+        # The settings object of this round (a worker's result carries a copy of it).
+        results[n], alts[n] = dataclasses.replace(one.result, settings=rnd.measurands[n]), one.alternatives
+        audit.extend(one.audit)
+    audit += conversions
     frames = [_score_rows(rnd, results[n], converted.get(n)) for n in names]
     scores = pd.concat(frames, ignore_index=True) if frames else pd.DataFrame(columns=SCORE_COLUMNS)
     stats_rows = []
@@ -424,8 +491,9 @@ def evaluate(rnd: Round, table: ResultTable, participants: dict[str, Participant
     tables, c_notes = consensus.stage(results, alts)
     extras.update(tables)
     stage_notes.update(c_notes)
-    # STAGE: precision (ISO 5725-2) and method groups — adds extras, stage_notes, details and audit rows here.
-    precision_stage(rnd, table, results).merge_into(extras=extras, stage_notes=stage_notes, details=details,
+    # STAGE: precision (ISO 5725-2) and method groups (each measurand's part computed above) — adds extras,
+    # stage_notes, details and audit rows here.
+    assemble([one.precision for one in done]).merge_into(extras=extras, stage_notes=stage_notes, details=details,
                                                     audit=audit)
     # STAGE: the labs' reported uncertainties, and z with ζ (roundscore.evaluation.uncertainty; reads s_R).
     if (unc := uncertainty_stage(results, scores, extras.get("precision"), rnd.words)) is not None:

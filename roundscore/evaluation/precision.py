@@ -84,6 +84,7 @@ if TYPE_CHECKING:
 __all__ = [
     "PRECISION_COLUMNS", "SCREENS_COLUMNS", "MANDEL_COLUMNS", "METHODS_COLUMNS", "DOUBLE_GRUBBS_MAX_LABS",
     "NEEDS_REPLICATES", "MeasurandPrecision", "MethodGroups", "PrecisionStage", "drop_choice", "precision_stage",
+    "MeasurandPart", "measurand_part", "assemble", "replicate_rows",
 ]
 
 #: precision.csv columns (fixed by the issue); extra columns follow.
@@ -515,6 +516,85 @@ def _frame(rows: list[dict], columns: tuple[str, ...], extra: tuple[str, ...]) -
     return pd.DataFrame(rows, columns=list(columns + extra))
 
 
+@dataclass(frozen=True, slots=True, kw_only=True)
+class MeasurandPart:
+    """One measurand's share of the stage (computed on its own, in any process); :func:`assemble` joins them.
+
+    Attributes
+    ----------
+    name : str
+    precision : MeasurandPrecision
+    row : dict
+        Its precision.csv row.
+    steps : list of dict
+        Its screens.csv rows.
+    mandel : DataFrame or None
+        Its mandel.csv rows.
+    methods : MethodGroups or None
+    method_rows : list of dict
+        Its methods.csv rows.
+    notes : tuple of str
+        Its stage notes.
+    audit : tuple of tuple
+        Its audit rows, in the order the stage writes them.
+    """
+
+    name: str
+    precision: MeasurandPrecision
+    row: dict
+    steps: list[dict]
+    mandel: pd.DataFrame | None
+    methods: MethodGroups | None
+    method_rows: list[dict]
+    notes: tuple[str, ...]
+    audit: tuple[tuple, ...]
+
+
+def replicate_rows(table: ResultTable) -> dict[str, pd.DataFrame]:
+    """The numeric replicates of ``table``, one frame per measurand (in the table's order)."""
+    f = table.frame
+    values = f[f["status"].to_numpy() == "value"]
+    return {str(n): g for n, g in values.groupby("measurand", sort=False)}
+
+
+def measurand_part(rnd: Round, mr: MeasurandResult, rows: pd.DataFrame | None, drop: ol.DropChoice
+                   ) -> MeasurandPart:
+    """Precision, screens, Mandel and method groups of one measurand (``rows``: its numeric replicates)."""
+    name = mr.name
+    audit: list[tuple] = []
+    used = mr.labs.loc[mr.labs["used"].to_numpy(bool), "lab"].astype(str).tolist()
+    d, row, steps, notes = _measurand_precision(rnd, name, rows, used, drop, audit)
+    mg, mrows, mnotes = _method_groups(rnd, mr, audit)
+    return MeasurandPart(name=name, precision=d, row=row, steps=steps, mandel=_mandel_frame(name, d), methods=mg,
+                         method_rows=mrows if mg is not None else [], notes=tuple(notes + mnotes),
+                         audit=tuple(audit))
+
+
+def assemble(parts: list[MeasurandPart]) -> PrecisionStage:
+    """The stage's tables, notes, details and audit rows from the measurands' parts (in the round's order)."""
+    details: dict[str, dict[str, Any]] = {"precision": {}, "screens": {}, "mandel": {}, "methods": {}}
+    for part in parts:
+        d = part.precision
+        details["precision"][part.name] = d
+        if d.screening is not None:
+            details["screens"][part.name] = d.screening
+        if d.mandel is not None:
+            details["mandel"][part.name] = d.mandel
+        if part.methods is not None:
+            details["methods"][part.name] = part.methods
+    mandel_cols = list(MANDEL_COLUMNS + _MANDEL_EXTRA)
+    mandel_frames = [part.mandel for part in parts if part.mandel is not None]
+    extras = {
+        "precision": _frame([part.row for part in parts], PRECISION_COLUMNS, _PRECISION_EXTRA),
+        "screens": _frame([r for part in parts for r in part.steps], SCREENS_COLUMNS, _SCREENS_EXTRA),
+        "mandel": (pd.concat(mandel_frames, ignore_index=True)[mandel_cols] if mandel_frames
+                   else pd.DataFrame(columns=mandel_cols)),
+        "methods": _frame([r for part in parts for r in part.method_rows], METHODS_COLUMNS, _METHODS_EXTRA),
+    }
+    return PrecisionStage(extras=extras, stage_notes={part.name: part.notes for part in parts if part.notes},
+                          details=details, audit=tuple(row for part in parts for row in part.audit))
+
+
 def precision_stage(rnd: Round, table: ResultTable, measurands: dict[str, MeasurandResult]) -> PrecisionStage:
     """Run precision, screens, Mandel and method groups for every measurand of the round.
 
@@ -537,38 +617,5 @@ def precision_stage(rnd: Round, table: ResultTable, measurands: dict[str, Measur
         Contradictory ``round.outliers`` / ``round.stragglers`` (see :func:`drop_choice`).
     """
     drop = drop_choice(rnd)
-    f = table.frame
-    values = f[f["status"].to_numpy() == "value"]
-    by_measurand = {str(n): g for n, g in values.groupby("measurand", sort=False)}
-    audit: list[tuple] = []
-    stage_notes: dict[str, tuple[str, ...]] = {}
-    prec_rows, screen_rows, method_rows, mandel_frames = [], [], [], []
-    details: dict[str, dict[str, Any]] = {"precision": {}, "screens": {}, "mandel": {}, "methods": {}}
-    for name, mr in measurands.items():
-        used = mr.labs.loc[mr.labs["used"].to_numpy(bool), "lab"].astype(str).tolist()
-        d, row, steps, notes = _measurand_precision(rnd, name, by_measurand.get(name), used, drop, audit)
-        details["precision"][name] = d
-        if d.screening is not None:
-            details["screens"][name] = d.screening
-        if d.mandel is not None:
-            details["mandel"][name] = d.mandel
-        prec_rows.append(row)
-        screen_rows += steps
-        mf = _mandel_frame(name, d)
-        if mf is not None:
-            mandel_frames.append(mf)
-        mg, mrows, mnotes = _method_groups(rnd, mr, audit)
-        if mg is not None:
-            details["methods"][name] = mg
-            method_rows += mrows
-        if notes or mnotes:
-            stage_notes[name] = tuple(notes + mnotes)
-    mandel_cols = list(MANDEL_COLUMNS + _MANDEL_EXTRA)
-    extras = {
-        "precision": _frame(prec_rows, PRECISION_COLUMNS, _PRECISION_EXTRA),
-        "screens": _frame(screen_rows, SCREENS_COLUMNS, _SCREENS_EXTRA),
-        "mandel": (pd.concat(mandel_frames, ignore_index=True)[mandel_cols] if mandel_frames
-                   else pd.DataFrame(columns=mandel_cols)),
-    }
-    extras["methods"] = _frame(method_rows, METHODS_COLUMNS, _METHODS_EXTRA)
-    return PrecisionStage(extras=extras, stage_notes=stage_notes, details=details, audit=tuple(audit))
+    by_measurand = replicate_rows(table)
+    return assemble([measurand_part(rnd, mr, by_measurand.get(name), drop) for name, mr in measurands.items()])
