@@ -77,7 +77,7 @@ def previous_summary(folder: Path | None, round_id: str) -> dict | None:
                 or not (v.get("decimals") is None or _is_int(v.get("decimals"))):
             return None
     for v in sigs.values():
-        if not isinstance(v, dict) or not all(isinstance(x, str) for x in v.values()):
+        if not isinstance(v, dict) or not set(map(type, v.values())) <= {str}:
             return None
     return data
 
@@ -152,10 +152,11 @@ def compare(previous: dict, ev: RoundEvaluation, summary: dict | None = None) ->
         old_labs, new_labs = before_s.get(name, {}), now_s.get(name, {})
         if name not in before_m:
             continue
-        for lab in sorted(set(old_labs) | set(new_labs)):
-            a, b = old_labs.get(lab, _ABSENT), new_labs.get(lab, _ABSENT)
-            if a != b:
-                signals.append((lab, name, a, b))
+        if old_labs == new_labs:
+            continue
+        differ = [lab for lab in old_labs.keys() | new_labs.keys() if old_labs.get(lab) != new_labs.get(lab)]
+        for lab in sorted(differ):
+            signals.append((lab, name, old_labs.get(lab, _ABSENT), new_labs.get(lab, _ABSENT)))
     return Changes(moved=tuple(moved), signals=tuple(signals), measurands=tuple(notes))
 
 

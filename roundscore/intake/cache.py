@@ -238,7 +238,7 @@ class InputCache:
                 codes = arrays.pop(f"c_{c}")
                 strings = json.loads(_text(arrays.pop(f"s_{c}")))
                 if codes.dtype != np.int32 or codes.shape != (n,) or not isinstance(strings, list) \
-                        or not all(isinstance(s, str) for s in strings):
+                        or not set(map(type, strings)) <= {str}:
                     raise ValueError(f"bad column {c}")
                 if n and (int(codes.min()) < -1 or int(codes.max()) >= len(strings)):
                     raise ValueError(f"bad codes in column {c}")

@@ -14,6 +14,7 @@ import datetime as _dt
 import difflib
 import glob as _glob
 import math
+import os
 import tomllib
 import unicodedata
 from pathlib import Path
@@ -517,10 +518,10 @@ def _find_results(rnd: Round) -> list[Path]:
         return files
     p = folder / target
     if p.is_dir():
-        files = sorted(
-            f for f in p.iterdir()
-            if f.suffix.lower() in (".xlsx", ".xlsm") and not f.name.startswith(("~$", "."))
-        )
+        with os.scandir(p) as entries:  # names only: one Path per workbook, sorted as names (one folder)
+            names = sorted(e.name for e in entries if os.path.splitext(e.name)[1].lower() in (".xlsx", ".xlsm")
+                           and not e.name.startswith(("~$", ".")))
+        files = [p / name for name in names]
         if not files:
             raise RoundFileError.single(f"{shown}: the folder {target!r} holds no .xlsx workbooks")
         return files

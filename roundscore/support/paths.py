@@ -6,7 +6,10 @@ them one by one with :meth:`pathlib.Path.resolve` walks the same folders
 gives the same paths: ``Path(os.path.abspath(p)).resolve()`` of a file is
 its folder's resolved path joined with its name, unless the name itself is a
 symbolic link (then that file is resolved in full), because resolving walks
-a path from its first part to its last. :func:`inside_each` answers "is this
+a path from its first part to its last. Which names of a folder are links is
+read from one listing of the folder (:func:`os.scandir`, whose entries say
+whether they are links without a system call per file on most file
+systems), not from one ``lstat`` per path. :func:`inside_each` answers "is this
 path, resolved, the folder or inside it" (``real == folder or folder in
 real.parents``) for many paths, the same way.
 """
@@ -32,6 +35,30 @@ def _has_parent_part(p: str | os.PathLike[str]) -> bool:
     return ".." in text.split(os.sep)
 
 
+class _Links:
+    """Whether a path's last part is a symbolic link, each folder listed once.
+
+    A name the listing does not hold as spelled (a file missing, or named in another case on a file system that
+    ignores case) is asked about directly (``os.path.islink``), so a link is never missed.
+    """
+
+    def __init__(self) -> None:
+        self._folders: dict[str, tuple[frozenset[str], frozenset[str]] | None] = {}
+
+    def __call__(self, head: str, name: str, full: str) -> bool:
+        if head not in self._folders:
+            try:
+                with os.scandir(head) as entries:
+                    listed = [(e.name, e.is_symlink()) for e in entries]
+                self._folders[head] = (frozenset(n for n, _ in listed), frozenset(n for n, link in listed if link))
+            except OSError:  # not a folder we may list: ask about each path
+                self._folders[head] = None
+        known = self._folders[head]
+        if known is None or name not in known[0]:
+            return os.path.islink(full)
+        return name in known[1]
+
+
 def resolve_each(paths: Iterable[str | os.PathLike[str]], *, lexical: bool = True) -> list[Path]:
     """``Path(os.path.abspath(p)).resolve()`` for each path, in order (the same paths, fewer system calls).
 
@@ -40,13 +67,14 @@ def resolve_each(paths: Iterable[str | os.PathLike[str]], *, lexical: bool = Tru
     """
     folders: dict[str, Path] = {}
     out: list[Path] = []
+    is_link = _Links()
     for p in paths:
         if not lexical and _has_parent_part(p):
             out.append(Path(p).resolve())
             continue
         full = os.path.abspath(p)
         head, name = os.path.split(full)
-        if not name or os.path.islink(full):
+        if not name or is_link(head, name, full):
             out.append(Path(full).resolve())
             continue
         real = folders.get(head)
@@ -69,13 +97,14 @@ def inside_each(paths: Iterable[str | os.PathLike[str]], folder: Path, *, lexica
 
     folders: dict[str, tuple[str, bool]] = {}  # folder as given → (resolved, whether inside)
     out: list[bool] = []
+    is_link = _Links()
     for p in paths:
         if not lexical and _has_parent_part(p):
             out.append(holds(str(Path(p).resolve())))
             continue
         full = os.path.abspath(p)
         head, name = os.path.split(full)
-        if not name or os.path.islink(full):
+        if not name or is_link(head, name, full):
             out.append(holds(str(Path(full).resolve())))
             continue
         known = folders.get(head)
