@@ -46,3 +46,18 @@ def test_inside_each_is_parents(tree, lexical):
         expected = [r == folder or folder in r.parents for r in real]
         assert inside_each(paths, folder, lexical=lexical) == expected
         assert (any(expected) and not all(expected)) or folder == Path("/")  # the cases cover both answers
+
+
+def test_names_shown_relative_to_the_round_folder_are_those_of_relative_to(tree):
+    """The reader's names for many forms (roundscore.intake.readers._shown_all, compared as strings) are those of
+    Path.relative_to on each resolved path, with the path as given outside the round folder."""
+    from types import SimpleNamespace
+
+    from roundscore.intake.readers import _shown, _shown_all
+
+    top, paths = tree
+    rnd = SimpleNamespace(folder=top)
+    texts = [str(p) for p in paths] + [str(top) + "x/L1.xlsx"]  # a sibling whose name starts like the folder's
+    expected = [_shown(rnd, Path(p)) for p in texts]
+    assert _shown_all(rnd, texts) == expected
+    assert "." in expected and any(e.startswith("forms") for e in expected) and expected[-1] == texts[-1]

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import functools
+import os
 from dataclasses import dataclass, replace
 from pathlib import Path
 
@@ -384,12 +385,17 @@ def _shown(rnd: Round, path: Path) -> str:
 
 def _shown_all(rnd: Round, paths: list[str]) -> list[str]:
     """:func:`_shown` of each path (each folder resolved once: support.paths.resolve_each)."""
-    top = _resolved(rnd.folder)
+    top = str(_resolved(rnd.folder))
+    key = os.path.normcase(top)
+    prefix = key.rstrip(os.sep) + os.sep
     out = []
-    for p, real in zip(paths, resolve_each(paths, lexical=False)):
-        try:
-            out.append(str(real.relative_to(top)))
-        except ValueError:
+    for p, real in zip(paths, resolve_each(paths, lexical=False)):  # as Path.relative_to, compared as strings
+        text = str(real)
+        if os.path.normcase(text) == key:
+            out.append(".")
+        elif os.path.normcase(text).startswith(prefix):
+            out.append(text[len(prefix):])
+        else:
             out.append(str(Path(p)))
     return out
 
