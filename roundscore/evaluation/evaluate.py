@@ -59,15 +59,24 @@ def _lab_tables(table: ResultTable, names: list[str], all_labs: list[str]) -> di
     f = table.frame
     keys = ["measurand", "lab"]
     idx = pd.MultiIndex.from_product([names, all_labs], names=keys)
-    vals = f[f["status"] == "value"].groupby(keys, sort=False)["value"]
-    agg = pd.DataFrame({"n_values": vals.count(), "mean": vals.mean(), "sd": vals.std(ddof=1)}).reindex(idx)
-    cens_rows = f[f["status"] == "censored"]
-    cg = cens_rows.groupby(keys, sort=False)
+    # Each row's (measurand, lab) cell as one integer, its place in ``idx`` (the text columns are matched once,
+    # not once per grouping); a measurand the round does not name gets -1 and no cell.
+    cell = (pd.Index(names).get_indexer(f["measurand"].to_numpy(dtype=object)) * len(all_labs)
+            + pd.Index(all_labs).get_indexer(f["lab"].to_numpy(dtype=object)))
+    cell = np.where(cell >= 0, cell, -1)
+    places = np.arange(len(idx))
+    status = f["status"].to_numpy(dtype=object)
+    value_rows = f[status == "value"]
+    vals = value_rows["value"].groupby(cell[status == "value"], sort=False)
+    agg = pd.DataFrame({"n_values": vals.count(), "mean": vals.mean(), "sd": vals.std(ddof=1)}).reindex(places)
+    on = status == "censored"
+    cens_rows = f[on]
+    cg = cens_rows.groupby(cell[on], sort=False)
     cens = pd.DataFrame({
         "n_cens": cg.size(), "relation": cg["relation"].first(),
         "lim_max": cg["limit"].max(), "lim_min": cg["limit"].min(),
-    }).reindex(idx)
-    firsts = f.groupby(keys, sort=False)[["u", "U", "k", "method"]].first().reindex(idx)
+    }).reindex(places)
+    firsts = f[["u", "U", "k", "method"]].groupby(cell, sort=False).first().reindex(places)
     n_val = agg["n_values"].fillna(0).astype(int).to_numpy()
     n_cens = cens["n_cens"].fillna(0).astype(int).to_numpy()
     is_cens = n_cens > 0
@@ -75,10 +84,9 @@ def _lab_tables(table: ResultTable, names: list[str], all_labs: list[str]) -> di
     rel = cens["relation"].to_numpy(dtype=object)
     lim = np.where(rel == ">", cens["lim_min"].to_numpy(float), cens["lim_max"].to_numpy(float))
     status = np.where(is_cens, "censored", np.where(is_val, "value", "not-reported"))
-    text = np.array([
-        (f"{r}{v:g}" if np.isfinite(v) else f"{r}limit not given") if c else ""
-        for c, r, v in zip(is_cens, rel, lim)
-    ], dtype=object)
+    text = np.full(len(idx), "", dtype=object)
+    text[is_cens] = [f"{r}{v:g}" if np.isfinite(v) else f"{r}limit not given"
+                     for r, v in zip(rel[is_cens].tolist(), lim[is_cens].tolist())]
     u = firsts["u"].to_numpy(float)
     U = firsts["U"].to_numpy(float)
     k = firsts["k"].to_numpy(float)
