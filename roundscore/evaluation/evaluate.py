@@ -60,10 +60,11 @@ def _lab_tables(table: ResultTable, names: list[str], all_labs: list[str]) -> di
     keys = ["measurand", "lab"]
     idx = pd.MultiIndex.from_product([names, all_labs], names=keys)
     # Each row's (measurand, lab) cell as one integer, its place in ``idx`` (the text columns are matched once,
-    # not once per grouping); a measurand the round does not name gets -1 and no cell.
-    cell = (pd.Index(names).get_indexer(f["measurand"].to_numpy(dtype=object)) * len(all_labs)
-            + pd.Index(all_labs).get_indexer(f["lab"].to_numpy(dtype=object)))
-    cell = np.where(cell >= 0, cell, -1)
+    # not once per grouping); a measurand the round does not name (or a lab not listed) gets -1 and no cell.
+    meas = pd.Index(names).get_indexer(pd.Index(f["measurand"].to_numpy(dtype=object)))
+    lab = pd.Index(all_labs).get_indexer(pd.Index(f["lab"].to_numpy(dtype=object)))
+    meas, lab = np.asarray(meas, dtype=np.int64), np.asarray(lab, dtype=np.int64)
+    cell = np.where((meas >= 0) & (lab >= 0), meas * len(all_labs) + lab, -1)
     places = np.arange(len(idx))
     status = f["status"].to_numpy(dtype=object)
     value_rows = f[status == "value"]
@@ -252,7 +253,7 @@ def _zero_spread(m: MeasurandSettings, u_pt: float, p: int, audit: list[tuple]) 
     return [ZERO_SPREAD_FINDING]
 
 
-def _score_rows(rnd: Round, mr: MeasurandResult, converted: dict[str, str] | None = None) -> pd.DataFrame:
+def _score_rows(rnd: Round, mr: MeasurandResult, converted: dict[str, str] | None = None) -> dict[str, Any]:
     """Every score of the registry (roundscore.model.scores) for each lab; the round's score gives the signal.
 
     Each row gets its one state (:data:`~roundscore.model.evaluation.ScoreState`). A withheld row has no
@@ -329,15 +330,50 @@ def _score_rows(rnd: Round, mr: MeasurandResult, converted: dict[str, str] | Non
     if ok.any():
         order = pd.Series(value[ok]).rank(method="min").to_numpy()
         ranks[ok] = order
-    return pd.DataFrame({
-        "lab": labs["lab"], "measurand": m.name, "unit": m.unit, "n_replicates": labs["n_replicates"],
-        "result": shown,
-        "assigned": x_pt, "u_assigned": u_pt, "sigma_pt": s_pt,
+    n = len(labs)
+    return {
+        "lab": labs["lab"].to_numpy(dtype=object), "measurand": _same(m.name, n), "unit": _same(m.unit, n),
+        "n_replicates": labs["n_replicates"].to_numpy(), "result": shown,
+        "assigned": np.full(n, x_pt, dtype=float), "u_assigned": np.full(n, u_pt, dtype=float),
+        "sigma_pt": np.full(n, s_pt, dtype=float),
         **values, "d": d, "d_percent": dp,
-        "signal": sig, "note": notes, "score": m.score,
-        "scheme": rnd.scheme, "round": rnd.id, "round_date": rnd.date,
-        "rank": ranks, "n_scored": int(ok.sum()), "method": labs["method"].to_numpy(), "state": state,
-    })
+        "signal": sig, "note": notes, "score": _same(m.score, n),
+        "scheme": _same(rnd.scheme, n), "round": _same(rnd.id, n), "round_date": _same(rnd.date, n),
+        "rank": ranks, "n_scored": np.full(n, int(ok.sum()), dtype=np.int64), "method": labs["method"].to_numpy(),
+        "state": state,
+    }
+
+
+def _same(value: Any, n: int) -> np.ndarray:
+    """One text (or None) for each of ``n`` rows, as an object column."""
+    return np.full(n, value, dtype=object)
+
+
+def _score_frame(parts: list[dict[str, Any]]) -> pd.DataFrame:
+    """The scores table: every measurand's score columns (:func:`_score_rows`), joined column by column.
+
+    One frame is built for the whole round instead of one per measurand and their concatenation, with the same
+    columns and types: a column of numbers in every part stays numbers; a column of objects is text when every
+    part holds only text (or missing values, but not only those), as each part's own frame would have been
+    inferred and then concatenated, else objects (the censored ``result`` texts beside the means, a method column
+    some measurand has no method in).
+    """
+    if not parts:
+        return pd.DataFrame(columns=SCORE_COLUMNS)
+    columns: dict[str, Any] = {}
+    for name in parts[0]:
+        pieces = [part[name] for part in parts]
+        if all(isinstance(x, np.ndarray) and x.dtype.kind != "O" for x in pieces):
+            columns[name] = np.concatenate(pieces)
+            continue
+        if all(isinstance(x, np.ndarray) and x.dtype.kind == "O" for x in pieces):
+            joined = np.concatenate(pieces)
+        else:  # numbers beside lists of objects: each element as the parts hold it (numpy floats)
+            joined = np.empty(sum(len(x) for x in pieces), dtype=object)
+            joined[:] = [v for x in pieces for v in x]
+        text = all(pd.api.types.infer_dtype(x, skipna=True) == "string" for x in pieces)
+        columns[name] = joined if text else pd.Series(joined, dtype=object)
+    return pd.DataFrame(columns)
 
 
 def _joined(parts: list[np.ndarray]) -> np.ndarray:
@@ -474,8 +510,7 @@ def evaluate(rnd: Round, table: ResultTable, participants: dict[str, Participant
         results[n], alts[n] = dataclasses.replace(one.result, settings=rnd.measurands[n]), one.alternatives
         audit.extend(one.audit)
     audit += conversions
-    frames = [_score_rows(rnd, results[n], converted.get(n)) for n in names]
-    scores = pd.concat(frames, ignore_index=True) if frames else pd.DataFrame(columns=SCORE_COLUMNS)
+    scores = _score_frame([_score_rows(rnd, results[n], converted.get(n)) for n in names])
     stats_rows = []
     for n in names:
         r = results[n]
