@@ -115,16 +115,19 @@ def uncertainty_stage(results: dict[str, MeasurandResult], scores: pd.DataFrame,
     """
     if not results or not len(scores):
         return None
-    labs = pd.concat([mr.labs[["lab", "u", "status"]] for mr in results.values()], ignore_index=True)
-    if len(labs) != len(scores) or not np.array_equal(labs["lab"].to_numpy(), scores["lab"].to_numpy()):
+    tables = [mr.labs for mr in results.values()]
+    lab_codes = np.concatenate([t["lab"].to_numpy(dtype=object) for t in tables])
+    if len(lab_codes) != len(scores) or not np.array_equal(lab_codes, scores["lab"].to_numpy(dtype=object)):
         raise AssertionError("the score rows do not follow the measurands' lab tables")  # pragma: no cover
-    u = labs["u"].to_numpy(float)
+    u = np.concatenate([t["u"].to_numpy(float) for t in tables])
+    status = np.concatenate([t["status"].to_numpy(dtype=object) for t in tables])
     meas = scores["measurand"].to_numpy(dtype=object)
     given = pd.Series(np.isfinite(u)).groupby(meas, sort=False).transform("any").to_numpy(bool)
-    keep = given & (labs["status"].to_numpy() == "value") & (scores["state"].to_numpy() != "withheld")
+    keep = given & (status == "value") & (scores["state"].to_numpy() != "withheld")
     if not keep.any():
         return None
-    rows = scores[keep]
+    # only the columns read below (not a copy of every score column)
+    rows = scores.loc[keep, ["lab", "measurand", "u_assigned", "sigma_pt", "score", "z", "z_prime", "zeta"]]
     u = u[keep]
     s_R = np.full(len(rows), np.nan)
     if precision is not None and len(precision) and "s_R" in precision.columns:
