@@ -40,6 +40,7 @@ __all__ = [
     "StatisticsError",
     "ArchiveError",
     "ArchiveConflict",
+    "WorkerError",
 ]
 
 
@@ -277,6 +278,10 @@ class RoundFileError(InputError):
 
 class StatisticsError(ValueError, RoundscoreError):
     """A statistic cannot be computed from the data given (too few values, zero spread...)."""
+
+
+class WorkerError(RoundscoreError):
+    """A worker process ended without giving its results (killed, or out of memory); nothing was kept of it."""
 
 
 class ArchiveError(RoundscoreError):

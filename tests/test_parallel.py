@@ -42,6 +42,12 @@ def _wrong_length(batch):
     return [0]
 
 
+def _dies(batch):
+    if 7 in batch:
+        os.kill(os.getpid(), 9)  # as the out-of-memory killer or a user's kill -9 of a worker would
+    return list(batch)
+
+
 @pytest.mark.parametrize("jobs, expected", [(1, 1), (3, 3)])
 def test_resolve_jobs_number(jobs, expected):
     assert resolve_jobs(jobs) == expected
@@ -94,6 +100,14 @@ def test_worker_error_keeps_type_and_problems(jobs):
         run_batches(_fails, list(range(20)), jobs=jobs, batch_size=2)
     assert info.value.summary == "refused"
     assert info.value.problems[0].message == "bad cell" and info.value.problems[0].row == 7
+
+
+def test_a_worker_that_dies_is_a_clear_error_not_a_traceback():
+    from roundscore.errors import RoundscoreError, WorkerError
+
+    with pytest.raises(WorkerError, match=r"worker process ended before giving its results \(scores\)") as info:
+        run_batches(_dies, list(range(20)), jobs=2, batch_size=2, stage="scores")
+    assert isinstance(info.value, RoundscoreError)  # the command line prints it as an error, exit code 2
 
 
 @pytest.mark.parametrize("jobs", [1, 2])

@@ -502,7 +502,7 @@ def evaluate(rnd: Round, table: ResultTable, participants: dict[str, Participant
                        by_measurand=replicate_rows(table), drop=drop)
     workers = resolve_jobs(jobs) if int(table.frame.shape[0]) >= PARALLEL_MIN_RESULTS else 1
     workers = max(1, min(workers, len(names)))
-    done = run_batches(_measurands, list(range(len(names))), jobs=workers, shared=context,
+    done = run_batches(_measurands, list(range(len(names))), jobs=workers, shared=context, stage="evaluation",
                        batch_size=max(1, -(-len(names) // workers)))
     results, alts = {}, {}
     for n, one in zip(names, done):

@@ -26,10 +26,12 @@ import pickle
 import sys
 import time
 from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
+from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass
 from collections.abc import Callable, Sequence
 from typing import Any, TypeVar
 
+from roundscore.errors import WorkerError
 from roundscore.support.processes import context, worker_started
 
 __all__ = ["resolve_jobs", "run_batches", "shared", "batches", "Progress", "terminal_progress",
@@ -220,6 +222,11 @@ def run_batches(
                 done_items += len(parts[i])
                 if progress:
                     progress(stage, done_items, n)
+    except BrokenProcessPool:
+        _stop(pool)
+        raise WorkerError(f"a worker process ended before giving its results{f' ({stage})' if stage else ''} "
+                          "(killed, or out of memory?); nothing was written by this step: run the command "
+                          "again, or with --jobs 1") from None
     except BaseException:
         _stop(pool)  # an error, ^C or SIGTERM: the workers are ended now, not after their batches
         raise
