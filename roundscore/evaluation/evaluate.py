@@ -497,9 +497,10 @@ def evaluate(rnd: Round, table: ResultTable, participants: dict[str, Participant
     # Each measurand's own work (Q/Hampel, assigned value, σ_pt, scores, precision, method groups) depends on its
     # results alone: in worker processes for a large round (one contiguous batch per worker, the results back in
     # the round's order, so the evaluation is the same for any number of jobs), here for a small one.
+    replicates = consensus.replicates(table, names, all_labs)
     context = _Context(rnd=rnd, names=names, pre=pre, mat=mat, estimates=estimates, items=items,
-                       converted=converted, replicates=consensus.replicates(table, names, all_labs),
-                       by_measurand=replicate_rows(table), drop=drop)
+                       converted=converted, replicates=replicates,
+                       by_measurand=replicate_rows(table, names, replicates[0]), drop=drop)
     workers = resolve_jobs(jobs) if int(table.frame.shape[0]) >= PARALLEL_MIN_RESULTS else 1
     workers = max(1, min(workers, len(names)))
     done = run_batches(_measurands, list(range(len(names))), jobs=workers, shared=context, stage="evaluation",

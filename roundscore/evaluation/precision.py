@@ -550,11 +550,18 @@ class MeasurandPart:
     audit: tuple[tuple, ...]
 
 
-def replicate_rows(table: ResultTable) -> dict[str, pd.DataFrame]:
-    """The numeric replicates of ``table``, one frame per measurand (in the table's order)."""
+def replicate_rows(table: ResultTable, names: list[str] | None = None,
+                   positions: list[np.ndarray] | None = None) -> dict[str, pd.DataFrame]:
+    """The numeric replicates of ``table`` (lab, text, value), one frame per measurand (in the table's order).
+
+    ``positions``: for each of ``names``, its rows' places among the table's numeric rows, in the table's order
+    (as :func:`roundscore.evaluation.consensus.replicates` finds them), so they are not grouped again.
+    """
     f = table.frame
-    values = f[f["status"].to_numpy() == "value"]
-    return {str(n): g for n, g in values.groupby("measurand", sort=False)}
+    values = f.loc[f["status"].to_numpy() == "value", ["measurand", "lab", "text", "value"]]
+    if names is None or positions is None:
+        return {str(n): g for n, g in values.groupby("measurand", sort=False)}
+    return {n: values.iloc[rows] for n, rows in zip(names, positions) if len(rows)}
 
 
 def measurand_part(rnd: Round, mr: MeasurandResult, rows: pd.DataFrame | None, drop: ol.DropChoice
