@@ -47,7 +47,7 @@ U_CHECK_FACTOR = 0.3
 DEFAULT_K = 2.0
 
 
-def _lab_tables(table: ResultTable, names: list[str], all_labs: list[str]) -> dict[str, pd.DataFrame]:
+def _lab_tables(f: pd.DataFrame, names: list[str], all_labs: list[str]) -> dict[str, pd.DataFrame]:
     """Per-lab summary of each measurand's replicates, for every lab (vectorised over the whole table).
 
     A lab's result is the mean of its numeric replicates. If any replicate is
@@ -55,8 +55,8 @@ def _lab_tables(table: ResultTable, names: list[str], all_labs: list[str]) -> di
     or the smallest ">" limit), with a reason when numeric replicates were
     also given. The lab's u, U, k and method are the first given for that
     lab and measurand; u = U/k (k = 2 when not given) when only U is.
+    ``f`` holds the result table's rows (of these measurands, or more).
     """
-    f = table.frame
     keys = ["measurand", "lab"]
     idx = pd.MultiIndex.from_product([names, all_labs], names=keys)
     # Each row's (measurand, lab) cell as one integer, its place in ``idx`` (the text columns are matched once,
@@ -417,13 +417,14 @@ PARALLEL_MIN_RESULTS = 40_000
 
 @dataclass(frozen=True, slots=True, kw_only=True)
 class _Context:
-    """What every measurand's evaluation reads (inherited by forked workers, never changed)."""
+    """What every measurand's evaluation reads (inherited by forked workers, never changed): the result table's
+    rows (``frame``), every lab code in order, the item tables, the unit-conversion notes, the numeric results
+    by measurand (:func:`roundscore.evaluation.consensus.replicates`) and their replicate frames."""
 
     rnd: Round
     names: list[str]
-    pre: dict[str, pd.DataFrame]
-    mat: np.ndarray
-    estimates: list
+    frame: pd.DataFrame
+    all_labs: list[str]
     items: ItemTables
     converted: dict[str, dict[str, str]]
     replicates: tuple
@@ -445,13 +446,30 @@ class _Done:
 def _measurands(batch: Sequence[int]) -> list[_Done]:
     """Evaluate the measurands at the positions ``batch`` of the round (in a worker or here)."""
     c: _Context = shared()
-    q_hampel = consensus.estimates_for(c.replicates, c.names, c.mat, batch)
+    names = [c.names[i] for i in batch]
+    f = c.frame
+    pre = _lab_tables(f[f["measurand"].isin(names).to_numpy()], names, c.all_labs)
+    # The lab means used, measurand × lab, for one vectorised Algorithm A call (each row on its own: any grouping
+    # of the measurands gives the same numbers).
+    excluded = {(e.lab, e.measurand) for e in c.rnd.exclusions}
+    mat = np.full((len(names), len(c.all_labs)), np.nan)
+    for i, n in enumerate(names):
+        lt = pre[n]
+        gone = [lab for lab, which in excluded if which is None or which == n]  # the coordinator's exclusions
+        keep = (lt["status"] == "value") & ~lt["lab"].isin(gone)
+        subset = c.rnd.measurands[n].consensus_labs
+        if subset is not None:
+            keep &= lt["lab"].isin(subset)
+        mat[i, keep.to_numpy()] = lt.loc[keep, "mean"].to_numpy()
+    estimates = robust.algorithm_a_rows(mat) if len(names) else []
+    rows, pos, ranks, values = c.replicates
+    q_hampel = consensus.estimates_for(([rows[i] for i in batch], pos, ranks, values), names, mat,
+                                       range(len(names)))
     out = []
-    for i in batch:
-        n = c.names[i]
+    for i, n in enumerate(names):
         audit: list[tuple] = []
-        est = c.estimates[i] if c.estimates[i].n >= 3 else None
-        result, alt = _measurand(c.rnd, c.pre[n], c.rnd.measurands[n], est, audit, dict(c.items.get(n, {})),
+        est = estimates[i] if estimates[i].n >= 3 else None
+        result, alt = _measurand(c.rnd, pre[n], c.rnd.measurands[n], est, audit, dict(c.items.get(n, {})),
                                  q_hampel[n])
         out.append(_Done(result=result, alternatives=alt, audit=audit,
                          precision=measurand_part(c.rnd, result, c.by_measurand.get(n), c.drop)))
@@ -478,19 +496,6 @@ def evaluate(rnd: Round, table: ResultTable, participants: dict[str, Participant
     # what each returned form says of the lab's sample (intake/forms.py form_receipt), as the lab gave it
     audit += [("", lab, "import", "sample receipt", f"{r.text()} ({r.source})") for lab, r in table.receipts.items()]
     names = list(rnd.measurands)
-    # Lab means per measurand, for one vectorised Algorithm A call.
-    pre = _lab_tables(table, names, all_labs)
-    excluded = {(e.lab, e.measurand) for e in rnd.exclusions}
-    mat = np.full((len(names), len(all_labs)), np.nan)
-    for i, n in enumerate(names):
-        lt = pre[n]
-        gone = [lab for lab, which in excluded if which is None or which == n]  # the coordinator's exclusions
-        keep = (lt["status"] == "value") & ~lt["lab"].isin(gone)
-        subset = rnd.measurands[n].consensus_labs
-        if subset is not None:
-            keep &= lt["lab"].isin(subset)
-        mat[i, keep.to_numpy()] = lt.loc[keep, "mean"].to_numpy()
-    estimates = robust.algorithm_a_rows(mat) if len(names) else []
     conversions: list[tuple] = []
     converted = _conversions(table, conversions)
     drop = drop_choice(rnd)
@@ -498,7 +503,7 @@ def evaluate(rnd: Round, table: ResultTable, participants: dict[str, Participant
     # results alone: in worker processes for a large round (one contiguous batch per worker, the results back in
     # the round's order, so the evaluation is the same for any number of jobs), here for a small one.
     replicates = consensus.replicates(table, names, all_labs)
-    context = _Context(rnd=rnd, names=names, pre=pre, mat=mat, estimates=estimates, items=items,
+    context = _Context(rnd=rnd, names=names, frame=table.frame, all_labs=all_labs, items=items,
                        converted=converted, replicates=replicates,
                        by_measurand=replicate_rows(table, names, replicates[0]), drop=drop)
     workers = resolve_jobs(jobs) if int(table.frame.shape[0]) >= PARALLEL_MIN_RESULTS else 1
