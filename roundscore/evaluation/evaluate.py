@@ -98,8 +98,10 @@ def _lab_tables(f: pd.DataFrame, names: list[str], all_labs: list[str]) -> dict[
         "n_replicates": np.where(is_cens, n_val + n_cens, np.where(is_val, n_val, 0)),
         "mean": np.where(is_val, agg["mean"].to_numpy(float), np.nan),
         "sd": np.where(is_val, agg["sd"].to_numpy(float), np.nan),
-        "status": status, "relation": np.where(is_cens, rel, None), "limit": np.where(is_cens, lim, np.nan),  # type: ignore[call-overload]  # numpy's stubs refuse the None fill
-        "u": u, "U": U, "k": k, "method": firsts["method"].to_numpy(dtype=object),
+        # Types fixed by the table, not inferred from the values: the same for any batch of measurands.
+        "status": status, "relation": pd.Series(np.where(is_cens, rel, None), dtype=object),  # type: ignore[call-overload, arg-type]  # numpy's stubs refuse the None fill
+        "limit": np.where(is_cens, lim, np.nan),
+        "u": u, "U": U, "k": k, "method": firsts["method"].array,
         "result_text": text, "used": False, "reason": reason,
     })
     if not len(out):
