@@ -71,6 +71,11 @@ _BAND_PAIRS_PER_RESULT = 4
 #: Bisection steps on x before listing whatever band is left (each halves the band; 200 is far more than
 #: the 64 or so that float resolution allows).
 _MAX_BISECTIONS = 200
+#: The fixed sample of between-lab differences that guesses where the quantile lies (a guess only: the
+#: bracket it suggests is checked by H1), its seed, and the step in H1 over which it estimates the slope.
+_SAMPLE_PAIRS = 4096
+_SAMPLE_SEED = 13528
+_SAMPLE_STEP = 0.02
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -117,6 +122,15 @@ def hampel_psi(q: np.ndarray) -> np.ndarray:
     return np.where(aq <= HAMPEL_A, q, np.sign(q) * mid)
 
 
+def _stable_argsort(x: np.ndarray) -> np.ndarray:
+    """np.argsort(x, kind="stable"), by the faster unstable sort when x has no equal values (the same order)."""
+    order = np.argsort(x)
+    xs = x[order]
+    if (xs[1:] == xs[:-1]).any():
+        return np.argsort(x, kind="stable")
+    return order
+
+
 class _Pairs:
     """The between-lab differences of one set of results, counted without forming them.
 
@@ -125,7 +139,7 @@ class _Pairs:
 
     def __init__(self, values: np.ndarray, labs: np.ndarray, tol: float) -> None:
         self.tol = tol
-        order = np.argsort(values, kind="stable")
+        order = _stable_argsort(values)
         self.v = values[order]
         self.lab = labs[order]
         counts = np.bincount(labs)
@@ -137,7 +151,9 @@ class _Pairs:
         self.total = p * (p - 1) / 2.0  # Σ_{i<j} 1/(n_i n_j) · n_i n_j
         # The pairs of one lab's own results (positions a < b in sorted order), counted and subtracted:
         # the k-th and m-th result of every lab with more than m results, for each k < m.
-        by_lab = np.argsort(self.lab, kind="stable")
+        # (a stable sort of small integers is a radix sort in numpy: the codes fit 16 bits in most rounds)
+        small = self.lab.astype(np.int16) if counts.size < 2 ** 15 else self.lab
+        by_lab = np.argsort(small, kind="stable")
         starts = np.concatenate([[0], np.cumsum(counts)[:-1]])
         same_a, same_b = [np.zeros(0, dtype=int)], [np.zeros(0, dtype=int)]
         for m in range(1, self.most):
@@ -209,6 +225,13 @@ class _Pairs:
             s -= float(self.sw[d_ok].sum())
         return s / self.total
 
+    def mid_jump(self, x: float) -> float:
+        """½(H1(x) + H1(x−)); H1(x) itself (one count) where no between-lab difference equals x."""
+        r = self._upto(x, "right")
+        if self._upto(x, "left") is r and not (self.sa.size and (self.v[self.sb] == self.v[self.sa] + x).any()):
+            return self.H(x)
+        return 0.5 * (self.H(x) + self.H(x, strict=True))
+
     def count(self, lo: float, hi: float) -> int:
         """Pairs (any labs) with lo < d ≤ hi: an upper bound of the band's size."""
         r_hi = np.maximum(self._upto(hi, "right"), self.idx)
@@ -253,26 +276,91 @@ class _Pairs:
         return best if np.isfinite(best) else x
 
 
-def _g1_inverse(pairs: _Pairs, target: float, h0: float) -> float:
-    """G1⁻¹(target): the point where the polygon through (0, 0) and the mid-jumps of H1 reaches ``target``."""
+def _sample_guess(pairs: _Pairs, target: float) -> tuple[float, float, float]:
+    """A guess of G1⁻¹(target), of dx/dH1 there and of the guess's error in H1 (4 standard errors), from a
+    fixed sample of between-lab differences.
+
+    Only a starting point: :func:`_bracket` checks every point it keeps by H1 itself.
+    """
+    v, lab, w = pairs.v, pairs.lab, pairs.w
+    rng = np.random.default_rng(_SAMPLE_SEED)
+    a = rng.integers(0, v.size, _SAMPLE_PAIRS)
+    b = rng.integers(0, v.size, _SAMPLE_PAIRS)
+    keep = lab[a] != lab[b]
+    a, b = a[keep], b[keep]
+    if a.size < 2:
+        return np.nan, np.nan, np.nan
+    d = np.abs(v[b] - v[a])
+    order = np.argsort(d)
+    d = d[order]
+    ww = (w[a] * w[b])[order]
+    cdf = np.cumsum(ww)
+    cdf /= cdf[-1]
+    x = np.interp([target - _SAMPLE_STEP, target, target + _SAMPLE_STEP], cdf, d)
+    effective = cdf.size if pairs.most == 1 else float(ww.sum() ** 2 / np.dot(ww, ww))
+    spread = 4.0 * np.sqrt(target * (1.0 - target) / effective)
+    return float(x[1]), float((x[2] - x[0]) / (2.0 * _SAMPLE_STEP)), float(spread)
+
+
+def _bracket(pairs: _Pairs, target: float) -> tuple[float, float]:
+    """lo < hi with mid-jump(lo) ≤ target < mid-jump(hi) and few differences between them, for :func:`_g1_inverse`.
+
+    Each point kept is checked by H1 (the bracket is exact whatever the guesses). Points are placed a
+    little either side of a secant estimate of G1⁻¹(target) (from a fixed sample of differences at first,
+    then from the values of H1 already found), so that the band between them holds about half of what
+    may be listed; a round that does not halve the bracket is followed by a bisection step, so the search
+    never does worse than bisection. It stops when the band is small enough to list, when the bracket holds
+    at most one distinct difference (a tie that alone is larger than the limit), or at float resolution.
+    """
     tol = pairs.tol
     lo, hi = tol, float(pairs.v[-1] - pairs.v[0])
-
-    def mid_jump(x: float) -> float:  # ½(H1(x) + H1(x−)); equals H1(x) away from a jump
-        return 0.5 * (pairs.H(x) + pairs.H(x, strict=True))
-
     limit = _BAND_PAIRS_PER_RESULT * pairs.v.size
+    n = pairs.v.size
+    per_h = 0.5 * n * (n - 1)  # pairs counted by count() per unit of H1, about (equal weights: exactly)
+    est, slope, spread = _sample_guess(pairs, target)
+    seen: list[tuple[float, float]] = []  # (x, mid-jump(x)) evaluated
     for _ in range(_MAX_BISECTIONS):
         if hi - lo <= tol or pairs.count(lo, hi) <= limit:
             break
-        mid = 0.5 * (lo + hi)
-        if mid_jump(mid) <= target:
-            lo = mid
-        else:
-            hi = mid
+        width = hi - lo
+        # The secant estimate through the two evaluated points nearest the target (the sample's guess at first).
+        if len(seen) >= 2:
+            (x0, g0), (x1, g1) = sorted(seen, key=lambda e: abs(e[1] - target))[:2]
+            if g1 != g0 and x1 != x0:
+                slope = (x1 - x0) / (g1 - g0)
+                est = x0 + (target - g0) * slope
+        if np.isfinite(est) and np.isfinite(slope) and slope > 0:
+            half = max(0.25 * limit / per_h, 0.0 if seen else spread) * slope
+            for x in (est - half, est + half):
+                if lo < x < hi:
+                    g = pairs.mid_jump(x)
+                    seen.append((x, g))
+                    if g <= target:
+                        lo = x
+                    else:
+                        hi = x
+        if hi - lo > 0.5 * width:  # the estimate did not halve the bracket: bisect as well
+            if pairs.node_above(lo) >= pairs.node_at_or_below(hi):
+                break  # one distinct difference (or tie group) in (lo, hi]: nothing to narrow
+            mid = 0.5 * (lo + hi)
+            g = pairs.mid_jump(mid)
+            seen.append((mid, g))
+            if g <= target:
+                lo = mid
+            else:
+                hi = mid
+    return lo, hi
+
+
+def _g1_inverse(pairs: _Pairs, target: float, h0: float) -> float:
+    """G1⁻¹(target): the point where the polygon through (0, 0) and the mid-jumps of H1 reaches ``target``."""
+    tol = pairs.tol
+    lo, hi = _bracket(pairs, target)
     # Every jump of G1 that can bound the target lies between the last node ≤ lo and the first node > hi;
     # the band is widened by the tie tolerance at both ends so no group of tied differences is cut.
-    below = pairs.node_at_or_below(lo - tol)
+    below = pairs.node_at_or_below(lo)  # (lo's count is kept: no search) the same node unless one lies within tol
+    if below > lo - tol:
+        below = pairs.node_at_or_below(lo - tol)
     above = pairs.node_above(pairs.node_above(hi) + tol)
     if below > tol:
         d, w = pairs.band(below, above, with_lo=True)
@@ -280,7 +368,7 @@ def _g1_inverse(pairs: _Pairs, target: float, h0: float) -> float:
     else:
         d, w = pairs.band(tol, above)
         base = h0
-    order = np.argsort(d, kind="stable")
+    order = _stable_argsort(d)
     d, w = d[order], w[order]
     # Differences within the tie tolerance are one jump of H1 (see q_method).
     start = np.flatnonzero(np.concatenate([[True], np.diff(d) > tol])) if d.size else np.zeros(0, dtype=int)
