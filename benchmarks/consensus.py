@@ -28,7 +28,8 @@ import sys
 import time
 from pathlib import Path
 from types import ModuleType
-from typing import Any, Callable
+from collections.abc import Callable
+from typing import Any
 
 import numpy as np
 
@@ -73,12 +74,13 @@ def compare(results: np.ndarray, labs: np.ndarray, means: np.ndarray, hs: np.nda
     old_q = _module_at(against, "roundscore/stats/hampel.py", "_bench_old_hampel").q_method
     old_k = _module_at(against, "roundscore/stats/kernel.py", "_bench_old_kernel").kernel_mode
     m = len(results)
-    new_qs: list[float] = []
-    old_qs: list[float] = []
+    new_qs: list[Any] = []
+    old_qs: list[Any] = []
     new_ks: list[Any] = []
     old_ks: list[Any] = []
 
-    def run(fn: Callable[..., Any], out: list[Any], args: Callable[[int], tuple[Any, ...]], **kw: Any) -> Callable[[], None]:
+    def run(fn: Callable[..., Any], out: list[Any], args: Callable[[int], tuple[Any, ...]],
+            **kw: Any) -> Callable[[], None]:
         def go() -> None:
             out[:] = [fn(*args(k), **kw) for k in range(m)]
         return go
@@ -96,10 +98,11 @@ def compare(results: np.ndarray, labs: np.ndarray, means: np.ndarray, hs: np.nda
         if len(a.modes) == len(b.modes):
             k_diff = max(k_diff, float(np.max(np.abs(np.subtract(a.modes, b.modes)))) / h)
     print(f"against {against}, best of {repeat}, {m} measurands")
-    print(f"  Q method            old {t['q old']:7.3f} s  new {t['q new']:7.3f} s  old/new {t['q old'] / t['q new']:5.2f}"
-          f"   largest |Δs*|/s* {q_diff:.1e}")
-    print(f"  kernel mode (no SE) old {t['k old']:7.3f} s  new {t['k new']:7.3f} s  old/new {t['k old'] / t['k new']:5.2f}"
-          f"   largest |Δmode|/h {k_diff:.1e}, same modes {'yes' if same_modes else 'NO'}")
+    print(f"  Q method            old {t['q old']:7.3f} s  new {t['q new']:7.3f} s"
+          f"  old/new {t['q old'] / t['q new']:5.2f}   largest |Δs*|/s* {q_diff:.1e}")
+    print(f"  kernel mode (no SE) old {t['k old']:7.3f} s  new {t['k new']:7.3f} s"
+          f"  old/new {t['k old'] / t['k new']:5.2f}   largest |Δmode|/h {k_diff:.1e},"
+          f" same modes {'yes' if same_modes else 'NO'}")
 
 
 def main() -> None:
