@@ -252,10 +252,10 @@ class _Pairs:
         a, b = a[keep], b[keep]
         return self.v[b] - self.v[a], self.w[a] * self.w[b] / self.total
 
-    def node_at_or_below(self, x: float) -> float:
-        """The largest between-lab difference ≤ x (0.0 when there is none above 0)."""
+    def node_at_or_below(self, x: float, strict: bool = False) -> float:
+        """The largest between-lab difference ≤ x (< x ``strict``; 0.0 when there is none above 0)."""
         best = 0.0
-        r = self._upto(x, "right")
+        r = self._upto(x, "left" if strict else "right")
         for back in range(self.most + 1):  # skip at most a lab's other results
             b = r - back
             ok = (b > self.idx) & (self.lab[np.maximum(b, 0)] != self.lab)
@@ -361,7 +361,16 @@ def _g1_inverse(pairs: _Pairs, target: float, h0: float) -> float:
     below = pairs.node_at_or_below(lo)  # (lo's count is kept: no search) the same node unless one lies within tol
     if below > lo - tol:
         below = pairs.node_at_or_below(lo - tol)
-    above = pairs.node_above(pairs.node_above(hi) + tol)
+    # ... and from the first of its tie group: a node within tol below it is the same jump of H1 (the
+    # listed band must hold the whole group). The count below ``below`` is the one the band takes anyway.
+    while below > tol:
+        prev = pairs.node_at_or_below(below, strict=True)
+        if below - prev > tol:
+            break
+        below = prev
+    # ``above`` begins the first tie group past hi's; the band runs to tol beyond it, so the group is whole
+    # too (its mid-jump closes the segment that holds the target).
+    above = pairs.node_above(pairs.node_above(hi) + tol) + tol
     if below > tol:
         d, w = pairs.band(below, above, with_lo=True)
         base = pairs.H(below, strict=True)
