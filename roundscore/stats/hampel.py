@@ -71,6 +71,8 @@ _BAND_PAIRS_PER_RESULT = 4
 #: Bisection steps on x before listing whatever band is left (each halves the band; 200 is far more than
 #: the 64 or so that float resolution allows).
 _MAX_BISECTIONS = 200
+#: Steps of one position each that a count near a kept one may take before it is searched instead.
+_WALK_STEPS = 6
 #: The fixed sample of between-lab differences that guesses where the quantile lies (a guess only: the
 #: bracket it suggests is checked by H1), its seed, and the step in H1 over which it estimates the slope.
 _SAMPLE_PAIRS = 4096
@@ -164,9 +166,13 @@ class _Pairs:
                 same_b.append(np.maximum(a, b))
         self.sa, self.sb = np.concatenate(same_a), np.concatenate(same_b)
         self.sw = self.w[self.sa] * self.w[self.sb]
+        self.vsa, self.vsb = self.v[self.sa], self.v[self.sb]
         # _upto's answers by (x, side): the bisection asks for the same ends again (count(lo, hi)), and
         # H(x) and H(x−) share one search. The arrays are never changed in place by their users.
         self._found: dict[tuple[float, str], tuple[np.ndarray, bool]] = {}
+        #: Whether a new count may start from the nearest kept one (:meth:`_walk`): set once the band is
+        #: narrow, where the ends move by a position or two.
+        self.walk = False
 
     def _upto(self, x: float, side: str) -> np.ndarray:
         """For each result a: the last position b with v[b] − v[a] ≤ x ('right') or < x ('left').
@@ -187,10 +193,36 @@ class _Pairs:
                 at = np.maximum(r, 0)
                 if not ((r >= 0) & (self.v[at] - self.v == x)).any():
                     got = right
+            if got is None and self.walk:
+                got = self._walk(x, side)
             if got is None:
                 got = self._search(x, side)
             self._found[key] = got
         return got[0]
+
+    def _walk(self, x: float, side: str) -> tuple[np.ndarray, bool] | None:
+        """:meth:`_upto` from the kept answer at the nearest x, one position at a time (the last position
+        with a difference inside is one and the same however it is reached: fl(v[b] − v[a]) grows with b);
+        None when that takes more than a few steps (then it is searched)."""
+        kept = [(abs(x0 - x), got) for (x0, _), got in self._found.items() if got[1]]
+        if not kept:
+            return None
+        r = min(kept, key=lambda e: e[0])[1][0].copy()
+        v, last = self.v, self.v.size - 1
+        inside = (lambda d: d <= x) if side == "right" else (lambda d: d < x)
+        for _ in range(_WALK_STEPS):
+            up = (r < last) & inside(v[np.minimum(r + 1, last)] - v)
+            if not up.any():
+                break
+            r[up] += 1
+        else:
+            return None
+        for _ in range(_WALK_STEPS):
+            down = (r >= 0) & ~inside(v[np.maximum(r, 0)] - v)
+            if not down.any():
+                return r, True
+            r[down] -= 1
+        return None
 
     def _search(self, x: float, side: str) -> tuple[np.ndarray, bool]:
         """:meth:`_upto` searched: the positions, and whether both corrections settled (they always do in
@@ -221,14 +253,14 @@ class _Pairs:
         r = np.maximum(r, self.idx)
         s = float(np.dot(self.w, self.cw[r + 1] - self.cw[self.idx + 1]))
         if self.sa.size:
-            d_ok = (self.v[self.sb] < self.v[self.sa] + x) if strict else (self.v[self.sb] <= self.v[self.sa] + x)
+            d_ok = (self.vsb < self.vsa + x) if strict else (self.vsb <= self.vsa + x)
             s -= float(self.sw[d_ok].sum())
         return s / self.total
 
     def mid_jump(self, x: float) -> float:
         """½(H1(x) + H1(x−)); H1(x) itself (one count) where no between-lab difference equals x."""
         r = self._upto(x, "right")
-        if self._upto(x, "left") is r and not (self.sa.size and (self.v[self.sb] == self.v[self.sa] + x).any()):
+        if self._upto(x, "left") is r and not (self.sa.size and (self.vsb == self.vsa + x).any()):
             return self.H(x)
         return 0.5 * (self.H(x) + self.H(x, strict=True))
 
@@ -254,26 +286,33 @@ class _Pairs:
 
     def node_at_or_below(self, x: float, strict: bool = False) -> float:
         """The largest between-lab difference ≤ x (< x ``strict``; 0.0 when there is none above 0)."""
-        best = 0.0
-        r = self._upto(x, "left" if strict else "right")
-        for back in range(self.most + 1):  # skip at most a lab's other results
-            b = r - back
-            ok = (b > self.idx) & (self.lab[np.maximum(b, 0)] != self.lab)
-            if ok.any():
-                best = max(best, float(np.max(self.v[b[ok]] - self.v[self.idx[ok]])))
-        return best
+        return max(0.0, self._nearest_other(self._upto(x, "left" if strict else "right"), -1))
 
     def node_above(self, x: float) -> float:
         """The smallest between-lab difference > x (x itself when there is none)."""
-        best = np.inf
-        r = self._upto(x, "right") + 1
-        for ahead in range(self.most + 1):
-            b = r + ahead
-            ok = b < self.v.size
-            ok[ok] &= self.lab[b[ok]] != self.lab[ok]
-            if ok.any():
-                best = min(best, float(np.min(self.v[b[ok]] - self.v[self.idx[ok]])))
+        best = -self._nearest_other(self._upto(x, "right") + 1, 1)
         return best if np.isfinite(best) else x
+
+    def _nearest_other(self, r: np.ndarray, step: int) -> float:
+        """From position r[a] for each result a, stepping by ``step`` (−1 down, +1 up) past the results of
+        a's own lab: the first result b of another lab (b > a, b < N), and the largest v[b] − v[a] going
+        down (the smallest going up, negated); −inf when there is none. v[b] − v[a] is monotone in b, so
+        the first such b on each row is that row's extreme; a lab has ``most`` results at most."""
+        v, lab, n = self.v, self.lab, self.v.size
+        rows = self.idx
+        best = -np.inf
+        for _ in range(self.most + 1):
+            ok = (r > rows) & (r < n)
+            at = np.where(ok, r, 0)
+            other = ok & (lab[at] != lab[rows])
+            if other.any():
+                d = v[at[other]] - v[rows[other]]
+                best = max(best, float(d.max() if step < 0 else -d.min()))
+            again = ok & ~other  # the same lab: one more step on these rows only
+            rows, r = rows[again], r[again] + step
+            if not rows.size:
+                break
+        return best
 
 
 def _sample_guess(pairs: _Pairs, target: float) -> tuple[float, float, float]:
@@ -356,6 +395,7 @@ def _g1_inverse(pairs: _Pairs, target: float, h0: float) -> float:
     """G1⁻¹(target): the point where the polygon through (0, 0) and the mid-jumps of H1 reaches ``target``."""
     tol = pairs.tol
     lo, hi = _bracket(pairs, target)
+    pairs.walk = True
     # Every jump of G1 that can bound the target lies between the last node ≤ lo and the first node > hi;
     # the band is widened by the tie tolerance at both ends so no group of tied differences is cut.
     below = pairs.node_at_or_below(lo)  # (lo's count is kept: no search) the same node unless one lies within tol
