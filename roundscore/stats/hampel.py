@@ -148,6 +148,7 @@ class _Pairs:
         self.w = 1.0 / counts[self.lab]
         self.cw = np.concatenate([[0.0], np.cumsum(self.w)])  # prefix sums of the weights
         self.most = int(counts.max())
+        self.equal = bool(counts.min() == self.most)  # every lab has as many results
         self.idx = np.arange(self.v.size)
         p = int(np.count_nonzero(counts))
         self.total = p * (p - 1) / 2.0  # Σ_{i<j} 1/(n_i n_j) · n_i n_j
@@ -173,6 +174,10 @@ class _Pairs:
         #: Whether a new count may start from the nearest kept one (:meth:`_walk`): set once the band is
         #: narrow, where the ends move by a position or two.
         self.walk = False
+        # No two results within tol of each other (fl(v[b] − v[a]) grows with b): the count up to tol is
+        # each result itself, known without a search.
+        if self.v.size < 2 or float(np.min(np.diff(self.v))) > tol:
+            self._found[(tol, "right")] = (self.idx.copy(), True)
 
     def _upto(self, x: float, side: str) -> np.ndarray:
         """For each result a: the last position b with v[b] − v[a] ≤ x ('right') or < x ('left').
@@ -330,13 +335,18 @@ def _sample_guess(pairs: _Pairs, target: float) -> tuple[float, float, float]:
     if a.size < 2:
         return np.nan, np.nan, np.nan
     d = np.abs(v[b] - v[a])
-    order = np.argsort(d)
-    d = d[order]
-    ww = (w[a] * w[b])[order]
-    cdf = np.cumsum(ww)
-    cdf /= cdf[-1]
+    if pairs.equal:  # every pair weighs the same
+        d.sort()
+        cdf = np.arange(1, d.size + 1) / d.size
+        effective = float(d.size)
+    else:
+        order = np.argsort(d)
+        d = d[order]
+        ww = (w[a] * w[b])[order]
+        cdf = np.cumsum(ww)
+        cdf /= cdf[-1]
+        effective = float(ww.sum() ** 2 / np.dot(ww, ww))
     x = np.interp([target - _SAMPLE_STEP, target, target + _SAMPLE_STEP], cdf, d)
-    effective = cdf.size if pairs.most == 1 else float(ww.sum() ** 2 / np.dot(ww, ww))
     spread = 4.0 * np.sqrt(target * (1.0 - target) / effective)
     return float(x[1]), float((x[2] - x[0]) / (2.0 * _SAMPLE_STEP)), float(spread)
 
