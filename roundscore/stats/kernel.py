@@ -51,6 +51,9 @@ GRID_MAX = 4001
 _GRID_CELLS = 4_000_000
 _SHIFT_TOL = 1e-12
 _SHIFT_MAXITER = 1000
+#: Mean shift hands over to Newton's steps once no seed moves by more than this share of h (a few
+#: quadratic steps then reach _SHIFT_TOL).
+_SHIFT_SETTLE = 1e-3
 _BOOT_SHIFTS = 3
 _BOOT_NEWTON = 6
 _BOOT_GRID = 512
@@ -107,14 +110,15 @@ def kernel_density(x: np.ndarray, t: np.ndarray, h: float) -> np.ndarray:
 
 
 def _shift(x: np.ndarray, w: np.ndarray, t: np.ndarray, h: float, steps: int, tol: float,
-           newton: int = 20) -> np.ndarray:
-    """Mean shift of the points ``t`` (one per row of weights ``w`` over ``x``) towards the nearest mode,
-    then Newton steps on f′(t) = 0 where the density is concave (mean shift slows down near a flat top)."""
+           newton: int = 20, settle: float = 1e-6) -> np.ndarray:
+    """Mean shift of the points ``t`` (one per row of weights ``w`` over ``x``) towards the nearest mode
+    until no point moves by more than ``settle`` h, then Newton steps on f′(t) = 0 where the density is
+    concave (mean shift slows down near a flat top; Newton converges there in a few steps)."""
     for _ in range(steps):
         z = (x[None, :] - t[:, None]) / h
         k = w * np.exp(-0.5 * z * z)
         new = (k @ x) / k.sum(axis=1)
-        done = np.max(np.abs(new - t)) <= 1e-6 * h
+        done = np.max(np.abs(new - t)) <= settle * h
         t = new
         if done:
             break
@@ -218,7 +222,7 @@ def kernel_mode(x: np.ndarray, h: float, *, fraction: float = MODE_FRACTION,
         inner = np.flatnonzero((dens[1:-1] > dens[:-2]) & (dens[1:-1] >= dens[2:])) + 1
         starts = grid[inner] if inner.size else grid[[int(np.argmax(dens))]]
     ones = np.ones((starts.size, n))
-    peaks = np.sort(_shift(x, ones, starts, h, _SHIFT_MAXITER, _SHIFT_TOL))
+    peaks = np.sort(_shift(x, ones, starts, h, _SHIFT_MAXITER, _SHIFT_TOL, settle=_SHIFT_SETTLE))
     peaks = peaks[np.concatenate([[True], np.diff(peaks) > 1e-6 * h])]
     pd_ = kernel_density(x, peaks, h)
     top = int(np.argmax(pd_))
