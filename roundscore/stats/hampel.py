@@ -147,6 +147,7 @@ class _Pairs:
         counts = np.bincount(labs)
         self.w = 1.0 / counts[self.lab]
         self.cw = np.concatenate([[0.0], np.cumsum(self.w)])  # prefix sums of the weights
+        self.cw_own = self.cw[1:]  # up to each result itself
         self.most = int(counts.max())
         self.equal = bool(counts.min() == self.most)  # every lab has as many results
         self.idx = np.arange(self.v.size)
@@ -256,7 +257,7 @@ class _Pairs:
         """H1(x) (or H1 just below x, ``strict``): the weighted share of between-lab pairs with |d| ≤ x."""
         r = self._upto(x, "left" if strict else "right")
         r = np.maximum(r, self.idx)
-        s = float(np.dot(self.w, self.cw[r + 1] - self.cw[self.idx + 1]))
+        s = float(np.dot(self.w, self.cw[r + 1] - self.cw_own))
         if self.sa.size:
             d_ok = (self.vsb < self.vsa + x) if strict else (self.vsb <= self.vsa + x)
             s -= float(self.sw[d_ok].sum())
@@ -310,13 +311,13 @@ class _Pairs:
             ok = (r > rows) & (r < n)
             at = np.where(ok, r, 0)
             other = ok & (lab[at] != lab[rows])
-            if other.any():
-                d = v[at[other]] - v[rows[other]]
-                best = max(best, float(d.max() if step < 0 else -d.min()))
+            d = v[at] - v[rows]
+            found = np.max(d, where=other, initial=-np.inf) if step < 0 else -np.min(d, where=other, initial=np.inf)
+            best = max(best, float(found))
             again = ok & ~other  # the same lab: one more step on these rows only
-            rows, r = rows[again], r[again] + step
-            if not rows.size:
+            if not again.any():
                 break
+            rows, r = rows[again], r[again] + step
         return best
 
 
@@ -468,7 +469,8 @@ def q_method(values: np.ndarray, labs: np.ndarray) -> tuple[float, float]:
         raise StatisticsError("q_method takes one value and one lab index per result")
     if not np.isfinite(values).all():
         raise StatisticsError("results must be finite numbers")
-    _, labs = np.unique(labs, return_inverse=True)
+    if not (labs.dtype.kind in "iu" and labs.size and labs.min() >= 0 and np.bincount(labs).all()):
+        _, labs = np.unique(labs, return_inverse=True)  # (codes 0..p−1 with none missing are kept as they are)
     if labs.max(initial=-1) < 1:
         raise StatisticsError("the Q method needs results from at least 2 labs")
     # Shift by the median: the differences are unchanged, and the sums v + x stay small numbers.
