@@ -33,10 +33,14 @@ and H1(x) at any x is a weighted count of pairs with difference ≤ x, found
 for every result at once by binary search in the sorted results and prefix
 sums of the weights, O(N log N) for N = Σn_i results (the pairs of one
 lab's own results are counted separately, O(N·n), and subtracted). The jump
-of G1 that holds the quantile is found by bisection on x (about 50 counts),
-until the band of differences left is small; only that band is listed.
-The result is the exact G1⁻¹ of the definition (the tests compare it with a
-plain loop over all pairs).
+of G1 that holds the quantile is bracketed in a few counts: a fixed sample
+of between-lab differences guesses where it lies, points either side of a
+secant estimate are checked by H1 (bisection when a round does not halve
+the bracket), until the band of differences left is small; only that band
+is listed, with each tie group whole at both ends. The guesses only decide
+where to count: the result is the exact G1⁻¹ of the definition (the tests
+compare it with a plain loop over all pairs, also with the guess made
+useless).
 
 References
 ----------

@@ -12,7 +12,11 @@ How the modes are found: the density is evaluated on a grid of spacing
 h/10 over [min − 3h, max + 3h] (coarser when that grid would exceed
 :data:`GRID_MAX` points), each local maximum of the grid is refined by the
 mean-shift iteration t ← Σ φ_i x_i / Σ φ_i (which climbs a normal-kernel
-density to the nearest mode) to 1e-12 h, and modes closer than 1e-6 h are one.
+density to the nearest mode) and then Newton's steps on f′ = 0 to 1e-12 h,
+and modes closer than 1e-6 h are one. Without the bootstrap the grid's local
+maxima are found without the n × grid exponentials (see ``_grid_maxima``: a
+Taylor-binned sum within a stated bound, the density itself only where the
+bound cannot decide), the very grid points the whole grid gives.
 The bootstrap resamples the labs with replacement :data:`BOOTSTRAP_SAMPLES`
 times from a fixed seed (the same round gives the same SE), takes each
 sample's highest grid point and refines it by mean shift.
