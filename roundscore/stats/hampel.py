@@ -373,6 +373,16 @@ def _bracket(pairs: _Pairs, target: float) -> tuple[float, float]:
     per_h = 0.5 * n * (n - 1)  # pairs counted by count() per unit of H1, about (equal weights: exactly)
     est, slope, spread = _sample_guess(pairs, target)
     seen: list[tuple[float, float]] = []  # (x, mid-jump(x)) evaluated
+
+    def probe(x: float) -> None:  # count at x, and move the end of the bracket it replaces
+        nonlocal lo, hi
+        g = pairs.mid_jump(x)
+        seen.append((x, g))
+        if g <= target:
+            lo = x
+        else:
+            hi = x
+
     for _ in range(_MAX_BISECTIONS):
         if hi - lo <= tol or pairs.count(lo, hi) <= limit:
             break
@@ -387,22 +397,11 @@ def _bracket(pairs: _Pairs, target: float) -> tuple[float, float]:
             half = max(0.25 * limit / per_h, 0.0 if seen else spread) * slope
             for x in (est - half, est + half):
                 if lo < x < hi:
-                    g = pairs.mid_jump(x)
-                    seen.append((x, g))
-                    if g <= target:
-                        lo = x
-                    else:
-                        hi = x
+                    probe(x)
         if hi - lo > 0.5 * width:  # the estimate did not halve the bracket: bisect as well
             if pairs.node_above(lo) >= pairs.node_at_or_below(hi):
                 break  # one distinct difference (or tie group) in (lo, hi]: nothing to narrow
-            mid = 0.5 * (lo + hi)
-            g = pairs.mid_jump(mid)
-            seen.append((mid, g))
-            if g <= target:
-                lo = mid
-            else:
-                hi = mid
+            probe(0.5 * (lo + hi))
     return lo, hi
 
 
