@@ -144,7 +144,7 @@ def _taylor_bound(delta: float, order: int, reach: float, cut: bool) -> float:
     (kδ r)^p/p! with |kδ| ≤ ``reach`` (the remainder of the series), or left out beyond ``reach`` where
     the kernel is ``cut`` there (in units of the term's largest value, 1)."""
     dist = np.linspace(0.0, reach, 4001)
-    a = dist * delta / 2
+    a = dist * delta * 0.5001  # |r| ≤ δ/2, with room for the grid's rounding
     remainder = np.exp(-0.5 * dist * dist + a) * a ** (order + 1) / math.factorial(order + 1)
     beyond = math.exp(-0.5 * reach * reach + reach * delta / 2) if cut else 0.0
     return float(max(remainder.max(), beyond))
@@ -163,10 +163,10 @@ def _grid_maxima(x: np.ndarray, grid: np.ndarray, h: float) -> np.ndarray:
     grid (the same numbers, the same comparisons), so the indices are exactly those of the whole grid.
     """
     n = x.size
-    delta = (grid[1] - grid[0]) / h
-    u = (x - grid[0]) / h / delta
-    b = np.clip(np.rint(u), 0, grid.size - 1).astype(np.int64)
-    r = (u - b) * delta  # in units of h, |r| ≤ δ/2
+    step = (grid[-1] - grid[0]) / (grid.size - 1)
+    delta = step / h
+    b = np.clip(np.rint((x - grid[0]) / step), 0, grid.size - 1).astype(np.int64)
+    r = (x - grid[b]) / h  # in units of h, |r| ≤ δ/2 (to a rounding), from the grid point itself
     base = np.exp(-0.5 * r * r)
     kmax = min(int(np.floor(_SEED_REACH / delta)), grid.size - 1)
     reach = kmax * delta
@@ -183,8 +183,12 @@ def _grid_maxima(x: np.ndarray, grid: np.ndarray, h: float) -> np.ndarray:
         approx += np.convolve(sums, power)[kmax:kmax + grid.size]
     scale = 1.0 / (n * h * np.sqrt(2.0 * np.pi))
     approx *= scale
-    # Every term is at most 1 (before the scale): twice the series' bound, and rounding well above its size.
-    eps = (2.0 * _taylor_bound(delta, _SEED_ORDER, reach, kmax < grid.size - 1) + 1e-12) * n * scale
+    # Every term is at most 1 (before the scale): twice the series' bound; the sums' rounding (n terms
+    # added in turn) with room; and the grid points' own rounding, a few ulps of |t| (kδ is t_j − t_b to
+    # that), which moves a term by at most as much in units of h (|d/dz exp(−½z²)| < 1).
+    drift = 8 * np.finfo(float).eps * float(np.max(np.abs(grid[[0, -1]]))) / h
+    slack = 2.0 * _taylor_bound(delta, _SEED_ORDER, reach, kmax < grid.size - 1) + 1e-12 + 1e-15 * n + drift
+    eps = slack * n * scale
     mid = approx[1:-1]
     maybe = np.flatnonzero((mid - approx[:-2] > -2 * eps) & (mid - approx[2:] >= -2 * eps)) + 1
     near = np.unique(np.concatenate([maybe - 1, maybe, maybe + 1]))
