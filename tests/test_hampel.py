@@ -205,3 +205,77 @@ def test_bounded_breakdown(seed, k, far):
     est = q_hampel(bad, np.arange(20))
     assert est.sd < 12
     assert abs(est.mean) < 4
+
+
+# The bracket around the quantile (a fixed sample's guess, secant steps checked by H1, bisection when they
+# stall) and the band listed at the end, against the plain loop over all pairs (plain_q above).
+
+def _q_cases():
+    rng = np.random.default_rng(2024)
+    cases = {}
+    # Decimals with one place: tied differences computed as several nearby floats (0.3 as 0.2999…98 and
+    # 0.3000…07), one jump of H1 each; equal and unequal replicate counts.
+    cases["decimals, 2 replicates"] = [list(np.round(rng.normal(10, 1, 2), 1)) for _ in range(70)]
+    cases["decimals, 1-3 replicates"] = [list(np.round(rng.normal(10, 1, int(rng.integers(1, 4))), 1))
+                                         for _ in range(60)]
+    cases["two decimals, 3 replicates"] = [list(np.round(rng.normal(5, 0.2, 3), 2)) for _ in range(40)]
+    # Most results equal: a few labs off the common value (H1(0) large, the quantile on one tie group).
+    cases["many equal"] = [[3.0, 3.0] if i % 7 else [3.5, 3.0] for i in range(50)]
+    # Two clusters far apart: the differences' distribution has two humps.
+    cases["two clusters"] = [list(rng.normal(0 if i % 2 else 40, 1, 2)) for i in range(60)]
+    cases["p = 3"] = [[10.1, 10.4], [9.7], [10.0, 10.2, 10.3]]
+    cases["unequal replicates with an outlier"] = ([list(rng.normal(20, 1, int(rng.integers(1, 5)))) for _ in range(80)]
+                                                   + [[95.0, 96.0]])
+    return cases
+
+
+@pytest.mark.parametrize("name", list(_q_cases()))
+def test_q_method_bracket_equals_plain_loop(name):
+    results = _q_cases()[name]
+    s, h0 = q_method(*_flat(results))
+    s_ref, h0_ref = plain_q(results)
+    assert h0 == pytest.approx(h0_ref, abs=1e-12)
+    assert s == pytest.approx(s_ref, rel=1e-10)
+
+
+@pytest.mark.parametrize("guess", ["nan", "far below", "far above", "flat"])
+def test_q_method_without_a_useful_guess_equals_plain_loop(monkeypatch, guess):
+    # The sample's guess is only a start: with no guess, or a wrong one, the search falls back to bisection
+    # (and the secant on H1 itself) and still ends on the exact G1⁻¹.
+    from roundscore.stats import hampel as module
+
+    bad = {"nan": (np.nan, np.nan, np.nan), "far below": (1e-9, 1e-12, 1e-6), "far above": (1e3, 10.0, 0.5),
+           "flat": (0.5, 0.0, 0.1)}[guess]
+    monkeypatch.setattr(module, "_sample_guess", lambda pairs, target: bad)
+    for results in (_q_cases()["decimals, 1-3 replicates"], _q_cases()["two clusters"]):
+        s, _ = q_method(*_flat(results))
+        assert s == pytest.approx(plain_q(results)[0], rel=1e-10)
+
+
+@settings(max_examples=40, deadline=None)
+@given(st.lists(st.lists(st.integers(0, 60), min_size=1, max_size=3), min_size=2, max_size=40),
+       st.sampled_from([0.1, 0.01, 0.25, 1.0]))
+def test_q_method_on_typed_decimals_equals_plain_loop(labs, step):
+    # Results on a grid of decimals (ties within and across labs), any replicate counts.
+    results = [[round(i * step, 2) for i in lab] for lab in labs]
+    values, idx = _flat(results)
+    if np.ptp(values) == 0:
+        return
+    try:
+        s_ref, h0_ref = plain_q(results)
+    except ZeroDivisionError:
+        return  # every between-lab pair tied: the plain loop has no segment (q_method gives s* = 0)
+    s, h0 = q_method(values, idx)
+    assert h0 == pytest.approx(h0_ref, abs=1e-12)
+    assert s == pytest.approx(s_ref, rel=1e-10, abs=1e-12)
+
+
+@pytest.mark.parametrize("seed", [0, 2, 7, 21, 27, 31])
+def test_q_method_decimal_tie_groups_kept_whole(seed):
+    # Results typed with one decimal: a difference such as 0.3 is several floats within the tie tolerance,
+    # one jump of H1. The band listed at the end must hold each such group whole at both of its ends (an
+    # earlier version cut the first group and s* moved by 0.1-1.4 % on these sets); the plain loop decides.
+    rng = np.random.default_rng(seed)
+    results = [list(np.round(rng.normal(10, 1, 2), 1)) for _ in range(int(rng.integers(20, 120)))]
+    s, _ = q_method(*_flat(results))
+    assert s == pytest.approx(plain_q(results)[0], rel=1e-10)

@@ -97,3 +97,76 @@ def test_far_outliers_move_the_mode_by_a_bounded_amount():
     for far in (20.0, 1e3, 1e6):
         bad = np.concatenate([good, far + rng.normal(0, 5, 7)])
         assert abs(kernel_mode(bad, 0.75, bootstrap=0).mode - base) < 1e-3
+
+
+# The seeds of the mean shift: the local maxima of the density on the grid, found without evaluating it on
+# the whole grid (a bounded Taylor-binned sum, the density itself only where the bound cannot decide). The
+# reference is the plain way: kernel_density (checked against scipy above) on every grid point.
+
+def _plain_grid_maxima(x, grid, h):
+    dens = kernel_density(x, grid, h)
+    inner = np.flatnonzero((dens[1:-1] > dens[:-2]) & (dens[1:-1] >= dens[2:])) + 1
+    return inner if inner.size else np.array([int(np.argmax(dens))])
+
+
+def _grid(x, h):
+    lo, hi = x.min() - 3 * h, x.max() + 3 * h
+    return np.linspace(lo, hi, int(np.ceil((hi - lo) / (h / 10)) + 1))
+
+
+def _kernel_sets():
+    rng = np.random.default_rng(17025)
+    return {
+        # two groups 0.7 apart, each with kernel-and-spread SD √(0.3² + 0.05²) ≈ 0.30: just two modes
+        # (a mixture of two equal normals is bimodal when they lie more than 2 SD apart, common practice)
+        "close modes": (np.concatenate([rng.normal(0, 0.05, 40), rng.normal(0.7, 0.05, 40)]), 0.3),
+        "modes at the edge of merging": (np.concatenate([rng.normal(0, 0.05, 30), rng.normal(2.0, 0.05, 30)]), 1.0),
+        "small far mode at 25 %": (np.concatenate([rng.normal(0, 0.2, 80), rng.normal(6, 0.2, 20)]), 0.3),
+        "outliers": (np.concatenate([rng.normal(50, 1, 2000), [58.0, 61.0, 35.0]]), 0.75),
+        "ties": (np.round(rng.normal(10, 1, 300), 1), 0.2),
+        "all equal": (np.full(12, 4.2), 0.5),
+        "n = 3": (np.array([1.0, 1.4, 3.0]), 0.3),
+        "n = 1": (np.array([7.0]), 0.1),
+        "flat top": (np.linspace(0, 10, 101), 2.0),
+        "far gap": (np.array([0.0, 0.1, 0.2, 30.0, 30.1]), 0.2),
+        # results far from zero against h: the grid points' rounding is a visible share of h
+        "large values, small h": (np.round(1e6 + rng.normal(0, 0.05, 300), 3), 0.004),
+    }
+
+
+@pytest.mark.parametrize("name", list(_kernel_sets()))
+def test_seed_maxima_equal_the_whole_grid(name):
+    from roundscore.stats.kernel import _grid_maxima
+
+    x, h = _kernel_sets()[name]
+    grid = _grid(x, h)
+    assert np.array_equal(_grid_maxima(x, grid, h), _plain_grid_maxima(x, grid, h))
+
+
+@pytest.mark.parametrize("name", list(_kernel_sets()))
+def test_kernel_mode_equals_the_whole_grids_seeds(monkeypatch, name):
+    # The same modes, densities and highest mode as when the seeds come from the density on every point.
+    from roundscore.stats import kernel as module
+
+    x, h = _kernel_sets()[name]
+    km = kernel_mode(x, h, bootstrap=0)
+    monkeypatch.setattr(module, "_grid_maxima", _plain_grid_maxima)
+    ref = kernel_mode(x, h, bootstrap=0)
+    assert km.modes == ref.modes and km.densities == ref.densities and km.mode == ref.mode
+    if name == "small far mode at 25 %":
+        assert len(km.modes) == 2
+    if name == "close modes":
+        assert len(km.modes) == 2 and km.modes[1] - km.modes[0] < 2.5 * h
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.lists(st.floats(-50, 50, allow_nan=False), min_size=1, max_size=60), st.floats(0.02, 5.0),
+       st.integers(0, 3))
+def test_seed_maxima_equal_the_whole_grid_on_any_set(values, h, decimals):
+    from roundscore.stats.kernel import _grid_maxima
+
+    x = np.round(np.array(values), decimals)
+    grid = _grid(x, h)
+    if grid.size < 3:
+        return
+    assert np.array_equal(_grid_maxima(x, grid, h), _plain_grid_maxima(x, grid, h))

@@ -33,10 +33,14 @@ and H1(x) at any x is a weighted count of pairs with difference ≤ x, found
 for every result at once by binary search in the sorted results and prefix
 sums of the weights, O(N log N) for N = Σn_i results (the pairs of one
 lab's own results are counted separately, O(N·n), and subtracted). The jump
-of G1 that holds the quantile is found by bisection on x (about 50 counts),
-until the band of differences left is small; only that band is listed.
-The result is the exact G1⁻¹ of the definition (the tests compare it with a
-plain loop over all pairs).
+of G1 that holds the quantile is bracketed in a few counts: a fixed sample
+of between-lab differences guesses where it lies, points either side of a
+secant estimate are checked by H1 (bisection when a round does not halve
+the bracket), until the band of differences left is small; only that band
+is listed, with each tie group whole at both ends. The guesses only decide
+where to count: the result is the exact G1⁻¹ of the definition (the tests
+compare it with a plain loop over all pairs, also with the guess made
+useless).
 
 References
 ----------
@@ -71,6 +75,13 @@ _BAND_PAIRS_PER_RESULT = 4
 #: Bisection steps on x before listing whatever band is left (each halves the band; 200 is far more than
 #: the 64 or so that float resolution allows).
 _MAX_BISECTIONS = 200
+#: Steps of one position each that a count near a kept one may take before it is searched instead.
+_WALK_STEPS = 6
+#: The fixed sample of between-lab differences that guesses where the quantile lies (a guess only: the
+#: bracket it suggests is checked by H1), its seed, and the step in H1 over which it estimates the slope.
+_SAMPLE_PAIRS = 4096
+_SAMPLE_SEED = 13528
+_SAMPLE_STEP = 0.02
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -117,6 +128,15 @@ def hampel_psi(q: np.ndarray) -> np.ndarray:
     return np.where(aq <= HAMPEL_A, q, np.sign(q) * mid)
 
 
+def _stable_argsort(x: np.ndarray) -> np.ndarray:
+    """np.argsort(x, kind="stable"), by the faster unstable sort when x has no equal values (the same order)."""
+    order = np.argsort(x)
+    xs = x[order]
+    if (xs[1:] == xs[:-1]).any():
+        return np.argsort(x, kind="stable")
+    return order
+
+
 class _Pairs:
     """The between-lab differences of one set of results, counted without forming them.
 
@@ -125,19 +145,23 @@ class _Pairs:
 
     def __init__(self, values: np.ndarray, labs: np.ndarray, tol: float) -> None:
         self.tol = tol
-        order = np.argsort(values, kind="stable")
+        order = _stable_argsort(values)
         self.v = values[order]
         self.lab = labs[order]
         counts = np.bincount(labs)
         self.w = 1.0 / counts[self.lab]
         self.cw = np.concatenate([[0.0], np.cumsum(self.w)])  # prefix sums of the weights
+        self.cw_own = self.cw[1:]  # up to each result itself
         self.most = int(counts.max())
+        self.equal = bool(counts.min() == self.most)  # every lab has as many results
         self.idx = np.arange(self.v.size)
         p = int(np.count_nonzero(counts))
         self.total = p * (p - 1) / 2.0  # Σ_{i<j} 1/(n_i n_j) · n_i n_j
         # The pairs of one lab's own results (positions a < b in sorted order), counted and subtracted:
         # the k-th and m-th result of every lab with more than m results, for each k < m.
-        by_lab = np.argsort(self.lab, kind="stable")
+        # (a stable sort of small integers is a radix sort in numpy: the codes fit 16 bits in most rounds)
+        small = self.lab.astype(np.int16) if counts.size < 2 ** 15 else self.lab
+        by_lab = np.argsort(small, kind="stable")
         starts = np.concatenate([[0], np.cumsum(counts)[:-1]])
         same_a, same_b = [np.zeros(0, dtype=int)], [np.zeros(0, dtype=int)]
         for m in range(1, self.most):
@@ -148,9 +172,17 @@ class _Pairs:
                 same_b.append(np.maximum(a, b))
         self.sa, self.sb = np.concatenate(same_a), np.concatenate(same_b)
         self.sw = self.w[self.sa] * self.w[self.sb]
+        self.vsa, self.vsb = self.v[self.sa], self.v[self.sb]
         # _upto's answers by (x, side): the bisection asks for the same ends again (count(lo, hi)), and
         # H(x) and H(x−) share one search. The arrays are never changed in place by their users.
         self._found: dict[tuple[float, str], tuple[np.ndarray, bool]] = {}
+        #: Whether a new count may start from the nearest kept one (:meth:`_walk`): set once the band is
+        #: narrow, where the ends move by a position or two.
+        self.walk = False
+        # No two results within tol of each other (fl(v[b] − v[a]) grows with b): the count up to tol is
+        # each result itself, known without a search.
+        if self.v.size < 2 or float(np.min(np.diff(self.v))) > tol:
+            self._found[(tol, "right")] = (self.idx.copy(), True)
 
     def _upto(self, x: float, side: str) -> np.ndarray:
         """For each result a: the last position b with v[b] − v[a] ≤ x ('right') or < x ('left').
@@ -171,10 +203,36 @@ class _Pairs:
                 at = np.maximum(r, 0)
                 if not ((r >= 0) & (self.v[at] - self.v == x)).any():
                     got = right
+            if got is None and self.walk:
+                got = self._walk(x, side)
             if got is None:
                 got = self._search(x, side)
             self._found[key] = got
         return got[0]
+
+    def _walk(self, x: float, side: str) -> tuple[np.ndarray, bool] | None:
+        """:meth:`_upto` from the kept answer at the nearest x, one position at a time (the last position
+        with a difference inside is one and the same however it is reached: fl(v[b] − v[a]) grows with b);
+        None when that takes more than a few steps (then it is searched)."""
+        kept = [(abs(x0 - x), got) for (x0, _), got in self._found.items() if got[1]]
+        if not kept:
+            return None
+        r = min(kept, key=lambda e: e[0])[1][0].copy()
+        v, last = self.v, self.v.size - 1
+        inside = (lambda d: d <= x) if side == "right" else (lambda d: d < x)
+        for _ in range(_WALK_STEPS):
+            up = (r < last) & inside(v[np.minimum(r + 1, last)] - v)
+            if not up.any():
+                break
+            r[up] += 1
+        else:
+            return None
+        for _ in range(_WALK_STEPS):
+            down = (r >= 0) & ~inside(v[np.maximum(r, 0)] - v)
+            if not down.any():
+                return r, True
+            r[down] -= 1
+        return None
 
     def _search(self, x: float, side: str) -> tuple[np.ndarray, bool]:
         """:meth:`_upto` searched: the positions, and whether both corrections settled (they always do in
@@ -203,11 +261,18 @@ class _Pairs:
         """H1(x) (or H1 just below x, ``strict``): the weighted share of between-lab pairs with |d| ≤ x."""
         r = self._upto(x, "left" if strict else "right")
         r = np.maximum(r, self.idx)
-        s = float(np.dot(self.w, self.cw[r + 1] - self.cw[self.idx + 1]))
+        s = float(np.dot(self.w, self.cw[r + 1] - self.cw_own))
         if self.sa.size:
-            d_ok = (self.v[self.sb] < self.v[self.sa] + x) if strict else (self.v[self.sb] <= self.v[self.sa] + x)
+            d_ok = (self.vsb < self.vsa + x) if strict else (self.vsb <= self.vsa + x)
             s -= float(self.sw[d_ok].sum())
         return s / self.total
+
+    def mid_jump(self, x: float) -> float:
+        """½(H1(x) + H1(x−)); H1(x) itself (one count) where no between-lab difference equals x."""
+        r = self._upto(x, "right")
+        if self._upto(x, "left") is r and not (self.sa.size and (self.vsb == self.vsa + x).any()):
+            return self.H(x)
+        return 0.5 * (self.H(x) + self.H(x, strict=True))
 
     def count(self, lo: float, hi: float) -> int:
         """Pairs (any labs) with lo < d ≤ hi: an upper bound of the band's size."""
@@ -229,58 +294,144 @@ class _Pairs:
         a, b = a[keep], b[keep]
         return self.v[b] - self.v[a], self.w[a] * self.w[b] / self.total
 
-    def node_at_or_below(self, x: float) -> float:
-        """The largest between-lab difference ≤ x (0.0 when there is none above 0)."""
-        best = 0.0
-        r = self._upto(x, "right")
-        for back in range(self.most + 1):  # skip at most a lab's other results
-            b = r - back
-            ok = (b > self.idx) & (self.lab[np.maximum(b, 0)] != self.lab)
-            if ok.any():
-                best = max(best, float(np.max(self.v[b[ok]] - self.v[self.idx[ok]])))
-        return best
+    def node_at_or_below(self, x: float, strict: bool = False) -> float:
+        """The largest between-lab difference ≤ x (< x ``strict``; 0.0 when there is none above 0)."""
+        return max(0.0, self._nearest_other(self._upto(x, "left" if strict else "right"), -1))
 
     def node_above(self, x: float) -> float:
         """The smallest between-lab difference > x (x itself when there is none)."""
-        best = np.inf
-        r = self._upto(x, "right") + 1
-        for ahead in range(self.most + 1):
-            b = r + ahead
-            ok = b < self.v.size
-            ok[ok] &= self.lab[b[ok]] != self.lab[ok]
-            if ok.any():
-                best = min(best, float(np.min(self.v[b[ok]] - self.v[self.idx[ok]])))
+        best = -self._nearest_other(self._upto(x, "right") + 1, 1)
         return best if np.isfinite(best) else x
+
+    def _nearest_other(self, r: np.ndarray, step: int) -> float:
+        """From position r[a] for each result a, stepping by ``step`` (−1 down, +1 up) past the results of
+        a's own lab: the first result b of another lab (b > a, b < N), and the largest v[b] − v[a] going
+        down (the smallest going up, negated); −inf when there is none. v[b] − v[a] is monotone in b, so
+        the first such b on each row is that row's extreme; a lab has ``most`` results at most."""
+        v, lab, n = self.v, self.lab, self.v.size
+        rows = self.idx
+        best = -np.inf
+        for _ in range(self.most + 1):
+            ok = (r > rows) & (r < n)
+            at = np.where(ok, r, 0)
+            other = ok & (lab[at] != lab[rows])
+            d = v[at] - v[rows]
+            found = np.max(d, where=other, initial=-np.inf) if step < 0 else -np.min(d, where=other, initial=np.inf)
+            best = max(best, float(found))
+            again = ok & ~other  # the same lab: one more step on these rows only
+            if not again.any():
+                break
+            rows, r = rows[again], r[again] + step
+        return best
+
+
+def _sample_guess(pairs: _Pairs, target: float) -> tuple[float, float, float]:
+    """A guess of G1⁻¹(target), of dx/dH1 there and of the guess's error in H1 (4 standard errors), from a
+    fixed sample of between-lab differences.
+
+    Only a starting point: :func:`_bracket` checks every point it keeps by H1 itself.
+    """
+    v, lab, w = pairs.v, pairs.lab, pairs.w
+    rng = np.random.default_rng(_SAMPLE_SEED)
+    a = rng.integers(0, v.size, _SAMPLE_PAIRS)
+    b = rng.integers(0, v.size, _SAMPLE_PAIRS)
+    keep = lab[a] != lab[b]
+    a, b = a[keep], b[keep]
+    if a.size < 2:
+        return np.nan, np.nan, np.nan
+    d = np.abs(v[b] - v[a])
+    if pairs.equal:  # every pair weighs the same
+        d.sort()
+        cdf = np.arange(1, d.size + 1) / d.size
+        effective = float(d.size)
+    else:
+        order = np.argsort(d)
+        d = d[order]
+        ww = (w[a] * w[b])[order]
+        cdf = np.cumsum(ww)
+        cdf /= cdf[-1]
+        effective = float(ww.sum() ** 2 / np.dot(ww, ww))
+    x = np.interp([target - _SAMPLE_STEP, target, target + _SAMPLE_STEP], cdf, d)
+    spread = 4.0 * np.sqrt(target * (1.0 - target) / effective)
+    return float(x[1]), float((x[2] - x[0]) / (2.0 * _SAMPLE_STEP)), float(spread)
+
+
+def _bracket(pairs: _Pairs, target: float) -> tuple[float, float]:
+    """lo < hi with mid-jump(lo) ≤ target < mid-jump(hi) and few differences between them, for :func:`_g1_inverse`.
+
+    Each point kept is checked by H1 (the bracket is exact whatever the guesses). Points are placed a
+    little either side of a secant estimate of G1⁻¹(target) (from a fixed sample of differences at first,
+    then from the values of H1 already found), so that the band between them holds about half of what
+    may be listed; a round that does not halve the bracket is followed by a bisection step, so the search
+    never does worse than bisection. It stops when the band is small enough to list, when the bracket holds
+    at most one distinct difference (a tie that alone is larger than the limit), or at float resolution.
+    """
+    tol = pairs.tol
+    lo, hi = tol, float(pairs.v[-1] - pairs.v[0])
+    limit = _BAND_PAIRS_PER_RESULT * pairs.v.size
+    n = pairs.v.size
+    per_h = 0.5 * n * (n - 1)  # pairs counted by count() per unit of H1, about (equal weights: exactly)
+    est, slope, spread = _sample_guess(pairs, target)
+    seen: list[tuple[float, float]] = []  # (x, mid-jump(x)) evaluated
+
+    def probe(x: float) -> None:  # count at x, and move the end of the bracket it replaces
+        nonlocal lo, hi
+        g = pairs.mid_jump(x)
+        seen.append((x, g))
+        if g <= target:
+            lo = x
+        else:
+            hi = x
+
+    for _ in range(_MAX_BISECTIONS):
+        if hi - lo <= tol or pairs.count(lo, hi) <= limit:
+            break
+        width = hi - lo
+        # The secant estimate through the two evaluated points nearest the target (the sample's guess at first).
+        if len(seen) >= 2:
+            (x0, g0), (x1, g1) = sorted(seen, key=lambda e: abs(e[1] - target))[:2]
+            if g1 != g0 and x1 != x0:
+                slope = (x1 - x0) / (g1 - g0)
+                est = x0 + (target - g0) * slope
+        if np.isfinite(est) and np.isfinite(slope) and slope > 0:
+            half = max(0.25 * limit / per_h, 0.0 if seen else spread) * slope
+            for x in (est - half, est + half):
+                if lo < x < hi:
+                    probe(x)
+        if hi - lo > 0.5 * width:  # the estimate did not halve the bracket: bisect as well
+            if pairs.node_above(lo) >= pairs.node_at_or_below(hi):
+                break  # one distinct difference (or tie group) in (lo, hi]: nothing to narrow
+            probe(0.5 * (lo + hi))
+    return lo, hi
 
 
 def _g1_inverse(pairs: _Pairs, target: float, h0: float) -> float:
     """G1⁻¹(target): the point where the polygon through (0, 0) and the mid-jumps of H1 reaches ``target``."""
     tol = pairs.tol
-    lo, hi = tol, float(pairs.v[-1] - pairs.v[0])
-
-    def mid_jump(x: float) -> float:  # ½(H1(x) + H1(x−)); equals H1(x) away from a jump
-        return 0.5 * (pairs.H(x) + pairs.H(x, strict=True))
-
-    limit = _BAND_PAIRS_PER_RESULT * pairs.v.size
-    for _ in range(_MAX_BISECTIONS):
-        if hi - lo <= tol or pairs.count(lo, hi) <= limit:
-            break
-        mid = 0.5 * (lo + hi)
-        if mid_jump(mid) <= target:
-            lo = mid
-        else:
-            hi = mid
+    lo, hi = _bracket(pairs, target)
+    pairs.walk = True
     # Every jump of G1 that can bound the target lies between the last node ≤ lo and the first node > hi;
     # the band is widened by the tie tolerance at both ends so no group of tied differences is cut.
-    below = pairs.node_at_or_below(lo - tol)
-    above = pairs.node_above(pairs.node_above(hi) + tol)
+    below = pairs.node_at_or_below(lo)  # (lo's count is kept: no search) the same node unless one lies within tol
+    if below > lo - tol:
+        below = pairs.node_at_or_below(lo - tol)
+    # ... and from the first of its tie group: a node within tol below it is the same jump of H1 (the
+    # listed band must hold the whole group). The count below ``below`` is the one the band takes anyway.
+    while below > tol:
+        prev = pairs.node_at_or_below(below, strict=True)
+        if below - prev > tol:
+            break
+        below = prev
+    # ``above`` begins the first tie group past hi's; the band runs to tol beyond it, so the group is whole
+    # too (its mid-jump closes the segment that holds the target).
+    above = pairs.node_above(pairs.node_above(hi) + tol) + tol
     if below > tol:
         d, w = pairs.band(below, above, with_lo=True)
         base = pairs.H(below, strict=True)
     else:
         d, w = pairs.band(tol, above)
         base = h0
-    order = np.argsort(d, kind="stable")
+    order = _stable_argsort(d)
     d, w = d[order], w[order]
     # Differences within the tie tolerance are one jump of H1 (see q_method).
     start = np.flatnonzero(np.concatenate([[True], np.diff(d) > tol])) if d.size else np.zeros(0, dtype=int)
@@ -321,7 +472,8 @@ def q_method(values: np.ndarray, labs: np.ndarray) -> tuple[float, float]:
         raise StatisticsError("q_method takes one value and one lab index per result")
     if not np.isfinite(values).all():
         raise StatisticsError("results must be finite numbers")
-    _, labs = np.unique(labs, return_inverse=True)
+    if not (labs.dtype.kind in "iu" and labs.size and labs.min() >= 0 and np.bincount(labs).all()):
+        _, labs = np.unique(labs, return_inverse=True)  # (codes 0..p−1 with none missing are kept as they are)
     if labs.max(initial=-1) < 1:
         raise StatisticsError("the Q method needs results from at least 2 labs")
     # Shift by the median: the differences are unchanged, and the sums v + x stay small numbers.
