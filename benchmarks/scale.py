@@ -28,7 +28,10 @@ times and peak memory are its own):
    means against a loop of statsmodels' Huber estimator on the same sets;
 6. the growth exponent: the pipeline at the ``--growth`` sizes and at
    ``--labs``, least-squares slope of log(time) on log(labs);
-7. the coordinator's re-check (below).
+7. the coordinator's re-check (below);
+8. with ``--evaluate-pairs N``, evaluate/baseline again from N alternating pairs timed in one process (the
+   baseline's loop, then the evaluation, seconds apart; the median of the pairs' ratios), which a machine whose
+   speed drifts cannot skew as it skews two parts timed minutes apart.
 
 It prints one line per stage (seconds, ratio to the floor, ratio to the
 baseline), the peak memory, and a final line
@@ -160,6 +163,33 @@ def part_evaluate(a: argparse.Namespace) -> dict:
     t = time.perf_counter()
     evaluate(rnd, table, participants, jobs=a.jobs)
     return {"seconds": time.perf_counter() - t}
+
+
+def part_evaluate_pairs(a: argparse.Namespace) -> dict:
+    """evaluate/baseline from ``a.pairs`` alternating pairs in one process: the baseline's per-measurand loop on its
+    own table, then roundscore's evaluation on its table (each read once, untimed). On a shared machine whose
+    speed drifts by a third within minutes, a ratio of two parts timed minutes apart says little; each pair is
+    timed seconds apart, and the median of the pairs' ratios is reported."""
+    import statistics
+
+    import baseline as bl
+    from roundscore.evaluation.evaluate import evaluate
+    from roundscore.intake.readers import read_participants, read_results
+    from roundscore.intake.roundfile import load_round
+
+    rnd = load_round(a.round)
+    table = read_results(rnd, jobs=a.jobs)
+    participants = read_participants(rnd)
+    data, settings = bl._read(Path(a.round))
+    pairs = []
+    for _ in range(a.pairs):
+        t = time.perf_counter()
+        bl._evaluate(data, settings)
+        base = time.perf_counter() - t
+        t = time.perf_counter()
+        evaluate(rnd, table, participants, jobs=a.jobs)
+        pairs.append((base, time.perf_counter() - t))
+    return {"pairs": pairs, "ratio": statistics.median(e / b for b, e in pairs)}
 
 
 def part_floor_read(a: argparse.Namespace) -> dict:
@@ -472,7 +502,7 @@ def part_recheck(a: argparse.Namespace) -> dict:
             "changes": "Since the previous check of this round" in said}
 
 
-PARTS = {"recheck": part_recheck, "evaluate": part_evaluate,
+PARTS = {"recheck": part_recheck, "evaluate": part_evaluate, "evaluate_pairs": part_evaluate_pairs,
          "pdf": part_pdf, "generate": part_generate, "pipeline": part_pipeline, "floor_read": part_floor_read,
          "floor_write": part_floor_write, "baseline": part_baseline, "core": part_core, "figures": part_figures}
 
@@ -579,6 +609,17 @@ def _line(stage: str, sec: float, floor: float | None, base: float | None) -> st
     return f"{stage:<10}{sec:9.2f} s   {f}   {b}"
 
 
+def _count(text: str) -> int:
+    """A whole number ≥ 0 (argparse type)."""
+    try:
+        n = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"a whole number ≥ 0, not {text!r}") from None
+    if n < 0:
+        raise argparse.ArgumentTypeError(f"a whole number ≥ 0, not {n}")
+    return n
+
+
 def main(argv: list[str] | None = None) -> int:
     p = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     p.add_argument("--labs", type=int, default=2000, help="labs in the round (default 2000)")
@@ -594,6 +635,10 @@ def main(argv: list[str] | None = None) -> int:
                    help="labs whose PDFs the PDF comparison writes (default 0: all)")
     p.add_argument("--only-pdf", action="store_true",
                    help="generate the round and run only the PDF comparison (renderer against the bare library)")
+    p.add_argument("--evaluate-pairs", type=_count, default=0, metavar="N",
+                   help="also time N alternating pairs (baseline loop, evaluation) in one process and report their "
+                        "median ratio as evaluate/baseline (steadier on a shared machine; reads the forms with "
+                        "the baseline's reader once more)")
     p.add_argument("--work", default=None, help="working folder (default: a temporary one, removed)")
     p.add_argument("--seed", type=int, default=20270301)
     p.add_argument("--part", help=argparse.SUPPRESS)
@@ -691,12 +736,19 @@ def _run(a: argparse.Namespace, jobs: int, growth: list[int], work: Path) -> int
     say(f"recheck   cold check {rc['cold']:.2f} s, re-check after one exclusion {rc['recheck']:.2f} s: "
         f"{rc['cold'] / rc['recheck']:.1f}× faster (target ≥ {TARGETS['recheck/cold']:g}×; exit codes "
         f"{rc['codes'][0]}, {rc['codes'][1]}; changes {'shown' if rc['changes'] else 'NOT shown'})")
+    ev_ratio = st["evaluate"] / bl["evaluate"]
+    if a.evaluate_pairs:
+        pr = run_part("evaluate_pairs", a, round=str(rnd), pairs=a.evaluate_pairs, **base)
+        ev_ratio = pr["ratio"]
+        say(f"evaluate  {a.evaluate_pairs} pairs in one process (baseline, then roundscore): "
+            + ", ".join(f"{b:.2f}/{e:.2f} s" for b, e in pr["pairs"])
+            + f"; median ratio {ev_ratio:.2f} (the final line's evaluate/baseline)")
     say(f"  targets: read/floor ≤ {TARGETS['read/floor']:g}, write/floor ≤ {TARGETS['write/floor']:g}, total/floor ≤ "
         f"{TARGETS['total/floor']:g}, recheck/cold ≥ {TARGETS['recheck/cold']:g}, evaluate/baseline ≤ "
         f"{TARGETS['evaluate/baseline']:g}, exponent ≤ {TARGETS['exponent']:g}")
     say(f"read/floor={st['read'] / fr['seconds']:.2f} write/floor={st['write'] / fw['seconds']:.2f} "
         f"total/floor={st['total'] / floor_total:.2f} recheck/cold={rc['cold'] / rc['recheck']:.2f} "
-        f"evaluate/baseline={st['evaluate'] / bl['evaluate']:.2f} exponent={expo:.2f}")
+        f"evaluate/baseline={ev_ratio:.2f} exponent={expo:.2f}")
     return 0
 
 

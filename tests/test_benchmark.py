@@ -28,7 +28,7 @@ def tiny_run(tiny_work) -> str:
     work = tiny_work
     res = subprocess.run(
         [sys.executable, str(SCRIPT), "--labs", "8", "--measurands", "3", "--growth", "4", "--core-sets", "20",
-         "--core-labs", "15", "--figure-sample", "1", "--jobs", "2", "--work", str(work)],
+         "--core-labs", "15", "--figure-sample", "1", "--jobs", "2", "--evaluate-pairs", "2", "--work", str(work)],
         capture_output=True, text=True, timeout=300,
         # the benchmark measures every format, the PDFs included: not the test formats of tests/conftest.py
         env={k: v for k, v in os.environ.items() if k != "ROUNDSCORE_FORMATS"})
@@ -62,6 +62,20 @@ def test_stage_lines_give_seconds_and_ratios(tiny_run):
     for stage in ("read", "write", "total"):
         assert re.search(r"\d+\.\d+ s .*× floor .*× baseline", lines[stage]), lines[stage]
     assert "peak memory" in tiny_run and "GB" in tiny_run
+
+
+def test_evaluate_pairs_give_the_final_ratio(tiny_run):
+    line = next(ln for ln in tiny_run.splitlines() if ln.startswith("evaluate  2 pairs"))
+    pairs = re.findall(r"(\d+\.\d+)/(\d+\.\d+) s", line)
+    assert len(pairs) == 2, line
+    ratio = float(re.search(r"median ratio (\d+\.\d+)", line).group(1))
+    final = float(FINAL.match(tiny_run.strip().splitlines()[-1]).group(5))
+    assert ratio == final > 0
+
+
+def test_refuses_negative_pairs():
+    res = subprocess.run([sys.executable, str(SCRIPT), "--evaluate-pairs", "-1"], capture_output=True, text=True)
+    assert res.returncode == 2 and "--evaluate-pairs" in res.stderr and "≥ 0" in res.stderr
 
 
 def test_refuses_bad_option():
