@@ -14,7 +14,7 @@ coordinator sees the chosen value in context (``consensus.csv``):
   and the En-like ratio D / (2 u(D)); |ratio| > 1 is flagged.
 
 Nothing here reads a file; :func:`roundscore.evaluation.evaluate.evaluate`
-calls :func:`estimates` before the measurands are assigned and
+calls :func:`estimates_for` before the measurands are assigned and
 :func:`stage` after.
 """
 
@@ -33,7 +33,7 @@ from roundscore.stats.hampel import QHampelEstimate, hampel, q_method
 from roundscore.stats.kernel import BANDWIDTH_FACTOR, BOOTSTRAP_SAMPLES, KernelMode, kernel_mode
 from roundscore.stats.limits import above
 
-__all__ = ["Alternatives", "estimates", "estimates_for", "replicates", "kernel_for", "assign", "stage",
+__all__ = ["Alternatives", "estimates_for", "replicates", "kernel_for", "assign", "stage",
            "CONSENSUS_COLUMNS", "REFERENCE_COLUMNS",
            "SENSITIVITY_U_FACTOR", "SENSITIVITY_SIGMA_FACTOR", "REFERENCE_LIMIT"]
 
@@ -76,20 +76,12 @@ def replicates(table: ResultTable, names: list[str], labs: list[str]
     return rows, pos, np.where(pos >= 0, ranks[pos], -1), f["value"].to_numpy(float)[value]
 
 
-def estimates(table: ResultTable, names: list[str], mat: np.ndarray, labs: list[str]
-              ) -> dict[str, QHampelEstimate | None]:
-    """Q/Hampel for every measurand: s* by the Q method on each used lab's replicates, x* by Hampel (one call).
-
-    ``mat`` holds the lab means used (measurand × lab, NaN = not used), as Algorithm A receives them;
-    ``labs`` are its columns' lab codes (every lab in the table is one of them).
-    """
-    return estimates_for(replicates(table, names, labs), names, mat, range(len(names)))
-
-
 def estimates_for(prepared: tuple[list[np.ndarray], np.ndarray, np.ndarray, np.ndarray], names: list[str],
                   mat: np.ndarray, which: Sequence[int]) -> dict[str, QHampelEstimate | None]:
-    """:func:`estimates` for the measurands at the positions ``which`` of ``names`` (``prepared``: what
-    :func:`replicates` gives for the round). Each measurand's estimate depends on its own results only, so any
+    """Q/Hampel for the measurands at the positions ``which`` of ``names``: s* by the Q method on each used lab's
+    replicates, x* by Hampel on the lab means (one call). ``mat`` holds the lab means used (a row per measurand
+    of ``names``, a column per lab, NaN = not used), as Algorithm A receives them; ``prepared`` is what
+    :func:`replicates` gives for the round. Each measurand's estimate depends on its own results only, so any
     grouping of the measurands gives the same numbers."""
     rows, pos, ranks, values = prepared
     which = list(which)

@@ -83,7 +83,7 @@ if TYPE_CHECKING:
 
 __all__ = [
     "PRECISION_COLUMNS", "SCREENS_COLUMNS", "MANDEL_COLUMNS", "METHODS_COLUMNS", "DOUBLE_GRUBBS_MAX_LABS",
-    "NEEDS_REPLICATES", "MeasurandPrecision", "MethodGroups", "PrecisionStage", "drop_choice", "precision_stage",
+    "NEEDS_REPLICATES", "MeasurandPrecision", "MethodGroups", "PrecisionStage", "drop_choice",
     "MeasurandPart", "measurand_part", "assemble", "replicate_rows",
 ]
 
@@ -550,8 +550,7 @@ class MeasurandPart:
     audit: tuple[tuple, ...]
 
 
-def replicate_rows(table: ResultTable, names: list[str] | None = None,
-                   positions: list[np.ndarray] | None = None) -> dict[str, pd.DataFrame]:
+def replicate_rows(table: ResultTable, names: list[str], positions: list[np.ndarray]) -> dict[str, pd.DataFrame]:
     """The numeric replicates of ``table`` (lab, text, value), one frame per measurand (in the table's order).
 
     ``positions``: for each of ``names``, its rows' places among the table's numeric rows, in the table's order
@@ -559,8 +558,6 @@ def replicate_rows(table: ResultTable, names: list[str] | None = None,
     """
     f = table.frame
     values = f.loc[f["status"].to_numpy() == "value", ["measurand", "lab", "text", "value"]]
-    if names is None or positions is None:
-        return {str(n): g for n, g in values.groupby("measurand", sort=False)}
     return {n: values.iloc[rows] for n, rows in zip(names, positions) if len(rows)}
 
 
@@ -600,29 +597,3 @@ def assemble(parts: list[MeasurandPart]) -> PrecisionStage:
     }
     return PrecisionStage(extras=extras, stage_notes={part.name: part.notes for part in parts if part.notes},
                           details=details, audit=tuple(row for part in parts for row in part.audit))
-
-
-def precision_stage(rnd: Round, table: ResultTable, measurands: dict[str, MeasurandResult]) -> PrecisionStage:
-    """Run precision, screens, Mandel and method groups for every measurand of the round.
-
-    Parameters
-    ----------
-    rnd : Round
-        ``outliers``, ``stragglers`` and ``confidence`` are read from it.
-    table : ResultTable
-        The replicates (``value`` and ``text``).
-    measurands : dict of str to MeasurandResult
-        The evaluation so far: which labs are used, their means and methods.
-
-    Returns
-    -------
-    PrecisionStage
-
-    Raises
-    ------
-    RoundFileError
-        Contradictory ``round.outliers`` / ``round.stragglers`` (see :func:`drop_choice`).
-    """
-    drop = drop_choice(rnd)
-    by_measurand = replicate_rows(table)
-    return assemble([measurand_part(rnd, mr, by_measurand.get(name), drop) for name, mr in measurands.items()])
