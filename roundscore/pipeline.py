@@ -23,7 +23,8 @@ from roundscore.model.evaluation import RoundEvaluation
 from roundscore.model.inputs import Participant
 from roundscore.model.round import Round
 from roundscore.model.table import ResultTable
-from roundscore.outputs.outfolder import OutputFolderError, atomic_folder, check_target, mark_folder, read_marker
+from roundscore.outputs.outfolder import (OutputFolderError, TargetState, atomic_folder, check_target, mark_folder,
+                                          read_marker)
 from roundscore.outputs.writers import LAB_SHEETS_PER_TASK, WriteOptions, write_with, writers_for  # noqa: F401
 
 __all__ = ["run_round", "write_outputs", "atomic_folder", "Outputs", "load_and_evaluate", "round_inputs",
@@ -198,7 +199,7 @@ def run_round(round_path: str | Path, out: str | Path, *, archive: str | Path | 
 
 
 def cache_folder(out: str | Path, *, protect: Iterable[tuple[Path, str]] = (), input_folders: Iterable[Path] = (),
-                 create: bool = False) -> Path | None:
+                 create: bool = False, state: TargetState | None = None) -> Path | None:
     """The input cache's folder inside the output folder ``out``, or None where there is none to use.
 
     The cache lives only inside an output folder roundscore owns (one
@@ -208,13 +209,17 @@ def cache_folder(out: str | Path, *, protect: Iterable[tuple[Path, str]] = (), i
     output folder's marker rules still hold: ``score`` replaces the folder
     with it. With ``create`` a missing cache folder is made, and a missing
     (or empty) output folder too, marked as an output folder holding no
-    outputs yet; a folder of that name that is not ours is never used.
+    outputs yet; a folder of that name that is not ours is never used. ``state``: what
+    :func:`~roundscore.outputs.outfolder.check_target` said of ``out`` moments ago in this run, to look for an
+    existing cache without checking the target again (a round's thousands of forms are protected paths); never
+    with ``create``, which always checks before it makes anything.
     """
     out = Path(out)
-    try:
-        state = check_target(out, protect=list(protect), input_folders=list(input_folders))
-    except OutputFolderError:
-        return None
+    if state is None or create:
+        try:
+            state = check_target(out, protect=list(protect), input_folders=list(input_folders))
+        except OutputFolderError:
+            return None
     folder = out / CACHE_FOLDER
     if state != "ours":
         if not create:
@@ -249,21 +254,29 @@ def _save_cache(cache: InputCache, out: str | Path, *, protect, input_folders, n
     return folder
 
 
-@dataclass(frozen=True, slots=True, kw_only=True)
+@dataclass(slots=True, kw_only=True)
 class CachePlace:
-    """Where a round's cache folder is, inside its output folder ``out`` (:func:`cache_folder`)."""
+    """Where a round's cache folder is, inside its output folder ``out`` (:func:`cache_folder`).
+
+    ``state``: what :func:`~roundscore.outputs.outfolder.check_target` said of ``out`` when the place was made
+    (None: not checked). :meth:`existing` only reads, and trusts it; :meth:`create` checks the target again
+    before it makes anything, and then knows the folder is ours.
+    """
 
     out: Path
     protect: tuple[tuple[Path, str], ...] = ()
     input_folders: tuple[Path, ...] = ()
+    state: TargetState | None = None
 
     def existing(self) -> Path | None:
         """The cache folder if it is there and ours (None otherwise)."""
-        return cache_folder(self.out, protect=self.protect, input_folders=self.input_folders)
+        return cache_folder(self.out, protect=self.protect, input_folders=self.input_folders, state=self.state)
 
     def create(self) -> Path | None:
         """The cache folder, made (with the output folder) when missing; None where it may not be."""
-        return cache_folder(self.out, protect=self.protect, input_folders=self.input_folders, create=True)
+        folder = cache_folder(self.out, protect=self.protect, input_folders=self.input_folders, create=True)
+        self.state = "ours" if folder is not None else None
+        return folder
 
 
 @dataclass(frozen=True, slots=True, kw_only=True)
@@ -289,8 +302,9 @@ def check_round(round_path: str | Path, *, out: str | Path | None = None, use_ca
     target = Path(out) if out is not None else rnd.folder / "out"
     try:
         protect, input_folders = round_inputs(rnd)
-        check_target(target, protect=protect, input_folders=input_folders)
-        place: CachePlace | None = CachePlace(out=target, protect=tuple(protect), input_folders=tuple(input_folders))
+        state = check_target(target, protect=protect, input_folders=input_folders)
+        place: CachePlace | None = CachePlace(out=target, protect=tuple(protect), input_folders=tuple(input_folders),
+                                              state=state)
     except OutputFolderError:
         place = None
     except RoundscoreError as exc:

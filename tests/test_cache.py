@@ -225,3 +225,31 @@ def test_no_cache_in_a_folder_that_is_not_ours(big, tmp_path, capsys):
     assert (rnd_dir / "out" / CACHE_FOLDER / PACK_NAME).is_file()
     assert main(["score", str(rnd_dir), "--quiet", "--formats", "csv", "--no-cache"]) == 0
     assert not (rnd_dir / "out" / CACHE_FOLDER).exists()
+
+
+def test_a_recheck_checks_the_target_once_and_before_any_write(big, tmp_path, monkeypatch, capsys):
+    """The check command looks for its cache without checking the output folder again (the round's forms are
+    all protected paths: each check walks them), and checks it once more before it writes there; a folder that
+    became a user's in between is left alone (the tool's own contract: nothing it did not make is changed)."""
+    import roundscore.pipeline as pipeline
+    from roundscore.pipeline import CachePlace
+
+    out = tmp_path / "out"
+    first = main(["check", str(big), "--out", str(out), "--jobs", "1"])
+    assert first in (0, 1)  # 1: the small generated round fails a check (said, not an error)
+    calls = []
+    real = pipeline.check_target
+    monkeypatch.setattr(pipeline, "check_target", lambda *a, **k: calls.append(a) or real(*a, **k))
+    capsys.readouterr()
+    assert main(["check", str(big), "--out", str(out), "--jobs", "1"]) == first  # forms unchanged: none cached
+    assert "are valid" in capsys.readouterr().out
+    assert len(calls) == 2  # once when the place is found, once before the change summary is written
+    # A place that found the target new, whose folder then became somebody else's: create() checks again.
+    user = tmp_path / "user"
+    place = CachePlace(out=user, state="new")
+    user.mkdir()
+    (user / "notes.txt").write_text("mine")
+    assert place.existing() is None
+    assert place.create() is None
+    assert sorted(p.name for p in user.iterdir()) == ["notes.txt"]
+    assert (user / "notes.txt").read_text() == "mine"

@@ -463,3 +463,20 @@ def test_precision_takes_cells_or_rows_not_both() -> None:
         precision()
     with pytest.raises(StatisticsError, match="lab\\(s\\) ZZ"):
         cells.subset(["L00", "ZZ"])
+
+
+def test_precision_without_consistency_statistics_gives_the_same_precision() -> None:
+    """consistency=False leaves out Mandel's h, k and Algorithm S, and nothing else: every other field is the same
+    (self-consistency of the two paths; the kept labs' precision in the evaluation uses it)."""
+    rng = np.random.default_rng(7)
+    values = rng.normal(50.0, 1.0, 30).round(2)
+    labs = np.repeat([f"L{i:02d}" for i in range(10)], 3)
+    full = precision(values, labs)
+    lean = precision(values, labs, consistency=False)
+    assert lean.mandel is None and lean.robust_s_r is None
+    assert full.mandel is not None and full.robust_s_r is not None
+    for name in ("s_r", "s_L", "s_R", "r", "R", "n_bar", "general_mean", "balanced", "s_L_truncated"):
+        assert getattr(lean, name) == getattr(full, name), name
+    d = lean.to_dict()
+    assert d["h"] is None and d["k_critical"] is None and d["robust_s_r"] is None
+    assert d["s_r"] == full.to_dict()["s_r"]

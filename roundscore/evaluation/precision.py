@@ -351,7 +351,8 @@ def _measurand_precision(rnd: Round, name: str, rows: pd.DataFrame | None, used:
         if left_labs < 2:
             raise StatisticsError(f"fewer than 2 labs remain ({left_labs} of {len(present)})")
         if prec is None:
-            prec = pr.precision(cells=cells.subset(screening.retained))
+            # Mandel's h, k and Algorithm S are of all labs (above); the kept labs' result needs neither.
+            prec = pr.precision(cells=cells.subset(screening.retained), consistency=False)
     except StatisticsError as exc:
         left = f"after leaving out {', '.join(screening.excluded)}: " if screening.excluded else ""
         msg = f"precision not computed {left}{exc}"

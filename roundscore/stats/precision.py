@@ -290,10 +290,10 @@ class PrecisionResult:
         Reproducibility SD, ``√(s_r² + s_L²)``.
     r, R : float
         Repeatability and reproducibility limits ``LIMIT_FACTOR·s``.
-    mandel : MandelResult
-        h and k per lab with indicator values.
+    mandel : MandelResult or None
+        h and k per lab with indicator values (None when not asked for: ``precision(consistency=False)``).
     robust_s_r : AlgorithmSResult or None
-        Algorithm S on the cell SDs when every lab has the same n ≥ 2, else None.
+        Algorithm S on the cell SDs when every lab has the same n ≥ 2 (and it was asked for), else None.
     """
 
     cells: CellStatistics
@@ -307,7 +307,7 @@ class PrecisionResult:
     s_R: float
     r: float
     R: float
-    mandel: MandelResult
+    mandel: MandelResult | None
     robust_s_r: AlgorithmSResult | None
 
     @property
@@ -342,10 +342,10 @@ class PrecisionResult:
             "n": [int(v) for v in self.cells.n],
             "means": clean(self.cells.means),
             "sds": clean(self.cells.sds),
-            "h": clean(self.mandel.h),
-            "k": clean(self.mandel.k),
-            "h_critical": {"5%": self.mandel.h_critical_5, "1%": self.mandel.h_critical_1},
-            "k_critical": {"5%": self.mandel.k_critical_5, "1%": self.mandel.k_critical_1},
+            **({"h": None, "k": None, "h_critical": None, "k_critical": None} if (m := self.mandel) is None else {
+                "h": clean(m.h), "k": clean(m.k),
+                "h_critical": {"5%": m.h_critical_5, "1%": m.h_critical_1},
+                "k_critical": {"5%": m.k_critical_5, "1%": m.k_critical_1}}),
             "robust_s_r": None if self.robust_s_r is None else self.robust_s_r.value,
         }
 
@@ -715,6 +715,7 @@ def precision(
     *,
     texts: Sequence[str] | None = None,
     cells: CellStatistics | None = None,
+    consistency: bool = True,
 ) -> PrecisionResult:
     """Repeatability and reproducibility of one level (ISO 5725-2 §7.4).
 
@@ -730,6 +731,10 @@ def precision(
         Cell statistics computed before (e.g. ``cells.subset(kept)``), instead
         of ``values``, ``labs`` and ``texts``; the result is then the same as
         from the rows those cells were computed from.
+    consistency : bool
+        Also Mandel's h and k and Algorithm S (default). False leaves
+        ``mandel`` and ``robust_s_r`` None: for the precision of the labs a
+        screen kept, whose consistency was judged on all labs.
 
     Returns
     -------
@@ -775,7 +780,7 @@ def precision(
     s_L = math.sqrt(s_L2)
     s_R = math.sqrt(s_r2 + s_L2)
     balanced = bool(np.all(cells.n == cells.n[0]))
-    robust = algorithm_s(cells.sds, int(cells.n[0]) - 1) if balanced else None
+    robust = algorithm_s(cells.sds, int(cells.n[0]) - 1) if balanced and consistency else None
     general = float(cells.offset) + math.fsum(n * cells.deviation_means) / total
     return PrecisionResult(
         cells=cells,
@@ -789,6 +794,6 @@ def precision(
         s_R=s_R,
         r=LIMIT_FACTOR * s_r,
         R=LIMIT_FACTOR * s_R,
-        mandel=mandel(cells),
+        mandel=mandel(cells) if consistency else None,
         robust_s_r=robust,
     )
