@@ -197,3 +197,22 @@ def test_lab_returned_twice_across_batches_is_a_duplicate(big, tmp_path, monkeyp
     assert len(probs) == 1 and probs[0].lab == "L0001"
     assert probs[0].file == "forms/zz-returned-again.xlsx"
     assert f"lab L0001 returned two forms: this one and forms/{forms[0].name}" in probs[0].message
+
+
+def test_one_batch_per_job_runs_the_last_batch_here_beside_the_workers():
+    """With as many batches as jobs (how the evaluation cuts its measurands), the last batch runs in this
+    process while the others run in workers: the results in order, the shared context there too, errors from
+    either side raised with their type (the module's own contract)."""
+    items = list(range(20))
+    pids = run_batches(_pid, items, jobs=2, batch_size=10)
+    assert pids[10:] == [os.getpid()] * 10 and os.getpid() not in pids[:10]
+    assert run_batches(_with_shared, items, jobs=2, shared=100, batch_size=10) == [100 + x for x in items]
+    assert run_batches(_square, items, jobs=2, batch_size=10) == [x * x for x in items]
+    in_parent = [x + 100 if x == 7 else x for x in items]
+    in_parent[15] = 7
+    for failing in (items, in_parent):  # the bad item 7 in the worker's batch, then in the parent's own
+        with pytest.raises(InputError) as info:
+            run_batches(_fails, failing, jobs=2, batch_size=10)
+        assert info.value.summary == "refused" and info.value.problems[0].row == 7
+    with pytest.raises(TypeError, match="one result per item"):
+        run_batches(_wrong_length, items, jobs=2, batch_size=10)

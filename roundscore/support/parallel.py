@@ -163,7 +163,8 @@ def run_batches(
     items : sequence
     jobs : int or None
         Worker processes; None or 0 = all cores (:func:`resolve_jobs`).
-        With 1, or when everything fits in one batch, ``fn`` runs here.
+        With 1, or when everything fits in one batch, ``fn`` runs here; with
+        one batch per job, the last batch runs here beside ``jobs − 1`` workers.
     shared : object
         Read-only context made available to ``fn`` through :func:`shared`.
     batch_size : int, optional
@@ -206,10 +207,22 @@ def run_batches(
     forked = ctx.get_start_method() == "fork"
     if forked:
         _set_shared(shared)  # inherited by the forked workers
-    pool = ProcessPoolExecutor(max_workers=min(jobs, len(parts)), mp_context=ctx, initializer=_start_worker,
+    # One batch per job (as the evaluation asks): the last batch runs here while the workers run the others, so
+    # one process fewer is started and that batch's results are not sent back (the parent would only wait).
+    here = len(parts) == jobs
+    sent = parts[:-1] if here else parts
+    pool = ProcessPoolExecutor(max_workers=min(jobs, len(sent)), mp_context=ctx, initializer=_start_worker,
                                initargs=(os.getpid(), None if forked else shared, not forked))
     try:
-        pending = {pool.submit(_call, fn, part): i for i, part in enumerate(parts)}
+        pending = {pool.submit(_call, fn, part): i for i, part in enumerate(sent)}
+        if here:
+            _set_shared(shared)
+            mine = fn(parts[-1])
+            _check_length(mine, parts[-1])
+            results[-1] = mine
+            done_items += len(parts[-1])
+            if progress:
+                progress(stage, done_items, n)
         while pending:
             finished, _ = wait(pending, return_when=FIRST_COMPLETED)
             for fut in finished:
