@@ -1,5 +1,7 @@
 """roundscore.support.paths against pathlib itself: each answer is the one Path.resolve() and
 Path.parents give, path by path (the reference is the standard library's own definition)."""
+# Source of expected values: Python's pathlib (Path.resolve, Path.parents) and os.path on the same paths, computed
+# in the test; no hard-coded results.
 
 from __future__ import annotations
 

@@ -205,8 +205,7 @@ def run_batches(
     done_items = 0
     previous = _SHARED
     forked = ctx.get_start_method() == "fork"
-    if forked:
-        _set_shared(shared)  # inherited by the forked workers
+    _set_shared(shared)  # inherited by forked workers; read by a batch run here
     # One batch per job (as the evaluation asks): the last batch runs here while the workers run the others, so
     # one process fewer is started and that batch's results are not sent back (the parent would only wait).
     here = len(parts) == jobs
@@ -216,7 +215,6 @@ def run_batches(
     try:
         pending = {pool.submit(_call, fn, part): i for i, part in enumerate(sent)}
         if here:
-            _set_shared(shared)
             mine = fn(parts[-1])
             _check_length(mine, parts[-1])
             results[-1] = mine
