@@ -218,9 +218,10 @@ def _frames(ev):
 
 
 def test_measurands_evaluated_in_worker_processes_give_the_same_evaluation(demo_round, monkeypatch):
-    """A large round's measurands are evaluated in worker processes (one batch each, back in order): every table,
-    note and detail is the same as evaluated here, one after another (common practice for parallel work: the
-    result must not depend on the number of workers)."""
+    """A large round's measurands are evaluated in worker processes (a share here, the rest in batches, each batch's
+    score rows built here as it comes in, back in order): every table, note and detail is the same as evaluated
+    here, one after another (common practice for parallel work: the result must not depend on the number of
+    workers)."""
     import roundscore.evaluation.evaluate as ev_mod
 
     rnd = load_round(demo_round)
@@ -231,12 +232,12 @@ def test_measurands_evaluated_in_worker_processes_give_the_same_evaluation(demo_
     real = ev_mod.run_batches
 
     def spy(fn, items, **kw):
-        calls.append(kw["jobs"])
+        calls.append((kw["jobs"], kw["here"]))
         return real(fn, items, **kw)
 
     monkeypatch.setattr(ev_mod, "run_batches", spy)
     apart = roundscore.evaluate(rnd, table, parts, jobs=2)
-    assert calls == [2]
+    assert calls == [(2, ev_mod._shares(len(rnd.measurands), 2)[0])] and 0 < calls[0][1] < len(rnd.measurands)
     a, b = _frames(here), _frames(apart)
     assert a.keys() == b.keys() and len(a) > 5
     for name in a:
@@ -249,6 +250,25 @@ def test_measurands_evaluated_in_worker_processes_give_the_same_evaluation(demo_
         assert (other.assigned, other.u_assigned, other.sigma_pt, other.notes) == (
             mr.assigned, mr.u_assigned, mr.sigma_pt, mr.notes)
         pd.testing.assert_frame_equal(mr.labs, other.labs, check_exact=True)
+
+
+@pytest.mark.parametrize("n", [1, 2, 5, 40, 400])
+@pytest.mark.parametrize("workers", [1, 2, 3, 8])
+def test_the_share_evaluated_here_leaves_room_for_handling_the_workers_results(n, workers):
+    """This process takes fewer measurands than a worker (it also handles every worker's results), none beside
+    many workers, and the workers' batches cover the rest (the module's own balance, HANDLING_SHARE)."""
+    import roundscore.evaluation.evaluate as ev_mod
+
+    here, size = ev_mod._shares(n, workers)
+    if workers == 1:
+        assert here is None and size == n
+        return
+    assert 0 <= here <= n and size >= 1
+    per_worker = (n - here) / (workers - 1)
+    assert here <= per_worker + 1  # never more than a worker's own share (rounding aside)
+    mine = here + ev_mod.HANDLING_SHARE * (n - here)  # what this process does, in measurands
+    assert abs(mine - per_worker) <= 1 or (here == 0 and mine > per_worker)  # balanced, to one measurand
+    assert -(-(n - here) // size) <= 4 * (workers - 1)  # about four batches per worker
 
 
 def test_an_error_in_a_measurand_worker_reaches_the_caller(demo_round, monkeypatch):

@@ -216,3 +216,37 @@ def test_one_batch_per_job_runs_the_last_batch_here_beside_the_workers():
         assert info.value.summary == "refused" and info.value.problems[0].row == 7
     with pytest.raises(TypeError, match="one result per item"):
         run_batches(_wrong_length, items, jobs=2, batch_size=10)
+
+
+def test_a_share_here_and_each_batch_handled_here_as_it_comes_in():
+    """``here`` items (the last) run in this process while the workers run the rest in batches, and ``then``
+    handles every batch's results in this process, its results replacing them (the module's own contract)."""
+    items = list(range(23))
+    seen: list[tuple[list[int], int]] = []
+
+    def then(batch, got):
+        seen.append((list(batch), os.getpid()))
+        return [(x, pid, os.getpid()) for x, pid in zip(batch, got)]
+
+    out = run_batches(_pid, items, jobs=2, batch_size=4, here=7, then=then)
+    assert [x for x, _, _ in out] == items
+    ran = [pid for _, pid, _ in out]
+    assert ran[16:] == [os.getpid()] * 7 and os.getpid() not in ran[:16]  # the last 7 here, the rest elsewhere
+    assert {pid for _, _, pid in out} == {os.getpid()}  # every batch handled here
+    assert sorted(x for batch, _ in seen for x in batch) == items
+    assert seen[0][0] == items[16:]  # this process's own batch first, then the workers' as they come in
+    assert sorted(len(b) for b, _ in seen[1:]) == [4, 4, 4, 4]
+    # The same results for any split, inline too; the share is checked.
+    for jobs, here in ((1, 7), (2, 0), (2, 23), (3, 5)):
+        assert run_batches(_square, items, jobs=jobs, batch_size=4, here=here,
+                           then=lambda b, g: [v + 1 for v in g]) == [x * x + 1 for x in items]
+    with pytest.raises(ValueError, match="here must be between 0 and the 23 items"):
+        run_batches(_square, items, jobs=2, here=24)
+    with pytest.raises(TypeError, match="one result per item"):
+        run_batches(_square, items, jobs=2, batch_size=4, here=7, then=lambda b, g: g[:1])
+    in_parent = [x + 100 if x == 7 else x for x in items]
+    in_parent[20] = 7
+    for failing in (items, in_parent):  # the bad item in a worker's batch, then in this process's own
+        with pytest.raises(InputError) as info:
+            run_batches(_fails, failing, jobs=2, batch_size=4, here=7)
+        assert info.value.problems[0].row == 7

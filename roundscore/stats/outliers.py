@@ -41,7 +41,7 @@ import numpy as np
 
 from roundscore.errors import StatisticsError
 from roundscore.stats.distributions import f_isf, t_isf
-from roundscore.stats.exact import check_choice, fsum_mean, mean_variance
+from roundscore.stats.exact import check_choice, fsum, fsum_mean, mean_variance
 from roundscore.stats.grubbs_double import (GRUBBS_DOUBLE_SEED, OUTLIER_LEVEL, STRAGGLER_LEVEL, GrubbsDoubleTable,
                                             grubbs_double_critical, grubbs_double_table)
 from roundscore.stats.precision import CellStatistics, PrecisionResult, cells_from, precision
@@ -175,7 +175,7 @@ def cochran(sds: Sequence[float] | np.ndarray, n: int) -> CochranResult:
     if s.size < 2:
         raise StatisticsError("Cochran's test needs at least 2 standard deviations")
     v = s * s
-    total = math.fsum(v)
+    total = fsum(v)
     if not total > 0:
         raise StatisticsError("Cochran's test: every standard deviation is zero")
     i = int(np.argmax(v))
@@ -329,7 +329,7 @@ def grubbs_double(values: Sequence[float] | np.ndarray) -> GrubbsPair:
         raise StatisticsError(f"the double Grubbs test needs at least 4 values, got {p}")
     m = fsum_mean(x)
     d = x - m
-    ss0 = math.fsum(d * d)
+    ss0 = fsum(d * d)
     if not ss0 > 0:
         raise StatisticsError("Grubbs' test: the values do not vary")
     order = np.argsort(x, kind="stable")
@@ -339,7 +339,7 @@ def grubbs_double(values: Sequence[float] | np.ndarray) -> GrubbsPair:
         y = x[keep]
         my = fsum_mean(y)
         e = y - my
-        return math.fsum(e * e) / ss0
+        return fsum(e * e) / ss0
 
     g_hi = ratio(order[:-2])
     g_lo = ratio(order[2:])

@@ -38,7 +38,7 @@ import numpy as np
 
 from roundscore.errors import StatisticsError
 from roundscore.stats.distributions import chi2_cdf, chi2_ppf, f_isf, f_sf, t_isf
-from roundscore.stats.exact import centred, clipped_square_sums, fsum_mean, grouped_fsum
+from roundscore.stats.exact import centred, clipped_square_sums, fsum, fsum_mean, grouped_fsum
 
 __all__ = [
     "LIMIT_FACTOR",
@@ -352,7 +352,7 @@ class PrecisionResult:
 
 def _ss(x: np.ndarray, m: float) -> float:
     d = x - m
-    return math.fsum(d * d)
+    return fsum(d * d)
 
 
 def _groups(lab_arr: np.ndarray) -> tuple[tuple[str, ...], np.ndarray, np.ndarray]:
@@ -437,12 +437,12 @@ def _anova_from_cells(cells: CellStatistics) -> AnovaTable:
     n = cells.n
     total = int(n.sum())
     p = cells.p
-    grand = math.fsum(n * cells.deviation_means) / total
+    grand = fsum(n * cells.deviation_means) / total
     d = cells.deviation_means - grand
-    grand += math.fsum(n * d) / total  # refinement pass
+    grand += fsum(n * d) / total  # refinement pass
     d = cells.deviation_means - grand
-    ss_b = math.fsum(n * d * d)
-    ss_w = math.fsum(cells.ss_cells)
+    ss_b = fsum(n * d * d)
+    ss_w = fsum(cells.ss_cells)
     df_b, df_w = p - 1, total - p
     ms_b = ss_b / df_b if df_b > 0 else math.nan
     ms_w = ss_w / df_w if df_w > 0 else math.nan
@@ -582,7 +582,7 @@ def mandel(cells: CellStatistics) -> MandelResult:
     has_sd = cells.n > 1
     s = cells.sds[has_sd]
     p_k = int(has_sd.sum())
-    sum_s2 = math.fsum(s * s)
+    sum_s2 = fsum(s * s)
     k = np.full(p, np.nan)
     if p_k >= 1 and sum_s2 > 0:
         k[has_sd] = s * math.sqrt(p_k) / math.sqrt(sum_s2)
@@ -677,7 +677,7 @@ def algorithm_s(sds: Sequence[float] | np.ndarray, df: int) -> AlgorithmSResult:
             square_sum = sums(psi)
         else:
             winsorized = np.minimum(w, psi)
-            square_sum = math.fsum(winsorized * winsorized)
+            square_sum = fsum(winsorized * winsorized)
         new = xi * math.sqrt(square_sum / w.size)
         iterations += 1
         converged = abs(new - current) <= ALGORITHM_S_TOLERANCE * abs(current)
@@ -771,7 +771,7 @@ def precision(
     anova = _anova_from_cells(cells)
     n = cells.n.astype(float)
     total = n.sum()
-    n_bar = (total - math.fsum(n * n) / total) / (cells.p - 1)
+    n_bar = (total - fsum(n * n) / total) / (cells.p - 1)
     s_r2 = anova.ms_within
     s_L2 = (anova.ms_between - s_r2) / n_bar
     truncated = bool(s_L2 < 0)
@@ -781,7 +781,7 @@ def precision(
     s_R = math.sqrt(s_r2 + s_L2)
     balanced = bool(np.all(cells.n == cells.n[0]))
     robust = algorithm_s(cells.sds, int(cells.n[0]) - 1) if balanced and consistency else None
-    general = float(cells.offset) + math.fsum(n * cells.deviation_means) / total
+    general = float(cells.offset) + fsum(n * cells.deviation_means) / total
     return PrecisionResult(
         cells=cells,
         anova=anova,

@@ -151,7 +151,9 @@ def run_batches(
     batch_size: int | None = None,
     progress: Progress | None = None,
     stage: str = "",
-) -> list[R]:
+    here: int | None = None,
+    then: Callable[[Sequence[T], list[R]], list] | None = None,
+) -> list:
     """``fn`` applied to contiguous batches of ``items`` in worker processes; the results, flattened, in order.
 
     Parameters
@@ -171,11 +173,22 @@ def run_batches(
         Items per batch (default: about :data:`BATCHES_PER_JOB` batches per job).
     progress : callable, optional
         Called as ``progress(stage, done, total)`` after each finished batch.
+    here : int, optional
+        Run the last ``here`` items in this process, as one batch, while the
+        workers run the others (in batches of ``batch_size``): a share chosen
+        by the caller, for work whose results this process also handles
+        (``then``). Default: with one batch per job, the last batch.
+    then : callable, optional
+        ``then(batch, results)`` → results, called in this process on each
+        batch's results as soon as they are in (a batch run here: right after
+        it; a worker's: when it arrives, while the workers go on with the
+        others); what it returns (one per item) replaces them. Work on the
+        results that is cheaper done here than sent back overlaps the workers' work.
 
     Returns
     -------
     list
-        One result per item, in the order of ``items``.
+        One result per item (``fn``'s, or ``then``'s), in the order of ``items``.
 
     Raises
     ------
@@ -185,14 +198,26 @@ def run_batches(
     items = list(items) if not isinstance(items, Sequence) else items
     n = len(items)
     jobs = resolve_jobs(jobs)
-    parts = batches(items, jobs, batch_size)
+    if here is not None and not 0 <= here <= n:
+        raise ValueError(f"here must be between 0 and the {n} items, got {here}")
+    if here is None:
+        parts = batches(items, jobs, batch_size)
+        mine_last = len(parts) == jobs  # one batch per job: the last runs here
+    elif here == n or jobs == 1:
+        parts, mine_last = batches(items, 1, n or None), True  # everything here, as one batch
+    else:
+        parts = batches(items[:n - here], jobs - 1, batch_size) + ([items[n - here:]] if here else [])
+        mine_last = here > 0
+    then = then or _unchanged
     if jobs == 1 or len(parts) <= 1:
         previous = _SHARED
         _set_shared(shared)
         try:
-            out: list[R] = []
+            out: list = []
             for part in parts:
                 res = fn(part)
+                _check_length(res, part)
+                res = then(part, res)
                 _check_length(res, part)
                 out.extend(res)
                 if progress:
@@ -206,16 +231,19 @@ def run_batches(
     previous = _SHARED
     forked = ctx.get_start_method() == "fork"
     _set_shared(shared)  # inherited by forked workers; read by a batch run here
-    # One batch per job (as the evaluation asks): the last batch runs here while the workers run the others, so
-    # one process fewer is started and that batch's results are not sent back (the parent would only wait).
-    here = len(parts) == jobs
-    sent = parts[:-1] if here else parts
-    pool = ProcessPoolExecutor(max_workers=min(jobs, len(sent)), mp_context=ctx, initializer=_start_worker,
+    # One batch per job (as the evaluation asks), or the share ``here``: the last batch runs here while the workers
+    # run the others, so one process fewer is started and that batch's results are not sent back (the parent
+    # would only wait).
+    sent = parts[:-1] if mine_last else parts
+    workers = min(jobs - 1 if mine_last else jobs, len(sent))
+    pool = ProcessPoolExecutor(max_workers=workers, mp_context=ctx, initializer=_start_worker,
                                initargs=(os.getpid(), None if forked else shared, not forked))
     try:
         pending = {pool.submit(_call, fn, part): i for i, part in enumerate(sent)}
-        if here:
+        if mine_last:
             mine = fn(parts[-1])
+            _check_length(mine, parts[-1])
+            mine = then(parts[-1], mine)
             _check_length(mine, parts[-1])
             results[-1] = mine
             done_items += len(parts[-1])
@@ -228,6 +256,8 @@ def run_batches(
                 res = fut.result()
                 if isinstance(res, _Failure):
                     raise res.rebuild()
+                _check_length(res, parts[i])
+                res = then(parts[i], res)
                 _check_length(res, parts[i])
                 results[i] = res
                 done_items += len(parts[i])
@@ -257,6 +287,10 @@ def _stop(pool: ProcessPoolExecutor) -> None:
             proc.kill()
     for proc in processes:
         proc.join(timeout=5.0)
+
+
+def _unchanged(part: Sequence, res: list) -> list:
+    return res
 
 
 def _check_length(res: Any, part: Sequence) -> None:
