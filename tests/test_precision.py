@@ -10,6 +10,7 @@ import numpy as np
 import pytest
 
 from roundscore.errors import InputError, StatisticsError
+from roundscore.stats import exact
 from roundscore.stats.exact import _integer_centred, centred, clipped_square_sums, grouped_fsum
 from roundscore.stats.precision import (
     LIMIT_FACTOR,
@@ -431,6 +432,22 @@ def test_grouped_fsum_nonfinite_and_overflow_as_fsum() -> None:
     assert got[0] == math.inf and math.isnan(got[1])
     with pytest.raises(OverflowError):
         grouped_fsum(np.array([1e308, 1e308, -1e308]), np.array([0]))
+
+
+def test_fsum_of_an_array_is_math_fsum_of_it() -> None:
+    # Reference: math.fsum on the array itself (the Python documentation's correctly rounded sum), bit for bit,
+    # with its errors and its results for inf, nan and the sign of zero.
+    rng = np.random.default_rng(7)
+    for x in (rng.normal(0, 1, 2000) * np.where(rng.random(2000) < 0.1, 1e16, 1.0), np.array([-0.0, -0.0]),
+              np.array([5e-324, 1e-310, -1e-310]), np.array([1.0, math.inf]), np.array([math.nan, 1.0]),
+              np.arange(12, dtype=np.int64).reshape(3, 4), np.zeros(0)):
+        got, ref = exact.fsum(x), math.fsum(x.ravel())
+        assert (math.isnan(got) and math.isnan(ref)) or (got == ref and math.copysign(1, got) == math.copysign(1, ref))
+    for bad, error in ((np.array([1e308, 1e308, -1e308]), OverflowError), (np.array([math.inf, -math.inf]), ValueError)):
+        with pytest.raises(error):
+            exact.fsum(bad)
+        with pytest.raises(error):
+            math.fsum(bad)
 
 
 @pytest.mark.parametrize("name", ["SmLs07", "SiRstv"])
