@@ -446,9 +446,10 @@ class _Done:
 
 
 #: What this process does for a measurand a worker evaluated (its score rows, taking its result in), as a share of
-#: the whole evaluation of one measurand (measured with benchmarks/scale.py's ``evaluate`` part at 2000 labs:
-#: about 10 ms of 60 ms).
-HANDLING_SHARE = 0.17
+#: the whole evaluation of one measurand: about 7.5 ms of 55 to 60 ms at 2000 labs, 2 cores. Set by trial on the
+#: 2000-lab round (9 evaluations each, alternating with the two equal batches before): 0.17 (18 measurands here)
+#: 1.81 s against 1.83 s, the worker finishing last; 0.12 (19 here) 1.71 s against 1.86 s.
+HANDLING_SHARE = 0.12
 
 
 def _shares(n: int, workers: int) -> tuple[int | None, int]:
@@ -456,8 +457,8 @@ def _shares(n: int, workers: int) -> tuple[int | None, int]:
     size of the workers' batches (about four each, so their results come in while they go on).
 
     This process also handles every worker's results (:data:`HANDLING_SHARE` of a measurand each), so it takes
-    fewer: ``h`` with ``h + s(n − h) = (n − h)/(w − 1)`` (s the share, w the workers), which is 45 % of them
-    beside one worker, 14 % beside three.
+    fewer: ``h`` with ``h + s(n − h) = (n − h)/(w − 1)`` (s the share, w the workers), which is 47 % of them
+    beside one worker, 18 % beside three.
     """
     if workers <= 1:
         return None, max(1, n)
