@@ -443,7 +443,8 @@ def test_fsum_of_an_array_is_math_fsum_of_it() -> None:
               np.arange(12, dtype=np.int64).reshape(3, 4), np.zeros(0)):
         got, ref = exact.fsum(x), math.fsum(x.ravel())
         assert (math.isnan(got) and math.isnan(ref)) or (got == ref and math.copysign(1, got) == math.copysign(1, ref))
-    for bad, error in ((np.array([1e308, 1e308, -1e308]), OverflowError), (np.array([math.inf, -math.inf]), ValueError)):
+    overflow, inf_minus_inf = np.array([1e308, 1e308, -1e308]), np.array([math.inf, -math.inf])
+    for bad, error in ((overflow, OverflowError), (inf_minus_inf, ValueError)):
         with pytest.raises(error):
             exact.fsum(bad)
         with pytest.raises(error):
