@@ -200,10 +200,10 @@ def run_batches(
     jobs = resolve_jobs(jobs)
     if here is not None and not 0 <= here <= n:
         raise ValueError(f"here must be between 0 and the {n} items, got {here}")
-    if here is None:
+    if here is None or jobs == 1:  # (one job: every batch runs here, whatever the share)
         parts = batches(items, jobs, batch_size)
         mine_last = len(parts) == jobs  # one batch per job: the last runs here
-    elif here == n or jobs == 1:
+    elif here == n:
         parts, mine_last = batches(items, 1, n or None), True  # everything here, as one batch
     else:
         parts = batches(items[:n - here], jobs - 1, batch_size) + ([items[n - here:]] if here else [])
@@ -231,7 +231,7 @@ def run_batches(
     previous = _SHARED
     forked = ctx.get_start_method() == "fork"
     _set_shared(shared)  # inherited by forked workers; read by a batch run here
-    # One batch per job (as the evaluation asks), or the share ``here``: the last batch runs here while the workers
+    # The share ``here`` (as the evaluation asks), or one batch per job: the last batch runs here while the workers
     # run the others, so one process fewer is started and that batch's results are not sent back (the parent
     # would only wait).
     sent = parts[:-1] if mine_last else parts
